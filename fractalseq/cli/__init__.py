@@ -1,0 +1,1 @@
+"""The ``fractalseq`` command line (typer).  Parsing and formatting only; the math lives in the library."""

@@ -1,0 +1,58 @@
+"""Options shared by every command, so the same thing has the same name everywhere.
+
+Use these as defaults in command signatures, e.g.
+``alphabet: str = common.ALPHABET``.  Keep one line of help per option,
+with units and defaults.
+"""
+
+from __future__ import annotations
+
+import typer
+from rich.console import Console
+
+ALPHABET = typer.Option(
+    "dna",
+    "--alphabet",
+    "-a",
+    help="Symbol set: dna, rna, protein, binary, bytes, learn (from the data), or symbols:XYZ.",
+)
+FORMAT = typer.Option(
+    "auto",
+    "--format",
+    "-f",
+    help="Input kind: auto, fasta, fastq, text, tokens, log, numeric (compression is detected by content).",
+)
+POLICY = typer.Option(
+    "break",
+    "--unknown",
+    help="What to do with ambiguous or unknown symbols: break (end the segment), skip, or error.",
+)
+DEPTH = typer.Option(12, "--depth", "-n", min=1, help="Deepest word length (symbols) counted.")
+RATIO = typer.Option(0.5, "--ratio", "-k", help="Contraction ratio k of the encoding, 0 < k < 1.")
+OUT = typer.Option(None, "--out", "-o", help="Output folder (created; must be empty unless --force).")
+JSON = typer.Option(False, "--json", help="Print machine-readable JSON on standard output instead of tables.")
+QUIET = typer.Option(False, "--quiet", "-q", help="No progress bars or notes on standard error.")
+SEED = typer.Option(0, "--seed", help="Seed of every random step (bootstrap, permutation); same seed, same bytes.")
+FORCE = typer.Option(False, "--force", help="Overwrite existing output files.")
+BINS = typer.Option(4, "--bins", help="numeric input: number of quantile bins (symbols).")
+ORDINAL = typer.Option(0, "--ordinal", help="numeric input: ordinal-pattern order m (0 = use bins).")
+COLUMN = typer.Option(None, "--column", help="numeric input: CSV column name or 0-based index.")
+
+#: Standard error console for progress and notes (standard output stays clean for --json).
+err_console = Console(stderr=True)
+out_console = Console()
+
+
+def progress(quiet: bool):
+    """A rich progress bar on standard error, disabled when ``quiet``."""
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+    return Progress(
+        TextColumn("[bold]{task.description}"),
+        BarColumn(),
+        MofNCompleteColumn(),
+        TimeElapsedColumn(),
+        console=err_console,
+        disable=quiet,
+        transient=True,
+    )

@@ -1,0 +1,136 @@
+"""Writing results without losing anything.
+
+Every file is written to a temporary name in the destination folder and
+renamed into place when complete (``os.replace`` is atomic on POSIX), so an
+interrupted run never leaves a half-written file under the final name.
+Existing files are only replaced when the caller passes ``force=True``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+from pathlib import Path
+from typing import Any, Iterable
+
+import numpy as np
+
+from fractalseq.errors import OutputError
+
+
+def _clean(value: Any) -> Any:
+    """Make ``value`` JSON-ready: numpy scalars/arrays to Python, NaN/inf to None."""
+    if isinstance(value, dict):
+        return {str(k): _clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_clean(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return _clean(value.tolist())
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (np.floating, float)):
+        f = float(value)
+        return f if math.isfinite(f) else None
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if hasattr(value, "to_dict"):
+        return _clean(value.to_dict())
+    return value
+
+
+def to_json(data: Any) -> str:
+    """Deterministic JSON text: sorted keys, NaN as null, fixed float repr, trailing newline."""
+    return json.dumps(_clean(data), indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def check_writable(path: Path, force: bool) -> None:
+    """Raise :class:`OutputError` if ``path`` exists and ``force`` is false, or its folder is unusable."""
+    path = Path(path)
+    if path.exists() and path.is_dir():
+        raise OutputError(f"{path} is a folder, not a file; give a file name.")
+    if path.exists() and not force:
+        raise OutputError(f"{path} already exists; pass --force to overwrite it or choose another name.")
+    parent = path.parent if str(path.parent) else Path(".")
+    if parent.exists() and not parent.is_dir():
+        raise OutputError(f"{parent} is a file, not a folder; choose another output folder.")
+
+
+def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
+    """Atomically write ``data`` to ``path`` (temporary file in the same folder, then rename)."""
+    path = Path(path)
+    check_writable(path, force)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    return path
+
+
+def write_text(path: Path | str, text: str, force: bool = False) -> Path:
+    """Atomically write UTF-8 text."""
+    return write_bytes(path, text.encode("utf-8"), force=force)
+
+
+def write_json(path: Path | str, data: Any, force: bool = False) -> Path:
+    """Atomically write deterministic JSON (see :func:`to_json`)."""
+    return write_text(path, to_json(data), force=force)
+
+
+def write_csv(path: Path | str, header: Iterable[str], rows: Iterable[Iterable[Any]], force: bool = False) -> Path:
+    """Atomically write a CSV table (floats with 10 significant digits, None as empty)."""
+    import csv
+    import io
+
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(list(header))
+    for row in rows:
+        out = []
+        for v in row:
+            v = _clean(v)
+            if v is None:
+                out.append("")
+            elif isinstance(v, float):
+                out.append(f"{v:.10g}")
+            else:
+                out.append(v)
+        w.writerow(out)
+    return write_text(path, buf.getvalue(), force=force)
+
+
+def prepare_folder(folder: Path | str, force: bool) -> Path:
+    """Create an output folder; refuse a file, or a non-empty folder without ``force``."""
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise OutputError(f"{folder} is a file, not a folder; choose another output folder.")
+    if folder.exists() and any(p for p in folder.iterdir() if not p.name.startswith(".")) and not force:
+        raise OutputError(f"{folder} already holds files; pass --force to overwrite them or choose another folder.")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
+    return folder
+
+
+def write_npz(path: Path | str, arrays: dict[str, np.ndarray], force: bool = False) -> Path:
+    """Atomically write a numpy ``.npz`` archive (plain arrays, no object arrays)."""
+    import io
+
+    for k, a in arrays.items():
+        if np.asarray(a).dtype == object:
+            raise ValueError(f"array {k} has dtype object, which cannot be saved without pickle")
+    buf = io.BytesIO()
+    np.savez(buf, **arrays)
+    return write_bytes(path, buf.getvalue(), force=force)

@@ -1,0 +1,246 @@
+"""Symbol streams: an alphabet plus chunks of integer codes with segment breaks.
+
+A *segment* is a stretch of symbols with no gap inside: words never span a
+segment break.  Records (FASTA records, files) always start a new segment;
+runs of ambiguous symbols (``N``) also break the segment under the default
+policy.
+
+:class:`SymbolStream` is re-iterable and lazy: ``chunks()`` calls the reader
+again, so a file is never held in memory whole unless a caller asks for
+:meth:`SymbolStream.to_array`.  :class:`SymbolArray` is the in-memory form.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable, Iterator
+
+import numpy as np
+
+from fractalseq.alphabet import Alphabet
+from fractalseq.errors import InputError
+
+#: Default number of symbols per chunk handed out by readers (4 Mi symbols).
+DEFAULT_CHUNK = 1 << 22
+
+
+@dataclass(frozen=True)
+class Chunk:
+    """A piece of a stream.
+
+    Attributes
+    ----------
+    codes:
+        1-D array of codes (``alphabet.code_dtype``).
+    starts:
+        Sorted int64 positions ``i`` in ``[0, len(codes)]`` where a new segment
+        begins before ``codes[i]``.  ``0`` is present when the chunk does not
+        continue the previous chunk's segment.
+    """
+
+    codes: np.ndarray
+    starts: np.ndarray
+
+    @staticmethod
+    def continuing(codes: np.ndarray) -> "Chunk":
+        """A chunk that continues the current segment."""
+        return Chunk(codes, np.zeros(0, dtype=np.int64))
+
+    @staticmethod
+    def fresh(codes: np.ndarray) -> "Chunk":
+        """A chunk that starts a new segment."""
+        return Chunk(codes, np.zeros(1, dtype=np.int64))
+
+
+@dataclass(frozen=True)
+class Record:
+    """A named part of a stream (a FASTA record, an input file)."""
+
+    name: str
+    start: int
+    length: int
+
+    def to_dict(self) -> dict:
+        return {"name": self.name, "start": self.start, "length": self.length}
+
+
+@dataclass
+class ReadReport:
+    """What a reader kept and dropped, filled while the stream is read.
+
+    ``dropped`` maps a reason (``"ambiguous 'N'"``, ``"unknown 'J'"``...) to a count.
+    """
+
+    symbols: int = 0
+    segments: int = 0
+    dropped: dict[str, int] = field(default_factory=dict)
+    records: list[Record] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    extra: dict = field(default_factory=dict)
+
+    def drop(self, reason: str, count: int) -> None:
+        """Add ``count`` dropped symbols under ``reason``."""
+        if count:
+            self.dropped[reason] = self.dropped.get(reason, 0) + int(count)
+
+    @property
+    def dropped_total(self) -> int:
+        return int(sum(self.dropped.values()))
+
+    def to_dict(self) -> dict:
+        return {
+            "symbols": self.symbols,
+            "segments": self.segments,
+            "dropped": dict(sorted(self.dropped.items())),
+            "dropped_total": self.dropped_total,
+            "records": [r.to_dict() for r in self.records],
+            "notes": list(self.notes),
+            **self.extra,
+        }
+
+
+class SymbolStream:
+    """A re-iterable stream of symbol codes in chunks.
+
+    Parameters
+    ----------
+    alphabet:
+        The alphabet the codes refer to.
+    factory:
+        Called with a fresh :class:`ReadReport` each time the stream is
+        iterated; returns an iterator of :class:`Chunk` and fills the report.
+    name:
+        Name of the source (file name, ``-`` for standard input).
+    """
+
+    def __init__(
+        self,
+        alphabet: Alphabet,
+        factory: Callable[[ReadReport], Iterator[Chunk]],
+        name: str = "stream",
+    ) -> None:
+        self.alphabet = alphabet
+        self.name = name
+        self._factory = factory
+        self.report = ReadReport()
+
+    def chunks(self) -> Iterator[Chunk]:
+        """Iterate over the chunks; :attr:`report` describes the last full pass."""
+        report = ReadReport()
+        for chunk in self._factory(report):
+            yield chunk
+        self.report = report
+
+    def to_array(self) -> "SymbolArray":
+        """Read the whole stream into memory."""
+        parts: list[np.ndarray] = []
+        starts: list[np.ndarray] = []
+        offset = 0
+        for chunk in self.chunks():
+            if len(chunk.codes) == 0 and len(chunk.starts) == 0:
+                continue
+            parts.append(chunk.codes)
+            starts.append(chunk.starts + offset)
+            offset += len(chunk.codes)
+        codes = np.concatenate(parts) if parts else np.zeros(0, dtype=self.alphabet.code_dtype)
+        st = np.concatenate(starts) if starts else np.zeros(0, dtype=np.int64)
+        return SymbolArray(self.alphabet, codes.astype(self.alphabet.code_dtype, copy=False), st, self.name, self.report)
+
+
+def normalise_starts(starts: np.ndarray, length: int) -> np.ndarray:
+    """Sorted unique segment starts within ``[0, length)`` with 0 always present (if length > 0)."""
+    s = np.asarray(starts, dtype=np.int64)
+    s = s[(s >= 0) & (s < length)] if length else s[:0]
+    if length:
+        s = np.concatenate([np.zeros(1, dtype=np.int64), s])
+    return np.unique(s)
+
+
+@dataclass
+class SymbolArray:
+    """A whole stream in memory: codes plus segment starts.
+
+    Attributes
+    ----------
+    alphabet, codes, starts, name, report:
+        ``starts`` holds every segment start (0 included when non-empty).
+    """
+
+    alphabet: Alphabet
+    codes: np.ndarray
+    starts: np.ndarray
+    name: str = "stream"
+    report: ReadReport = field(default_factory=ReadReport)
+
+    def __post_init__(self) -> None:
+        self.codes = np.ascontiguousarray(self.codes, dtype=self.alphabet.code_dtype)
+        self.starts = normalise_starts(self.starts, len(self.codes))
+
+    def __len__(self) -> int:
+        return int(len(self.codes))
+
+    @property
+    def segment_bounds(self) -> np.ndarray:
+        """``(S, 2)`` int64 array of ``[start, end)`` per segment."""
+        ends = np.append(self.starts[1:], len(self.codes))
+        return np.stack([self.starts, ends], axis=1) if len(self.starts) else np.zeros((0, 2), np.int64)
+
+    def segments(self) -> Iterator[np.ndarray]:
+        """Iterate over segments as views of :attr:`codes`."""
+        for a, b in self.segment_bounds:
+            yield self.codes[a:b]
+
+    def chunks(self, size: int = DEFAULT_CHUNK) -> Iterator[Chunk]:
+        """Split into chunks of at most ``size`` symbols (segment starts preserved)."""
+        n = len(self.codes)
+        for lo in range(0, n, size):
+            hi = min(n, lo + size)
+            sel = self.starts[(self.starts >= lo) & (self.starts < hi)] - lo
+            yield Chunk(self.codes[lo:hi], sel.astype(np.int64))
+
+    def as_stream(self, chunk_size: int = DEFAULT_CHUNK) -> SymbolStream:
+        """Wrap as a :class:`SymbolStream` (no copy)."""
+
+        def factory(report: ReadReport) -> Iterator[Chunk]:
+            report.symbols = len(self.codes)
+            report.segments = len(self.starts)
+            report.records = list(self.report.records)
+            report.dropped = dict(self.report.dropped)
+            yield from self.chunks(chunk_size)
+
+        s = SymbolStream(self.alphabet, factory, self.name)
+        s.report = self.report
+        return s
+
+    def slice(self, lo: int, hi: int) -> "SymbolArray":
+        """Symbols ``lo:hi`` with their segment starts (a view of the codes)."""
+        lo = max(0, lo)
+        hi = min(len(self.codes), hi)
+        sel = self.starts[(self.starts > lo) & (self.starts < hi)] - lo
+        return SymbolArray(self.alphabet, self.codes[lo:hi], sel, self.name)
+
+    def require_length(self, minimum: int, what: str) -> None:
+        """Raise :class:`InputError` if fewer than ``minimum`` symbols are present."""
+        if len(self.codes) < minimum:
+            raise InputError(
+                f"{self.name} has {len(self.codes)} symbols but {what} needs at least {minimum}; "
+                "use a longer input or a smaller depth."
+            )
+
+
+def from_codes(
+    alphabet: Alphabet,
+    codes: np.ndarray,
+    starts: np.ndarray | None = None,
+    name: str = "stream",
+) -> SymbolArray:
+    """Build a :class:`SymbolArray` from codes (checked against the alphabet size)."""
+    arr = np.asarray(codes)
+    if arr.ndim != 1:
+        raise InputError("Codes must be a one-dimensional array.")
+    if arr.size and (arr.min() < 0 or arr.max() >= alphabet.size):
+        raise InputError(
+            f"Codes must lie in 0..{alphabet.size - 1} for the {alphabet.name} alphabet; found {int(arr.min())}..{int(arr.max())}."
+        )
+    st = np.zeros(0, np.int64) if starts is None else np.asarray(starts, np.int64)
+    return SymbolArray(alphabet, arr.astype(alphabet.code_dtype), st, name)
