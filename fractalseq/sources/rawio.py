@@ -1,0 +1,321 @@
+"""Opening inputs: paths, standard input and transparent decompression.
+
+Compression is recognised by the first bytes of the file (its *magic*), never
+by the file name: gzip (``1f 8b``), bzip2 (``BZh``), xz (``fd 37 7a 58 5a 00``)
+and Zstandard (``28 b5 2f fd``).  Concatenated members / frames are read in
+sequence.  A truncated or damaged archive raises :class:`InputError` while it
+is read.
+
+Standard input (path ``-``) is read once, whole, into memory the first time it
+is opened and then served from memory for every later pass (a reader that
+learns its alphabet reads its input twice; a pipe can only be read once).
+"""
+
+from __future__ import annotations
+
+import bz2
+import gzip
+import io
+import lzma
+import os
+import sys
+import zlib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import BinaryIO, Iterator
+
+from fractalseq.errors import InputError
+
+#: Bytes read for format sniffing.
+SNIFF_BYTES = 1 << 16
+
+_MAGIC: tuple[tuple[bytes, str], ...] = (
+    (b"\x1f\x8b", "gzip"),
+    (b"BZh", "bzip2"),
+    (b"\xfd7zXZ\x00", "xz"),
+    (b"\x28\xb5\x2f\xfd", "zstd"),
+)
+_UNSUPPORTED_MAGIC: tuple[tuple[bytes, str], ...] = (
+    (b"PK\x03\x04", "zip archive"),
+    (b"\x89HDF", "HDF5 file"),
+    (b"%PDF", "PDF document"),
+    (b"\x93NUMPY", "numpy array file"),
+)
+_BOM = b"\xef\xbb\xbf"
+
+
+@dataclass
+class Origin:
+    """Where the bytes come from: a checked path, or standard input held in memory.
+
+    Attributes
+    ----------
+    name:
+        Display name (the path as given, or ``-``).
+    path:
+        The file path, or ``None`` for standard input.
+    data:
+        The whole raw (possibly compressed) content of standard input.
+    compression:
+        ``None``, ``"gzip"``, ``"bzip2"``, ``"xz"`` or ``"zstd"``.
+    """
+
+    name: str
+    path: Path | None = None
+    data: bytes | None = None
+    compression: str | None = None
+    notes: list[str] = field(default_factory=list)
+
+
+def _stdin_bytes() -> bytes:
+    stream = getattr(sys.stdin, "buffer", None)
+    if stream is None:  # pragma: no cover - replaced stdin without a buffer
+        return sys.stdin.read().encode("utf-8")
+    return stream.read()
+
+
+def locate(path: str | os.PathLike) -> Origin:
+    """Check that ``path`` can be read and detect its compression.
+
+    Parameters
+    ----------
+    path:
+        A file path, or ``"-"`` for standard input (read whole into memory).
+
+    Returns
+    -------
+    Origin
+        The checked origin with its compression kind.
+
+    Raises
+    ------
+    InputError
+        When the path is missing, a folder, unreadable, or an unsupported kind
+        of archive.
+    """
+    name = os.fspath(path)
+    if isinstance(name, bytes):
+        name = os.fsdecode(name)
+    if name == "-":
+        origin = Origin(name="-", data=_stdin_bytes())
+        origin.notes.append("read from standard input (held in memory)")
+        head = origin.data[:8]
+    else:
+        p = Path(name)
+        if name == "":
+            raise InputError("The input path is empty; give a file name or - for standard input.")
+        if not p.exists():
+            raise InputError(f"{name} does not exist; check the path.")
+        if p.is_dir():
+            raise InputError(f"{name} is a folder, not a file; give a file inside it.")
+        try:
+            with open(p, "rb") as fh:
+                head = fh.read(8)
+        except PermissionError:
+            raise InputError(f"{name} cannot be read (permission denied); check its permissions.") from None
+        except OSError as exc:
+            raise InputError(f"{name} cannot be read ({exc.strerror or exc}); check the path.") from None
+        origin = Origin(name=name, path=p)
+    for magic, kind in _MAGIC:
+        if head.startswith(magic):
+            origin.compression = kind
+            origin.notes.append(f"decompressed {kind}")
+            break
+    else:
+        for magic, kind in _UNSUPPORTED_MAGIC:
+            if head.startswith(magic):
+                raise InputError(
+                    f"{origin.name} is a {kind}, which is not read directly; extract the file inside it first."
+                )
+    return origin
+
+
+# --------------------------------------------------------------- zstandard
+class _ZstdReader(io.RawIOBase):
+    """Multi-frame Zstandard reader that notices truncation.
+
+    ``zstandard``'s own stream reader ends quietly on a truncated frame, so
+    this one drives ``decompressobj`` and checks that every frame reached
+    its end marker.
+    """
+
+    _IN = 1 << 16
+
+    def __init__(self, raw: BinaryIO) -> None:
+        import zstandard
+
+        self._zstd = zstandard
+        self._raw = raw
+        self._dec = zstandard.ZstdDecompressor().decompressobj()
+        self._buf = bytearray()
+        self._started = False
+        self._done = False
+
+    def readable(self) -> bool:
+        return True
+
+    def _fill(self, want: int) -> None:
+        while len(self._buf) < want and not self._done:
+            data = self._raw.read(self._IN)
+            if not data:
+                if self._started and not self._dec.eof:
+                    raise EOFError("Compressed file ended before the end-of-stream marker was reached")
+                self._done = True
+                break
+            while data:
+                self._started = True
+                self._buf += self._dec.decompress(data)
+                if self._dec.eof:
+                    data = self._dec.unused_data
+                    self._dec = self._zstd.ZstdDecompressor().decompressobj()
+                    self._started = False
+                    if data.strip(b"\x00") == b"":
+                        data = b""
+                else:
+                    data = b""
+
+    def readinto(self, b) -> int:  # type: ignore[override]
+        n = len(b)
+        self._fill(n)
+        k = min(n, len(self._buf))
+        b[:k] = self._buf[:k]
+        del self._buf[:k]
+        return k
+
+    def close(self) -> None:
+        try:
+            self._raw.close()
+        finally:
+            super().close()
+
+
+def _zstd_errors() -> tuple[type[BaseException], ...]:
+    try:
+        import zstandard
+
+        return (zstandard.ZstdError,)
+    except ImportError:  # pragma: no cover
+        return ()
+
+
+_DAMAGE: tuple[type[BaseException], ...] = (
+    EOFError,
+    zlib.error,
+    gzip.BadGzipFile,
+    lzma.LZMAError,
+) + _zstd_errors()
+
+
+class ByteSource:
+    """Decompressed bytes of an :class:`Origin`, read block by block.
+
+    Use as a context manager.  Decompression errors become :class:`InputError`
+    naming the file and the archive kind.
+    """
+
+    def __init__(self, origin: Origin) -> None:
+        self.origin = origin
+        self._fh: BinaryIO | None = None
+        self._first = True
+        self.offset = 0  # decompressed bytes handed out so far
+
+    def __enter__(self) -> "ByteSource":
+        o = self.origin
+        try:
+            raw: BinaryIO = io.BytesIO(o.data) if o.data is not None else open(o.path, "rb")  # type: ignore[arg-type]
+        except OSError as exc:
+            raise InputError(f"{o.name} cannot be read ({exc.strerror or exc}); check the path.") from None
+        if o.compression == "gzip":
+            fh: BinaryIO = gzip.GzipFile(fileobj=raw, mode="rb")  # type: ignore[assignment]
+        elif o.compression == "bzip2":
+            fh = bz2.BZ2File(raw, mode="rb")  # type: ignore[assignment]
+        elif o.compression == "xz":
+            fh = lzma.LZMAFile(raw, mode="rb")  # type: ignore[assignment]
+        elif o.compression == "zstd":
+            fh = io.BufferedReader(_ZstdReader(raw), buffer_size=1 << 16)  # type: ignore[assignment]
+        else:
+            fh = raw
+        self._fh = fh
+        self._raw = raw
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        for h in (self._fh, self._raw):
+            try:
+                if h is not None:
+                    h.close()
+            except Exception:  # closing a damaged archive may complain again
+                pass
+
+    def _damaged(self, exc: BaseException) -> InputError:
+        kind = self.origin.compression or "compressed"
+        detail = str(exc).rstrip(".") or type(exc).__name__
+        return InputError(
+            f"{self.origin.name} is a truncated or damaged {kind} file ({detail}); "
+            "download or compress it again."
+        )
+
+    def read(self, size: int) -> bytes:
+        """Read up to ``size`` decompressed bytes (fewer only at the end); BOM removed at the start."""
+        assert self._fh is not None, "use ByteSource as a context manager"
+        parts: list[bytes] = []
+        got = 0
+        try:
+            while got < size:
+                data = self._fh.read(size - got)
+                if not data:
+                    break
+                parts.append(data)
+                got += len(data)
+        except _DAMAGE as exc:
+            raise self._damaged(exc) from None
+        except OSError as exc:  # bz2 "Invalid data stream", gzip CRC errors
+            if self.origin.compression:
+                raise self._damaged(exc) from None
+            raise InputError(f"{self.origin.name} cannot be read ({exc.strerror or exc}); check the file.") from None
+        out = b"".join(parts)
+        if self._first:
+            self._first = False
+            if out.startswith(_BOM):
+                out = out[len(_BOM):]
+        self.offset += len(out)
+        return out
+
+    def blocks(self, size: int) -> Iterator[bytes]:
+        """Iterate over decompressed blocks of ``size`` bytes (the last may be shorter)."""
+        while True:
+            block = self.read(size)
+            if not block:
+                return
+            yield block
+            if len(block) < size:  # read() only returns short at the end of the data
+                return
+
+
+def head(origin: Origin, size: int = SNIFF_BYTES) -> bytes:
+    """The first ``size`` decompressed bytes (used for sniffing)."""
+    with ByteSource(origin) as src:
+        return src.read(size)
+
+
+def line_blocks(origin: Origin, size: int) -> Iterator[tuple[int, bytes]]:
+    """Blocks of whole lines, about ``size`` bytes each (a longer line is kept whole).
+
+    Yields ``(first_line_number, block)`` with 1-based line numbers; every
+    block but the last ends with a newline.
+    """
+    size = max(1, size)
+    line_no = 1
+    carry = b""
+    with ByteSource(origin) as src:
+        for block in src.blocks(size):
+            data = carry + block if carry else block
+            cut = data.rfind(b"\n")
+            if cut < 0:
+                carry = data
+                continue
+            out, carry = data[: cut + 1], data[cut + 1:]
+            yield line_no, out
+            line_no += out.count(b"\n")
+        if carry:
+            yield line_no, carry

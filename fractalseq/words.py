@@ -1,0 +1,547 @@
+"""Exact counts of every n-word, n = 1..N, built in one pass and mergeable.
+
+Occupied boxes of the contractive encoding at scale ``k**n`` (non-overlapping
+maps) are exactly the distinct n-words of the stream, and box masses are
+n-word frequencies.  :class:`WordCounts` stores the counts of the deepest
+words (the *leaf* table) plus the short words at the end of each closed
+segment (the *tails*); every shallower depth is read off the leaf table by
+prefixes, because the packed address of a word keeps its first symbol in
+the most significant bits (see :mod:`fractalseq.kernels`).
+
+Storage is dense (a table of ``2**(b N)`` counters, memory independent of
+the input length) when ``b N <= DENSE_MAX_BITS`` and sparse (sorted unique
+addresses plus counts, memory proportional to the distinct N-words) beyond.
+Counts built chunk by chunk equal counts of the whole stream: the last
+``N - 1`` symbols of an open segment are carried to the next chunk, and no
+word spans a segment break.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import json
+from dataclasses import dataclass, field
+from functools import cached_property
+from pathlib import Path
+from typing import Iterable, Iterator
+
+import numpy as np
+
+from fractalseq import kernels
+from fractalseq.alphabet import Alphabet
+from fractalseq.errors import InputError, ModelFileError, ParameterError
+from fractalseq.outputs import write_bytes
+from fractalseq.stream import Chunk, SymbolArray, SymbolStream
+
+#: Dense tables are used up to this many address bits (4**12 cells for DNA).
+DENSE_MAX_BITS = 24
+#: Counts below this value are tallied in a direct table by :meth:`WordCounts.spectra`.
+SPECTRUM_CAP = 4096
+FILE_FORMAT = "fractalseq-words"
+FILE_VERSION = 1
+
+
+def check_depth(alphabet: Alphabet, depth: int) -> int:
+    """Validate a word depth against the 64-bit address width; return it as int."""
+    if not isinstance(depth, (int, np.integer)) or depth < 1:
+        raise ParameterError(f"Depth must be a positive whole number, not {depth!r}.")
+    if depth > alphabet.max_depth:
+        raise ParameterError(
+            f"Depth {depth} exceeds the address width for {alphabet.size} symbols "
+            f"({alphabet.bits} bits each, at most {alphabet.max_depth}); use --depth {alphabet.max_depth} or less."
+        )
+    return int(depth)
+
+
+def _key_dtype(bits: int, depth: int) -> np.dtype:
+    return np.dtype(np.uint32) if bits * depth <= 32 else np.dtype(np.uint64)
+
+
+def _sort_keys(keys: np.ndarray, key_bits: int, top_bits: int, parallel: bool) -> None:
+    """Sort addresses in place with the radix kernels."""
+    if keys.size < 2:
+        return
+    scratch = np.empty_like(keys)
+    if parallel and keys.size > (1 << 16) and key_bits > top_bits:
+        kernels.radix_sort_split(keys, scratch, key_bits, top_bits)
+    else:
+        kernels.radix_sort(keys, scratch, key_bits)
+
+
+@dataclass(frozen=True)
+class Spectrum:
+    """Frequency-of-frequencies of the n-words: ``multiplicity[i]`` words occur ``value[i]`` times."""
+
+    depth: int
+    value: np.ndarray
+    multiplicity: np.ndarray
+
+    @property
+    def distinct(self) -> int:
+        return int(self.multiplicity.sum())
+
+    @property
+    def total(self) -> int:
+        return int((self.value * self.multiplicity).sum())
+
+    def expand(self) -> np.ndarray:
+        """The count vector (sorted), e.g. for estimators that want one count per word."""
+        return np.repeat(self.value, self.multiplicity)
+
+
+@dataclass(eq=False)
+class WordCounts:
+    """Exact counts of all words of length 1..``depth`` of a stream.
+
+    Build with :func:`count_words` (or :class:`WordCounter` for streamed
+    chunks), combine with ``+``, save with :meth:`save` and load with
+    :meth:`load`.
+
+    Attributes
+    ----------
+    alphabet, depth:
+        Alphabet and deepest word length N.
+    length, segments:
+        Symbols and segments counted.
+    dense:
+        ``int64`` table of ``2**(b N)`` counts (dense storage) or ``None``.
+    leaf_words, leaf_counts:
+        Sorted unique N-word addresses and their counts (sparse storage) or ``None``.
+    tail_len, tail_addr, tail_count:
+        Words of length ``m < N`` ending a closed segment, sorted by (m, address).
+    """
+
+    alphabet: Alphabet
+    depth: int
+    length: int
+    segments: int
+    dense: np.ndarray | None
+    leaf_words: np.ndarray | None
+    leaf_counts: np.ndarray | None
+    tail_len: np.ndarray
+    tail_addr: np.ndarray
+    tail_count: np.ndarray
+    _cache: dict = field(default_factory=dict, repr=False)
+
+    # ------------------------------------------------------------- basics
+    @property
+    def bits(self) -> int:
+        return self.alphabet.bits
+
+    @property
+    def storage(self) -> str:
+        """``"dense"`` or ``"sparse"``."""
+        return "dense" if self.dense is not None else "sparse"
+
+    def _check_n(self, n: int) -> int:
+        if not 1 <= n <= self.depth:
+            raise ParameterError(f"Word length {n} is outside 1..{self.depth} counted; count deeper or ask less.")
+        return int(n)
+
+    def leaf(self) -> tuple[np.ndarray, np.ndarray]:
+        """Sorted unique N-word addresses and counts (from either storage)."""
+        if self.dense is not None:
+            idx = np.flatnonzero(self.dense)
+            return idx.astype(_key_dtype(self.bits, self.depth)), self.dense[idx]
+        assert self.leaf_words is not None and self.leaf_counts is not None
+        return self.leaf_words, self.leaf_counts
+
+    def _tail_prefixes(self, n: int) -> tuple[np.ndarray, np.ndarray]:
+        """Sorted unique n-word prefixes of the tails long enough, with counts."""
+        sel = self.tail_len >= n
+        if not sel.any():
+            return np.zeros(0, np.uint64), np.zeros(0, np.int64)
+        m = self.tail_len[sel].astype(np.uint64)
+        pref = self.tail_addr[sel] >> (np.uint64(self.bits) * (m - np.uint64(n)))
+        cnt = self.tail_count[sel]
+        order = np.argsort(pref, kind="stable")
+        pref, cnt = pref[order], cnt[order]
+        uniq, start = np.unique(pref, return_index=True)
+        return uniq.astype(np.uint64), np.add.reduceat(cnt, start).astype(np.int64)
+
+    def words(self, n: int) -> tuple[np.ndarray, np.ndarray]:
+        """Addresses (sorted, ``uint64``) and counts (``int64``) of the distinct n-words."""
+        n = self._check_n(n)
+        if self.dense is not None:
+            cells = 1 << (self.bits * (self.depth - n))
+            table = self.dense.reshape(-1, cells).sum(axis=1) if cells > 1 else self.dense
+            idx = np.flatnonzero(table)
+            lw, lc = idx.astype(np.uint64), table[idx].astype(np.int64)
+        else:
+            shift = self.bits * (self.depth - n)
+            lw, lc = kernels.prefix_counts(self.leaf_words, self.leaf_counts, shift)
+        tw, tc = self._tail_prefixes(n)
+        if tw.size:
+            lw, lc = kernels.merge_sorted_counts(lw, lc, tw, tc)
+        return lw, lc
+
+    def counts(self, n: int) -> np.ndarray:
+        """Counts of the distinct n-words, in address (lexicographic) order."""
+        return self.words(n)[1]
+
+    def frequencies(self, n: int) -> np.ndarray:
+        """Relative frequencies of the distinct n-words (sum to 1)."""
+        c = self.counts(n)
+        return c / c.sum() if c.size else c.astype(float)
+
+    def total(self, n: int) -> int:
+        """Number of n-word occurrences (``length - n + 1`` per segment long enough)."""
+        return self.spectrum(n).total
+
+    def distinct(self, n: int) -> int:
+        """Number of distinct n-words (occupied boxes at scale ``k**n``)."""
+        return self.spectrum(n).distinct
+
+    def count_of(self, word: str | Iterable[int]) -> int:
+        """Occurrences of one word given as text or codes."""
+        codes = self.alphabet.encode(word) if isinstance(word, str) else np.asarray(list(word))
+        n = self._check_n(len(codes))
+        addr = encode_address(codes, self.bits)
+        w, c = self.words(n)
+        i = np.searchsorted(w, np.uint64(addr))
+        return int(c[i]) if i < w.size and w[i] == addr else 0
+
+    def decode(self, address: int, n: int) -> str:
+        """Text of the n-word with the given address."""
+        return self.alphabet.word(decode_address(int(address), n, self.bits))
+
+    def top(self, n: int, limit: int = 10) -> list[tuple[str, int]]:
+        """The ``limit`` most frequent n-words as (text, count), ties by address."""
+        w, c = self.words(n)
+        order = np.lexsort((w, -c))[:limit]
+        return [(self.decode(w[i], n), int(c[i])) for i in order]
+
+    # ---------------------------------------------------------- spectra
+    def spectra(self) -> list[Spectrum]:
+        """Frequency-of-frequencies for every depth (index 0 unused), in one pass."""
+        if "spectra" not in self._cache:
+            lw, lc = self.leaf()
+            key_bits = 8 * lw.dtype.itemsize
+            pad = (np.uint64(self.depth) - self.tail_len.astype(np.uint64)) * np.uint64(self.bits)
+            padded = self.tail_addr << pad
+            order = np.argsort(padded, kind="stable")
+            hist, bd, bc = kernels.count_spectra(
+                lw, lc, padded[order], self.tail_len[order].astype(np.int64), self.tail_count[order],
+                self.depth, self.bits, key_bits, SPECTRUM_CAP,
+            )
+            out: list[Spectrum] = [Spectrum(0, np.zeros(0, np.int64), np.zeros(0, np.int64))]
+            for d in range(1, self.depth + 1):
+                vals = np.flatnonzero(hist[d])
+                mult = hist[d, vals]
+                big = bc[bd == d]
+                if big.size:
+                    bv, bm = np.unique(big, return_counts=True)
+                    vals = np.concatenate([vals, bv])
+                    mult = np.concatenate([mult, bm])
+                out.append(Spectrum(d, vals.astype(np.int64), mult.astype(np.int64)))
+            self._cache["spectra"] = out
+        return self._cache["spectra"]
+
+    def spectrum(self, n: int) -> Spectrum:
+        """Frequency-of-frequencies of the n-words."""
+        return self.spectra()[self._check_n(n)]
+
+    def ladder(self) -> list[dict]:
+        """Per depth: distinct words, occurrences, possible words ``A**n`` (a small table)."""
+        rows = []
+        for s in self.spectra()[1:]:
+            rows.append(
+                {
+                    "depth": s.depth,
+                    "distinct": s.distinct,
+                    "occurrences": s.total,
+                    "possible": float(self.alphabet.size) ** s.depth,
+                }
+            )
+        return rows
+
+    # ------------------------------------------------------------ merging
+    def compatible(self, other: "WordCounts") -> None:
+        """Raise unless ``other`` has the same alphabet and depth."""
+        if not self.alphabet.same_symbols(other.alphabet):
+            raise InputError(
+                f"Cannot merge counts over different alphabets ({self.alphabet.name} vs {other.alphabet.name}); "
+                "read every input with the same --alphabet."
+            )
+        if self.depth != other.depth:
+            raise InputError(f"Cannot merge counts of depth {self.depth} and {other.depth}; count both at one depth.")
+
+    def __add__(self, other: "WordCounts") -> "WordCounts":
+        self.compatible(other)
+        if self.dense is not None and other.dense is not None:
+            dense, lw, lc = self.dense + other.dense, None, None
+        else:
+            aw, ac = self.leaf()
+            bw, bc = other.leaf()
+            lw, lc = kernels.merge_sorted_counts(aw, ac, bw.astype(aw.dtype), bc)
+            dense = None
+        tl, ta, tc = _reduce_tails(
+            [self.tail_len, other.tail_len], [self.tail_addr, other.tail_addr], [self.tail_count, other.tail_count]
+        )
+        return WordCounts(
+            self.alphabet, self.depth, self.length + other.length, self.segments + other.segments,
+            dense, lw, lc, tl, ta, tc,
+        )
+
+    def truncate(self, depth: int) -> "WordCounts":
+        """Counts limited to words of length 1..``depth`` (exact, no recounting).
+
+        The new leaves are all ``depth``-words (:meth:`words`); the new tails are
+        the old tails shorter than ``depth``.
+        """
+        depth = self._check_n(depth)
+        if depth == self.depth:
+            return self
+        w, c = self.words(depth)
+        keep = self.tail_len < depth
+        tl, ta, tc = self.tail_len[keep], self.tail_addr[keep], self.tail_count[keep]
+        if self.bits * depth <= DENSE_MAX_BITS:
+            dense = np.zeros(1 << (self.bits * depth), dtype=np.int64)
+            dense[w.astype(np.int64)] = c
+            return WordCounts(self.alphabet, depth, self.length, self.segments, dense, None, None, tl, ta, tc)
+        lw = w.astype(_key_dtype(self.bits, depth))
+        return WordCounts(self.alphabet, depth, self.length, self.segments, None, lw, c, tl, ta, tc)
+
+    # ------------------------------------------------------- persistence
+    def to_arrays(self) -> tuple[dict, dict[str, np.ndarray]]:
+        """JSON header and plain arrays describing the counts (see :meth:`save`)."""
+        arrays: dict[str, np.ndarray] = {
+            "tail_len": self.tail_len,
+            "tail_addr": self.tail_addr,
+            "tail_count": self.tail_count,
+        }
+        if self.dense is not None:
+            arrays["dense"] = self.dense
+        else:
+            arrays["leaf_words"] = np.asarray(self.leaf_words)
+            arrays["leaf_counts"] = np.asarray(self.leaf_counts)
+        header = {
+            "format": FILE_FORMAT,
+            "version": FILE_VERSION,
+            "alphabet": self.alphabet.to_dict(),
+            "depth": self.depth,
+            "length": self.length,
+            "segments": self.segments,
+            "storage": self.storage,
+            "sha256": {k: hashlib.sha256(np.ascontiguousarray(v).tobytes()).hexdigest() for k, v in arrays.items()},
+        }
+        return header, arrays
+
+    def save(self, path: str | Path, force: bool = False) -> Path:
+        """Write an ``.npz`` file: plain arrays plus a JSON header (``header``) with checksums.
+
+        The file loads without pickle; :meth:`load` verifies format, version and checksums.
+        """
+        header, arrays = self.to_arrays()
+        buf = io.BytesIO()
+        np.savez_compressed(buf, header=np.frombuffer(json.dumps(header, sort_keys=True).encode(), np.uint8), **arrays)
+        return write_bytes(path, buf.getvalue(), force=force)
+
+    @classmethod
+    def load(cls, path: str | Path) -> "WordCounts":
+        """Load counts written by :meth:`save`, checking format, version and checksums."""
+        path = Path(path)
+        try:
+            with np.load(path, allow_pickle=False) as z:
+                data = {k: z[k] for k in z.files}
+        except FileNotFoundError:
+            raise InputError(f"Count file {path} does not exist; check the path.") from None
+        except (OSError, ValueError, EOFError) as exc:
+            raise ModelFileError(f"{path} is not a readable count file ({exc}); recount the input.") from None
+        return cls.from_arrays(data, str(path))
+
+    @classmethod
+    def from_arrays(cls, data: dict[str, np.ndarray], where: str = "counts") -> "WordCounts":
+        """Rebuild from the arrays of :meth:`to_arrays` (with an encoded ``header`` array)."""
+        try:
+            header = json.loads(bytes(np.asarray(data["header"], np.uint8)).decode())
+        except (KeyError, ValueError, UnicodeDecodeError):
+            raise ModelFileError(f"{where} has no valid header; it is not a fractalseq count file.") from None
+        if header.get("format") != FILE_FORMAT:
+            raise ModelFileError(f"{where} is a {header.get('format')!r} file, not word counts.")
+        if header.get("version") != FILE_VERSION:
+            raise ModelFileError(f"{where} has count-file version {header.get('version')}; this fractalseq reads {FILE_VERSION}.")
+        for key, digest in header.get("sha256", {}).items():
+            if key not in data or hashlib.sha256(np.ascontiguousarray(data[key]).tobytes()).hexdigest() != digest:
+                raise ModelFileError(f"{where} is damaged (array {key!r} fails its checksum); recount the input.")
+        alphabet = Alphabet.from_dict(header["alphabet"])
+        dense = data.get("dense") if header["storage"] == "dense" else None
+        return cls(
+            alphabet, int(header["depth"]), int(header["length"]), int(header["segments"]),
+            dense, data.get("leaf_words"), data.get("leaf_counts"),
+            data["tail_len"], data["tail_addr"], data["tail_count"],
+        )
+
+
+# ------------------------------------------------------------------ helpers
+def encode_address(codes: Iterable[int], bits: int) -> int:
+    """Packed address of a word given by its codes (first symbol most significant)."""
+    a = 0
+    for c in codes:
+        a = (a << bits) | int(c)
+    return a
+
+
+def decode_address(address: int, n: int, bits: int) -> list[int]:
+    """Codes of the n-word with the given address."""
+    mask = (1 << bits) - 1
+    return [(address >> (bits * (n - 1 - i))) & mask for i in range(n)]
+
+
+def _reduce_tails(lens: list[np.ndarray], addrs: list[np.ndarray], cnts: list[np.ndarray]):
+    tl = np.concatenate(lens).astype(np.uint8) if lens else np.zeros(0, np.uint8)
+    ta = np.concatenate(addrs).astype(np.uint64) if addrs else np.zeros(0, np.uint64)
+    tc = np.concatenate(cnts).astype(np.int64) if cnts else np.zeros(0, np.int64)
+    if tl.size == 0:
+        return tl, ta, tc
+    order = np.lexsort((ta, tl))
+    tl, ta, tc = tl[order], ta[order], tc[order]
+    new = np.ones(tl.size, dtype=bool)
+    new[1:] = (tl[1:] != tl[:-1]) | (ta[1:] != ta[:-1])
+    starts = np.flatnonzero(new)
+    return tl[starts], ta[starts], np.add.reduceat(tc, starts).astype(np.int64)
+
+
+class WordCounter:
+    """Builds :class:`WordCounts` from chunks (words across chunk edges counted once).
+
+    Parameters
+    ----------
+    alphabet, depth:
+        Alphabet and deepest word length N (at most ``alphabet.max_depth``).
+    parallel:
+        Sort large chunks with the threaded radix kernel (buckets by first symbol).
+    dense:
+        Force dense (True) or sparse (False) storage; default: dense when ``b N <= 24``.
+    """
+
+    def __init__(self, alphabet: Alphabet, depth: int, parallel: bool = False, dense: bool | None = None) -> None:
+        self.alphabet = alphabet
+        self.depth = check_depth(alphabet, depth)
+        self.bits = alphabet.bits
+        self.parallel = parallel
+        self.use_dense = (self.bits * self.depth <= DENSE_MAX_BITS) if dense is None else bool(dense)
+        if self.use_dense and self.bits * self.depth > 34:
+            raise ParameterError(f"A dense table of depth {depth} would need 2**{self.bits * self.depth} cells; use sparse storage.")
+        self.key_dtype = _key_dtype(self.bits, self.depth)
+        self._template = np.zeros(0, dtype=self.key_dtype)
+        self._cells = 1 << (self.bits * self.depth) if self.use_dense else 0
+        self._dense: np.ndarray | None = None  # allocated once the sparse runs outgrow cells / 8
+        self._runs: list[tuple[np.ndarray, np.ndarray]] = []
+        self._tails: tuple[list, list, list] = ([], [], [])
+        self._carry = np.zeros(0, dtype=alphabet.code_dtype)
+        self._open = False  # is a segment open (carry belongs to it)?
+        self.length = 0
+        self.segments = 0
+
+    def add(self, codes: np.ndarray, starts: np.ndarray, final: bool = False) -> None:
+        """Add one chunk of codes with its segment starts (see :class:`fractalseq.stream.Chunk`)."""
+        codes = np.ascontiguousarray(codes, dtype=self.alphabet.code_dtype)
+        starts = np.asarray(starts, dtype=np.int64)
+        self.length += codes.size
+        inside = np.unique(starts[(starts >= 0) & (starts < codes.size)])
+        if codes.size:
+            fresh = inside.size and inside[0] == 0
+            self.segments += int(inside.size) + (0 if (fresh or self._open) else 1)
+        # virtual stream = carried symbols of the open segment + this chunk
+        vcodes = np.concatenate([self._carry, codes]) if self._carry.size else codes
+        vstarts = np.unique(np.concatenate([[0], inside + self._carry.size])).astype(np.int64)
+        if vcodes.size == 0:
+            self._open = self._open and not final
+            return
+        keys, tl, ta, carry_from = kernels.full_words(vcodes, vstarts, self.depth, self.bits, bool(final), self._template)
+        if tl.size:
+            self._tails[0].append(tl)
+            self._tails[1].append(ta)
+            self._tails[2].append(np.ones(tl.size, np.int64))
+        if keys.size:
+            if self._dense is not None:
+                kernels.dense_add(self._dense, keys)
+            elif self.use_dense and keys.size > self._cells // 8:
+                self._dense = np.zeros(self._cells, dtype=np.int64)
+                for w, c in self._runs:
+                    np.add.at(self._dense, w.astype(np.int64), c)
+                self._runs = []
+                kernels.dense_add(self._dense, keys)
+            else:
+                _sort_keys(keys, self.bits * self.depth, self.bits, self.parallel)
+                m, cnt = kernels.compact_runs_inplace(keys)
+                self._push_run(keys[:m].copy() if m < keys.size // 2 else keys[:m], cnt)
+        self._carry = vcodes[carry_from:].copy() if not final else vcodes[:0].copy()
+        self._open = not final
+
+    def _push_run(self, words: np.ndarray, counts: np.ndarray) -> None:
+        self._runs.append((words, counts))
+        if self.use_dense and sum(w.size for w, _ in self._runs) > self._cells // 8:
+            self._dense = np.zeros(self._cells, dtype=np.int64)
+            for w, c in self._runs:
+                np.add.at(self._dense, w.astype(np.int64), c)
+            self._runs = []
+            return
+        while len(self._runs) >= 2 and self._runs[-2][0].size <= 2 * self._runs[-1][0].size:
+            bw, bc = self._runs.pop()
+            aw, ac = self._runs.pop()
+            self._runs.append(kernels.merge_sorted_counts(aw, ac, bw, bc))
+
+    def finish(self) -> WordCounts:
+        """Close the open segment and return the counts."""
+        if self._carry.size:
+            self.add(np.zeros(0, self.alphabet.code_dtype), np.zeros(0, np.int64), final=True)
+        tl, ta, tc = _reduce_tails(*self._tails)
+        if self._dense is not None:
+            if np.count_nonzero(self._dense) > self._cells // 8:
+                return WordCounts(self.alphabet, self.depth, self.length, self.segments, self._dense, None, None, tl, ta, tc)
+            idx = np.flatnonzero(self._dense)
+            self._runs = [(idx.astype(self.key_dtype), self._dense[idx])]
+        while len(self._runs) >= 2:
+            bw, bc = self._runs.pop()
+            aw, ac = self._runs.pop()
+            self._runs.append(kernels.merge_sorted_counts(aw, ac, bw, bc))
+        if self._runs:
+            lw, lc = self._runs[0]
+        else:
+            lw, lc = np.zeros(0, self.key_dtype), np.zeros(0, np.int64)
+        return WordCounts(self.alphabet, self.depth, self.length, self.segments, None, lw, lc, tl, ta, tc)
+
+
+def count_words(
+    source: SymbolStream | SymbolArray | Iterable[Chunk],
+    depth: int,
+    alphabet: Alphabet | None = None,
+    parallel: bool = False,
+    dense: bool | None = None,
+) -> WordCounts:
+    """Exact counts of all words of length 1..``depth`` of a stream.
+
+    Parameters
+    ----------
+    source:
+        A :class:`SymbolStream` (read chunk by chunk), a :class:`SymbolArray`
+        (counted in one piece), or an iterable of chunks (then ``alphabet`` is required).
+    depth:
+        Deepest word length N; at most ``alphabet.max_depth`` (32 for DNA).
+    parallel:
+        Use the threaded sort (buckets split by first symbol).
+    dense:
+        Force dense or sparse storage (default: dense when ``bits * depth <= 24``).
+
+    Returns
+    -------
+    WordCounts
+    """
+    if isinstance(source, SymbolArray):
+        counter = WordCounter(source.alphabet, depth, parallel=parallel, dense=dense)
+        counter.add(source.codes, source.starts, final=True)
+        return counter.finish()
+    if isinstance(source, SymbolStream):
+        alphabet = source.alphabet
+        chunks: Iterator[Chunk] = source.chunks()
+    else:
+        if alphabet is None:
+            raise ParameterError("count_words needs the alphabet when given bare chunks.")
+        chunks = iter(source)
+    counter = WordCounter(alphabet, depth, parallel=parallel, dense=dense)
+    for chunk in chunks:
+        counter.add(chunk.codes, chunk.starts)
+    return counter.finish()
