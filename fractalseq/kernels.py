@@ -15,8 +15,10 @@ These kernels never validate their input: the Python layer in
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 # ----------------------------------------------------------------- addresses
 
@@ -90,131 +92,120 @@ def full_words(codes, starts, depth, bits, closed_last, key_template):
     return keys, tail_len, tail_addr, carry_from
 
 
-# --------------------------------------------------------------------- sort
+@njit(cache=True, nogil=True)
+def first_symbol_bounds(codes, starts, depth, bits, n_buckets):
+    """Bucket boundaries of the full ``depth``-words grouped by their first symbol.
 
-
-@njit(cache=True)
-def _radix_pass(src, dst, shift, radix_bits):
-    """One stable counting-sort pass on digit ``(key >> shift) & (2**radix_bits - 1)``.
-
-    Returns False (and leaves ``dst`` untouched) when every key has the same digit.
+    ``bounds[s]:bounds[s+1]`` is where words starting with symbol ``s`` go in
+    the key array written by :func:`full_words_bucketed`.
     """
-    nb = 1 << radix_bits
-    mask = nb - 1
-    counts = np.zeros(nb, dtype=np.int64)
-    n = src.shape[0]
-    for i in range(n):
-        counts[(src[i] >> shift) & mask] += 1
-    for d in range(nb):
-        if counts[d] == n:
-            return False
-    total = 0
-    for d in range(nb):
-        c = counts[d]
-        counts[d] = total
-        total += c
-    for i in range(n):
-        d = (src[i] >> shift) & mask
-        dst[counts[d]] = src[i]
-        counts[d] += 1
-    return True
+    n = codes.shape[0]
+    nseg = starts.shape[0]
+    bounds = np.zeros(n_buckets + 1, dtype=np.int64)
+    for s in range(nseg):
+        a = starts[s]
+        e = starts[s + 1] if s + 1 < nseg else n
+        for i in range(a, e - depth + 1):
+            bounds[codes[i] + 1] += 1
+    for d in range(n_buckets):
+        bounds[d + 1] += bounds[d]
+    return bounds
 
 
-@njit(cache=True)
-def radix_sort(keys, scratch, key_bits):
-    """Sort ``keys`` in place (LSD radix, 11-bit digits, over the low ``key_bits`` bits).
-
-    ``scratch`` must have the same length and dtype.  Digits on which all keys
-    agree are skipped.
-    """
-    radix_bits = 11
-    src = keys
-    dst = scratch
-    in_keys = True
-    shift = 0
-    while shift < key_bits:
-        rb = min(radix_bits, key_bits - shift)
-        if _radix_pass(src, dst, shift, rb):
-            src, dst = dst, src
-            in_keys = not in_keys
-        shift += rb
-    if not in_keys:
-        keys[:] = src[:]
-
-
-@njit(cache=True, parallel=True)
-def radix_sort_split(keys, scratch, key_bits, top_bits):
-    """Sort in place after splitting by the top ``top_bits`` bits (the first symbol).
-
-    The buckets are independent, so they are sorted in parallel threads.
-    """
-    nb = 1 << top_bits
-    shift = key_bits - top_bits
-    n = keys.shape[0]
-    counts = np.zeros(nb + 1, dtype=np.int64)
-    for i in range(n):
-        counts[(keys[i] >> shift) + 1] += 1
-    for d in range(nb):
-        counts[d + 1] += counts[d]
-    pos = counts[:nb].copy()
-    for i in range(n):
-        d = keys[i] >> shift
-        scratch[pos[d]] = keys[i]
-        pos[d] += 1
-    for d in prange(nb):
-        lo = counts[d]
-        hi = counts[d + 1]
-        if hi - lo > 1:
-            radix_sort(scratch[lo:hi], keys[lo:hi], shift)
-    keys[:] = scratch[:]
+@njit(cache=True, nogil=True)
+def full_words_bucketed(codes, starts, depth, bits, bounds, keys):
+    """Write every full ``depth``-word address into ``keys``, grouped by first symbol (see :func:`first_symbol_bounds`)."""
+    n = codes.shape[0]
+    nseg = starts.shape[0]
+    pos = bounds[:-1].copy()
+    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
+    ub = np.uint64(bits)
+    for s in range(nseg):
+        a = starts[s]
+        e = starts[s + 1] if s + 1 < nseg else n
+        addr = np.uint64(0)
+        filled = 0
+        for i in range(a, e):
+            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
+            filled += 1
+            if filled >= depth:
+                first = codes[i - depth + 1]
+                keys[pos[first]] = addr
+                pos[first] += 1
 
 
-@njit(cache=True)
-def run_lengths(sorted_keys):
-    """Unique values of a sorted array and how often each occurs."""
+# -------------------------------------------------------------- runs
+
+
+@njit(cache=True, nogil=True)
+def _lcp_symbols(x, key_bits, unused, bits, depth):
+    """Shared leading symbols of two addresses whose XOR is ``x`` (``depth`` when equal)."""
+    if x == 0:
+        return depth
+    lcp = (key_bits - _bit_length_fast(x) - unused) // bits
+    return depth if lcp > depth else lcp
+
+
+@njit(cache=True, nogil=True)
+def count_runs(sorted_keys):
+    """Number of distinct values in a sorted array."""
     n = sorted_keys.shape[0]
     if n == 0:
-        return sorted_keys[:0].copy(), np.zeros(0, dtype=np.int64)
+        return 0
     m = 1
     for i in range(1, n):
         if sorted_keys[i] != sorted_keys[i - 1]:
             m += 1
-    uniq = np.empty(m, dtype=sorted_keys.dtype)
-    cnt = np.zeros(m, dtype=np.int64)
+    return m
+
+
+@njit(cache=True, nogil=True)
+def write_runs(sorted_keys, uniq, cnt, depth, bits, key_bits):
+    """Fill ``uniq``/``cnt`` (sized by :func:`count_runs`) and return the shared-prefix histogram."""
+    n = sorted_keys.shape[0]
+    lcp_hist = np.zeros(depth + 1, dtype=np.int64)
+    if n == 0:
+        return lcp_hist
+    unused = key_bits - bits * depth
     j = 0
     uniq[0] = sorted_keys[0]
-    cnt[0] = 1
+    run_start = 0
     for i in range(1, n):
         if sorted_keys[i] != sorted_keys[i - 1]:
+            cnt[j] = i - run_start
+            run_start = i
+            x = np.uint64(sorted_keys[i]) ^ np.uint64(sorted_keys[i - 1])
+            lcp_hist[_lcp_symbols(x, key_bits, unused, bits, depth)] += 1
             j += 1
             uniq[j] = sorted_keys[i]
-        cnt[j] += 1
-    return uniq, cnt
+    cnt[j] = n - run_start
+    return lcp_hist
 
 
 @njit(cache=True)
-def compact_runs_inplace(sorted_keys):
-    """Like :func:`run_lengths` but reuses the key array for the unique values.
+def runs_with_lcp(sorted_keys, depth, bits, key_bits):
+    """Unique words of a sorted key array, their counts, and a histogram of shared prefixes.
 
-    Returns the number of unique values ``m`` (stored in ``sorted_keys[:m]``)
-    and their counts.
+    ``lcp_hist[l]`` counts consecutive unique words sharing exactly ``l``
+    leading symbols, so the number of distinct n-word prefixes is
+    ``1 + lcp_hist[:n].sum()``: every depth's box count from one pass.
     """
-    n = sorted_keys.shape[0]
-    if n == 0:
-        return 0, np.zeros(0, dtype=np.int64)
-    m = 1
-    for i in range(1, n):
-        if sorted_keys[i] != sorted_keys[i - 1]:
-            m += 1
-    cnt = np.zeros(m, dtype=np.int64)
-    j = 0
-    cnt[0] = 1
-    for i in range(1, n):
-        if sorted_keys[i] != sorted_keys[j]:
-            j += 1
-            sorted_keys[j] = sorted_keys[i]
-        cnt[j] += 1
-    return m, cnt
+    m = count_runs(sorted_keys)
+    uniq = np.empty(m, dtype=sorted_keys.dtype)
+    cnt = np.empty(m, dtype=np.int64)
+    lcp_hist = write_runs(sorted_keys, uniq, cnt, depth, bits, key_bits)
+    return uniq, cnt, lcp_hist
+
+
+@njit(cache=True)
+def lcp_histogram(sorted_unique, depth, bits, key_bits):
+    """Histogram of shared leading symbols between consecutive unique words (see :func:`runs_with_lcp`)."""
+    h = np.zeros(depth + 1, dtype=np.int64)
+    unused = key_bits - bits * depth
+    for i in range(1, sorted_unique.shape[0]):
+        x = np.uint64(sorted_unique[i]) ^ np.uint64(sorted_unique[i - 1])
+        h[_lcp_symbols(x, key_bits, unused, bits, depth)] += 1
+    return h
 
 
 @njit(cache=True)
@@ -288,143 +279,65 @@ def dense_add(table, keys):
         table[keys[i]] += 1
 
 
-@njit(cache=True)
-def dense_add_words(table, codes, starts, depth, bits, closed_last):
-    """Dense counting of full ``depth``-words straight from codes (no key array)."""
-    n = codes.shape[0]
-    nseg = starts.shape[0]
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1)
-    ub = np.uint64(bits)
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else n
-        addr = np.uint64(0)
-        filled = 0
-        for i in range(a, e):
-            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                table[addr] += 1
+@njit(cache=True, nogil=True)
+def _bit_length_fast(x):
+    """Significant bits of a non-zero uint64 via the float exponent (exact: halves stay below 2**53)."""
+    hi = x >> np.uint64(32)
+    if hi:
+        return 32 + math.frexp(float(hi))[1]
+    return math.frexp(float(x))[1]
 
 
-@njit(cache=True)
-def _bit_length(x):
-    """Number of significant bits of a non-zero uint64."""
-    n = 0
-    if x >> np.uint64(32):
-        x = x >> np.uint64(32)
-        n += 32
-    if x >> np.uint64(16):
-        x = x >> np.uint64(16)
-        n += 16
-    if x >> np.uint64(8):
-        x = x >> np.uint64(8)
-        n += 8
-    if x >> np.uint64(4):
-        x = x >> np.uint64(4)
-        n += 4
-    if x >> np.uint64(2):
-        x = x >> np.uint64(2)
-        n += 2
-    if x >> np.uint64(1):
-        x = x >> np.uint64(1)
-        n += 1
-    return n + 1
+@njit(cache=True, nogil=True)
+def count_spectra(words, counts, levels, depth, bits, key_bits, cap, big_capacity):
+    """Frequency-of-frequencies for every depth 1..N in one pass over sorted items.
 
-
-@njit(cache=True)
-def count_spectra(leaf_words, leaf_counts, tail_padded, tail_level, tail_counts, depth, bits, key_bits, cap):
-    """Frequency-of-frequencies for every depth 1..N in one pass.
-
-    The items are the leaf table (full N-words, level N) and the tails of
-    closed segments (words of length m < N, padded with zero symbols to N
-    symbols, level m), both sorted by padded address and merged on the fly.
-    For depth ``n`` the n-word of an item is its prefix; runs of equal
-    prefixes are closed from the deepest depth upwards, each closed run
-    passing its count to the next shallower depth.  A tail of level m only
-    adds its count at depths <= m.
+    Items are the leaf table (full N-words, level N) merged with the tails of
+    closed segments (words of length m < N padded with zero symbols to N
+    symbols, level m), sorted by padded address.  For depth ``n`` the n-word
+    of an item is its prefix; runs of equal prefixes are closed from the
+    deepest depth upwards, each closed run passing its count to the next
+    shallower depth.  A tail of level m only adds its count at depths <= m.
 
     Returns
     -------
-    hist : int64 array (depth + 1, cap); ``hist[n, c]`` = number of distinct
-        n-words seen exactly ``c`` times (for ``1 <= c < cap``)
+    hist : int64 array of shape ``(depth + 1) * cap``; ``hist[n * cap + c]`` is the
+        number of distinct n-words seen exactly ``c`` times (``1 <= c < cap``;
+        entries with ``c = 0`` are bookkeeping and meaningless)
     big_depth, big_count : int64 arrays listing runs with count >= cap
+        (at most ``big_capacity``: pass ``depth * (total // cap + 1)``)
     """
-    hist = np.zeros((depth + 1, cap), dtype=np.int64)
-    big_depth = np.empty(1024, dtype=np.int64)
-    big_count = np.empty(1024, dtype=np.int64)
+    hist = np.zeros((depth + 1) * cap, dtype=np.int64)
+    big_depth = np.empty(big_capacity, dtype=np.int64)
+    big_count = np.empty(big_capacity, dtype=np.int64)
     nbig = 0
     cur = np.zeros(depth + 1, dtype=np.int64)
-    na = leaf_words.shape[0]
-    nt = tail_padded.shape[0]
+    n = words.shape[0]
     unused = key_bits - bits * depth
-    i = 0
-    j = 0
-    first = True
-    prev = np.uint64(0)
-    while i < na or j < nt:
-        if j >= nt or (i < na and np.uint64(leaf_words[i]) <= tail_padded[j]):
-            w = np.uint64(leaf_words[i])
-            level = depth
-            c_new = leaf_counts[i]
-            i += 1
-        else:
-            w = tail_padded[j]
-            level = tail_level[j]
-            c_new = tail_counts[j]
-            j += 1
-        if first:
-            lcp = depth
-            first = False
-        else:
+    prev = np.uint64(words[0]) if n else np.uint64(0)
+    for i in range(n + 1):
+        if i < n:
+            w = np.uint64(words[i])
             x = w ^ prev
-            if x == 0:
-                lcp = depth
-            else:
-                lcp = (key_bits - _bit_length(x) - unused) // bits
-                if lcp > depth:
-                    lcp = depth
-        for d in range(depth, lcp, -1):
+            lcp = depth if x == 0 else (key_bits - _bit_length_fast(x) - unused) // bits
+        else:
+            w = prev
+            lcp = 0
+        d = depth
+        while d > lcp:
             c = cur[d]
-            if c == 0:
-                continue
             if c < cap:
-                hist[d, c] += 1
+                hist[d * cap + c] += 1
             else:
-                if nbig == big_depth.shape[0]:
-                    nd = np.empty(2 * nbig, dtype=np.int64)
-                    nc = np.empty(2 * nbig, dtype=np.int64)
-                    nd[:nbig] = big_depth[:nbig]
-                    nc[:nbig] = big_count[:nbig]
-                    big_depth = nd
-                    big_count = nc
                 big_depth[nbig] = d
                 big_count[nbig] = c
                 nbig += 1
             cur[d - 1] += c
             cur[d] = 0
-        cur[level] += c_new
-        prev = w
-    # close everything
-    for d in range(depth, 0, -1):
-        c = cur[d]
-        if c == 0:
-            continue
-        if c < cap:
-            hist[d, c] += 1
-        else:
-            if nbig == big_depth.shape[0]:
-                nd = np.empty(2 * nbig, dtype=np.int64)
-                nc = np.empty(2 * nbig, dtype=np.int64)
-                nd[:nbig] = big_depth[:nbig]
-                nc[:nbig] = big_count[:nbig]
-                big_depth = nd
-                big_count = nc
-            big_depth[nbig] = d
-            big_count[nbig] = c
-            nbig += 1
-        cur[d - 1] += c
-        cur[d] = 0
+            d -= 1
+        if i < n:
+            cur[levels[i]] += counts[i]
+            prev = w
     return hist, big_depth[:nbig].copy(), big_count[:nbig].copy()
 
 
@@ -448,25 +361,6 @@ def chaos_points(codes, starts, corners, ratio, origin):
         for d in range(dim):
             x[d] = ratio * x[d] + (1.0 - ratio) * corners[c, d]
             out[t, d] = x[d]
-    return out
-
-
-@njit(cache=True)
-def box_indices(points, scale, boxes_per_side):
-    """Integer box index (row-major) of each point on a grid of side ``scale`` anchored at 0."""
-    n = points.shape[0]
-    dim = points.shape[1]
-    out = np.empty(n, dtype=np.int64)
-    for t in range(n):
-        idx = 0
-        for d in range(dim):
-            j = int(np.floor(points[t, d] / scale))
-            if j < 0:
-                j = 0
-            if j >= boxes_per_side:
-                j = boxes_per_side - 1
-            idx = idx * boxes_per_side + j
-        out[t] = idx
     return out
 
 

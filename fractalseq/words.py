@@ -21,6 +21,7 @@ from __future__ import annotations
 import hashlib
 import io
 import json
+import zipfile
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
@@ -56,17 +57,6 @@ def check_depth(alphabet: Alphabet, depth: int) -> int:
 
 def _key_dtype(bits: int, depth: int) -> np.dtype:
     return np.dtype(np.uint32) if bits * depth <= 32 else np.dtype(np.uint64)
-
-
-def _sort_keys(keys: np.ndarray, key_bits: int, top_bits: int, parallel: bool) -> None:
-    """Sort addresses in place with the radix kernels."""
-    if keys.size < 2:
-        return
-    scratch = np.empty_like(keys)
-    if parallel and keys.size > (1 << 16) and key_bits > top_bits:
-        kernels.radix_sort_split(keys, scratch, key_bits, top_bits)
-    else:
-        kernels.radix_sort(keys, scratch, key_bits)
 
 
 @dataclass(frozen=True)
@@ -187,11 +177,44 @@ class WordCounts:
 
     def total(self, n: int) -> int:
         """Number of n-word occurrences (``length - n + 1`` per segment long enough)."""
-        return self.spectrum(n).total
+        n = self._check_n(n)
+        leaf = int(self.dense.sum()) if self.dense is not None else int(np.asarray(self.leaf_counts).sum())
+        return leaf + int(self.tail_count[self.tail_len >= n].sum())
 
     def distinct(self, n: int) -> int:
         """Number of distinct n-words (occupied boxes at scale ``k**n``)."""
-        return self.spectrum(n).distinct
+        return int(self.distinct_all()[self._check_n(n)])
+
+    def distinct_all(self) -> np.ndarray:
+        """Distinct n-words for every depth (index n; index 0 is 1), from one pass over the leaves.
+
+        Consecutive sorted leaves sharing exactly ``l`` leading symbols start a
+        new n-word for every ``n > l``, so a histogram of shared prefixes gives
+        every depth's box count at once; tail words absent from the leaf
+        prefixes are added.
+        """
+        if "distinct" in self._cache:
+            return self._cache["distinct"]
+        N, b = self.depth, self.bits
+        out = np.zeros(N + 1, dtype=np.int64)
+        out[0] = 1
+        lw, _ = self.leaf() if self.dense is None else (None, None)
+        if self.dense is not None:
+            table = self.dense
+            for n in range(N, 0, -1):
+                out[n] = np.count_nonzero(table)
+                table = table.reshape(-1, 1 << b).sum(axis=1)
+            lw = np.flatnonzero(self.dense).astype(_key_dtype(b, N))
+        elif lw.size:
+            if "lcp" not in self._cache:
+                self._cache["lcp"] = kernels.lcp_histogram(lw, N, b, 8 * lw.dtype.itemsize)
+            out[1:] = 1 + np.cumsum(self._cache["lcp"])[:N]
+        for n in range(1, N + 1):
+            tw, _ = self._tail_prefixes(n)
+            if tw.size:
+                out[n] += _absent_prefixes(lw, tw, b * (N - n), b * N)
+        self._cache["distinct"] = out
+        return out
 
     def count_of(self, word: str | Iterable[int]) -> int:
         """Occurrences of one word given as text or codes."""
@@ -218,13 +241,22 @@ class WordCounts:
         if "spectra" not in self._cache:
             lw, lc = self.leaf()
             key_bits = 8 * lw.dtype.itemsize
-            pad = (np.uint64(self.depth) - self.tail_len.astype(np.uint64)) * np.uint64(self.bits)
-            padded = self.tail_addr << pad
-            order = np.argsort(padded, kind="stable")
+            levels = np.full(lw.size, self.depth, dtype=np.int8)
+            if self.tail_len.size:  # merge the (few) padded tails into the sorted leaves
+                pad = (np.uint64(self.depth) - self.tail_len.astype(np.uint64)) * np.uint64(self.bits)
+                padded = (self.tail_addr << pad).astype(lw.dtype)
+                order = np.argsort(padded, kind="stable")
+                at = np.searchsorted(lw, padded[order], side="right")
+                lw = np.insert(lw, at, padded[order])
+                lc = np.insert(lc, at, self.tail_count[order])
+                levels = np.insert(levels, at, self.tail_len[order].astype(np.int8))
+            total = int(lc.sum())
             hist, bd, bc = kernels.count_spectra(
-                lw, lc, padded[order], self.tail_len[order].astype(np.int64), self.tail_count[order],
-                self.depth, self.bits, key_bits, SPECTRUM_CAP,
+                lw, lc, levels, self.depth, self.bits, key_bits, SPECTRUM_CAP,
+                self.depth * (total // SPECTRUM_CAP + 1),
             )
+            hist = hist.reshape(self.depth + 1, SPECTRUM_CAP)
+            hist[:, 0] = 0  # bookkeeping entries for depths a tail did not reach
             out: list[Spectrum] = [Spectrum(0, np.zeros(0, np.int64), np.zeros(0, np.int64))]
             for d in range(1, self.depth + 1):
                 vals = np.flatnonzero(hist[d])
@@ -244,17 +276,11 @@ class WordCounts:
 
     def ladder(self) -> list[dict]:
         """Per depth: distinct words, occurrences, possible words ``A**n`` (a small table)."""
-        rows = []
-        for s in self.spectra()[1:]:
-            rows.append(
-                {
-                    "depth": s.depth,
-                    "distinct": s.distinct,
-                    "occurrences": s.total,
-                    "possible": float(self.alphabet.size) ** s.depth,
-                }
-            )
-        return rows
+        d = self.distinct_all()
+        return [
+            {"depth": n, "distinct": int(d[n]), "occurrences": self.total(n), "possible": float(self.alphabet.size) ** n}
+            for n in range(1, self.depth + 1)
+        ]
 
     # ------------------------------------------------------------ merging
     def compatible(self, other: "WordCounts") -> None:
@@ -347,7 +373,9 @@ class WordCounts:
                 data = {k: z[k] for k in z.files}
         except FileNotFoundError:
             raise InputError(f"Count file {path} does not exist; check the path.") from None
-        except (OSError, ValueError, EOFError) as exc:
+        except IsADirectoryError:
+            raise InputError(f"{path} is a folder, not a count file; give the .npz file.") from None
+        except (OSError, ValueError, EOFError, zipfile.BadZipFile, KeyError) as exc:
             raise ModelFileError(f"{path} is not a readable count file ({exc}); recount the input.") from None
         return cls.from_arrays(data, str(path))
 
@@ -375,6 +403,44 @@ class WordCounts:
 
 
 # ------------------------------------------------------------------ helpers
+def _sorted_runs_threaded(codes, starts, depth, bits, keys, threads: int = 2):
+    """Unique words, counts and prefix histogram using ``threads`` threads.
+
+    Words are grouped by their first symbol (so the groups are already in
+    order), each group is sorted by numpy (which releases the GIL) and
+    reduced by a ``nogil`` kernel straight into its slice of the output.
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    n_buckets = 1 << bits
+    bounds = kernels.first_symbol_bounds(codes, starts, depth, bits, n_buckets)
+    kernels.full_words_bucketed(codes, starts, depth, bits, bounds, keys)
+    key_bits = 8 * keys.dtype.itemsize
+    parts = [(int(bounds[d]), int(bounds[d + 1])) for d in range(n_buckets) if bounds[d + 1] > bounds[d]]
+    order = sorted(range(len(parts)), key=lambda i: parts[i][0] - parts[i][1])  # largest first
+
+    def sort_and_count(i: int) -> int:
+        lo, hi = parts[i]
+        keys[lo:hi].sort()
+        return kernels.count_runs(keys[lo:hi])
+
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        sizes = dict(zip(order, pool.map(sort_and_count, order)))
+        offsets = np.concatenate([[0], np.cumsum([sizes[i] for i in range(len(parts))])]).astype(np.int64)
+        uniq = np.empty(int(offsets[-1]), dtype=keys.dtype)
+        cnt = np.empty(int(offsets[-1]), dtype=np.int64)
+
+        def write(i: int) -> np.ndarray:
+            lo, hi = parts[i]
+            a, b = offsets[i], offsets[i + 1]
+            return kernels.write_runs(keys[lo:hi], uniq[a:b], cnt[a:b], depth, bits, key_bits)
+
+        hists = list(pool.map(write, order))
+    lcp = np.sum(hists, axis=0) if hists else np.zeros(depth + 1, np.int64)
+    lcp[0] += max(0, len(parts) - 1)  # neighbouring groups differ in the first symbol
+    return uniq, cnt, lcp
+
+
 def encode_address(codes: Iterable[int], bits: int) -> int:
     """Packed address of a word given by its codes (first symbol most significant)."""
     a = 0
@@ -387,6 +453,20 @@ def decode_address(address: int, n: int, bits: int) -> list[int]:
     """Codes of the n-word with the given address."""
     mask = (1 << bits) - 1
     return [(address >> (bits * (n - 1 - i))) & mask for i in range(n)]
+
+
+def _absent_prefixes(sorted_leaf: np.ndarray, prefixes: np.ndarray, shift: int, key_bits: int) -> int:
+    """How many of the (few) ``prefixes`` start no leaf word (leaf words sorted; prefix = word >> shift)."""
+    if sorted_leaf.size == 0:
+        return int(prefixes.size)
+    lo_vals = (prefixes << np.uint64(shift)).astype(sorted_leaf.dtype)
+    lo = np.searchsorted(sorted_leaf, lo_vals, side="left")
+    top = np.uint64(1) << np.uint64(key_bits - shift) if key_bits - shift < 64 else None
+    nxt = prefixes + np.uint64(1)
+    overflow = (nxt >= top) if top is not None else np.zeros(prefixes.size, bool)
+    hi_vals = np.where(overflow, 0, nxt << np.uint64(shift)).astype(sorted_leaf.dtype)
+    hi = np.where(overflow, sorted_leaf.size, np.searchsorted(sorted_leaf, hi_vals, side="left"))
+    return int(np.count_nonzero(hi == lo))
 
 
 def _reduce_tails(lens: list[np.ndarray], addrs: list[np.ndarray], cnts: list[np.ndarray]):
@@ -411,7 +491,7 @@ class WordCounter:
     alphabet, depth:
         Alphabet and deepest word length N (at most ``alphabet.max_depth``).
     parallel:
-        Sort large chunks with the threaded radix kernel (buckets by first symbol).
+        Sort large chunks on two threads (words grouped by first symbol, each group sorted apart).
     dense:
         Force dense (True) or sparse (False) storage; default: dense when ``b N <= 24``.
     """
@@ -429,6 +509,7 @@ class WordCounter:
         self._cells = 1 << (self.bits * self.depth) if self.use_dense else 0
         self._dense: np.ndarray | None = None  # allocated once the sparse runs outgrow cells / 8
         self._runs: list[tuple[np.ndarray, np.ndarray]] = []
+        self._lcp: np.ndarray | None = None
         self._tails: tuple[list, list, list] = ([], [], [])
         self._carry = np.zeros(0, dtype=alphabet.code_dtype)
         self._open = False  # is a segment open (carry belongs to it)?
@@ -455,7 +536,9 @@ class WordCounter:
             self._tails[0].append(tl)
             self._tails[1].append(ta)
             self._tails[2].append(np.ones(tl.size, np.int64))
-        if keys.size:
+        if keys.size and self.parallel and self._dense is None and not self.use_dense and keys.size > (1 << 18):
+            self._push_run(*_sorted_runs_threaded(vcodes, vstarts, self.depth, self.bits, keys))
+        elif keys.size:
             if self._dense is not None:
                 kernels.dense_add(self._dense, keys)
             elif self.use_dense and keys.size > self._cells // 8:
@@ -465,13 +548,15 @@ class WordCounter:
                 self._runs = []
                 kernels.dense_add(self._dense, keys)
             else:
-                _sort_keys(keys, self.bits * self.depth, self.bits, self.parallel)
-                m, cnt = kernels.compact_runs_inplace(keys)
-                self._push_run(keys[:m].copy() if m < keys.size // 2 else keys[:m], cnt)
+                keys.sort()  # numpy's vectorised sort, in place
+                uniq, cnt, lcp = kernels.runs_with_lcp(keys, self.depth, self.bits, 8 * keys.dtype.itemsize)
+                del keys
+                self._push_run(uniq, cnt, lcp)
         self._carry = vcodes[carry_from:].copy() if not final else vcodes[:0].copy()
         self._open = not final
 
-    def _push_run(self, words: np.ndarray, counts: np.ndarray) -> None:
+    def _push_run(self, words: np.ndarray, counts: np.ndarray, lcp: np.ndarray | None = None) -> None:
+        self._lcp = lcp if not self._runs else None  # the prefix histogram is valid for a single run only
         self._runs.append((words, counts))
         if self.use_dense and sum(w.size for w, _ in self._runs) > self._cells // 8:
             self._dense = np.zeros(self._cells, dtype=np.int64)
@@ -502,7 +587,10 @@ class WordCounter:
             lw, lc = self._runs[0]
         else:
             lw, lc = np.zeros(0, self.key_dtype), np.zeros(0, np.int64)
-        return WordCounts(self.alphabet, self.depth, self.length, self.segments, None, lw, lc, tl, ta, tc)
+        wc = WordCounts(self.alphabet, self.depth, self.length, self.segments, None, lw, lc, tl, ta, tc)
+        if self._lcp is not None and len(self._runs) == 1:
+            wc._cache["lcp"] = self._lcp
+        return wc
 
 
 def count_words(
