@@ -81,7 +81,7 @@ class RecordLog:
         report.records = self.records
         if self.count > len(self.records):
             report.notes.append(f"{self.count} {what} read; only the first {len(self.records)} are listed")
-        report.extra[what] = self.count
+        report.extra[f"{what}_total"] = self.count
 
 
 def require_symbols(report: ReadReport, name: str, alphabet: Alphabet) -> None:

@@ -43,6 +43,7 @@ P_HEADER = 1
 P_EXPECT = 2  # FASTQ: waiting for '@'
 P_PLUS = 3  # FASTQ: on the '+' line
 P_QUAL = 4  # FASTQ: quality lines
+P_COMMENT = 5  # FASTA: a line starting with ';'
 
 # state slots
 S_PHASE = 0
@@ -72,6 +73,7 @@ _IGNORED = -3
 
 _NL = 10
 _GT = 62
+_SEMI = 59
 _AT = 64
 _PLUS = 43
 _CR = 13
@@ -83,7 +85,7 @@ def new_state(layout: int) -> np.ndarray:
     """Initial scanner state for a stream (new segment pending, line 1)."""
     state = np.zeros(N_STATE, dtype=np.int64)
     state[S_PHASE] = P_EXPECT if layout == FASTQ else P_SEQ
-    state[S_LINE_START] = 1
+    state[S_LINE_START] = 0 if layout == PLAIN else 1
     state[S_PENDING] = 1
     state[S_LINE] = 1
     return state
@@ -101,6 +103,7 @@ def scan_symbols(raw, lo, lut, layout, policy, nl, state, codes, starts, dropped
         First position to scan.
     lut : 1-D int16/int32 array
         Class of each raw value: code, or -1 unknown, -2 ambiguous, -3 ignored.
+        For FASTA/FASTQ the line feed must be classed as ignored.
     layout : int
         ``PLAIN``, ``FASTA`` or ``FASTQ``.
     policy : int
@@ -138,10 +141,32 @@ def scan_symbols(raw, lo, lut, layout, policy, nl, state, codes, starts, dropped
     err = 0
     i = lo
     while i < n:
+        b = raw[i]
+        if phase == P_SEQ and ls == 0:
+            # fast path: a symbol inside a sequence line
+            c = lut[b]
+            if c >= 0:
+                if pend == 1:
+                    starts[ns] = nc
+                    ns += 1
+                    pend = 0
+                codes[nc] = c
+                nc += 1
+                seq_len += 1
+                if b == nl:
+                    line += 1
+                i += 1
+                continue
         if nev == cap:
             break
-        b = raw[i]
         if layout != PLAIN:
+            if phase == P_COMMENT:
+                if b == _NL:
+                    line += 1
+                    ls = 1
+                    phase = P_SEQ
+                i += 1
+                continue
             if phase == P_HEADER:
                 if b == _NL:
                     events[nev, 0] = EV_HEADER_END
@@ -219,6 +244,11 @@ def scan_symbols(raw, lo, lut, layout, policy, nl, state, codes, starts, dropped
                     events[nev, 2] = nc
                     nev += 1
                     pend = 1
+                    ls = 0
+                    i += 1
+                    continue
+                if ls == 1 and b == _SEMI:
+                    phase = P_COMMENT
                     ls = 0
                     i += 1
                     continue

@@ -131,12 +131,12 @@ def locate(path: str | os.PathLike) -> Origin:
 
 
 # --------------------------------------------------------------- zstandard
-class _ZstdReader(io.RawIOBase):
+class _ZstdReader:
     """Multi-frame Zstandard reader that notices truncation.
 
     ``zstandard``'s own stream reader ends quietly on a truncated frame, so
     this one drives ``decompressobj`` and checks that every frame reached
-    its end marker.
+    its end marker.  Output waits in a list of pieces (no repeated copying).
     """
 
     _IN = 1 << 16
@@ -147,46 +147,56 @@ class _ZstdReader(io.RawIOBase):
         self._zstd = zstandard
         self._raw = raw
         self._dec = zstandard.ZstdDecompressor().decompressobj()
-        self._buf = bytearray()
+        self._pieces: list[bytes] = []
+        self._head = 0  # bytes of _pieces[0] already handed out
+        self._avail = 0
         self._started = False
         self._done = False
 
-    def readable(self) -> bool:
-        return True
-
-    def _fill(self, want: int) -> None:
-        while len(self._buf) < want and not self._done:
-            data = self._raw.read(self._IN)
-            if not data:
-                if self._started and not self._dec.eof:
-                    raise EOFError("Compressed file ended before the end-of-stream marker was reached")
-                self._done = True
-                break
-            while data:
-                self._started = True
-                self._buf += self._dec.decompress(data)
-                if self._dec.eof:
-                    data = self._dec.unused_data
-                    self._dec = self._zstd.ZstdDecompressor().decompressobj()
-                    self._started = False
-                    if data.strip(b"\x00") == b"":
-                        data = b""
-                else:
+    def _pull(self) -> None:
+        data = self._raw.read(self._IN)
+        if not data:
+            if self._started and not self._dec.eof:
+                raise EOFError("Compressed file ended before the end-of-stream marker was reached")
+            self._done = True
+            return
+        while data:
+            self._started = True
+            out = self._dec.decompress(data)
+            if out:
+                self._pieces.append(out)
+                self._avail += len(out)
+            if self._dec.eof:
+                data = self._dec.unused_data
+                self._dec = self._zstd.ZstdDecompressor().decompressobj()
+                self._started = False
+                if data.strip(b"\x00") == b"":
                     data = b""
+            else:
+                data = b""
 
-    def readinto(self, b) -> int:  # type: ignore[override]
-        n = len(b)
-        self._fill(n)
-        k = min(n, len(self._buf))
-        b[:k] = self._buf[:k]
-        del self._buf[:k]
-        return k
+    def read(self, size: int) -> bytes:
+        while self._avail - self._head < size and not self._done:
+            self._pull()
+        out: list[bytes] = []
+        want = size
+        while want > 0 and self._pieces:
+            first = self._pieces[0]
+            left = len(first) - self._head
+            if left <= want:
+                out.append(first[self._head:] if self._head else first)
+                want -= left
+                self._pieces.pop(0)
+                self._avail -= len(first)
+                self._head = 0
+            else:
+                out.append(first[self._head : self._head + want])
+                self._head += want
+                want = 0
+        return out[0] if len(out) == 1 else b"".join(out)
 
     def close(self) -> None:
-        try:
-            self._raw.close()
-        finally:
-            super().close()
+        self._raw.close()
 
 
 def _zstd_errors() -> tuple[type[BaseException], ...]:
@@ -232,7 +242,7 @@ class ByteSource:
         elif o.compression == "xz":
             fh = lzma.LZMAFile(raw, mode="rb")  # type: ignore[assignment]
         elif o.compression == "zstd":
-            fh = io.BufferedReader(_ZstdReader(raw), buffer_size=1 << 16)  # type: ignore[assignment]
+            fh = _ZstdReader(raw)  # type: ignore[assignment]
         else:
             fh = raw
         self._fh = fh
@@ -298,24 +308,29 @@ def head(origin: Origin, size: int = SNIFF_BYTES) -> bytes:
         return src.read(size)
 
 
-def line_blocks(origin: Origin, size: int) -> Iterator[tuple[int, bytes]]:
-    """Blocks of whole lines, about ``size`` bytes each (a longer line is kept whole).
+def line_blocks(origin: Origin, size: int, separators: bytes = b"\n") -> Iterator[tuple[int, bytes]]:
+    """Blocks that end at a separator byte, about ``size`` bytes each.
+
+    With the default separator every block holds whole lines (a line longer
+    than ``size`` is kept whole); with ``separators=b" \\t\\n\\r\\f\\v"`` blocks
+    end at whitespace, so whitespace-separated tokens are never cut.
 
     Yields ``(first_line_number, block)`` with 1-based line numbers; every
-    block but the last ends with a newline.
+    block but the last ends with a separator.
     """
     size = max(1, size)
     line_no = 1
-    carry = b""
+    pending: list[bytes] = []
     with ByteSource(origin) as src:
         for block in src.blocks(size):
-            data = carry + block if carry else block
-            cut = data.rfind(b"\n")
+            cut = max(block.rfind(bytes([s])) for s in separators)
             if cut < 0:
-                carry = data
+                pending.append(block)
                 continue
-            out, carry = data[: cut + 1], data[cut + 1:]
+            pending.append(block[: cut + 1])
+            out = b"".join(pending)
+            pending = [block[cut + 1:]] if cut + 1 < len(block) else []
             yield line_no, out
             line_no += out.count(b"\n")
-        if carry:
-            yield line_no, carry
+        if pending:
+            yield line_no, b"".join(pending)

@@ -4,12 +4,14 @@ Rules of ``fmt="auto"``, applied to the first 64 KiB after decompression:
 
 1. Empty, or only blank lines: :class:`InputError`.
 2. Binary content (a NUL byte; or more than 5 % control characters other
-   than tab, line feed, vertical tab, form feed and carriage return; or not
+   than tab, line feed, vertical tab, form feed, carriage return and escape
+   (colour codes in logs); or not
    UTF-8 with more than 30 % bytes above 127): :class:`InputError`, unless the
    alphabet is ``bytes`` and the format is ``auto`` or ``text``.
 3. First non-blank character ``>``: **fasta**.
-4. First non-blank line starts with ``@`` and the third line of that record
-   starts with ``+``: **fastq**.
+4. First non-blank line starts with ``@``, followed by one or more sequence
+   lines (letters, ``.``, ``*``, ``-``) and then a line starting with ``+``:
+   **fastq**.
 5. Alphabet ``bytes``, a sequence preset (``dna``, ``rna``, ``protein``,
    ``binary``) or explicit symbols: **text** (plain sequence: every character
    is read; layout characters not in the alphabet are skipped).  With
@@ -28,6 +30,7 @@ A declared format is checked against the content: FASTA must start with
 from __future__ import annotations
 
 import codecs
+import re
 
 import numpy as np
 
@@ -37,17 +40,11 @@ from fractalseq.sources import numeric
 from fractalseq.sources.templates import has_timestamp
 
 FORMATS: tuple[str, ...] = ("auto", "fasta", "fastq", "text", "tokens", "log", "numeric")
-_SEQUENCE_PRESETS = ("dna", "rna", "protein", "binary")
 _CONTROL = np.ones(256, dtype=bool)
 _CONTROL[32:127] = False
 _CONTROL[128:] = False
 for _b in b"\t\n\x0b\x0c\r\x1b":
     _CONTROL[_b] = False
-_LAYOUT = b" \t\r\n"
-
-
-def _show(ch: str) -> str:
-    return repr(ch)
 
 
 def is_binary(block: bytes) -> bool:
@@ -94,12 +91,21 @@ def looks_fasta(block: bytes) -> bool:
     return s[:1] == b">"
 
 
+_SEQ_LINE = re.compile(rb"^[A-Za-z.*-]*\r?$")
+
+
 def looks_fastq(block: bytes) -> bool:
+    """First line starts with '@', then sequence lines (letters, '.', '*', '-'), then a '+' line."""
     s = block.lstrip()
     if s[:1] != b"@":
         return False
-    lines = s.split(b"\n", 3)
-    return len(lines) >= 3 and lines[2][:1] == b"+"
+    lines = s.split(b"\n", 200)[1:200]
+    for k, line in enumerate(lines):
+        if line[:1] == b"+":
+            return k >= 1
+        if not _SEQ_LINE.match(line):
+            return False
+    return False
 
 
 def _first_char(block: bytes) -> str:
@@ -115,7 +121,7 @@ def check_declared(fmt: str, block: bytes, name: str) -> None:
                 f"{name} is FASTQ (a '@' line followed by a '+' line), not FASTA; use the fastq or auto format."
             )
         raise InputError(
-            f"{name} is not FASTA: it starts with {_show(_first_char(block))} instead of '>'; "
+            f"{name} is not FASTA: it starts with {_first_char(block)!r} instead of '>'; "
             "use the text format for plain sequence, or auto."
         )
     if fmt == "fastq" and not looks_fastq(block):

@@ -11,9 +11,10 @@ placeholder     what it replaces
 ``<str>``       double-quoted strings; single-quoted strings that stand
                 alone (not an apostrophe inside a word)
 ``<url>``       ``scheme://...`` up to the next space
-``<time>``      ISO 8601 date-times and dates; common-log dates
+``<time>``      ISO 8601 date-times and dates (also ``2005/01/12``); common-log dates
                 ``10/Oct/2000:13:55:36 -0700``; syslog / ctime stamps
-                ``[Sat] Jun 01 02:17:42 [2013]``; bare ``HH:MM:SS[.fff]``;
+                ``[Sat] Jun 01 02:17:42 [2013]``; ``11-Aug-2013 03:36:11.372``;
+                bare ``HH:MM:SS[.fff]``;
                 epoch-like 10- or 13-digit numbers starting with 1
 ``<uuid>``      8-4-4-4-12 hexadecimal UUIDs
 ``<email>``     ``user@host`` (also ``user@host.domain``)
@@ -23,6 +24,8 @@ placeholder     what it replaces
                 with a port
 ``<hex>``       ``0x...`` numbers, and runs of 8 or more hex digits that
                 mix digits and letters
+``<id>``        alphanumeric runs of 10 or more characters with at least
+                one letter and three digits (queue and session ids)
 ``<path>``      ``/a/b/c`` file paths (a slash not glued to a word)
 ``<num>``       integers, decimals and dotted numbers (``5.7.1``), with a
                 sign, not glued to a preceding letter (``ssh2`` stays)
@@ -49,6 +52,7 @@ PLACEHOLDERS: tuple[str, ...] = (
     "<mac>",
     "<ip>",
     "<hex>",
+    "<id>",
     "<path>",
     "<num>",
 )
@@ -57,7 +61,7 @@ _MONTH = r"(?:Jan|Feb|Mar|Apr|May|Jun|Jul|Aug|Sep|Oct|Nov|Dec)"
 _DAY = r"(?:Mon|Tue|Wed|Thu|Fri|Sat|Sun)"
 
 _ISO = (
-    r"(?<![\w.])\d{4}-\d{2}-\d{2}"
+    r"(?<![\w.])\d{4}([-/])\d{2}\1\d{2}"
     r"(?:[T ]\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?)?"
     r"(?:\s?(?:Z|[+-]\d{2}:?\d{2})(?![\w]))?"
 )
@@ -66,6 +70,7 @@ _SYSLOG = (
     r"(?:" + _DAY + r",?\s+)?" + _MONTH + r"\s+\d{1,2},?\s+\d{2}:\d{2}:\d{2}(?:[.,]\d+)?"
     r"(?:\s+\d{4}(?!\d))?"
 )
+_DMY = r"(?<![\w.])\d{1,2}[-/ ]" + _MONTH + r"[-/ ]\d{4}(?:[ T:]\d{2}:\d{2}:\d{2}(?:[.,]\d+)?)?"
 _CLOCK = r"(?<![\w:.])\d{1,2}:\d{2}:\d{2}(?:[.,]\d+)?(?![\w:])"
 _EPOCH = r"(?<![\w.])1\d{9}(?:\d{3})?(?:\.\d+)?(?![\w.])"
 
@@ -87,6 +92,7 @@ _RULES: tuple[tuple[re.Pattern[str], str], ...] = tuple(
         (_CLF, "<time>"),
         (_ISO, "<time>"),
         (_SYSLOG, "<time>"),
+        (_DMY, "<time>"),
         (_CLOCK, "<time>"),
         (_EPOCH, "<time>"),
         (r"\b[0-9A-Fa-f]{8}-[0-9A-Fa-f]{4}-[0-9A-Fa-f]{4}-[0-9A-Fa-f]{4}-[0-9A-Fa-f]{12}\b", "<uuid>"),
@@ -97,13 +103,14 @@ _RULES: tuple[tuple[re.Pattern[str], str], ...] = tuple(
         (r"(?<![\w.])(?:\d{1,3}\.){3}\d{1,3}(?::\d{1,5})?(?!\w|\.\d)", "<ip>"),
         (r"\b0[xX][0-9A-Fa-f]+\b", "<hex>"),
         (r"(?<![\w])(?=[0-9A-Fa-f]*[A-Fa-f])(?=[0-9A-Fa-f]*\d)[0-9A-Fa-f]{8,}(?![\w])", "<hex>"),
+        (r"(?<![\w])(?=[A-Za-z0-9]*[A-Za-z])(?=(?:[A-Za-z]*\d){3})[A-Za-z0-9]{10,}(?![\w])", "<id>"),
         (r"(?<![\w>.:/])/(?:[\w.@%+~=,-]+/?)+", "<path>"),
         (r"(?<![\w.<])[-+]?\d+(?:\.\d+)*", "<num>"),
         (r"[ \t]+", " "),
     )
 )
 
-_STAMP = re.compile(r"(?:" + _CLF + r"|" + _ISO + r"|" + _SYSLOG + r"|" + _EPOCH + r"|@[0-9a-f]{24})")
+_STAMP = re.compile(r"(?:" + _CLF + r"|" + _ISO + r"|" + _SYSLOG + r"|" + _DMY + r"|" + _EPOCH + r"|@[0-9a-f]{24})")
 
 
 def line_template(line: str) -> str:

@@ -1,0 +1,267 @@
+"""Input readers: every kind of input becomes a :class:`~fractalseq.stream.SymbolStream`.
+
+>>> from fractalseq.sources import open_source
+>>> stream = open_source("genome.fa.xz")                       # doctest: +SKIP
+>>> for chunk in stream.chunks(): ...                          # doctest: +SKIP
+>>> stream.report.to_dict()                                    # doctest: +SKIP
+
+Formats (``fmt``)
+-----------------
+``fasta``, ``fastq``
+    Multi-record sequence files (see :mod:`fractalseq.sources.sequence`).
+``text``
+    Plain text: plain sequence for sequence alphabets, characters otherwise
+    (:mod:`fractalseq.sources.text`).
+``tokens``
+    Whitespace-separated tokens, one symbol each.
+``log``
+    Event lines reduced to templates (:mod:`fractalseq.sources.logs`,
+    :func:`line_template`).
+``numeric``
+    A numeric column symbolized by quantile bins, thresholds or ordinal
+    patterns (:mod:`fractalseq.sources.numeric`).
+``auto``
+    Chosen from the content (rules in :mod:`fractalseq.sources.sniff`).
+
+Compression (gzip, bzip2, xz, Zstandard) is recognised by content and
+undone on the fly; ``"-"`` reads standard input, which is held in memory
+(read once, served for every pass).  Files are otherwise streamed: memory is
+bounded by ``chunk_size``, except that quantile binning keeps the numeric
+column's values for its first pass.
+
+Errors found while opening (missing path, folder, empty or binary content,
+format mismatch, learning pass) are raised by :func:`open_source`; errors in
+the body (unknown symbols under the error policy, a truncated archive, no
+symbol at all) are raised while the stream is iterated.  All are
+:class:`~fractalseq.errors.InputError` or
+:class:`~fractalseq.errors.ParameterError` with a one-sentence message.
+"""
+
+from __future__ import annotations
+
+import os
+from typing import Iterator
+
+from fractalseq import alphabet as _alpha
+from fractalseq.alphabet import Alphabet, check_policy
+from fractalseq.errors import ParameterError
+from fractalseq.sources import logs, numeric, sequence, sniff, text
+from fractalseq.sources.rawio import Origin, head, locate
+from fractalseq.sources.sniff import FORMATS
+from fractalseq.sources.templates import line_template
+from fractalseq.stream import DEFAULT_CHUNK, Chunk, ReadReport, SymbolStream
+
+__all__ = ["FORMATS", "detect_format", "line_template", "open_source"]
+
+_LEARN_BLOCK = 1 << 16
+
+
+def _resolve(spec: str | Alphabet | None) -> Alphabet | None:
+    if spec is None or isinstance(spec, Alphabet):
+        return spec
+    if not isinstance(spec, str):
+        raise ParameterError(f"The alphabet must be a name, 'learn', 'symbols:...' or an Alphabet; got {type(spec).__name__}.")
+    return _alpha.resolve(spec)
+
+
+def _token_alphabet(spec: str | Alphabet | None) -> Alphabet | None:
+    """Tokens use an explicit alphabet only (an Alphabet, or symbols:a,b,c); preset names mean learn."""
+    if isinstance(spec, Alphabet):
+        return spec
+    if isinstance(spec, str) and spec.startswith("symbols:"):
+        body = spec[len("symbols:"):]
+        items = [s.strip() for s in body.split(",")] if "," in body else list(body)
+        items = [s for s in items if s]
+        if not items:
+            raise ParameterError("The alphabet 'symbols:' lists no symbols; write e.g. symbols:up,down,flat.")
+        return _alpha.from_symbols(items, name="tokens")
+    _resolve(spec)  # still reject misspelled names
+    return None
+
+
+def _byte_path(a: Alphabet) -> bool:
+    """True when text can be read byte by byte through ``a.byte_table()``."""
+    if not a.single_characters:
+        return False
+    return a.name == "bytes" or all(ord(s) < 128 for s in a.symbols)
+
+
+def _prepare(path: str | os.PathLike, fmt: str, a: Alphabet | None, allow_binary: bool) -> tuple[Origin, str, bytes]:
+    origin = locate(path)
+    block = head(origin)
+    sniff.check_content(block, origin.name, allow_binary)
+    if fmt == "auto":
+        fmt = sniff.detect(block, a, origin.name)
+        origin.notes.append(f"format {fmt} (detected)")
+    else:
+        sniff.check_declared(fmt, block, origin.name)
+    return origin, fmt, block
+
+
+def detect_format(path: str | os.PathLike, alphabet: str | Alphabet | None = "dna") -> str:
+    """The format ``fmt="auto"`` would choose for ``path`` (rules in :mod:`fractalseq.sources.sniff`).
+
+    Given ``"-"`` this consumes standard input; use it on files.
+    """
+    a = _resolve(alphabet)
+    allow = a is not None and a.name == "bytes"
+    return _prepare(path, "auto", a, allow)[1]
+
+
+def open_source(
+    path: str | os.PathLike,
+    fmt: str = "auto",
+    alphabet: str | Alphabet | None = "dna",
+    policy: str = "break",
+    *,
+    column: str | int | None = None,
+    bins: int = 4,
+    thresholds: list[float] | None = None,
+    ordinal: int = 0,
+    chunk_size: int = DEFAULT_CHUNK,
+    name: str | None = None,
+) -> SymbolStream:
+    """Open an input as a stream of symbol codes.
+
+    Parameters
+    ----------
+    path:
+        File path (compressed or not), or ``"-"`` for standard input (read
+        once into memory).
+    fmt:
+        ``auto``, ``fasta``, ``fastq``, ``text``, ``tokens``, ``log`` or ``numeric``.
+    alphabet:
+        Preset name (``dna``, ``rna``, ``protein``, ``binary``, ``bytes``),
+        ``"learn"`` or ``None`` (learned from the data in a first pass),
+        ``"symbols:XYZ"``, or an :class:`~fractalseq.alphabet.Alphabet`.
+        Logs always use their learned template table; numeric input uses the
+        symbolization's own alphabet; tokens use an explicit alphabet only
+        (an Alphabet or ``symbols:a,b,c``), otherwise learn.
+    policy:
+        Ambiguous/unknown symbols: ``break`` (end the segment), ``skip``
+        (drop, counted) or ``error`` (raise :class:`InputError`).
+    column:
+        numeric: column name or 0-based index (default: first numeric column).
+    bins:
+        numeric: number of equal-frequency bins.
+    thresholds:
+        numeric: fixed bin edges instead of quantiles.
+    ordinal:
+        numeric: ordinal-pattern order ``m`` (2..8); 0 uses bins/thresholds.
+    chunk_size:
+        Decompressed bytes read per block; no chunk holds more symbols.
+    name:
+        Name of the stream (default: the path, ``-`` for standard input).
+
+    Returns
+    -------
+    SymbolStream
+        Re-iterable; its :attr:`~fractalseq.stream.SymbolStream.report`
+        describes the last complete pass (symbols, segments, dropped counts
+        by reason, records, notes, and ``extra`` such as the log template
+        table).
+
+    Raises
+    ------
+    InputError
+        Unusable input (see the module documentation for when).
+    ParameterError
+        Impossible parameters.
+    """
+    if fmt not in FORMATS:
+        raise ParameterError(f"Format {fmt!r} is not known; use one of {', '.join(FORMATS)}.")
+    check_policy(policy)
+    if isinstance(chunk_size, bool) or not isinstance(chunk_size, int) or chunk_size < 1:
+        raise ParameterError(f"The chunk size must be a positive whole number of bytes; got {chunk_size!r}.")
+    if fmt == "numeric":
+        numeric.check_parameters(bins, thresholds, ordinal)
+    a = _resolve(alphabet) if fmt not in ("tokens", "log", "numeric") else None
+    allow_binary = a is not None and a.name == "bytes" and fmt in ("auto", "text")
+    origin, fmt, block = _prepare(path, fmt, a, allow_binary)
+    learn_block = max(chunk_size, _LEARN_BLOCK)
+    stream_name = name or origin.name
+    base_notes = list(origin.notes)
+
+    def begin(report: ReadReport) -> None:
+        report.notes.extend(base_notes)
+        report.extra["format"] = fmt
+        report.extra["compression"] = origin.compression or "none"
+
+    if fmt in ("fasta", "fastq"):
+        if a is None:
+            a = sequence.learn(origin, fmt, learn_block)
+        elif not (a.single_characters and all(ord(s) < 256 for s in a.symbols)):
+            raise ParameterError(
+                f"The {a.name} alphabet has symbols longer than one character, which {fmt.upper()} cannot hold; "
+                "use a character alphabet."
+            )
+        return _byte_stream(origin, fmt, a, policy, chunk_size, stream_name, begin)
+
+    if fmt == "text":
+        if a is None:
+            a = text.learn_chars(origin, learn_block)
+        if _byte_path(a):
+            return _byte_stream(origin, "plain", a, policy, chunk_size, stream_name, begin)
+        if not a.single_characters:
+            raise ParameterError(
+                f"The {a.name} alphabet has symbols longer than one character; read this input with the tokens format."
+            )
+        final = a
+
+        def char_factory(report: ReadReport) -> Iterator[Chunk]:
+            begin(report)
+            yield from text.char_chunks(origin, final, policy, chunk_size, report)
+            sequence.finish(report, origin, final)
+
+        return SymbolStream(final, char_factory, stream_name)
+
+    if fmt == "tokens":
+        ta = _token_alphabet(alphabet)
+        if ta is None:
+            ta = text.learn_tokens(origin, learn_block)
+        tok_alpha = ta
+
+        def token_factory(report: ReadReport) -> Iterator[Chunk]:
+            begin(report)
+            yield from text.token_chunks(origin, tok_alpha, policy, chunk_size, report)
+            sequence.finish(report, origin, tok_alpha)
+
+        return SymbolStream(tok_alpha, token_factory, stream_name)
+
+    if fmt == "log":
+        table = logs.learn(origin, learn_block)
+
+        def log_factory(report: ReadReport) -> Iterator[Chunk]:
+            begin(report)
+            yield from logs.chunks(origin, table, chunk_size, report)
+
+        return SymbolStream(table.alphabet, log_factory, stream_name)
+
+    if fmt == "numeric":
+        numeric.check_parameters(bins, thresholds, ordinal)
+        sample = block.decode("utf-8", errors="replace").split("\n")
+        if len(block) >= (1 << 16) and len(sample) > 1:
+            sample = sample[:-1]
+        layout = numeric.detect_layout(sample)
+        layout = numeric.choose_column(layout, sample, column, origin.name)
+        plan, info = numeric.plan(origin, layout, bins, thresholds, ordinal, learn_block)
+
+        def numeric_factory(report: ReadReport) -> Iterator[Chunk]:
+            begin(report)
+            yield from numeric.symbol_chunks(origin, layout, plan, chunk_size, report)
+
+        return SymbolStream(plan.alphabet, numeric_factory, stream_name)
+
+    raise ParameterError(f"Format {fmt!r} is not known; use one of {', '.join(FORMATS)}.")  # pragma: no cover
+
+
+def _byte_stream(origin: Origin, layout: str, a: Alphabet, policy: str, chunk_size: int, stream_name: str, begin) -> SymbolStream:
+    lut = a.byte_table()
+
+    def factory(report: ReadReport) -> Iterator[Chunk]:
+        begin(report)
+        yield from sequence.scan(origin, layout, lut, a.code_dtype, policy, chunk_size, report, a)
+        sequence.finish(report, origin, a)
+
+    return SymbolStream(a, factory, stream_name)
+

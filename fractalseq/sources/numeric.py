@@ -1,0 +1,365 @@
+"""Numeric columns turned into symbols.
+
+Input
+-----
+A table (comma, tab, semicolon or whitespace separated) or one number per
+line.  The delimiter is the first of tab, ``;``, ``,`` found in the first data
+line, else runs of whitespace.  The first non-blank, non-comment line is a
+header when one of its fields is neither a number nor a missing mark.  Lines
+starting with ``#`` are skipped, and so are blank lines before the first
+data line.  The default column is the first whose sampled values are mostly
+(at least half) numbers.  Later blank lines, missing marks (empty field,
+``NA``, ``NaN``, ``null``, ``None``, ``N/A``, ``?``, ``-``, case-insensitive),
+infinite values and rows too short to hold the column are *missing*: they end
+the segment.  Any other non-number is an :class:`InputError` naming the line.
+Quoted fields may not span lines.
+
+Symbolization
+-------------
+``quantile`` (default, ``bins`` symbols)
+    Edges are ``np.quantile(v, [1/bins, ..., (bins-1)/bins])`` of all finite
+    values of the column (default linear interpolation).  This needs a first
+    pass that holds the column's finite values in memory (8 bytes each).
+``thresholds``
+    Given strictly increasing edges.
+For both, the symbol of ``x`` is the number of edges ``<= x``
+(``np.searchsorted(edges, x, side="right")``), so bin ``b`` holds
+``edges[b-1] <= x < edges[b]``; symbols are ``0``-``9`` then ``a``-``z``
+(``b00``... beyond 36 bins).
+
+``ordinal`` (order ``m``)
+    Bandt & Pompe (2002), Phys. Rev. Lett. 88:174102: the symbol of the
+    window ``x[t], ..., x[t+m-1]`` is the permutation ``pi`` that sorts it
+    (``x[t+pi[0]] <= x[t+pi[1]] <= ...``); equal values are ordered by their
+    order of appearance (a stable sort: the earlier value counts as smaller).
+    The alphabet is all ``m!`` permutations in lexicographic order, written as
+    digit strings (``"012"`` is the identity, code 0).  A NaN-free run of
+    length ``L`` gives ``L - m + 1`` symbols in one segment.
+"""
+
+from __future__ import annotations
+
+import csv
+import itertools
+import math
+from dataclasses import dataclass, field
+from typing import Iterator, Sequence
+
+import numpy as np
+
+from fractalseq.alphabet import Alphabet
+from fractalseq.errors import InputError, ParameterError
+from fractalseq.sources import kernels as K
+from fractalseq.sources.rawio import Origin, line_blocks
+from fractalseq.stream import Chunk, ReadReport, Record
+
+MISSING = frozenset({"", "na", "nan", "null", "none", "n/a", "?", "-"})
+MAX_ORDER = 8
+_DIGITS = "0123456789abcdefghijklmnopqrstuvwxyz"
+
+
+# ------------------------------------------------------------------ parsing
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+        return True
+    except ValueError:
+        return False
+
+
+def _is_missing(text: str) -> bool:
+    return text.strip().lower() in MISSING
+
+
+def _delimiter(line: str) -> str | None:
+    for d in ("\t", ";", ","):
+        if d in line:
+            return d
+    return None
+
+
+def split_rows(lines: Sequence[str], delimiter: str | None) -> list[list[str]]:
+    """Fields of each line (``None`` delimiter = runs of whitespace)."""
+    if delimiter is None:
+        return [ln.split() for ln in lines]
+    return [[f.strip() for f in row] for row in csv.reader(lines, delimiter=delimiter)]
+
+
+@dataclass
+class Layout:
+    """How a numeric file is laid out."""
+
+    delimiter: str | None
+    header: list[str] | None
+    column: int = 0
+    column_name: str = ""
+
+
+def _data_lines(lines: Sequence[str]) -> list[str]:
+    return [ln for ln in lines if ln.strip() and not ln.lstrip().startswith("#")]
+
+
+def detect_layout(lines: Sequence[str]) -> Layout:
+    """Delimiter and header from the first data lines (see the module rules)."""
+    data = _data_lines(lines)
+    if not data:
+        return Layout(None, None)
+    delim = _delimiter(data[0])
+    first = split_rows(data[:1], delim)[0]
+    header = None
+    if any(not _is_number(f) and not _is_missing(f) for f in first):
+        header = first
+    return Layout(delim, header)
+
+
+def _numeric_columns(rows: list[list[str]], width: int, share: float = 1.0) -> list[int]:
+    """Columns whose present (non-missing) values are numbers, at least ``share`` of them."""
+    cols = []
+    for c in range(width):
+        vals = [r[c] for r in rows if len(r) > c]
+        present = [v for v in vals if not _is_missing(v)]
+        if present and sum(_is_number(v) for v in present) >= share * len(present):
+            cols.append(c)
+    return cols
+
+
+def looks_numeric(lines: Sequence[str]) -> bool:
+    """True when the sampled lines form a table with at least one all-numeric column (used by auto)."""
+    data = _data_lines(lines)
+    if not data:
+        return False
+    lay = detect_layout(data)
+    rows = split_rows(data[1:] if lay.header else data, lay.delimiter)
+    if not rows:
+        return False
+    widths = {len(r) for r in rows}
+    if lay.delimiter is None:
+        if len(widths) != 1:
+            return False
+        fields = [f for r in rows for f in r]
+        if sum(_is_number(f) for f in fields) * 2 < len(fields):
+            return False
+    return bool(_numeric_columns(rows, max(widths)))
+
+
+def choose_column(layout: Layout, sample: Sequence[str], column: str | int | None, name: str) -> Layout:
+    """Fill ``layout.column`` from a name, an index, or the first numeric column."""
+    data = _data_lines(sample)
+    rows = split_rows(data[1:] if layout.header else data, layout.delimiter)
+    width = max([len(r) for r in rows] + [len(layout.header or [])] + [1])
+    if isinstance(column, str) and not column.lstrip("-").isdigit():
+        if not layout.header:
+            raise ParameterError(f"{name} has no header line, so column {column!r} cannot be found; give a 0-based index.")
+        names = layout.header
+        if column in names:
+            idx = names.index(column)
+        else:
+            lowered = [n.lower() for n in names]
+            if column.lower() not in lowered:
+                raise ParameterError(
+                    f"{name} has no column {column!r}; its columns are {', '.join(repr(n) for n in names[:12])}."
+                )
+            idx = lowered.index(column.lower())
+    elif column is not None:
+        idx = int(column)
+        if idx < 0 or idx >= width:
+            raise ParameterError(f"Column index {idx} is outside 0..{width - 1} for {name}; give a valid 0-based index.")
+    else:
+        found = _numeric_columns(rows, width, share=0.5)
+        if not found:
+            raise InputError(f"{name} has no column of numbers; check the file or give --column.")
+        idx = found[0]
+    layout.column = idx
+    layout.column_name = layout.header[idx] if layout.header and idx < len(layout.header) else str(idx)
+    return layout
+
+
+def parse_values(lines: list[str], first_line: int, layout: Layout, name: str, started: bool) -> tuple[np.ndarray, bool]:
+    """Values of the chosen column in ``lines`` (NaN for missing).
+
+    Comment lines are skipped; so are blank lines and the header before the
+    first data line (``started`` says whether it was seen in an earlier
+    block).  Later blank lines are missing values.  Returns the values and
+    the updated ``started``.
+    """
+    keep: list[tuple[int, str]] = []
+    for i, ln in enumerate(lines):
+        if ln.lstrip().startswith("#"):
+            continue
+        if not started:
+            if not ln.strip():
+                continue
+            started = True
+            if layout.header is not None:
+                continue
+        keep.append((i, ln))
+    if not keep:
+        return np.zeros(0, dtype=np.float64), started
+    rows = split_rows([ln for _, ln in keep], layout.delimiter)
+    col = layout.column
+    fields = np.array([r[col] if len(r) > col else "" for r in rows], dtype=str)
+    low = np.char.lower(np.char.strip(fields))
+    missing = np.isin(low, list(MISSING))
+    out = np.full(len(fields), np.nan)
+    good = ~missing
+    try:
+        out[good] = fields[good].astype(np.float64)
+    except ValueError:
+        for k in np.flatnonzero(good):
+            if not _is_number(fields[k]):
+                raise InputError(
+                    f"{name} line {first_line + keep[int(k)][0]} has {str(fields[k])[:30]!r} in column "
+                    f"{layout.column_name!r}, which is not a number; fix it or mark it missing (empty or NA)."
+                ) from None
+        raise  # pragma: no cover - astype failed yet every field parses
+    out[~np.isfinite(out)] = np.nan
+    return out, started
+
+
+def value_blocks(origin: Origin, layout: Layout, block_size: int) -> Iterator[np.ndarray]:
+    """The column's values block by block (NaN = missing)."""
+    started = False
+    for first_line, block in line_blocks(origin, block_size):
+        text = block.decode("utf-8", errors="replace")
+        lines = text.split("\n")
+        if lines and lines[-1] == "":
+            lines.pop()
+        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started)
+        yield vals
+
+
+# ------------------------------------------------------------ symbolizing
+def bin_symbols(k: int) -> tuple[str, ...]:
+    """Names of ``k`` bins: digits, then letters, then ``b00``... beyond 36."""
+    if k <= len(_DIGITS):
+        return tuple(_DIGITS[:k])
+    width = len(str(k - 1))
+    return tuple(f"b{i:0{width}d}" for i in range(k))
+
+
+def ordinal_alphabet(m: int) -> Alphabet:
+    """All ``m!`` permutations of ``0..m-1`` in lexicographic order, as digit strings."""
+    syms = tuple("".join(str(d) for d in p) for p in itertools.permutations(range(m)))
+    return Alphabet(f"ordinal{m}", syms)
+
+
+def ordinal_symbol(window: Sequence[float]) -> str:
+    """The ordinal-pattern symbol of one window (stable ranking), e.g. ``"021"``."""
+    order = sorted(range(len(window)), key=lambda i: window[i])
+    return "".join(str(i) for i in order)
+
+
+@dataclass
+class Plan:
+    """How values become symbols."""
+
+    method: str  # quantile | thresholds | ordinal
+    alphabet: Alphabet
+    edges: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    order: int = 0
+
+
+def check_parameters(bins: int, thresholds: list[float] | None, ordinal: int) -> None:
+    """Raise :class:`ParameterError` for impossible symbolization parameters."""
+    if ordinal:
+        if thresholds:
+            raise ParameterError("Give either thresholds or an ordinal order, not both.")
+        if not 2 <= ordinal <= MAX_ORDER:
+            raise ParameterError(f"The ordinal-pattern order must be between 2 and {MAX_ORDER}; got {ordinal}.")
+        return
+    if thresholds is not None:
+        t = np.asarray(thresholds, dtype=np.float64)
+        if t.size == 0 or not np.all(np.isfinite(t)) or np.any(np.diff(t) <= 0):
+            raise ParameterError("Thresholds must be finite and strictly increasing, e.g. 0.2,0.5,0.8.")
+        return
+    if not 2 <= int(bins) <= 4096:
+        raise ParameterError(f"The number of bins must be between 2 and 4096; got {bins}.")
+
+
+def plan(
+    origin: Origin, layout: Layout, bins: int, thresholds: list[float] | None, ordinal: int, block_size: int
+) -> tuple[Plan, dict]:
+    """Decide the symbolization (first pass over the column for quantile edges)."""
+    if ordinal:
+        return Plan("ordinal", ordinal_alphabet(ordinal), order=ordinal), {}
+    if thresholds is not None:
+        edges = np.asarray(thresholds, dtype=np.float64)
+        return Plan("thresholds", Alphabet(f"threshold{len(edges) + 1}", bin_symbols(len(edges) + 1)), edges), {}
+    parts = [v[np.isfinite(v)] for v in value_blocks(origin, layout, block_size)]
+    values = np.concatenate(parts) if parts else np.zeros(0)
+    if values.size == 0:
+        raise InputError(f"{origin.name} has no numbers in column {layout.column_name!r}; check the file or the column.")
+    edges = np.quantile(values, np.arange(1, bins) / bins)
+    info = {"values_in_first_pass": int(values.size)}
+    return Plan("quantile", Alphabet(f"quantile{bins}", bin_symbols(bins)), edges), info
+
+
+def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, report: ReadReport) -> Iterator[Chunk]:
+    """Second pass: symbols of the column, NaN ending the segment."""
+    dtype = p.alphabet.code_dtype
+    total = segments = missing = values = 0
+    if p.method == "ordinal":
+        m = p.order
+        fact = np.array([math.factorial(i) for i in range(m + 1)], dtype=np.int64)
+        carry = np.zeros(0)
+        in_seg = 0
+        for v in value_blocks(origin, layout, block_size):
+            if v.size == 0:
+                continue
+            values += v.size
+            x = np.concatenate([carry, v]) if carry.size else v
+            codes = np.empty(x.size, dtype=dtype)
+            starts = np.empty(x.size + 1, dtype=np.int64)
+            nc, ns, in_seg, nan = K.ordinal_codes(x, m, carry.size, in_seg, codes, starts, fact)
+            missing += nan
+            tail = x[-(m - 1):] if m > 1 else x[:0]
+            cut = np.flatnonzero(np.isnan(tail))
+            carry = tail[cut[-1] + 1:] if cut.size else tail.copy()
+            if nc:
+                yield Chunk(codes[:nc], starts[:ns].copy())
+            total += nc
+            segments += ns
+    else:
+        prev_valid = False
+        for v in value_blocks(origin, layout, block_size):
+            if v.size == 0:
+                continue
+            values += v.size
+            valid = np.isfinite(v)
+            missing += int((~valid).sum())
+            codes = np.searchsorted(p.edges, v[valid], side="right").astype(dtype)
+            before = np.concatenate([[prev_valid], valid[:-1]])
+            new_seg = valid & ~before
+            pos = np.cumsum(valid) - 1
+            starts = pos[new_seg].astype(np.int64)
+            prev_valid = bool(valid[-1])
+            if codes.size:
+                yield Chunk(codes, starts)
+            total += codes.size
+            segments += starts.size
+    report.symbols = int(total)
+    report.segments = int(segments)
+    report.drop("missing value", int(missing))
+    report.records = [Record(origin.name, 0, int(total))]
+    info = {
+        "column": layout.column_name,
+        "column_index": layout.column,
+        "method": p.method,
+        "values": int(values),
+        "missing": int(missing),
+    }
+    if p.method == "ordinal":
+        info["order"] = p.order
+        info["tie_rule"] = "stable: equal values ordered by appearance"
+    else:
+        info["edges"] = [float(e) for e in p.edges]
+        if np.any(np.diff(p.edges) == 0):
+            report.notes.append("some quantile edges coincide (many equal values), so some bins stay empty")
+    report.extra["numeric"] = info
+    if total == 0:
+        if p.method == "ordinal" and values:
+            raise InputError(
+                f"{origin.name} has no run of {p.order} consecutive numbers in column {layout.column_name!r}; "
+                "use a smaller ordinal order or fill the gaps."
+            )
+        raise InputError(f"{origin.name} has no numbers in column {layout.column_name!r}; check the file or the column.")
