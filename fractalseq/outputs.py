@@ -12,6 +12,7 @@ import json
 import math
 import os
 import tempfile
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, Iterable
 
@@ -110,6 +111,10 @@ def write_csv(path: Path | str, header: Iterable[str], rows: Iterable[Iterable[A
     return write_text(path, buf.getvalue(), force=force)
 
 
+#: Folders created by :func:`prepare_folder` while :func:`tracking_folders` is active.
+_created: list[Path] | None = None
+
+
 def prepare_folder(folder: Path | str, force: bool) -> Path:
     """Create an output folder; refuse a file, or a non-empty folder without ``force``."""
     folder = Path(folder)
@@ -117,11 +122,47 @@ def prepare_folder(folder: Path | str, force: bool) -> Path:
         raise OutputError(f"{folder} is a file, not a folder; choose another output folder.")
     if folder.exists() and any(p for p in folder.iterdir() if not p.name.startswith(".")) and not force:
         raise OutputError(f"{folder} already holds files; pass --force to overwrite them or choose another folder.")
+    top = None  # the outermost folder this call creates
+    for candidate in (folder, *folder.parents):
+        if candidate.exists():
+            break
+        top = candidate
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
+    if top is not None and _created is not None:
+        _created.append(top)
     return folder
+
+
+def _holds_files(folder: Path) -> bool:
+    return any(not p.is_dir() for p in folder.rglob("*"))
+
+
+@contextmanager
+def tracking_folders():
+    """Track the output folders :func:`prepare_folder` creates; yields a function that removes the empty ones.
+
+    The command line calls the yielded function when a run fails, so a run
+    refused for bad input leaves no empty output folder behind.  Folders that
+    hold any file (for example a survey's result cache) are kept.
+    """
+    global _created
+    outer, _created = _created, []
+    mine = _created
+
+    def discard_empty() -> None:
+        import shutil
+
+        for top in reversed(mine):
+            if top.is_dir() and not _holds_files(top):
+                shutil.rmtree(top, ignore_errors=True)
+
+    try:
+        yield discard_empty
+    finally:
+        _created = outer
 
 
 def write_npz(path: Path | str, arrays: dict[str, np.ndarray], force: bool = False) -> Path:

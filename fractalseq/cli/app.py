@@ -48,15 +48,22 @@ COMMAND_MODULES: tuple[str, ...] = (
 )
 
 
-@app.callback()
-def _root(
-    version: bool = typer.Option(False, "--version", help="Print the version and exit.", is_eager=True),
-) -> None:
-    if version:
+def _print_version(value: bool) -> None:
+    # an eager option callback runs while parsing, so `fractalseq --version` needs no command
+    if value:
         from fractalseq import __version__
 
         typer.echo(f"fractalseq {__version__}")
         raise typer.Exit(EXIT_OK)
+
+
+@app.callback()
+def _root(
+    version: bool = typer.Option(
+        False, "--version", help="Print the version and exit.", is_eager=True, callback=_print_version
+    ),
+) -> None:
+    """Measure, compare and predict long symbolic streams."""
 
 
 def _register_all() -> None:
@@ -80,9 +87,23 @@ def fail(message: str) -> "typer.Exit":
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Run the command line; returns the exit status instead of raising."""
+    """Run the command line; returns the exit status instead of raising.
+
+    A run that fails (status 2 or more) removes the output folders it created
+    and left empty, so a refused run leaves nothing behind.
+    """
+    from fractalseq.outputs import tracking_folders
+
+    with tracking_folders() as discard_empty:
+        status = _run(argv)
+        if status >= EXIT_USAGE:
+            discard_empty()
+    return status
+
+
+def _run(argv: list[str] | None) -> int:
     try:
-        result = app(args=argv, standalone_mode=False)
+        result = app(args=argv, prog_name="fractalseq", standalone_mode=False)
         return int(result or 0)
     except FractalseqError as exc:
         typer.echo(f"error: {exc}", err=True)
@@ -100,12 +121,12 @@ def main(argv: list[str] | None = None) -> int:
         typer.echo(f"error: {exc.strerror or exc}{where}; check the path and permissions.", err=True)
         return EXIT_USAGE
     except Exception as exc:  # click usage errors and the like
-        import click
-
-        if isinstance(exc, click.exceptions.ClickException):
-            typer.echo(f"error: {exc.format_message()} (see --help).", err=True)
-            return EXIT_USAGE
-        if isinstance(exc, click.exceptions.Abort):
+        usage, abort = _click_exceptions()
+        if isinstance(exc, usage):
+            if type(exc).__name__ == "NoArgsIsHelpError":  # the help was printed already
+                return EXIT_USAGE
+            return _usage_error(exc)
+        if isinstance(exc, abort):
             typer.echo("interrupted.", err=True)
             return 130
         if os.environ.get("FRACTALSEQ_DEBUG"):
@@ -115,6 +136,30 @@ def main(argv: list[str] | None = None) -> int:
             err=True,
         )
         return 3
+
+
+def _click_exceptions() -> tuple[tuple[type, ...], tuple[type, ...]]:
+    """Click's exception classes: recent typer vendors click as ``typer._click``, older typer uses ``click``."""
+    usage: list[type] = []
+    abort: list[type] = [typer.Abort]
+    for name in ("typer._click.exceptions", "click.exceptions"):
+        try:
+            module = importlib.import_module(name)
+        except ImportError:
+            continue
+        usage.append(module.ClickException)
+        if hasattr(module, "Abort"):
+            abort.append(module.Abort)
+    return tuple(usage), tuple(abort)
+
+
+def _usage_error(exc: Exception) -> int:
+    """One sentence for a click usage error (bad option, missing argument...), exit status 2."""
+    message = " ".join(str(exc.format_message()).split()).rstrip(".")
+    ctx = getattr(exc, "ctx", None)
+    command = getattr(ctx, "command_path", None) or "fractalseq"
+    typer.echo(f"error: {message}; see {command} --help.", err=True)
+    return EXIT_USAGE
 
 
 def entry() -> None:  # pragma: no cover - thin wrapper

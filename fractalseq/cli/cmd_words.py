@@ -12,7 +12,6 @@ from fractalseq.cli import common
 from fractalseq.cli.inputs import open_input
 from fractalseq.errors import InputError
 from fractalseq.outputs import check_writable, to_json
-from fractalseq.words import WordCounter
 
 
 def count(
@@ -36,6 +35,8 @@ def count(
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
     import numpy as np
+
+    from fractalseq.words import WordCounter  # imported here: numba makes it slow, and --help/completion need speed
 
     if save is not None:
         check_writable(save, force)

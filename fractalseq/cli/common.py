@@ -44,7 +44,11 @@ out_console = Console()
 
 
 def progress(quiet: bool):
-    """A rich progress bar on standard error, disabled when ``quiet``."""
+    """A rich progress bar on standard error, disabled when ``quiet`` or when standard error is no terminal.
+
+    (Off a terminal rich draws nothing but still ends with a stray blank line, which would
+    break the one-sentence error contract of redirected runs.)
+    """
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
     return Progress(
@@ -53,6 +57,6 @@ def progress(quiet: bool):
         MofNCompleteColumn(),
         TimeElapsedColumn(),
         console=err_console,
-        disable=quiet,
+        disable=quiet or not err_console.is_terminal,
         transient=True,
     )

@@ -1,0 +1,125 @@
+"""Per-source result cache keyed by content hash and parameters.
+
+A corpus job (survey, drift) computes figures per source.  Each finished
+source is stored under a key that is the SHA-256 of
+
+* the source's *content hash* (SHA-256 of the file's bytes as stored, or of
+  the decoded symbols for standard input), and
+* every parameter that changes the result (alphabet, depth, seed, ...) plus
+  the cache format version,
+
+so a changed file or a changed option never reuses a stale entry, and an
+interrupted job resumes where it stopped: finished sources are read back,
+the rest are computed.
+
+An entry is two files written atomically (:mod:`fractalseq.outputs`): an
+``.npz`` of plain arrays (loaded with ``allow_pickle=False``) and a ``.json``
+holding the results and the SHA-256 of the arrays file.  The ``.json`` is
+written last, so its presence marks a complete entry; an entry whose arrays
+fail their checksum is treated as absent and recomputed.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import json
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from fractalseq.errors import OutputError
+from fractalseq.outputs import to_json, write_bytes, write_text
+
+#: Bump when the meaning of cached results changes.
+CACHE_VERSION = 1
+_BLOCK = 1 << 20
+
+
+def file_hash(path: str | Path) -> str:
+    """SHA-256 (hex) of a file's bytes, read in 1 MiB blocks."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while True:
+            block = fh.read(_BLOCK)
+            if not block:
+                break
+            h.update(block)
+    return h.hexdigest()
+
+
+def array_hash(*arrays: np.ndarray, extra: str = "") -> str:
+    """SHA-256 (hex) of arrays' bytes, dtypes and shapes plus an extra text."""
+    h = hashlib.sha256()
+    for a in arrays:
+        a = np.ascontiguousarray(a)
+        h.update(f"{a.dtype.str}{a.shape}".encode())
+        h.update(a.tobytes())
+    h.update(extra.encode())
+    return h.hexdigest()
+
+
+def cache_key(content: str, params: dict[str, Any]) -> str:
+    """Key of one source's results: SHA-256 of its content hash and the parameters."""
+    text = json.dumps({"content": content, "params": params, "version": CACHE_VERSION}, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+class ResultCache:
+    """A folder of cached per-source results.
+
+    Parameters
+    ----------
+    folder:
+        Where entries live (created on first write).  ``None`` disables the
+        cache: :meth:`get` always misses and :meth:`put` does nothing.
+    """
+
+    def __init__(self, folder: str | Path | None) -> None:
+        self.folder = Path(folder) if folder is not None else None
+        if self.folder is not None and self.folder.exists() and not self.folder.is_dir():
+            raise OutputError(f"The cache path {self.folder} is a file, not a folder; choose another --cache.")
+
+    @property
+    def enabled(self) -> bool:
+        return self.folder is not None
+
+    def _paths(self, key: str) -> tuple[Path, Path]:
+        assert self.folder is not None
+        sub = self.folder / key[:2]
+        return sub / f"{key}.json", sub / f"{key}.npz"
+
+    def get(self, key: str) -> tuple[dict, dict[str, np.ndarray]] | None:
+        """The cached ``(results, arrays)`` of ``key``, or ``None`` if absent or damaged."""
+        if self.folder is None:
+            return None
+        jpath, npath = self._paths(key)
+        try:
+            entry = json.loads(jpath.read_text(encoding="utf-8"))
+            blob = npath.read_bytes()
+        except (OSError, ValueError):
+            return None
+        if entry.get("key") != key or entry.get("arrays_sha256") != hashlib.sha256(blob).hexdigest():
+            return None
+        try:
+            with np.load(io.BytesIO(blob), allow_pickle=False) as z:
+                arrays = {k: z[k] for k in z.files}
+        except (OSError, ValueError):
+            return None
+        return entry["results"], arrays
+
+    def put(self, key: str, results: dict, arrays: dict[str, np.ndarray] | None = None) -> None:
+        """Store one entry (arrays first, then the JSON that marks it complete)."""
+        if self.folder is None:
+            return
+        jpath, npath = self._paths(key)
+        buf = io.BytesIO()
+        np.savez(buf, **{k: np.asarray(v) for k, v in (arrays or {}).items()})
+        blob = buf.getvalue()
+        write_bytes(npath, blob, force=True)
+        entry = {"key": key, "arrays_sha256": hashlib.sha256(blob).hexdigest(), "results": results}
+        write_text(jpath, to_json(entry), force=True)
+
+    def __contains__(self, key: str) -> bool:
+        return self.get(key) is not None

@@ -1,0 +1,423 @@
+"""``fractalseq survey``, ``drift`` and ``scan``: comparing sources and stretches of a stream.
+
+The commands only parse options, call the library (:mod:`fractalseq.survey`,
+:mod:`fractalseq.drift`, :mod:`fractalseq.scan`), show progress and format
+results.  Exit status: 0 ran; 1 ``drift`` found a change at the chosen level;
+2 usage or input error.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+from rich.table import Table
+
+from fractalseq.cli import common
+from fractalseq.errors import ParameterError
+from fractalseq.outputs import to_json
+
+EXIT_FOUND = 1
+
+ENGINE = typer.Option(
+    None, "--engine", help="Where per-source work runs: serial, processes or dask (default: processes if --workers > 1, dask if --scheduler, else serial)."
+)
+WORKERS = typer.Option(None, "--workers", "-w", min=1, help="Local worker processes (processes engine, or a local Dask cluster); default: all cores for processes, 2 for dask.")
+SCHEDULER = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask).")
+SEED_HELP = "Seed of every random step (bootstrap intervals, permutations); same input and seed, same bytes."
+
+
+def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str]):
+    from fractalseq.engine import make_engine
+
+    return make_engine(kind, workers, scheduler)
+
+
+
+# ==================================================================== survey
+def survey(
+    paths: List[str] = typer.Argument(None, help="Input files, folders (every file below), quoted glob patterns, or - for standard input."),
+    from_list: Optional[str] = typer.Option(None, "--from-list", help="Text file listing one input per line (# comments); - reads the list from standard input."),
+    alphabet: str = common.ALPHABET,
+    fmt: str = common.FORMAT,
+    policy: str = common.POLICY,
+    depth: Optional[int] = typer.Option(None, "--depth", "-n", min=2, help="Deepest word length (symbols) of each profile; default: automatic, as in fractalseq profile."),
+    ratio: float = common.RATIO,
+    distance_depth: Optional[int] = typer.Option(None, "--distance-depth", min=1, help="Word length n of the Jensen-Shannon distances (symbols); default: largest n with A^n x 20 <= shortest source, at most 8."),
+    linkage: str = typer.Option("average", "--linkage", help="Clustering linkage: average, complete, single or weighted."),
+    out: Optional[Path] = common.OUT,
+    json_out: bool = common.JSON,
+    quiet: bool = common.QUIET,
+    seed: int = typer.Option(0, "--seed", help=SEED_HELP),
+    force: bool = common.FORCE,
+    cache: Optional[Path] = typer.Option(None, "--cache", help="Folder of the per-source result cache (default: OUT/.cache with --out, else none)."),
+    no_cache: bool = typer.Option(False, "--no-cache", help="Do not read or write the per-source cache."),
+    engine: Optional[str] = ENGINE,
+    workers: Optional[int] = WORKERS,
+    scheduler: Optional[str] = SCHEDULER,
+) -> None:
+    """Survey many sources: one row of complexity figures per source, distances and a clustering.
+
+    Each source (a file; FASTA records of one file stay together) gets its length,
+    alphabet size, D_0, D_1, D_2, entropy-rate estimates, topological entropy and the
+    online predictor's bits per symbol, each with its interval. Sources are compared by
+    the Jensen-Shannon divergence of their depth-n word distributions and by the RMS
+    distance of their D_q spectra, and clustered (scipy, average linkage by default).
+
+    With --out the folder receives survey.csv, survey.json, distances.csv,
+    survey.html (sortable tables, overlaid spectra, heat map, dendrogram) and the
+    PNG figures; finished sources are cached in OUT/.cache, so an interrupted survey
+    (Ctrl-C) resumes where it stopped when run again with the same options and gives
+    the same result. --json prints the JSON contract (sources, distances) on standard
+    output. Genomic output is for research, not for clinical decisions.
+
+    Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
+    """
+    from fractalseq.cache import ResultCache
+    from fractalseq.outputs import prepare_folder
+    from fractalseq.survey import SurveyOptions, expand_inputs, run_survey, write_outputs
+
+    stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
+    specs = expand_inputs(list(paths or []), from_list, stdin_lines)
+    if out is not None:
+        prepare_folder(out, force)  # the hidden .cache folder of an interrupted run does not count
+    if no_cache:
+        store = ResultCache(None)
+    elif cache is not None:
+        store = ResultCache(cache)
+    elif out is not None:
+        store = ResultCache(Path(out) / ".cache")
+    else:
+        store = ResultCache(None)
+    options = SurveyOptions(fmt, alphabet, policy, depth, ratio, distance_depth, seed, linkage)
+    from fractalseq.distances import LINKAGES
+
+    if linkage not in LINKAGES:
+        raise ParameterError(f"Linkage {linkage!r} is not one of {', '.join(LINKAGES)}.")
+    with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
+        overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=len(specs))
+        rows = {}
+        show_rows = len(specs) <= 20
+        cached = [0]
+
+        def progress(event: str, i: int, spec) -> None:
+            if event == "cached":
+                cached[0] += 1
+                bar.advance(overall)
+                if show_rows:
+                    rows[i] = bar.add_task(f"  {spec.name} (cached)", total=1, completed=1)
+            elif event == "queued":
+                if show_rows:
+                    rows[i] = bar.add_task(f"  {spec.name}", total=1)
+            elif event == "done":
+                bar.advance(overall)
+                if i in rows:
+                    bar.update(rows[i], completed=1, description=f"  {spec.name} (done)")
+
+        try:
+            result = run_survey(specs, options, eng, store, progress)
+        except KeyboardInterrupt:
+            bar.stop()
+            kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
+            typer.echo(f"interrupted:{kept or ' nothing was written'}.", err=True)
+            raise typer.Exit(130) from None
+    if cached[0] and not quiet:
+        common.err_console.print(f"resumed: {cached[0]} of {len(specs)} sources read from the cache")
+    written = write_outputs(result, Path(out), force=True) if out is not None else []
+    if json_out:
+        typer.echo(result.to_json(), nl=False)
+        return
+    header, table_rows = result.table()
+    show = ["name", "length", "D0", "D1", "D2", "h_top", "predictor_bits"]
+    idx = [header.index(h) for h in show if h in header]
+    rate_cols = [i for i, h in enumerate(header) if h == "h_grassberger"] or [
+        i for i, h in enumerate(header) if h.startswith("h_") and not h.endswith(("_low", "_high")) and h != "h_top"
+    ][:1]
+    idx[4:4] = rate_cols
+    table = Table(title=f"Survey of {len(specs)} sources (D_q in units of log 1/k, k = {ratio:g}; entropies in bits)")
+    for i in idx:
+        table.add_column(header[i], justify="left" if header[i] == "name" else "right")
+    for r in table_rows:
+        table.add_row(*[_cell(r[i]) for i in idx])
+    common.out_console.print(table)
+    if len(result.names) >= 2:
+        a, b = result.clustering.top_split()
+        common.out_console.print(
+            "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
+        )
+    for note in result.notes:
+        common.out_console.print(f"note: {note}")
+    if written:
+        common.out_console.print(f"Wrote {len(written)} files to {out}.")
+    common.out_console.print("Genomic output is for research, not for clinical decisions.")
+
+
+def _cell(v) -> str:
+    if v is None:
+        return "–"
+    if isinstance(v, float):
+        return f"{v:.4g}"
+    return str(v)
+
+
+# ===================================================================== drift
+def _batch(spec: str, fmt: str, alphabet: str, policy: str, chunk: int | None = None):
+    """A batch argument: a file, folder, quoted glob, @list file, or - (standard input)."""
+    from fractalseq.cli.inputs import open_input
+    from fractalseq.survey import expand_inputs
+
+    if spec.startswith("@"):
+        specs = expand_inputs([], spec[1:], sys.stdin.read().splitlines() if spec == "@-" else None)
+    else:
+        specs = expand_inputs([spec])
+    return [open_input(s.path, fmt, alphabet, policy, name=s.name) for s in specs]
+
+
+def drift(
+    baseline: str = typer.Argument(..., help="Baseline batch: a file, a folder (all files below), a quoted glob, @LIST (one path per line), or -."),
+    new: str = typer.Argument(..., help="New batch, given the same way as the baseline."),
+    alphabet: str = common.ALPHABET,
+    fmt: str = common.FORMAT,
+    policy: str = common.POLICY,
+    depth: Optional[int] = typer.Option(None, "--depth", "-n", min=1, help="Word length n tested (symbols); default: 3, less when A^n x 10 exceeds the shorter batch."),
+    block: Optional[int] = typer.Option(None, "--block", min=1, help="Block length for the permutations (symbols); default: max(10 n, shorter batch / 64)."),
+    permutations: int = typer.Option(999, "--permutations", "-R", min=19, help="Block permutations; the smallest possible p-value is 1/(R+1)."),
+    alpha: float = typer.Option(0.05, "--alpha", help="Level of the verdict (exit status 1 when the smallest adjusted p-value is below it)."),
+    adjust: str = typer.Option("holm", "--adjust", help="Adjustment across the figures tested: holm or bh (Benjamini-Hochberg)."),
+    figures: str = typer.Option("words,transitions,entropy_rate,D2", "--figures", help="Comma-separated figures to test: words, transitions, entropy_rate, D2."),
+    top: int = typer.Option(10, "--top", min=0, help="How many contributing words and contexts to list."),
+    ratio: float = common.RATIO,
+    out: Optional[Path] = common.OUT,
+    json_out: bool = common.JSON,
+    quiet: bool = common.QUIET,
+    seed: int = typer.Option(0, "--seed", help=SEED_HELP),
+    force: bool = common.FORCE,
+    engine: Optional[str] = ENGINE,
+    workers: Optional[int] = WORKERS,
+    scheduler: Optional[str] = SCHEDULER,
+) -> None:
+    """Does the NEW batch come from the same source as the BASELINE?
+
+    Both batches are cut into blocks and their depth-n words counted per block. Tested
+    figures: the n-word distribution (G statistic), the next-symbol distribution given
+    the previous n-1 symbols (conditional G), the entropy rate and D_2. p-values come
+    from block permutations (pooled blocks, labels reassigned), which respect
+    dependence within streams, and are adjusted across figures (Holm by default).
+    The first line is the verdict; the evidence follows: statistics, effect sizes,
+    and the words and contexts that contribute most. Log inputs (--format log) are
+    compared over the union of both batches' templates.
+
+    Exit status: 0 no change detected, 1 changed (smallest adjusted p < --alpha),
+    2 usage or input error. Drift reports on logs are no security guarantee.
+
+    Example: fractalseq drift logs/monday.log logs/tuesday.log --format log --alpha 0.01
+    """
+    from fractalseq.drift import DriftOptions, drift_test, FIGURES
+
+    if baseline == "-" and new == "-":
+        raise ParameterError("Standard input can be read only once; give '-' for one batch at most.")
+    figs = tuple(f.strip() for f in figures.split(",") if f.strip())
+    options = DriftOptions(depth, block, permutations, alpha, adjust, seed, ratio, figs, top)
+    options.check()
+    if out is not None:
+        from fractalseq.outputs import prepare_folder
+
+        prepare_folder(out, force)
+    base_streams = _batch(baseline, fmt, alphabet, policy)
+    new_streams = _batch(new, fmt, alphabet, policy)
+    with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
+        task = bar.add_task(f"counting blocks ({eng.name})", total=None)
+        result = drift_test(base_streams, new_streams, options, eng, on_done=lambda i, r: bar.advance(task))
+    if out is not None:
+        from fractalseq.outputs import write_text
+
+        write_text(Path(out) / "drift.json", result.to_json(), force=True)
+        write_text(Path(out) / "drift.txt", _drift_text(result), force=True)
+        write_text(Path(out) / "drift.html", _drift_html(result).render(), force=True)
+    if json_out:
+        typer.echo(result.to_json(), nl=False)
+    else:
+        typer.echo(_drift_text(result), nl=False)
+    raise typer.Exit(EXIT_FOUND if result.changed else 0)
+
+
+def _drift_text(result) -> str:
+    lines = [result.verdict, ""]
+    lines.append(
+        f"Baseline: {result.baseline['symbols']} symbols in {result.baseline['blocks']} blocks; "
+        f"new: {result.new['symbols']} symbols in {result.new['blocks']} blocks; "
+        f"depth {result.depth}, blocks of {result.block}, {result.options.permutations} permutations, "
+        f"{'Holm' if result.options.adjust == 'holm' else 'Benjamini-Hochberg'} adjustment."
+    )
+    lines.append("")
+    lines.append(f"{'figure':<14}{'statistic':>12}{'baseline':>11}{'new':>11}{'effect':>12}{'p':>9}{'adjusted p':>12}")
+    for t in result.tests:
+        lines.append(
+            f"{t.figure:<14}{t.statistic:>12.4g}{_num(t.baseline):>11}{_num(t.new):>11}{t.effect:>12.4g}{t.p_value:>9.3g}{t.p_adjusted:>12.3g}"
+        )
+    lines.append("")
+    for t in result.tests:
+        lines.append(f"  {t.figure}: {t.statistic_name}; effect = {t.effect_name}")
+    if result.top_words:
+        lines += ["", f"Words contributing most to the difference (depth {result.depth}):"]
+        for w in result.top_words:
+            lines.append(
+                f"  {w['word']!s:<24} baseline {w['baseline_count']:>9} ({w['baseline_frequency']:.4f})  "
+                f"new {w['new_count']:>9} ({w['new_frequency']:.4f})  {w['direction']}, {100 * w['share_of_statistic']:.1f}% of G"
+            )
+    if result.top_contexts:
+        lines += ["", "Contexts whose next-symbol distribution changed most:"]
+        for c in result.top_contexts:
+            ch = c["largest_change"][0] if c["largest_change"] else None
+            detail = f"  P({ch['next']}) {ch['baseline_probability']:.3f} -> {ch['new_probability']:.3f}" if ch else ""
+            lines.append(f"  {c['context']!s:<24} {100 * c['share_of_statistic']:.1f}% of conditional G{detail}")
+    for n in result.notes:
+        lines.append(f"note: {n}")
+    lines += ["", "Drift reports on logs are no security guarantee."]
+    return "\n".join(lines) + "\n"
+
+
+def _num(v) -> str:
+    return "–" if v is None else f"{v:.4g}"
+
+
+def _drift_html(result):
+    from fractalseq.drift import CAUTION
+    from fractalseq.report.html import HtmlReport
+
+    page = HtmlReport("Drift test", result.verdict, caution=CAUTION)
+    page.section("Verdict")
+    page.paragraph(result.verdict)
+    page.key_values(
+        [
+            ("baseline symbols", result.baseline["symbols"]),
+            ("new symbols", result.new["symbols"]),
+            ("depth", result.depth),
+            ("block length", result.block),
+            ("permutations", result.options.permutations),
+            ("adjustment", result.options.adjust),
+        ]
+    )
+    page.section("Tests")
+    page.table(
+        ["figure", "statistic", "baseline", "new", "effect", "p", "adjusted p", "what"],
+        [[t.figure, t.statistic, t.baseline, t.new, t.effect, t.p_value, t.p_adjusted, t.statistic_name] for t in result.tests],
+    )
+    if result.top_words:
+        page.section("Contributing words")
+        page.table(
+            ["word", "baseline count", "new count", "baseline freq", "new freq", "direction", "share of G"],
+            [[w["word"], w["baseline_count"], w["new_count"], w["baseline_frequency"], w["new_frequency"], w["direction"], w["share_of_statistic"]] for w in result.top_words],
+        )
+    if result.notes:
+        page.section("Notes")
+        page.note("", result.notes)
+    return page
+
+
+# ====================================================================== scan
+def scan(
+    path: str = typer.Argument(..., help="Input file (FASTA/FASTQ/text/log/numeric, optionally compressed), or - for standard input."),
+    window: int = typer.Option(10000, "--window", "-W", min=2, help="Window length (symbols)."),
+    step: Optional[int] = typer.Option(None, "--step", "-S", min=1, help="Step between window starts (symbols); default: window / 4."),
+    depth: Optional[int] = typer.Option(None, "--depth", "-n", min=1, help="Word length n of the window figures (symbols); default: largest n with A^n x 20 <= window."),
+    penalty: str = typer.Option("bic", "--penalty", help="Change-point penalty: bic, i.e. (figures + 1) x ln(independent windows), or a number."),
+    alphabet: str = common.ALPHABET,
+    fmt: str = common.FORMAT,
+    policy: str = common.POLICY,
+    ratio: float = common.RATIO,
+    out: Optional[Path] = common.OUT,
+    json_out: bool = common.JSON,
+    quiet: bool = common.QUIET,
+    seed: int = typer.Option(0, "--seed", help=SEED_HELP),
+    force: bool = common.FORCE,
+) -> None:
+    """Complexity figures in sliding windows along a stream, with change points.
+
+    For each window: the entropy rate (next symbol given the previous n-1, bits per
+    symbol), D_0 at depth n (distinct n-words), and the online predictor's surprise
+    (bits per symbol). Change points are found by PELT on the standardised figures with
+    a BIC-like penalty and listed as intervals with their mean figures; intervals far
+    below the typical entropy rate are flagged low-complexity (repeats, low-complexity
+    regions in genomes; in logs, stretches dominated by few templates). With --out:
+    scan.json, scan.csv (one row per window), scan.png and scan.html.
+    Genomic output is for research, not for clinical decisions.
+
+    Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
+    """
+    from fractalseq.cli.inputs import read_input
+    from fractalseq.scan import html_report, scan_png, scan_stream
+
+    pen: float | str = "bic" if penalty == "bic" else _number(penalty)
+    if out is not None:
+        from fractalseq.outputs import prepare_folder
+
+        prepare_folder(out, force)
+    with common.progress(quiet) as bar:
+        task = bar.add_task("reading", total=2)
+        arr = read_input(path, fmt, alphabet, policy)
+        bar.update(task, advance=1, description="scanning")
+        result = scan_stream(arr, window, step, depth, ratio, pen, seed)
+        bar.advance(task)
+    if out is not None:
+        from fractalseq.outputs import write_bytes, write_csv, write_text
+
+        folder = Path(out)
+        names = list(result.figures)
+        write_csv(
+            folder / "scan.csv",
+            ["start", "end"] + names,
+            [[int(s), int(s) + result.window] + [result.figures[k][i] for k in names] for i, s in enumerate(result.starts)],
+            force=True,
+        )
+        write_bytes(folder / "scan.png", scan_png(result), force=True)
+        write_text(folder / "scan.html", html_report(result).render(), force=True)
+        write_text(folder / "scan.json", result.to_json(), force=True)
+    if json_out:
+        typer.echo(result.to_json(), nl=False)
+        return
+    lines = [
+        f"{result.name}: {result.length} symbols, {len(result.starts)} windows of {result.window} (step {result.step}), depth {result.depth}.",
+        f"{len(result.segmentation.breaks)} change points; {len(result.regions)} low-complexity region(s).",
+        f"Method: {result.segmentation.method}; penalty {result.segmentation.penalty:.3g} ({result.segmentation.penalty_rule}).",
+        "",
+        f"{'start':>12}{'end':>12}" + "".join(f"{k:>14}" for k in result.figures) + "  low",
+    ]
+    for iv in result.intervals:
+        lines.append(
+            f"{iv['start']:>12}{iv['end']:>12}" + "".join(f"{_num(iv.get(k)):>14}" for k in result.figures) + ("  yes" if iv["low_complexity"] else "")
+        )
+    if result.regions:
+        lines += ["", "Low-complexity regions:"]
+        for iv in result.regions:
+            lines.append(f"  {iv['start']}-{iv['end']}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol")
+    for n in result.notes:
+        lines.append(f"note: {n}")
+    lines.append("Genomic output is for research, not for clinical decisions.")
+    typer.echo("\n".join(lines))
+
+
+def _number(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError:
+        raise ParameterError(f"The penalty must be 'bic' or a number, not {text!r}.") from None
+    if v < 0:
+        raise ParameterError(f"The penalty must be non-negative, not {v}.")
+    return v
+
+
+def register(app: typer.Typer) -> None:
+    """Add ``survey``, ``drift`` and ``scan`` to the application."""
+    for name, fn in (("survey", survey), ("drift", drift), ("scan", scan)):
+        app.command(name, no_args_is_help=True, help=_help(fn.__doc__ or ""))(fn)
+
+
+def _help(doc: str) -> str:
+    """Docstring paragraphs each joined into one line (the help formatter wraps them)."""
+    import inspect
+
+    paras = [" ".join(p.split()) for p in inspect.cleandoc(doc).split("\n\n")]
+    return "\n\n".join(p for p in paras if p)

@@ -1,0 +1,357 @@
+"""``fractalseq learn``, ``score`` and ``next``: the count-based next-symbol predictor.
+
+The ``--json`` output of ``score`` is a public contract (documented in the
+README): a top-level ``bits_per_symbol`` (all sources together) and a
+``sources`` list whose items carry at least ``name``, ``length`` and
+``bits_per_symbol``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+from rich.table import Table
+
+from fractalseq.cli import common
+from fractalseq.cli.inputs import open_input
+from fractalseq.errors import InputError, ParameterError
+from fractalseq.outputs import check_writable, to_json
+
+RESEARCH_NOTE = "Genomic output is for research, not for clinical decisions."
+
+DEPTHS = typer.Option(
+    None, "--depths", help="Cell depths in symbols, comma-separated (e.g. 3,6,9,12,16,20). [default: a ladder up to --max-depth]"
+)
+MAX_DEPTH = typer.Option(
+    None, "--max-depth", min=1, help="Deepest cell in symbols when --depths is not given. [default: 20 for DNA, about 40 bits of context otherwise]"
+)
+SMOOTHING = typer.Option(0.5, "--smoothing", help="Additive constant alpha of each cell's estimate (c+alpha)/(N+A alpha); 0.5 is Krichevsky-Trofimov.")
+MAX_CELLS = typer.Option(
+    None, "--max-cells", min=1,
+    help="Memory cap in cells: online, rows of the count tables [default 16,777,216, fewer for large alphabets]; learn, cells kept [default 8,388,608].",
+)
+STRANDS = typer.Option(
+    "auto", "--strands", help="DNA/RNA: count each word on both strands (both), the given strand only (forward), or auto (both for DNA/RNA)."
+)
+LEARNING_RATE = typer.Option(0.002, "--learning-rate", help="Online mode: step size of the mixing-weight updates (0 keeps the initial weights).")
+
+
+def _depths(text: Optional[str]) -> Optional[list[int]]:
+    if text is None or text.strip() == "":
+        return None
+    try:
+        return [int(x) for x in text.replace(" ", "").split(",") if x]
+    except ValueError:
+        raise ParameterError(f"--depths must be whole numbers separated by commas (e.g. 3,6,12), not {text!r}.") from None
+
+
+def _strands(text: str) -> bool | str:
+    choices = {"auto": "auto", "both": True, "forward": False}
+    if text not in choices:
+        raise ParameterError(f"--strands must be auto, both or forward, not {text!r}.")
+    return choices[text]
+
+
+def _discount(text: str) -> float | str:
+    if text == "auto":
+        return "auto"
+    try:
+        return float(text)
+    except ValueError:
+        raise ParameterError(f"--discount must be auto or a number in [0, 1), not {text!r}.") from None
+
+
+def _model_params(depths, max_depth, smoothing, max_cells, strands) -> dict:
+    return {
+        "depths": _depths(depths),
+        "max_depth": max_depth,
+        "smoothing": smoothing,
+        "max_cells": max_cells,
+        "reverse_complement": _strands(strands),
+    }
+
+
+# ------------------------------------------------------------------- learn
+def learn(
+    paths: List[str] = typer.Argument(..., help="Training files (FASTA/FASTQ/text/log/numeric, optionally compressed); - reads standard input."),
+    out: Path = typer.Option(..., "--out", "-o", help="Model file to write (.npz; plain arrays and a JSON header, no pickle)."),
+    alphabet: str = common.ALPHABET,
+    fmt: str = common.FORMAT,
+    policy: str = common.POLICY,
+    depths: Optional[str] = DEPTHS,
+    max_depth: Optional[int] = MAX_DEPTH,
+    smoothing: float = SMOOTHING,
+    discount: str = typer.Option("auto", "--discount", help="Absolute discount d of every count in the coarse-to-fine blend: a number in [0, 1), or auto (chosen per depth by leave-one-out likelihood)."),
+    max_cells: Optional[int] = MAX_CELLS,
+    strands: str = STRANDS,
+    json_out: bool = common.JSON,
+    quiet: bool = common.QUIET,
+    force: bool = common.FORCE,
+) -> None:
+    """Learn a predictor from training files and save it as a model file.
+
+    Counts, for every cell depth, how often each symbol followed each context
+    (the cell of all histories sharing their last n symbols). All inputs are
+    merged; each file is its own segment, so no context spans two files. When
+    the cells exceed --max-cells, the rarest cells of the deepest depths are
+    pruned first, and the summary says how many. The order of the fixed-order
+    Markov baseline shown by 'score' is chosen here, on the training data.
+
+    Example: fractalseq learn strainA.fna.gz strainB.fna.gz -o kleb.npz
+    """
+    import numpy as np
+
+    from fractalseq.predict import CellPredictor, baseline_orders, default_depths
+    from fractalseq.words import WordCounter
+
+    check_writable(out, force)
+    model = CellPredictor(**_model_params(depths, max_depth, smoothing, max_cells, strands), discount=_discount(discount))
+    counter = None
+    reports = []
+    with common.progress(quiet) as bar:
+        task = bar.add_task("counting", total=len(paths))
+        for p in paths:
+            stream = open_input(p, fmt, alphabet, policy)
+            if counter is None:
+                a = stream.alphabet
+                ladder, _ = model._validate(a)
+                counter = WordCounter(a, max(max(ladder), baseline_orders(a)) + 1, parallel=True)
+            elif not counter.alphabet.same_symbols(stream.alphabet):
+                raise InputError(
+                    f"{p} has a different alphabet from the first input; pass one --alphabet (e.g. dna) for all inputs."
+                )
+            for chunk in stream.chunks():
+                counter.add(chunk.codes, chunk.starts)
+            counter.add(np.zeros(0, counter.alphabet.code_dtype), np.zeros(0, np.int64), final=True)
+            reports.append((p, stream.report))
+            bar.advance(task)
+    wc = counter.finish()
+    if wc.length == 0:
+        raise InputError("The training inputs hold no usable symbols; check the files and the --alphabet/--format options.")
+    model.fit_counts(wc)
+    model.save(out, force=force)
+    rows = [
+        {"depth": n, "cells": int(model.cells_[n].size), "observations": int(model.counts_[n].sum(dtype=np.int64))}
+        for n in model.depths_
+    ]
+    result = {
+        "model": str(out),
+        "alphabet": model.alphabet_.to_dict(),
+        "inputs": [{"name": p, **r.to_dict()} for p, r in reports],
+        "symbols": model.n_symbols_,
+        "segments": model.n_segments_,
+        "cell_depths": list(model.ladder_),
+        "stored_depths": rows,
+        "reverse_complement": model.reverse_complement_,
+        "cells": model.n_cells_,
+        "max_cells": model.max_cells_,
+        "pruned_cells": model.pruned_cells_,
+        "baseline_order": model.baseline_order_,
+        "baseline_training_bits_per_symbol": model.baseline_bits_[model.baseline_order_],
+        "params": model.get_params(),
+        "note": RESEARCH_NOTE,
+    }
+    if json_out:
+        typer.echo(to_json(result), nl=False)
+        return
+    a = model.alphabet_
+    t = Table(title=f"Model {out}: {model.n_symbols_:,} symbols in {model.n_segments_:,} segments ({a.name}, A = {a.size})")
+    t.add_column("depth n", justify="right")
+    t.add_column("cells", justify="right")
+    t.add_column("observations", justify="right")
+    t.add_column("use")
+    for r in rows:
+        use = []
+        if r["depth"] in model.ladder_ or r["depth"] == 0:
+            use.append("blend")
+        if r["depth"] <= model.baseline_max_order_:
+            use.append("Markov baseline" + (" (chosen)" if r["depth"] == model.baseline_order_ else ""))
+        t.add_row(str(r["depth"]), f"{r['cells']:,}", f"{r['observations']:,}", ", ".join(use))
+    common.out_console.print(t)
+    strand = "both strands" if model.reverse_complement_ else "one strand"
+    common.out_console.print(
+        f"{model.n_cells_:,} cells stored (cap {model.max_cells_:,}; {model.pruned_cells_:,} rare deep cells pruned); "
+        f"counted on {strand}. Baseline: order-{model.baseline_order_} KT Markov model, "
+        f"{model.baseline_bits_[model.baseline_order_]:.4f} bits/symbol on the training data."
+    )
+    if not quiet:
+        common.err_console.print(f"wrote {out}. {RESEARCH_NOTE}")
+
+
+# ------------------------------------------------------------------- score
+def _compressor_summary(comp: dict) -> tuple[str, float]:
+    best = min(comp, key=lambda k: comp[k])
+    return best, comp[best]
+
+
+def score(
+    paths: List[str] = typer.Argument(..., help="Files to score (FASTA/FASTQ/text/log/numeric, optionally compressed); - reads standard input."),
+    model: Optional[Path] = typer.Option(None, "--model", "-m", help="Model file written by 'fractalseq learn' (fitted mode)."),
+    online: bool = typer.Option(False, "--online", help="Predict-then-update over each file with a fresh model instead (no model file)."),
+    alphabet: Optional[str] = typer.Option(
+        None, "--alphabet", "-a", help="Symbol set: dna, rna, protein, binary, bytes, learn, or symbols:XYZ. [default: the model's; dna with --online]"
+    ),
+    fmt: str = common.FORMAT,
+    policy: str = common.POLICY,
+    window: int = typer.Option(10_000, "--window", "-w", min=1, help="Window length in symbols for the per-window code lengths."),
+    top: int = typer.Option(5, "--top", "-t", min=0, help="Number of most surprising windows to list per file."),
+    depths: Optional[str] = DEPTHS,
+    max_depth: Optional[int] = MAX_DEPTH,
+    smoothing: float = SMOOTHING,
+    max_cells: Optional[int] = MAX_CELLS,
+    learning_rate: float = LEARNING_RATE,
+    strands: str = STRANDS,
+    json_out: bool = common.JSON,
+    quiet: bool = common.QUIET,
+) -> None:
+    """Score files: bits per symbol overall, per record and per window, with the most surprising stretches.
+
+    Fitted mode (--model) scores each file with a learned model that does not
+    change while scoring. Online mode (--online) predicts each symbol from the
+    file's own past, then learns it; the total is an upper bound on the file's
+    information content. Beside every score: top-1 and top-3 accuracy, the
+    expected calibration error, the best fixed-order adaptive Markov model
+    (Krichevsky-Trofimov estimates; order chosen on the training data, or in
+    hindsight on the file itself with --online) and lzma/bz2/zlib on the same
+    symbols (as text and packed). The model options (--depths ... --strands)
+    apply to --online only. Exit status 2 for unusable input, e.g. data whose
+    alphabet differs from the model's.
+
+    Example: fractalseq score --online genome.fna.xz --window 50000 --json
+    """
+    from fractalseq.predict import CellPredictor, evaluate_online
+
+    if (model is None) == (not online):
+        raise ParameterError("Give either --model MODEL (fitted mode) or --online (no model file), not both or neither.")
+    fitted = CellPredictor.load(model) if model is not None else None
+    if fitted is not None:
+        read_alpha = alphabet if alphabet is not None else fitted.alphabet_
+    else:
+        read_alpha = alphabet if alphabet is not None else "dna"
+    params = _model_params(depths, max_depth, smoothing, max_cells, strands)
+    params["learning_rate"] = learning_rate
+    results = []
+    with common.progress(quiet) as bar:
+        task = bar.add_task("scoring", total=len(paths))
+        for p in paths:
+            stream = open_input(p, fmt, read_alpha, policy)
+            if fitted is not None:
+                res = fitted.evaluate(stream, window=window)
+            else:
+                res = evaluate_online(stream, window=window, **params)
+            if res.length == 0:
+                raise InputError(f"{p} holds no usable symbols; check the file and the --alphabet/--format options.")
+            results.append((p, stream.alphabet, res))
+            bar.advance(task)
+    total_bits = sum(r.total_bits for _, _, r in results)
+    total_len = sum(r.length for _, _, r in results)
+    doc = {
+        "mode": "fitted" if fitted is not None else "online",
+        "model": str(model) if model is not None else None,
+        "bits_per_symbol": total_bits / total_len,
+        "total_bits": total_bits,
+        "length": total_len,
+        "sources": [],
+        "note": RESEARCH_NOTE,
+    }
+    for p, a, r in results:
+        d = r.to_dict(windows=top)
+        d["name"] = p
+        d["stream_name"] = r.name
+        d["alphabet"] = a.to_dict()
+        doc["sources"].append(d)
+    if json_out:
+        typer.echo(to_json(doc), nl=False)
+        return
+    mode = f"model {model}" if fitted is not None else "online (predict, then update)"
+    t = Table(title=f"Code length, {mode}")
+    for col in ("source", "symbols", "bits/symbol", "top-1", "top-3", "calib. error", "Markov KT (order)", "best compressor"):
+        t.add_column(col, justify="left" if col in ("source", "best compressor") else "right")
+    for p, a, r in results:
+        mk = r.baselines.get("markov", {})
+        comp = r.baselines.get("compressors", {})
+        cname, cbits = _compressor_summary(comp) if comp else ("", float("nan"))
+        t.add_row(
+            p, f"{r.length:,}", f"{r.bits_per_symbol:.4f}", f"{r.top1:.3f}", f"{r.top3:.3f}", f"{r.calibration_error:.4f}",
+            f"{mk.get('bits_per_symbol', float('nan')):.4f} ({mk.get('order', '-')})", f"{cbits:.4f} {cname}",
+        )
+    common.out_console.print(t)
+    common.out_console.print(f"All sources: {doc['bits_per_symbol']:.4f} bits/symbol over {total_len:,} symbols.")
+    for p, a, r in results:
+        if len(r.records) > 1:
+            rt = Table(title=f"{p}: records")
+            for col in ("record", "start", "symbols", "bits/symbol"):
+                rt.add_column(col, justify="left" if col == "record" else "right")
+            for rec in r.records:
+                bps = rec["bits_per_symbol"]
+                rt.add_row(rec["name"], f"{rec['start']:,}", f"{rec['length']:,}", "-" if bps is None else f"{bps:.4f}")
+            common.out_console.print(rt)
+        wins = r.surprising_windows(top)
+        if wins:
+            wt = Table(title=f"{p}: most surprising windows of {r.window:,} symbols")
+            for col in ("start", "end", "record", "bits/symbol"):
+                wt.add_column(col, justify="left" if col == "record" else "right")
+            for w in wins:
+                wt.add_row(f"{w['start']:,}", f"{w['end']:,}", w["record"] or "-", f"{w['bits_per_symbol']:.4f}")
+            common.out_console.print(wt)
+        mem = "evictions" if r.mode == "online" else "pruned at learning"
+        common.out_console.print(
+            f"{p}: cells cap {r.cells_cap:,}, stored {r.cells_stored:,}, {mem} {r.evictions:,}, tables {r.table_bytes / 2**20:.1f} MiB; "
+            f"depths {', '.join(map(str, r.depths))}; {'both strands' if r.reverse_complement else 'one strand'}."
+        )
+    if not quiet:
+        common.err_console.print(RESEARCH_NOTE)
+
+
+# -------------------------------------------------------------------- next
+def next_symbols(
+    context: str = typer.Argument(..., help="The context: symbols in order, oldest first (space-separated for multi-character symbols); '' for none."),
+    model: Path = typer.Option(..., "--model", "-m", help="Model file written by 'fractalseq learn'."),
+    top: int = typer.Option(5, "--top", "-t", min=1, help="Number of next symbols to list."),
+    json_out: bool = common.JSON,
+) -> None:
+    """Show the most likely next symbols after a context, with their probabilities.
+
+    The probabilities blend the counts of every cell the context falls in, from
+    the coarsest (no context) to the deepest cell the model holds. The count
+    column shows how often each symbol followed the deepest matching cell in the
+    training data. A symbol outside the model's alphabet is an error (exit 2).
+
+    Example: fractalseq next GATTACAGATTACA --model kleb.npz --top 4
+    """
+    from fractalseq.predict import CellPredictor
+
+    fitted = CellPredictor.load(model)
+    a = fitted.alphabet_
+    if a.single_characters:
+        bad = [ch for ch in context if not ch.isspace() and (ch.upper() if a.case_insensitive else ch) not in a.symbols]
+        if bad:
+            raise InputError(
+                f"The context holds {bad[0]!r}, which is not in the model's {a.name} alphabet ({a.describe_symbols(8)}); "
+                "use only those symbols."
+            )
+        ctx = "".join(ch for ch in context if not ch.isspace())
+    else:
+        ctx = context
+    rows = fitted.next_symbols(ctx, top=top)
+    depth = rows[0]["deepest_cell_depth"] if rows else None
+    doc = {"model": str(model), "context": ctx, "deepest_cell_depth": depth, "next": rows, "note": RESEARCH_NOTE}
+    if json_out:
+        typer.echo(to_json(doc), nl=False)
+        return
+    shown = ctx if len(ctx) <= 40 else "..." + ctx[-37:]
+    t = Table(title=f"Next symbol after {shown!r} (deepest cell: depth {depth})")
+    for col in ("rank", "symbol", "probability", "count in deepest cell"):
+        t.add_column(col, justify="left" if col == "symbol" else "right")
+    for i, r in enumerate(rows, 1):
+        c = r["count_in_deepest_cell"]
+        t.add_row(str(i), r["symbol"], f"{r['probability']:.4f}", "-" if c is None else f"{c:,}")
+    common.out_console.print(t)
+
+
+def register(app: typer.Typer) -> None:
+    app.command("learn")(learn)
+    app.command("score")(score)
+    app.command("next")(next_symbols)

@@ -1,0 +1,190 @@
+"""``fractalseq profile``: the complexity profile of each input, as tables, JSON or a report folder."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+from rich.table import Table
+
+from fractalseq.cli import common
+from fractalseq.cli.inputs import read_input, safe_stem
+from fractalseq.errors import OutputError, ParameterError
+
+BOOT = typer.Option(
+    100, "--boot", "-b", min=0,
+    help="Block-bootstrap replicates for every interval (0 = no intervals; otherwise at least 20).",
+)
+QS = typer.Option("0,1,2", "--q", help="Orders q of the dimensions, Rényi rates and consistency table, comma-separated.")
+PROFILE_DEPTH = typer.Option(
+    None, "--depth", "-n",
+    help="Deepest word length (symbols) of the block-entropy table (default: three past the deepest length the data support, at most 12).",
+)
+LEVEL = typer.Option(0.95, "--level", help="Confidence level of the intervals, between 0.5 and 1.")
+
+
+def parse_qs(text: str) -> tuple[float, ...]:
+    """Parse ``"0,1,2"`` into sorted distinct orders; one clear sentence on a bad list."""
+    parts = [p.strip() for p in str(text).split(",") if p.strip()]
+    if not parts:
+        raise ParameterError("The --q list is empty; give orders such as --q 0,1,2.")
+    out = []
+    for p in parts:
+        try:
+            v = float(p)
+        except ValueError:
+            raise ParameterError(f"--q entry {p!r} is not a number; give orders such as --q 0,1,2.") from None
+        if not math.isfinite(v):
+            raise ParameterError(f"--q entry {p!r} is not a finite number; give orders such as --q 0,1,2.")
+        out.append(v)
+    return tuple(sorted(set(out)))
+
+
+def _check_out(out: Optional[Path], force: bool) -> None:
+    if out is None:
+        return
+    if out.exists() and not out.is_dir():
+        raise OutputError(f"{out} is a file, not a folder; choose another output folder.")
+    if out.exists() and any(not p.name.startswith(".") for p in out.iterdir()) and not force:
+        raise OutputError(f"{out} already holds files; pass --force to overwrite them or choose another folder.")
+
+
+def _fmt(v, digits: int = 4) -> str:
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return "–"
+    return f"{v:.{digits}f}"
+
+
+RATE_SHORT = {
+    "plugin": "h plug-in", "miller-madow": "h Miller-Madow", "grassberger": "h Grassberger", "lz76": "h LZ76",
+    "compressors": "h <= compressors", "online_predictor": "h <= online predictor",
+}
+
+
+def _print_tables(result, quiet: bool) -> None:
+    con = common.out_console
+    d = result.to_dict()
+    t = Table(title=f"{result.name}: {result.length:,} symbols, {result.segments:,} segment(s), "
+                    f"{result.alphabet.name} (A = {result.alphabet_size}), k = {result.ratio:g}; rates in bits/symbol")
+    t.add_column("quantity", no_wrap=True)
+    t.add_column("estimate", justify="right", no_wrap=True)
+    t.add_column(f"{result.level:.0%} interval", justify="right", no_wrap=True)
+    t.add_column("note")
+    for r in d["dimensions"]:
+        t.add_row(f"D_{r['q']:g}", _fmt(r["estimate"]), f"[{_fmt(r['low'])}, {_fmt(r['high'])}]",
+                  f"depths {r['scaling_range'][0]}-{r['scaling_range'][1]}" + ("" if r["reliable"] else ", see flags"))
+    for name, r in d["entropy_rate_bits"].items():
+        interval = "" if r["low"] is None else f"[{_fmt(r['low'])}, {_fmt(r['high'])}]"
+        note = (f"n = {r['depth']}" if r["depth"] is not None else r["kind"]) + ("" if r["reliable"] else ", unreliable")
+        t.add_row(RATE_SHORT.get(name, name), _fmt(r["estimate"]), interval, note)
+    topo = d["topological_entropy_bits"]
+    t.add_row("h_top", _fmt(topo["estimate"]), "", f"word growth, n = {topo['depth']}")
+    for r in d["consistency"]:
+        t.add_row(f"consistency q={r['q']:g}", r["verdict"], "",
+                  f"{_fmt(r['dimension_bits'])} vs {_fmt(r['entropy_bits'])}")
+    con.print(t)
+    for n in () if quiet else result.notes:
+        common.err_console.print(f"note: {n}", markup=False, highlight=False)
+
+
+def profile(
+    paths: List[str] = typer.Argument(
+        ..., help="Input files (FASTA/FASTQ/text/log/numeric, optionally compressed); - reads standard input.",
+    ),
+    out: Optional[Path] = common.OUT,
+    json_out: bool = common.JSON,
+    alphabet: str = common.ALPHABET,
+    fmt: str = common.FORMAT,
+    policy: str = common.POLICY,
+    ratio: float = common.RATIO,
+    qs: str = QS,
+    depth: Optional[int] = PROFILE_DEPTH,
+    boot: int = BOOT,
+    level: float = LEVEL,
+    seed: int = common.SEED,
+    force: bool = common.FORCE,
+    quiet: bool = common.QUIET,
+) -> None:
+    """Measure the complexity of each input: dimensions, entropies, consistency.
+
+    For every input this computes the Rényi dimensions D_q of its contractive
+    encoding with bootstrap intervals, the f(α) spectrum, block entropies and
+    entropy-rate estimates (plug-in, Miller–Madow, Grassberger, Lempel–Ziv,
+    compressor bound, online predictor code length), the topological entropy,
+    absent words, and the consistency table that sets the geometric D_q·log2(1/k)
+    beside the entropy rate h_q.
+
+    Without --out a table per input is printed and no file is written. With
+    --out DIR each input gets a folder DIR/NAME (index.html, profile.json, CSV
+    tables, PNG figures) and DIR/index.html links them. --json prints the same
+    numbers on standard output (the JSON contract in the README); the same
+    input and --seed give the same bytes.
+
+    Genomic output is for research, not for clinical decisions.
+
+    Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
+    """
+    from fractalseq.encoding import check_ratio
+    from fractalseq.outputs import prepare_folder, to_json
+    from fractalseq.profile import STEPS, contract, profile_source
+    from fractalseq.report.profile import safe_name, write_profile_index, write_profile_report
+
+    # validate everything before reading anything
+    q_list = parse_qs(qs)
+    k = check_ratio(ratio)
+    if 0 < boot < 20:
+        raise ParameterError(f"--boot {boot} is too few replicates for an interval; use 0 (none) or at least 20.")
+    if not 0.5 < level < 1:
+        raise ParameterError(f"--level {level} is outside (0.5, 1); use e.g. 0.95.")
+    if depth is not None and depth < 2:
+        raise ParameterError(f"--depth {depth} is too small; the entropy rates need words of length 2 or more.")
+    _check_out(out, force)
+    parameters = {"ratio": k, "q": list(q_list), "depth": depth, "boot": boot, "level": level, "seed": seed,
+                  "alphabet": alphabet, "format": fmt, "unknown": policy}
+
+    results = []
+    subfolders: list[str] = []
+    taken: set[str] = {"index.html", "profile.json"}
+    if out is not None:
+        prepare_folder(out, force)
+    with common.progress(quiet) as bar:
+        for path in paths:
+            task = bar.add_task(f"{path}: reading", total=len(STEPS) + 1)
+            arr = read_input(path, fmt, alphabet, policy)
+            if depth is not None and depth > arr.alphabet.max_depth:
+                raise ParameterError(
+                    f"--depth {depth} exceeds the deepest word length {arr.alphabet.max_depth} for "
+                    f"{arr.alphabet.size} symbols; use --depth {arr.alphabet.max_depth} or less."
+                )
+            bar.advance(task)
+
+            def on_step(name: str, task=task, path=path) -> None:
+                bar.update(task, description=f"{path}: {name}")
+                bar.advance(task)
+
+            res = profile_source(arr, ratio=k, qs=q_list, depth=depth, n_boot=boot, seed=seed, level=level,
+                                 progress=on_step)
+            results.append(res)
+            if out is not None:
+                bar.update(task, description=f"{path}: writing report")
+                sub = safe_name(safe_stem(path), taken)
+                write_profile_report(res, out / sub, force=force, parameters=parameters)
+                subfolders.append(sub)
+            bar.remove_task(task)
+    if out is not None:
+        write_profile_index(results, subfolders, out, force=force, parameters=parameters)
+        if not quiet:
+            common.err_console.print(f"wrote {len(results)} profile(s) to {out}/ (open {out}/index.html)",
+                                     markup=False, highlight=False)
+    if json_out:
+        typer.echo(to_json(contract(results, parameters)), nl=False)
+        return
+    if out is None:
+        for res in results:
+            _print_tables(res, quiet)
+
+
+def register(app: typer.Typer) -> None:
+    app.command("profile")(profile)

@@ -1,0 +1,210 @@
+"""Distances between sources and their hierarchical clustering.
+
+Two distances are offered:
+
+Jensen–Shannon divergence of depth-n word distributions
+    ``JSD(P, Q) = H(M) - (H(P) + H(Q)) / 2`` with ``M = (P + Q) / 2``, in
+    bits, so ``0 <= JSD <= 1`` (Lin 1991, IEEE Trans. Inf. Theory 37:145).
+    Its square root is a metric (Endres & Schindelin 2003, IEEE Trans. Inf.
+    Theory 49:1858), the *Jensen–Shannon distance*, which is what
+    :func:`scipy.spatial.distance.jensenshannon` returns.
+Spectrum distance
+    Root mean square difference of two D_q spectra over the orders ``q``
+    both were estimated at: ``sqrt(mean_q (D_q(a) - D_q(b))**2)``.
+
+Clustering is agglomerative (:func:`scipy.cluster.hierarchy.linkage`,
+average linkage by default) on the Jensen–Shannon *distance* (the square
+root of the divergence, a metric).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+
+from fractalseq.alphabet import Alphabet
+from fractalseq.errors import InputError, ParameterError
+
+LINKAGES: tuple[str, ...] = ("average", "complete", "single", "weighted")
+
+
+def _entropy_bits(p: np.ndarray) -> float:
+    p = p[p > 0]
+    return float(-(p * np.log2(p)).sum())
+
+
+def js_divergence(counts_a: np.ndarray, counts_b: np.ndarray) -> float:
+    """Jensen–Shannon divergence (bits) of two aligned count (or probability) vectors.
+
+    Each vector is normalised to sum 1 first.  Returns a value in ``[0, 1]``.
+    """
+    a = np.asarray(counts_a, dtype=float)
+    b = np.asarray(counts_b, dtype=float)
+    if a.shape != b.shape:
+        raise ParameterError("The two count vectors must be aligned (same words, same order).")
+    sa, sb = a.sum(), b.sum()
+    if sa <= 0 or sb <= 0:
+        raise InputError("A Jensen-Shannon divergence needs at least one word in each source; a source is too short.")
+    p, q = a / sa, b / sb
+    m = 0.5 * (p + q)
+    d = _entropy_bits(m) - 0.5 * (_entropy_bits(p) + _entropy_bits(q))
+    return float(min(max(d, 0.0), 1.0))
+
+
+def remap_words(addresses: np.ndarray, n: int, source: Alphabet, target: Alphabet) -> np.ndarray:
+    """Addresses of n-words re-encoded from one alphabet into another holding all its symbols.
+
+    Vectorised: each address is split into its n codes, every code is
+    translated through a lookup table, and the word is packed again.
+    """
+    index = {s: i for i, s in enumerate(target.symbols)}
+    try:
+        lut = np.array([index[s] for s in source.symbols], dtype=np.uint64)
+    except KeyError as exc:
+        raise ParameterError(f"Symbol {exc.args[0]!r} is missing from the joint alphabet.") from None
+    a = np.asarray(addresses, dtype=np.uint64)
+    bs, bt = np.uint64(source.bits), np.uint64(target.bits)
+    mask = np.uint64((1 << source.bits) - 1)
+    out = np.zeros_like(a)
+    for i in range(n):
+        code = (a >> (bs * np.uint64(n - 1 - i))) & mask
+        out = (out << bt) | lut[code]
+    return out
+
+
+def joint_alphabet(alphabets: Sequence[Alphabet]) -> Alphabet:
+    """One alphabet holding every symbol of ``alphabets`` (first alphabet's order, then new symbols in order met)."""
+    if not alphabets:
+        raise ParameterError("A joint alphabet needs at least one alphabet.")
+    first = alphabets[0]
+    if all(a.same_symbols(first) for a in alphabets[1:]):
+        return first
+    symbols: list[str] = []
+    seen: set[str] = set()
+    for a in alphabets:
+        for s in a.symbols:
+            if s not in seen:
+                seen.add(s)
+                symbols.append(s)
+    return Alphabet(f"joint-{first.name}", tuple(symbols), first.case_insensitive, first.ambiguous)
+
+
+def word_matrix(tables: Sequence[tuple[np.ndarray, np.ndarray]]) -> tuple[np.ndarray, np.ndarray]:
+    """Align sparse word tables: the union of words and a ``(sources, words)`` count matrix.
+
+    Parameters
+    ----------
+    tables:
+        Per source, ``(addresses, counts)`` over one shared alphabet and depth.
+    """
+    if not tables:
+        raise ParameterError("No word tables to align.")
+    words = np.unique(np.concatenate([np.asarray(w, dtype=np.uint64) for w, _ in tables]))
+    mat = np.zeros((len(tables), words.size), dtype=np.int64)
+    for i, (w, c) in enumerate(tables):
+        idx = np.searchsorted(words, np.asarray(w, dtype=np.uint64))
+        np.add.at(mat[i], idx, np.asarray(c, dtype=np.int64))
+    return words, mat
+
+
+def js_matrix(counts: np.ndarray) -> np.ndarray:
+    """Symmetric matrix of pairwise Jensen–Shannon divergences (bits) of the rows of a count matrix."""
+    counts = np.asarray(counts, dtype=float)
+    s = counts.shape[0]
+    out = np.zeros((s, s), dtype=float)
+    for i in range(s):
+        for j in range(i + 1, s):
+            out[i, j] = out[j, i] = js_divergence(counts[i], counts[j])
+    return out
+
+
+def spectrum_distance(qa: Sequence[float], da: Sequence[float], qb: Sequence[float], db: Sequence[float]) -> float:
+    """RMS difference of two D_q spectra over their common, finite orders q (NaN if none)."""
+    a = {float(q): float(d) for q, d in zip(qa, da) if d is not None and math.isfinite(float(d))}
+    b = {float(q): float(d) for q, d in zip(qb, db) if d is not None and math.isfinite(float(d))}
+    common = sorted(set(a) & set(b))
+    if not common:
+        return math.nan
+    diff = np.array([a[q] - b[q] for q in common])
+    return float(np.sqrt(np.mean(diff**2)))
+
+
+def spectrum_matrix(spectra: Sequence[tuple[Sequence[float], Sequence[float]]]) -> np.ndarray:
+    """Pairwise :func:`spectrum_distance` of ``(q values, D_q values)`` per source."""
+    s = len(spectra)
+    out = np.zeros((s, s), dtype=float)
+    for i in range(s):
+        for j in range(i + 1, s):
+            out[i, j] = out[j, i] = spectrum_distance(*spectra[i], *spectra[j])
+    return out
+
+
+@dataclass(frozen=True)
+class Clustering:
+    """Hierarchical clustering of sources.
+
+    Attributes
+    ----------
+    method:
+        Linkage rule (``average`` ...).
+    metric:
+        What was clustered (text).
+    linkage:
+        scipy linkage matrix ``(S-1, 4)``: merged clusters, height, size.
+    order:
+        Leaf order of the dendrogram (source indices).
+    """
+
+    method: str
+    metric: str
+    linkage: np.ndarray
+    order: list[int]
+
+    def top_split(self) -> tuple[list[int], list[int]]:
+        """The two groups of source indices joined last (the root's children)."""
+        s = self.linkage.shape[0] + 1
+        if s < 2:
+            return list(range(s)), []
+
+        def members(node: int) -> list[int]:
+            if node < s:
+                return [node]
+            row = self.linkage[node - s]
+            return members(int(row[0])) + members(int(row[1]))
+
+        root = self.linkage[-1]
+        return sorted(members(int(root[0]))), sorted(members(int(root[1])))
+
+    def to_dict(self) -> dict:
+        return {
+            "method": self.method,
+            "metric": self.metric,
+            "linkage": [[int(r[0]), int(r[1]), float(r[2]), int(r[3])] for r in self.linkage],
+            "order": list(self.order),
+        }
+
+
+def cluster(distance: np.ndarray, method: str = "average", metric: str = "distance") -> Clustering:
+    """Agglomerative clustering of a symmetric distance matrix (scipy linkage).
+
+    Needs at least two sources; a single source gives an empty linkage.
+    """
+    from scipy.cluster.hierarchy import leaves_list, linkage, optimal_leaf_ordering
+    from scipy.spatial.distance import squareform
+
+    if method not in LINKAGES:
+        raise ParameterError(f"Linkage {method!r} is not one of {', '.join(LINKAGES)}.")
+    d = np.asarray(distance, dtype=float)
+    s = d.shape[0]
+    if s < 2:
+        return Clustering(method, metric, np.zeros((0, 4)), list(range(s)))
+    if not np.all(np.isfinite(d)):
+        raise InputError("A distance is undefined (a source too short for the depth); use a smaller depth.")
+    condensed = squareform(0.5 * (d + d.T), checks=False)
+    z = linkage(condensed, method=method)
+    if s > 2:
+        z = optimal_leaf_ordering(z, condensed)
+    return Clustering(method, metric, z, [int(i) for i in leaves_list(z)])

@@ -1,0 +1,751 @@
+"""Two-batch drift test: does the new batch come from the same source as the baseline?
+
+Each batch (one or more streams) is cut into blocks of ``B`` symbols; the
+n-words starting in each block are counted once (words crossing a block
+edge belong to the block they start in; no word crosses a stream or segment
+end).  Word counts add, so the table of any set of blocks is the sum of
+their block tables, and a resampled statistic costs a sum of tables, not a
+recount.
+
+Figures tested (each gives a statistic and a p-value):
+
+``words``
+    G statistic (likelihood ratio) of homogeneity of the two batches'
+    n-word distributions, ``G = 2 sum O ln(O/E)`` over the 2 x W table;
+    effect size: Jensen–Shannon divergence (bits) of the two distributions.
+``transitions``
+    Conditional G statistic of the next symbol given the previous n-1
+    (sum over contexts of the 2 x A homogeneity G); effect size: the
+    conditional mutual information between batch and next symbol given the
+    context, ``G / (2 T ln 2)`` bits.  A change in one transition
+    probability shows here long before it shows in the word marginals.
+``entropy_rate``
+    Absolute difference of the entropy rates ``H_n - H_{n-1}`` (bits per
+    symbol, Grassberger estimator, :func:`fractalseq.entropy.rate_from_counts`).
+``D2``
+    Absolute difference of the correlation dimensions
+    ``D_2 = h_2 / log2(1/k)``, ``h_2`` the order-2 Rényi rate from the
+    unbiased collision sums (:func:`fractalseq.entropy.renyi_rate_from_counts`).
+
+p-values come from a **block permutation** test: the blocks of both batches
+are pooled and the batch labels reassigned at random (keeping the number of
+blocks per batch) ``R`` times; ``p = (1 + #{T* >= T}) / (R + 1)`` (Davison &
+Hinkley 1997, *Bootstrap Methods and their Application*, eq. 4.11; blocks
+keep the dependence within streams, common practice for dependent data).
+The p-values of the figures are adjusted for multiplicity by Holm's step-down
+method (Holm 1979, Scand. J. Statist. 6:65) or Benjamini–Hochberg (1995,
+JRSS B 57:289).  The verdict is "changed" when the smallest adjusted p-value
+is below ``alpha``.
+
+Drift reports on logs are no security guarantee.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable, Iterable, Sequence
+
+import numpy as np
+from numba import njit
+
+from fractalseq import __version__
+from fractalseq.alphabet import Alphabet
+from fractalseq.distances import joint_alphabet, js_divergence, remap_words
+from fractalseq.engine import DEFAULT_PIECE, Engine, Piece, SerialEngine, iter_pieces
+from fractalseq.errors import InputError, ParameterError
+from fractalseq.outputs import to_json
+from fractalseq.stream import SymbolArray, SymbolStream
+
+CAUTION = "Drift reports on logs are no security guarantee; genomic output is for research, not for clinical decisions."
+FIGURES: tuple[str, ...] = ("words", "transitions", "entropy_rate", "D2")
+ADJUSTMENTS: tuple[str, ...] = ("holm", "bh")
+#: Default: at least this many blocks in the shorter batch (when its length allows).
+TARGET_BLOCKS = 64
+#: Smallest automatic block length, in multiples of the depth.
+MIN_BLOCK_DEPTHS = 10
+#: Automatic depth: at most 3, and at least this many words per possible word in the shorter batch.
+WORDS_PER_CELL = 10
+_REPLICATE_BATCH = 64
+
+
+# =============================================================== adjustment
+def adjust_pvalues(p: Sequence[float], method: str = "holm") -> np.ndarray:
+    """Multiplicity-adjusted p-values (Holm step-down or Benjamini–Hochberg step-up).
+
+    Holm: ``p~_(i) = max_{j <= i} min(1, (m - j + 1) p_(j))``.
+    BH: ``p~_(i) = min_{j >= i} min(1, m p_(j) / j)``.
+    """
+    p = np.asarray(p, dtype=float)
+    m = p.size
+    if m == 0:
+        return p
+    if method not in ADJUSTMENTS:
+        raise ParameterError(f"Adjustment {method!r} is not one of {', '.join(ADJUSTMENTS)}.")
+    order = np.argsort(p, kind="stable")
+    ps = p[order]
+    if method == "holm":
+        adj = np.maximum.accumulate(np.minimum(1.0, (m - np.arange(m)) * ps))
+    else:
+        adj = np.minimum.accumulate((m * ps / np.arange(1, m + 1))[::-1])[::-1]
+        adj = np.minimum(adj, 1.0)
+    out = np.empty(m)
+    out[order] = adj
+    return out
+
+
+# ================================================================= kernels
+@njit(cache=True)
+def _block_words(codes, starts, core, depth, bits, offset, block, out_block, out_addr):
+    """Block id and address of every depth-word starting at ``p < core`` inside its segment.
+
+    ``starts`` are sorted segment starts with 0 first; ``offset`` is the
+    position of ``codes[0]`` in its stream (blocks are ``(offset + p) // block``).
+    Returns the number of words written.
+    """
+    n = codes.shape[0]
+    nseg = starts.shape[0]
+    ub = np.uint64(bits)
+    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
+    k = 0
+    for s in range(nseg):
+        a = starts[s]
+        e = starts[s + 1] if s + 1 < nseg else n
+        if a >= core:
+            break
+        addr = np.uint64(0)
+        filled = 0
+        for i in range(a, e):
+            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
+            filled += 1
+            if filled >= depth:
+                p = i - depth + 1
+                if p >= core:
+                    break
+                out_block[k] = (offset + p) // block
+                out_addr[k] = addr
+                k += 1
+    return k
+
+
+def block_tables(task: tuple[Piece, int, int]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Map step: per-block counts of the depth-words starting in a piece's core.
+
+    Parameters
+    ----------
+    task:
+        ``(piece, depth, block)``; pieces come from :func:`fractalseq.engine.iter_pieces`
+        with overlap ``depth - 1`` and a piece size that is a multiple of ``block``.
+
+    Returns
+    -------
+    blocks, words, counts:
+        One entry per (block, word) present, sorted by block then address;
+        block ids are positions in the stream divided by ``block``.
+    """
+    piece, depth, block = task
+    codes = np.ascontiguousarray(piece.codes)
+    starts = np.union1d(piece.starts.astype(np.int64), np.zeros(1, np.int64)) if codes.size else np.zeros(0, np.int64)
+    nmax = max(int(piece.core), 0)
+    ob = np.empty(nmax, dtype=np.int64)
+    oa = np.empty(nmax, dtype=np.uint64)
+    k = _block_words(codes, starts, int(piece.core), int(depth), int(piece.alphabet.bits), int(piece.offset), int(block), ob, oa)
+    ob, oa = ob[:k], oa[:k]
+    if k == 0:
+        return ob, oa, np.zeros(0, np.int64)
+    order = np.lexsort((oa, ob))
+    ob, oa = ob[order], oa[order]
+    new = np.ones(k, dtype=bool)
+    new[1:] = (ob[1:] != ob[:-1]) | (oa[1:] != oa[:-1])
+    idx = np.flatnonzero(new)
+    counts = np.diff(np.append(idx, k)).astype(np.int64)
+    return ob[idx], oa[idx], counts
+
+
+# ================================================================ options
+@dataclass(frozen=True)
+class DriftOptions:
+    """Parameters of a drift test.
+
+    Attributes
+    ----------
+    depth:
+        Word length n (``None``: at most 3, fewer when ``A**n * 10`` exceeds the shorter batch).
+    block:
+        Block length in symbols (``None``: ``max(10 n, shorter batch / 64)``).
+    permutations:
+        Number of block permutations R (the smallest possible p is ``1/(R+1)``).
+    alpha:
+        Level of the verdict.
+    adjust:
+        ``holm`` or ``bh``.
+    seed:
+        Seed of the permutations.
+    ratio:
+        Contraction ratio k (D_2 is in units of ``log(1/k)``).
+    figures:
+        Figures tested (subset of ``words, transitions, entropy_rate, D2``).
+    top:
+        How many contributing words to list.
+    """
+
+    depth: int | None = None
+    block: int | None = None
+    permutations: int = 999
+    alpha: float = 0.05
+    adjust: str = "holm"
+    seed: int = 0
+    ratio: float = 0.5
+    figures: tuple[str, ...] = FIGURES
+    top: int = 10
+
+    def check(self) -> None:
+        if self.depth is not None and (not isinstance(self.depth, (int, np.integer)) or self.depth < 1):
+            raise ParameterError(f"Depth must be a positive whole number, not {self.depth!r}.")
+        if self.block is not None and (not isinstance(self.block, (int, np.integer)) or self.block < 1):
+            raise ParameterError(f"Block length must be a positive whole number of symbols, not {self.block!r}.")
+        if not isinstance(self.permutations, (int, np.integer)) or self.permutations < 19:
+            raise ParameterError("Use at least 19 permutations (the smallest p-value is 1/(R+1)).")
+        if not 0.0 < self.alpha < 1.0:
+            raise ParameterError(f"The level alpha must lie strictly between 0 and 1, not {self.alpha}.")
+        if self.adjust not in ADJUSTMENTS:
+            raise ParameterError(f"Adjustment {self.adjust!r} is not one of {', '.join(ADJUSTMENTS)}.")
+        if not 0.0 < self.ratio < 1.0:
+            raise ParameterError(f"The ratio k must lie strictly between 0 and 1, not {self.ratio}.")
+        bad = [f for f in self.figures if f not in FIGURES]
+        if bad or not self.figures:
+            raise ParameterError(f"Figures must be chosen from {', '.join(FIGURES)}; got {', '.join(bad) or 'none'}.")
+
+    def to_dict(self) -> dict:
+        return {
+            "depth": self.depth,
+            "block": self.block,
+            "permutations": self.permutations,
+            "alpha": self.alpha,
+            "adjust": self.adjust,
+            "seed": self.seed,
+            "ratio": self.ratio,
+            "figures": list(self.figures),
+            "top": self.top,
+        }
+
+
+# ================================================================= batches
+@dataclass
+class BatchTables:
+    """Block tables of one batch over the joint alphabet."""
+
+    names: list[str]
+    lengths: list[int]
+    blocks: int
+    block_ids: np.ndarray  # per entry, block index within the batch
+    words: np.ndarray  # per entry, word address (joint alphabet)
+    counts: np.ndarray
+
+
+def _auto_depth(alphabet: Alphabet, shortest: int) -> int:
+    n = 1
+    while n < 3 and n < alphabet.max_depth and float(alphabet.size) ** (n + 1) * WORDS_PER_CELL <= shortest:
+        n += 1
+    return n
+
+
+def _auto_block(depth: int, shortest: int) -> int:
+    return int(max(MIN_BLOCK_DEPTHS * depth, shortest // TARGET_BLOCKS, 1))
+
+
+def _tables_for(
+    streams: Sequence[SymbolArray | SymbolStream],
+    depth: int,
+    block: int,
+    engine: Engine,
+    joint: Alphabet,
+    on_done: Callable[[int, object], None] | None,
+) -> BatchTables:
+    chunk = block * max(1, DEFAULT_PIECE // block)
+    ids, words, counts = [], [], []
+    names, lengths = [], []
+    base = 0
+    for s in streams:
+        lengths_box = [0]
+
+        def pieces(s=s, box=lengths_box):
+            for p in iter_pieces(s, chunk, depth - 1):
+                box[0] += p.core
+                yield (p, depth, block)
+
+        got: dict[int, tuple] = {}
+        for i, res in engine.imap(block_tables, pieces()):
+            got[i] = res
+            if on_done is not None:
+                on_done(i, res)
+        results = [got[i] for i in sorted(got)]
+        L = lengths_box[0]
+        nblocks = int(math.ceil(L / block)) if L else 0
+        for b, w, c in results:
+            if w.size and not s.alphabet.same_symbols(joint):
+                w = remap_words(w, depth, s.alphabet, joint)
+            ids.append(b + base)
+            words.append(w)
+            counts.append(c)
+        names.append(s.name)
+        lengths.append(L)
+        base += nblocks
+    cat = lambda xs, dt: np.concatenate(xs).astype(dt) if xs else np.zeros(0, dt)  # noqa: E731
+    return BatchTables(names, lengths, base, cat(ids, np.int64), cat(words, np.uint64), cat(counts, np.int64))
+
+
+def _length(s: SymbolArray | SymbolStream) -> int:
+    if isinstance(s, SymbolArray):
+        return len(s)
+    return int(sum(len(ch.codes) for ch in s.chunks()))
+
+
+# ============================================================== statistics
+def _xlogx(x: np.ndarray) -> np.ndarray:
+    x = np.asarray(x, dtype=float)
+    out = np.zeros_like(x)
+    pos = x > 0
+    out[pos] = x[pos] * np.log(x[pos])
+    return out
+
+
+def g_statistic(ta: np.ndarray, tb: np.ndarray) -> np.ndarray:
+    """G statistic of homogeneity of two count tables (rows of ``ta``, ``tb`` are replicates).
+
+    ``G = 2 [sum O ln O - sum_b T_b ln T_b - sum_w C_w ln C_w + T ln T]``,
+    the likelihood-ratio statistic of the 2 x W contingency table.
+    """
+    ta = np.atleast_2d(ta)
+    tb = np.atleast_2d(tb)
+    na, nb = ta.sum(1), tb.sum(1)
+    c = ta + tb
+    g = _xlogx(ta).sum(1) + _xlogx(tb).sum(1) - _xlogx(na) - _xlogx(nb) - _xlogx(c).sum(1) + _xlogx(na + nb)
+    return np.maximum(2.0 * g, 0.0)
+
+
+def _context_sums(tab: np.ndarray, context: np.ndarray, n_context: int) -> np.ndarray:
+    """Per-row sums of the columns of each context (``context`` sorted, as for sorted word addresses)."""
+    tab = np.atleast_2d(tab)
+    if context.size == 0:
+        return np.zeros((tab.shape[0], n_context))
+    if np.all(context[1:] >= context[:-1]) and n_context == int(context[-1]) + 1:
+        starts = np.flatnonzero(np.r_[True, context[1:] != context[:-1]])
+        if starts.size == n_context:
+            return np.add.reduceat(tab, starts, axis=1)
+    out = np.zeros((tab.shape[0], n_context))
+    for r in range(tab.shape[0]):
+        out[r] = np.bincount(context, weights=tab[r], minlength=n_context)
+    return out
+
+
+def conditional_g(ta: np.ndarray, tb: np.ndarray, context: np.ndarray, n_context: int) -> np.ndarray:
+    """Sum over contexts of the G statistic of the next-symbol distributions (rows are replicates)."""
+    ta = np.atleast_2d(ta)
+    tb = np.atleast_2d(tb)
+    ca = _context_sums(ta, context, n_context)
+    cb = _context_sums(tb, context, n_context)
+    c = ta + tb
+    cc = ca + cb
+    g = _xlogx(ta).sum(1) + _xlogx(tb).sum(1) - _xlogx(ca).sum(1) - _xlogx(cb).sum(1) - _xlogx(c).sum(1) + _xlogx(cc).sum(1)
+    return np.maximum(2.0 * g, 0.0)
+
+
+class _Figures:
+    """Entropy rate and D_2 of many count tables at once (rows), for the permutation replicates.
+
+    Same estimators as :func:`fractalseq.entropy.rate_from_counts` (Grassberger,
+    using its ``G(n)`` table) and :func:`fractalseq.entropy.renyi_rate_from_counts`
+    with ``q = 2`` (unbiased collision sums), vectorised over rows; the tests
+    check both against those functions.
+    """
+
+    def __init__(self, total: np.ndarray, context: np.ndarray, n_context: int, depth: int, ratio: float) -> None:
+        from fractalseq.entropy import grassberger_g
+
+        self.context, self.n_context, self.depth, self.ratio = context, n_context, depth, ratio
+        self._g = grassberger_g
+
+    def _h(self, tab: np.ndarray) -> np.ndarray:
+        from scipy.special import digamma
+
+        n = np.rint(tab)
+        N = n.sum(1)
+        vals, inv = np.unique(n, return_inverse=True)
+        gv = np.zeros(vals.size)
+        pos = vals >= 1
+        gv[pos] = self._g(vals[pos])
+        s = (n * gv[inv.reshape(n.shape)]).sum(1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            h = np.where(N > 0, digamma(np.maximum(N, 1)) - s / np.maximum(N, 1), np.nan)
+        return h / math.log(2.0)
+
+    def _log_s2(self, tab: np.ndarray) -> np.ndarray:
+        N = tab.sum(1)
+        num = (tab * np.clip(tab - 1.0, 0.0, None)).sum(1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            s = num / (N * (N - 1.0))
+            return np.where((N >= 2) & (s > 0), np.log(np.where(s > 0, s, 1.0)), np.nan)
+
+    def rate(self, tab: np.ndarray) -> np.ndarray:
+        tab = np.atleast_2d(tab)
+        h = self._h(tab)
+        if self.depth > 1:
+            h = h - self._h(_context_sums(tab, self.context, self.n_context))
+        return h
+
+    def d2(self, tab: np.ndarray) -> np.ndarray:
+        tab = np.atleast_2d(tab)
+        s1 = self._log_s2(tab)
+        s0 = self._log_s2(_context_sums(tab, self.context, self.n_context)) if self.depth > 1 else 0.0
+        return -(s1 - s0) / math.log(2.0) / math.log2(1.0 / self.ratio)
+
+
+# ================================================================= result
+@dataclass
+class DriftTest:
+    """One figure's test."""
+
+    figure: str
+    statistic_name: str
+    statistic: float
+    baseline: float | None
+    new: float | None
+    effect: float
+    effect_name: str
+    standardized_effect: float | None
+    p_value: float
+    p_adjusted: float = math.nan
+
+    def to_dict(self) -> dict:
+        return {
+            "figure": self.figure,
+            "statistic_name": self.statistic_name,
+            "statistic": self.statistic,
+            "baseline": self.baseline,
+            "new": self.new,
+            "effect": self.effect,
+            "effect_name": self.effect_name,
+            "standardized_effect": self.standardized_effect,
+            "p_value": self.p_value,
+            "p_adjusted": self.p_adjusted,
+        }
+
+
+@dataclass
+class DriftResult:
+    """Outcome of :func:`drift_test` (see :meth:`to_dict` for the JSON contract)."""
+
+    changed: bool
+    p_value: float
+    tests: list[DriftTest]
+    top_words: list[dict]
+    top_contexts: list[dict]
+    baseline: dict
+    new: dict
+    depth: int
+    block: int
+    options: DriftOptions
+    alphabet: dict
+    notes: list[str] = field(default_factory=list)
+    inconclusive: bool = False
+
+    @property
+    def verdict(self) -> str:
+        """The plain one-line verdict."""
+        a = self.options.alpha
+        if self.inconclusive:
+            return (
+                f"INCONCLUSIVE: the batches are too short to test at level {a:g} "
+                f"(smallest adjusted p = {_fmt_p(self.p_value)}; see the notes)."
+            )
+        if self.changed:
+            return (
+                f"CHANGED: the new batch differs from the baseline "
+                f"(smallest adjusted p = {_fmt_p(self.p_value)} < {a:g})."
+            )
+        return (
+            f"NO CHANGE DETECTED: the new batch is consistent with the baseline "
+            f"(smallest adjusted p = {_fmt_p(self.p_value)} >= {a:g})."
+        )
+
+    def to_dict(self) -> dict:
+        """The documented JSON contract: ``changed``, ``p_value``, ``tests`` and the evidence."""
+        return {
+            "command": "drift",
+            "fractalseq": __version__,
+            "verdict": self.verdict,
+            "changed": bool(self.changed),
+            "inconclusive": bool(self.inconclusive),
+            "p_value": self.p_value,
+            "alpha": self.options.alpha,
+            "adjust": self.options.adjust,
+            "method": (
+                f"block permutation test, {self.options.permutations} permutations of {self.block}-symbol blocks; "
+                f"{'Holm' if self.options.adjust == 'holm' else 'Benjamini-Hochberg'} adjustment across figures"
+            ),
+            "depth": self.depth,
+            "block": self.block,
+            "tests": [t.to_dict() for t in self.tests],
+            "top_words": self.top_words,
+            "top_contexts": self.top_contexts,
+            "baseline": self.baseline,
+            "new": self.new,
+            "alphabet": self.alphabet,
+            "parameters": self.options.to_dict(),
+            "notes": list(self.notes),
+            "caution": CAUTION,
+        }
+
+    def to_json(self) -> str:
+        return to_json(self.to_dict())
+
+
+def _fmt_p(p: float) -> str:
+    return f"{p:.3g}" if p >= 0.001 else f"{p:.1e}"
+
+
+# ==================================================================== run
+def drift_test(
+    baseline: Sequence[SymbolArray | SymbolStream],
+    new: Sequence[SymbolArray | SymbolStream],
+    options: DriftOptions | None = None,
+    engine: Engine | None = None,
+    on_done: Callable[[int, object], None] | None = None,
+) -> DriftResult:
+    """Test whether ``new`` comes from the same source as ``baseline``.
+
+    Parameters
+    ----------
+    baseline, new:
+        The two batches, each one or more streams (files).  Alphabets
+        learned separately (log templates, tokens) are joined by symbol text.
+    options:
+        Test parameters (:class:`DriftOptions`).
+    engine:
+        Where block tables are counted (default: serially); every engine
+        gives the same result.
+    on_done:
+        Progress callback ``on_done(index, result)`` per counted piece.
+
+    Returns
+    -------
+    DriftResult
+    """
+    options = options or DriftOptions()
+    options.check()
+    engine = engine or SerialEngine()
+    if not baseline or not new:
+        raise InputError("Drift needs a baseline and a new batch, each with at least one input.")
+    joint = joint_alphabet([s.alphabet for s in list(baseline) + list(new)])
+    notes: list[str] = []
+    depth = options.depth
+    block = options.block
+    if depth is None or block is None:
+        # the automatic rules need the batch lengths (streams not in memory are read once to count them)
+        shortest = min(sum(_length(s) for s in batch) for batch in (baseline, new))
+        if shortest == 0:
+            raise InputError("A batch holds no symbols; give inputs with data.")
+        if depth is None:
+            depth = _auto_depth(joint, shortest)
+        if block is None:
+            block = _auto_block(depth, shortest)
+    if depth > joint.max_depth:
+        raise ParameterError(f"Depth {depth} exceeds the address width for {joint.size} symbols; use --depth {joint.max_depth} or less.")
+    ta = _tables_for(baseline, depth, block, engine, joint, on_done)
+    tb = _tables_for(new, depth, block, engine, joint, on_done)
+    la, lb = sum(ta.lengths), sum(tb.lengths)
+    if la == 0 or lb == 0:
+        raise InputError("A batch holds no symbols; give inputs with data.")
+    if ta.counts.sum() == 0 or tb.counts.sum() == 0:
+        raise InputError(f"A batch has no word of length {depth}; use a smaller --depth.")
+    if depth > 1 and float(joint.size) ** depth * WORDS_PER_CELL > min(la, lb):
+        notes.append(f"few words per possible {depth}-word; the word tests have little power. Use a smaller --depth")
+    return _permutation_test(ta, tb, depth, block, joint, options, notes)
+
+
+def _permutation_test(
+    ta: BatchTables, tb: BatchTables, depth: int, block: int, joint: Alphabet, options: DriftOptions, notes: list[str]
+) -> DriftResult:
+    words = np.unique(np.concatenate([ta.words, tb.words]))
+    K = ta.blocks + tb.blocks
+    U = words.size
+    X = np.zeros((K, U), dtype=np.float64) if K * U <= 50_000_000 else None
+    if X is None:
+        from scipy.sparse import csr_matrix
+
+        rows = np.concatenate([ta.block_ids, tb.block_ids + ta.blocks])
+        cols = np.searchsorted(words, np.concatenate([ta.words, tb.words]))
+        X = csr_matrix((np.concatenate([ta.counts, tb.counts]).astype(float), (rows, cols)), shape=(K, U))
+    else:
+        np.add.at(X, (ta.block_ids, np.searchsorted(words, ta.words)), ta.counts)
+        np.add.at(X, (tb.block_ids + ta.blocks, np.searchsorted(words, tb.words)), tb.counts)
+    total = np.asarray(X.sum(axis=0)).ravel()
+    bits = np.uint64(joint.bits)
+    context_addr = words >> bits if depth > 1 else np.zeros(U, np.uint64)
+    ctx_words, context = np.unique(context_addr, return_inverse=True)
+    n_ctx = ctx_words.size
+    figures = [f for f in options.figures if not (f == "transitions" and depth == 1)]
+    if "transitions" in options.figures and depth == 1:
+        notes.append("depth 1 has no context: the transitions test was skipped (use --depth 2 or more)")
+
+    fig = _Figures(total, context, n_ctx, depth, options.ratio)
+
+    def stats(tab_a: np.ndarray) -> dict[str, np.ndarray]:
+        tab_b = total[None, :] - tab_a
+        out: dict[str, np.ndarray] = {}
+        if "words" in figures:
+            out["words"] = g_statistic(tab_a, tab_b)
+        if "transitions" in figures:
+            out["transitions"] = conditional_g(tab_a, tab_b, context, n_ctx)
+        if "entropy_rate" in figures:
+            out["entropy_rate"] = fig.rate(tab_b) - fig.rate(tab_a)
+        if "D2" in figures:
+            out["D2"] = fig.d2(tab_b) - fig.d2(tab_a)
+        return out
+
+    label = np.zeros(K, dtype=np.float64)
+    label[: ta.blocks] = 1.0
+    obs_a = np.asarray(label @ X).ravel()
+    observed = stats(obs_a[None, :])
+    rng = np.random.default_rng(options.seed)
+    R = int(options.permutations)
+    reps: dict[str, list[np.ndarray]] = {f: [] for f in figures}
+    done = 0
+    while done < R:
+        r = min(_REPLICATE_BATCH, R - done)
+        L = np.zeros((r, K), dtype=np.float64)
+        for i in range(r):
+            L[i, rng.permutation(K)[: ta.blocks]] = 1.0
+        tab = np.asarray(L @ X) if not hasattr(X, "tocsr") else np.asarray((X.T @ L.T).T)
+        for f, v in stats(tab).items():
+            reps[f].append(v)
+        done += r
+    tests: list[DriftTest] = []
+    obs_b = total - obs_a
+    for f in figures:
+        rep = np.concatenate(reps[f])
+        obs = float(observed[f][0])
+        if f in ("words", "transitions"):
+            t_obs, t_rep = obs, rep
+        else:
+            t_obs, t_rep = abs(obs), np.abs(rep)
+        finite = np.isfinite(t_rep)
+        if not math.isfinite(t_obs):
+            p = 1.0
+            notes.append(f"{f} could not be estimated (too few words); its p-value is set to 1")
+        else:
+            tol = 1e-9 * max(1.0, abs(t_obs))
+            exceed = int(np.count_nonzero(t_rep[finite] >= t_obs - tol))
+            p = (1 + exceed) / (1 + int(finite.sum()))
+        sd = float(np.std(rep[finite])) if finite.sum() > 1 else math.nan
+        tests.append(_describe(f, obs, p, sd, obs_a, obs_b, fig, depth, options))
+    adj = adjust_pvalues([t.p_value for t in tests], options.adjust)
+    for t, a in zip(tests, adj):
+        t.p_adjusted = float(a)
+    p_min = float(min(t.p_adjusted for t in tests))
+    # the smallest p-value the design can reach: 1/(R+1), or 1/(number of distinct labellings)
+    labellings = math.comb(K, ta.blocks)
+    reachable = len(tests) * max(1.0 / (R + 1), 1.0 / labellings)
+    inconclusive = reachable >= options.alpha
+    if inconclusive:
+        notes.append(
+            f"with {ta.blocks} + {tb.blocks} blocks and {len(tests)} figures the smallest reachable adjusted p-value is "
+            f"{min(reachable, 1.0):.3g}, not below {options.alpha:g}: the batches are too short for this test; "
+            "use longer batches or a smaller --block"
+        )
+    changed = (p_min < options.alpha) and not inconclusive
+    top_words = _top_words(words, obs_a, obs_b, depth, joint, options.top)
+    top_contexts = _top_contexts(words, ctx_words, context, n_ctx, obs_a, obs_b, depth, joint, options.top) if depth > 1 else []
+    side = lambda t: {"inputs": t.names, "lengths": t.lengths, "symbols": int(sum(t.lengths)), "blocks": t.blocks, "words": int(t.counts.sum())}  # noqa: E731
+    return DriftResult(
+        changed, p_min, tests, top_words, top_contexts, side(ta), side(tb), depth, block, options,
+        {"name": joint.name, "size": joint.size}, notes, inconclusive,
+    )
+
+
+def _describe(f, obs, p, sd, obs_a, obs_b, fig, depth, options) -> DriftTest:
+    if f == "words":
+        jsd = js_divergence(obs_a, obs_b)
+        return DriftTest(
+            f, f"G (likelihood ratio) of homogeneity of the depth-{depth} word distributions", obs,
+            None, None, jsd, "Jensen-Shannon divergence, bits", None, p,
+        )
+    if f == "transitions":
+        T = float(obs_a.sum() + obs_b.sum())
+        cmi = obs / (2.0 * T * math.log(2.0)) if T > 0 else math.nan
+        return DriftTest(
+            f, f"conditional G of the next symbol given the previous {depth - 1}", obs,
+            None, None, cmi, "conditional mutual information of batch and next symbol, bits", None, p,
+        )
+    if f == "entropy_rate":
+        a, b = float(fig.rate(obs_a)[0]), float(fig.rate(obs_b)[0])
+        name = f"entropy rate H_{depth} - H_{depth - 1}, bits/symbol (Grassberger)"
+    else:
+        a, b = float(fig.d2(obs_a)[0]), float(fig.d2(obs_b)[0])
+        name = f"correlation dimension D_2 (order-2 Renyi rate over log2(1/k), k = {options.ratio:g})"
+    z = obs / sd if (sd and math.isfinite(sd) and sd > 0) else None
+    return DriftTest(f, "absolute difference of " + name, abs(obs), a, b, obs, "new - baseline", z, p)
+
+
+def _word_text(addr: int, n: int, joint: Alphabet) -> str:
+    mask = (1 << joint.bits) - 1
+    codes = [(int(addr) >> (joint.bits * (n - 1 - i))) & mask for i in range(n)]
+    return joint.word(codes)
+
+
+def _top_words(words, a, b, depth, joint, limit) -> list[dict]:
+    na, nb = a.sum(), b.sum()
+    c = a + b
+    T = na + nb
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ea, eb = na * c / T, nb * c / T
+        contrib = 2.0 * (_xlogx(a) - a * np.log(np.where(ea > 0, ea, 1)) + _xlogx(b) - b * np.log(np.where(eb > 0, eb, 1)))
+    G = contrib.sum()
+    order = np.lexsort((words, -contrib))[:limit]
+    out = []
+    for i in order:
+        fa, fb = a[i] / na, b[i] / nb
+        out.append(
+            {
+                "word": _word_text(words[i], depth, joint),
+                "baseline_count": int(a[i]),
+                "new_count": int(b[i]),
+                "baseline_frequency": float(fa),
+                "new_frequency": float(fb),
+                "direction": "more in new" if fb > fa else "less in new",
+                "share_of_statistic": float(contrib[i] / G) if G > 0 else 0.0,
+            }
+        )
+    return out
+
+
+def _top_contexts(words, ctx_words, context, n_ctx, a, b, depth, joint, limit) -> list[dict]:
+    G = conditional_g(a[None, :], b[None, :], context, n_ctx)[0]
+    per = np.zeros(n_ctx)
+    for j in range(n_ctx):
+        sel = context == j
+        per[j] = conditional_g(a[sel][None, :], b[sel][None, :], np.zeros(int(sel.sum()), np.int64), 1)[0]
+    order = np.lexsort((ctx_words, -per))[:limit]
+    mask = np.uint64((1 << joint.bits) - 1)
+    out = []
+    for j in order:
+        sel = np.flatnonzero(context == j)
+        sa, sb = a[sel], b[sel]
+        if sa.sum() <= 0 or sb.sum() <= 0:
+            changes = []
+        else:
+            pa, pb = sa / sa.sum(), sb / sb.sum()
+            k = int(np.argmax(np.abs(pb - pa)))
+            sym = joint.symbols[int(words[sel[k]] & mask)]
+            changes = [{"next": sym, "baseline_probability": float(pa[k]), "new_probability": float(pb[k])}]
+        out.append(
+            {
+                "context": _word_text(ctx_words[j], depth - 1, joint),
+                "baseline_count": int(sa.sum()),
+                "new_count": int(sb.sum()),
+                "share_of_statistic": float(per[j] / G) if G > 0 else 0.0,
+                "largest_change": changes,
+            }
+        )
+    return out

@@ -1,0 +1,455 @@
+"""Complexity figures in sliding windows along a stream, and their change points.
+
+For windows ``[s, s + W)`` with ``s = 0, S, 2S, ...`` (full windows only),
+the figures are computed from the n-words starting in the window (words do
+not cross segment breaks):
+
+``entropy_rate``
+    Conditional entropy of the next symbol given the previous ``n - 1``,
+    ``H_n - H_{n-1}`` of the window's word table, with the Miller–Madow
+    correction ``(K_n - K_{n-1}) / (2N)`` (Miller 1955), in bits per symbol.
+``D0``
+    Box-counting dimension at depth n: ``log2(distinct n-words) / (n log2(1/k))``
+    (the occupied boxes of side ``k**n`` are the distinct n-words).
+``surprise``
+    Mean code length of the window's symbols under the online count
+    predictor run once along the whole stream (:mod:`fractalseq.predict`),
+    bits per symbol: low where the stream repeats what it has seen.
+
+A window pass is one numba kernel that updates the word and context tables
+as the window slides (O(1) per symbol).  Change points are found on the
+standardised figures by PELT with a BIC-like penalty
+(:mod:`fractalseq.changepoint`); each segment is listed as an interval with
+its mean figures, and segments whose entropy rate lies far below the
+stream's typical value are flagged as low-complexity (repeats, low-complexity
+regions; in logs, stretches dominated by few templates).
+
+Genomic output is for research, not for clinical decisions.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numba import njit
+
+from fractalseq import __version__
+from fractalseq.changepoint import Segmentation, segment_series
+from fractalseq.errors import InputError, ParameterError
+from fractalseq.outputs import to_json
+from fractalseq.stream import SymbolArray
+
+CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
+FIGURES: tuple[str, ...] = ("entropy_rate", "D0", "surprise")
+#: Automatic depth: the window must hold this many words per possible word.
+WORDS_PER_CELL = 20
+#: Largest word table of the window kernel (address bits).
+MAX_TABLE_BITS = 26
+#: A segment is low-complexity when its entropy rate is this many noise scales below the median window.
+LOW_SCALES = 5.0
+
+
+@njit(cache=True)
+def _xlx(c):
+    return c * math.log(c) if c > 0 else 0.0
+
+
+@njit(cache=True)
+def window_counts(codes, starts, depth, bits, window, step, n_windows):
+    """Per window: words N, distinct words K_n, distinct contexts K_{n-1}, and
+    sums ``sum c ln c`` over words and over contexts (the context of a word is
+    its first ``n - 1`` symbols).
+
+    Returns ``(N, Kw, Kc, Sw, Sc)`` arrays of length ``n_windows``.
+    """
+    T = codes.shape[0]
+    nseg = starts.shape[0]
+    ub = np.uint64(bits)
+    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1)
+    addr = np.full(T, -1, dtype=np.int64)
+    for s in range(nseg):
+        a = starts[s]
+        e = starts[s + 1] if s + 1 < nseg else T
+        w = np.uint64(0)
+        filled = 0
+        for i in range(a, e):
+            w = ((w << ub) | np.uint64(codes[i])) & kmask
+            filled += 1
+            if filled >= depth:
+                addr[i - depth + 1] = np.int64(w)
+    cw = np.zeros(1 << (bits * depth), dtype=np.int64)
+    cc = np.zeros(1 << (bits * (depth - 1)), dtype=np.int64)
+    N = np.zeros(n_windows, dtype=np.int64)
+    Kw = np.zeros(n_windows, dtype=np.int64)
+    Kc = np.zeros(n_windows, dtype=np.int64)
+    Sw = np.zeros(n_windows)
+    Sc = np.zeros(n_windows)
+    n = 0
+    kw = 0
+    kc = 0
+    sw = 0.0
+    sc = 0.0
+    lo = 0  # words at positions [lo, hi) are in the tables
+    hi = 0
+    for j in range(n_windows):
+        s0 = j * step
+        e0 = s0 + window - depth + 1  # words must end inside the window
+        while lo < s0:
+            if lo < hi:
+                a = addr[lo]
+                if a >= 0:
+                    c = cw[a]
+                    sw += _xlx(c - 1) - _xlx(c)
+                    cw[a] = c - 1
+                    if c == 1:
+                        kw -= 1
+                    x = a >> (bits)
+                    c = cc[x]
+                    sc += _xlx(c - 1) - _xlx(c)
+                    cc[x] = c - 1
+                    if c == 1:
+                        kc -= 1
+                    n -= 1
+            lo += 1
+        if hi < lo:
+            hi = lo
+        while hi < e0:
+            a = addr[hi]
+            if a >= 0:
+                c = cw[a]
+                sw += _xlx(c + 1) - _xlx(c)
+                cw[a] = c + 1
+                if c == 0:
+                    kw += 1
+                x = a >> (bits)
+                c = cc[x]
+                sc += _xlx(c + 1) - _xlx(c)
+                cc[x] = c + 1
+                if c == 0:
+                    kc += 1
+                n += 1
+            hi += 1
+        N[j] = n
+        Kw[j] = kw
+        Kc[j] = kc
+        Sw[j] = sw
+        Sc[j] = sc
+    return N, Kw, Kc, Sw, Sc
+
+
+def choose_scan_depth(alphabet_size: int, window: int, max_depth: int) -> int:
+    """Largest n with ``A**n * 20 <= window`` (at least 1, at most ``max_depth``)."""
+    n = 1
+    while n < max_depth and float(alphabet_size) ** (n + 1) * WORDS_PER_CELL <= window:
+        n += 1
+    return n
+
+
+def surprise_series(arr: SymbolArray, seed: int = 0) -> np.ndarray | None:
+    """Per-symbol code length (bits) of the online predictor, or ``None`` if it offers none."""
+    try:
+        from fractalseq import predict
+    except ImportError:
+        return None
+    fn = getattr(predict, "online_code_length", None)
+    if fn is None:
+        return None
+    import inspect
+
+    kwargs: dict[str, Any] = {}
+    params = inspect.signature(fn).parameters
+    for flag in ("per_symbol", "keep_bits", "return_bits", "series"):
+        if flag in params:
+            kwargs[flag] = True
+    if "seed" in params:
+        kwargs["seed"] = seed
+    res = fn(arr, **kwargs)
+    for attr in ("bits", "code_lengths", "per_symbol_bits", "surprisal_bits", "symbol_bits"):
+        v = getattr(res, attr, None)
+        if v is not None and np.ndim(v) == 1 and len(v) == len(arr):
+            return np.asarray(v, dtype=float)
+    return None
+
+
+@dataclass
+class ScanResult:
+    """Window figures, change points and intervals of one stream.
+
+    Attributes
+    ----------
+    name, length, window, step, depth, ratio:
+        What was scanned and how.
+    starts:
+        Window start positions.
+    figures:
+        Figure name -> per-window values.
+    segmentation:
+        Change points (indices into the windows).
+    intervals:
+        One dict per segment: ``start``, ``end`` (symbol positions), window
+        count, mean figures, and ``low_complexity``.
+    records:
+        Records (e.g. FASTA records) of the stream, for orientation.
+    """
+
+    name: str
+    length: int
+    window: int
+    step: int
+    depth: int
+    ratio: float
+    starts: np.ndarray
+    figures: dict[str, np.ndarray]
+    segmentation: Segmentation
+    intervals: list[dict]
+    regions: list[dict] = field(default_factory=list)
+    records: list[dict] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def centers(self) -> np.ndarray:
+        return self.starts + self.window / 2.0
+
+    def change_positions(self) -> list[float]:
+        """Symbol positions of the change points (between two window centres)."""
+        return [float(self.starts[b]) + self.window / 2.0 - self.step / 2.0 for b in self.segmentation.breaks]
+
+    def to_dict(self) -> dict:
+        """The documented JSON contract (see the README section on ``scan --json``)."""
+        return {
+            "command": "scan",
+            "fractalseq": __version__,
+            "caution": CAUTION,
+            "name": self.name,
+            "length": self.length,
+            "window": self.window,
+            "step": self.step,
+            "depth": self.depth,
+            "ratio": self.ratio,
+            "figures": {
+                "entropy_rate": "conditional entropy H_n - H_{n-1} (Miller-Madow), bits/symbol",
+                "D0": "log2(distinct n-words) / (n log2(1/k))",
+                "surprise": "mean online predictor code length, bits/symbol",
+            },
+            "windows": {
+                "start": self.starts.tolist(),
+                **{k: v.tolist() for k, v in self.figures.items()},
+            },
+            "change_points": {
+                **self.segmentation.to_dict(),
+                "positions": self.change_positions(),
+            },
+            "intervals": self.intervals,
+            "low_complexity": self.regions,
+            "records": self.records,
+            "notes": list(self.notes),
+        }
+
+    def to_json(self) -> str:
+        return to_json(self.to_dict())
+
+
+def window_figures(arr: SymbolArray, window: int, step: int, depth: int, ratio: float = 0.5, seed: int = 0) -> tuple[np.ndarray, dict[str, np.ndarray], list[str]]:
+    """Window starts and the figures of every window (see the module documentation)."""
+    T = len(arr)
+    bits = arr.alphabet.bits
+    if bits * depth > MAX_TABLE_BITS:
+        raise ParameterError(f"Depth {depth} needs a table of 2**{bits * depth} cells; use a smaller --depth.")
+    n_windows = (T - window) // step + 1
+    starts = np.arange(n_windows, dtype=np.int64) * step
+    N, Kw, Kc, Sw, Sc = window_counts(arr.codes, arr.starts, int(depth), int(bits), int(window), int(step), int(n_windows))
+    notes: list[str] = []
+    with np.errstate(divide="ignore", invalid="ignore"):
+        Nf = N.astype(float)
+        h = np.where(N > 0, (Sc - Sw) / np.where(N > 0, Nf, 1.0) + (Kw - Kc) / (2.0 * np.where(N > 0, Nf, 1.0)), np.nan)
+        h = h / math.log(2.0)
+        d0 = np.where(Kw > 0, np.log2(np.maximum(Kw, 1)) / (depth * math.log2(1.0 / ratio)), np.nan)
+    figures = {"entropy_rate": h, "D0": d0}
+    bits_per_symbol = surprise_series(arr, seed)
+    if bits_per_symbol is not None:
+        c = np.concatenate([[0.0], np.cumsum(np.nan_to_num(bits_per_symbol))])
+        figures["surprise"] = (c[starts + window] - c[starts]) / window
+    else:
+        notes.append("the online predictor gives no per-symbol code lengths; the surprise figure is left out")
+    return starts, figures, notes
+
+
+def scan_stream(
+    arr: SymbolArray,
+    window: int,
+    step: int | None = None,
+    depth: int | None = None,
+    ratio: float = 0.5,
+    penalty: float | str = "bic",
+    seed: int = 0,
+) -> ScanResult:
+    """Scan a stream in sliding windows and find change points.
+
+    Parameters
+    ----------
+    arr:
+        The stream (in memory).
+    window:
+        Window length W in symbols.
+    step:
+        Step S between window starts (default ``W / 4``).
+    depth:
+        Word length n (default: largest n with ``A**n * 20 <= W``).
+    ratio:
+        Contraction ratio k for D0.
+    penalty:
+        ``"bic"`` or a number (see :func:`fractalseq.changepoint.segment_series`).
+    seed:
+        Seed of any random step (none at present; kept for the predictor).
+
+    Returns
+    -------
+    ScanResult
+    """
+    T = len(arr)
+    if not isinstance(window, (int, np.integer)) or window < 2:
+        raise ParameterError(f"The window must be a whole number of at least 2 symbols, not {window!r}.")
+    step = int(step) if step is not None else max(1, int(window) // 4)
+    if step < 1 or step > window:
+        raise ParameterError(f"The step must lie between 1 and the window ({window}); got {step}.")
+    if not 0.0 < ratio < 1.0:
+        raise ParameterError(f"The ratio k must lie strictly between 0 and 1, not {ratio}.")
+    if T < window:
+        raise InputError(f"{arr.name} has {T} symbols, fewer than one window of {window}; use a smaller --window.")
+    if depth is None:
+        depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth)
+    if depth < 1 or depth >= window:
+        raise ParameterError(f"The depth must lie between 1 and the window length; got {depth}.")
+    starts, figures, notes = window_figures(arr, int(window), step, int(depth), ratio, seed)
+    if len(starts) < 4:
+        notes.append("fewer than 4 windows: no change points can be found; use a smaller --window or --step")
+    overlap = max(1, int(math.ceil(window / step)))
+    seg = segment_series(figures, penalty, overlap)
+    intervals = _intervals(seg, starts, figures, window, step, T)
+    regions = _low_regions(seg, intervals, starts, figures, window, T)
+    records = [r.to_dict() for r in (arr.report.records if arr.report is not None else [])][:1000]
+    return ScanResult(arr.name, T, int(window), step, int(depth), ratio, starts, figures, seg, intervals, regions, records, notes)
+
+
+def _intervals(seg: Segmentation, starts: np.ndarray, figures: dict[str, np.ndarray], window: int, step: int, T: int) -> list[dict]:
+    pos = [0.0] + [float(starts[b]) + window / 2.0 - step / 2.0 for b in seg.breaks] + [float(T)]
+    h = figures["entropy_rate"]
+    med = float(np.nanmedian(h)) if np.isfinite(h).any() else math.nan
+    scale = seg.noise.get("entropy_rate", math.nan)
+    out = []
+    for i, (a, b) in enumerate(seg.segments()):
+        entry: dict[str, Any] = {
+            "start": int(round(pos[i])),
+            "end": int(round(pos[i + 1])),
+            "windows": int(b - a),
+        }
+        for k, v in figures.items():
+            vals = v[a:b]
+            entry[k] = float(np.nanmean(vals)) if np.isfinite(vals).any() else None
+        hv = entry.get("entropy_rate")
+        entry["low_complexity"] = bool(
+            hv is not None and math.isfinite(med) and math.isfinite(scale) and hv < med - LOW_SCALES * scale
+        )
+        out.append(entry)
+    return out
+
+
+#: A window lies inside a low-complexity run when its entropy rate is within this fraction of the gap above the run's level.
+INSIDE_FRACTION = 0.25
+
+
+def _low_regions(seg: Segmentation, intervals: list[dict], starts: np.ndarray, figures: dict[str, np.ndarray], window: int, T: int) -> list[dict]:
+    """Runs of low-complexity segments merged, with edges refined to the windows wholly inside.
+
+    A step in complexity at position ``r`` shows in overlapping windows as
+    a ramp over the windows that straddle ``r``; the entropy rate of a mixed
+    window is concave in the mixing fraction, so the ramp's half-height
+    point is biased, but a window lying wholly inside the run sits at the
+    run's own level.  Each region therefore runs from the start of the first
+    to the end of the last window whose entropy rate is within
+    ``INSIDE_FRACTION`` of the gap between the run's level (its lowest
+    segment mean) and the typical level outside (the median window outside
+    every low-complexity run) — the edges are then within one step of the
+    truth for a sharp-edged region at least one window long.
+    """
+    segs = seg.segments()
+    h = np.nan_to_num(figures["entropy_rate"], nan=float(np.nanmedian(figures["entropy_rate"])))
+    low = np.zeros(len(h), dtype=bool)
+    for k, (a, b) in enumerate(segs):
+        low[a:b] = intervals[k]["low_complexity"]
+    outside = float(np.median(h[~low])) if (~low).any() else float(np.median(h))
+    out = []
+    i = 0
+    while i < len(segs):
+        if not intervals[i]["low_complexity"]:
+            i += 1
+            continue
+        j = i
+        while j + 1 < len(segs) and intervals[j + 1]["low_complexity"]:
+            j += 1
+        a, b = segs[i][0], segs[j][1]
+        inside = float(np.min([intervals[k]["entropy_rate"] for k in range(i, j + 1)]))
+        thr = inside + INSIDE_FRACTION * (outside - inside)
+        idx = np.flatnonzero(h[a:b] <= thr) + a
+        if idx.size:
+            start, end = int(starts[idx[0]]), int(starts[idx[-1]] + window)
+            a, b = int(idx[0]), int(idx[-1]) + 1
+        else:
+            start, end = int(intervals[i]["start"]), int(intervals[j]["end"])
+        entry: dict[str, Any] = {"start": start, "end": min(end, T), "windows": int(b - a)}
+        for k, v in figures.items():
+            vals = v[a:b]
+            entry[k] = float(np.nanmean(vals)) if np.isfinite(vals).any() else None
+        entry["edges"] = "first and last window lying inside the run (entropy rate near the run's level)"
+        out.append(entry)
+        i = j + 1
+    return out
+
+
+def scan_png(result: ScanResult) -> bytes:
+    """The figures along the position axis, change points dashed, low-complexity intervals shaded."""
+    from fractalseq.report.figures import PALETTE, fig_to_png, figure, short, style
+
+    names = list(result.figures)
+    units = {"entropy_rate": "bits/symbol", "D0": "dimension", "surprise": "bits/symbol"}
+    with style():
+        fig, axes = figure(8.4, 2.1 * len(names) + 0.8, nrows=len(names))
+        axes = np.atleast_1d(axes)
+        x = result.centers
+        for ax, (i, name) in zip(axes, enumerate(names)):
+            ax.plot(x, result.figures[name], color=PALETTE[i % len(PALETTE)], lw=1.2)
+            for iv in result.regions:
+                ax.axvspan(iv["start"], iv["end"], color=PALETTE[1], alpha=0.18, lw=0)
+            for p in result.change_positions():
+                ax.axvline(p, color="#555555", ls="--", lw=0.9)
+            ax.set_ylabel(f"{name}\n({units.get(name, '')})", fontsize=9)
+        axes[-1].set_xlabel("position (symbols)")
+        axes[0].set_title(f"Scan of {short(result.name, 40)}: window {result.window}, step {result.step}, depth {result.depth}")
+        return fig_to_png(fig)
+
+
+def html_report(result: ScanResult):
+    """The scan as an HTML page: verdict-style summary, intervals table, figure."""
+    from fractalseq.report.html import HtmlReport
+
+    page = HtmlReport(f"Scan of {result.name}", f"{result.length} symbols; window {result.window}, step {result.step}, depth {result.depth}", caution=CAUTION)
+    low = result.regions
+    page.section("Intervals")
+    page.paragraph(
+        f"{len(result.segmentation.breaks)} change points; {len(low)} low-complexity interval(s). "
+        f"Method: {result.segmentation.method}. Penalty: {result.segmentation.penalty_rule}."
+    )
+    header = ["start", "end", "windows"] + list(result.figures) + ["low complexity"]
+    rows = [[iv["start"], iv["end"], iv["windows"]] + [iv.get(k) for k in result.figures] + ["yes" if iv["low_complexity"] else "no"] for iv in result.intervals]
+    page.table(header, rows, caption="Segments between change points")
+    if low:
+        page.table(["start", "end"] + list(result.figures), [[iv["start"], iv["end"]] + [iv.get(k) for k in result.figures] for iv in low], caption="Low-complexity regions (edges at half height)")
+    page.section("Figures along the stream")
+    page.figure(scan_png(result), "Window figures against position; dashed: change points; shaded: low-complexity intervals.", "Scan plot")
+    if result.notes:
+        page.section("Notes")
+        page.note("", result.notes)
+    return page

@@ -1,0 +1,106 @@
+"""The geometry/information table: D_q log2(1/k) from box counting beside h_q from word statistics."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from fractalseq import alphabet as al
+from fractalseq import markov
+from fractalseq.consistency import (
+    CONSISTENT,
+    INCONSISTENT,
+    NOT_APPLICABLE,
+    TOO_LITTLE,
+    conditional_rates,
+    consistency_table,
+    verdict,
+)
+from fractalseq.errors import InputError, ParameterError
+from fractalseq.outputs import to_json
+from fractalseq.stream import from_codes
+
+BIN = al.binary()
+DNA = al.dna()
+P2 = np.array([[0.9, 0.1], [0.4, 0.6]])
+
+
+@pytest.fixture(scope="module")
+def markov_table():
+    arr = from_codes(BIN, markov.simulate_markov(P2, 100_000, seed=31))
+    return arr, consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=4)
+
+
+def test_stationary_markov_chain_is_consistent(markov_table):
+    """Theory: D_q log2(1/k) = h_q for non-overlapping maps; both sides agree for a stationary chain."""
+    _, res = markov_table
+    for row in res.rows:
+        assert row.verdict == CONSISTENT, row
+        assert row.geometry_bits == pytest.approx(row.dimension, abs=1e-12)  # k = 1/2: log2(1/k) = 1
+
+
+def test_information_side_against_closed_forms(markov_table):
+    """h_1 = [b H(a) + a H(b)]/(a + b) = 0.5693865938 bits (Cover & Thomas 2006, §4.2; REFERENCE-CHECKS B2);
+
+    h_2 = -ln lambda_max([[.81, .01], [.16, .36]]) = 0.206375060 nats (Rached, Alajaji & Campbell 2001; B4).
+    Tolerance: the interval widened by 3 bootstrap standard errors (a clear failure only).
+    """
+    _, res = markov_table
+    truth = {0: 1.0, 1: 0.5693865938, 2: 0.206375059561 / math.log(2)}
+    for q, value in truth.items():
+        r = res.information.get(q)
+        assert r.low - 3 * (r.stderr or 0) <= value <= r.high + 3 * (r.stderr or 0), (q, r)
+        assert r.order is not None and r.order >= 1
+    # the two sides are measured independently: geometry by shifted grids, information by word counts
+    assert "box counting" in res.geometry.dims[0].method
+    assert res.information.rates[1].method.startswith("conditional form")
+
+
+def test_same_seed_same_table(markov_table):
+    arr, res = markov_table
+    again = consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=4)
+    assert to_json(res.to_dict()) == to_json(again.to_dict())
+
+
+def test_golden_mean_rates_by_conditional_form():
+    """Golden-mean chain [[1/2,1/2],[1,0]]: h_0 = log2 phi (Lind & Marcus 1995, ch. 4), h_1 = 2/3 bit
+
+    (Cover & Thomas 2006, Problem 4.7: H(p)/(1+p) at p = 1/2), h_2 = 0.642981363 bits (REFERENCE-CHECKS A6).
+    """
+    arr = from_codes(BIN, markov.golden_mean(200_000, seed=9, p=0.5))
+    res = conditional_rates(arr, qs=(0, 1, 2), n_boot=60, seed=2)
+    phi = (1 + math.sqrt(5)) / 2
+    assert res.get(0).estimate == pytest.approx(math.log2(phi), abs=2e-3)
+    assert res.get(1).estimate == pytest.approx(2 / 3, abs=0.01)
+    assert res.get(2).estimate == pytest.approx(0.642981363, abs=0.015)
+    for r in res.rates:
+        assert r.low <= r.high
+
+
+def test_overlapping_maps_are_not_applicable():
+    arr = from_codes(BIN, markov.bernoulli(20_000, 0.5, seed=3))
+    res = consistency_table(arr, qs=(0, 1), ratio=0.6, n_boot=0, offsets=2)
+    assert all(r.verdict == NOT_APPLICABLE for r in res.rows)
+    assert res.flags and "overlap" in res.flags[0]
+
+
+def test_short_stream_is_too_little_data():
+    arr = from_codes(BIN, markov.bernoulli(200, 0.5, seed=3))
+    res = consistency_table(arr, qs=(1, 2), n_boot=0, offsets=2)
+    assert all(r.verdict == TOO_LITTLE for r in res.rows)
+
+
+def test_verdict_rule():
+    assert verdict(0.1, 0.2, 0.15, 0.3) == CONSISTENT
+    assert verdict(0.1, 0.2, 0.2 + 1e-12, 0.3) == CONSISTENT  # exact counts give zero-width intervals
+    assert verdict(0.1, 0.2, 0.25, 0.3) == INCONSISTENT
+    assert verdict(0.1, float("nan"), 0.25, 0.3) == TOO_LITTLE
+
+
+def test_consistency_errors():
+    with pytest.raises(InputError):
+        consistency_table(from_codes(BIN, np.zeros(20, np.uint8)))
+    with pytest.raises(ParameterError):
+        consistency_table(from_codes(BIN, markov.bernoulli(5000, 0.5, seed=1)), ratio=0.0)

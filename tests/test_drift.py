@@ -1,0 +1,180 @@
+"""Two-batch drift test: statistics against scipy, block tables, calibration, logs, CLI."""
+
+from __future__ import annotations
+
+import json
+import math
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+from scipy.stats import chi2_contingency, false_discovery_control
+
+from fractalseq.alphabet import dna
+from fractalseq.drift import (
+    DriftOptions,
+    _Figures,
+    adjust_pvalues,
+    block_tables,
+    conditional_g,
+    drift_test,
+    g_statistic,
+)
+from fractalseq.engine import ProcessEngine, iter_pieces
+from fractalseq.entropy import rate_from_counts, renyi_rate_from_counts
+from fractalseq.errors import ParameterError
+from fractalseq.markov import simulate_markov
+from fractalseq.stream import SymbolArray, from_codes
+from fractalseq.words import count_words
+
+CLI = [sys.executable, "-c", "import sys; from fractalseq.cli.app import main; sys.exit(main(sys.argv[1:]))"]
+CHAIN = np.random.default_rng(20240611).dirichlet(np.full(4, 5.0), size=16)  # invented order-2 chain
+
+
+def _changed_chain(shift=0.05):
+    Q = CHAIN.copy()
+    hi, lo = int(np.argmax(Q[5])), int(np.argmin(Q[5]))
+    Q[5, hi] -= shift
+    Q[5, lo] += shift
+    return Q
+
+
+def _batch(P, n, seed, name):
+    return from_codes(dna(), simulate_markov(P, n, seed=seed, order=2), name=name)
+
+
+def test_g_statistic_matches_scipy_log_likelihood_ratio():
+    # scipy.stats.chi2_contingency(lambda_="log-likelihood") is the G-test (Sokal & Rohlf, Biometry)
+    rng = np.random.default_rng(1)
+    for _ in range(20):
+        table = rng.integers(1, 60, size=(2, 9)).astype(float)
+        ref = chi2_contingency(table, correction=False, lambda_="log-likelihood")[0]
+        assert g_statistic(table[0], table[1])[0] == pytest.approx(ref, rel=1e-10)
+
+
+def test_conditional_g_is_the_sum_of_per_context_g_tests():
+    rng = np.random.default_rng(2)
+    a = rng.integers(1, 50, 16).astype(float)
+    b = rng.integers(1, 50, 16).astype(float)
+    context = np.repeat(np.arange(4), 4)  # 4 contexts x 4 next symbols
+    ref = sum(
+        chi2_contingency(np.vstack([a[context == c], b[context == c]]), correction=False, lambda_="log-likelihood")[0]
+        for c in range(4)
+    )
+    assert conditional_g(a, b, context, 4)[0] == pytest.approx(ref, rel=1e-10)
+
+
+def test_adjustments_match_scipy_and_a_worked_holm_example():
+    p = np.array([0.01, 0.04, 0.03, 0.005, 0.5, 0.2])
+    # Benjamini-Hochberg adjusted p-values as computed by scipy (an outside reference)
+    assert np.allclose(adjust_pvalues(p, "bh"), false_discovery_control(p, method="bh"))
+    # Holm (1979) step-down, worked by hand: sorted p 0.005 0.01 0.03 0.04 0.2 0.5, multipliers 6..1
+    # -> 0.03 0.05 0.12 0.12 (max with 0.08) 0.4 0.5
+    expected = {0.005: 0.03, 0.01: 0.05, 0.03: 0.12, 0.04: 0.12, 0.2: 0.4, 0.5: 0.5}
+    got = adjust_pvalues(p, "holm")
+    for pi, gi in zip(p, got):
+        assert gi == pytest.approx(expected[pi])
+    with pytest.raises(ParameterError):
+        adjust_pvalues(p, "bonferroni")
+
+
+def test_vectorised_figures_equal_the_entropy_module():
+    rng = np.random.default_rng(4)
+    counts = rng.integers(0, 40, 64).astype(float)
+    context = np.repeat(np.arange(16), 4)
+    fig = _Figures(counts, context, 16, 3, 0.5)
+    prev = np.bincount(context, weights=counts, minlength=16)
+    assert fig.rate(counts)[0] == pytest.approx(rate_from_counts(prev, counts, "grassberger"), abs=1e-12)
+    assert fig.d2(counts)[0] == pytest.approx(renyi_rate_from_counts(prev, counts, 2.0, True), abs=1e-12)
+
+
+def test_block_tables_sum_to_the_exact_word_counts():
+    rng = np.random.default_rng(7)
+    codes = rng.integers(0, 4, 20_000).astype(np.uint8)
+    arr = SymbolArray(dna(), codes, [0, 777, 5000, 5001, 12_345], "x")
+    depth, block = 3, 250
+    total = {}
+    for p in iter_pieces(arr.as_stream(chunk_size=999), block * 7, depth - 1):
+        b, w, c = block_tables((p, depth, block))
+        assert np.all(b >= p.offset // block) and np.all(b < (p.offset + p.core + block - 1) // block)
+        for wi, ci in zip(w.tolist(), c.tolist()):
+            total[wi] = total.get(wi, 0) + ci
+    ref_w, ref_c = count_words(arr, depth).words(depth)
+    assert total == dict(zip(ref_w.tolist(), ref_c.tolist()))
+
+
+def test_no_change_keeps_its_level_and_a_change_is_found():
+    # calibration on 40 small null trials (fixed seeds): the permutation test should reject
+    # about 5% of the time; more than 5 of 40 would signal a badly calibrated test
+    opts = DriftOptions(permutations=199)
+    rejected = 0
+    for i in range(40):
+        r = drift_test([_batch(CHAIN, 20_000, 100 + 2 * i, "a")], [_batch(CHAIN, 20_000, 101 + 2 * i, "b")], opts)
+        rejected += r.changed
+    assert rejected <= 5
+    # power: a shift of 0.15 in one transition row at 2e4 symbols per batch is found every time
+    Q = _changed_chain(0.15)
+    for i in range(5):
+        r = drift_test([_batch(CHAIN, 20_000, 300 + i, "a")], [_batch(Q, 20_000, 400 + i, "b")], opts)
+        assert r.changed and r.p_value < 0.05
+        trans = next(t for t in r.tests if t.figure == "transitions")
+        assert trans.p_adjusted <= 0.05
+        assert r.top_contexts[0]["context"] == "CC"  # context 5 = (C, C) is the one changed
+
+
+def test_engines_give_identical_results():
+    base = [_batch(CHAIN, 30_000, 1, "a1"), _batch(CHAIN, 10_000, 2, "a2")]
+    new = [_batch(_changed_chain(), 40_000, 3, "b")]
+    serial = drift_test(base, new, DriftOptions(seed=9, permutations=99))
+    with ProcessEngine(2) as eng:
+        par = drift_test(base, new, DriftOptions(seed=9, permutations=99), eng)
+    assert serial.to_json() == par.to_json()
+
+
+def test_logs_with_different_templates_use_a_joint_alphabet(tmp_path):
+    # invented scenario: a small service log; the new batch gains a timeout event
+    rng = np.random.default_rng(0)
+    events = ["worker {n} started job {j}", "job {j} finished in {n} ms", "cache hit for key {n}"]
+    extra = "upstream timeout after {n} ms on shard {j}"
+
+    def write(path, n, with_extra):
+        lines = []
+        for i in range(n):
+            pool = events + ([extra] * 2 if with_extra else [])
+            t = pool[int(rng.integers(0, len(pool)))]
+            lines.append(f"2024-03-0{1 + i % 9}T10:00:{i % 60:02d} " + t.format(n=int(rng.integers(0, 999)), j=int(rng.integers(0, 99))))
+        path.write_text("\n".join(lines) + "\n")
+
+    write(tmp_path / "old.log", 6000, False)
+    write(tmp_path / "new.log", 6000, True)
+    cmd = CLI + ["drift", str(tmp_path / "old.log"), str(tmp_path / "new.log"), "--format", "log", "--json", "-q", "--permutations", "199"]
+    proc = subprocess.run(cmd, capture_output=True, text=True)
+    assert proc.returncode == 1, proc.stderr  # 1 = drift found
+    data = json.loads(proc.stdout)
+    assert data["changed"] is True and data["p_value"] < 0.05
+    assert data["alphabet"]["size"] == 4  # three shared templates and the new one
+    assert "timeout" in data["top_words"][0]["word"] and data["top_words"][0]["direction"] == "more in new"
+    assert "no security guarantee" in data["caution"]
+
+
+def test_cli_contract_verdict_and_exit_codes(tmp_path):
+    a, b = tmp_path / "a.fa", tmp_path / "b.fa"
+    for path, seed in ((a, 1), (b, 2)):
+        x = simulate_markov(CHAIN, 30_000, seed=seed, order=2)
+        path.write_text(">x\n" + "".join("ACGT"[c] for c in x) + "\n")
+    run = lambda *args: subprocess.run(CLI + ["drift", *args], capture_output=True, text=True)  # noqa: E731
+    text = run(str(a), str(b), "-q", "--permutations", "99")
+    assert text.returncode == 0, text.stderr
+    assert text.stdout.splitlines()[0].startswith("NO CHANGE DETECTED: the new batch is consistent with the baseline")
+    assert "no security guarantee" in text.stdout
+    j1 = run(str(a), str(b), "-q", "--json", "--permutations", "99", "--seed", "3")
+    j2 = run(str(a), str(b), "-q", "--json", "--permutations", "99", "--seed", "3")
+    assert j1.stdout == j2.stdout  # same input and seed: byte-identical JSON
+    data = json.loads(j1.stdout)
+    assert set(data) >= {"changed", "p_value", "tests"}
+    assert data["p_value"] == min(t["p_adjusted"] for t in data["tests"])
+    assert {t["figure"] for t in data["tests"]} == {"words", "transitions", "entropy_rate", "D2"}
+    bad = run(str(a), str(tmp_path / "missing.fa"), "-q")
+    assert bad.returncode == 2 and bad.stderr.startswith("error: ") and "Traceback" not in bad.stderr
+    assert math.isfinite(data["tests"][0]["statistic"])

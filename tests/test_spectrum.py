@@ -1,0 +1,325 @@
+"""Rényi dimensions from word counts, checked against published closed forms.
+
+Sources are simulated with fractalseq.markov (seeded); every expected value
+comes from a closed form in the literature, with the citation beside it
+(values recomputed in /work/shared/REFERENCE-CHECKS.md, rows A1-A6, E2-E4).
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+import math
+
+import numpy as np
+import pytest
+from scipy.stats import entropy as scipy_entropy
+from scipy.stats import multinomial
+
+from fractalseq import alphabet as al
+from fractalseq import markov
+from fractalseq.errors import InputError, ParameterError
+from fractalseq.outputs import to_json
+from fractalseq.spectrum import (
+    NEGATIVE_Q,
+    OVERLAP,
+    binomial_dimension,
+    dimension_spectrum,
+    level_stats,
+)
+from fractalseq.stream import from_codes
+from fractalseq.words import count_words
+
+PHI = (1 + math.sqrt(5)) / 2
+BIN = al.binary()
+DNA = al.dna()
+
+
+def binary_stream(codes):
+    return from_codes(BIN, codes)
+
+
+@pytest.fixture(scope="module")
+def bernoulli_1e6():
+    return binary_stream(markov.bernoulli(1_000_000, 0.3, seed=11))
+
+
+# ------------------------------------------------------------ A1 full shift
+@pytest.mark.parametrize(
+    "size, ratio, expected",
+    [
+        # Stein & Shakarchi, Real Analysis (2005), ch. 7 Thm 2.12: log m / log(1/r); Cantor set log 2 / log 3
+        (2, 1 / 3, 0.630929753571),
+        # Falconer, Fractal Geometry (2003), Thm 9.3 (theorem number from memory): A = 4, k = 1/3
+        (4, 1 / 3, 1.261859507143),
+        # same similarity dimension, A = 4, k = 0.4 (REFERENCE-CHECKS A1)
+        (4, 0.4, 1.512941594732),
+        # A = 4, k = 1/2 fills the square: D_0 = 2
+        (4, 0.5, 2.0),
+    ],
+)
+def test_full_shift_similarity_dimension(size, ratio, expected):
+    rng = np.random.default_rng(size)
+    alphabet = BIN if size == 2 else DNA
+    arr = from_codes(alphabet, rng.integers(0, size, 200_000))
+    res = dimension_spectrum(arr, qs=(0, 1, 2), ratio=ratio, n_boot=0)
+    d0 = res.get(0)
+    # every n-word occurs at the depths used, so D_0 = ln A / ln(1/k) up to rounding
+    assert d0.estimate == pytest.approx(expected, abs=1e-9)
+    assert math.isclose(expected, math.log(size) / math.log(1 / ratio), abs_tol=1e-11)
+    # uniform measure: D_1 = D_2 = D_0 (REFERENCE-CHECKS A1: 5e-3 with A^m <= n/100)
+    assert res.get(1).estimate == pytest.approx(expected, abs=5e-3)
+    assert res.get(2).estimate == pytest.approx(expected, abs=5e-3)
+    # the automatic range respects A^(n+1) <= N/100 at its deepest depth (rule 4: distinct <= N/100)
+    assert size ** d0.n_hi <= len(arr) / 100
+
+
+# ------------------------------------------------------------ A4 binomial cascade
+BINOMIAL_P03 = {
+    # Halsey, Jensen, Kadanoff, Procaccia & Shraiman 1986, Phys. Rev. A 33:1141 (two-scale Cantor set);
+    # D_q = log2(p^q + (1-p)^q) / (1 - q); explicit binomial formula from memory, values REFERENCE-CHECKS A4
+    0: 1.0,
+    1: 0.881290899,
+    2: 0.785875195,
+    3: 0.717201412,
+}
+
+
+def test_binomial_formula_matches_published_values():
+    for q, value in BINOMIAL_P03.items():
+        assert binomial_dimension(0.3, q) == pytest.approx(value, abs=1e-9)
+    assert binomial_dimension(0.3, -2) == pytest.approx(1.239067446, abs=1e-9)
+    # Meneveau & Sreenivasan 1987 p-model: p = 0.7 gives the same D_q
+    assert binomial_dimension(0.7, 2) == pytest.approx(0.785875195, abs=1e-9)
+
+
+def test_binomial_cascade_fixed_range(bernoulli_1e6):
+    res = dimension_spectrum(bernoulli_1e6, qs=(-2, 0, 1, 2, 3), depth_range=(6, 10), n_boot=0)
+    for q, value in BINOMIAL_P03.items():
+        # REFERENCE-CHECKS A4: n = 1e6, m in [6, 10]: abs tol 2e-3 for 0 <= q <= 3
+        assert res.get(q).estimate == pytest.approx(value, abs=2e-3), q
+        assert res.get(q).n_lo == 6 and res.get(q).n_hi == 10
+    neg = res.get(-2)
+    assert NEGATIVE_Q in neg.flags
+    assert NEGATIVE_Q not in res.get(2).flags
+    assert any("rarest box" in f for f in neg.flags)  # depth 10's rarest box is seen ~6 times, far too few
+    # the automatic range stops where the rarest box is seen >= q(q-1)/(2 * 0.01) = 300 times;
+    # REFERENCE-CHECKS A4: 0.02 for q = -2 (there per level; differences amplify the deepest level's noise)
+    auto = dimension_spectrum(bernoulli_1e6, qs=(-2,), n_boot=0, falpha=False).get(-2)
+    assert auto.estimate == pytest.approx(1.239067446, abs=0.02)
+    assert 1e6 * 0.3**auto.n_hi >= 300 / 3
+
+
+def test_binomial_cascade_automatic_range(bernoulli_1e6):
+    res = dimension_spectrum(bernoulli_1e6, qs=(0, 1, 2), n_boot=0)
+    for q in (0, 1, 2):
+        d = res.get(q)
+        assert d.estimate == pytest.approx(BINOMIAL_P03[q], abs=2e-3), q
+        assert d.n_hi - d.n_lo + 1 >= 3
+        assert d.range_rule.startswith("automatic")
+    # D_0 needs every box hit (rule 4): at the deepest depth used all 2^n words were seen
+    n_hi = res.get(0).n_hi
+    assert res.levels[n_hi - 1]["distinct"] == 2**n_hi
+
+
+def test_binomial_falpha_chhabra_jensen(bernoulli_1e6):
+    """Direct f(alpha) (Chhabra & Jensen 1989, PRL 62:1327) against the binomial measure's Legendre transform.
+
+    REFERENCE-CHECKS A4 (Halsey et al. 1986): p = 0.3, alpha(2) = 0.704254755, f = 0.622634316;
+    alpha(0) = 1.125769384 with f = 1; alpha(1) = f(alpha(1)) = D_1.
+    """
+    res = dimension_spectrum(bernoulli_1e6, qs=(0, 1, 2), depth_range=(6, 10), n_boot=0)
+    fa = {p.q: p for p in res.falpha}
+    assert fa[2.0].alpha == pytest.approx(0.704254755, abs=3e-3)
+    assert fa[2.0].f == pytest.approx(0.622634316, abs=3e-3)
+    assert fa[0.0].alpha == pytest.approx(1.125769384, abs=3e-3)
+    assert fa[0.0].f == pytest.approx(1.0, abs=1e-9)
+    assert fa[1.0].alpha == pytest.approx(0.881290899, abs=3e-3)
+    assert fa[1.0].f == pytest.approx(fa[1.0].alpha, abs=1e-9)
+
+
+# ------------------------------------------------------------ A5 Markov chains
+def test_two_state_markov_renyi_dimensions():
+    """Rached, Alajaji & Campbell 2001, IEEE Trans. Inf. Theory 47:1553: D_q = h_q / ln(1/k).
+
+    P = [[.9, .1], [.4, .6]], k = 1/2: D_1 = 0.569386594, D_2 = 0.297736275 (REFERENCE-CHECKS A5;
+    formula shape from memory, verified there by exact block sums); tolerance 0.01 at n = 1e6.
+    """
+    P = np.array([[0.9, 0.1], [0.4, 0.6]])
+    arr = binary_stream(markov.simulate_markov(P, 1_000_000, seed=5))
+    res = dimension_spectrum(arr, qs=(0, 1, 2), n_boot=0)
+    assert res.get(0).estimate == pytest.approx(1.0, abs=1e-9)
+    assert res.get(1).estimate == pytest.approx(0.569386594, abs=0.01)
+    assert res.get(2).estimate == pytest.approx(0.297736275, abs=0.01)
+
+
+@pytest.mark.parametrize("ratio, d1, d2", [(0.5, 1.901215753, 1.841698278), (1 / 3, 1.199533587, 1.161982241)])
+def test_dna_like_chain(ratio, d1, d2):
+    """The 4x4 DNA-like chain of REFERENCE-CHECKS A5 (Rached et al. 2001), k = 1/2 and 1/3, tol 0.01."""
+    P = np.array([[0.4, 0.1, 0.2, 0.3], [0.3, 0.3, 0.05, 0.35], [0.25, 0.25, 0.3, 0.2], [0.2, 0.2, 0.3, 0.3]])
+    arr = from_codes(DNA, markov.simulate_markov(P, 1_000_000, seed=7))
+    res = dimension_spectrum(arr, qs=(1, 2), ratio=ratio, n_boot=0)
+    assert res.get(1).estimate == pytest.approx(d1, abs=0.01)
+    assert res.get(2).estimate == pytest.approx(d2, abs=0.01)
+
+
+# ------------------------------------------------------------ A6 golden-mean shift
+def test_golden_mean_shift():
+    """No '11' (golden-mean shift), k = 1/2: D_0 = log2 phi (Furstenberg 1967, from memory);
+
+    chain [[1/2, 1/2], [1, 0]]: D_1 = 2/3 exactly (Cover & Thomas 2006, Problem 4.7: H(p)/(1+p)),
+    D_2 = -log2((1 + sqrt 17)/8) = 0.642981363 (REFERENCE-CHECKS A6); tolerance 3e-3 at n = 1e6.
+    """
+    arr = binary_stream(markov.golden_mean(1_000_000, seed=3, p=0.5))
+    res = dimension_spectrum(arr, qs=(0, 1, 2), n_boot=0)
+    assert res.get(0).estimate == pytest.approx(math.log2(PHI), abs=3e-3)
+    assert res.get(1).estimate == pytest.approx(2 / 3, abs=3e-3)
+    assert res.get(2).estimate == pytest.approx(-math.log2((1 + math.sqrt(17)) / 8), abs=3e-3)
+    assert -math.log2((1 + math.sqrt(17)) / 8) == pytest.approx(0.642981363, abs=1e-9)
+    # distinct words of the golden-mean shift are Fibonacci numbers F(n+2) (REFERENCE-CHECKS B1)
+    fib = [1, 2]
+    while len(fib) < 30:
+        fib.append(fib[-1] + fib[-2])
+    for row in res.levels[:12]:
+        assert row["distinct"] == fib[row["n"]]
+
+
+# ------------------------------------------------------------ intervals
+@pytest.fixture(scope="module")
+def markov_boot():
+    P = np.array([[0.9, 0.1], [0.4, 0.6]])
+    arr = binary_stream(markov.simulate_markov(P, 100_000, seed=21))
+    return arr, dimension_spectrum(arr, qs=(0, 1, 2, -1), n_boot=60, seed=4)
+
+
+def test_bootstrap_intervals_cover_truth_and_are_reported(markov_boot):
+    arr, res = markov_boot
+    truth = {0: 1.0, 1: 0.569386594, 2: 0.297736275}  # REFERENCE-CHECKS A5
+    for q, value in truth.items():
+        d = res.get(q)
+        assert d.low <= d.estimate <= d.high
+        # a 95% interval may miss; allow 4 bootstrap standard errors beyond it (a clear failure only)
+        se = max(d.stderr, 1e-12)
+        assert d.low - 4 * se <= value <= d.high + 4 * se
+        assert d.stderr > 0 or q == 0
+    assert res.block is not None and res.block.length >= 10 * res.get(1).n_hi
+    assert "Politis-White" in res.block.rule
+    assert res.n_boot == 60 and res.scheme == "nonoverlapping"
+    assert NEGATIVE_Q in res.get(-1).flags
+
+
+def test_same_seed_same_bytes(markov_boot):
+    arr, res = markov_boot
+    again = dimension_spectrum(arr, qs=(0, 1, 2, -1), n_boot=60, seed=4)
+    assert to_json(res.to_dict()) == to_json(again.to_dict())
+    other = dimension_spectrum(arr, qs=(0, 1, 2, -1), n_boot=60, seed=5)
+    assert other.get(1).low != res.get(1).low
+    # the fit weights and the range come from the replicates, so the estimate moves a little with the seed,
+    # far less than its standard error
+    assert abs(other.get(1).estimate - res.get(1).estimate) < 0.1 * res.get(1).stderr
+    json.loads(to_json(res.to_dict()))
+
+
+def test_word_counts_input_gives_same_estimates():
+    arr = binary_stream(markov.bernoulli(50_000, 0.3, seed=2))
+    from_stream = dimension_spectrum(arr, qs=(1, 2), depth_range=(2, 7), n_boot=0)
+    wc = count_words(arr, 9)
+    from_counts = dimension_spectrum(wc, qs=(1, 2), depth_range=(2, 7), n_boot=30)
+    for q in (1, 2):
+        assert from_counts.get(q).estimate == pytest.approx(from_stream.get(q).estimate, abs=1e-12)
+        assert math.isfinite(from_counts.get(q).low)
+    assert any("no bootstrap" in f for f in from_counts.flags)
+
+
+def test_short_stream_reports_too_little_data():
+    arr = binary_stream(markov.bernoulli(300, 0.5, seed=1))
+    res = dimension_spectrum(arr, qs=(1, 2), n_boot=0)
+    for d in res.dims:
+        assert math.isnan(d.estimate)
+        assert any("too little data" in f for f in d.flags)
+
+
+def test_periodic_stream_has_dimension_zero():
+    # a periodic sequence has a finite set of words: D_q = 0 for every q (entropy rate 0; REFERENCE-CHECKS B7)
+    arr = binary_stream(np.tile(np.array([0, 1, 1], np.uint8), 20_000))
+    res = dimension_spectrum(arr, qs=(0, 1, 2), n_boot=0)
+    for q in (0, 1, 2):
+        assert res.get(q).estimate == pytest.approx(0.0, abs=1e-4)
+
+
+# ------------------------------------------------------------ estimators
+def test_miller_madow_and_plugin_pinned_values():
+    # REFERENCE-CHECKS E2: counts [5,3,1,1,0]: ML 1.1682824502, MM 1.3182824502 (Miller 1955)
+    counts = np.array([5, 3, 1, 1, 0])
+    qs = np.array([1.0])
+    assert level_stats(counts, None, qs, corrected=False).H[0] == pytest.approx(1.1682824502, abs=1e-9)
+    assert level_stats(counts, None, qs, corrected=True).H[0] == pytest.approx(1.3182824502, abs=1e-9)
+    # plug-in equals scipy's entropy (general-purpose reference library)
+    assert level_stats(counts, None, qs, corrected=False).H[0] == pytest.approx(scipy_entropy(counts), abs=1e-12)
+
+
+def test_spectrum_form_equals_count_vector_form():
+    counts = np.array([7, 7, 7, 3, 3, 1, 12])
+    values, mult = np.unique(counts, return_counts=True)
+    qs = np.array([-1.0, 0.0, 0.5, 1.0, 2.0, 3.0, 2.5])
+    a = level_stats(counts, None, qs).vector()
+    b = level_stats(values, mult, qs).vector()
+    assert np.allclose(a, b, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("q", [2, 3])
+def test_falling_factorial_partition_sum_is_unbiased(q):
+    """E[sum c(c-1)...(c-q+1)] / (N(N-1)...(N-q+1)) = sum p^q exactly (REFERENCE-CHECKS E4: binomial factorial moments)."""
+    p = np.array([0.5, 0.3, 0.15, 0.05])
+    N = 7
+    qs = np.array([float(q)])
+    expect = 0.0
+    for counts in itertools.product(range(N + 1), repeat=3):
+        if sum(counts) > N:
+            continue
+        c = np.array(list(counts) + [N - sum(counts)])
+        H = level_stats(c, None, qs).H[0]
+        z = math.exp((1 - q) * H) if math.isfinite(H) else 0.0
+        expect += multinomial.pmf(c, N, p) * z
+    assert expect == pytest.approx(float((p**q).sum()), abs=1e-12)
+
+
+def test_large_counts_and_extreme_q_do_not_overflow():
+    counts = np.array([10**9, 10**9, 1, 5])
+    st = level_stats(counts, None, np.array([-40.0, 40.0, 0.0]))
+    assert np.all(np.isfinite(st.H))
+    # q -> +inf tends to -ln max p; q = 40 is already close
+    assert st.H[1] == pytest.approx(-math.log(0.5), rel=0.05)
+
+
+# ------------------------------------------------------------ overlap and errors
+def test_overlapping_maps_switch_to_box_counting():
+    # REFERENCE-CHECKS A2: k = 0.6, A = 2 on [0, 1]: the maps overlap; measured D_0 = 1, not ln 2 / ln(1/0.6)
+    arr = binary_stream(markov.bernoulli(200_000, 0.5, seed=8))
+    res = dimension_spectrum(arr, qs=(0,), ratio=0.6, n_boot=0, falpha=False)
+    assert res.route == "geometric box counting"
+    assert any(f.startswith(OVERLAP) for f in res.flags)
+    assert res.get(0).estimate == pytest.approx(1.0, abs=0.01)
+    assert abs(res.get(0).estimate - math.log(2) / math.log(1 / 0.6)) > 0.3
+    with pytest.raises(ParameterError):
+        dimension_spectrum(count_words(arr, 8), qs=(0,), ratio=0.6)
+
+
+def test_bad_parameters_raise_one_sentence_errors():
+    arr = binary_stream(markov.bernoulli(10_000, 0.5, seed=1))
+    with pytest.raises(ParameterError):
+        dimension_spectrum(arr, qs=())
+    with pytest.raises(ParameterError):
+        dimension_spectrum(arr, qs=(float("nan"),))
+    with pytest.raises(ParameterError):
+        dimension_spectrum(arr, ratio=1.5)
+    with pytest.raises(ParameterError):
+        dimension_spectrum(arr, depth_range=(5, 5))
+    with pytest.raises(ParameterError):
+        dimension_spectrum(arr, n_boot=5)
+    with pytest.raises(ParameterError):
+        dimension_spectrum(arr, interval="magic")
+    with pytest.raises(InputError):
+        dimension_spectrum(from_codes(BIN, np.zeros(0, np.uint8)))
+    with pytest.raises(InputError):
+        dimension_spectrum([0, 1, 0])  # not a stream
