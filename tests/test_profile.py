@@ -14,10 +14,8 @@ Outside references (see /work/shared/REFERENCE-CHECKS.md):
 
 from __future__ import annotations
 
-import gzip
 import json
 import math
-import os
 from pathlib import Path
 
 import numpy as np

@@ -98,6 +98,19 @@ def short(name: str, limit: int = 48) -> str:
     return name[:half] + "…" + name[-(limit - 1 - half):]
 
 
+def title_for(kind: str, source: str, limit: int = 60) -> str:
+    """A figure title naming the source: ``"kind — name"``, or two lines when that is long.
+
+    A path is shown by its file name; names longer than ``limit`` are cut in the middle.
+    """
+    name = str(source)
+    if "/" in name and not name.endswith("/"):
+        name = name.rsplit("/", 1)[1]
+    name = short(name, limit)
+    one = f"{kind} — {name}"
+    return one if len(one) <= 56 else f"{kind}\n{name}"
+
+
 def density_cmap():
     """The sequential colour map of density images (paper white → teal → ink)."""
     matplotlib, _ = _mpl()
@@ -152,7 +165,7 @@ def encoding_png(
         cb.ax.yaxis.set_minor_formatter(NullFormatter())
         ax.set_xlabel("coordinate 1 (unit square)")
         ax.set_ylabel("(one-dimensional encoding)" if one_dimensional else "coordinate 2 (unit square)")
-        ax.set_title(f"Encoding of {short(source)} (k = {ratio:g})")
+        ax.set_title(title_for(f"Encoding (k = {ratio:g})", source))
         if corners is not None and len(labels) and len(labels) <= 16:
             c = np.asarray(corners, float)
             for lab, row in zip(labels, c):
@@ -227,8 +240,8 @@ def scaling_png(source: str, series: Sequence[ScalingSeries], ylabel: str, unit_
                 ax.set_ylabel(ylabel)
             if i == 0:
                 ax.legend(loc="upper left", fontsize=8)
-        title = f"Scaling of {short(source)}" + (f" ({unit_note})" if unit_note else "")
-        fig.suptitle(title, fontweight="bold", fontsize=11.5)
+        fig.suptitle(title_for("Scaling" + (f" ({unit_note})" if unit_note else ""), source), fontweight="bold",
+                     fontsize=11.5)
         return fig_to_png(fig)
 
 
@@ -266,7 +279,7 @@ def spectrum_png(
             ax.axhline(reference, color=PALETTE[1], ls="--", lw=1.2, label=reference_label or "reference")
         ax.set_xlabel("order q (dimensionless)")
         ax.set_ylabel("generalised dimension D_q")
-        ax.set_title(f"Dimension spectrum of {short(source)}")
+        ax.set_title(title_for("Dimension spectrum", source))
         ax.legend(loc="best")
         return fig_to_png(fig)
 
@@ -304,7 +317,7 @@ def falpha_png(
             ax.axhline(dimension_limit, color=PALETTE[1], ls="--", lw=1.0, label=f"{limit_label} {dimension_limit:.4g}")
         ax.set_xlabel("singularity strength α (dimensionless)")
         ax.set_ylabel("f(α) (dimension of the set with strength α)")
-        ax.set_title(f"Singularity spectrum of {short(source)}")
+        ax.set_title(title_for("Singularity spectrum f(α)", source))
         ax.legend(loc="lower center")
         return fig_to_png(fig)
 
@@ -354,7 +367,7 @@ def entropy_png(
                        label="undersampled block lengths")
         ax.set_xlabel("block length n (symbols)")
         ax.set_ylabel(f"entropy rate estimate ({unit})")
-        ax.set_title(f"Entropy rate of {short(source)} by block length")
+        ax.set_title(title_for("Entropy rate by block length", source))
         if nn.size:
             ax.set_xlim(nn.min() - 0.5, nn.max() + 0.5)
         ax.legend(loc="best", ncols=2 if len(curves) + len(levels) > 5 else 1)

@@ -23,7 +23,6 @@ import re
 from pathlib import Path
 from typing import Sequence
 
-import numpy as np
 
 from fractalseq.encoding import corner_layout
 from fractalseq.outputs import prepare_folder, write_bytes, write_csv, write_json
