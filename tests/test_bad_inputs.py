@@ -146,7 +146,7 @@ CASES: list[Case] = [
     # ---- paths that cannot be read
     Case("count-folder-as-input", ("count", "{d}/folder"), r"folder\b.*not a file|is a folder", r"give a file"),
     Case("render-missing-input", ("render", "{d}/missing.fa", "-o", "{d}/out-missing.png"),
-         r"missing\.fa does not exist", r"check the path", absent=("out-missing.png",), subprocess=True),
+         r"missing\.fa does not exist", r"check the path", absent=("out-missing.png",)),
     Case("profile-path-beneath-a-file", ("profile", "{d}/good.fa/x.fa", "--out", "{d}/out-prof-beneath"),
          r"x\.fa", r"check the path", absent=("out-prof-beneath",)),
     Case("survey-one-input-missing", ("survey", "{d}/good.fa", "{d}/missing.fa", "--out", "{d}/out-survey-missing"),
@@ -176,7 +176,7 @@ CASES: list[Case] = [
     Case("survey-unknown-linkage", ("survey", "{d}/good.fa", "{d}/short.fa", "--linkage", "bogus"), r"'bogus'", r"average"),
     Case("count-unknown-alphabet", ("count", "-a", "klingon", "{d}/good.fa"), r"'klingon'", r"use one of|dna"),
     Case("count-unknown-format", ("count", "--format", "bogus", "{d}/good.fa"), r"'bogus'", r"use one of|fasta"),
-    Case("count-unknown-option", ("count", "--bogus", "{d}/good.fa"), r"--bogus", r"--help", subprocess=True),
+    Case("count-unknown-option", ("count", "--bogus", "{d}/good.fa"), r"--bogus", r"--help"),
     Case("score-neither-model-nor-online", ("score", "{d}/good.fa"), r"--model|--online", r"give either|either"),
     # ---- model files
     Case("score-protein-model-on-dna", ("score", "{d}/good.fa", "--model", "{d}/prot.npz", "--alphabet", "dna"),
