@@ -29,6 +29,8 @@ Genomic output is for research, not for clinical decisions.
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -148,30 +150,21 @@ def choose_scan_depth(alphabet_size: int, window: int, max_depth: int) -> int:
     return n
 
 
-def surprise_series(arr: SymbolArray, seed: int = 0) -> np.ndarray | None:
-    """Per-symbol code length (bits) of the online predictor, or ``None`` if it offers none."""
+def surprise_series(arr: SymbolArray) -> np.ndarray | None:
+    """Per-symbol code length (bits) of the online predictor run once along the stream.
+
+    Uses :func:`fractalseq.predict.online_code_length` with ``keep_surprisal``;
+    ``None`` when the predictor is not available.
+    """
     try:
-        from fractalseq import predict
+        from fractalseq.predict import online_code_length
     except ImportError:
         return None
-    fn = getattr(predict, "online_code_length", None)
-    if fn is None:
+    res = online_code_length(arr, keep_surprisal=True)
+    v = getattr(res, "surprisal", None)
+    if v is None or np.ndim(v) != 1 or len(v) != len(arr):
         return None
-    import inspect
-
-    kwargs: dict[str, Any] = {}
-    params = inspect.signature(fn).parameters
-    for flag in ("per_symbol", "keep_bits", "return_bits", "series"):
-        if flag in params:
-            kwargs[flag] = True
-    if "seed" in params:
-        kwargs["seed"] = seed
-    res = fn(arr, **kwargs)
-    for attr in ("bits", "code_lengths", "per_symbol_bits", "surprisal_bits", "symbol_bits"):
-        v = getattr(res, attr, None)
-        if v is not None and np.ndim(v) == 1 and len(v) == len(arr):
-            return np.asarray(v, dtype=float)
-    return None
+    return np.asarray(v, dtype=np.float64)
 
 
 @dataclass
@@ -268,7 +261,7 @@ def window_figures(arr: SymbolArray, window: int, step: int, depth: int, ratio: 
         h = h / math.log(2.0)
         d0 = np.where(Kw > 0, np.log2(np.maximum(Kw, 1)) / (depth * math.log2(1.0 / ratio)), np.nan)
     figures = {"entropy_rate": h, "D0": d0}
-    bits_per_symbol = surprise_series(arr, seed)
+    bits_per_symbol = surprise_series(arr)
     if bits_per_symbol is not None:
         c = np.concatenate([[0.0], np.cumsum(np.nan_to_num(bits_per_symbol))])
         figures["surprise"] = (c[starts + window] - c[starts]) / window
@@ -453,3 +446,22 @@ def html_report(result: ScanResult):
         page.section("Notes")
         page.note("", result.notes)
     return page
+
+
+def write_outputs(result: ScanResult, folder: str | Path, force: bool = False) -> list[Path]:
+    """Write scan.csv (one row per window), scan.png, scan.html and scan.json into ``folder`` (atomically)."""
+    from fractalseq.outputs import write_bytes, write_csv, write_text
+
+    folder = Path(folder)
+    names = list(result.figures)
+    return [
+        write_csv(
+            folder / "scan.csv",
+            ["start", "end"] + names,
+            [[int(s), int(s) + result.window] + [result.figures[k][i] for k in names] for i, s in enumerate(result.starts)],
+            force=force,
+        ),
+        write_bytes(folder / "scan.png", scan_png(result), force=force),
+        write_text(folder / "scan.html", html_report(result).render(), force=force),
+        write_text(folder / "scan.json", result.to_json(), force=force),
+    ]

@@ -231,90 +231,20 @@ def drift(
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
         result = drift_test(base_streams, new_streams, options, eng, on_done=lambda i, r: bar.advance(task))
     if out is not None:
-        from fractalseq.outputs import write_text
+        from fractalseq.drift import write_outputs
 
-        write_text(Path(out) / "drift.json", result.to_json(), force=True)
-        write_text(Path(out) / "drift.txt", _drift_text(result), force=True)
-        write_text(Path(out) / "drift.html", _drift_html(result).render(), force=True)
+        write_outputs(result, Path(out), force=True)
     if json_out:
         typer.echo(result.to_json(), nl=False)
     else:
-        typer.echo(_drift_text(result), nl=False)
+        from fractalseq.drift import drift_text
+
+        typer.echo(drift_text(result), nl=False)
     raise typer.Exit(EXIT_FOUND if result.changed else 0)
-
-
-def _drift_text(result) -> str:
-    lines = [result.verdict, ""]
-    lines.append(
-        f"Baseline: {result.baseline['symbols']} symbols in {result.baseline['blocks']} blocks; "
-        f"new: {result.new['symbols']} symbols in {result.new['blocks']} blocks; "
-        f"depth {result.depth}, blocks of {result.block}, {result.options.permutations} permutations, "
-        f"{'Holm' if result.options.adjust == 'holm' else 'Benjamini-Hochberg'} adjustment."
-    )
-    lines.append("")
-    lines.append(f"{'figure':<14}{'statistic':>12}{'baseline':>11}{'new':>11}{'effect':>12}{'p':>9}{'adjusted p':>12}")
-    for t in result.tests:
-        lines.append(
-            f"{t.figure:<14}{t.statistic:>12.4g}{_num(t.baseline):>11}{_num(t.new):>11}{t.effect:>12.4g}{t.p_value:>9.3g}{t.p_adjusted:>12.3g}"
-        )
-    lines.append("")
-    for t in result.tests:
-        lines.append(f"  {t.figure}: {t.statistic_name}; effect = {t.effect_name}")
-    if result.top_words:
-        lines += ["", f"Words contributing most to the difference (depth {result.depth}):"]
-        for w in result.top_words:
-            lines.append(
-                f"  {w['word']!s:<24} baseline {w['baseline_count']:>9} ({w['baseline_frequency']:.4f})  "
-                f"new {w['new_count']:>9} ({w['new_frequency']:.4f})  {w['direction']}, {100 * w['share_of_statistic']:.1f}% of G"
-            )
-    if result.top_contexts:
-        lines += ["", "Contexts whose next-symbol distribution changed most:"]
-        for c in result.top_contexts:
-            ch = c["largest_change"][0] if c["largest_change"] else None
-            detail = f"  P({ch['next']}) {ch['baseline_probability']:.3f} -> {ch['new_probability']:.3f}" if ch else ""
-            lines.append(f"  {c['context']!s:<24} {100 * c['share_of_statistic']:.1f}% of conditional G{detail}")
-    for n in result.notes:
-        lines.append(f"note: {n}")
-    lines += ["", "Drift reports on logs are no security guarantee."]
-    return "\n".join(lines) + "\n"
 
 
 def _num(v) -> str:
     return "–" if v is None else f"{v:.4g}"
-
-
-def _drift_html(result):
-    from fractalseq.drift import CAUTION
-    from fractalseq.report.html import HtmlReport
-
-    page = HtmlReport("Drift test", result.verdict, caution=CAUTION)
-    page.section("Verdict")
-    page.paragraph(result.verdict)
-    page.key_values(
-        [
-            ("baseline symbols", result.baseline["symbols"]),
-            ("new symbols", result.new["symbols"]),
-            ("depth", result.depth),
-            ("block length", result.block),
-            ("permutations", result.options.permutations),
-            ("adjustment", result.options.adjust),
-        ]
-    )
-    page.section("Tests")
-    page.table(
-        ["figure", "statistic", "baseline", "new", "effect", "p", "adjusted p", "what"],
-        [[t.figure, t.statistic, t.baseline, t.new, t.effect, t.p_value, t.p_adjusted, t.statistic_name] for t in result.tests],
-    )
-    if result.top_words:
-        page.section("Contributing words")
-        page.table(
-            ["word", "baseline count", "new count", "baseline freq", "new freq", "direction", "share of G"],
-            [[w["word"], w["baseline_count"], w["new_count"], w["baseline_frequency"], w["new_frequency"], w["direction"], w["share_of_statistic"]] for w in result.top_words],
-        )
-    if result.notes:
-        page.section("Notes")
-        page.note("", result.notes)
-    return page
 
 
 # ====================================================================== scan
@@ -348,7 +278,7 @@ def scan(
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
     from fractalseq.cli.inputs import read_input
-    from fractalseq.scan import html_report, scan_png, scan_stream
+    from fractalseq.scan import scan_stream
 
     pen: float | str = "bic" if penalty == "bic" else _number(penalty)
     if out is not None:
@@ -362,19 +292,9 @@ def scan(
         result = scan_stream(arr, window, step, depth, ratio, pen, seed)
         bar.advance(task)
     if out is not None:
-        from fractalseq.outputs import write_bytes, write_csv, write_text
+        from fractalseq.scan import write_outputs
 
-        folder = Path(out)
-        names = list(result.figures)
-        write_csv(
-            folder / "scan.csv",
-            ["start", "end"] + names,
-            [[int(s), int(s) + result.window] + [result.figures[k][i] for k in names] for i, s in enumerate(result.starts)],
-            force=True,
-        )
-        write_bytes(folder / "scan.png", scan_png(result), force=True)
-        write_text(folder / "scan.html", html_report(result).render(), force=True)
-        write_text(folder / "scan.json", result.to_json(), force=True)
+        write_outputs(result, Path(out), force=True)
     if json_out:
         typer.echo(result.to_json(), nl=False)
         return

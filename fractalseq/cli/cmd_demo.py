@@ -29,8 +29,10 @@ def demo(
     Example: fractalseq demo --out demo-report
     """
     from fractalseq.demo import CAUTION, run_demo, summary_json
+    from fractalseq.outputs import prepare_folder
     from fractalseq.scenario import SCENARIO_NOTE
 
+    prepare_folder(out, force)  # refuse a file or a non-empty folder before any work
     if not quiet and not json_out:
         common.err_console.print(f"[bold]{SCENARIO_NOTE}[/bold]")
     with common.err_console.status("starting", spinner="dots") if not quiet else _Null() as status:
@@ -45,12 +47,12 @@ def demo(
         typer.echo(summary_json(result), nl=False)
         return
     table = Table(title="Estimates beside the truth (invented scenario)")
-    for col in ("subject", "figure", "estimate", "95% interval", "truth", "truth inside?"):
-        table.add_column(col, justify="right" if col in ("estimate", "truth") else "left")
+    for col in ("subject", "figure", "estimate", "95% interval", "truth", "ok"):
+        table.add_column(col, justify="right" if col in ("estimate", "truth") else "left", no_wrap=col != "figure")
     for r in result.rows:
-        est = f"{r.estimate:.4f}" if isinstance(r.estimate, float) else str(r.estimate)
-        ci = f"[{r.low:.4f}, {r.high:.4f}]" if r.low is not None and r.high is not None else ""
-        truth = f"{r.truth:.4f}" if isinstance(r.truth, float) else str(r.truth)
+        est = f"{r.estimate:.3f}" if isinstance(r.estimate, float) else str(r.estimate)
+        ci = f"{r.low:.3f}–{r.high:.3f}" if r.low is not None and r.high is not None else ""
+        truth = f"{r.truth:.3f}" if isinstance(r.truth, float) else str(r.truth)
         inside = "" if r.within is None else ("[green]yes[/green]" if r.within else "[red]no[/red]")
         table.add_row(r.subject, r.figure, est, ci, truth, inside)
     common.out_console.print(table)
