@@ -8,10 +8,13 @@ Existing files are only replaced when the caller passes ``force=True``.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import math
 import os
+import signal
 import tempfile
+import threading
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, Iterable
@@ -58,24 +61,43 @@ def check_writable(path: Path, force: bool) -> None:
         raise OutputError(f"{parent} is a file, not a folder; choose another output folder.")
 
 
+@contextlib.contextmanager
+def _signals_deferred():
+    """Hold SIGINT/SIGTERM back while a file is being written and renamed (main thread only).
+
+    A Ctrl-C that arrives mid-write is delivered right after the rename, so a
+    temporary file is never left behind by an interruption.
+    """
+    if threading.current_thread() is not threading.main_thread() or not hasattr(signal, "pthread_sigmask"):
+        yield
+        return
+    held = {signal.SIGINT, signal.SIGTERM}
+    previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+
+
 def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
     """Atomically write ``data`` to ``path`` (temporary file in the same folder, then rename)."""
     path = Path(path)
     check_writable(path, force)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
+    with _signals_deferred():
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
         try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(data)
+                fh.flush()
+                os.fsync(fh.fileno())
+            os.replace(tmp, path)
+        except BaseException:
+            try:
+                os.unlink(tmp)
+            except FileNotFoundError:
+                pass
+            raise
     return path
 
 

@@ -22,15 +22,15 @@ from fractalseq.outputs import check_writable, to_json
 RESEARCH_NOTE = "Genomic output is for research, not for clinical decisions."
 
 DEPTHS = typer.Option(
-    None, "--depths", help="Cell depths in symbols, comma-separated (e.g. 3,6,9,12,16,20). [default: a ladder up to --max-depth]"
+    None, "--depths", help="Cell depths in symbols, comma-separated (e.g. 3,6,10,14,20); default: a ladder up to --max-depth (3,6,10,14,20 for DNA)."
 )
 MAX_DEPTH = typer.Option(
-    None, "--max-depth", min=1, help="Deepest cell in symbols when --depths is not given. [default: 20 for DNA, about 40 bits of context otherwise]"
+    None, "--max-depth", min=1, help="Deepest cell in symbols when --depths is not given; default: 20 for DNA, about 40 bits of context otherwise."
 )
 SMOOTHING = typer.Option(0.5, "--smoothing", help="Additive constant alpha of each cell's estimate (c+alpha)/(N+A alpha); 0.5 is Krichevsky-Trofimov.")
 MAX_CELLS = typer.Option(
     None, "--max-cells", min=1,
-    help="Memory cap in cells: online, rows of the count tables [default 16,777,216, fewer for large alphabets]; learn, cells kept [default 8,388,608].",
+    help="Memory cap in cells: online, rows of the count tables (default 16,777,216, fewer for large alphabets); learn, cells kept (default 8,388,608).",
 )
 STRANDS = typer.Option(
     "auto", "--strands", help="DNA/RNA: count each word on both strands (both), the given strand only (forward), or auto (both for DNA/RNA)."
@@ -103,7 +103,7 @@ def learn(
     """
     import numpy as np
 
-    from fractalseq.predict import CellPredictor, baseline_orders, default_depths
+    from fractalseq.predict import CellPredictor, baseline_orders
     from fractalseq.words import WordCounter
 
     check_writable(out, force)
@@ -191,11 +191,11 @@ def score(
     model: Optional[Path] = typer.Option(None, "--model", "-m", help="Model file written by 'fractalseq learn' (fitted mode)."),
     online: bool = typer.Option(False, "--online", help="Predict-then-update over each file with a fresh model instead (no model file)."),
     alphabet: Optional[str] = typer.Option(
-        None, "--alphabet", "-a", help="Symbol set: dna, rna, protein, binary, bytes, learn, or symbols:XYZ. [default: the model's; dna with --online]"
+        None, "--alphabet", "-a", help="Symbol set: dna, rna, protein, binary, bytes, learn, or symbols:XYZ; default: the model's alphabet, dna with --online."
     ),
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
-    window: int = typer.Option(10_000, "--window", "-w", min=1, help="Window length in symbols for the per-window code lengths."),
+    window: int = typer.Option(10_000, "--window", "-W", min=1, help="Window length in symbols for the per-window code lengths."),
     top: int = typer.Option(5, "--top", "-t", min=0, help="Number of most surprising windows to list per file."),
     depths: Optional[str] = DEPTHS,
     max_depth: Optional[int] = MAX_DEPTH,
