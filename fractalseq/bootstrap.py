@@ -31,6 +31,14 @@ conditional surprisals ``-ln p(x_t | previous symbols)``, with a floor of
 depends on windows of n symbols, so blocks must be much longer than n).
 Which value was used, and why, is reported with every result.
 
+Intervals (:func:`interval_from`): ``centered`` (default), ``percentile``,
+``basic`` and ``bc``.  The calibration study
+(``benchmarks/bench_calibration.py``) chose ``centered``: resampling blocks
+shifts the replicates of some statistics away from the estimate (a block
+drawn twice adds coincidences to collision counts; rare words drop out),
+and an interval that keeps the bootstrap spread but not that shift covered
+the truth 93-97% of the time where percentile intervals fell to 87%.
+
 Same input, same seed: same replicates, byte for byte.
 """
 
@@ -450,7 +458,7 @@ def make_plan(length: int, block_length: int, n_boot: int, seed: int = 0, scheme
 
 # --------------------------------------------------------------- results
 def interval_from(
-    estimate: np.ndarray, replicates: np.ndarray, level: float = 0.95, method: str = "percentile"
+    estimate: np.ndarray, replicates: np.ndarray, level: float = 0.95, method: str = "centered"
 ) -> tuple[np.ndarray, np.ndarray]:
     """Bootstrap interval per column, ignoring non-finite replicates.
 
@@ -538,11 +546,11 @@ class BootstrapResult:
                 out[j] = r.std(ddof=1)
         return out
 
-    def interval(self, level: float = 0.95, method: str = "percentile") -> tuple[np.ndarray, np.ndarray]:
+    def interval(self, level: float = 0.95, method: str = "centered") -> tuple[np.ndarray, np.ndarray]:
         """``(low, high)`` arrays; see :func:`interval_from`."""
         return interval_from(self.estimate, self.replicates, level, method)
 
-    def to_dict(self, level: float = 0.95, method: str = "percentile") -> dict:
+    def to_dict(self, level: float = 0.95, method: str = "centered") -> dict:
         lo, hi = self.interval(level, method)
         return {
             "estimate": self.estimate,

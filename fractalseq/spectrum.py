@@ -38,7 +38,9 @@ dimension units) is taken; ties go to the deepest run.
 Intervals
 ---------
 By the block bootstrap of :mod:`fractalseq.bootstrap` (word counts of
-blocks re-weighted, never recounted).  The fit weights (inverse bootstrap
+blocks re-weighted, never recounted); ``centered`` intervals by default
+(the estimate plus the replicates' spread around their median), chosen by
+the calibration benchmark.  The fit weights (inverse bootstrap
 variances of ``H_q(n)``) are fixed from the whole-stream replicates, so each
 replicate's slope is the same linear function of its block entropies.  The
 reported ``stderr`` is the bootstrap standard deviation of the slope;
@@ -250,7 +252,6 @@ def _table_vectors_weights(ptr, pair_label, pair_count, weights, m, qs, correcte
     buf = np.zeros(m, dtype=np.int64)
     ones = np.ones(m)
     R = weights.shape[0]
-    B = weights.shape[1]
     for r in range(R):
         bs.weighted_table(ptr, pair_label, pair_count, weights[r], buf)
         level_vector(buf, ones, qs, corrected, out[r])
@@ -805,7 +806,9 @@ def rates_from(
     """Conditional-form rates ``(H_q(n+1) - H_q(n)) / ln 2`` (bits) from word-route level data.
 
     The order n is the user's, or the middle of the automatic linear run of
-    ``H_q(n)`` (converged, and away from the starved deep end).
+    ``H_q(n)`` (converged, and away from the starved deep end).  For ``q <= 0``
+    the counts are exact and the interval also holds the deeper differences
+    of the run (the finite-order bracket, as for D_0).
     """
     ln2 = math.log(2.0)
     top = data.est.shape[0]  # levels are depths 1..top
@@ -815,6 +818,7 @@ def rates_from(
         H = data.est[:, j]
         Hr = data.reps[:, :, j] if data.reps is not None else None
         o: int | None
+        choice = None
         if order is not None:
             o = int(order) if 1 <= int(order) <= top - 1 else None
         else:
@@ -824,7 +828,6 @@ def rates_from(
         est = lo = hi = se = float("nan")
         if o is None or not (np.isfinite(H[o]) and np.isfinite(H[o - 1])):
             flags.append("too little data")
-            o = None if o is None else o
         else:
             est = float((H[o] - H[o - 1]) / ln2)
             if Hr is not None:
@@ -833,6 +836,13 @@ def rates_from(
                 if d.size >= 10:
                     l_, h_ = bs.interval_from(np.array([est]), d[:, None], level, interval)
                     lo, hi, se = float(l_[0]), float(h_[0]), float(d.std(ddof=1))
+            if q <= 0 and choice is not None:
+                # exact counts: the error is the finite order, so hold the deeper differences of the run too
+                deeper = (H[o : choice.hi + 1] - H[o - 1 : choice.hi]) / ln2
+                deeper = deeper[np.isfinite(deeper)]
+                if deeper.size:
+                    lo = float(np.nanmin([lo, deeper.min(), est]))
+                    hi = float(np.nanmax([hi, deeper.max(), est]))
             if Hr is None:
                 flags.append("no bootstrap: no interval")
         method = "conditional form H_q(n+1) - H_q(n): " + method_name(float(q), corrected)
@@ -917,7 +927,7 @@ def dimension_spectrum(
     block_length: int | None = None,
     scheme: str = "nonoverlapping",
     level: float = 0.95,
-    interval: str = "percentile",
+    interval: str = "centered",
     corners: np.ndarray | None = None,
     falpha: bool = True,
     starve: float = STARVE,

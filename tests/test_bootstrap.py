@@ -194,6 +194,9 @@ def test_interval_methods_on_known_replicates():
     # bias-corrected percentile: the estimate sits at the 40% point, so the interval shifts down
     lo_c, hi_c = bs.interval_from(est, reps, 0.9, "bc")
     assert lo_c[0] < lo[0] and hi_c[0] < hi[0]
+    # centered: the estimate plus the replicates' spread around their median
+    lo_m, hi_m = bs.interval_from(est, reps, 0.9, "centered")
+    assert lo_m[0] == pytest.approx(400 + lo[0] - 500.5) and hi_m[0] == pytest.approx(400 + hi[0] - 500.5)
     nan_lo, _ = bs.interval_from(np.array([1.0]), np.full((5, 1), 1.0))
     assert math.isnan(nan_lo[0])  # fewer than 10 replicates: no interval
 

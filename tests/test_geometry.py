@@ -101,17 +101,17 @@ def test_overlapping_maps_fill_the_interval():
 
 def test_binomial_measure_by_box_counting():
     """Binomial measure p = 0.3 (Halsey et al. 1986, Phys. Rev. A 33:1141; REFERENCE-CHECKS A4), shifted grids."""
-    arr = from_codes(BIN, markov.bernoulli(300_000, 0.3, seed=5))
+    arr = from_codes(BIN, markov.bernoulli(200_000, 0.3, seed=5))
     pts = enc.points(arr, 0.5)
     keep = geo.transient_mask(arr, 60)
-    res = geo.geometric_spectrum(pts, (1, 2), scales=2.0 ** -np.arange(3, 10, dtype=float), offsets=6, seed=2,
+    res = geo.geometric_spectrum(pts, (1, 2), scales=2.0 ** -np.arange(3, 10, dtype=float), offsets=4, seed=2,
                                  valid=keep, n_boot=30)
     assert res.get(1).estimate == pytest.approx(0.881290899, abs=0.01)
     assert res.get(2).estimate == pytest.approx(0.785875195, abs=0.01)
     for d in res.dims:
         assert d.low <= d.estimate <= d.high
     assert res.block is not None
-    again = geo.geometric_spectrum(pts, (1, 2), scales=2.0 ** -np.arange(3, 10, dtype=float), offsets=6, seed=2,
+    again = geo.geometric_spectrum(pts, (1, 2), scales=2.0 ** -np.arange(3, 10, dtype=float), offsets=4, seed=2,
                                    valid=keep, n_boot=30)
     assert to_json(res.to_dict()) == to_json(again.to_dict())
 
