@@ -277,9 +277,10 @@ def profile_page(result: ProfileResult, pngs: dict[str, bytes], files: Sequence[
 
     page.section("Consistency")
     page.paragraph(
-        "Geometry against information: box counting of the point cloud (shifted grids) gives D_q, shown in bits as "
-        "D_q log2(1/k); the word statistics give the Rényi entropy rate h_q. For non-overlapping maps theory says they "
-        "agree; 'inconsistent' (intervals do not overlap) suggests a non-stationary stream or a mixture of sources."
+        "Geometry against information: box counting of the float point cloud on grids of side k^m gives D_q, shown in "
+        "bits as D_q log2(1/k); the word statistics give the Rényi entropy rate h_q. For non-overlapping maps theory says "
+        "they agree; 'inconsistent' (intervals do not overlap) points to a broken premise: overlapping or misaligned "
+        "maps, or a stream too non-stationary for the estimators' ranges."
     )
     h, rows = consistency_table_rows(result)
     page.table(h, rows, caption="Consistency table")
