@@ -20,6 +20,7 @@ Usage: python benchmarks/bench_survey.py [--workers 2]
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 from pathlib import Path
@@ -45,6 +46,7 @@ def main() -> int:
     # warm the JIT caches of this process so that the serial time is not charged compile time
     run_survey(expand_inputs([str(LAMBDA)]), opts, SerialEngine())
 
+    load_before = os.getloadavg()
     t0 = time.perf_counter()
     serial = run_survey(specs, opts, SerialEngine())
     t_serial = time.perf_counter() - t0
@@ -52,6 +54,7 @@ def main() -> int:
     with ProcessEngine(args.workers) as eng:
         par = run_survey(specs, opts, eng)
     t_par = time.perf_counter() - t0
+    load_after = os.getloadavg()
     speedup = t_serial / t_par
     identical = serial.to_json() == par.to_json()
 
@@ -72,6 +75,8 @@ def main() -> int:
         "speedup": round(speedup, 3),
         "target_speedup": 1.6,
         "identical_results": identical,
+        "cpus": os.cpu_count(),
+        "load_average_before_after": [round(load_before[0], 2), round(load_after[0], 2)],
         "distance_depth": full.js_depth,
         "js_divergence_bits": {"names": full.names, "matrix": js.tolist()},
         "top_split": [[full.names[i] for i in a], [full.names[i] for i in b]],
@@ -92,6 +97,7 @@ def main() -> int:
         f"| speed-up | {speedup:.2f}x | >= 1.6x |",
         f"| identical results (JSON bytes) | {'yes' if identical else 'NO'} | yes |",
         f"| lambda apart at the root of the clustering | {'yes' if apart else 'NO'} | yes |",
+        f"| machine | {os.cpu_count()} CPUs, 1-min load {load_before[0]:.1f} before / {load_after[0]:.1f} after | |",
         "",
         f"Jensen-Shannon divergence (bits) of depth-{full.js_depth} words:",
         "",

@@ -11,7 +11,9 @@ PELT (Killick, Fearnhead & Eckley 2012, JASA 107:1590): minimise
 The noise scale of a figure is ``MAD(x[i + L] - x[i]) / (0.6745 * sqrt 2)``
 with ``L`` the number of steps per window, so that differences are taken
 between windows that do not overlap (the median absolute deviation scaled
-to a standard deviation for Gaussian noise, common practice).  Overlapping
+to a standard deviation for Gaussian noise, common practice), floored at 1%
+of the figure's median magnitude (changes much smaller than that are not
+reported).  Overlapping
 windows repeat each symbol about ``L`` times, so the cost is weighted by
 ``w = 1 / L`` and the series is treated as ``n_eff = n / L`` independent
 observations.  The default penalty is BIC-like (Schwarz 1978, Ann. Statist.
@@ -172,6 +174,7 @@ def segment_series(
     series: Mapping[str, Sequence[float]],
     penalty: float | str = "bic",
     overlap: int = 1,
+    rel_floor: float = 0.01,
 ) -> Segmentation:
     """Change points of several aligned series (PELT, Gaussian change in mean).
 
@@ -186,6 +189,11 @@ def segment_series(
     overlap:
         Steps per window ``L`` (1 when windows do not overlap): the lag of
         the noise estimate, the cost weight ``1/L`` and the shortest segment.
+    rel_floor:
+        Each noise scale is at least this fraction of the figure's median
+        magnitude, so that very steady figures (a predictor's code length on
+        random data varies by 0.05%) do not turn slow drifts of a fraction of
+        a percent into change points.
     """
     names = [k for k in series]
     if not names:
@@ -201,8 +209,10 @@ def segment_series(
         med = float(np.nanmedian(x)) if np.isfinite(x).any() else 0.0
         x = np.where(np.isfinite(x), x, med)
         sd = noise_scale(x, L)
+        floor = rel_floor * abs(med)
         if not (math.isfinite(sd) and sd > 0):
             sd = float(np.std(x)) or 1.0
+        sd = max(sd, floor)
         noise[k] = sd
         cols.append((x - med) / sd)
     X = np.stack(cols, axis=1) if cols else np.zeros((n, 0))

@@ -46,7 +46,7 @@ from pathlib import Path
 
 import math
 from dataclasses import dataclass, field
-from typing import Callable, Iterable, Sequence
+from typing import Callable, Sequence
 
 import numpy as np
 from numba import njit

@@ -38,7 +38,7 @@ Genomic output is for research, not for clinical decisions.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Iterable, Iterator, Sequence
 
 import numpy as np
@@ -50,7 +50,7 @@ from fractalseq.predict_baselines import CompressorMeter, MarkovBaseline, kt_bit
 from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 
 #: Cell depths used for DNA-like alphabets (four symbols) when nothing else is asked.
-DNA_DEPTHS = (3, 6, 9, 12, 16, 20)
+DNA_DEPTHS = (3, 6, 10, 14, 20)
 #: Fractions of the maximum depth forming the default ladder of depths.
 _LADDER = (0.15, 0.3, 0.45, 0.6, 0.8, 1.0)
 #: Default budget of table memory (bytes) when ``max_cells`` is not given.
@@ -87,9 +87,9 @@ def default_depths(alphabet: Alphabet, max_depth: int | None = None) -> tuple[in
     """The ladder of cell depths used when none are given.
 
     DNA-like alphabets (4 symbols) use :data:`DNA_DEPTHS` up to ``max_depth``;
-    otherwise the depths are the fractions 0.15, 0.3, 0.45, 0.6, 0.8 and 1 of
-    ``max_depth`` (rounded, at least 1), plus depths 1 and 2 when those
-    fractions start deeper than 3.
+    otherwise the depths are 1 and the fractions 0.15, 0.3, 0.45, 0.6, 0.8 and
+    1 of ``max_depth`` (rounded, at least 1), plus depth 2 when the next depth
+    after 1 is deeper than 3.
     """
     D = default_max_depth(alphabet) if max_depth is None else int(max_depth)
     if alphabet.size == 4 and max_depth is None:
@@ -97,9 +97,9 @@ def default_depths(alphabet: Alphabet, max_depth: int | None = None) -> tuple[in
     if alphabet.size == 4 and D >= 3:
         ladder = sorted({d for d in DNA_DEPTHS if d <= D} | {D})
         return tuple(ladder)
-    ladder = {max(1, int(round(D * f))) for f in _LADDER}
-    if min(ladder) > 3:
-        ladder |= {1, 2}
+    ladder = {max(1, int(round(D * f))) for f in _LADDER} | {1}
+    if sorted(ladder)[1:2] and sorted(ladder)[1] > 3:
+        ladder |= {2}
     return tuple(sorted(ladder))
 
 
@@ -157,7 +157,13 @@ def _as_source(source) -> Source:
     )
 
 
+def _known_length(source: Source) -> int | None:
+    """Symbols of an in-memory source (``None`` for a stream read lazily)."""
+    return len(source) if isinstance(source, SymbolArray) else None
+
+
 def _chunks(source: Source) -> Iterator[Chunk]:
+    """Chunks of either kind of source (a SymbolArray yields pieces of DEFAULT_CHUNK symbols)."""
     return source.chunks()
 
 
@@ -208,7 +214,9 @@ class PredictionResult:
     surprisal:
         Bits of every position when asked for (``keep_surprisal=True``), else ``None``.
     baselines:
-        Filled by :func:`evaluate_online` / :meth:`CellPredictor.evaluate`: ``markov`` and ``compressors``.
+        Set by :func:`evaluate_online` / :meth:`CellPredictor.evaluate`: ``markov`` (a
+        :class:`~fractalseq.predict_baselines.MarkovBaseline` as a dict) and ``compressors``
+        (bits per symbol of lzma/bz2/zlib on the symbols as text and packed).
     """
 
     mode: str
@@ -378,6 +386,14 @@ class _Tally:
         return np.asarray(wins, dtype=np.float64), sur, rows
 
 
+def _aligned_zeros(n: int, dtype) -> np.ndarray:
+    """Zeros whose first element sits on a 64-byte boundary, so a hashed bucket never straddles two cache lines."""
+    item = np.dtype(dtype).itemsize
+    raw = np.zeros(n + 64 // item, dtype=dtype)
+    off = (-raw.ctypes.data % 64) // item
+    return raw[off : off + n]
+
+
 # ------------------------------------------------------------- online coder
 class OnlineCoder:
     """Predict-then-update state over one stream, fed chunk by chunk.
@@ -388,6 +404,9 @@ class OnlineCoder:
         Alphabet of the stream.
     depths, max_depth, smoothing, max_cells, learning_rate, reverse_complement:
         See :class:`CellPredictor`.
+    length_hint:
+        Length of the stream when known: hashed tables are then sized to about four
+        rows per word they can receive (never above the cap), so short inputs stay small.
     """
 
     def __init__(
@@ -399,6 +418,7 @@ class OnlineCoder:
         max_cells: int | None = None,
         learning_rate: float = 0.002,
         reverse_complement: bool | str = "auto",
+        length_hint: int | None = None,
     ) -> None:
         self.alphabet = alphabet
         A, b = alphabet.size, alphabet.bits
@@ -428,6 +448,8 @@ class OnlineCoder:
         rbits = []
         if nh:
             per = max((cap - direct_rows) // nh, K.BUCKET * 16)
+            if length_hint is not None:  # a short input needs no more than ~4 rows per word it can insert
+                per = min(per, max(K.BUCKET * 16, 4 * (2 if self.reverse else 1) * int(length_hint)))
             hb = int(math.floor(math.log2(per)))
         for d, dr in zip(ds, direct):
             rbits.append(b * d if dr else hb)
@@ -458,9 +480,9 @@ class OnlineCoder:
             "reverse_complement": self.reverse,
         }
         if self.packed:
-            self.table = np.zeros(self.rows, dtype=np.uint64)
+            self.table = _aligned_zeros(self.rows, np.uint64)
         else:
-            self.counts = np.zeros((self.rows, A), dtype=np.uint16)
+            self.counts = _aligned_zeros(self.rows * A, np.uint16).reshape(self.rows, A)
             self.tags = np.zeros(self.rows, dtype=np.uint16)
             self.totals = np.zeros(self.rows, dtype=np.uint32)
         self.weights = np.full((M + 1, M), min(1.0, 2.0 / M), dtype=np.float64)
@@ -610,7 +632,7 @@ def online_code_length(
     True
     """
     src = _as_source(source)
-    coder = OnlineCoder(src.alphabet, **params)
+    coder = OnlineCoder(src.alphabet, length_hint=_known_length(src), **params)
     if window is not None and (isinstance(window, bool) or int(window) < 1):
         raise ParameterError(f"The window must be a positive number of symbols, not {window!r}.")
     tally = _Tally(window or DEFAULT_WINDOW, keep_surprisal) if (window or keep_surprisal) else None
@@ -644,7 +666,7 @@ def evaluate_online(
     from fractalseq.words import WordCounter
 
     src = _as_source(source)
-    coder = OnlineCoder(src.alphabet, **params)
+    coder = OnlineCoder(src.alphabet, length_hint=_known_length(src), **params)
     if isinstance(window, bool) or int(window) < 1:
         raise ParameterError(f"The window must be a positive number of symbols, not {window!r}.")
     tally = _Tally(int(window), keep_surprisal)
@@ -660,8 +682,7 @@ def evaluate_online(
     res = coder.result(getattr(src, "name", "stream"), records=recs, window=int(window), window_bits=wins, surprisal=sur)
     if counter is not None and coder.length:
         wc = counter.finish()
-        res.baselines["markov"] = markov_online_baseline(wc).to_dict()
-        res.baselines["compressors"] = meter.result()
+        res = replace(res, baselines={"markov": markov_online_baseline(wc).to_dict(), "compressors": meter.result()})
     return res
 
 
@@ -678,7 +699,7 @@ class CellPredictor:
     ----------
     depths:
         Cell depths (symbols of context) to use; default: a ladder up to
-        ``max_depth`` (:func:`default_depths`; 3, 6, 9, 12, 16, 20 for DNA).
+        ``max_depth`` (:func:`default_depths`; 3, 6, 10, 14, 20 for DNA).
     max_depth:
         Deepest cell when ``depths`` is not given (default: about 40 bits of context, 20 for DNA).
     smoothing:
@@ -815,6 +836,8 @@ class CellPredictor:
     def fit_counts(self, counts) -> "CellPredictor":
         """Fit from :class:`~fractalseq.words.WordCounts` (deep enough for every depth), e.g. one piece of a large input."""
         alphabet = counts.alphabet
+        if counts.length == 0:
+            raise InputError("The word counts hold no symbols to learn from; check the input.")
         ladder, reverse = self._validate(alphabet)
         K_b = baseline_orders(alphabet)
         fit_depths = tuple(sorted(set(range(K_b + 1)) | set(ladder)))
@@ -1065,8 +1088,7 @@ class CellPredictor:
                 k, bits / n, "model training data", dict(self.baseline_bits_),
                 None if hind is None else hind.order, None if hind is None else hind.bits_per_symbol,
             )
-            res.baselines["markov"] = mb.to_dict()
-            res.baselines["compressors"] = meter.result()
+            res = replace(res, baselines={"markov": mb.to_dict(), "compressors": meter.result()})
         return res
 
     def score_online(self, source: Source, **kwargs) -> PredictionResult:
@@ -1144,7 +1166,13 @@ def _fit_blend(depths, cells, counts, alphabet: Alphabet, alpha: float, discount
 
 
 def _prune(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
-    """Drop the rarest cells of the deepest depths (beyond the baseline orders) until at most ``cap`` remain."""
+    """Drop the rarest cells of the deepest depths (beyond the baseline orders) until exactly ``cap`` remain.
+
+    Cells with a total of at most 1 go first, deepest depth first, then at most
+    2, 4, 8...; within the last class cut, cells are dropped in the order of a
+    hash of their address.  A cell never outlives its coarser parent (whose
+    total is at least as large).
+    """
     total = sum(t[0].size for t in tables.values())
     if total <= cap:
         return tables, 0
@@ -1163,6 +1191,12 @@ def _prune(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
             tot = counts.sum(axis=1, dtype=np.int64)
             keep = tot > threshold
             gone = int(cells.size - keep.sum())
+            if gone > total - cap:
+                # the last class is cut in hash order (deterministic, no bias toward any address)
+                rare = np.flatnonzero(~keep)
+                order = np.argsort(K.hash_cells(cells[rare], n), kind="stable")
+                keep[rare[order[: gone - (total - cap)]]] = True
+                gone = total - cap
             if gone:
                 tables[n] = (cells[keep], counts[keep])
                 total -= gone

@@ -37,7 +37,20 @@ the predictions of the non-empty cells are combined geometrically,
 cancels), with a weight vector chosen by the deepest non-empty cell and
 updated online along the gradient of the code length,
 ``w_i += lr * (log(c_x + alpha_i) - sum_s p(s) log(c_s + alpha_i))``.
-For two symbols this is logistic mixing in the stretch domain.
+For two symbols this is logistic mixing in the stretch domain.  The
+learning rate is boosted over the first symbols (:data:`LR_BOOST`).
+
+Reverse-complement ("inverted repeat") updates: after each word, the same
+word read on the other strand is counted too, so a repeat in reverse
+orientation finds its cells filled (common practice in DNA modelling).
+
+References
+----------
+Krichevsky & Trofimov (1981), IEEE Trans. Inf. Theory 27:199-207 (the
+``alpha = 1/2`` estimator); Mattern (2013), "Linear and geometric mixtures -
+analysis", Proc. Data Compression Conference (geometric mixing; from memory);
+Ney, Essen & Kneser (1994), Computer Speech and Language 8:1-38 (absolute
+discounting, used by the fitted blend; from memory).
 
 Nothing here validates its input; :mod:`fractalseq.predict` does.
 """
@@ -64,6 +77,10 @@ DENSE_LIMIT = 65535
 #: Logits more than this many nats below the best are raised to it, so no
 #: symbol ever gets less than about exp(-MAX_LOGIT_GAP) / A.
 MAX_LOGIT_GAP = 30.0
+#: Learning-rate schedule: ``lr_t = lr * max(1, LR_BOOST / sqrt(1 + t / LR_SCALE))`` after ``t``
+#: coded symbols (``t`` rounded down to a multiple of 1024), so short streams learn their weights quickly.
+LR_BOOST = 8.0
+LR_SCALE = 8192.0
 #: Calibration bins of the top-1 confidence.
 CALIB_BINS = 10
 #: Entries of the log table per depth (larger counts call log()).
@@ -159,7 +176,7 @@ def online_packed(codes, starts, A, b, depth, direct, rbits, offset, limit, ir_o
         address mask ``2**(b n) - 1``
     comp : int64 array mapping a code to its complement (empty: no reverse-complement updates)
     logt : float64 (M, LOG_TABLE) table of ``log(c + alpha_i)``
-    lr : learning rate of the mixing weights
+    lr : learning rate of the mixing weights (boosted early on, see LR_BOOST)
     table : uint64 rows (state, updated in place)
     weights : float64 (M + 1, M) mixing weights, one row per deepest non-empty depth (state)
     hist : uint64[2] forward and reverse-complement histories (state)
@@ -200,6 +217,7 @@ def online_packed(codes, starts, A, b, depth, direct, rbits, offset, limit, ir_o
     brier = 0.0
     evict = 0.0
     insert = 0.0
+    lr_t = lr
     for tt in range(n + LOOKAHEAD):
         # ---- stage position j: row addresses (and prefetch) from the known history
         j = tt
@@ -244,6 +262,9 @@ def online_packed(codes, starts, A, b, depth, direct, rbits, offset, limit, ir_o
         t = tt - LOOKAHEAD
         if t < 0:
             continue
+        g = np.int64(stats[ST_COUNT]) + t
+        if t == 0 or (g & 1023) == 0:
+            lr_t = lr * max(1.0, LR_BOOST / math.sqrt(1.0 + (g - (g & 1023)) / LR_SCALE))
         # ---- predict position t
         r = t & (RING - 1)
         L = ring_len[r]
@@ -318,12 +339,12 @@ def online_packed(codes, starts, A, b, depth, direct, rbits, offset, limit, ir_o
         calib[cb, 1] += ps[best]
         if best == x:
             calib[cb, 2] += 1.0
-        if lr > 0.0:
+        if lr_t > 0.0:
             for q in range(nin):
                 e = 0.0
                 for k in range(A):
                     e += ps[k] * lin[q, k]
-                weights[sel, inp[q]] += lr * (lin[q, x] - e)
+                weights[sel, inp[q]] += lr_t * (lin[q, x] - e)
         # ---- update the cells of the history with x
         for i in range(M):
             s = row[i]
@@ -432,6 +453,7 @@ def online_dense(codes, starts, A, b, depth, direct, rbits, offset, limit, alpha
     brier = 0.0
     evict = 0.0
     insert = 0.0
+    lr_t = lr
     for tt in range(n + LOOKAHEAD):
         # ---- stage position j: row addresses (and prefetch) from the known history
         j = tt
@@ -478,6 +500,9 @@ def online_dense(codes, starts, A, b, depth, direct, rbits, offset, limit, alpha
         t = tt - LOOKAHEAD
         if t < 0:
             continue
+        g = np.int64(stats[ST_COUNT]) + t
+        if t == 0 or (g & 1023) == 0:
+            lr_t = lr * max(1.0, LR_BOOST / math.sqrt(1.0 + (g - (g & 1023)) / LR_SCALE))
         # ---- predict position t
         r = t & (RING - 1)
         L = ring_len[r]
@@ -551,12 +576,12 @@ def online_dense(codes, starts, A, b, depth, direct, rbits, offset, limit, alpha
         calib[cb, 1] += ps[best]
         if best == x:
             calib[cb, 2] += 1.0
-        if lr > 0.0:
+        if lr_t > 0.0:
             for q in range(nin):
                 e = 0.0
                 for k in range(A):
                     e += ps[k] * lin[q, k]
-                weights[sel, inp[q]] += lr * (lin[q, x] - e)
+                weights[sel, inp[q]] += lr_t * (lin[q, x] - e)
         # ---- update the cells of the history with x
         for i in range(M):
             s = row[i]
@@ -858,4 +883,13 @@ def revcomp_addresses(words, n, b):
             r = (r << ub) | ((w & symmask) ^ symmask)
             w >>= ub
         out[i] = r
+    return out
+
+
+@njit(cache=True)
+def hash_cells(addr, depth):
+    """:func:`cell_hash` of every address at one depth (a deterministic, unbiased order for pruning ties)."""
+    out = np.empty(addr.shape[0], np.uint64)
+    for i in range(addr.shape[0]):
+        out[i] = cell_hash(addr[i], depth)
     return out

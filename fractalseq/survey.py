@@ -23,7 +23,6 @@ from __future__ import annotations
 import glob
 import inspect
 import json
-import math
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -46,7 +45,7 @@ from fractalseq.distances import (
 from fractalseq.engine import Engine, SerialEngine
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.outputs import to_json
-from fractalseq.stream import SymbolArray
+from fractalseq.stream import ReadReport, SymbolArray
 from fractalseq.words import WordCounts, count_words
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
@@ -229,6 +228,7 @@ class SurveyTask:
     alphabet: dict | None = None
     codes: np.ndarray | None = None
     starts: np.ndarray | None = None
+    report: ReadReport | None = None  # what the reader of standard input kept and dropped
 
 
 def _store_depth(alphabet: Alphabet, options: SurveyOptions) -> int:
@@ -267,7 +267,8 @@ def survey_task(task: SurveyTask) -> dict:
     opts = task.options
     if task.codes is not None:
         alphabet = Alphabet.from_dict(task.alphabet or {})
-        arr = SymbolArray(alphabet, task.codes, task.starts if task.starts is not None else np.zeros(0, np.int64), task.spec.name)
+        arr = SymbolArray(alphabet, task.codes, task.starts if task.starts is not None else np.zeros(0, np.int64), task.spec.name,
+                          task.report if task.report is not None else ReadReport())
     else:
         from fractalseq.sources import open_source
 
@@ -497,7 +498,7 @@ def run_survey(
             continue
         todo.append(i)
         if arr is not None:
-            tasks.append(SurveyTask(spec, options, arr.alphabet.to_dict(), arr.codes, arr.starts))
+            tasks.append(SurveyTask(spec, options, arr.alphabet.to_dict(), arr.codes, arr.starts, arr.report))
         else:
             tasks.append(SurveyTask(spec, options))
         if progress:

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import os
 import signal
 import subprocess
 import sys
@@ -14,7 +13,7 @@ import numpy as np
 import pytest
 from scipy.spatial.distance import jensenshannon
 
-from fractalseq.alphabet import dna, from_symbols
+from fractalseq.alphabet import from_symbols
 from fractalseq.distances import cluster, joint_alphabet, js_divergence, js_matrix, remap_words, word_matrix
 from fractalseq.errors import InputError
 from fractalseq.markov import simulate_markov

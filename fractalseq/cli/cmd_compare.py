@@ -17,7 +17,6 @@ from rich.table import Table
 
 from fractalseq.cli import common
 from fractalseq.errors import ParameterError
-from fractalseq.outputs import to_json
 
 EXIT_FOUND = 1
 
@@ -214,7 +213,7 @@ def drift(
 
     Example: fractalseq drift logs/monday.log logs/tuesday.log --format log --alpha 0.01
     """
-    from fractalseq.drift import DriftOptions, drift_test, FIGURES
+    from fractalseq.drift import DriftOptions, drift_test
 
     if baseline == "-" and new == "-":
         raise ParameterError("Standard input can be read only once; give '-' for one batch at most.")

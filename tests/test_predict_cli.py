@@ -1,0 +1,159 @@
+"""``fractalseq learn``, ``score`` and ``next``: tables, the public ``--json`` contract of ``score``, refusals."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from fractalseq.cli.app import main
+
+ROOT = Path(__file__).resolve().parents[1]
+LAMBDA = ROOT / "reference" / "lambda_virus.fa.gz"  # provenance: reference/PROVENANCE.md
+
+
+def _fasta(records: dict[str, str]) -> str:
+    out = []
+    for name, seq in records.items():
+        out.append(f">{name} invented test sequence")
+        out.extend(seq[i : i + 60] for i in range(0, len(seq), 60))
+    return "\n".join(out) + "\n"
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory) -> Path:
+    d = tmp_path_factory.mktemp("predict")
+    rng = np.random.default_rng(1)
+    motif = "".join(rng.choice(list("ACGT"), 400))
+    noise = lambda n: "".join(rng.choice(list("ACGT"), n))  # noqa: E731
+    # invented: a repeated motif with random spacers, and a plain random record
+    (d / "train.fa").write_text(_fasta({"r1": "".join(motif + noise(100) for _ in range(20)), "r2": noise(3000)}))
+    (d / "test.fa").write_text(_fasta({"t1": "".join(motif + noise(50) for _ in range(5)), "t2": noise(25000)}))
+    (d / "prot.fa").write_text(_fasta({"p": "".join(rng.choice(list("ACDEFGHIKLMNPQRSTVWY"), 500))}))
+    return d
+
+
+def run(capsys, *argv: str) -> tuple[int, str, str]:
+    capsys.readouterr()
+    code = main([str(a) for a in argv])
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+def test_learn_score_next_round_trip(files: Path, capsys):
+    model = files / "m.npz"
+    code, out, _ = run(capsys, "learn", files / "train.fa", "-o", model, "--json", "-q")
+    assert code == 0
+    doc = json.loads(out)
+    assert doc["symbols"] == 20 * 500 + 3000 and doc["segments"] == 2
+    assert doc["cells"] > 0 and doc["pruned_cells"] == 0 and doc["baseline_order"] >= 0
+    assert model.exists()
+
+    code, out, _ = run(capsys, "score", files / "test.fa", "--model", model, "--json", "--window", "1000", "--top", "3", "-q")
+    assert code == 0
+    doc = json.loads(out)
+    src = doc["sources"][0]
+    assert doc["mode"] == "fitted"
+    assert src["length"] == 5 * 450 + 25000
+    names = [r["name"] for r in src["records"]]
+    assert [n.split()[0] for n in names] == ["t1", "t2"]
+    # the repeated motif learned in training is much cheaper than the random record
+    rec = {r["name"].split()[0]: r["bits_per_symbol"] for r in src["records"]}
+    assert rec["t1"] < 1.5 < 1.9 < rec["t2"]
+    assert len(src["most_surprising_windows"]) == 3
+    assert src["baselines"]["markov"]["order_chosen_on"] == "model training data"
+    assert {"lzma_text", "bz2_text", "zlib_text", "lzma_packed"} <= set(src["baselines"]["compressors"])
+
+    code, out, _ = run(capsys, "next", "ACGTTGCA", "--model", model, "--top", "4")
+    assert code == 0 and "probability" in out and "deepest cell" in out
+    code, out, _ = run(capsys, "next", "ACGTTGCA", "--model", model, "--json")
+    doc = json.loads(out)
+    assert len(doc["next"]) == 4
+    assert sum(r["probability"] for r in doc["next"]) == pytest.approx(1.0)
+
+
+def test_score_json_contract_online_with_several_sources(files: Path, capsys):
+    code, out, _ = run(capsys, "score", "--online", files / "train.fa", files / "test.fa", "--json", "-q")
+    assert code == 0
+    doc = json.loads(out)
+    # public contract (README): top-level bits_per_symbol over all sources; sources with name, length, bits_per_symbol
+    assert isinstance(doc["bits_per_symbol"], float)
+    assert [s["name"] for s in doc["sources"]] == [str(files / "train.fa"), str(files / "test.fa")]
+    for s in doc["sources"]:
+        assert {"name", "length", "bits_per_symbol"} <= set(s)
+    total = sum(s["total_bits"] for s in doc["sources"])
+    length = sum(s["length"] for s in doc["sources"])
+    assert doc["bits_per_symbol"] == pytest.approx(total / length)
+    assert doc["mode"] == "online"
+    assert doc["sources"][0]["baselines"]["markov"]["order_chosen_on"].startswith("the scored stream")
+    assert doc["sources"][0]["memory"]["cells_cap"] > 0
+
+
+def test_score_table_lists_records_and_windows(files: Path, capsys):
+    code, out, err = run(capsys, "score", "--online", files / "test.fa", "--window", "2000", "--top", "2")
+    assert code == 0
+    assert "bits/symbol" in out and "records" in out and "most surprising windows" in out
+    assert "research" in err
+
+
+def test_online_score_of_lambda_beats_its_compressors(capsys):
+    code, out, _ = run(capsys, "score", "--online", LAMBDA, "--json", "-q")
+    assert code == 0
+    src = json.loads(out)["sources"][0]
+    assert src["length"] == 48502  # NC_001416.1 (Sanger et al. 1982)
+    assert src["bits_per_symbol"] < min(src["baselines"]["compressors"].values())
+
+
+@pytest.mark.parametrize(
+    "argv, pattern",
+    [
+        (("score", "{d}/test.fa"), r"--model|--online"),
+        (("score", "{d}/test.fa", "--online", "--model", "{d}/m2.npz"), r"either"),
+        (("score", "{d}/prot.fa", "--model", "{d}/m2.npz", "--alphabet", "protein"), r"learned on the dna alphabet"),
+        (("score", "{d}/test.fa", "--model", "{d}/short.npz"), r"truncated or damaged"),
+        (("next", "ACGTN", "--model", "{d}/m2.npz"), r"'N'"),
+        (("learn", "{d}/train.fa", "-o", "{d}/m2.npz"), r"already exists"),
+        (("learn", "{d}/train.fa", "-o", "{d}/m3.npz", "--depths", "1,x"), r"--depths"),
+        (("score", "--online", "{d}/test.fa", "--strands", "sideways"), r"--strands"),
+    ],
+)
+def test_bad_input_is_one_sentence_and_exit_2(files: Path, capsys, argv, pattern):
+    import re
+
+    m2 = files / "m2.npz"
+    if not m2.exists():
+        assert main(["learn", str(files / "train.fa"), "-o", str(m2), "-q"]) == 0
+        data = m2.read_bytes()
+        (files / "short.npz").write_bytes(data[: len(data) // 3])
+    code, out, err = run(capsys, *[a.replace("{d}", str(files)) for a in argv])
+    assert code == 2
+    lines = [l for l in err.strip().splitlines() if l.strip()]
+    assert len(lines) == 1 and lines[0].startswith("error: ")
+    assert re.search(pattern, lines[0])
+    assert "Traceback" not in err
+
+
+@pytest.mark.parametrize("command", ["learn", "score", "next"])
+def test_help_reads_like_a_man_page(command, capsys):
+    code, out, _ = run(capsys, command, "--help")
+    assert code == 0
+    assert "Example: fractalseq " + command in out.replace("\n", " ").replace("  ", " ") or "Example:" in out
+    assert "--model" in out or "--out" in out
+    assert "--json" in out
+
+
+def test_score_online_as_a_real_process(files: Path):
+    env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
+    proc = subprocess.run(
+        [sys.executable, "-m", "fractalseq.cli", "score", "--online", str(files / "test.fa"), "--json", "-q"],
+        capture_output=True, env=env, timeout=300,
+    )
+    assert proc.returncode == 0, proc.stderr.decode()
+    doc = json.loads(proc.stdout)
+    assert doc["sources"][0]["length"] == 5 * 450 + 25000
+    assert 0 < doc["bits_per_symbol"] < 2.1
