@@ -71,6 +71,8 @@ _BETA_STEPS = 18
 _DISCOUNTS = (0.0, 0.25, 0.5, 0.75)
 #: Cells per depth used to choose the blend parameters (a regular subsample beyond).
 _GRID_CELLS = 100_000
+#: Online mode: shallower cells are estimated well from one strand and get no reverse-complement updates.
+IR_MIN_DEPTH = 5
 #: Default window (symbols) of the per-window report.
 DEFAULT_WINDOW = 10_000
 
@@ -464,7 +466,7 @@ class OnlineCoder:
             "rbits": np.array(rbits, dtype=np.int64),
             "offset": np.concatenate([[0], np.cumsum(rows)[:-1]]).astype(np.int64),
             "masks": np.array([(1 << (b * d)) - 1 for d in ds], dtype=np.uint64),
-            "ir_on": np.array([self.reverse and d >= 1 for d in ds], dtype=np.bool_),
+            "ir_on": np.array([self.reverse and d >= IR_MIN_DEPTH for d in ds], dtype=np.bool_),
             "comp": complement_map(alphabet) if self.reverse else np.zeros(0, dtype=np.int64),
         }
         classes = [_depth_class(alphabet, d) for d in ds]
@@ -717,7 +719,8 @@ class CellPredictor:
     learning_rate:
         Online mode: step of the mixing-weight update.
     reverse_complement:
-        ``"auto"`` (on for DNA/RNA), ``True`` or ``False``: also count each word read on the other strand.
+        ``"auto"`` (on for DNA/RNA), ``True`` or ``False``: also count each word read on the other strand
+        (online: for cells of depth 5 and more, :data:`IR_MIN_DEPTH`; fitted: every depth).
 
     Attributes
     ----------
