@@ -61,6 +61,15 @@ def check_writable(path: Path, force: bool) -> None:
         raise OutputError(f"{parent} is a file, not a folder; choose another output folder.")
 
 
+def _current_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+_UMASK = _current_umask()
+
+
 @contextlib.contextmanager
 def _signals_deferred():
     """Hold SIGINT/SIGTERM back while a file is being written and renamed (main thread only).
@@ -87,6 +96,7 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
     with _signals_deferred():
         fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
         try:
+            os.fchmod(fd, 0o666 & ~_UMASK)  # mkstemp makes 0600; give the usual permissions
             with os.fdopen(fd, "wb") as fh:
                 fh.write(data)
                 fh.flush()
