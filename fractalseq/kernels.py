@@ -24,7 +24,7 @@ from numba import njit
 
 
 @njit(cache=True)
-def full_words(codes, starts, depth, bits, closed_last, key_template):
+def full_words(codes, starts, depth, bits, closed_last, key_template, write_keys=True):
     """Addresses of every full ``depth``-word and the tails of closed segments.
 
     Parameters
@@ -35,6 +35,8 @@ def full_words(codes, starts, depth, bits, closed_last, key_template):
     bits : int, bits per symbol
     closed_last : bool, whether the last segment ends at ``len(codes)``
     key_template : an (empty) array of the key dtype (uint32 or uint64) fixing the output type
+    write_keys : bool, False to return no keys (only tails and carry), e.g. when
+        :func:`full_words_bucketed` writes them
 
     Returns
     -------
@@ -56,6 +58,8 @@ def full_words(codes, starts, depth, bits, closed_last, key_template):
             nfull += L - depth + 1
         if s + 1 < nseg or closed_last:
             ntail += min(L, depth - 1)
+    if not write_keys:
+        nfull = 0
     keys = np.empty(nfull, dtype=key_template.dtype)
     tail_len = np.empty(ntail, dtype=np.uint8)
     tail_addr = np.empty(ntail, dtype=np.uint64)
@@ -73,7 +77,7 @@ def full_words(codes, starts, depth, bits, closed_last, key_template):
         for i in range(a, e):
             addr = ((addr << ub) | np.uint64(codes[i])) & kmask
             filled += 1
-            if filled >= depth:
+            if filled >= depth and write_keys:
                 keys[k] = addr
                 k += 1
         if closed:

@@ -403,7 +403,7 @@ class WordCounts:
 
 
 # ------------------------------------------------------------------ helpers
-def _sorted_runs_threaded(codes, starts, depth, bits, keys, threads: int = 2):
+def _sorted_runs_threaded(codes, starts, depth, bits, keys, bounds, threads: int = 2):
     """Unique words, counts and prefix histogram using ``threads`` threads.
 
     Words are grouped by their first symbol (so the groups are already in
@@ -413,7 +413,6 @@ def _sorted_runs_threaded(codes, starts, depth, bits, keys, threads: int = 2):
     from concurrent.futures import ThreadPoolExecutor
 
     n_buckets = 1 << bits
-    bounds = kernels.first_symbol_bounds(codes, starts, depth, bits, n_buckets)
     kernels.full_words_bucketed(codes, starts, depth, bits, bounds, keys)
     key_bits = 8 * keys.dtype.itemsize
     parts = [(int(bounds[d]), int(bounds[d + 1])) for d in range(n_buckets) if bounds[d + 1] > bounds[d]]
@@ -531,13 +530,20 @@ class WordCounter:
         if vcodes.size == 0:
             self._open = self._open and not final
             return
-        keys, tl, ta, carry_from = kernels.full_words(vcodes, vstarts, self.depth, self.bits, bool(final), self._template)
+        threaded = self.parallel and self._dense is None and not self.use_dense and vcodes.size > (1 << 18)
+        # the threaded path writes the addresses itself, grouped by first symbol: here only tails and carry
+        keys, tl, ta, carry_from = kernels.full_words(
+            vcodes, vstarts, self.depth, self.bits, bool(final), self._template, not threaded
+        )
         if tl.size:
             self._tails[0].append(tl)
             self._tails[1].append(ta)
             self._tails[2].append(np.ones(tl.size, np.int64))
-        if keys.size and self.parallel and self._dense is None and not self.use_dense and keys.size > (1 << 18):
-            self._push_run(*_sorted_runs_threaded(vcodes, vstarts, self.depth, self.bits, keys))
+        if threaded:
+            bounds = kernels.first_symbol_bounds(vcodes, vstarts, self.depth, self.bits, 1 << self.bits)
+            if bounds[-1]:
+                keys = np.empty(int(bounds[-1]), dtype=self.key_dtype)
+                self._push_run(*_sorted_runs_threaded(vcodes, vstarts, self.depth, self.bits, keys, bounds))
         elif keys.size:
             if self._dense is not None:
                 kernels.dense_add(self._dense, keys)

@@ -143,9 +143,11 @@ def test_depth_32_for_dna_and_address_round_trip():
 
 def test_parallel_sort_equals_serial():
     rng = np.random.default_rng(5)
-    arr = from_codes(al.dna(), rng.integers(0, 4, 200_000))
+    # longer than the 2**18-symbol threshold, so the threaded path (split by first symbol) really runs
+    arr = from_codes(al.dna(), rng.integers(0, 4, 300_000), [0, 123_456])
     a = count_words(arr, 16, parallel=True)
     b = count_words(arr, 16, parallel=False)
+    assert np.array_equal(a.distinct_all(), b.distinct_all())
     for n in (1, 8, 16):
         wa, ca = a.words(n)
         wb, cb = b.words(n)
