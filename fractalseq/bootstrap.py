@@ -52,7 +52,9 @@ import numpy as np
 from numba import njit
 from scipy.special import ndtri
 
+from fractalseq import replicates as rp
 from fractalseq.errors import InputError, ParameterError
+from fractalseq.replicates import CountSpectrum
 from fractalseq.stream import SymbolArray, SymbolStream
 
 SCHEMES = ("nonoverlapping", "moving", "stationary")
@@ -190,8 +192,56 @@ def block_tables(labels: np.ndarray, span: int, block_length: int) -> BlockTable
 
 
 # ------------------------------------------------------------ word labels
+#: Word lengths whose address table has at most this many cells are labelled densely (no sort).
+DENSE_LABEL_CELLS = 1 << 24
+
+
+@njit(cache=True)
+def _dense_labels(addr, valid, cells, labels):
+    """Rank the addresses present in a table of ``cells`` entries; label every valid position with its rank."""
+    table = np.zeros(cells, dtype=np.int32)
+    n = addr.shape[0]
+    for t in range(n):
+        if valid[t]:
+            table[addr[t]] = 1
+    k = 0
+    for a in range(cells):
+        if table[a]:
+            table[a] = k
+            k += 1
+        else:
+            table[a] = -1
+    for t in range(n):
+        labels[t] = table[addr[t]] if valid[t] else -1
+    words = np.empty(k, dtype=np.uint64)
+    for a in range(cells):
+        if table[a] >= 0:
+            words[table[a]] = a
+    return words
+
+
+@njit(cache=True)
+def _ranks_of_sorted(keys, shift, labels, words):
+    """``keys`` sorted, each ``address << shift | position``: label each position with its address rank."""
+    pmask = (np.uint64(1) << np.uint64(shift)) - np.uint64(1)
+    k = -1
+    prev = np.uint64(0)
+    for i in range(keys.shape[0]):
+        a = keys[i] >> np.uint64(shift)
+        if i == 0 or a != prev:
+            k += 1
+            words[k] = a
+            prev = a
+        labels[np.int64(keys[i] & pmask)] = k
+    return k + 1
+
+
 def word_labels(arr: SymbolArray, depth: int) -> tuple[np.ndarray, np.ndarray]:
     """Label every position with the index of the ``depth``-word starting there.
+
+    Short words (``A**depth`` at most :data:`DENSE_LABEL_CELLS` addresses) are
+    ranked in a dense table; longer ones by one sort of ``address << b |
+    position`` keys when they fit 64 bits, else by :func:`numpy.unique`.
 
     Returns
     -------
@@ -207,6 +257,20 @@ def word_labels(arr: SymbolArray, depth: int) -> tuple[np.ndarray, np.ndarray]:
     valid = np.zeros(T, dtype=bool)
     if T:
         _word_addresses(arr.codes, arr.starts, int(depth), int(bits), addr, valid)
+    cells = 1 << (bits * depth) if bits * depth <= 62 else 0
+    if 0 < cells <= DENSE_LABEL_CELLS:
+        labels = np.empty(T, dtype=np.int32)
+        words = _dense_labels(addr, valid, int(cells), labels)
+        return labels, words
+    shift = max(int(T - 1).bit_length(), 1)
+    if bits * depth + shift <= 64 and T < 2**31 - 1:
+        pos = np.flatnonzero(valid).astype(np.uint64)
+        keys = (addr[valid] << np.uint64(shift)) | pos
+        keys.sort()
+        labels = np.full(T, -1, dtype=np.int32)
+        words = np.empty(keys.size, dtype=np.uint64)
+        k = _ranks_of_sorted(keys, shift, labels, words)
+        return labels, words[:k].copy()
     words, inv = np.unique(addr[valid], return_inverse=True)
     dtype = np.int32 if words.size < 2**31 - 1 else np.int64
     labels = np.full(T, -1, dtype=dtype)
@@ -215,6 +279,39 @@ def word_labels(arr: SymbolArray, depth: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 # ---------------------------------------------------------- block length
+def autocovariances(x: np.ndarray, max_lag: int, segment: int | None = None) -> np.ndarray:
+    """``sum_t x_t x_{t+k} / n`` for ``k = 0..max_lag`` (``x`` already centred).
+
+    Computed segment by segment with FFTs of a little more than the segment
+    plus ``max_lag`` points (each segment correlated with itself extended by
+    ``max_lag`` points), so the cost grows like ``n log(segment)`` and the
+    memory like a few segments, instead of one FFT of ``2n`` points.
+    """
+    from scipy import fft as sfft
+
+    x = np.ascontiguousarray(x, dtype=np.float64)
+    n = x.size
+    M = int(min(max(max_lag, 0), max(n - 1, 0)))
+    L = int(segment) if segment else max(4 * M, 1 << 14)
+    L = max(L, 1)
+    N = sfft.next_fast_len(L + M, real=True)
+    xp = np.concatenate([x, np.zeros(M + L)])
+    S = -(-n // L)
+    out = np.zeros(M + 1)
+    batch = max(1, (1 << 22) // N)
+    for s0 in range(0, S, batch):
+        s1 = min(S, s0 + batch)
+        a = np.zeros((s1 - s0, N))
+        b = np.zeros((s1 - s0, N))
+        for i, s in enumerate(range(s0, s1)):
+            a[i, :L] = xp[s * L : s * L + L]
+            b[i, : L + M] = xp[s * L : s * L + L + M]
+        fa = sfft.rfft(a, axis=1)
+        fb = sfft.rfft(b, axis=1)
+        out += sfft.irfft(np.conj(fa) * fb, N, axis=1)[:, : M + 1].sum(axis=0)
+    return out / n
+
+
 def politis_white(series: np.ndarray) -> tuple[float, float]:
     """Automatic block lengths of Politis & White (2004) with the 2009 correction.
 
@@ -242,10 +339,7 @@ def politis_white(series: np.ndarray) -> tuple[float, float]:
     kn = max(5, int(math.sqrt(math.log10(n))))
     m_max = int(math.ceil(math.sqrt(n))) + kn
     m_max = min(m_max, n - 1)
-    # autocovariances by FFT
-    size = 1 << int(math.ceil(math.log2(2 * n)))
-    f = np.fft.rfft(x, size)
-    acov = np.fft.irfft(f * np.conj(f), size)[: m_max + 1] / n
+    acov = autocovariances(x, m_max)
     rho = acov / acov[0]
     thr = 2.0 * math.sqrt(math.log10(n) / n)
     insignificant = np.abs(rho[1:]) < thr  # lag 1..m_max
@@ -271,6 +365,25 @@ def politis_white(series: np.ndarray) -> tuple[float, float]:
     return float(min(max(b_sb, 1.0), cap)), float(min(max(b_cb, 1.0), cap))
 
 
+@njit(cache=True)
+def _surprisals(lab1, lab0, m1, m0, out):
+    """``-ln(count(word) / count(context))`` per position from word and context labels (-1: undefined)."""
+    n = lab1.shape[0]
+    joint = np.zeros(m1, dtype=np.int64)
+    ctx = np.zeros(max(m0, 1), dtype=np.int64)
+    total = 0
+    for t in range(n):
+        if lab1[t] >= 0:
+            joint[lab1[t]] += 1
+            total += 1
+            if m0 > 0:
+                ctx[lab0[t]] += 1
+    for t in range(n):
+        if lab1[t] >= 0:
+            den = ctx[lab0[t]] if m0 > 0 else total
+            out[t] = -math.log(joint[lab1[t]] / den)
+
+
 def surprisal_series(arr: SymbolArray, order: int) -> np.ndarray:
     """Plug-in conditional surprisal ``-ln p(x_t | x_{t-order} .. x_{t-1})`` per position (NaN where undefined).
 
@@ -281,15 +394,13 @@ def surprisal_series(arr: SymbolArray, order: int) -> np.ndarray:
     out = np.full(T, np.nan)
     if T == 0:
         return out
-    lab1, _ = word_labels(arr, order + 1)
-    ok = lab1 >= 0
-    joint = np.bincount(lab1[ok], minlength=1).astype(np.float64)
+    lab1, w1 = word_labels(arr, order + 1)
     if order == 0:
-        out[ok] = -np.log(joint[lab1[ok]] / ok.sum())
-        return out
-    lab0, _ = word_labels(arr, order)
-    ctx = np.bincount(lab0[ok], minlength=1).astype(np.float64)
-    out[ok] = -np.log(joint[lab1[ok]] / ctx[lab0[ok]])
+        lab0, m0 = lab1, 0
+    else:
+        lab0, w0 = word_labels(arr, order)
+        m0 = int(w0.size)
+    _surprisals(lab1, lab0, int(max(w1.size, 1)), m0, out)
     return out
 
 
@@ -362,8 +473,13 @@ def choose_block_length(
     return BlockLength(int(ell), rule + f"; used {ell}", float(pw), floor, int(math.ceil(T / ell)) if T else 0)
 
 
-def user_block_length(block_length: int, length: int) -> BlockLength:
-    """Validate a user-given block length."""
+def user_block_length(block_length: "int | BlockLength", length: int) -> BlockLength:
+    """Validate a user-given block length (a :class:`BlockLength` chosen earlier is kept, with its rule)."""
+    if isinstance(block_length, BlockLength):
+        ell = min(block_length.length, max(int(length), 1))
+        if ell == block_length.length and block_length.blocks == int(math.ceil(length / ell)):
+            return block_length
+        return BlockLength(ell, block_length.rule, block_length.politis_white, block_length.floor, int(math.ceil(length / ell)))
     if not isinstance(block_length, (int, np.integer)) or block_length < 1:
         raise ParameterError(f"Block length must be a positive whole number of symbols, not {block_length!r}.")
     if block_length > length:
@@ -578,9 +694,9 @@ def _as_array(arr: SymbolArray | SymbolStream) -> SymbolArray:
 
 
 def resolve_block(
-    arr: SymbolArray, depth: int, block_length: int | None, scheme: str, multiple: int = BLOCK_MULTIPLE
+    arr: SymbolArray, depth: int, block_length: "int | BlockLength | None", scheme: str, multiple: int = BLOCK_MULTIPLE
 ) -> BlockLength:
-    """The block length to use: the user's, or :func:`choose_block_length`."""
+    """The block length to use: the user's (a number, or a :class:`BlockLength` chosen before), or :func:`choose_block_length`."""
     if block_length is None:
         return choose_block_length(arr, depth, multiple=multiple, scheme=scheme)
     return user_block_length(block_length, len(arr))
@@ -592,8 +708,10 @@ def block_bootstrap(
     statistic: Callable[[dict[int, np.ndarray]], Iterable[float] | float],
     n_boot: int = 200,
     seed: int = 0,
-    block_length: int | None = None,
+    block_length: "int | BlockLength | None" = None,
     scheme: str = "nonoverlapping",
+    spectra: bool = False,
+    batch_statistic: Callable[[dict], np.ndarray] | None = None,
 ) -> BootstrapResult:
     """Block bootstrap of any statistic of word counts.
 
@@ -619,6 +737,19 @@ def block_bootstrap(
         :func:`choose_block_length`; the rule used is in ``result.block.rule``).
     scheme:
         ``"nonoverlapping"``, ``"moving"`` or ``"stationary"``.
+    spectra:
+        The statistic depends on the counts only through their spectrum (how
+        many words occur ``v`` times; entropies do): it is then called with
+        ``{n: spectrum}`` objects having ``value`` and ``multiplicity``
+        arrays, and with non-overlapping blocks all replicates' spectra are
+        built in one pass (:mod:`fractalseq.replicates`), much faster than
+        one table per replicate.
+    batch_statistic:
+        With ``spectra`` and non-overlapping blocks: the same statistic for
+        all replicates at once, called with ``{n: ReplicateSpectra}`` and
+        returning an ``(n_boot, k)`` array (e.g. built on
+        :func:`fractalseq.entropy.replicate_rates`); ``statistic`` still
+        gives the estimate on the whole stream.
 
     Returns
     -------
@@ -636,12 +767,22 @@ def block_bootstrap(
     labels = {n: word_labels(arr, n)[0] for n in depths}
     sizes = {n: int(labels[n].max()) + 1 if labels[n].size and labels[n].max() >= 0 else 0 for n in depths}
     full = {n: np.bincount(labels[n][labels[n] >= 0], minlength=sizes[n]).astype(np.int64) for n in depths}
+    if spectra:
+        full = {n: CountSpectrum.of_counts(c) for n, c in full.items()}
     estimate = np.atleast_1d(np.asarray(statistic(full), dtype=np.float64)).copy()
     reps = np.full((n_boot, estimate.size), np.nan)
     notes: list[str] = []
     if block.blocks < MIN_BLOCKS:
         notes.append(f"only {block.blocks} blocks: intervals are unreliable")
-    if n_boot:
+    if n_boot and spectra and scheme == "nonoverlapping":
+        plan = make_plan(T, block.length, n_boot, seed, scheme)
+        weights = plan.block_weights()
+        specs = {n: rp.replicate_spectra(rp.item_tables(labels[n], n, block.length, sizes[n]), weights) for n in depths}
+        if batch_statistic is not None:
+            reps[:] = np.asarray(batch_statistic(specs), dtype=np.float64).reshape(n_boot, estimate.size)
+        for r in range(n_boot if batch_statistic is None else 0):
+            reps[r] = np.asarray(statistic({n: CountSpectrum(*s.spectrum(r)) for n, s in specs.items()}), dtype=np.float64)
+    elif n_boot:
         plan = make_plan(T, block.length, n_boot, seed, scheme)
         weights = plan.block_weights() if scheme == "nonoverlapping" else None
         btabs = {n: block_tables(labels[n], n, block.length) for n in depths} if weights is not None else {}
@@ -655,6 +796,6 @@ def block_bootstrap(
                 else:
                     s, ln = plan.blocks(r)
                     replicate_table(labels[n], n, s, ln, buf)
-                tables[n] = buf
+                tables[n] = CountSpectrum.of_counts(buf) if spectra else buf
             reps[r] = np.asarray(statistic(tables), dtype=np.float64)
     return BootstrapResult(estimate, reps, depths, block, scheme, int(n_boot), int(seed), T, tuple(notes))

@@ -49,7 +49,7 @@ import numpy as np
 
 from fractalseq import bootstrap as bs
 from fractalseq import spectrum as sp
-from fractalseq.errors import InputError
+from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray, SymbolStream
 
 CONSISTENT = "consistent"
@@ -93,7 +93,7 @@ def conditional_rates(
     order: int | None = None,
     n_boot: int = 200,
     seed: int = 0,
-    block_length: int | None = None,
+    block_length: "int | bs.BlockLength | None" = None,
     scheme: str = "nonoverlapping",
     level: float = 0.95,
     interval: str = "centered",
@@ -216,12 +216,14 @@ def consistency_table(
     corners: np.ndarray | None = None,
     n_boot: int = 200,
     seed: int = 0,
-    block_length: int | None = None,
+    block_length: "int | bs.BlockLength | None" = None,
     scheme: str = "nonoverlapping",
     offsets: int = 4,
     level: float = 0.95,
     interval: str = "centered",
     starve: float = sp.STARVE,
+    information: RateResult | None = None,
+    levels: int | None = None,
 ) -> ConsistencyResult:
     """The D_q * log2(1/k) vs h_q table with intervals and a verdict per q.
 
@@ -237,6 +239,17 @@ def consistency_table(
         Block bootstrap settings, shared by both sides (same blocks).
     offsets:
         Random grid offsets averaged for the shifted-grid column (0: skip it).
+    information:
+        The information side already computed (:func:`conditional_rates` of
+        this stream with the same settings, or the ``rates`` of
+        :func:`fractalseq.spectrum.dimension_spectrum`, which are the same
+        numbers); its block length is then used for the geometric side too.
+    levels:
+        Number of scales ``k, k^2, ...`` of the geometric side (at least
+        :data:`fractalseq.spectrum.MIN_LEVELS`); default: down to the depth
+        where word counts become starved of data, as in the spectrum
+        (``SpectrumResult.data_limit``, which a caller may pass to save
+        counting the words again).
 
     Returns
     -------
@@ -253,14 +266,24 @@ def consistency_table(
     if len(arr) <= sp.TRANSIENT + 10:
         raise InputError(f"The stream has {len(arr)} symbols; the consistency table needs more than {sp.TRANSIENT + 10}.")
     overlapping, reason = sp._overlapping(arr.alphabet, k, corners)
-    info = conditional_rates(arr, qv, n_boot=n_boot, seed=seed, block_length=block_length, scheme=scheme,
-                             level=level, interval=interval, starve=starve)
+    if information is None:
+        info = conditional_rates(arr, qv, n_boot=n_boot, seed=seed, block_length=block_length, scheme=scheme,
+                                 level=level, interval=interval, starve=starve)
+    else:
+        missing = [float(q) for q in qv if all(r.q != float(q) for r in information.rates)]
+        if missing or information.length != len(arr):
+            raise ParameterError("The information side given was computed on another stream or other orders q; recompute it.")
+        info = information
     # the geometric side uses the same block length (same blocks, same seed)
-    ell = info.block.length if info.block is not None else block_length
-    wc = sp._counts_for(arr, starve, None, None)
-    probe = sp._word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, True)
-    top = max(probe.data_limit + 1, sp.MIN_LEVELS)
-    scales = k ** np.arange(1, top + 1, dtype=float)
+    ell = info.block if info.block is not None else block_length
+    if levels is None:
+        wc = sp._counts_for(arr, starve, None, None)
+        probe = sp._word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, True)
+        top = max(probe.data_limit + 1, sp.MIN_LEVELS)
+    else:
+        if not isinstance(levels, (int, np.integer)) or levels < 1:
+            raise ParameterError(f"The number of scales must be a positive whole number, not {levels!r}.")
+        top = max(int(levels), sp.MIN_LEVELS)
     pts = encoding.points(arr, k, corners, drop=0)
     layout = encoding.corner_layout(arr.alphabet.size, corners)
     origin = layout.min(axis=0)  # grids are anchored on the corners' bounding box

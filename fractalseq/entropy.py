@@ -214,6 +214,51 @@ def _entropy_nats(v: np.ndarray, m: np.ndarray, method: str) -> float:
     raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.")
 
 
+def replicate_entropies(spectra, method: str = "grassberger") -> np.ndarray:
+    """Shannon entropy estimates (nats) of every bootstrap replicate at once.
+
+    ``spectra`` is a :class:`fractalseq.replicates.ReplicateSpectra`; the
+    result equals :func:`entropy_counts` (in nats) of each replicate's
+    spectrum, computed as matrix products over the dense small-count table.
+    """
+    method = method_name(method)
+    D = np.asarray(spectra.dense, dtype=np.float64)
+    B = np.asarray(spectra.big, dtype=np.float64)
+    v = np.arange(D.shape[1], dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        vlogv = np.where(v > 0, v * np.log(np.where(v > 0, v, 1.0)), 0.0)
+        blogb = np.where(B > 0, B * np.log(np.where(B > 0, B, 1.0)), 0.0)
+    N = D @ v + B.sum(axis=0)
+    out = np.full(D.shape[0], np.nan)
+    ok = N > 0
+    if method in ("plugin", "miller-madow"):
+        S = D @ vlogv + blogb.sum(axis=0)
+        out[ok] = np.log(N[ok]) - S[ok] / N[ok]
+        if method == "miller-madow":
+            K = D[:, 1:].sum(axis=1) + (B > 0).sum(axis=0)
+            out[ok] += (K[ok] - 1.0) / (2.0 * N[ok])
+        return out
+    if method == "grassberger":
+        vg = np.zeros_like(v)
+        vg[1:] = v[1:] * grassberger_g(v[1:])
+        bg = np.zeros_like(B)
+        if B.size:
+            pos = B > 0
+            bg[pos] = B[pos] * grassberger_g(B[pos])
+        S = D @ vg + bg.sum(axis=0)
+        out[ok] = digamma(N[ok]) - S[ok] / N[ok]
+        return out
+    raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.")
+
+
+def replicate_rates(spectra_n, spectra_n1, method: str = "grassberger") -> np.ndarray:
+    """:func:`rate_from_counts` (bits) of every replicate at once (``spectra_n = None``: ``n = 0``)."""
+    h1 = replicate_entropies(spectra_n1, method)
+    if spectra_n is None:
+        return h1 / LN2
+    return (h1 - replicate_entropies(spectra_n, method)) / LN2
+
+
 def entropy_counts(counts, method: str = "plugin", base: float | None = 2.0) -> float:
     """Shannon entropy estimate of a count vector (or spectrum), like :func:`scipy.stats.entropy` on counts.
 
@@ -504,9 +549,9 @@ def bootstrap_rate(
     n_boot: int = 200,
     seed: int = 0,
     level: float = 0.95,
-    block_length: int | None = None,
+    block_length: "int | bs.BlockLength | None" = None,
     scheme: str = "nonoverlapping",
-    interval: str = "percentile",
+    interval: str = "centered",
 ) -> EntropyEstimate:
     """Attach a block-bootstrap interval to a rate from :func:`h_difference`, :func:`h_ratio` or :func:`h_renyi`.
 
@@ -524,7 +569,8 @@ def bootstrap_rate(
     stream:
         The :class:`~fractalseq.stream.SymbolArray` (or stream) the counts came from.
     n_boot, seed, level, block_length, scheme, interval:
-        Passed to the bootstrap (``interval``: ``percentile``, ``basic`` or ``bc``).
+        Passed to the bootstrap (``interval``: ``centered`` (default, as everywhere in the
+        package; chosen by the calibration study), ``percentile``, ``basic`` or ``bc``).
     """
     from fractalseq import bootstrap as bs
 
@@ -554,7 +600,9 @@ def bootstrap_rate(
 
     else:
         raise ParameterError(f"A bootstrap interval is not available for the {est.method} estimate.")
-    res = bs.block_bootstrap(stream, depths, statistic, n_boot=n_boot, seed=seed, block_length=block_length, scheme=scheme)
+    res = bs.block_bootstrap(
+        stream, depths, statistic, n_boot=n_boot, seed=seed, block_length=block_length, scheme=scheme, spectra=True
+    )
     if not math.isclose(float(res.estimate[0]), est.estimate, rel_tol=1e-9, abs_tol=1e-12):
         raise InputError("The stream given to the bootstrap is not the one the counts came from; pass the same input.")
     lo, hi = res.interval(level, interval)
@@ -612,12 +660,23 @@ def h_topological_growth(wc, depth: int | None = None) -> EntropyEstimate:
     )
 
 
+#: Word spaces up to this size are marked in a byte table instead of sorting the words.
+_DENSE_DISTINCT = 1 << 28
+
+
 @njit(cache=True)
-def _distinct_words(codes, starts, n, A):
-    """Distinct n-words (base-A addresses) not spanning a segment start; returns a sorted unique array."""
+def _distinct_words(codes, starts, n, A, dense):
+    """Number of distinct n-words (base-A addresses) not spanning a segment start.
+
+    With ``dense`` the ``A**n`` possible words are marked in a byte table;
+    otherwise the words are sorted.
+    """
     L = codes.shape[0]
-    out = np.empty(max(L - n + 1, 0), np.int64)
+    space = A**n
+    out = np.empty(0 if dense else max(L - n + 1, 0), np.int64)
+    seen = np.zeros(space if dense else 0, np.uint8)
     k = 0
+    distinct = 0
     seg = 0
     nseg = starts.shape[0]
     pos = 0
@@ -626,14 +685,21 @@ def _distinct_words(codes, starts, n, A):
         a = 0
         run = 0
         for i in range(pos, end):
-            a = (a * A + codes[i]) % (A**n)
+            a = (a * A + codes[i]) % space
             run += 1
             if run >= n:
-                out[k] = a
-                k += 1
+                if dense:
+                    if seen[a] == 0:
+                        seen[a] = 1
+                        distinct += 1
+                else:
+                    out[k] = a
+                    k += 1
         pos = end
         seg += 1
-    return np.unique(out[:k])
+    if dense:
+        return distinct
+    return np.unique(out[:k]).size
 
 
 def h_topological_koslicki(data, alphabet_size: int | None = None) -> EntropyEstimate:
@@ -672,7 +738,7 @@ def h_topological_koslicki(data, alphabet_size: int | None = None) -> EntropyEst
     prefix = A**n + n - 1
     st = starts[(starts >= 0) & (starts < prefix)]
     st = np.unique(np.concatenate([[0], st])).astype(np.int64)
-    p = _distinct_words(np.ascontiguousarray(codes[:prefix]).astype(np.int64), st, n, A).size
+    p = int(_distinct_words(np.ascontiguousarray(codes[:prefix]).astype(np.int64), st, n, A, A**n <= _DENSE_DISTINCT))
     frac = math.log(p) / math.log(A) / n if p > 0 else 0.0
     notes = [f"prefix of {prefix} symbols (A^n + n - 1) of {L}"]
     if st.size > 1:

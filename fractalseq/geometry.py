@@ -25,6 +25,7 @@ The slopes, scaling-range choice, estimators and intervals are those of
 from __future__ import annotations
 
 import dataclasses
+from dataclasses import dataclass
 import math
 from typing import Sequence
 
@@ -45,33 +46,129 @@ MAX_HALVINGS = 40
 
 
 @njit(cache=True)
-def _cell_indices(points, scale, origin, shift, top, wrap, out):
-    """Integer box coordinates ``floor((x - origin) / scale + shift)``.
-
-    Clamped to ``top`` when ``top >= 0``; taken modulo ``wrap`` (a torus of
-    ``wrap`` boxes per side) when ``wrap > 0``.
-    """
-    n = points.shape[0]
-    dim = points.shape[1]
-    for t in range(n):
-        for d in range(dim):
-            j = int(math.floor((points[t, d] - origin[d]) / scale + shift[d]))
-            if top >= 0 and j > top:
-                j = top
-            if wrap > 0:
-                j = j % wrap
-            out[t, d] = j
+def _cell(x, origin, scale, shift, top, wrap):
+    """Box coordinate ``floor((x - origin) / scale + shift)``, clamped to ``top`` (if >= 0), modulo ``wrap`` (if > 0)."""
+    j = int(math.floor((x - origin) / scale + shift))
+    if top >= 0 and j > top:
+        j = top
+    if wrap > 0:
+        j = j % wrap
+    return j
 
 
 @njit(cache=True)
-def _pack(idx, lo, bits, out):
-    n = idx.shape[0]
-    dim = idx.shape[1]
+def _coordinate_range(points, keep, xmin, xmax):
+    """Smallest and largest coordinate per axis over the kept points; returns how many are kept."""
+    n = points.shape[0]
+    dim = points.shape[1]
+    for d in range(dim):
+        xmin[d] = np.inf
+        xmax[d] = -np.inf
+    kept = 0
     for t in range(n):
+        if not keep[t]:
+            continue
+        kept += 1
+        for d in range(dim):
+            x = points[t, d]
+            if x < xmin[d]:
+                xmin[d] = x
+            if x > xmax[d]:
+                xmax[d] = x
+    return kept
+
+
+@njit(cache=True)
+def _cell_range(xmin, xmax, scale, origin, shift, top, wrap, lo, hi):
+    """Bounds of the box coordinates per axis from the coordinate bounds.
+
+    The box coordinate is monotone in the point coordinate before wrapping,
+    so the boxes of the extreme coordinates bound it; on a torus the bounds
+    are ``0..wrap-1``.
+    """
+    for d in range(xmin.shape[0]):
+        if wrap > 0:
+            lo[d] = 0
+            hi[d] = wrap - 1
+        else:
+            lo[d] = _cell(xmin[d], origin[d], scale, shift[d], top, wrap)
+            hi[d] = _cell(xmax[d], origin[d], scale, shift[d], top, wrap)
+
+
+@njit(cache=True)
+def _dense_cells(points, keep, scale, origin, shift, top, wrap, lo, strides, cells, labels):
+    """Label kept points with the rank of their box among the occupied ones (mixed-radix, no sort)."""
+    n = points.shape[0]
+    dim = points.shape[1]
+    table = np.zeros(cells, dtype=np.int32)
+    for t in range(n):
+        if not keep[t]:
+            labels[t] = -1
+            continue
+        key = 0
+        for d in range(dim):
+            key += (_cell(points[t, d], origin[d], scale, shift[d], top, wrap) - lo[d]) * strides[d]
+        labels[t] = key
+        table[key] += 1
+    k = 0
+    for c in range(cells):
+        if table[c]:
+            k += 1
+    counts = np.empty(k, dtype=np.int64)
+    k = 0
+    for c in range(cells):
+        if table[c]:
+            counts[k] = table[c]
+            table[c] = k
+            k += 1
+    for t in range(n):
+        if labels[t] >= 0:
+            labels[t] = table[labels[t]]
+    return counts
+
+
+@njit(cache=True)
+def _packed_cells(points, keep, scale, origin, shift, top, wrap, lo, bits, pos_bits, keys):
+    """Keys ``(box coordinates packed) << pos_bits | position`` of the kept points; returns how many."""
+    n = points.shape[0]
+    dim = points.shape[1]
+    k = 0
+    for t in range(n):
+        if not keep[t]:
+            continue
         key = np.uint64(0)
         for d in range(dim):
-            key = (key << np.uint64(bits[d])) | np.uint64(idx[t, d] - lo[d])
-        out[t] = key
+            j = _cell(points[t, d], origin[d], scale, shift[d], top, wrap)
+            key = (key << np.uint64(bits[d])) | np.uint64(j - lo[d])
+        keys[k] = (key << np.uint64(pos_bits)) | np.uint64(t)
+        k += 1
+    return k
+
+
+@njit(cache=True)
+def _rank_sorted_keys(keys, pos_bits, labels):
+    """``keys`` sorted: label each position (low ``pos_bits`` bits) with the rank of its box (high bits)."""
+    pmask = (np.uint64(1) << np.uint64(pos_bits)) - np.uint64(1)
+    k = -1
+    prev = np.uint64(0)
+    for i in range(keys.shape[0]):
+        box = keys[i] >> np.uint64(pos_bits)
+        if i == 0 or box != prev:
+            k += 1
+            prev = box
+        labels[np.int64(keys[i] & pmask)] = k
+    return k + 1
+
+
+@njit(cache=True)
+def _cell_matrix(points, keep, scale, origin, shift, top, wrap, out):
+    """Box coordinates of the kept points, one row each (the general, sorting fallback)."""
+    k = 0
+    for t in range(points.shape[0]):
+        if keep[t]:
+            for d in range(points.shape[1]):
+                out[k, d] = _cell(points[t, d], origin[d], scale, shift[d], top, wrap)
+            k += 1
 
 
 def _check_points(points: np.ndarray) -> np.ndarray:
@@ -132,17 +229,48 @@ def box_labels(
     n_boxes : number of occupied boxes
     """
     p = _check_points(points)
-    s = _check_scale(scale)
-    D = p.shape[1]
-    off = np.zeros(D) if offset is None else np.asarray(offset, dtype=np.float64).reshape(D)
-    org = np.zeros(D) if origin is None else np.asarray(origin, dtype=np.float64).reshape(D)
     keep = np.ones(p.shape[0], dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
     if keep.shape != (p.shape[0],):
         raise ParameterError("The validity mask must have one entry per point.")
-    labels = np.full(p.shape[0], -1, dtype=np.int64)
-    q = p[keep]
-    if q.shape[0] == 0:
-        return labels, 0
+    labels, counts = _labels_and_counts(p, _check_scale(scale), offset, origin, keep, unit_cube, period)
+    return labels.astype(np.int64, copy=False), int(counts.size)
+
+
+@dataclass(frozen=True)
+class _Extent:
+    """Coordinate bounds of the kept points, computed once for every scale."""
+
+    xmin: np.ndarray
+    xmax: np.ndarray
+    kept: int
+
+
+def _extent(p: np.ndarray, keep: np.ndarray) -> _Extent:
+    D = p.shape[1]
+    xmin, xmax = np.empty(D), np.empty(D)
+    kept = _coordinate_range(p, np.ascontiguousarray(keep), xmin, xmax)
+    return _Extent(xmin, xmax, int(kept))
+
+
+def _labels_and_counts(
+    p: np.ndarray,
+    s: float,
+    offset: np.ndarray | None,
+    origin: np.ndarray | None,
+    keep: np.ndarray,
+    unit_cube: bool,
+    period: float | None,
+    extent: _Extent | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`box_labels` on checked input, plus the number of points in each box (boxes in label order).
+
+    Labels are int32 (int64 past 2**31 points); ``extent`` (from :func:`_extent`) saves a pass when many scales are counted.
+    """
+    D = p.shape[1]
+    off = np.zeros(D) if offset is None else np.asarray(offset, dtype=np.float64).reshape(D)
+    org = np.zeros(D) if origin is None else np.asarray(origin, dtype=np.float64).reshape(D)
+    n = p.shape[0]
+    labels = np.empty(n, dtype=np.int32 if n < 2**31 - 1 else np.int64)
     top = -1
     if unit_cube and not off.any():
         top = int(round(1.0 / s)) - 1 if abs(1.0 / s - round(1.0 / s)) < 1e-9 else int(math.floor(1.0 / s))
@@ -151,37 +279,42 @@ def box_labels(
         ratio = float(period) / s
         wrap = int(round(ratio)) if abs(ratio - round(ratio)) <= 1e-6 * max(ratio, 1.0) else int(math.ceil(ratio))
         wrap = max(wrap, 1)
-    idx = np.empty(q.shape, dtype=np.int64)
-    _cell_indices(q, s, org, off, top, wrap, idx)
-    lo = idx.min(axis=0)
-    span = idx.max(axis=0) - lo + 1
-    bits = np.array([max(1, int(math.ceil(math.log2(int(r) + 1)))) for r in span], dtype=np.int64)
+    keep = np.ascontiguousarray(keep)
+    ext = extent if extent is not None else _extent(p, keep)
+    kept = ext.kept
+    lo = np.empty(D, dtype=np.int64)
+    hi = np.empty(D, dtype=np.int64)
+    _cell_range(ext.xmin, ext.xmax, s, org, off, top, wrap, lo, hi)
+    if kept == 0:
+        labels[:] = -1
+        return labels, np.zeros(0, dtype=np.int64)
+    span = hi - lo + 1
     cells = 1
     for r in span:
         cells *= int(r)
         if cells > DENSE_CELLS:
             break
-    if cells <= max(DENSE_CELLS, 0) and cells <= 8 * q.shape[0] + (1 << 20):
+    if cells <= DENSE_CELLS and cells <= 8 * kept + (1 << 20):
         # dense: mixed-radix cell number, occupied cells ranked in lexicographic order (no sort)
         strides = np.ones(D, dtype=np.int64)
         for d in range(D - 2, -1, -1):
             strides[d] = strides[d + 1] * int(span[d + 1])
-        keys = (idx - lo) @ strides
-        occ = np.zeros(cells, dtype=bool)
-        occ[keys] = True
-        rank = np.cumsum(occ, dtype=np.int64) - 1
-        inv = rank[keys]
-        n_boxes = int(rank[-1] + 1)
-    elif int(bits.sum()) <= 63:
-        keys = np.empty(q.shape[0], dtype=np.uint64)
-        _pack(idx, lo, bits, keys)
-        uniq, inv = np.unique(keys, return_inverse=True)
-        n_boxes = int(uniq.size)
-    else:
-        uniq, inv = np.unique(idx, axis=0, return_inverse=True)
-        n_boxes = int(uniq.shape[0])
+        counts = _dense_cells(p, keep, s, org, off, top, wrap, lo, strides, int(cells), labels)
+        return labels, counts
+    labels[:] = -1
+    bits = np.array([max(1, int(math.ceil(math.log2(int(r) + 1)))) for r in span], dtype=np.int64)
+    pos_bits = max(int(n - 1).bit_length(), 1)
+    if int(bits.sum()) + pos_bits <= 64:
+        keys = np.empty(kept, dtype=np.uint64)
+        _packed_cells(p, keep, s, org, off, top, wrap, lo, bits, pos_bits, keys)
+        keys.sort()
+        n_boxes = _rank_sorted_keys(keys, pos_bits, labels)
+        return labels, np.bincount(labels[labels >= 0], minlength=n_boxes).astype(np.int64)
+    idx = np.empty((kept, D), dtype=np.int64)
+    _cell_matrix(p, keep, s, org, off, top, wrap, idx)
+    uniq, inv, cnt = np.unique(idx, axis=0, return_inverse=True, return_counts=True)
     labels[keep] = inv.ravel()
-    return labels, n_boxes
+    return labels, cnt.astype(np.int64)
 
 
 def box_counts(
@@ -194,8 +327,11 @@ def box_counts(
     period: float | None = None,
 ) -> np.ndarray:
     """Number of points in each occupied box (boxes in lexicographic order); see :func:`box_labels`."""
-    labels, n = box_labels(points, scale, offset, origin, valid, unit_cube, period)
-    return np.bincount(labels[labels >= 0], minlength=n).astype(np.int64)
+    p = _check_points(points)
+    keep = np.ones(p.shape[0], dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
+    if keep.shape != (p.shape[0],):
+        raise ParameterError("The validity mask must have one entry per point.")
+    return _labels_and_counts(p, _check_scale(scale), offset, origin, keep, unit_cube, period)[1]
 
 
 def occupied_boxes(points: np.ndarray, scale: float, offset: np.ndarray | None = None, origin: np.ndarray | None = None) -> int:
@@ -246,7 +382,7 @@ def geometric_spectrum(
     offsets: int = OFFSETS,
     seed: int = 0,
     n_boot: int = 200,
-    block_length: int | None = None,
+    block_length: "int | bs.BlockLength | None" = None,
     scheme: str = "nonoverlapping",
     level: float = 0.95,
     interval: str = "centered",
@@ -358,10 +494,13 @@ def geometric_spectrum(
         reps = np.zeros((n_boot, S, K))
     else:
         reps = None
+    extent = _extent(p, keep)
     for j, eps in enumerate(sc):
         for o in range(O):
-            labels, m = box_labels(p, eps, offs[o], org, keep, unit_cube and aligned, per_used)
-            counts = np.bincount(labels[labels >= 0], minlength=m).astype(np.int64)
+            labels, counts = _labels_and_counts(
+                p, float(eps), offs[o], org, keep, unit_cube and aligned, per_used, extent=extent
+            )
+            m = counts.size
             per_offset[o, j] = sp.level_stats(counts, None, qv, corrected).vector()
             if reps is not None:
                 reps[:, j] += sp.replicate_vectors(labels, 1, m, plan, qv, corrected)

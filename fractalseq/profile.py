@@ -62,11 +62,12 @@ DEFAULT_BOOT = 100
 #: Deepest default word length counted for the block-entropy table.
 MAX_AUTO_DEPTH = 12
 #: LZ76 parses at most this many symbols (a prefix; the result says so).
-LZ_MAX_LENGTH = 1 << 20
+LZ_MAX_LENGTH = 1 << 19
 #: The compressor bound compresses at most this many symbols.
 COMPRESS_MAX_LENGTH = 1 << 18
-#: Grid offsets averaged on the geometric side of the consistency table.
-CONSISTENCY_OFFSETS = 4
+#: Shifted grids of the consistency table's extra column (0: none; the profile reports the aligned
+#: grid, on which the verdict rests, so the shifted column is left to :func:`fractalseq.consistency.consistency_table`).
+CONSISTENCY_OFFSETS = 0
 #: Orders q of the f(α) curve (added to the user's orders for the spectrum figure).
 FALPHA_QS = (-2.0, -1.0, -0.5, 0.0, 0.5, 1.0, 1.5, 2.0, 3.0, 4.0)
 #: Absent words listed.
@@ -78,8 +79,8 @@ RECORDS_LISTED = 50
 STEPS = (
     "counting words",
     "block entropies",
-    "entropy-rate intervals",
     "dimensions",
+    "entropy-rate intervals",
     "consistency table",
     "Lempel-Ziv",
     "compressors",
@@ -576,7 +577,21 @@ def profile_source(
         kos = None
         notes.append(f"Koslicki topological entropy: not computed ({exc})")
 
-    # 3. intervals of the rate estimates by the block bootstrap (counts re-weighted, never recounted)
+    # 3. dimensions and f(alpha) (user's orders plus a grid for the f(alpha) curve); the conditional
+    #    Rényi rates of the consistency table come from the same bootstrap pass
+    step("dimensions")
+    all_qs = tuple(sorted(set(user_qs) | set(FALPHA_QS)))
+    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, n_boot=n_boot, seed=seed, level=level, falpha=True, rates=True)
+    notes.extend(f"dimensions: {f}" for f in spec.flags)
+    wc_spec = None
+    if spec.route == "word counts":
+        top = max(int(lv["n"]) for lv in spec.levels) if spec.levels else 1
+        wc_spec = wc if top <= wc.depth else count_words(arr, top)
+    scaling = _scaling_curves(spec, wc_spec, user_qs, k)
+    # one block length for every interval of the profile (chosen once, for the deepest level used)
+    block = spec.block
+
+    # 4. intervals of the rate estimates by the block bootstrap (counts re-weighted, never recounted)
     step("entropy-rate intervals")
     n_rate = rate_est["grassberger"].depth or 0
     rate_block = None
@@ -594,7 +609,13 @@ def profile_source(
                     out.append(float("nan"))
             return out
 
-        boot = bs.block_bootstrap(arr, depths, stat, n_boot=n_boot, seed=seed)
+        def batch(specs: dict) -> np.ndarray:
+            s0 = specs[n_rate] if n_rate >= 1 else None
+            return np.column_stack([ent.replicate_rates(s0, specs[n_rate + 1], m) for m in ent.METHODS])
+
+        boot = bs.block_bootstrap(
+            arr, depths, stat, n_boot=n_boot, seed=seed, block_length=block, spectra=True, batch_statistic=batch
+        )
         lo, hi = boot.interval(level)
         for j, m in enumerate(ent.METHODS):
             if np.isfinite(lo[j]) and np.isfinite(hi[j]):
@@ -605,25 +626,23 @@ def profile_source(
         notes.append("entropy-rate intervals: stream too short for the bootstrap")
     rates: dict[str, tuple[str, Any]] = {m: ("estimate", rate_est[m]) for m in ent.METHODS}
 
-    # 4. dimensions and f(alpha) (user's orders plus a grid for the f(alpha) curve)
-    step("dimensions")
-    all_qs = tuple(sorted(set(user_qs) | set(FALPHA_QS)))
-    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, n_boot=n_boot, seed=seed, level=level, falpha=True)
-    notes.extend(f"dimensions: {f}" for f in spec.flags)
-    wc_spec = None
-    if spec.route == "word counts":
-        top = max(int(lv["n"]) for lv in spec.levels) if spec.levels else 1
-        wc_spec = wc if top <= wc.depth else count_words(arr, top)
-    scaling = _scaling_curves(spec, wc_spec, user_qs, k)
-
     # 5. consistency table (geometry against information)
     step("consistency table")
     consistency = None
     if L <= sp.TRANSIENT + 10:
         notes.append(f"consistency table: not computed, the stream has {L} symbols (needs more than {sp.TRANSIENT + 10})")
     else:
+        info = None
+        if spec.route == "word counts" and spec.rates:
+            info = cons.RateResult(
+                tuple(r for r in spec.rates if r.q in user_qs), block, int(n_boot) if block else 0, int(seed), L
+            )
         try:
-            consistency = cons.consistency_table(arr, user_qs, ratio=k, n_boot=n_boot, seed=seed, offsets=offsets, level=level)
+            consistency = cons.consistency_table(
+                arr, user_qs, ratio=k, n_boot=n_boot, seed=seed, offsets=offsets, level=level,
+                block_length=block, information=info,
+                levels=spec.data_limit if spec.route == "word counts" and spec.data_limit else None,
+            )
             notes.extend(f"consistency table: {f}" for f in consistency.flags)
         except FractalseqError as exc:
             notes.append(f"consistency table: not computed ({exc})")

@@ -147,25 +147,40 @@ def level_vector(values, mult, qs, corrected, out):
     lnN = math.log(total)
     lmin = math.log(cmin)
     lmax = math.log(cmax)
+    # logs (and log-factorials) of the counts, once for every q
+    nv = values.shape[0]
+    logc = np.zeros(nv)
+    lgc = np.zeros(nv)
+    need_lg = False
+    if corrected:
+        for j in range(nq):
+            if qs[j] > 1.0:
+                need_lg = True
+    for i in range(nv):
+        c = float(values[i])
+        if c > 0.0:
+            logc[i] = math.log(c)
+            if need_lg:
+                lgc[i] = math.lgamma(c + 1.0)
     for j in range(nq):
         q = qs[j]
         ref = lmax if q >= 0.0 else lmin
         s = 0.0
         sl = 0.0
         ff = 0.0
-        for i in range(values.shape[0]):
+        for i in range(nv):
             c = float(values[i])
             m = float(mult[i])
             if c <= 0.0 or m <= 0.0:
                 continue
-            lc = math.log(c)
+            lc = logc[i]
             t = m * math.exp(q * (lc - ref))
             s += t
             sl += t * lc
             if corrected and q > 1.0:
                 x = c + 1.0 - q
                 if x > 0.0:
-                    ff += m * math.exp(math.lgamma(c + 1.0) - math.lgamma(x) - q * ref)
+                    ff += m * math.exp(lgc[i] - math.lgamma(x) - q * ref)
                 elif x != math.floor(x):
                     ff += m * math.gamma(c + 1.0) / math.gamma(x) * math.exp(-q * ref)
         ln_s = math.log(s) + q * ref
@@ -247,27 +262,47 @@ def _table_vectors_positions(labels, span, m, starts, lens, offsets, qs, correct
 
 
 @njit(cache=True)
-def _table_vectors_weights(ptr, pair_label, pair_count, weights, m, qs, corrected, out):
-    """Statistic vectors of every replicate as weighted sums of block tables (non-overlapping blocks)."""
-    buf = np.zeros(m, dtype=np.int64)
-    ones = np.ones(m)
-    R = weights.shape[0]
+def _spectra_vectors(dense, big, qs, corrected, out):
+    """Level vectors of every replicate from its count spectrum (dense small counts plus big ones)."""
+    R = dense.shape[0]
+    cap = dense.shape[1]
+    nbig = big.shape[0]
+    vals = np.empty(cap + nbig)
+    mult = np.empty(cap + nbig)
     for r in range(R):
-        bs.weighted_table(ptr, pair_label, pair_count, weights[r], buf)
-        level_vector(buf, ones, qs, corrected, out[r])
+        k = 0
+        for v in range(1, cap):
+            if dense[r, v] > 0:
+                vals[k] = v
+                mult[k] = dense[r, v]
+                k += 1
+        for i in range(nbig):
+            if big[i, r] > 0:
+                vals[k] = big[i, r]
+                mult[k] = 1.0
+                k += 1
+        level_vector(vals[:k], mult[:k], qs, corrected, out[r])
 
 
 def replicate_vectors(
     labels: np.ndarray, span: int, m: int, plan: bs.ResamplePlan, qs: np.ndarray, corrected: bool
 ) -> np.ndarray:
-    """``(n_boot, 3Q + 3)`` level vectors of every replicate of one level (see :func:`level_vector`)."""
+    """``(n_boot, 3Q + 3)`` level vectors of every replicate of one level (see :func:`level_vector`).
+
+    Non-overlapping blocks: the replicates' count spectra are built at once
+    from item-major block tables (:mod:`fractalseq.replicates`); other
+    schemes sum the positions of each replicate's blocks.
+    """
+    from fractalseq import replicates as rp
+
     qv = np.ascontiguousarray(qs, dtype=np.float64)
     out = np.empty((plan.n_boot, 3 * qv.size + 3))
     if plan.n_boot == 0:
         return out
     if plan.scheme == "nonoverlapping":
-        tables = bs.block_tables(labels, span, plan.block_length)
-        _table_vectors_weights(tables.ptr, tables.label, tables.count, plan.block_weights(), max(m, 1), qv, bool(corrected), out)
+        tables = rp.item_tables(labels, span, plan.block_length, max(m, 1))
+        spec = rp.replicate_spectra(tables, plan.block_weights())
+        _spectra_vectors(spec.dense, spec.big, qv, bool(corrected), out)
     else:
         _table_vectors_positions(labels, span, max(m, 1), plan.starts, plan.lens, plan.offsets, qv, bool(corrected), out)
     return out
@@ -924,7 +959,7 @@ def dimension_spectrum(
     depth_range: tuple[int, int] | None = None,
     n_boot: int = 200,
     seed: int = 0,
-    block_length: int | None = None,
+    block_length: "int | bs.BlockLength | None" = None,
     scheme: str = "nonoverlapping",
     level: float = 0.95,
     interval: str = "centered",

@@ -35,6 +35,21 @@ def test_word_labels_match_word_counts():
         assert np.array_equal(np.bincount(labels[labels >= 0], minlength=words.size), c)
 
 
+def test_word_labels_of_long_words_match_word_counts():
+    """Past the dense table (depth 13+ for DNA) labels come from a sort; the same words and counts result."""
+    rng = np.random.default_rng(3)
+    codes = rng.integers(0, 4, 6000)
+    codes[3000:3400] = np.tile([0, 1, 2], 134)[:400]  # repeats so that long words recur
+    arr = from_codes(DNA, codes, starts=[0, 1500, 1501])
+    wc = count_words(arr, 20)
+    for n in (12, 13, 20):
+        labels, words = bs.word_labels(arr, n)
+        w, c = wc.words(n)
+        assert np.array_equal(words, w)
+        assert np.array_equal(np.bincount(labels[labels >= 0], minlength=words.size), c)
+        assert labels.dtype == np.int32 and (labels[1500 - n + 1 : 1501] == -1).all()
+
+
 def test_each_block_once_equals_recounting_with_breaks():
     """With every block taken once, a replicate is the stream cut at block edges (words never straddle)."""
     rng = np.random.default_rng(1)
@@ -211,3 +226,34 @@ def test_bad_bootstrap_parameters():
         bs.block_bootstrap(arr, [1], lambda t: 0.0, n_boot=-1)
     with pytest.raises(ParameterError):
         bs.block_bootstrap(arr, [], lambda t: 0.0)
+
+
+def test_segmented_autocovariances_equal_direct_sums():
+    """Segment-wise FFT autocovariances equal the direct lagged dot products (numpy), any segment length."""
+    rng = np.random.default_rng(4)
+    x = np.convolve(rng.standard_normal(20000), np.ones(7), "same")
+    x -= x.mean()
+    ref = np.array([x[: x.size - k] @ x[k:] for k in range(201)]) / x.size
+    for seg in (None, 50, 999, 20000, 10**6):
+        assert np.allclose(bs.autocovariances(x, 200, seg), ref, rtol=0, atol=1e-12)
+
+
+def test_surprisal_series_equals_direct_plug_in_counts():
+    """-ln(count(context + symbol) / count(context)) with counts over the words inside segments (direct Python)."""
+    rng = np.random.default_rng(6)
+    codes = rng.integers(0, 3, 400)
+    arr = from_codes(DNA, codes, starts=[0, 150])
+    for order in (0, 2):
+        got = bs.surprisal_series(arr, order)
+        words = []
+        for a, b in ((0, 150), (150, 400)):
+            words += [(t, tuple(codes[t : t + order + 1])) for t in range(a, b - order)]
+        joint: dict = {}
+        ctx: dict = {}
+        for _, w in words:
+            joint[w] = joint.get(w, 0) + 1
+            ctx[w[:-1]] = ctx.get(w[:-1], 0) + 1
+        want = np.full(400, np.nan)
+        for t, w in words:
+            want[t] = -np.log(joint[w] / ctx[w[:-1]])
+        assert np.allclose(got, want, equal_nan=True)

@@ -421,3 +421,16 @@ def test_block_bootstrap_interval_for_rates():
         E.bootstrap_rate(E.h_difference(wc), other, n_boot=10)
     with pytest.raises(ParameterError):
         E.bootstrap_rate(E.h_compressors(x, 2), arr)
+
+
+def test_distinct_word_count_dense_table_equals_sorting():
+    """Koslicki's distinct-word count: the byte-table path and the sorting path agree with ``len(set(...))``."""
+    rng = np.random.default_rng(8)
+    codes = rng.integers(0, 3, 4000).astype(np.int64)
+    starts = np.array([0, 1000, 1001], np.int64)
+    words = set()
+    for a, b in ((0, 1000), (1000, 1001), (1001, 4000)):
+        for i in range(a, b - 5 + 1):
+            words.add(tuple(codes[i : i + 5]))
+    for dense in (True, False):
+        assert E._distinct_words(codes, starts, 5, 3, dense) == len(words)

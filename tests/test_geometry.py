@@ -145,6 +145,21 @@ def test_box_labels_small_example_and_wide_keys():
     assert geo.box_counts(line, 0.25, offset=np.array([0.3]), period=1.0).size == 4
 
 
+@pytest.mark.parametrize("dim,scale", [(2, 0.25), (2, 1e-4), (3, 1e-4), (3, 1e-9)])
+def test_box_labels_equal_numpy_unique_on_every_path(dim, scale):
+    """Dense (no sort), packed-key sort and row-unique paths all number boxes like ``np.unique(axis=0)``.
+
+    Reference: numpy's lexicographic ``unique`` of the floored coordinates (general-purpose library).
+    """
+    rng = np.random.default_rng(dim)
+    pts = rng.random((3000, dim))
+    keep = rng.random(3000) > 0.1
+    labels, n = geo.box_labels(pts, scale, valid=keep)
+    uniq, inv = np.unique(np.floor(pts[keep] / scale).astype(np.int64), axis=0, return_inverse=True)
+    assert n == uniq.shape[0]
+    assert np.array_equal(labels[keep], inv.ravel()) and (labels[~keep] == -1).all()
+
+
 def test_geometry_errors():
     with pytest.raises(InputError):
         geo.box_labels(np.array([[np.nan, 0.0]]), 0.1)
