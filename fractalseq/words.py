@@ -408,7 +408,8 @@ def _sorted_runs_threaded(codes, starts, depth, bits, keys, bounds, threads: int
 
     Words are grouped by their first symbol (so the groups are already in
     order), each group is sorted by numpy (which releases the GIL) and
-    reduced by a ``nogil`` kernel straight into its slice of the output.
+    collapsed in place by a ``nogil`` kernel; the groups' unique words are
+    then moved together.
     """
     from concurrent.futures import ThreadPoolExecutor
 
@@ -418,23 +419,29 @@ def _sorted_runs_threaded(codes, starts, depth, bits, keys, bounds, threads: int
     parts = [(int(bounds[d]), int(bounds[d + 1])) for d in range(n_buckets) if bounds[d + 1] > bounds[d]]
     order = sorted(range(len(parts)), key=lambda i: parts[i][0] - parts[i][1])  # largest first
 
-    def sort_and_count(i: int) -> int:
+    cnt = np.empty(keys.shape[0], dtype=np.int64)
+
+    def sort_and_compact(i: int) -> tuple[int, np.ndarray]:
         lo, hi = parts[i]
         keys[lo:hi].sort()
-        return kernels.count_runs(keys[lo:hi])
+        return kernels.compact_runs(keys[lo:hi], cnt[lo:hi], depth, bits, key_bits)
 
     with ThreadPoolExecutor(max_workers=threads) as pool:
-        sizes = dict(zip(order, pool.map(sort_and_count, order)))
-        offsets = np.concatenate([[0], np.cumsum([sizes[i] for i in range(len(parts))])]).astype(np.int64)
-        uniq = np.empty(int(offsets[-1]), dtype=keys.dtype)
-        cnt = np.empty(int(offsets[-1]), dtype=np.int64)
-
-        def write(i: int) -> np.ndarray:
-            lo, hi = parts[i]
-            a, b = offsets[i], offsets[i + 1]
-            return kernels.write_runs(keys[lo:hi], uniq[a:b], cnt[a:b], depth, bits, key_bits)
-
-        hists = list(pool.map(write, order))
+        done = dict(zip(order, pool.map(sort_and_compact, order)))
+    # move each group's unique words down next to the previous group's (groups are in order)
+    at = 0
+    hists = []
+    for i, (lo, _) in enumerate(parts):
+        m, h = done[i]
+        if at != lo:
+            keys[at : at + m] = keys[lo : lo + m]
+            cnt[at : at + m] = cnt[lo : lo + m]
+        at += int(m)
+        hists.append(h)
+    if 2 * at < keys.shape[0]:
+        uniq, cnt = keys[:at].copy(), cnt[:at].copy()
+    else:
+        uniq, cnt = keys[:at], cnt[:at]
     lcp = np.sum(hists, axis=0) if hists else np.zeros(depth + 1, np.int64)
     lcp[0] += max(0, len(parts) - 1)  # neighbouring groups differ in the first symbol
     return uniq, cnt, lcp
