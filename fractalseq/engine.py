@@ -34,6 +34,7 @@ written to disk.
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
 import os
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
@@ -227,7 +228,10 @@ class ProcessEngine(Engine):
         return self._pool
 
     def submit(self, func, item):
-        return self._ensure().submit(func, item)
+        # workers are spawned lazily by submit: give them one thread each for numba and BLAS (the
+        # parallelism is the pool; several threads per worker would only compete for the cores)
+        with _single_threaded_children():
+            return self._ensure().submit(func, item)
 
     def wait_first(self, futures):
         done, _ = wait(futures, return_when=FIRST_COMPLETED)
@@ -327,6 +331,26 @@ def _check_workers(workers: int | None) -> int:
     if workers is None or isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
         raise ParameterError(f"The number of workers must be a positive whole number, not {workers!r}.")
     return int(workers)
+
+
+#: Environment variables that cap the threads of numba and the BLAS/OpenMP libraries.
+THREAD_VARIABLES = ("NUMBA_NUM_THREADS", "OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+@contextlib.contextmanager
+def _single_threaded_children():
+    """Processes started inside this block inherit one-thread settings (the parent's are restored after)."""
+    saved = {k: os.environ.get(k) for k in THREAD_VARIABLES}
+    try:
+        for k in THREAD_VARIABLES:
+            os.environ[k] = "1"
+        yield
+    finally:
+        for k, v in saved.items():
+            if v is None:
+                os.environ.pop(k, None)
+            else:
+                os.environ[k] = v
 
 
 def _worker_init() -> None:  # pragma: no cover - runs in the workers
