@@ -124,3 +124,16 @@ def test_cache_round_trip_key_and_damage(tmp_path):
     npz.write_bytes(npz.read_bytes()[:-3] + b"xyz")  # damaged arrays: treated as absent
     assert cache.get(key) is None
     assert ResultCache(None).get(key) is None
+
+
+def test_process_workers_run_single_threaded_and_the_parent_keeps_its_settings():
+    """Worker processes get one numba/BLAS thread each (the pool is the parallelism); the parent is unchanged."""
+    import os
+
+    from fractalseq.engine import THREAD_VARIABLES, ProcessEngine
+
+    before = {k: os.environ.get(k) for k in THREAD_VARIABLES}
+    with ProcessEngine(1) as eng:
+        got = [eng.submit(os.getenv, k).result(timeout=120) for k in THREAD_VARIABLES]
+    assert got == ["1"] * len(THREAD_VARIABLES)
+    assert {k: os.environ.get(k) for k in THREAD_VARIABLES} == before
