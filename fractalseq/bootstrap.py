@@ -333,7 +333,7 @@ def politis_white(series: np.ndarray) -> tuple[float, float]:
     if n < 16:
         return 1.0, 1.0
     x = x - x.mean()
-    var = float(x @ x) / n
+    var = float(np.sum(x * x)) / n  # not BLAS: thread-count independent bits
     if var <= 1e-300:
         return 1.0, 1.0
     kn = max(5, int(math.sqrt(math.log10(n))))

@@ -228,11 +228,12 @@ def replicate_entropies(spectra, method: str = "grassberger") -> np.ndarray:
     with np.errstate(divide="ignore", invalid="ignore"):
         vlogv = np.where(v > 0, v * np.log(np.where(v > 0, v, 1.0)), 0.0)
         blogb = np.where(B > 0, B * np.log(np.where(B > 0, B, 1.0)), 0.0)
-    N = D @ v + B.sum(axis=0)
+    # plain numpy reductions, not BLAS: the same bits whatever the thread count (engines must agree)
+    N = (D * v).sum(axis=1) + B.sum(axis=0)
     out = np.full(D.shape[0], np.nan)
     ok = N > 0
     if method in ("plugin", "miller-madow"):
-        S = D @ vlogv + blogb.sum(axis=0)
+        S = (D * vlogv).sum(axis=1) + blogb.sum(axis=0)
         out[ok] = np.log(N[ok]) - S[ok] / N[ok]
         if method == "miller-madow":
             K = D[:, 1:].sum(axis=1) + (B > 0).sum(axis=0)
@@ -245,7 +246,7 @@ def replicate_entropies(spectra, method: str = "grassberger") -> np.ndarray:
         if B.size:
             pos = B > 0
             bg[pos] = B[pos] * grassberger_g(B[pos])
-        S = D @ vg + bg.sum(axis=0)
+        S = (D * vg).sum(axis=1) + bg.sum(axis=0)
         out[ok] = digamma(N[ok]) - S[ok] / N[ok]
         return out
     raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.")
