@@ -221,16 +221,22 @@ def _dense_labels(addr, valid, cells, labels):
 
 
 @njit(cache=True)
-def _ranks_of_sorted(keys, shift, labels, words):
-    """``keys`` sorted, each ``address << shift | position``: label each position with its address rank."""
+def rank_sorted_keys(keys, shift, labels, words):
+    """``keys`` sorted, each ``item << shift | position``: label each position with the rank of its item.
+
+    The distinct items are written to ``words`` too when it is long enough
+    (pass an empty array to skip them).  Returns the number of distinct items.
+    """
     pmask = (np.uint64(1) << np.uint64(shift)) - np.uint64(1)
+    keep_words = words.shape[0] >= keys.shape[0]
     k = -1
     prev = np.uint64(0)
     for i in range(keys.shape[0]):
         a = keys[i] >> np.uint64(shift)
         if i == 0 or a != prev:
             k += 1
-            words[k] = a
+            if keep_words:
+                words[k] = a
             prev = a
         labels[np.int64(keys[i] & pmask)] = k
     return k + 1
@@ -269,7 +275,7 @@ def word_labels(arr: SymbolArray, depth: int) -> tuple[np.ndarray, np.ndarray]:
         keys.sort()
         labels = np.full(T, -1, dtype=np.int32)
         words = np.empty(keys.size, dtype=np.uint64)
-        k = _ranks_of_sorted(keys, shift, labels, words)
+        k = rank_sorted_keys(keys, shift, labels, words)
         return labels, words[:k].copy()
     words, inv = np.unique(addr[valid], return_inverse=True)
     dtype = np.int32 if words.size < 2**31 - 1 else np.int64

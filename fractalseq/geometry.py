@@ -146,21 +146,6 @@ def _packed_cells(points, keep, scale, origin, shift, top, wrap, lo, bits, pos_b
 
 
 @njit(cache=True)
-def _rank_sorted_keys(keys, pos_bits, labels):
-    """``keys`` sorted: label each position (low ``pos_bits`` bits) with the rank of its box (high bits)."""
-    pmask = (np.uint64(1) << np.uint64(pos_bits)) - np.uint64(1)
-    k = -1
-    prev = np.uint64(0)
-    for i in range(keys.shape[0]):
-        box = keys[i] >> np.uint64(pos_bits)
-        if i == 0 or box != prev:
-            k += 1
-            prev = box
-        labels[np.int64(keys[i] & pmask)] = k
-    return k + 1
-
-
-@njit(cache=True)
 def _cell_matrix(points, keep, scale, origin, shift, top, wrap, out):
     """Box coordinates of the kept points, one row each (the general, sorting fallback)."""
     k = 0
@@ -308,7 +293,7 @@ def _labels_and_counts(
         keys = np.empty(kept, dtype=np.uint64)
         _packed_cells(p, keep, s, org, off, top, wrap, lo, bits, pos_bits, keys)
         keys.sort()
-        n_boxes = _rank_sorted_keys(keys, pos_bits, labels)
+        n_boxes = bs.rank_sorted_keys(keys, pos_bits, labels, np.empty(0, np.uint64))
         return labels, np.bincount(labels[labels >= 0], minlength=n_boxes).astype(np.int64)
     idx = np.empty((kept, D), dtype=np.int64)
     _cell_matrix(p, keep, s, org, off, top, wrap, idx)

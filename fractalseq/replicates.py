@@ -106,6 +106,20 @@ def item_tables(labels: np.ndarray, span: int, block_length: int, size: int | No
 
 
 @njit(cache=True)
+def _max_weights(wt):
+    """Largest weight of each block over the replicates (``wt`` is ``(blocks, replicates)``)."""
+    n_blocks, R = wt.shape
+    wmax = np.zeros(n_blocks, dtype=np.int64)
+    for b in range(n_blocks):
+        x = 0
+        for r in range(R):
+            if wt[b, r] > x:
+                x = wt[b, r]
+        wmax[b] = x
+    return wmax
+
+
+@njit(cache=True)
 def _spectra(row_ptr, blocks, counts, n_blocks, wt, cap, dense, big_rows):
     """Replicate count spectra.
 
@@ -115,13 +129,7 @@ def _spectra(row_ptr, blocks, counts, n_blocks, wt, cap, dense, big_rows):
     """
     m = row_ptr.shape[0] - 1
     R = wt.shape[1]
-    wmax = np.zeros(n_blocks, dtype=np.int64)
-    for b in range(n_blocks):
-        x = 0
-        for r in range(R):
-            if wt[b, r] > x:
-                x = wt[b, r]
-        wmax[b] = x
+    wmax = _max_weights(wt)
     # pools of single-block items: (block, count) -> number of items, counts below cap only
     single_n = np.zeros(n_blocks, dtype=np.int64)
     for i in range(m):
@@ -191,13 +199,7 @@ def _count_big(row_ptr, blocks, counts, n_blocks, wt, cap):
     """Number of items whose replicate count may reach ``cap`` (sizes the ``big`` table)."""
     m = row_ptr.shape[0] - 1
     R = wt.shape[1]
-    wmax = np.zeros(n_blocks, dtype=np.int64)
-    for b in range(n_blocks):
-        x = 0
-        for r in range(R):
-            if wt[b, r] > x:
-                x = wt[b, r]
-        wmax[b] = x
+    wmax = _max_weights(wt)
     k = 0
     for i in range(m):
         bound = 0
