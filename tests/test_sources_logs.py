@@ -122,6 +122,41 @@ def test_named_refused_template_table():
     assert np.array_equal(open_source(path, fmt="log").to_array().codes, arr.codes)
 
 
+def test_a_log_read_against_another_logs_templates(tmp_path):
+    """A template table fixed in advance (a model's): listed templates keep its codes, the others follow the policy.
+
+    Checked line by line against :func:`line_template` on fail2ban's testcase04 sample.
+    """
+    from fractalseq.alphabet import Alphabet
+
+    path = LOGS / "testcase04.log"
+    lines = [ln for ln in path.read_text().splitlines() if ln.strip()]
+    # a table that lists one template of the file plus one it does not contain, in an order of our own
+    toto = "<time> [sshd] Invalid user toto from <ip>"
+    table = Alphabet("templates", ("<time> elsewhere <num>", toto))
+    stream = open_source(path, fmt="log", alphabet=table, policy="break", chunk_size=64)
+    arr = stream.to_array()
+    keep = [line_template(ln) == toto for ln in lines]
+    assert arr.alphabet.symbols == table.symbols and arr.codes.tolist() == [1] * sum(keep)
+    # break policy: a new segment after every run of unlisted lines
+    runs, prev = [], False
+    for i, k in enumerate(keep):
+        if k and (not runs or not prev):
+            runs.append(sum(keep[:i]))
+        prev = k
+    assert arr.starts.tolist() == runs
+    rep = stream.report
+    assert rep.dropped_total == len(lines) - sum(keep)
+    assert [e["template"] for e in rep.extra["unlisted_templates"]] == [
+        "<time> [sshd] Invalid user duck from <ip>", "- Last output repeated twice -"
+    ]
+    assert [e["count"] for e in rep.extra["templates"]] == [0, 7]
+    skip = open_source(path, fmt="log", alphabet=table, policy="skip").to_array()
+    assert skip.codes.tolist() == [1] * 7 and skip.starts.tolist() == [0]
+    with pytest.raises(InputError, match="line 2 has a template"):
+        open_source(path, fmt="log", alphabet=table, policy="error").to_array()
+
+
 def test_an_invented_log_has_one_template_per_statement(tmp_path):
     # Invented scenario: a ticket service writing five kinds of lines with varying fields.
     rng = np.random.default_rng(11)

@@ -229,11 +229,12 @@ def open_source(
         return SymbolStream(tok_alpha, token_factory, stream_name)
 
     if fmt == "log":
-        table = logs.learn(origin, learn_block)
+        # a template alphabet given in advance (a model's) is kept; otherwise the templates are learned
+        table = logs.fixed(origin, alphabet, learn_block) if isinstance(alphabet, Alphabet) else logs.learn(origin, learn_block)
 
         def log_factory(report: ReadReport) -> Iterator[Chunk]:
             begin(report)
-            yield from logs.chunks(origin, table, chunk_size, report)
+            yield from logs.chunks(origin, table, chunk_size, report, policy)
 
         return SymbolStream(table.alphabet, log_factory, stream_name)
 

@@ -33,12 +33,18 @@ _EXAMPLE_CHARS = 500
 
 @dataclass
 class TemplateTable:
-    """The learned templates of a log, in code order."""
+    """The templates of a log, in code order (learned from it, or fixed in advance, e.g. by a model).
+
+    ``unlisted`` holds, for a fixed table, the templates of the log that the
+    table does not list (same fields as ``entries``), by decreasing count.
+    """
 
     alphabet: Alphabet
     entries: list[dict]
     lines: int
     blank: int
+    fixed: bool = False
+    unlisted: list[dict] | None = None
 
     def to_list(self) -> list[dict]:
         """JSON-ready copy of the entries (template, count, first_line, example)."""
@@ -62,8 +68,8 @@ def _lines(origin: Origin, block_size: int) -> Iterator[tuple[int, list[str]]]:
         yield first_line, [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
 
 
-def learn(origin: Origin, block_size: int) -> TemplateTable:
-    """First pass: count templates, remember where each first occurs."""
+def _tally(origin: Origin, block_size: int) -> tuple[dict[str, int], dict[str, tuple[int, str]], int, int]:
+    """Count the templates of a log and remember where each first occurs."""
     counts: dict[str, int] = {}
     first: dict[str, tuple[int, str]] = {}
     blank = 0
@@ -82,15 +88,41 @@ def learn(origin: Origin, block_size: int) -> TemplateTable:
                 first[t] = (first_line + j, line[:_EXAMPLE_CHARS])
     if not counts:
         raise InputError(f"{origin.name} holds no log lines (only blank lines); give a log with events.")
+    return counts, first, total, blank
+
+
+def _entry(t: str, counts: dict[str, int], first: dict[str, tuple[int, str]]) -> dict:
+    f = first.get(t)
+    return {"template": t, "count": counts.get(t, 0), "first_line": f[0] if f else None, "example": f[1] if f else None}
+
+
+def learn(origin: Origin, block_size: int) -> TemplateTable:
+    """First pass: the templates of the log, by decreasing count (ties by text), as its alphabet."""
+    counts, first, total, blank = _tally(origin, block_size)
     order = sorted(counts, key=lambda t: (-counts[t], t))
-    entries = [
-        {"template": t, "count": counts[t], "first_line": first[t][0], "example": first[t][1]} for t in order
-    ]
-    return TemplateTable(Alphabet("templates", tuple(order)), entries, total, blank)
+    return TemplateTable(Alphabet("templates", tuple(order)), [_entry(t, counts, first) for t in order], total, blank)
 
 
-def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadReport) -> Iterator[Chunk]:
-    """Second pass: the template code of every non-blank line."""
+def fixed(origin: Origin, alphabet: Alphabet, block_size: int) -> TemplateTable:
+    """First pass against a template alphabet given in advance (e.g. a model's): counts per listed template.
+
+    Lines whose template the alphabet does not list are read under the
+    reader's policy (break, skip or error) and named in ``unlisted``.
+    """
+    counts, first, total, blank = _tally(origin, block_size)
+    listed = set(alphabet.symbols)
+    others = sorted((t for t in counts if t not in listed), key=lambda t: (-counts[t], t))
+    return TemplateTable(
+        alphabet, [_entry(t, counts, first) for t in alphabet.symbols], total, blank, True,
+        [_entry(t, counts, first) for t in others],
+    )
+
+
+def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadReport, policy: str = "break") -> Iterator[Chunk]:
+    """Second pass: the template code of every non-blank line (``policy`` applies to unlisted templates of a fixed table)."""
+    if table.fixed:
+        yield from _fixed_chunks(origin, table, block_size, report, policy)
+        return
     index = {t: i for i, t in enumerate(table.alphabet.symbols)}
     dtype = table.alphabet.code_dtype
     total = 0
@@ -111,3 +143,43 @@ def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadRe
     report.extra["lines"] = table.lines
     if table.blank:
         report.notes.append(f"{table.blank} blank lines skipped")
+
+
+def _fixed_chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadReport, policy: str) -> Iterator[Chunk]:
+    """Codes against a fixed table; unlisted templates are dropped (with a segment break) or refused by the policy."""
+    from fractalseq.sources.text import item_scanner
+
+    scan = item_scanner(table.alphabet, policy)
+    total = segments = 0
+    dropped: dict[str, int] = {}
+    for first_line, lines in _lines(origin, block_size):
+        numbers = [first_line + j for j, ln in enumerate(lines) if ln.strip()]
+        templates = [line_template(ln) for ln in lines if ln.strip()]
+        codes, starts, drops, err = scan(templates)
+        if err >= 0:
+            raise InputError(
+                f"{origin.name} line {numbers[err]} has a template the {table.alphabet.name} table does not list "
+                f"({templates[err][:80]!r}), under the error policy; use the break or skip policy to leave such lines out."
+            )
+        for t, n in drops.items():
+            dropped[t] = dropped.get(t, 0) + n
+        if codes.size:
+            yield Chunk(codes, starts)
+        total += codes.size
+        segments += starts.size
+    report.symbols = total
+    report.segments = segments
+    report.records = [Record(origin.name, 0, total)]
+    for t, n in dropped.items():
+        report.drop(f"template not in the table: {t[:60]}", n)
+    report.extra["templates"] = table.to_list()
+    report.extra["unlisted_templates"] = [dict(e) for e in (table.unlisted or [])]
+    report.extra["lines"] = table.lines
+    if table.blank:
+        report.notes.append(f"{table.blank} blank lines skipped")
+    if table.unlisted:
+        n = sum(e["count"] for e in table.unlisted)
+        report.notes.append(
+            f"{n} lines of {len(table.unlisted)} templates not in the given table were "
+            + ("left out, each ending a segment" if policy == "break" else "left out")
+        )

@@ -198,40 +198,56 @@ def learn_tokens(origin: Origin, block_size: int) -> Alphabet:
     return learned(counts)
 
 
-def token_chunks(origin: Origin, alphabet: Alphabet, policy: str, block_size: int, report: ReadReport) -> Iterator[Chunk]:
-    """Whitespace-separated tokens as codes (see the module rules)."""
+def item_scanner(alphabet: Alphabet, policy: str):
+    """A function mapping blocks of items (tokens, log templates) to codes under a policy, block after block.
+
+    The returned ``scan(items)`` gives ``(codes, segment_starts, dropped, err)``:
+    the codes of the known items, where new segments start (the break policy
+    starts one after every dropped run), ``{item: count}`` of the items
+    dropped, and the index of the first unknown item under the error policy
+    (-1 if none).  The policy state carries from one block to the next.
+    """
     index = {s: i for i, s in enumerate(alphabet.symbols)}
     pol = K.POLICY_CODES[policy]
     state = K.new_state(K.PLAIN)
     events = np.zeros((1, 3), dtype=np.int64)
-    drops: Counter = Counter()
-    total = segments = 0
-    for first_line, text, toks in _token_blocks(origin, block_size):
-        uniq, inv = np.unique(np.array(toks, dtype=str), return_inverse=True)
+
+    def scan(items: list[str]) -> tuple[np.ndarray, np.ndarray, dict[str, int], int]:
+        uniq, inv = np.unique(np.array(items, dtype=str), return_inverse=True)
         names = uniq.tolist()
         lut = np.array([index.get(t, UNKNOWN) for t in names], dtype=np.int32)
         dropped = np.zeros(len(names), dtype=np.int64)
-        codes = np.empty(len(toks), dtype=alphabet.code_dtype)
-        starts = np.empty(len(toks) + 1, dtype=np.int64)
+        codes = np.empty(len(items), dtype=alphabet.code_dtype)
+        starts = np.empty(len(items) + 1, dtype=np.int64)
         state[K.S_NCODES] = 0
         state[K.S_NSTARTS] = 0
-        K.scan_symbols(inv.astype(np.int64), 0, lut, K.PLAIN, pol, -1, state, codes, starts, dropped, events)
-        if state[K.S_ERR_KIND] != K.E_NONE:
-            at = int(state[K.S_ERR_POS])
+        K.scan_symbols(inv.astype(np.int64).ravel(), 0, lut, K.PLAIN, pol, -1, state, codes, starts, dropped, events)
+        err = int(state[K.S_ERR_POS]) if state[K.S_ERR_KIND] != K.E_NONE else -1
+        drops = {names[int(k)]: int(dropped[k]) for k in np.flatnonzero(dropped)}
+        return codes[: int(state[K.S_NCODES])], starts[: int(state[K.S_NSTARTS])].copy(), drops, err
+
+    return scan
+
+
+def token_chunks(origin: Origin, alphabet: Alphabet, policy: str, block_size: int, report: ReadReport) -> Iterator[Chunk]:
+    """Whitespace-separated tokens as codes (see the module rules)."""
+    scan = item_scanner(alphabet, policy)
+    drops: Counter = Counter()
+    total = segments = 0
+    for first_line, text, toks in _token_blocks(origin, block_size):
+        codes, starts, dropped, err = scan(toks)
+        if err >= 0:
             raise InputError(
-                f"{origin.name} has the unknown token {symbol_label(toks[at])} on line "
-                f"{first_line + _line_of_token(text, at)}, which the "
+                f"{origin.name} has the unknown token {symbol_label(toks[err])} on line "
+                f"{first_line + _line_of_token(text, err)}, which the "
                 f"{alphabet.name} alphabet does not list, under the error policy; use the break or skip policy "
                 "or learn the alphabet."
             )
-        for k in np.flatnonzero(dropped):
-            drops[names[int(k)]] += int(dropped[k])
-        nc = int(state[K.S_NCODES])
-        ns = int(state[K.S_NSTARTS])
-        if nc:
-            yield Chunk(codes[:nc], starts[:ns].copy())
-        total += nc
-        segments += ns
+        drops.update(dropped)
+        if codes.size:
+            yield Chunk(codes, starts)
+        total += codes.size
+        segments += starts.size
     report.symbols = total
     report.segments = segments
     for tok, n in drops.items():
