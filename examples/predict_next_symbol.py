@@ -24,36 +24,21 @@ Run::
 from __future__ import annotations
 
 import argparse
-import os
 import sys
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from fractalseq import scenario
-from fractalseq.errors import FractalseqError
-from fractalseq.outputs import prepare_folder
 from fractalseq.predict import CellPredictor, online_code_length
 from fractalseq.sources import open_source
 
-
-def parse(argv: list[str] | None) -> argparse.Namespace:
-    p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    p.add_argument("folder", nargs="?", help="output folder (default: a temporary folder)")
-    p.add_argument("--quick", action="store_true", help="small sizes (also: FRACTALSEQ_EXAMPLES_QUICK=1)")
-    p.add_argument("--seed", type=int, default=7, help="seed of the invented scenario")
-    p.add_argument("--force", action="store_true", help="overwrite files in the output folder")
-    args = p.parse_args(argv)
-    args.quick = args.quick or os.environ.get("FRACTALSEQ_EXAMPLES_QUICK", "") not in ("", "0")
-    return args
+from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
 
 
 def run(folder: Path, args: argparse.Namespace) -> None:
     length = 40_000 if args.quick else 200_000
-    world = scenario.generate(folder / "scenario", seed=args.seed, length=length, log_lines=200, force=args.force)
-    print(world.note)
-    truth = {s.name: s for s in world.sources}
+    _, truth = make_scenario(folder, args, length=length)
     train = open_source(truth["kelp-chain"].path, alphabet="dna")
     test = open_source(truth["kelp-island"].path, alphabet="dna")
     other = open_source(truth["kelp-sticky"].path, alphabet="dna")
@@ -89,17 +74,7 @@ def run(folder: Path, args: argparse.Namespace) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
-    args = parse(argv)
-    try:
-        if args.folder:
-            run(prepare_folder(Path(args.folder), args.force), args)
-        else:
-            with tempfile.TemporaryDirectory() as tmp:
-                run(Path(tmp), args)
-    except FractalseqError as exc:
-        print(f"error: {exc}", file=sys.stderr)
-        return 2
-    return 0
+    return run_example(run, __doc__, argv)
 
 
 if __name__ == "__main__":

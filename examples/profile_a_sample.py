@@ -25,38 +25,24 @@ Without a folder everything goes to a temporary folder that is removed at the en
 from __future__ import annotations
 
 import argparse
-import os
 import sys
-import tempfile
 from pathlib import Path
 
-from fractalseq import entropy, scenario, spectrum
-from fractalseq.errors import FractalseqError
-from fractalseq.outputs import prepare_folder, write_json
+from fractalseq import entropy, spectrum
+from fractalseq.outputs import write_json
 from fractalseq.profile import profile_source
 from fractalseq.sources import open_source
 from fractalseq.words import count_words
 
+from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
+
 SAMPLE = "kelp-chain"  # a first-order Markov chain: h = 1.901 bits/symbol, D_2 = 1.842
-
-
-def parse(argv: list[str] | None) -> argparse.Namespace:
-    p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    p.add_argument("folder", nargs="?", help="output folder (default: a temporary folder)")
-    p.add_argument("--quick", action="store_true", help="small sizes (also: FRACTALSEQ_EXAMPLES_QUICK=1)")
-    p.add_argument("--seed", type=int, default=7, help="seed of the invented scenario")
-    p.add_argument("--force", action="store_true", help="overwrite files in the output folder")
-    args = p.parse_args(argv)
-    args.quick = args.quick or os.environ.get("FRACTALSEQ_EXAMPLES_QUICK", "") not in ("", "0")
-    return args
 
 
 def run(folder: Path, args: argparse.Namespace) -> None:
     length = 30_000 if args.quick else 120_000
     boot = 20 if args.quick else 100
-    world = scenario.generate(folder / "scenario", seed=args.seed, length=length, log_lines=200, force=args.force)
-    truth = next(s for s in world.sources if s.name == SAMPLE)
-    print(f"{world.note}")
+    truth = make_scenario(folder, args, length=length)[1][SAMPLE]
     print(f"sample {truth.name}: {truth.description}, {truth.length:,} bases")
 
     # 1. the building blocks: one stream, one count of every word, two estimators
@@ -87,17 +73,7 @@ def run(folder: Path, args: argparse.Namespace) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
-    args = parse(argv)
-    try:
-        if args.folder:
-            run(prepare_folder(Path(args.folder), args.force), args)
-        else:
-            with tempfile.TemporaryDirectory() as tmp:
-                run(Path(tmp), args)
-    except FractalseqError as exc:
-        print(f"error: {exc}", file=sys.stderr)
-        return 2
-    return 0
+    return run_example(run, __doc__, argv)
 
 
 if __name__ == "__main__":

@@ -25,28 +25,15 @@ Run::
 from __future__ import annotations
 
 import argparse
-import os
 import re
 import sys
-import tempfile
 from pathlib import Path
 
-from fractalseq import scenario
 from fractalseq.drift import DriftOptions, drift_test
-from fractalseq.errors import FractalseqError
-from fractalseq.outputs import prepare_folder, write_text
+from fractalseq.outputs import write_text
 from fractalseq.sources import line_template, open_source
 
-
-def parse(argv: list[str] | None) -> argparse.Namespace:
-    p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    p.add_argument("folder", nargs="?", help="output folder (default: a temporary folder)")
-    p.add_argument("--quick", action="store_true", help="small sizes (also: FRACTALSEQ_EXAMPLES_QUICK=1)")
-    p.add_argument("--seed", type=int, default=7, help="seed of the invented scenario")
-    p.add_argument("--force", action="store_true", help="overwrite files in the output folder")
-    args = p.parse_args(argv)
-    args.quick = args.quick or os.environ.get("FRACTALSEQ_EXAMPLES_QUICK", "") not in ("", "0")
-    return args
+from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
 
 
 def fixed_words(template: str) -> str:
@@ -56,8 +43,7 @@ def fixed_words(template: str) -> str:
 
 def run(folder: Path, args: argparse.Namespace) -> None:
     lines = 1_500 if args.quick else 6_000
-    world = scenario.generate(folder / "scenario", seed=args.seed, length=5_000, log_lines=lines, force=args.force)
-    print(world.note)
+    world, _ = make_scenario(folder, args, length=5_000, log_lines=lines)
     base_path, new_path = world.logs.baseline, world.logs.new
     first = Path(base_path).read_text().splitlines()[0]
     print(f"a line:       {first}")
@@ -94,17 +80,7 @@ def run(folder: Path, args: argparse.Namespace) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
-    args = parse(argv)
-    try:
-        if args.folder:
-            run(prepare_folder(Path(args.folder), args.force), args)
-        else:
-            with tempfile.TemporaryDirectory() as tmp:
-                run(Path(tmp), args)
-    except FractalseqError as exc:
-        print(f"error: {exc}", file=sys.stderr)
-        return 2
-    return 0
+    return run_example(run, __doc__, argv)
 
 
 if __name__ == "__main__":

@@ -17,6 +17,10 @@ An entry is two files written atomically (:mod:`fractalseq.outputs`): an
 holding the results and the SHA-256 of the arrays file.  The ``.json`` is
 written last, so its presence marks a complete entry; an entry whose arrays
 fail their checksum is treated as absent and recomputed.
+
+:meth:`ResultCache.prune` removes the entries a finished job did not use
+(the survey does this for its own ``OUT/.cache`` folder), so the folder holds
+the entries of the last run rather than of every run before it.
 """
 
 from __future__ import annotations
@@ -24,8 +28,9 @@ from __future__ import annotations
 import hashlib
 import io
 import json
+import re
 from pathlib import Path
-from typing import Any
+from typing import Any, Iterable
 
 import numpy as np
 
@@ -35,6 +40,10 @@ from fractalseq.outputs import to_json, write_bytes, write_text
 #: Bump when the meaning of cached results changes.
 CACHE_VERSION = 1
 _BLOCK = 1 << 20
+#: File names of a complete entry's two files, and of the temporary files of an interrupted write.
+_ENTRY_FILE = re.compile(r"^([0-9a-f]{64})\.(?:json|npz)$")
+_TEMP_FILE = re.compile(r"^\.([0-9a-f]{64})\.(?:json|npz)\..*\.part$")
+_SUBFOLDER = re.compile(r"^[0-9a-f]{2}$")
 
 
 def file_hash(path: str | Path) -> str:
@@ -123,3 +132,48 @@ class ResultCache:
 
     def __contains__(self, key: str) -> bool:
         return self.get(key) is not None
+
+    def prune(self, keep: Iterable[str], before: float | None = None) -> int:
+        """Remove every entry whose key is not in ``keep``; return how many entries were removed.
+
+        Parameters
+        ----------
+        keep:
+            Keys of the entries to keep (those the finished job used).
+        before:
+            A :func:`time.time` value, normally when the job started: only files
+            last modified earlier are removed, so entries that another job
+            sharing the folder wrote in the meantime survive.  ``None``: no limit.
+
+        Notes
+        -----
+        Only the cache's own files are touched: the ``.json``/``.npz`` pair of an
+        entry (also a half-written entry whose ``.json`` is missing), temporary
+        files left by an interrupted write, and sub-folders left empty.  A file
+        that cannot be removed is left in place.
+        """
+        if self.folder is None or not self.folder.is_dir():
+            return 0
+        keep = set(keep)
+        removed: set[str] = set()
+        for sub in sorted(self.folder.iterdir()):
+            if not (sub.is_dir() and _SUBFOLDER.match(sub.name)):
+                continue
+            for f in sorted(sub.iterdir()):
+                entry = _ENTRY_FILE.match(f.name)
+                temp = _TEMP_FILE.match(f.name)
+                if not (entry or temp) or (entry and entry.group(1) in keep):
+                    continue
+                try:
+                    if before is not None and f.stat().st_mtime >= before:
+                        continue
+                    f.unlink()
+                except OSError:
+                    continue
+                if entry:
+                    removed.add(entry.group(1))
+            try:
+                sub.rmdir()  # only succeeds when nothing is left in it
+            except OSError:
+                pass
+        return len(removed)

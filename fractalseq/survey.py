@@ -24,6 +24,7 @@ import glob
 import inspect
 import json
 import os
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable, Sequence
@@ -364,6 +365,9 @@ class SurveyResult:
         The options used.
     notes:
         Anything the reader of the result should know.
+    cache_pruned:
+        Cache entries of earlier runs removed after this one (``run_survey(...,
+        prune_cache=True)``); not part of the JSON, which depends only on the inputs and options.
     """
 
     sources: list[dict]
@@ -375,6 +379,7 @@ class SurveyResult:
     clustering: Clustering
     options: SurveyOptions
     notes: list[str] = field(default_factory=list)
+    cache_pruned: int = 0
 
     def to_dict(self) -> dict:
         """The documented JSON contract (see the README section on ``survey --json``)."""
@@ -450,6 +455,7 @@ def run_survey(
     engine: Engine | None = None,
     cache: ResultCache | None = None,
     progress: Progress | None = None,
+    prune_cache: bool = False,
 ) -> SurveyResult:
     """Survey sources: per-source figures (cached), distances and clustering.
 
@@ -467,6 +473,12 @@ def run_survey(
     progress:
         Called as ``progress(event, index, spec)`` with event ``"cached"``,
         ``"queued"`` or ``"done"``.
+    prune_cache:
+        After the survey is complete, remove the cache entries it did not use and
+        that are older than this run (:meth:`ResultCache.prune`), so the cache holds
+        exactly the current sources and parameters.  Meant for a cache that belongs
+        to this survey (``survey --out DIR`` uses ``DIR/.cache``), not for one shared
+        by several surveys.  An interrupted or failed survey prunes nothing.
 
     Returns
     -------
@@ -477,6 +489,7 @@ def run_survey(
         raise InputError("No inputs were given; name files, folders, patterns or a list file.")
     engine = engine or SerialEngine()
     cache = cache or ResultCache(None)
+    started = time.time()
     params = options.task_params()
     outputs: list[dict | None] = [None] * len(specs)
     hashes: list[str] = []
@@ -514,7 +527,10 @@ def run_survey(
 
     if tasks:
         engine.map(survey_task, tasks, on_done=done)
-    return merge_survey(specs, outputs, hashes, options)  # type: ignore[arg-type]
+    result = merge_survey(specs, outputs, hashes, options)  # type: ignore[arg-type]
+    if prune_cache:
+        result.cache_pruned = cache.prune(keys, before=started)
+    return result
 
 
 def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: Sequence[str], options: SurveyOptions) -> SurveyResult:
@@ -584,10 +600,12 @@ def spectra_png(result: SurveyResult) -> bytes:
 
     with style():
         fig, ax = figure(7.6, 4.6)
+        drawn = False
         for i, s in enumerate(result.sources):
             dims = [d for d in _spectrum_rows(s["profile"]) if d.get("estimate") is not None]
             if not dims:
                 continue
+            drawn = True
             q = np.array([float(d["q"]) for d in dims])
             est = np.array([float(d["estimate"]) for d in dims])
             color = PALETTE[i % len(PALETTE)]
@@ -599,7 +617,7 @@ def spectra_png(result: SurveyResult) -> bytes:
         ax.set_xlabel("order q")
         ax.set_ylabel("D_q")
         ax.set_title("Rényi dimension spectra")
-        if result.sources:
+        if drawn:  # no source may have an estimate (all too short): then there is nothing to label
             ax.legend(loc="best", fontsize=8)
         return fig_to_png(fig)
 

@@ -154,7 +154,7 @@ CASES: list[Case] = [
     # ---- impossible parameters
     Case("count-depth-beyond-address", ("count", "--depth", "40", "{d}/good.fa"), r"40", r"32 or less"),
     Case("profile-depth-beyond-address", ("profile", "{d}/good.fa", "--depth", "40", "--boot", "0"), r"40", r"32 or less"),
-    Case("learn-depth-beyond-address", ("learn", "{d}/good.fa", "--max-depth", "40", "-o", "{d}/out-deep.npz"),
+    Case("learn-depth-beyond-address", ("learn", "{d}/good.fa", "--depth", "40", "-o", "{d}/out-deep.npz"),
          r"depth", r"0\.\.31|31 or less|or less", absent=("out-deep.npz",), subprocess=True),
     Case("count-depth-zero", ("count", "--depth", "0", "{d}/good.fa"), r"--depth", r"--help|at least|greater"),
     Case("render-ratio-zero", ("render", "{d}/good.fa", "-o", "{d}/out-r0.png", "--ratio", "0"),

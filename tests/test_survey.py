@@ -171,3 +171,122 @@ def test_sigint_then_rerun_gives_the_uninterrupted_result(tmp_path):
     assert (out / "survey.json").read_bytes() == (ref / "survey.json").read_bytes()
     assert (out / "survey.csv").read_bytes() == (ref / "survey.csv").read_bytes()
     assert main(args + ["--out", str(out)]) == 2  # nothing is overwritten without --force
+
+
+# ------------------------------------------------------- numeric reader options
+def _write_buoy_csv(path: Path, seed: int, n: int = 6000) -> np.ndarray:
+    """Invented test data: hourly readings of a fictional buoy; returns the salinity column."""
+    rng = np.random.default_rng(seed)
+    salinity = 35 + rng.normal(size=n)
+    lines = ["# invented test data: hourly readings of a fictional buoy", "hour,tide_m,salinity"]
+    lines += [f"{k % 24},{1.5 * np.sin(2 * np.pi * k / 12.4):.4f},{s:.4f}" for k, s in enumerate(salinity)]
+    path.write_text("\n".join(lines) + "\n")
+    return np.array([float(f"{s:.4f}") for s in salinity])
+
+
+def test_survey_passes_numeric_reader_options_to_every_source(tmp_path, capsys):
+    from fractalseq.cli.app import main
+
+    salinity = [_write_buoy_csv(tmp_path / f"buoy{i}.csv", 100 + i) for i in range(2)]
+    files = [str(tmp_path / f"buoy{i}.csv") for i in range(2)]
+    capsys.readouterr()
+    assert main(["survey", *files, "-f", "numeric", "--column", "salinity", "--bins", "3", "-q", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["parameters"]["reader"] == {"bins": 3, "column": "salinity"}
+    assert [s["name"] for s in doc["sources"]] == ["buoy0.csv", "buoy1.csv"]
+    for s, values in zip(doc["sources"], salinity):
+        assert s["length"] == 6000 and s["alphabet_size"] == 3 and s["read"]["symbols"] == 6000
+        numeric = s["profile"]["input"]["numeric"]
+        assert numeric["column"] == "salinity" and numeric["method"] == "quantile"
+        # equal-frequency edges of the chosen column: numpy's quantiles (default linear interpolation)
+        assert numeric["edges"] == pytest.approx(np.quantile(values, [1 / 3, 2 / 3]), abs=1e-9)
+        # independent normal draws cut at terciles are i.i.d. uniform over 3 symbols:
+        # entropy rate log2(3) bits (common practice; Cover & Thomas 2006, eq. 2.1 and section 4.2)
+        h = s["entropy_rate_bits"]["grassberger"]["estimate"]
+        assert abs(h - np.log2(3)) < 0.02, h
+    # without --column the reader takes the first numeric column (hour), so the options really reached the reader
+    assert main(["survey", *files, "-f", "numeric", "-q", "--json"]) == 0
+    plain = json.loads(capsys.readouterr().out)
+    assert plain["parameters"]["reader"] == {}
+    assert {s["profile"]["input"]["numeric"]["column"] for s in plain["sources"]} == {"hour"}
+    assert main(["survey", *files, "-f", "numeric", "--bins", "1", "-q", "--json"]) == 2  # impossible value, before reading
+    assert "bins" in capsys.readouterr().err
+    # profile takes the same options (here the column by 0-based index) and reads the same symbols
+    assert main(["profile", files[0], "-f", "numeric", "--column", "2", "--bins", "3", "--boot", "0", "-q", "--json"]) == 0
+    prof = json.loads(capsys.readouterr().out)
+    assert prof["parameters"]["reader"] == {"bins": 3, "column": "2"}
+    assert prof["sources"][0]["input"]["numeric"] == doc["sources"][0]["profile"]["input"]["numeric"]
+
+
+# ------------------------------------------------------------- cache pruning
+def _entries(folder: Path) -> set[str]:
+    return {p.stem for p in folder.rglob("*.json")}
+
+
+def test_result_cache_prune_keeps_used_and_newer_entries_and_foreign_files(tmp_path):
+    cache = ResultCache(tmp_path / "c")
+    keys = [f"{i:02x}" + "ab" * 31 for i in range(4)]
+    for k in keys:
+        cache.put(k, {"k": k}, {"x": np.arange(3)})
+    (tmp_path / "c" / keys[1][:2] / f".{keys[1]}.json.x1y2.part").write_text("half-written")
+    (tmp_path / "c" / "notes.txt").write_text("not a cache file")
+    orphan = tmp_path / "c" / keys[3][:2] / f"{keys[3]}.json"
+    orphan.unlink()  # an entry interrupted between its two files: the .npz is left
+    later = time.time() + 3600
+    assert cache.prune([keys[0]], before=later) == 3
+    assert _entries(tmp_path / "c") == {keys[0]}
+    assert not list((tmp_path / "c").rglob("*.part"))
+    assert [p.stem for p in (tmp_path / "c").rglob("*.npz")] == [keys[0]]  # the orphaned arrays went too
+    assert (tmp_path / "c" / "notes.txt").exists()
+    got = cache.get(keys[0])
+    assert got is not None and got[0] == {"k": keys[0]} and np.array_equal(got[1]["x"], np.arange(3))
+    assert sorted(p.name for p in (tmp_path / "c").iterdir()) == [keys[0][:2], "notes.txt"]  # empty sub-folders go
+    # entries written after the given time (by another job sharing the folder) are kept
+    cache.put(keys[2], {"k": keys[2]})
+    assert cache.prune([keys[0]], before=time.time() - 3600) == 0
+    assert _entries(tmp_path / "c") == {keys[0], keys[2]}
+
+
+def test_survey_out_cache_keeps_only_the_last_runs_entries(tmp_path, capsys):
+    from fractalseq.cli.app import main
+
+    a, b, c = (_write_fasta(tmp_path / f"{n}.fa", _chain(i), 6_000, 20 + i) for i, n in enumerate("abc"))
+    out = tmp_path / "out"
+    base = ["survey", "--depth", "6", "--seed", "1"]
+    assert main([*base, str(a), str(b), "--out", str(out), "-q"]) == 0
+    first = _entries(out / ".cache")
+    assert len(first) == 2
+    # same output folder, one source swapped: a's entry is reused, b's is removed
+    capsys.readouterr()
+    assert main([*base, str(a), str(c), "--out", str(out), "--force"]) == 0
+    second = _entries(out / ".cache")
+    assert len(second) == 2 and len(second & first) == 1
+    err = " ".join(capsys.readouterr().err.split())
+    assert "resumed: 1 of 2 sources read from the cache" in err and "removed 1 cache entries of earlier runs" in err
+    # other options: every earlier entry is stale
+    assert main([*base[:-1], "2", str(a), str(c), "--out", str(out), "--force", "-q"]) == 0
+    third = _entries(out / ".cache")
+    assert len(third) == 2 and not third & second
+    # an explicit --cache folder may serve several surveys: never pruned
+    shared = tmp_path / "shared"
+    assert main([*base, str(a), str(b), "--cache", str(shared), "-q", "--json"]) == 0
+    assert main([*base, str(a), str(c), "--cache", str(shared), "-q", "--json"]) == 0
+    assert len(_entries(shared)) == 3
+
+
+def test_an_interrupted_survey_prunes_nothing(tmp_path):
+    srcs = [_write_fasta(tmp_path / f"i{i}.fa", _chain(i), 6_000, 30 + i) for i in range(3)]
+    specs = expand_inputs([str(p) for p in srcs])
+    cache = ResultCache(tmp_path / "cache")
+    run_survey(specs[:2], SurveyOptions(depth=6, seed=3), cache=cache)
+    before = _entries(tmp_path / "cache")
+
+    def stop(event, i, spec):
+        if event == "done":
+            raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        run_survey(specs[2:], SurveyOptions(depth=6, seed=3), cache=cache, progress=stop, prune_cache=True)
+    assert _entries(tmp_path / "cache") >= before  # the earlier run's entries are still there
+    done = run_survey(specs[2:], SurveyOptions(depth=6, seed=3), cache=cache, prune_cache=True)
+    assert done.cache_pruned == 2 and len(_entries(tmp_path / "cache")) == 1

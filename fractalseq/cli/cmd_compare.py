@@ -42,6 +42,10 @@ def survey(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
+    column: Optional[str] = common.COLUMN,
+    bins: int = common.BINS,
+    thresholds: Optional[str] = common.THRESHOLDS,
+    ordinal: int = common.ORDINAL,
     depth: Optional[int] = typer.Option(None, "--depth", "-n", min=2, help="Deepest word length (symbols) of each profile; default: automatic, as in fractalseq profile."),
     ratio: float = common.RATIO,
     distance_depth: Optional[int] = typer.Option(None, "--distance-depth", min=1, help="Word length n of the Jensen-Shannon distances (symbols); default: largest n with A^n x 20 <= shortest source, at most 8."),
@@ -51,7 +55,9 @@ def survey(
     quiet: bool = common.QUIET,
     seed: int = typer.Option(0, "--seed", help=SEED_HELP),
     force: bool = common.FORCE,
-    cache: Optional[Path] = typer.Option(None, "--cache", help="Folder of the per-source result cache (default: OUT/.cache with --out, else none)."),
+    cache: Optional[Path] = typer.Option(
+        None, "--cache", help="Folder of the per-source result cache, kept as it is and shareable by several surveys (default: OUT/.cache with --out, pruned after each run; else none)."
+    ),
     no_cache: bool = typer.Option(False, "--no-cache", help="Do not read or write the per-source cache."),
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
@@ -69,28 +75,36 @@ def survey(
     survey.html (sortable tables, overlaid spectra, heat map, dendrogram) and the
     PNG figures; finished sources are cached in OUT/.cache, so an interrupted survey
     (Ctrl-C) resumes where it stopped when run again with the same options and gives
-    the same result. --json prints the JSON contract (sources, distances) on standard
-    output. Genomic output is for research, not for clinical decisions.
+    the same result. When a survey completes, OUT/.cache keeps only the entries of its
+    own sources and options: entries of earlier runs over other files or with other
+    options are removed (a folder given with --cache is never pruned). --json prints
+    the JSON contract (sources, distances) on standard output. Numeric inputs take the
+    reader options of fractalseq profile (--column, --bins, --thresholds, --ordinal),
+    applied to every source. Genomic output is for research, not for clinical decisions.
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
     """
     from fractalseq.cache import ResultCache
+    from fractalseq.cli.inputs import reader_options
     from fractalseq.outputs import prepare_folder
     from fractalseq.survey import SurveyOptions, expand_inputs, run_survey, write_outputs
 
+    reader = reader_options(column, bins, thresholds, ordinal)
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
     specs = expand_inputs(list(paths or []), from_list, stdin_lines)
     if out is not None:
         prepare_folder(out, force)  # the hidden .cache folder of an interrupted run does not count
+    own_cache = False  # OUT/.cache belongs to this survey and is pruned when it completes
     if no_cache:
         store = ResultCache(None)
     elif cache is not None:
         store = ResultCache(cache)
     elif out is not None:
         store = ResultCache(Path(out) / ".cache")
+        own_cache = True
     else:
         store = ResultCache(None)
-    options = SurveyOptions(fmt, alphabet, policy, depth, ratio, distance_depth, seed, linkage)
+    options = SurveyOptions(fmt, alphabet, policy, depth, ratio, distance_depth, seed, linkage, tuple(sorted(reader.items())))
     from fractalseq.distances import LINKAGES
 
     if linkage not in LINKAGES:
@@ -116,7 +130,7 @@ def survey(
                     bar.update(rows[i], completed=1, description=f"  {spec.name} (done)")
 
         try:
-            result = run_survey(specs, options, eng, store, progress)
+            result = run_survey(specs, options, eng, store, progress, prune_cache=own_cache)
         except KeyboardInterrupt:
             bar.stop()
             kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
@@ -124,6 +138,8 @@ def survey(
             raise typer.Exit(130) from None
     if cached[0] and not quiet:
         common.err_console.print(f"resumed: {cached[0]} of {len(specs)} sources read from the cache")
+    if result.cache_pruned and not quiet:
+        common.err_console.print(f"removed {result.cache_pruned} cache entries of earlier runs from {store.folder}", markup=False, highlight=False)
     written = write_outputs(result, Path(out), force=True) if out is not None else []
     if json_out:
         typer.echo(result.to_json(), nl=False)

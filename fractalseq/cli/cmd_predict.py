@@ -22,11 +22,13 @@ from fractalseq.outputs import check_writable, to_json
 RESEARCH_NOTE = "Genomic output is for research, not for clinical decisions."
 
 DEPTHS = typer.Option(
-    None, "--depths", help="Cell depths in symbols, comma-separated (e.g. 3,6,10,14,20); default: a ladder up to --max-depth (3,6,10,14,20 for DNA)."
+    None, "--depths", help="Cell depths in symbols, comma-separated (e.g. 3,6,10,14,20); default: a ladder up to --depth (3,6,10,14,20 for DNA)."
 )
-MAX_DEPTH = typer.Option(
-    None, "--max-depth", min=1, help="Deepest cell in symbols when --depths is not given; default: 20 for DNA, about 40 bits of context otherwise."
+DEPTH = typer.Option(
+    None, "--depth", "-n", min=1, help="Deepest cell in symbols when --depths is not given; default: 20 for DNA, about 40 bits of context otherwise."
 )
+# the option's former name, still accepted (hidden from --help) so existing scripts keep working
+OLD_MAX_DEPTH = typer.Option(None, "--max-depth", min=1, hidden=True, help="Deprecated spelling of --depth.")
 SMOOTHING = typer.Option(0.5, "--smoothing", help="Additive constant alpha of each cell's estimate (c+alpha)/(N+A alpha); 0.5 is Krichevsky-Trofimov.")
 MAX_CELLS = typer.Option(
     None, "--max-cells", min=1,
@@ -63,6 +65,17 @@ def _discount(text: str) -> float | str:
         raise ParameterError(f"--discount must be auto or a number in [0, 1), not {text!r}.") from None
 
 
+def _deepest(depth: Optional[int], old_max_depth: Optional[int], quiet: bool) -> Optional[int]:
+    """The --depth value, taking the deprecated --max-depth spelling into account."""
+    if old_max_depth is None:
+        return depth
+    if depth is not None and depth != old_max_depth:
+        raise ParameterError(f"--depth {depth} and --max-depth {old_max_depth} disagree; give only --depth (the new name of --max-depth).")
+    if not quiet:
+        common.err_console.print("note: --max-depth is now called --depth (-n); the old name will be removed.")
+    return old_max_depth
+
+
 def _model_params(depths, max_depth, smoothing, max_cells, strands) -> dict:
     return {
         "depths": _depths(depths),
@@ -81,7 +94,8 @@ def learn(
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
     depths: Optional[str] = DEPTHS,
-    max_depth: Optional[int] = MAX_DEPTH,
+    depth: Optional[int] = DEPTH,
+    old_max_depth: Optional[int] = OLD_MAX_DEPTH,
     smoothing: float = SMOOTHING,
     discount: str = typer.Option("auto", "--discount", help="Absolute discount d of every count in the coarse-to-fine blend: a number in [0, 1), or auto (chosen per depth by leave-one-out likelihood)."),
     max_cells: Optional[int] = MAX_CELLS,
@@ -107,6 +121,7 @@ def learn(
     from fractalseq.words import WordCounter
 
     check_writable(out, force)
+    max_depth = _deepest(depth, old_max_depth, quiet)
     model = CellPredictor(**_model_params(depths, max_depth, smoothing, max_cells, strands), discount=_discount(discount))
     counter = None
     reports = []
@@ -198,7 +213,8 @@ def score(
     window: int = typer.Option(10_000, "--window", "-W", min=1, help="Window length in symbols for the per-window code lengths."),
     top: int = typer.Option(5, "--top", "-t", min=0, help="Number of most surprising windows to list per file."),
     depths: Optional[str] = DEPTHS,
-    max_depth: Optional[int] = MAX_DEPTH,
+    depth: Optional[int] = DEPTH,
+    old_max_depth: Optional[int] = OLD_MAX_DEPTH,
     smoothing: float = SMOOTHING,
     max_cells: Optional[int] = MAX_CELLS,
     learning_rate: float = LEARNING_RATE,
@@ -230,7 +246,7 @@ def score(
         read_alpha = alphabet if alphabet is not None else fitted.alphabet_
     else:
         read_alpha = alphabet if alphabet is not None else "dna"
-    params = _model_params(depths, max_depth, smoothing, max_cells, strands)
+    params = _model_params(depths, _deepest(depth, old_max_depth, quiet), smoothing, max_cells, strands)
     params["learning_rate"] = learning_rate
     results = []
     with common.progress(quiet) as bar:

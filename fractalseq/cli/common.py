@@ -37,6 +37,9 @@ FORCE = typer.Option(False, "--force", help="Overwrite existing output files.")
 BINS = typer.Option(4, "--bins", help="numeric input: number of quantile bins (symbols).")
 ORDINAL = typer.Option(0, "--ordinal", help="numeric input: ordinal-pattern order m (0 = use bins).")
 COLUMN = typer.Option(None, "--column", help="numeric input: CSV column name or 0-based index.")
+THRESHOLDS = typer.Option(
+    None, "--thresholds", help="numeric input: fixed bin edges, increasing and comma-separated (e.g. 0.2,0.5,0.8), instead of quantile --bins."
+)
 
 #: Standard error console for progress and notes (standard output stays clean for --json).
 err_console = Console(stderr=True)

@@ -4,8 +4,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from fractalseq.errors import InputError
+from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray, SymbolStream
+
+#: Number of quantile bins of numeric input when --bins is not given (the reader's default).
+DEFAULT_BINS = 4
 
 
 def open_input(path: str, fmt: str, alphabet: str, policy: str, **options) -> SymbolStream:
@@ -13,6 +16,33 @@ def open_input(path: str, fmt: str, alphabet: str, policy: str, **options) -> Sy
     from fractalseq.sources import open_source
 
     return open_source(path, fmt=fmt, alphabet=alphabet, policy=policy, **options)
+
+
+def reader_options(column: str | None, bins: int = DEFAULT_BINS, thresholds: str | None = None, ordinal: int = 0) -> dict:
+    """The numeric reader options (``--column``, ``--bins``, ``--thresholds``, ``--ordinal``) for ``open_source``.
+
+    Only options that differ from the reader's defaults are returned, so a run
+    that does not use them keeps the same parameters (cache keys, JSON) as before.
+    Impossible values raise :class:`ParameterError` before anything is read.
+    """
+    from fractalseq.sources import numeric
+
+    opts: dict = {}
+    if column is not None:
+        opts["column"] = column
+    if bins != DEFAULT_BINS:
+        opts["bins"] = int(bins)
+    edges = None
+    if thresholds is not None and thresholds.strip():
+        try:
+            edges = tuple(float(t) for t in thresholds.replace(" ", "").split(",") if t)
+        except ValueError:
+            raise ParameterError(f"--thresholds must be numbers separated by commas (e.g. 0.2,0.5,0.8), not {thresholds!r}.") from None
+        opts["thresholds"] = edges
+    if ordinal:
+        opts["ordinal"] = int(ordinal)
+    numeric.check_parameters(int(bins), None if edges is None else list(edges), int(ordinal))
+    return opts
 
 
 def read_input(path: str, fmt: str, alphabet: str, policy: str, **options) -> SymbolArray:

@@ -109,7 +109,7 @@ def scan_symbols(raw, lo, lut, layout, policy, nl, state, codes, starts, dropped
     policy : int
         ``BREAK``, ``SKIP`` or ``ERROR``.
     nl : int
-        Raw value of a line end (for line numbers), or -1.
+        Raw value of a line end (for line numbers), or -1; 10 for FASTA/FASTQ.
     state : int64 array
         Scanner state (see the ``S_*`` slots), updated in place.
     codes, starts : arrays
@@ -142,120 +142,110 @@ def scan_symbols(raw, lo, lut, layout, policy, nl, state, codes, starts, dropped
     i = lo
     while i < n:
         b = raw[i]
-        if phase == P_SEQ and ls == 0:
-            # fast path: a symbol inside a sequence line
-            c = lut[b]
-            if c >= 0:
-                if pend == 1:
-                    starts[ns] = nc
-                    ns += 1
-                    pend = 0
-                codes[nc] = c
-                nc += 1
-                seq_len += 1
-                if b == nl:
-                    line += 1
-                i += 1
-                continue
-        if nev == cap:
-            break
-        if layout != PLAIN:
-            if phase == P_COMMENT:
-                if b == _NL:
-                    line += 1
-                    ls = 1
-                    phase = P_SEQ
-                i += 1
-                continue
-            if phase == P_HEADER:
-                if b == _NL:
-                    events[nev, 0] = EV_HEADER_END
-                    events[nev, 1] = i
-                    events[nev, 2] = nc
-                    nev += 1
-                    line += 1
-                    ls = 1
-                    phase = P_SEQ
-                i += 1
-                continue
-            if layout == FASTQ:
-                if phase == P_EXPECT:
+        c = lut[b]
+        if phase != P_SEQ or ls != 0 or c < 0:
+            # not a symbol inside a sequence line (that common case skips this block): the
+            # layout consumes headers, comments, FASTQ quality lines and every FASTA/FASTQ
+            # line end; what falls through is a symbol or an ignored/unknown/ambiguous value
+            if nev == cap:
+                break
+            if layout != PLAIN:
+                if phase == P_COMMENT:
                     if b == _NL:
                         line += 1
                         ls = 1
-                    elif b == _AT:
+                        phase = P_SEQ
+                    i += 1
+                    continue
+                if phase == P_HEADER:
+                    if b == _NL:
+                        events[nev, 0] = EV_HEADER_END
+                        events[nev, 1] = i
+                        events[nev, 2] = nc
+                        nev += 1
+                        line += 1
+                        ls = 1
+                        phase = P_SEQ
+                    i += 1
+                    continue
+                if layout == FASTQ:
+                    if phase == P_EXPECT:
+                        if b == _NL:
+                            line += 1
+                            ls = 1
+                        elif b == _AT:
+                            phase = P_HEADER
+                            events[nev, 0] = EV_HEADER_START
+                            events[nev, 1] = i + 1
+                            events[nev, 2] = nc
+                            nev += 1
+                            pend = 1
+                            seq_len = 0
+                            ls = 0
+                        elif b != _CR and b != _SP and b != _TAB:
+                            err = E_FASTQ_START
+                            break
+                        i += 1
+                        continue
+                    if phase == P_PLUS:
+                        if b == _NL:
+                            line += 1
+                            ls = 1
+                            qual_len = 0
+                            phase = P_QUAL if seq_len > 0 else P_EXPECT
+                        i += 1
+                        continue
+                    if phase == P_QUAL:
+                        if b == _NL:
+                            line += 1
+                            ls = 1
+                            if qual_len >= seq_len:
+                                phase = P_EXPECT
+                        elif b != _CR and b != _SP and b != _TAB:
+                            qual_len += 1
+                            if qual_len > seq_len:
+                                err = E_FASTQ_QUAL
+                                break
+                        i += 1
+                        continue
+                    # P_SEQ of FASTQ
+                    if b == _NL:
+                        line += 1
+                        ls = 1
+                        i += 1
+                        continue
+                    if ls == 1 and b == _PLUS:
+                        phase = P_PLUS
+                        ls = 0
+                        i += 1
+                        continue
+                    ls = 0
+                else:
+                    # P_SEQ of FASTA
+                    if b == _NL:
+                        line += 1
+                        ls = 1
+                        i += 1
+                        continue
+                    if ls == 1 and b == _GT:
                         phase = P_HEADER
                         events[nev, 0] = EV_HEADER_START
                         events[nev, 1] = i + 1
                         events[nev, 2] = nc
                         nev += 1
                         pend = 1
-                        seq_len = 0
                         ls = 0
-                    elif b != _CR and b != _SP and b != _TAB:
-                        err = E_FASTQ_START
-                        break
-                    i += 1
-                    continue
-                if phase == P_PLUS:
-                    if b == _NL:
-                        line += 1
-                        ls = 1
-                        qual_len = 0
-                        phase = P_QUAL if seq_len > 0 else P_EXPECT
-                    i += 1
-                    continue
-                if phase == P_QUAL:
-                    if b == _NL:
-                        line += 1
-                        ls = 1
-                        if qual_len >= seq_len:
-                            phase = P_EXPECT
-                    elif b != _CR and b != _SP and b != _TAB:
-                        qual_len += 1
-                        if qual_len > seq_len:
-                            err = E_FASTQ_QUAL
-                            break
-                    i += 1
-                    continue
-                # P_SEQ of FASTQ
-                if b == _NL:
-                    line += 1
-                    ls = 1
-                    i += 1
-                    continue
-                if ls == 1 and b == _PLUS:
-                    phase = P_PLUS
+                        i += 1
+                        continue
+                    if ls == 1 and b == _SEMI:
+                        phase = P_COMMENT
+                        ls = 0
+                        i += 1
+                        continue
                     ls = 0
-                    i += 1
-                    continue
-                ls = 0
-            else:
-                # P_SEQ of FASTA
-                if b == _NL:
-                    line += 1
-                    ls = 1
-                    i += 1
-                    continue
-                if ls == 1 and b == _GT:
-                    phase = P_HEADER
-                    events[nev, 0] = EV_HEADER_START
-                    events[nev, 1] = i + 1
-                    events[nev, 2] = nc
-                    nev += 1
-                    pend = 1
-                    ls = 0
-                    i += 1
-                    continue
-                if ls == 1 and b == _SEMI:
-                    phase = P_COMMENT
-                    ls = 0
-                    i += 1
-                    continue
-                ls = 0
-        elif b == nl:
+        if b == nl:
             line += 1
-        c = lut[b]
+        # translate and apply the unknown-symbol policy
         if c >= 0:
             if pend == 1:
                 starts[ns] = nc
