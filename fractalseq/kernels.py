@@ -36,7 +36,7 @@ def full_words(codes, starts, depth, bits, closed_last, key_template, write_keys
     closed_last : bool, whether the last segment ends at ``len(codes)``
     key_template : an (empty) array of the key dtype (uint32 or uint64) fixing the output type
     write_keys : bool, False to return no keys (only tails and carry), e.g. when
-        :func:`full_words_bucketed` writes them
+        :func:`full_words_split` writes them
 
     Returns
     -------
@@ -74,10 +74,10 @@ def full_words(codes, starts, depth, bits, closed_last, key_template, write_keys
         closed = (s + 1 < nseg) or closed_last
         addr = np.uint64(0)
         filled = 0
-        for i in range(a, e):
+        for i in range(a, e if write_keys else a):
             addr = ((addr << ub) | np.uint64(codes[i])) & kmask
             filled += 1
-            if filled >= depth and write_keys:
+            if filled >= depth:
                 keys[k] = addr
                 k += 1
         if closed:
@@ -97,33 +97,36 @@ def full_words(codes, starts, depth, bits, closed_last, key_template, write_keys
 
 
 @njit(cache=True, nogil=True)
-def first_symbol_bounds(codes, starts, depth, bits, n_buckets):
-    """Bucket boundaries of the full ``depth``-words grouped by their first symbol.
-
-    ``bounds[s]:bounds[s+1]`` is where words starting with symbol ``s`` go in
-    the key array written by :func:`full_words_bucketed`.
-    """
+def low_half_words(codes, starts, depth, bits):
+    """Number of full ``depth``-words whose first symbol has its top bit clear (the first half of the split)."""
     n = codes.shape[0]
     nseg = starts.shape[0]
-    bounds = np.zeros(n_buckets + 1, dtype=np.int64)
+    half = 1 << (bits - 1)
+    low = 0
     for s in range(nseg):
         a = starts[s]
         e = starts[s + 1] if s + 1 < nseg else n
         for i in range(a, e - depth + 1):
-            bounds[codes[i] + 1] += 1
-    for d in range(n_buckets):
-        bounds[d + 1] += bounds[d]
-    return bounds
+            low += codes[i] < half
+    return low
 
 
 @njit(cache=True, nogil=True)
-def full_words_bucketed(codes, starts, depth, bits, bounds, keys):
-    """Write every full ``depth``-word address into ``keys``, grouped by first symbol (see :func:`first_symbol_bounds`)."""
+def full_words_split(codes, starts, depth, bits, n_low, keys):
+    """Write every full ``depth``-word address into ``keys``: words whose first symbol's top bit is clear
+    first (``keys[:n_low]``, see :func:`low_half_words`), the others after.
+
+    Every word below ``n_low`` sorts before every word above it, so the two
+    halves can be sorted and reduced independently.  The target slot is
+    chosen without a branch (both cursors advance by 0 or 1).
+    """
     n = codes.shape[0]
     nseg = starts.shape[0]
-    pos = bounds[:-1].copy()
     kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
     ub = np.uint64(bits)
+    top = np.uint64(bits * depth - 1)
+    lo = 0
+    hi = n_low
     for s in range(nseg):
         a = starts[s]
         e = starts[s + 1] if s + 1 < nseg else n
@@ -133,9 +136,10 @@ def full_words_bucketed(codes, starts, depth, bits, bounds, keys):
             addr = ((addr << ub) | np.uint64(codes[i])) & kmask
             filled += 1
             if filled >= depth:
-                first = codes[i - depth + 1]
-                keys[pos[first]] = addr
-                pos[first] += 1
+                up = np.int64((addr >> top) & np.uint64(1))
+                keys[hi if up else lo] = addr
+                hi += up
+                lo += 1 - up
 
 
 # -------------------------------------------------------------- runs
@@ -193,6 +197,42 @@ def compact_runs(keys, cnt, depth, bits, key_bits):
             cur = a
     cnt[j] = n - run_start
     return j + 1, hist[0] + hist[1] + hist[2] + hist[3]
+
+
+@njit(cache=True, nogil=True)
+def count_runs(sorted_keys):
+    """Number of distinct values in a sorted array."""
+    n = sorted_keys.shape[0]
+    m = 1 if n else 0
+    for i in range(1, n):
+        if sorted_keys[i] != sorted_keys[i - 1]:
+            m += 1
+    return m
+
+
+@njit(cache=True, nogil=True)
+def write_runs(sorted_keys, uniq, cnt, depth, bits):
+    """Like :func:`compact_runs` but into ``uniq``/``cnt`` (sized by :func:`count_runs`), leaving the keys as they are."""
+    n = sorted_keys.shape[0]
+    hist = np.zeros((4, depth + 1), dtype=np.int64)
+    if n == 0:
+        return hist[0]
+    skip = 64 - bits * depth
+    j = 0
+    run_start = 0
+    cur = np.uint64(sorted_keys[0])
+    uniq[0] = sorted_keys[0]
+    for i in range(1, n):
+        a = np.uint64(sorted_keys[i])
+        if a != cur:
+            cnt[j] = i - run_start
+            run_start = i
+            hist[i & 3, (_clz64(a ^ cur) - skip) // bits] += 1
+            j += 1
+            uniq[j] = sorted_keys[i]
+            cur = a
+    cnt[j] = n - run_start
+    return hist[0] + hist[1] + hist[2] + hist[3]
 
 
 def runs_with_lcp(sorted_keys, depth, bits, key_bits):

@@ -403,47 +403,41 @@ class WordCounts:
 
 
 # ------------------------------------------------------------------ helpers
-def _sorted_runs_threaded(codes, starts, depth, bits, keys, bounds, threads: int = 2):
+def _sorted_runs_threaded(codes, starts, depth, bits, keys, n_low, threads: int = 2):
     """Unique words, counts and prefix histogram using ``threads`` threads.
 
-    Words are grouped by their first symbol (so the groups are already in
-    order), each group is sorted by numpy (which releases the GIL) and
-    collapsed in place by a ``nogil`` kernel; the groups' unique words are
-    then moved together.
+    Words are split by the top bit of their first symbol (so the two halves
+    are already in order), each half is sorted by numpy (which releases the
+    GIL), its distinct words counted, and then reduced by a ``nogil`` kernel
+    straight into its slice of the output.
     """
     from concurrent.futures import ThreadPoolExecutor
 
-    n_buckets = 1 << bits
-    kernels.full_words_bucketed(codes, starts, depth, bits, bounds, keys)
-    key_bits = 8 * keys.dtype.itemsize
-    parts = [(int(bounds[d]), int(bounds[d + 1])) for d in range(n_buckets) if bounds[d + 1] > bounds[d]]
+    kernels.full_words_split(codes, starts, depth, bits, n_low, keys)
+    cuts = (0, int(n_low), int(keys.shape[0]))
+    parts = [(cuts[d], cuts[d + 1]) for d in range(2) if cuts[d + 1] > cuts[d]]
     order = sorted(range(len(parts)), key=lambda i: parts[i][0] - parts[i][1])  # largest first
 
-    cnt = np.empty(keys.shape[0], dtype=np.int64)
-
-    def sort_and_compact(i: int) -> tuple[int, np.ndarray]:
+    def sort_and_count(i: int) -> int:
         lo, hi = parts[i]
         keys[lo:hi].sort()
-        return kernels.compact_runs(keys[lo:hi], cnt[lo:hi], depth, bits, key_bits)
+        return kernels.count_runs(keys[lo:hi])
 
     with ThreadPoolExecutor(max_workers=threads) as pool:
-        done = dict(zip(order, pool.map(sort_and_compact, order)))
-    # move each group's unique words down next to the previous group's (groups are in order)
-    at = 0
-    hists = []
-    for i, (lo, _) in enumerate(parts):
-        m, h = done[i]
-        if at != lo:
-            keys[at : at + m] = keys[lo : lo + m]
-            cnt[at : at + m] = cnt[lo : lo + m]
-        at += int(m)
-        hists.append(h)
-    if 2 * at < keys.shape[0]:
-        uniq, cnt = keys[:at].copy(), cnt[:at].copy()
-    else:
-        uniq, cnt = keys[:at], cnt[:at]
+        sizes = dict(zip(order, pool.map(sort_and_count, order)))
+        offsets = np.concatenate([[0], np.cumsum([sizes[i] for i in range(len(parts))])]).astype(np.int64)
+        uniq = np.empty(int(offsets[-1]), dtype=keys.dtype)
+        cnt = np.empty(int(offsets[-1]), dtype=np.int64)
+
+        def write(i: int) -> np.ndarray:
+            lo, hi = parts[i]
+            a, b = offsets[i], offsets[i + 1]
+            return kernels.write_runs(keys[lo:hi], uniq[a:b], cnt[a:b], depth, bits)
+
+        hists = list(pool.map(write, order))
     lcp = np.sum(hists, axis=0) if hists else np.zeros(depth + 1, np.int64)
-    lcp[0] += max(0, len(parts) - 1)  # neighbouring groups differ in the first symbol
+    # the last word of the low half and the first of the high half differ in the first symbol (no shared prefix)
+    lcp[0] += max(0, len(parts) - 1)
     return uniq, cnt, lcp
 
 
@@ -547,10 +541,12 @@ class WordCounter:
             self._tails[1].append(ta)
             self._tails[2].append(np.ones(tl.size, np.int64))
         if threaded:
-            bounds = kernels.first_symbol_bounds(vcodes, vstarts, self.depth, self.bits, 1 << self.bits)
-            if bounds[-1]:
-                keys = np.empty(int(bounds[-1]), dtype=self.key_dtype)
-                self._push_run(*_sorted_runs_threaded(vcodes, vstarts, self.depth, self.bits, keys, bounds))
+            seg_len = np.diff(np.append(vstarts, vcodes.size))
+            n_full = int(np.maximum(seg_len - self.depth + 1, 0).sum())
+            if n_full:
+                keys = np.empty(n_full, dtype=self.key_dtype)
+                n_low = kernels.low_half_words(vcodes, vstarts, self.depth, self.bits)
+                self._push_run(*_sorted_runs_threaded(vcodes, vstarts, self.depth, self.bits, keys, n_low))
         elif keys.size:
             if self._dense is not None:
                 kernels.dense_add(self._dense, keys)
