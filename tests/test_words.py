@@ -141,14 +141,17 @@ def test_depth_32_for_dna_and_address_round_trip():
     assert al.dna().max_depth == 32
 
 
-def test_parallel_sort_equals_serial():
+@pytest.mark.parametrize("alphabet, depth", [(al.dna(), 16), (al.binary(), 40), (al.from_symbols("abcde"), 9)])
+def test_parallel_sort_equals_serial(alphabet, depth):
     rng = np.random.default_rng(5)
-    # longer than the 2**18-symbol threshold, so the threaded path (split by first symbol) really runs
-    arr = from_codes(al.dna(), rng.integers(0, 4, 300_000), [0, 123_456])
-    a = count_words(arr, 16, parallel=True)
-    b = count_words(arr, 16, parallel=False)
+    # longer than the 2**18-symbol threshold, so the threaded path (split by the first symbol's top bit) really runs;
+    # a skewed composition leaves one half much larger than the other
+    p = np.linspace(1.0, 3.0, alphabet.size)
+    arr = from_codes(alphabet, rng.choice(alphabet.size, 300_000, p=p / p.sum()), [0, 123_456])
+    a = count_words(arr, depth, parallel=True)
+    b = count_words(arr, depth, parallel=False)
     assert np.array_equal(a.distinct_all(), b.distinct_all())
-    for n in (1, 8, 16):
+    for n in (1, depth // 2, depth):
         wa, ca = a.words(n)
         wb, cb = b.words(n)
         assert np.array_equal(wa, wb) and np.array_equal(ca, cb)
