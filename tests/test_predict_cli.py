@@ -77,6 +77,35 @@ def test_learn_score_next_round_trip(files: Path, capsys):
     assert sum(r["probability"] for r in doc["next"]) == pytest.approx(1.0)
 
 
+def test_a_model_learned_on_one_log_scores_the_next(tmp_path: Path, capsys):
+    """Learn last week's log, score this week's: known templates keep the model's codes, new ones are listed.
+
+    Invented service log (no real data): a fixed cycle of three events; week 2 adds a new failure line.
+    The lines kept must be scored like the training cycle (cheap), and the new template must be named.
+    """
+    cycle = ["{t} svc job {n} started", "{t} svc job {n} wrote {k} rows", "{t} svc job {n} finished in {k} ms"]
+    week1 = [cycle[i % 3].format(t=f"2026-01-01T00:{i // 60 % 60:02d}:{i % 60:02d}", n=i // 3, k=7 * i) for i in range(3000)]
+    week2 = []
+    for i in range(3000):
+        week2.append(cycle[i % 3].format(t=f"2026-01-08T00:{i // 60 % 60:02d}:{i % 60:02d}", n=i // 3, k=5 * i))
+        if i % 300 == 299:
+            week2.append(f"2026-01-08T01:00:{i % 60:02d} svc disk {i} full, job {i // 3} aborted")
+    (tmp_path / "w1.log").write_text("\n".join(week1) + "\n")
+    (tmp_path / "w2.log").write_text("\n".join(week2) + "\n")
+    model = tmp_path / "w1.npz"
+    assert run(capsys, "learn", tmp_path / "w1.log", "--format", "log", "-o", model, "-q")[0] == 0
+    code, out, _ = run(capsys, "score", tmp_path / "w2.log", "--format", "log", "--model", model, "--json", "-q")
+    assert code == 0
+    doc = json.loads(out)
+    src = doc["sources"][0]
+    assert src["length"] == 3000 and src["bits_per_symbol"] < 0.1  # the learned cycle predicts the kept lines
+    assert [(e["template"], e["count"]) for e in src["unseen_templates"]] == [("<time> svc disk <num> full, job <num> aborted", 10)]
+    assert sum(src["dropped"].values()) == 10
+    assert "no security guarantee" in doc["note"]
+    code, out, _ = run(capsys, "score", tmp_path / "w2.log", "--format", "log", "--model", model)
+    assert code == 0 and "never saw" in out and "aborted" in out
+
+
 def test_score_json_contract_online_with_several_sources(files: Path, capsys):
     code, out, _ = run(capsys, "score", "--online", files / "train.fa", files / "test.fa", "--json", "-q")
     assert code == 0

@@ -20,6 +20,12 @@ from fractalseq.errors import InputError, ParameterError
 from fractalseq.outputs import check_writable, to_json
 
 RESEARCH_NOTE = "Genomic output is for research, not for clinical decisions."
+LOG_NOTE = "Surprise scores of event logs are no security guarantee."
+
+
+def _note(alphabets) -> str:
+    """The caution that fits the inputs: logs (template alphabets) or sequences."""
+    return LOG_NOTE if any(getattr(a, "name", "") == "templates" for a in alphabets) else RESEARCH_NOTE
 
 DEPTHS = typer.Option(
     None, "--depths", help="Cell depths in symbols, comma-separated (e.g. 3,6,10,14,20); default: a ladder up to --depth (3,6,10,14,20 for DNA)."
@@ -166,7 +172,7 @@ def learn(
         "baseline_order": model.baseline_order_,
         "baseline_training_bits_per_symbol": model.baseline_bits_[model.baseline_order_],
         "params": model.get_params(),
-        "note": RESEARCH_NOTE,
+        "note": _note([model.alphabet_]),
     }
     if json_out:
         typer.echo(to_json(result), nl=False)
@@ -192,7 +198,7 @@ def learn(
         f"{model.baseline_bits_[model.baseline_order_]:.4f} bits/symbol on the training data."
     )
     if not quiet:
-        common.err_console.print(f"wrote {out}. {RESEARCH_NOTE}")
+        common.err_console.print(f"wrote {out}. {_note([model.alphabet_])}")
 
 
 # ------------------------------------------------------------------- score
@@ -259,10 +265,10 @@ def score(
                 res = evaluate_online(stream, window=window, **params)
             if res.length == 0:
                 raise InputError(f"{p} holds no usable symbols; check the file and the --alphabet/--format options.")
-            results.append((p, stream.alphabet, res))
+            results.append((p, stream.alphabet, res, stream.report))
             bar.advance(task)
-    total_bits = sum(r.total_bits for _, _, r in results)
-    total_len = sum(r.length for _, _, r in results)
+    total_bits = sum(r.total_bits for _, _, r, _ in results)
+    total_len = sum(r.length for _, _, r, _ in results)
     doc = {
         "mode": "fitted" if fitted is not None else "online",
         "model": str(model) if model is not None else None,
@@ -270,13 +276,17 @@ def score(
         "total_bits": total_bits,
         "length": total_len,
         "sources": [],
-        "note": RESEARCH_NOTE,
+        "note": _note(a for _, a, _, _ in results),
     }
-    for p, a, r in results:
+    for p, a, r, rep in results:
         d = r.to_dict(windows=top)
         d["name"] = p
         d["stream_name"] = r.name
         d["alphabet"] = a.to_dict()
+        d["dropped"] = dict(sorted(rep.dropped.items()))
+        if "unlisted_templates" in rep.extra:
+            # log lines whose template the model never saw: not scored (the policy left them out), listed here
+            d["unseen_templates"] = rep.extra["unlisted_templates"]
         doc["sources"].append(d)
     if json_out:
         typer.echo(to_json(doc), nl=False)
@@ -285,7 +295,7 @@ def score(
     t = Table(title=f"Code length, {mode}")
     for col in ("source", "symbols", "bits/symbol", "top-1", "top-3", "calib. error", "Markov KT (order)", "best compressor"):
         t.add_column(col, justify="left" if col in ("source", "best compressor") else "right")
-    for p, a, r in results:
+    for p, a, r, _ in results:
         mk = r.baselines.get("markov", {})
         comp = r.baselines.get("compressors", {})
         cname, cbits = _compressor_summary(comp) if comp else ("", float("nan"))
@@ -295,7 +305,15 @@ def score(
         )
     common.out_console.print(t)
     common.out_console.print(f"All sources: {doc['bits_per_symbol']:.4f} bits/symbol over {total_len:,} symbols.")
-    for p, a, r in results:
+    for p, a, r, rep in results:
+        unseen = rep.extra.get("unlisted_templates") or []
+        if unseen:
+            ut = Table(title=f"{p}: {sum(e['count'] for e in unseen):,} lines with templates the model never saw (not scored)")
+            for col in ("lines", "first line", "template"):
+                ut.add_column(col, justify="left" if col == "template" else "right")
+            for e in unseen[:top]:
+                ut.add_row(f"{e['count']:,}", f"{e['first_line']:,}", e["template"])
+            common.out_console.print(ut)
         if len(r.records) > 1:
             rt = Table(title=f"{p}: records")
             for col in ("record", "start", "symbols", "bits/symbol"):
@@ -318,7 +336,7 @@ def score(
             f"depths {', '.join(map(str, r.depths))}; {'both strands' if r.reverse_complement else 'one strand'}."
         )
     if not quiet:
-        common.err_console.print(RESEARCH_NOTE)
+        common.err_console.print(doc["note"])
 
 
 # -------------------------------------------------------------------- next
@@ -353,7 +371,7 @@ def next_symbols(
         ctx = context
     rows = fitted.next_symbols(ctx, top=top)
     depth = rows[0]["deepest_cell_depth"] if rows else None
-    doc = {"model": str(model), "context": ctx, "deepest_cell_depth": depth, "next": rows, "note": RESEARCH_NOTE}
+    doc = {"model": str(model), "context": ctx, "deepest_cell_depth": depth, "next": rows, "note": _note([fitted.alphabet_])}
     if json_out:
         typer.echo(to_json(doc), nl=False)
         return
