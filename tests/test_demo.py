@@ -65,6 +65,10 @@ def test_demo_finds_the_drift_and_the_island(demo_run):
     assert island["within"] is True
     pred = by_figure[("relay log wk 2", "predictor bits/event")]
     assert pred["within"] is True  # below lzma (preset 9, extreme) on the same event codes
+    # the model of week 1 names exactly the scenario's new message formats (masked like any log line)
+    new_kinds = by_figure[("relay log wk 2", "new event kinds named")]
+    assert new_kinds["within"] is True and new_kinds["estimate"] == "2"
+    assert sum("never saw" in n for n in summary["notes"]) == 2
 
 
 def test_online_predictor_is_an_upper_bound_near_the_rate(demo_run):

@@ -48,7 +48,11 @@ def demo(
         return
     table = Table(title="Estimates beside the truth (invented scenario)")
     for col in ("subject", "figure", "estimate", "95% interval", "truth", "ok"):
-        table.add_column(col, justify="right" if col in ("estimate", "truth") else "left", no_wrap=col != "figure")
+        # names and figures may wrap (narrow terminals); numbers never do
+        table.add_column(
+            col, justify="right" if col in ("estimate", "truth") else "left",
+            no_wrap=col not in ("subject", "figure"), min_width=10 if col == "figure" else None,
+        )
     for r in result.rows:
         est = f"{r.estimate:.3f}" if isinstance(r.estimate, float) else str(r.estimate)
         ci = f"{r.low:.3f}–{r.high:.3f}" if r.low is not None and r.high is not None else ""
