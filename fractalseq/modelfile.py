@@ -88,6 +88,8 @@ def save_model(model, path: str | Path, force: bool = False) -> Path:
         },
         "sha256": {k: _digest(v) for k, v in arrays.items()},
         "software": f"fractalseq {__version__}",
+        # how the training data were read (numeric cut points, column), so new data are read the same way
+        "reader": dict(getattr(model, "reader_", {}) or {}),
     }
     if isinstance(header["params"].get("depths"), np.ndarray):
         header["params"]["depths"] = header["params"]["depths"].tolist()
@@ -182,4 +184,8 @@ def load_model(path: str | Path):
     except (KeyError, TypeError, ValueError) as exc:
         raise ModelFileError(f"{path} does not describe a consistent model ({exc}); learn the model again.") from None
     model.pruned_cells_ = int(training.get("pruned_cells", 0))
+    reader = header.get("reader", {})
+    if not isinstance(reader, dict):
+        raise ModelFileError(f"{path} has a damaged reader section in its header; learn the model again.")
+    model.reader_ = reader
     return model

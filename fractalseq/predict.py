@@ -854,6 +854,7 @@ class CellPredictor:
         return self
 
     def _install(self, alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, pruned) -> None:
+        self.reader_: dict = getattr(self, "reader_", {})  # reader options of the training data (set by the CLI)
         self.alphabet_ = alphabet
         self.ladder_ = tuple(ladder)
         self.reverse_complement_ = bool(reverse)

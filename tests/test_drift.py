@@ -178,3 +178,32 @@ def test_cli_contract_verdict_and_exit_codes(tmp_path):
     bad = run(str(a), str(tmp_path / "missing.fa"), "-q")
     assert bad.returncode == 2 and bad.stderr.startswith("error: ") and "Traceback" not in bad.stderr
     assert math.isfinite(data["tests"][0]["statistic"])
+
+
+def test_numeric_batches_share_the_baselines_cut_points(tmp_path):
+    """A level shift of a measured series is found because both batches are cut at the baseline's quantiles.
+
+    Invented series (no real data): an AR(1) process, and the same values shifted by 0.8 standard
+    deviations. Read with each batch's own quantiles the two batches would give identical symbols; with the
+    baseline's cuts (quantiles checked against numpy) the shift shows. Ordinal patterns (Bandt & Pompe 2002)
+    ignore level, so with --ordinal the two batches are the same symbols and no change can be found.
+    """
+    from fractalseq.sources import shared_quantile_edges
+
+    rng = np.random.default_rng(7)
+    x = np.zeros(20_000)
+    for t in range(1, x.size):
+        x[t] = 0.6 * x[t - 1] + rng.standard_normal()
+    base, new = tmp_path / "base.csv", tmp_path / "new.csv"
+    base.write_text("level\n" + "\n".join(f"{v:.6f}" for v in x) + "\n")
+    new.write_text("level\n" + "\n".join(f"{v + 0.8 * x.std():.6f}" for v in x) + "\n")
+    edges = shared_quantile_edges([base], 4)
+    assert np.allclose(edges, np.quantile(np.round(x, 6), [0.25, 0.5, 0.75]))
+    run = lambda *args: subprocess.run(CLI + ["drift", str(base), str(new), "-q", "-f", "numeric", "--permutations", "99", *args], capture_output=True, text=True)  # noqa: E731
+    shifted = run("--json")
+    assert shifted.returncode == 1, shifted.stderr
+    data = json.loads(shifted.stdout)
+    assert data["changed"] is True and "baseline's 4-quantiles" in data["notes"][0]
+    patterns = run("--ordinal", "3", "--json")
+    assert patterns.returncode == 0, patterns.stderr
+    assert json.loads(patterns.stdout)["changed"] is False

@@ -106,6 +106,44 @@ def test_a_model_learned_on_one_log_scores_the_next(tmp_path: Path, capsys):
     assert code == 0 and "never saw" in out and "aborted" in out
 
 
+def test_models_keep_the_symbolization_of_their_training_data(tmp_path: Path, capsys):
+    """Several logs are learned over the union of their templates; numeric cut points travel with the model.
+
+    Invented data. Numeric: a series and the same series shifted up; the model cuts at the training
+    quantiles (checked against numpy), so the shifted series gets other symbols, while reading it with
+    its own quantiles gives the training symbols back.
+    """
+    a = "\n".join(f"svc a {i}" if i % 2 else f"svc b {i}" for i in range(400)) + "\n"
+    b = "\n".join(f"svc c {i}" if i % 2 else f"svc a {i}" for i in range(400)) + "\n"
+    (tmp_path / "a.log").write_text(a)
+    (tmp_path / "b.log").write_text(b)
+    logm = tmp_path / "logs.npz"
+    code, out, _ = run(capsys, "learn", tmp_path / "a.log", tmp_path / "b.log", "-f", "log", "-o", logm, "--json", "-q")
+    assert code == 0
+    assert sorted(json.loads(out)["alphabet"]["symbols"]) == ["svc a <num>", "svc b <num>", "svc c <num>"]
+
+    rng = np.random.default_rng(3)
+    x = np.sin(np.arange(4000) / 7.0) + 0.3 * rng.standard_normal(4000)
+    (tmp_path / "x.csv").write_text("v\n" + "\n".join(f"{v:.6f}" for v in x) + "\n")
+    (tmp_path / "y.csv").write_text("v\n" + "\n".join(f"{v + 5:.6f}" for v in x) + "\n")
+    numm = tmp_path / "num.npz"
+    assert run(capsys, "learn", tmp_path / "x.csv", "-f", "numeric", "-o", numm, "-q")[0] == 0
+    from fractalseq.modelfile import read_header
+
+    cuts = read_header(numm)["reader"]["thresholds"]
+    assert np.allclose(cuts, np.quantile(np.round(x, 6), [0.25, 0.5, 0.75]))
+    code, out, _ = run(capsys, "score", tmp_path / "x.csv", "-f", "numeric", "--model", numm, "--json", "-q")
+    same = json.loads(out)["sources"][0]
+    code, out, _ = run(capsys, "score", tmp_path / "y.csv", "-f", "numeric", "--model", numm, "--json", "-q")
+    shifted = json.loads(out)["sources"][0]
+    # cut at its own quartiles (--thresholds overrides the model's cuts) the shifted series is the training series again
+    own_cuts = ",".join(f"{c + 5:.6f}" for c in cuts)
+    code, out, _ = run(capsys, "score", tmp_path / "y.csv", "-f", "numeric", "--model", numm, "--thresholds", own_cuts, "--json", "-q")
+    own = json.loads(out)["sources"][0]
+    assert code == 0 and own["bits_per_symbol"] == same["bits_per_symbol"]
+    assert shifted["bits_per_symbol"] != same["bits_per_symbol"] and shifted["alphabet"] == same["alphabet"]
+
+
 def test_score_json_contract_online_with_several_sources(files: Path, capsys):
     code, out, _ = run(capsys, "score", "--online", files / "train.fa", files / "test.fa", "--json", "-q")
     assert code == 0

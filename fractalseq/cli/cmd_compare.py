@@ -178,16 +178,19 @@ def _cell(v) -> str:
 
 
 # ===================================================================== drift
-def _batch(spec: str, fmt: str, alphabet: str, policy: str, chunk: int | None = None):
-    """A batch argument: a file, folder, quoted glob, @list file, or - (standard input)."""
-    from fractalseq.cli.inputs import open_input
+def _batch_specs(spec: str):
+    """The inputs of a batch argument: a file, folder, quoted glob, @list file, or - (standard input)."""
     from fractalseq.survey import expand_inputs
 
     if spec.startswith("@"):
-        specs = expand_inputs([], spec[1:], sys.stdin.read().splitlines() if spec == "@-" else None)
-    else:
-        specs = expand_inputs([spec])
-    return [open_input(s.path, fmt, alphabet, policy, name=s.name) for s in specs]
+        return expand_inputs([], spec[1:], sys.stdin.read().splitlines() if spec == "@-" else None)
+    return expand_inputs([spec])
+
+
+def _open_batch(specs, fmt: str, alphabet: str, policy: str, reader: dict):
+    from fractalseq.cli.inputs import open_input
+
+    return [open_input(s.path, fmt, alphabet, policy, name=s.name, **reader) for s in specs]
 
 
 def drift(
@@ -201,6 +204,10 @@ def drift(
     permutations: int = typer.Option(999, "--permutations", "-R", min=19, help="Block permutations; the smallest possible p-value is 1/(R+1)."),
     alpha: float = typer.Option(0.05, "--alpha", help="Level of the verdict (exit status 1 when the smallest adjusted p-value is below it)."),
     adjust: str = typer.Option("holm", "--adjust", help="Adjustment across the figures tested: holm or bh (Benjamini-Hochberg)."),
+    column: Optional[str] = common.COLUMN,
+    bins: int = common.BINS,
+    thresholds: Optional[str] = common.THRESHOLDS,
+    ordinal: int = common.ORDINAL,
     figures: str = typer.Option("words,transitions,entropy_rate,D2", "--figures", help="Comma-separated figures to test: words, transitions, entropy_rate, D2."),
     top: int = typer.Option(10, "--top", min=0, help="How many contributing words and contexts to list."),
     ratio: float = common.RATIO,
@@ -222,7 +229,10 @@ def drift(
     dependence within streams, and are adjusted across figures (Holm by default).
     The first line is the verdict; the evidence follows: statistics, effect sizes,
     and the words and contexts that contribute most. Log inputs (--format log) are
-    compared over the union of both batches' templates.
+    compared over the union of both batches' templates. Numeric inputs binned by
+    quantiles are cut at the baseline's quantiles for both batches (so a shift in
+    level changes the symbols); --thresholds fixes the cut points, --ordinal
+    compares ordinal patterns, which ignore level and scale.
 
     Exit status: 0 no change detected, 1 changed (smallest adjusted p < --alpha),
     2 usage or input error. Drift reports on logs are no security guarantee.
@@ -240,11 +250,17 @@ def drift(
         from fractalseq.outputs import prepare_folder
 
         prepare_folder(out, force)
-    base_streams = _batch(baseline, fmt, alphabet, policy)
-    new_streams = _batch(new, fmt, alphabet, policy)
+    from fractalseq.cli.inputs import reader_options, shared_numeric_cuts
+
+    base_specs, new_specs = _batch_specs(baseline), _batch_specs(new)
+    reader, cut_note = shared_numeric_cuts([s.path for s in base_specs], fmt, reader_options(column, bins, thresholds, ordinal), bins)
+    base_streams = _open_batch(base_specs, fmt, alphabet, policy, reader)
+    new_streams = _open_batch(new_specs, fmt, alphabet, policy, reader)
     with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
         result = drift_test(base_streams, new_streams, options, eng, on_done=lambda i, r: bar.advance(task))
+    if cut_note:
+        result.notes.insert(0, cut_note)
     if out is not None:
         from fractalseq.drift import write_outputs
 
@@ -272,6 +288,10 @@ def scan(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
+    column: Optional[str] = common.COLUMN,
+    bins: int = common.BINS,
+    thresholds: Optional[str] = common.THRESHOLDS,
+    ordinal: int = common.ORDINAL,
     ratio: float = common.RATIO,
     out: Optional[Path] = common.OUT,
     json_out: bool = common.JSON,
@@ -292,7 +312,7 @@ def scan(
 
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
-    from fractalseq.cli.inputs import read_input
+    from fractalseq.cli.inputs import read_input, reader_options
     from fractalseq.scan import scan_stream
 
     pen: float | str = "bic" if penalty == "bic" else _number(penalty)
@@ -302,7 +322,7 @@ def scan(
         prepare_folder(out, force)
     with common.progress(quiet) as bar:
         task = bar.add_task("reading", total=2)
-        arr = read_input(path, fmt, alphabet, policy)
+        arr = read_input(path, fmt, alphabet, policy, **reader_options(column, bins, thresholds, ordinal))
         bar.update(task, advance=1, description="scanning")
         result = scan_stream(arr, window, step, depth, ratio, pen, seed)
         bar.advance(task)

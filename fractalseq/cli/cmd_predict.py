@@ -92,6 +92,24 @@ def _model_params(depths, max_depth, smoothing, max_cells, strands) -> dict:
     }
 
 
+def _is_templates(alphabet) -> bool:
+    return getattr(alphabet, "name", None) == "templates"
+
+
+def _training_alphabet(paths: list[str], fmt: str, alphabet: str, policy: str, reader: dict):
+    """The alphabet to read the training files with: the union of their log templates when they are logs."""
+    if len(paths) < 2 or fmt not in ("log", "auto"):
+        return alphabet
+    from fractalseq.distances import joint_alphabet
+
+    if "-" in paths:
+        return alphabet
+    streams = [open_input(p, fmt, alphabet, policy, **reader) for p in paths]
+    if not all(_is_templates(s.alphabet) for s in streams):
+        return alphabet
+    return joint_alphabet([s.alphabet for s in streams])
+
+
 # ------------------------------------------------------------------- learn
 def learn(
     paths: List[str] = typer.Argument(..., help="Training files (FASTA/FASTQ/text/log/numeric, optionally compressed); - reads standard input."),
@@ -99,6 +117,10 @@ def learn(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
+    column: Optional[str] = common.COLUMN,
+    bins: int = common.BINS,
+    thresholds: Optional[str] = common.THRESHOLDS,
+    ordinal: int = common.ORDINAL,
     depths: Optional[str] = DEPTHS,
     depth: Optional[int] = DEPTH,
     old_max_depth: Optional[int] = OLD_MAX_DEPTH,
@@ -118,6 +140,9 @@ def learn(
     the cells exceed --max-cells, the rarest cells of the deepest depths are
     pruned first, and the summary says how many. The order of the fixed-order
     Markov baseline shown by 'score' is chosen here, on the training data.
+    Several logs are read over the union of their templates; numeric inputs
+    binned by quantiles are cut at the quantiles of all training files. The
+    model keeps that symbolization, and 'score' reads new data with it.
 
     Example: fractalseq learn strainA.fna.gz strainB.fna.gz -o kleb.npz
     """
@@ -126,15 +151,19 @@ def learn(
     from fractalseq.predict import CellPredictor, baseline_orders
     from fractalseq.words import WordCounter
 
+    from fractalseq.cli.inputs import reader_options, shared_numeric_cuts
+
     check_writable(out, force)
     max_depth = _deepest(depth, old_max_depth, quiet)
     model = CellPredictor(**_model_params(depths, max_depth, smoothing, max_cells, strands), discount=_discount(discount))
+    reader, _ = shared_numeric_cuts(list(paths), fmt, reader_options(column, bins, thresholds, ordinal), bins)
+    read_alpha = _training_alphabet(list(paths), fmt, alphabet, policy, reader)
     counter = None
     reports = []
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
         for p in paths:
-            stream = open_input(p, fmt, alphabet, policy)
+            stream = open_input(p, "log" if _is_templates(read_alpha) else fmt, read_alpha, policy, **reader)
             if counter is None:
                 a = stream.alphabet
                 ladder, _ = model._validate(a)
@@ -152,6 +181,7 @@ def learn(
     if wc.length == 0:
         raise InputError("The training inputs hold no usable symbols; check the files and the --alphabet/--format options.")
     model.fit_counts(wc)
+    model.reader_ = {k: (list(v) if isinstance(v, tuple) else v) for k, v in reader.items()}
     model.save(out, force=force)
     rows = [
         {"depth": n, "cells": int(model.cells_[n].size), "observations": int(model.counts_[n].sum(dtype=np.int64))}
@@ -225,6 +255,10 @@ def score(
     max_cells: Optional[int] = MAX_CELLS,
     learning_rate: float = LEARNING_RATE,
     strands: str = STRANDS,
+    column: Optional[str] = common.COLUMN,
+    bins: int = common.BINS,
+    thresholds: Optional[str] = common.THRESHOLDS,
+    ordinal: int = common.ORDINAL,
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
 ) -> None:
@@ -239,7 +273,9 @@ def score(
     hindsight on the file itself with --online) and lzma/bz2/zlib on the same
     symbols (as text and packed). The model options (--depths ... --strands)
     apply to --online only. Exit status 2 for unusable input, e.g. data whose
-    alphabet differs from the model's.
+    alphabet differs from the model's. With a model, data are read with the
+    model's symbolization (its log templates, its numeric cut points) unless
+    --column/--bins/--thresholds/--ordinal say otherwise.
 
     Example: fractalseq score --online genome.fna.xz --window 50000 --json
     """
@@ -252,13 +288,18 @@ def score(
         read_alpha = alphabet if alphabet is not None else fitted.alphabet_
     else:
         read_alpha = alphabet if alphabet is not None else "dna"
+    from fractalseq.cli.inputs import reader_options
+
+    reader = reader_options(column, bins, thresholds, ordinal)
+    if fitted is not None and not reader:
+        reader = {k: (tuple(v) if isinstance(v, list) else v) for k, v in fitted.reader_.items()}
     params = _model_params(depths, _deepest(depth, old_max_depth, quiet), smoothing, max_cells, strands)
     params["learning_rate"] = learning_rate
     results = []
     with common.progress(quiet) as bar:
         task = bar.add_task("scoring", total=len(paths))
         for p in paths:
-            stream = open_input(p, fmt, read_alpha, policy)
+            stream = open_input(p, fmt, read_alpha, policy, **reader)
             if fitted is not None:
                 res = fitted.evaluate(stream, window=window)
             else:

@@ -4,10 +4,12 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from typing import Optional
+
 import typer
 
 from fractalseq.cli import common
-from fractalseq.cli.inputs import read_input
+from fractalseq.cli.inputs import read_input, reader_options
 from fractalseq.errors import ParameterError
 
 
@@ -19,6 +21,10 @@ def render(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
+    column: Optional[str] = common.COLUMN,
+    bins: int = common.BINS,
+    thresholds: Optional[str] = common.THRESHOLDS,
+    ordinal: int = common.ORDINAL,
     drop: int = typer.Option(20, "--drop", help="Points dropped at each segment start (the transient remembering the start)."),
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,
@@ -37,7 +43,7 @@ def render(
         raise ParameterError(f"{out} does not end in .png; render writes PNG images.")
     check_writable(out, force)
     k = encoding.check_ratio(ratio)
-    arr = read_input(path, fmt, alphabet, policy)
+    arr = read_input(path, fmt, alphabet, policy, **reader_options(column, bins, thresholds, ordinal))
     corners = encoding.corner_layout(arr.alphabet.size)
     check = encoding.overlap_check(k, corners)
     pts = encoding.points(arr, k, drop=max(0, drop))

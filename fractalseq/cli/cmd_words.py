@@ -9,7 +9,7 @@ import typer
 from rich.table import Table
 
 from fractalseq.cli import common
-from fractalseq.cli.inputs import open_input
+from fractalseq.cli.inputs import open_input, reader_options
 from fractalseq.errors import InputError
 from fractalseq.outputs import check_writable, to_json
 
@@ -20,6 +20,10 @@ def count(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
+    column: Optional[str] = common.COLUMN,
+    bins: int = common.BINS,
+    thresholds: Optional[str] = common.THRESHOLDS,
+    ordinal: int = common.ORDINAL,
     save: Optional[Path] = typer.Option(None, "--save", help="Write the merged counts to this .npz file (loads without pickle)."),
     top: int = typer.Option(0, "--top", help="Also list the TOP most frequent words at the deepest depth (0 = none)."),
     json_out: bool = common.JSON,
@@ -45,7 +49,7 @@ def count(
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
         for p in paths:
-            stream = open_input(p, fmt, alphabet, policy)
+            stream = open_input(p, fmt, alphabet, policy, **reader_options(column, bins, thresholds, ordinal))
             if counter is None:
                 counter = WordCounter(stream.alphabet, depth, parallel=True)
             elif not counter.alphabet.same_symbols(stream.alphabet):

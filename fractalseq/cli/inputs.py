@@ -45,6 +45,37 @@ def reader_options(column: str | None, bins: int = DEFAULT_BINS, thresholds: str
     return opts
 
 
+def shared_numeric_cuts(baseline: list[str], fmt: str, reader: dict, bins: int = DEFAULT_BINS) -> tuple[dict, str]:
+    """Reader options that cut every batch at the baseline's quantiles when the input is numeric and binned.
+
+    Returns the options to read both batches with and a note for the report
+    (empty when nothing changed: not numeric, fixed thresholds, or ordinal patterns).
+    """
+    from fractalseq.sources import detect_format, shared_quantile_edges
+
+    if not baseline or "thresholds" in reader or reader.get("ordinal"):
+        return reader, ""
+    kind = fmt
+    if fmt == "auto" and baseline[0] != "-":
+        from fractalseq.errors import FractalseqError
+
+        try:
+            kind = detect_format(baseline[0])
+        except FractalseqError:
+            return reader, ""  # reading the batch will say what is wrong
+    if kind != "numeric":
+        return reader, ""
+    edges = shared_quantile_edges(baseline, int(reader.get("bins", bins)), reader.get("column"))
+    out = {k: v for k, v in reader.items() if k != "bins"}
+    out["thresholds"] = tuple(float(e) for e in edges)
+    note = (
+        f"numeric batches cut at the baseline's {len(edges) + 1}-quantiles ("
+        + ", ".join(f"{e:.6g}" for e in edges)
+        + ") so that a shift in level changes the symbols"
+    )
+    return out, note
+
+
 def read_input(path: str, fmt: str, alphabet: str, policy: str, **options) -> SymbolArray:
     """Open and read one input into memory, refusing an input with no symbols."""
     arr = open_input(path, fmt, alphabet, policy, **options).to_array()

@@ -40,18 +40,20 @@ symbol at all) are raised while the stream is iterated.  All are
 from __future__ import annotations
 
 import os
-from typing import Iterator
+from typing import Iterator, Sequence
+
+import numpy as np
 
 from fractalseq import alphabet as _alpha
 from fractalseq.alphabet import Alphabet, check_policy
-from fractalseq.errors import ParameterError
+from fractalseq.errors import InputError, ParameterError
 from fractalseq.sources import logs, numeric, sequence, sniff, text
 from fractalseq.sources.rawio import Origin, head, locate
 from fractalseq.sources.sniff import FORMATS
 from fractalseq.sources.templates import line_template
 from fractalseq.stream import DEFAULT_CHUNK, Chunk, ReadReport, SymbolStream
 
-__all__ = ["FORMATS", "detect_format", "line_template", "open_source"]
+__all__ = ["FORMATS", "detect_format", "line_template", "open_source", "shared_quantile_edges"]
 
 _LEARN_BLOCK = 1 << 16
 
@@ -240,11 +242,7 @@ def open_source(
 
     if fmt == "numeric":
         numeric.check_parameters(bins, thresholds, ordinal)
-        sample = block.decode("utf-8", errors="replace").split("\n")
-        if len(block) >= (1 << 16) and len(sample) > 1:
-            sample = sample[:-1]
-        layout = numeric.detect_layout(sample)
-        layout = numeric.choose_column(layout, sample, column, origin.name)
+        layout = _numeric_layout(origin, block, column)
         plan, info = numeric.plan(origin, layout, bins, thresholds, ordinal, learn_block)
 
         def numeric_factory(report: ReadReport) -> Iterator[Chunk]:
@@ -254,6 +252,36 @@ def open_source(
         return SymbolStream(plan.alphabet, numeric_factory, stream_name)
 
     raise ParameterError(f"Format {fmt!r} is not known; use one of {', '.join(FORMATS)}.")  # pragma: no cover
+
+
+def _numeric_layout(origin: Origin, block: bytes, column: str | int | None) -> "numeric.Layout":
+    """Delimiter, header and column of a numeric input, from its first block."""
+    sample = block.decode("utf-8", errors="replace").split("\n")
+    if len(block) >= (1 << 16) and len(sample) > 1:
+        sample = sample[:-1]
+    layout = numeric.detect_layout(sample)
+    return numeric.choose_column(layout, sample, column, origin.name)
+
+
+def shared_quantile_edges(paths: Sequence[str | os.PathLike], bins: int = 4, column: str | int | None = None) -> np.ndarray:
+    """Equal-frequency bin edges of the pooled values of several numeric inputs.
+
+    Used to symbolize two batches with the same cut points (the baseline's),
+    so that a shift in level changes the symbols; each file's own quantiles
+    would hide it.  Reads every value of the files once (8 bytes a value).
+    """
+    numeric.check_parameters(bins, None, 0)
+    parts = []
+    for path in paths:
+        if str(path) == "-":
+            raise ParameterError("Shared bin edges need the baseline as files (standard input is read only once); give files or --thresholds.")
+        origin, _, block = _prepare(path, "numeric", None, False)
+        layout = _numeric_layout(origin, block, column)
+        parts.extend(v[np.isfinite(v)] for v in numeric.value_blocks(origin, layout, _LEARN_BLOCK))
+    values = np.concatenate(parts) if parts else np.zeros(0)
+    if values.size == 0:
+        raise InputError("The baseline holds no numbers in the chosen column; check the files or --column.")
+    return np.quantile(values, np.arange(1, bins) / bins)
 
 
 def _byte_stream(origin: Origin, layout: str, a: Alphabet, policy: str, chunk_size: int, stream_name: str, begin) -> SymbolStream:
