@@ -33,6 +33,25 @@ def markov_table():
     return arr, consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=4)
 
 
+def test_reusing_the_spectrum_pass_gives_the_same_table(markov_table):
+    """The profile hands the table the spectrum's conditional rates and depth limit; nothing may change.
+
+    Same blocks and seed, so the same replicates: the rows must equal those computed from scratch.
+    """
+    from fractalseq.consistency import RateResult
+    from fractalseq.spectrum import dimension_spectrum
+
+    arr, _ = markov_table
+    spec = dimension_spectrum(arr, (0.0, 1.0, 2.0, 3.0), n_boot=60, seed=1, rates=True)
+    info = RateResult(tuple(r for r in spec.rates if r.q in (0.0, 1.0, 2.0)), spec.block, 60, 1, len(arr))
+    reused = consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=0, block_length=spec.block,
+                               information=info, levels=spec.data_limit)
+    fresh = consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=0, block_length=spec.block)
+    assert to_json([r.to_dict() for r in reused.rows]) == to_json([r.to_dict() for r in fresh.rows])
+    with pytest.raises(ParameterError, match="another stream"):
+        consistency_table(from_codes(BIN, arr.codes[: len(arr) // 2]), qs=(0, 1, 2), n_boot=0, information=info)
+
+
 def test_stationary_markov_chain_is_consistent(markov_table):
     """Theory: D_q log2(1/k) = h_q for non-overlapping maps; both sides agree for a stationary chain."""
     _, res = markov_table
