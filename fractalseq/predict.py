@@ -1012,9 +1012,17 @@ class CellPredictor:
             raise ModelFileError(
                 f"The model was learned on the {self.alphabet_.name} alphabet ({self.alphabet_.describe_symbols(6)}) "
                 f"but {where} uses {alphabet.name} ({alphabet.describe_symbols(6)}); "
-                f"read it with --alphabet {self.alphabet_.name if self.alphabet_.name != 'learned' else 'symbols:...'} "
-                "or learn a model on this kind of data."
+                + self._reading_hint()
             )
+
+    def _reading_hint(self) -> str:
+        """How to read data the way the training data were read (for the mismatch message)."""
+        name = self.alphabet_.name
+        if name.startswith(("threshold", "quantile", "ordinal")):
+            return "read it with the model's numeric settings (leave out --bins/--thresholds/--ordinal) or learn a model on this kind of data."
+        if name == "templates":
+            return "read it as a log (--format log) or learn a model on this kind of data."
+        return f"read it with --alphabet {name if name != 'learned' else 'symbols:...'} or learn a model on this kind of data."
 
     def score(self, source: Source) -> float:
         """Bits per symbol of held-out data under the fitted model (lower is better)."""
