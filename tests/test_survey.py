@@ -290,3 +290,33 @@ def test_an_interrupted_survey_prunes_nothing(tmp_path):
     assert _entries(tmp_path / "cache") >= before  # the earlier run's entries are still there
     done = run_survey(specs[2:], SurveyOptions(depth=6, seed=3), cache=cache, prune_cache=True)
     assert done.cache_pruned == 2 and len(_entries(tmp_path / "cache")) == 1
+
+
+def test_common_cuts_compare_levels_as_well_as_dynamics(tmp_path, capsys):
+    """--common-cuts cuts every source at the pooled quantiles (numpy), so a source at a higher level changes symbols.
+
+    Invented data: two fictional buoys with the same i.i.d. salinity noise, the second 2 units saltier.
+    Each cut at its own terciles, both are i.i.d. uniform over 3 symbols (log2 3 bits, common practice);
+    cut at the pooled terciles, the saltier one sits mostly in the top bin and its entropy rate drops.
+    """
+    from fractalseq.cli.app import main
+
+    a = _write_buoy_csv(tmp_path / "low.csv", 5)
+    rng = np.random.default_rng(5)
+    hi = 37 + rng.normal(size=6000)
+    lines = ["hour,tide_m,salinity"] + [f"{k % 24},0.0,{s:.4f}" for k, s in enumerate(hi)]
+    (tmp_path / "high.csv").write_text("\n".join(lines) + "\n")
+    files = [str(tmp_path / "low.csv"), str(tmp_path / "high.csv")]
+    base = ["survey", *files, "-f", "numeric", "--column", "salinity", "--bins", "3", "-q", "--json"]
+    capsys.readouterr()
+    assert main(base) == 0
+    own = {s["name"]: s for s in json.loads(capsys.readouterr().out)["sources"]}
+    assert main(base + ["--common-cuts"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    pooled = {s["name"]: s for s in doc["sources"]}
+    edges = pooled["high.csv"]["profile"]["input"]["numeric"]["edges"]
+    assert edges == pytest.approx(np.quantile(np.concatenate([a, np.round(hi, 4)]), [1 / 3, 2 / 3]), abs=1e-9)
+    h = lambda d, n: d[n]["entropy_rate_bits"]["grassberger"]["estimate"]  # noqa: E731
+    assert abs(h(own, "high.csv") - np.log2(3)) < 0.02 and abs(h(own, "low.csv") - np.log2(3)) < 0.02
+    assert h(pooled, "high.csv") < 1.3 and h(pooled, "low.csv") < 1.3
+    assert main(base + ["--common-cuts", "--ordinal", "3"]) == 2

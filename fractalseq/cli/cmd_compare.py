@@ -46,6 +46,9 @@ def survey(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    common_cuts: bool = typer.Option(
+        False, "--common-cuts", help="numeric input: cut every source at the quantiles of all sources pooled (levels compared), not each at its own (only dynamics compared)."
+    ),
     depth: Optional[int] = typer.Option(None, "--depth", "-n", min=2, help="Deepest word length (symbols) of each profile; default: automatic, as in fractalseq profile."),
     ratio: float = common.RATIO,
     distance_depth: Optional[int] = typer.Option(None, "--distance-depth", min=1, help="Word length n of the Jensen-Shannon distances (symbols); default: largest n with A^n x 20 <= shortest source, at most 8."),
@@ -80,7 +83,10 @@ def survey(
     options are removed (a folder given with --cache is never pruned). --json prints
     the JSON contract (sources, distances) on standard output. Numeric inputs take the
     reader options of fractalseq profile (--column, --bins, --thresholds, --ordinal),
-    applied to every source. Genomic output is for research, not for clinical decisions.
+    applied to every source; by default each source is cut at its own quantiles
+    (equally likely symbols: sources compared by their dynamics), with --common-cuts
+    all at the pooled quantiles (a source at a higher level then gets other symbols).
+    Genomic output is for research, not for clinical decisions.
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
     """
@@ -92,6 +98,14 @@ def survey(
     reader = reader_options(column, bins, thresholds, ordinal)
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
     specs = expand_inputs(list(paths or []), from_list, stdin_lines)
+    if common_cuts:
+        from fractalseq.cli.inputs import shared_numeric_cuts
+
+        if "thresholds" in reader or reader.get("ordinal"):
+            raise ParameterError("--common-cuts sets the cut points itself; leave out --thresholds and --ordinal.")
+        reader, _ = shared_numeric_cuts([str(s.path) for s in specs], fmt, reader, bins)
+        if "thresholds" not in reader:
+            raise ParameterError("--common-cuts applies to numeric input only; add --format numeric or leave it out.")
     if out is not None:
         prepare_folder(out, force)  # the hidden .cache folder of an interrupted run does not count
     own_cache = False  # OUT/.cache belongs to this survey and is pruned when it completes
