@@ -51,6 +51,12 @@ from fractalseq.words import WordCounts, count_words
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
 #: Deepest word length stored per source for the distances (capped by the alphabet's address width).
+#: Sources drawn in colour with a legend in the overlaid spectra (more: thin lines, no legend).
+LABELLED_SOURCES = 12
+#: Sources named on the dendrogram and heat map axes (more: unlabelled, fixed-size figures).
+NAMED_LEAVES = 60
+#: Sources whose distance matrices are shown as tables in survey.html (more: distances.csv only).
+MATRIX_IN_PAGE = 40
 STORE_DEPTH = 8
 #: Cap on the number of possible words A**n stored per source.
 STORE_WORDS = 1 << 20
@@ -598,6 +604,7 @@ def spectra_png(result: SurveyResult) -> bytes:
     """D_q against q for every source, overlaid (intervals as bands)."""
     from fractalseq.report.figures import PALETTE, figure, fig_to_png, short, style
 
+    crowded = len(result.sources) > LABELLED_SOURCES
     with style():
         fig, ax = figure(7.6, 4.6)
         drawn = False
@@ -608,6 +615,9 @@ def spectra_png(result: SurveyResult) -> bytes:
             drawn = True
             q = np.array([float(d["q"]) for d in dims])
             est = np.array([float(d["estimate"]) for d in dims])
+            if crowded:  # many sources: thin lines of one colour, no bands or legend
+                ax.plot(q, est, color="#0b6e69", lw=0.8, alpha=max(0.08, min(0.6, 12.0 / len(result.sources))))
+                continue
             color = PALETTE[i % len(PALETTE)]
             ax.plot(q, est, marker="o", color=color, label=short(s["name"], 28))
             lo = np.array([np.nan if d.get("low") is None else float(d["low"]) for d in dims])
@@ -616,8 +626,8 @@ def spectra_png(result: SurveyResult) -> bytes:
                 ax.fill_between(q, lo, hi, color=color, alpha=0.15, lw=0)
         ax.set_xlabel("order q")
         ax.set_ylabel("D_q")
-        ax.set_title("Rényi dimension spectra")
-        if drawn:  # no source may have an estimate (all too short): then there is nothing to label
+        ax.set_title("Rényi dimension spectra" + (f" of {len(result.sources)} sources" if crowded else ""))
+        if drawn and not crowded:  # no source may have an estimate (all too short): then there is nothing to label
             ax.legend(loc="best", fontsize=8)
         return fig_to_png(fig)
 
@@ -628,12 +638,14 @@ def dendrogram_png(result: SurveyResult) -> bytes:
 
     from fractalseq.report.figures import figure, fig_to_png, short, style
 
+    n = len(result.names)
+    named = n <= NAMED_LEAVES  # beyond that the leaves are too many to label; the CSV and JSON name them
     with style():
-        fig, ax = figure(7.6, max(3.0, 0.32 * len(result.names) + 1.5))
+        fig, ax = figure(7.6, max(3.0, 0.32 * n + 1.5) if named else 12.0)
         if result.clustering.linkage.shape[0]:
             dendrogram(
-                result.clustering.linkage, labels=[short(n, 32) for n in result.names], orientation="right",
-                ax=ax, color_threshold=0, above_threshold_color="#0b6e69",
+                result.clustering.linkage, labels=[short(nm, 32) for nm in result.names] if named else None,
+                no_labels=not named, orientation="right", ax=ax, color_threshold=0, above_threshold_color="#0b6e69",
             )
         ax.set_xlabel("Jensen–Shannon distance (bits^½)")
         ax.set_title(f"Clustering ({result.clustering.method} linkage), depth-{result.js_depth} words")
@@ -647,12 +659,17 @@ def heatmap_png(result: SurveyResult) -> bytes:
 
     order = result.clustering.order or list(range(len(result.names)))
     m = result.js[np.ix_(order, order)]
-    labels = [result.names[i] for i in order]
+    labels = [result.names[i] for i in order] if len(order) <= NAMED_LEAVES else None
     return _heat(m, labels, f"Jensen–Shannon divergence, depth-{result.js_depth} words", "bits")
 
 
-def html_report(result: SurveyResult):
-    """The survey as an :class:`~fractalseq.report.html.HtmlReport` (sortable tables, figures)."""
+def html_report(result: SurveyResult, figures: dict[str, bytes] | None = None):
+    """The survey as an :class:`~fractalseq.report.html.HtmlReport` (sortable tables, figures).
+
+    ``figures`` (``spectra``, ``heatmap``, ``dendrogram`` PNG bytes) are drawn here when not given.
+    Distance matrices of more than :data:`MATRIX_IN_PAGE` sources are left to ``distances.csv``.
+    """
+    figs = dict(figures or {})
     from fractalseq.report.html import HtmlReport
 
     n = len(result.sources)
@@ -667,17 +684,20 @@ def html_report(result: SurveyResult):
     header, rows = result.table()
     page.table(header, rows, sortable=True, caption="Per-source figures")
     page.section("Spectra")
-    page.figure(spectra_png(result), "D_q against q for every source (bands: intervals).", "Overlaid D_q spectra")
+    page.figure(figs.get("spectra") or spectra_png(result), "D_q against q for every source (bands: intervals).", "Overlaid D_q spectra")
     page.section("Distances")
     page.paragraph(
         f"Jensen–Shannon divergence (bits, 0 to 1) between the depth-{result.js_depth} word distributions; "
         "clustering uses its square root, which is a metric."
     )
-    page.table(["source"] + list(result.names), [[nm] + list(r) for nm, r in zip(result.names, result.js.tolist())], caption="Jensen–Shannon divergence (bits)")
-    page.table(["source"] + list(result.names), [[nm] + list(r) for nm, r in zip(result.names, result.spectrum.tolist())], caption="RMS distance between D_q spectra")
+    if len(result.names) <= MATRIX_IN_PAGE:
+        page.table(["source"] + list(result.names), [[nm] + list(r) for nm, r in zip(result.names, result.js.tolist())], caption="Jensen–Shannon divergence (bits)")
+        page.table(["source"] + list(result.names), [[nm] + list(r) for nm, r in zip(result.names, result.spectrum.tolist())], caption="RMS distance between D_q spectra")
+    else:
+        page.paragraph(f"The {n} × {n} distance matrices are in distances.csv and survey.json (too large for this page).")
     if len(result.names) >= 2:
-        page.figure(heatmap_png(result), "Jensen–Shannon divergences, rows and columns in dendrogram order.", "Distance heat map")
-        page.figure(dendrogram_png(result), "Hierarchical clustering of the sources.", "Dendrogram")
+        page.figure(figs.get("heatmap") or heatmap_png(result), "Jensen–Shannon divergences, rows and columns in dendrogram order.", "Distance heat map")
+        page.figure(figs.get("dendrogram") or dendrogram_png(result), "Hierarchical clustering of the sources.", "Dendrogram")
     if result.notes:
         page.section("Notes")
         page.note("", result.notes)
@@ -693,10 +713,11 @@ def write_outputs(result: SurveyResult, folder: Path, force: bool = False) -> li
     header, rows = result.table()
     written.append(write_csv(folder / "survey.csv", header, rows, force=force))
     written.append(write_csv(folder / "distances.csv", ["source"] + list(result.names), [[nm] + list(r) for nm, r in zip(result.names, result.js.tolist())], force=force))
-    written.append(write_bytes(folder / "spectra.png", spectra_png(result), force=force))
+    figs = {"spectra": spectra_png(result)}  # drawn once, written as PNG files and embedded in the page
     if len(result.names) >= 2:
-        written.append(write_bytes(folder / "heatmap.png", heatmap_png(result), force=force))
-        written.append(write_bytes(folder / "dendrogram.png", dendrogram_png(result), force=force))
-    written.append(write_text(folder / "survey.html", html_report(result).render(), force=force))
+        figs["heatmap"], figs["dendrogram"] = heatmap_png(result), dendrogram_png(result)
+    for name, png in figs.items():
+        written.append(write_bytes(folder / f"{name}.png", png, force=force))
+    written.append(write_text(folder / "survey.html", html_report(result, figs).render(), force=force))
     written.append(write_text(folder / "survey.json", result.to_json(), force=force))
     return written

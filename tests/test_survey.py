@@ -320,3 +320,30 @@ def test_common_cuts_compare_levels_as_well_as_dynamics(tmp_path, capsys):
     assert abs(h(own, "high.csv") - np.log2(3)) < 0.02 and abs(h(own, "low.csv") - np.log2(3)) < 0.02
     assert h(pooled, "high.csv") < 1.3 and h(pooled, "low.csv") < 1.3
     assert main(base + ["--common-cuts", "--ordinal", "3"]) == 2
+
+
+def test_a_large_survey_keeps_its_report_readable_and_small(tmp_path):
+    """61 sources: spectra without legend, unlabelled fixed-size heat map and dendrogram, matrices left to the CSV.
+
+    (Before, figure sizes grew with the number of sources: 300 sources needed 6 GB to draw.)
+    """
+    import struct
+
+    from fractalseq.engine import SerialEngine
+    from fractalseq.survey import MATRIX_IN_PAGE, NAMED_LEAVES, SurveyOptions, expand_inputs, run_survey, write_outputs
+
+    n = NAMED_LEAVES + 1
+    assert n > NAMED_LEAVES and n > MATRIX_IN_PAGE
+    for i in range(n):
+        _write_fasta(tmp_path / f"s{i:02d}.fa", _chain(i % 7), 2000, 100 + i)
+    res = run_survey(expand_inputs([str(tmp_path / "*.fa")]), SurveyOptions(seed=0, depth=4), SerialEngine())
+    written = write_outputs(res, tmp_path / "out")
+    html = (tmp_path / "out" / "survey.html").read_text()
+    assert f"The {n} × {n} distance matrices are in distances.csv" in html
+    rows = (tmp_path / "out" / "distances.csv").read_text().splitlines()
+    assert len(rows) == n + 1 and len(rows[1].split(",")) == n + 1
+    for name in ("heatmap.png", "dendrogram.png", "spectra.png"):
+        head = (tmp_path / "out" / name).read_bytes()[:24]
+        w, h = struct.unpack(">II", head[16:24])  # PNG IHDR: width and height in pixels
+        assert w <= 1400 and h <= 1400, (name, w, h)
+    assert len(html) < 2_000_000 and len(written) == 7

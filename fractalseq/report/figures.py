@@ -377,22 +377,30 @@ def entropy_png(
 # ------------------------------------------------------- general purpose
 def heatmap_png(
     matrix: np.ndarray,
-    labels: Sequence[str],
+    labels: Sequence[str] | None,
     title: str,
     colorbar_label: str,
     col_labels: Sequence[str] | None = None,
 ) -> bytes:
-    """A labelled matrix (e.g. distances between sources) with a colour bar."""
+    """A labelled matrix (e.g. distances between sources) with a colour bar.
+
+    ``labels=None``: a large matrix drawn at a fixed size without tick labels (rows/columns by index).
+    """
     m = np.asarray(matrix, float)
-    cols = list(col_labels) if col_labels is not None else list(labels)
-    size = max(4.5, 0.35 * max(m.shape) + 3)
+    named = labels is not None
+    cols = list(col_labels) if col_labels is not None else (list(labels) if named else [])
+    size = max(4.5, 0.35 * max(m.shape) + 3) if named else 9.0
     with style():
         fig, ax = figure(size + 1.2, size)
         cmap = density_cmap()
         im = ax.imshow(m, cmap=cmap, interpolation="nearest", aspect="auto")
         ax.grid(False)
-        ax.set_xticks(range(len(cols)), [short(c, 20) for c in cols], rotation=60, ha="right")
-        ax.set_yticks(range(len(labels)), [short(c, 20) for c in labels])
+        if named:
+            ax.set_xticks(range(len(cols)), [short(c, 20) for c in cols], rotation=60, ha="right")
+            ax.set_yticks(range(len(labels)), [short(c, 20) for c in labels])
+        else:
+            ax.set_xlabel("source (dendrogram order)")
+            ax.set_ylabel("source (dendrogram order)")
         cb = fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03)
         cb.set_label(colorbar_label)
         ax.set_title(title)
