@@ -804,9 +804,11 @@ def h_compressors(data, alphabet_size: int | None = None, max_length: int | None
         if b <= pb:
             layouts[f"{pb}-bit"] = _pack(codes, pb)
             break
-    filters = [{"id": lzma.FILTER_LZMA2, "preset": 9 | lzma.PRESET_EXTREME}]
     sizes: dict[str, int] = {}
     for name, raw in layouts.items():
+        # preset 9 extreme, with the dictionary no larger than the input (same output, far less set-up)
+        dict_size = min(max(4096, len(raw)), 1 << 26)
+        filters = [{"id": lzma.FILTER_LZMA2, "preset": 9 | lzma.PRESET_EXTREME, "dict_size": dict_size}]
         sizes[f"lzma/{name}"] = len(lzma.compress(raw, format=lzma.FORMAT_RAW, filters=filters))
         sizes[f"bz2/{name}"] = len(bz2.compress(raw, 9))
         sizes[f"zlib/{name}"] = len(zlib.compress(raw, 9))
