@@ -11,6 +11,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from fractalseq.errors import InputError
 from fractalseq.sources import line_template, open_source
@@ -210,3 +212,44 @@ def test_a_log_of_blank_lines_is_refused(tmp_path):
     path.write_text("   \n\n \n")
     with pytest.raises(InputError, match="only blank lines"):
         open_source(path, fmt="log")
+
+
+_FRAGMENTS = [
+    "Jun", "01", "Sat", "2013", "02:17:42", "02:17:42.372", "2026-01-08", "T00:00:05", "Z", "+0200", "-0700",
+    "10/Oct/2000:13:55:36", "11-Aug-2013", "1700000000", "1700000000123", "194.117.26.69", ":8080", "::1",
+    "[2001:db8::1]:443", "fe80::2", "aa:bb:cc:dd:ee:ff", "0x1f", "deadbeef12", "abc123def456", "/var/log/x.log",
+    "user@example.org", "http://h/p?q=1", '"quoted text"', "'single'", "don't", "ssh2", "-12.5", "5.7.1",
+    "sshd[31602]:", "error", "=", ",", ";", "(", ")", "[", "]", " ", "  ", "\t", "\u00a0", "é",
+]
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.lists(st.sampled_from(_FRAGMENTS), max_size=14).map("".join), min_size=1, max_size=12))
+def test_templates_of_a_block_equal_templates_line_by_line(lines):
+    """Masking many lines joined by newlines gives each line's own template (no mask crosses a line end)."""
+    from fractalseq.sources.templates import line_templates
+
+    assert line_templates(lines) == [line_template(ln) for ln in lines]
+
+
+def test_block_templates_of_the_reference_logs_equal_line_by_line():
+    from fractalseq.sources.templates import line_templates
+
+    for name in SHA:
+        lines = (LOGS / name).read_text(encoding="utf-8", errors="replace").splitlines()
+        assert line_templates(lines) == [line_template(ln) for ln in lines]
+
+
+@pytest.mark.parametrize("name", ["named-refused.log", "testcase04.log"])
+def test_second_pass_from_kept_templates_equals_masking_again(name, monkeypatch):
+    """Logs longer than the keep limit are masked again on every pass; the symbols and report are the same."""
+    import fractalseq.sources.logs as logs_mod
+
+    path = LOGS / name
+    kept = open_source(path, fmt="log", chunk_size=200)
+    a = kept.to_array()
+    monkeypatch.setattr(logs_mod, "_KEEP_LINES", 3)
+    again = open_source(path, fmt="log", chunk_size=200)
+    b = again.to_array()
+    assert np.array_equal(a.codes, b.codes) and np.array_equal(a.starts, b.starts)
+    assert kept.report.to_dict() == again.report.to_dict()

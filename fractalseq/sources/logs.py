@@ -1,6 +1,7 @@
 """Line-oriented event logs: each line becomes the symbol of its template.
 
-Every non-blank line is reduced by :func:`fractalseq.sources.templates.line_template`;
+Every non-blank line is reduced by :func:`fractalseq.sources.templates.line_template`
+(block by block, :func:`~fractalseq.sources.templates.line_templates`);
 each distinct template is one symbol.  The alphabet (named ``templates``) is
 learned in a first pass: templates by decreasing count, ties by template text.
 Blank lines are skipped (counted in a note).  The log must be UTF-8: a line
@@ -25,7 +26,7 @@ import numpy as np
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError
 from fractalseq.sources.rawio import Origin, line_blocks
-from fractalseq.sources.templates import line_template
+from fractalseq.sources.templates import line_templates
 from fractalseq.stream import Chunk, ReadReport, Record
 
 _EXAMPLE_CHARS = 500
@@ -45,6 +46,11 @@ class TemplateTable:
     blank: int
     fixed: bool = False
     unlisted: list[dict] | None = None
+    #: the first pass's result per non-blank line, kept so that later passes need no masking:
+    #: ``seen[ids[i]]`` is the template of the i-th non-blank line, ``numbers[i]`` its line number
+    seen: list[str] | None = None
+    ids: np.ndarray | None = None
+    numbers: np.ndarray | None = None
 
     def to_list(self) -> list[dict]:
         """JSON-ready copy of the entries (template, count, first_line, example)."""
@@ -68,27 +74,58 @@ def _lines(origin: Origin, block_size: int) -> Iterator[tuple[int, list[str]]]:
         yield first_line, [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
 
 
-def _tally(origin: Origin, block_size: int) -> tuple[dict[str, int], dict[str, tuple[int, str]], int, int]:
-    """Count the templates of a log and remember where each first occurs."""
+#: Logs with more non-blank lines than this are masked again on every pass instead of keeping
+#: the first pass's template per line (12 bytes a line).
+_KEEP_LINES = 1 << 27
+
+
+@dataclass
+class _Tally:
+    counts: dict[str, int]
+    first: dict[str, tuple[int, str]]
+    total: int
+    blank: int
+    seen: list[str]
+    ids: np.ndarray | None
+    numbers: np.ndarray | None
+
+
+def _tally(origin: Origin, block_size: int) -> _Tally:
+    """Count the templates of a log, remember where each first occurs and (up to a size) each line's template."""
     counts: dict[str, int] = {}
     first: dict[str, tuple[int, str]] = {}
+    seen_id: dict[str, int] = {}
+    ids: list[np.ndarray] | None = []
+    numbers: list[np.ndarray] | None = []
+    kept_lines = 0
     blank = 0
     total = 0
     for first_line, lines in _lines(origin, block_size):
-        for j, line in enumerate(lines):
-            total += 1
-            if not line.strip():
-                blank += 1
-                continue
-            t = line_template(line)
+        kept = [j for j, line in enumerate(lines) if line.strip()]
+        total += len(lines)
+        blank += len(lines) - len(kept)
+        block_ids = np.empty(len(kept), dtype=np.int32)
+        for k, (j, t) in enumerate(zip(kept, line_templates([lines[j] for j in kept]))):
             if t in counts:
                 counts[t] += 1
             else:
                 counts[t] = 1
-                first[t] = (first_line + j, line[:_EXAMPLE_CHARS])
+                first[t] = (first_line + j, lines[j][:_EXAMPLE_CHARS])
+                seen_id[t] = len(seen_id)
+            block_ids[k] = seen_id[t]
+        kept_lines += len(kept)
+        if ids is not None and numbers is not None:
+            if kept_lines > _KEEP_LINES:
+                ids = numbers = None
+            else:
+                ids.append(block_ids)
+                numbers.append(first_line + np.asarray(kept, dtype=np.int64))
     if not counts:
         raise InputError(f"{origin.name} holds no log lines (only blank lines); give a log with events.")
-    return counts, first, total, blank
+    return _Tally(
+        counts, first, total, blank, list(seen_id),
+        np.concatenate(ids) if ids is not None else None, np.concatenate(numbers) if numbers is not None else None,
+    )
 
 
 def _entry(t: str, counts: dict[str, int], first: dict[str, tuple[int, str]]) -> dict:
@@ -98,9 +135,12 @@ def _entry(t: str, counts: dict[str, int], first: dict[str, tuple[int, str]]) ->
 
 def learn(origin: Origin, block_size: int) -> TemplateTable:
     """First pass: the templates of the log, by decreasing count (ties by text), as its alphabet."""
-    counts, first, total, blank = _tally(origin, block_size)
-    order = sorted(counts, key=lambda t: (-counts[t], t))
-    return TemplateTable(Alphabet("templates", tuple(order)), [_entry(t, counts, first) for t in order], total, blank)
+    ty = _tally(origin, block_size)
+    order = sorted(ty.counts, key=lambda t: (-ty.counts[t], t))
+    return TemplateTable(
+        Alphabet("templates", tuple(order)), [_entry(t, ty.counts, ty.first) for t in order], ty.total, ty.blank,
+        seen=ty.seen, ids=ty.ids, numbers=ty.numbers,
+    )
 
 
 def fixed(origin: Origin, alphabet: Alphabet, block_size: int) -> TemplateTable:
@@ -109,13 +149,25 @@ def fixed(origin: Origin, alphabet: Alphabet, block_size: int) -> TemplateTable:
     Lines whose template the alphabet does not list are read under the
     reader's policy (break, skip or error) and named in ``unlisted``.
     """
-    counts, first, total, blank = _tally(origin, block_size)
+    ty = _tally(origin, block_size)
     listed = set(alphabet.symbols)
-    others = sorted((t for t in counts if t not in listed), key=lambda t: (-counts[t], t))
+    others = sorted((t for t in ty.counts if t not in listed), key=lambda t: (-ty.counts[t], t))
     return TemplateTable(
-        alphabet, [_entry(t, counts, first) for t in alphabet.symbols], total, blank, True,
-        [_entry(t, counts, first) for t in others],
+        alphabet, [_entry(t, ty.counts, ty.first) for t in alphabet.symbols], ty.total, ty.blank, True,
+        [_entry(t, ty.counts, ty.first) for t in others], ty.seen, ty.ids, ty.numbers,
     )
+
+
+def _template_blocks(origin: Origin, table: TemplateTable, block_size: int) -> Iterator[tuple[np.ndarray, list[str]]]:
+    """``(line numbers, templates)`` of the non-blank lines, block by block: from the first pass when it kept them."""
+    if table.ids is not None and table.seen is not None and table.numbers is not None:
+        step = max(1, block_size // 64)  # about a block of lines
+        for a in range(0, table.ids.size, step):
+            yield table.numbers[a : a + step], [table.seen[i] for i in table.ids[a : a + step]]
+        return
+    for first_line, lines in _lines(origin, block_size):
+        kept = [j for j, ln in enumerate(lines) if ln.strip()]
+        yield first_line + np.asarray(kept, dtype=np.int64), line_templates([lines[j] for j in kept])
 
 
 def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadReport, policy: str = "break") -> Iterator[Chunk]:
@@ -126,9 +178,9 @@ def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadRe
     index = {t: i for i, t in enumerate(table.alphabet.symbols)}
     dtype = table.alphabet.code_dtype
     total = 0
-    for _, lines in _lines(origin, block_size):
+    for _, templates in _template_blocks(origin, table, block_size):
         try:
-            codes = np.fromiter((index[line_template(ln)] for ln in lines if ln.strip()), dtype=dtype)
+            codes = np.fromiter((index[t] for t in templates), dtype=dtype, count=len(templates))
         except KeyError:
             raise InputError(f"{origin.name} changed while it was read; read it again.") from None
         if codes.size:
@@ -152,9 +204,7 @@ def _fixed_chunks(origin: Origin, table: TemplateTable, block_size: int, report:
     scan = item_scanner(table.alphabet, policy)
     total = segments = 0
     dropped: dict[str, int] = {}
-    for first_line, lines in _lines(origin, block_size):
-        numbers = [first_line + j for j, ln in enumerate(lines) if ln.strip()]
-        templates = [line_template(ln) for ln in lines if ln.strip()]
+    for numbers, templates in _template_blocks(origin, table, block_size):
         codes, starts, drops, err = scan(templates)
         if err >= 0:
             raise InputError(

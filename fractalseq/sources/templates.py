@@ -41,7 +41,7 @@ from __future__ import annotations
 
 import re
 
-__all__ = ["PLACEHOLDERS", "has_timestamp", "line_template"]
+__all__ = ["PLACEHOLDERS", "has_timestamp", "line_template", "line_templates"]
 
 PLACEHOLDERS: tuple[str, ...] = (
     "<str>",
@@ -63,12 +63,12 @@ _DAY = r"(?:Mon|Tue|Wed|Thu|Fri|Sat|Sun)"
 _ISO = (
     r"(?<![\w.])\d{4}([-/])\d{2}\1\d{2}"
     r"(?:[T ]\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?)?"
-    r"(?:\s?(?:Z|[+-]\d{2}:?\d{2})(?![\w]))?"
+    r"(?:[^\S\n]?(?:Z|[+-]\d{2}:?\d{2})(?![\w]))?"
 )
-_CLF = r"\d{1,2}/" + _MONTH + r"/\d{4}:\d{2}:\d{2}:\d{2}(?:\s[+-]\d{4})?"
+_CLF = r"\d{1,2}/" + _MONTH + r"/\d{4}:\d{2}:\d{2}:\d{2}(?:[^\S\n][+-]\d{4})?"
 _SYSLOG = (
-    r"(?:" + _DAY + r",?\s+)?" + _MONTH + r"\s+\d{1,2},?\s+\d{2}:\d{2}:\d{2}(?:[.,]\d+)?"
-    r"(?:\s+\d{4}(?!\d))?"
+    r"(?:" + _DAY + r",?[^\S\n]+)?" + _MONTH + r"[^\S\n]+\d{1,2},?[^\S\n]+\d{2}:\d{2}:\d{2}(?:[.,]\d+)?"
+    r"(?:[^\S\n]+\d{4}(?!\d))?"
 )
 _DMY = r"(?<![\w.])\d{1,2}[-/ ]" + _MONTH + r"[-/ ]\d{4}(?:[ T:]\d{2}:\d{2}:\d{2}(?:[.,]\d+)?)?"
 _CLOCK = r"(?<![\w:.])\d{1,2}:\d{2}:\d{2}(?:[.,]\d+)?(?![\w:])"
@@ -111,6 +111,24 @@ _RULES: tuple[tuple[re.Pattern[str], str], ...] = tuple(
 )
 
 _STAMP = re.compile(r"(?:" + _CLF + r"|" + _ISO + r"|" + _SYSLOG + r"|" + _DMY + r"|" + _EPOCH + r"|@[0-9a-f]{24})")
+
+
+def line_templates(lines: list[str]) -> list[str]:
+    """Templates of many lines at once (each mask runs once over the block): the same as :func:`line_template` per line.
+
+    No mask can match a line end (whitespace in the patterns is ``[^\\S\\n]``,
+    and the look-arounds treat a line end like the start or end of a line), so
+    masking the lines joined by newlines gives each line's own template.
+    """
+    if not lines:
+        return []
+    text = "\n".join(ln.rstrip("\r\n") for ln in lines)
+    for pattern, repl in _RULES:
+        text = pattern.sub(repl, text)
+    out = [t.strip() for t in text.split("\n")]
+    if len(out) != len(lines):  # a line holding a line end of its own: mask line by line
+        return [line_template(ln) for ln in lines]
+    return out
 
 
 def line_template(line: str) -> str:
