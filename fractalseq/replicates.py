@@ -124,8 +124,9 @@ def _spectra(row_ptr, blocks, counts, n_blocks, wt, cap, dense, big_rows):
     """Replicate count spectra.
 
     ``wt`` is ``(n_blocks, R)`` block weights.  Fills ``dense[r, v]`` (items
-    with count ``v < cap`` in replicate ``r``) and returns ``big`` (``(k, R)``
-    replicate counts of the items that may reach ``cap``).
+    with count ``v < cap`` in replicate ``r``) and the rows of ``big_rows``
+    (replicate counts of the items that may reach ``cap``, sized by
+    :func:`_count_big`); returns how many such rows it wrote.
     """
     m = row_ptr.shape[0] - 1
     R = wt.shape[1]
