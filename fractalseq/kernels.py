@@ -166,40 +166,6 @@ def _lcp_symbols(x, key_bits, unused, bits, depth):
 
 
 @njit(cache=True, nogil=True)
-def compact_runs(keys, cnt, depth, bits, key_bits):
-    """Collapse a sorted key array in place into its unique words; return their number and the prefix histogram.
-
-    After the call ``keys[:m]`` are the unique words and ``cnt[:m]`` their
-    counts (``cnt`` at least as long as ``keys``).  ``lcp_hist[l]`` counts
-    consecutive unique words sharing exactly ``l`` leading symbols, so the
-    number of distinct n-word prefixes is ``1 + lcp_hist[:n].sum()``: every
-    depth's box count from the same pass.  One pass, count-leading-zeros for
-    the shared prefix, four interleaved histograms (no store-to-load stalls).
-    ``key_bits`` is the width of the key type (the symbols sit in its low
-    ``bits * depth`` bits).
-    """
-    n = keys.shape[0]
-    hist = np.zeros((4, depth + 1), dtype=np.int64)
-    if n == 0:
-        return 0, hist[0]
-    skip = 64 - bits * depth  # leading bits of a uint64 that hold no symbol
-    j = 0
-    run_start = 0
-    cur = np.uint64(keys[0])
-    for i in range(1, n):
-        a = np.uint64(keys[i])
-        if a != cur:
-            cnt[j] = i - run_start
-            run_start = i
-            hist[i & 3, (_clz64(a ^ cur) - skip) // bits] += 1
-            j += 1
-            keys[j] = keys[i]
-            cur = a
-    cnt[j] = n - run_start
-    return j + 1, hist[0] + hist[1] + hist[2] + hist[3]
-
-
-@njit(cache=True, nogil=True)
 def count_runs(sorted_keys):
     """Number of distinct values in a sorted array."""
     n = sorted_keys.shape[0]
@@ -212,11 +178,17 @@ def count_runs(sorted_keys):
 
 @njit(cache=True, nogil=True)
 def write_runs(sorted_keys, uniq, cnt, depth, bits):
-    """Like :func:`compact_runs` but into ``uniq``/``cnt`` (sized by :func:`count_runs`), leaving the keys as they are."""
+    """Unique words of sorted keys into ``uniq``, their counts into ``cnt``; returns ``(m, lcp_hist)``.
+
+    One pass; the shared prefix of neighbours comes from count-leading-zeros,
+    and the histogram is kept in four interleaved copies so that consecutive
+    increments of one bin do not wait on each other.  ``uniq`` may be
+    ``sorted_keys`` itself (see :func:`compact_runs`).
+    """
     n = sorted_keys.shape[0]
     hist = np.zeros((4, depth + 1), dtype=np.int64)
     if n == 0:
-        return hist[0]
+        return 0, hist[0]
     skip = 64 - bits * depth
     j = 0
     run_start = 0
@@ -232,7 +204,22 @@ def write_runs(sorted_keys, uniq, cnt, depth, bits):
             uniq[j] = sorted_keys[i]
             cur = a
     cnt[j] = n - run_start
-    return hist[0] + hist[1] + hist[2] + hist[3]
+    return j + 1, hist[0] + hist[1] + hist[2] + hist[3]
+
+
+@njit(cache=True, nogil=True)
+def compact_runs(keys, cnt, depth, bits, key_bits):
+    """Collapse a sorted key array in place into its unique words; return their number and the prefix histogram.
+
+    After the call ``keys[:m]`` are the unique words and ``cnt[:m]`` their
+    counts (``cnt`` at least as long as ``keys``).  ``lcp_hist[l]`` counts
+    consecutive unique words sharing exactly ``l`` leading symbols, so the
+    number of distinct n-word prefixes is ``1 + lcp_hist[:n].sum()``: every
+    depth's box count from the same pass (:func:`write_runs` writing over
+    its own input, which is safe: a word is written at or before where it
+    was read).  ``key_bits`` is the width of the key type.
+    """
+    return write_runs(keys, keys, cnt, depth, bits)
 
 
 def runs_with_lcp(sorted_keys, depth, bits, key_bits):

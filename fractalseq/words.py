@@ -432,7 +432,7 @@ def _sorted_runs_threaded(codes, starts, depth, bits, keys, n_low, threads: int 
         def write(i: int) -> np.ndarray:
             lo, hi = parts[i]
             a, b = offsets[i], offsets[i + 1]
-            return kernels.write_runs(keys[lo:hi], uniq[a:b], cnt[a:b], depth, bits)
+            return kernels.write_runs(keys[lo:hi], uniq[a:b], cnt[a:b], depth, bits)[1]
 
         hists = list(pool.map(write, order))
     lcp = np.sum(hists, axis=0) if hists else np.zeros(depth + 1, np.int64)
