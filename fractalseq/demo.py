@@ -86,7 +86,7 @@ def run_demo(
     seed: int = 7,
     length: int = 120_000,
     log_lines: int = 6_000,
-    workers: int = 2,
+    workers: int = 1,
     force: bool = False,
     step: Callable[[str], None] | None = None,
 ) -> DemoResult:
@@ -117,6 +117,10 @@ def run_demo(
 
     t0 = time.perf_counter()
     say = step or (lambda s: None)
+    # On a first run the numba kernels are compiled before they are cached; the predictor's are the
+    # largest, so a second process compiles them while this one surveys (they are loaded from the cache
+    # when the predictor steps come).  Once cached, this costs a process start on the other core.
+    warm = _start_predictor_warmup()
     out = prepare_folder(folder, force=True) if Path(folder).is_dir() and not any(Path(folder).iterdir()) else prepare_folder(folder, force)
     say("simulating the invented scenario")
     sc = scen.generate(out / "data", seed=seed, length=length, log_lines=log_lines, force=force)
@@ -184,6 +188,7 @@ def run_demo(
 
     # 4. predictor on the log stream against lzma
     say("coding the relay log with the predictor")
+    _finish_warmup(warm)
     pred = online_code_length(new)
     raw = Path(sc.logs.new).read_bytes()
     # lzma on the event codes, one byte per event (the same symbols the predictor sees)
@@ -217,6 +222,40 @@ def run_demo(
     files.append(write_json(out / "demo.json", result.to_dict(), force=force))
     files.append(write_text(out / "index.html", index_page(result, out).render(), force=force))
     return DemoResult(sc, tuple(rows), tuple(str(p) for p in files), seconds, tuple(notes))
+
+
+def warm_predictor() -> None:  # pragma: no cover - runs in the warm-up process
+    """Compile (and cache) the predictor kernels the demo uses, on a few invented symbols."""
+    import numpy as np
+
+    from fractalseq import alphabet as al
+    from fractalseq.predict import CellPredictor, online_code_length
+    from fractalseq.stream import from_codes
+
+    rng = np.random.default_rng(0)
+    dna = from_codes(al.dna(), rng.integers(0, 4, 3000))
+    events = from_codes(al.from_symbols([f"event {i}" for i in range(12)], name="templates"), rng.integers(0, 12, 3000))
+    for arr in (dna, events):
+        online_code_length(arr)
+    CellPredictor().fit(events).evaluate(events)
+
+
+def _start_predictor_warmup():
+    import multiprocessing
+
+    try:
+        proc = multiprocessing.get_context("spawn").Process(target=warm_predictor, daemon=True)
+        proc.start()
+        return proc
+    except OSError:  # no process to spare: the predictor steps compile for themselves
+        return None
+
+
+def _finish_warmup(proc) -> None:
+    if proc is not None:
+        proc.join(timeout=300)
+        if proc.is_alive():
+            proc.terminate()
 
 
 def index_page(result: DemoResult, folder: Path):

@@ -666,15 +666,16 @@ _DENSE_DISTINCT = 1 << 28
 
 
 @njit(cache=True)
-def _distinct_words(codes, starts, n, A, dense):
+def _distinct_words(codes, starts, n, A, dense, out):
     """Number of distinct n-words (base-A addresses) not spanning a segment start.
 
-    With ``dense`` the ``A**n`` possible words are marked in a byte table;
-    otherwise the words are sorted.
+    With ``dense`` the ``A**n`` possible words are marked in a byte table and
+    their number returned; otherwise the words are written to ``out`` and
+    ``-(k + 1)`` returned for the caller to count the distinct ones among
+    ``out[:k]`` (numpy's sort, not numba's, which takes seconds to compile).
     """
     L = codes.shape[0]
     space = A**n
-    out = np.empty(0 if dense else max(L - n + 1, 0), np.int64)
     seen = np.zeros(space if dense else 0, np.uint8)
     k = 0
     distinct = 0
@@ -698,9 +699,15 @@ def _distinct_words(codes, starts, n, A, dense):
                     k += 1
         pos = end
         seg += 1
-    if dense:
-        return distinct
-    return np.unique(out[:k]).size
+    return distinct if dense else -k - 1  # sparse: the caller counts the distinct words of out[:k]
+
+
+def distinct_words(codes: np.ndarray, starts: np.ndarray, n: int, A: int) -> int:
+    """Number of distinct n-words of base-A codes not spanning a segment start (a byte table, or a sort)."""
+    dense = A**n <= _DENSE_DISTINCT
+    out = np.empty(0 if dense else max(codes.size - n + 1, 0), np.int64)
+    r = int(_distinct_words(codes, starts, n, A, dense, out))
+    return r if r >= 0 else int(np.unique(out[: -r - 1]).size)
 
 
 def h_topological_koslicki(data, alphabet_size: int | None = None) -> EntropyEstimate:
@@ -739,7 +746,7 @@ def h_topological_koslicki(data, alphabet_size: int | None = None) -> EntropyEst
     prefix = A**n + n - 1
     st = starts[(starts >= 0) & (starts < prefix)]
     st = np.unique(np.concatenate([[0], st])).astype(np.int64)
-    p = int(_distinct_words(np.ascontiguousarray(codes[:prefix]).astype(np.int64), st, n, A, A**n <= _DENSE_DISTINCT))
+    p = distinct_words(np.ascontiguousarray(codes[:prefix]).astype(np.int64), st, n, A)
     frac = math.log(p) / math.log(A) / n if p > 0 else 0.0
     notes = [f"prefix of {prefix} symbols (A^n + n - 1) of {L}"]
     if st.size > 1:

@@ -384,7 +384,8 @@ def chaos_points(codes, starts, corners, ratio, origin):
     nseg = starts.shape[0]
     for t in range(n):
         if si < nseg and starts[si] == t:
-            x[:] = origin
+            for d in range(dim):  # element by element: a slice assignment compiles numba's broadcasting checks
+                x[d] = origin[d]
             si += 1
         c = codes[t]
         for d in range(dim):

@@ -510,7 +510,7 @@ class OnlineCoder:
         else:
             K.online_dense(
                 codes, starts, c["A"], c["b"], c["depth"], c["direct"], c["rbits"], c["offset"], self.limit,
-                self.alpha, c["ir_on"], c["masks"], c["comp"], self.logt, self.lr, self.counts, self.tags,
+                self.alpha, c["ir_on"], c["masks"], c["comp"], self.logt, self.lr, self.counts, self.counts.reshape(-1), self.tags,
                 self.totals, self.weights, self.hist, self.seg, self.stats, self.calib, sur,
             )
         return sur if surprisal else None

@@ -473,13 +473,15 @@ def online_packed(codes, starts, A, b, depth, direct, rbits, offset, limit, ir_o
 # ------------------------------------------------------------- dense rows
 @njit(cache=True)
 def online_dense(codes, starts, A, b, depth, direct, rbits, offset, limit, alpha, ir_on, masks, comp, logt,
-                 lr, counts, tags, totals, weights, hist, seg, stats, calib, sur):
+                 lr, counts, cflat, tags, totals, weights, hist, seg, stats, calib, sur):
     """Predict-then-update over one chunk with dense rows (any alphabet).
 
     Same as :func:`online_packed` (and the same results for ``A <= 4``), with
-    the rows split into ``counts`` (uint16 ``(rows, A)``), ``tags`` (uint16)
-    and ``totals`` (uint32); ``alpha`` gives ``log(c + alpha_i)`` for counts
-    beyond the log table.
+    the rows split into ``counts`` (uint16 ``(rows, A)``; ``cflat`` is the
+    same memory flattened, passed in because a reshape here would compile
+    numba's broadcasting error paths, seconds of first-run time), ``tags``
+    (uint16) and ``totals`` (uint32); ``alpha`` gives ``log(c + alpha_i)``
+    for counts beyond the log table.
     """
     n = codes.shape[0]
     M = depth.shape[0]
@@ -497,7 +499,6 @@ def online_dense(codes, starts, A, b, depth, direct, rbits, offset, limit, alpha
     lin = np.zeros((M, A), np.float64)
     ps = np.zeros(A, np.float64)
     keep = sur.shape[0] == n
-    cflat = counts.reshape(counts.shape[0] * A)
     H = hist[0]
     R = hist[1]
     Ls = seg[0]

@@ -423,7 +423,7 @@ def test_block_bootstrap_interval_for_rates():
         E.bootstrap_rate(E.h_compressors(x, 2), arr)
 
 
-def test_distinct_word_count_dense_table_equals_sorting():
+def test_distinct_word_count_dense_table_equals_sorting(monkeypatch):
     """Koslicki's distinct-word count: the byte-table path and the sorting path agree with ``len(set(...))``."""
     rng = np.random.default_rng(8)
     codes = rng.integers(0, 3, 4000).astype(np.int64)
@@ -433,4 +433,5 @@ def test_distinct_word_count_dense_table_equals_sorting():
         for i in range(a, b - 5 + 1):
             words.add(tuple(codes[i : i + 5]))
     for dense in (True, False):
-        assert E._distinct_words(codes, starts, 5, 3, dense) == len(words)
+        monkeypatch.setattr(E, "_DENSE_DISTINCT", 1 if not dense else 1 << 28)
+        assert E.distinct_words(codes, starts, 5, 3) == len(words)

@@ -14,7 +14,7 @@ def demo(
     out: Path = typer.Option(Path("fractalseq-demo"), "--out", "-o", help="Report folder (created; must be empty unless --force)."),
     seed: int = typer.Option(7, "--seed", help="Seed of the simulated scenario and every random step; same seed, same bytes."),
     length: int = typer.Option(120_000, "--length", min=5_000, help="Bases per simulated sample."),
-    workers: int = typer.Option(2, "--workers", "-w", min=1, help="Local worker processes for the survey (1 = serial)."),
+    workers: int = typer.Option(1, "--workers", "-w", min=1, help="Local worker processes for the survey (1 = serial: the demo's samples are small, so starting workers costs more than it saves)."),
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,
