@@ -241,21 +241,26 @@ def warm_predictor() -> None:  # pragma: no cover - runs in the warm-up process
 
 
 def _start_predictor_warmup():
-    import multiprocessing
+    """Start :func:`warm_predictor` in a silent child interpreter (``None`` if no process can be started)."""
+    import subprocess
+    import sys
 
     try:
-        proc = multiprocessing.get_context("spawn").Process(target=warm_predictor, daemon=True)
-        proc.start()
-        return proc
+        return subprocess.Popen(
+            [sys.executable, "-c", "from fractalseq.demo import warm_predictor; warm_predictor()"],
+            stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+        )
     except OSError:  # no process to spare: the predictor steps compile for themselves
         return None
 
 
 def _finish_warmup(proc) -> None:
     if proc is not None:
-        proc.join(timeout=300)
-        if proc.is_alive():
-            proc.terminate()
+        try:
+            proc.wait(timeout=300)
+        except Exception:  # noqa: BLE001 - a stuck warm-up only costs the compile it would have saved
+            proc.kill()
+            proc.wait()
 
 
 def index_page(result: DemoResult, folder: Path):
