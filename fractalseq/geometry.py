@@ -169,6 +169,14 @@ def _check_points(points: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(p)
 
 
+def _check_mask(valid: np.ndarray | None, n: int) -> np.ndarray:
+    """The points kept: all (``valid=None``) or a boolean mask with one entry per point."""
+    keep = np.ones(n, dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
+    if keep.shape != (n,):
+        raise ParameterError("The validity mask must have one entry per point.")
+    return keep
+
+
 def _check_scale(scale: float) -> float:
     s = float(scale)
     if not (s > 0 and math.isfinite(s)):
@@ -214,9 +222,7 @@ def box_labels(
     n_boxes : number of occupied boxes
     """
     p = _check_points(points)
-    keep = np.ones(p.shape[0], dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
-    if keep.shape != (p.shape[0],):
-        raise ParameterError("The validity mask must have one entry per point.")
+    keep = _check_mask(valid, p.shape[0])
     labels, counts = _labels_and_counts(p, _check_scale(scale), offset, origin, keep, unit_cube, period)
     return labels.astype(np.int64, copy=False), int(counts.size)
 
@@ -313,9 +319,7 @@ def box_counts(
 ) -> np.ndarray:
     """Number of points in each occupied box (boxes in lexicographic order); see :func:`box_labels`."""
     p = _check_points(points)
-    keep = np.ones(p.shape[0], dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
-    if keep.shape != (p.shape[0],):
-        raise ParameterError("The validity mask must have one entry per point.")
+    keep = _check_mask(valid, p.shape[0])
     return _labels_and_counts(p, _check_scale(scale), offset, origin, keep, unit_cube, period)[1]
 
 
@@ -343,8 +347,7 @@ def transient_mask(arr: SymbolArray, drop: int) -> np.ndarray:
 def default_scales(points: np.ndarray, valid: np.ndarray | None = None, starve: float = sp.STARVE) -> np.ndarray:
     """Box sides ``extent * 2**-j``, j = 1, 2, ... one past the first scale starved of data."""
     p = _check_points(points)
-    keep = np.ones(p.shape[0], dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
-    q = p[keep]
+    q = p[_check_mask(valid, p.shape[0])]
     if q.shape[0] == 0:
         raise InputError("There are no points to count (all masked or empty input).")
     extent = float((q.max(axis=0) - q.min(axis=0)).max())
@@ -429,9 +432,7 @@ def geometric_spectrum(
     sp.check_boot(n_boot, level, interval, scheme)
     p = _check_points(points)
     T, D = p.shape
-    keep = np.ones(T, dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
-    if keep.shape != (T,):
-        raise ParameterError("The validity mask must have one entry per point.")
+    keep = _check_mask(valid, T)
     n_used = int(keep.sum())
     if n_used < 2:
         raise InputError("Box counting needs at least two points.")
