@@ -148,36 +148,27 @@ def learn(
     """
     import numpy as np
 
-    from fractalseq.predict import CellPredictor, baseline_orders
-    from fractalseq.words import WordCounter
-
     from fractalseq.cli.inputs import reader_options, shared_numeric_cuts
+    from fractalseq.predict import CellPredictor, baseline_orders
+    from fractalseq.words import count_inputs
 
     check_writable(out, force)
     max_depth = _deepest(depth, old_max_depth, quiet)
     model = CellPredictor(**_model_params(depths, max_depth, smoothing, max_cells, strands), discount=_discount(discount))
     reader, _ = shared_numeric_cuts(list(paths), fmt, reader_options(column, bins, thresholds, ordinal), bins)
     read_alpha = _training_alphabet(list(paths), fmt, alphabet, policy, reader)
-    counter = None
-    reports = []
+    read_fmt = "log" if _is_templates(read_alpha) else fmt
+
+    def deepest(a) -> int:  # cells and baseline orders of the model, for the first input's alphabet
+        ladder, _ = model._validate(a)
+        return max(max(ladder), baseline_orders(a)) + 1
+
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
-        for p in paths:
-            stream = open_input(p, "log" if _is_templates(read_alpha) else fmt, read_alpha, policy, **reader)
-            if counter is None:
-                a = stream.alphabet
-                ladder, _ = model._validate(a)
-                counter = WordCounter(a, max(max(ladder), baseline_orders(a)) + 1, parallel=True)
-            elif not counter.alphabet.same_symbols(stream.alphabet):
-                raise InputError(
-                    f"{p} has a different alphabet from the first input; pass one --alphabet (e.g. dna) for all inputs."
-                )
-            for chunk in stream.chunks():
-                counter.add(chunk.codes, chunk.starts)
-            counter.add(np.zeros(0, counter.alphabet.code_dtype), np.zeros(0, np.int64), final=True)
-            reports.append((p, stream.report))
-            bar.advance(task)
-    wc = counter.finish()
+        wc, reports = count_inputs(
+            ((p, open_input(p, read_fmt, read_alpha, policy, **reader)) for p in paths), deepest,
+            on_input=lambda _: bar.advance(task),
+        )
     if wc.length == 0:
         raise InputError("The training inputs hold no usable symbols; check the files and the --alphabet/--format options.")
     model.fit_counts(wc)

@@ -38,32 +38,17 @@ def count(
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
-    import numpy as np
-
-    from fractalseq.words import WordCounter  # imported here: numba makes it slow, and --help/completion need speed
+    from fractalseq.words import count_inputs  # imported here: numba makes it slow, and --help/completion need speed
 
     if save is not None:
         check_writable(save, force)
-    counter = None
-    reports = []
+    reader = reader_options(column, bins, thresholds, ordinal)
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
-        for p in paths:
-            stream = open_input(p, fmt, alphabet, policy, **reader_options(column, bins, thresholds, ordinal))
-            if counter is None:
-                counter = WordCounter(stream.alphabet, depth, parallel=True)
-            elif not counter.alphabet.same_symbols(stream.alphabet):
-                raise InputError(
-                    f"{p} has a different alphabet from the first input; pass one --alphabet (e.g. dna) for all inputs."
-                )
-            for chunk in stream.chunks():
-                counter.add(chunk.codes, chunk.starts)
-            # close the open segment: files never continue each other
-            counter.add(np.zeros(0, counter.alphabet.code_dtype), np.zeros(0, np.int64), final=True)
-            reports.append((p, stream.report))
-            bar.advance(task)
-    assert counter is not None
-    wc = counter.finish()
+        wc, reports = count_inputs(
+            ((p, open_input(p, fmt, alphabet, policy, **reader)) for p in paths), depth,
+            on_input=lambda _: bar.advance(task),
+        )
     if wc.length == 0:
         raise InputError("The inputs hold no usable symbols; check the files and the --alphabet/--format options.")
     if save is not None:
