@@ -43,13 +43,16 @@ import lzma
 import math
 import zlib
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from numba import njit
 from scipy.special import digamma
 
 from fractalseq.errors import InputError, ParameterError
+
+if TYPE_CHECKING:  # for annotations only: the bootstrap module is imported where it is used
+    from fractalseq.bootstrap import BlockLength
 
 LN2 = math.log(2.0)
 #: Plug-in block entropies need at least this many occurrences per possible word (rule 4).
@@ -550,7 +553,7 @@ def bootstrap_rate(
     n_boot: int = 200,
     seed: int = 0,
     level: float = 0.95,
-    block_length: "int | bs.BlockLength | None" = None,
+    block_length: "int | BlockLength | None" = None,
     scheme: str = "nonoverlapping",
     interval: str = "centered",
 ) -> EntropyEstimate:

@@ -199,7 +199,6 @@ def _spectra(row_ptr, blocks, counts, n_blocks, wt, cap, dense, big_rows):
 def _count_big(row_ptr, blocks, counts, n_blocks, wt, cap):
     """Number of items whose replicate count may reach ``cap`` (sizes the ``big`` table)."""
     m = row_ptr.shape[0] - 1
-    R = wt.shape[1]
     wmax = _max_weights(wt)
     k = 0
     for i in range(m):
