@@ -16,14 +16,14 @@ Sources (all encoded with k = 1/2 and hypercube corners, so D_q = h_q in bits):
 * ``dna4``: the 4-state chain of REFERENCE-CHECKS A5 (2-D encoding) -- D_0 = 2,
   D_1 = 1.901215753, D_2 = 1.841698278.
 
-Truths come from :func:`fractalseq.markov.renyi_rate` and are checked here
+Truths come from :func:`fractalseq.datasets._markov.renyi_rate` and are checked here
 against the closed forms above before anything runs.
 
 Entropy rate: two estimators are scored, the project's entropy-rate estimator
-(:func:`fractalseq.entropy.h_difference`, Grassberger-corrected
+(:func:`fractalseq.entropy._estimators.h_difference`, Grassberger-corrected
 ``H(n+1) - H(n)`` at the deepest order with ``A^(n+1) <= N/100``, interval by
-:func:`fractalseq.entropy.bootstrap_rate`) and the conditional form at the
-middle of the automatic scaling range that :func:`fractalseq.spectrum.dimension_spectrum`
+:func:`fractalseq.entropy._estimators.bootstrap_rate`) and the conditional form at the
+middle of the automatic scaling range that :func:`fractalseq.dimensions._spectrum.dimension_spectrum`
 reports with ``rates=True``.
 
 A covered check is ``low - 1e-9 <= truth <= high + 1e-9``: exact counts give
@@ -31,7 +31,7 @@ intervals of zero width (D_0 of a full shift is exactly 1), and the slack
 only absorbs floating-point rounding of such intervals.
 
 A subset of replicates also runs the geometry-vs-information table
-(:func:`fractalseq.consistency.consistency_table`); on these stationary
+(:func:`fractalseq.dimensions._consistency.consistency_table`); on these stationary
 sources every verdict should be "consistent", so the share of other
 verdicts is a false-alarm rate.
 
@@ -58,8 +58,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from fractalseq import alphabet as al  # noqa: E402
 from fractalseq import markov  # noqa: E402
-from fractalseq.outputs import write_json, write_text  # noqa: E402
-from fractalseq.spectrum import binomial_dimension, dimension_spectrum  # noqa: E402
+from fractalseq.io._outputs import write_json, write_text  # noqa: E402
+from fractalseq.dimensions._spectrum import binomial_dimension, dimension_spectrum  # noqa: E402
 from fractalseq.stream import from_codes  # noqa: E402
 
 PHI = (1 + math.sqrt(5)) / 2
@@ -113,7 +113,7 @@ def simulate(name: str, n: int, seed: int):
 def one(task: tuple) -> dict:
     """One replicate: every interval and whether it covers the truth."""
     name, rep, n, n_boot, scheme, interval, base_seed, consistency = task
-    from fractalseq import entropy
+    from fractalseq.entropy import _estimators as entropy
 
     seed = base_seed + 1000 * list(MATRICES).index(name) + rep
     arr = simulate(name, n, seed)
@@ -134,7 +134,7 @@ def one(task: tuple) -> dict:
         "estimate": r.estimate, "low": r.low, "high": r.high, "stderr": r.stderr, "order": r.order,
         "covered": bool(r.low - SLACK <= truth["h"] <= r.high + SLACK),
     }
-    from fractalseq.words import count_words
+    from fractalseq.words._counts import count_words
 
     wc = count_words(arr, 12 if arr.alphabet.size == 2 else 6)
     est = entropy.h_difference(wc)
@@ -145,7 +145,7 @@ def one(task: tuple) -> dict:
     }
     out["seconds"] = time.perf_counter() - t0
     if consistency:
-        from fractalseq.consistency import consistency_table, verdict
+        from fractalseq.dimensions._consistency import consistency_table, verdict
 
         tab = consistency_table(arr, qs=QS, ratio=0.5, n_boot=max(n_boot // 2, 50), seed=rep, offsets=4,
                                 scheme=scheme, interval=interval)

@@ -36,10 +36,10 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from fractalseq.alphabet import dna  # noqa: E402
-from fractalseq.drift import FIGURES, DriftOptions, drift_test  # noqa: E402
-from fractalseq.engine import ProcessEngine, SerialEngine  # noqa: E402
-from fractalseq.markov import simulate_markov, stationary  # noqa: E402
-from fractalseq.outputs import to_json, write_text  # noqa: E402
+from fractalseq.compare._drift import FIGURES, DriftOptions, drift_test  # noqa: E402
+from fractalseq.jobs._engines import ProcessEngine, SerialEngine  # noqa: E402
+from fractalseq.datasets._markov import simulate_markov, stationary  # noqa: E402
+from fractalseq.io._outputs import to_json, write_text  # noqa: E402
 from fractalseq.stream import from_codes  # noqa: E402
 
 LENGTH = 100_000
@@ -112,7 +112,7 @@ def main() -> int:
         "scenario": "invented: 4-symbol order-2 Markov chain, Dirichlet(5) rows, seed %d" % CHAIN_SEED,
         "length_per_batch": LENGTH,
         "change": info,
-        "test": "fractalseq.drift.drift_test defaults: depth 3, auto blocks, 999 block permutations, Holm over 4 figures, alpha 0.05",
+        "test": "fractalseq.compare._drift.drift_test defaults: depth 3, auto blocks, 999 block permutations, Holm over 4 figures, alpha 0.05",
         "size": size,
         "power": power,
         "targets": {"size_at_most": 0.06, "power_at_least": 0.80},

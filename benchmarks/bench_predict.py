@@ -39,12 +39,12 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 sys.path.insert(0, str(HERE))
 
-from fractalseq.outputs import write_json, write_text  # noqa: E402
-from fractalseq.predict import _cell_tables, online_code_length  # noqa: E402
-from fractalseq.predict_baselines import compressor_bits, kt_bits_by_order, symbol_bytes  # noqa: E402
+from fractalseq.io._outputs import write_json, write_text  # noqa: E402
+from fractalseq.predict._predictor import _cell_tables, online_code_length  # noqa: E402
+from fractalseq.predict._baselines import compressor_bits, kt_bits_by_order, symbol_bytes  # noqa: E402
 from fractalseq.sources import open_source  # noqa: E402
 from fractalseq.stream import from_codes  # noqa: E402
-from fractalseq.words import count_words  # noqa: E402
+from fractalseq.words._counts import count_words  # noqa: E402
 
 TARGET_HS = 1.875
 TARGET_ALL = 1.90
@@ -124,7 +124,7 @@ def genome_row(name: str, path: Path, repeat: int) -> dict:
 
 
 def log_rows() -> list[dict]:
-    from fractalseq import scenario
+    from fractalseq.datasets import _scenario as scenario
 
     rows = []
     with tempfile.TemporaryDirectory() as tmp:

@@ -31,10 +31,10 @@ sys.path.insert(0, str(HERE.parent))
 
 
 def run_one(path: Path, n_boot: int, seed: int) -> dict:
-    from fractalseq.profile import profile_source
+    from fractalseq.jobs._profile import profile_source
     from fractalseq.report.profile import write_profile_report
     from fractalseq.sources import open_source
-    from fractalseq.words import count_words
+    from fractalseq.words._counts import count_words
 
     t0 = time.perf_counter()
     arr = open_source(path).to_array()
@@ -90,12 +90,12 @@ def main() -> int:
     os.environ["NUMBA_NUM_THREADS"] = str(args.threads)
 
     import genomes
-    from fractalseq.profile import DEFAULT_BOOT
+    from fractalseq.jobs._profile import DEFAULT_BOOT
 
     n_boot = DEFAULT_BOOT if args.boot is None else args.boot
     paths = [("lambda", genomes.LAMBDA), (args.genome, genomes.klebsiella()[args.genome])]
     # warm-up: compile the numba kernels (cached on disk) outside the timed runs
-    from fractalseq.profile import profile_source
+    from fractalseq.jobs._profile import profile_source
     from fractalseq.sources import open_source
 
     profile_source(open_source(genomes.LAMBDA).to_array(), n_boot=20 if n_boot else 0)

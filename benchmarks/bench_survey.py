@@ -31,9 +31,9 @@ sys.path.insert(0, str(HERE))
 
 from genomes import LAMBDA, klebsiella  # noqa: E402
 
-from fractalseq.engine import ProcessEngine, SerialEngine  # noqa: E402
-from fractalseq.outputs import to_json, write_text  # noqa: E402
-from fractalseq.survey import SurveyOptions, expand_inputs, run_survey  # noqa: E402
+from fractalseq.jobs._engines import ProcessEngine, SerialEngine  # noqa: E402
+from fractalseq.io._outputs import to_json, write_text  # noqa: E402
+from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey  # noqa: E402
 
 
 def main() -> int:

@@ -80,7 +80,7 @@ def child_memory(mode: str, path: str, depth: int) -> dict:
 import json, resource, sys, numpy as np
 sys.path.insert(0, {str(Path(__file__).resolve().parent.parent)!r})
 from fractalseq.sources import open_source
-from fractalseq.words import count_words, WordCounter
+from fractalseq.words._counts import count_words, WordCounter
 from fractalseq.stream import from_codes
 from fractalseq import alphabet as al
 def rss_kb():
@@ -121,10 +121,10 @@ def main() -> None:
     import numba
 
     from fractalseq import alphabet as al
-    from fractalseq import kernels
+    from fractalseq.words import _kernels as kernels
     from fractalseq.sources import open_source
     from fractalseq.stream import from_codes
-    from fractalseq.words import count_words
+    from fractalseq.words._counts import count_words
 
     genomes = klebsiella()
     path = genomes["Klebs_HS11286"]

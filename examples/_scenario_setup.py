@@ -1,7 +1,7 @@
 """What every example script shares: its command line, its output folder and the invented scenario.
 
 **The data are invented.**  Every example works on the Kelpwater Marine Station
-scenario (:mod:`fractalseq.scenario`), generated from a seed into the output
+scenario (:mod:`fractalseq.datasets._scenario`), generated from a seed into the output
 folder.  A script defines ``run(folder, args)`` and ends with
 ``sys.exit(run_example(run, __doc__))``; this module parses the options common
 to all scripts, prepares the folder (or a temporary one) and turns a
@@ -21,9 +21,9 @@ import tempfile
 from pathlib import Path
 from typing import Callable
 
-from fractalseq import scenario
+from fractalseq.datasets import _scenario as scenario
 from fractalseq.errors import FractalseqError
-from fractalseq.outputs import prepare_folder
+from fractalseq.io._outputs import prepare_folder
 
 #: Seed of the invented scenario unless ``--seed`` says otherwise.
 DEFAULT_SEED = 7

@@ -1,7 +1,7 @@
 """Survey the simulated samples: which are alike, and do the figures match the truth?
 
 **The data are invented.**  They come from the Kelpwater Marine Station scenario
-(:mod:`fractalseq.scenario`): five fictional "symbiont samples" simulated from
+(:mod:`fractalseq.datasets._scenario`): five fictional "symbiont samples" simulated from
 known sources — two independent ones (uniform and AT-rich), a first-order
 Markov chain, a "sticky" chain that tends to repeat its base, and a second
 draw of the same first-order chain with a tandem-repeat island inserted.
@@ -10,13 +10,13 @@ fractalseq is for research, not for clinical decisions.
 
 What it shows (Python API):
 
-* :func:`fractalseq.survey.expand_inputs` and :func:`fractalseq.survey.run_survey`
-  profile every source (serially here; pass an engine from :mod:`fractalseq.engine`
+* :func:`fractalseq.jobs._survey.expand_inputs` and :func:`fractalseq.jobs._survey.run_survey`
+  profile every source (serially here; pass an engine from :mod:`fractalseq.jobs._engines`
   to use processes or a Dask cluster — same numbers);
 * the result's Jensen–Shannon distances and clustering (``result.js``, ``result.clustering``);
-* :func:`fractalseq.distances.word_matrix` and :func:`fractalseq.distances.js_divergence`
-  on two word tables from :func:`fractalseq.words.count_words`: the same distance by hand;
-* :func:`fractalseq.survey.write_outputs` writes the CSV/JSON/HTML report.
+* :func:`fractalseq.compare._distances.word_matrix` and :func:`fractalseq.compare._distances.js_divergence`
+  on two word tables from :func:`fractalseq.words._counts.count_words`: the same distance by hand;
+* :func:`fractalseq.jobs._survey.write_outputs` writes the CSV/JSON/HTML report.
 
 Run::
 
@@ -31,10 +31,10 @@ from pathlib import Path
 
 import numpy as np
 
-from fractalseq.distances import js_divergence, word_matrix
+from fractalseq.compare._distances import js_divergence, word_matrix
 from fractalseq.sources import open_source
-from fractalseq.survey import SurveyOptions, expand_inputs, run_survey, write_outputs
-from fractalseq.words import count_words
+from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey, write_outputs
+from fractalseq.words._counts import count_words
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
 

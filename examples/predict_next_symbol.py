@@ -1,7 +1,7 @@
 """Learn a next-symbol predictor on one simulated sample and test it on another.
 
 **The data are invented.**  They come from the Kelpwater Marine Station scenario
-(:mod:`fractalseq.scenario`): the fictional samples ``kelp-chain`` and
+(:mod:`fractalseq.datasets._scenario`): the fictional samples ``kelp-chain`` and
 ``kelp-island`` are two independent draws of the same first-order Markov chain
 (the second with a repeat island inserted), so the true next-symbol
 probabilities are the rows of the chain's transition matrix, and the best
@@ -10,10 +10,10 @@ fractalseq is for research, not for clinical decisions.
 
 What it shows (Python API):
 
-* :class:`fractalseq.predict.CellPredictor` — ``fit`` on a training stream,
+* :class:`fractalseq.predict._predictor.CellPredictor` — ``fit`` on a training stream,
   ``predict_proba`` for contexts, ``score`` (bits per symbol on held-out data),
   ``save``/``load`` of the model file (no pickle);
-* :func:`fractalseq.predict.online_code_length` — predict-then-update code length
+* :func:`fractalseq.predict._predictor.online_code_length` — predict-then-update code length
   of a stream with no training data: an upper bound on its information content.
 
 Run::
@@ -29,8 +29,8 @@ from pathlib import Path
 
 import numpy as np
 
-from fractalseq import scenario
-from fractalseq.predict import CellPredictor, online_code_length
+from fractalseq.datasets import _scenario as scenario
+from fractalseq.predict._predictor import CellPredictor, online_code_length
 from fractalseq.sources import open_source
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples

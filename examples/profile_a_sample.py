@@ -1,7 +1,7 @@
 """Profile one simulated sample and compare the estimates with the known truth.
 
 **The data are invented.**  They come from the Kelpwater Marine Station scenario
-(:mod:`fractalseq.scenario`): a fictional station whose "symbiont samples" are
+(:mod:`fractalseq.datasets._scenario`): a fictional station whose "symbiont samples" are
 simulated from Markov chains, so their entropy rates and Rényi dimensions are
 known in closed form.  No real organism or measurement is involved; genomic
 output of fractalseq is for research, not for clinical decisions.
@@ -9,11 +9,11 @@ output of fractalseq is for research, not for clinical decisions.
 What it shows (Python API):
 
 * :func:`fractalseq.sources.open_source` reads a FASTA file into a stream;
-* :func:`fractalseq.words.count_words` counts every word of length 1..N once;
-* :func:`fractalseq.entropy.h_difference` and :func:`fractalseq.spectrum.dimension_spectrum`
+* :func:`fractalseq.words._counts.count_words` counts every word of length 1..N once;
+* :func:`fractalseq.entropy._estimators.h_difference` and :func:`fractalseq.dimensions._spectrum.dimension_spectrum`
   read an entropy rate and the Rényi dimensions D_q off those counts;
-* :func:`fractalseq.profile.profile_source` does all of it (with bootstrap intervals)
-  and its result becomes JSON with :func:`fractalseq.outputs.write_json`.
+* :func:`fractalseq.jobs._profile.profile_source` does all of it (with bootstrap intervals)
+  and its result becomes JSON with :func:`fractalseq.io._outputs.write_json`.
 
 Run::
 
@@ -28,11 +28,12 @@ import argparse
 import sys
 from pathlib import Path
 
-from fractalseq import entropy, spectrum
-from fractalseq.outputs import write_json
-from fractalseq.profile import profile_source
+from fractalseq.entropy import _estimators as entropy
+from fractalseq.dimensions import _spectrum as spectrum
+from fractalseq.io._outputs import write_json
+from fractalseq.jobs._profile import profile_source
 from fractalseq.sources import open_source
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
 

@@ -1,7 +1,7 @@
 """Has this week's relay log drifted from last week's?  A drift test with the evidence.
 
 **The data are invented.**  They come from the Kelpwater Marine Station scenario
-(:mod:`fractalseq.scenario`): the fictional station's telemetry relay writes a
+(:mod:`fractalseq.datasets._scenario`): the fictional station's telemetry relay writes a
 log whose lines follow a known Markov chain of events.  The second week's batch
 contains a failure mode (checksum mismatches followed by dropped frames) that
 the first week never shows; the ground truth names the new templates.  Drift
@@ -14,7 +14,7 @@ What it shows (Python API):
   (times, numbers, hex, addresses, quoted values) so that each template is a symbol;
 * :func:`fractalseq.sources.open_source` with ``fmt="log"`` reads a log as a
   stream of templates and reports each template's count;
-* :func:`fractalseq.drift.drift_test` compares the two batches by block
+* :func:`fractalseq.compare._drift.drift_test` compares the two batches by block
   permutation tests and lists the words (here: templates) that changed most.
 
 Run::
@@ -29,8 +29,8 @@ import re
 import sys
 from pathlib import Path
 
-from fractalseq.drift import DriftOptions, drift_test
-from fractalseq.outputs import write_text
+from fractalseq.compare._drift import DriftOptions, drift_test
+from fractalseq.io._outputs import write_text
 from fractalseq.sources import line_template, open_source
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples

@@ -7,22 +7,107 @@ stream, so box counts, Rényi partition sums, block entropies, drift tests and
 the predictor's context counts are all read off one structure: exact word
 counts for every depth (:class:`fractalseq.words.WordCounts`).
 
-Genomic output is for research, not for clinical decisions.
+Use it through this façade::
+
+    import fractalseq as fs
+
+    stream = fs.open_source("genome.fna.gz")            # any supported input
+    spec = fs.dimension_spectrum(stream, qs=[2.0])      # D_2 with a bootstrap interval
+    print(spec.dims[0].estimate, spec.dims[0].low, spec.dims[0].high)
+
+The families behind it are subpackages with their own ``__all__``:
+:mod:`fractalseq.sources` (readers), :mod:`fractalseq.words` (word counts),
+:mod:`fractalseq.dimensions`, :mod:`fractalseq.entropy`,
+:mod:`fractalseq.resampling`, :mod:`fractalseq.predict`,
+:mod:`fractalseq.compare`, :mod:`fractalseq.jobs` (whole jobs over files),
+:mod:`fractalseq.datasets` (known sources), :mod:`fractalseq.report`
+(figures and pages) and :mod:`fractalseq.io` (files out, cache).
+
+Names are loaded on first use, so ``import fractalseq`` stays quick (the
+numerical kernels are compiled by numba and load only when needed).
+
+Genomic output is for research, not for clinical decisions; drift reports on
+logs are no security guarantee.
 """
 
+from __future__ import annotations
+
+import importlib
+from typing import Any
+
 from fractalseq.alphabet import Alphabet
-from fractalseq.errors import FractalseqError, InputError, ParameterError
+from fractalseq.errors import FractalseqError, InputError, ModelFileError, OutputError, ParameterError
 from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 
 __version__ = "0.1.0"
+
+#: Façade name -> the family (subpackage) that defines it.
+_FACADE: dict[str, str] = {
+    # readers
+    "open_source": "fractalseq.sources",
+    "detect_format": "fractalseq.sources",
+    # word counts
+    "count_words": "fractalseq.words",
+    "count_words_split": "fractalseq.words",
+    "WordCounts": "fractalseq.words",
+    "absent_words": "fractalseq.words",
+    # encoding
+    "points": "fractalseq.encoding",
+    "density_image": "fractalseq.encoding",
+    # dimensions
+    "dimension_spectrum": "fractalseq.dimensions",
+    "geometric_spectrum": "fractalseq.dimensions",
+    "consistency_table": "fractalseq.dimensions",
+    # entropy
+    "h_difference": "fractalseq.entropy",
+    "h_renyi": "fractalseq.entropy",
+    "h_topological_growth": "fractalseq.entropy",
+    "h_lz76": "fractalseq.entropy",
+    "h_compressors": "fractalseq.entropy",
+    "block_entropies": "fractalseq.entropy",
+    "bootstrap_rate": "fractalseq.entropy",
+    # resampling
+    "block_bootstrap": "fractalseq.resampling",
+    # prediction
+    "CellPredictor": "fractalseq.predict",
+    "online_code_length": "fractalseq.predict",
+    "load_model": "fractalseq.predict",
+    # comparison
+    "drift_test": "fractalseq.compare",
+    "DriftOptions": "fractalseq.compare",
+    "scan_stream": "fractalseq.compare",
+    "js_divergence": "fractalseq.compare",
+    # whole jobs
+    "profile_source": "fractalseq.jobs",
+    "run_survey": "fractalseq.jobs",
+    "SurveyOptions": "fractalseq.jobs",
+    "make_engine": "fractalseq.jobs",
+}
 
 __all__ = [
     "Alphabet",
     "Chunk",
     "FractalseqError",
     "InputError",
+    "ModelFileError",
+    "OutputError",
     "ParameterError",
     "SymbolArray",
     "SymbolStream",
     "__version__",
+    *sorted(_FACADE),
 ]
+
+
+def __getattr__(name: str) -> Any:
+    """Load a façade name from its family on first use (PEP 562)."""
+    family = _FACADE.get(name)
+    if family is None:
+        raise AttributeError(f"module 'fractalseq' has no attribute {name!r}")
+    value = getattr(importlib.import_module(family), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(__all__))

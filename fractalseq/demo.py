@@ -1,6 +1,6 @@
 """The demo: the whole job on the invented scenario, every estimate beside its true value.
 
-:func:`run_demo` writes the scenario's data (:mod:`fractalseq.scenario`), then runs
+:func:`run_demo` writes the scenario's data (:mod:`fractalseq.datasets._scenario`), then runs
 the survey of the simulated samples, the drift test between the two relay-log
 batches, a scan of the sample with the inserted repeat island, the online
 predictor on the logs and a model of week 1 scoring week 2, and writes one report folder with an index page.  The
@@ -15,8 +15,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
-from fractalseq import scenario as scen
-from fractalseq.outputs import prepare_folder, to_json, write_json, write_text
+from fractalseq.datasets import _scenario as scen
+from fractalseq.io._outputs import prepare_folder, to_json, write_json, write_text
 
 CAUTION = (
     "Invented data. Genomic output of fractalseq is for research, not for clinical decisions; drift "
@@ -105,15 +105,15 @@ def run_demo(
     step:
         Called with a short description before each stage (progress display).
     """
-    from fractalseq.drift import DriftOptions, drift_test
-    from fractalseq.drift import write_outputs as write_drift
-    from fractalseq.engine import make_engine
-    from fractalseq.predict import online_code_length
-    from fractalseq.scan import scan_stream
-    from fractalseq.scan import write_outputs as write_scan
+    from fractalseq.compare._drift import DriftOptions, drift_test
+    from fractalseq.compare._drift import write_outputs as write_drift
+    from fractalseq.jobs._engines import make_engine
+    from fractalseq.predict._predictor import online_code_length
+    from fractalseq.compare._scan import scan_stream
+    from fractalseq.compare._scan import write_outputs as write_scan
     from fractalseq.sources import open_source
-    from fractalseq.survey import SurveyOptions, expand_inputs, run_survey
-    from fractalseq.survey import write_outputs as write_survey
+    from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey
+    from fractalseq.jobs._survey import write_outputs as write_survey
 
     t0 = time.perf_counter()
     say = step or (lambda s: None)
@@ -199,7 +199,7 @@ def run_demo(
 
     # 5. a model learned on week 1 scores week 2 against week 1's templates: new templates are named
     say("scoring week 2 with a model learned on week 1")
-    from fractalseq.predict import CellPredictor
+    from fractalseq.predict._predictor import CellPredictor
 
     model = CellPredictor().fit(base)
     wk2 = open_source(sc.logs.new, fmt="log", alphabet=model.alphabet_, policy="break")
@@ -229,7 +229,7 @@ def warm_predictor() -> None:  # pragma: no cover - runs in the warm-up process
     import numpy as np
 
     from fractalseq import alphabet as al
-    from fractalseq.predict import CellPredictor, online_code_length
+    from fractalseq.predict._predictor import CellPredictor, online_code_length
     from fractalseq.stream import from_codes
 
     rng = np.random.default_rng(0)

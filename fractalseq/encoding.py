@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-from fractalseq import kernels
+from fractalseq.words import _kernels as kernels
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray
 
@@ -189,7 +189,7 @@ def render_png(
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from fractalseq.outputs import write_bytes
+    from fractalseq.io._outputs import write_bytes
 
     img = density_image(pts, size)
     fig, ax = plt.subplots(figsize=(6.4, 6.4), dpi=100)

@@ -17,7 +17,22 @@ class InputError(FractalseqError, ValueError):
 
 
 class ParameterError(FractalseqError, ValueError):
-    """A parameter is impossible (ratio outside (0, 1), depth beyond the address width...)."""
+    """A parameter is impossible (ratio outside (0, 1), depth beyond the address width...).
+
+    Parameters
+    ----------
+    message:
+        One sentence naming the problem and the fix in terms of the *parameter*
+        (the library never names a command-line option).
+    parameter:
+        The name of the offending parameter of the public function (``depth``,
+        ``n_boot``, ...); the command line maps it to its option
+        (:data:`fractalseq.cli.common.OPTION_OF`) and says which option to change.
+    """
+
+    def __init__(self, message: str, parameter: str | None = None) -> None:
+        super().__init__(message)
+        self.parameter = parameter
 
 
 class ModelFileError(FractalseqError, ValueError):

@@ -10,12 +10,12 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from fractalseq import absent as AB
-from fractalseq import markov as mk
+from fractalseq.words import _absent as AB
+from fractalseq.datasets import _markov as mk
 from fractalseq.alphabet import dna
 from fractalseq.errors import ParameterError
 from fractalseq.stream import from_codes
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 REFERENCE = Path(__file__).resolve().parent.parent / "reference"
 LAMBDA = REFERENCE / "lambda_virus.fa.gz"

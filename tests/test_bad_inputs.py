@@ -85,7 +85,7 @@ def _make_files(d: Path) -> None:
     (d / "full").mkdir()
     (d / "full" / "keep.txt").write_text("keep\n")
     # model files: one learned on protein, one learned on DNA, and a truncated one
-    from fractalseq.predict import CellPredictor
+    from fractalseq.predict._predictor import CellPredictor
     from fractalseq.sources import open_source
 
     CellPredictor(max_depth=3).fit(open_source(d / "prot.fa", alphabet="protein")).save(d / "prot.npz")

@@ -14,11 +14,11 @@ import numpy as np
 import pytest
 
 from fractalseq import alphabet as al
-from fractalseq import bootstrap as bs
-from fractalseq import markov
+from fractalseq.resampling import _bootstrap as bs
+from fractalseq.datasets import _markov as markov
 from fractalseq.errors import ParameterError
 from fractalseq.stream import from_codes
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 BIN = al.binary()
 DNA = al.dna()

@@ -160,7 +160,7 @@ def test_version_in_process_and_as_a_process(capsys):
 
 def test_exit_codes_zero_one_two(tmp_path, capsys):
     """0 ran; 1 ran and found something (drift); 2 usage error."""
-    from fractalseq.markov import iid
+    from fractalseq.datasets._markov import iid
 
     def fasta(path, p, seed):
         x = iid(20_000, np.array(p), seed)
@@ -216,7 +216,7 @@ def test_show_completion_prints_a_bash_script(capsys):
 # -------------------------------------------------------------- standard input
 @pytest.fixture(scope="module")
 def sample(tmp_path_factory) -> Path:
-    from fractalseq.markov import simulate_markov
+    from fractalseq.datasets._markov import simulate_markov
 
     P = np.array([[0.5, 0.2, 0.2, 0.1], [0.1, 0.5, 0.2, 0.2], [0.2, 0.1, 0.5, 0.2], [0.2, 0.2, 0.1, 0.5]])
     x = simulate_markov(P, 8_000, seed=5)

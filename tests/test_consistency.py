@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 
 from fractalseq import alphabet as al
-from fractalseq import markov
-from fractalseq.consistency import (
+from fractalseq.datasets import _markov as markov
+from fractalseq.dimensions._consistency import (
     CONSISTENT,
     INCONSISTENT,
     NOT_APPLICABLE,
@@ -19,7 +19,7 @@ from fractalseq.consistency import (
     verdict,
 )
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.outputs import to_json
+from fractalseq.io._outputs import to_json
 from fractalseq.stream import from_codes
 
 BIN = al.binary()
@@ -38,8 +38,8 @@ def test_reusing_the_spectrum_pass_gives_the_same_table(markov_table):
 
     Same blocks and seed, so the same replicates: the rows must equal those computed from scratch.
     """
-    from fractalseq.consistency import RateResult
-    from fractalseq.spectrum import dimension_spectrum
+    from fractalseq.dimensions._consistency import RateResult
+    from fractalseq.dimensions._spectrum import dimension_spectrum
 
     arr, _ = markov_table
     spec = dimension_spectrum(arr, (0.0, 1.0, 2.0, 3.0), n_boot=60, seed=1, rates=True)

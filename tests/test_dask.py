@@ -11,12 +11,14 @@ import numpy as np
 import pytest
 
 from fractalseq.alphabet import dna
-from fractalseq.drift import DriftOptions, drift_test
-from fractalseq.engine import DaskEngine, SerialEngine, count_words_split
-from fractalseq.markov import simulate_markov
+from fractalseq.compare._drift import DriftOptions, drift_test
+from fractalseq.jobs._engines import DaskEngine
+from fractalseq.runner import SerialEngine
+from fractalseq.words._pieces import count_words_split
+from fractalseq.datasets._markov import simulate_markov
 from fractalseq.stream import SymbolArray, from_codes
-from fractalseq.survey import SurveyOptions, expand_inputs, run_survey
-from fractalseq.words import count_words
+from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey
+from fractalseq.words._counts import count_words
 
 ROOT = Path(__file__).resolve().parents[1]
 LAMBDA = ROOT / "reference" / "lambda_virus.fa.gz"

@@ -12,7 +12,7 @@ import pytest
 from scipy.stats import chi2_contingency, false_discovery_control
 
 from fractalseq.alphabet import dna
-from fractalseq.drift import (
+from fractalseq.compare._drift import (
     DriftOptions,
     _Figures,
     adjust_pvalues,
@@ -21,12 +21,13 @@ from fractalseq.drift import (
     drift_test,
     g_statistic,
 )
-from fractalseq.engine import ProcessEngine, iter_pieces
-from fractalseq.entropy import rate_from_counts, renyi_rate_from_counts
+from fractalseq.jobs._engines import ProcessEngine
+from fractalseq.words._pieces import iter_pieces
+from fractalseq.entropy._estimators import rate_from_counts, renyi_rate_from_counts
 from fractalseq.errors import ParameterError
-from fractalseq.markov import simulate_markov
+from fractalseq.datasets._markov import simulate_markov
 from fractalseq.stream import SymbolArray, from_codes
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 CLI = [sys.executable, "-c", "import sys; from fractalseq.cli.app import main; sys.exit(main(sys.argv[1:]))"]
 CHAIN = np.random.default_rng(20240611).dirichlet(np.full(4, 5.0), size=16)  # invented order-2 chain

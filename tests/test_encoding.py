@@ -11,7 +11,7 @@ from fractalseq import alphabet as al
 from fractalseq import encoding as enc
 from fractalseq.errors import ParameterError
 from fractalseq.stream import from_codes
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 from reference_impl import chaos_points, thue_morse
 

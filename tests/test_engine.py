@@ -9,19 +9,13 @@ import numpy as np
 import pytest
 
 from fractalseq.alphabet import dna
-from fractalseq.cache import ResultCache, cache_key
-from fractalseq.engine import (
-    DASK_MISSING,
-    ProcessEngine,
-    SerialEngine,
-    count_words_split,
-    import_dask,
-    iter_pieces,
-    make_engine,
-)
+from fractalseq.io._cache import ResultCache, cache_key
+from fractalseq.jobs._engines import DASK_MISSING, ProcessEngine, import_dask, make_engine
+from fractalseq.runner import SerialEngine
+from fractalseq.words._pieces import count_words_split, iter_pieces
 from fractalseq.errors import ParameterError
 from fractalseq.stream import SymbolArray
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 
 def _random_array(rng, n, nstarts):
@@ -130,7 +124,7 @@ def test_process_workers_run_single_threaded_and_the_parent_keeps_its_settings()
     """Worker processes get one numba/BLAS thread each (the pool is the parallelism); the parent is unchanged."""
     import os
 
-    from fractalseq.engine import THREAD_VARIABLES, ProcessEngine
+    from fractalseq.jobs._engines import THREAD_VARIABLES, ProcessEngine
 
     before = {k: os.environ.get(k) for k in THREAD_VARIABLES}
     with ProcessEngine(1) as eng:

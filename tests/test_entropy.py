@@ -14,12 +14,12 @@ from scipy.integrate import quad
 from scipy.special import digamma, gammaln
 from scipy.stats import entropy as scipy_entropy
 
-from fractalseq import entropy as E
-from fractalseq import markov as mk
+from fractalseq.entropy import _estimators as E
+from fractalseq.datasets import _markov as mk
 from fractalseq.alphabet import binary, dna
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import from_codes
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 from reference_impl import thue_morse
 

@@ -20,7 +20,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from fractalseq import scenario
+from fractalseq.datasets import _scenario as scenario
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLES = ("profile_a_sample", "compare_samples", "predict_next_symbol", "relay_log_drift")

@@ -9,12 +9,12 @@ import pytest
 
 from fractalseq import alphabet as al
 from fractalseq import encoding as enc
-from fractalseq import geometry as geo
-from fractalseq import markov
+from fractalseq.dimensions import _geometry as geo
+from fractalseq.datasets import _markov as markov
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.outputs import to_json
+from fractalseq.io._outputs import to_json
 from fractalseq.stream import from_codes
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 from reference_impl import thue_morse
 

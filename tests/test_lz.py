@@ -7,8 +7,8 @@ import math
 import numpy as np
 import pytest
 
-from fractalseq import lz
-from fractalseq import markov as mk
+from fractalseq.entropy import _lz as lz
+from fractalseq.datasets import _markov as mk
 from fractalseq.alphabet import dna
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import from_codes

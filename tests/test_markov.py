@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy.optimize import minimize_scalar
 
-from fractalseq import markov as mk
+from fractalseq.datasets import _markov as mk
 from fractalseq.errors import ParameterError
 
 TWO_STATE = np.array([[0.9, 0.1], [0.4, 0.6]])

@@ -15,10 +15,10 @@ import pytest
 from scipy.special import gammaln
 
 from fractalseq import alphabet as al
-from fractalseq import predict_kernels as K
+from fractalseq.predict import _kernels as K
 from fractalseq.errors import InputError, ModelFileError, ParameterError
-from fractalseq.predict import CellPredictor, OnlineCoder, evaluate_online, online_code_length
-from fractalseq.predict_baselines import compressor_bits, kt_bits, packed_bytes
+from fractalseq.predict._predictor import CellPredictor, OnlineCoder, evaluate_online, online_code_length
+from fractalseq.predict._baselines import compressor_bits, kt_bits, packed_bytes
 from fractalseq.stream import from_codes
 
 REF = Path(__file__).resolve().parent.parent / "reference"
@@ -28,7 +28,7 @@ LAMBDA_SHA256 = "08fe207fcb4bbe47e80cc7469e68d1f1d8d497a836fe1c09f5a9734d2e4cd9e
 
 def markov_chain(P: np.ndarray, order: int, n: int, seed: int) -> np.ndarray:
     """An order-m chain (rows of P indexed by the context, oldest symbol most significant)."""
-    from fractalseq.markov import simulate_markov
+    from fractalseq.datasets._markov import simulate_markov
 
     return simulate_markov(P, n, seed=seed, order=order)
 

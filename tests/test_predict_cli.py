@@ -128,7 +128,7 @@ def test_models_keep_the_symbolization_of_their_training_data(tmp_path: Path, ca
     (tmp_path / "y.csv").write_text("v\n" + "\n".join(f"{v + 5:.6f}" for v in x) + "\n")
     numm = tmp_path / "num.npz"
     assert run(capsys, "learn", tmp_path / "x.csv", "-f", "numeric", "-o", numm, "-q")[0] == 0
-    from fractalseq.modelfile import read_header
+    from fractalseq.predict._modelfile import read_header
 
     cuts = read_header(numm)["reader"]["thresholds"]
     assert np.allclose(cuts, np.quantile(np.round(x, 6), [0.25, 0.5, 0.75]))

@@ -7,8 +7,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from fractalseq import alphabet as al
-from fractalseq.engine import count_piece, iter_pieces
-from fractalseq.predict import CellPredictor, baseline_orders, online_code_length
+from fractalseq.words._pieces import count_piece, iter_pieces
+from fractalseq.predict._predictor import CellPredictor, baseline_orders, online_code_length
 from fractalseq.stream import from_codes
 
 SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -54,7 +54,7 @@ def test_fitting_segments_apart_and_merging_equals_fitting_the_whole(case, data)
 @settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(streams(), st.integers(60, 300))
 def test_fitting_overlapping_chunks_and_merging_equals_fitting_the_whole(case, chunk):
-    # arbitrary cut points: each chunk is counted with its lookahead (fractalseq.engine) so no word is lost
+    # arbitrary cut points: each chunk is counted with its lookahead (fractalseq.jobs._engines) so no word is lost
     alphabet, codes, starts, depths = case
     arr = from_codes(alphabet, codes, starts)
     whole = CellPredictor(depths=depths).fit(arr)

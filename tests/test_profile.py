@@ -23,9 +23,9 @@ import pytest
 
 from fractalseq import alphabet as al
 from fractalseq.cli.app import main
-from fractalseq.markov import simulate_markov
-from fractalseq.outputs import to_json
-from fractalseq.profile import contract, profile_source
+from fractalseq.datasets._markov import simulate_markov
+from fractalseq.io._outputs import to_json
+from fractalseq.jobs._profile import contract, profile_source
 from fractalseq.report.profile import FIGURES, safe_name, write_profile_report
 from fractalseq.sources import open_source
 from fractalseq.stream import from_codes

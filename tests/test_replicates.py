@@ -14,9 +14,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from fractalseq import alphabet as al
-from fractalseq import bootstrap as bs
-from fractalseq import replicates as rp
-from fractalseq import spectrum as sp
+from fractalseq.resampling import _bootstrap as bs
+from fractalseq.resampling import _replicates as rp
+from fractalseq.dimensions import _spectrum as sp
 from fractalseq.stream import from_codes
 
 
@@ -112,7 +112,7 @@ def test_batch_replicate_rates_equal_one_replicate_at_a_time():
 
     The per-replicate path is checked against scipy elsewhere (tests/test_entropy.py); here the two routes must agree.
     """
-    from fractalseq import entropy as E
+    from fractalseq.entropy import _estimators as E
 
     rng = np.random.default_rng(21)
     codes = rng.integers(0, 4, 30000)

@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 
 from fractalseq.alphabet import dna
-from fractalseq.changepoint import noise_scale, pelt, segment_series
-from fractalseq.scan import scan_stream, window_counts
+from fractalseq.compare._changepoint import noise_scale, pelt, segment_series
+from fractalseq.compare._scan import scan_stream, window_counts
 from fractalseq.stream import SymbolArray, from_codes
 
 CLI = [sys.executable, "-c", "import sys; from fractalseq.cli.app import main; sys.exit(main(sys.argv[1:]))"]

@@ -1,6 +1,6 @@
 """Rényi dimensions from word counts, checked against published closed forms.
 
-Sources are simulated with fractalseq.markov (seeded); every expected value
+Sources are simulated with fractalseq.datasets._markov (seeded); every expected value
 comes from a closed form in the literature, with the citation beside it
 (values recomputed in /work/shared/REFERENCE-CHECKS.md, rows A1-A6, E2-E4).
 """
@@ -17,10 +17,10 @@ from scipy.stats import entropy as scipy_entropy
 from scipy.stats import multinomial
 
 from fractalseq import alphabet as al
-from fractalseq import markov
+from fractalseq.datasets import _markov as markov
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.outputs import to_json
-from fractalseq.spectrum import (
+from fractalseq.io._outputs import to_json
+from fractalseq.dimensions._spectrum import (
     NEGATIVE_Q,
     OVERLAP,
     binomial_dimension,
@@ -28,7 +28,7 @@ from fractalseq.spectrum import (
     level_stats,
 )
 from fractalseq.stream import from_codes
-from fractalseq.words import count_words
+from fractalseq.words._counts import count_words
 
 PHI = (1 + math.sqrt(5)) / 2
 BIN = al.binary()

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import signal
 import subprocess
 import sys
@@ -14,12 +15,13 @@ import pytest
 from scipy.spatial.distance import jensenshannon
 
 from fractalseq.alphabet import from_symbols
-from fractalseq.distances import cluster, joint_alphabet, js_divergence, js_matrix, remap_words, word_matrix
+from fractalseq.compare._distances import cluster, joint_alphabet, js_divergence, js_matrix, remap_words, word_matrix
 from fractalseq.errors import InputError
-from fractalseq.markov import simulate_markov
-from fractalseq.survey import SurveyOptions, expand_inputs, run_survey
-from fractalseq.cache import ResultCache
-from fractalseq.words import count_words
+from fractalseq.datasets._markov import simulate_markov
+from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey
+from fractalseq.io._cache import ResultCache
+from fractalseq.runner import PAUSE_VARIABLE
+from fractalseq.words._counts import count_words
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "benchmarks"))
@@ -152,21 +154,25 @@ def test_sigint_then_rerun_gives_the_uninterrupted_result(tmp_path):
     base = CLI + args
     assert main(args + ["--out", str(ref), "--no-cache"]) == 0  # uninterrupted reference run
     out = tmp_path / "out"
-    proc = subprocess.Popen(base + ["--out", str(out)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
-    def finished() -> list:
-        return list((out / ".cache").rglob("*.json")) if (out / ".cache").exists() else []
+    # The survey pauses (fractalseq.runner.pause_point) once two sources are in the cache, so the
+    # interrupt lands at a known point whatever the machine's speed.
+    env = {**os.environ, PAUSE_VARIABLE: "survey.cached:2"}
+    proc = subprocess.Popen(base + ["--out", str(out)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
 
-    deadline = time.time() + 300
-    while time.time() < deadline and not finished() and proc.poll() is None:
+    def stored(suffix: str) -> int:
+        return len(list((out / ".cache").rglob(f"*{suffix}"))) if (out / ".cache").exists() else 0
+
+    deadline = time.monotonic() + 900  # a safety net against a hang, not part of the check
+    while proc.poll() is None and not (stored(".json") == 2 and stored(".npz") == 2) and time.monotonic() < deadline:
         time.sleep(0.05)
+    assert proc.poll() is None, "the survey ended before its pause point"
     proc.send_signal(signal.SIGINT)
     _, err = proc.communicate(timeout=120)
     assert proc.returncode == 130, err
     assert "interrupted" in err
     assert [p.name for p in out.iterdir() if not p.name.startswith(".")] == []  # nothing half-written
     assert not [p for p in out.rglob("*") if p.name.endswith(".part")]
-    cached = len(list((out / ".cache").rglob("*.json")))
-    assert 1 <= cached < 5
+    assert stored(".json") == 2  # exactly the sources finished before the interrupt were kept
     assert main(args + ["--out", str(out)]) == 0  # the re-run resumes from the cache
     assert (out / "survey.json").read_bytes() == (ref / "survey.json").read_bytes()
     assert (out / "survey.csv").read_bytes() == (ref / "survey.csv").read_bytes()
@@ -329,8 +335,8 @@ def test_a_large_survey_keeps_its_report_readable_and_small(tmp_path):
     """
     import struct
 
-    from fractalseq.engine import SerialEngine
-    from fractalseq.survey import MATRIX_IN_PAGE, NAMED_LEAVES, SurveyOptions, expand_inputs, run_survey, write_outputs
+    from fractalseq.runner import SerialEngine
+    from fractalseq.jobs._survey import MATRIX_IN_PAGE, NAMED_LEAVES, SurveyOptions, expand_inputs, run_survey, write_outputs
 
     n = NAMED_LEAVES + 1
     assert n > NAMED_LEAVES and n > MATRIX_IN_PAGE

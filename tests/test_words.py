@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 from fractalseq import alphabet as al
 from fractalseq.errors import InputError, ModelFileError, ParameterError
 from fractalseq.stream import Chunk, from_codes
-from fractalseq.words import WordCounter, WordCounts, count_words, decode_address, encode_address
+from fractalseq.words._counts import WordCounter, WordCounts, count_words, decode_address, encode_address
 
 from reference_impl import fibonacci_word, thue_morse, word_counts
 

@@ -92,7 +92,7 @@ def main(argv: list[str] | None = None) -> int:
     A run that fails (status 2 or more) removes the output folders it created
     and left empty, so a refused run leaves nothing behind.
     """
-    from fractalseq.outputs import tracking_folders
+    from fractalseq.io._outputs import tracking_folders
 
     with tracking_folders() as discard_empty:
         status = _run(argv)
@@ -106,7 +106,10 @@ def _run(argv: list[str] | None) -> int:
         result = app(args=argv, prog_name="fractalseq", standalone_mode=False)
         return int(result or 0)
     except FractalseqError as exc:
-        typer.echo(f"error: {exc}", err=True)
+        from fractalseq.cli.common import option_hint
+
+        hint = option_hint(getattr(exc, "parameter", None))
+        typer.echo(f"error: {exc}{hint}" if not hint else f"error: {str(exc).rstrip('.')}{hint}.", err=True)
         return EXIT_USAGE
     except typer.Exit as exc:
         return int(exc.exit_code)

@@ -1,7 +1,7 @@
 """``fractalseq survey``, ``drift`` and ``scan``: comparing sources and stretches of a stream.
 
-The commands only parse options, call the library (:mod:`fractalseq.survey`,
-:mod:`fractalseq.drift`, :mod:`fractalseq.scan`), show progress and format
+The commands only parse options, call the library (:mod:`fractalseq.jobs._survey`,
+:mod:`fractalseq.compare._drift`, :mod:`fractalseq.compare._scan`), show progress and format
 results.  Exit status: 0 ran; 1 ``drift`` found a change at the chosen level;
 2 usage or input error.
 """
@@ -29,7 +29,7 @@ SEED_HELP = "Seed of every random step (bootstrap intervals, permutations); same
 
 
 def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str]):
-    from fractalseq.engine import make_engine
+    from fractalseq.jobs._engines import make_engine
 
     return make_engine(kind, workers, scheduler)
 
@@ -90,10 +90,10 @@ def survey(
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
     """
-    from fractalseq.cache import ResultCache
+    from fractalseq.io._cache import ResultCache
     from fractalseq.cli.inputs import reader_options
-    from fractalseq.outputs import prepare_folder
-    from fractalseq.survey import SurveyOptions, expand_inputs, run_survey, write_outputs
+    from fractalseq.io._outputs import prepare_folder
+    from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey, write_outputs
 
     reader = reader_options(column, bins, thresholds, ordinal)
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
@@ -119,7 +119,7 @@ def survey(
     else:
         store = ResultCache(None)
     options = SurveyOptions(fmt, alphabet, policy, depth, ratio, distance_depth, seed, linkage, tuple(sorted(reader.items())))
-    from fractalseq.distances import LINKAGES
+    from fractalseq.compare._distances import LINKAGES
 
     if linkage not in LINKAGES:
         raise ParameterError(f"Linkage {linkage!r} is not one of {', '.join(LINKAGES)}.")
@@ -194,7 +194,7 @@ def _cell(v) -> str:
 # ===================================================================== drift
 def _batch_specs(spec: str):
     """The inputs of a batch argument: a file, folder, quoted glob, @list file, or - (standard input)."""
-    from fractalseq.survey import expand_inputs
+    from fractalseq.jobs._survey import expand_inputs
 
     if spec.startswith("@"):
         return expand_inputs([], spec[1:], sys.stdin.read().splitlines() if spec == "@-" else None)
@@ -253,7 +253,7 @@ def drift(
 
     Example: fractalseq drift logs/monday.log logs/tuesday.log --format log --alpha 0.01
     """
-    from fractalseq.drift import DriftOptions, drift_test
+    from fractalseq.compare._drift import DriftOptions, drift_test
 
     if baseline == "-" and new == "-":
         raise ParameterError("Standard input can be read only once; give '-' for one batch at most.")
@@ -261,7 +261,7 @@ def drift(
     options = DriftOptions(depth, block, permutations, alpha, adjust, seed, ratio, figs, top)
     options.check()
     if out is not None:
-        from fractalseq.outputs import prepare_folder
+        from fractalseq.io._outputs import prepare_folder
 
         prepare_folder(out, force)
     from fractalseq.cli.inputs import reader_options, shared_numeric_cuts
@@ -276,13 +276,13 @@ def drift(
     if cut_note:
         result.notes.insert(0, cut_note)
     if out is not None:
-        from fractalseq.drift import write_outputs
+        from fractalseq.compare._drift import write_outputs
 
         write_outputs(result, Path(out), force=True)
     if json_out:
         typer.echo(result.to_json(), nl=False)
     else:
-        from fractalseq.drift import drift_text
+        from fractalseq.compare._drift import drift_text
 
         typer.echo(drift_text(result), nl=False)
     raise typer.Exit(EXIT_FOUND if result.changed else 0)
@@ -327,11 +327,11 @@ def scan(
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
     from fractalseq.cli.inputs import read_input, reader_options
-    from fractalseq.scan import scan_stream
+    from fractalseq.compare._scan import scan_stream
 
     pen: float | str = "bic" if penalty == "bic" else _number(penalty)
     if out is not None:
-        from fractalseq.outputs import prepare_folder
+        from fractalseq.io._outputs import prepare_folder
 
         prepare_folder(out, force)
     with common.progress(quiet) as bar:
@@ -341,7 +341,7 @@ def scan(
         result = scan_stream(arr, window, step, depth, ratio, pen, seed)
         bar.advance(task)
     if out is not None:
-        from fractalseq.scan import write_outputs
+        from fractalseq.compare._scan import write_outputs
 
         write_outputs(result, Path(out), force=True)
     if json_out:

@@ -29,8 +29,8 @@ def demo(
     Example: fractalseq demo --out demo-report
     """
     from fractalseq.demo import CAUTION, run_demo, summary_json
-    from fractalseq.outputs import prepare_folder
-    from fractalseq.scenario import SCENARIO_NOTE
+    from fractalseq.io._outputs import prepare_folder
+    from fractalseq.datasets._scenario import SCENARIO_NOTE
 
     prepare_folder(out, force)  # refuse a file or a non-empty folder before any work
     if not quiet and not json_out:

@@ -17,7 +17,7 @@ from rich.table import Table
 from fractalseq.cli import common
 from fractalseq.cli.inputs import open_input
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.outputs import check_writable, to_json
+from fractalseq.io._outputs import check_writable, to_json
 
 RESEARCH_NOTE = "Genomic output is for research, not for clinical decisions."
 LOG_NOTE = "Surprise scores of event logs are no security guarantee."
@@ -100,7 +100,7 @@ def _training_alphabet(paths: list[str], fmt: str, alphabet: str, policy: str, r
     """The alphabet to read the training files with: the union of their log templates when they are logs."""
     if len(paths) < 2 or fmt not in ("log", "auto"):
         return alphabet
-    from fractalseq.distances import joint_alphabet
+    from fractalseq.compare._distances import joint_alphabet
 
     if "-" in paths:
         return alphabet
@@ -149,8 +149,8 @@ def learn(
     import numpy as np
 
     from fractalseq.cli.inputs import reader_options, shared_numeric_cuts
-    from fractalseq.predict import CellPredictor, baseline_orders
-    from fractalseq.words import count_inputs
+    from fractalseq.predict._predictor import CellPredictor, baseline_orders
+    from fractalseq.words._counts import count_inputs
 
     check_writable(out, force)
     max_depth = _deepest(depth, old_max_depth, quiet)
@@ -270,7 +270,7 @@ def score(
 
     Example: fractalseq score --online genome.fna.xz --window 50000 --json
     """
-    from fractalseq.predict import CellPredictor, evaluate_online
+    from fractalseq.predict._predictor import CellPredictor, evaluate_online
 
     if (model is None) == (not online):
         raise ParameterError("Give either --model MODEL (fitted mode) or --online (no model file), not both or neither.")
@@ -387,7 +387,7 @@ def next_symbols(
 
     Example: fractalseq next GATTACAGATTACA --model kleb.npz --top 4
     """
-    from fractalseq.predict import CellPredictor
+    from fractalseq.predict._predictor import CellPredictor
 
     fitted = CellPredictor.load(model)
     a = fitted.alphabet_

@@ -131,8 +131,8 @@ def profile(
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
     """
     from fractalseq.encoding import check_ratio
-    from fractalseq.outputs import prepare_folder, to_json
-    from fractalseq.profile import STEPS, contract, profile_source
+    from fractalseq.io._outputs import prepare_folder, to_json
+    from fractalseq.jobs._profile import STEPS, contract, profile_source
     from fractalseq.report.profile import safe_name, write_profile_index, write_profile_report
 
     # validate everything before reading anything

@@ -37,7 +37,7 @@ def render(
     Example: fractalseq render reference/lambda_virus.fa --out lambda.png --ratio 0.5
     """
     from fractalseq import encoding
-    from fractalseq.outputs import check_writable
+    from fractalseq.io._outputs import check_writable
 
     if out.suffix.lower() != ".png":
         raise ParameterError(f"{out} does not end in .png; render writes PNG images.")

@@ -11,7 +11,7 @@ from rich.table import Table
 from fractalseq.cli import common
 from fractalseq.cli.inputs import open_input, reader_options
 from fractalseq.errors import InputError
-from fractalseq.outputs import check_writable, to_json
+from fractalseq.io._outputs import check_writable, to_json
 
 
 def count(
@@ -38,7 +38,7 @@ def count(
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
-    from fractalseq.words import count_inputs  # imported here: numba makes it slow, and --help/completion need speed
+    from fractalseq.words._counts import count_inputs  # imported here: numba makes it slow, and --help/completion need speed
 
     if save is not None:
         check_writable(save, force)

@@ -41,6 +41,38 @@ THRESHOLDS = typer.Option(
     None, "--thresholds", help="numeric input: fixed bin edges, increasing and comma-separated (e.g. 0.2,0.5,0.8), instead of quantile --bins."
 )
 
+#: Library parameter name -> the command-line option that sets it.  Library errors name
+#: parameters (``ParameterError.parameter``); the command line adds the option to change.
+OPTION_OF: dict[str, str] = {
+    "alphabet": "--alphabet",
+    "fmt": "--format",
+    "policy": "--unknown",
+    "depth": "--depth",
+    "max_depth": "--depth",
+    "ratio": "--ratio",
+    "seed": "--seed",
+    "n_boot": "--boot",
+    "bins": "--bins",
+    "ordinal": "--ordinal",
+    "column": "--column",
+    "thresholds": "--thresholds",
+    "qs": "--q",
+    "workers": "--workers",
+    "engine": "--engine",
+    "address": "--scheduler",
+    "window": "--window",
+    "step": "--step",
+    "level": "--level",
+    "block_length": "--block",
+}
+
+
+def option_hint(parameter: str | None) -> str:
+    """`` (option --x)`` for a library parameter the command line exposes, else an empty string."""
+    option = OPTION_OF.get(parameter or "")
+    return f" (option {option})" if option else ""
+
+
 #: Standard error console for progress and notes (standard output stays clean for --json).
 err_console = Console(stderr=True)
 out_console = Console()

@@ -32,7 +32,7 @@ from typing import Any, Iterable, Sequence
 
 import numpy as np
 
-from fractalseq.outputs import write_text
+from fractalseq.io._outputs import write_text
 
 __all__ = ["HtmlReport", "Link", "format_value", "PAGE_CSS", "PAGE_JS"]
 

@@ -25,8 +25,8 @@ from typing import Sequence
 
 
 from fractalseq.encoding import corner_layout
-from fractalseq.outputs import prepare_folder, write_bytes, write_csv, write_json
-from fractalseq.profile import CAUTION_GENERAL, CAUTION_GENOMIC, ProfileResult, contract
+from fractalseq.io._outputs import prepare_folder, write_bytes, write_csv, write_json
+from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, ProfileResult, contract
 from fractalseq.report import figures
 from fractalseq.report.html import HtmlReport, Link
 

@@ -57,7 +57,7 @@ class WordRow:
     word:
         The word as text.
     address:
-        Packed address (see :mod:`fractalseq.words`).
+        Packed address (see :mod:`fractalseq.words._counts`).
     observed, expected:
         Observed count and expected count under the model.
     ratio:
@@ -324,7 +324,7 @@ def _lookup(sorted_addr: np.ndarray, sorted_cnt: np.ndarray, query: np.ndarray) 
 
 
 def _row(wc, model: MarkovModel, n: int, address: int, observed: int, expected: float, sub: tuple | None) -> WordRow:
-    from fractalseq.words import decode_address
+    from fractalseq.words._counts import decode_address
 
     codes = decode_address(int(address), n, wc.bits)
     period = _principal_period(codes)
@@ -398,7 +398,7 @@ def absent_words(
     Parameters
     ----------
     wc:
-        :class:`~fractalseq.words.WordCounts` counted to at least ``depth``.
+        :class:`~fractalseq.words._counts.WordCounts` counted to at least ``depth``.
     depth:
         Word length ``n`` (at least 2).
     model_order:

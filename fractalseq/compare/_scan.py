@@ -13,13 +13,13 @@ not cross segment breaks):
     (the occupied boxes of side ``k**n`` are the distinct n-words).
 ``surprise``
     Mean code length of the window's symbols under the online count
-    predictor run once along the whole stream (:mod:`fractalseq.predict`),
+    predictor run once along the whole stream (:mod:`fractalseq.predict._predictor`),
     bits per symbol: low where the stream repeats what it has seen.
 
 A window pass is one numba kernel that updates the word and context tables
 as the window slides (O(1) per symbol).  Change points are found on the
 standardised figures by PELT with a BIC-like penalty
-(:mod:`fractalseq.changepoint`); each segment is listed as an interval with
+(:mod:`fractalseq.compare._changepoint`); each segment is listed as an interval with
 its mean figures, and segments whose entropy rate lies far below the
 stream's typical value are flagged as low-complexity (repeats, low-complexity
 regions; in logs, stretches dominated by few templates).
@@ -39,9 +39,9 @@ import numpy as np
 from numba import njit
 
 from fractalseq import __version__
-from fractalseq.changepoint import Segmentation, segment_series
+from fractalseq.compare._changepoint import Segmentation, segment_series
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.outputs import to_json
+from fractalseq.io._outputs import to_json
 from fractalseq.stream import SymbolArray
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
@@ -153,11 +153,11 @@ def choose_scan_depth(alphabet_size: int, window: int, max_depth: int) -> int:
 def surprise_series(arr: SymbolArray) -> np.ndarray | None:
     """Per-symbol code length (bits) of the online predictor run once along the stream.
 
-    Uses :func:`fractalseq.predict.online_code_length` with ``keep_surprisal``;
+    Uses :func:`fractalseq.predict._predictor.online_code_length` with ``keep_surprisal``;
     ``None`` when the predictor is not available.
     """
     try:
-        from fractalseq.predict import online_code_length
+        from fractalseq.predict._predictor import online_code_length
     except ImportError:
         return None
     res = online_code_length(arr, keep_surprisal=True)
@@ -294,7 +294,7 @@ def scan_stream(
     ratio:
         Contraction ratio k for D0.
     penalty:
-        ``"bic"`` or a number (see :func:`fractalseq.changepoint.segment_series`).
+        ``"bic"`` or a number (see :func:`fractalseq.compare._changepoint.segment_series`).
     seed:
         Seed of any random step (none at present; kept for the predictor).
 
@@ -450,7 +450,7 @@ def html_report(result: ScanResult):
 
 def write_outputs(result: ScanResult, folder: str | Path, force: bool = False) -> list[Path]:
     """Write scan.csv (one row per window), scan.png, scan.html and scan.json into ``folder`` (atomically)."""
-    from fractalseq.outputs import write_bytes, write_csv, write_text
+    from fractalseq.io._outputs import write_bytes, write_csv, write_text
 
     folder = Path(folder)
     names = list(result.figures)

@@ -24,9 +24,9 @@ Estimators of the Shannon entropy of a count vector ``n_i``, ``N = sum n_i``,
     nearest integer first (counts below 1/2 drop out).
 
 Everything works from a plain count vector (float counts allowed) or from
-a frequency-of-frequencies :class:`fractalseq.words.Spectrum` (``value``,
+a frequency-of-frequencies :class:`fractalseq.words._counts.Spectrum` (``value``,
 ``multiplicity``), so block entropies of every depth of a
-:class:`fractalseq.words.WordCounts` cost O(distinct count values).
+:class:`fractalseq.words._counts.WordCounts` cost O(distinct count values).
 
 Depth rules (REFERENCE-CHECKS rule 4): the difference estimator
 ``H_{n+1} - H_n`` uses the largest ``n`` with ``A**(n+1) <= length/100``; the
@@ -52,7 +52,7 @@ from scipy.special import digamma
 from fractalseq.errors import InputError, ParameterError
 
 if TYPE_CHECKING:  # for annotations only: the bootstrap module is imported where it is used
-    from fractalseq.bootstrap import BlockLength
+    from fractalseq.resampling._bootstrap import BlockLength
 
 LN2 = math.log(2.0)
 #: Plug-in block entropies need at least this many occurrences per possible word (rule 4).
@@ -132,7 +132,7 @@ class EntropyEstimate:
         return dataclasses.replace(self, low=float(low), high=float(high), note=note)
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-ready dictionary (NaN stays NaN; :func:`fractalseq.outputs.to_json` writes it as null)."""
+        """JSON-ready dictionary (NaN stays NaN; :func:`fractalseq.io._outputs.to_json` writes it as null)."""
         out = {
             "quantity": self.quantity,
             "method": self.method,
@@ -167,7 +167,7 @@ def as_spectrum(counts) -> tuple[np.ndarray, np.ndarray]:
 
     ``counts`` is a 1-D count vector (zeros allowed, floats allowed) or an
     object with ``value`` and ``multiplicity`` arrays (a
-    :class:`fractalseq.words.Spectrum`).
+    :class:`fractalseq.words._counts.Spectrum`).
     """
     if hasattr(counts, "value") and hasattr(counts, "multiplicity"):
         v = np.asarray(counts.value, dtype=np.float64).ravel()
@@ -220,7 +220,7 @@ def _entropy_nats(v: np.ndarray, m: np.ndarray, method: str) -> float:
 def replicate_entropies(spectra, method: str = "grassberger") -> np.ndarray:
     """Shannon entropy estimates (nats) of every bootstrap replicate at once.
 
-    ``spectra`` is a :class:`fractalseq.replicates.ReplicateSpectra`; the
+    ``spectra`` is a :class:`fractalseq.resampling._replicates.ReplicateSpectra`; the
     result equals :func:`entropy_counts` (in nats) of each replicate's
     spectrum, computed as matrix products over the dense small-count table.
     """
@@ -406,7 +406,7 @@ def block_entropy(
 
 
 def block_entropies(wc, method: str = "grassberger", max_depth: int | None = None) -> list[EntropyEstimate]:
-    """Block entropies ``H_1 .. H_N`` of a :class:`~fractalseq.words.WordCounts` (from its spectra)."""
+    """Block entropies ``H_1 .. H_N`` of a :class:`~fractalseq.words._counts.WordCounts` (from its spectra)."""
     A, N, _ = _wc_info(wc)
     top = N if max_depth is None else min(int(max_depth), N)
     return [block_entropy(wc.spectrum(n), method, n, A) for n in range(1, top + 1)]
@@ -481,7 +481,7 @@ def h_difference(wc, depth: int | None = None, method: str = "grassberger") -> E
     Parameters
     ----------
     wc:
-        :class:`~fractalseq.words.WordCounts` counted to depth ``>= n + 1``.
+        :class:`~fractalseq.words._counts.WordCounts` counted to depth ``>= n + 1``.
     depth:
         ``n``; by default the largest ``n >= 0`` with ``A**(n+1) <= length/100``
         (REFERENCE-CHECKS rule 4), limited by the counted depth.
@@ -526,7 +526,7 @@ def h_renyi(wc, q: float, depth: int | None = None, unbiased: bool = True) -> En
     ``q`` plug-in sums; ``q = 1`` is the Grassberger Shannon difference.
     Depth rule as in :func:`h_difference`.  For ``q < 1`` the sums are
     dominated by rare words, which short streams miss: read those with care.
-    The exact value for a Markov chain is :func:`fractalseq.markov.renyi_rate`
+    The exact value for a Markov chain is :func:`fractalseq.datasets._markov.renyi_rate`
     (Rached, Alajaji & Campbell 2001).
     """
     q = float(q)
@@ -561,7 +561,7 @@ def bootstrap_rate(
 
     The same statistic (:func:`rate_from_counts`, :func:`ratio_from_counts`
     or :func:`renyi_rate_from_counts`) is recomputed on weighted block count
-    tables by :func:`fractalseq.bootstrap.block_bootstrap` (no recounting);
+    tables by :func:`fractalseq.resampling._bootstrap.block_bootstrap` (no recounting);
     the block length is chosen from the data unless given.  The interval,
     its level, the bootstrap standard error and the block rule go into the
     result (``low``, ``high``, ``details``, ``note``).
@@ -576,7 +576,7 @@ def bootstrap_rate(
         Passed to the bootstrap (``interval``: ``centered`` (default, as everywhere in the
         package; chosen by the calibration study), ``percentile``, ``basic`` or ``bc``).
     """
-    from fractalseq import bootstrap as bs
+    from fractalseq.resampling import _bootstrap as bs
 
     if est.depth is None or est.quantity not in ("entropy rate", "Renyi entropy rate"):
         raise ParameterError(f"A bootstrap interval is available for depth-based entropy rates, not for {est.method}.")

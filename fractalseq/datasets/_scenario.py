@@ -19,8 +19,8 @@ from pathlib import Path
 
 import numpy as np
 
-from fractalseq import markov
-from fractalseq.outputs import write_text
+from fractalseq.datasets import _markov as markov
+from fractalseq.io._outputs import write_text
 
 SCENARIO_NOTE = (
     "Invented scenario: the Kelpwater Marine Station, its symbiont samples and its telemetry relay do not "

@@ -254,7 +254,7 @@ def replicate_spectra(tables: ItemTables, weights: np.ndarray, cap: int = DEFAUL
         Item-major block tables (:func:`item_tables`).
     weights:
         ``(R, n_blocks)`` non-negative whole block weights (e.g.
-        :meth:`fractalseq.bootstrap.ResamplePlan.block_weights`).
+        :meth:`fractalseq.resampling._bootstrap.ResamplePlan.block_weights`).
     cap:
         Counts below ``cap`` are tallied densely.
     """

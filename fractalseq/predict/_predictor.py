@@ -13,7 +13,7 @@ Two modes
     tables of bounded size (direct for shallow depths, hashed buckets with
     pruning of the rarest cell for deep ones); their estimates
     ``(c_s + alpha) / (N + A alpha)`` are mixed geometrically with weights
-    learned online (see :mod:`fractalseq.predict_kernels`).  For DNA the deep
+    learned online (see :mod:`fractalseq.predict._kernels`).  For DNA the deep
     cells are also updated with the reverse complement of each word, so a
     repeat read on the other strand is recognised.  The total code length is
     an upper bound on the information content of the stream (it is the length
@@ -30,7 +30,7 @@ Two modes
 
 Evaluation beside every score: log-loss in bits per symbol, top-1 and top-3
 accuracy, expected calibration error, and two baselines computed in the same
-run (:mod:`fractalseq.predict_baselines`).
+run (:mod:`fractalseq.predict._baselines`).
 
 Genomic output is for research, not for clinical decisions.
 """
@@ -43,10 +43,10 @@ from typing import Iterable, Iterator, Sequence
 
 import numpy as np
 
-from fractalseq import predict_kernels as K
+from fractalseq.predict import _kernels as K
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ModelFileError, ParameterError
-from fractalseq.predict_baselines import CompressorMeter, MarkovBaseline, kt_bits_after_training, kt_bits_by_order
+from fractalseq.predict._baselines import CompressorMeter, MarkovBaseline, kt_bits_after_training, kt_bits_by_order
 from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 
 #: Cell depths used for DNA-like alphabets (four symbols) when nothing else is asked.
@@ -189,7 +189,7 @@ class PredictionResult:
     top1, top3:
         Fraction of symbols that were the most likely / among the three most likely predictions.
     calibration_error:
-        Expected calibration error of the top-1 confidence over :data:`~fractalseq.predict_kernels.CALIB_BINS`
+        Expected calibration error of the top-1 confidence over :data:`~fractalseq.predict._kernels.CALIB_BINS`
         equal-width bins (mean absolute gap between confidence and accuracy, weighted by bin size).
     brier:
         Mean Brier score (squared error of the probability vector).
@@ -217,7 +217,7 @@ class PredictionResult:
         Bits of every position when asked for (``keep_surprisal=True``), else ``None``.
     baselines:
         Set by :func:`evaluate_online` / :meth:`CellPredictor.evaluate`: ``markov`` (a
-        :class:`~fractalseq.predict_baselines.MarkovBaseline` as a dict) and ``compressors``
+        :class:`~fractalseq.predict._baselines.MarkovBaseline` as a dict) and ``compressors``
         (bits per symbol of lzma/bz2/zlib on the symbols as text and packed).
     """
 
@@ -663,9 +663,9 @@ def evaluate_online(
 
     The Markov baseline is the adaptive KT model of the best order on the
     stream itself (chosen in hindsight, orders ``0..K`` of :func:`baseline_orders`);
-    the compressors see the same symbols (:class:`~fractalseq.predict_baselines.CompressorMeter`).
+    the compressors see the same symbols (:class:`~fractalseq.predict._baselines.CompressorMeter`).
     """
-    from fractalseq.words import WordCounter
+    from fractalseq.words._counts import WordCounter
 
     src = _as_source(source)
     coder = OnlineCoder(src.alphabet, length_hint=_known_length(src), **params)
@@ -825,7 +825,7 @@ class CellPredictor:
     # ---------------------------------------------------------------- fit
     def fit(self, source: Source) -> "CellPredictor":
         """Count the cells of a training stream (read chunk by chunk); returns ``self``."""
-        from fractalseq.words import count_words
+        from fractalseq.words._counts import count_words
 
         src = _as_source(source)
         ladder, _ = self._validate(src.alphabet)
@@ -837,7 +837,7 @@ class CellPredictor:
         return self.fit_counts(wc)
 
     def fit_counts(self, counts) -> "CellPredictor":
-        """Fit from :class:`~fractalseq.words.WordCounts` (deep enough for every depth), e.g. one piece of a large input."""
+        """Fit from :class:`~fractalseq.words._counts.WordCounts` (deep enough for every depth), e.g. one piece of a large input."""
         alphabet = counts.alphabet
         if counts.length == 0:
             raise InputError("The word counts hold no symbols to learn from; check the input.")
@@ -1037,7 +1037,7 @@ class CellPredictor:
         baselines: bool = True,
     ) -> PredictionResult:
         """Score held-out data with the fitted model: code length, accuracy, calibration and baselines."""
-        from fractalseq.words import WordCounter
+        from fractalseq.words._counts import WordCounter
 
         _check_fitted(self)
         src = _as_source(source)
@@ -1109,8 +1109,8 @@ class CellPredictor:
 
     # ---------------------------------------------------------- persistence
     def save(self, path, force: bool = False):
-        """Write the fitted model (see :mod:`fractalseq.modelfile`)."""
-        from fractalseq import modelfile
+        """Write the fitted model (see :mod:`fractalseq.predict._modelfile`)."""
+        from fractalseq.predict import _modelfile as modelfile
 
         _check_fitted(self)
         return modelfile.save_model(self, path, force=force)
@@ -1118,7 +1118,7 @@ class CellPredictor:
     @classmethod
     def load(cls, path) -> "CellPredictor":
         """Read a model written by :meth:`save` (never uses pickle)."""
-        from fractalseq import modelfile
+        from fractalseq.predict import _modelfile as modelfile
 
         return modelfile.load_model(path)
 

@@ -37,7 +37,7 @@ dimension units) is taken; ties go to the deepest run.
 
 Intervals
 ---------
-By the block bootstrap of :mod:`fractalseq.bootstrap` (word counts of
+By the block bootstrap of :mod:`fractalseq.resampling._bootstrap` (word counts of
 blocks re-weighted, never recounted); ``centered`` intervals by default
 (the estimate plus the replicates' spread around their median), chosen by
 the calibration benchmark.  The fit weights (inverse bootstrap
@@ -66,11 +66,11 @@ from typing import Callable, Sequence
 import numpy as np
 from numba import njit
 
-from fractalseq import bootstrap as bs
+from fractalseq.resampling import _bootstrap as bs
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray, SymbolStream
-from fractalseq.words import WordCounts, count_words
+from fractalseq.words._counts import WordCounts, count_words
 
 #: Deepest depth keeps distinct words <= occurrences / STARVE.
 STARVE = 100
@@ -290,10 +290,10 @@ def replicate_vectors(
     """``(n_boot, 3Q + 3)`` level vectors of every replicate of one level (see :func:`level_vector`).
 
     Non-overlapping blocks: the replicates' count spectra are built at once
-    from item-major block tables (:mod:`fractalseq.replicates`); other
+    from item-major block tables (:mod:`fractalseq.resampling._replicates`); other
     schemes sum the positions of each replicate's blocks.
     """
-    from fractalseq import replicates as rp
+    from fractalseq.resampling import _replicates as rp
 
     qv = np.ascontiguousarray(qs, dtype=np.float64)
     out = np.empty((plan.n_boot, 3 * qv.size + 3))
@@ -982,11 +982,11 @@ def dimension_spectrum(
     ratio:
         Contraction ratio k of the encoding.  Only ``ln(1/k)`` enters, and only
         when the maps do not overlap (hypercube corners: ``k <= 1/2``); for
-        overlapping maps a stream is sent to :func:`fractalseq.geometry.geometric_spectrum`.
+        overlapping maps a stream is sent to :func:`fractalseq.dimensions._geometry.geometric_spectrum`.
     depth_range:
         ``(n_lo, n_hi)`` word lengths to fit over; automatic when ``None``.
     n_boot, seed, block_length, scheme, level, interval:
-        Block bootstrap settings (see :mod:`fractalseq.bootstrap`); ``n_boot=0`` skips it.
+        Block bootstrap settings (see :mod:`fractalseq.resampling._bootstrap`); ``n_boot=0`` skips it.
     corners:
         Custom corner layout (default binary hypercube corners).
     falpha:
@@ -1030,7 +1030,8 @@ def dimension_spectrum(
                 f"Word counts give box counts only for non-overlapping maps, and {reason}; "
                 "pass the stream itself so geometric box counting is used."
             )
-        from fractalseq import encoding, geometry
+        from fractalseq import encoding
+        from fractalseq.dimensions import _geometry as geometry
 
         pts = encoding.points(arr, k, corners, drop=0)
         valid = geometry.transient_mask(arr, TRANSIENT)

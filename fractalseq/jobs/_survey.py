@@ -1,17 +1,17 @@
 """Survey many sources: one row of complexity figures per source, distances, clustering.
 
-Map, merge, estimate (see :mod:`fractalseq.engine`):
+Map, merge, estimate (see :mod:`fractalseq.jobs._engines`):
 
 * **map** — each source, on a worker: read it, compute every per-source
-  figure with :func:`fractalseq.profile.profile_source` (so a survey row and
+  figure with :func:`fractalseq.jobs._profile.profile_source` (so a survey row and
   ``fractalseq profile`` agree), and count its words up to the distance depth;
 * **merge** — gather the rows in input order and align the word tables
   (over a joint alphabet when alphabets were learned per source);
 * **estimate** — Jensen–Shannon divergences of the depth-n word
   distributions, distances between D_q spectra, and hierarchical clustering
-  (:mod:`fractalseq.distances`).
+  (:mod:`fractalseq.compare._distances`).
 
-Each finished source is stored in a :class:`fractalseq.cache.ResultCache`
+Each finished source is stored in a :class:`fractalseq.io._cache.ResultCache`
 keyed by its content hash and the parameters, so an interrupted survey
 resumes where it stopped and gives the same result as an uninterrupted one.
 
@@ -33,8 +33,8 @@ import numpy as np
 
 from fractalseq import __version__
 from fractalseq.alphabet import Alphabet
-from fractalseq.cache import ResultCache, array_hash, cache_key, file_hash
-from fractalseq.distances import (
+from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
+from fractalseq.compare._distances import (
     Clustering,
     cluster,
     joint_alphabet,
@@ -43,11 +43,11 @@ from fractalseq.distances import (
     spectrum_matrix,
     word_matrix,
 )
-from fractalseq.engine import Engine, SerialEngine
+from fractalseq.runner import Engine, SerialEngine, pause_point
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.outputs import to_json
+from fractalseq.io._outputs import to_json
 from fractalseq.stream import ReadReport, SymbolArray
-from fractalseq.words import WordCounts, count_words
+from fractalseq.words._counts import WordCounts, count_words
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
 #: Deepest word length stored per source for the distances (capped by the alphabet's address width).
@@ -253,8 +253,8 @@ def _store_depth(alphabet: Alphabet, options: SurveyOptions) -> int:
 
 
 def profile_row(arr: SymbolArray, options: SurveyOptions) -> dict:
-    """Every per-source figure of one source, from :func:`fractalseq.profile.profile_source`."""
-    from fractalseq.profile import profile_source
+    """Every per-source figure of one source, from :func:`fractalseq.jobs._profile.profile_source`."""
+    from fractalseq.jobs._profile import profile_source
 
     sig = inspect.signature(profile_source)
     wanted = {"depth": options.depth, "ratio": options.ratio, "seed": options.seed}
@@ -523,6 +523,8 @@ def run_survey(
         if progress:
             progress("queued", i, spec)
 
+    finished = [0]
+
     def done(j: int, res: dict) -> None:
         i = todo[j]
         stored = {k: v for k, v in res.items() if k != "counts_arrays"}
@@ -530,6 +532,8 @@ def run_survey(
         outputs[i] = res
         if progress:
             progress("done", i, specs[i])
+        finished[0] += 1
+        pause_point("survey.cached", finished[0])
 
     if tasks:
         engine.map(survey_task, tasks, on_done=done)
@@ -706,7 +710,7 @@ def html_report(result: SurveyResult, figures: dict[str, bytes] | None = None):
 
 def write_outputs(result: SurveyResult, folder: Path, force: bool = False) -> list[Path]:
     """Write survey.json, survey.csv, distances.csv, survey.html and the PNG figures (atomically)."""
-    from fractalseq.outputs import write_bytes, write_csv, write_text
+    from fractalseq.io._outputs import write_bytes, write_csv, write_text
 
     folder = Path(folder)
     written = []

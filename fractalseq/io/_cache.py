@@ -12,7 +12,7 @@ so a changed file or a changed option never reuses a stale entry, and an
 interrupted job resumes where it stopped: finished sources are read back,
 the rest are computed.
 
-An entry is two files written atomically (:mod:`fractalseq.outputs`): an
+An entry is two files written atomically (:mod:`fractalseq.io._outputs`): an
 ``.npz`` of plain arrays (loaded with ``allow_pickle=False``) and a ``.json``
 holding the results and the SHA-256 of the arrays file.  The ``.json`` is
 written last, so its presence marks a complete entry; an entry whose arrays
@@ -35,7 +35,7 @@ from typing import Any, Iterable
 import numpy as np
 
 from fractalseq.errors import OutputError
-from fractalseq.outputs import to_json, write_bytes, write_text
+from fractalseq.io._outputs import to_json, write_bytes, write_text
 
 #: Bump when the meaning of cached results changes.
 CACHE_VERSION = 1

@@ -17,9 +17,9 @@ package has and gathers the results in a :class:`ProfileResult`:
 * a density image of the encoding.
 
 No estimate is computed here: this module chooses defaults, calls
-:mod:`fractalseq.entropy`, :mod:`fractalseq.lz`, :mod:`fractalseq.spectrum`,
-:mod:`fractalseq.consistency`, :mod:`fractalseq.absent`,
-:mod:`fractalseq.predict` and :mod:`fractalseq.bootstrap`, and collects
+:mod:`fractalseq.entropy._estimators`, :mod:`fractalseq.entropy._lz`, :mod:`fractalseq.dimensions._spectrum`,
+:mod:`fractalseq.dimensions._consistency`, :mod:`fractalseq.words._absent`,
+:mod:`fractalseq.predict._predictor` and :mod:`fractalseq.resampling._bootstrap`, and collects
 what they say, including their reliability notes.
 
 :meth:`ProfileResult.to_dict` is the public JSON contract (documented in
@@ -37,17 +37,17 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from fractalseq import absent as absent_mod
-from fractalseq import bootstrap as bs
-from fractalseq import consistency as cons
-from fractalseq import entropy as ent
-from fractalseq import lz
-from fractalseq import spectrum as sp
+from fractalseq.words import _absent as absent_mod
+from fractalseq.resampling import _bootstrap as bs
+from fractalseq.dimensions import _consistency as cons
+from fractalseq.entropy import _estimators as ent
+from fractalseq.entropy import _lz as lz
+from fractalseq.dimensions import _spectrum as sp
 from fractalseq.alphabet import Alphabet
 from fractalseq.encoding import check_ratio, corner_layout, density_image, overlap_check, points
 from fractalseq.errors import FractalseqError, InputError, ParameterError
 from fractalseq.stream import SymbolArray, SymbolStream
-from fractalseq.words import WordCounts, check_depth, count_words
+from fractalseq.words._counts import WordCounts, check_depth, count_words
 
 FORMAT = "fractalseq-profile"
 VERSION = 1
@@ -66,7 +66,7 @@ LZ_MAX_LENGTH = 1 << 19
 #: The compressor bound compresses at most this many symbols.
 COMPRESS_MAX_LENGTH = 1 << 18
 #: Shifted grids of the consistency table's extra column (0: none; the profile reports the aligned
-#: grid, on which the verdict rests, so the shifted column is left to :func:`fractalseq.consistency.consistency_table`).
+#: grid, on which the verdict rests, so the shifted column is left to :func:`fractalseq.dimensions._consistency.consistency_table`).
 CONSISTENCY_OFFSETS = 0
 #: Orders q of the f(α) curve (added to the user's orders for the spectrum figure).
 FALPHA_QS = (-2.0, -1.0, -0.5, 0.0, 0.5, 1.0, 1.5, 2.0, 3.0, 4.0)
@@ -96,7 +96,7 @@ class ScalingCurve:
     """The log–log data behind one D_q: ``y`` against ``x = ln(1/ε)`` with the fitted range.
 
     ``y`` is the Rényi block entropy ``H_q`` (nats) per level, as the
-    spectrum estimator computes it (:func:`fractalseq.spectrum.level_stats`),
+    spectrum estimator computes it (:func:`fractalseq.dimensions._spectrum.level_stats`),
     or, for the geometric route, the running sum of the per-level slopes
     (same shape, arbitrary offset).  ``fit_lo``/``fit_hi`` are 0-based
     indices (inclusive) of the fitted levels; the drawn line has the fitted
@@ -139,9 +139,9 @@ class ProfileResult:
     overlap:
         Whether the encoding's maps overlap (then word counts are not box counts).
     spectrum:
-        :class:`fractalseq.spectrum.SpectrumResult` over the user's orders plus :data:`FALPHA_QS`.
+        :class:`fractalseq.dimensions._spectrum.SpectrumResult` over the user's orders plus :data:`FALPHA_QS`.
     entropy_rows:
-        :func:`fractalseq.entropy.entropy_table` rows (block entropies by length).
+        :func:`fractalseq.entropy._estimators.entropy_table` rows (block entropies by length).
     rates:
         Entropy-rate estimates by name (``plugin``, ``miller-madow``, ``grassberger``
         with bootstrap intervals; ``lz76``; ``compressors`` and
@@ -151,9 +151,9 @@ class ProfileResult:
     topological, koslicki:
         Topological entropy by word growth, and Koslicki's finite-length form.
     consistency:
-        :class:`fractalseq.consistency.ConsistencyResult` or ``None`` (then a note says why).
+        :class:`fractalseq.dimensions._consistency.ConsistencyResult` or ``None`` (then a note says why).
     absent:
-        :class:`fractalseq.absent.WordReport` or ``None``.
+        :class:`fractalseq.words._absent.WordReport` or ``None``.
     scaling:
         One :class:`ScalingCurve` per user q.
     image:
@@ -373,7 +373,7 @@ def auto_depth(length: int, alphabet: Alphabet) -> int:
     """Default deepest word length: three past the deepest reliable one, within 2..:data:`MAX_AUTO_DEPTH`.
 
     The deepest reliable block length is the largest n with ``A**n <= length / 100``
-    (:func:`fractalseq.entropy.choose_depth`); three more levels show where the
+    (:func:`fractalseq.entropy._estimators.choose_depth`); three more levels show where the
     estimates start to fail for lack of data.
     """
     n, _ = ent.choose_depth(length, max(alphabet.size, 2), offset=0)
@@ -449,7 +449,7 @@ def _scaling_curves(spec, wc_spec: WordCounts | None, user_qs: tuple[float, ...]
 
 def _predictor_code_length(arr: SymbolArray):
     """The online predictor's code length in bits per symbol as an EntropyEstimate (an upper bound)."""
-    from fractalseq import predict
+    from fractalseq.predict import _predictor as predict
 
     res = predict.online_code_length(arr)
     A = arr.alphabet.size

@@ -1,4 +1,4 @@
-"""The model file of a fitted :class:`~fractalseq.predict.CellPredictor`.
+"""The model file of a fitted :class:`~fractalseq.predict._predictor.CellPredictor`.
 
 Format (version 1)
 ------------------
@@ -49,7 +49,7 @@ import numpy as np
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ModelFileError
-from fractalseq.outputs import write_bytes
+from fractalseq.io._outputs import write_bytes
 
 FORMAT = "fractalseq-model"
 VERSION = 1
@@ -140,8 +140,8 @@ def _parse_header(data: dict, path: Path) -> dict:
 
 
 def load_model(path: str | Path):
-    """Read, verify and rebuild a :class:`~fractalseq.predict.CellPredictor` (never uses pickle)."""
-    from fractalseq.predict import CellPredictor
+    """Read, verify and rebuild a :class:`~fractalseq.predict._predictor.CellPredictor` (never uses pickle)."""
+    from fractalseq.predict._predictor import CellPredictor
 
     path = Path(path)
     data = _read_arrays(path)

@@ -52,9 +52,9 @@ import numpy as np
 from numba import njit
 from scipy.special import ndtri
 
-from fractalseq import replicates as rp
+from fractalseq.resampling import _replicates as rp
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.replicates import CountSpectrum
+from fractalseq.resampling._replicates import CountSpectrum
 from fractalseq.stream import SymbolArray, SymbolStream
 
 SCHEMES = ("nonoverlapping", "moving", "stationary")
@@ -253,7 +253,7 @@ def word_labels(arr: SymbolArray, depth: int) -> tuple[np.ndarray, np.ndarray]:
     -------
     labels : int32 (int64 beyond 2**31 words) array of length ``len(arr)``; -1 where the word would cross a segment end
     words : sorted unique addresses (``uint64``), so ``words[labels[t]]`` is the word at ``t``;
-        the same order as :meth:`fractalseq.words.WordCounts.words`.
+        the same order as :meth:`fractalseq.words._counts.WordCounts.words`.
     """
     T = len(arr)
     bits = arr.alphabet.bits
@@ -733,7 +733,7 @@ def block_bootstrap(
         order (``int64``; zero for words absent from a replicate, so ignore
         zeros when counting distinct words).  Returns a number or a vector.
         For the whole stream the counts equal
-        :meth:`fractalseq.words.WordCounts.counts`.
+        :meth:`fractalseq.words._counts.WordCounts.counts`.
     n_boot:
         Number of replicates (0: estimate only).
     seed:
@@ -748,13 +748,13 @@ def block_bootstrap(
         many words occur ``v`` times; entropies do): it is then called with
         ``{n: spectrum}`` objects having ``value`` and ``multiplicity``
         arrays, and with non-overlapping blocks all replicates' spectra are
-        built in one pass (:mod:`fractalseq.replicates`), much faster than
+        built in one pass (:mod:`fractalseq.resampling._replicates`), much faster than
         one table per replicate.
     batch_statistic:
         With ``spectra`` and non-overlapping blocks: the same statistic for
         all replicates at once, called with ``{n: ReplicateSpectra}`` and
         returning an ``(n_boot, k)`` array (e.g. built on
-        :func:`fractalseq.entropy.replicate_rates`); ``statistic`` still
+        :func:`fractalseq.entropy._estimators.replicate_rates`); ``statistic`` still
         gives the estimate on the whole stream.
 
     Returns

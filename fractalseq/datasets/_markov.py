@@ -9,7 +9,7 @@ An order-``m`` Markov chain over ``A`` symbols is given by a transition
 matrix ``P`` of shape ``(A**m, A)``: row ``c`` is the distribution of the
 next symbol after the context ``c``, where a context ``x_1 .. x_m`` has the
 index ``sum_i x_i * A**(m - i)`` (first symbol most significant, the same
-order as word addresses in :mod:`fractalseq.words`).  An ``(A, A)`` matrix
+order as word addresses in :mod:`fractalseq.words._counts`).  An ``(A, A)`` matrix
 is a first-order chain.  The chain on contexts (the *expanded* chain) is a
 first-order chain on ``A**m`` states with ``c -> (c * A + x) mod A**m``.
 

@@ -11,7 +11,7 @@ grids are wrapped on a torus (``period``) so they do not count an extra
 partial layer of boxes at the edges.  Even so, shifted grids mix the mass of
 neighbouring cylinders and their local slopes reach D_q only geometrically
 in the depth (about 1-3% off over the scales a typical stream allows), which
-is why :mod:`fractalseq.consistency` bases its verdict on the aligned grid.
+is why :mod:`fractalseq.dimensions._consistency` bases its verdict on the aligned grid.
 
 With ``origin = 0``, no offset and ``eps = k**m``, boxes of a chaos-game
 cloud of a non-overlapping encoding are exactly the cylinders of m-words,
@@ -19,7 +19,7 @@ so box counts equal word counts (after the first ``m - 1`` points, which
 still remember the starting point; see :func:`transient_mask`).
 
 The slopes, scaling-range choice, estimators and intervals are those of
-:mod:`fractalseq.spectrum`, with ``ln(1/eps)`` as the abscissa.
+:mod:`fractalseq.dimensions._spectrum`, with ``ln(1/eps)`` as the abscissa.
 """
 
 from __future__ import annotations
@@ -32,8 +32,8 @@ from typing import Sequence
 import numpy as np
 from numba import njit
 
-from fractalseq import bootstrap as bs
-from fractalseq import spectrum as sp
+from fractalseq.resampling import _bootstrap as bs
+from fractalseq.dimensions import _spectrum as sp
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray
 
@@ -410,7 +410,7 @@ def geometric_spectrum(
     aligned:
         One grid without shift (anchored at ``origin``) instead of random offsets.
     falpha, starve, corrected:
-        As in :func:`fractalseq.spectrum.dimension_spectrum`.
+        As in :func:`fractalseq.dimensions._spectrum.dimension_spectrum`.
     scale_range:
         ``(i_lo, i_hi)``: 1-based indices into the sorted scales to fit over; automatic when ``None``.
     unit_cube:

@@ -21,11 +21,11 @@ Figures tested (each gives a statistic and a p-value):
     probability shows here long before it shows in the word marginals.
 ``entropy_rate``
     Absolute difference of the entropy rates ``H_n - H_{n-1}`` (bits per
-    symbol, Grassberger estimator, :func:`fractalseq.entropy.rate_from_counts`).
+    symbol, Grassberger estimator, :func:`fractalseq.entropy._estimators.rate_from_counts`).
 ``D2``
     Absolute difference of the correlation dimensions
     ``D_2 = h_2 / log2(1/k)``, ``h_2`` the order-2 Rényi rate from the
-    unbiased collision sums (:func:`fractalseq.entropy.renyi_rate_from_counts`).
+    unbiased collision sums (:func:`fractalseq.entropy._estimators.renyi_rate_from_counts`).
 
 p-values come from a **block permutation** test: the blocks of both batches
 are pooled and the batch labels reassigned at random (keeping the number of
@@ -53,10 +53,11 @@ from numba import njit
 
 from fractalseq import __version__
 from fractalseq.alphabet import Alphabet
-from fractalseq.distances import joint_alphabet, js_divergence, remap_words
-from fractalseq.engine import DEFAULT_PIECE, Engine, Piece, SerialEngine, iter_pieces
+from fractalseq.compare._distances import joint_alphabet, js_divergence, remap_words
+from fractalseq.words._pieces import DEFAULT_PIECE, Piece, iter_pieces
+from fractalseq.runner import Engine, SerialEngine
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.outputs import to_json
+from fractalseq.io._outputs import to_json
 from fractalseq.stream import SymbolArray, SymbolStream
 
 CAUTION = "Drift reports on logs are no security guarantee; genomic output is for research, not for clinical decisions."
@@ -136,7 +137,7 @@ def block_tables(task: tuple[Piece, int, int]) -> tuple[np.ndarray, np.ndarray, 
     Parameters
     ----------
     task:
-        ``(piece, depth, block)``; pieces come from :func:`fractalseq.engine.iter_pieces`
+        ``(piece, depth, block)``; pieces come from :func:`fractalseq.jobs._engines.iter_pieces`
         with overlap ``depth - 1`` and a piece size that is a multiple of ``block``.
 
     Returns
@@ -356,14 +357,14 @@ def conditional_g(ta: np.ndarray, tb: np.ndarray, context: np.ndarray, n_context
 class _Figures:
     """Entropy rate and D_2 of many count tables at once (rows), for the permutation replicates.
 
-    Same estimators as :func:`fractalseq.entropy.rate_from_counts` (Grassberger,
-    using its ``G(n)`` table) and :func:`fractalseq.entropy.renyi_rate_from_counts`
+    Same estimators as :func:`fractalseq.entropy._estimators.rate_from_counts` (Grassberger,
+    using its ``G(n)`` table) and :func:`fractalseq.entropy._estimators.renyi_rate_from_counts`
     with ``q = 2`` (unbiased collision sums), vectorised over rows; the tests
     check both against those functions.
     """
 
     def __init__(self, total: np.ndarray, context: np.ndarray, n_context: int, depth: int, ratio: float) -> None:
-        from fractalseq.entropy import grassberger_g
+        from fractalseq.entropy._estimators import grassberger_g
 
         self.context, self.n_context, self.depth, self.ratio = context, n_context, depth, ratio
         self._g = grassberger_g
@@ -831,7 +832,7 @@ def drift_html(result: "DriftResult"):
 
 def write_outputs(result: "DriftResult", folder: str | Path, force: bool = False) -> list[Path]:
     """Write drift.json, drift.txt and drift.html into ``folder`` (atomically)."""
-    from fractalseq.outputs import write_text
+    from fractalseq.io._outputs import write_text
 
     folder = Path(folder)
     return [

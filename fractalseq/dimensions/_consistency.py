@@ -10,7 +10,7 @@ geometry (the verdict uses this)
     floating-point chaos game, transient dropped) on the grid of side
     ``k**m`` anchored at the corners' bounding box -- the natural partition of
     the encoding -- with its own scaling range and slope
-    (:func:`fractalseq.geometry.geometric_spectrum`).  When the theory holds
+    (:func:`fractalseq.dimensions._geometry.geometric_spectrum`).  When the theory holds
     these boxes are the cylinders of m-words, so a difference exposes a broken
     premise: overlapping or crowded corners, a ratio whose grid does not tile
     the cylinders, a wrong transient.
@@ -47,8 +47,8 @@ from typing import Sequence
 
 import numpy as np
 
-from fractalseq import bootstrap as bs
-from fractalseq import spectrum as sp
+from fractalseq.resampling import _bootstrap as bs
+from fractalseq.dimensions import _spectrum as sp
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray, SymbolStream
 
@@ -103,7 +103,7 @@ def conditional_rates(
     """Rényi entropy rates ``h_q = H_q(n+1) - H_q(n)`` in bits, with block-bootstrap intervals.
 
     ``order`` (``n``) is automatic when ``None``: the middle of the linear
-    run of ``H_q(n)`` chosen as in :mod:`fractalseq.spectrum` (the block
+    run of ``H_q(n)`` chosen as in :mod:`fractalseq.dimensions._spectrum` (the block
     entropies have converged to a straight line there, and the data are not
     yet starved; for ``q <= 0`` every word is seen).
     """
@@ -242,11 +242,11 @@ def consistency_table(
     information:
         The information side already computed (:func:`conditional_rates` of
         this stream with the same settings, or the ``rates`` of
-        :func:`fractalseq.spectrum.dimension_spectrum`, which are the same
+        :func:`fractalseq.dimensions._spectrum.dimension_spectrum`, which are the same
         numbers); its block length is then used for the geometric side too.
     levels:
         Number of scales ``k, k^2, ...`` of the geometric side (at least
-        :data:`fractalseq.spectrum.MIN_LEVELS`); default: down to the depth
+        :data:`fractalseq.dimensions._spectrum.MIN_LEVELS`); default: down to the depth
         where word counts become starved of data, as in the spectrum
         (``SpectrumResult.data_limit``, which a caller may pass to save
         counting the words again).
@@ -255,7 +255,8 @@ def consistency_table(
     -------
     ConsistencyResult
     """
-    from fractalseq import encoding, geometry
+    from fractalseq import encoding
+    from fractalseq.dimensions import _geometry as geometry
 
     arr = data.to_array() if isinstance(data, SymbolStream) else data
     if not isinstance(arr, SymbolArray):

@@ -1,4 +1,4 @@
-"""Numba kernels of the count-based predictor (:mod:`fractalseq.predict`).
+"""Numba kernels of the count-based predictor (:mod:`fractalseq.predict._predictor`).
 
 Conventions
 -----------
@@ -52,7 +52,7 @@ analysis", Proc. Data Compression Conference (geometric mixing; from memory);
 Ney, Essen & Kneser (1994), Computer Speech and Language 8:1-38 (absolute
 discounting, used by the fitted blend; from memory).
 
-Nothing here validates its input; :mod:`fractalseq.predict` does.
+Nothing here validates its input; :mod:`fractalseq.predict._predictor` does.
 """
 
 from __future__ import annotations

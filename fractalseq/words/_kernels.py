@@ -10,7 +10,7 @@ length ``m`` is ``address >> (b * (n - m))``.  Keys are ``uint32`` when
 ``b * N <= 32`` and ``uint64`` otherwise.
 
 These kernels never validate their input: the Python layer in
-:mod:`fractalseq.words` does that before calling them.
+:mod:`fractalseq.words._counts` does that before calling them.
 """
 
 from __future__ import annotations

@@ -6,7 +6,7 @@ n-word frequencies.  :class:`WordCounts` stores the counts of the deepest
 words (the *leaf* table) plus the short words at the end of each closed
 segment (the *tails*); every shallower depth is read off the leaf table by
 prefixes, because the packed address of a word keeps its first symbol in
-the most significant bits (see :mod:`fractalseq.kernels`).
+the most significant bits (see :mod:`fractalseq.words._kernels`).
 
 Storage is dense (a table of ``2**(b N)`` counters, memory independent of
 the input length) when ``b N <= DENSE_MAX_BITS`` and sparse (sorted unique
@@ -28,10 +28,10 @@ from typing import Callable, Iterable, Iterator
 
 import numpy as np
 
-from fractalseq import kernels
+from fractalseq.words import _kernels as kernels
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ModelFileError, ParameterError
-from fractalseq.outputs import write_bytes
+from fractalseq.io._outputs import write_bytes
 from fractalseq.stream import Chunk, ReadReport, SymbolArray, SymbolStream
 
 #: Dense tables are used up to this many address bits (4**12 cells for DNA).

@@ -1,0 +1,30 @@
+"""Entropy of a symbolic source: block entropies, entropy rates, Rényi and topological rates, LZ76, bounds.
+
+Every estimate is an :class:`EntropyEstimate` in bits (per symbol for rates),
+with an interval where one is computed and ``reliable=False`` plus a note when
+the stream is too short for the depth asked.
+"""
+
+from fractalseq.entropy._estimators import (
+    EntropyEstimate,
+    block_entropies,
+    block_entropy,
+    bootstrap_rate,
+    entropy_table,
+    grassberger_g,
+    h_compressors,
+    h_difference,
+    h_ratio,
+    h_renyi,
+    h_topological_growth,
+    h_topological_koslicki,
+    rate_from_counts,
+    renyi_rate_from_counts,
+)
+from fractalseq.entropy._lz import h_lz76, lz76_complexity, lz76_phrases
+
+__all__ = [
+    "EntropyEstimate", "block_entropies", "block_entropy", "bootstrap_rate", "entropy_table", "grassberger_g",
+    "h_compressors", "h_difference", "h_lz76", "h_ratio", "h_renyi", "h_topological_growth",
+    "h_topological_koslicki", "lz76_complexity", "lz76_phrases", "rate_from_counts", "renyi_rate_from_counts",
+]

@@ -1,0 +1,24 @@
+"""Files in and out: atomic outputs, deterministic JSON, and the survey's result cache.
+
+Every file the package writes goes through :func:`write_bytes` (temporary name,
+then rename), so an interrupted run never leaves a half-written file, and
+nothing is overwritten without ``force``.
+"""
+
+from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
+from fractalseq.io._outputs import (
+    check_writable,
+    prepare_folder,
+    to_json,
+    tracking_folders,
+    write_bytes,
+    write_csv,
+    write_json,
+    write_npz,
+    write_text,
+)
+
+__all__ = [
+    "ResultCache", "array_hash", "cache_key", "check_writable", "file_hash", "prepare_folder", "to_json",
+    "tracking_folders", "write_bytes", "write_csv", "write_json", "write_npz", "write_text",
+]

@@ -1,0 +1,93 @@
+"""The one result contract: frozen dataclasses whose JSON form is generated from their fields.
+
+Every result of the package derives from :class:`Result`.  ``to_dict()`` walks
+the fields in declaration order and uses the attribute names as JSON keys, so
+an attribute and its key can never disagree.  A result that renamed an
+attribute keeps the old JSON key through ``_aliases`` (old key -> attribute),
+so existing consumers of the documents do not break.  A field declared with
+``field(metadata={"json": False})`` stays out of the JSON form (large arrays
+kept for figures, say).
+
+Estimates share one shape, :class:`Estimate`: ``estimate``, ``low``,
+``high``, ``reliable`` and ``notes`` (sentences that explain a flag or a
+limit).  ``NaN`` stays ``NaN`` in the dictionary; the JSON writer
+(:func:`fractalseq.io.to_json`) turns it into ``null``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass, field
+from typing import Any, ClassVar, Mapping
+
+import numpy as np
+
+
+def to_plain(value: Any) -> Any:
+    """A JSON-ready copy of ``value``: results, dataclasses, numpy values, tuples and mappings."""
+    if isinstance(value, Result):
+        return value.to_dict()
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        to_dict = getattr(value, "to_dict", None)
+        if callable(to_dict):
+            return to_dict()
+        return {f.name: to_plain(getattr(value, f.name)) for f in dataclasses.fields(value)}
+    if isinstance(value, np.ndarray):
+        return [to_plain(v) for v in value.tolist()]
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, Mapping):
+        return {str(k): to_plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [to_plain(v) for v in value]
+    if isinstance(value, float) and math.isinf(value):
+        return value
+    return value
+
+
+@dataclass(frozen=True)
+class Result:
+    """Base of every result: frozen, with ``to_dict`` generated from the fields."""
+
+    #: Old JSON key -> attribute name, for documents whose key predates a rename.
+    _aliases: ClassVar[Mapping[str, str]] = {}
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready dictionary: one key per field (attribute name), then the aliases."""
+        out: dict[str, Any] = {}
+        for f in dataclasses.fields(self):
+            if f.metadata.get("json", True) is False:
+                continue
+            out[f.name] = to_plain(getattr(self, f.name))
+        for old, name in self._aliases.items():
+            if name in out and old not in out:
+                out[old] = out[name]
+        return out
+
+
+@dataclass(frozen=True)
+class Estimate(Result):
+    """A point estimate with its interval, a reliability flag and the notes that explain it.
+
+    Attributes
+    ----------
+    estimate:
+        The point estimate (NaN when it could not be computed).
+    low, high:
+        Interval ends (NaN when no interval was computed).
+    reliable:
+        False when the data are too short, the fit is poor, or a limit was crossed; the
+        notes then say why.
+    notes:
+        Sentences explaining flags and limits (empty when there is nothing to say).
+    """
+
+    estimate: float
+    low: float = float("nan")
+    high: float = float("nan")
+    reliable: bool = True
+    notes: tuple[str, ...] = field(default=())
+
+
+__all__ = ["Estimate", "Result", "to_plain"]
