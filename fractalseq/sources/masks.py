@@ -121,7 +121,7 @@ def is_ipv4(s: str) -> bool:
 
 def is_ipv6(s: str) -> bool:
     """Two or more ``:`` with only hex digits, ``:`` and ``.`` (IPv6, MAC addresses, clock times)."""
-    return s.count(":") >= 2 and _IPV6_CHARS.issuperset(s) and not _HEX.isdisjoint(s)
+    return s.count(":") >= 2 and _IPV6_CHARS.issuperset(s) and (not _HEX.isdisjoint(s) or "::" in s)
 
 
 def is_ip(s: str) -> bool:
@@ -208,6 +208,10 @@ def is_variable(s: str) -> bool:
 def mask_token(tok: str) -> str:
     """The token with its variable pieces replaced by ``<*>`` (the whole token, brackets and quotes aside, when it is variable as a whole)."""
     n = len(tok)
+    if ":" in tok:
+        core = tok.strip("\"'()[]{}<>,;")
+        if core and is_ipv6(core):
+            return tok.replace(core, WILDCARD, 1)
     i = 0
     while i < n and tok[i] in _LEAD:
         i += 1
