@@ -1,35 +1,66 @@
 """Line-oriented event logs: each line becomes the symbol of its template.
 
-Every non-blank line is reduced by :func:`fractalseq.sources.templates.line_template`
-(block by block, :func:`~fractalseq.sources.templates.line_templates`);
-each distinct template is one symbol.  The alphabet (named ``templates``) is
-learned in a first pass: templates by decreasing count, ties by template text.
-Blank lines are skipped (counted in a note).  The log must be UTF-8: a line
-that is not raises :class:`InputError` naming the line and the fix.
+Templates are mined from the log itself (:mod:`fractalseq.sources.miner`:
+header separated, variable tokens masked, lines grouped by similarity, a
+merge pass); each template is one symbol.  The alphabet (named
+``templates``) is learned in a first pass: templates by decreasing count,
+ties by template text.  Blank lines are skipped (counted in a note).
+
+Reading is forgiving: a line that is not UTF-8 is decoded as Latin-1
+(counted), runs of NUL bytes and other binary junk (control bytes other than
+tab, line feed, vertical tab, form feed, carriage return and escape) are
+skipped (counted), and lines longer than ``LINE_LIMIT`` characters are cut
+(counted).  The counts are in ``report.extra`` (``lines_cut``,
+``junk_bytes_skipped``, ``latin1_lines``) and in a note when not zero.
 
 The template table goes into ``report.extra["templates"]``: one entry per
 symbol in code order with the template text, its count, the 1-based line
-number where it first occurs and that first raw line as an example.
+number where it first occurs, that first raw line as an example, and the
+header fields seen with it (``fields``: host, program, level -> counts).
 
-Masking runs one regular-expression pass per line and per mask (C code, no
-per-character Python); a line is one symbol, so this is the per-symbol cost.
-Drift reports on logs are no security guarantee.
+A template table given in advance (a model's) is matched first: a line takes
+the most specific listed template it matches; the other lines are mined and
+reported as unlisted.  Drift reports on logs are no security guarantee.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Iterator
 
 import numpy as np
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError
+from fractalseq.sources.miner import TemplateIndex, TemplateMiner
 from fractalseq.sources.rawio import Origin, line_blocks
-from fractalseq.sources.templates import line_templates
 from fractalseq.stream import Chunk, ReadReport, Record
 
 _EXAMPLE_CHARS = 500
+#: lines longer than this many characters are cut
+LINE_LIMIT = 1 << 16
+# control bytes skipped as binary junk (tab, LF, VT, FF, CR and ESC are kept)
+_JUNK = bytes(b for b in range(32) if b not in b"\t\n\x0b\x0c\r\x1b") + b"\x7f"
+
+
+@dataclass
+class ReadStats:
+    """What forgiving reading changed: lines cut, junk bytes skipped, lines decoded as Latin-1."""
+
+    lines_cut: int = 0
+    junk_bytes_skipped: int = 0
+    latin1_lines: int = 0
+
+    def fill(self, report: ReadReport) -> None:
+        report.extra["lines_cut"] = self.lines_cut
+        report.extra["junk_bytes_skipped"] = self.junk_bytes_skipped
+        report.extra["latin1_lines"] = self.latin1_lines
+        if self.lines_cut:
+            report.notes.append(f"{self.lines_cut} lines longer than {LINE_LIMIT} characters cut")
+        if self.junk_bytes_skipped:
+            report.notes.append(f"{self.junk_bytes_skipped} NUL or binary junk bytes skipped")
+        if self.latin1_lines:
+            report.notes.append(f"{self.latin1_lines} lines that are not UTF-8 read as Latin-1")
 
 
 @dataclass
@@ -46,91 +77,154 @@ class TemplateTable:
     blank: int
     fixed: bool = False
     unlisted: list[dict] | None = None
-    #: the first pass's result per non-blank line, kept so that later passes need no masking:
+    #: the first pass's result per non-blank line, kept so that later passes need no mining:
     #: ``seen[ids[i]]`` is the template of the i-th non-blank line, ``numbers[i]`` its line number
     seen: list[str] | None = None
     ids: np.ndarray | None = None
     numbers: np.ndarray | None = None
+    stats: ReadStats = field(default_factory=ReadStats)
+    #: template text of every raw id of the first pass (listed templates, then mined clusters)
+    texts: list[str] | None = None
 
     def to_list(self) -> list[dict]:
-        """JSON-ready copy of the entries (template, count, first_line, example)."""
+        """JSON-ready copy of the entries (template, count, first_line, example, fields)."""
         return [dict(e) for e in self.entries]
 
 
-def _lines(origin: Origin, block_size: int) -> Iterator[tuple[int, list[str]]]:
+def _decode(block: bytes, stats: ReadStats) -> list[str]:
+    """Lines of a block: junk bytes removed, UTF-8 or (per line) Latin-1, CR removed, long lines cut."""
+    clean = block.translate(None, _JUNK)
+    if len(clean) != len(block):
+        stats.junk_bytes_skipped += len(block) - len(clean)
+    try:
+        lines = clean.decode("utf-8").split("\n")
+    except UnicodeDecodeError:
+        lines = []
+        for raw in clean.split(b"\n"):
+            try:
+                lines.append(raw.decode("utf-8"))
+            except UnicodeDecodeError:
+                lines.append(raw.decode("latin-1"))
+                stats.latin1_lines += 1
+    if lines[-1] == "":
+        lines.pop()
+    out = [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
+    if len(clean) > LINE_LIMIT and max(map(len, out), default=0) > LINE_LIMIT:
+        for i, ln in enumerate(out):
+            if len(ln) > LINE_LIMIT:
+                out[i] = ln[:LINE_LIMIT]
+                stats.lines_cut += 1
+    return out
+
+
+def _lines(origin: Origin, block_size: int, stats: ReadStats) -> Iterator[tuple[int, list[str]]]:
     """Blocks of decoded lines: ``(first_line_number, lines)`` with CR and LF removed."""
     for first_line, block in line_blocks(origin, block_size):
-        try:
-            text = block.decode("utf-8")
-        except UnicodeDecodeError as exc:
-            line = first_line + block[: exc.start].count(b"\n")
-            raise InputError(
-                f"{origin.name} line {line} is not valid UTF-8; convert the log to UTF-8 "
-                "(for example iconv -f latin1 -t utf-8) and read it again."
-            ) from None
-        lines = text.split("\n")
-        if lines[-1] == "":
-            lines.pop()
-        yield first_line, [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
+        yield first_line, _decode(block, stats)
 
 
-#: Logs with more non-blank lines than this are masked again on every pass instead of keeping
+#: Logs with more non-blank lines than this are mined again on every pass instead of keeping
 #: the first pass's template per line (12 bytes a line).
 _KEEP_LINES = 1 << 27
+
+
+def _assign(origin: Origin, block_size: int, listed: tuple[str, ...] | None, stats: ReadStats):
+    """Generator: ``(line numbers, raw ids, lines)`` per block; returns the miner at the end.
+
+    A raw id below ``len(listed)`` is a listed template; others are ``len(listed) + cluster``.
+    """
+    miner = TemplateMiner()
+    index = TemplateIndex(listed) if listed else None
+    base = len(listed) if listed else 0
+    add = miner.add
+    for first_line, lines in _lines(origin, block_size, stats):
+        kept = [j for j, line in enumerate(lines) if line and not line.isspace()]
+        klines = [lines[j] for j in kept]
+        if index is None:
+            raw = [add(ln) for ln in klines]
+        else:
+            raw = []
+            for ln in klines:
+                m = index.match(ln)
+                raw.append(m if m >= 0 else base + add(ln))
+        yield first_line + np.asarray(kept, dtype=np.int64), raw, klines, len(lines)
+    miner.finish()
+    return miner
 
 
 @dataclass
 class _Tally:
     counts: dict[str, int]
     first: dict[str, tuple[int, str]]
+    fields: dict[str, dict]
     total: int
     blank: int
     seen: list[str]
     ids: np.ndarray | None
     numbers: np.ndarray | None
+    texts: list[str]  # raw id -> template text
+    stats: ReadStats
 
 
-def _tally(origin: Origin, block_size: int) -> _Tally:
-    """Count the templates of a log, remember where each first occurs and (up to a size) each line's template."""
-    counts: dict[str, int] = {}
-    first: dict[str, tuple[int, str]] = {}
-    seen_id: dict[str, int] = {}
+def _tally(origin: Origin, block_size: int, listed: tuple[str, ...] | None = None) -> _Tally:
+    """Mine (and match) the templates of a log; count them, note where each first occurs and each line's template."""
+    stats = ReadStats()
+    first_raw: dict[int, tuple[int, str]] = {}
+    raw_counts: dict[int, int] = {}
     ids: list[np.ndarray] | None = []
     numbers: list[np.ndarray] | None = []
-    kept_lines = 0
-    blank = 0
-    total = 0
-    for first_line, lines in _lines(origin, block_size):
-        kept = [j for j, line in enumerate(lines) if line.strip()]
-        total += len(lines)
-        blank += len(lines) - len(kept)
-        block_ids = np.empty(len(kept), dtype=np.int32)
-        for k, (j, t) in enumerate(zip(kept, line_templates([lines[j] for j in kept]))):
-            if t in counts:
-                counts[t] += 1
+    kept_lines = blank = total = 0
+    gen = _assign(origin, block_size, listed, stats)
+    while True:
+        try:
+            nums, raw, klines, n_lines = next(gen)
+        except StopIteration as stop:
+            miner = stop.value
+            break
+        total += n_lines
+        blank += n_lines - len(raw)
+        for k, r in enumerate(raw):
+            c = raw_counts.get(r)
+            if c is None:
+                raw_counts[r] = 1
+                first_raw[r] = (int(nums[k]), klines[k][:_EXAMPLE_CHARS])
             else:
-                counts[t] = 1
-                first[t] = (first_line + j, lines[j][:_EXAMPLE_CHARS])
-                seen_id[t] = len(seen_id)
-            block_ids[k] = seen_id[t]
-        kept_lines += len(kept)
+                raw_counts[r] = c + 1
+        kept_lines += len(raw)
         if ids is not None and numbers is not None:
             if kept_lines > _KEEP_LINES:
                 ids = numbers = None
             else:
-                ids.append(block_ids)
-                numbers.append(first_line + np.asarray(kept, dtype=np.int64))
-    if not counts:
+                ids.append(np.asarray(raw, dtype=np.int64))
+                numbers.append(nums)
+    if not raw_counts:
         raise InputError(f"{origin.name} holds no log lines (only blank lines); give a log with events.")
+    mined = miner._templates or []
+    texts = list(listed or ()) + [mined[f].text for f in miner.final_ids]
+    counts: dict[str, int] = {}
+    first: dict[str, tuple[int, str]] = {}
+    for r in sorted(raw_counts, key=lambda r: first_raw[r][0]):
+        t = texts[r]
+        counts[t] = counts.get(t, 0) + raw_counts[r]
+        if t not in first:
+            first[t] = first_raw[r]
+    fields = {mt.text: mt.fields for mt in mined}
+    seen = list(dict.fromkeys(texts))
+    pos = {t: i for i, t in enumerate(seen)}
+    remap = np.asarray([pos[t] for t in texts], dtype=np.int32)
     return _Tally(
-        counts, first, total, blank, list(seen_id),
-        np.concatenate(ids) if ids is not None else None, np.concatenate(numbers) if numbers is not None else None,
+        counts, first, fields, total, blank, seen,
+        remap[np.concatenate(ids)] if ids is not None else None,
+        np.concatenate(numbers) if numbers is not None else None, texts, stats,
     )
 
 
-def _entry(t: str, counts: dict[str, int], first: dict[str, tuple[int, str]]) -> dict:
-    f = first.get(t)
-    return {"template": t, "count": counts.get(t, 0), "first_line": f[0] if f else None, "example": f[1] if f else None}
+def _entry(t: str, ty: _Tally) -> dict:
+    f = ty.first.get(t)
+    return {
+        "template": t, "count": ty.counts.get(t, 0), "first_line": f[0] if f else None, "example": f[1] if f else None,
+        "fields": {k: dict(sorted(v.items(), key=lambda kv: (-kv[1], kv[0]))) for k, v in sorted(ty.fields.get(t, {}).items())},
+    }
 
 
 def learn(origin: Origin, block_size: int) -> TemplateTable:
@@ -138,36 +232,44 @@ def learn(origin: Origin, block_size: int) -> TemplateTable:
     ty = _tally(origin, block_size)
     order = sorted(ty.counts, key=lambda t: (-ty.counts[t], t))
     return TemplateTable(
-        Alphabet("templates", tuple(order)), [_entry(t, ty.counts, ty.first) for t in order], ty.total, ty.blank,
-        seen=ty.seen, ids=ty.ids, numbers=ty.numbers,
+        Alphabet("templates", tuple(order)), [_entry(t, ty) for t in order], ty.total, ty.blank,
+        seen=ty.seen, ids=ty.ids, numbers=ty.numbers, stats=ty.stats, texts=ty.texts,
     )
 
 
 def fixed(origin: Origin, alphabet: Alphabet, block_size: int) -> TemplateTable:
     """First pass against a template alphabet given in advance (e.g. a model's): counts per listed template.
 
-    Lines whose template the alphabet does not list are read under the
-    reader's policy (break, skip or error) and named in ``unlisted``.
+    Lines that match no listed template are mined; they are read under the
+    reader's policy (break, skip or error) and their templates named in ``unlisted``.
     """
-    ty = _tally(origin, block_size)
+    ty = _tally(origin, block_size, tuple(alphabet.symbols))
     listed = set(alphabet.symbols)
     others = sorted((t for t in ty.counts if t not in listed), key=lambda t: (-ty.counts[t], t))
     return TemplateTable(
-        alphabet, [_entry(t, ty.counts, ty.first) for t in alphabet.symbols], ty.total, ty.blank, True,
-        [_entry(t, ty.counts, ty.first) for t in others], ty.seen, ty.ids, ty.numbers,
+        alphabet, [_entry(t, ty) for t in alphabet.symbols], ty.total, ty.blank, True,
+        [_entry(t, ty) for t in others], ty.seen, ty.ids, ty.numbers, ty.stats, ty.texts,
     )
 
 
 def _template_blocks(origin: Origin, table: TemplateTable, block_size: int) -> Iterator[tuple[np.ndarray, list[str]]]:
-    """``(line numbers, templates)`` of the non-blank lines, block by block: from the first pass when it kept them."""
+    """``(line numbers, templates)`` of the non-blank lines, block by block: from the first pass when it kept them.
+
+    Otherwise the log is mined again: the miner is deterministic, so its
+    cluster numbers are those of the first pass and ``table.texts`` names them.
+    """
     if table.ids is not None and table.seen is not None and table.numbers is not None:
         step = max(1, block_size // 64)  # about a block of lines
         for a in range(0, table.ids.size, step):
             yield table.numbers[a : a + step], [table.seen[i] for i in table.ids[a : a + step]]
         return
-    for first_line, lines in _lines(origin, block_size):
-        kept = [j for j, ln in enumerate(lines) if ln.strip()]
-        yield first_line + np.asarray(kept, dtype=np.int64), line_templates([lines[j] for j in kept])
+    texts = table.texts or []
+    listed = tuple(table.alphabet.symbols) if table.fixed else None
+    for nums, raw, _, _ in _assign(origin, block_size, listed, ReadStats()):
+        try:
+            yield nums, [texts[r] for r in raw]
+        except IndexError:
+            raise InputError(f"{origin.name} changed while it was read; read it again.") from None
 
 
 def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadReport, policy: str = "break") -> Iterator[Chunk]:
@@ -193,6 +295,7 @@ def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadRe
     report.records = [Record(origin.name, 0, total)]
     report.extra["templates"] = table.to_list()
     report.extra["lines"] = table.lines
+    table.stats.fill(report)
     if table.blank:
         report.notes.append(f"{table.blank} blank lines skipped")
 
@@ -225,6 +328,7 @@ def _fixed_chunks(origin: Origin, table: TemplateTable, block_size: int, report:
     report.extra["templates"] = table.to_list()
     report.extra["unlisted_templates"] = [dict(e) for e in (table.unlisted or [])]
     report.extra["lines"] = table.lines
+    table.stats.fill(report)
     if table.blank:
         report.notes.append(f"{table.blank} blank lines skipped")
     if table.unlisted:

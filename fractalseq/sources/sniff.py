@@ -3,7 +3,9 @@
 Rules of ``fmt="auto"``, applied to the first 64 KiB after decompression:
 
 1. Empty, or only blank lines: :class:`InputError`.
-2. Binary content (a NUL byte; or more than 5 % control characters other
+2. Binary content (a NUL byte outside runs of 8 or more; NUL runs making up
+   half the block or more, or a block without a line end once they are set
+   aside; or, in the rest, more than 5 % control characters other
    than tab, line feed, vertical tab, form feed, carriage return and escape
    (colour codes in logs); or not
    UTF-8 with more than 30 % bytes above 127): :class:`InputError`, unless the
@@ -40,6 +42,7 @@ from fractalseq.sources import numeric
 from fractalseq.sources.templates import has_timestamp
 
 FORMATS: tuple[str, ...] = ("auto", "fasta", "fastq", "text", "tokens", "log", "numeric")
+_NUL_RUN = re.compile(rb"\x00{8,}")
 _CONTROL = np.ones(256, dtype=bool)
 _CONTROL[32:127] = False
 _CONTROL[128:] = False
@@ -52,7 +55,11 @@ def is_binary(block: bytes) -> bool:
     if not block:
         return False
     if b"\x00" in block:
-        return True
+        # a text log may hold blocks of NUL bytes (a file preallocated or cut by a crash): judge the rest
+        rest = _NUL_RUN.sub(b"", block)
+        if b"\x00" in rest or len(rest) * 2 < len(block) or b"\n" not in rest:
+            return True
+        block = rest
     arr = np.frombuffer(block, dtype=np.uint8)
     if _CONTROL[arr].mean() > 0.05:
         return True

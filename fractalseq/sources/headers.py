@@ -1,0 +1,179 @@
+"""Separating a log line's header (time, host, program, level) from its message.
+
+Recognised at the start of a line, in this order (each optional):
+
+1. ``<PRI>`` of syslog; ``<PRI>1 TIME HOST APP PROCID MSGID SD`` of RFC 5424
+   (structured data ``[...]`` or ``-`` is dropped with the header).
+2. A timestamp: ISO 8601 / RFC 3339 (``2024-01-05 10:11:12``,
+   ``2024-01-05T10:11:12.123Z``, ``2024/01/05 10:11:12``), RFC 3164 syslog
+   (``Jan  5 10:11:12``, optional weekday and year), ``05-Jan-2024 10:11:12``,
+   epoch seconds or milliseconds (``1700000000``), a bare clock
+   (``10:11:12.5``), and any of these in square brackets, including the
+   common-log date ``[05/Jan/2024:10:11:12 +0000]``.  A common-log date after
+   the first three fields (``host ident user [date] ...``) is removed too.
+3. ``host program[pid]:`` after a syslog-style time, or ``program[pid]:``.
+4. A level word (``INFO``, ``WARN``, ``ERROR``, ``DEBUG``... see ``LEVELS``),
+   upper case, or any case inside brackets or followed by ``:``.
+
+Every pattern is anchored and has only bounded repetitions, so matching costs
+a bounded number of steps per line whatever its length.  The time itself is
+dropped (it never belongs to a template); host, program and level are
+returned beside the message.
+"""
+
+from __future__ import annotations
+
+import re
+from typing import NamedTuple
+
+__all__ = ["LEVELS", "Header", "split_header"]
+
+LEVELS = frozenset(
+    "TRACE DEBUG DBG FINE FINER FINEST INFO INFORMATION NOTICE NOTE WARN WARNING ERR ERROR SEVERE CRIT "
+    "CRITICAL ALERT EMERG EMERGENCY FATAL PANIC".split()
+)
+
+_MON = r"(?:Jan|Feb|Mar|Apr|May|Jun|Jul|Aug|Sep|Oct|Nov|Dec)"
+_WDAY = r"(?:Mon|Tue|Wed|Thu|Fri|Sat|Sun)"
+_FRAC = r"(?:[.,]\d{1,9})?"
+_ZONE = r"(?: ?(?:Z|[+-]\d{2}:?\d{2}|UTC|GMT))?"
+_ISO = r"\d{4}[-/]\d{2}[-/]\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2})?" + _FRAC + _ZONE + r")?"
+_SYSLOG = r"(?:" + _WDAY + r",? {1,2})?" + _MON + r" {1,2}\d{1,2},? \d{2}:\d{2}:\d{2}" + _FRAC + r"(?: \d{4}(?= |\]|$))?"
+_DMY = r"\d{1,2}[-/ ]" + _MON + r"[-/ ]\d{4}(?:[ :T]\d{2}:\d{2}:\d{2}" + _FRAC + r")?(?: [+-]\d{4})?"
+_EPOCH = r"1\d{9}(?:\d{3})?(?:\.\d{1,9})?"
+_CLOCK = r"\d{2}:\d{2}:\d{2}" + _FRAC
+_ANY = r"(?:" + _ISO + "|" + _DMY + "|" + _EPOCH + "|" + _CLOCK + ")"
+# a time ends at a space, a ':' + space (``10:11:12: msg``), or the end of the line
+_END = r"(?::?(?: +|$))"
+
+_TIME_DIGIT = re.compile(_ANY + _END)
+_TIME_WORD = re.compile(r"(" + _SYSLOG + r")" + _END)
+_TIME_BRACKET = re.compile(r"\[(?:" + _ANY + "|" + _SYSLOG + r")\]:?(?: +|$)")
+_CLF_AFTER = re.compile(r"(\S{1,255} \S{1,255} \S{1,255} )\[" + _DMY + r"\](?: +|$)")
+_PRI = re.compile(r"<\d{1,3}>")
+_R5424 = re.compile(r"<\d{1,3}>\d{1,2} (\S{1,64}) (\S{1,255}) (\S{1,48}) (\S{1,128}) (\S{1,32}) ")
+_HOST_PROG = re.compile(r"([\w.-]{1,255}) ([\w./@-]{1,64})(?:\[\d{1,10}\])?:(?: +|$)")
+_PROG_PID = re.compile(r"([\w./@-]{1,64})\[\d{1,10}\]:(?: +|$)")
+_PROG = re.compile(r"([\w./@-]{1,64})(?:\[\d{1,10}\])?:(?: +|$)")
+_WORD = re.compile(r"\[?([A-Za-z]{3,11})\]?:?(?: +|$)")
+
+
+class Header(NamedTuple):
+    """Fields of a line's header that are kept beside its template (empty string when absent)."""
+
+    host: str
+    program: str
+    level: str
+
+
+_EMPTY = Header("", "", "")
+
+
+def _level(line: str, pos: int) -> tuple[str, int]:
+    m = _WORD.match(line, pos)
+    if m is None:
+        return "", pos
+    word = m.group(1)
+    up = word.upper()
+    if up not in LEVELS:
+        return "", pos
+    text = m.group(0).rstrip()
+    if word.isupper() or text[0] == "[" or text[-1] == ":":
+        return up, m.end()
+    return "", pos
+
+
+def _skip_sd(line: str, pos: int) -> int:
+    """End of RFC 5424 structured data (``-`` or ``[..][..]``) starting at ``pos``."""
+    n = len(line)
+    if line.startswith("- ", pos) or (pos == n - 1 and line[pos] == "-"):
+        return min(n, pos + 2)
+    while pos < n and line[pos] == "[":
+        i = pos + 1
+        while i < n:
+            c = line[i]
+            if c == "\\":
+                i += 2
+                continue
+            if c == "]":
+                break
+            i += 1
+        pos = i + 1
+    while pos < n and line[pos] == " ":
+        pos += 1
+    return pos
+
+
+def split_header(line: str) -> tuple[Header, str]:
+    """The header fields of a log line and its message (the rest of the line).
+
+    Parameters
+    ----------
+    line:
+        One log line without its line end.
+
+    Returns
+    -------
+    (Header, str)
+        Host, program and level ("" when absent) and the message.  A line
+        without a recognised header is returned whole as the message.
+
+    Examples
+    --------
+    >>> split_header("Jan  5 10:11:12 belka sshd[31602]: Failed password for root")
+    (Header(host='belka', program='sshd', level=''), 'Failed password for root')
+    >>> split_header("2024-01-05T10:11:12.123Z ERROR disk full")
+    (Header(host='', program='', level='ERROR'), 'disk full')
+    """
+    if not line:
+        return _EMPTY, line
+    c = line[0]
+    pos = 0
+    host = program = ""
+    syslog_like = False
+    if c == "<":
+        m = _R5424.match(line)
+        if m is not None:
+            host = "" if m.group(2) == "-" else m.group(2)
+            program = "" if m.group(3) == "-" else m.group(3)
+            pos = _skip_sd(line, m.end())
+            lv, pos = _level(line, pos)
+            return Header(host, program, lv), line[pos:]
+        m = _PRI.match(line)
+        if m is None:
+            return _EMPTY, line
+        pos = m.end()
+        c = line[pos : pos + 1]
+    stamped = False
+    if c.isdigit():
+        m = _TIME_DIGIT.match(line, pos)
+        if m is not None:
+            pos, stamped = m.end(), True
+            syslog_like = True
+    elif c == "[":
+        m = _TIME_BRACKET.match(line, pos)
+        if m is not None:
+            pos, stamped = m.end(), True
+    elif c.isalpha():
+        m = _TIME_WORD.match(line, pos)
+        if m is not None:
+            pos, stamped, syslog_like = m.end(), True, True
+    if not stamped and pos == 0:
+        m = _CLF_AFTER.match(line)
+        if m is not None:
+            return _EMPTY, m.group(1) + line[m.end():]
+    lv, pos = _level(line, pos)
+    if stamped or pos:
+        if syslog_like and not lv:
+            m = _HOST_PROG.match(line, pos)
+            if m is not None:
+                host, program, pos = m.group(1), m.group(2), m.end()
+        if not program:
+            m = (_PROG if syslog_like and not lv else _PROG_PID).match(line, pos)
+            if m is not None:
+                program, pos = m.group(1), m.end()
+        if not lv:
+            lv, pos = _level(line, pos)
+    if not pos:
+        return _EMPTY, line
+    return Header(host, program, lv), line[pos:]
