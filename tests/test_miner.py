@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import hashlib
 import ipaddress
-import uuid
 from collections import defaultdict
 from pathlib import Path
 

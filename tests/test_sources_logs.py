@@ -11,8 +11,6 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
 
 from fractalseq.errors import InputError
 from fractalseq.sources import line_template, open_source
