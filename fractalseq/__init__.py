@@ -82,6 +82,13 @@ _FACADE: dict[str, str] = {
     "run_survey": "fractalseq.jobs",
     "SurveyOptions": "fractalseq.jobs",
     "make_engine": "fractalseq.jobs",
+    "ReaderOptions": "fractalseq.jobs",
+    "expand_inputs": "fractalseq.jobs",
+    "survey_files": "fractalseq.jobs",
+    "survey_cache": "fractalseq.jobs",
+    "write_survey": "fractalseq.jobs",
+    "drift_files": "fractalseq.jobs",
+    "scan_file": "fractalseq.jobs",
 }
 
 __all__ = [

@@ -336,7 +336,8 @@ def test_a_large_survey_keeps_its_report_readable_and_small(tmp_path):
     import struct
 
     from fractalseq.runner import SerialEngine
-    from fractalseq.jobs._survey import MATRIX_IN_PAGE, NAMED_LEAVES, SurveyOptions, expand_inputs, run_survey, write_outputs
+    from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey, write_outputs
+    from fractalseq.report.survey import MATRIX_IN_PAGE, NAMED_LEAVES
 
     n = NAMED_LEAVES + 1
     assert n > NAMED_LEAVES and n > MATRIX_IN_PAGE

@@ -10,7 +10,7 @@ import typer
 from rich.table import Table
 
 from fractalseq.cli import common
-from fractalseq.cli.inputs import read_input, reader_options, safe_stem
+from fractalseq.cli.inputs import reader, safe_stem
 from fractalseq.errors import OutputError, ParameterError
 
 BOOT = typer.Option(
@@ -144,12 +144,12 @@ def profile(
         raise ParameterError(f"--level {level} is outside (0.5, 1); use e.g. 0.95.")
     if depth is not None and depth < 2:
         raise ParameterError(f"--depth {depth} is too small; the entropy rates need words of length 2 or more.")
-    reader = reader_options(column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
     _check_out(out, force)
     parameters = {"ratio": k, "q": list(q_list), "depth": depth, "boot": boot, "level": level, "seed": seed,
                   "alphabet": alphabet, "format": fmt, "unknown": policy}
-    if reader:  # numeric reader options, only when given (see fractalseq.cli.inputs.reader_options)
-        parameters["reader"] = reader
+    if read.numeric_options():  # numeric reader options, only when given
+        parameters["reader"] = read.numeric_options()
 
     results = []
     subfolders: list[str] = []
@@ -159,7 +159,7 @@ def profile(
     with common.progress(quiet) as bar:
         for path in paths:
             task = bar.add_task(f"{path}: reading", total=len(STEPS) + 1)
-            arr = read_input(path, fmt, alphabet, policy, **reader)
+            arr = read.read(path)
             if depth is not None and depth > arr.alphabet.max_depth:
                 raise ParameterError(
                     f"--depth {depth} exceeds the deepest word length {arr.alphabet.max_depth} for "

@@ -9,7 +9,7 @@ import typer
 from rich.table import Table
 
 from fractalseq.cli import common
-from fractalseq.cli.inputs import open_input, reader_options
+from fractalseq.cli.inputs import reader
 from fractalseq.errors import InputError
 from fractalseq.io._outputs import check_writable, to_json
 
@@ -42,11 +42,11 @@ def count(
 
     if save is not None:
         check_writable(save, force)
-    reader = reader_options(column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
         wc, reports = count_inputs(
-            ((p, open_input(p, fmt, alphabet, policy, **reader)) for p in paths), depth,
+            ((p, read.open(p)) for p in paths), depth,
             on_input=lambda _: bar.advance(task),
         )
     if wc.length == 0:
