@@ -68,6 +68,8 @@ def run_example(
             with tempfile.TemporaryDirectory() as tmp:
                 run(Path(tmp), args)
     except FractalseqError as exc:
-        print(f"error: {exc}", file=sys.stderr)
+        # library errors name the parameter to change; say which option of the script sets it
+        option = {"force": "--force", "seed": "--seed"}.get(getattr(exc, "parameter", None) or "")
+        print(f"error: {str(exc).rstrip('.')} (option {option})." if option else f"error: {exc}", file=sys.stderr)
         return 2
     return 0

@@ -386,6 +386,8 @@ def test_library_errors_name_parameters_and_the_command_names_the_option(sample,
         (["scan", str(sample), "--window", "2000", "--penalty", "soft"], "penalty", "(option --penalty)."),
         (["count", str(sample), "--thresholds", "1,x"], "thresholds", "(option --thresholds)."),
         (["count", str(sample), "--unknown", "drop"], "policy", "(option --unknown)."),
+        (["count", str(sample), "--save", str(sample)], "force", "(option --force)."),
+        (["survey", str(sample), "--cache", str(sample)], "cache", "(option --cache)."),
     ]
     for argv, parameter, hint in cases:
         capsys.readouterr()

@@ -530,9 +530,9 @@ def profile_source(
     user_qs = check_qs(qs)
     k = check_ratio(ratio)
     if not isinstance(n_boot, (int, np.integer)) or n_boot < 0 or 0 < n_boot < 20:
-        raise ParameterError(f"Bootstrap replicates must be 0 (none) or at least 20, not {n_boot!r}.")
+        raise ParameterError(f"Bootstrap replicates must be 0 (none) or at least 20, not {n_boot!r}.", parameter="n_boot")
     if not 0.5 < float(level) < 1:
-        raise ParameterError(f"Confidence level {level} is outside (0.5, 1); use e.g. 0.95.")
+        raise ParameterError(f"Confidence level {level} is outside (0.5, 1); use e.g. 0.95.", parameter="level")
     A = arr.alphabet.size
     if A < 2:
         raise InputError("The alphabet has fewer than 2 symbols; there is no complexity to measure.")
@@ -541,7 +541,7 @@ def profile_source(
         raise InputError(f"The stream has {L} symbol(s); a profile needs at least 2.")
     N = check_depth(arr.alphabet, auto_depth(L, arr.alphabet) if depth is None else depth)
     if N < 2:
-        raise ParameterError("The depth must be at least 2 for entropy-rate estimates; use --depth 2 or more.")
+        raise ParameterError("The depth must be at least 2 for entropy-rate estimates; use 2 or more.", parameter="depth")
     notes: list[str] = []
     timings: dict[str, float] = {}
     step_start = [time.perf_counter()]
