@@ -47,14 +47,15 @@ from fractalseq.dimensions import _spectrum as sp
 from fractalseq.alphabet import Alphabet
 from fractalseq.encoding import check_ratio, corner_layout, density_image, overlap_check, points
 from fractalseq.errors import FractalseqError, InputError, ParameterError
-from fractalseq.jobs._inputs import check_seed
+from fractalseq.jobs._inputs import ReaderOptions, check_seed
 from fractalseq.jobs._profile_result import ProfileResult, ScalingCurve
 from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
 
 __all__ = [
-    "CAUTION_GENERAL", "CAUTION_GENOMIC", "DEFAULT_BOOT", "FORMAT", "STEPS", "VERSION", "ProfileResult", "ScalingCurve",
+    "CAUTION_GENERAL", "CAUTION_GENOMIC", "DEFAULT_BOOT", "FORMAT", "STEPS", "VERSION", "ProfileResult", "ProfileSettings",
+    "ScalingCurve",
     "auto_depth", "check_qs", "contract", "image_levels", "profile_source",
 ]
 
@@ -194,6 +195,70 @@ def _predictor_code_length(arr: SymbolArray):
     )
 
 
+# ----------------------------------------------------------------- settings
+@dataclass(frozen=True)
+class ProfileSettings:
+    """The settings of a profile, checked when made (before anything is read).
+
+    Attributes
+    ----------
+    ratio:
+        Contraction ratio k of the encoding, ``0 < k < 1``.
+    qs:
+        Orders q (sorted, distinct).
+    depth:
+        Deepest word length of the block-entropy table (``None``: :func:`auto_depth`); at least 2.
+    n_boot:
+        Block-bootstrap replicates (0: none; else at least 20).
+    level:
+        Confidence level of the intervals, in (0.5, 1).
+    seed:
+        Seed of every random step (:func:`fractalseq.jobs._inputs.check_seed`).
+    """
+
+    ratio: float = 0.5
+    qs: tuple[float, ...] = (0.0, 1.0, 2.0)
+    depth: int | None = None
+    n_boot: int = DEFAULT_BOOT
+    level: float = 0.95
+    seed: int = 0
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "qs", check_qs(self.qs))
+        object.__setattr__(self, "ratio", check_ratio(self.ratio))
+        n_boot = self.n_boot
+        if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 0:
+            raise ParameterError(f"Bootstrap replicates must be 0 (none) or a whole number of at least 20, not {n_boot!r}.", parameter="n_boot")
+        if 0 < n_boot < 20:
+            raise ParameterError(f"{n_boot} bootstrap replicates are too few for an interval; use 0 (none) or at least 20.", parameter="n_boot")
+        if not 0.5 < float(self.level) < 1:
+            raise ParameterError(f"Confidence level {self.level} is outside (0.5, 1); use e.g. 0.95.", parameter="level")
+        if self.depth is not None and (isinstance(self.depth, bool) or not isinstance(self.depth, (int, np.integer)) or self.depth < 2):
+            raise ParameterError(f"Depth {self.depth!r} is too small; the entropy rates need words of length 2 or more.", parameter="depth")
+        object.__setattr__(self, "seed", check_seed(self.seed))
+
+    def depth_for(self, length: int, alphabet: Alphabet) -> int:
+        """The deepest word length counted for a stream of ``length`` symbols over ``alphabet``."""
+        if self.depth is not None and self.depth > alphabet.max_depth:
+            raise ParameterError(
+                f"Depth {self.depth} exceeds the deepest word length {alphabet.max_depth} for {alphabet.size} symbols; "
+                f"use {alphabet.max_depth} or less.",
+                parameter="depth",
+            )
+        return check_depth(alphabet, auto_depth(length, alphabet) if self.depth is None else self.depth)
+
+    def parameters(self, reader: ReaderOptions | None = None) -> dict[str, Any]:
+        """The ``parameters`` object of the profile's JSON document (reader options only when not the defaults)."""
+        reader = reader or ReaderOptions()
+        out: dict[str, Any] = {
+            "ratio": self.ratio, "q": list(self.qs), "depth": self.depth, "boot": self.n_boot, "level": self.level,
+            "seed": self.seed, "alphabet": reader.alphabet, "format": reader.fmt, "unknown": reader.policy,
+        }
+        if reader.numeric_options():
+            out["reader"] = reader.numeric_options()
+        return out
+
+
 # ---------------------------------------------------------------- the steps
 class _Clock:
     """Seconds per step (kept out of the JSON) and the progress callback."""
@@ -213,30 +278,18 @@ class _Clock:
             self.progress(name)
 
 
-def _checked_input(
-    arr: SymbolArray | SymbolStream, qs: Sequence[float], ratio: float, depth: int | None, n_boot: int, seed: int, level: float
-) -> tuple[SymbolArray, tuple[float, ...], float, int]:
-    """The stream in memory, the orders, the ratio and the depth, after every check (before any work)."""
+def _checked_input(arr: SymbolArray | SymbolStream, settings: ProfileSettings) -> tuple[SymbolArray, int]:
+    """The stream in memory and the depth to count, after every check."""
     if isinstance(arr, SymbolStream):
         arr = arr.to_array()
     if not isinstance(arr, SymbolArray):
         raise InputError("profile_source needs a stream (SymbolArray or SymbolStream).")
-    user_qs = check_qs(qs)
-    k = check_ratio(ratio)
-    if not isinstance(n_boot, (int, np.integer)) or n_boot < 0 or 0 < n_boot < 20:
-        raise ParameterError(f"Bootstrap replicates must be 0 (none) or at least 20, not {n_boot!r}.", parameter="n_boot")
-    if not 0.5 < float(level) < 1:
-        raise ParameterError(f"Confidence level {level} is outside (0.5, 1); use e.g. 0.95.", parameter="level")
-    check_seed(seed)
     if arr.alphabet.size < 2:
         raise InputError("The alphabet has fewer than 2 symbols; there is no complexity to measure.")
     L = len(arr)
     if L < 2:
         raise InputError(f"The stream has {L} symbol(s); a profile needs at least 2.")
-    N = check_depth(arr.alphabet, auto_depth(L, arr.alphabet) if depth is None else depth)
-    if N < 2:
-        raise ParameterError("The depth must be at least 2 for entropy-rate estimates; use 2 or more.", parameter="depth")
-    return arr, user_qs, k, N
+    return arr, settings.depth_for(L, arr.alphabet)
 
 
 @dataclass
@@ -453,7 +506,9 @@ def profile_source(
     ProfileResult
     """
     clock = _Clock(progress)
-    arr, user_qs, k, N = _checked_input(arr, qs, ratio, depth, n_boot, seed, level)
+    settings = ProfileSettings(ratio, tuple(qs), depth, n_boot, level, seed)
+    arr, N = _checked_input(arr, settings)
+    user_qs, k = settings.qs, settings.ratio
     L = len(arr)
     notes: list[str] = []
     ov = overlap_check(k, corner_layout(arr.alphabet.size))
