@@ -89,6 +89,20 @@ _FACADE: dict[str, str] = {
     "write_survey": "fractalseq.jobs",
     "drift_files": "fractalseq.jobs",
     "scan_file": "fractalseq.jobs",
+    # known sources
+    "simulate_markov": "fractalseq.datasets",
+    "entropy_rate": "fractalseq.datasets",
+    # files out
+    "prepare_folder": "fractalseq.io",
+    "write_json": "fractalseq.io",
+    "write_text": "fractalseq.io",
+    # readers (log lines)
+    "line_template": "fractalseq.sources",
+}
+
+#: Façade name -> a module offered whole: the invented demo scenario (``fs.scenario.generate``, its ground truth).
+_MODULES: dict[str, str] = {
+    "scenario": "fractalseq.datasets._scenario",
 }
 
 __all__ = [
@@ -103,11 +117,16 @@ __all__ = [
     "SymbolStream",
     "__version__",
     *sorted(_FACADE),
+    *sorted(_MODULES),
 ]
 
 
 def __getattr__(name: str) -> Any:
     """Load a façade name from its family on first use (PEP 562)."""
+    if name in _MODULES:
+        module = importlib.import_module(_MODULES[name])
+        globals()[name] = module
+        return module
     family = _FACADE.get(name)
     if family is None:
         raise AttributeError(f"module 'fractalseq' has no attribute {name!r}")
