@@ -8,7 +8,7 @@ in the document.  Same input and seed, same JSON bytes.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Union
 
 import numpy as np
 
@@ -20,7 +20,10 @@ from fractalseq.encoding import OverlapCheck
 from fractalseq.entropy._estimators import EntropyEstimate
 from fractalseq.words._absent import WordReport
 
-__all__ = ["ProfileResult", "ScalingCurve"]
+__all__ = ["JsonValue", "ProfileResult", "ScalingCurve"]
+
+#: A value of a JSON document (what the tables and reports of a profile hold).
+JsonValue = Union[None, bool, int, float, str, list["JsonValue"], dict[str, "JsonValue"]]
 
 
 @dataclass(frozen=True, eq=False)
@@ -117,7 +120,7 @@ class ProfileResult:
     level: float
     overlap: OverlapCheck
     spectrum: SpectrumResult
-    entropy_rows: tuple[dict[str, Any], ...]
+    entropy_rows: tuple[dict[str, JsonValue], ...]
     rates: dict[str, tuple[str, EntropyEstimate]]
     renyi: tuple[EntropyEstimate, ...]
     topological: EntropyEstimate
@@ -127,9 +130,9 @@ class ProfileResult:
     scaling: tuple[ScalingCurve, ...]
     image: np.ndarray | None
     image_levels: int | None
-    read: dict[str, Any]
-    rate_block: dict[str, Any] | None
-    settings: dict[str, Any]
+    read: dict[str, JsonValue]
+    rate_block: dict[str, JsonValue] | None
+    settings: dict[str, JsonValue]
     notes: tuple[str, ...]
     timings: dict[str, float] = field(default_factory=dict, compare=False)
 
