@@ -89,6 +89,7 @@ _FACADE: dict[str, str] = {
     "write_survey": "fractalseq.jobs",
     "drift_files": "fractalseq.jobs",
     "scan_file": "fractalseq.jobs",
+    "count_files": "fractalseq.jobs",
     # known sources
     "simulate_markov": "fractalseq.datasets",
     "entropy_rate": "fractalseq.datasets",

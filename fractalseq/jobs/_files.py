@@ -12,24 +12,93 @@ from __future__ import annotations
 
 import dataclasses
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Callable, Sequence
 
-from fractalseq.errors import ParameterError
+from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache
 from fractalseq.jobs._inputs import ReaderOptions, check_seed
 from fractalseq.jobs._sources import SourceSpec, expand_inputs
+from fractalseq.results import Result
 from fractalseq.runner import Engine, SerialEngine
+from fractalseq.words._counts import WordCounts
 
 if TYPE_CHECKING:
     from fractalseq.compare._drift import DriftOptions, DriftResult
     from fractalseq.compare._scan import ScanResult
     from fractalseq.jobs._survey import Progress, SurveyOptions, SurveyResult
 
-__all__ = ["CachePlan", "batch_specs", "drift_files", "parse_penalty", "scan_file", "survey_cache", "survey_files"]
+__all__ = [
+    "CachePlan", "CountSummary", "batch_specs", "count_files", "drift_files", "parse_penalty", "scan_file", "survey_cache",
+    "survey_files",
+]
 
 Batch = str | Sequence[str]
+
+
+# =================================================================== count
+@dataclass(frozen=True, eq=False)
+class CountSummary(Result):
+    """Word counts of several inputs merged, as ``fractalseq count --json`` prints them.
+
+    Attributes
+    ----------
+    inputs:
+        Per input: its name and what its reader kept and dropped.
+    alphabet, length, segments, depth, storage:
+        The merged counts' alphabet, symbols, segments, deepest word length and table kind.
+    ladder:
+        Per depth: distinct words, occurrences, possible words (the box-counting ladder).
+    top:
+        The most frequent words at the deepest depth (empty unless asked for).
+    counts:
+        The counts themselves (not part of the JSON).
+    """
+
+    inputs: tuple[dict, ...]
+    alphabet: dict
+    length: int
+    segments: int
+    depth: int
+    storage: str
+    ladder: tuple[dict, ...]
+    top: tuple[dict, ...]
+    counts: WordCounts = field(metadata={"json": False})
+
+
+def count_files(
+    paths: Sequence[str],
+    depth: int,
+    reader: ReaderOptions | None = None,
+    *,
+    top: int = 0,
+    on_input: Callable[[str], None] | None = None,
+) -> CountSummary:
+    """Count every word of length 1..``depth`` of several inputs together (what ``fractalseq count`` does).
+
+    Raises
+    ------
+    InputError
+        When the inputs hold no usable symbol.
+    """
+    from fractalseq.words._counts import count_inputs
+
+    reader = reader or ReaderOptions()
+    wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    if wc.length == 0:
+        raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
+    return CountSummary(
+        inputs=tuple({"name": p, **r.to_dict()} for p, r in reports),
+        alphabet=wc.alphabet.to_dict(),
+        length=wc.length,
+        segments=wc.segments,
+        depth=wc.depth,
+        storage=wc.storage,
+        ladder=tuple(wc.ladder()),
+        top=tuple({"word": w, "count": c} for w, c in wc.top(wc.depth, top)) if top else (),
+        counts=wc,
+    )
 
 
 # =================================================================== drift
