@@ -398,3 +398,13 @@ def test_library_errors_name_parameters_and_the_command_names_the_option(sample,
     with pytest.raises(fractalseq.ParameterError) as info:
         fractalseq.ReaderOptions(fmt="numeric", thresholds=(0.5, 0.2))
     assert info.value.parameter == "thresholds"
+
+
+def test_count_files_in_python_prints_the_same_json_as_the_command(sample, capsys):
+    printed = _cli_text(["count", str(sample), "-n", "5", "--top", "3", "--json", "-q"], capsys)
+    summary = fractalseq.count_files([str(sample)], 5, top=3)
+    from fractalseq.io import to_json
+
+    assert to_json(summary.to_dict()) == printed
+    # the ladder's 1-words are every symbol once (the sample holds 8,000 bases)
+    assert summary.ladder[0]["occurrences"] == summary.length == 8_000
