@@ -1,7 +1,7 @@
 """What every example script shares: its command line, its output folder and the invented scenario.
 
 **The data are invented.**  Every example works on the Kelpwater Marine Station
-scenario (:mod:`fractalseq.datasets._scenario`), generated from a seed into the output
+scenario (``fs.scenario``), generated from a seed into the output
 folder.  A script defines ``run(folder, args)`` and ends with
 ``sys.exit(run_example(run, __doc__))``; this module parses the options common
 to all scripts, prepares the folder (or a temporary one) and turns a
@@ -21,9 +21,7 @@ import tempfile
 from pathlib import Path
 from typing import Callable
 
-from fractalseq.datasets import _scenario as scenario
-from fractalseq.errors import FractalseqError
-from fractalseq.io._outputs import prepare_folder
+import fractalseq as fs
 
 #: Seed of the invented scenario unless ``--seed`` says otherwise.
 DEFAULT_SEED = 7
@@ -43,12 +41,12 @@ def parse_args(doc: str, argv: list[str] | None = None) -> argparse.Namespace:
 
 def make_scenario(
     folder: Path, args: argparse.Namespace, *, length: int, log_lines: int = 200
-) -> tuple[scenario.Scenario, dict[str, scenario.SourceTruth]]:
+) -> tuple["fs.scenario.Scenario", dict[str, "fs.scenario.SourceTruth"]]:
     """Generate the invented scenario into ``folder/scenario`` and print its note.
 
     Returns the scenario and its samples' ground truth by sample name.
     """
-    world = scenario.generate(folder / "scenario", seed=args.seed, length=length, log_lines=log_lines, force=args.force)
+    world = fs.scenario.generate(folder / "scenario", seed=args.seed, length=length, log_lines=log_lines, force=args.force)
     print(world.note)
     return world, {s.name: s for s in world.sources}
 
@@ -63,11 +61,13 @@ def run_example(
     args = parse_args(doc, argv)
     try:
         if args.folder:
-            run(prepare_folder(Path(args.folder), args.force), args)
+            run(fs.prepare_folder(Path(args.folder), args.force), args)
         else:
             with tempfile.TemporaryDirectory() as tmp:
                 run(Path(tmp), args)
-    except FractalseqError as exc:
-        print(f"error: {exc}", file=sys.stderr)
+    except fs.FractalseqError as exc:
+        # library errors name the parameter to change; say which option of the script sets it
+        option = {"force": "--force", "seed": "--seed"}.get(getattr(exc, "parameter", None) or "")
+        print(f"error: {str(exc).rstrip('.')} (option {option})." if option else f"error: {exc}", file=sys.stderr)
         return 2
     return 0

@@ -1,7 +1,7 @@
 """Survey the simulated samples: which are alike, and do the figures match the truth?
 
 **The data are invented.**  They come from the Kelpwater Marine Station scenario
-(:mod:`fractalseq.datasets._scenario`): five fictional "symbiont samples" simulated from
+(``fs.scenario``): five fictional "symbiont samples" simulated from
 known sources — two independent ones (uniform and AT-rich), a first-order
 Markov chain, a "sticky" chain that tends to repeat its base, and a second
 draw of the same first-order chain with a tandem-repeat island inserted.
@@ -10,13 +10,14 @@ fractalseq is for research, not for clinical decisions.
 
 What it shows (Python API):
 
-* :func:`fractalseq.jobs._survey.expand_inputs` and :func:`fractalseq.jobs._survey.run_survey`
-  profile every source (serially here; pass an engine from :mod:`fractalseq.jobs._engines`
-  to use processes or a Dask cluster — same numbers);
+everything through the façade ``import fractalseq as fs``:
+
+* ``fs.survey_files`` expands a folder into sources and profiles every one (serially
+  here; pass ``engine=fs.make_engine("processes", 2)`` to use processes, or a Dask
+  scheduler — same numbers), exactly as ``fractalseq survey`` does;
 * the result's Jensen–Shannon distances and clustering (``result.js``, ``result.clustering``);
-* :func:`fractalseq.compare._distances.word_matrix` and :func:`fractalseq.compare._distances.js_divergence`
-  on two word tables from :func:`fractalseq.words._counts.count_words`: the same distance by hand;
-* :func:`fractalseq.jobs._survey.write_outputs` writes the CSV/JSON/HTML report.
+* ``fs.js_divergence`` on two word tables from ``fs.count_words``: the same distance by hand;
+* ``fs.write_survey`` writes the CSV/JSON/HTML report.
 
 Run::
 
@@ -31,10 +32,7 @@ from pathlib import Path
 
 import numpy as np
 
-from fractalseq.compare._distances import js_divergence, word_matrix
-from fractalseq.sources import open_source
-from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey, write_outputs
-from fractalseq.words._counts import count_words
+import fractalseq as fs
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
 
@@ -42,8 +40,8 @@ from _scenario_setup import make_scenario, run_example  # shared options, output
 def run(folder: Path, args: argparse.Namespace) -> None:
     length = 20_000 if args.quick else 60_000
     _, truth = make_scenario(folder, args, length=length)
-    specs = expand_inputs([str(folder / "scenario" / "samples")])  # every file of the folder, sorted by name
-    result = run_survey(specs, SurveyOptions(alphabet="dna", seed=args.seed))
+    # every file of the folder, sorted by name, read as DNA
+    result = fs.survey_files([str(folder / "scenario" / "samples")], fs.SurveyOptions(alphabet="dna", seed=args.seed))
     names = [n.removesuffix(".fa") for n in result.names]
 
     print(f"{'sample':<14}{'D_2 truth':>10}{'D_2 est.':>10}{'h truth':>9}{'h est.':>9}  (bits/symbol; D_q at k = 1/2)")
@@ -70,12 +68,14 @@ def run(folder: Path, args: argparse.Namespace) -> None:
 
     # the same distance by hand, from two word-count tables
     n = result.js_depth
-    tables = [count_words(open_source(truth[name].path, alphabet="dna"), n).words(n) for name in sorted(same)]
-    _, matrix = word_matrix(tables)  # align the two sparse tables on the union of their words
-    print(f"by hand: JS(kelp-chain, kelp-island) = {js_divergence(matrix[0], matrix[1]):.5f} bits at depth {n} "
+    (wa, ca), (wb, cb) = [fs.count_words(fs.open_source(truth[name].path, alphabet="dna"), n).words(n) for name in sorted(same)]
+    union = np.union1d(wa, wb)  # align the two sparse tables (sorted word addresses) on the union of their words
+    pa, pb = np.zeros(union.size), np.zeros(union.size)
+    pa[np.searchsorted(union, wa)], pb[np.searchsorted(union, wb)] = ca, cb
+    print(f"by hand: JS(kelp-chain, kelp-island) = {fs.js_divergence(pa, pb):.5f} bits at depth {n} "
           f"(survey: {result.js[i][j]:.5f})")
 
-    written = write_outputs(result, folder / "survey", force=args.force)
+    written = fs.write_survey(result, folder / "survey", force=args.force)
     print(f"wrote {len(written)} files to {folder / 'survey'}")
 
 

@@ -1,7 +1,7 @@
 """Learn a next-symbol predictor on one simulated sample and test it on another.
 
 **The data are invented.**  They come from the Kelpwater Marine Station scenario
-(:mod:`fractalseq.datasets._scenario`): the fictional samples ``kelp-chain`` and
+(``fs.scenario``): the fictional samples ``kelp-chain`` and
 ``kelp-island`` are two independent draws of the same first-order Markov chain
 (the second with a repeat island inserted), so the true next-symbol
 probabilities are the rows of the chain's transition matrix, and the best
@@ -10,10 +10,12 @@ fractalseq is for research, not for clinical decisions.
 
 What it shows (Python API):
 
-* :class:`fractalseq.predict._predictor.CellPredictor` — ``fit`` on a training stream,
+everything through the façade ``import fractalseq as fs``:
+
+* ``fs.CellPredictor`` — ``fit`` on a training stream,
   ``predict_proba`` for contexts, ``score`` (bits per symbol on held-out data),
   ``save``/``load`` of the model file (no pickle);
-* :func:`fractalseq.predict._predictor.online_code_length` — predict-then-update code length
+* ``fs.online_code_length`` — predict-then-update code length
   of a stream with no training data: an upper bound on its information content.
 
 Run::
@@ -29,9 +31,7 @@ from pathlib import Path
 
 import numpy as np
 
-from fractalseq.datasets import _scenario as scenario
-from fractalseq.predict._predictor import CellPredictor, online_code_length
-from fractalseq.sources import open_source
+import fractalseq as fs
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
 
@@ -39,24 +39,24 @@ from _scenario_setup import make_scenario, run_example  # shared options, output
 def run(folder: Path, args: argparse.Namespace) -> None:
     length = 40_000 if args.quick else 200_000
     _, truth = make_scenario(folder, args, length=length)
-    train = open_source(truth["kelp-chain"].path, alphabet="dna")
-    test = open_source(truth["kelp-island"].path, alphabet="dna")
-    other = open_source(truth["kelp-sticky"].path, alphabet="dna")
+    train = fs.open_source(truth["kelp-chain"].path, alphabet="dna")
+    test = fs.open_source(truth["kelp-island"].path, alphabet="dna")
+    other = fs.open_source(truth["kelp-sticky"].path, alphabet="dna")
     h = truth["kelp-chain"].entropy_rate_bits
 
     # The simulated chain has no second strand, so reverse-complement counting (the DNA default) is off.
-    model = CellPredictor(max_depth=8, reverse_complement=False).fit(train)
+    model = fs.CellPredictor(max_depth=8, reverse_complement=False).fit(train)
     path = model.save(folder / "kelp-chain.model.npz", force=args.force)
-    model = CellPredictor.load(path)  # what a later session would do
+    model = fs.CellPredictor.load(path)  # what a later session would do
     print(f"learned on kelp-chain ({model.n_symbols_:,} symbols, cell depths {list(model.ladder_)}), saved to {path.name}")
 
     # next-symbol probabilities after a one-symbol context against the chain's true transition matrix
     proba = model.predict_proba(list("ACGT"))
-    worst = float(np.abs(proba - scenario.ORDER1).max())
+    worst = float(np.abs(proba - fs.scenario.ORDER1).max())
     print("P(next | previous symbol), estimate vs truth:")
     for i, prev in enumerate("ACGT"):
         est = " ".join(f"{p:.3f}" for p in proba[i])
-        true = " ".join(f"{p:.3f}" for p in scenario.ORDER1[i])
+        true = " ".join(f"{p:.3f}" for p in fs.scenario.ORDER1[i])
         print(f"  after {prev}: {est}   truth {true}")
     print(f"largest error of a probability: {worst:.3f}")
 
@@ -68,7 +68,7 @@ def run(folder: Path, args: argparse.Namespace) -> None:
     print(f"  fitted model on the repeat island {lo:,}-{hi:,} (never seen in training): {model.score(arr.slice(lo, hi)):.3f}")
     print(f"  fitted model on kelp-sticky (another chain, truth {truth['kelp-sticky'].entropy_rate_bits:.3f}): "
           f"{model.score(other):.3f}")
-    online = online_code_length(train, reverse_complement=False)
+    online = fs.online_code_length(train, reverse_complement=False)
     print(f"  online predict-then-update on kelp-chain (upper bound): {online.bits_per_symbol:.3f}, "
           f"top-1 accuracy {online.top1:.3f}")
 

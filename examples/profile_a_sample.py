@@ -1,19 +1,21 @@
 """Profile one simulated sample and compare the estimates with the known truth.
 
 **The data are invented.**  They come from the Kelpwater Marine Station scenario
-(:mod:`fractalseq.datasets._scenario`): a fictional station whose "symbiont samples" are
+(``fs.scenario``): a fictional station whose "symbiont samples" are
 simulated from Markov chains, so their entropy rates and Rényi dimensions are
 known in closed form.  No real organism or measurement is involved; genomic
 output of fractalseq is for research, not for clinical decisions.
 
 What it shows (Python API):
 
-* :func:`fractalseq.sources.open_source` reads a FASTA file into a stream;
-* :func:`fractalseq.words._counts.count_words` counts every word of length 1..N once;
-* :func:`fractalseq.entropy._estimators.h_difference` and :func:`fractalseq.dimensions._spectrum.dimension_spectrum`
-  read an entropy rate and the Rényi dimensions D_q off those counts;
-* :func:`fractalseq.jobs._profile.profile_source` does all of it (with bootstrap intervals)
-  and its result becomes JSON with :func:`fractalseq.io._outputs.write_json`.
+everything through the façade ``import fractalseq as fs``:
+
+* ``fs.open_source`` reads a FASTA file into a stream;
+* ``fs.count_words`` counts every word of length 1..N once;
+* ``fs.h_difference`` and ``fs.dimension_spectrum`` read an entropy rate and the
+  Rényi dimensions D_q off those counts;
+* ``fs.profile_source`` does all of it (with bootstrap intervals) and its result
+  becomes JSON with ``fs.write_json``.
 
 Run::
 
@@ -28,12 +30,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from fractalseq.entropy import _estimators as entropy
-from fractalseq.dimensions import _spectrum as spectrum
-from fractalseq.io._outputs import write_json
-from fractalseq.jobs._profile import profile_source
-from fractalseq.sources import open_source
-from fractalseq.words._counts import count_words
+import fractalseq as fs
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
 
@@ -47,15 +44,15 @@ def run(folder: Path, args: argparse.Namespace) -> None:
     print(f"sample {truth.name}: {truth.description}, {truth.length:,} bases")
 
     # 1. the building blocks: one stream, one count of every word, two estimators
-    arr = open_source(truth.path, alphabet="dna").to_array()
-    wc = count_words(arr, 8)
-    h = entropy.h_difference(wc)  # H_{n+1} - H_n with the Grassberger correction, bits per symbol
-    d2 = spectrum.dimension_spectrum(wc, qs=(2.0,), n_boot=0).get(2.0)
+    arr = fs.open_source(truth.path, alphabet="dna").to_array()
+    wc = fs.count_words(arr, 8)
+    h = fs.h_difference(wc)  # H_{n+1} - H_n with the Grassberger correction, bits per symbol
+    d2 = fs.dimension_spectrum(wc, qs=(2.0,), n_boot=0).get(2.0)
     print(f"entropy rate  truth {truth.entropy_rate_bits:.3f}  H(n+1)-H(n) at n={h.depth}: {h.estimate:.3f} bits/symbol")
     print(f"D_2 (counts)  truth {truth.dimension(2.0):.3f}  estimate {d2.estimate:.3f} (depths {d2.n_lo}-{d2.n_hi})")
 
     # 2. the whole profile, with block-bootstrap intervals
-    res = profile_source(arr, qs=(0.0, 1.0, 2.0), n_boot=boot, seed=args.seed)
+    res = fs.profile_source(arr, qs=(0.0, 1.0, 2.0), n_boot=boot, seed=args.seed)
     print(f"profile of {res.length:,} symbols, {boot} bootstrap replicates, k = {res.ratio:g}:")
     for q in (0.0, 1.0, 2.0):
         d = res.spectrum.get(q)
@@ -69,7 +66,7 @@ def run(folder: Path, args: argparse.Namespace) -> None:
     for name in ("lz76", "compressors", "online_predictor"):
         if name in rates:
             print(f"  {name}: {rates[name]['estimate']:.3f} bits/symbol ({rates[name]['kind']})")
-    out = write_json(folder / "profile.json", res.to_dict(), force=args.force)
+    out = fs.write_json(folder / "profile.json", res.to_dict(), force=args.force)
     print(f"wrote {out}")
 
 

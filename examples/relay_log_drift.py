@@ -1,7 +1,7 @@
 """Has this week's relay log drifted from last week's?  A drift test with the evidence.
 
 **The data are invented.**  They come from the Kelpwater Marine Station scenario
-(:mod:`fractalseq.datasets._scenario`): the fictional station's telemetry relay writes a
+(``fs.scenario``): the fictional station's telemetry relay writes a
 log whose lines follow a known Markov chain of events.  The second week's batch
 contains a failure mode (checksum mismatches followed by dropped frames) that
 the first week never shows; the ground truth names the new templates.  Drift
@@ -10,11 +10,13 @@ statistics do not show.
 
 What it shows (Python API):
 
-* :func:`fractalseq.sources.line_template` masks the variable parts of a line
+everything through the façade ``import fractalseq as fs``:
+
+* ``fs.line_template`` masks the variable parts of a line
   (times, numbers, hex, addresses, quoted values) so that each template is a symbol;
-* :func:`fractalseq.sources.open_source` with ``fmt="log"`` reads a log as a
+* ``fs.open_source`` with ``fmt="log"`` reads a log as a
   stream of templates and reports each template's count;
-* :func:`fractalseq.compare._drift.drift_test` compares the two batches by block
+* ``fs.drift_test`` compares the two batches by block
   permutation tests and lists the words (here: templates) that changed most.
 
 Run::
@@ -29,9 +31,7 @@ import re
 import sys
 from pathlib import Path
 
-from fractalseq.compare._drift import DriftOptions, drift_test
-from fractalseq.io._outputs import write_text
-from fractalseq.sources import line_template, open_source
+import fractalseq as fs
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
 
@@ -47,10 +47,10 @@ def run(folder: Path, args: argparse.Namespace) -> None:
     base_path, new_path = world.logs.baseline, world.logs.new
     first = Path(base_path).read_text().splitlines()[0]
     print(f"a line:       {first}")
-    print(f"its template: {line_template(first)}")
+    print(f"its template: {fs.line_template(first)}")
 
-    baseline = open_source(base_path, fmt="log")
-    new = open_source(new_path, fmt="log")
+    baseline = fs.open_source(base_path, fmt="log")
+    new = fs.open_source(new_path, fmt="log")
     for label, stream in (("week 1", baseline), ("week 2", new)):
         arr = stream.to_array()
         table = arr.report.extra["templates"]
@@ -60,7 +60,7 @@ def run(folder: Path, args: argparse.Namespace) -> None:
             print(f"    {t['count']:>6,}  {t['template']}")
 
     permutations = 199 if args.quick else 999
-    result = drift_test([baseline], [new], DriftOptions(permutations=permutations, seed=args.seed))
+    result = fs.drift_test([baseline], [new], fs.DriftOptions(permutations=permutations, seed=args.seed))
     print(result.verdict)
     for t in result.tests:
         print(f"  {t.figure:<13} statistic {t.statistic:10.4g}  adjusted p {t.p_adjusted:.3g}")
@@ -74,7 +74,7 @@ def run(folder: Path, args: argparse.Namespace) -> None:
     print(f"truth: changed = {truth.changed}; test says changed = {result.changed}")
     print(f"truth: new failure templates {[fixed_words(t) for t in truth.new_templates]}; "
           f"found among the top four: {sum(found)} of {len(found)}")
-    out = write_text(folder / "drift.json", result.to_json(), force=args.force)
+    out = fs.write_text(folder / "drift.json", result.to_json(), force=args.force)
     print(f"wrote {out}")
     print("Drift reports on logs are no security guarantee.")
 

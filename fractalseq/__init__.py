@@ -82,6 +82,28 @@ _FACADE: dict[str, str] = {
     "run_survey": "fractalseq.jobs",
     "SurveyOptions": "fractalseq.jobs",
     "make_engine": "fractalseq.jobs",
+    "ReaderOptions": "fractalseq.jobs",
+    "expand_inputs": "fractalseq.jobs",
+    "survey_files": "fractalseq.jobs",
+    "survey_cache": "fractalseq.jobs",
+    "write_survey": "fractalseq.jobs",
+    "drift_files": "fractalseq.jobs",
+    "scan_file": "fractalseq.jobs",
+    "count_files": "fractalseq.jobs",
+    # known sources
+    "simulate_markov": "fractalseq.datasets",
+    "entropy_rate": "fractalseq.datasets",
+    # files out
+    "prepare_folder": "fractalseq.io",
+    "write_json": "fractalseq.io",
+    "write_text": "fractalseq.io",
+    # readers (log lines)
+    "line_template": "fractalseq.sources",
+}
+
+#: Façade name -> a module offered whole: the invented demo scenario (``fs.scenario.generate``, its ground truth).
+_MODULES: dict[str, str] = {
+    "scenario": "fractalseq.datasets._scenario",
 }
 
 __all__ = [
@@ -97,6 +119,7 @@ __all__ = [
     "__version__",
     "CellPredictor",
     "DriftOptions",
+    "ReaderOptions",
     "SurveyOptions",
     "WordCounts",
     "absent_words",
@@ -104,12 +127,16 @@ __all__ = [
     "block_entropies",
     "bootstrap_rate",
     "consistency_table",
+    "count_files",
     "count_words",
     "count_words_split",
     "density_image",
     "detect_format",
     "dimension_spectrum",
+    "drift_files",
     "drift_test",
+    "entropy_rate",
+    "expand_inputs",
     "geometric_spectrum",
     "h_compressors",
     "h_difference",
@@ -117,19 +144,33 @@ __all__ = [
     "h_renyi",
     "h_topological_growth",
     "js_divergence",
+    "line_template",
     "load_model",
     "make_engine",
     "online_code_length",
     "open_source",
     "points",
+    "prepare_folder",
     "profile_source",
     "run_survey",
+    "scan_file",
     "scan_stream",
+    "simulate_markov",
+    "survey_cache",
+    "survey_files",
+    "write_json",
+    "write_survey",
+    "write_text",
+    "scenario",
 ]
 
 
 def __getattr__(name: str) -> Any:
     """Load a façade name from its family on first use (PEP 562)."""
+    if name in _MODULES:
+        module = importlib.import_module(_MODULES[name])
+        globals()[name] = module
+        return module
     family = _FACADE.get(name)
     if family is None:
         raise AttributeError(f"module 'fractalseq' has no attribute {name!r}")

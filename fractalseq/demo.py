@@ -114,7 +114,9 @@ def run_demo(
     from fractalseq.sources import open_source
     from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey
     from fractalseq.jobs._survey import write_outputs as write_survey
+    from fractalseq.jobs._inputs import check_seed
 
+    seed = check_seed(seed)  # before the warm-up process or any folder
     t0 = time.perf_counter()
     say = step or (lambda s: None)
     # On a first run the numba kernels are compiled before they are cached; the predictor's are the

@@ -302,7 +302,7 @@ def test_an_internal_failure_is_not_disguised_as_a_usage_error(monkeypatch, caps
     def broken(*args, **kwargs):
         raise ZeroDivisionError("simulated bug")
 
-    monkeypatch.setattr(cmd_words, "open_input", broken)
+    monkeypatch.setattr(cmd_words, "reader", broken)
     monkeypatch.delenv("FRACTALSEQ_DEBUG", raising=False)
     status = main(["count", "-q", str(ROOT / "reference" / "lambda_virus.fa.gz")])
     err = capsys.readouterr().err

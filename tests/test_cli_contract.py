@@ -314,3 +314,97 @@ def test_a_real_pipe_into_count(sample):
     n = len(sample.read_text().split("\n", 1)[1].replace("\n", ""))
     assert doc["length"] == n == 8_000
     assert doc["ladder"][0]["occurrences"] == n  # 1-words: one per symbol
+
+
+# ------------------------------------------------- the library gives what the command prints
+def _buoy(path: Path, seed: int, level: float, n: int = 4000) -> np.ndarray:
+    """Invented test data: hourly salinity of a fictional buoy (one column with a header)."""
+    values = np.round(level + np.random.default_rng(seed).normal(size=n), 4)
+    path.write_text("salinity\n" + "\n".join(f"{v:.4f}" for v in values) + "\n")
+    return values
+
+
+def _cli_text(argv, capsys) -> str:
+    capsys.readouterr()
+    status = main(argv)
+    cap = capsys.readouterr()
+    assert status in (0, 1), (argv, cap.err)
+    return cap.out
+
+
+def test_drift_files_in_python_prints_the_same_json_as_the_command(tmp_path, capsys):
+    base = _buoy(tmp_path / "monday.csv", 1, 35.0)
+    _buoy(tmp_path / "tuesday.csv", 2, 35.4)
+    argv = ["drift", str(tmp_path / "monday.csv"), str(tmp_path / "tuesday.csv"), "-f", "numeric", "--bins", "3",
+            "-R", "99", "--seed", "5", "--json", "-q"]
+    printed = _cli_text(argv, capsys)
+    result = fractalseq.drift_files(
+        str(tmp_path / "monday.csv"), str(tmp_path / "tuesday.csv"),
+        fractalseq.DriftOptions(permutations=99, seed=5), fractalseq.ReaderOptions(fmt="numeric", bins=3),
+    )
+    assert result.to_json() == printed
+    # both batches were cut at the baseline's tertiles (numpy.quantile of the baseline, the reference)
+    edges = np.quantile(base, [1 / 3, 2 / 3])
+    assert json.loads(printed)["notes"][0].startswith(
+        "numeric batches cut at the baseline's 3-quantiles (" + ", ".join(f"{e:.6g}" for e in edges) + ")"
+    )
+
+
+def test_survey_files_in_python_prints_the_same_json_as_the_command(sample, tmp_path, capsys):
+    other = tmp_path / "other.fa"
+    other.write_text(">other invented test sequence\n" + "ACGGTCA" * 900 + "\n")
+    argv = ["survey", str(sample), str(other), "--depth", "5", "--seed", "3", "--linkage", "complete", "--json", "-q"]
+    printed = _cli_text(argv, capsys)
+    options = fractalseq.SurveyOptions.from_reader(fractalseq.ReaderOptions(), depth=5, seed=3, linkage="complete")
+    result = fractalseq.survey_files([str(sample), str(other)], options)
+    assert result.to_json() == printed
+    assert json.loads(printed)["distances"]["names"] == ["sample.fa", "other.fa"]
+
+
+def test_scan_file_in_python_prints_the_same_json_as_the_command(sample, capsys):
+    printed = _cli_text(["scan", str(sample), "--window", "2000", "--penalty", "4", "--json", "-q"], capsys)
+    assert fractalseq.scan_file(str(sample), 2000, penalty=4.0).to_json() == printed
+
+
+@pytest.mark.parametrize("command", ["profile", "survey", "drift", "scan", "demo"])
+def test_every_command_refuses_a_negative_seed_in_one_sentence(command, sample, tmp_path, capsys):
+    args = {"profile": [str(sample)], "survey": [str(sample)], "drift": [str(sample), str(sample)],
+            "scan": [str(sample)], "demo": ["--out", str(tmp_path / "demo")]}[command]
+    capsys.readouterr()
+    assert main([command, *args, "--seed", "-1"]) == 2
+    err = capsys.readouterr().err
+    assert err == "error: The seed must be a whole number from 0 to 2**64 - 1, not -1 (option --seed).\n"
+    assert main([command, *args, "--seed", str(2**64)]) == 2
+    assert "not 18446744073709551616 (option --seed)" in capsys.readouterr().err
+    assert not (tmp_path / "demo").exists()
+
+
+def test_library_errors_name_parameters_and_the_command_names_the_option(sample, tmp_path, capsys):
+    """A library ParameterError carries the parameter; the command line adds the option that sets it."""
+    cases = [
+        (["survey", str(sample), "--distance-depth", "40"], "distance_depth", "(option --distance-depth)."),
+        (["scan", str(sample), "--window", "2000", "--penalty", "soft"], "penalty", "(option --penalty)."),
+        (["count", str(sample), "--thresholds", "1,x"], "thresholds", "(option --thresholds)."),
+        (["count", str(sample), "--unknown", "drop"], "policy", "(option --unknown)."),
+        (["count", str(sample), "--save", str(sample)], "force", "(option --force)."),
+        (["survey", str(sample), "--cache", str(sample)], "cache", "(option --cache)."),
+    ]
+    for argv, parameter, hint in cases:
+        capsys.readouterr()
+        assert main(argv) == 2
+        err = capsys.readouterr().err
+        assert err.startswith("error: ") and err.rstrip().endswith(hint), (argv, err)
+        assert err.count("\n") == 1 and "--" not in err.rstrip()[: -len(hint)], err  # the sentence itself names no option
+    with pytest.raises(fractalseq.ParameterError) as info:
+        fractalseq.ReaderOptions(fmt="numeric", thresholds=(0.5, 0.2))
+    assert info.value.parameter == "thresholds"
+
+
+def test_count_files_in_python_prints_the_same_json_as_the_command(sample, capsys):
+    printed = _cli_text(["count", str(sample), "-n", "5", "--top", "3", "--json", "-q"], capsys)
+    summary = fractalseq.count_files([str(sample)], 5, top=3)
+    from fractalseq.io import to_json
+
+    assert to_json(summary.to_dict()) == printed
+    # the ladder's 1-words are every symbol once (the sample holds 8,000 bases)
+    assert summary.ladder[0]["occurrences"] == summary.length == 8_000

@@ -89,7 +89,7 @@ def test_make_engine_rules_and_errors():
     assert make_engine(None, 2).name == "processes"
     with pytest.raises(ParameterError, match="not known"):
         make_engine("threads")
-    with pytest.raises(ParameterError, match="only applies to --engine dask"):
+    with pytest.raises(ParameterError, match="only applies to the dask engine"):
         make_engine("processes", 2, "tcp://127.0.0.1:1")
     with pytest.raises(ParameterError, match="positive whole number"):
         make_engine("processes", 0)

@@ -138,3 +138,19 @@ def test_an_example_refuses_a_used_folder_without_force(runs):
     )
     assert proc.returncode == 2
     assert b"already holds files" in proc.stderr and b"--force" in proc.stderr
+
+
+def test_examples_use_only_the_facade():
+    """The examples show the public API: ``import fractalseq as fs`` and nothing below it (a rule of this code base)."""
+    import ast
+
+    scripts = sorted((ROOT / "examples").glob("*.py"))
+    assert len(scripts) >= 5
+    for path in scripts:
+        for node in ast.walk(ast.parse(path.read_text())):
+            if isinstance(node, ast.ImportFrom) and node.module and node.module.split(".")[0] == "fractalseq":
+                raise AssertionError(f"{path.name} imports from {node.module}; use import fractalseq as fs")
+            if isinstance(node, ast.Import):
+                for alias in node.names:
+                    if alias.name.split(".")[0] == "fractalseq":
+                        assert (alias.name, alias.asname) == ("fractalseq", "fs"), f"{path.name}: import {alias.name}"

@@ -336,7 +336,8 @@ def test_a_large_survey_keeps_its_report_readable_and_small(tmp_path):
     import struct
 
     from fractalseq.runner import SerialEngine
-    from fractalseq.jobs._survey import MATRIX_IN_PAGE, NAMED_LEAVES, SurveyOptions, expand_inputs, run_survey, write_outputs
+    from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey, write_outputs
+    from fractalseq.report.survey import MATRIX_IN_PAGE, NAMED_LEAVES
 
     n = NAMED_LEAVES + 1
     assert n > NAMED_LEAVES and n > MATRIX_IN_PAGE
@@ -353,3 +354,28 @@ def test_a_large_survey_keeps_its_report_readable_and_small(tmp_path):
         w, h = struct.unpack(">II", head[16:24])  # PNG IHDR: width and height in pixels
         assert w <= 1400 and h <= 1400, (name, w, h)
     assert len(html) < 2_000_000 and len(written) == 7
+
+
+def test_the_cache_rule_of_a_survey(tmp_path):
+    """No cache unless asked; a given folder is shared and never pruned; OUT/.cache belongs to the survey and is pruned."""
+    from fractalseq.jobs._files import survey_cache
+
+    assert not survey_cache().store.enabled
+    assert not survey_cache(tmp_path / "out", tmp_path / "shared", use_cache=False).store.enabled
+    shared = survey_cache(tmp_path / "out", tmp_path / "shared")
+    assert shared.store.folder == tmp_path / "shared" and shared.prune is False
+    own = survey_cache(tmp_path / "out")
+    assert own.store.folder == tmp_path / "out" / ".cache" and own.prune is True
+
+
+def test_seeds_are_whole_numbers_below_two_to_the_64(tmp_path):
+    from fractalseq.errors import ParameterError
+    from fractalseq.jobs._inputs import check_seed
+
+    assert check_seed(0) == 0 and check_seed(2**64 - 1) == 2**64 - 1 and check_seed(np.uint64(5)) == 5
+    for bad in (-1, 2**64, 1.5, True, "3"):
+        with pytest.raises(ParameterError) as info:
+            check_seed(bad)
+        assert info.value.parameter == "seed"
+    with pytest.raises(ParameterError):
+        SurveyOptions(seed=-3)

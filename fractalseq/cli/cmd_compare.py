@@ -16,7 +16,6 @@ import typer
 from rich.table import Table
 
 from fractalseq.cli import common
-from fractalseq.errors import ParameterError
 
 EXIT_FOUND = 1
 
@@ -25,7 +24,7 @@ ENGINE = typer.Option(
 )
 WORKERS = typer.Option(None, "--workers", "-w", min=1, help="Local worker processes (processes engine, or a local Dask cluster); default: all cores for processes, 2 for dask.")
 SCHEDULER = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask).")
-SEED_HELP = "Seed of every random step (bootstrap intervals, permutations); same input and seed, same bytes."
+SEED_HELP = "Seed of every random step (bootstrap intervals, permutations), 0 <= seed < 2^64; same input and seed, same bytes."
 
 
 def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str]):
@@ -56,7 +55,7 @@ def survey(
     out: Optional[Path] = common.OUT,
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
-    seed: int = typer.Option(0, "--seed", help=SEED_HELP),
+    seed: int = common.seed_option(help=SEED_HELP),
     force: bool = common.FORCE,
     cache: Optional[Path] = typer.Option(
         None, "--cache", help="Folder of the per-source result cache, kept as it is and shareable by several surveys (default: OUT/.cache with --out, pruned after each run; else none)."
@@ -90,39 +89,22 @@ def survey(
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
     """
-    from fractalseq.io._cache import ResultCache
-    from fractalseq.cli.inputs import reader_options
+    from fractalseq.cli.inputs import reader
     from fractalseq.io._outputs import prepare_folder
-    from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey, write_outputs
+    from fractalseq.jobs._files import survey_cache, survey_files
+    from fractalseq.jobs._sources import expand_inputs
+    from fractalseq.jobs._survey import SurveyOptions, write_outputs
 
-    reader = reader_options(column, bins, thresholds, ordinal)
+    options = SurveyOptions.from_reader(
+        reader(fmt, alphabet, policy, column, bins, thresholds, ordinal),
+        depth=depth, ratio=ratio, distance_depth=distance_depth, seed=seed, linkage=linkage,
+    )
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
     specs = expand_inputs(list(paths or []), from_list, stdin_lines)
-    if common_cuts:
-        from fractalseq.cli.inputs import shared_numeric_cuts
-
-        if "thresholds" in reader or reader.get("ordinal"):
-            raise ParameterError("--common-cuts sets the cut points itself; leave out --thresholds and --ordinal.")
-        reader, _ = shared_numeric_cuts([str(s.path) for s in specs], fmt, reader, bins)
-        if "thresholds" not in reader:
-            raise ParameterError("--common-cuts applies to numeric input only; add --format numeric or leave it out.")
     if out is not None:
         prepare_folder(out, force)  # the hidden .cache folder of an interrupted run does not count
-    own_cache = False  # OUT/.cache belongs to this survey and is pruned when it completes
-    if no_cache:
-        store = ResultCache(None)
-    elif cache is not None:
-        store = ResultCache(cache)
-    elif out is not None:
-        store = ResultCache(Path(out) / ".cache")
-        own_cache = True
-    else:
-        store = ResultCache(None)
-    options = SurveyOptions(fmt, alphabet, policy, depth, ratio, distance_depth, seed, linkage, tuple(sorted(reader.items())))
-    from fractalseq.compare._distances import LINKAGES
-
-    if linkage not in LINKAGES:
-        raise ParameterError(f"Linkage {linkage!r} is not one of {', '.join(LINKAGES)}.")
+    plan = survey_cache(out, cache, use_cache=not no_cache)
+    store = plan.store
     with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
         overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=len(specs))
         rows = {}
@@ -144,14 +126,14 @@ def survey(
                     bar.update(rows[i], completed=1, description=f"  {spec.name} (done)")
 
         try:
-            result = run_survey(specs, options, eng, store, progress, prune_cache=own_cache)
+            result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress)
         except KeyboardInterrupt:
             bar.stop()
             kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
             typer.echo(f"interrupted:{kept or ' nothing was written'}.", err=True)
             raise typer.Exit(130) from None
     if cached[0] and not quiet:
-        common.err_console.print(f"resumed: {cached[0]} of {len(specs)} sources read from the cache")
+        common.err_console.print(f"resumed: {cached[0]} of {len(result.names)} sources read from the cache")
     if result.cache_pruned and not quiet:
         common.err_console.print(f"removed {result.cache_pruned} cache entries of earlier runs from {store.folder}", markup=False, highlight=False)
     written = write_outputs(result, Path(out), force=True) if out is not None else []
@@ -165,7 +147,7 @@ def survey(
         i for i, h in enumerate(header) if h.startswith("h_") and not h.endswith(("_low", "_high")) and h != "h_top"
     ][:1]
     idx[4:4] = rate_cols
-    table = Table(title=f"Survey of {len(specs)} sources (D_q in units of log 1/k, k = {ratio:g}; entropies in bits)")
+    table = Table(title=f"Survey of {len(result.names)} sources (D_q in units of log 1/k, k = {ratio:g}; entropies in bits)")
     for i in idx:
         table.add_column(header[i], justify="left" if header[i] == "name" else "right")
     for r in table_rows:
@@ -192,21 +174,6 @@ def _cell(v) -> str:
 
 
 # ===================================================================== drift
-def _batch_specs(spec: str):
-    """The inputs of a batch argument: a file, folder, quoted glob, @list file, or - (standard input)."""
-    from fractalseq.jobs._survey import expand_inputs
-
-    if spec.startswith("@"):
-        return expand_inputs([], spec[1:], sys.stdin.read().splitlines() if spec == "@-" else None)
-    return expand_inputs([spec])
-
-
-def _open_batch(specs, fmt: str, alphabet: str, policy: str, reader: dict):
-    from fractalseq.cli.inputs import open_input
-
-    return [open_input(s.path, fmt, alphabet, policy, name=s.name, **reader) for s in specs]
-
-
 def drift(
     baseline: str = typer.Argument(..., help="Baseline batch: a file, a folder (all files below), a quoted glob, @LIST (one path per line), or -."),
     new: str = typer.Argument(..., help="New batch, given the same way as the baseline."),
@@ -228,7 +195,7 @@ def drift(
     out: Optional[Path] = common.OUT,
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
-    seed: int = typer.Option(0, "--seed", help=SEED_HELP),
+    seed: int = common.seed_option(help=SEED_HELP),
     force: bool = common.FORCE,
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
@@ -253,28 +220,22 @@ def drift(
 
     Example: fractalseq drift logs/monday.log logs/tuesday.log --format log --alpha 0.01
     """
-    from fractalseq.compare._drift import DriftOptions, drift_test
+    from fractalseq.cli.inputs import reader
+    from fractalseq.compare._drift import DriftOptions
+    from fractalseq.jobs._files import drift_files
 
-    if baseline == "-" and new == "-":
-        raise ParameterError("Standard input can be read only once; give '-' for one batch at most.")
     figs = tuple(f.strip() for f in figures.split(",") if f.strip())
     options = DriftOptions(depth, block, permutations, alpha, adjust, seed, ratio, figs, top)
     options.check()
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
     if out is not None:
         from fractalseq.io._outputs import prepare_folder
 
         prepare_folder(out, force)
-    from fractalseq.cli.inputs import reader_options, shared_numeric_cuts
-
-    base_specs, new_specs = _batch_specs(baseline), _batch_specs(new)
-    reader, cut_note = shared_numeric_cuts([s.path for s in base_specs], fmt, reader_options(column, bins, thresholds, ordinal), bins)
-    base_streams = _open_batch(base_specs, fmt, alphabet, policy, reader)
-    new_streams = _open_batch(new_specs, fmt, alphabet, policy, reader)
+    stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
     with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
-        result = drift_test(base_streams, new_streams, options, eng, on_done=lambda i, r: bar.advance(task))
-    if cut_note:
-        result.notes.insert(0, cut_note)
+        result = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
     if out is not None:
         from fractalseq.compare._drift import write_outputs
 
@@ -310,7 +271,7 @@ def scan(
     out: Optional[Path] = common.OUT,
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
-    seed: int = typer.Option(0, "--seed", help=SEED_HELP),
+    seed: int = common.seed_option(help=SEED_HELP),
     force: bool = common.FORCE,
 ) -> None:
     """Complexity figures in sliding windows along a stream, with change points.
@@ -326,19 +287,21 @@ def scan(
 
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
-    from fractalseq.cli.inputs import read_input, reader_options
-    from fractalseq.compare._scan import scan_stream
+    from fractalseq.cli.inputs import reader
+    from fractalseq.jobs._files import parse_penalty, scan_file
 
-    pen: float | str = "bic" if penalty == "bic" else _number(penalty)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    pen = parse_penalty(penalty)
     if out is not None:
         from fractalseq.io._outputs import prepare_folder
 
         prepare_folder(out, force)
     with common.progress(quiet) as bar:
         task = bar.add_task("reading", total=2)
-        arr = read_input(path, fmt, alphabet, policy, **reader_options(column, bins, thresholds, ordinal))
-        bar.update(task, advance=1, description="scanning")
-        result = scan_stream(arr, window, step, depth, ratio, pen, seed)
+        result = scan_file(
+            path, window, step, depth, reader=read, ratio=ratio, penalty=pen, seed=seed,
+            on_read=lambda: bar.update(task, advance=1, description="scanning"),
+        )
         bar.advance(task)
     if out is not None:
         from fractalseq.compare._scan import write_outputs
@@ -366,16 +329,6 @@ def scan(
         lines.append(f"note: {n}")
     lines.append("Genomic output is for research, not for clinical decisions.")
     typer.echo("\n".join(lines))
-
-
-def _number(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise ParameterError(f"The penalty must be 'bic' or a number, not {text!r}.") from None
-    if v < 0:
-        raise ParameterError(f"The penalty must be non-negative, not {v}.")
-    return v
 
 
 def register(app: typer.Typer) -> None:

@@ -12,7 +12,7 @@ from fractalseq.cli import common
 
 def demo(
     out: Path = typer.Option(Path("fractalseq-demo"), "--out", "-o", help="Report folder (created; must be empty unless --force)."),
-    seed: int = typer.Option(7, "--seed", help="Seed of the simulated scenario and every random step; same seed, same bytes."),
+    seed: int = common.seed_option(7, help="Seed of the simulated scenario and every random step, 0 <= seed < 2^64; same seed, same bytes."),
     length: int = typer.Option(120_000, "--length", min=5_000, help="Bases per simulated sample."),
     workers: int = typer.Option(1, "--workers", "-w", min=1, help="Local worker processes for the survey (1 = serial: the demo's samples are small, so starting workers costs more than it saves)."),
     json_out: bool = common.JSON,

@@ -10,7 +10,7 @@ import typer
 from rich.table import Table
 
 from fractalseq.cli import common
-from fractalseq.cli.inputs import read_input, reader_options, safe_stem
+from fractalseq.cli.inputs import reader, safe_stem
 from fractalseq.errors import OutputError, ParameterError
 
 BOOT = typer.Option(
@@ -130,26 +130,15 @@ def profile(
 
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
     """
-    from fractalseq.encoding import check_ratio
     from fractalseq.io._outputs import prepare_folder, to_json
-    from fractalseq.jobs._profile import STEPS, contract, profile_source
+    from fractalseq.jobs._profile import STEPS, ProfileSettings, contract, profile_source
     from fractalseq.report.profile import safe_name, write_profile_index, write_profile_report
 
     # validate everything before reading anything
-    q_list = parse_qs(qs)
-    k = check_ratio(ratio)
-    if 0 < boot < 20:
-        raise ParameterError(f"--boot {boot} is too few replicates for an interval; use 0 (none) or at least 20.")
-    if not 0.5 < level < 1:
-        raise ParameterError(f"--level {level} is outside (0.5, 1); use e.g. 0.95.")
-    if depth is not None and depth < 2:
-        raise ParameterError(f"--depth {depth} is too small; the entropy rates need words of length 2 or more.")
-    reader = reader_options(column, bins, thresholds, ordinal)
+    settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
     _check_out(out, force)
-    parameters = {"ratio": k, "q": list(q_list), "depth": depth, "boot": boot, "level": level, "seed": seed,
-                  "alphabet": alphabet, "format": fmt, "unknown": policy}
-    if reader:  # numeric reader options, only when given (see fractalseq.cli.inputs.reader_options)
-        parameters["reader"] = reader
+    parameters = settings.parameters(read)
 
     results = []
     subfolders: list[str] = []
@@ -159,20 +148,16 @@ def profile(
     with common.progress(quiet) as bar:
         for path in paths:
             task = bar.add_task(f"{path}: reading", total=len(STEPS) + 1)
-            arr = read_input(path, fmt, alphabet, policy, **reader)
-            if depth is not None and depth > arr.alphabet.max_depth:
-                raise ParameterError(
-                    f"--depth {depth} exceeds the deepest word length {arr.alphabet.max_depth} for "
-                    f"{arr.alphabet.size} symbols; use --depth {arr.alphabet.max_depth} or less."
-                )
+            arr = read.read(path)
+            settings.depth_for(len(arr), arr.alphabet)  # refuse an impossible depth before any work
             bar.advance(task)
 
             def on_step(name: str, task=task, path=path) -> None:
                 bar.update(task, description=f"{path}: {name}")
                 bar.advance(task)
 
-            res = profile_source(arr, ratio=k, qs=q_list, depth=depth, n_boot=boot, seed=seed, level=level,
-                                 progress=on_step)
+            res = profile_source(arr, ratio=settings.ratio, qs=settings.qs, depth=settings.depth, n_boot=settings.n_boot,
+                                 seed=settings.seed, level=settings.level, progress=on_step)
             results.append(res)
             if out is not None:
                 bar.update(task, description=f"{path}: writing report")

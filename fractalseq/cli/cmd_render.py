@@ -9,7 +9,7 @@ from typing import Optional
 import typer
 
 from fractalseq.cli import common
-from fractalseq.cli.inputs import read_input, reader_options
+from fractalseq.cli.inputs import reader
 from fractalseq.errors import ParameterError
 
 
@@ -43,7 +43,7 @@ def render(
         raise ParameterError(f"{out} does not end in .png; render writes PNG images.")
     check_writable(out, force)
     k = encoding.check_ratio(ratio)
-    arr = read_input(path, fmt, alphabet, policy, **reader_options(column, bins, thresholds, ordinal))
+    arr = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal).read(path)
     corners = encoding.corner_layout(arr.alphabet.size)
     check = encoding.overlap_check(k, corners)
     pts = encoding.points(arr, k, drop=max(0, drop))

@@ -9,8 +9,7 @@ import typer
 from rich.table import Table
 
 from fractalseq.cli import common
-from fractalseq.cli.inputs import open_input, reader_options
-from fractalseq.errors import InputError
+from fractalseq.cli.inputs import reader
 from fractalseq.io._outputs import check_writable, to_json
 
 
@@ -38,32 +37,20 @@ def count(
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
-    from fractalseq.words._counts import count_inputs  # imported here: numba makes it slow, and --help/completion need speed
+    from fractalseq.jobs._files import count_files  # imported here: numba makes it slow, and --help/completion need speed
 
     if save is not None:
         check_writable(save, force)
-    reader = reader_options(column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
-        wc, reports = count_inputs(
-            ((p, open_input(p, fmt, alphabet, policy, **reader)) for p in paths), depth,
-            on_input=lambda _: bar.advance(task),
-        )
-    if wc.length == 0:
-        raise InputError("The inputs hold no usable symbols; check the files and the --alphabet/--format options.")
+        summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task))
+    wc = summary.counts
     if save is not None:
         wc.save(save, force=force)
-    rows = wc.ladder()
-    result = {
-        "inputs": [{"name": p, **r.to_dict()} for p, r in reports],
-        "alphabet": wc.alphabet.to_dict(),
-        "length": wc.length,
-        "segments": wc.segments,
-        "depth": wc.depth,
-        "storage": wc.storage,
-        "ladder": rows,
-        "top": [{"word": w, "count": c} for w, c in wc.top(wc.depth, top)] if top else [],
-    }
+    result = summary.to_dict()
+    rows = result["ladder"]
+    reports = [(r["name"], r) for r in result["inputs"]]
     if json_out:
         typer.echo(to_json(result), nl=False)
         return
@@ -77,15 +64,15 @@ def count(
         )
     common.out_console.print(table)
     for p, r in reports:
-        if r.dropped_total:
-            parts = ", ".join(f"{k}: {v:,}" for k, v in sorted(r.dropped.items()))
-            common.err_console.print(f"{p}: dropped {r.dropped_total:,} symbols ({parts})")
+        if r["dropped_total"]:
+            parts = ", ".join(f"{k}: {v:,}" for k, v in sorted(r["dropped"].items()))
+            common.err_console.print(f"{p}: dropped {r['dropped_total']:,} symbols ({parts})")
     if top:
         t2 = Table(title=f"Most frequent {wc.depth}-words")
         t2.add_column("word")
         t2.add_column("count", justify="right")
-        for w, c in wc.top(wc.depth, top):
-            t2.add_row(w, f"{c:,}")
+        for row in result["top"]:
+            t2.add_row(row["word"], f"{row['count']:,}")
         common.out_console.print(t2)
     if save is not None and not quiet:
         common.err_console.print(f"saved counts to {save}")

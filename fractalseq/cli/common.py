@@ -7,6 +7,8 @@ with units and defaults.
 
 from __future__ import annotations
 
+from typing import Any
+
 import typer
 from rich.console import Console
 
@@ -32,7 +34,21 @@ RATIO = typer.Option(0.5, "--ratio", "-k", help="Contraction ratio k of the enco
 OUT = typer.Option(None, "--out", "-o", help="Output folder (created; must be empty unless --force).")
 JSON = typer.Option(False, "--json", help="Print machine-readable JSON on standard output instead of tables.")
 QUIET = typer.Option(False, "--quiet", "-q", help="No progress bars or notes on standard error.")
-SEED = typer.Option(0, "--seed", help="Seed of every random step (bootstrap, permutation); same seed, same bytes.")
+SEED_HELP = "Seed of every random step (bootstrap, permutation), 0 <= seed < 2^64; same seed, same bytes."
+
+
+def _check_seed(value: int) -> int:
+    from fractalseq.jobs._inputs import check_seed  # the one rule for seeds, shared with the library
+
+    return check_seed(value)
+
+
+def seed_option(default: int = 0, help: str = SEED_HELP) -> Any:
+    """The ``--seed`` option of every command: one spelling, one rule (0 <= seed < 2**64, checked on parsing)."""
+    return typer.Option(default, "--seed", help=help, callback=_check_seed)
+
+
+SEED = seed_option()
 FORCE = typer.Option(False, "--force", help="Overwrite existing output files.")
 BINS = typer.Option(4, "--bins", help="numeric input: number of quantile bins (symbols).")
 ORDINAL = typer.Option(0, "--ordinal", help="numeric input: ordinal-pattern order m (0 = use bins).")
@@ -64,6 +80,13 @@ OPTION_OF: dict[str, str] = {
     "step": "--step",
     "level": "--level",
     "block_length": "--block",
+    "block": "--block",
+    "linkage": "--linkage",
+    "distance_depth": "--distance-depth",
+    "common_cuts": "--common-cuts",
+    "penalty": "--penalty",
+    "force": "--force",
+    "cache": "--cache",
 }
 
 

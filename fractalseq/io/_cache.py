@@ -88,7 +88,9 @@ class ResultCache:
     def __init__(self, folder: str | Path | None) -> None:
         self.folder = Path(folder) if folder is not None else None
         if self.folder is not None and self.folder.exists() and not self.folder.is_dir():
-            raise OutputError(f"The cache path {self.folder} is a file, not a folder; choose another --cache.")
+            error = OutputError(f"The cache path {self.folder} is a file, not a folder; choose another cache folder.")
+            error.parameter = "cache"  # type: ignore[attr-defined]  (the command line names its option)
+            raise error
 
     @property
     def enabled(self) -> bool:

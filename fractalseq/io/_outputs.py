@@ -49,13 +49,20 @@ def to_json(data: Any) -> str:
     return json.dumps(_clean(data), indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
 
 
+def _refusal(message: str, parameter: str) -> OutputError:
+    """An :class:`OutputError` naming the parameter that would allow the write (the command line adds its option)."""
+    error = OutputError(message)
+    error.parameter = parameter  # type: ignore[attr-defined]
+    return error
+
+
 def check_writable(path: Path, force: bool) -> None:
     """Raise :class:`OutputError` if ``path`` exists and ``force`` is false, or its folder is unusable."""
     path = Path(path)
     if path.exists() and path.is_dir():
         raise OutputError(f"{path} is a folder, not a file; give a file name.")
     if path.exists() and not force:
-        raise OutputError(f"{path} already exists; pass --force to overwrite it or choose another name.")
+        raise _refusal(f"{path} already exists; allow overwriting it or choose another name.", "force")
     parent = path.parent if str(path.parent) else Path(".")
     if parent.exists() and not parent.is_dir():
         raise OutputError(f"{parent} is a file, not a folder; choose another output folder.")
@@ -153,7 +160,7 @@ def prepare_folder(folder: Path | str, force: bool) -> Path:
     if folder.exists() and not folder.is_dir():
         raise OutputError(f"{folder} is a file, not a folder; choose another output folder.")
     if folder.exists() and any(p for p in folder.iterdir() if not p.name.startswith(".")) and not force:
-        raise OutputError(f"{folder} already holds files; pass --force to overwrite them or choose another folder.")
+        raise _refusal(f"{folder} already holds files; allow overwriting them or choose another folder.", "force")
     top = None  # the outermost folder this call creates
     for candidate in (folder, *folder.parents):
         if candidate.exists():

@@ -179,7 +179,7 @@ def import_dask():
 
 def _check_workers(workers: int | None) -> int:
     if workers is None or isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
-        raise ParameterError(f"The number of workers must be a positive whole number, not {workers!r}.")
+        raise ParameterError(f"The number of workers must be a positive whole number, not {workers!r}.", parameter="workers")
     return int(workers)
 
 
@@ -232,12 +232,12 @@ def make_engine(kind: str | None = None, workers: int | None = None, address: st
     if kind is None:
         kind = "dask" if address else ("processes" if (workers or 1) > 1 else "serial")
     if kind not in ENGINES:
-        raise ParameterError(f"Engine {kind!r} is not known; use one of {', '.join(ENGINES)}.")
+        raise ParameterError(f"Engine {kind!r} is not known; use one of {', '.join(ENGINES)}.", parameter="engine")
     if address and kind != "dask":
-        raise ParameterError("A scheduler address only applies to --engine dask; drop --scheduler or use the dask engine.")
+        raise ParameterError("A scheduler address only applies to the dask engine; drop the address or use the dask engine.", parameter="address")
     if kind == "serial":
         if workers not in (None, 1):
-            raise ParameterError("The serial engine runs one task at a time; drop --workers or choose --engine processes.")
+            raise ParameterError("The serial engine runs one task at a time; drop the worker count or use the processes engine.", parameter="workers")
         return SerialEngine()
     if kind == "processes":
         return ProcessEngine(workers if workers is not None else max(1, os.cpu_count() or 1))

@@ -22,8 +22,9 @@ No estimate is computed here: this module chooses defaults, calls
 :mod:`fractalseq.predict._predictor` and :mod:`fractalseq.resampling._bootstrap`, and collects
 what they say, including their reliability notes.
 
-:meth:`ProfileResult.to_dict` is the public JSON contract (documented in
-the README under "profile"); same input and seed give the same JSON bytes.
+:func:`profile_source` runs one function per step of :data:`STEPS`; the result type lives in
+:mod:`fractalseq.jobs._profile_result` and :meth:`ProfileResult.to_dict` is the public JSON
+contract (documented in the README under "profile"); same input and seed give the same JSON bytes.
 
 Genomic output is for research, not for clinical decisions.
 """
@@ -32,7 +33,7 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Callable, Sequence
 
 import numpy as np
@@ -46,16 +47,17 @@ from fractalseq.dimensions import _spectrum as sp
 from fractalseq.alphabet import Alphabet
 from fractalseq.encoding import check_ratio, corner_layout, density_image, overlap_check, points
 from fractalseq.errors import FractalseqError, InputError, ParameterError
+from fractalseq.jobs._inputs import ReaderOptions, check_seed
+from fractalseq.jobs._profile_result import ProfileResult, ScalingCurve
+from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
 
-FORMAT = "fractalseq-profile"
-VERSION = 1
-CAUTION_GENOMIC = "Genomic output is for research, not for clinical decisions."
-CAUTION_GENERAL = (
-    "Estimates describe the stream given, at its length; read the reliability notes before comparing numbers. "
-    + CAUTION_GENOMIC
-)
+__all__ = [
+    "CAUTION_GENERAL", "CAUTION_GENOMIC", "DEFAULT_BOOT", "FORMAT", "STEPS", "VERSION", "ProfileResult", "ProfileSettings",
+    "ScalingCurve",
+    "auto_depth", "check_qs", "contract", "image_levels", "profile_source",
+]
 
 #: Default number of block-bootstrap replicates of a profile.
 DEFAULT_BOOT = 100
@@ -88,284 +90,6 @@ STEPS = (
     "absent words",
     "encoding image",
 )
-
-
-# ------------------------------------------------------------------ results
-@dataclass(frozen=True, eq=False)
-class ScalingCurve:
-    """The log–log data behind one D_q: ``y`` against ``x = ln(1/ε)`` with the fitted range.
-
-    ``y`` is the Rényi block entropy ``H_q`` (nats) per level, as the
-    spectrum estimator computes it (:func:`fractalseq.dimensions._spectrum.level_stats`),
-    or, for the geometric route, the running sum of the per-level slopes
-    (same shape, arbitrary offset).  ``fit_lo``/``fit_hi`` are 0-based
-    indices (inclusive) of the fitted levels; the drawn line has the fitted
-    slope and passes through the mean of the fitted points.
-    """
-
-    q: float
-    levels: tuple[int, ...]
-    x: np.ndarray
-    y: np.ndarray
-    fit_lo: int | None
-    fit_hi: int | None
-    slope: float
-    intercept: float
-    quantity: str
-
-    def to_dict(self) -> dict:
-        return {
-            "q": self.q,
-            "levels": list(self.levels),
-            "ln_inverse_scale": self.x,
-            "value_nats": self.y,
-            "quantity": self.quantity,
-            "fit_first": None if self.fit_lo is None else self.levels[self.fit_lo],
-            "fit_last": None if self.fit_hi is None else self.levels[self.fit_hi],
-            "slope": self.slope,
-        }
-
-
-@dataclass(frozen=True, eq=False)
-class ProfileResult:
-    """Everything measured on one source (see :func:`profile_source`).
-
-    Attributes
-    ----------
-    name, length, segments, alphabet:
-        The source.
-    ratio, qs, depth, n_boot, seed, level:
-        Settings used (``depth`` = deepest word length counted for the entropy table).
-    overlap:
-        Whether the encoding's maps overlap (then word counts are not box counts).
-    spectrum:
-        :class:`fractalseq.dimensions._spectrum.SpectrumResult` over the user's orders plus :data:`FALPHA_QS`.
-    entropy_rows:
-        :func:`fractalseq.entropy._estimators.entropy_table` rows (block entropies by length).
-    rates:
-        Entropy-rate estimates by name (``plugin``, ``miller-madow``, ``grassberger``
-        with bootstrap intervals; ``lz76``; ``compressors`` and
-        ``online_predictor``, both upper bounds).
-    renyi:
-        Rényi entropy rates, one per q.
-    topological, koslicki:
-        Topological entropy by word growth, and Koslicki's finite-length form.
-    consistency:
-        :class:`fractalseq.dimensions._consistency.ConsistencyResult` or ``None`` (then a note says why).
-    absent:
-        :class:`fractalseq.words._absent.WordReport` or ``None``.
-    scaling:
-        One :class:`ScalingCurve` per user q.
-    image:
-        Density image of the encoding (counts per pixel), or ``None``.
-    read:
-        What the reader reported (dropped symbols, records...).
-    notes:
-        Reliability notes and everything that was not computed, with the reason.
-    timings:
-        Seconds per step (not part of the JSON, which must not depend on the clock).
-    """
-
-    name: str
-    length: int
-    segments: int
-    alphabet: Alphabet
-    ratio: float
-    qs: tuple[float, ...]
-    depth: int
-    n_boot: int
-    seed: int
-    level: float
-    overlap: Any
-    spectrum: Any
-    entropy_rows: tuple[dict, ...]
-    rates: dict
-    renyi: tuple
-    topological: Any
-    koslicki: Any
-    consistency: Any
-    absent: Any
-    scaling: tuple[ScalingCurve, ...]
-    image: np.ndarray | None
-    image_levels: int | None
-    read: dict
-    rate_block: dict | None
-    settings: dict
-    notes: tuple[str, ...]
-    timings: dict = field(default_factory=dict, compare=False)
-
-    # -------------------------------------------------------------- views
-    @property
-    def alphabet_size(self) -> int:
-        return int(self.alphabet.size)
-
-    def dimension_rows(self) -> list[dict]:
-        """The ``dimensions`` list of the JSON contract (user's orders only)."""
-        out = []
-        for q in self.qs:
-            d = self.spectrum.get(q)
-            out.append(
-                {
-                    "q": d.q,
-                    "estimate": d.estimate,
-                    "low": d.low,
-                    "high": d.high,
-                    "stderr": d.stderr,
-                    "scaling_range": [d.n_lo, d.n_hi],
-                    "scale_range": [d.eps_lo, d.eps_hi],
-                    "method": d.method,
-                    "range_rule": d.range_rule,
-                    "reliable": bool(np.isfinite(d.estimate)) and not any(
-                        f.startswith(("too little", "curved", "only", "negative q")) for f in d.flags
-                    ),
-                    "flags": list(d.flags),
-                }
-            )
-        return out
-
-    def falpha_rows(self) -> list[dict]:
-        return [p.to_dict() for p in sorted(self.spectrum.falpha, key=lambda p: p.q)]
-
-    def spectrum_rows(self) -> list[dict]:
-        """D_q over every order computed (user's and the f(α) grid), sorted by q."""
-        rows = []
-        for d in sorted(self.spectrum.dims, key=lambda d: d.q):
-            rows.append({"q": d.q, "estimate": d.estimate, "low": d.low, "high": d.high, "flags": list(d.flags)})
-        return rows
-
-    def rate_dict(self) -> dict:
-        """The ``entropy_rate_bits`` object: estimator name → estimate, interval and notes."""
-        out = {}
-        for name, (kind, e) in self.rates.items():
-            if e is None:
-                continue
-            out[name] = {
-                "estimate": e.estimate,
-                "low": e.low,
-                "high": e.high,
-                "kind": kind,
-                "method": e.method,
-                "depth": e.depth,
-                "fraction_of_max": e.fraction_of_max,
-                "reliable": e.reliable,
-                "note": e.note,
-                "details": dict(e.details),
-            }
-        return out
-
-    def consistency_rows(self) -> list[dict]:
-        """The ``consistency`` list of the JSON contract."""
-        if self.consistency is None:
-            return [
-                {
-                    "q": float(q), "dimension": None, "dimension_bits": None, "dimension_bits_low": None,
-                    "dimension_bits_high": None, "entropy_bits": None, "entropy_bits_low": None,
-                    "entropy_bits_high": None, "difference_bits": None, "verdict": cons.TOO_LITTLE,
-                    "flags": [n for n in self.notes if n.startswith("consistency")],
-                }
-                for q in self.qs
-            ]
-        rows = []
-        for r in self.consistency.rows:
-            rows.append(
-                {
-                    "q": r.q,
-                    "dimension": r.dimension,
-                    "dimension_bits": r.geometry_bits,
-                    "dimension_bits_low": r.geometry_low,
-                    "dimension_bits_high": r.geometry_high,
-                    "entropy_bits": r.information_bits,
-                    "entropy_bits_low": r.information_low,
-                    "entropy_bits_high": r.information_high,
-                    "difference_bits": r.difference,
-                    "verdict": r.verdict,
-                    "flags": list(r.flags),
-                }
-            )
-        return rows
-
-    def absent_dict(self) -> dict | None:
-        if self.absent is None:
-            return None
-        a = self.absent
-        return {
-            "depth": a.depth,
-            "model_order": a.model_order,
-            "min_expected": a.min_expected,
-            "possible": a.possible,
-            "distinct": a.distinct,
-            "absent_total": a.absent_total,
-            "examined": a.candidates,
-            "absent_examined": a.matching,
-            "reliable": a.reliable,
-            "note": a.note,
-            "words": [
-                {k: v for k, v in r.to_dict().items() if k in ("word", "expected", "observed", "p_absent", "p_absent_poisson", "period", "minimal")}
-                for r in a.rows
-            ],
-        }
-
-    def to_dict(self) -> dict:
-        """The JSON object of this source (the entries of the contract's ``sources`` list)."""
-        topo = {
-            "estimate": self.topological.estimate,
-            "method": self.topological.method,
-            "depth": self.topological.depth,
-            "fraction_of_max": self.topological.fraction_of_max,
-            "reliable": self.topological.reliable,
-            "note": self.topological.note,
-        }
-        if self.koslicki is not None:
-            topo["koslicki"] = {
-                "estimate": self.koslicki.estimate,
-                "fraction_of_max": self.koslicki.fraction_of_max,
-                "depth": self.koslicki.depth,
-                "note": self.koslicki.note,
-            }
-        return {
-            "name": self.name,
-            "length": self.length,
-            "segments": self.segments,
-            "alphabet_size": self.alphabet_size,
-            "alphabet": self.alphabet.to_dict(),
-            "ratio": self.ratio,
-            "overlap": self.overlap.to_dict(),
-            "depth": self.depth,
-            "dimensions": self.dimension_rows(),
-            "spectrum": self.spectrum_rows(),
-            "falpha": self.falpha_rows(),
-            "scaling": [c.to_dict() for c in self.scaling],
-            "entropy_rate_bits": self.rate_dict(),
-            "renyi_rate_bits": [
-                {"q": r.q, "estimate": r.estimate, "depth": r.depth, "method": r.method, "reliable": r.reliable, "note": r.note}
-                for r in self.renyi
-            ],
-            "topological_entropy_bits": topo,
-            "block_entropies": list(self.entropy_rows),
-            "consistency": self.consistency_rows(),
-            "absent_words": self.absent_dict(),
-            "bootstrap": {
-                "n_boot": self.n_boot,
-                "seed": self.seed,
-                "level": self.level,
-                "entropy_rate_block": self.rate_block,
-                "spectrum_block": self.spectrum.block.to_dict() if self.spectrum.block else None,
-            },
-            "settings": dict(self.settings),
-            "input": self.read,
-            "notes": list(self.notes),
-        }
-
-
-def contract(results: Sequence[ProfileResult], parameters: dict | None = None) -> dict:
-    """The whole JSON document: format, version, caution, parameters and the ``sources`` list."""
-    return {
-        "format": FORMAT,
-        "version": VERSION,
-        "caution": CAUTION_GENERAL,
-        "parameters": dict(parameters or {}),
-        "sources": [r.to_dict() for r in results],
-    }
 
 
 # ----------------------------------------------------------------- helpers
@@ -471,6 +195,264 @@ def _predictor_code_length(arr: SymbolArray):
     )
 
 
+# ----------------------------------------------------------------- settings
+@dataclass(frozen=True)
+class ProfileSettings:
+    """The settings of a profile, checked when made (before anything is read).
+
+    Attributes
+    ----------
+    ratio:
+        Contraction ratio k of the encoding, ``0 < k < 1``.
+    qs:
+        Orders q (sorted, distinct).
+    depth:
+        Deepest word length of the block-entropy table (``None``: :func:`auto_depth`); at least 2.
+    n_boot:
+        Block-bootstrap replicates (0: none; else at least 20).
+    level:
+        Confidence level of the intervals, in (0.5, 1).
+    seed:
+        Seed of every random step (:func:`fractalseq.jobs._inputs.check_seed`).
+    """
+
+    ratio: float = 0.5
+    qs: tuple[float, ...] = (0.0, 1.0, 2.0)
+    depth: int | None = None
+    n_boot: int = DEFAULT_BOOT
+    level: float = 0.95
+    seed: int = 0
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "qs", check_qs(self.qs))
+        object.__setattr__(self, "ratio", check_ratio(self.ratio))
+        n_boot = self.n_boot
+        if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 0:
+            raise ParameterError(f"Bootstrap replicates must be 0 (none) or a whole number of at least 20, not {n_boot!r}.", parameter="n_boot")
+        if 0 < n_boot < 20:
+            raise ParameterError(f"{n_boot} bootstrap replicates are too few for an interval; use 0 (none) or at least 20.", parameter="n_boot")
+        if not 0.5 < float(self.level) < 1:
+            raise ParameterError(f"Confidence level {self.level} is outside (0.5, 1); use e.g. 0.95.", parameter="level")
+        if self.depth is not None and (isinstance(self.depth, bool) or not isinstance(self.depth, (int, np.integer)) or self.depth < 2):
+            raise ParameterError(f"Depth {self.depth!r} is too small; the entropy rates need words of length 2 or more.", parameter="depth")
+        object.__setattr__(self, "seed", check_seed(self.seed))
+
+    def depth_for(self, length: int, alphabet: Alphabet) -> int:
+        """The deepest word length counted for a stream of ``length`` symbols over ``alphabet``."""
+        if self.depth is not None and self.depth > alphabet.max_depth:
+            raise ParameterError(
+                f"Depth {self.depth} exceeds the deepest word length {alphabet.max_depth} for {alphabet.size} symbols; "
+                f"use {alphabet.max_depth} or less.",
+                parameter="depth",
+            )
+        return check_depth(alphabet, auto_depth(length, alphabet) if self.depth is None else self.depth)
+
+    def parameters(self, reader: ReaderOptions | None = None) -> dict[str, Any]:
+        """The ``parameters`` object of the profile's JSON document (reader options only when not the defaults)."""
+        reader = reader or ReaderOptions()
+        out: dict[str, Any] = {
+            "ratio": self.ratio, "q": list(self.qs), "depth": self.depth, "boot": self.n_boot, "level": self.level,
+            "seed": self.seed, "alphabet": reader.alphabet, "format": reader.fmt, "unknown": reader.policy,
+        }
+        if reader.numeric_options():
+            out["reader"] = reader.numeric_options()
+        return out
+
+
+# ---------------------------------------------------------------- the steps
+class _Clock:
+    """Seconds per step (kept out of the JSON) and the progress callback."""
+
+    def __init__(self, progress: Callable[[str], None] | None) -> None:
+        self.progress = progress
+        self.timings: dict[str, float] = {}
+        self._current = ""
+        self._start = time.perf_counter()
+
+    def step(self, name: str) -> None:
+        now = time.perf_counter()
+        if self._current:
+            self.timings[self._current] = round(now - self._start, 4)
+        self._current, self._start = name, now
+        if self.progress is not None and name:
+            self.progress(name)
+
+
+def _checked_input(arr: SymbolArray | SymbolStream, settings: ProfileSettings) -> tuple[SymbolArray, int]:
+    """The stream in memory and the depth to count, after every check."""
+    if isinstance(arr, SymbolStream):
+        arr = arr.to_array()
+    if not isinstance(arr, SymbolArray):
+        raise InputError("profile_source needs a stream (SymbolArray or SymbolStream).")
+    if arr.alphabet.size < 2:
+        raise InputError("The alphabet has fewer than 2 symbols; there is no complexity to measure.")
+    L = len(arr)
+    if L < 2:
+        raise InputError(f"The stream has {L} symbol(s); a profile needs at least 2.")
+    return arr, settings.depth_for(L, arr.alphabet)
+
+
+@dataclass
+class _Entropies:
+    """Step 2: block entropies and the estimates read off the word counts."""
+
+    rows: tuple[dict[str, Any], ...]
+    rates: dict[str, ent.EntropyEstimate]
+    renyi: tuple[ent.EntropyEstimate, ...]
+    topological: ent.EntropyEstimate
+    koslicki: ent.EntropyEstimate | None
+
+
+def _block_entropies(arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], notes: list[str]) -> _Entropies:
+    """Block entropies, entropy-rate estimates, Rényi rates and topological entropies from the counts."""
+    rows = tuple(ent.entropy_table(wc))
+    rate_est = {m: ent.h_difference(wc, None, m) for m in ent.METHODS}
+    renyi = tuple(ent.h_renyi(wc, q) for q in user_qs)
+    topo = ent.h_topological_growth(wc)
+    try:
+        kos = ent.h_topological_koslicki(arr)
+    except FractalseqError as exc:
+        kos = None
+        notes.append(f"Koslicki topological entropy: not computed ({exc})")
+    return _Entropies(rows, rate_est, renyi, topo, kos)
+
+
+def _dimensions(
+    arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], k: float, n_boot: int, seed: int, level: float, notes: list[str]
+) -> tuple[sp.SpectrumResult, tuple[ScalingCurve, ...]]:
+    """Step 3: D_q and f(alpha) (user's orders plus a grid for the f(alpha) curve) and the scaling curves.
+
+    The conditional Rényi rates of the consistency table come from the same bootstrap pass.
+    """
+    all_qs = tuple(sorted(set(user_qs) | set(FALPHA_QS)))
+    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, n_boot=n_boot, seed=seed, level=level, falpha=True, rates=True)
+    notes.extend(f"dimensions: {f}" for f in spec.flags)
+    wc_spec = None
+    if spec.route == "word counts":
+        top = max(int(lv["n"]) for lv in spec.levels) if spec.levels else 1
+        wc_spec = wc if top <= wc.depth else count_words(arr, top)
+    return spec, _scaling_curves(spec, wc_spec, user_qs, k)
+
+
+def _rate_intervals(
+    arr: SymbolArray, rate_est: dict[str, ent.EntropyEstimate], n_boot: int, seed: int, level: float, block, notes: list[str]
+) -> dict[str, Any] | None:
+    """Step 4: intervals of the rate estimates by the block bootstrap (counts re-weighted, never recounted).
+
+    Updates ``rate_est`` in place; returns the bootstrap's block rule (``None`` without a bootstrap).
+    """
+    n_rate = rate_est["grassberger"].depth or 0
+    if n_boot > 0 and len(arr) >= 2 * (n_rate + 2):
+        depths = (n_rate, n_rate + 1) if n_rate >= 1 else (1,)
+
+        def stat(tables: dict[int, np.ndarray]) -> list[float]:
+            c0 = tables[n_rate] if n_rate >= 1 else None
+            c1 = tables[n_rate + 1]
+            out = []
+            for m in ent.METHODS:
+                try:
+                    out.append(ent.rate_from_counts(c0, c1, m))
+                except FractalseqError:
+                    out.append(float("nan"))
+            return out
+
+        def batch(specs: dict) -> np.ndarray:
+            s0 = specs[n_rate] if n_rate >= 1 else None
+            return np.column_stack([ent.replicate_rates(s0, specs[n_rate + 1], m) for m in ent.METHODS])
+
+        boot = bs.block_bootstrap(
+            arr, depths, stat, n_boot=n_boot, seed=seed, block_length=block, spectra=True, batch_statistic=batch
+        )
+        lo, hi = boot.interval(level)
+        for j, m in enumerate(ent.METHODS):
+            if np.isfinite(lo[j]) and np.isfinite(hi[j]):
+                rate_est[m] = rate_est[m].with_interval(lo[j], hi[j], f"{level:.0%} block bootstrap, {n_boot} replicates")
+        notes.extend(f"entropy-rate bootstrap: {n}" for n in boot.notes)
+        return boot.block.to_dict()
+    if n_boot > 0:
+        notes.append("entropy-rate intervals: stream too short for the bootstrap")
+    return None
+
+
+def _consistency(
+    arr: SymbolArray, spec: sp.SpectrumResult, user_qs: tuple[float, ...], k: float, n_boot: int, seed: int,
+    offsets: int, level: float, notes: list[str],
+) -> cons.ConsistencyResult | None:
+    """Step 5: the consistency table (geometry against information), or ``None`` with a note saying why."""
+    L = len(arr)
+    if L <= sp.TRANSIENT + 10:
+        notes.append(f"consistency table: not computed, the stream has {L} symbols (needs more than {sp.TRANSIENT + 10})")
+        return None
+    block = spec.block
+    info = None
+    if spec.route == "word counts" and spec.rates:
+        info = cons.RateResult(
+            tuple(r for r in spec.rates if r.q in user_qs), block, int(n_boot) if block else 0, int(seed), L
+        )
+    try:
+        consistency = cons.consistency_table(
+            arr, user_qs, ratio=k, n_boot=n_boot, seed=seed, offsets=offsets, level=level,
+            block_length=block, information=info,
+            levels=spec.data_limit if spec.route == "word counts" and spec.data_limit else None,
+        )
+    except FractalseqError as exc:
+        notes.append(f"consistency table: not computed ({exc})")
+        return None
+    notes.extend(f"consistency table: {f}" for f in consistency.flags)
+    return consistency
+
+
+def _rate_bounds(
+    arr: SymbolArray, rates: dict[str, tuple[str, ent.EntropyEstimate]], lz_max_length: int | None,
+    compress_max_length: int | None, clock: _Clock, notes: list[str],
+) -> None:
+    """Step 6: Lempel-Ziv, the compressor bound and the online predictor, added to ``rates``."""
+    clock.step("Lempel-Ziv")
+    try:
+        rates["lz76"] = ("estimate", lz.h_lz76(arr, max_length=lz_max_length))
+    except FractalseqError as exc:
+        notes.append(f"LZ76: not computed ({exc})")
+    clock.step("compressors")
+    try:
+        rates["compressors"] = ("upper bound", ent.h_compressors(arr, max_length=compress_max_length))
+    except FractalseqError as exc:
+        notes.append(f"compressor bound: not computed ({exc})")
+    clock.step("online predictor")
+    try:
+        rates["online_predictor"] = ("upper bound", _predictor_code_length(arr))
+    except FractalseqError as exc:
+        notes.append(f"online predictor: not computed ({exc})")
+
+
+def _absent_words(wc: WordCounts, length: int, absent_list: int, notes: list[str]) -> absent_mod.WordReport | None:
+    """Step 7: absent words under a low-order Markov model, or ``None`` with a note."""
+    try:
+        return absent_mod.absent_words(wc, _absent_depth(length, wc), max_list=absent_list)
+    except FractalseqError as exc:
+        notes.append(f"absent words: not computed ({exc})")
+        return None
+
+
+def _encoding_image(arr: SymbolArray, k: float, image: bool) -> tuple[np.ndarray | None, int | None]:
+    """Step 8: the density image of the encoding and log2 of its side, or ``(None, None)``."""
+    if not image:
+        return None, None
+    levels = image_levels(len(arr))
+    return density_image(points(arr, k), size=1 << levels), levels
+
+
+def _reliability_notes(
+    rates: dict[str, tuple[str, ent.EntropyEstimate]], topo: ent.EntropyEstimate, absent: absent_mod.WordReport | None
+) -> list[str]:
+    """The estimators' own reliability notes, one line each."""
+    notes = [f"entropy rate ({name}): {e.note}" for name, (_, e) in rates.items() if e is not None and not e.reliable]
+    if not topo.reliable:
+        notes.append(f"topological entropy: {topo.note}")
+    if absent is not None and not absent.reliable:
+        notes.append(f"absent words: {absent.note}")
+    return notes
+
+
 # -------------------------------------------------------------- the profile
 def profile_source(
     arr: SymbolArray | SymbolStream,
@@ -523,172 +505,35 @@ def profile_source(
     -------
     ProfileResult
     """
-    if isinstance(arr, SymbolStream):
-        arr = arr.to_array()
-    if not isinstance(arr, SymbolArray):
-        raise InputError("profile_source needs a stream (SymbolArray or SymbolStream).")
-    user_qs = check_qs(qs)
-    k = check_ratio(ratio)
-    if not isinstance(n_boot, (int, np.integer)) or n_boot < 0 or 0 < n_boot < 20:
-        raise ParameterError(f"Bootstrap replicates must be 0 (none) or at least 20, not {n_boot!r}.")
-    if not 0.5 < float(level) < 1:
-        raise ParameterError(f"Confidence level {level} is outside (0.5, 1); use e.g. 0.95.")
-    A = arr.alphabet.size
-    if A < 2:
-        raise InputError("The alphabet has fewer than 2 symbols; there is no complexity to measure.")
+    clock = _Clock(progress)
+    settings = ProfileSettings(ratio, tuple(qs), depth, n_boot, level, seed)
+    arr, N = _checked_input(arr, settings)
+    user_qs, k = settings.qs, settings.ratio
     L = len(arr)
-    if L < 2:
-        raise InputError(f"The stream has {L} symbol(s); a profile needs at least 2.")
-    N = check_depth(arr.alphabet, auto_depth(L, arr.alphabet) if depth is None else depth)
-    if N < 2:
-        raise ParameterError("The depth must be at least 2 for entropy-rate estimates; use --depth 2 or more.")
     notes: list[str] = []
-    timings: dict[str, float] = {}
-    step_start = [time.perf_counter()]
-    current = [""]
-
-    def step(name: str) -> None:
-        now = time.perf_counter()
-        if current[0]:
-            timings[current[0]] = round(now - step_start[0], 4)
-        current[0] = name
-        step_start[0] = now
-        if progress is not None and name:
-            progress(name)
-
-    corners = corner_layout(A)
-    ov = overlap_check(k, corners)
+    ov = overlap_check(k, corner_layout(arr.alphabet.size))
     if ov.overlapping:
         notes.append(f"encoding: {ov.reason}")
 
-    # 1. words, counted once
-    step("counting words")
+    clock.step("counting words")  # 1. words, counted once
     wc = count_words(arr, N)
+    clock.step("block entropies")  # 2. block entropies and rate estimates
+    found = _block_entropies(arr, wc, user_qs, notes)
+    clock.step("dimensions")  # 3. dimensions, f(alpha) and the scaling data
+    spec, scaling = _dimensions(arr, wc, user_qs, k, n_boot, seed, level, notes)
+    clock.step("entropy-rate intervals")  # 4. one block length for every interval (the spectrum's)
+    rate_block = _rate_intervals(arr, found.rates, n_boot, seed, level, spec.block, notes)
+    rates: dict[str, tuple[str, ent.EntropyEstimate]] = {m: ("estimate", found.rates[m]) for m in ent.METHODS}
+    clock.step("consistency table")  # 5. geometry against information
+    consistency = _consistency(arr, spec, user_qs, k, n_boot, seed, offsets, level, notes)
+    _rate_bounds(arr, rates, lz_max_length, compress_max_length, clock, notes)  # 6. LZ76, compressors, predictor
+    clock.step("absent words")  # 7. absent words
+    absent = _absent_words(wc, L, absent_list, notes)
+    clock.step("encoding image")  # 8. encoding image
+    img, levels_img = _encoding_image(arr, k, image)
+    clock.step("")
 
-    # 2. block entropies and rate estimates
-    step("block entropies")
-    rows = tuple(ent.entropy_table(wc))
-    rate_est = {m: ent.h_difference(wc, None, m) for m in ent.METHODS}
-    renyi = tuple(ent.h_renyi(wc, q) for q in user_qs)
-    topo = ent.h_topological_growth(wc)
-    try:
-        kos = ent.h_topological_koslicki(arr)
-    except FractalseqError as exc:
-        kos = None
-        notes.append(f"Koslicki topological entropy: not computed ({exc})")
-
-    # 3. dimensions and f(alpha) (user's orders plus a grid for the f(alpha) curve); the conditional
-    #    Rényi rates of the consistency table come from the same bootstrap pass
-    step("dimensions")
-    all_qs = tuple(sorted(set(user_qs) | set(FALPHA_QS)))
-    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, n_boot=n_boot, seed=seed, level=level, falpha=True, rates=True)
-    notes.extend(f"dimensions: {f}" for f in spec.flags)
-    wc_spec = None
-    if spec.route == "word counts":
-        top = max(int(lv["n"]) for lv in spec.levels) if spec.levels else 1
-        wc_spec = wc if top <= wc.depth else count_words(arr, top)
-    scaling = _scaling_curves(spec, wc_spec, user_qs, k)
-    # one block length for every interval of the profile (chosen once, for the deepest level used)
-    block = spec.block
-
-    # 4. intervals of the rate estimates by the block bootstrap (counts re-weighted, never recounted)
-    step("entropy-rate intervals")
-    n_rate = rate_est["grassberger"].depth or 0
-    rate_block = None
-    if n_boot > 0 and L >= 2 * (n_rate + 2):
-        depths = (n_rate, n_rate + 1) if n_rate >= 1 else (1,)
-
-        def stat(tables: dict[int, np.ndarray]) -> list[float]:
-            c0 = tables[n_rate] if n_rate >= 1 else None
-            c1 = tables[n_rate + 1]
-            out = []
-            for m in ent.METHODS:
-                try:
-                    out.append(ent.rate_from_counts(c0, c1, m))
-                except FractalseqError:
-                    out.append(float("nan"))
-            return out
-
-        def batch(specs: dict) -> np.ndarray:
-            s0 = specs[n_rate] if n_rate >= 1 else None
-            return np.column_stack([ent.replicate_rates(s0, specs[n_rate + 1], m) for m in ent.METHODS])
-
-        boot = bs.block_bootstrap(
-            arr, depths, stat, n_boot=n_boot, seed=seed, block_length=block, spectra=True, batch_statistic=batch
-        )
-        lo, hi = boot.interval(level)
-        for j, m in enumerate(ent.METHODS):
-            if np.isfinite(lo[j]) and np.isfinite(hi[j]):
-                rate_est[m] = rate_est[m].with_interval(lo[j], hi[j], f"{level:.0%} block bootstrap, {n_boot} replicates")
-        rate_block = boot.block.to_dict()
-        notes.extend(f"entropy-rate bootstrap: {n}" for n in boot.notes)
-    elif n_boot > 0:
-        notes.append("entropy-rate intervals: stream too short for the bootstrap")
-    rates: dict[str, tuple[str, Any]] = {m: ("estimate", rate_est[m]) for m in ent.METHODS}
-
-    # 5. consistency table (geometry against information)
-    step("consistency table")
-    consistency = None
-    if L <= sp.TRANSIENT + 10:
-        notes.append(f"consistency table: not computed, the stream has {L} symbols (needs more than {sp.TRANSIENT + 10})")
-    else:
-        info = None
-        if spec.route == "word counts" and spec.rates:
-            info = cons.RateResult(
-                tuple(r for r in spec.rates if r.q in user_qs), block, int(n_boot) if block else 0, int(seed), L
-            )
-        try:
-            consistency = cons.consistency_table(
-                arr, user_qs, ratio=k, n_boot=n_boot, seed=seed, offsets=offsets, level=level,
-                block_length=block, information=info,
-                levels=spec.data_limit if spec.route == "word counts" and spec.data_limit else None,
-            )
-            notes.extend(f"consistency table: {f}" for f in consistency.flags)
-        except FractalseqError as exc:
-            notes.append(f"consistency table: not computed ({exc})")
-
-    # 6. Lempel-Ziv, compressors, predictor
-    step("Lempel-Ziv")
-    try:
-        rates["lz76"] = ("estimate", lz.h_lz76(arr, max_length=lz_max_length))
-    except FractalseqError as exc:
-        notes.append(f"LZ76: not computed ({exc})")
-    step("compressors")
-    try:
-        rates["compressors"] = ("upper bound", ent.h_compressors(arr, max_length=compress_max_length))
-    except FractalseqError as exc:
-        notes.append(f"compressor bound: not computed ({exc})")
-    step("online predictor")
-    try:
-        rates["online_predictor"] = ("upper bound", _predictor_code_length(arr))
-    except FractalseqError as exc:
-        notes.append(f"online predictor: not computed ({exc})")
-
-    # 7. absent words
-    step("absent words")
-    absent = None
-    try:
-        absent = absent_mod.absent_words(wc, _absent_depth(L, wc), max_list=absent_list)
-    except FractalseqError as exc:
-        notes.append(f"absent words: not computed ({exc})")
-
-    # 8. encoding image
-    step("encoding image")
-    img = None
-    levels_img = None
-    if image:
-        levels_img = image_levels(L)
-        img = density_image(points(arr, k), size=1 << levels_img)
-    step("")
-
-    # reliability notes from the estimators
-    for name, (_, e) in rates.items():
-        if e is not None and not e.reliable:
-            notes.append(f"entropy rate ({name}): {e.note}")
-    if not topo.reliable:
-        notes.append(f"topological entropy: {topo.note}")
-    if absent is not None and not absent.reliable:
-        notes.append(f"absent words: {absent.note}")
+    notes.extend(_reliability_notes(rates, found.topological, absent))
     settings = {
         "lz_max_length": lz_max_length,
         "compress_max_length": compress_max_length,
@@ -709,11 +554,11 @@ def profile_source(
         level=float(level),
         overlap=ov,
         spectrum=spec,
-        entropy_rows=rows,
+        entropy_rows=found.rows,
         rates=rates,
-        renyi=renyi,
-        topological=topo,
-        koslicki=kos,
+        renyi=found.renyi,
+        topological=found.topological,
+        koslicki=found.koslicki,
         consistency=consistency,
         absent=absent,
         scaling=scaling,
@@ -723,5 +568,5 @@ def profile_source(
         rate_block=rate_block,
         settings=settings,
         notes=tuple(dict.fromkeys(notes)),
-        timings=timings,
+        timings=clock.timings,
     )

@@ -20,12 +20,10 @@ Genomic output is for research, not for clinical decisions.
 
 from __future__ import annotations
 
-import glob
 import inspect
 import json
-import os
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable, Sequence
 
@@ -33,8 +31,8 @@ import numpy as np
 
 from fractalseq import __version__
 from fractalseq.alphabet import Alphabet
-from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
 from fractalseq.compare._distances import (
+    LINKAGES,
     Clustering,
     cluster,
     joint_alphabet,
@@ -43,125 +41,32 @@ from fractalseq.compare._distances import (
     spectrum_matrix,
     word_matrix,
 )
-from fractalseq.runner import Engine, SerialEngine, pause_point
 from fractalseq.errors import InputError, ParameterError
+from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
 from fractalseq.io._outputs import to_json
+from fractalseq.jobs._inputs import DEFAULT_BINS, ReaderOptions, check_seed
+from fractalseq.jobs._sources import SourceSpec, expand_inputs
+from fractalseq.report.survey import SurveyView
+from fractalseq.results import Result
+from fractalseq.runner import Engine, SerialEngine, pause_point
 from fractalseq.stream import ReadReport, SymbolArray
 from fractalseq.words._counts import WordCounts, count_words
 
+__all__ = [
+    "SourceSpec", "SurveyDistances", "SurveyOptions", "SurveyResult", "expand_inputs", "figures_of", "merge_survey",
+    "run_survey", "spectrum_of", "survey_task", "write_outputs",
+]
+
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
 #: Deepest word length stored per source for the distances (capped by the alphabet's address width).
-#: Sources drawn in colour with a legend in the overlaid spectra (more: thin lines, no legend).
-LABELLED_SOURCES = 12
-#: Sources named on the dendrogram and heat map axes (more: unlabelled, fixed-size figures).
-NAMED_LEAVES = 60
-#: Sources whose distance matrices are shown as tables in survey.html (more: distances.csv only).
-MATRIX_IN_PAGE = 40
 STORE_DEPTH = 8
 #: Cap on the number of possible words A**n stored per source.
 STORE_WORDS = 1 << 20
 #: Automatic distance depth: the shortest source needs this many words per possible word.
 WORDS_PER_CELL = 20
-_GLOB_CHARS = set("*?[")
-
-
-# ================================================================== inputs
-@dataclass(frozen=True)
-class SourceSpec:
-    """One input of a survey: a path (``-`` for standard input) and its display name."""
-
-    path: str
-    name: str
-
-
-def _folder_files(folder: Path) -> list[Path]:
-    return sorted(p for p in folder.rglob("*") if p.is_file() and not any(part.startswith(".") for part in p.relative_to(folder).parts))
-
-
-def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_lines: Sequence[str] | None = None) -> list[SourceSpec]:
-    """Turn files, folders, glob patterns and a list file into a list of sources.
-
-    Parameters
-    ----------
-    items:
-        Paths: a file; a folder (every non-hidden file below it, sorted);
-        a glob pattern such as ``genomes/*.fa.gz`` (``**`` recurses); or
-        ``-`` for standard input.
-    list_file:
-        A text file with one path (or pattern) per line; blank lines and
-        lines starting with ``#`` are skipped; relative paths are relative
-        to the list file's folder.  ``-`` reads the list from ``stdin_lines``.
-    stdin_lines:
-        Lines of the list when ``list_file`` is ``-``.
-
-    Returns
-    -------
-    list of SourceSpec
-        In the order given, duplicates removed; names are file names, or
-        paths relative to the current folder when two file names clash.
-
-    Raises
-    ------
-    InputError
-        A path that does not exist, a pattern or folder matching no file, or
-        no input at all.
-    """
-    raw: list[tuple[str, Path | None]] = [(it, None) for it in items]
-    if list_file is not None:
-        if list_file == "-":
-            lines, base = list(stdin_lines or []), Path(".")
-        else:
-            lp = Path(list_file)
-            try:
-                lines = lp.read_text(encoding="utf-8").splitlines()
-            except FileNotFoundError:
-                raise InputError(f"The list file {list_file} does not exist; check the path.") from None
-            except (OSError, UnicodeDecodeError) as exc:
-                raise InputError(f"The list file {list_file} cannot be read ({exc}); give a UTF-8 text file.") from None
-            base = lp.parent
-        for ln in lines:
-            ln = ln.strip()
-            if ln and not ln.startswith("#"):
-                raw.append((ln, base))
-    paths: list[str] = []
-    for item, base in raw:
-        if item == "-":
-            paths.append("-")
-            continue
-        p = Path(item)
-        if base is not None and not p.is_absolute():
-            p = base / p
-        if p.is_file():
-            paths.append(str(p))
-        elif p.is_dir():
-            found = _folder_files(p)
-            if not found:
-                raise InputError(f"The folder {item} holds no files; give a folder with inputs.")
-            paths.extend(str(f) for f in found)
-        elif _GLOB_CHARS & set(str(p)):
-            found = sorted(f for f in glob.glob(str(p), recursive=True) if Path(f).is_file())
-            if not found:
-                raise InputError(f"The pattern {item} matches no file; check the pattern (quote it for the shell).")
-            paths.extend(found)
-        else:
-            raise InputError(f"Input {item} does not exist; check the path.")
-    if not paths:
-        raise InputError("No inputs were given; name files, folders, patterns or a list file.")
-    if paths.count("-") > 1 or ("-" in paths and list_file == "-"):
-        raise InputError("Standard input can be read only once; give '-' once and not together with --from-list -.")
-    seen: set[str] = set()
-    unique: list[str] = []
-    for p in paths:
-        key = p if p == "-" else os.path.realpath(p)
-        if key not in seen:
-            seen.add(key)
-            unique.append(p)
-    names = [("stdin" if p == "-" else Path(p).name) for p in unique]
-    if len(set(names)) < len(names):
-        names = [("stdin" if p == "-" else os.path.relpath(p)) for p in unique]
-    if len(set(names)) < len(names):
-        names = [("stdin" if p == "-" else os.path.abspath(p)) for p in unique]
-    return [SourceSpec(p, n) for p, n in zip(unique, names)]
+#: What the distance matrices measure (the JSON says it beside each matrix).
+JS_METRIC = "Jensen-Shannon distance (square root of the divergence)"
+SPECTRUM_MEASURE = "root mean square difference of the D_q spectra over common q"
 
 
 # ================================================================= options
@@ -198,6 +103,29 @@ class SurveyOptions:
     linkage: str = "average"
     reader: tuple[tuple[str, Any], ...] = ()
 
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "seed", check_seed(self.seed))
+        if self.linkage not in LINKAGES:
+            raise ParameterError(f"Linkage {self.linkage!r} is not one of {', '.join(LINKAGES)}.", parameter="linkage")
+        self.reader_options  # noqa: B018 - validates the reader settings before any work
+
+    @classmethod
+    def from_reader(cls, reader: ReaderOptions, **options: Any) -> "SurveyOptions":
+        """Survey options reading every source with ``reader`` (other settings as keywords)."""
+        alphabet = reader.alphabet
+        if isinstance(alphabet, Alphabet):
+            raise ParameterError("A survey takes an alphabet by name (its cache key and JSON name it).", parameter="alphabet")
+        return cls(fmt=reader.fmt, alphabet=alphabet, policy=reader.policy, reader=tuple(sorted(reader.numeric_options().items())), **options)
+
+    @property
+    def reader_options(self) -> ReaderOptions:
+        """The reader settings of every source as one :class:`ReaderOptions`."""
+        extra = dict(self.reader)
+        return ReaderOptions(
+            self.fmt, self.alphabet, self.policy, extra.get("column"), extra.get("bins", DEFAULT_BINS),
+            None if extra.get("thresholds") is None else tuple(extra["thresholds"]), extra.get("ordinal", 0),
+        )
+
     def task_params(self) -> dict:
         """Parameters that change a per-source result (the cache key)."""
         return {
@@ -213,6 +141,7 @@ class SurveyOptions:
         }
 
     def to_dict(self) -> dict:
+        """The ``parameters`` object of the survey's JSON document."""
         return {
             "format": self.fmt,
             "alphabet": self.alphabet,
@@ -243,7 +172,8 @@ def _store_depth(alphabet: Alphabet, options: SurveyOptions) -> int:
         if options.distance_depth > alphabet.max_depth:
             raise ParameterError(
                 f"Distance depth {options.distance_depth} exceeds the address width of the {alphabet.name} alphabet; "
-                f"use --distance-depth {alphabet.max_depth} or less."
+                f"use {alphabet.max_depth} or less.",
+                parameter="distance_depth",
             )
         return int(options.distance_depth)
     n = 1
@@ -277,12 +207,9 @@ def survey_task(task: SurveyTask) -> dict:
         arr = SymbolArray(alphabet, task.codes, task.starts if task.starts is not None else np.zeros(0, np.int64), task.spec.name,
                           task.report if task.report is not None else ReadReport())
     else:
-        from fractalseq.sources import open_source
-
-        stream = open_source(task.spec.path, fmt=opts.fmt, alphabet=opts.alphabet, policy=opts.policy, name=task.spec.name, **dict(opts.reader))
-        arr = stream.to_array()
+        arr = opts.reader_options.open(task.spec.path, name=task.spec.name).to_array()
     if len(arr) == 0:
-        raise InputError(f"{task.spec.path} holds no usable symbols; check the file and the --alphabet/--format options.")
+        raise InputError(f"{task.spec.path} holds no usable symbols; check the file, its format and the alphabet.")
     arr.name = task.spec.name
     profile = profile_row(arr, opts)
     wc = count_words(arr, min(_store_depth(arr.alphabet, opts), arr.alphabet.max_depth))
@@ -335,7 +262,7 @@ def figures_of(profile: dict) -> dict:
     }
 
 
-def _spectrum_rows(profile: dict) -> list[dict]:
+def spectrum_rows(profile: dict) -> list[dict]:
     rows = profile.get("spectrum") or profile.get("dimensions") or []
     return [d for d in rows if isinstance(d, dict) and d.get("q") is not None]
 
@@ -343,74 +270,118 @@ def _spectrum_rows(profile: dict) -> list[dict]:
 def spectrum_of(profile: dict) -> tuple[list[float], list[float | None]]:
     """``(q values, D_q estimates)`` of a profile (every order it computed)."""
     qs, ds = [], []
-    for d in _spectrum_rows(profile):
+    for d in spectrum_rows(profile):
         if isinstance(d, dict) and d.get("q") is not None:
             qs.append(float(d["q"]))
             ds.append(d.get("estimate"))
     return qs, ds
 
 
-@dataclass
-class SurveyResult:
-    """A finished survey.
+@dataclass(frozen=True, eq=False)
+class SpectrumDistances(Result):
+    """RMS distances between the sources' D_q spectra."""
+
+    matrix: np.ndarray
+    measure: str = SPECTRUM_MEASURE
+
+
+@dataclass(frozen=True, eq=False)
+class SurveyDistances(Result):
+    """The ``distances`` object of a survey: Jensen–Shannon divergences, spectrum distances, clustering.
+
+    Attributes
+    ----------
+    names:
+        Source names (row/column order of the matrices).
+    matrix:
+        Jensen–Shannon divergences (bits) of the depth-``depth`` word distributions.
+    measure:
+        What ``matrix`` holds, in words.
+    depth:
+        Word length of the divergences.
+    alphabet:
+        Name of the (joint) alphabet the words were compared over.
+    spectrum:
+        RMS distances between the D_q spectra.
+    clustering:
+        Hierarchical clustering on the Jensen–Shannon distance.
+    """
+
+    names: tuple[str, ...]
+    matrix: np.ndarray
+    measure: str
+    depth: int
+    alphabet: str
+    spectrum: SpectrumDistances
+    clustering: Clustering
+
+
+@dataclass(frozen=True, eq=False)
+class SurveyResult(Result):
+    """A finished survey; :meth:`to_dict` is the documented JSON contract (README, ``survey --json``).
 
     Attributes
     ----------
     sources:
         Per source (input order): ``name``, ``path``, ``content_sha256``,
         the figures of :func:`figures_of`, ``read`` and the full ``profile``.
-    names:
-        Source names (row/column order of the matrices).
-    js, js_depth:
-        Jensen–Shannon divergences (bits) of the depth-``js_depth`` word distributions.
-    spectrum:
-        RMS distances between the D_q spectra.
-    clustering:
-        Hierarchical clustering on the Jensen–Shannon distance.
-    options:
-        The options used.
+    distances:
+        Divergences, spectrum distances and the clustering.
+    parameters:
+        The options used (JSON: :meth:`SurveyOptions.to_dict`).
     notes:
         Anything the reader of the result should know.
+    command, fractalseq, caution:
+        What made the document, the package version, and the caution that goes with it.
     cache_pruned:
         Cache entries of earlier runs removed after this one (``run_survey(...,
         prune_cache=True)``); not part of the JSON, which depends only on the inputs and options.
     """
 
-    sources: list[dict]
-    names: list[str]
-    js: np.ndarray
-    js_depth: int
-    js_alphabet: str
-    spectrum: np.ndarray
-    clustering: Clustering
-    options: SurveyOptions
-    notes: list[str] = field(default_factory=list)
-    cache_pruned: int = 0
+    sources: tuple[dict, ...]
+    distances: SurveyDistances
+    parameters: SurveyOptions
+    notes: tuple[str, ...] = ()
+    command: str = "survey"
+    fractalseq: str = __version__
+    caution: str = CAUTION
+    cache_pruned: int = field(default=0, metadata={"json": False})
 
-    def to_dict(self) -> dict:
-        """The documented JSON contract (see the README section on ``survey --json``)."""
-        return {
-            "command": "survey",
-            "fractalseq": __version__,
-            "caution": CAUTION,
-            "parameters": self.options.to_dict(),
-            "sources": self.sources,
-            "distances": {
-                "names": list(self.names),
-                "matrix": self.js.tolist(),
-                "measure": f"Jensen-Shannon divergence of the depth-{self.js_depth} word distributions, bits (0..1)",
-                "depth": self.js_depth,
-                "alphabet": self.js_alphabet,
-                "spectrum": {
-                    "matrix": self.spectrum.tolist(),
-                    "measure": "root mean square difference of the D_q spectra over common q",
-                },
-                "clustering": self.clustering.to_dict(),
-            },
-            "notes": list(self.notes),
-        }
+    # views kept for callers that read the matrices directly
+    @property
+    def options(self) -> SurveyOptions:
+        """The options used."""
+        return self.parameters
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Source names (row/column order of the matrices)."""
+        return self.distances.names
+
+    @property
+    def js(self) -> np.ndarray:
+        """Jensen–Shannon divergences (bits) of the depth-:attr:`js_depth` word distributions."""
+        return self.distances.matrix
+
+    @property
+    def js_depth(self) -> int:
+        return self.distances.depth
+
+    @property
+    def js_alphabet(self) -> str:
+        return self.distances.alphabet
+
+    @property
+    def spectrum(self) -> np.ndarray:
+        """RMS distances between the D_q spectra."""
+        return self.distances.spectrum.matrix
+
+    @property
+    def clustering(self) -> Clustering:
+        return self.distances.clustering
 
     def to_json(self) -> str:
+        """The JSON document (sorted keys, fixed float form)."""
         return to_json(self.to_dict())
 
     def table(self) -> tuple[list[str], list[list]]:
@@ -447,11 +418,9 @@ def _content_hash(spec: SourceSpec, arr: SymbolArray | None) -> str:
 
 
 def _read_stdin(spec: SourceSpec, options: SurveyOptions) -> SymbolArray:
-    from fractalseq.sources import open_source
-
-    arr = open_source("-", fmt=options.fmt, alphabet=options.alphabet, policy=options.policy, name=spec.name, **dict(options.reader)).to_array()
+    arr = options.reader_options.open("-", name=spec.name).to_array()
     if len(arr) == 0:
-        raise InputError("Standard input holds no usable symbols; check the data and the --alphabet/--format options.")
+        raise InputError("Standard input holds no usable symbols; check the data, its format and the alphabet.")
     return arr
 
 
@@ -539,7 +508,7 @@ def run_survey(
         engine.map(survey_task, tasks, on_done=done)
     result = merge_survey(specs, outputs, hashes, options)  # type: ignore[arg-type]
     if prune_cache:
-        result.cache_pruned = cache.prune(keys, before=started)
+        result = replace(result, cache_pruned=cache.prune(keys, before=started))
     return result
 
 
@@ -575,7 +544,7 @@ def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: S
             w, c = w[order], c[order]
         tables.append((w, c))
     if any(c.sum() == 0 for _, c in tables):
-        raise InputError(f"A source has no word of length {depth}; use a smaller --distance-depth.")
+        raise ParameterError(f"A source has no word of length {depth}; use a smaller distance depth.", parameter="distance_depth")
     _, mat = word_matrix(tables)
     js = js_matrix(mat)
     sources = []
@@ -589,139 +558,56 @@ def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: S
         sources.append(entry)
     spec_d = spectrum_matrix(spectra)
     if len(specs) >= 2:
-        clustering = cluster(np.sqrt(js), options.linkage, "Jensen-Shannon distance (square root of the divergence)")
+        clustering = cluster(np.sqrt(js), options.linkage, JS_METRIC)
     else:
-        clustering = cluster(np.zeros((1, 1)), options.linkage, "Jensen-Shannon distance (square root of the divergence)")
+        clustering = cluster(np.zeros((1, 1)), options.linkage, JS_METRIC)
         notes.append("one source: no distances or clustering")
     if float(joint.size) ** depth * WORDS_PER_CELL > shortest:
         notes.append(
             f"the shortest source ({shortest} symbols) has fewer than {WORDS_PER_CELL} words per possible "
             f"{depth}-word; divergences are inflated by sampling"
         )
-    return SurveyResult(
-        sources, [s.name for s in specs], js, depth, joint.name, spec_d, clustering, options, notes
+    distances = SurveyDistances(
+        names=tuple(s.name for s in specs),
+        matrix=js,
+        measure=f"Jensen-Shannon divergence of the depth-{depth} word distributions, bits (0..1)",
+        depth=depth,
+        alphabet=joint.name,
+        spectrum=SpectrumDistances(spec_d),
+        clustering=clustering,
     )
+    return SurveyResult(tuple(sources), distances, options, tuple(notes))
 
 
-# ================================================================= figures
-def spectra_png(result: SurveyResult) -> bytes:
-    """D_q against q for every source, overlaid (intervals as bands)."""
-    from fractalseq.report.figures import PALETTE, figure, fig_to_png, short, style
-
-    crowded = len(result.sources) > LABELLED_SOURCES
-    with style():
-        fig, ax = figure(7.6, 4.6)
-        drawn = False
-        for i, s in enumerate(result.sources):
-            dims = [d for d in _spectrum_rows(s["profile"]) if d.get("estimate") is not None]
-            if not dims:
-                continue
-            drawn = True
-            q = np.array([float(d["q"]) for d in dims])
-            est = np.array([float(d["estimate"]) for d in dims])
-            if crowded:  # many sources: thin lines of one colour, no bands or legend
-                ax.plot(q, est, color="#0b6e69", lw=0.8, alpha=max(0.08, min(0.6, 12.0 / len(result.sources))))
-                continue
-            color = PALETTE[i % len(PALETTE)]
-            ax.plot(q, est, marker="o", color=color, label=short(s["name"], 28))
-            lo = np.array([np.nan if d.get("low") is None else float(d["low"]) for d in dims])
-            hi = np.array([np.nan if d.get("high") is None else float(d["high"]) for d in dims])
-            if np.isfinite(lo).any():
-                ax.fill_between(q, lo, hi, color=color, alpha=0.15, lw=0)
-        ax.set_xlabel("order q")
-        ax.set_ylabel("D_q")
-        ax.set_title("Rényi dimension spectra" + (f" of {len(result.sources)} sources" if crowded else ""))
-        if drawn and not crowded:  # no source may have an estimate (all too short): then there is nothing to label
-            ax.legend(loc="best", fontsize=8)
-        return fig_to_png(fig)
-
-
-def dendrogram_png(result: SurveyResult) -> bytes:
-    """Dendrogram of the clustering (Jensen–Shannon distance)."""
-    from scipy.cluster.hierarchy import dendrogram
-
-    from fractalseq.report.figures import figure, fig_to_png, short, style
-
-    n = len(result.names)
-    named = n <= NAMED_LEAVES  # beyond that the leaves are too many to label; the CSV and JSON name them
-    with style():
-        fig, ax = figure(7.6, max(3.0, 0.32 * n + 1.5) if named else 12.0)
-        if result.clustering.linkage.shape[0]:
-            dendrogram(
-                result.clustering.linkage, labels=[short(nm, 32) for nm in result.names] if named else None,
-                no_labels=not named, orientation="right", ax=ax, color_threshold=0, above_threshold_color="#0b6e69",
-            )
-        ax.set_xlabel("Jensen–Shannon distance (bits^½)")
-        ax.set_title(f"Clustering ({result.clustering.method} linkage), depth-{result.js_depth} words")
-        ax.grid(False)
-        return fig_to_png(fig)
-
-
-def heatmap_png(result: SurveyResult) -> bytes:
-    """Heat map of the Jensen–Shannon divergences, rows in dendrogram order."""
-    from fractalseq.report.figures import heatmap_png as _heat
-
-    order = result.clustering.order or list(range(len(result.names)))
-    m = result.js[np.ix_(order, order)]
-    labels = [result.names[i] for i in order] if len(order) <= NAMED_LEAVES else None
-    return _heat(m, labels, f"Jensen–Shannon divergence, depth-{result.js_depth} words", "bits")
-
-
-def html_report(result: SurveyResult, figures: dict[str, bytes] | None = None):
-    """The survey as an :class:`~fractalseq.report.html.HtmlReport` (sortable tables, figures).
-
-    ``figures`` (``spectra``, ``heatmap``, ``dendrogram`` PNG bytes) are drawn here when not given.
-    Distance matrices of more than :data:`MATRIX_IN_PAGE` sources are left to ``distances.csv``.
-    """
-    figs = dict(figures or {})
-    from fractalseq.report.html import HtmlReport
-
-    n = len(result.sources)
-    depth = "automatic" if result.options.depth is None else result.options.depth
-    page = HtmlReport(f"Survey of {n} source{'s' if n != 1 else ''}", f"profile depth {depth}, ratio k = {result.options.ratio}, seed {result.options.seed}", caution=CAUTION)
-    page.section("Sources")
-    page.paragraph(
-        "One row per source: length, alphabet size, the Rényi dimensions D_0, D_1, D_2, entropy-rate estimates, "
-        "topological entropy and the online predictor's bits per symbol, each with its interval (low, high). "
-        "Click a heading to sort."
-    )
+def report_view(result: SurveyResult) -> SurveyView:
+    """What the survey report draws, as plain data (the report layer does not know jobs)."""
     header, rows = result.table()
-    page.table(header, rows, sortable=True, caption="Per-source figures")
-    page.section("Spectra")
-    page.figure(figs.get("spectra") or spectra_png(result), "D_q against q for every source (bands: intervals).", "Overlaid D_q spectra")
-    page.section("Distances")
-    page.paragraph(
-        f"Jensen–Shannon divergence (bits, 0 to 1) between the depth-{result.js_depth} word distributions; "
-        "clustering uses its square root, which is a metric."
+    return SurveyView(
+        sources=tuple({"name": s["name"], "spectrum": spectrum_rows(s["profile"])} for s in result.sources),
+        names=result.names,
+        js=result.js,
+        spectrum=result.spectrum,
+        js_depth=result.js_depth,
+        clustering=result.clustering,
+        header=tuple(header),
+        rows=tuple(tuple(r) for r in rows),
+        notes=result.notes,
+        subtitle=(
+            f"profile depth {'automatic' if result.options.depth is None else result.options.depth}, "
+            f"ratio k = {result.options.ratio}, seed {result.options.seed}"
+        ),
+        caution=CAUTION,
     )
-    if len(result.names) <= MATRIX_IN_PAGE:
-        page.table(["source"] + list(result.names), [[nm] + list(r) for nm, r in zip(result.names, result.js.tolist())], caption="Jensen–Shannon divergence (bits)")
-        page.table(["source"] + list(result.names), [[nm] + list(r) for nm, r in zip(result.names, result.spectrum.tolist())], caption="RMS distance between D_q spectra")
-    else:
-        page.paragraph(f"The {n} × {n} distance matrices are in distances.csv and survey.json (too large for this page).")
-    if len(result.names) >= 2:
-        page.figure(figs.get("heatmap") or heatmap_png(result), "Jensen–Shannon divergences, rows and columns in dendrogram order.", "Distance heat map")
-        page.figure(figs.get("dendrogram") or dendrogram_png(result), "Hierarchical clustering of the sources.", "Dendrogram")
-    if result.notes:
-        page.section("Notes")
-        page.note("", result.notes)
-    return page
 
 
 def write_outputs(result: SurveyResult, folder: Path, force: bool = False) -> list[Path]:
     """Write survey.json, survey.csv, distances.csv, survey.html and the PNG figures (atomically)."""
-    from fractalseq.io._outputs import write_bytes, write_csv, write_text
+    from fractalseq.io._outputs import write_text
+    from fractalseq.report.survey import write_report
 
     folder = Path(folder)
-    written = []
-    header, rows = result.table()
-    written.append(write_csv(folder / "survey.csv", header, rows, force=force))
-    written.append(write_csv(folder / "distances.csv", ["source"] + list(result.names), [[nm] + list(r) for nm, r in zip(result.names, result.js.tolist())], force=force))
-    figs = {"spectra": spectra_png(result)}  # drawn once, written as PNG files and embedded in the page
-    if len(result.names) >= 2:
-        figs["heatmap"], figs["dendrogram"] = heatmap_png(result), dendrogram_png(result)
-    for name, png in figs.items():
-        written.append(write_bytes(folder / f"{name}.png", png, force=force))
-    written.append(write_text(folder / "survey.html", html_report(result, figs).render(), force=force))
+    written = write_report(report_view(result), folder, force=force)
     written.append(write_text(folder / "survey.json", result.to_json(), force=force))
     return written
+
+

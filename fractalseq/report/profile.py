@@ -21,14 +21,17 @@ from __future__ import annotations
 import math
 import re
 from pathlib import Path
-from typing import Sequence
+from typing import TYPE_CHECKING, Sequence
 
 
 from fractalseq.encoding import corner_layout
 from fractalseq.io._outputs import prepare_folder, write_bytes, write_csv, write_json
-from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, ProfileResult, contract
+from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, contract
 from fractalseq.report import figures
 from fractalseq.report.html import HtmlReport, Link
+
+if TYPE_CHECKING:  # the report formats a profile; it does not import the job that makes one
+    from fractalseq.jobs._profile import ProfileResult
 
 FIGURES = ("encoding.png", "scaling.png", "spectrum.png", "falpha.png", "entropies.png")
 GENOMIC_ALPHABETS = ("dna", "rna", "protein")

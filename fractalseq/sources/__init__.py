@@ -62,7 +62,7 @@ def _resolve(spec: str | Alphabet | None) -> Alphabet | None:
     if spec is None or isinstance(spec, Alphabet):
         return spec
     if not isinstance(spec, str):
-        raise ParameterError(f"The alphabet must be a name, 'learn', 'symbols:...' or an Alphabet; got {type(spec).__name__}.")
+        raise ParameterError(f"The alphabet must be a name, 'learn', 'symbols:...' or an Alphabet; got {type(spec).__name__}.", parameter="alphabet")
     return _alpha.resolve(spec)
 
 
@@ -75,7 +75,7 @@ def _token_alphabet(spec: str | Alphabet | None) -> Alphabet | None:
         items = [s.strip() for s in body.split(",")] if "," in body else list(body)
         items = [s for s in items if s]
         if not items:
-            raise ParameterError("The alphabet 'symbols:' lists no symbols; write e.g. symbols:up,down,flat.")
+            raise ParameterError("The alphabet 'symbols:' lists no symbols; write e.g. symbols:up,down,flat.", parameter="alphabet")
         return _alpha.from_symbols(items, name="tokens")
     _resolve(spec)  # still reject misspelled names
     return None
@@ -171,10 +171,10 @@ def open_source(
         Impossible parameters.
     """
     if fmt not in FORMATS:
-        raise ParameterError(f"Format {fmt!r} is not known; use one of {', '.join(FORMATS)}.")
+        raise ParameterError(f"Format {fmt!r} is not known; use one of {', '.join(FORMATS)}.", parameter="fmt")
     check_policy(policy)
     if isinstance(chunk_size, bool) or not isinstance(chunk_size, int) or chunk_size < 1:
-        raise ParameterError(f"The chunk size must be a positive whole number of bytes; got {chunk_size!r}.")
+        raise ParameterError(f"The chunk size must be a positive whole number of bytes; got {chunk_size!r}.", parameter="chunk_size")
     if fmt == "numeric":
         numeric.check_parameters(bins, thresholds, ordinal)
     a = _resolve(alphabet) if fmt not in ("tokens", "log", "numeric") else None
@@ -195,7 +195,8 @@ def open_source(
         elif not (a.single_characters and all(ord(s) < 256 for s in a.symbols)):
             raise ParameterError(
                 f"The {a.name} alphabet has symbols longer than one character, which {fmt.upper()} cannot hold; "
-                "use a character alphabet."
+                "use a character alphabet.",
+                parameter="alphabet",
             )
         return _byte_stream(origin, fmt, a, policy, chunk_size, stream_name, begin)
 
@@ -206,7 +207,8 @@ def open_source(
             return _byte_stream(origin, "plain", a, policy, chunk_size, stream_name, begin)
         if not a.single_characters:
             raise ParameterError(
-                f"The {a.name} alphabet has symbols longer than one character; read this input with the tokens format."
+                f"The {a.name} alphabet has symbols longer than one character; read this input with the tokens format.",
+                parameter="fmt",
             )
         final = a
 
@@ -274,13 +276,16 @@ def shared_quantile_edges(paths: Sequence[str | os.PathLike], bins: int = 4, col
     parts = []
     for path in paths:
         if str(path) == "-":
-            raise ParameterError("Shared bin edges need the baseline as files (standard input is read only once); give files or --thresholds.")
+            raise ParameterError(
+                "Shared bin edges need the baseline as files (standard input is read only once); give files or fixed thresholds.",
+                parameter="thresholds",
+            )
         origin, _, block = _prepare(path, "numeric", None, False)
         layout = _numeric_layout(origin, block, column)
         parts.extend(v[np.isfinite(v)] for v in numeric.value_blocks(origin, layout, _LEARN_BLOCK))
     values = np.concatenate(parts) if parts else np.zeros(0)
     if values.size == 0:
-        raise InputError("The baseline holds no numbers in the chosen column; check the files or --column.")
+        raise InputError("The baseline holds no numbers in the chosen column; check the files or the column.")
     return np.quantile(values, np.arange(1, bins) / bins)
 
 

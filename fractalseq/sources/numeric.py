@@ -149,7 +149,7 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
     width = max([len(r) for r in rows] + [len(layout.header or [])] + [1])
     if isinstance(column, str) and not column.lstrip("-").isdigit():
         if not layout.header:
-            raise ParameterError(f"{name} has no header line, so column {column!r} cannot be found; give a 0-based index.")
+            raise ParameterError(f"{name} has no header line, so column {column!r} cannot be found; give a 0-based index.", parameter="column")
         names = layout.header
         if column in names:
             idx = names.index(column)
@@ -157,17 +157,18 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
             lowered = [n.lower() for n in names]
             if column.lower() not in lowered:
                 raise ParameterError(
-                    f"{name} has no column {column!r}; its columns are {', '.join(repr(n) for n in names[:12])}."
+                    f"{name} has no column {column!r}; its columns are {', '.join(repr(n) for n in names[:12])}.",
+                    parameter="column",
                 )
             idx = lowered.index(column.lower())
     elif column is not None:
         idx = int(column)
         if idx < 0 or idx >= width:
-            raise ParameterError(f"Column index {idx} is outside 0..{width - 1} for {name}; give a valid 0-based index.")
+            raise ParameterError(f"Column index {idx} is outside 0..{width - 1} for {name}; give a valid 0-based index.", parameter="column")
     else:
         found = _numeric_columns(rows, width, share=0.5)
         if not found:
-            raise InputError(f"{name} has no column of numbers; check the file or give --column.")
+            raise InputError(f"{name} has no column of numbers; check the file or name the column to read.")
         idx = found[0]
     layout.column = idx
     layout.column_name = layout.header[idx] if layout.header and idx < len(layout.header) else str(idx)
@@ -263,17 +264,17 @@ def check_parameters(bins: int, thresholds: list[float] | None, ordinal: int) ->
     """Raise :class:`ParameterError` for impossible symbolization parameters."""
     if ordinal:
         if thresholds:
-            raise ParameterError("Give either thresholds or an ordinal order, not both.")
+            raise ParameterError("Give either thresholds or an ordinal order, not both.", parameter="ordinal")
         if not 2 <= ordinal <= MAX_ORDER:
-            raise ParameterError(f"The ordinal-pattern order must be between 2 and {MAX_ORDER}; got {ordinal}.")
+            raise ParameterError(f"The ordinal-pattern order must be between 2 and {MAX_ORDER}; got {ordinal}.", parameter="ordinal")
         return
     if thresholds is not None:
         t = np.asarray(thresholds, dtype=np.float64)
         if t.size == 0 or not np.all(np.isfinite(t)) or np.any(np.diff(t) <= 0):
-            raise ParameterError("Thresholds must be finite and strictly increasing, e.g. 0.2,0.5,0.8.")
+            raise ParameterError("Thresholds must be finite and strictly increasing, e.g. 0.2,0.5,0.8.", parameter="thresholds")
         return
     if not 2 <= int(bins) <= 4096:
-        raise ParameterError(f"The number of bins must be between 2 and 4096; got {bins}.")
+        raise ParameterError(f"The number of bins must be between 2 and 4096; got {bins}.", parameter="bins")
 
 
 def plan(

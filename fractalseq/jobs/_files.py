@@ -1,0 +1,308 @@
+"""Jobs over files, as the commands run them: drift of two batches, a survey, a scan.
+
+Each function takes paths and one :class:`~fractalseq.jobs._inputs.ReaderOptions`
+and makes every decision the command line used to make about symbols and
+documents: how numeric batches are cut, which cache a survey uses and when it
+is pruned.  A Python caller therefore gets the same symbols and the same JSON
+as ``fractalseq drift``, ``fractalseq survey`` and ``fractalseq scan`` with the
+same arguments.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Callable, Sequence
+
+from fractalseq.errors import InputError, ParameterError
+from fractalseq.io._cache import ResultCache
+from fractalseq.jobs._inputs import ReaderOptions, check_seed
+from fractalseq.jobs._sources import SourceSpec, expand_inputs
+from fractalseq.results import Result
+from fractalseq.runner import Engine, SerialEngine
+from fractalseq.words._counts import WordCounts
+
+if TYPE_CHECKING:
+    from fractalseq.compare._drift import DriftOptions, DriftResult
+    from fractalseq.compare._scan import ScanResult
+    from fractalseq.jobs._survey import Progress, SurveyOptions, SurveyResult
+
+__all__ = [
+    "CachePlan", "CountSummary", "batch_specs", "count_files", "drift_files", "parse_penalty", "scan_file", "survey_cache",
+    "survey_files",
+]
+
+Batch = str | Sequence[str]
+
+
+# =================================================================== count
+@dataclass(frozen=True, eq=False)
+class CountSummary(Result):
+    """Word counts of several inputs merged, as ``fractalseq count --json`` prints them.
+
+    Attributes
+    ----------
+    inputs:
+        Per input: its name and what its reader kept and dropped.
+    alphabet, length, segments, depth, storage:
+        The merged counts' alphabet, symbols, segments, deepest word length and table kind.
+    ladder:
+        Per depth: distinct words, occurrences, possible words (the box-counting ladder).
+    top:
+        The most frequent words at the deepest depth (empty unless asked for).
+    counts:
+        The counts themselves (not part of the JSON).
+    """
+
+    inputs: tuple[dict, ...]
+    alphabet: dict
+    length: int
+    segments: int
+    depth: int
+    storage: str
+    ladder: tuple[dict, ...]
+    top: tuple[dict, ...]
+    counts: WordCounts = field(metadata={"json": False})
+
+
+def count_files(
+    paths: Sequence[str],
+    depth: int,
+    reader: ReaderOptions | None = None,
+    *,
+    top: int = 0,
+    on_input: Callable[[str], None] | None = None,
+) -> CountSummary:
+    """Count every word of length 1..``depth`` of several inputs together (what ``fractalseq count`` does).
+
+    Raises
+    ------
+    InputError
+        When the inputs hold no usable symbol.
+    """
+    from fractalseq.words._counts import count_inputs
+
+    reader = reader or ReaderOptions()
+    wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    if wc.length == 0:
+        raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
+    return CountSummary(
+        inputs=tuple({"name": p, **r.to_dict()} for p, r in reports),
+        alphabet=wc.alphabet.to_dict(),
+        length=wc.length,
+        segments=wc.segments,
+        depth=wc.depth,
+        storage=wc.storage,
+        ladder=tuple(wc.ladder()),
+        top=tuple({"word": w, "count": c} for w, c in wc.top(wc.depth, top)) if top else (),
+        counts=wc,
+    )
+
+
+# =================================================================== drift
+def batch_specs(batch: Batch, stdin_lines: Sequence[str] | None = None) -> list[SourceSpec]:
+    """The inputs of one batch.
+
+    A string is a file, a folder (every file below), a quoted glob, ``@LIST``
+    (a file naming one input per line; ``@-`` takes the lines from
+    ``stdin_lines``) or ``-`` (standard input); a sequence is a list of such paths.
+    """
+    if isinstance(batch, (str, os.PathLike)):
+        spec = str(batch)
+        if spec.startswith("@"):
+            return expand_inputs([], spec[1:], stdin_lines if spec == "@-" else None)
+        return expand_inputs([spec])
+    return expand_inputs([str(b) for b in batch])
+
+
+def drift_files(
+    baseline: Batch,
+    new: Batch,
+    options: "DriftOptions | None" = None,
+    reader: ReaderOptions | None = None,
+    *,
+    engine: Engine | None = None,
+    stdin_lines: Sequence[str] | None = None,
+    on_done: Callable[[int, object], None] | None = None,
+) -> "DriftResult":
+    """Does the ``new`` batch come from the same source as the ``baseline``?
+
+    Both batches are read with the same ``reader`` options; numeric batches
+    binned by quantiles are cut at the baseline's quantiles for both
+    (:meth:`ReaderOptions.with_baseline_cuts`), and the report's first note says so.
+
+    Parameters
+    ----------
+    baseline, new:
+        Batches (see :func:`batch_specs`); standard input can serve one batch only.
+    options:
+        Test parameters (default :class:`~fractalseq.compare._drift.DriftOptions`).
+    reader:
+        Reader options of both batches (default: DNA, automatic format).
+    engine:
+        Where blocks are counted (default: serially in this process).
+    stdin_lines:
+        Lines of an ``@-`` batch list.
+    on_done:
+        Called after each input's blocks are counted.
+
+    Returns
+    -------
+    DriftResult
+        The result ``fractalseq drift ... --json`` prints.
+    """
+    from fractalseq.compare._drift import DriftOptions, drift_test
+
+    options = options or DriftOptions()
+    reader = reader or ReaderOptions()
+    check_seed(options.seed)
+    options.check()
+    if _is_stdin(baseline) and _is_stdin(new):
+        raise ParameterError("Standard input can be read only once; give '-' for one batch at most.")
+    base_specs, new_specs = batch_specs(baseline, stdin_lines), batch_specs(new, stdin_lines)
+    cut, note = reader.with_baseline_cuts([s.path for s in base_specs])
+    base = [cut.open(s.path, name=s.name) for s in base_specs]
+    fresh = [cut.open(s.path, name=s.name) for s in new_specs]
+    result = drift_test(base, fresh, options, engine or SerialEngine(), on_done=on_done)
+    if note:
+        notes = result.notes
+        result = dataclasses.replace(result, notes=type(notes)([note, *notes]))
+    return result
+
+
+def _is_stdin(batch: Batch) -> bool:
+    return isinstance(batch, str) and batch == "-"
+
+
+# ==================================================================== scan
+def parse_penalty(text: str | float) -> float | str:
+    """A change-point penalty: ``"bic"`` or a non-negative number (given as a number or as text)."""
+    if isinstance(text, str) and text.strip().lower() == "bic":
+        return "bic"
+    try:
+        value = float(text)
+    except (TypeError, ValueError):
+        raise ParameterError(f"The penalty must be 'bic' or a number, not {text!r}.", parameter="penalty") from None
+    if not value >= 0:
+        raise ParameterError(f"The penalty must be non-negative, not {value}.", parameter="penalty")
+    return value
+
+
+def scan_file(
+    path: str | os.PathLike,
+    window: int,
+    step: int | None = None,
+    depth: int | None = None,
+    *,
+    reader: ReaderOptions | None = None,
+    ratio: float = 0.5,
+    penalty: float | str = "bic",
+    seed: int = 0,
+    on_read: Callable[[], None] | None = None,
+) -> "ScanResult":
+    """Read one input and scan it in sliding windows (what ``fractalseq scan`` does).
+
+    ``on_read`` is called once the input is in memory.  See
+    :func:`fractalseq.compare._scan.scan_stream` for the other parameters.
+    """
+    from fractalseq.compare._scan import scan_stream
+
+    seed = check_seed(seed)
+    pen = parse_penalty(penalty)
+    arr = (reader or ReaderOptions()).read(path)
+    if on_read is not None:
+        on_read()
+    return scan_stream(arr, window, step, depth, ratio, pen, seed)
+
+
+# ================================================================== survey
+@dataclass(frozen=True)
+class CachePlan:
+    """Which per-source cache a survey uses and whether it owns it.
+
+    Attributes
+    ----------
+    store:
+        The cache (disabled when no folder applies).
+    prune:
+        True when the cache belongs to this survey's output folder; a completed
+        survey then removes the entries of earlier runs it did not use.
+    """
+
+    store: ResultCache
+    prune: bool = False
+
+
+def survey_cache(out: str | os.PathLike | None = None, cache: str | os.PathLike | None = None, use_cache: bool = True) -> CachePlan:
+    """The cache rule of a survey.
+
+    No cache when ``use_cache`` is false; a folder given as ``cache`` is shared
+    and never pruned; otherwise ``OUT/.cache`` when there is an output folder,
+    owned by this survey and pruned after it completes; otherwise no cache.
+    """
+    if not use_cache:
+        return CachePlan(ResultCache(None))
+    if cache is not None:
+        return CachePlan(ResultCache(Path(cache)))
+    if out is not None:
+        return CachePlan(ResultCache(Path(out) / ".cache"), prune=True)
+    return CachePlan(ResultCache(None))
+
+
+def survey_files(
+    inputs: Sequence[str | SourceSpec],
+    options: "SurveyOptions | None" = None,
+    *,
+    from_list: str | None = None,
+    stdin_lines: Sequence[str] | None = None,
+    common_cuts: bool = False,
+    engine: Engine | None = None,
+    cache: CachePlan | None = None,
+    progress: "Progress | None" = None,
+) -> "SurveyResult":
+    """Survey files, folders, patterns and list files (what ``fractalseq survey`` does).
+
+    Parameters
+    ----------
+    inputs, from_list, stdin_lines:
+        Sources, see :func:`~fractalseq.jobs._sources.expand_inputs` (or sources
+        already expanded, as :class:`~fractalseq.jobs._sources.SourceSpec`).
+    options:
+        Survey and reader settings (default :class:`~fractalseq.jobs._survey.SurveyOptions`;
+        build one from a :class:`ReaderOptions` with ``SurveyOptions.from_reader``).
+    common_cuts:
+        numeric input: cut every source at the quantiles of all sources pooled
+        (levels compared), not each at its own (only dynamics compared).
+    engine:
+        Where per-source work runs (default: serially).
+    cache:
+        The cache and its pruning rule (:func:`survey_cache`; default: none).
+    progress:
+        See :func:`~fractalseq.jobs._survey.run_survey`.
+
+    Returns
+    -------
+    SurveyResult
+        The result ``fractalseq survey ... --json`` prints.
+    """
+    from fractalseq.jobs._survey import SurveyOptions, run_survey
+
+    options = options or SurveyOptions()
+    if inputs and all(isinstance(i, SourceSpec) for i in inputs) and from_list is None:
+        specs = list(inputs)
+    else:
+        specs = expand_inputs([str(i) for i in inputs], from_list, stdin_lines)
+    if common_cuts:
+        reader = options.reader_options
+        if reader.thresholds is not None or reader.ordinal:
+            raise ParameterError(
+                "Common cuts set the cut points themselves; leave out the thresholds and the ordinal order.", parameter="common_cuts"
+            )
+        reader, _ = reader.with_baseline_cuts([s.path for s in specs])
+        if reader.thresholds is None:
+            raise ParameterError("Common cuts apply to numeric input only; read the inputs as numeric or leave them out.", parameter="common_cuts")
+        options = dataclasses.replace(options, reader=tuple(sorted(reader.numeric_options().items())))
+    plan = cache or CachePlan(ResultCache(None))
+    return run_survey(specs, options, engine, plan.store, progress, prune_cache=plan.prune)

@@ -1,0 +1,207 @@
+"""How every job reads its inputs: one validated set of reader options, and the seed rule.
+
+:class:`ReaderOptions` holds what decides the symbols of an input (format,
+alphabet, unknown-symbol policy and the numeric reader's column, bins,
+thresholds and ordinal order).  Every command and every Python caller reads
+through it, so the same options give the same symbols whoever asks.
+:meth:`ReaderOptions.with_baseline_cuts` is the rule that cuts numeric batches
+at the quantiles of a baseline (drift, survey ``common_cuts``, predictor
+training), so that a shift in level changes the symbols.
+:func:`check_seed` is the one rule for seeds: a whole number with
+``0 <= seed < 2**64``.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, replace
+from typing import Sequence
+
+from fractalseq.alphabet import Alphabet, check_policy, resolve
+from fractalseq.errors import FractalseqError, InputError, ParameterError
+from fractalseq.stream import SymbolArray, SymbolStream
+
+#: Quantile bins of numeric input when none are given (the numeric reader's default).
+DEFAULT_BINS = 4
+#: Seeds are whole numbers below this bound (the width of numpy's seed words times two).
+SEED_BOUND = 1 << 64
+
+__all__ = ["DEFAULT_BINS", "ReaderOptions", "check_seed", "parse_thresholds"]
+
+
+def check_seed(seed: object) -> int:
+    """Return ``seed`` as an int if it is a whole number with ``0 <= seed < 2**64``.
+
+    Raises
+    ------
+    ParameterError
+        For anything else (``parameter="seed"``).
+    """
+    if isinstance(seed, bool) or not isinstance(seed, int) and not hasattr(seed, "__index__"):
+        raise ParameterError(f"The seed must be a whole number from 0 to 2**64 - 1, not {seed!r}.", parameter="seed")
+    value = int(seed)  # type: ignore[call-overload]
+    if not 0 <= value < SEED_BOUND:
+        raise ParameterError(f"The seed must be a whole number from 0 to 2**64 - 1, not {value}.", parameter="seed")
+    return value
+
+
+def parse_thresholds(text: str | None) -> tuple[float, ...] | None:
+    """``"0.2,0.5,0.8"`` as a tuple of floats; ``None`` or a blank text gives ``None``."""
+    if text is None or not str(text).strip():
+        return None
+    try:
+        return tuple(float(t) for t in str(text).replace(" ", "").split(",") if t)
+    except ValueError:
+        raise ParameterError(
+            f"The thresholds must be numbers separated by commas (e.g. 0.2,0.5,0.8), not {text!r}.", parameter="thresholds"
+        ) from None
+
+
+@dataclass(frozen=True)
+class ReaderOptions:
+    """Everything that decides the symbols read from an input, validated when made.
+
+    Attributes
+    ----------
+    fmt:
+        ``auto``, ``fasta``, ``fastq``, ``text``, ``tokens``, ``log`` or ``numeric``.
+    alphabet:
+        Preset name, ``learn``, ``symbols:...`` or an :class:`~fractalseq.alphabet.Alphabet`.
+    policy:
+        Unknown symbols: ``break``, ``skip`` or ``error``.
+    column:
+        numeric: column name or 0-based index (``None``: the first numeric column).
+    bins:
+        numeric: number of equal-frequency bins.
+    thresholds:
+        numeric: fixed, increasing bin edges instead of quantiles.
+    ordinal:
+        numeric: ordinal-pattern order (0: bins or thresholds).
+
+    Raises
+    ------
+    ParameterError
+        An unknown format, policy or alphabet name, or impossible numeric options,
+        before anything is read.
+    """
+
+    fmt: str = "auto"
+    alphabet: str | Alphabet = "dna"
+    policy: str = "break"
+    column: str | int | None = None
+    bins: int = DEFAULT_BINS
+    thresholds: tuple[float, ...] | None = None
+    ordinal: int = 0
+
+    def __post_init__(self) -> None:
+        from fractalseq.sources import numeric
+        from fractalseq.sources.sniff import FORMATS
+
+        if self.fmt not in FORMATS:
+            raise ParameterError(f"Format {self.fmt!r} is not known; use one of {', '.join(FORMATS)}.", parameter="fmt")
+        try:
+            check_policy(self.policy)
+        except ParameterError as exc:
+            raise ParameterError(str(exc), parameter="policy") from None
+        if isinstance(self.alphabet, str):
+            if not self.alphabet.startswith("symbols:"):
+                try:
+                    resolve(self.alphabet)
+                except ParameterError as exc:
+                    raise ParameterError(str(exc), parameter="alphabet") from None
+        elif not isinstance(self.alphabet, Alphabet):
+            raise ParameterError(
+                f"The alphabet must be a name, 'learn', 'symbols:...' or an Alphabet, not {type(self.alphabet).__name__}.",
+                parameter="alphabet",
+            )
+        for name in ("bins", "ordinal"):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not hasattr(value, "__index__"):
+                raise ParameterError(f"The {name} option must be a whole number, not {value!r}.", parameter=name)
+            object.__setattr__(self, name, int(value))
+        if self.thresholds is not None:
+            object.__setattr__(self, "thresholds", tuple(float(t) for t in self.thresholds))
+        try:
+            numeric.check_parameters(self.bins, None if self.thresholds is None else list(self.thresholds), self.ordinal)
+        except ParameterError as exc:
+            if exc.parameter is not None:
+                raise
+            which = "ordinal" if self.ordinal else "thresholds" if self.thresholds is not None else "bins"
+            raise ParameterError(str(exc), parameter=which) from None
+
+    @classmethod
+    def parse(
+        cls,
+        fmt: str = "auto",
+        alphabet: str | Alphabet = "dna",
+        policy: str = "break",
+        column: str | int | None = None,
+        bins: int = DEFAULT_BINS,
+        thresholds: str | None = None,
+        ordinal: int = 0,
+    ) -> "ReaderOptions":
+        """Reader options from text as typed (thresholds ``"0.2,0.5,0.8"``)."""
+        return cls(fmt, alphabet, policy, column, bins, parse_thresholds(thresholds), ordinal)
+
+    # ------------------------------------------------------------ views
+    def numeric_options(self) -> dict:
+        """The numeric reader's keyword options that differ from its defaults.
+
+        A run that does not use them keeps the same parameters (cache keys,
+        JSON documents) as one that never heard of them.
+        """
+        opts: dict = {}
+        if self.column is not None:
+            opts["column"] = self.column
+        if self.bins != DEFAULT_BINS:
+            opts["bins"] = self.bins
+        if self.thresholds is not None:
+            opts["thresholds"] = self.thresholds
+        if self.ordinal:
+            opts["ordinal"] = self.ordinal
+        return opts
+
+    # ---------------------------------------------------------- reading
+    def open(self, path: str | os.PathLike, name: str | None = None) -> SymbolStream:
+        """Open one input (``-`` is standard input) as a stream with these options."""
+        from fractalseq.sources import open_source
+
+        extra = self.numeric_options()
+        if "thresholds" in extra:
+            extra["thresholds"] = list(extra["thresholds"])
+        return open_source(path, fmt=self.fmt, alphabet=self.alphabet, policy=self.policy, name=name, **extra)
+
+    def read(self, path: str | os.PathLike, name: str | None = None) -> SymbolArray:
+        """Open and read one input into memory, refusing an input with no symbols."""
+        arr = self.open(path, name).to_array()
+        if len(arr) == 0:
+            raise InputError(f"{path} holds no usable symbols; check the file, its format and the alphabet.")
+        return arr
+
+    def with_baseline_cuts(self, baseline: Sequence[str | os.PathLike]) -> tuple["ReaderOptions", str]:
+        """These options with numeric inputs cut at the pooled quantiles of the ``baseline`` files.
+
+        Returns the options to read every batch with and a note for the report.
+        Nothing changes (and the note is empty) when the input is not numeric,
+        when fixed thresholds or ordinal patterns are asked for, or when there
+        is no baseline.
+        """
+        from fractalseq.sources import detect_format, shared_quantile_edges
+
+        if not baseline or self.thresholds is not None or self.ordinal:
+            return self, ""
+        kind = self.fmt
+        if kind == "auto" and str(baseline[0]) != "-":
+            try:
+                kind = detect_format(baseline[0])
+            except FractalseqError:
+                return self, ""  # reading the batch will say what is wrong
+        if kind != "numeric":
+            return self, ""
+        edges = tuple(float(e) for e in shared_quantile_edges(list(baseline), self.bins, self.column))
+        note = (
+            f"numeric batches cut at the baseline's {len(edges) + 1}-quantiles ("
+            + ", ".join(f"{e:.6g}" for e in edges)
+            + ") so that a shift in level changes the symbols"
+        )
+        return replace(self, bins=DEFAULT_BINS, thresholds=edges), note

@@ -1,0 +1,113 @@
+"""The sources of a job: files, folders, glob patterns and list files, each with a display name."""
+
+from __future__ import annotations
+
+import glob
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Sequence
+
+from fractalseq.errors import InputError
+
+_GLOB_CHARS = set("*?[")
+
+__all__ = ["SourceSpec", "expand_inputs"]
+
+
+@dataclass(frozen=True)
+class SourceSpec:
+    """One input of a survey: a path (``-`` for standard input) and its display name."""
+
+    path: str
+    name: str
+
+
+def _folder_files(folder: Path) -> list[Path]:
+    return sorted(p for p in folder.rglob("*") if p.is_file() and not any(part.startswith(".") for part in p.relative_to(folder).parts))
+
+
+def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_lines: Sequence[str] | None = None) -> list[SourceSpec]:
+    """Turn files, folders, glob patterns and a list file into a list of sources.
+
+    Parameters
+    ----------
+    items:
+        Paths: a file; a folder (every non-hidden file below it, sorted);
+        a glob pattern such as ``genomes/*.fa.gz`` (``**`` recurses); or
+        ``-`` for standard input.
+    list_file:
+        A text file with one path (or pattern) per line; blank lines and
+        lines starting with ``#`` are skipped; relative paths are relative
+        to the list file's folder.  ``-`` reads the list from ``stdin_lines``.
+    stdin_lines:
+        Lines of the list when ``list_file`` is ``-``.
+
+    Returns
+    -------
+    list of SourceSpec
+        In the order given, duplicates removed; names are file names, or
+        paths relative to the current folder when two file names clash.
+
+    Raises
+    ------
+    InputError
+        A path that does not exist, a pattern or folder matching no file, or
+        no input at all.
+    """
+    raw: list[tuple[str, Path | None]] = [(it, None) for it in items]
+    if list_file is not None:
+        if list_file == "-":
+            lines, base = list(stdin_lines or []), Path(".")
+        else:
+            lp = Path(list_file)
+            try:
+                lines = lp.read_text(encoding="utf-8").splitlines()
+            except FileNotFoundError:
+                raise InputError(f"The list file {list_file} does not exist; check the path.") from None
+            except (OSError, UnicodeDecodeError) as exc:
+                raise InputError(f"The list file {list_file} cannot be read ({exc}); give a UTF-8 text file.") from None
+            base = lp.parent
+        for ln in lines:
+            ln = ln.strip()
+            if ln and not ln.startswith("#"):
+                raw.append((ln, base))
+    paths: list[str] = []
+    for item, base in raw:
+        if item == "-":
+            paths.append("-")
+            continue
+        p = Path(item)
+        if base is not None and not p.is_absolute():
+            p = base / p
+        if p.is_file():
+            paths.append(str(p))
+        elif p.is_dir():
+            found = _folder_files(p)
+            if not found:
+                raise InputError(f"The folder {item} holds no files; give a folder with inputs.")
+            paths.extend(str(f) for f in found)
+        elif _GLOB_CHARS & set(str(p)):
+            found = sorted(f for f in glob.glob(str(p), recursive=True) if Path(f).is_file())
+            if not found:
+                raise InputError(f"The pattern {item} matches no file; check the pattern (quote it for the shell).")
+            paths.extend(found)
+        else:
+            raise InputError(f"Input {item} does not exist; check the path.")
+    if not paths:
+        raise InputError("No inputs were given; name files, folders, patterns or a list file.")
+    if paths.count("-") > 1 or ("-" in paths and list_file == "-"):
+        raise InputError("Standard input can be read only once; give '-' once and not together with a list read from standard input.")
+    seen: set[str] = set()
+    unique: list[str] = []
+    for p in paths:
+        key = p if p == "-" else os.path.realpath(p)
+        if key not in seen:
+            seen.add(key)
+            unique.append(p)
+    names = [("stdin" if p == "-" else Path(p).name) for p in unique]
+    if len(set(names)) < len(names):
+        names = [("stdin" if p == "-" else os.path.relpath(p)) for p in unique]
+    if len(set(names)) < len(names):
+        names = [("stdin" if p == "-" else os.path.abspath(p)) for p in unique]
+    return [SourceSpec(p, n) for p, n in zip(unique, names)]
