@@ -276,13 +276,13 @@ def drift(
     if cut_note:
         result.notes.insert(0, cut_note)
     if out is not None:
-        from fractalseq.compare._drift import write_outputs
+        from fractalseq.report.drift import write_outputs
 
         write_outputs(result, Path(out), force=True)
     if json_out:
         typer.echo(result.to_json(), nl=False)
     else:
-        from fractalseq.compare._drift import drift_text
+        from fractalseq.report.drift import drift_text
 
         typer.echo(drift_text(result), nl=False)
     raise typer.Exit(EXIT_FOUND if result.changed else 0)
@@ -341,7 +341,7 @@ def scan(
         result = scan_stream(arr, window, step, depth, ratio, pen, seed)
         bar.advance(task)
     if out is not None:
-        from fractalseq.compare._scan import write_outputs
+        from fractalseq.report.scan import write_outputs
 
         write_outputs(result, Path(out), force=True)
     if json_out:

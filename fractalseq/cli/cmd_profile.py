@@ -132,8 +132,10 @@ def profile(
     """
     from fractalseq.encoding import check_ratio
     from fractalseq.io._outputs import prepare_folder, to_json
-    from fractalseq.jobs._profile import STEPS, contract, profile_source
-    from fractalseq.report.profile import safe_name, write_profile_index, write_profile_report
+    from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, STEPS, contract, profile_source
+    from fractalseq.report.profile import is_genomic, safe_name, write_profile_index, write_profile_report
+
+    caution = lambda rs: CAUTION_GENOMIC if is_genomic(rs) else CAUTION_GENERAL  # noqa: E731
 
     # validate everything before reading anything
     q_list = parse_qs(qs)
@@ -177,11 +179,11 @@ def profile(
             if out is not None:
                 bar.update(task, description=f"{path}: writing report")
                 sub = safe_name(safe_stem(path), taken)
-                write_profile_report(res, out / sub, force=force, parameters=parameters)
+                write_profile_report(res, out / sub, contract([res], parameters), caution([res]), force=force)
                 subfolders.append(sub)
             bar.remove_task(task)
     if out is not None:
-        write_profile_index(results, subfolders, out, force=force, parameters=parameters)
+        write_profile_index(results, subfolders, out, contract(results, parameters), caution(results), force=force)
         if not quiet:
             common.err_console.print(f"wrote {len(results)} profile(s) to {out}/ (open {out}/index.html)",
                                      markup=False, highlight=False)

@@ -29,8 +29,6 @@ Genomic output is for research, not for clinical decisions.
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -400,68 +398,3 @@ def _low_regions(seg: Segmentation, intervals: list[dict], starts: np.ndarray, f
         out.append(entry)
         i = j + 1
     return out
-
-
-def scan_png(result: ScanResult) -> bytes:
-    """The figures along the position axis, change points dashed, low-complexity intervals shaded."""
-    from fractalseq.report.figures import PALETTE, fig_to_png, figure, short, style
-
-    names = list(result.figures)
-    units = {"entropy_rate": "bits/symbol", "D0": "dimension", "surprise": "bits/symbol"}
-    with style():
-        fig, axes = figure(8.4, 2.1 * len(names) + 0.8, nrows=len(names))
-        axes = np.atleast_1d(axes)
-        x = result.centers
-        for ax, (i, name) in zip(axes, enumerate(names)):
-            ax.plot(x, result.figures[name], color=PALETTE[i % len(PALETTE)], lw=1.2)
-            for iv in result.regions:
-                ax.axvspan(iv["start"], iv["end"], color=PALETTE[1], alpha=0.18, lw=0)
-            for p in result.change_positions():
-                ax.axvline(p, color="#555555", ls="--", lw=0.9)
-            ax.set_ylabel(f"{name}\n({units.get(name, '')})", fontsize=9)
-        axes[-1].set_xlabel("position (symbols)")
-        axes[0].set_title(f"Scan of {short(result.name, 40)}: window {result.window}, step {result.step}, depth {result.depth}")
-        return fig_to_png(fig)
-
-
-def html_report(result: ScanResult):
-    """The scan as an HTML page: verdict-style summary, intervals table, figure."""
-    from fractalseq.report.html import HtmlReport
-
-    page = HtmlReport(f"Scan of {result.name}", f"{result.length} symbols; window {result.window}, step {result.step}, depth {result.depth}", caution=CAUTION)
-    low = result.regions
-    page.section("Intervals")
-    page.paragraph(
-        f"{len(result.segmentation.breaks)} change points; {len(low)} low-complexity interval(s). "
-        f"Method: {result.segmentation.method}. Penalty: {result.segmentation.penalty_rule}."
-    )
-    header = ["start", "end", "windows"] + list(result.figures) + ["low complexity"]
-    rows = [[iv["start"], iv["end"], iv["windows"]] + [iv.get(k) for k in result.figures] + ["yes" if iv["low_complexity"] else "no"] for iv in result.intervals]
-    page.table(header, rows, caption="Segments between change points")
-    if low:
-        page.table(["start", "end"] + list(result.figures), [[iv["start"], iv["end"]] + [iv.get(k) for k in result.figures] for iv in low], caption="Low-complexity regions (edges at half height)")
-    page.section("Figures along the stream")
-    page.figure(scan_png(result), "Window figures against position; dashed: change points; shaded: low-complexity intervals.", "Scan plot")
-    if result.notes:
-        page.section("Notes")
-        page.note("", result.notes)
-    return page
-
-
-def write_outputs(result: ScanResult, folder: str | Path, force: bool = False) -> list[Path]:
-    """Write scan.csv (one row per window), scan.png, scan.html and scan.json into ``folder`` (atomically)."""
-    from fractalseq.io._outputs import write_bytes, write_csv, write_text
-
-    folder = Path(folder)
-    names = list(result.figures)
-    return [
-        write_csv(
-            folder / "scan.csv",
-            ["start", "end"] + names,
-            [[int(s), int(s) + result.window] + [result.figures[k][i] for k in names] for i, s in enumerate(result.starts)],
-            force=force,
-        ),
-        write_bytes(folder / "scan.png", scan_png(result), force=force),
-        write_text(folder / "scan.html", html_report(result).render(), force=force),
-        write_text(folder / "scan.json", result.to_json(), force=force),
-    ]
