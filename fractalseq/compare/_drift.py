@@ -47,11 +47,11 @@ from dataclasses import dataclass, field
 from typing import Callable, Sequence
 
 import numpy as np
-from numba import njit
 
 from fractalseq import __version__
 from fractalseq.alphabet import Alphabet
 from fractalseq.compare._distances import joint_alphabet, js_divergence, remap_words
+from fractalseq.words._kernels import segment_word_addresses
 from fractalseq.words._pieces import DEFAULT_PIECE, Piece, iter_pieces
 from fractalseq.runner import Engine, SerialEngine
 from fractalseq.errors import InputError, ParameterError
@@ -95,47 +95,14 @@ def adjust_pvalues(p: Sequence[float], method: str = "holm") -> np.ndarray:
     return out
 
 
-# ================================================================= kernels
-@njit(cache=True)
-def _block_words(codes, starts, core, depth, bits, offset, block, out_block, out_addr):
-    """Block id and address of every depth-word starting at ``p < core`` inside its segment.
-
-    ``starts`` are sorted segment starts with 0 first; ``offset`` is the
-    position of ``codes[0]`` in its stream (blocks are ``(offset + p) // block``).
-    Returns the number of words written.
-    """
-    n = codes.shape[0]
-    nseg = starts.shape[0]
-    ub = np.uint64(bits)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
-    k = 0
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else n
-        if a >= core:
-            break
-        addr = np.uint64(0)
-        filled = 0
-        for i in range(a, e):
-            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                p = i - depth + 1
-                if p >= core:
-                    break
-                out_block[k] = (offset + p) // block
-                out_addr[k] = addr
-                k += 1
-    return k
-
-
+# ================================================================= tables
 def block_tables(task: tuple[Piece, int, int]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Map step: per-block counts of the depth-words starting in a piece's core.
 
     Parameters
     ----------
     task:
-        ``(piece, depth, block)``; pieces come from :func:`fractalseq.jobs._engines.iter_pieces`
+        ``(piece, depth, block)``; pieces come from :func:`fractalseq.words._pieces.iter_pieces`
         with overlap ``depth - 1`` and a piece size that is a multiple of ``block``.
 
     Returns
@@ -145,13 +112,9 @@ def block_tables(task: tuple[Piece, int, int]) -> tuple[np.ndarray, np.ndarray, 
         block ids are positions in the stream divided by ``block``.
     """
     piece, depth, block = task
-    codes = np.ascontiguousarray(piece.codes)
-    starts = np.union1d(piece.starts.astype(np.int64), np.zeros(1, np.int64)) if codes.size else np.zeros(0, np.int64)
-    nmax = max(int(piece.core), 0)
-    ob = np.empty(nmax, dtype=np.int64)
-    oa = np.empty(nmax, dtype=np.uint64)
-    k = _block_words(codes, starts, int(piece.core), int(depth), int(piece.alphabet.bits), int(piece.offset), int(block), ob, oa)
-    ob, oa = ob[:k], oa[:k]
+    oa, pos = segment_word_addresses(piece.codes, piece.starts, int(depth), int(piece.alphabet.bits), limit=int(piece.core))
+    ob = (int(piece.offset) + pos) // int(block)
+    k = oa.size
     if k == 0:
         return ob, oa, np.zeros(0, np.int64)
     order = np.lexsort((oa, ob))

@@ -41,6 +41,7 @@ from fractalseq.compare._changepoint import Segmentation, segment_series
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._outputs import to_json
 from fractalseq.stream import SymbolArray
+from fractalseq.words._kernels import AT_START, _segment_words
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
 FIGURES: tuple[str, ...] = ("entropy_rate", "D0", "surprise")
@@ -66,20 +67,9 @@ def window_counts(codes, starts, depth, bits, window, step, n_windows):
     Returns ``(N, Kw, Kc, Sw, Sc)`` arrays of length ``n_windows``.
     """
     T = codes.shape[0]
-    nseg = starts.shape[0]
-    ub = np.uint64(bits)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1)
-    addr = np.full(T, -1, dtype=np.int64)
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else T
-        w = np.uint64(0)
-        filled = 0
-        for i in range(a, e):
-            w = ((w << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                addr[i - depth + 1] = np.int64(w)
+    words = np.empty(T, dtype=np.uint64)
+    has_word = np.zeros(T, dtype=np.bool_)  # where a word of the segment starts
+    _segment_words(codes, starts, depth, bits, T, AT_START, 0, words, has_word)
     cw = np.zeros(1 << (bits * depth), dtype=np.int64)
     cc = np.zeros(1 << (bits * (depth - 1)), dtype=np.int64)
     N = np.zeros(n_windows, dtype=np.int64)
@@ -99,8 +89,8 @@ def window_counts(codes, starts, depth, bits, window, step, n_windows):
         e0 = s0 + window - depth + 1  # words must end inside the window
         while lo < s0:
             if lo < hi:
-                a = addr[lo]
-                if a >= 0:
+                if has_word[lo]:
+                    a = np.int64(words[lo])
                     c = cw[a]
                     sw += _xlx(c - 1) - _xlx(c)
                     cw[a] = c - 1
@@ -117,8 +107,8 @@ def window_counts(codes, starts, depth, bits, window, step, n_windows):
         if hi < lo:
             hi = lo
         while hi < e0:
-            a = addr[hi]
-            if a >= 0:
+            if has_word[hi]:
+                a = np.int64(words[hi])
                 c = cw[a]
                 sw += _xlx(c + 1) - _xlx(c)
                 cw[a] = c + 1
