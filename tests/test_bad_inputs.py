@@ -169,7 +169,7 @@ CASES: list[Case] = [
     Case("profile-q-list-only-commas", ("profile", "{d}/good.fa", "--q", " , "), r"--q list is empty|no orders", r"--q 0,1,2"),
     Case("profile-q-not-a-number", ("profile", "{d}/good.fa", "--q", "0,abc"), r"'abc'", r"--q 0,1,2"),
     Case("scan-window-longer-than-stream", ("scan", "{d}/short.fa", "--window", "1000", "--out", "{d}/out-scan-long"),
-         r"fewer than one window|shorter than", r"smaller --window", absent=("out-scan-long",), subprocess=True),
+         r"fewer than one window|shorter than", r"smaller window \(option --window\)", absent=("out-scan-long",), subprocess=True),
     Case("scan-negative-penalty", ("scan", "{d}/good.fa", "--window", "1000", "--penalty", "-1"), r"-1", r"non-negative|bic"),
     Case("drift-alpha-above-one", ("drift", "{d}/good.fa", "{d}/good.fa", "--alpha", "2"), r"2", r"between 0 and 1|\(0, 1\)"),
     Case("drift-stdin-twice", ("drift", "-", "-"), r"standard input", r"one batch at most|only once"),

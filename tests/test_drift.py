@@ -12,15 +12,9 @@ import pytest
 from scipy.stats import chi2_contingency, false_discovery_control
 
 from fractalseq.alphabet import dna
-from fractalseq.compare._drift import (
-    DriftOptions,
-    _Figures,
-    adjust_pvalues,
-    block_tables,
-    conditional_g,
-    drift_test,
-    g_statistic,
-)
+from fractalseq.compare._blocks import block_tables
+from fractalseq.compare._drift import DriftOptions, drift_test
+from fractalseq.compare._homogeneity import _Figures, adjust_pvalues, conditional_g, g_statistic
 from fractalseq.jobs._engines import ProcessEngine
 from fractalseq.words._pieces import iter_pieces
 from fractalseq.entropy._estimators import rate_from_counts, renyi_rate_from_counts

@@ -224,7 +224,7 @@ fig = scan_figure(res)
 from matplotlib.figure import Figure
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 assert isinstance(fig, Figure) and isinstance(fig.canvas, FigureCanvasAgg)
-assert len(fig.axes) == len(res.figures)
+assert len(fig.axes) == len(res.series)
 assert scan_png(res)[:8] == b"\\x89PNG\\r\\n\\x1a\\n"
 dens = density_figure(encoding.points(arr, 0.5), "t", tuple("ACGT"), encoding.corner_layout(4))
 assert isinstance(dens, Figure) and isinstance(dens.canvas, FigureCanvasAgg)

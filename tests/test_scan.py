@@ -94,10 +94,10 @@ def test_tandem_repeat_interval_found_within_one_window(seed, unit, copies, wind
     # invented sequence: uniform random DNA with one inserted tandem repeat
     arr, lo, hi = _genome_with_repeat(seed, unit=unit, copies=copies)
     res = scan_stream(arr, window, window // 4)
-    assert len(res.regions) == 1
-    region = res.regions[0]
+    assert len(res.low_complexity) == 1
+    region = res.low_complexity[0]
     assert abs(region["start"] - lo) <= window and abs(region["end"] - hi) <= window
-    outside = np.median(res.figures["entropy_rate"])
+    outside = np.median(res.series["entropy_rate"])
     assert outside > 1.9  # uniform random DNA: close to 2 bits per symbol
     assert region["entropy_rate"] < outside - 0.15  # the repeat is more predictable
 
@@ -106,7 +106,7 @@ def test_random_sequence_has_no_low_complexity_region():
     rng = np.random.default_rng(9)
     arr = from_codes(dna(), rng.integers(0, 4, 120_000).astype(np.uint8), name="random")
     res = scan_stream(arr, 2000, 500)
-    assert res.regions == []
+    assert res.low_complexity == ()
     assert len(res.intervals) <= 2
 
 
@@ -132,4 +132,4 @@ def test_cli_scan_json_contract_and_determinism(tmp_path):
     again = subprocess.run(CLI + ["scan", str(fa), "--window", "1000", "--out", str(out), "-q"], capture_output=True, text=True)
     assert again.returncode == 2 and "--force" in again.stderr
     short = subprocess.run(CLI + ["scan", str(fa), "--window", "100000", "-q"], capture_output=True, text=True)
-    assert short.returncode == 2 and "smaller --window" in short.stderr
+    assert short.returncode == 2 and "use a smaller window (option --window)." in short.stderr

@@ -253,6 +253,8 @@ def drift(
 
     Example: fractalseq drift logs/monday.log logs/tuesday.log --format log --alpha 0.01
     """
+    import dataclasses
+
     from fractalseq.compare._drift import DriftOptions, drift_test
 
     if baseline == "-" and new == "-":
@@ -274,7 +276,7 @@ def drift(
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
         result = drift_test(base_streams, new_streams, options, eng, on_done=lambda i, r: bar.advance(task))
     if cut_note:
-        result.notes.insert(0, cut_note)
+        result = dataclasses.replace(result, notes=(cut_note, *result.notes))
     if out is not None:
         from fractalseq.report.drift import write_outputs
 
@@ -349,18 +351,18 @@ def scan(
         return
     lines = [
         f"{result.name}: {result.length} symbols, {len(result.starts)} windows of {result.window} (step {result.step}), depth {result.depth}.",
-        f"{len(result.segmentation.breaks)} change points; {len(result.regions)} low-complexity region(s).",
+        f"{len(result.segmentation.breaks)} change points; {len(result.low_complexity)} low-complexity region(s).",
         f"Method: {result.segmentation.method}; penalty {result.segmentation.penalty:.3g} ({result.segmentation.penalty_rule}).",
         "",
-        f"{'start':>12}{'end':>12}" + "".join(f"{k:>14}" for k in result.figures) + "  low",
+        f"{'start':>12}{'end':>12}" + "".join(f"{k:>14}" for k in result.series) + "  low",
     ]
     for iv in result.intervals:
         lines.append(
-            f"{iv['start']:>12}{iv['end']:>12}" + "".join(f"{_num(iv.get(k)):>14}" for k in result.figures) + ("  yes" if iv["low_complexity"] else "")
+            f"{iv['start']:>12}{iv['end']:>12}" + "".join(f"{_num(iv.get(k)):>14}" for k in result.series) + ("  yes" if iv["low_complexity"] else "")
         )
-    if result.regions:
+    if result.low_complexity:
         lines += ["", "Low-complexity regions:"]
-        for iv in result.regions:
+        for iv in result.low_complexity:
             lines.append(f"  {iv['start']}-{iv['end']}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol")
     for n in result.notes:
         lines.append(f"note: {n}")

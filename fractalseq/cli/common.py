@@ -64,6 +64,12 @@ OPTION_OF: dict[str, str] = {
     "step": "--step",
     "level": "--level",
     "block_length": "--block",
+    "block": "--block",
+    "permutations": "--permutations",
+    "alpha": "--alpha",
+    "adjust": "--adjust",
+    "figures": "--figures",
+    "penalty": "--penalty",
 }
 
 

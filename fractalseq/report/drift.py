@@ -19,8 +19,8 @@ def drift_text(result: DriftResult) -> str:
     lines.append(
         f"Baseline: {result.baseline['symbols']} symbols in {result.baseline['blocks']} blocks; "
         f"new: {result.new['symbols']} symbols in {result.new['blocks']} blocks; "
-        f"depth {result.depth}, blocks of {result.block}, {result.options.permutations} permutations, "
-        f"{'Holm' if result.options.adjust == 'holm' else 'Benjamini-Hochberg'} adjustment."
+        f"depth {result.depth}, blocks of {result.block}, {result.parameters.permutations} permutations, "
+        f"{'Holm' if result.parameters.adjust == 'holm' else 'Benjamini-Hochberg'} adjustment."
     )
     lines.append("")
     lines.append(f"{'figure':<14}{'statistic':>12}{'baseline':>11}{'new':>11}{'effect':>12}{'p':>9}{'adjusted p':>12}")
@@ -65,8 +65,8 @@ def drift_html(result: DriftResult):
             ("new symbols", result.new["symbols"]),
             ("depth", result.depth),
             ("block length", result.block),
-            ("permutations", result.options.permutations),
-            ("adjustment", result.options.adjust),
+            ("permutations", result.parameters.permutations),
+            ("adjustment", result.parameters.adjust),
         ]
     )
     page.section("Tests")
