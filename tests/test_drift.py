@@ -16,6 +16,7 @@ from fractalseq.compare._blocks import block_tables
 from fractalseq.compare._drift import DriftOptions, drift_test
 from fractalseq.compare._homogeneity import _Figures, adjust_pvalues, conditional_g, g_statistic
 from fractalseq.jobs._engines import ProcessEngine
+from fractalseq.runner import Engine
 from fractalseq.words._pieces import iter_pieces
 from fractalseq.entropy._estimators import rate_from_counts, renyi_rate_from_counts
 from fractalseq.errors import ParameterError
@@ -118,13 +119,44 @@ def test_no_change_keeps_its_level_and_a_change_is_found():
         assert r.top_contexts[0]["context"] == "CC"  # context 5 = (C, C) is the one changed
 
 
-def test_engines_give_identical_results():
+def test_engines_give_identical_results(monkeypatch):
     base = [_batch(CHAIN, 30_000, 1, "a1"), _batch(CHAIN, 10_000, 2, "a2")]
     new = [_batch(_changed_chain(), 40_000, 3, "b")]
     serial = drift_test(base, new, DriftOptions(seed=9, permutations=99))
     with ProcessEngine(2) as eng:
         par = drift_test(base, new, DriftOptions(seed=9, permutations=99), eng)
     assert serial.to_json() == par.to_json()
+    # any engine of the runner contract will do, also one that hands results back out of order
+    # (small pieces, so that there is an order to break; block tables do not depend on the piece size)
+    import fractalseq.compare._blocks as blocks
+
+    monkeypatch.setattr(blocks, "DEFAULT_PIECE", 4096)
+    done = []
+    last_first = drift_test(base, new, DriftOptions(seed=9, permutations=99), _LastFirstEngine(),
+                            on_done=lambda i, r: done.append(i))
+    assert last_first.to_json() == serial.to_json()
+    assert done != sorted(done) and len(done) > 10  # really out of order
+
+
+class _Later:
+    def __init__(self, func, item):
+        self.func, self.item = func, item
+
+    def result(self):
+        return self.func(self.item)
+
+
+class _LastFirstEngine(Engine):
+    """Only the :class:`fractalseq.runner.Engine` contract: the newest pending task finishes first."""
+
+    name = "last-first"
+    workers = 3
+
+    def submit(self, func, item):
+        return _Later(func, item)
+
+    def wait_first(self, futures):
+        return [futures[-1]]
 
 
 def test_logs_with_different_templates_use_a_joint_alphabet(tmp_path):
