@@ -13,7 +13,7 @@ from scipy.stats import chi2_contingency, false_discovery_control
 
 from fractalseq.alphabet import dna
 from fractalseq.compare._blocks import block_tables
-from fractalseq.compare._drift import DriftOptions, drift_test
+from fractalseq.compare._drift import FIGURES, DriftOptions, drift_test
 from fractalseq.compare._homogeneity import _Figures, adjust_pvalues, conditional_g, g_statistic
 from fractalseq.jobs._engines import ProcessEngine
 from fractalseq.runner import Engine
@@ -234,3 +234,37 @@ def test_numeric_batches_share_the_baselines_cut_points(tmp_path):
     patterns = run("--ordinal", "3", "--json")
     assert patterns.returncode == 0, patterns.stderr
     assert json.loads(patterns.stdout)["changed"] is False
+
+
+def test_result_is_frozen_and_keeps_the_documented_json_keys():
+    """The ``drift --json`` document keeps the keys of its contract (README, "JSON contract (drift --json)")
+    now that it is generated from the result's fields; the result itself cannot be changed in place."""
+    import dataclasses
+
+    r = drift_test([_batch(CHAIN, 8000, 1, "a")], [_batch(CHAIN, 8000, 2, "b")], DriftOptions(permutations=19, seed=3))
+    d = r.to_dict()
+    assert set(d) == {
+        "command", "fractalseq", "verdict", "changed", "inconclusive", "p_value", "alpha", "adjust", "method", "depth",
+        "block", "tests", "top_words", "top_contexts", "baseline", "new", "alphabet", "parameters", "notes", "caution",
+    }
+    assert d["command"] == "drift" and d["alpha"] == 0.05 and d["adjust"] == "holm"
+    assert set(d["tests"][0]) == {"figure", "statistic_name", "statistic", "baseline", "new", "effect", "effect_name",
+                                  "standardized_effect", "p_value", "p_adjusted"}
+    assert set(d["baseline"]) == {"inputs", "lengths", "symbols", "blocks", "words"}
+    assert d["parameters"] == {"depth": None, "block": None, "permutations": 19, "alpha": 0.05, "adjust": "holm",
+                               "seed": 3, "ratio": 0.5, "figures": list(FIGURES), "top": 10}
+    assert d["verdict"] == r.verdict and d["verdict"].split(":")[0] in ("CHANGED", "NO CHANGE DETECTED", "INCONCLUSIVE")
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        r.changed = True
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        r.tests[0].p_adjusted = 0.0
+    noted = dataclasses.replace(r, notes=("an added note", *r.notes))
+    assert noted.to_dict()["notes"][0] == "an added note" and noted.verdict == r.verdict
+
+
+def test_errors_name_the_parameter():
+    for opts, name in ((DriftOptions(permutations=5), "permutations"), (DriftOptions(alpha=2.0), "alpha"),
+                       (DriftOptions(block=0), "block"), (DriftOptions(figures=("bogus",)), "figures")):
+        with pytest.raises(ParameterError) as err:
+            drift_test([_batch(CHAIN, 500, 1, "a")], [_batch(CHAIN, 500, 2, "b")], opts)
+        assert err.value.parameter == name and "--" not in str(err.value)

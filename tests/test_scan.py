@@ -133,3 +133,34 @@ def test_cli_scan_json_contract_and_determinism(tmp_path):
     assert again.returncode == 2 and "--force" in again.stderr
     short = subprocess.run(CLI + ["scan", str(fa), "--window", "100000", "-q"], capture_output=True, text=True)
     assert short.returncode == 2 and "use a smaller window (option --window)." in short.stderr
+
+
+def test_result_is_frozen_and_keeps_the_documented_json_keys():
+    """The ``scan --json`` document keeps the keys of its contract (README, "JSON contract (scan --json)")
+    now that it is generated from the result's fields; per-window arrays stay out of the top level."""
+    import dataclasses
+
+    arr, lo, hi = _genome_with_repeat(3, n=20_000, pos=8_000, copies=80)
+    res = scan_stream(arr, 1000, 250)
+    d = res.to_dict()
+    assert set(d) == {"command", "fractalseq", "caution", "name", "length", "window", "step", "depth", "ratio",
+                      "figures", "windows", "change_points", "intervals", "low_complexity", "records", "notes"}
+    assert set(d["figures"]) == {"entropy_rate", "D0", "surprise"}
+    assert set(d["windows"]) == {"start", *res.series}
+    assert d["windows"]["start"] == res.starts.tolist()
+    assert set(d["change_points"]) == {"method", "penalty", "penalty_rule", "breaks", "noise", "positions"}
+    assert d["change_points"]["positions"] == res.change_positions()
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        res.window = 5
+
+
+def test_errors_name_the_parameter():
+    from fractalseq.errors import ParameterError
+
+    arr, _, _ = _genome_with_repeat(4, n=3000, pos=1000, copies=10)
+    for kwargs, name in (({"window": 1}, "window"), ({"window": 100, "step": 101}, "step"),
+                         ({"window": 100, "ratio": 1.5}, "ratio"), ({"window": 10_000}, "window"),
+                         ({"window": 100, "depth": 100}, "depth")):
+        with pytest.raises(ParameterError) as err:
+            scan_stream(arr, **kwargs)
+        assert err.value.parameter == name and "--" not in str(err.value)
