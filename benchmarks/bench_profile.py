@@ -31,8 +31,8 @@ sys.path.insert(0, str(HERE.parent))
 
 
 def run_one(path: Path, n_boot: int, seed: int) -> dict:
-    from fractalseq.jobs._profile import profile_source
-    from fractalseq.report.profile import write_profile_report
+    from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, contract, profile_source
+    from fractalseq.report.profile import is_genomic, write_profile_report
     from fractalseq.sources import open_source
     from fractalseq.words._counts import count_words
 
@@ -47,7 +47,8 @@ def run_one(path: Path, n_boot: int, seed: int) -> dict:
     t_prof = time.perf_counter() - t0
     with tempfile.TemporaryDirectory() as tmp:
         t0 = time.perf_counter()
-        write_profile_report(res, Path(tmp) / "report")
+        caution = CAUTION_GENOMIC if is_genomic([res]) else CAUTION_GENERAL
+        write_profile_report(res, Path(tmp) / "report", contract([res]), caution)
         t_write = time.perf_counter() - t0
     d = res.to_dict()
     rates = d["entropy_rate_bits"]

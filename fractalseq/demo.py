@@ -106,11 +106,11 @@ def run_demo(
         Called with a short description before each stage (progress display).
     """
     from fractalseq.compare._drift import DriftOptions, drift_test
-    from fractalseq.compare._drift import write_outputs as write_drift
+    from fractalseq.report.drift import write_outputs as write_drift
     from fractalseq.jobs._engines import make_engine
     from fractalseq.predict._predictor import online_code_length
     from fractalseq.compare._scan import scan_stream
-    from fractalseq.compare._scan import write_outputs as write_scan
+    from fractalseq.report.scan import write_outputs as write_scan
     from fractalseq.sources import open_source
     from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey
     from fractalseq.jobs._survey import write_outputs as write_survey

@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
@@ -170,44 +169,3 @@ def density_image(pts: np.ndarray, size: int = 512, bounds: tuple | None = None)
         lo = np.asarray(bounds[0], float)
         span = np.asarray(bounds[1], float) - lo
     return kernels.density_grid(np.ascontiguousarray(p[:, :2]), size, lo, span)
-
-
-def render_png(
-    pts: np.ndarray,
-    path: str | Path,
-    title: str,
-    labels: tuple[str, ...] = (),
-    corners: np.ndarray | None = None,
-    size: int = 512,
-    force: bool = False,
-) -> Path:
-    """Write a density image of the encoding as a PNG (log-scaled counts, labelled corners)."""
-    import io
-
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from fractalseq.io._outputs import write_bytes
-
-    img = density_image(pts, size)
-    fig, ax = plt.subplots(figsize=(6.4, 6.4), dpi=100)
-    shown = np.log1p(img.astype(float))
-    im = ax.imshow(shown, origin="lower", extent=(0, 1, 0, 1), cmap="magma", interpolation="nearest")
-    cb = fig.colorbar(im, ax=ax, fraction=0.046, pad=0.04)
-    cb.set_label("ln(1 + points per pixel)")
-    ax.set_xlabel("coordinate 1 (unit cube)")
-    ax.set_ylabel("coordinate 2 (unit cube)" if pts.shape[1] >= 2 else "(one-dimensional encoding)")
-    ax.set_title(title)
-    if corners is not None and labels and corners.shape[1] >= 1 and len(labels) <= 16:
-        for lab, c in zip(labels, corners):
-            y = c[1] if corners.shape[1] >= 2 else 0.0
-            ax.annotate(
-                lab, (c[0], y), xytext=(4 if c[0] < 0.5 else -12, 4 if y < 0.5 else -12),
-                textcoords="offset points", color="tab:cyan", fontsize=11, fontweight="bold",
-            )
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", bbox_inches="tight")
-    plt.close(fig)
-    return write_bytes(path, buf.getvalue(), force=force)

@@ -12,16 +12,11 @@ import pytest
 from scipy.stats import chi2_contingency, false_discovery_control
 
 from fractalseq.alphabet import dna
-from fractalseq.compare._drift import (
-    DriftOptions,
-    _Figures,
-    adjust_pvalues,
-    block_tables,
-    conditional_g,
-    drift_test,
-    g_statistic,
-)
+from fractalseq.compare._blocks import block_tables
+from fractalseq.compare._drift import FIGURES, DriftOptions, drift_test
+from fractalseq.compare._homogeneity import _Figures, adjust_pvalues, conditional_g, g_statistic
 from fractalseq.jobs._engines import ProcessEngine
+from fractalseq.runner import Engine
 from fractalseq.words._pieces import iter_pieces
 from fractalseq.entropy._estimators import rate_from_counts, renyi_rate_from_counts
 from fractalseq.errors import ParameterError
@@ -124,13 +119,44 @@ def test_no_change_keeps_its_level_and_a_change_is_found():
         assert r.top_contexts[0]["context"] == "CC"  # context 5 = (C, C) is the one changed
 
 
-def test_engines_give_identical_results():
+def test_engines_give_identical_results(monkeypatch):
     base = [_batch(CHAIN, 30_000, 1, "a1"), _batch(CHAIN, 10_000, 2, "a2")]
     new = [_batch(_changed_chain(), 40_000, 3, "b")]
     serial = drift_test(base, new, DriftOptions(seed=9, permutations=99))
     with ProcessEngine(2) as eng:
         par = drift_test(base, new, DriftOptions(seed=9, permutations=99), eng)
     assert serial.to_json() == par.to_json()
+    # any engine of the runner contract will do, also one that hands results back out of order
+    # (small pieces, so that there is an order to break; block tables do not depend on the piece size)
+    import fractalseq.compare._blocks as blocks
+
+    monkeypatch.setattr(blocks, "DEFAULT_PIECE", 4096)
+    done = []
+    last_first = drift_test(base, new, DriftOptions(seed=9, permutations=99), _LastFirstEngine(),
+                            on_done=lambda i, r: done.append(i))
+    assert last_first.to_json() == serial.to_json()
+    assert done != sorted(done) and len(done) > 10  # really out of order
+
+
+class _Later:
+    def __init__(self, func, item):
+        self.func, self.item = func, item
+
+    def result(self):
+        return self.func(self.item)
+
+
+class _LastFirstEngine(Engine):
+    """Only the :class:`fractalseq.runner.Engine` contract: the newest pending task finishes first."""
+
+    name = "last-first"
+    workers = 3
+
+    def submit(self, func, item):
+        return _Later(func, item)
+
+    def wait_first(self, futures):
+        return [futures[-1]]
 
 
 def test_logs_with_different_templates_use_a_joint_alphabet(tmp_path):
@@ -208,3 +234,37 @@ def test_numeric_batches_share_the_baselines_cut_points(tmp_path):
     patterns = run("--ordinal", "3", "--json")
     assert patterns.returncode == 0, patterns.stderr
     assert json.loads(patterns.stdout)["changed"] is False
+
+
+def test_result_is_frozen_and_keeps_the_documented_json_keys():
+    """The ``drift --json`` document keeps the keys of its contract (README, "JSON contract (drift --json)")
+    now that it is generated from the result's fields; the result itself cannot be changed in place."""
+    import dataclasses
+
+    r = drift_test([_batch(CHAIN, 8000, 1, "a")], [_batch(CHAIN, 8000, 2, "b")], DriftOptions(permutations=19, seed=3))
+    d = r.to_dict()
+    assert set(d) == {
+        "command", "fractalseq", "verdict", "changed", "inconclusive", "p_value", "alpha", "adjust", "method", "depth",
+        "block", "tests", "top_words", "top_contexts", "baseline", "new", "alphabet", "parameters", "notes", "caution",
+    }
+    assert d["command"] == "drift" and d["alpha"] == 0.05 and d["adjust"] == "holm"
+    assert set(d["tests"][0]) == {"figure", "statistic_name", "statistic", "baseline", "new", "effect", "effect_name",
+                                  "standardized_effect", "p_value", "p_adjusted"}
+    assert set(d["baseline"]) == {"inputs", "lengths", "symbols", "blocks", "words"}
+    assert d["parameters"] == {"depth": None, "block": None, "permutations": 19, "alpha": 0.05, "adjust": "holm",
+                               "seed": 3, "ratio": 0.5, "figures": list(FIGURES), "top": 10}
+    assert d["verdict"] == r.verdict and d["verdict"].split(":")[0] in ("CHANGED", "NO CHANGE DETECTED", "INCONCLUSIVE")
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        r.changed = True
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        r.tests[0].p_adjusted = 0.0
+    noted = dataclasses.replace(r, notes=("an added note", *r.notes))
+    assert noted.to_dict()["notes"][0] == "an added note" and noted.verdict == r.verdict
+
+
+def test_errors_name_the_parameter():
+    for opts, name in ((DriftOptions(permutations=5), "permutations"), (DriftOptions(alpha=2.0), "alpha"),
+                       (DriftOptions(block=0), "block"), (DriftOptions(figures=("bogus",)), "figures")):
+        with pytest.raises(ParameterError) as err:
+            drift_test([_batch(CHAIN, 500, 1, "a")], [_batch(CHAIN, 500, 2, "b")], opts)
+        assert err.value.parameter == name and "--" not in str(err.value)

@@ -30,7 +30,7 @@ from fractalseq import alphabet as al
 from fractalseq.cli.app import main
 from fractalseq.datasets._markov import simulate_markov
 from fractalseq.io._outputs import to_json
-from fractalseq.jobs._profile import contract, profile_source
+from fractalseq.jobs._profile import CAUTION_GENOMIC, contract, profile_source
 from fractalseq.report.profile import FIGURES, safe_name, write_profile_report
 from fractalseq.sources import open_source
 from fractalseq.stream import from_codes
@@ -143,7 +143,7 @@ def test_short_and_overlapping_inputs_are_flagged_not_crashed():
 
 
 def test_report_folder_is_complete(tmp_path, lambda_profile):
-    a = write_profile_report(lambda_profile, tmp_path / "a")
+    a = write_profile_report(lambda_profile, tmp_path / "a", contract([lambda_profile]), CAUTION_GENOMIC)
     names = sorted(p.name for p in a)
     for f in ("index.html", "profile.json", "dimensions.csv", "entropies.csv", "consistency.csv", "absent_words.csv", *FIGURES):
         assert f in names, f
@@ -161,7 +161,7 @@ def test_report_folder_is_complete(tmp_path, lambda_profile):
     from fractalseq.errors import OutputError
 
     with pytest.raises(OutputError):
-        write_profile_report(lambda_profile, tmp_path / "a")
+        write_profile_report(lambda_profile, tmp_path / "a", contract([lambda_profile]), CAUTION_GENOMIC)
 
 
 def test_profile_is_deterministic_for_a_seed():

@@ -197,3 +197,43 @@ def test_short_names():
     assert figures.short("abc") == "abc"
     s = figures.short("x" * 100, 20)
     assert len(s) == 20 and "…" in s
+
+
+def test_figures_leave_matplotlib_global_state_alone():
+    """Every report figure is a Figure with its own Agg canvas: drawing the drift, scan, density, survey
+    and profile figures in a fresh interpreter loads no pyplot and switches no backend (rules of this
+    code base, DEVELOPERS.md)."""
+    import subprocess
+    import sys
+
+    code = """
+import sys, numpy as np, matplotlib
+from fractalseq import alphabet as al, encoding
+from fractalseq.compare._scan import scan_stream
+from fractalseq.datasets._markov import simulate_markov
+from fractalseq.report import figures, survey
+from fractalseq.report.density import density_figure
+from fractalseq.report.scan import scan_figure, scan_png
+from fractalseq.stream import from_codes
+backend = matplotlib.rcParams._get_backend_or_none()
+rng = np.random.default_rng(3)
+codes = np.concatenate([rng.integers(0, 4, 3000), np.tile([0, 1], 1000), rng.integers(0, 4, 3000)]).astype(np.uint8)
+arr = from_codes(al.dna(), codes, name="invented")
+res = scan_stream(arr, 400, 100)
+fig = scan_figure(res)
+from matplotlib.figure import Figure
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+assert isinstance(fig, Figure) and isinstance(fig.canvas, FigureCanvasAgg)
+assert len(fig.axes) == len(res.series)
+assert scan_png(res)[:8] == b"\\x89PNG\\r\\n\\x1a\\n"
+dens = density_figure(encoding.points(arr, 0.5), "t", tuple("ACGT"), encoding.corner_layout(4))
+assert isinstance(dens, Figure) and isinstance(dens.canvas, FigureCanvasAgg)
+survey.spectra_png([("a", [{"q": 0, "estimate": 2.0, "low": 1.9, "high": 2.0}])])
+survey.dendrogram_png(np.array([[0.0, 1.0, 0.5, 2.0]]), ["a", "b"], "average", 3)
+figures.heatmap_png(np.eye(2), ["a", "b"], "t", "bits")
+assert "matplotlib.pyplot" not in sys.modules, "pyplot was imported"
+assert matplotlib.rcParams._get_backend_or_none() == backend, "the backend was switched"
+print("ok")
+"""
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert out.returncode == 0 and out.stdout.strip() == "ok", out.stderr[-2000:]

@@ -94,10 +94,10 @@ def test_tandem_repeat_interval_found_within_one_window(seed, unit, copies, wind
     # invented sequence: uniform random DNA with one inserted tandem repeat
     arr, lo, hi = _genome_with_repeat(seed, unit=unit, copies=copies)
     res = scan_stream(arr, window, window // 4)
-    assert len(res.regions) == 1
-    region = res.regions[0]
+    assert len(res.low_complexity) == 1
+    region = res.low_complexity[0]
     assert abs(region["start"] - lo) <= window and abs(region["end"] - hi) <= window
-    outside = np.median(res.figures["entropy_rate"])
+    outside = np.median(res.series["entropy_rate"])
     assert outside > 1.9  # uniform random DNA: close to 2 bits per symbol
     assert region["entropy_rate"] < outside - 0.15  # the repeat is more predictable
 
@@ -106,7 +106,7 @@ def test_random_sequence_has_no_low_complexity_region():
     rng = np.random.default_rng(9)
     arr = from_codes(dna(), rng.integers(0, 4, 120_000).astype(np.uint8), name="random")
     res = scan_stream(arr, 2000, 500)
-    assert res.regions == []
+    assert res.low_complexity == ()
     assert len(res.intervals) <= 2
 
 
@@ -132,4 +132,35 @@ def test_cli_scan_json_contract_and_determinism(tmp_path):
     again = subprocess.run(CLI + ["scan", str(fa), "--window", "1000", "--out", str(out), "-q"], capture_output=True, text=True)
     assert again.returncode == 2 and "--force" in again.stderr
     short = subprocess.run(CLI + ["scan", str(fa), "--window", "100000", "-q"], capture_output=True, text=True)
-    assert short.returncode == 2 and "smaller --window" in short.stderr
+    assert short.returncode == 2 and "use a smaller window (option --window)." in short.stderr
+
+
+def test_result_is_frozen_and_keeps_the_documented_json_keys():
+    """The ``scan --json`` document keeps the keys of its contract (README, "JSON contract (scan --json)")
+    now that it is generated from the result's fields; per-window arrays stay out of the top level."""
+    import dataclasses
+
+    arr, lo, hi = _genome_with_repeat(3, n=20_000, pos=8_000, copies=80)
+    res = scan_stream(arr, 1000, 250)
+    d = res.to_dict()
+    assert set(d) == {"command", "fractalseq", "caution", "name", "length", "window", "step", "depth", "ratio",
+                      "figures", "windows", "change_points", "intervals", "low_complexity", "records", "notes"}
+    assert set(d["figures"]) == {"entropy_rate", "D0", "surprise"}
+    assert set(d["windows"]) == {"start", *res.series}
+    assert d["windows"]["start"] == res.starts.tolist()
+    assert set(d["change_points"]) == {"method", "penalty", "penalty_rule", "breaks", "noise", "positions"}
+    assert d["change_points"]["positions"] == res.change_positions()
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        res.window = 5
+
+
+def test_errors_name_the_parameter():
+    from fractalseq.errors import ParameterError
+
+    arr, _, _ = _genome_with_repeat(4, n=3000, pos=1000, copies=10)
+    for kwargs, name in (({"window": 1}, "window"), ({"window": 100, "step": 101}, "step"),
+                         ({"window": 100, "ratio": 1.5}, "ratio"), ({"window": 10_000}, "window"),
+                         ({"window": 100, "depth": 100}, "depth")):
+        with pytest.raises(ParameterError) as err:
+            scan_stream(arr, **kwargs)
+        assert err.value.parameter == name and "--" not in str(err.value)

@@ -213,3 +213,72 @@ def test_depth_beyond_address_width_is_refused(depth):
     with pytest.raises(ParameterError) as exc:
         WordCounter(al.dna(), depth)
     assert "depth" in str(exc.value).lower()
+
+
+# ------------------------------------------------------- the one segmented-word loop
+def naive_segment_words(codes, starts, depth, bits, limit):
+    """Obvious twin of the shared address loop: every word inside one segment starting before ``limit``,
+    packed first symbol most significant (Python integers, no mask needed)."""
+    n = len(codes)
+    cuts = sorted({0, *[int(s) for s in starts if 0 <= s < n]}) if n else []
+    out = []
+    for a, e in zip(cuts, cuts[1:] + [n]):
+        for p in range(a, min(e - depth + 1, limit)):
+            addr = 0
+            for c in codes[p : p + depth]:
+                addr = (addr << bits) | int(c)
+            out.append((addr, p))
+    return out
+
+
+@st.composite
+def segmented(draw):
+    bits = draw(st.integers(1, 8))
+    length = draw(st.integers(0, 300))
+    codes = draw(st.lists(st.integers(0, (1 << bits) - 1), min_size=length, max_size=length))
+    starts = draw(st.lists(st.integers(-3, length + 3), max_size=8))
+    depth = draw(st.integers(1, 64 // bits))
+    limit = draw(st.integers(0, length + 2))
+    return np.array(codes, dtype=np.uint8), np.array(starts, dtype=np.int64), depth, bits, limit
+
+
+@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(segmented())
+def test_segment_words_equal_naive_twin(case):
+    """The shared kernel (every layout) equals the naive loop on random streams, segment layouts, word
+    lengths up to the full 64-bit width, and limits."""
+    from fractalseq.stream import normalise_starts
+    from fractalseq.words._kernels import AT_START, SPLIT, _segment_words, segment_word_addresses
+
+    codes, starts, depth, bits, limit = case
+    want = naive_segment_words(codes.tolist(), starts.tolist(), depth, bits, limit)
+    addr, pos = segment_word_addresses(codes, starts, depth, bits, limit=limit)
+    assert [(int(a), int(p)) for a, p in zip(addr, pos)] == want
+    everything = naive_segment_words(codes.tolist(), starts.tolist(), depth, bits, len(codes))
+    st_ = normalise_starts(starts, len(codes))
+    # AT_START: the word starting at p sits at keys[p], marked in where[p]
+    keys = np.zeros(len(codes), np.uint64)
+    marks = np.zeros(len(codes), np.bool_)
+    k = _segment_words(codes, st_, depth, bits, len(codes), AT_START, 0, keys, marks)
+    assert k == len(everything)
+    assert sorted(np.flatnonzero(marks).tolist()) == [p for _, p in everything]
+    assert all(int(keys[p]) == a for a, p in everything)
+    # SPLIT: low-top-bit words first, each group in start order
+    top = bits * depth - 1
+    low = [(a, p) for a, p in everything if not (a >> top) & 1]
+    high = [(a, p) for a, p in everything if (a >> top) & 1]
+    keys = np.zeros(len(everything), np.uint64)
+    where = np.zeros(len(everything), np.int64)
+    _segment_words(codes, st_, depth, bits, len(codes), SPLIT, len(low), keys, where)
+    assert [(int(a), int(p)) for a, p in zip(keys, where)] == low + high
+
+
+def test_segment_word_addresses_refuses_bad_parameters():
+    from fractalseq.words._kernels import segment_word_addresses
+
+    codes = np.array([0, 1, 2, 3], np.uint8)
+    for kwargs, name in (({"depth": 0, "bits": 2}, "depth"), ({"depth": 33, "bits": 2}, "depth"),
+                         ({"depth": 2, "bits": 0}, "bits"), ({"depth": 2, "bits": 1}, "codes")):
+        with pytest.raises(ParameterError) as err:
+            segment_word_addresses(codes, [0], **kwargs)
+        assert err.value.parameter == name

@@ -237,13 +237,13 @@ def drift(
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
         result = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
     if out is not None:
-        from fractalseq.compare._drift import write_outputs
+        from fractalseq.report.drift import write_outputs
 
         write_outputs(result, Path(out), force=True)
     if json_out:
         typer.echo(result.to_json(), nl=False)
     else:
-        from fractalseq.compare._drift import drift_text
+        from fractalseq.report.drift import drift_text
 
         typer.echo(drift_text(result), nl=False)
     raise typer.Exit(EXIT_FOUND if result.changed else 0)
@@ -304,7 +304,7 @@ def scan(
         )
         bar.advance(task)
     if out is not None:
-        from fractalseq.compare._scan import write_outputs
+        from fractalseq.report.scan import write_outputs
 
         write_outputs(result, Path(out), force=True)
     if json_out:
@@ -312,18 +312,18 @@ def scan(
         return
     lines = [
         f"{result.name}: {result.length} symbols, {len(result.starts)} windows of {result.window} (step {result.step}), depth {result.depth}.",
-        f"{len(result.segmentation.breaks)} change points; {len(result.regions)} low-complexity region(s).",
+        f"{len(result.segmentation.breaks)} change points; {len(result.low_complexity)} low-complexity region(s).",
         f"Method: {result.segmentation.method}; penalty {result.segmentation.penalty:.3g} ({result.segmentation.penalty_rule}).",
         "",
-        f"{'start':>12}{'end':>12}" + "".join(f"{k:>14}" for k in result.figures) + "  low",
+        f"{'start':>12}{'end':>12}" + "".join(f"{k:>14}" for k in result.series) + "  low",
     ]
     for iv in result.intervals:
         lines.append(
-            f"{iv['start']:>12}{iv['end']:>12}" + "".join(f"{_num(iv.get(k)):>14}" for k in result.figures) + ("  yes" if iv["low_complexity"] else "")
+            f"{iv['start']:>12}{iv['end']:>12}" + "".join(f"{_num(iv.get(k)):>14}" for k in result.series) + ("  yes" if iv["low_complexity"] else "")
         )
-    if result.regions:
+    if result.low_complexity:
         lines += ["", "Low-complexity regions:"]
-        for iv in result.regions:
+        for iv in result.low_complexity:
             lines.append(f"  {iv['start']}-{iv['end']}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol")
     for n in result.notes:
         lines.append(f"note: {n}")

@@ -131,8 +131,10 @@ def profile(
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
     """
     from fractalseq.io._outputs import prepare_folder, to_json
-    from fractalseq.jobs._profile import STEPS, ProfileSettings, contract, profile_source
-    from fractalseq.report.profile import safe_name, write_profile_index, write_profile_report
+    from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, STEPS, ProfileSettings, contract, profile_source
+    from fractalseq.report.profile import is_genomic, safe_name, write_profile_index, write_profile_report
+
+    caution = lambda rs: CAUTION_GENOMIC if is_genomic(rs) else CAUTION_GENERAL  # noqa: E731
 
     # validate everything before reading anything
     settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed)
@@ -162,11 +164,11 @@ def profile(
             if out is not None:
                 bar.update(task, description=f"{path}: writing report")
                 sub = safe_name(safe_stem(path), taken)
-                write_profile_report(res, out / sub, force=force, parameters=parameters)
+                write_profile_report(res, out / sub, contract([res], parameters), caution([res]), force=force)
                 subfolders.append(sub)
             bar.remove_task(task)
     if out is not None:
-        write_profile_index(results, subfolders, out, force=force, parameters=parameters)
+        write_profile_index(results, subfolders, out, contract(results, parameters), caution(results), force=force)
         if not quiet:
             common.err_console.print(f"wrote {len(results)} profile(s) to {out}/ (open {out}/index.html)",
                                      markup=False, highlight=False)

@@ -37,6 +37,7 @@ def render(
     Example: fractalseq render reference/lambda_virus.fa --out lambda.png --ratio 0.5
     """
     from fractalseq import encoding
+    from fractalseq.report.density import render_png
     from fractalseq.io._outputs import check_writable
 
     if out.suffix.lower() != ".png":
@@ -50,7 +51,7 @@ def render(
     label = "non-overlapping maps" if not check.overlapping else "overlapping maps"
     title = f"{arr.name}: encoding, k = {k:g} ({label}), {len(arr):,} symbols"
     labels = tuple(arr.alphabet.symbols) if arr.alphabet.size <= 16 and arr.alphabet.single_characters else ()
-    encoding.render_png(pts, out, title, labels, corners, size=size, force=force)
+    render_png(pts, out, title, labels, corners, size=size, force=force)
     if not quiet:
         common.err_console.print(f"wrote {out}")
 

@@ -87,6 +87,10 @@ OPTION_OF: dict[str, str] = {
     "penalty": "--penalty",
     "force": "--force",
     "cache": "--cache",
+    "permutations": "--permutations",
+    "alpha": "--alpha",
+    "adjust": "--adjust",
+    "figures": "--figures",
 }
 
 

@@ -2,7 +2,8 @@
 
 from fractalseq.compare._changepoint import Segmentation, pelt, segment_series
 from fractalseq.compare._distances import Clustering, cluster, joint_alphabet, js_divergence, js_matrix, spectrum_matrix
-from fractalseq.compare._drift import DriftOptions, DriftResult, adjust_pvalues, drift_test, g_statistic
+from fractalseq.compare._drift import DriftOptions, DriftResult, drift_test
+from fractalseq.compare._homogeneity import adjust_pvalues, g_statistic
 from fractalseq.compare._scan import ScanResult, scan_stream
 
 __all__ = [

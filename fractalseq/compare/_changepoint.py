@@ -103,7 +103,7 @@ def pelt(x: np.ndarray, penalty: float, min_size: int = 1, weight: float = 1.0) 
         x = x[:, None]
     n = x.shape[0]
     if penalty < 0 or not math.isfinite(penalty):
-        raise ParameterError(f"The change-point penalty must be a non-negative number, not {penalty}.")
+        raise ParameterError(f"The change-point penalty must be a non-negative number, not {penalty}.", parameter="penalty")
     if n < 2 * min_size:
         return []
     c1 = np.vstack([np.zeros((1, x.shape[1])), np.cumsum(x, axis=0)])
@@ -224,7 +224,7 @@ def segment_series(
         try:
             beta = float(penalty)
         except (TypeError, ValueError):
-            raise ParameterError(f"The penalty must be 'bic' or a number, not {penalty!r}.") from None
+            raise ParameterError(f"The penalty must be 'bic' or a number, not {penalty!r}.", parameter="penalty") from None
         rule = "set by the user"
     breaks = pelt(X, beta, min_size=L, weight=1.0 / L)
     method = (

@@ -42,27 +42,25 @@ Drift reports on logs are no security guarantee.
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Callable, Sequence
 
 import numpy as np
-from numba import njit
 
 from fractalseq import __version__
 from fractalseq.alphabet import Alphabet
-from fractalseq.compare._distances import joint_alphabet, js_divergence, remap_words
-from fractalseq.words._pieces import DEFAULT_PIECE, Piece, iter_pieces
-from fractalseq.runner import Engine, SerialEngine
+from fractalseq.compare._blocks import BatchTables, batch_length, tables_for
+from fractalseq.compare._distances import joint_alphabet, js_divergence
+from fractalseq.compare._homogeneity import ADJUSTMENTS, _Figures, _xlogx, adjust_pvalues, conditional_g, g_statistic
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._outputs import to_json
+from fractalseq.results import Result
+from fractalseq.runner import Engine, SerialEngine
 from fractalseq.stream import SymbolArray, SymbolStream
 
 CAUTION = "Drift reports on logs are no security guarantee; genomic output is for research, not for clinical decisions."
 FIGURES: tuple[str, ...] = ("words", "transitions", "entropy_rate", "D2")
-ADJUSTMENTS: tuple[str, ...] = ("holm", "bh")
 #: Default: at least this many blocks in the shorter batch (when its length allows).
 TARGET_BLOCKS = 64
 #: Smallest automatic block length, in multiples of the depth.
@@ -71,104 +69,14 @@ MIN_BLOCK_DEPTHS = 10
 WORDS_PER_CELL = 10
 _REPLICATE_BATCH = 64
 
-
-# =============================================================== adjustment
-def adjust_pvalues(p: Sequence[float], method: str = "holm") -> np.ndarray:
-    """Multiplicity-adjusted p-values (Holm step-down or Benjamini–Hochberg step-up).
-
-    Holm: ``p~_(i) = max_{j <= i} min(1, (m - j + 1) p_(j))``.
-    BH: ``p~_(i) = min_{j >= i} min(1, m p_(j) / j)``.
-    """
-    p = np.asarray(p, dtype=float)
-    m = p.size
-    if m == 0:
-        return p
-    if method not in ADJUSTMENTS:
-        raise ParameterError(f"Adjustment {method!r} is not one of {', '.join(ADJUSTMENTS)}.")
-    order = np.argsort(p, kind="stable")
-    ps = p[order]
-    if method == "holm":
-        adj = np.maximum.accumulate(np.minimum(1.0, (m - np.arange(m)) * ps))
-    else:
-        adj = np.minimum.accumulate((m * ps / np.arange(1, m + 1))[::-1])[::-1]
-        adj = np.minimum(adj, 1.0)
-    out = np.empty(m)
-    out[order] = adj
-    return out
-
-
-# ================================================================= kernels
-@njit(cache=True)
-def _block_words(codes, starts, core, depth, bits, offset, block, out_block, out_addr):
-    """Block id and address of every depth-word starting at ``p < core`` inside its segment.
-
-    ``starts`` are sorted segment starts with 0 first; ``offset`` is the
-    position of ``codes[0]`` in its stream (blocks are ``(offset + p) // block``).
-    Returns the number of words written.
-    """
-    n = codes.shape[0]
-    nseg = starts.shape[0]
-    ub = np.uint64(bits)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
-    k = 0
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else n
-        if a >= core:
-            break
-        addr = np.uint64(0)
-        filled = 0
-        for i in range(a, e):
-            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                p = i - depth + 1
-                if p >= core:
-                    break
-                out_block[k] = (offset + p) // block
-                out_addr[k] = addr
-                k += 1
-    return k
-
-
-def block_tables(task: tuple[Piece, int, int]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Map step: per-block counts of the depth-words starting in a piece's core.
-
-    Parameters
-    ----------
-    task:
-        ``(piece, depth, block)``; pieces come from :func:`fractalseq.jobs._engines.iter_pieces`
-        with overlap ``depth - 1`` and a piece size that is a multiple of ``block``.
-
-    Returns
-    -------
-    blocks, words, counts:
-        One entry per (block, word) present, sorted by block then address;
-        block ids are positions in the stream divided by ``block``.
-    """
-    piece, depth, block = task
-    codes = np.ascontiguousarray(piece.codes)
-    starts = np.union1d(piece.starts.astype(np.int64), np.zeros(1, np.int64)) if codes.size else np.zeros(0, np.int64)
-    nmax = max(int(piece.core), 0)
-    ob = np.empty(nmax, dtype=np.int64)
-    oa = np.empty(nmax, dtype=np.uint64)
-    k = _block_words(codes, starts, int(piece.core), int(depth), int(piece.alphabet.bits), int(piece.offset), int(block), ob, oa)
-    ob, oa = ob[:k], oa[:k]
-    if k == 0:
-        return ob, oa, np.zeros(0, np.int64)
-    order = np.lexsort((oa, ob))
-    ob, oa = ob[order], oa[order]
-    new = np.ones(k, dtype=bool)
-    new[1:] = (ob[1:] != ob[:-1]) | (oa[1:] != oa[:-1])
-    idx = np.flatnonzero(new)
-    counts = np.diff(np.append(idx, k)).astype(np.int64)
-    return ob[idx], oa[idx], counts
+__all__ = ["ADJUSTMENTS", "CAUTION", "FIGURES", "DriftOptions", "DriftResult", "DriftTest", "adjust_pvalues",
+           "conditional_g", "drift_test", "g_statistic"]
 
 
 # ================================================================ options
 @dataclass(frozen=True)
-class DriftOptions:
-    """Parameters of a drift test.
+class DriftOptions(Result):
+    """Parameters of a drift test (its JSON form is the ``parameters`` of the drift document).
 
     Attributes
     ----------
@@ -203,49 +111,27 @@ class DriftOptions:
     top: int = 10
 
     def check(self) -> None:
+        """Raise :class:`ParameterError` (naming the parameter) if a value is impossible."""
         if self.depth is not None and (not isinstance(self.depth, (int, np.integer)) or self.depth < 1):
-            raise ParameterError(f"Depth must be a positive whole number, not {self.depth!r}.")
+            raise ParameterError(f"depth must be a positive whole number, not {self.depth!r}.", parameter="depth")
         if self.block is not None and (not isinstance(self.block, (int, np.integer)) or self.block < 1):
-            raise ParameterError(f"Block length must be a positive whole number of symbols, not {self.block!r}.")
+            raise ParameterError(f"block must be a positive whole number of symbols, not {self.block!r}.", parameter="block")
         if not isinstance(self.permutations, (int, np.integer)) or self.permutations < 19:
-            raise ParameterError("Use at least 19 permutations (the smallest p-value is 1/(R+1)).")
+            raise ParameterError("Use at least 19 permutations (the smallest p-value is 1/(R+1)).", parameter="permutations")
         if not 0.0 < self.alpha < 1.0:
-            raise ParameterError(f"The level alpha must lie strictly between 0 and 1, not {self.alpha}.")
+            raise ParameterError(f"The level alpha must lie strictly between 0 and 1, not {self.alpha}.", parameter="alpha")
         if self.adjust not in ADJUSTMENTS:
-            raise ParameterError(f"Adjustment {self.adjust!r} is not one of {', '.join(ADJUSTMENTS)}.")
+            raise ParameterError(f"Adjustment {self.adjust!r} is not one of {', '.join(ADJUSTMENTS)}.", parameter="adjust")
         if not 0.0 < self.ratio < 1.0:
-            raise ParameterError(f"The ratio k must lie strictly between 0 and 1, not {self.ratio}.")
+            raise ParameterError(f"The ratio k must lie strictly between 0 and 1, not {self.ratio}.", parameter="ratio")
         bad = [f for f in self.figures if f not in FIGURES]
         if bad or not self.figures:
-            raise ParameterError(f"Figures must be chosen from {', '.join(FIGURES)}; got {', '.join(bad) or 'none'}.")
-
-    def to_dict(self) -> dict:
-        return {
-            "depth": self.depth,
-            "block": self.block,
-            "permutations": self.permutations,
-            "alpha": self.alpha,
-            "adjust": self.adjust,
-            "seed": self.seed,
-            "ratio": self.ratio,
-            "figures": list(self.figures),
-            "top": self.top,
-        }
+            raise ParameterError(
+                f"Figures must be chosen from {', '.join(FIGURES)}; got {', '.join(bad) or 'none'}.", parameter="figures"
+            )
 
 
-# ================================================================= batches
-@dataclass
-class BatchTables:
-    """Block tables of one batch over the joint alphabet."""
-
-    names: list[str]
-    lengths: list[int]
-    blocks: int
-    block_ids: np.ndarray  # per entry, block index within the batch
-    words: np.ndarray  # per entry, word address (joint alphabet)
-    counts: np.ndarray
-
-
+# ================================================================ automatic choices
 def _auto_depth(alphabet: Alphabet, shortest: int) -> int:
     n = 1
     while n < 3 and n < alphabet.max_depth and float(alphabet.size) ** (n + 1) * WORDS_PER_CELL <= shortest:
@@ -257,157 +143,11 @@ def _auto_block(depth: int, shortest: int) -> int:
     return int(max(MIN_BLOCK_DEPTHS * depth, shortest // TARGET_BLOCKS, 1))
 
 
-def _tables_for(
-    streams: Sequence[SymbolArray | SymbolStream],
-    depth: int,
-    block: int,
-    engine: Engine,
-    joint: Alphabet,
-    on_done: Callable[[int, object], None] | None,
-) -> BatchTables:
-    chunk = block * max(1, DEFAULT_PIECE // block)
-    ids, words, counts = [], [], []
-    names, lengths = [], []
-    base = 0
-    for s in streams:
-        lengths_box = [0]
-
-        def pieces(s=s, box=lengths_box):
-            for p in iter_pieces(s, chunk, depth - 1):
-                box[0] += p.core
-                yield (p, depth, block)
-
-        got: dict[int, tuple] = {}
-        for i, res in engine.imap(block_tables, pieces()):
-            got[i] = res
-            if on_done is not None:
-                on_done(i, res)
-        results = [got[i] for i in sorted(got)]
-        L = lengths_box[0]
-        nblocks = int(math.ceil(L / block)) if L else 0
-        for b, w, c in results:
-            if w.size and not s.alphabet.same_symbols(joint):
-                w = remap_words(w, depth, s.alphabet, joint)
-            ids.append(b + base)
-            words.append(w)
-            counts.append(c)
-        names.append(s.name)
-        lengths.append(L)
-        base += nblocks
-    cat = lambda xs, dt: np.concatenate(xs).astype(dt) if xs else np.zeros(0, dt)  # noqa: E731
-    return BatchTables(names, lengths, base, cat(ids, np.int64), cat(words, np.uint64), cat(counts, np.int64))
-
-
-def _length(s: SymbolArray | SymbolStream) -> int:
-    if isinstance(s, SymbolArray):
-        return len(s)
-    return int(sum(len(ch.codes) for ch in s.chunks()))
-
-
-# ============================================================== statistics
-def _xlogx(x: np.ndarray) -> np.ndarray:
-    x = np.asarray(x, dtype=float)
-    out = np.zeros_like(x)
-    pos = x > 0
-    out[pos] = x[pos] * np.log(x[pos])
-    return out
-
-
-def g_statistic(ta: np.ndarray, tb: np.ndarray) -> np.ndarray:
-    """G statistic of homogeneity of two count tables (rows of ``ta``, ``tb`` are replicates).
-
-    ``G = 2 [sum O ln O - sum_b T_b ln T_b - sum_w C_w ln C_w + T ln T]``,
-    the likelihood-ratio statistic of the 2 x W contingency table.
-    """
-    ta = np.atleast_2d(ta)
-    tb = np.atleast_2d(tb)
-    na, nb = ta.sum(1), tb.sum(1)
-    c = ta + tb
-    g = _xlogx(ta).sum(1) + _xlogx(tb).sum(1) - _xlogx(na) - _xlogx(nb) - _xlogx(c).sum(1) + _xlogx(na + nb)
-    return np.maximum(2.0 * g, 0.0)
-
-
-def _context_sums(tab: np.ndarray, context: np.ndarray, n_context: int) -> np.ndarray:
-    """Per-row sums of the columns of each context (``context`` sorted, as for sorted word addresses)."""
-    tab = np.atleast_2d(tab)
-    if context.size == 0:
-        return np.zeros((tab.shape[0], n_context))
-    if np.all(context[1:] >= context[:-1]) and n_context == int(context[-1]) + 1:
-        starts = np.flatnonzero(np.r_[True, context[1:] != context[:-1]])
-        if starts.size == n_context:
-            return np.add.reduceat(tab, starts, axis=1)
-    out = np.zeros((tab.shape[0], n_context))
-    for r in range(tab.shape[0]):
-        out[r] = np.bincount(context, weights=tab[r], minlength=n_context)
-    return out
-
-
-def conditional_g(ta: np.ndarray, tb: np.ndarray, context: np.ndarray, n_context: int) -> np.ndarray:
-    """Sum over contexts of the G statistic of the next-symbol distributions (rows are replicates)."""
-    ta = np.atleast_2d(ta)
-    tb = np.atleast_2d(tb)
-    ca = _context_sums(ta, context, n_context)
-    cb = _context_sums(tb, context, n_context)
-    c = ta + tb
-    cc = ca + cb
-    g = _xlogx(ta).sum(1) + _xlogx(tb).sum(1) - _xlogx(ca).sum(1) - _xlogx(cb).sum(1) - _xlogx(c).sum(1) + _xlogx(cc).sum(1)
-    return np.maximum(2.0 * g, 0.0)
-
-
-class _Figures:
-    """Entropy rate and D_2 of many count tables at once (rows), for the permutation replicates.
-
-    Same estimators as :func:`fractalseq.entropy._estimators.rate_from_counts` (Grassberger,
-    using its ``G(n)`` table) and :func:`fractalseq.entropy._estimators.renyi_rate_from_counts`
-    with ``q = 2`` (unbiased collision sums), vectorised over rows; the tests
-    check both against those functions.
-    """
-
-    def __init__(self, total: np.ndarray, context: np.ndarray, n_context: int, depth: int, ratio: float) -> None:
-        from fractalseq.entropy._estimators import grassberger_g
-
-        self.context, self.n_context, self.depth, self.ratio = context, n_context, depth, ratio
-        self._g = grassberger_g
-
-    def _h(self, tab: np.ndarray) -> np.ndarray:
-        from scipy.special import digamma
-
-        n = np.rint(tab)
-        N = n.sum(1)
-        vals, inv = np.unique(n, return_inverse=True)
-        gv = np.zeros(vals.size)
-        pos = vals >= 1
-        gv[pos] = self._g(vals[pos])
-        s = (n * gv[inv.reshape(n.shape)]).sum(1)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            h = np.where(N > 0, digamma(np.maximum(N, 1)) - s / np.maximum(N, 1), np.nan)
-        return h / math.log(2.0)
-
-    def _log_s2(self, tab: np.ndarray) -> np.ndarray:
-        N = tab.sum(1)
-        num = (tab * np.clip(tab - 1.0, 0.0, None)).sum(1)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            s = num / (N * (N - 1.0))
-            return np.where((N >= 2) & (s > 0), np.log(np.where(s > 0, s, 1.0)), np.nan)
-
-    def rate(self, tab: np.ndarray) -> np.ndarray:
-        tab = np.atleast_2d(tab)
-        h = self._h(tab)
-        if self.depth > 1:
-            h = h - self._h(_context_sums(tab, self.context, self.n_context))
-        return h
-
-    def d2(self, tab: np.ndarray) -> np.ndarray:
-        tab = np.atleast_2d(tab)
-        s1 = self._log_s2(tab)
-        s0 = self._log_s2(_context_sums(tab, self.context, self.n_context)) if self.depth > 1 else 0.0
-        return -(s1 - s0) / math.log(2.0) / math.log2(1.0 / self.ratio)
-
 
 # ================================================================= result
-@dataclass
-class DriftTest:
-    """One figure's test."""
+@dataclass(frozen=True)
+class DriftTest(Result):
+    """One figure's test: the statistic, the two batches' values, the effect size and the p-values."""
 
     figure: str
     statistic_name: str
@@ -420,88 +160,89 @@ class DriftTest:
     p_value: float
     p_adjusted: float = math.nan
 
-    def to_dict(self) -> dict:
-        return {
-            "figure": self.figure,
-            "statistic_name": self.statistic_name,
-            "statistic": self.statistic,
-            "baseline": self.baseline,
-            "new": self.new,
-            "effect": self.effect,
-            "effect_name": self.effect_name,
-            "standardized_effect": self.standardized_effect,
-            "p_value": self.p_value,
-            "p_adjusted": self.p_adjusted,
-        }
 
+@dataclass(frozen=True)
+class DriftResult(Result):
+    """Outcome of :func:`drift_test`; its JSON form (:meth:`to_dict`) is the ``drift --json`` document.
 
-@dataclass
-class DriftResult:
-    """Outcome of :func:`drift_test` (see :meth:`to_dict` for the JSON contract)."""
+    Attributes
+    ----------
+    changed:
+        True when the smallest adjusted p-value is below ``alpha`` (and the test is not inconclusive).
+    inconclusive:
+        True when the design cannot reach an adjusted p-value below ``alpha`` (batches too short).
+    p_value:
+        The smallest adjusted p-value over the figures tested.
+    depth, block:
+        Word length and block length used (automatic choices resolved).
+    tests:
+        One :class:`DriftTest` per figure.
+    top_words, top_contexts:
+        The words and contexts contributing most to the difference.
+    baseline, new:
+        Per batch: inputs, lengths, symbols, blocks and words counted.
+    alphabet:
+        Name and size of the joint alphabet.
+    parameters:
+        The :class:`DriftOptions` of the test.
+    notes:
+        Sentences on limits and skipped figures.
+    verdict, alpha, adjust, method:
+        Derived from the above: the one-line verdict, the level, the adjustment and a sentence naming the method.
+    command, fractalseq, caution:
+        The document's kind, the package version, and the caution every drift report carries.
+    """
 
     changed: bool
+    inconclusive: bool
     p_value: float
-    tests: list[DriftTest]
-    top_words: list[dict]
-    top_contexts: list[dict]
-    baseline: dict
-    new: dict
     depth: int
     block: int
-    options: DriftOptions
+    tests: tuple[DriftTest, ...]
+    top_words: tuple[dict, ...]
+    top_contexts: tuple[dict, ...]
+    baseline: dict
+    new: dict
     alphabet: dict
-    notes: list[str] = field(default_factory=list)
-    inconclusive: bool = False
+    parameters: DriftOptions
+    notes: tuple[str, ...] = ()
+    verdict: str = field(init=False)
+    alpha: float = field(init=False)
+    adjust: str = field(init=False)
+    method: str = field(init=False)
+    command: str = field(default="drift", init=False)
+    fractalseq: str = field(default=__version__, init=False)
+    caution: str = field(default=CAUTION, init=False)
 
-    @property
-    def verdict(self) -> str:
-        """The plain one-line verdict."""
-        a = self.options.alpha
-        if self.inconclusive:
-            return (
-                f"INCONCLUSIVE: the batches are too short to test at level {a:g} "
-                f"(smallest adjusted p = {_fmt_p(self.p_value)}; see the notes)."
-            )
-        if self.changed:
-            return (
-                f"CHANGED: the new batch differs from the baseline "
-                f"(smallest adjusted p = {_fmt_p(self.p_value)} < {a:g})."
-            )
-        return (
-            f"NO CHANGE DETECTED: the new batch is consistent with the baseline "
-            f"(smallest adjusted p = {_fmt_p(self.p_value)} >= {a:g})."
+    def __post_init__(self) -> None:
+        opts = self.parameters
+        method = (
+            f"block permutation test, {opts.permutations} permutations of {self.block}-symbol blocks; "
+            f"{'Holm' if opts.adjust == 'holm' else 'Benjamini-Hochberg'} adjustment across figures"
         )
-
-    def to_dict(self) -> dict:
-        """The documented JSON contract: ``changed``, ``p_value``, ``tests`` and the evidence."""
-        return {
-            "command": "drift",
-            "fractalseq": __version__,
-            "verdict": self.verdict,
-            "changed": bool(self.changed),
-            "inconclusive": bool(self.inconclusive),
-            "p_value": self.p_value,
-            "alpha": self.options.alpha,
-            "adjust": self.options.adjust,
-            "method": (
-                f"block permutation test, {self.options.permutations} permutations of {self.block}-symbol blocks; "
-                f"{'Holm' if self.options.adjust == 'holm' else 'Benjamini-Hochberg'} adjustment across figures"
-            ),
-            "depth": self.depth,
-            "block": self.block,
-            "tests": [t.to_dict() for t in self.tests],
-            "top_words": self.top_words,
-            "top_contexts": self.top_contexts,
-            "baseline": self.baseline,
-            "new": self.new,
-            "alphabet": self.alphabet,
-            "parameters": self.options.to_dict(),
-            "notes": list(self.notes),
-            "caution": CAUTION,
-        }
+        for name, value in (("verdict", _verdict(self.changed, self.inconclusive, self.p_value, opts.alpha)),
+                            ("alpha", opts.alpha), ("adjust", opts.adjust), ("method", method),
+                            ("notes", tuple(self.notes))):
+            object.__setattr__(self, name, value)
 
     def to_json(self) -> str:
+        """The ``drift --json`` document as deterministic JSON text."""
         return to_json(self.to_dict())
+
+
+def _verdict(changed: bool, inconclusive: bool, p: float, alpha: float) -> str:
+    """The plain one-line verdict."""
+    if inconclusive:
+        return (
+            f"INCONCLUSIVE: the batches are too short to test at level {alpha:g} "
+            f"(smallest adjusted p = {_fmt_p(p)}; see the notes)."
+        )
+    if changed:
+        return f"CHANGED: the new batch differs from the baseline (smallest adjusted p = {_fmt_p(p)} < {alpha:g})."
+    return (
+        f"NO CHANGE DETECTED: the new batch is consistent with the baseline "
+        f"(smallest adjusted p = {_fmt_p(p)} >= {alpha:g})."
+    )
 
 
 def _fmt_p(p: float) -> str:
@@ -546,7 +287,7 @@ def drift_test(
     block = options.block
     if depth is None or block is None:
         # the automatic rules need the batch lengths (streams not in memory are read once to count them)
-        shortest = min(sum(_length(s) for s in batch) for batch in (baseline, new))
+        shortest = min(sum(batch_length(s) for s in batch) for batch in (baseline, new))
         if shortest == 0:
             raise InputError("A batch holds no symbols; give inputs with data.")
         if depth is None:
@@ -554,14 +295,17 @@ def drift_test(
         if block is None:
             block = _auto_block(depth, shortest)
     if depth > joint.max_depth:
-        raise ParameterError(f"Depth {depth} exceeds the address width for {joint.size} symbols; use --depth {joint.max_depth} or less.")
-    ta = _tables_for(baseline, depth, block, engine, joint, on_done)
-    tb = _tables_for(new, depth, block, engine, joint, on_done)
+        raise ParameterError(
+            f"depth {depth} exceeds the address width for {joint.size} symbols; use a depth of {joint.max_depth} or less.",
+            parameter="depth",
+        )
+    ta = tables_for(baseline, depth, block, engine, joint, on_done)
+    tb = tables_for(new, depth, block, engine, joint, on_done)
     la, lb = sum(ta.lengths), sum(tb.lengths)
     if la == 0 or lb == 0:
         raise InputError("A batch holds no symbols; give inputs with data.")
     if ta.counts.sum() == 0 or tb.counts.sum() == 0:
-        raise InputError(f"A batch has no word of length {depth}; use a smaller --depth.")
+        raise ParameterError(f"A batch has no word of length {depth}; use a smaller depth.", parameter="depth")
     if depth > 1 and float(joint.size) ** depth * WORDS_PER_CELL > min(la, lb):
         notes.append(f"few words per possible {depth}-word; the word tests have little power. Use a smaller --depth")
     return _permutation_test(ta, tb, depth, block, joint, options, notes)
@@ -644,8 +388,7 @@ def _permutation_test(
         sd = float(np.std(rep[finite])) if finite.sum() > 1 else math.nan
         tests.append(_describe(f, obs, p, sd, obs_a, obs_b, fig, depth, options))
     adj = adjust_pvalues([t.p_value for t in tests], options.adjust)
-    for t, a in zip(tests, adj):
-        t.p_adjusted = float(a)
+    tests = [replace(t, p_adjusted=float(a)) for t, a in zip(tests, adj)]
     p_min = float(min(t.p_adjusted for t in tests))
     # the smallest p-value the design can reach: 1/(R+1), or 1/(number of distinct labellings)
     labellings = math.comb(K, ta.blocks)
@@ -662,8 +405,9 @@ def _permutation_test(
     top_contexts = _top_contexts(words, ctx_words, context, n_ctx, obs_a, obs_b, depth, joint, options.top) if depth > 1 else []
     side = lambda t: {"inputs": t.names, "lengths": t.lengths, "symbols": int(sum(t.lengths)), "blocks": t.blocks, "words": int(t.counts.sum())}  # noqa: E731
     return DriftResult(
-        changed, p_min, tests, top_words, top_contexts, side(ta), side(tb), depth, block, options,
-        {"name": joint.name, "size": joint.size}, notes, inconclusive,
+        changed=changed, inconclusive=inconclusive, p_value=p_min, depth=depth, block=block, tests=tuple(tests),
+        top_words=tuple(top_words), top_contexts=tuple(top_contexts), baseline=side(ta), new=side(tb),
+        alphabet={"name": joint.name, "size": joint.size}, parameters=options, notes=tuple(notes),
     )
 
 
@@ -752,91 +496,3 @@ def _top_contexts(words, ctx_words, context, n_ctx, a, b, depth, joint, limit) -
             }
         )
     return out
-
-
-# ================================================================= reports
-def drift_text(result: "DriftResult") -> str:
-    """Plain-text report: the verdict first, the evidence after."""
-    lines = [result.verdict, ""]
-    lines.append(
-        f"Baseline: {result.baseline['symbols']} symbols in {result.baseline['blocks']} blocks; "
-        f"new: {result.new['symbols']} symbols in {result.new['blocks']} blocks; "
-        f"depth {result.depth}, blocks of {result.block}, {result.options.permutations} permutations, "
-        f"{'Holm' if result.options.adjust == 'holm' else 'Benjamini-Hochberg'} adjustment."
-    )
-    lines.append("")
-    lines.append(f"{'figure':<14}{'statistic':>12}{'baseline':>11}{'new':>11}{'effect':>12}{'p':>9}{'adjusted p':>12}")
-    for t in result.tests:
-        lines.append(
-            f"{t.figure:<14}{t.statistic:>12.4g}{_num_text(t.baseline):>11}{_num_text(t.new):>11}{t.effect:>12.4g}{t.p_value:>9.3g}{t.p_adjusted:>12.3g}"
-        )
-    lines.append("")
-    for t in result.tests:
-        lines.append(f"  {t.figure}: {t.statistic_name}; effect = {t.effect_name}")
-    if result.top_words:
-        lines += ["", f"Words contributing most to the difference (depth {result.depth}):"]
-        for w in result.top_words:
-            lines.append(
-                f"  {w['word']!s:<24} baseline {w['baseline_count']:>9} ({w['baseline_frequency']:.4f})  "
-                f"new {w['new_count']:>9} ({w['new_frequency']:.4f})  {w['direction']}, {100 * w['share_of_statistic']:.1f}% of G"
-            )
-    if result.top_contexts:
-        lines += ["", "Contexts whose next-symbol distribution changed most:"]
-        for c in result.top_contexts:
-            ch = c["largest_change"][0] if c["largest_change"] else None
-            detail = f"  P({ch['next']}) {ch['baseline_probability']:.3f} -> {ch['new_probability']:.3f}" if ch else ""
-            lines.append(f"  {c['context']!s:<24} {100 * c['share_of_statistic']:.1f}% of conditional G{detail}")
-    for n in result.notes:
-        lines.append(f"note: {n}")
-    lines += ["", "Drift reports on logs are no security guarantee."]
-    return "\n".join(lines) + "\n"
-
-
-def _num_text(v) -> str:
-    return "–" if v is None else f"{v:.4g}"
-
-
-def drift_html(result: "DriftResult"):
-    """The drift report as a self-contained HTML page."""
-    from fractalseq.report.html import HtmlReport
-
-    page = HtmlReport("Drift test", result.verdict, caution=CAUTION)
-    page.section("Verdict")
-    page.paragraph(result.verdict)
-    page.key_values(
-        [
-            ("baseline symbols", result.baseline["symbols"]),
-            ("new symbols", result.new["symbols"]),
-            ("depth", result.depth),
-            ("block length", result.block),
-            ("permutations", result.options.permutations),
-            ("adjustment", result.options.adjust),
-        ]
-    )
-    page.section("Tests")
-    page.table(
-        ["figure", "statistic", "baseline", "new", "effect", "p", "adjusted p", "what"],
-        [[t.figure, t.statistic, t.baseline, t.new, t.effect, t.p_value, t.p_adjusted, t.statistic_name] for t in result.tests],
-    )
-    if result.top_words:
-        page.section("Contributing words")
-        page.table(
-            ["word", "baseline count", "new count", "baseline freq", "new freq", "direction", "share of G"],
-            [[w["word"], w["baseline_count"], w["new_count"], w["baseline_frequency"], w["new_frequency"], w["direction"], w["share_of_statistic"]] for w in result.top_words],
-        )
-    if result.notes:
-        page.section("Notes")
-        page.note("", result.notes)
-    return page
-
-
-def write_outputs(result: "DriftResult", folder: str | Path, force: bool = False) -> list[Path]:
-    """Write drift.json, drift.txt and drift.html into ``folder`` (atomically)."""
-    from fractalseq.io._outputs import write_text
-
-    folder = Path(folder)
-    return [
-        write_text(folder / "drift.json", result.to_json(), force=force),
-        write_text(folder / "drift.txt", drift_text(result), force=force),
-        write_text(folder / "drift.html", drift_html(result).render(), force=force),
-    ]

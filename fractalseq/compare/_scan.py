@@ -29,8 +29,6 @@ Genomic output is for research, not for clinical decisions.
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -40,9 +38,11 @@ from numba import njit
 
 from fractalseq import __version__
 from fractalseq.compare._changepoint import Segmentation, segment_series
-from fractalseq.errors import InputError, ParameterError
+from fractalseq.errors import ParameterError
 from fractalseq.io._outputs import to_json
+from fractalseq.results import Result
 from fractalseq.stream import SymbolArray
+from fractalseq.words._kernels import AT_START, _segment_words
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
 FIGURES: tuple[str, ...] = ("entropy_rate", "D0", "surprise")
@@ -68,20 +68,9 @@ def window_counts(codes, starts, depth, bits, window, step, n_windows):
     Returns ``(N, Kw, Kc, Sw, Sc)`` arrays of length ``n_windows``.
     """
     T = codes.shape[0]
-    nseg = starts.shape[0]
-    ub = np.uint64(bits)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1)
-    addr = np.full(T, -1, dtype=np.int64)
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else T
-        w = np.uint64(0)
-        filled = 0
-        for i in range(a, e):
-            w = ((w << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                addr[i - depth + 1] = np.int64(w)
+    words = np.empty(T, dtype=np.uint64)
+    has_word = np.zeros(T, dtype=np.bool_)  # where a word of the segment starts
+    _segment_words(codes, starts, depth, bits, T, AT_START, 0, words, has_word)
     cw = np.zeros(1 << (bits * depth), dtype=np.int64)
     cc = np.zeros(1 << (bits * (depth - 1)), dtype=np.int64)
     N = np.zeros(n_windows, dtype=np.int64)
@@ -101,8 +90,8 @@ def window_counts(codes, starts, depth, bits, window, step, n_windows):
         e0 = s0 + window - depth + 1  # words must end inside the window
         while lo < s0:
             if lo < hi:
-                a = addr[lo]
-                if a >= 0:
+                if has_word[lo]:
+                    a = np.int64(words[lo])
                     c = cw[a]
                     sw += _xlx(c - 1) - _xlx(c)
                     cw[a] = c - 1
@@ -119,8 +108,8 @@ def window_counts(codes, starts, depth, bits, window, step, n_windows):
         if hi < lo:
             hi = lo
         while hi < e0:
-            a = addr[hi]
-            if a >= 0:
+            if has_word[hi]:
+                a = np.int64(words[hi])
                 c = cw[a]
                 sw += _xlx(c + 1) - _xlx(c)
                 cw[a] = c + 1
@@ -167,25 +156,42 @@ def surprise_series(arr: SymbolArray) -> np.ndarray | None:
     return np.asarray(v, dtype=np.float64)
 
 
-@dataclass
-class ScanResult:
-    """Window figures, change points and intervals of one stream.
+#: What each window figure is (the ``figures`` entry of the ``scan --json`` document).
+FIGURE_DEFINITIONS: dict[str, str] = {
+    "entropy_rate": "conditional entropy H_n - H_{n-1} (Miller-Madow), bits/symbol",
+    "D0": "log2(distinct n-words) / (n log2(1/k))",
+    "surprise": "mean online predictor code length, bits/symbol",
+}
+
+
+@dataclass(frozen=True, eq=False)
+class ScanResult(Result):
+    """Window figures, change points and intervals of one stream; :meth:`to_dict` is the ``scan --json`` document.
 
     Attributes
     ----------
     name, length, window, step, depth, ratio:
         What was scanned and how.
     starts:
-        Window start positions.
-    figures:
-        Figure name -> per-window values.
+        Window start positions (in the JSON under ``windows.start``).
+    series:
+        Figure name -> per-window values (in the JSON under ``windows``).
     segmentation:
-        Change points (indices into the windows).
+        Change points (indices into the windows; in the JSON under ``change_points``).
     intervals:
         One dict per segment: ``start``, ``end`` (symbol positions), window
         count, mean figures, and ``low_complexity``.
+    low_complexity:
+        The low-complexity regions: runs of low-complexity segments, edges refined to whole windows.
     records:
         Records (e.g. FASTA records) of the stream, for orientation.
+    notes:
+        Sentences on limits and left-out figures.
+    windows, change_points, figures:
+        Derived for the JSON form: per-window values with their starts, the
+        segmentation with the change positions, and what each figure is (:data:`FIGURE_DEFINITIONS`).
+    command, fractalseq, caution:
+        The document's kind, the package version, and the caution every scan report carries.
     """
 
     name: str
@@ -194,54 +200,44 @@ class ScanResult:
     step: int
     depth: int
     ratio: float
-    starts: np.ndarray
-    figures: dict[str, np.ndarray]
-    segmentation: Segmentation
-    intervals: list[dict]
-    regions: list[dict] = field(default_factory=list)
-    records: list[dict] = field(default_factory=list)
-    notes: list[str] = field(default_factory=list)
+    starts: np.ndarray = field(metadata={"json": False})
+    series: dict[str, np.ndarray] = field(metadata={"json": False})
+    segmentation: Segmentation = field(metadata={"json": False})
+    intervals: tuple[dict, ...]
+    low_complexity: tuple[dict, ...] = ()
+    records: tuple[dict, ...] = ()
+    notes: tuple[str, ...] = ()
+    windows: dict = field(init=False)
+    change_points: dict = field(init=False)
+    figures: dict = field(init=False)
+    command: str = field(default="scan", init=False)
+    fractalseq: str = field(default=__version__, init=False)
+    caution: str = field(default=CAUTION, init=False)
+
+    def __post_init__(self) -> None:
+        derived = {
+            "windows": {"start": self.starts, **self.series},
+            "change_points": {**self.segmentation.to_dict(), "positions": self.change_positions()},
+            "figures": dict(FIGURE_DEFINITIONS),
+            "intervals": tuple(self.intervals),
+            "low_complexity": tuple(self.low_complexity),
+            "records": tuple(self.records),
+            "notes": tuple(self.notes),
+        }
+        for name, value in derived.items():
+            object.__setattr__(self, name, value)
 
     @property
     def centers(self) -> np.ndarray:
+        """Window centres (symbol positions)."""
         return self.starts + self.window / 2.0
 
     def change_positions(self) -> list[float]:
         """Symbol positions of the change points (between two window centres)."""
         return [float(self.starts[b]) + self.window / 2.0 - self.step / 2.0 for b in self.segmentation.breaks]
 
-    def to_dict(self) -> dict:
-        """The documented JSON contract (see the README section on ``scan --json``)."""
-        return {
-            "command": "scan",
-            "fractalseq": __version__,
-            "caution": CAUTION,
-            "name": self.name,
-            "length": self.length,
-            "window": self.window,
-            "step": self.step,
-            "depth": self.depth,
-            "ratio": self.ratio,
-            "figures": {
-                "entropy_rate": "conditional entropy H_n - H_{n-1} (Miller-Madow), bits/symbol",
-                "D0": "log2(distinct n-words) / (n log2(1/k))",
-                "surprise": "mean online predictor code length, bits/symbol",
-            },
-            "windows": {
-                "start": self.starts.tolist(),
-                **{k: v.tolist() for k, v in self.figures.items()},
-            },
-            "change_points": {
-                **self.segmentation.to_dict(),
-                "positions": self.change_positions(),
-            },
-            "intervals": self.intervals,
-            "low_complexity": self.regions,
-            "records": self.records,
-            "notes": list(self.notes),
-        }
-
     def to_json(self) -> str:
+        """The ``scan --json`` document as deterministic JSON text."""
         return to_json(self.to_dict())
 
 
@@ -250,7 +246,7 @@ def window_figures(arr: SymbolArray, window: int, step: int, depth: int, ratio: 
     T = len(arr)
     bits = arr.alphabet.bits
     if bits * depth > MAX_TABLE_BITS:
-        raise ParameterError(f"Depth {depth} needs a table of 2**{bits * depth} cells; use a smaller --depth.")
+        raise ParameterError(f"depth {depth} needs a table of 2**{bits * depth} cells; use a smaller depth.", parameter="depth")
     n_windows = (T - window) // step + 1
     starts = np.arange(n_windows, dtype=np.int64) * step
     N, Kw, Kc, Sw, Sc = window_counts(arr.codes, arr.starts, int(depth), int(bits), int(window), int(step), int(n_windows))
@@ -304,18 +300,18 @@ def scan_stream(
     """
     T = len(arr)
     if not isinstance(window, (int, np.integer)) or window < 2:
-        raise ParameterError(f"The window must be a whole number of at least 2 symbols, not {window!r}.")
+        raise ParameterError(f"The window must be a whole number of at least 2 symbols, not {window!r}.", parameter="window")
     step = int(step) if step is not None else max(1, int(window) // 4)
     if step < 1 or step > window:
-        raise ParameterError(f"The step must lie between 1 and the window ({window}); got {step}.")
+        raise ParameterError(f"The step must lie between 1 and the window ({window}); got {step}.", parameter="step")
     if not 0.0 < ratio < 1.0:
-        raise ParameterError(f"The ratio k must lie strictly between 0 and 1, not {ratio}.")
+        raise ParameterError(f"The ratio k must lie strictly between 0 and 1, not {ratio}.", parameter="ratio")
     if T < window:
-        raise InputError(f"{arr.name} has {T} symbols, fewer than one window of {window}; use a smaller --window.")
+        raise ParameterError(f"{arr.name} has {T} symbols, fewer than one window of {window}; use a smaller window.", parameter="window")
     if depth is None:
         depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth)
     if depth < 1 or depth >= window:
-        raise ParameterError(f"The depth must lie between 1 and the window length; got {depth}.")
+        raise ParameterError(f"The depth must lie between 1 and the window length; got {depth}.", parameter="depth")
     starts, figures, notes = window_figures(arr, int(window), step, int(depth), ratio, seed)
     if len(starts) < 4:
         notes.append("fewer than 4 windows: no change points can be found; use a smaller --window or --step")
@@ -324,7 +320,11 @@ def scan_stream(
     intervals = _intervals(seg, starts, figures, window, step, T)
     regions = _low_regions(seg, intervals, starts, figures, window, T)
     records = [r.to_dict() for r in (arr.report.records if arr.report is not None else [])][:1000]
-    return ScanResult(arr.name, T, int(window), step, int(depth), ratio, starts, figures, seg, intervals, regions, records, notes)
+    return ScanResult(
+        name=arr.name, length=T, window=int(window), step=step, depth=int(depth), ratio=ratio, starts=starts,
+        series=figures, segmentation=seg, intervals=tuple(intervals), low_complexity=tuple(regions),
+        records=tuple(records), notes=tuple(notes),
+    )
 
 
 def _intervals(seg: Segmentation, starts: np.ndarray, figures: dict[str, np.ndarray], window: int, step: int, T: int) -> list[dict]:
@@ -400,68 +400,3 @@ def _low_regions(seg: Segmentation, intervals: list[dict], starts: np.ndarray, f
         out.append(entry)
         i = j + 1
     return out
-
-
-def scan_png(result: ScanResult) -> bytes:
-    """The figures along the position axis, change points dashed, low-complexity intervals shaded."""
-    from fractalseq.report.figures import PALETTE, fig_to_png, figure, short, style
-
-    names = list(result.figures)
-    units = {"entropy_rate": "bits/symbol", "D0": "dimension", "surprise": "bits/symbol"}
-    with style():
-        fig, axes = figure(8.4, 2.1 * len(names) + 0.8, nrows=len(names))
-        axes = np.atleast_1d(axes)
-        x = result.centers
-        for ax, (i, name) in zip(axes, enumerate(names)):
-            ax.plot(x, result.figures[name], color=PALETTE[i % len(PALETTE)], lw=1.2)
-            for iv in result.regions:
-                ax.axvspan(iv["start"], iv["end"], color=PALETTE[1], alpha=0.18, lw=0)
-            for p in result.change_positions():
-                ax.axvline(p, color="#555555", ls="--", lw=0.9)
-            ax.set_ylabel(f"{name}\n({units.get(name, '')})", fontsize=9)
-        axes[-1].set_xlabel("position (symbols)")
-        axes[0].set_title(f"Scan of {short(result.name, 40)}: window {result.window}, step {result.step}, depth {result.depth}")
-        return fig_to_png(fig)
-
-
-def html_report(result: ScanResult):
-    """The scan as an HTML page: verdict-style summary, intervals table, figure."""
-    from fractalseq.report.html import HtmlReport
-
-    page = HtmlReport(f"Scan of {result.name}", f"{result.length} symbols; window {result.window}, step {result.step}, depth {result.depth}", caution=CAUTION)
-    low = result.regions
-    page.section("Intervals")
-    page.paragraph(
-        f"{len(result.segmentation.breaks)} change points; {len(low)} low-complexity interval(s). "
-        f"Method: {result.segmentation.method}. Penalty: {result.segmentation.penalty_rule}."
-    )
-    header = ["start", "end", "windows"] + list(result.figures) + ["low complexity"]
-    rows = [[iv["start"], iv["end"], iv["windows"]] + [iv.get(k) for k in result.figures] + ["yes" if iv["low_complexity"] else "no"] for iv in result.intervals]
-    page.table(header, rows, caption="Segments between change points")
-    if low:
-        page.table(["start", "end"] + list(result.figures), [[iv["start"], iv["end"]] + [iv.get(k) for k in result.figures] for iv in low], caption="Low-complexity regions (edges at half height)")
-    page.section("Figures along the stream")
-    page.figure(scan_png(result), "Window figures against position; dashed: change points; shaded: low-complexity intervals.", "Scan plot")
-    if result.notes:
-        page.section("Notes")
-        page.note("", result.notes)
-    return page
-
-
-def write_outputs(result: ScanResult, folder: str | Path, force: bool = False) -> list[Path]:
-    """Write scan.csv (one row per window), scan.png, scan.html and scan.json into ``folder`` (atomically)."""
-    from fractalseq.io._outputs import write_bytes, write_csv, write_text
-
-    folder = Path(folder)
-    names = list(result.figures)
-    return [
-        write_csv(
-            folder / "scan.csv",
-            ["start", "end"] + names,
-            [[int(s), int(s) + result.window] + [result.figures[k][i] for k in names] for i, s in enumerate(result.starts)],
-            force=force,
-        ),
-        write_bytes(folder / "scan.png", scan_png(result), force=force),
-        write_text(folder / "scan.html", html_report(result).render(), force=force),
-        write_text(folder / "scan.json", result.to_json(), force=force),
-    ]

@@ -46,10 +46,10 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from numba import njit
 from scipy.special import digamma
 
 from fractalseq.errors import InputError, ParameterError
+from fractalseq.words._kernels import segment_word_addresses
 
 if TYPE_CHECKING:  # for annotations only: the bootstrap module is imported where it is used
     from fractalseq.resampling._bootstrap import BlockLength
@@ -668,49 +668,15 @@ def h_topological_growth(wc, depth: int | None = None) -> EntropyEstimate:
 _DENSE_DISTINCT = 1 << 28
 
 
-@njit(cache=True)
-def _distinct_words(codes, starts, n, A, dense, out):
-    """Number of distinct n-words (base-A addresses) not spanning a segment start.
-
-    With ``dense`` the ``A**n`` possible words are marked in a byte table and
-    their number returned; otherwise the words are written to ``out`` and
-    ``-(k + 1)`` returned for the caller to count the distinct ones among
-    ``out[:k]`` (numpy's sort, not numba's, which takes seconds to compile).
-    """
-    L = codes.shape[0]
-    space = A**n
-    seen = np.zeros(space if dense else 0, np.uint8)
-    k = 0
-    distinct = 0
-    seg = 0
-    nseg = starts.shape[0]
-    pos = 0
-    while pos < L:
-        end = starts[seg + 1] if seg + 1 < nseg else L
-        a = 0
-        run = 0
-        for i in range(pos, end):
-            a = (a * A + codes[i]) % space
-            run += 1
-            if run >= n:
-                if dense:
-                    if seen[a] == 0:
-                        seen[a] = 1
-                        distinct += 1
-                else:
-                    out[k] = a
-                    k += 1
-        pos = end
-        seg += 1
-    return distinct if dense else -k - 1  # sparse: the caller counts the distinct words of out[:k]
-
-
 def distinct_words(codes: np.ndarray, starts: np.ndarray, n: int, A: int) -> int:
-    """Number of distinct n-words of base-A codes not spanning a segment start (a byte table, or a sort)."""
-    dense = A**n <= _DENSE_DISTINCT
-    out = np.empty(0 if dense else max(codes.size - n + 1, 0), np.int64)
-    r = int(_distinct_words(codes, starts, n, A, dense, out))
-    return r if r >= 0 else int(np.unique(out[: -r - 1]).size)
+    """Number of distinct n-words of codes ``0..A-1`` not spanning a segment start (a byte table, or a sort)."""
+    bits = max(1, (int(A) - 1).bit_length())
+    words, _ = segment_word_addresses(codes, starts, n, bits)
+    if bits * n < 63 and (1 << (bits * n)) <= _DENSE_DISTINCT:
+        seen = np.zeros(1 << (bits * n), np.bool_)
+        seen[words] = True
+        return int(np.count_nonzero(seen))
+    return int(np.unique(words).size)
 
 
 def h_topological_koslicki(data, alphabet_size: int | None = None) -> EntropyEstimate:

@@ -51,19 +51,24 @@ _RC = {
 }
 
 
-def _mpl():
-    import matplotlib
+def new_figure(width: float, height: float, layout: str | None = "constrained", dpi: float | None = None):
+    """A new :class:`matplotlib.figure.Figure` drawn by its own Agg canvas.
 
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
+    No figure manager and no global backend switch: the figure is registered nowhere,
+    so nothing needs closing and the caller's matplotlib state is untouched.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
 
-    return matplotlib, plt
+    fig = Figure(figsize=(width, height), layout=layout, dpi=dpi)
+    FigureCanvasAgg(fig)
+    return fig
 
 
 @contextmanager
 def style() -> Iterator[None]:
     """Context in which matplotlib uses the house style."""
-    matplotlib, _ = _mpl()
+    import matplotlib
     from cycler import cycler
 
     rc = dict(_RC)
@@ -73,19 +78,15 @@ def style() -> Iterator[None]:
 
 
 def figure(width: float = 7.2, height: float = 4.4, ncols: int = 1, nrows: int = 1):
-    """A new figure and axes in the house style (call inside :func:`style`)."""
-    _, plt = _mpl()
-    return plt.subplots(nrows, ncols, figsize=(width, height), squeeze=True, layout="constrained")
+    """A new figure and its axes in the house style (call inside :func:`style`); see :func:`new_figure`."""
+    fig = new_figure(width, height)
+    return fig, fig.subplots(nrows, ncols, squeeze=True)
 
 
 def fig_to_png(fig, dpi: int = 110) -> bytes:
-    """PNG bytes of a figure (closes it); no software/version metadata, so bytes are stable."""
-    _, plt = _mpl()
+    """PNG bytes of a figure; no software/version metadata, so bytes are stable."""
     buf = io.BytesIO()
-    try:
-        fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
-    finally:
-        plt.close(fig)
+    fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
     return buf.getvalue()
 
 
@@ -113,7 +114,6 @@ def title_for(kind: str, source: str, limit: int = 60) -> str:
 
 def density_cmap():
     """The sequential colour map of density images (paper white → teal → ink)."""
-    matplotlib, _ = _mpl()
     from matplotlib.colors import LinearSegmentedColormap
 
     return LinearSegmentedColormap.from_list(
@@ -142,13 +142,12 @@ def encoding_png(
     labels, corners:
         Symbol labels and their corner coordinates (first two used).
     """
-    _, plt = _mpl()
     from matplotlib.colors import LogNorm
 
     img = np.asarray(image, dtype=float)
     with style():
-        _, plt = _mpl()
-        fig, ax = plt.subplots(figsize=(6.6, 5.6), layout="compressed")
+        fig = new_figure(6.6, 5.6, layout="compressed")
+        ax = fig.subplots()
         shown = np.where(img > 0, img, np.nan)
         vmax = max(float(np.nanmax(shown)) if np.isfinite(shown).any() else 1.0, 1.0)
         cmap = density_cmap().with_extremes(bad="#ffffff")
@@ -206,13 +205,12 @@ def scaling_png(source: str, series: Sequence[ScalingSeries], ylabel: str, unit_
     Points inside the fitted range are filled and the range is shaded; points
     outside it are open.  The thick line has the fitted slope.
     """
-    _, plt = _mpl()
     k = max(len(series), 1)
     ncols = min(k, 3)
     nrows = -(-k // ncols)
     with style():
-        fig, axes = plt.subplots(nrows, ncols, figsize=(3.6 * ncols + 0.6, 3.3 * nrows + 0.5), squeeze=False,
-                                 layout="constrained")
+        fig = new_figure(3.6 * ncols + 0.6, 3.3 * nrows + 0.5)
+        axes = fig.subplots(nrows, ncols, squeeze=False)
         for i, ax in enumerate(axes.ravel()):
             if i >= len(series):
                 ax.set_visible(False)

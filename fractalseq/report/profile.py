@@ -14,6 +14,12 @@ Folder of one source (:func:`write_profile_report`)::
 
 JSON and CSV bytes depend only on the input, the parameters and the seed;
 PNG bytes are written without software metadata so they are stable too.
+
+The report sits below the jobs that compute a profile: the JSON document and
+the caution text are handed in by the caller
+(:func:`fractalseq.jobs._profile.contract`, ``CAUTION_GENOMIC`` /
+``CAUTION_GENERAL``), and a profile result is read only through its
+attributes.
 """
 
 from __future__ import annotations
@@ -23,14 +29,12 @@ import re
 from pathlib import Path
 from typing import TYPE_CHECKING, Sequence
 
-
 from fractalseq.encoding import corner_layout
 from fractalseq.io._outputs import prepare_folder, write_bytes, write_csv, write_json
-from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, contract
 from fractalseq.report import figures
 from fractalseq.report.html import HtmlReport, Link
 
-if TYPE_CHECKING:  # the report formats a profile; it does not import the job that makes one
+if TYPE_CHECKING:  # for annotations only: the report never imports the jobs layer at run time
     from fractalseq.jobs._profile import ProfileResult
 
 FIGURES = ("encoding.png", "scaling.png", "spectrum.png", "falpha.png", "entropies.png")
@@ -46,9 +50,9 @@ RATE_LABELS = {
 }
 
 
-def caution_for(result: ProfileResult) -> str:
-    """The caution shown on the page: genomic wording for sequence alphabets."""
-    return CAUTION_GENOMIC if result.alphabet.name in GENOMIC_ALPHABETS else CAUTION_GENERAL
+def is_genomic(results: Sequence[ProfileResult]) -> bool:
+    """Whether any of the profiles reads a sequence alphabet (the page then carries the genomic caution)."""
+    return any(r.alphabet.name in GENOMIC_ALPHABETS for r in results)
 
 
 def safe_name(name: str, taken: set[str] | None = None) -> str:
@@ -193,14 +197,14 @@ def _csv_header(header: list[str]) -> list[str]:
 
 
 # -------------------------------------------------------------------- page
-def profile_page(result: ProfileResult, pngs: dict[str, bytes], files: Sequence[str] = ()) -> HtmlReport:
-    """The HTML page of one profile."""
+def profile_page(result: ProfileResult, pngs: dict[str, bytes], caution: str, files: Sequence[str] = ()) -> HtmlReport:
+    """The HTML page of one profile, with ``caution`` shown at its top."""
     a = result.alphabet
     page = HtmlReport(
         f"Complexity profile of {result.name}",
         subtitle=f"{result.length} symbols in {result.segments} segment(s) · alphabet {a.name} ({a.size} symbols) · "
         f"contraction ratio k = {result.ratio:g}",
-        caution=caution_for(result),
+        caution=caution,
     )
     page.section("Summary")
     rates = result.rate_dict()
@@ -326,12 +330,24 @@ def profile_page(result: ProfileResult, pngs: dict[str, bytes], files: Sequence[
 
 
 # ------------------------------------------------------------------ writers
-def write_profile_report(result: ProfileResult, folder: str | Path, force: bool = False,
-                         parameters: dict | None = None) -> list[Path]:
-    """Write the folder of one profile (see the module docstring); returns the paths written."""
+def write_profile_report(result: ProfileResult, folder: str | Path, document: dict, caution: str,
+                         force: bool = False) -> list[Path]:
+    """Write the folder of one profile (see the module docstring); returns the paths written.
+
+    Parameters
+    ----------
+    result:
+        The profile (:class:`fractalseq.jobs._profile.ProfileResult`).
+    folder:
+        Folder to create (``force`` to reuse an existing one).
+    document:
+        The JSON document written as ``profile.json`` (the profile contract of this one source).
+    caution:
+        The caution shown at the top of the page.
+    """
     folder = prepare_folder(folder, force)
     written: list[Path] = []
-    written.append(write_json(folder / "profile.json", contract([result], parameters), force=force))
+    written.append(write_json(folder / "profile.json", document, force=force))
     tables = {
         "dimensions.csv": dimension_table(result),
         "spectrum.csv": spectrum_table(result),
@@ -346,21 +362,23 @@ def write_profile_report(result: ProfileResult, folder: str | Path, force: bool 
     for fname, data in pngs.items():
         written.append(write_bytes(folder / fname, data, force=force))
     files = ["profile.json", *tables.keys(), *pngs.keys()]
-    page = profile_page(result, pngs, files)
+    page = profile_page(result, pngs, caution, files)
     written.append(page.write(folder / "index.html", force=force))
     return written
 
 
 def write_profile_index(results: Sequence[ProfileResult], subfolders: Sequence[str], folder: str | Path,
-                        force: bool = False, parameters: dict | None = None) -> list[Path]:
-    """Top-level ``index.html`` and ``profile.json`` over several profiles (each in its subfolder)."""
+                        document: dict, caution: str, force: bool = False) -> list[Path]:
+    """Top-level ``index.html`` and ``profile.json`` over several profiles (each in its subfolder).
+
+    ``document`` is the JSON document of all the profiles, ``caution`` the text shown at the top of the page.
+    """
     folder = Path(folder)
-    written = [write_json(folder / "profile.json", contract(list(results), parameters), force=force)]
-    genomic = any(r.alphabet.name in GENOMIC_ALPHABETS for r in results)
+    written = [write_json(folder / "profile.json", document, force=force)]
     page = HtmlReport(
         "Complexity profiles",
         subtitle=f"{len(results)} source(s)",
-        caution=CAUTION_GENOMIC if genomic else CAUTION_GENERAL,
+        caution=caution,
     )
     page.section("Sources")
     qs = sorted({q for r in results for q in r.qs})

@@ -56,6 +56,7 @@ from fractalseq.resampling import _replicates as rp
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.resampling._replicates import CountSpectrum
 from fractalseq.stream import SymbolArray, SymbolStream
+from fractalseq.words._kernels import AT_START, _segment_words
 
 SCHEMES = ("nonoverlapping", "moving", "stationary")
 INTERVALS = ("percentile", "basic", "bc", "centered")
@@ -69,21 +70,7 @@ MIN_BLOCKS = 10
 @njit(cache=True)
 def _word_addresses(codes, starts, depth, bits, out, valid):
     """Address of the ``depth``-word starting at each position, if it fits inside its segment."""
-    n = codes.shape[0]
-    nseg = starts.shape[0]
-    ub = np.uint64(bits)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else n
-        addr = np.uint64(0)
-        filled = 0
-        for i in range(a, e):
-            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                out[i - depth + 1] = addr
-                valid[i - depth + 1] = True
+    _segment_words(codes, starts, depth, bits, codes.shape[0], AT_START, 0, out, valid)
 
 
 @njit(cache=True)

@@ -22,6 +22,128 @@ from numba.extending import intrinsic
 
 # ----------------------------------------------------------------- addresses
 
+#: Layouts of :func:`_segment_words`: the ``j``-th word at ``keys[j]``, its start at ``where[j]``.
+COMPACT = 0
+#: Like :data:`COMPACT`, but words whose first symbol has its top bit clear first (``keys[:n_low]``),
+#: the others from ``keys[n_low]`` on; both groups in order of their starts.
+SPLIT = 1
+#: The word starting at ``p`` at ``keys[p]``; ``where[p] = 1`` marks that a word starts there.
+AT_START = 2
+
+
+@njit(cache=True, nogil=True)
+def _segment_words(codes, starts, depth, bits, limit, layout, n_low, keys, where):
+    """Rolling addresses of every ``depth``-word that lies inside one segment and starts before ``limit``.
+
+    The one loop that turns a stream with segment breaks into word addresses: the
+    address is rolled symbol by symbol (``addr = (addr << bits | code) & mask``,
+    the mask guarding 64-bit words), restarts at every segment start, and a word
+    is emitted once ``depth`` symbols of its segment have been read.  Words are
+    emitted in order of their start ``p``.
+
+    Parameters
+    ----------
+    codes : integer array, each code below ``2**bits``
+    starts : int64 array, sorted segment starts, 0 first
+    depth, bits : word length and bits per symbol (``bits * depth <= 64``)
+    limit : only words starting at ``p < limit`` are emitted
+    layout : :data:`COMPACT`, :data:`SPLIT` or :data:`AT_START` (where each word goes)
+    n_low : with :data:`SPLIT`, the number of low words (:func:`low_half_words`); else unused
+    keys : output addresses (uint32 or uint64; ``len(codes)`` long for :data:`AT_START`)
+    where : int64 start positions (:data:`COMPACT`, :data:`SPLIT`) or bool start marks
+        (:data:`AT_START`); an empty array writes none
+
+    Returns
+    -------
+    int : the number of words emitted
+    """
+    n = codes.shape[0]
+    nseg = starts.shape[0]
+    ub = np.uint64(bits)
+    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
+    top = np.uint64(bits * depth - 1)
+    marks = where.shape[0] > 0
+    stop = limit + depth - 1  # the last symbol of a word starting before limit comes before stop
+    lo = 0
+    hi = n_low
+    k = 0
+    for s in range(nseg):
+        a = starts[s]
+        if a >= limit:
+            break
+        e = starts[s + 1] if s + 1 < nseg else n
+        if e > stop:
+            e = stop
+        addr = np.uint64(0)
+        filled = 0
+        for i in range(a, e):
+            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
+            filled += 1
+            if filled >= depth:
+                p = i - depth + 1
+                if layout == AT_START:
+                    slot = p
+                elif layout == SPLIT:  # branch-free: both cursors advance by 0 or 1
+                    up = np.int64((addr >> top) & np.uint64(1))
+                    slot = hi if up else lo
+                    hi += up
+                    lo += 1 - up
+                else:
+                    slot = k
+                keys[slot] = addr
+                if marks:
+                    where[slot] = 1 if layout == AT_START else p
+                k += 1
+    return k
+
+
+def segment_word_addresses(codes, starts, depth: int, bits: int, limit: int | None = None):
+    """Addresses and start positions of every ``depth``-word inside one segment of a stream.
+
+    Parameters
+    ----------
+    codes:
+        1-D array of non-negative integer codes, each below ``2**bits``.
+    starts:
+        Segment starts (any order; 0 is added, starts outside the stream are dropped).
+        No word spans a segment start.
+    depth:
+        Word length n (at least 1).
+    bits:
+        Bits per symbol b; words are packed first symbol most significant (``b * n <= 64``).
+    limit:
+        Only words starting before ``limit`` (default: all).
+
+    Returns
+    -------
+    addresses : uint64 array, one per word, in order of their starts
+    positions : int64 array, the start of each word
+    """
+    from fractalseq.errors import ParameterError
+    from fractalseq.stream import normalise_starts
+
+    codes = np.asarray(codes)
+    if codes.ndim != 1 or (codes.size and not np.issubdtype(codes.dtype, np.integer)):
+        raise ParameterError("codes must be a 1-D array of whole numbers.", parameter="codes")
+    if not isinstance(bits, (int, np.integer)) or not 1 <= bits <= 32:
+        raise ParameterError(f"bits must be a whole number from 1 to 32, not {bits!r}.", parameter="bits")
+    if not isinstance(depth, (int, np.integer)) or depth < 1 or bits * depth > 64:
+        raise ParameterError(
+            f"depth must be a whole number from 1 to {64 // int(bits)} for {bits} bits per symbol, not {depth!r}.",
+            parameter="depth",
+        )
+    if codes.size and (int(codes.min()) < 0 or int(codes.max()) >> int(bits)):
+        raise ParameterError(f"every code must lie in 0..{(1 << int(bits)) - 1} for {bits} bits per symbol.", parameter="codes")
+    n = int(codes.size)
+    limit = n if limit is None else max(0, min(int(limit), n))
+    # the codes of alphabets (uint8 up to 256 symbols, else uint32): one compiled kernel serves every caller
+    codes = np.ascontiguousarray(codes, dtype=np.uint8 if bits <= 8 else np.uint32)
+    st = normalise_starts(np.asarray(starts, dtype=np.int64), n)
+    keys = np.empty(n, dtype=np.uint64)
+    where = np.empty(n, dtype=np.int64)
+    k = _segment_words(codes, st, int(depth), int(bits), limit, COMPACT, 0, keys, where) if n else 0
+    return keys[:k].copy(), where[:k].copy()
+
 
 @njit(cache=True)
 def full_words(codes, starts, depth, bits, closed_last, key_template, write_keys=True):
@@ -63,23 +185,15 @@ def full_words(codes, starts, depth, bits, closed_last, key_template, write_keys
     keys = np.empty(nfull, dtype=key_template.dtype)
     tail_len = np.empty(ntail, dtype=np.uint8)
     tail_addr = np.empty(ntail, dtype=np.uint64)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
+    if write_keys:
+        _segment_words(codes, starts, depth, bits, n, COMPACT, 0, keys, np.empty(0, np.int64))
     ub = np.uint64(bits)
-    k = 0
     t = 0
     carry_from = n
     for s in range(nseg):
         a = starts[s]
         e = starts[s + 1] if s + 1 < nseg else n
         closed = (s + 1 < nseg) or closed_last
-        addr = np.uint64(0)
-        filled = 0
-        for i in range(a, e if write_keys else a):
-            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                keys[k] = addr
-                k += 1
         if closed:
             # tails: positions i in [max(a, e-depth+1), e) give words of length e-i
             lo = max(a, e - depth + 1)
@@ -117,29 +231,10 @@ def full_words_split(codes, starts, depth, bits, n_low, keys):
     first (``keys[:n_low]``, see :func:`low_half_words`), the others after.
 
     Every word below ``n_low`` sorts before every word above it, so the two
-    halves can be sorted and reduced independently.  The target slot is
-    chosen without a branch (both cursors advance by 0 or 1).
+    halves can be sorted and reduced independently (:data:`SPLIT` layout of
+    :func:`_segment_words`).
     """
-    n = codes.shape[0]
-    nseg = starts.shape[0]
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
-    ub = np.uint64(bits)
-    top = np.uint64(bits * depth - 1)
-    lo = 0
-    hi = n_low
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else n
-        addr = np.uint64(0)
-        filled = 0
-        for i in range(a, e):
-            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                up = np.int64((addr >> top) & np.uint64(1))
-                keys[hi if up else lo] = addr
-                hi += up
-                lo += 1 - up
+    _segment_words(codes, starts, depth, bits, codes.shape[0], SPLIT, n_low, keys, np.empty(0, np.int64))
 
 
 # -------------------------------------------------------------- runs
