@@ -32,6 +32,8 @@ logs are no security guarantee.
 
 from __future__ import annotations
 
+# first, before any kernel imports numba: a read-only install still caches its kernels (see the module)
+from fractalseq import _numba_cache  # noqa: F401
 import importlib
 from typing import Any
 

@@ -48,7 +48,7 @@ from fractalseq import alphabet as _alpha
 from fractalseq.alphabet import Alphabet, check_policy
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.sources import logs, numeric, sequence, sniff, text
-from fractalseq.sources.rawio import Origin, head, locate
+from fractalseq.sources.rawio import Origin, head, locate, spool
 from fractalseq.sources.sniff import FORMATS
 from fractalseq.sources.templates import line_template
 from fractalseq.stream import DEFAULT_CHUNK, Chunk, ReadReport, SymbolStream
@@ -182,7 +182,7 @@ def open_source(
     origin, fmt, block = _prepare(path, fmt, a, allow_binary)
     learn_block = max(chunk_size, _LEARN_BLOCK)
     stream_name = name or origin.name
-    base_notes = list(origin.notes)
+    base_notes = origin.notes  # read when a pass begins: includes the note of a pipe copied for a learning pass
 
     def begin(report: ReadReport) -> None:
         report.notes.extend(base_notes)
@@ -191,6 +191,7 @@ def open_source(
 
     if fmt in ("fasta", "fastq"):
         if a is None:
+            spool(origin)  # a pipe is copied for the learning pass
             a = sequence.learn(origin, fmt, learn_block)
         elif not (a.single_characters and all(ord(s) < 256 for s in a.symbols)):
             raise ParameterError(
@@ -202,6 +203,7 @@ def open_source(
 
     if fmt == "text":
         if a is None:
+            spool(origin)
             a = text.learn_chars(origin, learn_block)
         if _byte_path(a):
             return _byte_stream(origin, "plain", a, policy, chunk_size, stream_name, begin)
@@ -222,6 +224,7 @@ def open_source(
     if fmt == "tokens":
         ta = _token_alphabet(alphabet)
         if ta is None:
+            spool(origin)
             ta = text.learn_tokens(origin, learn_block)
         tok_alpha = ta
 
@@ -234,6 +237,7 @@ def open_source(
 
     if fmt == "log":
         # a template alphabet given in advance (a model's) is kept; otherwise the templates are learned
+        spool(origin)  # both read a first pass
         table = logs.fixed(origin, alphabet, learn_block) if isinstance(alphabet, Alphabet) else logs.learn(origin, learn_block)
 
         def log_factory(report: ReadReport) -> Iterator[Chunk]:
@@ -245,6 +249,8 @@ def open_source(
     if fmt == "numeric":
         numeric.check_parameters(bins, thresholds, ordinal)
         layout = _numeric_layout(origin, block, column)
+        if not ordinal and thresholds is None:
+            spool(origin)  # quantile bins need a first pass
         plan, info = numeric.plan(origin, layout, bins, thresholds, ordinal, learn_block)
 
         def numeric_factory(report: ReadReport) -> Iterator[Chunk]:
@@ -281,6 +287,7 @@ def shared_quantile_edges(paths: Sequence[str | os.PathLike], bins: int = 4, col
                 parameter="thresholds",
             )
         origin, _, block = _prepare(path, "numeric", None, False)
+        spool(origin)  # the files are read again with these edges
         layout = _numeric_layout(origin, block, column)
         parts.extend(v[np.isfinite(v)] for v in numeric.value_blocks(origin, layout, _LEARN_BLOCK))
     values = np.concatenate(parts) if parts else np.zeros(0)

@@ -9,6 +9,15 @@ is read.
 Standard input (path ``-``) is read once, whole, into memory the first time it
 is opened and then served from memory for every later pass (a reader that
 learns its alphabet reads its input twice; a pipe can only be read once).
+
+Any other input that is not a regular file (a named pipe, ``<(command)``,
+``/dev/stdin``, a character device) is opened exactly once (:class:`Pipe`):
+the bytes read to recognise it are kept and replayed to the reader, which then
+continues from the open pipe.  A reader that needs a second pass (learned
+alphabets, log templates, quantile bins) calls :func:`spool` first, which copies
+the pipe to a temporary file (removed when the input is no longer used) and
+notes it in the read report; reading a pipe a second time without it is refused
+with one sentence.
 """
 
 from __future__ import annotations
@@ -18,7 +27,10 @@ import gzip
 import io
 import lzma
 import os
+import stat
 import sys
+import tempfile
+import weakref
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -58,6 +70,9 @@ class Origin:
         The whole raw (possibly compressed) content of standard input.
     compression:
         ``None``, ``"gzip"``, ``"bzip2"``, ``"xz"`` or ``"zstd"``.
+    pipe:
+        For an input that is not a regular file: the one open handle on it
+        (see :class:`Pipe`); ``path`` is then only its name.
     """
 
     name: str
@@ -65,6 +80,197 @@ class Origin:
     data: bytes | None = None
     compression: str | None = None
     notes: list[str] = field(default_factory=list)
+    pipe: "Pipe | None" = None
+
+
+#: Pipes open in this process, by (device, inode): a second open of the same pipe (a format check, then the
+#: reading; shared bin edges, then the reading) shares its state.  An entry keeps its pipe open, so the
+#: inode cannot be reused by another pipe while listed; it is dropped when a full pass reaches the end
+#: without a copy (a named pipe opened again later then waits for its next writer, as usual).
+_PIPES: dict[tuple[int, int], "Pipe"] = {}
+_SPOOL_BLOCK = 1 << 20
+
+
+class Pipe:
+    """An input that can be opened only once (named pipe, ``<(command)``, ``/dev/stdin``...).
+
+    The file is opened once.  Bytes read while recognising the input are kept
+    and replayed to the first full pass, which then continues from the open
+    file.  :meth:`spool` copies everything to a temporary file so that the
+    input can be read again; without it a second full pass is refused.
+    """
+
+    def __init__(self, name: str, raw: BinaryIO, key: tuple[int, int] = (0, 0)) -> None:
+        self.name = name
+        self.key = key
+        self._raw: BinaryIO | None = raw
+        self._eof = False
+        self._peek = bytearray()
+        self._taken = False
+        self.spooled: str | None = None
+        self.spooled_bytes = 0
+
+    def peek_reader(self) -> "_PipeReader":
+        """A reader from the start that keeps what it reads for the next reader (for sniffing)."""
+        if self.spooled is not None:
+            return _PipeReader(self, record=True, spool=open(self.spooled, "rb"))
+        if self._taken:
+            raise self._read_twice()
+        return _PipeReader(self, record=True)
+
+    def open_reader(self) -> BinaryIO:
+        """A full pass: the spooled copy, or the kept bytes followed by the rest of the pipe (once)."""
+        if self.spooled is not None:
+            return open(self.spooled, "rb")
+        if self._taken:
+            raise self._read_twice()
+        self._taken = True
+        return _PipeReader(self, record=False)  # type: ignore[return-value]
+
+    def _read_twice(self) -> InputError:
+        return InputError(
+            f"{self.name} is a pipe that was already read once and this reading needs it again; "
+            "save its content to a file and give the file."
+        )
+
+    def _read_raw(self, size: int) -> bytes:
+        if self._raw is not None and not self._eof:
+            try:
+                data = self._raw.read(size)
+            except OSError as exc:
+                raise InputError(f"{self.name} cannot be read ({exc.strerror or exc}); check the pipe.") from None
+            if data:
+                return data
+            self._eof = True
+        if self._taken and self.spooled is None:  # a full pass reached the end, no copy: forget the pipe
+            self.close()
+        return b""
+
+    def spool(self) -> bool:
+        """Copy the whole input to a temporary file for later passes; ``True`` when it copied now."""
+        if self.spooled is not None:
+            return False
+        if self._taken:
+            raise self._read_twice()
+        fd, tmp = tempfile.mkstemp(prefix="fractalseq-pipe-", suffix=".spool")
+        weakref.finalize(self, _unlink, tmp)
+        total = 0
+        try:
+            with os.fdopen(fd, "wb") as out:
+                out.write(self._peek)
+                total += len(self._peek)
+                while True:
+                    data = self._read_raw(_SPOOL_BLOCK)
+                    if not data:
+                        break
+                    out.write(data)
+                    total += len(data)
+        except OSError as exc:
+            raise InputError(
+                f"{self.name} could not be copied to a temporary file for a second pass ({exc.strerror or exc}); "
+                "save it to a file and give the file."
+            ) from None
+        self.spooled, self.spooled_bytes = tmp, total
+        self._peek = bytearray()
+        self._taken = True
+        return True
+
+    def close(self) -> None:
+        """Close the pipe and forget it (a later open of the same path opens it again)."""
+        if _PIPES.get(self.key) is self:
+            del _PIPES[self.key]
+        if self._raw is not None:
+            try:
+                self._raw.close()
+            finally:
+                self._raw = None
+
+
+def close_pipes() -> None:
+    """Close and forget every pipe this process opened (their temporary copies are removed).
+
+    For long-running processes that read many pipes; a command exits instead.
+    """
+    for pipe in list(_PIPES.values()):
+        pipe.close()
+        if pipe.spooled is not None:
+            _unlink(pipe.spooled)
+            pipe.spooled = None  # a later pass is refused in one sentence
+
+
+def _unlink(path: str) -> None:
+    try:
+        os.unlink(path)
+    except OSError:
+        pass
+
+
+class _PipeReader(io.RawIOBase):
+    """Reads a :class:`Pipe` from its start: the kept bytes, then the open pipe (or its spooled copy)."""
+
+    def __init__(self, pipe: Pipe, record: bool, spool: BinaryIO | None = None) -> None:
+        self._pipe = pipe
+        self._record = record
+        self._spool = spool
+        self._pos = 0
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, b) -> int:  # type: ignore[override]
+        data = self.read(len(b))
+        b[: len(data)] = data
+        return len(data)
+
+    def read(self, size: int = -1) -> bytes:  # type: ignore[override]
+        if size is None or size < 0:
+            size = 1 << 62
+        if self._spool is not None:
+            return self._spool.read(size)
+        p = self._pipe
+        if self._pos < len(p._peek):
+            out = bytes(p._peek[self._pos : self._pos + size])
+            self._pos += len(out)
+            return out
+        data = p._read_raw(min(size, _SPOOL_BLOCK))
+        if self._record:
+            p._peek += data
+            self._pos += len(data)
+        elif p._peek:
+            p._peek = bytearray()  # replayed: the kept bytes are no longer needed
+        return data
+
+    def close(self) -> None:
+        if self._spool is not None:
+            self._spool.close()
+        super().close()
+
+
+def spool(origin: Origin) -> None:
+    """Make an input readable twice: a pipe is copied to a temporary file (noted in the read report).
+
+    Regular files and standard input (held in memory) need nothing.
+    """
+    if origin.pipe is not None and origin.pipe.spool():
+        origin.notes.append(
+            f"read from a pipe and copied to a temporary file ({origin.pipe.spooled_bytes} bytes) for a second pass"
+        )
+
+
+def _open_pipe(name: str, p: Path, st: os.stat_result) -> Pipe:
+    key = (st.st_dev, st.st_ino)
+    pipe = _PIPES.get(key)
+    if pipe is not None:
+        return pipe
+    try:
+        raw = open(p, "rb", buffering=0)
+    except PermissionError:
+        raise InputError(f"{name} cannot be read (permission denied); check its permissions.") from None
+    except OSError as exc:
+        raise InputError(f"{name} cannot be read ({exc.strerror or exc}); check the path.") from None
+    pipe = Pipe(name, raw, key)  # type: ignore[arg-type]
+    _PIPES[key] = pipe
+    return pipe
 
 
 def _stdin_bytes() -> bytes:
@@ -108,14 +314,24 @@ def locate(path: str | os.PathLike) -> Origin:
             raise InputError(f"{name} does not exist; check the path.")
         if p.is_dir():
             raise InputError(f"{name} is a folder, not a file; give a file inside it.")
-        try:
-            with open(p, "rb") as fh:
+        st = p.stat()
+        if not stat.S_ISREG(st.st_mode):
+            # a pipe or device: open it once, keep what sniffing reads (see Pipe)
+            pipe = _open_pipe(name, p, st)
+            origin = Origin(name=name, path=p, pipe=pipe)
+            origin.notes.append("read from a pipe (opened once)" if pipe.spooled is None else
+                                "read from a pipe (its temporary copy)")
+            with pipe.peek_reader() as fh:
                 head = fh.read(8)
-        except PermissionError:
-            raise InputError(f"{name} cannot be read (permission denied); check its permissions.") from None
-        except OSError as exc:
-            raise InputError(f"{name} cannot be read ({exc.strerror or exc}); check the path.") from None
-        origin = Origin(name=name, path=p)
+        else:
+            try:
+                with open(p, "rb") as fh:
+                    head = fh.read(8)
+            except PermissionError:
+                raise InputError(f"{name} cannot be read (permission denied); check its permissions.") from None
+            except OSError as exc:
+                raise InputError(f"{name} cannot be read ({exc.strerror or exc}); check the path.") from None
+            origin = Origin(name=name, path=p)
     for magic, kind in _MAGIC:
         if head.startswith(magic):
             origin.compression = kind
@@ -223,8 +439,9 @@ class ByteSource:
     naming the file and the archive kind.
     """
 
-    def __init__(self, origin: Origin) -> None:
+    def __init__(self, origin: Origin, peek: bool = False) -> None:
         self.origin = origin
+        self._peek = peek  # only looking at the start (a pipe keeps what is read for the real pass)
         self._fh: BinaryIO | None = None
         self._first = True
         self.offset = 0  # decompressed bytes handed out so far
@@ -232,7 +449,12 @@ class ByteSource:
     def __enter__(self) -> "ByteSource":
         o = self.origin
         try:
-            raw: BinaryIO = io.BytesIO(o.data) if o.data is not None else open(o.path, "rb")  # type: ignore[arg-type]
+            if o.data is not None:
+                raw: BinaryIO = io.BytesIO(o.data)
+            elif o.pipe is not None:
+                raw = o.pipe.peek_reader() if self._peek else o.pipe.open_reader()  # type: ignore[assignment]
+            else:
+                raw = open(o.path, "rb")  # type: ignore[arg-type]
         except OSError as exc:
             raise InputError(f"{o.name} cannot be read ({exc.strerror or exc}); check the path.") from None
         if o.compression == "gzip":
@@ -303,8 +525,8 @@ class ByteSource:
 
 
 def head(origin: Origin, size: int = SNIFF_BYTES) -> bytes:
-    """The first ``size`` decompressed bytes (used for sniffing)."""
-    with ByteSource(origin) as src:
+    """The first ``size`` decompressed bytes (used for sniffing; a pipe replays them to the reader)."""
+    with ByteSource(origin, peek=True) as src:
         return src.read(size)
 
 
