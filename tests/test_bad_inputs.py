@@ -140,6 +140,8 @@ CASES: list[Case] = [
     Case("count-all-N", ("count", "{d}/alln.fa"), r"no (usable |dna )?symbols", r"check the file|alphabet"),
     Case("drift-all-N", ("drift", "{d}/good.fa", "{d}/alln.fa", "--out", "{d}/out-drift-alln"),
          r"no (usable |dna )?symbols", r"check the file|alphabet", absent=("out-drift-alln",)),
+    Case("drift-all-N-process", ("drift", "{d}/good.fa", "{d}/alln.fa", "--out", "{d}/out-drift-alln2"),
+         r"no (usable |dna )?symbols", r"check the file|alphabet", absent=("out-drift-alln2",), subprocess=True),
     # a log with a non-UTF-8 line is read (the line as Latin-1, counted in the read report): tests/test_miner.py
     # ---- paths that cannot be read
     Case("count-folder-as-input", ("count", "{d}/folder"), r"folder\b.*not a file|is a folder", r"give a file"),

@@ -199,9 +199,14 @@ def test_reads_the_count_and_model_files_written_today(tmp_path, lambda_fasta):
     from fractalseq.words._counts import WordCounts, count_words
 
     counts = count_words(open_source(lambda_fasta), 10)
-    cpath = counts.save(tmp_path / "c.npz")
+    # a count file as the writer before the container made it: np.savez_compressed, no 'arrays' section
+    legacy_header, legacy_arrays = counts.to_arrays()
+    cpath = tmp_path / "c.npz"
+    np.savez_compressed(cpath, header=np.frombuffer(json.dumps(legacy_header, sort_keys=True).encode(), np.uint8),
+                        **legacy_arrays)
     header, arrays = read_container(cpath, "fractalseq-words", max_bytes=1 << 30)
     assert header["depth"] == 10 and "arrays" not in header
+    assert WordCounts.load(counts.save(tmp_path / "c2.npz")).words(6)[1].tolist() == counts.words(6)[1].tolist()
     with np.load(cpath, allow_pickle=False) as ref:
         assert sorted(ref.files) == sorted([*arrays, "header"])
         for k in arrays:

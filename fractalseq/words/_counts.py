@@ -19,9 +19,7 @@ word spans a segment break.
 from __future__ import annotations
 
 import hashlib
-import io
 import json
-import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Iterable, Iterator
@@ -30,8 +28,8 @@ import numpy as np
 
 from fractalseq.words import _kernels as kernels
 from fractalseq.alphabet import Alphabet
-from fractalseq.errors import InputError, ModelFileError, ParameterError
-from fractalseq.io._outputs import write_bytes
+from fractalseq.errors import FractalseqError, InputError, ModelFileError, ParameterError
+from fractalseq.io._npz import DEFAULT_MAX_BYTES, read_container, write_container
 from fractalseq.stream import Chunk, ReadReport, SymbolArray, SymbolStream
 
 #: Dense tables are used up to this many address bits (4**12 cells for DNA).
@@ -354,29 +352,27 @@ class WordCounts:
         return header, arrays
 
     def save(self, path: str | Path, force: bool = False) -> Path:
-        """Write an ``.npz`` file: plain arrays plus a JSON header (``header``) with checksums.
+        """Write an ``.npz`` file: plain arrays plus a JSON header with checksums (:mod:`fractalseq.io._npz`).
 
-        The file loads without pickle; :meth:`load` verifies format, version and checksums.
+        The file loads without pickle; :meth:`load` verifies format, version, declared sizes and checksums.
         """
         header, arrays = self.to_arrays()
-        buf = io.BytesIO()
-        np.savez_compressed(buf, header=np.frombuffer(json.dumps(header, sort_keys=True).encode(), np.uint8), **arrays)
-        return write_bytes(path, buf.getvalue(), force=force)
+        return write_container(path, header, arrays, force=force)
 
     @classmethod
-    def load(cls, path: str | Path) -> "WordCounts":
-        """Load counts written by :meth:`save`, checking format, version and checksums."""
-        path = Path(path)
-        try:
-            with np.load(path, allow_pickle=False) as z:
-                data = {k: z[k] for k in z.files}
-        except FileNotFoundError:
-            raise InputError(f"Count file {path} does not exist; check the path.") from None
-        except IsADirectoryError:
-            raise InputError(f"{path} is a folder, not a count file; give the .npz file.") from None
-        except (OSError, ValueError, EOFError, zipfile.BadZipFile, KeyError) as exc:
-            raise ModelFileError(f"{path} is not a readable count file ({exc}); recount the input.") from None
-        return cls.from_arrays(data, str(path))
+    def load(cls, path: str | Path, max_bytes: int = DEFAULT_MAX_BYTES) -> "WordCounts":
+        """Load counts written by :meth:`save`; the file is treated as hostile and checked before use.
+
+        Parameters
+        ----------
+        path:
+            The count file.
+        max_bytes:
+            Cap on the arrays' total declared size; a file declaring more is refused
+            before anything is decompressed.
+        """
+        header, data = read_container(path, FILE_FORMAT, max_bytes=max_bytes, expected_version=FILE_VERSION)
+        return cls._from_header(header, data, str(path))
 
     @classmethod
     def from_arrays(cls, data: dict[str, np.ndarray], where: str = "counts") -> "WordCounts":
@@ -385,6 +381,11 @@ class WordCounts:
             header = json.loads(bytes(np.asarray(data["header"], np.uint8)).decode())
         except (KeyError, ValueError, UnicodeDecodeError):
             raise ModelFileError(f"{where} has no valid header; it is not a fractalseq count file.") from None
+        return cls._from_header(header, data, where)
+
+    @classmethod
+    def _from_header(cls, header: dict, data: dict[str, np.ndarray], where: str) -> "WordCounts":
+        """Rebuild from a decoded header and its arrays, checking every value before it is trusted."""
         if header.get("format") != FILE_FORMAT:
             raise ModelFileError(f"{where} is a {header.get('format')!r} file, not word counts.")
         if header.get("version") != FILE_VERSION:
@@ -392,10 +393,23 @@ class WordCounts:
         for key, digest in header.get("sha256", {}).items():
             if key not in data or hashlib.sha256(np.ascontiguousarray(data[key]).tobytes()).hexdigest() != digest:
                 raise ModelFileError(f"{where} is damaged (array {key!r} fails its checksum); recount the input.")
-        alphabet = Alphabet.from_dict(header["alphabet"])
-        dense = data.get("dense") if header["storage"] == "dense" else None
+        try:
+            alphabet = Alphabet.from_dict(header["alphabet"])
+            depth, length, segments = (int(header[k]) for k in ("depth", "length", "segments"))
+            storage = header["storage"]
+        except (KeyError, TypeError, ValueError, FractalseqError):
+            raise ModelFileError(f"{where} has an incomplete or invalid header; recount the input.") from None
+        bits = alphabet.bits
+        if not (1 <= depth and depth * bits <= 64 and length >= 0 and 0 <= segments <= max(length, 1)):
+            raise ModelFileError(f"{where} declares impossible sizes (depth {depth}, length {length}); recount the input.")
+        need = ("dense",) if storage == "dense" else ("leaf_words", "leaf_counts") if storage == "sparse" else None
+        if need is None or any(k not in data for k in (*need, "tail_len", "tail_addr", "tail_count")):
+            raise ModelFileError(f"{where} lacks arrays its header needs; recount the input.")
+        if storage == "dense" and data["dense"].shape != (1 << (depth * bits),):
+            raise ModelFileError(f"{where} has a dense table of the wrong size for its depth; recount the input.")
+        dense = data.get("dense") if storage == "dense" else None
         return cls(
-            alphabet, int(header["depth"]), int(header["length"]), int(header["segments"]),
+            alphabet, depth, length, segments,
             dense, data.get("leaf_words"), data.get("leaf_counts"),
             data["tail_len"], data["tail_addr"], data["tail_count"],
         )
