@@ -228,9 +228,14 @@ assert len(fig.axes) == len(res.series)
 assert scan_png(res)[:8] == b"\\x89PNG\\r\\n\\x1a\\n"
 dens = density_figure(encoding.points(arr, 0.5), "t", tuple("ACGT"), encoding.corner_layout(4))
 assert isinstance(dens, Figure) and isinstance(dens.canvas, FigureCanvasAgg)
-survey.spectra_png([("a", [{"q": 0, "estimate": 2.0, "low": 1.9, "high": 2.0}])])
-survey.dendrogram_png(np.array([[0.0, 1.0, 0.5, 2.0]]), ["a", "b"], "average", 3)
-figures.heatmap_png(np.eye(2), ["a", "b"], "t", "bits")
+from fractalseq.compare._distances import cluster
+d = np.array([[0.0, 0.4], [0.4, 0.0]])
+spec = [{"q": 0, "estimate": 2.0, "low": 1.9, "high": 2.0}]
+view = survey.SurveyView(sources=({"name": "a", "spectrum": spec}, {"name": "b", "spectrum": spec}), names=("a", "b"),
+                         js=d, spectrum=d, js_depth=3, clustering=cluster(d), header=("name",),
+                         rows=(("a",), ("b",)), notes=(), subtitle="invented", caution="invented data")
+for draw in (survey.spectra_png, survey.dendrogram_png, survey.heatmap_png):
+    assert draw(view)[:8] == b"\\x89PNG\\r\\n\\x1a\\n"
 assert "matplotlib.pyplot" not in sys.modules, "pyplot was imported"
 assert matplotlib.rcParams._get_backend_or_none() == backend, "the backend was switched"
 print("ok")
