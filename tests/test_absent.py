@@ -17,8 +17,7 @@ from fractalseq.errors import ParameterError
 from fractalseq.stream import from_codes
 from fractalseq.words._counts import count_words
 
-REFERENCE = Path(__file__).resolve().parent.parent / "reference"
-LAMBDA = REFERENCE / "lambda_virus.fa.gz"
+from _paths import LAMBDA, REFERENCE
 CHR17 = REFERENCE / "chr17.hg19.part.fa"
 
 # DNA-like chain with one forbidden transition C -> G (rows A, C, G, T)

@@ -40,7 +40,7 @@ import zstandard
 
 from fractalseq.cli.app import main
 
-ROOT = Path(__file__).resolve().parents[1]
+from _paths import ROOT
 NON_UTF8_LOG = ROOT / "reference" / "logs" / "testcase-wrong-char.log"  # provenance: reference/logs/PROVENANCE.md
 
 

@@ -23,7 +23,7 @@ import typer
 import fractalseq
 from fractalseq.cli.app import app, main
 
-ROOT = Path(__file__).resolve().parents[1]
+from _paths import ROOT
 COMMANDS = ("count", "render", "profile", "learn", "score", "next", "survey", "drift", "scan", "demo")
 
 #: The spelling of each shared concept, by the parameter name the commands use for it.

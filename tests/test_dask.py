@@ -5,7 +5,6 @@ from __future__ import annotations
 import os
 import signal
 import time
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -20,8 +19,7 @@ from fractalseq.stream import SymbolArray, from_codes
 from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey
 from fractalseq.words._counts import count_words
 
-ROOT = Path(__file__).resolve().parents[1]
-LAMBDA = ROOT / "reference" / "lambda_virus.fa.gz"
+from _paths import LAMBDA
 
 
 @pytest.fixture(scope="module")

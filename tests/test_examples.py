@@ -22,7 +22,7 @@ import pytest
 
 from fractalseq.datasets import _scenario as scenario
 
-ROOT = Path(__file__).resolve().parents[1]
+from _paths import ROOT
 EXAMPLES = ("profile_a_sample", "compare_samples", "predict_next_symbol", "relay_log_drift")
 
 

@@ -6,7 +6,6 @@ import collections
 import json
 import math
 import subprocess
-import sys
 
 import numpy as np
 import pytest
@@ -16,7 +15,7 @@ from fractalseq.compare._changepoint import noise_scale, pelt, segment_series
 from fractalseq.compare._scan import scan_stream, window_counts
 from fractalseq.stream import SymbolArray, from_codes
 
-CLI = [sys.executable, "-c", "import sys; from fractalseq.cli.app import main; sys.exit(main(sys.argv[1:]))"]
+from _paths import CLI
 
 
 def test_window_counts_match_a_stdlib_recount():

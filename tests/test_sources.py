@@ -22,8 +22,8 @@ from fractalseq.alphabet import Alphabet, protein
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.sources import detect_format, open_source
 
-REF = Path(__file__).resolve().parent.parent / "reference"
-LAMBDA = REF / "lambda_virus.fa.gz"
+from _paths import LAMBDA
+from _paths import REFERENCE as REF
 CHR17 = REF / "chr17.hg19.part.fa"
 
 

@@ -13,7 +13,6 @@ import lzma
 import random
 import re
 import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -23,7 +22,7 @@ from fractalseq.errors import InputError
 from fractalseq.sources import open_source
 from fractalseq.sources.rawio import ByteSource, locate
 
-REF = Path(__file__).resolve().parent.parent / "reference"
+from _paths import REFERENCE as REF
 CHR17 = REF / "chr17.hg19.part.fa"
 
 COMPRESSORS = {

@@ -23,10 +23,8 @@ from fractalseq.io._cache import ResultCache
 from fractalseq.runner import PAUSE_VARIABLE
 from fractalseq.words._counts import count_words
 
-ROOT = Path(__file__).resolve().parents[1]
+from _paths import CLI, LAMBDA, ROOT
 sys.path.insert(0, str(ROOT / "benchmarks"))
-LAMBDA = ROOT / "reference" / "lambda_virus.fa.gz"
-CLI = [sys.executable, "-c", "import sys; from fractalseq.cli.app import main; sys.exit(main(sys.argv[1:]))"]
 
 
 def _chain(seed):
