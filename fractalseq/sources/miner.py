@@ -175,6 +175,7 @@ class TemplateMiner:
         self._families: dict[tuple, _Family] = {}
         self._absorbed: dict[int, int] = {}
         self._head_memo: dict[tuple, tuple[str, ...]] = {}
+        self._route_word: dict[str, bool] = {}
         self._seen: dict[tuple, int] = {}
         self._lines = 0
         self._final: list[int] | None = None
@@ -215,8 +216,15 @@ class TemplateMiner:
             return head
         out: list[str] = []
         route: tuple = (pinned, n)
+        words = self._route_word
         for tok in free[: self.depth]:
-            if _routable(tok):
+            ok = words.get(tok)
+            if ok is None:
+                ok = _routable(tok)
+                if len(words) >= _MSG_CACHE:
+                    words.clear()
+                words[tok] = ok
+            if ok:
                 key_kids = route + tuple(out)
                 kids = self._children.get(key_kids)
                 if kids is None:
@@ -278,11 +286,9 @@ class TemplateMiner:
                 if wild > best_wild:
                     best, best_wild = cid, wild
         if best >= 0 and (n == 0 or best_sim >= self.threshold * n):
-            if best_sim < n:
-                tpl = clusters[best].tokens
-                for i, (a, b) in enumerate(zip(tpl, free)):
-                    if a != b and a != WILDCARD:
-                        tpl[i] = WILDCARD
+            if best_sim < n:  # positions where the line differs become (or stay) wildcards
+                c = clusters[best]
+                c.tokens = [a if a == b else WILDCARD for a, b in zip(c.tokens, free)]
             if crowded:  # most recently matched clusters are scanned first
                 del members[best]
                 members[best] = None
