@@ -148,7 +148,12 @@ def test_out_folder_holds_json_and_csv(tmp_path):
     assert _run(LOGS / "jtreg-output-excerpt.log", "--out", out, "-q").returncode == 0
     doc = json.loads((out / "templates.json").read_text(encoding="utf-8"))
     assert len(doc["lines"]) == len(_file_lines(LOGS / "jtreg-output-excerpt.log"))
-    assert _run(LOGS / "jtreg-output-excerpt.log", "--out", out).returncode == 2
+    again = _run(LOGS / "jtreg-output-excerpt.log", "--out", out)
+    assert again.returncode == 2 and b"--force" in again.stderr
+    assert _run(LOGS / "jtreg-output-excerpt.log", "--out", out, "--force", "-q").returncode == 0
+    # a run refused for bad input leaves no empty output folder behind
+    assert _run(tmp_path / "missing.log", "--out", tmp_path / "new" / "res").returncode == 2
+    assert not (tmp_path / "new").exists()
 
 
 @pytest.mark.parametrize("kind", ["missing", "binary", "empty", "blank", "folder"])

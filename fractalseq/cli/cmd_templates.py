@@ -12,7 +12,7 @@ from rich.table import Table
 from rich.text import Text
 
 from fractalseq.cli import common
-from fractalseq.io._outputs import check_writable, to_json, write_csv, write_text
+from fractalseq.io._outputs import check_writable, prepare_folder, to_json, write_csv, write_text
 
 # characters that a terminal could act on: C0 and C1 controls, DEL, and the bidirectional-text controls
 _UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
@@ -69,7 +69,7 @@ def templates(
     if csv_file is not None:
         check_writable(csv_file, force)
     if out is not None:
-        _check_folder(out, force)
+        prepare_folder(out, force)  # before reading: a refused run leaves nothing behind
     with common.progress(quiet) as bar:
         task = bar.add_task("mining templates", total=len(paths))
         run = mine_logs(paths, on_input=lambda _: bar.advance(task))
@@ -91,15 +91,6 @@ def templates(
     if not quiet:
         for target in [p for p in (csv_file, out) if p is not None]:
             common.err_console.print(Text(f"wrote {safe(str(target))}"))
-
-
-def _check_folder(folder: Path, force: bool) -> None:
-    from fractalseq.errors import OutputError
-
-    if folder.exists() and not folder.is_dir():
-        raise OutputError(f"{folder} is a file, not a folder; give a folder for --out.")
-    for name in ("templates.json", "templates.csv"):
-        check_writable(folder / name, force)
 
 
 def _print_table(run) -> None:
