@@ -24,7 +24,7 @@ import fractalseq
 from fractalseq.cli.app import app, main
 
 from _paths import ROOT
-COMMANDS = ("count", "render", "profile", "learn", "score", "next", "survey", "drift", "scan", "demo")
+COMMANDS = ("count", "render", "profile", "learn", "score", "next", "survey", "drift", "scan", "demo", "templates")
 
 #: The spelling of each shared concept, by the parameter name the commands use for it.
 SHARED = {

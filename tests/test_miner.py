@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 
 from fractalseq.sources import logs, masks, open_source
 from fractalseq.sources.headers import split_header
-from fractalseq.sources.miner import TemplateIndex, TemplateMiner, mine
+from fractalseq.sources.miner import TAIL, TemplateIndex, TemplateMiner, mine
 from fractalseq.sources.rawio import locate
 from fractalseq.sources.structured import Tokenizer
 
@@ -32,6 +32,7 @@ SHA = {
     "fail2ban-sshd.log": "8b0471fa41098f81fde60d1caf0b22ec4cf3beb685906b8581ca511d762bc03c",
     "fail2ban-postfix.log": "f640b34495a33dd84b24e85f9af02bc25e17cddf56f203256adb7790cb360ab4",
     "fail2ban-apache-auth.log": "dfac64aa76d482bed138bd8e9edf0612d3befd7380c3abf68603c602d456901b",
+    "gdb-check-excerpt.log": "a8aa7fcc873f072fda4eb13e94b7efe3369f8404b00523cae6c004c0ab853ce1",
 }
 LABELLED = ["dpkg-excerpt", "apt-term-excerpt", "jtreg-output-excerpt"]
 
@@ -79,6 +80,66 @@ def test_grouping_accuracy_on_labelled_real_logs(name):
     found = stream.alphabet.size
     assert grouping_accuracy(codes, truth) >= 0.9
     assert kinds / 2 <= found <= 2 * kinds
+
+
+def _labelled(name: str) -> tuple[list[str], list[str]]:
+    lines = _lines(LOGS / f"{name}.log")
+    labels = _lines(LOGS / f"{name}.labels")
+    keep = [i for i, ln in enumerate(lines) if ln.strip()]
+    return [lines[i] for i in keep], [labels[i] for i in keep]
+
+
+def test_test_names_of_a_dejagnu_log_are_one_free_text_tail():
+    """GDB's DejaGnu log: "PASS: <file>: <test name>" with test names of any length is one event kind.
+
+    Labels: DejaGnu's result line format "KIND: test name" (reference/logs/label_rules.py, README.md).
+    """
+    lines, truth = _labelled("gdb-check-excerpt")
+    texts, ids = mine(lines)
+    assert grouping_accuracy(ids, truth) >= 0.9
+    passed = {ids[i] for i, t in enumerate(truth) if t == "result PASS"}
+    assert len(passed) == 1 and len(truth) > 2000
+    (pid,) = passed
+    assert texts[pid] == "PASS: <*> " + TAIL
+    assert [t for t, i in zip(truth, ids) if i == pid] == ["result PASS"] * truth.count("result PASS")
+    # the result lines of the other kinds keep to their own kind: no template mixes two labels
+    by_id: dict = defaultdict(set)
+    for t, i in zip(truth, ids):
+        by_id[i].add(t)
+    assert all(len(v) == 1 for v in by_id.values())
+
+
+@pytest.mark.parametrize("block", [64, 4096, 1 << 20])
+def test_free_text_tails_do_not_depend_on_block_size(block):
+    path = LOGS / "gdb-check-excerpt.log"
+    ref = logs.learn(locate(path), 1 << 16)
+    got = logs.learn(locate(path), block)
+    assert got.to_list() == ref.to_list() and np.array_equal(got.ids, ref.ids)
+
+
+def test_a_fixed_table_with_a_free_text_tail_matches_any_number_of_words():
+    idx = TemplateIndex(["PASS: <*> " + TAIL, "PASS: <*> continue to breakpoint: " + TAIL, "Running <*> ..."])
+    assert idx.match("PASS: gdb.base/a.exp: print x") == 0
+    assert idx.match("PASS: gdb.base/a.exp:") == 0  # the tail may be empty
+    assert idx.match("PASS: gdb.base/a.exp: continue to breakpoint: foo bar") == 1  # most constant tokens win
+    assert idx.match("Running /x/y.exp ...") == 2
+    assert idx.match("PASS:") == -1 and idx.match("FAIL: a b c") == -1
+
+
+def test_a_route_crowded_with_clusters_stays_bounded_and_deterministic():
+    # invented scenario: 3000 lines of one fixed length whose words never repeat, so every line starts a cluster
+    lines = [f"cmd {a}x {b}y {c}z" for a, b, c in zip(_words(3000, 1), _words(3000, 2), _words(3000, 3))]
+    t1, i1 = mine(lines)
+    t2, i2 = mine(lines)
+    assert (t1, i1) == (t2, i2)
+    # two lines share only "cmd" (1 of 4 tokens, under the 0.5 threshold): every line is its own template
+    assert len(set(lines)) == 3000 and i1 == list(range(3000))
+
+
+def _words(n: int, seed: int) -> list[str]:
+    rng = np.random.default_rng(seed)
+    letters = np.array(list("abcdefghijklmnopqrstuvwxyz"))
+    return ["".join(rng.choice(letters, 7)) for _ in range(n)]
 
 
 def test_dpkg_log_templates_follow_the_documented_line_kinds():

@@ -45,6 +45,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "fractalseq.cli.cmd_predict",
     "fractalseq.cli.cmd_compare",
     "fractalseq.cli.cmd_demo",
+    "fractalseq.cli.cmd_templates",
 )
 
 

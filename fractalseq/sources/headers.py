@@ -69,18 +69,41 @@ class Header(NamedTuple):
 _EMPTY = Header("", "", "")
 
 
+_MON_WDAY = frozenset("Jan Feb Mar Apr May Jun Jul Aug Sep Oct Nov Dec Mon Tue Wed Thu Fri Sat Sun".split())
+
+
 def _level(line: str, pos: int) -> tuple[str, int]:
-    m = _WORD.match(line, pos)
-    if m is None:
+    """A level word at ``pos`` (``\\[?[A-Za-z]{3,11}\\]?:?`` then spaces or the end), with plain string steps."""
+    end = line.find(" ", pos)
+    tok = line[pos:] if end < 0 else line[pos:end]
+    core = tok[1:] if tok[:1] == "[" else tok
+    if core[-1:] == ":":
+        core = core[:-1]
+    if core[-1:] == "]":
+        core = core[:-1]
+    up = core.upper()
+    if up not in LEVELS or not core.isascii() or not core.isalpha():
         return "", pos
-    word = m.group(1)
-    up = word.upper()
-    if up not in LEVELS:
+    if not (core.isupper() or tok[0] == "[" or tok[-1] == ":"):
         return "", pos
-    text = m.group(0).rstrip()
-    if word.isupper() or text[0] == "[" or text[-1] == ":":
-        return up, m.end()
-    return "", pos
+    if end < 0:
+        return up, len(line)
+    n = len(line)
+    while end < n and line[end] == " ":
+        end += 1
+    return up, end
+
+
+def _clf_candidate(line: str) -> bool:
+    """Necessary condition for a common-log date after three fields: ``[`` right after the third single space."""
+    s1 = line.find(" ")
+    if s1 <= 0:
+        return False
+    s2 = line.find(" ", s1 + 1)
+    if s2 <= s1 + 1:
+        return False
+    s3 = line.find(" ", s2 + 1)
+    return s3 > s2 + 1 and line.startswith("[", s3 + 1)
 
 
 def _skip_sd(line: str, pos: int) -> int:
@@ -154,25 +177,31 @@ def split_header(line: str) -> tuple[Header, str]:
         m = _TIME_BRACKET.match(line, pos)
         if m is not None:
             pos, stamped = m.end(), True
-    elif c.isalpha():
+    elif c.isalpha() and line[pos : pos + 3] in _MON_WDAY:
         m = _TIME_WORD.match(line, pos)
         if m is not None:
             pos, stamped, syslog_like = m.end(), True, True
-    if not stamped and pos == 0:
+    if not stamped and pos == 0 and _clf_candidate(line):
         m = _CLF_AFTER.match(line)
         if m is not None:
             return _EMPTY, m.group(1) + line[m.end():]
     lv, pos = _level(line, pos)
     if stamped or pos:
-        if syslog_like and not lv:
-            m = _HOST_PROG.match(line, pos)
-            if m is not None:
-                host, program, pos = m.group(1), m.group(2), m.end()
-        if not program:
+        at = pos
+        # cheap tests before the regular expressions: ``host prog:`` ends its second token with ':', ``prog:`` its first
+        e1 = line.find(" ", pos)
+        colon1 = line[e1 - 1] == ":" if e1 > pos else (e1 < 0 and len(line) > pos and line[-1] == ":")
+        if syslog_like and not lv and e1 > pos:
+            e2 = line.find(" ", e1 + 1)
+            if (line[e2 - 1] == ":") if e2 > e1 + 1 else (e2 < 0 and len(line) > e1 + 1 and line[-1] == ":"):
+                m = _HOST_PROG.match(line, pos)
+                if m is not None:
+                    host, program, pos = m.group(1), m.group(2), m.end()
+        if not program and colon1:
             m = (_PROG if syslog_like and not lv else _PROG_PID).match(line, pos)
             if m is not None:
                 program, pos = m.group(1), m.end()
-        if not lv:
+        if not lv and pos != at:
             lv, pos = _level(line, pos)
     if not pos:
         return _EMPTY, line

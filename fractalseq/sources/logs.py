@@ -2,7 +2,8 @@
 
 Templates are mined from the log itself (:mod:`fractalseq.sources.miner`:
 header separated, variable tokens masked, lines grouped by similarity, a
-merge pass); each template is one symbol.  The alphabet (named
+free-text tail after a constant head folded into ``head <...>``, a merge
+pass); each template is one symbol.  The alphabet (named
 ``templates``) is learned in a first pass: templates by decreasing count,
 ties by template text.  Blank lines are skipped (counted in a note).
 

@@ -246,17 +246,16 @@ class TokenMasker:
         self._cache: dict[str, str] = {}
 
     def __call__(self, tokens: list[str]) -> list[str]:
-        cache = self._cache
-        out = []
-        for t in tokens:
-            m = cache.get(t)
-            if m is None:
-                m = mask_token(t)
-                if len(cache) >= _CACHE_LIMIT:
-                    cache.clear()
-                cache[t] = m
-            out.append(m)
-        return out
+        get = self._cache.get
+        miss = self._miss
+        return [get(t) or miss(t) for t in tokens]
+
+    def _miss(self, tok: str) -> str:
+        m = mask_token(tok) or tok
+        if len(self._cache) >= _CACHE_LIMIT:
+            self._cache.clear()
+        self._cache[tok] = m
+        return m
 
 
 def mask_tokens(tokens: list[str]) -> list[str]:

@@ -1,6 +1,6 @@
 """A data-driven template miner for event-log lines.
 
-Each line goes through four steps:
+Each line goes through these steps:
 
 1. Its header is separated (:func:`fractalseq.sources.headers.split_header`):
    the time is dropped; host, program and level are kept beside the template
@@ -17,27 +17,43 @@ Each line goes through four steps:
    share of positions where the line's token equals the template's token is
    at least ``threshold``; else it starts a cluster.  A position whose tokens
    differ between members becomes ``<*>``.  A message seen before (same
-   text) joins the cluster it joined then.
-4. A merge pass (:meth:`TemplateMiner.finish`): templates with the same
+   text) joins the cluster it joined then.  A route with many clusters
+   compares a line with the ``MAX_SCAN`` most recently matched ones only.
+4. Free-text tails: the lines sharing pinned tokens and routing head (the
+   first ``depth`` tokens, at least one of them a constant word) form a
+   *family*.  Once its lines show ``FREE_TAIL_LENGTHS`` different token
+   counts and ``FREE_TAIL_WORDS`` different words right after the head, what
+   follows the head is free text (a test name, a sentence): the family
+   becomes the single template ``head <...>`` (:data:`TAIL`, any number of
+   tokens), which takes its earlier clusters and all its later lines.  A
+   fixed format with a few optional words (``Connection closed by [invalid
+   user] <*> port <*>``) has few different words after its head and keeps
+   its templates.
+5. A merge pass (:meth:`TemplateMiner.finish`): templates with the same
    pinned tokens and length are folded when they differ only at positions
    where one of them has ``<*>`` and share enough constant tokens, repeated
-   until nothing changes.
+   until nothing changes (identical templates first; each template is tried
+   against at most ``MAX_SCAN`` kept ones).
 
 Template ids are given by order of first appearance after the merge pass.
 Everything depends on the sequence of lines only (not on how they were cut
 into blocks), so the same input gives the same templates and ids.  Memory is
-linear in the number of clusters (no table over pairs of templates).
+linear in the number of clusters (no table over pairs of templates), and
+the work per line is bounded by ``MAX_SCAN`` comparisons.
 
 Matching lines against a template table fixed in advance (a model's) is done
 by :class:`TemplateIndex`: a line takes the most specific template (most
 constant tokens, then lowest code) whose constant tokens all equal the
-line's tokens at the same positions.
+line's tokens at the same positions (a template ending in ``<...>`` takes
+any number of further tokens).
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from itertools import islice
+from operator import eq
 from typing import Sequence
 
 from fractalseq.errors import ParameterError
@@ -45,11 +61,19 @@ from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
 from fractalseq.sources.structured import Tokenizer
 
-__all__ = ["DEFAULT_DEPTH", "DEFAULT_THRESHOLD", "MinedTemplate", "TemplateIndex", "TemplateMiner", "line_signature"]
+__all__ = ["DEFAULT_DEPTH", "DEFAULT_THRESHOLD", "TAIL", "MinedTemplate", "TemplateIndex", "TemplateMiner", "line_signature"]
 
 DEFAULT_THRESHOLD = 0.5
 DEFAULT_DEPTH = 2
 DEFAULT_MAX_CHILDREN = 32
+#: a template ending in this token takes any number of further tokens (a free-text tail)
+TAIL = "<...>"
+#: a family of lines (same pinned tokens and routing head, with a constant word) has a free-text tail once its
+#: clusters have this many different lengths and this many different words right after the head
+FREE_TAIL_LENGTHS = 4
+FREE_TAIL_WORDS = 12
+#: clusters a line is compared with in one route (the most recently matched), templates one is tried against in the merge pass
+MAX_SCAN = 64
 _ROUTE_STRIP = "[]()<>{}:,;.!?\"'"
 
 
@@ -102,6 +126,24 @@ def line_signature(line: str, tokenizer: Tokenizer | None = None) -> tuple[Heade
     return hdr, pinned, free
 
 
+def _wild(tpl: list[str], free: list[str]) -> int:
+    """Positions where the template has ``<*>`` and the line another token."""
+    return sum(1 for a, b in zip(tpl, free) if a == WILDCARD and b != WILDCARD)
+
+
+class _Family:
+    """Lines sharing pinned tokens and routing head: their clusters, lengths and first words after the head."""
+
+    __slots__ = ("members", "lengths", "words", "tail")
+
+    def __init__(self) -> None:
+        self.members: list[int] = []
+        self.lengths: set[int] = set()
+        self.words: set[str] = set()
+        #: -2: no free-text tail possible (no constant word in the head); -1: not yet; else the tail's cluster
+        self.tail = -2
+
+
 class TemplateMiner:
     """Streaming template miner (see the module documentation).
 
@@ -129,7 +171,11 @@ class TemplateMiner:
         self._children: dict[tuple, set[str]] = {}
         self.tokenize = Tokenizer()
         self.clusters: list[MinedTemplate] = []
-        self._routes: dict[tuple, list[int]] = {}
+        self._routes: dict[tuple, dict[int, None]] = {}
+        self._families: dict[tuple, _Family] = {}
+        self._absorbed: dict[int, int] = {}
+        self._head_memo: dict[tuple, tuple[str, ...]] = {}
+        self._route_word: dict[str, bool] = {}
         self._seen: dict[tuple, int] = {}
         self._lines = 0
         self._final: list[int] | None = None
@@ -139,14 +185,13 @@ class TemplateMiner:
     def add(self, line: str) -> int:
         """Group one line; returns its cluster number (map it with :meth:`finish`)."""
         hdr, msg = split_header(line)
-        pinned, free = self.tokenize(msg)
-        key = (pinned, msg) if pinned else msg
-        cid = self._seen.get(key)
+        cid = self._seen.get(msg)
         if cid is None:
+            pinned, free = self.tokenize(msg)
             cid = self._place(pinned, free)
             if len(self._seen) >= _MSG_CACHE:
                 self._seen.clear()
-            self._seen[key] = cid
+            self._seen[msg] = cid
         c = self.clusters[cid]
         c.count += 1
         if hdr[0] or hdr[1] or hdr[2]:
@@ -159,48 +204,110 @@ class TemplateMiner:
         add = self.add
         return [add(ln) for ln in lines]
 
+    def _head(self, pinned: tuple[str, ...], n: int, free: list[str]) -> tuple[str, ...]:
+        """Routing tokens of a line: its first ``depth`` free tokens, a token that is not a plain word as ``<*>``.
+
+        Once a word is kept at a level, or refused because the level is full,
+        it routes the same way for good; so the result is remembered.
+        """
+        key = (pinned, n, *free[: self.depth])
+        head = self._head_memo.get(key)
+        if head is not None:
+            return head
+        out: list[str] = []
+        route: tuple = (pinned, n)
+        words = self._route_word
+        for tok in free[: self.depth]:
+            ok = words.get(tok)
+            if ok is None:
+                ok = _routable(tok)
+                if len(words) >= _MSG_CACHE:
+                    words.clear()
+                words[tok] = ok
+            if ok:
+                key_kids = route + tuple(out)
+                kids = self._children.get(key_kids)
+                if kids is None:
+                    kids = self._children[key_kids] = set()
+                if tok not in kids:
+                    if len(kids) >= self.max_children:
+                        tok = WILDCARD
+                    else:
+                        kids.add(tok)
+                out.append(tok)
+            else:
+                out.append(WILDCARD)
+        head = tuple(out)
+        if len(self._head_memo) >= _MSG_CACHE:
+            self._head_memo.clear()
+        self._head_memo[key] = head
+        return head
+
     def _place(self, pinned: tuple[str, ...], free: list[str]) -> int:
         n = len(free)
-        route: tuple = (pinned, n)
-        for tok in free[: self.depth]:
-            r = tok if _routable(tok) else WILDCARD
-            if r != WILDCARD:
-                kids = self._children.get(route)
-                if kids is None:
-                    kids = self._children[route] = set()
-                if r not in kids:
-                    if len(kids) >= self.max_children:
-                        r = WILDCARD
-                    else:
-                        kids.add(r)
-            route = route + (r,)
+        head = self._head(pinned, n, free)
+        fkey = (pinned, head)
+        fam = self._families.get(fkey)
+        if fam is None:
+            fam = self._families[fkey] = _Family()
+            if any(t != WILDCARD for t in head):
+                fam.tail = -1  # a constant word in the head: the family may get a free-text tail
+        elif fam.tail >= 0:
+            return fam.tail
+        if fam.tail == -1:
+            k = len(head)
+            grew = False
+            if n > k and free[k] not in fam.words and len(fam.words) < FREE_TAIL_WORDS:
+                fam.words.add(free[k])
+                grew = True
+            if n not in fam.lengths and len(fam.lengths) < FREE_TAIL_LENGTHS:
+                fam.lengths.add(n)
+                grew = True
+            if grew and len(fam.lengths) >= FREE_TAIL_LENGTHS and len(fam.words) >= FREE_TAIL_WORDS:
+                return self._collapse(fam, pinned, head)
+        route = (fkey, n)
         members = self._routes.get(route)
-        clusters = self.clusters
         if members is None:
-            members = self._routes[route] = []
+            members = self._routes[route] = {}
+        clusters = self.clusters
+        crowded = len(members) > MAX_SCAN
         best = -1
         best_sim = -1
         best_wild = -1
-        for cid in members:
+        for cid in (islice(reversed(members), MAX_SCAN) if crowded else members):
             tpl = clusters[cid].tokens
-            same = 0
-            wild = 0
-            for a, b in zip(tpl, free):
-                if a == b:
-                    same += 1
-                elif a == WILDCARD:
-                    wild += 1
-            if same > best_sim or (same == best_sim and wild > best_wild):
-                best, best_sim, best_wild = cid, same, wild
+            same = sum(map(eq, tpl, free))
+            if same > best_sim:
+                best, best_sim, best_wild = cid, same, -1
+            elif same == best_sim:  # tie: the template with more wildcards where the line differs wins
+                if best_wild < 0:
+                    best_wild = _wild(clusters[best].tokens, free)
+                wild = _wild(tpl, free)
+                if wild > best_wild:
+                    best, best_wild = cid, wild
         if best >= 0 and (n == 0 or best_sim >= self.threshold * n):
-            tpl = clusters[best].tokens
-            for i, (a, b) in enumerate(zip(tpl, free)):
-                if a != b and a != WILDCARD:
-                    tpl[i] = WILDCARD
+            if best_sim < n:  # positions where the line differs become (or stay) wildcards
+                c = clusters[best]
+                c.tokens = [a if a == b else WILDCARD for a, b in zip(c.tokens, free)]
+            if crowded:  # most recently matched clusters are scanned first
+                del members[best]
+                members[best] = None
             return best
         clusters.append(MinedTemplate(list(free), pinned, 0, self._lines))
-        members.append(len(clusters) - 1)
-        return len(clusters) - 1
+        cid = len(clusters) - 1
+        members[cid] = None
+        fam.members.append(cid)
+        return cid
+
+    def _collapse(self, fam: _Family, pinned: tuple[str, ...], head: tuple[str, ...]) -> int:
+        """The family's tail is free text: one template, the head then ``<...>``, takes all its lines."""
+        first = self.clusters[fam.members[0]].first if fam.members else self._lines
+        self.clusters.append(MinedTemplate(list(head) + [TAIL], pinned, 0, first))
+        tail = fam.tail = len(self.clusters) - 1
+        for cid in fam.members:
+            self._absorbed[cid] = tail
+        fam.members = []
+        return tail
 
     # ----------------------------------------------------------- merge pass
     def _foldable(self, a: list[str], b: list[str]) -> bool:
@@ -220,35 +327,52 @@ class TemplateMiner:
         need = max(1, math.ceil(self.threshold * max(const_a, const_b)))
         return shared >= need or (const_a == 0 and const_b == 0)
 
+    def _fold(self, members: list[int], parent: list[int]) -> None:
+        """Fold the templates of one (pinned, length) group; each is tried against at most ``MAX_SCAN`` kept ones."""
+        reps: list[tuple[int, list[str]]] = []
+        exact: dict[tuple[str, ...], int] = {}
+        for cid in members:
+            key = tuple(self.clusters[cid].tokens)
+            rid = exact.get(key)
+            if rid is None:
+                exact[key] = cid
+                reps.append((cid, list(key)))
+            else:
+                parent[cid] = rid
+        changed = True
+        while changed and len(reps) > 1:
+            changed = False
+            out: list[tuple[int, list[str]]] = []
+            for cid, toks in reps:
+                lo = max(0, len(out) - MAX_SCAN)
+                for k in range(lo, len(out)):
+                    rid, rt = out[k]
+                    if self._foldable(rt, toks):
+                        out[k] = (rid, [x if x == y else WILDCARD for x, y in zip(rt, toks)])
+                        parent[cid] = rid
+                        changed = True
+                        break
+                else:
+                    out.append((cid, toks))
+            reps = out
+        for rid, rt in reps:
+            self.clusters[rid].tokens = rt
+
     def finish(self) -> list[MinedTemplate]:
         """Run the merge pass; the final templates by order of first appearance.
 
         After this, :meth:`final_id` maps a cluster number to its template id.
         """
+        parent = list(range(len(self.clusters)))
+        for cid, tail in self._absorbed.items():
+            parent[cid] = tail
         groups: dict[tuple, list[int]] = {}
         for cid, c in enumerate(self.clusters):
+            if cid in self._absorbed or (c.tokens and c.tokens[-1] == TAIL):
+                continue
             groups.setdefault((c.pinned, len(c.tokens)), []).append(cid)
-        parent = list(range(len(self.clusters)))
         for members in groups.values():
-            reps: list[tuple[int, list[str]]] = []
-            for cid in members:
-                reps.append((cid, list(self.clusters[cid].tokens)))
-            changed = True
-            while changed and len(reps) > 1:
-                changed = False
-                out: list[tuple[int, list[str]]] = []
-                for cid, toks in reps:
-                    for k, (rid, rt) in enumerate(out):
-                        if self._foldable(rt, toks):
-                            out[k] = (rid, [x if x == y else WILDCARD for x, y in zip(rt, toks)])
-                            parent[cid] = rid
-                            changed = True
-                            break
-                    else:
-                        out.append((cid, toks))
-                reps = out
-            for rid, rt in reps:
-                self.clusters[rid].tokens = rt
+            self._fold(members, parent)
         root = parent[:]
         for i in range(len(root)):
             r = root[i]
@@ -305,6 +429,9 @@ def mine(lines: Sequence[str], threshold: float = DEFAULT_THRESHOLD, depth: int 
 class TemplateIndex:
     """Lines matched against a template table given in advance (most specific matching template wins).
 
+    A template ending in ``<...>`` (:data:`TAIL`) matches a line that has its
+    other tokens and any number of tokens after them.
+
     Parameters
     ----------
     templates:
@@ -314,12 +441,17 @@ class TemplateIndex:
     def __init__(self, templates: Sequence[str]) -> None:
         self.templates = list(templates)
         self._by_len: dict[int, list[tuple[int, int, list[str]]]] = {}
+        self._tails: list[tuple[int, int, list[str]]] = []
         for i, t in enumerate(self.templates):
             toks = t.split(" ")
-            const = sum(1 for x in toks if x != WILDCARD)
-            self._by_len.setdefault(len(toks), []).append((-const, i, toks))
+            const = sum(1 for x in toks if x != WILDCARD and x != TAIL)
+            if toks[-1] == TAIL:
+                self._tails.append((-const, i, toks[:-1]))
+            else:
+                self._by_len.setdefault(len(toks), []).append((-const, i, toks))
         for v in self._by_len.values():
             v.sort(key=lambda e: (e[0], e[1]))
+        self._tails.sort(key=lambda e: (e[0], e[1]))
         self._cand: dict[tuple[int, str], list[tuple[int, int, list[str]]]] = {}
         self._memo: dict[tuple[str, ...], int] = {}
         self.tokenize = Tokenizer()
@@ -329,6 +461,9 @@ class TemplateIndex:
         c = self._cand.get(key)
         if c is None:
             c = [e for e in self._by_len.get(n, ()) if e[2][0] == first or e[2][0] == WILDCARD]
+            if self._tails:
+                c += [e for e in self._tails if len(e[2]) <= n and (not e[2] or e[2][0] == first or e[2][0] == WILDCARD)]
+                c.sort(key=lambda e: (e[0], e[1]))
             if len(self._cand) < _MSG_CACHE:
                 self._cand[key] = c
         return c

@@ -1,4 +1,4 @@
-"""Hand-written event-kind labels for three reference logs (one label per line), from the message formats.
+"""Hand-written event-kind labels for four reference logs (one label per line), from the message formats.
 
 Run from this folder: ``python label_rules.py`` writes ``<log>.labels`` beside each log.  The rules
 restate each program's documented or printed message formats (see README.md); they were written from
@@ -96,8 +96,28 @@ def jtreg_label(line: str) -> str:
     return "text:" + line
 
 
+# DejaGnu test results (DejaGnu manual, "Test Output": one line per result, "KIND: test name", where KIND is
+# PASS, FAIL, XPASS, XFAIL, KPASS, KFAIL, UNRESOLVED, UNTESTED, UNSUPPORTED, ERROR, WARNING); GDB's test suite
+# adds "DUPLICATE: " and "PATH: " result lines (gdb/testsuite/lib/gdb.exp) and logs "gdb compile failed, %s".
+# runtest prints "Running <file> ..." per test file.  The test name after the kind is free text (a field).
+_DEJAGNU = ("PASS", "FAIL", "XPASS", "XFAIL", "KPASS", "KFAIL", "UNRESOLVED", "UNTESTED", "UNSUPPORTED", "ERROR",
+            "WARNING", "DUPLICATE", "PATH")
+
+
+def gdb_label(line: str) -> str:
+    kind, sep, _ = line.partition(": ")
+    if sep and kind in _DEJAGNU:
+        return "result " + kind
+    if re.match(r"Running \S+ \.\.\.$", line):
+        return "running"
+    if line.startswith("gdb compile failed, "):
+        return "compile-failed"
+    return "text:" + line
+
+
 def main() -> None:
-    for name, fn in (("dpkg-excerpt.log", dpkg_label), ("apt-term-excerpt.log", term_label), ("jtreg-output-excerpt.log", jtreg_label)):
+    for name, fn in (("dpkg-excerpt.log", dpkg_label), ("apt-term-excerpt.log", term_label), ("jtreg-output-excerpt.log", jtreg_label),
+                     ("gdb-check-excerpt.log", gdb_label)):
         lines = (HERE / name).read_bytes().decode("utf-8").split("\n")
         if lines and lines[-1] == "":
             lines.pop()

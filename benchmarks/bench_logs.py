@@ -1,0 +1,200 @@
+"""Template mining on real event logs: lines per second, peak memory of a whole run, grouping accuracy.
+
+Inputs (real logs, none written for this project): this machine's ``/var/log/dpkg.log`` and
+``/var/log/apt/term.log`` (Debian 12), GDB's DejaGnu test log ``/usr/share/doc/gdb/check.log.gz`` (Debian
+package ``gdb``; 100,014 lines whose test names have any number of words), and the logs of
+``reference/logs`` (provenance in reference/logs/README.md).  A missing input is skipped (and listed).
+
+* ``in-process``: :func:`fractalseq.jobs._templates.mine_logs` on the file (reading, decompression,
+  header splitting, masking, grouping, merge pass, each line's template id), best of ``--repeat`` runs;
+  lines/s counts every line of the file.
+* ``whole process``: ``python -m fractalseq templates FILE --json > /dev/null`` under ``/usr/bin/time -v``
+  (start-up and JSON writing included): wall seconds and peak resident memory.
+* grouping accuracy (Zhu et al. 2019, "Tools and Benchmarks for Automated Log Parsing", ICSE-SEIP: a line is
+  right when the lines sharing its template are exactly those sharing its label) on the labelled logs of
+  reference/logs (labels written from the programs' message formats by reference/logs/label_rules.py).
+* ``--before DIR``: the log reader's first pass (``logs.learn``, present in every version) measured with the
+  package imported from DIR (e.g. an older commit's tree from ``git archive COMMIT fractalseq | tar -x -C DIR``)
+  and from this tree, for a before/after table.
+
+The machine is shared: its load average is recorded beside the results.
+
+Run: python benchmarks/bench_logs.py [--repeat 5] [--before DIR]   (writes benchmarks/results/logs.json and logs.md)
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import re
+import subprocess
+import sys
+from collections import defaultdict
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(HERE))
+
+from genomes import write_results  # noqa: E402
+
+LOGS = ROOT / "reference" / "logs"
+MACHINE = [Path("/var/log/dpkg.log"), Path("/var/log/apt/term.log"), Path("/usr/share/doc/gdb/check.log.gz")]
+LABELLED = ["dpkg-excerpt", "apt-term-excerpt", "jtreg-output-excerpt", "gdb-check-excerpt", "fail2ban-sshd"]
+
+# measured in a child process so that --before can import another tree of the package
+_MEASURE = r"""
+import json, sys, time
+from fractalseq.sources.rawio import locate
+from fractalseq.sources import logs
+path, repeat, how = sys.argv[1], int(sys.argv[2]), sys.argv[3]
+mine_logs = None
+if how == "mine_logs":
+    from fractalseq.jobs._templates import mine_logs
+best = cpu = float("inf")
+for _ in range(repeat):
+    t, c = time.perf_counter(), time.process_time()
+    if mine_logs is not None:
+        run = mine_logs([path])
+        n_lines, n_templates = run.inputs[0].lines, len(run.templates)
+    else:  # the log reader's first pass (in every version of the package)
+        table = logs.learn(locate(path), 1 << 20)
+        n_lines, n_templates = table.lines, len(table.entries)
+    best = min(best, time.perf_counter() - t)
+    cpu = min(cpu, time.process_time() - c)
+print(json.dumps({"seconds": best, "cpu_seconds": cpu, "lines": n_lines, "templates": n_templates}))
+"""
+
+
+def measure(path: Path, repeat: int, tree: Path, how: str = "mine_logs") -> dict:
+    env = {**os.environ, "PYTHONPATH": str(tree)}
+    # run inside the tree: ``python -c`` puts the working folder first on the import path
+    out = subprocess.run([sys.executable, "-c", _MEASURE, str(path.resolve()), str(repeat), how], capture_output=True, text=True,
+                         env=env, cwd=tree, check=True, timeout=3600)
+    return json.loads(out.stdout)
+
+
+def whole_process(path: Path) -> dict:
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    with open(os.devnull, "wb") as null:
+        proc = subprocess.run(["/usr/bin/time", "-v", sys.executable, "-m", "fractalseq", "templates", str(path), "--json"],
+                              stdout=null, stderr=subprocess.PIPE, text=True, env=env, timeout=3600)
+    if proc.returncode != 0:
+        raise RuntimeError(f"templates failed on {path}: {proc.stderr[-500:]}")
+    rss = int(re.search(r"Maximum resident set size \(kbytes\): (\d+)", proc.stderr).group(1))
+    wall = re.search(r"Elapsed \(wall clock\) time \(h:mm:ss or m:ss\): (\S+)", proc.stderr).group(1)
+    secs = 0.0
+    for part in wall.split(":"):
+        secs = secs * 60 + float(part)
+    return {"wall_seconds": round(secs, 2), "peak_rss_MB": round(rss / 1024, 1)}
+
+
+def grouping_accuracy(pred: list, truth: list) -> float:
+    """Zhu et al. 2019 grouping accuracy (see the module docstring)."""
+    gp: dict = defaultdict(set)
+    gt: dict = defaultdict(set)
+    for i, (p, t) in enumerate(zip(pred, truth)):
+        gp[p].add(i)
+        gt[t].add(i)
+    return sum(gp[p] == gt[t] for p, t in zip(pred, truth)) / len(pred)
+
+
+def accuracy_rows() -> list[dict]:
+    from fractalseq.sources.miner import mine
+
+    rows = []
+    for name in LABELLED:
+        log, lab = LOGS / f"{name}.log", LOGS / f"{name}.labels"
+        if not lab.exists():
+            continue
+        lines = log.read_bytes().decode("utf-8").split("\n")
+        labels = lab.read_text(encoding="utf-8").split("\n")
+        if lines[-1] == "":
+            lines.pop()
+        labels = labels[: len(lines)]
+        keep = [i for i, ln in enumerate(lines) if ln.strip() and labels[i]]
+        texts, ids = mine([lines[i].rstrip("\r") for i in keep])
+        truth = [labels[i] for i in keep]
+        rows.append({"log": name, "lines": len(keep), "kinds": len(set(truth)), "templates": len(texts),
+                     "grouping_accuracy": round(grouping_accuracy(ids, truth), 4)})
+    return rows
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--repeat", type=int, default=5)
+    parser.add_argument("--before", type=Path, default=None, help="tree of an older version of the package, measured too")
+    parser.add_argument("--before-label", default=None, help="how to name that version in the results (default: its path)")
+    args = parser.parse_args()
+    load_start = os.getloadavg()
+    inputs = [p for p in MACHINE if p.exists() and os.access(p, os.R_OK)]
+    skipped = [str(p) for p in MACHINE if p not in inputs]
+    inputs += sorted(LOGS.glob("*.log"))
+    rows = []
+    for path in inputs:
+        big = path.stat().st_size > 2_000_000 or path.suffix == ".gz"
+        m = measure(path, max(1, args.repeat // 2) if big else args.repeat, ROOT)
+        row = {
+            "log": str(path) if path.parent != LOGS else f"reference/logs/{path.name}",
+            "bytes": path.stat().st_size, "lines": m["lines"], "templates": m["templates"],
+            "seconds": round(m["seconds"], 4), "lines_per_s": round(m["lines"] / m["seconds"]),
+            "cpu_seconds": round(m["cpu_seconds"], 4), "lines_per_cpu_s": round(m["lines"] / m["cpu_seconds"]),
+            **whole_process(path),
+        }
+        if args.before is not None and path in MACHINE:
+            # the same function in both versions: the log reader's first pass (logs.learn)
+            b = measure(path, 1 if big else args.repeat, args.before, "learn")
+            a = measure(path, 1 if big else args.repeat, ROOT, "learn")
+            row.update(before_seconds=round(b["seconds"], 3), before_lines_per_s=round(b["lines"] / b["seconds"]),
+                       before_lines_per_cpu_s=round(b["lines"] / b["cpu_seconds"]), before_templates=b["templates"],
+                       learn_seconds=round(a["seconds"], 3), learn_lines_per_s=round(a["lines"] / a["seconds"]),
+                       learn_lines_per_cpu_s=round(a["lines"] / a["cpu_seconds"]))
+        rows.append(row)
+        print(row, flush=True)
+    acc = accuracy_rows()
+    result = {"repeat": args.repeat, "rows": rows, "accuracy": acc, "skipped": skipped,
+              "load_average_1_5_15": {"start": [round(x, 2) for x in load_start],
+                                      "end": [round(x, 2) for x in os.getloadavg()]},
+              "cpus": os.cpu_count(), "python": sys.version.split()[0],
+              "before": (args.before_label or str(args.before)) if args.before else None}
+    md = [
+        "# Template mining on real logs",
+        "",
+        f"In-process: reading + templating (`mine_logs`), best of {args.repeat} runs (of {max(1, args.repeat // 2)} "
+        "for the gdb log); lines/s counts every line, per second of wall-clock time and per second of the process's "
+        "CPU time (the fairer figure on a loaded machine). Whole process: `python -m fractalseq templates FILE --json "
+        "> /dev/null` under `/usr/bin/time -v`. "
+        f"Load average at start {result['load_average_1_5_15']['start']}, at end {result['load_average_1_5_15']['end']} "
+        f"on {os.cpu_count()} CPUs (a shared machine: timings are pessimistic).",
+        "",
+        "| log | lines | templates | in-process s | lines/s | lines per CPU s | whole process s | peak RSS MB |",
+        "| --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |",
+    ]
+    for r in rows:
+        md.append(f"| {r['log']} | {r['lines']:,} | {r['templates']:,} | {r['seconds']} | {r['lines_per_s']:,} "
+                  f"| {r['lines_per_cpu_s']:,} | {r['wall_seconds']} | {r['peak_rss_MB']} |")
+    before = [r for r in rows if "before_seconds" in r]
+    if before:
+        md += ["", f"Before / after, the log reader's first pass (`logs.learn`) in both versions (before: "
+               f"{args.before_label or args.before}; best of as many runs, one for the gdb log):", "",
+               "| log | templates before | lines/s before | lines per CPU s before | templates after | lines/s after "
+               "| lines per CPU s after | speed-up (CPU) |",
+               "| --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |"]
+        for r in before:
+            md.append(f"| {r['log']} | {r['before_templates']:,} | {r['before_lines_per_s']:,} | {r['before_lines_per_cpu_s']:,} "
+                      f"| {r['templates']:,} | {r['learn_lines_per_s']:,} | {r['learn_lines_per_cpu_s']:,} "
+                      f"| {r['learn_lines_per_cpu_s'] / r['before_lines_per_cpu_s']:.1f}x |")
+    md += ["", "Grouping accuracy (Zhu et al. 2019) on the labelled logs of reference/logs:", "",
+           "| log | lines | labelled kinds | templates | grouping accuracy |", "| --- | ---: | ---: | ---: | ---: |"]
+    for a in acc:
+        md.append(f"| {a['log']} | {a['lines']:,} | {a['kinds']} | {a['templates']} | {a['grouping_accuracy']} |")
+    if skipped:
+        md += ["", "Skipped (missing or unreadable here): " + ", ".join(skipped)]
+    md.append("")
+    write_results("logs", result, "\n".join(md))
+
+
+if __name__ == "__main__":
+    main()

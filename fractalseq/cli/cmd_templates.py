@@ -1,0 +1,128 @@
+"""``fractalseq templates``: the template table mined from event logs, and each line's template."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+from fractalseq.cli import common
+from fractalseq.io._outputs import check_writable, prepare_folder, to_json, write_csv, write_text
+
+# characters that a terminal could act on: C0 and C1 controls, DEL, and the bidirectional-text controls
+_UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+_NAMED = {"\t": "\\t", "\r": "\\r", "\n": "\\n"}
+
+
+def _escape_char(m: re.Match) -> str:
+    c = m.group(0)
+    named = _NAMED.get(c)
+    if named:
+        return named
+    o = ord(c)
+    return f"\\x{o:02x}" if o < 0x100 else f"\\u{o:04x}"
+
+
+def safe(text: str) -> str:
+    """``text`` with every terminal control character shown as an escape (``\\x1b``, ``\\r``, ``\\u202e``)."""
+    return _UNSAFE.sub(_escape_char, text)
+
+
+def _json_safe(doc: str) -> str:
+    # JSON escapes C0 controls itself; DEL, C1 and bidirectional controls are legal raw, so escape them too
+    return re.sub("[\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]", lambda m: f"\\u{ord(m.group(0)):04x}", doc)
+
+
+def _fields_text(t: dict) -> str:
+    parts = []
+    for name in ("hosts", "programs", "levels"):
+        values = t.get(name) or {}
+        if values:
+            parts.append(name + " " + ", ".join(f"{v} {c:,}" for v, c in values.items()))
+    return "; ".join(parts)
+
+
+def templates(
+    paths: List[str] = typer.Argument(..., help="Log files (optionally compressed), mined together as one sequence; - reads standard input."),
+    csv_file: Optional[Path] = typer.Option(None, "--csv", help="Also write the table to this CSV file (atomically; not overwritten without --force)."),
+    out: Optional[Path] = common.OUT,
+    json_out: bool = common.JSON,
+    quiet: bool = common.QUIET,
+    force: bool = common.FORCE,
+) -> None:
+    """Mine the templates of event logs: one row per template, with its count, first line and an example.
+
+    Several logs share one table (mined over their union, in the order given),
+    with a count per log.  --json also gives the template id of every line
+    (null for a blank line).  --out writes templates.json and templates.csv.
+    Drift reports on logs are no security guarantee.
+
+    Example: fractalseq templates /var/log/dpkg.log --csv dpkg-templates.csv
+    """
+    from fractalseq.jobs._templates import mine_logs  # imported here: --help and completion need speed
+
+    if csv_file is not None:
+        check_writable(csv_file, force)
+    if out is not None:
+        prepare_folder(out, force)  # before reading: a refused run leaves nothing behind
+    with common.progress(quiet) as bar:
+        task = bar.add_task("mining templates", total=len(paths))
+        run = mine_logs(paths, on_input=lambda _: bar.advance(task))
+    if csv_file is not None:
+        header, rows = run.csv_rows()
+        write_csv(csv_file, header, rows, force=force)
+    if out is not None:
+        header, rows = run.csv_rows()
+        write_text(out / "templates.json", to_json(run.to_dict()), force=force)
+        write_csv(out / "templates.csv", header, rows, force=force)
+    if not quiet:
+        for log in run.inputs:
+            for note in log.notes():
+                common.err_console.print(Text(f"{safe(log.name)}: {note}"))
+    if json_out:
+        typer.echo(_json_safe(to_json(run.to_dict())), nl=False)
+        return
+    _print_table(run)
+    if not quiet:
+        for target in [p for p in (csv_file, out) if p is not None]:
+            common.err_console.print(Text(f"wrote {safe(str(target))}"))
+
+
+def _print_table(run) -> None:
+    several = len(run.inputs) > 1
+    total = sum(log.lines - log.blank for log in run.inputs)
+    title = Text(f"{len(run.templates):,} templates in {total:,} lines of " + ", ".join(safe(log.name) for log in run.inputs))
+    table = Table(title=title, title_justify="left")
+    table.add_column("id", justify="right", overflow="fold")
+    table.add_column("template", overflow="fold")
+    table.add_column("count", justify="right", overflow="fold")
+    table.add_column("first line", justify="right", overflow="fold")
+    if several:
+        for log in run.inputs:
+            table.add_column(Text(safe(log.name)), justify="right", overflow="fold")
+    table.add_column("example", overflow="fold")
+    table.add_column("header fields", overflow="fold")
+    for t in run.templates:
+        first = f"{t['first_line']:,}"
+        if several:
+            first = f"{safe(run.inputs[t['first_input']].name)}:{first}"
+        row = [Text(str(t["id"])), Text(safe(t["text"])), Text(f"{t['count']:,}"), Text(first)]
+        if several:
+            row += [Text(f"{c:,}") for c in t["counts"]]
+        row += [Text(safe(t["example"])), Text(safe(_fields_text(t)))]
+        table.add_row(*row)
+    console = common.out_console
+    if not console.is_terminal:
+        # off a terminal nothing is cut: the table is as wide as its widest row
+        need = Console(width=1 << 20).measure(table).maximum
+        console = Console(width=max(need, 20), highlight=False, emoji=False)
+    console.print(table)
+
+
+def register(app: typer.Typer) -> None:
+    app.command("templates")(templates)
