@@ -5,8 +5,9 @@ numpy's own ``.npy`` writer (``numpy.lib.format.write_array``), the reference
 implementations of the ZIP and NPY formats; checksums are stdlib ``hashlib``
 SHA-256.  Each refusal must be one sentence; for the zip bomb and the huge
 declared sizes the read runs in a child interpreter whose peak resident memory
-(``resource.getrusage(RUSAGE_SELF).ru_maxrss``, kilobytes on Linux) must stay
-far below the declared size.
+(``VmHWM`` of ``/proc/self/status``, kilobytes) must stay far below the declared
+size.  ``ru_maxrss`` is not used: Linux carries a process's peak across
+``execve``, so a child of a large test process would report its parent's peak.
 """
 
 from __future__ import annotations
@@ -95,7 +96,7 @@ def refused(path: Path, *, max_bytes: int = 1 << 30, **kw) -> str:
 
 
 _CHILD = r"""
-import json, resource, sys
+import json, sys
 from fractalseq.errors import ModelFileError
 from fractalseq.io._npz import read_container
 try:
@@ -103,7 +104,8 @@ try:
     out = {"error": None}
 except ModelFileError as exc:
     out = {"error": str(exc)}
-out["maxrss_kb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+with open("/proc/self/status") as status:  # peak resident set of this process image only
+    out["maxrss_kb"] = next(int(line.split()[1]) for line in status if line.startswith("VmHWM:"))
 print(json.dumps(out))
 """
 
