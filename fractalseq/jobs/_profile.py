@@ -48,7 +48,8 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.encoding import check_ratio, corner_layout, density_image, overlap_check, points
 from fractalseq.errors import FractalseqError, InputError, ParameterError
 from fractalseq.jobs._inputs import ReaderOptions, check_seed
-from fractalseq.jobs._profile_result import ProfileResult, ScalingCurve
+from fractalseq.jobs._profile_rates import annotate_rows, choose_rate, evidence_rates, ordinal_order, safe_ordinal_entropy
+from fractalseq.jobs._profile_result import RATE_NAMES, ProfileResult, ScalingCurve
 from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
@@ -89,6 +90,7 @@ STEPS = (
     "online predictor",
     "absent words",
     "encoding image",
+    "permutation entropy",
 )
 
 
@@ -304,9 +306,13 @@ class _Entropies:
 
 
 def _block_entropies(arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], notes: list[str]) -> _Entropies:
-    """Block entropies, entropy-rate estimates, Rényi rates and topological entropies from the counts."""
-    rows = tuple(ent.entropy_table(wc))
-    rate_est = {m: ent.h_difference(wc, None, m) for m in ent.METHODS}
+    """Block entropies, entropy-rate estimates, Rényi rates and topological entropies from the counts.
+
+    The rates are read at the block length the counts support (:func:`fractalseq.jobs._profile_rates.evidence_rates`).
+    """
+    order = ordinal_order(arr)
+    rows = annotate_rows(tuple(ent.entropy_table(wc)), order)
+    rate_est, _ = evidence_rates(wc, order)
     renyi = tuple(ent.h_renyi(wc, q) for q in user_qs)
     topo = ent.h_topological_growth(wc)
     try:
@@ -531,8 +537,17 @@ def profile_source(
     absent = _absent_words(wc, L, absent_list, notes)
     clock.step("encoding image")  # 8. encoding image
     img, levels_img = _encoding_image(arr, k, image)
+    clock.step("permutation entropy")  # 9. ordinal patterns: permutation entropy
+    order = ordinal_order(arr)
+    permutation = safe_ordinal_entropy(arr, order, n_boot, seed, level, notes)
     clock.step("")
 
+    choice = choose_rate(rates, arr.alphabet.size, order, RATE_NAMES)  # every rate held to the bounds it has
+    if choice.estimator != "grassberger":
+        notes.append(f"entropy rate: {choice.reason}")
+    notes.extend(f"entropy rate ({name}): {rates[name][1].estimate:.4f} bits/symbol lies outside [0, {choice.upper_bound:.4f}], "
+                 f"the smallest upper bound ({choice.upper_bound_by})" for name, ok in choice.within.items()
+                 if not ok and rates[name][0] == "estimate" and name != "grassberger")
     notes.extend(_reliability_notes(rates, found.topological, absent))
     settings = {
         "lz_max_length": lz_max_length,
@@ -569,4 +584,6 @@ def profile_source(
         settings=settings,
         notes=tuple(dict.fromkeys(notes)),
         timings=clock.timings,
+        permutation=permutation,
+        rate_choice=choice,
     )
