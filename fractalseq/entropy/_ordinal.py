@@ -220,7 +220,7 @@ def _plugin_bits(counts: np.ndarray) -> float:
     if n <= 0:
         return float("nan")
     p = c / n
-    return float(-(p * np.log2(p)).sum())
+    return float(-(p * np.log2(p)).sum()) + 0.0  # + 0.0: never -0.0
 
 
 @dataclass(frozen=True)

@@ -48,7 +48,9 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.encoding import check_ratio, corner_layout, density_image, overlap_check, points
 from fractalseq.errors import FractalseqError, InputError, ParameterError
 from fractalseq.jobs._inputs import ReaderOptions, check_seed
-from fractalseq.jobs._profile_rates import annotate_rows, choose_rate, evidence_rates, ordinal_order, safe_ordinal_entropy
+from fractalseq.jobs._profile_rates import (
+    annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_order, safe_ordinal_entropy,
+)
 from fractalseq.jobs._profile_result import RATE_NAMES, ProfileResult, ScalingCurve
 from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract
 from fractalseq.stream import SymbolArray, SymbolStream
@@ -523,6 +525,9 @@ def profile_source(
 
     clock.step("counting words")  # 1. words, counted once
     wc = count_words(arr, N)
+    if depth is None:  # a source with memory supports longer words than the fixed rule counts
+        wc = deepen_counts(arr, wc, MAX_AUTO_DEPTH)
+        N = wc.depth
     clock.step("block entropies")  # 2. block entropies and rate estimates
     found = _block_entropies(arr, wc, user_qs, notes)
     clock.step("dimensions")  # 3. dimensions, f(alpha) and the scaling data

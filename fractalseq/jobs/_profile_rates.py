@@ -25,9 +25,9 @@ from fractalseq.entropy._depth import EvidenceDepth, evidence_depth, ordinal_pos
 from fractalseq.entropy._ordinal import OrdinalEntropy, permutation_entropy_of_codes
 from fractalseq.errors import FractalseqError
 from fractalseq.stream import SymbolArray
-from fractalseq.words._counts import WordCounts
+from fractalseq.words._counts import WordCounts, count_words
 
-__all__ = ["annotate_rows", "choose_rate", "evidence_rates", "ordinal_entropy", "ordinal_order"]
+__all__ = ["annotate_rows", "choose_rate", "deepen_counts", "evidence_rates", "ordinal_entropy", "ordinal_order"]
 
 _ORDINAL = re.compile(r"ordinal(\d+)")
 
@@ -62,8 +62,21 @@ def evidence_rates(wc: WordCounts, order: int = 0) -> tuple[dict[str, ent.Entrop
         details = dict(e.details)
         details["rule"] = ev.to_dict()["rule"]
         details["fixed_rule_depth"] = ev.fixed_rule_depth
-        out[m] = dataclasses.replace(e, reliable=ev.supported, note=note, details=details)
+        out[m] = dataclasses.replace(e, estimate=e.estimate + 0.0, reliable=ev.supported, note=note, details=details)  # never -0.0
     return out, ev
+
+
+def deepen_counts(arr: SymbolArray, wc: WordCounts, cap: int) -> WordCounts:
+    """Count deeper (up to ``cap``) while the counts support every word length counted.
+
+    The default counted depth comes from the fixed rule; a source with memory (few of its possible
+    words occur) supports longer words, and its rate is read too shallow unless they are counted.
+    """
+    order = ordinal_order(arr)
+    cap = int(min(cap, arr.alphabet.max_depth))
+    while wc.depth < cap and evidence_depth(wc, min_depth=1 if order else 0).limited_by_count:
+        wc = count_words(arr, int(min(cap, wc.depth + 4)))
+    return wc
 
 
 def ordinal_entropy(arr: SymbolArray, order: int, n_boot: int, seed: int, level: float) -> OrdinalEntropy:

@@ -34,7 +34,11 @@ For both, the symbol of ``x`` is the number of edges ``<= x``
     order of appearance (a stable sort: the earlier value counts as smaller).
     The alphabet is all ``m!`` permutations in lexicographic order, written as
     digit strings (``"012"`` is the identity, code 0).  A NaN-free run of
-    length ``L`` gives ``L - m + 1`` symbols in one segment.
+    length ``L`` gives ``L - m + 1`` symbols in one segment.  The reader uses
+    delay 1 (consecutive values) and ties by time; an embedding delay
+    ``tau`` and ties broken by a seeded random dither are available on
+    arrays through :func:`fractalseq.entropy._ordinal.ordinal_patterns`,
+    which gives the same codes for delay 1 and ties by time.
 """
 
 from __future__ import annotations
@@ -351,6 +355,7 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
     }
     if p.method == "ordinal":
         info["order"] = p.order
+        info["delay"] = 1
         info["tie_rule"] = "stable: equal values ordered by appearance"
     else:
         info["edges"] = [float(e) for e in p.edges]
