@@ -217,3 +217,20 @@ def test_html_report_has_no_raw_values(tmp_path):
         assert re.search(raw, text) is None, raw
     assert "Ordinal patterns" in text and "permutation entropy" in text
     assert (page.parent / "permutation.csv").is_file()
+
+
+def test_time_column_is_skipped_by_default(tmp_path):
+    # both files start with a time column (YEAR; date as YYYYMMDD): the measurement is the column to read
+    sun = open_source(SUNSPOTS, fmt="numeric", ordinal=3).to_array().report.extra["numeric"]
+    assert (sun["column"], sun["time_column"]) == ("SUNACTIVITY", "YEAR")
+    co2 = open_source(CO2, fmt="numeric", bins=4).to_array().report.extra["numeric"]
+    assert (co2["column"], co2["time_column"]) == ("co2", "date")
+    # a lone column is read even when it increases, and a measurement column first in the file is kept
+    lone = tmp_path / "lone.csv"
+    lone.write_text("count\n1\n2\n3\n5\n8\n")
+    info = open_source(lone, fmt="numeric", bins=2).to_array().report.extra["numeric"]
+    assert (info["column"], info["time_column"]) == ("count", None)
+    first = tmp_path / "first.csv"
+    first.write_text("level,t\n0.5,1\n0.2,2\n0.9,3\n0.4,4\n")
+    info = open_source(first, fmt="numeric", bins=2).to_array().report.extra["numeric"]
+    assert (info["column"], info["time_column"]) == ("level", None)

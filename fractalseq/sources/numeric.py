@@ -8,7 +8,12 @@ line, else runs of whitespace.  The first non-blank, non-comment line is a
 header when one of its fields is neither a number nor a missing mark.  Lines
 starting with ``#`` are skipped, and so are blank lines before the first
 data line.  The default column is the first whose sampled values are mostly
-(at least half) numbers.  Later blank lines, missing marks (empty field,
+(at least half) numbers and that is not a time column, when another such
+column exists: a time column is one named ``time``, ``date``, ``datetime``,
+``timestamp``, ``year``, ``t`` or ``index`` (any case), or one whose sampled
+values are whole numbers increasing strictly (years, ``YYYYMMDD`` dates,
+sample numbers).  It is skipped, not used; its name is reported as
+``time_column``.  Later blank lines, missing marks (empty field,
 ``NA``, ``NaN``, ``null``, ``None``, ``N/A``, ``?``, ``-``, case-insensitive),
 infinite values and rows too short to hold the column are *missing*: they end
 the segment.  Any other non-number is an :class:`InputError` naming the line.
@@ -58,6 +63,8 @@ from fractalseq.sources.rawio import Origin, line_blocks
 from fractalseq.stream import Chunk, ReadReport, Record
 
 MISSING = frozenset({"", "na", "nan", "null", "none", "n/a", "?", "-"})
+#: Header names of columns that hold the time of a row rather than a measurement.
+TIME_NAMES = frozenset({"time", "date", "datetime", "timestamp", "year", "t", "index"})
 MAX_ORDER = 8
 _DIGITS = "0123456789abcdefghijklmnopqrstuvwxyz"
 
@@ -97,6 +104,7 @@ class Layout:
     header: list[str] | None
     column: int = 0
     column_name: str = ""
+    time_column: str = ""
 
 
 def _data_lines(lines: Sequence[str]) -> list[str]:
@@ -146,6 +154,17 @@ def looks_numeric(lines: Sequence[str]) -> bool:
     return bool(_numeric_columns(rows, max(widths)))
 
 
+def _time_like(name: str, rows: list[list[str]], c: int) -> bool:
+    """Whether column ``c`` holds the time of each row (see the module rules)."""
+    if name.strip().lower() in TIME_NAMES:
+        return True
+    vals = [r[c] for r in rows if len(r) > c and not _is_missing(r[c])]
+    if len(vals) < 3 or not all(_is_number(v) for v in vals):
+        return False
+    x = [float(v) for v in vals]
+    return all(v == int(v) for v in x) and all(b > a for a, b in zip(x, x[1:]))
+
+
 def choose_column(layout: Layout, sample: Sequence[str], column: str | int | None, name: str) -> Layout:
     """Fill ``layout.column`` from a name, an index, or the first numeric column."""
     data = _data_lines(sample)
@@ -173,7 +192,12 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
         found = _numeric_columns(rows, width, share=0.5)
         if not found:
             raise InputError(f"{name} has no column of numbers; check the file or name the column to read.")
-        idx = found[0]
+        heads = layout.header or []
+        timed = [c for c in found if _time_like(heads[c] if c < len(heads) else "", rows, c)]
+        rest = [c for c in found if c not in timed]
+        idx = rest[0] if rest else found[0]
+        if rest and timed and timed[0] < idx:
+            layout.time_column = heads[timed[0]] if timed[0] < len(heads) else str(timed[0])
     layout.column = idx
     layout.column_name = layout.header[idx] if layout.header and idx < len(layout.header) else str(idx)
     return layout
@@ -350,6 +374,7 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
         "column": layout.column_name,
         "column_index": layout.column,
         "method": p.method,
+        "time_column": layout.time_column or None,
         "values": int(values),
         "missing": int(missing),
     }
