@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from fractalseq.entropy import ordinal_patterns, permutation_entropy, permutation_entropy_of_codes
+from fractalseq.entropy import ordinal_patterns, permutation_entropy, permutation_entropy_of_codes, permutation_entropy_orders
 from fractalseq.entropy._ordinal import sub_pattern_map
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.jobs._profile import profile_source
@@ -168,6 +168,21 @@ def test_logistic_map_pattern_stream_rate_is_at_most_one_bit(orbit):
         assert pe["order"] == m and pe["conditional_bits"] <= 1.0
         assert d["rate_to_use"]["estimate"] <= 1.0
     assert pe["bits"] == pytest.approx(4.70, abs=0.02)  # order 5, the figure in the issue's simulation
+
+
+def test_logistic_map_per_step_forms_across_orders(orbit):
+    # The Kolmogorov-Sinai entropy of the logistic map at r = 4 is 1 bit per step. The increments H(m+1) - H(m)
+    # of single-pattern entropies approach it slowly from above (Bandt, Keller & Pompe 2002, Nonlinearity 15:1595,
+    # from memory; 1.31, 1.28, 1.22 bits for m = 4, 5, 6 in a 2-million-step simulation reported with the issue),
+    # while the entropy of the next pattern given the current one stays at or below 1 bit and rises toward it.
+    rows = permutation_entropy_orders(orbit, range(3, 8))
+    assert [r["distinct"] for r in rows] == [5, 12, 31, 75, 178]  # Amigó et al. 2007 (from memory), orders 3..7
+    inc = {r["order"] - 1: r["increment_bits"] for r in rows[1:]}
+    for m, expect in ((4, 1.31), (5, 1.28), (6, 1.22)):
+        assert inc[m] == pytest.approx(expect, abs=0.01), m
+    cond = [r["conditional_bits"] for r in rows]
+    assert all(c <= 1.0 for c in cond) and cond == sorted(cond)
+    assert cond[-1] > 0.95
 
 
 @pytest.mark.parametrize("m", [3, 4, 5, 6])

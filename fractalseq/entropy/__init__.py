@@ -28,4 +28,6 @@ __all__ = [
     "h_compressors", "h_difference", "h_lz76", "h_ratio", "h_renyi", "h_topological_growth",
     "h_topological_koslicki", "lz76_complexity", "lz76_phrases", "rate_from_counts", "renyi_rate_from_counts",
 ]
-from fractalseq.entropy._ordinal import OrdinalEntropy, ordinal_patterns, permutation_entropy, permutation_entropy_of_codes  # noqa: E402,F401
+from fractalseq.entropy._ordinal import (  # noqa: E402,F401
+    OrdinalEntropy, ordinal_patterns, permutation_entropy, permutation_entropy_of_codes, permutation_entropy_orders,
+)
