@@ -20,7 +20,7 @@ BOOT = typer.Option(
 QS = typer.Option("0,1,2", "--q", help="Orders q of the dimensions, Rényi rates and consistency table, comma-separated.")
 PROFILE_DEPTH = typer.Option(
     None, "--depth", "-n",
-    help="Deepest word length (symbols) of the block-entropy table (default: three past the deepest length the data support, at most 12).",
+    help="Deepest word length (symbols) of the block-entropy table (default: deep enough for the longest words the data support, at most 12).",
 )
 LEVEL = typer.Option(0.95, "--level", help="Confidence level of the intervals, between 0.5 and 1.")
 

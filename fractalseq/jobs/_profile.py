@@ -6,7 +6,10 @@ package has and gathers the results in a :class:`ProfileResult`:
 * exact word counts (counted once, reused by the entropy estimators and the
   absent-word scan);
 * block entropies ``H_n`` by block length (plug-in, Miller–Madow,
-  Grassberger) and entropy-rate estimates with block-bootstrap intervals;
+  Grassberger) and entropy-rate estimates with block-bootstrap intervals, read at
+  the block length the counts support (:mod:`fractalseq.entropy._depth`) and held
+  to the upper bounds computed on the same data (:mod:`fractalseq.entropy._bounds`);
+* for a stream of ordinal patterns, the permutation entropy (:mod:`fractalseq.entropy._ordinal`);
 * Rényi entropy rates, topological entropy (growth and Koslicki), LZ76,
   compressor bounds, and the online predictor's code length (an upper bound
   on the information content);
@@ -491,7 +494,8 @@ def profile_source(
         Orders q of the dimensions, Rényi rates and consistency table.
     depth:
         Deepest word length of the block-entropy table; default
-        :func:`auto_depth` (three past the deepest reliable length, at most 12).
+        :func:`auto_depth` (three past the fixed rule's length), counted deeper while
+        every counted length is supported by the counts (at most 12).
     n_boot:
         Block-bootstrap replicates of every interval (0: none; else at least 20).
     seed:
