@@ -233,4 +233,27 @@ def test_time_column_is_skipped_by_default(tmp_path):
     first = tmp_path / "first.csv"
     first.write_text("level,t\n0.5,1\n0.2,2\n0.9,3\n0.4,4\n")
     info = open_source(first, fmt="numeric", bins=2).to_array().report.extra["numeric"]
-    assert (info["column"], info["time_column"]) == ("level", None)
+    assert (info["column"], info["time_column"]) == ("level", "t")  # read first; t is still the time column
+
+
+def test_time_column_gaps_end_a_segment(tmp_path):
+    # an invented daily series with three days left out (Jan 11-13): the step of 4 days is a gap, not a missing value
+    days = list(range(1, 11)) + list(range(14, 21))
+    rows = ["date,load"] + [f"2024-01-{d:02d},{math.sin(d):.3f}" for d in days]
+    path = tmp_path / "daily.csv"
+    path.write_text("\n".join(rows) + "\n")
+    arr = open_source(path, fmt="numeric", bins=2).to_array()
+    info = arr.report.extra["numeric"]
+    assert (info["time_column"], info["time_step"], info["time_unit"], info["time_gaps"]) == ("date", 86400.0, "seconds", 1)
+    assert info["values"] == 17 and info["missing"] == 0 and arr.report.dropped == {}
+    assert arr.starts.tolist() == [0, 10] and len(arr) == 17
+    # ordinal windows never span the gap: 10 - 2 and 7 - 2 windows of three
+    pats = open_source(path, fmt="numeric", ordinal=3).to_array()
+    assert pats.starts.tolist() == [0, 8] and len(pats) == 8 + 5
+    # the same dates as YYYYMMDD numbers are read as days
+    path.write_text("\n".join(["day,load"] + [f"202401{d:02d},{math.sin(d):.3f}" for d in days]) + "\n")
+    info = open_source(path, fmt="numeric", bins=2).to_array().report.extra["numeric"]
+    assert (info["time_step"], info["time_unit"], info["time_gaps"]) == (1.0, "days", 1)
+    # the weekly CO2 file lists its missing weeks as empty rows: no gaps in its dates, 59 missing values
+    co2 = open_source(CO2, fmt="numeric", bins=4).to_array().report.extra["numeric"]
+    assert (co2["time_step"], co2["time_gaps"], co2["missing"]) == (7.0, 0, 59)

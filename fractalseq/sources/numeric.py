@@ -13,7 +13,18 @@ column exists: a time column is one named ``time``, ``date``, ``datetime``,
 ``timestamp``, ``year``, ``t`` or ``index`` (any case), or one whose sampled
 values are whole numbers increasing strictly (years, ``YYYYMMDD`` dates,
 sample numbers).  It is skipped, not used; its name is reported as
-``time_column``.  Later blank lines, missing marks (empty field,
+``time_column``.
+
+Time column and gaps
+--------------------
+Whichever column is read, the first *other* column that looks like a time
+(a time-like name, whole numbers increasing strictly, or values that parse as
+ISO dates) is the time column.  ``YYYYMMDD`` whole numbers are read as dates
+(days), ISO dates and times as seconds, other numbers as they are.  When the
+sampled time steps are regular (nine in ten within half to one and a half
+times their median), a step longer than 1.5 times the median is a *gap*: it
+ends the segment like a missing value (reported as ``time_gaps``, not as
+missing values).  Irregular times are not used.  Later blank lines, missing marks (empty field,
 ``NA``, ``NaN``, ``null``, ``None``, ``N/A``, ``?``, ``-``, case-insensitive),
 infinite values and rows too short to hold the column are *missing*: they end
 the segment.  Any other non-number is an :class:`InputError` naming the line.
@@ -105,6 +116,9 @@ class Layout:
     column: int = 0
     column_name: str = ""
     time_column: str = ""
+    time_index: int = -1
+    time_step: float = 0.0
+    time_unit: str = ""
 
 
 def _data_lines(lines: Sequence[str]) -> list[str]:
@@ -165,6 +179,75 @@ def _time_like(name: str, rows: list[list[str]], c: int) -> bool:
     return all(v == int(v) for v in x) and all(b > a for a, b in zip(x, x[1:]))
 
 
+def time_numbers(fields: Sequence[str]) -> np.ndarray:
+    """Times as numbers: ``YYYYMMDD`` whole numbers as days, ISO dates/times as seconds, numbers as they are; NaN if unreadable."""
+    return _time_numbers(fields)[0]
+
+
+def _time_numbers(fields: Sequence[str]) -> tuple[np.ndarray, str]:
+    """:func:`time_numbers` and the unit (``days``, ``seconds`` or ``""`` for numbers as given); vectorised."""
+    texts = np.char.strip(np.asarray(list(fields), dtype=str))
+    out = np.full(texts.size, np.nan)
+    present = texts != ""
+    if not present.any():
+        return out, ""
+    try:
+        x = texts[present].astype(np.float64)
+    except ValueError:
+        x = None
+    if x is not None:
+        whole = bool(np.all(x == np.floor(x)))
+        if whole and bool(np.all((x >= 10000101) & (x <= 99991231))):
+            y, m, d = (x // 10000).astype(np.int64), (x // 100 % 100).astype(np.int64), (x % 100).astype(np.int64)
+            if bool(np.all((m >= 1) & (m <= 12) & (d >= 1) & (d <= 31))):
+                months = (y - 1970) * 12 + (m - 1)
+                days = months.astype("datetime64[M]").astype("datetime64[D]") + (d - 1)
+                out[present] = days.astype(np.int64).astype(np.float64)
+                return out, "days"
+        out[present] = x
+        return out, ""
+    iso = np.char.replace(texts[present], " ", "T")
+    try:
+        out[present] = iso.astype("datetime64[s]").astype(np.int64).astype(np.float64)
+    except ValueError:
+        vals = np.full(iso.size, np.nan)
+        for i, f in enumerate(iso):  # mixed readable and unreadable times: one by one (rare)
+            try:
+                vals[i] = float(np.datetime64(str(f), "s").astype(np.int64))
+            except ValueError:
+                pass
+        out[present] = vals
+    return out, "seconds"
+
+
+def _find_time_column(layout: Layout, rows: list[list[str]], width: int) -> None:
+    """Set the layout's time column (the first column other than the one read that looks like a time) and its step."""
+    heads = layout.header or []
+    for c in range(width):
+        if c == layout.column:
+            continue
+        vals = [r[c] for r in rows if len(r) > c and not _is_missing(r[c])]
+        name = heads[c] if c < len(heads) else ""
+        t, unit = _time_numbers(vals)
+        parsed = bool(vals) and bool(np.all(np.isfinite(t)))
+        if not parsed:
+            continue
+        strictly = t.size >= 3 and bool(np.all(np.diff(t) > 0))
+        numeric_int = all(_is_number(v) and float(v) == int(float(v)) for v in vals)
+        if name.strip().lower() in TIME_NAMES or (strictly and (numeric_int or not all(_is_number(v) for v in vals))):
+            layout.time_index = c
+            layout.time_unit = unit
+            if not layout.time_column:
+                layout.time_column = name or str(c)
+            steps = np.diff(t)
+            steps = steps[steps > 0]
+            if steps.size >= 2:
+                med = float(np.median(steps))
+                if np.mean((steps >= 0.5 * med) & (steps <= 1.5 * med)) >= 0.9:
+                    layout.time_step = med
+            return
+
+
 def choose_column(layout: Layout, sample: Sequence[str], column: str | int | None, name: str) -> Layout:
     """Fill ``layout.column`` from a name, an index, or the first numeric column."""
     data = _data_lines(sample)
@@ -200,16 +283,22 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
             layout.time_column = heads[timed[0]] if timed[0] < len(heads) else str(timed[0])
     layout.column = idx
     layout.column_name = layout.header[idx] if layout.header and idx < len(layout.header) else str(idx)
+    _find_time_column(layout, rows, width)
     return layout
 
 
-def parse_values(lines: list[str], first_line: int, layout: Layout, name: str, started: bool) -> tuple[np.ndarray, bool]:
+def parse_values(
+    lines: list[str], first_line: int, layout: Layout, name: str, started: bool, clock: dict | None = None
+) -> tuple[np.ndarray, bool]:
     """Values of the chosen column in ``lines`` (NaN for missing).
 
     Comment lines are skipped; so are blank lines and the header before the
     first data line (``started`` says whether it was seen in an earlier
-    block).  Later blank lines are missing values.  Returns the values and
-    the updated ``started``.
+    block).  Later blank lines are missing values.  With a regular time
+    column (``layout.time_step > 0``) and a ``clock`` (``{"last": None,
+    "gaps": 0}``, carried across blocks), a NaN is inserted before each row
+    that follows a gap, and ``clock["gaps"]`` counts them.  Returns the values
+    and the updated ``started``.
     """
     keep: list[tuple[int, str]] = []
     for i, ln in enumerate(lines):
@@ -242,18 +331,32 @@ def parse_values(lines: list[str], first_line: int, layout: Layout, name: str, s
                 ) from None
         raise  # pragma: no cover - astype failed yet every field parses
     out[~np.isfinite(out)] = np.nan
+    if clock is not None and layout.time_step > 0 and layout.time_index >= 0:
+        tc = layout.time_index
+        t = time_numbers([r[tc] if len(r) > tc else "" for r in rows])
+        prev = np.concatenate([[np.nan if clock["last"] is None else clock["last"]], t[:-1]])
+        # carry the last readable time forward over rows whose time is missing
+        pos = np.where(np.isfinite(prev), np.arange(prev.size), 0)
+        filled = prev[np.maximum.accumulate(pos)]
+        gap = np.flatnonzero((t - filled) > 1.5 * layout.time_step)
+        good = t[np.isfinite(t)]
+        if good.size:
+            clock["last"] = float(good[-1])
+        if gap.size:
+            clock["gaps"] += int(gap.size)
+            out = np.insert(out, gap, np.nan)
     return out, started
 
 
-def value_blocks(origin: Origin, layout: Layout, block_size: int) -> Iterator[np.ndarray]:
-    """The column's values block by block (NaN = missing)."""
+def value_blocks(origin: Origin, layout: Layout, block_size: int, clock: dict | None = None) -> Iterator[np.ndarray]:
+    """The column's values block by block (NaN = missing, or a gap in the time column when ``clock`` is given)."""
     started = False
     for first_line, block in line_blocks(origin, block_size):
         text = block.decode("utf-8", errors="replace")
         lines = text.split("\n")
         if lines and lines[-1] == "":
             lines.pop()
-        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started)
+        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started, clock)
         yield vals
 
 
@@ -327,12 +430,13 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
     """Second pass: symbols of the column, NaN ending the segment."""
     dtype = p.alphabet.code_dtype
     total = segments = missing = values = 0
+    clock: dict = {"last": None, "gaps": 0}
     if p.method == "ordinal":
         m = p.order
         fact = np.array([math.factorial(i) for i in range(m + 1)], dtype=np.int64)
         carry = np.zeros(0)
         in_seg = 0
-        for v in value_blocks(origin, layout, block_size):
+        for v in value_blocks(origin, layout, block_size, clock):
             if v.size == 0:
                 continue
             values += v.size
@@ -350,7 +454,7 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
             segments += ns
     else:
         prev_valid = False
-        for v in value_blocks(origin, layout, block_size):
+        for v in value_blocks(origin, layout, block_size, clock):
             if v.size == 0:
                 continue
             values += v.size
@@ -366,15 +470,26 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
                 yield Chunk(codes, starts)
             total += codes.size
             segments += starts.size
+    gaps = int(clock["gaps"])
+    values -= gaps
+    missing -= gaps
     report.symbols = int(total)
     report.segments = int(segments)
     report.drop("missing value", int(missing))
+    if gaps:
+        report.notes.append(
+            f"{gaps} gap(s) in the time column {layout.time_column!r} (steps over 1.5 times the usual {layout.time_step:g}"
+            f"{' ' + layout.time_unit if layout.time_unit else ''}) end a segment"
+        )
     report.records = [Record(origin.name, 0, int(total))]
     info = {
         "column": layout.column_name,
         "column_index": layout.column,
         "method": p.method,
         "time_column": layout.time_column or None,
+        "time_step": layout.time_step or None,
+        "time_unit": layout.time_unit or None,
+        "time_gaps": gaps,
         "values": int(values),
         "missing": int(missing),
     }
