@@ -1,4 +1,5 @@
-"""Entropy of a symbolic source: block entropies, entropy rates, Rényi and topological rates, LZ76, bounds.
+"""Entropy of a symbolic source: block entropies, entropy rates, Rényi and topological rates, LZ76, bounds,
+permutation entropy of ordinal patterns.
 
 Every estimate is an :class:`EntropyEstimate` in bits (per symbol for rates),
 with an interval where one is computed and ``reliable=False`` plus a note when
