@@ -20,7 +20,7 @@ BOOT = typer.Option(
 QS = typer.Option("0,1,2", "--q", help="Orders q of the dimensions, Rényi rates and consistency table, comma-separated.")
 PROFILE_DEPTH = typer.Option(
     None, "--depth", "-n",
-    help="Deepest word length (symbols) of the block-entropy table (default: three past the deepest length the data support, at most 12).",
+    help="Deepest word length (symbols) of the block-entropy table (default: deep enough for the longest words the data support, at most 12).",
 )
 LEVEL = typer.Option(0.95, "--level", help="Confidence level of the intervals, between 0.5 and 1.")
 
@@ -52,14 +52,28 @@ def _check_out(out: Optional[Path], force: bool) -> None:
 
 
 def _fmt(v, digits: int = 4) -> str:
-    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+    if v is None or isinstance(v, bool) or (isinstance(v, float) and not math.isfinite(v)):
         return "–"
     return f"{v:.{digits}f}"
 
 
+def _interval(low, high) -> str:
+    """``[low, high]``, or nothing when no interval was computed."""
+    if low is None or high is None:
+        return ""
+    return f"[{_fmt(low)}, {_fmt(high)}]"
+
+
+def _depths(first, last) -> str:
+    """The scaling range of a D_q as words, never a raw ``None``."""
+    if first is None or last is None:
+        return "no scaling range found"
+    return f"depths {first}-{last}" if first != last else f"depth {first}"
+
+
 RATE_SHORT = {
     "plugin": "h plug-in", "miller-madow": "h Miller-Madow", "grassberger": "h Grassberger", "lz76": "h LZ76",
-    "compressors": "h <= compressors", "online_predictor": "h <= online predictor",
+    "compressors": "h <= compressors", "online_predictor": "h <= online predictor", "alphabet": "the alphabet's limit",
 }
 
 
@@ -73,14 +87,31 @@ def _print_tables(result, quiet: bool) -> None:
     t.add_column(f"{result.level:.0%} interval", justify="right", no_wrap=True)
     t.add_column("note")
     for r in d["dimensions"]:
-        t.add_row(f"D_{r['q']:g}", _fmt(r["estimate"]), f"[{_fmt(r['low'])}, {_fmt(r['high'])}]",
-                  f"depths {r['scaling_range'][0]}-{r['scaling_range'][1]}" + ("" if r["reliable"] else ", see flags"))
+        t.add_row(f"D_{r['q']:g}", _fmt(r["estimate"]), _interval(r["low"], r["high"]),
+                  _depths(*r["scaling_range"]) + ("" if r["reliable"] else ", see flags"))
+    pe = d.get("permutation_entropy")
+    per = " per step" if pe else ""
     for name, r in d["entropy_rate_bits"].items():
-        interval = "" if r["low"] is None else f"[{_fmt(r['low'])}, {_fmt(r['high'])}]"
-        note = (f"n = {r['depth']}" if r["depth"] is not None else r["kind"]) + ("" if r["reliable"] else ", unreliable")
-        t.add_row(RATE_SHORT.get(name, name), _fmt(r["estimate"]), interval, note)
+        note = (f"n = {r['depth']}{per}" if r["depth"] is not None else r["kind"]) + ("" if r["reliable"] else ", unreliable")
+        if r.get("within_bounds") is False:
+            note += ", above the alphabet's limit" if r["kind"] == "upper bound" else ", above the smallest upper bound"
+        t.add_row(RATE_SHORT.get(name, name), _fmt(r["estimate"]), _interval(r["low"], r["high"]), note)
+    use = d.get("rate_to_use")
+    if use:
+        t.add_row("h to use", _fmt(use["estimate"]), _interval(use["low"], use["high"]),
+                  RATE_SHORT.get(use["estimator"], use["estimator"]) + f", within [0, {_fmt(use['upper_bound'])}]")
     topo = d["topological_entropy_bits"]
-    t.add_row("h_top", _fmt(topo["estimate"]), "", f"word growth, n = {topo['depth']}")
+    t.add_row("h_top", _fmt(topo["estimate"]), "", "word growth" + ("" if topo["depth"] is None else f", n = {topo['depth']}"))
+    if pe:
+        t.add_row(f"PE order {pe['order']}", _fmt(pe["bits"]), _interval(pe["low"], pe["high"]),
+                  f"bits of single patterns, delay {pe['delay']}, ties by {pe['ties']}")
+        t.add_row("PE normalized", _fmt(pe["normalized"]), _interval(pe["normalized_low"], pe["normalized_high"]),
+                  f"divided by log2({pe['order']}!)")
+        t.add_row("PE conditional", _fmt(pe["conditional_bits"]), "",
+                  f"next pattern given the current one, at most {_fmt(pe['conditional_max_bits'])}")
+        fb = pe["forbidden"]
+        t.add_row("patterns seen", f"{pe['distinct']} of {pe['possible']}", "",
+                  f"{fb['count']} never seen; {fb['expected_missing_if_uniform']:.3g} expected by chance if uniform")
     for r in d["consistency"]:
         t.add_row(f"consistency q={r['q']:g}", r["verdict"], "",
                   f"{_fmt(r['dimension_bits'])} vs {_fmt(r['entropy_bits'])}")

@@ -1,4 +1,5 @@
-"""Entropy of a symbolic source: block entropies, entropy rates, Rényi and topological rates, LZ76, bounds.
+"""Entropy of a symbolic source: block entropies, entropy rates, Rényi and topological rates, LZ76, bounds,
+permutation entropy of ordinal patterns.
 
 Every estimate is an :class:`EntropyEstimate` in bits (per symbol for rates),
 with an interval where one is computed and ``reliable=False`` plus a note when
@@ -28,3 +29,6 @@ __all__ = [
     "h_compressors", "h_difference", "h_lz76", "h_ratio", "h_renyi", "h_topological_growth",
     "h_topological_koslicki", "lz76_complexity", "lz76_phrases", "rate_from_counts", "renyi_rate_from_counts",
 ]
+from fractalseq.entropy._ordinal import (  # noqa: E402,F401
+    OrdinalEntropy, ordinal_patterns, permutation_entropy, permutation_entropy_of_codes, permutation_entropy_orders,
+)

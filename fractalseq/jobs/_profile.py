@@ -6,7 +6,10 @@ package has and gathers the results in a :class:`ProfileResult`:
 * exact word counts (counted once, reused by the entropy estimators and the
   absent-word scan);
 * block entropies ``H_n`` by block length (plug-in, Miller–Madow,
-  Grassberger) and entropy-rate estimates with block-bootstrap intervals;
+  Grassberger) and entropy-rate estimates with block-bootstrap intervals, read at
+  the block length the counts support (:mod:`fractalseq.entropy._depth`) and held
+  to the upper bounds computed on the same data (:mod:`fractalseq.entropy._bounds`);
+* for a stream of ordinal patterns, the permutation entropy (:mod:`fractalseq.entropy._ordinal`);
 * Rényi entropy rates, topological entropy (growth and Koslicki), LZ76,
   compressor bounds, and the online predictor's code length (an upper bound
   on the information content);
@@ -48,7 +51,10 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.encoding import check_ratio, corner_layout, density_image, overlap_check, points
 from fractalseq.errors import FractalseqError, InputError, ParameterError
 from fractalseq.jobs._inputs import ReaderOptions, check_seed
-from fractalseq.jobs._profile_result import ProfileResult, ScalingCurve
+from fractalseq.jobs._profile_rates import (
+    annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_order, safe_ordinal_entropy,
+)
+from fractalseq.jobs._profile_result import RATE_NAMES, ProfileResult, ScalingCurve
 from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
@@ -89,6 +95,7 @@ STEPS = (
     "online predictor",
     "absent words",
     "encoding image",
+    "permutation entropy",
 )
 
 
@@ -304,9 +311,13 @@ class _Entropies:
 
 
 def _block_entropies(arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], notes: list[str]) -> _Entropies:
-    """Block entropies, entropy-rate estimates, Rényi rates and topological entropies from the counts."""
-    rows = tuple(ent.entropy_table(wc))
-    rate_est = {m: ent.h_difference(wc, None, m) for m in ent.METHODS}
+    """Block entropies, entropy-rate estimates, Rényi rates and topological entropies from the counts.
+
+    The rates are read at the block length the counts support (:func:`fractalseq.jobs._profile_rates.evidence_rates`).
+    """
+    order = ordinal_order(arr)
+    rows = annotate_rows(tuple(ent.entropy_table(wc)), order)
+    rate_est, _ = evidence_rates(wc, order)
     renyi = tuple(ent.h_renyi(wc, q) for q in user_qs)
     topo = ent.h_topological_growth(wc)
     try:
@@ -483,7 +494,8 @@ def profile_source(
         Orders q of the dimensions, Rényi rates and consistency table.
     depth:
         Deepest word length of the block-entropy table; default
-        :func:`auto_depth` (three past the deepest reliable length, at most 12).
+        :func:`auto_depth` (three past the fixed rule's length), counted deeper while
+        every counted length is supported by the counts (at most 12).
     n_boot:
         Block-bootstrap replicates of every interval (0: none; else at least 20).
     seed:
@@ -517,6 +529,9 @@ def profile_source(
 
     clock.step("counting words")  # 1. words, counted once
     wc = count_words(arr, N)
+    if depth is None:  # a source with memory supports longer words than the fixed rule counts
+        wc = deepen_counts(arr, wc, MAX_AUTO_DEPTH)
+        N = wc.depth
     clock.step("block entropies")  # 2. block entropies and rate estimates
     found = _block_entropies(arr, wc, user_qs, notes)
     clock.step("dimensions")  # 3. dimensions, f(alpha) and the scaling data
@@ -531,8 +546,17 @@ def profile_source(
     absent = _absent_words(wc, L, absent_list, notes)
     clock.step("encoding image")  # 8. encoding image
     img, levels_img = _encoding_image(arr, k, image)
+    clock.step("permutation entropy")  # 9. ordinal patterns: permutation entropy
+    order = ordinal_order(arr)
+    permutation = safe_ordinal_entropy(arr, order, n_boot, seed, level, notes)
     clock.step("")
 
+    choice = choose_rate(rates, arr.alphabet.size, order, RATE_NAMES)  # every rate held to the bounds it has
+    if choice.estimator != "grassberger":
+        notes.append(f"entropy rate: {choice.reason}")
+    notes.extend(f"entropy rate ({name}): {rates[name][1].estimate:.4f} bits/symbol lies outside [0, {choice.upper_bound:.4f}], "
+                 f"the smallest upper bound ({choice.upper_bound_by})" for name, ok in choice.within.items()
+                 if not ok and rates[name][0] == "estimate" and name != "grassberger")
     notes.extend(_reliability_notes(rates, found.topological, absent))
     settings = {
         "lz_max_length": lz_max_length,
@@ -569,4 +593,6 @@ def profile_source(
         settings=settings,
         notes=tuple(dict.fromkeys(notes)),
         timings=clock.timings,
+        permutation=permutation,
+        rate_choice=choice,
     )

@@ -17,10 +17,19 @@ from fractalseq.dimensions import _consistency as cons
 from fractalseq.dimensions._consistency import ConsistencyResult
 from fractalseq.dimensions._spectrum import SpectrumResult
 from fractalseq.encoding import OverlapCheck
+from fractalseq.entropy._bounds import RateChoice
 from fractalseq.entropy._estimators import EntropyEstimate
+from fractalseq.entropy._ordinal import OrdinalEntropy
 from fractalseq.words._absent import WordReport
 
-__all__ = ["JsonValue", "ProfileResult", "ScalingCurve"]
+__all__ = ["JsonValue", "ProfileResult", "RATE_NAMES", "ScalingCurve"]
+
+#: Readable names of the entropy-rate estimators (sentences of the notes and reports).
+RATE_NAMES = {
+    "plugin": "plug-in H(n+1) - H(n)", "miller-madow": "Miller-Madow H(n+1) - H(n)",
+    "grassberger": "Grassberger H(n+1) - H(n)", "lz76": "Lempel-Ziv 1976",
+    "compressors": "the best compressor's code length", "online_predictor": "the online predictor's code length",
+}
 
 #: A value of a JSON document (what the tables and reports of a profile hold).
 JsonValue = Union[None, bool, int, float, str, list["JsonValue"], dict[str, "JsonValue"]]
@@ -106,6 +115,10 @@ class ProfileResult:
         Reliability notes and everything that was not computed, with the reason.
     timings:
         Seconds per step (not part of the JSON, which must not depend on the clock).
+    permutation:
+        :class:`fractalseq.entropy._ordinal.OrdinalEntropy` of a stream of ordinal patterns, else ``None``.
+    rate_choice:
+        :class:`fractalseq.entropy._bounds.RateChoice`: each rate against the bounds, and the figure to use.
     """
 
     name: str
@@ -135,6 +148,8 @@ class ProfileResult:
     settings: dict[str, JsonValue]
     notes: tuple[str, ...]
     timings: dict[str, float] = field(default_factory=dict, compare=False)
+    permutation: OrdinalEntropy | None = None
+    rate_choice: RateChoice | None = None
 
     # -------------------------------------------------------------- views
     @property
@@ -176,7 +191,8 @@ class ProfileResult:
         return rows
 
     def rate_dict(self) -> dict:
-        """The ``entropy_rate_bits`` object: estimator name → estimate, interval and notes."""
+        """The ``entropy_rate_bits`` object: estimator name → estimate, interval, notes and ``within_bounds``."""
+        within = {} if self.rate_choice is None else self.rate_choice.within
         out = {}
         for name, (kind, e) in self.rates.items():
             if e is None:
@@ -192,6 +208,7 @@ class ProfileResult:
                 "reliable": e.reliable,
                 "note": e.note,
                 "details": dict(e.details),
+                "within_bounds": within.get(name),
             }
         return out
 
@@ -296,4 +313,6 @@ class ProfileResult:
             "settings": dict(self.settings),
             "input": self.read,
             "notes": list(self.notes),
+            "rate_to_use": None if self.rate_choice is None else self.rate_choice.to_dict(),
+            "permutation_entropy": None if self.permutation is None else self.permutation.to_dict(),
         }

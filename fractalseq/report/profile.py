@@ -10,6 +10,7 @@ Folder of one source (:func:`write_profile_report`)::
     entropies.csv     block entropies by block length
     consistency.csv   geometric D_q log2(1/k) against h_q, with the verdict
     absent_words.csv  absent words under a low-order Markov model
+    permutation.csv   permutation entropy by order (ordinal-pattern streams only)
     encoding.png  scaling.png  spectrum.png  falpha.png  entropies.png
 
 JSON and CSV bytes depend only on the input, the parameters and the seed;
@@ -125,7 +126,7 @@ def profile_figures(result: ProfileResult) -> dict[str, bytes]:
     for key, label in (("lz76", "LZ76"), ("compressors", "compressor bound"), ("online_predictor", "online predictor")):
         if key in result.rates:
             levels[label] = result.rates[key][1].estimate
-    reliable = [r["depth"] for r in ent_rows if r["reliable"]]
+    reliable = [r["depth"] for r in ent_rows if r.get("supported", r["reliable"])]
     out["entropies.png"] = figures.entropy_png(
         name, n, curves, levels, max_bits=math.log2(A), valid_upto=max(reliable) if reliable else 0,
     )
@@ -155,11 +156,47 @@ def spectrum_table(result: ProfileResult) -> tuple[list[str], list[list]]:
 
 
 def rate_table(result: ProfileResult) -> tuple[list[str], list[list]]:
-    header = ["estimator", "kind", "bits per symbol", "low", "high", "block length n", "reliable", "note"]
+    header = ["estimator", "kind", "bits per symbol", "low", "high", "block length n", "reliable", "within bounds", "note"]
     rows = []
     for key, r in result.rate_dict().items():
-        rows.append([RATE_LABELS.get(key, key), r["kind"], r["estimate"], r["low"], r["high"], r["depth"], r["reliable"], r["note"]])
+        rows.append([RATE_LABELS.get(key, key), r["kind"], r["estimate"], r["low"], r["high"], r["depth"], r["reliable"],
+                     r.get("within_bounds"), r["note"]])
     return header, rows
+
+
+def permutation_table(result: ProfileResult) -> tuple[list[str], list[list]]:
+    """Permutation entropy by order k = 2..m (empty when the stream is not ordinal patterns)."""
+    header = ["order", "H (bits)", "normalized", "H(k) − H(k−1) (bits)"]
+    pe = result.permutation
+    rows = [] if pe is None else [[r["order"], r["bits"], r["normalized"], r["increment_bits"]] for r in pe.by_order]
+    return header, rows
+
+
+def _permutation_section(page: HtmlReport, result: ProfileResult) -> None:
+    pe = result.permutation
+    if pe is None:
+        return
+    page.section("Ordinal patterns")
+    page.paragraph(
+        f"The stream holds ordinal patterns of order {pe.order} (delay {pe.delay}; ties ordered by {pe.ties}). "
+        "Permutation entropy is the entropy of single patterns (Bandt and Pompe 2002), normalized by log2(m!); "
+        f"consecutive patterns share {pe.order - 1} values, so a pattern has at most {pe.order} successors and the "
+        f"per-step rate of the pattern stream is at most log2 {pe.order} = {pe.conditional_max_bits:.4f} bits."
+    )
+    fb = pe.forbidden
+    page.key_values([
+        ("permutation entropy (bits)", f"{_fmt(pe.bits)}  [{_fmt(pe.low)}, {_fmt(pe.high)}]"),
+        ("normalized", f"{_fmt(pe.normalized)}  [{_fmt(pe.normalized_low)}, {_fmt(pe.normalized_high)}]"),
+        ("next pattern given the current one (bits per step)", _fmt(pe.conditional_bits)),
+        ("patterns seen", f"{pe.distinct} of {pe.possible} ({pe.patterns} patterns)"),
+        ("never seen", f"{fb['count']}; {fb['expected_missing_if_uniform']:.3g} expected by chance if all were equally likely"),
+        ("never seen, listed", " ".join(fb["patterns"]) if fb["patterns"] else "–"),
+        ("interval", pe.interval),
+    ])
+    h, rows = permutation_table(result)
+    page.table(h, rows, caption="Permutation entropy of the sub-patterns of order k")
+    if pe.notes:
+        page.note("Ordinal-pattern notes", list(pe.notes))
 
 
 def entropy_rows_table(result: ProfileResult) -> tuple[list[str], list[list]]:
@@ -220,6 +257,12 @@ def profile_page(result: ProfileResult, pngs: dict[str, bytes], caution: str, fi
     g = rates.get("grassberger")
     if g:
         kv.append(("entropy rate (Grassberger, bits/symbol)", f"{_fmt(g['estimate'])}  [{_fmt(g['low'])}, {_fmt(g['high'])}]"))
+    if result.rate_choice is not None:
+        c = result.rate_choice
+        kv.append(("entropy rate to use (bits/symbol)", f"{_fmt(c.estimate)}: {c.reason}"))
+    if result.permutation is not None:
+        pe = result.permutation
+        kv.append((f"permutation entropy, order {pe.order} (normalized)", f"{_fmt(pe.normalized)}  [{_fmt(pe.normalized_low)}, {_fmt(pe.normalized_high)}]"))
     for key, label in (("lz76", "Lempel–Ziv 1976 (bits/symbol)"), ("online_predictor", "online predictor code length (bits/symbol, upper bound)"),
                        ("compressors", "compressor bound (bits/symbol, upper bound)")):
         if key in rates:
@@ -260,9 +303,10 @@ def profile_page(result: ProfileResult, pngs: dict[str, bytes], caution: str, fi
 
     page.section("Entropy")
     page.paragraph(
-        "Entropy-rate estimates in bits per symbol. The block-entropy differences are read at the deepest n the data "
-        "support (A^(n+1) ≤ length/100); LZ76 is parsed on a prefix; the compressor bound and the online predictor's "
-        "code length are upper bounds on the information content."
+        "Entropy-rate estimates in bits per symbol. The block-entropy differences are read at the deepest n the counts "
+        "support (the words of length n + 1 that occur are seen at least 20 times on average); LZ76 is parsed on a "
+        "prefix; the compressor bound and the online predictor's code length are upper bounds on the information "
+        "content. 'within bounds' says whether an estimate lies between 0 and the smallest upper bound computed here."
     )
     h, rows = rate_table(result)
     page.table(h, rows, caption="Entropy-rate estimates and bounds")
@@ -281,6 +325,8 @@ def profile_page(result: ProfileResult, pngs: dict[str, bytes], caution: str, fi
     if result.koslicki is not None:
         kv.append(("Koslicki finite-length topological entropy (fraction of log2 A)", result.koslicki.fraction_of_max))
     page.key_values(kv)
+
+    _permutation_section(page, result)
 
     page.section("Consistency")
     page.paragraph(
@@ -356,6 +402,8 @@ def write_profile_report(result: ProfileResult, folder: str | Path, document: di
         "consistency.csv": consistency_table_rows(result),
         "absent_words.csv": absent_table(result),
     }
+    if result.permutation is not None:
+        tables["permutation.csv"] = permutation_table(result)
     for fname, (header, rows) in tables.items():
         written.append(write_csv(folder / fname, _csv_header(header), rows, force=force))
     pngs = profile_figures(result)

@@ -8,7 +8,23 @@ line, else runs of whitespace.  The first non-blank, non-comment line is a
 header when one of its fields is neither a number nor a missing mark.  Lines
 starting with ``#`` are skipped, and so are blank lines before the first
 data line.  The default column is the first whose sampled values are mostly
-(at least half) numbers.  Later blank lines, missing marks (empty field,
+(at least half) numbers and that is not a time column, when another such
+column exists: a time column is one named ``time``, ``date``, ``datetime``,
+``timestamp``, ``year``, ``t`` or ``index`` (any case), or one whose sampled
+values are whole numbers increasing strictly (years, ``YYYYMMDD`` dates,
+sample numbers).  It is skipped, not used; its name is reported as
+``time_column``.
+
+Time column and gaps
+--------------------
+Whichever column is read, the first *other* column that looks like a time
+(a time-like name, whole numbers increasing strictly, or values that parse as
+ISO dates) is the time column.  ``YYYYMMDD`` whole numbers are read as dates
+(days), ISO dates and times as seconds, other numbers as they are.  When the
+sampled time steps are regular (nine in ten within half to one and a half
+times their median), a step longer than 1.5 times the median is a *gap*: it
+ends the segment like a missing value (reported as ``time_gaps``, not as
+missing values).  Irregular times are not used.  Later blank lines, missing marks (empty field,
 ``NA``, ``NaN``, ``null``, ``None``, ``N/A``, ``?``, ``-``, case-insensitive),
 infinite values and rows too short to hold the column are *missing*: they end
 the segment.  Any other non-number is an :class:`InputError` naming the line.
@@ -34,7 +50,11 @@ For both, the symbol of ``x`` is the number of edges ``<= x``
     order of appearance (a stable sort: the earlier value counts as smaller).
     The alphabet is all ``m!`` permutations in lexicographic order, written as
     digit strings (``"012"`` is the identity, code 0).  A NaN-free run of
-    length ``L`` gives ``L - m + 1`` symbols in one segment.
+    length ``L`` gives ``L - m + 1`` symbols in one segment.  The reader uses
+    delay 1 (consecutive values) and ties by time; an embedding delay
+    ``tau`` and ties broken by a seeded random dither are available on
+    arrays through :func:`fractalseq.entropy._ordinal.ordinal_patterns`,
+    which gives the same codes for delay 1 and ties by time.
 """
 
 from __future__ import annotations
@@ -54,6 +74,8 @@ from fractalseq.sources.rawio import Origin, line_blocks
 from fractalseq.stream import Chunk, ReadReport, Record
 
 MISSING = frozenset({"", "na", "nan", "null", "none", "n/a", "?", "-"})
+#: Header names of columns that hold the time of a row rather than a measurement.
+TIME_NAMES = frozenset({"time", "date", "datetime", "timestamp", "year", "t", "index"})
 MAX_ORDER = 8
 _DIGITS = "0123456789abcdefghijklmnopqrstuvwxyz"
 
@@ -93,6 +115,10 @@ class Layout:
     header: list[str] | None
     column: int = 0
     column_name: str = ""
+    time_column: str = ""
+    time_index: int = -1
+    time_step: float = 0.0
+    time_unit: str = ""
 
 
 def _data_lines(lines: Sequence[str]) -> list[str]:
@@ -142,6 +168,86 @@ def looks_numeric(lines: Sequence[str]) -> bool:
     return bool(_numeric_columns(rows, max(widths)))
 
 
+def _time_like(name: str, rows: list[list[str]], c: int) -> bool:
+    """Whether column ``c`` holds the time of each row (see the module rules)."""
+    if name.strip().lower() in TIME_NAMES:
+        return True
+    vals = [r[c] for r in rows if len(r) > c and not _is_missing(r[c])]
+    if len(vals) < 3 or not all(_is_number(v) for v in vals):
+        return False
+    x = [float(v) for v in vals]
+    return all(v == int(v) for v in x) and all(b > a for a, b in zip(x, x[1:]))
+
+
+def time_numbers(fields: Sequence[str]) -> np.ndarray:
+    """Times as numbers: ``YYYYMMDD`` whole numbers as days, ISO dates/times as seconds, numbers as they are; NaN if unreadable."""
+    return _time_numbers(fields)[0]
+
+
+def _time_numbers(fields: Sequence[str]) -> tuple[np.ndarray, str]:
+    """:func:`time_numbers` and the unit (``days``, ``seconds`` or ``""`` for numbers as given); vectorised."""
+    texts = np.char.strip(np.asarray(list(fields), dtype=str))
+    out = np.full(texts.size, np.nan)
+    present = texts != ""
+    if not present.any():
+        return out, ""
+    try:
+        x = texts[present].astype(np.float64)
+    except ValueError:
+        x = None
+    if x is not None:
+        whole = bool(np.all(x == np.floor(x)))
+        if whole and bool(np.all((x >= 10000101) & (x <= 99991231))):
+            y, m, d = (x // 10000).astype(np.int64), (x // 100 % 100).astype(np.int64), (x % 100).astype(np.int64)
+            if bool(np.all((m >= 1) & (m <= 12) & (d >= 1) & (d <= 31))):
+                months = (y - 1970) * 12 + (m - 1)
+                days = months.astype("datetime64[M]").astype("datetime64[D]") + (d - 1)
+                out[present] = days.astype(np.int64).astype(np.float64)
+                return out, "days"
+        out[present] = x
+        return out, ""
+    iso = np.char.replace(texts[present], " ", "T")
+    try:
+        out[present] = iso.astype("datetime64[s]").astype(np.int64).astype(np.float64)
+    except ValueError:
+        vals = np.full(iso.size, np.nan)
+        for i, f in enumerate(iso):  # mixed readable and unreadable times: one by one (rare)
+            try:
+                vals[i] = float(np.datetime64(str(f), "s").astype(np.int64))
+            except ValueError:
+                pass
+        out[present] = vals
+    return out, "seconds"
+
+
+def _find_time_column(layout: Layout, rows: list[list[str]], width: int) -> None:
+    """Set the layout's time column (the first column other than the one read that looks like a time) and its step."""
+    heads = layout.header or []
+    for c in range(width):
+        if c == layout.column:
+            continue
+        vals = [r[c] for r in rows if len(r) > c and not _is_missing(r[c])]
+        name = heads[c] if c < len(heads) else ""
+        t, unit = _time_numbers(vals)
+        parsed = bool(vals) and bool(np.all(np.isfinite(t)))
+        if not parsed:
+            continue
+        strictly = t.size >= 3 and bool(np.all(np.diff(t) > 0))
+        numeric_int = all(_is_number(v) and float(v) == int(float(v)) for v in vals)
+        if name.strip().lower() in TIME_NAMES or (strictly and (numeric_int or not all(_is_number(v) for v in vals))):
+            layout.time_index = c
+            layout.time_unit = unit
+            if not layout.time_column:
+                layout.time_column = name or str(c)
+            steps = np.diff(t)
+            steps = steps[steps > 0]
+            if steps.size >= 2:
+                med = float(np.median(steps))
+                if np.mean((steps >= 0.5 * med) & (steps <= 1.5 * med)) >= 0.9:
+                    layout.time_step = med
+            return
+
+
 def choose_column(layout: Layout, sample: Sequence[str], column: str | int | None, name: str) -> Layout:
     """Fill ``layout.column`` from a name, an index, or the first numeric column."""
     data = _data_lines(sample)
@@ -169,19 +275,30 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
         found = _numeric_columns(rows, width, share=0.5)
         if not found:
             raise InputError(f"{name} has no column of numbers; check the file or name the column to read.")
-        idx = found[0]
+        heads = layout.header or []
+        timed = [c for c in found if _time_like(heads[c] if c < len(heads) else "", rows, c)]
+        rest = [c for c in found if c not in timed]
+        idx = rest[0] if rest else found[0]
+        if rest and timed and timed[0] < idx:
+            layout.time_column = heads[timed[0]] if timed[0] < len(heads) else str(timed[0])
     layout.column = idx
     layout.column_name = layout.header[idx] if layout.header and idx < len(layout.header) else str(idx)
+    _find_time_column(layout, rows, width)
     return layout
 
 
-def parse_values(lines: list[str], first_line: int, layout: Layout, name: str, started: bool) -> tuple[np.ndarray, bool]:
+def parse_values(
+    lines: list[str], first_line: int, layout: Layout, name: str, started: bool, clock: dict | None = None
+) -> tuple[np.ndarray, bool]:
     """Values of the chosen column in ``lines`` (NaN for missing).
 
     Comment lines are skipped; so are blank lines and the header before the
     first data line (``started`` says whether it was seen in an earlier
-    block).  Later blank lines are missing values.  Returns the values and
-    the updated ``started``.
+    block).  Later blank lines are missing values.  With a regular time
+    column (``layout.time_step > 0``) and a ``clock`` (``{"last": None,
+    "gaps": 0}``, carried across blocks), a NaN is inserted before each row
+    that follows a gap, and ``clock["gaps"]`` counts them.  Returns the values
+    and the updated ``started``.
     """
     keep: list[tuple[int, str]] = []
     for i, ln in enumerate(lines):
@@ -214,18 +331,32 @@ def parse_values(lines: list[str], first_line: int, layout: Layout, name: str, s
                 ) from None
         raise  # pragma: no cover - astype failed yet every field parses
     out[~np.isfinite(out)] = np.nan
+    if clock is not None and layout.time_step > 0 and layout.time_index >= 0:
+        tc = layout.time_index
+        t = time_numbers([r[tc] if len(r) > tc else "" for r in rows])
+        prev = np.concatenate([[np.nan if clock["last"] is None else clock["last"]], t[:-1]])
+        # carry the last readable time forward over rows whose time is missing
+        pos = np.where(np.isfinite(prev), np.arange(prev.size), 0)
+        filled = prev[np.maximum.accumulate(pos)]
+        gap = np.flatnonzero((t - filled) > 1.5 * layout.time_step)
+        good = t[np.isfinite(t)]
+        if good.size:
+            clock["last"] = float(good[-1])
+        if gap.size:
+            clock["gaps"] += int(gap.size)
+            out = np.insert(out, gap, np.nan)
     return out, started
 
 
-def value_blocks(origin: Origin, layout: Layout, block_size: int) -> Iterator[np.ndarray]:
-    """The column's values block by block (NaN = missing)."""
+def value_blocks(origin: Origin, layout: Layout, block_size: int, clock: dict | None = None) -> Iterator[np.ndarray]:
+    """The column's values block by block (NaN = missing, or a gap in the time column when ``clock`` is given)."""
     started = False
     for first_line, block in line_blocks(origin, block_size):
         text = block.decode("utf-8", errors="replace")
         lines = text.split("\n")
         if lines and lines[-1] == "":
             lines.pop()
-        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started)
+        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started, clock)
         yield vals
 
 
@@ -299,12 +430,13 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
     """Second pass: symbols of the column, NaN ending the segment."""
     dtype = p.alphabet.code_dtype
     total = segments = missing = values = 0
+    clock: dict = {"last": None, "gaps": 0}
     if p.method == "ordinal":
         m = p.order
         fact = np.array([math.factorial(i) for i in range(m + 1)], dtype=np.int64)
         carry = np.zeros(0)
         in_seg = 0
-        for v in value_blocks(origin, layout, block_size):
+        for v in value_blocks(origin, layout, block_size, clock):
             if v.size == 0:
                 continue
             values += v.size
@@ -322,7 +454,7 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
             segments += ns
     else:
         prev_valid = False
-        for v in value_blocks(origin, layout, block_size):
+        for v in value_blocks(origin, layout, block_size, clock):
             if v.size == 0:
                 continue
             values += v.size
@@ -338,19 +470,32 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
                 yield Chunk(codes, starts)
             total += codes.size
             segments += starts.size
+    gaps = int(clock["gaps"])
+    values -= gaps
+    missing -= gaps
     report.symbols = int(total)
     report.segments = int(segments)
     report.drop("missing value", int(missing))
+    if gaps:
+        report.notes.append(
+            f"{gaps} gap(s) in the time column {layout.time_column!r} (steps over 1.5 times the usual {layout.time_step:g}"
+            f"{' ' + layout.time_unit if layout.time_unit else ''}) end a segment"
+        )
     report.records = [Record(origin.name, 0, int(total))]
     info = {
         "column": layout.column_name,
         "column_index": layout.column,
         "method": p.method,
+        "time_column": layout.time_column or None,
+        "time_step": layout.time_step or None,
+        "time_unit": layout.time_unit or None,
+        "time_gaps": gaps,
         "values": int(values),
         "missing": int(missing),
     }
     if p.method == "ordinal":
         info["order"] = p.order
+        info["delay"] = 1
         info["tie_rule"] = "stable: equal values ordered by appearance"
     else:
         info["edges"] = [float(e) for e in p.edges]

@@ -1,0 +1,123 @@
+"""The profile's entropy-rate choices: block length from the counts, bounds, and ordinal-pattern streams.
+
+Helpers of :func:`fractalseq.jobs._profile.profile_source` (no estimate is computed here):
+
+* :func:`evidence_rates` reads the three block-entropy rates at the block length the
+  counts support (:func:`fractalseq.entropy._depth.evidence_depth`);
+* :func:`ordinal_order` recognises a stream of ordinal patterns (the numeric reader's
+  ``ordinal`` alphabet) and :func:`ordinal_entropy` measures its permutation entropy;
+* :func:`choose_rate` holds every rate to the bounds computed on the same data
+  (:func:`fractalseq.entropy._bounds.hold_to_bounds`);
+* :func:`annotate_rows` marks the block-entropy rows the counts support and, for ordinal
+  patterns, states the possible words with the overlap of consecutive patterns counted.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import re
+from typing import Any
+
+from fractalseq.entropy import _estimators as ent
+from fractalseq.entropy._bounds import RateChoice, hold_to_bounds
+from fractalseq.entropy._depth import EvidenceDepth, evidence_depth, ordinal_possible_words, supported
+from fractalseq.entropy._ordinal import OrdinalEntropy, permutation_entropy_of_codes
+from fractalseq.errors import FractalseqError
+from fractalseq.stream import SymbolArray
+from fractalseq.words._counts import WordCounts, count_words
+
+__all__ = ["annotate_rows", "choose_rate", "deepen_counts", "evidence_rates", "ordinal_entropy", "ordinal_order"]
+
+_ORDINAL = re.compile(r"ordinal(\d+)")
+
+
+def ordinal_order(arr: SymbolArray) -> int:
+    """The pattern order ``m`` when ``arr`` holds ordinal patterns (alphabet ``ordinal<m>`` of ``m!`` symbols), else 0."""
+    hit = _ORDINAL.fullmatch(arr.alphabet.name or "")
+    if hit is None:
+        return 0
+    m = int(hit.group(1))
+    return m if 2 <= m <= 8 and arr.alphabet.size == math.factorial(m) else 0
+
+
+def _numeric_info(arr: SymbolArray) -> dict:
+    rep = getattr(arr, "report", None)
+    extra = getattr(rep, "extra", None) or {}
+    return dict(extra.get("numeric", {}))
+
+
+def evidence_rates(wc: WordCounts, order: int = 0) -> tuple[dict[str, ent.EntropyEstimate], EvidenceDepth]:
+    """Plug-in, Miller–Madow and Grassberger ``H(n+1) - H(n)`` at the block length the counts support."""
+    ev = evidence_depth(wc, min_depth=1 if order and wc.depth >= 2 else 0)
+    note = ev.note()
+    if order:
+        note += (f"; ordinal patterns of order {order}: {ordinal_possible_words(order, ev.depth + 1)} possible "
+                 f"{ev.depth + 1}-words (a pattern has at most {order} successors), not {wc.alphabet.size}^{ev.depth + 1}")
+    if not ev.supported:
+        note = f"too short: the words are seen fewer than {ent.SAMPLES_PER_SEEN_WORD} times on average; " + note
+    out = {}
+    for m in ent.METHODS:
+        e = ent.h_difference(wc, ev.depth, m)
+        details = dict(e.details)
+        details["rule"] = ev.to_dict()["rule"]
+        details["fixed_rule_depth"] = ev.fixed_rule_depth
+        out[m] = dataclasses.replace(e, estimate=e.estimate + 0.0, reliable=ev.supported, note=note, details=details)  # never -0.0
+    return out, ev
+
+
+def deepen_counts(arr: SymbolArray, wc: WordCounts, cap: int) -> WordCounts:
+    """Count deeper (up to ``cap``) while the counts support every word length counted.
+
+    The default counted depth comes from the fixed rule; a source with memory (few of its possible
+    words occur) supports longer words, and its rate is read too shallow unless they are counted.
+    """
+    order = ordinal_order(arr)
+    cap = int(min(cap, arr.alphabet.max_depth))
+    while wc.depth < cap and evidence_depth(wc, min_depth=1 if order else 0).limited_by_count:
+        wc = count_words(arr, int(min(cap, wc.depth + 4)))
+    return wc
+
+
+def ordinal_entropy(arr: SymbolArray, order: int, n_boot: int, seed: int, level: float) -> OrdinalEntropy:
+    """Permutation entropy of a stream of ordinal patterns (delay and tie rule as the reader reports them)."""
+    info = _numeric_info(arr)
+    delay = int(info.get("delay", 1))
+    ties = "dither" if "dither" in str(info.get("tie_rule", "")) else "time"
+    return permutation_entropy_of_codes(arr.codes, arr.starts, order, delay, ties, n_boot=n_boot, seed=seed, level=level)
+
+
+def choose_rate(rates: dict[str, tuple[str, ent.EntropyEstimate]], alphabet_size: int, order: int,
+                labels: dict[str, str]) -> RateChoice:
+    """Hold the rates to ``[0, smallest upper bound]`` (``log2 m`` per step for ordinal patterns)."""
+    if order:
+        return hold_to_bounds(rates, math.log2(order), f"log2 {order} (a pattern of order {order} has at most {order} successors)",
+                              labels=labels)
+    return hold_to_bounds(rates, math.log2(alphabet_size), f"log2 of the alphabet size {alphabet_size}", labels=labels)
+
+
+def annotate_rows(rows: tuple[dict[str, Any], ...], order: int) -> tuple[dict[str, Any], ...]:
+    """Block-entropy rows with ``supported`` (observed words seen 20 times on average) and, for ordinal
+    patterns, ``possible`` = ``m! m^(n-1)``."""
+    out = []
+    for r in rows:
+        r = dict(r)
+        r["supported"] = supported(int(r["distinct"]), int(r["occurrences"]))
+        if order:
+            r["possible"] = float(ordinal_possible_words(order, int(r["depth"])))
+        out.append(r)
+    return tuple(out)
+
+
+def safe_ordinal_entropy(arr: SymbolArray, order: int, n_boot: int, seed: int, level: float,
+                         notes: list[str]) -> OrdinalEntropy | None:
+    """:func:`ordinal_entropy`, or ``None`` with a note saying why not."""
+    if not order:
+        return None
+    try:
+        pe = ordinal_entropy(arr, order, n_boot, seed, level)
+    except FractalseqError as exc:
+        notes.append(f"permutation entropy: not computed ({exc})")
+        return None
+    notes.extend(f"permutation entropy: {n}" for n in pe.notes)
+    return pe
