@@ -33,6 +33,7 @@ import numpy as np
 from numba import njit
 
 from fractalseq.resampling import _bootstrap as bs
+from fractalseq.dimensions import _level_variance as lv
 from fractalseq.dimensions import _spectrum as sp
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray
@@ -481,6 +482,11 @@ def geometric_spectrum(
     else:
         reps = None
     extent = _extent(p, keep)
+    # count-based variances of H_q per scale and of the differences between adjacent scales (fit weights
+    # and linearity test), averaged over offsets; they need the previous scale's labels per offset
+    var = np.zeros((S, Q))
+    dvar = np.zeros((max(S - 1, 0), Q))
+    previous: list[tuple[np.ndarray, np.ndarray] | None] = [None] * O
     for j, eps in enumerate(sc):
         for o in range(O):
             labels, counts = _labels_and_counts(
@@ -488,8 +494,15 @@ def geometric_spectrum(
             )
             m = counts.size
             per_offset[o, j] = sp.level_stats(counts, None, qv, corrected).vector()
+            g = lv.box_influence(counts, qv)
+            var[j] += lv.variance_from_influence(counts, g) / O
+            prev = previous[o]
+            if prev is not None:
+                dvar[j - 1] += lv.point_difference_variance(prev[0], labels, prev[1], g) / O
+            previous[o] = (labels, g)
             if reps is not None:
                 reps[:, j] += sp.replicate_vectors(labels, 1, m, plan, qv, corrected)
+    del previous
     if reps is not None:
         reps /= O
     est = per_offset.mean(axis=0)
@@ -497,7 +510,7 @@ def geometric_spectrum(
     occ = np.full(S, float(n_used))
     unseen = per_offset[:, :, 3 * Q + 1].max(axis=0)
     dl, cl = sp.limits_from(distinct, occ, unseen, starve)
-    ld = sp.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl)
+    ld = sp.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl, var, dvar)
     user = None
     if scale_range is not None:
         lo, hi = int(scale_range[0]), int(scale_range[1])

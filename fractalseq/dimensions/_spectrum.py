@@ -32,17 +32,21 @@ every box must be hit (no sign of unseen words by Chao's 1984 estimate
 the rarest box must also be seen at least ``q (q - 1) / 0.02`` times (its
 term of the partition sum is then biased by less than 1%).  Among depths 1..that limit the
 longest run whose differences all agree with the run's slope within
-``Z_LINEAR`` bootstrap standard errors (plus a resolution of 0.001 in
-dimension units) is taken; ties go to the deepest run.
+``Z_LINEAR`` standard errors (plus a resolution of 0.001 in dimension
+units) is taken; ties go to the deepest run.  The standard errors of the
+differences are count-based (delta method on the nested words,
+:mod:`fractalseq.dimensions._level_variance`), never bootstrap replicates.
 
 Intervals
 ---------
 By the block bootstrap of :mod:`fractalseq.resampling._bootstrap` (word counts of
 blocks re-weighted, never recounted); ``centered`` intervals by default
 (the estimate plus the replicates' spread around their median), chosen by
-the calibration benchmark.  The fit weights (inverse bootstrap
-variances of ``H_q(n)``) are fixed from the whole-stream replicates, so each
-replicate's slope is the same linear function of its block entropies.  The
+the calibration benchmark.  The fit weights are the inverse count-based
+(multinomial delta-method) variances of ``H_q(n)``, so the point estimate
+and its scaling range do not depend on the number of replicates or the
+seed; each replicate is refitted with the same weights over the same range,
+so its slope is the same linear function of its block entropies.  The
 reported ``stderr`` is the bootstrap standard deviation of the slope;
 ``fit_stderr`` is the textbook WLS standard error from the residuals, which
 ignores that the ``H_q(n)`` are nested and correlated (shown for reference
@@ -70,16 +74,15 @@ from fractalseq.resampling import _bootstrap as bs
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray, SymbolStream
+from fractalseq.dimensions._level_variance import word_level_variances
 from fractalseq.words._counts import WordCounts, count_words
 
 #: Deepest depth keeps distinct words <= occurrences / STARVE.
 STARVE = 100
-#: Linearity test: differences within Z_LINEAR bootstrap standard errors of the run's slope.
+#: Linearity test: differences within Z_LINEAR count-based standard errors of the run's slope.
 Z_LINEAR = 3.0
 #: Differences smaller than this (dimension units) are not counted as curvature.
 RESOLUTION = 1e-3
-#: Without bootstrap replicates the linearity test uses this tolerance (dimension units).
-RESOLUTION_NO_BOOT = 1e-2
 #: Automatic deepening of the word counts stops when addresses would exceed this many bits.
 AUTO_ADDRESS_BITS = 32
 #: A fit needs at least this many levels (depths or scales).
@@ -350,16 +353,21 @@ class RangeChoice:
 def choose_range(
     x: np.ndarray,
     est: np.ndarray,
-    reps: np.ndarray | None,
+    var: np.ndarray,
+    dvar: np.ndarray,
     top: int,
     resolution: float = RESOLUTION,
     z: float = Z_LINEAR,
 ) -> RangeChoice | None:
     """Longest run of levels ``0..top`` (indices, inclusive) that is linear; ties to the deepest.
 
-    ``est`` is the level statistic (e.g. ``H_q``) per level, ``reps`` its
-    bootstrap replicates ``(R, L)`` or ``None``.  The slope is in units of
-    ``y / x``; ``resolution`` is in the same units.
+    ``est`` is the level statistic (e.g. ``H_q``) per level, ``var`` its
+    count-based variance per level (the fit weights) and ``dvar`` the
+    count-based variance of each difference ``est[i+1] - est[i]``
+    (:mod:`fractalseq.dimensions._level_variance`).  A run is linear when every
+    difference (per unit of ``x``) lies within ``z`` standard errors plus
+    ``resolution`` of the run's WLS slope.  No bootstrap replicate enters, so
+    the choice does not depend on the number of replicates or the seed.
     """
     L = int(top) + 1
     if L < MIN_LEVELS:
@@ -374,34 +382,17 @@ def choose_range(
     xs = x[:L]
     dx = np.diff(xs)
     d_est = np.diff(y) / dx
-    have_reps = reps is not None and reps.shape[0] >= 10
-    if have_reps:
-        R = reps[:, :L]
-        good = np.all(np.isfinite(R), axis=1)
-        R = R[good]
-        have_reps = R.shape[0] >= 10
-    tol = resolution if have_reps else RESOLUTION_NO_BOOT
-    if have_reps:
-        var = R.var(axis=0, ddof=1)
-        d_rep = np.diff(R, axis=1) / dx
-    else:
-        var = np.zeros(L)
+    v = np.where(np.isfinite(var[:L]), var[:L], 0.0)
+    d_se = np.sqrt(np.where(np.isfinite(dvar[: L - 1]), dvar[: L - 1], 0.0)) / dx
     floor = (resolution * float(np.mean(dx))) ** 2
     for length in range(L, MIN_LEVELS - 1, -1):
         for b in range(L - 1, length - 2, -1):
             a = b - length + 1
-            c = wls_coefficients(xs[a : b + 1], var[a : b + 1], floor)
+            c = wls_coefficients(xs[a : b + 1], v[a : b + 1], floor)
             slope = float(c @ y[a : b + 1])
             e = d_est[a:b] - slope
-            if have_reps:
-                s_rep = R[:, a : b + 1] @ c
-                e_rep = d_rep[:, a:b] - s_rep[:, None]
-                se = e_rep.std(axis=0, ddof=1)
-            else:
-                se = np.zeros(b - a)
-            if np.all(np.abs(e) <= z * se + tol):
-                how = "automatic: longest linear run" + ("" if have_reps else " (no bootstrap: tolerance 0.01)")
-                return RangeChoice(a, b, how)
+            if np.all(np.abs(e) <= z * d_se[a:b] + resolution):
+                return RangeChoice(a, b, "automatic: longest linear run")
     a = L - MIN_LEVELS
     return RangeChoice(a, L - 1, "automatic", ("curved: no linear run of 3 levels; the deepest 3 were used",))
 
@@ -420,6 +411,7 @@ class SlopeFit:
 def fit_slope(
     x: np.ndarray,
     est: np.ndarray,
+    var: np.ndarray,
     reps: np.ndarray | None,
     lo: int,
     hi: int,
@@ -428,7 +420,14 @@ def fit_slope(
     bracket: bool = False,
     resolution: float = RESOLUTION,
 ) -> SlopeFit:
-    """Slope over levels ``lo..hi`` with bootstrap interval (and optional finite-depth bracket)."""
+    """WLS slope over levels ``lo..hi`` with its interval (and optional finite-depth bracket).
+
+    The weights ``1 / var`` come from the counts (``var`` per level, see
+    :mod:`fractalseq.dimensions._level_variance`); each bootstrap replicate in
+    ``reps`` ``(R, L)`` is refitted with the same weights over the same range,
+    so the slope is the same linear map of every replicate's level statistics
+    and the point estimate does not depend on the replicates.
+    """
     xs = x[lo : hi + 1]
     y = est[lo : hi + 1]
     dx = np.diff(x)
@@ -439,11 +438,12 @@ def fit_slope(
         R = reps[:, lo : hi + 1]
         R = R[np.all(np.isfinite(R), axis=1)]
         have = R.shape[0] >= 10
-    var = R.var(axis=0, ddof=1) if have else np.zeros(y.size)
+    v = var[lo : hi + 1]
+    v = np.where(np.isfinite(v), v, 0.0)
     floor = (resolution * float(np.mean(np.diff(xs)))) ** 2
-    c = wls_coefficients(xs, var, floor)
+    c = wls_coefficients(xs, v, floor)
     slope = float(c @ y)
-    _, _, fit_se = wls_fit(xs, y, var, floor)
+    _, _, fit_se = wls_fit(xs, y, v, floor)
     if not np.all(np.isfinite(y)):
         return SlopeFit(float("nan"), float("nan"), float("nan"), float("nan"), float("nan"), 0, local)
     if have:
@@ -716,6 +716,8 @@ class LevelData:
     unseen: np.ndarray
     data_limit: int  # index of the deepest level allowed (-1: none)
     complete_limit: int
+    var: np.ndarray  # (L, Q) count-based variances of H_q per level (fit weights)
+    dvar: np.ndarray  # (L - 1, Q) count-based variances of the differences H_q(i+1) - H_q(i)
 
 
 def estimate_all(
@@ -766,7 +768,7 @@ def estimate_all(
                 flags.append("range goes past the depth where every box is hit")
             choice = RangeChoice(lo, hi, rule)
         else:
-            choice = choose_range(data.x, H, Hr, top)
+            choice = choose_range(data.x, H, data.var[:, j], data.dvar[:, j], top)
             if choice is not None:
                 rule = choice.how
                 flags.extend(choice.flags)
@@ -782,7 +784,7 @@ def estimate_all(
             if want_falpha:
                 fal.append(FAlphaPoint(float(q), *(float("nan"),) * 6, None, None, tuple(flags)))
             continue
-        fit = fit_slope(data.x, H, Hr, choice.lo, choice.hi, level, interval, bracket=(q <= 0))
+        fit = fit_slope(data.x, H, data.var[:, j], Hr, choice.lo, choice.hi, level, interval, bracket=(q <= 0))
         if data.reps is not None and fit.replicates_used < 0.95 * data.reps.shape[0]:
             flags.append(f"only {fit.replicates_used} of {data.reps.shape[0]} replicates usable")
         sf = scale_factor
@@ -797,8 +799,9 @@ def estimate_all(
             # alpha, f are slopes against ln eps = -x: negate
             Ar = -data.reps[:, :, Q + j] if data.reps is not None else None
             Fr = -data.reps[:, :, 2 * Q + j] if data.reps is not None else None
-            fa = fit_slope(data.x, -data.est[:, Q + j], Ar, choice.lo, choice.hi, level, interval)
-            ff = fit_slope(data.x, -data.est[:, 2 * Q + j], Fr, choice.lo, choice.hi, level, interval)
+            # same weights (those of H_q) and range as D_q
+            fa = fit_slope(data.x, -data.est[:, Q + j], data.var[:, j], Ar, choice.lo, choice.hi, level, interval)
+            ff = fit_slope(data.x, -data.est[:, 2 * Q + j], data.var[:, j], Fr, choice.lo, choice.hi, level, interval)
             fal.append(
                 FAlphaPoint(
                     float(q), fa.estimate / sf, fa.low / sf, fa.high / sf, ff.estimate / sf, ff.low / sf, ff.high / sf,
@@ -858,7 +861,7 @@ def rates_from(
             o = int(order) if 1 <= int(order) <= top - 1 else None
         else:
             lim = data.complete_limit if q <= 0 else data.data_limit
-            choice = choose_range(data.x, H, Hr, lim)
+            choice = choose_range(data.x, H, data.var[:, j], data.dvar[:, j], lim)
             o = None if choice is None else max((choice.lo + choice.hi + 1) // 2, 1)
         est = lo = hi = se = float("nan")
         if o is None or not (np.isfinite(H[o]) and np.isfinite(H[o - 1])):
@@ -941,7 +944,8 @@ def _word_level_data(
             reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
     x = depths * math.log(1.0 / ratio)
     dl, cl = limits_from(distinct, occ, unseen, starve)
-    return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl)
+    var, dvar = word_level_variances(wc, L, qs)
+    return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl, var, dvar)
 
 
 def _overlapping(alphabet: Alphabet, ratio: float, corners) -> tuple[bool, str]:
