@@ -47,8 +47,9 @@ from typing import Sequence
 
 import numpy as np
 
-from fractalseq.resampling import _bootstrap as bs
 from fractalseq.dimensions import _spectrum as sp
+from fractalseq.entropy._renyi_rates import RateEstimate
+from fractalseq.resampling import _bootstrap as bs
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray, SymbolStream
 
@@ -57,8 +58,6 @@ INCONSISTENT = "inconsistent"
 TOO_LITTLE = "too little data"
 NOT_APPLICABLE = "not applicable"
 
-
-RateEstimate = sp.RateEstimate
 
 
 @dataclass(frozen=True)

@@ -34,7 +34,10 @@ from numba import njit
 
 from fractalseq.resampling import _bootstrap as bs
 from fractalseq.dimensions import _level_variance as lv
-from fractalseq.dimensions import _spectrum as sp
+from fractalseq.dimensions import _levels as lev
+from fractalseq.dimensions import _parameters as par
+from fractalseq.dimensions import _scaling_fit as fit
+from fractalseq.dimensions import _spectrum_results as res
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray
 
@@ -345,7 +348,7 @@ def transient_mask(arr: SymbolArray, drop: int) -> np.ndarray:
     return keep
 
 
-def default_scales(points: np.ndarray, valid: np.ndarray | None = None, starve: float = sp.STARVE) -> np.ndarray:
+def default_scales(points: np.ndarray, valid: np.ndarray | None = None, starve: float = par.STARVE) -> np.ndarray:
     """Box sides ``extent * 2**-j``, j = 1, 2, ... one past the first scale starved of data."""
     p = _check_points(points)
     q = p[_check_mask(valid, p.shape[0])]
@@ -379,7 +382,7 @@ def geometric_spectrum(
     origin: np.ndarray | None = None,
     aligned: bool = False,
     falpha: bool = True,
-    starve: float = sp.STARVE,
+    starve: float = par.STARVE,
     corrected: bool = True,
     scale_range: tuple[int, int] | None = None,
     unit_cube: bool = False,
@@ -429,8 +432,8 @@ def geometric_spectrum(
     SpectrumResult
         ``route = "geometric box counting"``; ``n_lo``/``n_hi`` are 1-based scale indices.
     """
-    qv = sp.check_qs(qs)
-    sp.check_boot(n_boot, level, interval, scheme)
+    qv = par.check_qs(qs)
+    par.check_boot(n_boot, level, interval, scheme)
     p = _check_points(points)
     T, D = p.shape
     keep = _check_mask(valid, T)
@@ -493,7 +496,7 @@ def geometric_spectrum(
                 p, float(eps), offs[o], org, keep, unit_cube and aligned, per_used, extent=extent
             )
             m = counts.size
-            per_offset[o, j] = sp.level_stats(counts, None, qv, corrected).vector()
+            per_offset[o, j] = lev.level_stats(counts, None, qv, corrected).vector()
             g = lv.box_influence(counts, qv)
             var[j] += lv.variance_from_influence(counts, g) / O
             prev = previous[o]
@@ -501,7 +504,7 @@ def geometric_spectrum(
                 dvar[j - 1] += lv.point_difference_variance(prev[0], labels, prev[1], g) / O
             previous[o] = (labels, g)
             if reps is not None:
-                reps[:, j] += sp.replicate_vectors(labels, 1, m, plan, qv, corrected)
+                reps[:, j] += lev.replicate_vectors(labels, 1, m, plan, qv, corrected)
     del previous
     if reps is not None:
         reps /= O
@@ -509,8 +512,8 @@ def geometric_spectrum(
     distinct = est[:, 3 * Q]
     occ = np.full(S, float(n_used))
     unseen = per_offset[:, :, 3 * Q + 1].max(axis=0)
-    dl, cl = sp.limits_from(distinct, occ, unseen, starve)
-    ld = sp.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl, var, dvar)
+    dl, cl = lev.limits_from(distinct, occ, unseen, starve)
+    ld = lev.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl, var, dvar)
     user = None
     if scale_range is not None:
         lo, hi = int(scale_range[0]), int(scale_range[1])
@@ -520,8 +523,8 @@ def geometric_spectrum(
     if n_boot == 0:
         flags.append("no bootstrap: intervals from the WLS residual standard error, which ignores dependence")
     grid = "aligned grid" if aligned else f"{O} random grid offsets averaged" + (", torus" if per_used else "")
-    dims, fal = sp.estimate_all(
-        ld, qv, user, level, interval, lambda q: f"box counting ({grid}): " + sp.method_name(q, corrected),
+    dims, fal = fit.estimate_all(
+        ld, qv, user, level, interval, lambda q: f"box counting ({grid}): " + par.method_name(q, corrected),
         lambda i: int(i + 1), falpha, scale_factor=1.0,
     )
     # lattice spread: per-offset OLS slopes over the chosen range
@@ -543,11 +546,11 @@ def geometric_spectrum(
         {"n": int(i + 1), "eps": float(sc[i]), "distinct": float(distinct[i]), "occurrences": int(n_used), "unseen": float(unseen[i])}
         for i in range(S)
     )
-    return sp.SpectrumResult(
+    return res.SpectrumResult(
         "geometric box counting", None, n_used, tuple(out), tuple(fal), levels,
         int(dl + 1) if dl >= 0 else None, int(cl + 1) if cl >= 0 else None,
         block, scheme, int(n_boot), int(seed), float(level), interval, tuple(flags),
     )
 
 
-SpectrumResult = sp.SpectrumResult
+SpectrumResult = res.SpectrumResult
