@@ -490,6 +490,7 @@ def geometric_spectrum(
     var = np.zeros((S, Q))
     dvar = np.zeros((max(S - 1, 0), Q))
     previous: list[tuple[np.ndarray, np.ndarray] | None] = [None] * O
+    batches = lv.BatchSums(T, S, Q)
     for j, eps in enumerate(sc):
         for o in range(O):
             labels, counts = _labels_and_counts(
@@ -503,6 +504,7 @@ def geometric_spectrum(
             if prev is not None:
                 dvar[j - 1] += lv.point_difference_variance(prev[0], labels, prev[1], g) / O
             previous[o] = (labels, g)
+            batches.add(j, labels, counts, g, weight=1.0 / O)
             if reps is not None:
                 reps[:, j] += lev.replicate_vectors(labels, 1, m, plan, qv, corrected)
     del previous
@@ -513,7 +515,7 @@ def geometric_spectrum(
     occ = np.full(S, float(n_used))
     unseen = per_offset[:, :, 3 * Q + 1].max(axis=0)
     dl, cl = lev.limits_from(distinct, occ, unseen, starve)
-    ld = lev.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl, var, dvar)
+    ld = lev.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl, var, dvar, batches.covariance())
     user = None
     if scale_range is not None:
         lo, hi = int(scale_range[0]), int(scale_range[1])

@@ -17,6 +17,18 @@ For the Rényi entropy ``H_q = ln S_q / (1 - q)`` with ``S_q = sum p**q``:
 
 (``q = 1``: ``g_b = -ln p_b - H``; ``q = 0``: the box count is exact, ``g = 0``).
 
+Serial dependence and the overlap of a stream's words (the n-words at
+positions t and t+1 share n-1 symbols) make the levels and their
+differences move together, which a multinomial model cannot see.  When the
+stream itself is at hand, the covariance of the levels is estimated by
+*batch means* of the same influence values (:class:`BatchSums`): every
+position (or point) contributes ``g_level(its box)``, positions are cut into
+``B`` consecutive batches of length ``b = max(sqrt(N), 10 * levels)``, and
+``Cov(H_i, H_j) ~ B * Cov_batches(S_i, S_j) / N**2`` from the batch sums
+``S`` (Carlstein 1986, Ann. Statist. 14:1171; ``b ~ sqrt(N)`` as in Flegal
+& Jones 2010, Ann. Statist. 38:1034).  No resampling, no seed: the same
+stream gives the same covariance.
+
 A difference of two nested levels ``H_q(n+1) - H_q(n)`` (every box of level
 n+1 lies in one box of level n) has the influence value
 ``g_{n+1}(child) - g_n(parent)`` per box pair, so its variance is the
@@ -129,3 +141,62 @@ def point_difference_variance(lab_a: np.ndarray, lab_b: np.ndarray, ga: np.ndarr
         return np.full(Q, np.nan)
     mean = out[1] / n
     return np.maximum(out[2] / n - mean * mean, 0.0) / n
+
+
+#: Batch length of the batch-means covariance: at least this many times the number of levels.
+BATCH_LEVELS = 10
+
+
+def batch_length(length: int, levels: int) -> int:
+    """Batch length ``max(ceil(sqrt(N)), BATCH_LEVELS * levels)``, at most ``N``."""
+    return int(max(1, min(int(length), max(math.ceil(math.sqrt(max(length, 1))), BATCH_LEVELS * int(levels)))))
+
+
+@njit(cache=True)
+def _batch_sums(labels, g, b, out):
+    """``out[t // b] += g[labels[t]]`` over positions with a label (``-1`` skipped)."""
+    Q = g.shape[1]
+    for t in range(labels.shape[0]):
+        a = labels[t]
+        if a < 0:
+            continue
+        k = t // b
+        for j in range(Q):
+            out[k, j] += g[a, j]
+
+
+class BatchSums:
+    """Accumulates per-batch sums of the influence values of every level; gives their covariance.
+
+    Parameters
+    ----------
+    length:
+        Number of positions (or points).
+    levels, q_count:
+        Number of levels and of orders q.
+    """
+
+    def __init__(self, length: int, levels: int, q_count: int) -> None:
+        self.b = batch_length(length, levels)
+        self.B = -(-int(length) // self.b)
+        self.sums = np.zeros((levels, self.B, q_count))
+        self.total = np.zeros(levels)
+
+    def add(self, level: int, labels: np.ndarray, counts: np.ndarray, g: np.ndarray, weight: float = 1.0) -> None:
+        """Add one level's labels (index into ``counts``/``g``, -1 = none) with influence table ``g``."""
+        out = np.zeros((self.B, g.shape[1]))
+        _batch_sums(np.ascontiguousarray(labels), np.ascontiguousarray(g), self.b, out)
+        self.sums[level] += weight * out
+        self.total[level] += weight * float(np.sum(counts))
+
+    def covariance(self) -> np.ndarray | None:
+        """``(Q, L, L)`` batch-means covariance of the level statistics; ``None`` with fewer than 10 batches."""
+        if self.B < 10:
+            return None
+        L, B, Q = self.sums.shape
+        N = np.where(self.total > 0, self.total, np.nan)
+        out = np.empty((Q, L, L))
+        for j in range(Q):
+            S = self.sums[:, :, j] / N[:, None]  # (L, B): each batch's share of the linearised deviation
+            out[j] = B * np.cov(S, ddof=1).reshape(L, L)
+        return out

@@ -249,6 +249,11 @@ class LevelData:
     complete_limit: int
     var: np.ndarray  # (L, Q) count-based variances of H_q per level (fit weights)
     dvar: np.ndarray  # (L - 1, Q) count-based variances of the differences H_q(i+1) - H_q(i)
+    cov: np.ndarray | None = None  # (Q, L, L) batch-means covariance of the levels (needs the stream)
+
+    def cov_of(self, j: int) -> np.ndarray | None:
+        """The ``(L, L)`` covariance of ``H_q`` for the j-th q, or ``None``."""
+        return None if self.cov is None else self.cov[j]
 
 
 def negative_q_min_count(q: float, rel_bias: float = 0.01) -> float:

@@ -65,6 +65,7 @@ def choose_range(
     top: int,
     resolution: float = RESOLUTION,
     z: float = Z_LINEAR,
+    cov: np.ndarray | None = None,
 ) -> RangeChoice | None:
     """Longest run of levels ``0..top`` (indices, inclusive) that is linear; ties to the deepest.
 
@@ -73,8 +74,11 @@ def choose_range(
     count-based variance of each difference ``est[i+1] - est[i]``
     (:mod:`fractalseq.dimensions._level_variance`).  A run is linear when every
     difference (per unit of ``x``) lies within ``z`` standard errors plus
-    ``resolution`` of the run's WLS slope.  No bootstrap replicate enters, so
-    the choice does not depend on the number of replicates or the seed.
+    ``resolution`` of the run's WLS slope.  With ``cov`` (the ``(L, L)``
+    batch-means covariance of the levels) the standard error is that of the
+    difference *minus the slope*, which moves with it; without it, that of the
+    difference alone.  No bootstrap replicate enters, so the choice does not
+    depend on the number of replicates or the seed.
     """
     L = int(top) + 1
     if L < MIN_LEVELS:
@@ -92,16 +96,33 @@ def choose_range(
     v = np.where(np.isfinite(var[:L]), var[:L], 0.0)
     d_se = np.sqrt(np.where(np.isfinite(dvar[: L - 1]), dvar[: L - 1], 0.0)) / dx
     floor = (resolution * float(np.mean(dx))) ** 2
+    C = None
+    if cov is not None and np.all(np.isfinite(cov[:L, :L])):
+        C = cov[:L, :L]
     for length in range(L, MIN_LEVELS - 1, -1):
         for b in range(L - 1, length - 2, -1):
             a = b - length + 1
             c = wls_coefficients(xs[a : b + 1], v[a : b + 1], floor)
             slope = float(c @ y[a : b + 1])
             e = d_est[a:b] - slope
-            if np.all(np.abs(e) <= z * d_se[a:b] + resolution):
+            se = d_se[a:b] if C is None else _deviation_se(C, xs, c, a, b)
+            if np.all(np.abs(e) <= z * se + resolution):
                 return RangeChoice(a, b, "automatic: longest linear run")
     a = L - MIN_LEVELS
     return RangeChoice(a, L - 1, "automatic", ("curved: no linear run of 3 levels; the deepest 3 were used",))
+
+
+def _deviation_se(C: np.ndarray, xs: np.ndarray, c: np.ndarray, a: int, b: int) -> np.ndarray:
+    """Standard errors of ``(y[i+1] - y[i]) / dx_i - c @ y[a:b+1]`` for i = a..b-1, given ``Cov(y) = C``."""
+    out = np.empty(b - a)
+    for k, i in enumerate(range(a, b)):
+        u = np.zeros(C.shape[0])
+        u[a : b + 1] -= c
+        dx = xs[i + 1] - xs[i]
+        u[i + 1] += 1.0 / dx
+        u[i] -= 1.0 / dx
+        out[k] = math.sqrt(max(float(u @ C @ u), 0.0))
+    return out
 
 
 @dataclass(frozen=True)
@@ -224,7 +245,7 @@ def estimate_all(
                 flags.append("range goes past the depth where every box is hit")
             choice = RangeChoice(lo, hi, rule)
         else:
-            choice = choose_range(data.x, H, data.var[:, j], data.dvar[:, j], top)
+            choice = choose_range(data.x, H, data.var[:, j], data.dvar[:, j], top, cov=data.cov_of(j))
             if choice is not None:
                 rule = choice.how
                 flags.extend(choice.flags)

@@ -33,9 +33,12 @@ the rarest box must also be seen at least ``q (q - 1) / 0.02`` times (its
 term of the partition sum is then biased by less than 1%).  Among depths 1..that limit the
 longest run whose differences all agree with the run's slope within
 ``Z_LINEAR`` standard errors (plus a resolution of 0.001 in dimension
-units) is taken; ties go to the deepest run.  The standard errors of the
-differences are count-based (delta method on the nested words,
-:mod:`fractalseq.dimensions._level_variance`), never bootstrap replicates.
+units) is taken; ties go to the deepest run.  The standard errors are
+count-based, never bootstrap replicates
+(:mod:`fractalseq.dimensions._level_variance`): with the stream, batch means
+of the delta-method influence values give the covariance of the levels, and
+the test uses the standard error of each difference minus the run's slope;
+with word counts only, the multinomial standard error of each difference.
 
 Intervals
 ---------
@@ -69,7 +72,7 @@ from typing import Sequence
 import numpy as np
 
 from fractalseq.alphabet import Alphabet
-from fractalseq.dimensions._level_variance import word_level_variances
+from fractalseq.dimensions._level_variance import BatchSums, box_influence, word_level_variances
 from fractalseq.dimensions._levels import LevelData, LevelStats, level_stats, level_vector, limits_from, replicate_vectors
 from fractalseq.dimensions._parameters import (
     AUTO_ADDRESS_BITS,
@@ -124,7 +127,7 @@ def rates_from(
             o = int(order) if 1 <= int(order) <= top - 1 else None
         else:
             lim = data.complete_limit if q <= 0 else data.data_limit
-            choice = choose_range(data.x, H, data.var[:, j], data.dvar[:, j], lim)
+            choice = choose_range(data.x, H, data.var[:, j], data.dvar[:, j], lim, cov=data.cov_of(j))
             o = None if choice is None else max((choice.lo + choice.hi + 1) // 2, 1)
         est = lo = hi = se = float("nan")
         if o is None or not (np.isfinite(H[o]) and np.isfinite(H[o - 1])):
@@ -192,16 +195,25 @@ def _word_level_data(
         est[i] = st.vector()
         distinct[i], occ[i], unseen[i] = st.distinct, st.total, st.unseen
     reps = None
-    if arr is not None and n_boot > 0 and block is not None:
-        plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme)
-        reps = np.empty((n_boot, L, K))
+    cov = None
+    if arr is not None:
+        # every position labelled once per depth: the batch-means covariance of the levels (range rule)
+        # and, with replicates, the bootstrap (interval) share the labels
+        boot = n_boot > 0 and block is not None
+        plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme) if boot and block is not None else None
+        reps = np.empty((n_boot, L, K)) if plan is not None else None
+        batches = BatchSums(len(arr), L, qs.size)
         for i, n in enumerate(depths):
             labels, words = bs.word_labels(arr, int(n))
-            reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
+            counts = np.bincount(labels[labels >= 0], minlength=words.size)
+            batches.add(i, labels, counts, box_influence(counts, qs))
+            if reps is not None and plan is not None:
+                reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
+        cov = batches.covariance()
     x = depths * math.log(1.0 / ratio)
     dl, cl = limits_from(distinct, occ, unseen, starve)
     var, dvar = word_level_variances(wc, L, qs)
-    return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl, var, dvar)
+    return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl, var, dvar, cov)
 
 
 def _overlapping(alphabet: Alphabet, ratio: float, corners) -> tuple[bool, str]:
