@@ -477,3 +477,21 @@ def test_profile_prints_the_same_dimensions_with_and_without_bootstrap():
     # only the intervals differ: residual-based without replicates, bootstrap with them
     no_boot, boot = ([d for d in out[b]["dimensions"] if d["q"] == 2.0][0] for b in (0, 60))
     assert no_boot["stderr"] is None and boot["stderr"] > 0 and boot["low"] != no_boot["low"]
+
+
+def test_results_follow_the_result_contract(markov_boot):
+    """Estimates derive from Estimate, documents keep their old keys (flags) beside the new ones (notes)."""
+    from fractalseq.results import Estimate, Result
+
+    _, res = markov_boot
+    assert isinstance(res, Result) and all(isinstance(d, Estimate) for d in res.dims)
+    d = res.to_dict()
+    dim = d["dims"][1]
+    old = {"q", "estimate", "low", "high", "stderr", "fit_stderr", "n_lo", "n_hi", "eps_lo", "eps_hi", "method",
+           "range_rule", "flags", "local", "lattice_stderr"}
+    assert old | {"reliable", "notes"} <= set(dim)
+    assert dim["flags"] == dim["notes"] == list(res.get(1).flags)
+    assert res.get(-1).reliable is False  # negative q is flagged unreliable
+    assert set(d) >= {"route", "ratio", "length", "dims", "falpha", "levels", "data_limit", "complete_limit", "block",
+                      "scheme", "n_boot", "seed", "level", "interval", "flags", "rates"}
+    assert set(d["block"]) == {"length", "rule", "politis_white", "floor", "blocks"}

@@ -51,6 +51,7 @@ from fractalseq.dimensions import _spectrum as sp
 from fractalseq.entropy._renyi_rates import RateEstimate
 from fractalseq.resampling import _bootstrap as bs
 from fractalseq.errors import InputError, ParameterError
+from fractalseq.results import Result
 from fractalseq.stream import SymbolArray, SymbolStream
 
 CONSISTENT = "consistent"
@@ -61,7 +62,7 @@ NOT_APPLICABLE = "not applicable"
 
 
 @dataclass(frozen=True)
-class RateResult:
+class RateResult(Result):
     """Conditional-form Rényi rates for several q, with the bootstrap settings."""
 
     rates: tuple[RateEstimate, ...]
@@ -76,14 +77,6 @@ class RateResult:
                 return r
         raise KeyError(q)
 
-    def to_dict(self) -> dict:
-        return {
-            "rates": [r.to_dict() for r in self.rates],
-            "block": self.block.to_dict() if self.block else None,
-            "n_boot": self.n_boot,
-            "seed": self.seed,
-            "length": self.length,
-        }
 
 
 def conditional_rates(
@@ -127,7 +120,7 @@ def conditional_rates(
 
 
 @dataclass(frozen=True)
-class ConsistencyRow:
+class ConsistencyRow(Result):
     """One q: geometric dimension in bits beside the information rate, and the verdict."""
 
     q: float
@@ -147,29 +140,10 @@ class ConsistencyRow:
     shifted_low: float = math.nan
     shifted_high: float = math.nan
 
-    def to_dict(self) -> dict:
-        return {
-            "q": self.q,
-            "shifted_bits": self.shifted_bits,
-            "shifted_low": self.shifted_low,
-            "shifted_high": self.shifted_high,
-            "dimension": self.dimension,
-            "dimension_low": self.dimension_low,
-            "dimension_high": self.dimension_high,
-            "geometry_bits": self.geometry_bits,
-            "geometry_low": self.geometry_low,
-            "geometry_high": self.geometry_high,
-            "information_bits": self.information_bits,
-            "information_low": self.information_low,
-            "information_high": self.information_high,
-            "difference": self.difference,
-            "verdict": self.verdict,
-            "flags": list(self.flags),
-        }
 
 
 @dataclass(frozen=True)
-class ConsistencyResult:
+class ConsistencyResult(Result):
     """The table, plus the two results it was built from."""
 
     ratio: float
@@ -185,15 +159,6 @@ class ConsistencyResult:
                 return r
         raise KeyError(q)
 
-    def to_dict(self) -> dict:
-        return {
-            "ratio": self.ratio,
-            "rows": [r.to_dict() for r in self.rows],
-            "geometry": self.geometry.to_dict(),
-            "information": self.information.to_dict(),
-            "shifted": self.shifted.to_dict() if self.shifted is not None else None,
-            "flags": list(self.flags),
-        }
 
 
 #: Floating-point slack when comparing interval ends (exact counts give zero-width intervals).

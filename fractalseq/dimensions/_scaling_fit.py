@@ -15,7 +15,7 @@ import numpy as np
 
 from fractalseq.dimensions._levels import LevelData, negative_q_min_count
 from fractalseq.dimensions._parameters import MIN_LEVELS, NEGATIVE_Q, RESOLUTION, Z_LINEAR
-from fractalseq.dimensions._spectrum_results import DimensionEstimate, FAlphaPoint
+from fractalseq.dimensions._spectrum_results import DimensionEstimate, FAlphaPoint, is_reliable
 from fractalseq.resampling import _bootstrap as bs
 
 
@@ -254,8 +254,10 @@ def estimate_all(
             flags.append("too little data: fewer than 3 usable levels")
             dims.append(
                 DimensionEstimate(
-                    float(q), float("nan"), float("nan"), float("nan"), float("nan"), float("nan"),
-                    None, None, None, None, route_method(q), "none", tuple(flags), tuple(local_all / scale_factor),
+                    q=float(q), estimate=float("nan"), low=float("nan"), high=float("nan"), reliable=False,
+                    notes=tuple(flags), stderr=float("nan"), fit_stderr=float("nan"), n_lo=None, n_hi=None,
+                    eps_lo=None, eps_hi=None, method=route_method(q), range_rule="none",
+                    local=tuple(local_all / scale_factor),
                 )
             )
             if want_falpha:
@@ -267,9 +269,11 @@ def estimate_all(
         sf = scale_factor
         dims.append(
             DimensionEstimate(
-                float(q), fit.estimate / sf, fit.low / sf, fit.high / sf, fit.stderr / sf, fit.fit_stderr / sf,
-                level_name(choice.lo), level_name(choice.hi), float(data.eps[choice.lo]), float(data.eps[choice.hi]),
-                route_method(q), rule, tuple(flags), tuple(fit.local / sf),
+                q=float(q), estimate=fit.estimate / sf, low=fit.low / sf, high=fit.high / sf,
+                reliable=is_reliable(fit.estimate, tuple(flags)), notes=tuple(flags), stderr=fit.stderr / sf,
+                fit_stderr=fit.fit_stderr / sf, n_lo=level_name(choice.lo), n_hi=level_name(choice.hi),
+                eps_lo=float(data.eps[choice.lo]), eps_hi=float(data.eps[choice.hi]), method=route_method(q),
+                range_rule=rule, local=tuple(fit.local / sf),
             )
         )
         if want_falpha:

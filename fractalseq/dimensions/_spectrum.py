@@ -144,7 +144,12 @@ def rates_from(
             if Hr is None:
                 flags.append("no bootstrap: no interval")
         method = "conditional form H_q(n+1) - H_q(n): " + method_name(float(q), corrected)
-        out.append(RateEstimate(float(q), est, lo, hi, se, o, method, tuple(flags)))
+        out.append(
+            RateEstimate(
+                q=float(q), estimate=est, low=lo, high=hi, reliable=bool(math.isfinite(est)) and q >= 0,
+                notes=tuple(flags), stderr=se, order=o, method=method,
+            )
+        )
     return out
 
 

@@ -2,15 +2,27 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
+from typing import ClassVar, Mapping
 
 from fractalseq.entropy._renyi_rates import RateEstimate
 from fractalseq.errors import ParameterError
-from fractalseq.resampling import _bootstrap as bs
+from fractalseq.resampling._block_length import BlockLength
+from fractalseq.results import Estimate, Result
 
 
-@dataclass(frozen=True)
-class DimensionEstimate:
+#: Notes that make a dimension estimate unreliable (they start with these words).
+UNRELIABLE_NOTES = ("too little", "curved", "only", "negative q")
+
+
+def is_reliable(estimate: float, notes: tuple[str, ...]) -> bool:
+    """A finite estimate without a note that marks it unreliable (:data:`UNRELIABLE_NOTES`)."""
+    return bool(math.isfinite(estimate)) and not any(n.startswith(UNRELIABLE_NOTES) for n in notes)
+
+
+@dataclass(frozen=True, kw_only=True)
+class DimensionEstimate(Estimate):
     """D_q with its interval and the scaling range used.
 
     ``n_lo``/``n_hi`` are depths (word route) or 1-based scale indices
@@ -18,12 +30,13 @@ class DimensionEstimate:
     ``local`` holds the per-level differences (a local dimension per depth),
     ``stderr`` the bootstrap standard error, ``fit_stderr`` the WLS
     residual standard error (ignores correlation between levels).
+    ``notes`` (JSON key ``flags`` too) say what limits the estimate;
+    ``reliable`` is False when one of them marks it unreliable or it is NaN.
     """
 
+    _aliases: ClassVar[Mapping[str, str]] = {"flags": "notes"}
+
     q: float
-    estimate: float
-    low: float
-    high: float
     stderr: float
     fit_stderr: float
     n_lo: int | None
@@ -32,32 +45,17 @@ class DimensionEstimate:
     eps_hi: float | None
     method: str
     range_rule: str
-    flags: tuple[str, ...]
     local: tuple[float, ...]
     lattice_stderr: float | None = None
 
-    def to_dict(self) -> dict:
-        return {
-            "q": self.q,
-            "estimate": self.estimate,
-            "low": self.low,
-            "high": self.high,
-            "stderr": self.stderr,
-            "fit_stderr": self.fit_stderr,
-            "n_lo": self.n_lo,
-            "n_hi": self.n_hi,
-            "eps_lo": self.eps_lo,
-            "eps_hi": self.eps_hi,
-            "method": self.method,
-            "range_rule": self.range_rule,
-            "flags": list(self.flags),
-            "local": list(self.local),
-            "lattice_stderr": self.lattice_stderr,
-        }
+    @property
+    def flags(self) -> tuple[str, ...]:
+        """The notes (older name)."""
+        return self.notes
 
 
 @dataclass(frozen=True)
-class FAlphaPoint:
+class FAlphaPoint(Result):
     """One point of the f(alpha) spectrum (Chhabra–Jensen direct method) with intervals."""
 
     q: float
@@ -71,23 +69,10 @@ class FAlphaPoint:
     n_hi: int | None
     flags: tuple[str, ...]
 
-    def to_dict(self) -> dict:
-        return {
-            "q": self.q,
-            "alpha": self.alpha,
-            "alpha_low": self.alpha_low,
-            "alpha_high": self.alpha_high,
-            "f": self.f,
-            "f_low": self.f_low,
-            "f_high": self.f_high,
-            "n_lo": self.n_lo,
-            "n_hi": self.n_hi,
-            "flags": list(self.flags),
-        }
 
 
 @dataclass(frozen=True)
-class SpectrumResult:
+class SpectrumResult(Result):
     """Rényi dimensions (and f(alpha)) of a stream or point cloud.
 
     Attributes
@@ -124,7 +109,7 @@ class SpectrumResult:
     levels: tuple[dict, ...]
     data_limit: int | None
     complete_limit: int | None
-    block: bs.BlockLength | None
+    block: BlockLength | None
     scheme: str
     n_boot: int
     seed: int
@@ -156,22 +141,3 @@ class SpectrumResult:
             for d in self.dims
         ]
 
-    def to_dict(self) -> dict:
-        return {
-            "route": self.route,
-            "ratio": self.ratio,
-            "length": self.length,
-            "dims": [d.to_dict() for d in self.dims],
-            "falpha": [p.to_dict() for p in self.falpha],
-            "levels": list(self.levels),
-            "data_limit": self.data_limit,
-            "complete_limit": self.complete_limit,
-            "block": self.block.to_dict() if self.block else None,
-            "scheme": self.scheme,
-            "n_boot": self.n_boot,
-            "seed": self.seed,
-            "level": self.level,
-            "interval": self.interval,
-            "flags": list(self.flags),
-            "rates": [r.to_dict() for r in self.rates],
-        }

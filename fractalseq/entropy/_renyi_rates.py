@@ -14,12 +14,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import ClassVar, Mapping
 
 import numpy as np
 
 from fractalseq.entropy._entropy_estimate import LN2, EntropyEstimate
 from fractalseq.entropy._shannon import _rate_depth, _wc_info, as_spectrum, entropy_counts, rate_from_counts
 from fractalseq.errors import InputError, ParameterError
+from fractalseq.results import Estimate
 
 
 def log_power_sum(counts, q: float, unbiased: bool = True) -> float:
@@ -64,30 +66,25 @@ def renyi_counts(counts, q: float, base: float | None = 2.0, unbiased: bool = Tr
     return h if base is None else h / math.log(base)
 
 
-@dataclass(frozen=True)
-class RateEstimate:
-    """Rényi entropy rate h_q (bits per symbol) by the conditional form ``H_q(n+1) - H_q(n)`` at one order n."""
+@dataclass(frozen=True, kw_only=True)
+class RateEstimate(Estimate):
+    """Rényi entropy rate h_q (bits per symbol) by the conditional form ``H_q(n+1) - H_q(n)`` at one order n.
+
+    ``notes`` (JSON key ``flags`` too) say what limits it; ``reliable`` is False when the
+    estimate is NaN or q < 0.
+    """
+
+    _aliases: ClassVar[Mapping[str, str]] = {"flags": "notes"}
 
     q: float
-    estimate: float
-    low: float
-    high: float
     stderr: float
     order: int | None
     method: str
-    flags: tuple[str, ...]
 
-    def to_dict(self) -> dict:
-        return {
-            "q": self.q,
-            "estimate": self.estimate,
-            "low": self.low,
-            "high": self.high,
-            "stderr": self.stderr,
-            "order": self.order,
-            "method": self.method,
-            "flags": list(self.flags),
-        }
+    @property
+    def flags(self) -> tuple[str, ...]:
+        """The notes (older name)."""
+        return self.notes
 
 
 def renyi_rate_bits(

@@ -16,6 +16,7 @@ import numpy as np
 from numba import njit
 
 from fractalseq.errors import ParameterError
+from fractalseq.results import Result
 from fractalseq.resampling._word_labels import word_labels
 from fractalseq.stream import SymbolArray
 
@@ -154,23 +155,28 @@ def surprisal_series(arr: SymbolArray, order: int) -> np.ndarray:
 
 
 @dataclass(frozen=True)
-class BlockLength:
-    """The block length used and how it was chosen."""
+class BlockLength(Result):
+    """The block length used and how it was chosen.
+
+    Attributes
+    ----------
+    length:
+        Block length in symbols (or points).
+    rule:
+        How it was chosen, in words (the Politis–White value, the floor, a cap).
+    politis_white:
+        The Politis–White value (``None`` when the user gave the length).
+    floor:
+        ``BLOCK_MULTIPLE`` times the deepest depth (0 for a user's length).
+    blocks:
+        Number of blocks the stream is cut into.
+    """
 
     length: int
     rule: str
     politis_white: float | None
     floor: int
     blocks: int
-
-    def to_dict(self) -> dict:
-        return {
-            "length": self.length,
-            "rule": self.rule,
-            "politis_white": self.politis_white,
-            "floor": self.floor,
-            "blocks": self.blocks,
-        }
 
 
 def choose_block_length(

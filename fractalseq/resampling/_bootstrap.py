@@ -45,7 +45,7 @@ Same input, same seed: same replicates, byte for byte.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Callable, Iterable, Sequence
+from typing import Callable, ClassVar, Iterable, Mapping, Sequence
 
 import numpy as np
 
@@ -67,6 +67,7 @@ from fractalseq.resampling._intervals import INTERVALS, interval_from
 from fractalseq.resampling._plan import SCHEMES, ResamplePlan, make_plan
 from fractalseq.resampling._replicates import CountSpectrum
 from fractalseq.resampling._word_labels import DENSE_LABEL_CELLS, rank_sorted_keys, word_labels
+from fractalseq.results import Result
 from fractalseq.stream import SymbolArray, SymbolStream
 
 __all__ = [
@@ -78,7 +79,7 @@ __all__ = [
 
 
 @dataclass(frozen=True)
-class BootstrapResult:
+class BootstrapResult(Result):
     """A statistic of a stream with its block-bootstrap replicates.
 
     Attributes
@@ -86,60 +87,62 @@ class BootstrapResult:
     estimate:
         The statistic on the whole stream (all words, none dropped), shape ``(k,)``.
     replicates:
-        ``(n_boot, k)`` statistic of each replicate.
+        ``(n_boot, k)`` statistic of each replicate (not in the JSON form).
     depths:
         Word lengths the statistic was given.
     block:
         The block length used and the rule that chose it.
     scheme, n_boot, seed, length:
         Resampling scheme, replicate count, seed, positions resampled.
+    notes:
+        Limits of the intervals (too few blocks...).
+    level, interval_method:
+        Confidence level and interval method of ``low``/``high`` (JSON key ``interval``).
+    standard_error, low, high:
+        Bootstrap standard error (JSON key ``stderr`` too) and interval per component (derived
+        from the replicates).
     """
 
+    _aliases: ClassVar[Mapping[str, str]] = {"stderr": "standard_error", "interval": "interval_method"}
+
     estimate: np.ndarray
-    replicates: np.ndarray
-    depths: tuple[int, ...]
-    block: BlockLength
-    scheme: str
-    n_boot: int
-    seed: int
-    length: int
+    replicates: np.ndarray = field(metadata={"json": False})
+    depths: tuple[int, ...] = ()
+    block: BlockLength | None = None
+    scheme: str = "nonoverlapping"
+    n_boot: int = 0
+    seed: int = 0
+    length: int = 0
     notes: tuple[str, ...] = field(default=())
+    level: float = 0.95
+    interval_method: str = "centered"
+    standard_error: np.ndarray = field(init=False)
+    low: np.ndarray = field(init=False)
+    high: np.ndarray = field(init=False)
 
-    @property
-    def block_length(self) -> int:
-        return self.block.length
-
-    def stderr(self) -> np.ndarray:
-        """Bootstrap standard error per component (finite replicates only)."""
-        out = np.full(self.estimate.size, np.nan)
+    def __post_init__(self) -> None:
+        se = np.full(self.estimate.size, np.nan)
         for j in range(self.estimate.size):
             r = self.replicates[:, j]
             r = r[np.isfinite(r)]
             if r.size >= 2:
-                out[j] = r.std(ddof=1)
-        return out
+                se[j] = r.std(ddof=1)
+        lo, hi = interval_from(self.estimate, self.replicates, self.level, self.interval_method)
+        object.__setattr__(self, "standard_error", se)
+        object.__setattr__(self, "low", lo)
+        object.__setattr__(self, "high", hi)
+
+    @property
+    def block_length(self) -> int:
+        return self.block.length if self.block is not None else 0
+
+    def stderr(self) -> np.ndarray:
+        """Bootstrap standard error per component (finite replicates only)."""
+        return self.standard_error
 
     def interval(self, level: float = 0.95, method: str = "centered") -> tuple[np.ndarray, np.ndarray]:
-        """``(low, high)`` arrays; see :func:`interval_from`."""
+        """``(low, high)`` arrays at any level and method; see :func:`interval_from`."""
         return interval_from(self.estimate, self.replicates, level, method)
-
-    def to_dict(self, level: float = 0.95, method: str = "centered") -> dict:
-        lo, hi = self.interval(level, method)
-        return {
-            "estimate": self.estimate,
-            "stderr": self.stderr(),
-            "low": lo,
-            "high": hi,
-            "level": level,
-            "interval": method,
-            "depths": list(self.depths),
-            "block": self.block.to_dict(),
-            "scheme": self.scheme,
-            "n_boot": self.n_boot,
-            "seed": self.seed,
-            "length": self.length,
-            "notes": list(self.notes),
-        }
 
 
 def _as_array(arr: SymbolArray | SymbolStream) -> SymbolArray:
