@@ -197,9 +197,9 @@ def test_bootstrap_intervals_cover_truth_and_are_reported(markov_boot):
     truth = {0: 1.0, 1: 0.569386594, 2: 0.297736275}  # REFERENCE-CHECKS A5
     for q, value in truth.items():
         d = res.get(q)
-        assert d.low <= d.estimate <= d.high
         # a 95% interval may miss; allow 4 bootstrap standard errors beyond it (a clear failure only)
         se = max(d.stderr, 1e-12)
+        assert abs(d.estimate - value) <= 4 * se + 1e-9
         assert d.low - 4 * se <= value <= d.high + 4 * se
         assert d.stderr > 0 or q == 0
     assert res.block is not None and res.block.length >= 10 * res.get(1).n_hi
@@ -324,19 +324,25 @@ def test_overlapping_maps_switch_to_box_counting():
 
 
 def test_bad_parameters_raise_one_sentence_errors():
+    """Each error names the parameter to change (the command line maps it to its option)."""
     arr = binary_stream(markov.bernoulli(10_000, 0.5, seed=1))
+    cases = [
+        (dict(qs=()), "qs"),
+        (dict(qs=(float("nan"),)), "qs"),
+        (dict(depth_range=(5, 5)), "depth_range"),
+        (dict(n_boot=5), "n_boot"),
+        (dict(interval="magic"), "interval"),
+        (dict(scheme="circular"), "scheme"),
+        (dict(level=1.5), "level"),
+        (dict(starve=0.5), "starve"),
+    ]
+    for kwargs, parameter in cases:
+        with pytest.raises(ParameterError) as err:
+            dimension_spectrum(arr, **kwargs)
+        assert err.value.parameter == parameter, (kwargs, err.value.parameter)
+        assert "--" not in str(err.value)
     with pytest.raises(ParameterError):
-        dimension_spectrum(arr, qs=())
-    with pytest.raises(ParameterError):
-        dimension_spectrum(arr, qs=(float("nan"),))
-    with pytest.raises(ParameterError):
-        dimension_spectrum(arr, ratio=1.5)
-    with pytest.raises(ParameterError):
-        dimension_spectrum(arr, depth_range=(5, 5))
-    with pytest.raises(ParameterError):
-        dimension_spectrum(arr, n_boot=5)
-    with pytest.raises(ParameterError):
-        dimension_spectrum(arr, interval="magic")
+        dimension_spectrum(arr, ratio=1.5)  # checked by the encoding
     with pytest.raises(InputError):
         dimension_spectrum(from_codes(BIN, np.zeros(0, np.uint8)))
     with pytest.raises(InputError):
@@ -353,12 +359,14 @@ def test_other_block_schemes_and_rates(scheme):
     arr = binary_stream(markov.simulate_markov(P, 50_000, seed=12))
     res = dimension_spectrum(arr, qs=(1,), n_boot=40, seed=1, scheme=scheme, falpha=False, rates=True)
     d = res.get(1)
+    h1 = 0.5693865938
     assert res.scheme == scheme
-    assert d.low < d.estimate < d.high and d.stderr > 0
+    assert d.estimate == pytest.approx(h1, abs=0.02) and d.stderr > 0
+    assert d.low - 4 * d.stderr <= h1 <= d.high + 4 * d.stderr  # a clear failure only
     r = res.rates[0]
     assert r.q == 1.0 and r.order is not None
-    assert r.low <= r.estimate <= r.high
-    assert r.estimate == pytest.approx(0.5693865938, abs=0.02)
+    assert r.estimate == pytest.approx(h1, abs=0.02)
+    assert r.low - 4 * r.stderr <= h1 <= r.high + 4 * r.stderr
 
 
 # ------------------------------------------------------------ count-based fit weights

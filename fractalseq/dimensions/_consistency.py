@@ -237,7 +237,7 @@ def consistency_table(
     else:
         missing = [float(q) for q in qv if all(r.q != float(q) for r in information.rates)]
         if missing or information.length != len(arr):
-            raise ParameterError("The information side given was computed on another stream or other orders q; recompute it.")
+            raise ParameterError("The information side given was computed on another stream or other orders q; recompute it.", parameter="information")
         info = information
     # the geometric side uses the same block length (same blocks, same seed)
     ell = info.block if info.block is not None else block_length
@@ -247,7 +247,7 @@ def consistency_table(
         top = max(probe.data_limit + 1, sp.MIN_LEVELS)
     else:
         if not isinstance(levels, (int, np.integer)) or levels < 1:
-            raise ParameterError(f"The number of scales must be a positive whole number, not {levels!r}.")
+            raise ParameterError(f"The number of scales must be a positive whole number, not {levels!r}.", parameter="levels")
         top = max(int(levels), sp.MIN_LEVELS)
     pts = encoding.points(arr, k, corners, drop=0)
     layout = encoding.corner_layout(arr.alphabet.size, corners)

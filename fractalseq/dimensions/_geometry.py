@@ -177,14 +177,14 @@ def _check_mask(valid: np.ndarray | None, n: int) -> np.ndarray:
     """The points kept: all (``valid=None``) or a boolean mask with one entry per point."""
     keep = np.ones(n, dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
     if keep.shape != (n,):
-        raise ParameterError("The validity mask must have one entry per point.")
+        raise ParameterError("The validity mask must have one entry per point.", parameter="valid")
     return keep
 
 
 def _check_scale(scale: float) -> float:
     s = float(scale)
     if not (s > 0 and math.isfinite(s)):
-        raise ParameterError(f"Box side {scale} must be a positive number.")
+        raise ParameterError(f"Box side {scale} must be a positive number.", parameter="scale")
     return s
 
 
@@ -335,7 +335,7 @@ def occupied_boxes(points: np.ndarray, scale: float, offset: np.ndarray | None =
 def grid_offsets(dim: int, count: int, seed: int = 0) -> np.ndarray:
     """``count`` random grid shifts in ``[0, 1)^dim`` (``numpy.random.default_rng(seed)``)."""
     if count < 1:
-        raise ParameterError(f"Use at least one grid offset, not {count}.")
+        raise ParameterError(f"Use at least one grid offset, not {count}.", parameter="count")
     return np.random.default_rng(seed).random((int(count), int(dim)))
 
 
@@ -452,7 +452,7 @@ def geometric_spectrum(
     if period is not None:
         per = float(period)
         if not (per > 0 and math.isfinite(per)):
-            raise ParameterError(f"The period {period} must be a positive number.")
+            raise ParameterError(f"The period {period} must be a positive number.", parameter="period")
     if aligned or not periodic:
         per_used = None
     else:
@@ -463,7 +463,7 @@ def geometric_spectrum(
         offs = np.zeros((1, D))
     else:
         if not isinstance(offsets, (int, np.integer)) or offsets < 1:
-            raise ParameterError(f"Use at least one grid offset, not {offsets!r}.")
+            raise ParameterError(f"Use at least one grid offset, not {offsets!r}.", parameter="offsets")
         offs = grid_offsets(D, int(offsets), seed)
     O = offs.shape[0]
     Q = qv.size
@@ -520,7 +520,7 @@ def geometric_spectrum(
     if scale_range is not None:
         lo, hi = int(scale_range[0]), int(scale_range[1])
         if lo < 1 or hi > S or hi - lo < 1:
-            raise ParameterError(f"Scale range ({lo}, {hi}) must satisfy 1 <= lo < hi <= {S} (indices of the scales).")
+            raise ParameterError(f"Scale range ({lo}, {hi}) must satisfy 1 <= lo < hi <= {S} (indices of the scales).", parameter="scale_range")
         user = (lo - 1, hi - 1)
     if n_boot == 0:
         flags.append("no bootstrap: intervals from the WLS residual standard error, which ignores dependence")

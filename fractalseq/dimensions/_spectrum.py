@@ -159,7 +159,7 @@ def _counts_for(arr: SymbolArray, starve: float, max_depth: int | None, need: in
     cap = arr.alphabet.max_depth if max_depth is None else min(int(max_depth), arr.alphabet.max_depth)
     if need is not None:
         if need > cap:
-            raise ParameterError(f"Depth {need} exceeds the deepest countable {cap}; choose a shallower range.")
+            raise ParameterError(f"Depth {need} exceeds the deepest countable {cap}; choose a shallower range.", parameter="depth_range")
         return count_words(arr, need)
     T = len(arr)
     depth = int(min(cap, max(MIN_LEVELS + 1, math.ceil(math.log(max(T / starve, 2.0)) / math.log(A)) + 2)))
@@ -288,7 +288,7 @@ def dimension_spectrum(
     k = check_ratio(ratio)
     check_boot(n_boot, level, interval, scheme)
     if starve <= 1:
-        raise ParameterError(f"The starvation factor must exceed 1 (default {STARVE}), not {starve}.")
+        raise ParameterError(f"The starvation factor must exceed 1 (default {STARVE}), not {starve}.", parameter="starve")
     arr: SymbolArray | None
     if isinstance(data, WordCounts):
         wc0: WordCounts | None = data
@@ -305,7 +305,8 @@ def dimension_spectrum(
         if arr is None:
             raise ParameterError(
                 f"Word counts give box counts only for non-overlapping maps, and {reason}; "
-                "pass the stream itself so geometric box counting is used."
+                "pass the stream itself so geometric box counting is used.",
+                parameter="data",
             )
         from fractalseq import encoding
         from fractalseq.dimensions import _geometry as geometry
@@ -326,9 +327,9 @@ def dimension_spectrum(
         try:
             lo, hi = (int(depth_range[0]), int(depth_range[1]))
         except (TypeError, ValueError, IndexError):
-            raise ParameterError("depth_range must be two whole numbers (n_lo, n_hi).") from None
+            raise ParameterError("depth_range must be two whole numbers (n_lo, n_hi).", parameter="depth_range") from None
         if lo < 1 or hi - lo < 1:
-            raise ParameterError(f"Depth range ({lo}, {hi}) needs 1 <= n_lo < n_hi; e.g. (4, 10).")
+            raise ParameterError(f"Depth range ({lo}, {hi}) needs 1 <= n_lo < n_hi; e.g. (4, 10).", parameter="depth_range")
         user = (lo, hi)
     flags: list[str] = []
     if arr is not None:
@@ -339,7 +340,7 @@ def dimension_spectrum(
         assert wc0 is not None
         wc = wc0
         if user and user[1] > wc.depth:
-            raise ParameterError(f"Depth range ends at {user[1]} but the counts go to depth {wc.depth}; count deeper.")
+            raise ParameterError(f"Depth range ends at {user[1]} but the counts go to depth {wc.depth}; count deeper.", parameter="depth_range")
         if n_boot:
             flags.append("word counts only: no bootstrap (it needs the stream); intervals from the fit residuals")
     # levels used: up to the data limit (or the user's end)

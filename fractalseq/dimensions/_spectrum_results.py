@@ -123,7 +123,7 @@ class SpectrumResult(Result):
         for d in self.dims:
             if d.q == float(q):
                 return d
-        raise ParameterError(f"q = {q} was not computed; ask for it in qs.")
+        raise ParameterError(f"q = {q} was not computed; ask for it in qs.", parameter="q")
 
     def rows(self) -> list[dict]:
         """One flat dict per q (for tables and CSV)."""

@@ -50,7 +50,7 @@ def h_compressors(data, alphabet_size: int | None = None, max_length: int | None
         raise InputError("The compressor bound needs a non-empty 1-D stream of codes.")
     A = int(alphabet_size) if alphabet_size is not None else int(codes.max()) + 1
     if A < 2:
-        raise ParameterError("The compressor bound needs an alphabet of at least 2 symbols.")
+        raise ParameterError("The compressor bound needs an alphabet of at least 2 symbols.", parameter="alphabet_size")
     total = int(codes.size)
     notes: list[str] = []
     if max_length is not None and total > max_length:

@@ -90,7 +90,7 @@ def bootstrap_rate(
     from fractalseq.resampling import _bootstrap as bs
 
     if est.depth is None or est.quantity not in ("entropy rate", "Renyi entropy rate"):
-        raise ParameterError(f"A bootstrap interval is available for depth-based entropy rates, not for {est.method}.")
+        raise ParameterError(f"A bootstrap interval is available for depth-based entropy rates, not for {est.method}.", parameter="est")
     n = int(est.depth)
     kind, _, meth = est.method.partition("/")
     if est.quantity == "Renyi entropy rate":
@@ -114,7 +114,7 @@ def bootstrap_rate(
             return ratio_from_counts(t[n], n, meth)
 
     else:
-        raise ParameterError(f"A bootstrap interval is not available for the {est.method} estimate.")
+        raise ParameterError(f"A bootstrap interval is not available for the {est.method} estimate.", parameter="est")
     res = bs.block_bootstrap(
         stream, depths, statistic, n_boot=n_boot, seed=seed, block_length=block_length, scheme=scheme, spectra=True
     )

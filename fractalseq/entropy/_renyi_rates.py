@@ -37,7 +37,7 @@ def log_power_sum(counts, q: float, unbiased: bool = True) -> float:
     """
     q = float(q)
     if q == 1.0:
-        raise ParameterError("q = 1 is the Shannon limit; use entropy_counts for it.")
+        raise ParameterError("q = 1 is the Shannon limit; use entropy_counts for it.", parameter="q")
     v, m = as_spectrum(counts)
     N = float((v * m).sum())
     if N <= 0:

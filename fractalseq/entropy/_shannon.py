@@ -66,7 +66,7 @@ def method_name(method: str) -> str:
     try:
         return _ALIASES[str(method).lower()]
     except KeyError:
-        raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.") from None
+        raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.", parameter="method") from None
 
 
 def as_spectrum(counts) -> tuple[np.ndarray, np.ndarray]:
@@ -100,7 +100,7 @@ def grassberger_g(n) -> np.ndarray:
     """
     n = np.asarray(n, dtype=np.float64)
     if np.any(n < 1) or np.any(n != np.round(n)):
-        raise ParameterError("Grassberger's G(n) is defined for whole numbers n >= 1.")
+        raise ParameterError("Grassberger's G(n) is defined for whole numbers n >= 1.", parameter="n")
     sign = np.where(np.mod(n, 2) == 0, 1.0, -1.0)
     return digamma(n) + 0.5 * sign * (digamma((n + 1) / 2) - digamma(n / 2))
 
@@ -121,7 +121,7 @@ def _entropy_nats(v: np.ndarray, m: np.ndarray, method: str) -> float:
         return math.log(N) - float((m * v * np.log(v)).sum()) / N + (K - 1.0) / (2.0 * N)
     if method == "grassberger":
         return float(digamma(N)) - float((m * v * grassberger_g(v)).sum()) / N
-    raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.")
+    raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.", parameter="method")
 
 
 def replicate_entropies(spectra, method: str = "grassberger") -> np.ndarray:
@@ -159,7 +159,7 @@ def replicate_entropies(spectra, method: str = "grassberger") -> np.ndarray:
         S = (D * vg).sum(axis=1) + bg.sum(axis=0)
         out[ok] = digamma(N[ok]) - S[ok] / N[ok]
         return out
-    raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.")
+    raise ParameterError(f"Entropy method {method!r} is not one of {', '.join(METHODS)}.", parameter="method")
 
 
 def replicate_rates(spectra_n, spectra_n1, method: str = "grassberger") -> np.ndarray:
@@ -197,7 +197,7 @@ def choose_depth(length: int, alphabet_size: int, offset: int = 1, factor: float
     """
     A = int(alphabet_size)
     if A < 2:
-        raise ParameterError("Entropy estimates need an alphabet of at least 2 symbols.")
+        raise ParameterError("Entropy estimates need an alphabet of at least 2 symbols.", parameter="alphabet_size")
     budget = float(length) / float(factor)
     n = -1
     while A ** (n + 1 + offset) <= budget:
@@ -293,7 +293,7 @@ def rate_from_counts(counts_n, counts_n1, method: str = "grassberger") -> float:
 def ratio_from_counts(counts_n, n: int, method: str = "grassberger") -> float:
     """Ratio estimate ``H_n / n`` in bits per symbol from the n-word counts."""
     if n < 1:
-        raise ParameterError("The ratio estimate H_n/n needs n >= 1.")
+        raise ParameterError("The ratio estimate H_n/n needs n >= 1.", parameter="n")
     v, m = as_spectrum(counts_n)
     return _entropy_nats(v, m, method_name(method)) / LN2 / n
 
@@ -310,7 +310,7 @@ def _rate_depth(wc, depth: int | None, offset: int) -> tuple[int, bool, list[str
     else:
         n = int(depth)
         if n < (1 - offset) or n + offset > N:
-            raise ParameterError(f"Depth {n} needs words of length {n + offset}, but only 1..{N} were counted; count deeper.")
+            raise ParameterError(f"Depth {n} needs words of length {n + offset}, but only 1..{N} were counted; count deeper.", parameter="depth")
     k = n + offset
     ok = A**k <= L / SAMPLES_PER_WORD
     if not ok:

@@ -28,7 +28,7 @@ def h_topological_growth(wc, depth: int | None = None) -> EntropyEstimate:
     """
     A, N, L = _wc_info(wc)
     if N < 2 and depth is None:
-        raise ParameterError("The growth estimate needs words of length 2; count to depth 2 or more.")
+        raise ParameterError("The growth estimate needs words of length 2; count to depth 2 or more.", parameter="depth")
     notes: list[str] = []
     if depth is None:
         n = 1
@@ -42,7 +42,7 @@ def h_topological_growth(wc, depth: int | None = None) -> EntropyEstimate:
     else:
         n = int(depth)
         if n < 1 or n + 1 > N:
-            raise ParameterError(f"Growth at depth {n} needs words of length {n + 1}; only 1..{N} were counted.")
+            raise ParameterError(f"Growth at depth {n} needs words of length {n + 1}; only 1..{N} were counted.", parameter="depth")
         s = wc.spectrum(n + 1)
         ok = s.distinct * SAMPLES_PER_SEEN_WORD <= s.total
         if not ok:
@@ -130,7 +130,7 @@ def h_topological_koslicki(data, alphabet_size: int | None = None) -> EntropyEst
         raise InputError("Topological entropy needs a non-empty 1-D stream of codes.")
     A = int(alphabet_size) if alphabet_size is not None else int(codes.max()) + 1
     if A < 2:
-        raise ParameterError("Topological entropy needs an alphabet of at least 2 symbols.")
+        raise ParameterError("Topological entropy needs an alphabet of at least 2 symbols.", parameter="alphabet_size")
     L = int(codes.size)
     n = 0
     while A ** (n + 1) + n <= L:

@@ -206,7 +206,7 @@ def choose_block_length(
     """
     if series is None:
         if arr is None:
-            raise ParameterError("choose_block_length needs a stream or a series.")
+            raise ParameterError("choose_block_length needs a stream or a series.", parameter="series")
         order = int(min(2, max(depth - 1, 0)))
         if arr.alphabet.size > 16:
             order = min(order, 1)
@@ -236,9 +236,9 @@ def user_block_length(block_length: "int | BlockLength", length: int) -> BlockLe
             return block_length
         return BlockLength(ell, block_length.rule, block_length.politis_white, block_length.floor, int(math.ceil(length / ell)))
     if not isinstance(block_length, (int, np.integer)) or block_length < 1:
-        raise ParameterError(f"Block length must be a positive whole number of symbols, not {block_length!r}.")
+        raise ParameterError(f"Block length must be a positive whole number of symbols, not {block_length!r}.", parameter="block_length")
     if block_length > length:
-        raise ParameterError(f"Block length {block_length} exceeds the stream length {length}; give a shorter block.")
+        raise ParameterError(f"Block length {block_length} exceeds the stream length {length}; give a shorter block.", parameter="block_length")
     return BlockLength(int(block_length), f"set by the user: {block_length}", None, 0, int(math.ceil(length / block_length)))
 
 

@@ -209,9 +209,9 @@ def block_bootstrap(
     arr = _as_array(arr)
     depths = tuple(sorted({int(d) for d in depths}))
     if not depths:
-        raise ParameterError("Give at least one word length to the bootstrap.")
+        raise ParameterError("Give at least one word length to the bootstrap.", parameter="depths")
     if n_boot < 0:
-        raise ParameterError(f"The number of bootstrap replicates must be 0 or more, not {n_boot}.")
+        raise ParameterError(f"The number of bootstrap replicates must be 0 or more, not {n_boot}.", parameter="n_boot")
     T = len(arr)
     arr.require_length(max(depths) + 1, "the bootstrap")
     block = resolve_block(arr, max(depths), block_length, scheme)

@@ -26,9 +26,9 @@ def interval_from(
     than 10 finite replicates get NaN.
     """
     if method not in INTERVALS:
-        raise ParameterError(f"Unknown interval method {method!r}; use one of {', '.join(INTERVALS)}.")
+        raise ParameterError(f"Unknown interval method {method!r}; use one of {', '.join(INTERVALS)}.", parameter="method")
     if not 0.5 < level < 1:
-        raise ParameterError(f"Confidence level {level} is outside (0.5, 1); use e.g. 0.95.")
+        raise ParameterError(f"Confidence level {level} is outside (0.5, 1); use e.g. 0.95.", parameter="level")
     est = np.atleast_1d(np.asarray(estimate, dtype=np.float64))
     rep = np.asarray(replicates, dtype=np.float64).reshape(-1, est.size)
     lo = np.full(est.size, np.nan)

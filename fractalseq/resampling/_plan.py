@@ -32,7 +32,7 @@ class ResamplePlan:
     def block_weights(self) -> np.ndarray:
         """``(n_boot, B)`` multinomial weights of the disjoint blocks (non-overlapping scheme only)."""
         if self.scheme != "nonoverlapping":
-            raise ParameterError("Block weights exist only for the non-overlapping scheme.")
+            raise ParameterError("Block weights exist only for the non-overlapping scheme.", parameter="scheme")
         B = -(-self.length // self.block_length)
         W = np.zeros((self.n_boot, B), dtype=np.int64)
         ids = (self.starts // self.block_length).reshape(self.n_boot, -1)
@@ -44,7 +44,7 @@ class ResamplePlan:
 def make_plan(length: int, block_length: int, n_boot: int, seed: int = 0, scheme: str = "nonoverlapping") -> ResamplePlan:
     """Draw the blocks of ``n_boot`` replicates (``numpy.random.default_rng(seed)``)."""
     if scheme not in SCHEMES:
-        raise ParameterError(f"Unknown bootstrap scheme {scheme!r}; use one of {', '.join(SCHEMES)}.")
+        raise ParameterError(f"Unknown bootstrap scheme {scheme!r}; use one of {', '.join(SCHEMES)}.", parameter="scheme")
     T, ell = int(length), int(block_length)
     if T < 1:
         raise InputError("There is nothing to resample: the stream is empty.")

@@ -100,7 +100,7 @@ def word_labels(arr: SymbolArray, depth: int) -> tuple[np.ndarray, np.ndarray]:
     T = len(arr)
     bits = arr.alphabet.bits
     if depth < 1 or bits * depth > 64:
-        raise ParameterError(f"Depth {depth} is outside 1..{arr.alphabet.max_depth} for this alphabet.")
+        raise ParameterError(f"Depth {depth} is outside 1..{arr.alphabet.max_depth} for this alphabet.", parameter="depth")
     addr = np.zeros(T, dtype=np.uint64)
     valid = np.zeros(T, dtype=bool)
     if T:
