@@ -260,7 +260,9 @@ def replicate_spectra(tables: ItemTables, weights: np.ndarray, cap: int = DEFAUL
     """
     W = np.asarray(weights)
     if W.ndim != 2 or W.shape[1] != tables.n_blocks:
-        raise ValueError(f"weights must have shape (replicates, {tables.n_blocks}), not {W.shape}")
+        raise ParameterError(
+            f"The block weights must have shape (replicates, {tables.n_blocks}), not {W.shape}.", parameter="weights"
+        )
     wt = np.ascontiguousarray(W.T, dtype=np.int32)
     R = W.shape[0]
     cap = max(int(cap), 2)
