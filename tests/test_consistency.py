@@ -146,3 +146,25 @@ def test_consistency_errors():
         consistency_table(from_codes(BIN, np.zeros(20, np.uint8)))
     with pytest.raises(ParameterError):
         consistency_table(from_codes(BIN, markov.bernoulli(5000, 0.5, seed=1)), ratio=0.0)
+
+
+def test_one_home_for_the_renyi_rate():
+    """h_2 by the dimensions' conditional form and by entropy.h_renyi are the same number at the same order.
+
+    Both use the collision estimator sum c(c-1)/(N(N-1)) (unbiased for sum p^2; REFERENCE-CHECKS E4) and the
+    one rate function entropy.renyi_rate_bits; the value is h_2 of the chain, 0.206375060 nats
+    (Rached, Alajaji & Campbell 2001; REFERENCE-CHECKS B4).
+    """
+    from fractalseq.entropy import h_renyi
+    from fractalseq.words._counts import count_words
+
+    arr = from_codes(BIN, markov.simulate_markov(P2, 100_000, seed=31))
+    wc = count_words(arr, 6)
+    for n in (2, 4):
+        a = conditional_rates(arr, qs=(2,), order=n, n_boot=0).get(2)
+        b = h_renyi(wc, 2, depth=n)
+        assert a.order == b.depth == n
+        # the collision sums themselves are computed by log-gamma (dimensions) and by products (entropy):
+        # equal up to rounding
+        assert a.estimate == pytest.approx(b.estimate, rel=1e-8)
+        assert a.estimate == pytest.approx(0.206375059561 / math.log(2), abs=0.01)
