@@ -490,7 +490,9 @@ def geometric_spectrum(
     var = np.zeros((S, Q))
     dvar = np.zeros((max(S - 1, 0), Q))
     previous: list[tuple[np.ndarray, np.ndarray] | None] = [None] * O
-    batches = lv.BatchSums(T, S, Q)
+    # batches as long as the automatic bootstrap blocks (whatever block length the interval uses)
+    auto = bs.choose_block_length(None, levels_J, length=T, series=p[keep, 0], scheme="nonoverlapping")
+    batches = lv.BatchSums(T, S, Q, batch=auto.length)
     for j, eps in enumerate(sc):
         for o in range(O):
             labels, counts = _labels_and_counts(

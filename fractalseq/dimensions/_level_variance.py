@@ -23,11 +23,17 @@ differences move together, which a multinomial model cannot see.  When the
 stream itself is at hand, the covariance of the levels is estimated by
 *batch means* of the same influence values (:class:`BatchSums`): every
 position (or point) contributes ``g_level(its box)``, positions are cut into
-``B`` consecutive batches of length ``b = max(sqrt(N), 10 * levels)``, and
-``Cov(H_i, H_j) ~ B * Cov_batches(S_i, S_j) / N**2`` from the batch sums
-``S`` (Carlstein 1986, Ann. Statist. 14:1171; ``b ~ sqrt(N)`` as in Flegal
-& Jones 2010, Ann. Statist. 38:1034).  No resampling, no seed: the same
-stream gives the same covariance.
+``B`` consecutive batches of length ``b``, and
+``Cov(H_i, H_j) ~ B * Cov_batches(S_i / N_i, S_j / N_j)`` from the batch sums
+``S`` (the subseries estimator of Carlstein 1986, Ann. Statist. 14:1171).
+The routes take ``b`` = the automatic block length of the bootstrap
+(Politis & White on the surprisal series, floored at 10 x the deepest
+level; :func:`fractalseq.resampling._block_length.choose_block_length`), so
+the covariance is what the non-overlapping block bootstrap of the linearised
+statistics would give with infinitely many replicates -- computed exactly,
+without resampling or a seed, and whatever block length the interval uses.
+Without a block length, ``b = max(sqrt(N), 10 * levels)`` (Flegal & Jones
+2010, Ann. Statist. 38:1034).
 
 A difference of two nested levels ``H_q(n+1) - H_q(n)`` (every box of level
 n+1 lies in one box of level n) has the influence value
@@ -174,10 +180,12 @@ class BatchSums:
         Number of positions (or points).
     levels, q_count:
         Number of levels and of orders q.
+    batch:
+        Batch length (default :func:`batch_length`).
     """
 
-    def __init__(self, length: int, levels: int, q_count: int) -> None:
-        self.b = batch_length(length, levels)
+    def __init__(self, length: int, levels: int, q_count: int, batch: int | None = None) -> None:
+        self.b = batch_length(length, levels) if batch is None else int(max(1, min(int(length), int(batch))))
         self.B = -(-int(length) // self.b)
         self.sums = np.zeros((levels, self.B, q_count))
         self.total = np.zeros(levels)

@@ -207,7 +207,9 @@ def _word_level_data(
         boot = n_boot > 0 and block is not None
         plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme) if boot and block is not None else None
         reps = np.empty((n_boot, L, K)) if plan is not None else None
-        batches = BatchSums(len(arr), L, qs.size)
+        # batches as long as the automatic bootstrap blocks (whatever block length the interval uses)
+        auto = bs.choose_block_length(arr, L, scheme="nonoverlapping")
+        batches = BatchSums(len(arr), L, qs.size, batch=auto.length)
         for i, n in enumerate(depths):
             labels, words = bs.word_labels(arr, int(n))
             counts = np.bincount(labels[labels >= 0], minlength=words.size)
