@@ -36,7 +36,7 @@ import math
 import numpy as np
 from numba import njit
 
-from fractalseq.entropy._estimators import EntropyEstimate
+from fractalseq.entropy._entropy_estimate import EntropyEstimate
 from fractalseq.errors import InputError, ParameterError
 
 #: Longest stream parsed by default; longer streams are cut to this prefix (stated in the result).
