@@ -57,7 +57,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from fractalseq import alphabet as al  # noqa: E402
-from fractalseq import markov  # noqa: E402
+from fractalseq.datasets import _markov as markov  # noqa: E402
 from fractalseq.io._outputs import write_json, write_text  # noqa: E402
 from fractalseq.dimensions._spectrum import binomial_dimension, dimension_spectrum  # noqa: E402
 from fractalseq.stream import from_codes  # noqa: E402

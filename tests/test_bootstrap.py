@@ -12,6 +12,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from fractalseq import alphabet as al
 from fractalseq.resampling import _bootstrap as bs
@@ -121,10 +123,13 @@ def test_generic_bootstrap_estimate_and_determinism():
     assert res.replicates.tobytes() == again.replicates.tobytes()
     other = bs.block_bootstrap(arr, [1, 3], stat, n_boot=40, seed=2)
     assert not np.array_equal(res.replicates, other.replicates)
-    lo, hi = res.interval()
-    assert np.all(lo <= hi)
+    # percentile intervals are numpy's quantiles of the replicates (general-purpose reference)
+    lo, hi = res.interval(0.9, "percentile")
+    assert np.allclose(lo, np.quantile(res.replicates, 0.05, axis=0), rtol=0, atol=1e-15)
+    assert np.allclose(hi, np.quantile(res.replicates, 0.95, axis=0), rtol=0, atol=1e-15)
     d = res.to_dict()
     assert d["block"]["length"] == res.block_length and d["n_boot"] == 40
+    assert np.allclose(d["stderr"], np.std(res.replicates, axis=0, ddof=1), rtol=1e-12) and "replicates" not in d
 
 
 def test_bootstrap_se_of_plugin_entropy_matches_basharin():
@@ -257,3 +262,89 @@ def test_surprisal_series_equals_direct_plug_in_counts():
         for t, w in words:
             want[t] = -np.log(joint[w] / ctx[w[:-1]])
         assert np.allclose(got, want, equal_nan=True)
+
+
+# ------------------------------------------------------------ naive twin
+def naive_replicate_tables(codes, starts, depths, plan):
+    """Slow, obviously correct resampler: glue each replicate's blocks and recount its words in Python.
+
+    A block ``[s, s + len)`` runs past the end circularly (stationary scheme); a word is counted when
+    it lies wholly inside one run of one block and inside one segment of the stream.  Tables are in the
+    order of the whole stream's distinct words, sorted lexicographically (= address order).
+    """
+    T = len(codes)
+    seg_of = np.zeros(T, dtype=np.int64)
+    for k, s in enumerate(list(starts) + [T]):
+        if k < len(starts):
+            seg_of[s:] = k
+    out = []
+    for n in depths:
+        words = sorted({tuple(codes[t : t + n]) for t in range(T - n + 1) if seg_of[t] == seg_of[t + n - 1]})
+        index = {w: i for i, w in enumerate(words)}
+        rows = []
+        for r in range(plan.n_boot):
+            table = [0] * len(words)
+            bstarts, blens = plan.blocks(r)
+            for s, ln in zip(bstarts.tolist(), blens.tolist()):
+                e = s + ln
+                runs = [(s, min(e, T))] + ([(0, e - T)] if e > T else [])
+                for a, b in runs:
+                    for t in range(a, b - n + 1):
+                        if seg_of[t] == seg_of[t + n - 1]:
+                            table[index[tuple(codes[t : t + n])]] += 1
+            rows.append(table)
+        out.append(np.array(rows, dtype=float).reshape(plan.n_boot, len(words)))
+    return out
+
+
+@st.composite
+def bootstrap_cases(draw):
+    A = draw(st.sampled_from([2, 4]))
+    T = draw(st.integers(12, 240))
+    codes = np.array(draw(st.lists(st.integers(0, A - 1), min_size=T, max_size=T)), dtype=np.uint8)
+    cuts = sorted(set(draw(st.lists(st.integers(1, T - 1), max_size=4))))
+    depths = sorted(set(draw(st.lists(st.integers(1, 4), min_size=1, max_size=3))))
+    ell = draw(st.integers(1, T))
+    n_boot = draw(st.integers(1, 6))
+    seed = draw(st.integers(0, 10_000))
+    scheme = draw(st.sampled_from(list(bs.SCHEMES)))
+    return A, codes, [0] + cuts, depths, ell, n_boot, seed, scheme
+
+
+@settings(max_examples=60, deadline=None, derandomize=True)
+@given(bootstrap_cases())
+def test_block_bootstrap_equals_naive_recounting(case):
+    """The fast bootstrap (labels, block tables, weights) gives exactly the tables of recounting each replicate."""
+    A, codes, starts, depths, ell, n_boot, seed, scheme = case
+    arr = from_codes(DNA if A == 4 else BIN, codes, starts=starts)
+    res = bs.block_bootstrap(arr, depths, lambda t: np.concatenate([t[n] for n in depths]).astype(float),
+                             n_boot=n_boot, seed=seed, block_length=ell, scheme=scheme)
+    plan = bs.make_plan(len(codes), res.block_length, n_boot, seed, scheme)
+    expected = np.concatenate(naive_replicate_tables(codes, starts, depths, plan), axis=1)
+    assert res.replicates.shape == expected.shape
+    assert np.array_equal(res.replicates, expected)
+
+
+@settings(max_examples=40, deadline=None, derandomize=True)
+@given(bootstrap_cases())
+def test_replicate_spectra_equal_naive_recounting(case):
+    """The one-pass spectra of all replicates (non-overlapping blocks) equal the spectra of recounted tables."""
+    A, codes, starts, depths, ell, n_boot, seed, _ = case
+    arr = from_codes(DNA if A == 4 else BIN, codes, starts=starts)
+    T = len(codes)
+
+    def histogram(t):
+        h = np.zeros((len(depths), T + 1))
+        for i, n in enumerate(depths):
+            np.add.at(h[i], np.asarray(t[n].value, dtype=np.int64), np.asarray(t[n].multiplicity, dtype=float))
+        return h.ravel()
+
+    res = bs.block_bootstrap(arr, depths, histogram, n_boot=n_boot, seed=seed, block_length=ell, spectra=True)
+    plan = bs.make_plan(T, res.block_length, n_boot, seed, "nonoverlapping")
+    tables = naive_replicate_tables(codes, starts, depths, plan)
+    for r in range(n_boot):
+        expected = np.zeros((len(depths), T + 1))
+        for i, table in enumerate(tables):
+            c = table[r].astype(np.int64)
+            np.add.at(expected[i], c[c > 0], 1.0)  # words absent from a replicate are not in its spectrum
+        assert np.array_equal(res.replicates[r], expected.ravel())

@@ -15,6 +15,8 @@ from scipy.special import digamma, gammaln
 from scipy.stats import entropy as scipy_entropy
 
 from fractalseq.entropy import _estimators as E
+from fractalseq.entropy import _topological as topological
+from fractalseq.entropy._compressors import _pack
 from fractalseq.datasets import _markov as mk
 from fractalseq.alphabet import binary, dna
 from fractalseq.errors import InputError, ParameterError
@@ -371,7 +373,7 @@ def test_compressor_bound_against_stdlib():
 
 def test_two_bit_packing_round_trip():
     codes = mk.iid(1001, [0.25] * 4, seed=1)
-    packed = np.frombuffer(E._pack(codes, 2), np.uint8)
+    packed = np.frombuffer(_pack(codes, 2), np.uint8)
     bits = np.unpackbits(packed).reshape(-1, 2)
     back = (bits[:, 0] * 2 + bits[:, 1])[: codes.size]
     assert np.array_equal(back, codes)
@@ -433,5 +435,5 @@ def test_distinct_word_count_dense_table_equals_sorting(monkeypatch):
         for i in range(a, b - 5 + 1):
             words.add(tuple(codes[i : i + 5]))
     for dense in (True, False):
-        monkeypatch.setattr(E, "_DENSE_DISTINCT", 1 if not dense else 1 << 28)
+        monkeypatch.setattr(topological, "_DENSE_DISTINCT", 1 if not dense else 1 << 28)
         assert E.distinct_words(codes, starts, 5, 3) == len(words)

@@ -181,7 +181,7 @@ def test_evidence_depth_of_iid_symbols():
 
 def test_hold_to_bounds_picks_the_bound_when_an_estimate_exceeds_it():
     def est(v, kind):
-        return kind, EntropyEstimate("entropy rate", "x", v)
+        return kind, EntropyEstimate(quantity="entropy rate", method="x", estimate=v)
 
     rates = {"grassberger": est(0.60, "estimate"), "compressors": est(0.55, "upper bound"),
              "online_predictor": est(0.45, "upper bound"), "lz76": est(0.50, "estimate")}

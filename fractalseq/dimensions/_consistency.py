@@ -47,9 +47,11 @@ from typing import Sequence
 
 import numpy as np
 
-from fractalseq.resampling import _bootstrap as bs
 from fractalseq.dimensions import _spectrum as sp
+from fractalseq.entropy._renyi_rates import RateEstimate
+from fractalseq.resampling import _bootstrap as bs
 from fractalseq.errors import InputError, ParameterError
+from fractalseq.results import Result
 from fractalseq.stream import SymbolArray, SymbolStream
 
 CONSISTENT = "consistent"
@@ -58,11 +60,9 @@ TOO_LITTLE = "too little data"
 NOT_APPLICABLE = "not applicable"
 
 
-RateEstimate = sp.RateEstimate
-
 
 @dataclass(frozen=True)
-class RateResult:
+class RateResult(Result):
     """Conditional-form Rényi rates for several q, with the bootstrap settings."""
 
     rates: tuple[RateEstimate, ...]
@@ -77,14 +77,6 @@ class RateResult:
                 return r
         raise KeyError(q)
 
-    def to_dict(self) -> dict:
-        return {
-            "rates": [r.to_dict() for r in self.rates],
-            "block": self.block.to_dict() if self.block else None,
-            "n_boot": self.n_boot,
-            "seed": self.seed,
-            "length": self.length,
-        }
 
 
 def conditional_rates(
@@ -128,7 +120,7 @@ def conditional_rates(
 
 
 @dataclass(frozen=True)
-class ConsistencyRow:
+class ConsistencyRow(Result):
     """One q: geometric dimension in bits beside the information rate, and the verdict."""
 
     q: float
@@ -148,29 +140,10 @@ class ConsistencyRow:
     shifted_low: float = math.nan
     shifted_high: float = math.nan
 
-    def to_dict(self) -> dict:
-        return {
-            "q": self.q,
-            "shifted_bits": self.shifted_bits,
-            "shifted_low": self.shifted_low,
-            "shifted_high": self.shifted_high,
-            "dimension": self.dimension,
-            "dimension_low": self.dimension_low,
-            "dimension_high": self.dimension_high,
-            "geometry_bits": self.geometry_bits,
-            "geometry_low": self.geometry_low,
-            "geometry_high": self.geometry_high,
-            "information_bits": self.information_bits,
-            "information_low": self.information_low,
-            "information_high": self.information_high,
-            "difference": self.difference,
-            "verdict": self.verdict,
-            "flags": list(self.flags),
-        }
 
 
 @dataclass(frozen=True)
-class ConsistencyResult:
+class ConsistencyResult(Result):
     """The table, plus the two results it was built from."""
 
     ratio: float
@@ -186,15 +159,6 @@ class ConsistencyResult:
                 return r
         raise KeyError(q)
 
-    def to_dict(self) -> dict:
-        return {
-            "ratio": self.ratio,
-            "rows": [r.to_dict() for r in self.rows],
-            "geometry": self.geometry.to_dict(),
-            "information": self.information.to_dict(),
-            "shifted": self.shifted.to_dict() if self.shifted is not None else None,
-            "flags": list(self.flags),
-        }
 
 
 #: Floating-point slack when comparing interval ends (exact counts give zero-width intervals).
@@ -273,7 +237,7 @@ def consistency_table(
     else:
         missing = [float(q) for q in qv if all(r.q != float(q) for r in information.rates)]
         if missing or information.length != len(arr):
-            raise ParameterError("The information side given was computed on another stream or other orders q; recompute it.")
+            raise ParameterError("The information side given was computed on another stream or other orders q; recompute it.", parameter="information")
         info = information
     # the geometric side uses the same block length (same blocks, same seed)
     ell = info.block if info.block is not None else block_length
@@ -283,7 +247,7 @@ def consistency_table(
         top = max(probe.data_limit + 1, sp.MIN_LEVELS)
     else:
         if not isinstance(levels, (int, np.integer)) or levels < 1:
-            raise ParameterError(f"The number of scales must be a positive whole number, not {levels!r}.")
+            raise ParameterError(f"The number of scales must be a positive whole number, not {levels!r}.", parameter="levels")
         top = max(int(levels), sp.MIN_LEVELS)
     pts = encoding.points(arr, k, corners, drop=0)
     layout = encoding.corner_layout(arr.alphabet.size, corners)

@@ -33,7 +33,11 @@ import numpy as np
 from numba import njit
 
 from fractalseq.resampling import _bootstrap as bs
-from fractalseq.dimensions import _spectrum as sp
+from fractalseq.dimensions import _level_variance as lv
+from fractalseq.dimensions import _levels as lev
+from fractalseq.dimensions import _parameters as par
+from fractalseq.dimensions import _scaling_fit as fit
+from fractalseq.dimensions import _spectrum_results as res
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.stream import SymbolArray
 
@@ -173,14 +177,14 @@ def _check_mask(valid: np.ndarray | None, n: int) -> np.ndarray:
     """The points kept: all (``valid=None``) or a boolean mask with one entry per point."""
     keep = np.ones(n, dtype=bool) if valid is None else np.asarray(valid, dtype=bool)
     if keep.shape != (n,):
-        raise ParameterError("The validity mask must have one entry per point.")
+        raise ParameterError("The validity mask must have one entry per point.", parameter="valid")
     return keep
 
 
 def _check_scale(scale: float) -> float:
     s = float(scale)
     if not (s > 0 and math.isfinite(s)):
-        raise ParameterError(f"Box side {scale} must be a positive number.")
+        raise ParameterError(f"Box side {scale} must be a positive number.", parameter="scale")
     return s
 
 
@@ -331,7 +335,7 @@ def occupied_boxes(points: np.ndarray, scale: float, offset: np.ndarray | None =
 def grid_offsets(dim: int, count: int, seed: int = 0) -> np.ndarray:
     """``count`` random grid shifts in ``[0, 1)^dim`` (``numpy.random.default_rng(seed)``)."""
     if count < 1:
-        raise ParameterError(f"Use at least one grid offset, not {count}.")
+        raise ParameterError(f"Use at least one grid offset, not {count}.", parameter="count")
     return np.random.default_rng(seed).random((int(count), int(dim)))
 
 
@@ -344,7 +348,7 @@ def transient_mask(arr: SymbolArray, drop: int) -> np.ndarray:
     return keep
 
 
-def default_scales(points: np.ndarray, valid: np.ndarray | None = None, starve: float = sp.STARVE) -> np.ndarray:
+def default_scales(points: np.ndarray, valid: np.ndarray | None = None, starve: float = par.STARVE) -> np.ndarray:
     """Box sides ``extent * 2**-j``, j = 1, 2, ... one past the first scale starved of data."""
     p = _check_points(points)
     q = p[_check_mask(valid, p.shape[0])]
@@ -378,7 +382,7 @@ def geometric_spectrum(
     origin: np.ndarray | None = None,
     aligned: bool = False,
     falpha: bool = True,
-    starve: float = sp.STARVE,
+    starve: float = par.STARVE,
     corrected: bool = True,
     scale_range: tuple[int, int] | None = None,
     unit_cube: bool = False,
@@ -428,8 +432,8 @@ def geometric_spectrum(
     SpectrumResult
         ``route = "geometric box counting"``; ``n_lo``/``n_hi`` are 1-based scale indices.
     """
-    qv = sp.check_qs(qs)
-    sp.check_boot(n_boot, level, interval, scheme)
+    qv = par.check_qs(qs)
+    par.check_boot(n_boot, level, interval, scheme)
     p = _check_points(points)
     T, D = p.shape
     keep = _check_mask(valid, T)
@@ -448,7 +452,7 @@ def geometric_spectrum(
     if period is not None:
         per = float(period)
         if not (per > 0 and math.isfinite(per)):
-            raise ParameterError(f"The period {period} must be a positive number.")
+            raise ParameterError(f"The period {period} must be a positive number.", parameter="period")
     if aligned or not periodic:
         per_used = None
     else:
@@ -459,7 +463,7 @@ def geometric_spectrum(
         offs = np.zeros((1, D))
     else:
         if not isinstance(offsets, (int, np.integer)) or offsets < 1:
-            raise ParameterError(f"Use at least one grid offset, not {offsets!r}.")
+            raise ParameterError(f"Use at least one grid offset, not {offsets!r}.", parameter="offsets")
         offs = grid_offsets(D, int(offsets), seed)
     O = offs.shape[0]
     Q = qv.size
@@ -481,34 +485,50 @@ def geometric_spectrum(
     else:
         reps = None
     extent = _extent(p, keep)
+    # count-based variances of H_q per scale and of the differences between adjacent scales (fit weights
+    # and linearity test), averaged over offsets; they need the previous scale's labels per offset
+    var = np.zeros((S, Q))
+    dvar = np.zeros((max(S - 1, 0), Q))
+    previous: list[tuple[np.ndarray, np.ndarray] | None] = [None] * O
+    # batches as long as the automatic bootstrap blocks (whatever block length the interval uses)
+    auto = bs.choose_block_length(None, levels_J, length=T, series=p[keep, 0], scheme="nonoverlapping")
+    batches = lv.BatchSums(T, S, Q, batch=auto.length)
     for j, eps in enumerate(sc):
         for o in range(O):
             labels, counts = _labels_and_counts(
                 p, float(eps), offs[o], org, keep, unit_cube and aligned, per_used, extent=extent
             )
             m = counts.size
-            per_offset[o, j] = sp.level_stats(counts, None, qv, corrected).vector()
+            per_offset[o, j] = lev.level_stats(counts, None, qv, corrected).vector()
+            g = lv.box_influence(counts, qv)
+            var[j] += lv.variance_from_influence(counts, g) / O
+            prev = previous[o]
+            if prev is not None:
+                dvar[j - 1] += lv.point_difference_variance(prev[0], labels, prev[1], g) / O
+            previous[o] = (labels, g)
+            batches.add(j, labels, counts, g, weight=1.0 / O)
             if reps is not None:
-                reps[:, j] += sp.replicate_vectors(labels, 1, m, plan, qv, corrected)
+                reps[:, j] += lev.replicate_vectors(labels, 1, m, plan, qv, corrected)
+    del previous
     if reps is not None:
         reps /= O
     est = per_offset.mean(axis=0)
     distinct = est[:, 3 * Q]
     occ = np.full(S, float(n_used))
     unseen = per_offset[:, :, 3 * Q + 1].max(axis=0)
-    dl, cl = sp.limits_from(distinct, occ, unseen, starve)
-    ld = sp.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl)
+    dl, cl = lev.limits_from(distinct, occ, unseen, starve)
+    ld = lev.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl, var, dvar, batches.covariance())
     user = None
     if scale_range is not None:
         lo, hi = int(scale_range[0]), int(scale_range[1])
         if lo < 1 or hi > S or hi - lo < 1:
-            raise ParameterError(f"Scale range ({lo}, {hi}) must satisfy 1 <= lo < hi <= {S} (indices of the scales).")
+            raise ParameterError(f"Scale range ({lo}, {hi}) must satisfy 1 <= lo < hi <= {S} (indices of the scales).", parameter="scale_range")
         user = (lo - 1, hi - 1)
     if n_boot == 0:
         flags.append("no bootstrap: intervals from the WLS residual standard error, which ignores dependence")
     grid = "aligned grid" if aligned else f"{O} random grid offsets averaged" + (", torus" if per_used else "")
-    dims, fal = sp.estimate_all(
-        ld, qv, user, level, interval, lambda q: f"box counting ({grid}): " + sp.method_name(q, corrected),
+    dims, fal = fit.estimate_all(
+        ld, qv, user, level, interval, lambda q: f"box counting ({grid}): " + par.method_name(q, corrected),
         lambda i: int(i + 1), falpha, scale_factor=1.0,
     )
     # lattice spread: per-offset OLS slopes over the chosen range
@@ -530,11 +550,11 @@ def geometric_spectrum(
         {"n": int(i + 1), "eps": float(sc[i]), "distinct": float(distinct[i]), "occurrences": int(n_used), "unseen": float(unseen[i])}
         for i in range(S)
     )
-    return sp.SpectrumResult(
+    return res.SpectrumResult(
         "geometric box counting", None, n_used, tuple(out), tuple(fal), levels,
         int(dl + 1) if dl >= 0 else None, int(cl + 1) if cl >= 0 else None,
         block, scheme, int(n_boot), int(seed), float(level), interval, tuple(flags),
     )
 
 
-SpectrumResult = sp.SpectrumResult
+SpectrumResult = res.SpectrumResult

@@ -36,7 +36,7 @@ import math
 import numpy as np
 from numba import njit
 
-from fractalseq.entropy._estimators import EntropyEstimate
+from fractalseq.entropy._entropy_estimate import EntropyEstimate
 from fractalseq.errors import InputError, ParameterError
 
 #: Longest stream parsed by default; longer streams are cut to this prefix (stated in the result).
@@ -290,7 +290,7 @@ def lz76_phrases(codes, method: str = "suffix") -> list[tuple[int, int]]:
         buf = np.zeros(max(s.size, 1) + 1, dtype=np.int64)
         st = buf[: _ks(s, buf)]
     else:
-        raise ParameterError(f"LZ76 method {method!r} is not 'suffix' or 'ks'.")
+        raise ParameterError(f"LZ76 method {method!r} is not 'suffix' or 'ks'.", parameter="method")
     ends = np.append(st[1:], s.size)
     return [(int(a), int(b)) for a, b in zip(st, ends)]
 
@@ -337,7 +337,7 @@ def h_lz76(
         raise InputError("LZ76 needs at least one symbol; the stream is empty.")
     A = int(alphabet_size) if alphabet_size is not None else int(s.max()) + 1
     if A < 2:
-        raise ParameterError("LZ76 entropy needs an alphabet of at least 2 symbols.")
+        raise ParameterError("LZ76 entropy needs an alphabet of at least 2 symbols.", parameter="alphabet_size")
     if s.max() >= A:
         raise InputError(f"Symbol codes reach {int(s.max())}, beyond alphabet size {A}.")
     notes = []

@@ -172,9 +172,7 @@ class ProfileResult:
                     "scale_range": [d.eps_lo, d.eps_hi],
                     "method": d.method,
                     "range_rule": d.range_rule,
-                    "reliable": bool(np.isfinite(d.estimate)) and not any(
-                        f.startswith(("too little", "curved", "only", "negative q")) for f in d.flags
-                    ),
+                    "reliable": d.reliable,
                     "flags": list(d.flags),
                 }
             )

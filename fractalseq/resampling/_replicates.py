@@ -95,7 +95,7 @@ def item_tables(labels: np.ndarray, span: int, block_length: int, size: int | No
     lab = np.ascontiguousarray(labels)
     T = int(lab.shape[0])
     if T >= 2**31:
-        raise ParameterError(f"The bootstrap handles streams below 2**31 positions, not {T}; resample a part of it.")
+        raise ParameterError(f"The bootstrap handles streams below 2**31 positions, not {T}; resample a part of it.", parameter="labels")
     ell = max(int(block_length), 1)
     m = int(size) if size is not None else (int(lab.max()) + 1 if T and lab.max() >= 0 else 0)
     row_ptr = np.zeros(m + 1, dtype=np.int64)
@@ -260,7 +260,9 @@ def replicate_spectra(tables: ItemTables, weights: np.ndarray, cap: int = DEFAUL
     """
     W = np.asarray(weights)
     if W.ndim != 2 or W.shape[1] != tables.n_blocks:
-        raise ValueError(f"weights must have shape (replicates, {tables.n_blocks}), not {W.shape}")
+        raise ParameterError(
+            f"The block weights must have shape (replicates, {tables.n_blocks}), not {W.shape}.", parameter="weights"
+        )
     wt = np.ascontiguousarray(W.T, dtype=np.int32)
     R = W.shape[0]
     cap = max(int(cap), 2)

@@ -1,0 +1,210 @@
+"""Count-based variances of the level statistics ``H_q`` and of their differences.
+
+The scaling fit of D_q weights each level by ``1 / Var(H_q(level))`` and the
+scaling-range rule compares the per-level differences with their standard
+errors.  Both variances come from the counts themselves (first-order delta
+method under multinomial sampling), never from bootstrap replicates, so the
+point estimate and its range do not depend on ``n_boot`` or the seed.
+
+For a functional ``T(p)`` of the box probabilities, the delta method gives
+``Var(T(p_hat)) ~ (sum_b p_b g_b**2) / N`` with the influence value
+``g_b = dT/dp_b - sum_c p_c dT/dp_c`` (e.g. Bishop, Fienberg & Holland 1975,
+*Discrete Multivariate Analysis*, §14.6; for the Shannon entropy this is
+Basharin 1959, Theory Probab. Appl. 4:333, ``Var = (sum p ln^2 p - H^2) / N``).
+For the Rényi entropy ``H_q = ln S_q / (1 - q)`` with ``S_q = sum p**q``:
+
+    g_b = q / (1 - q) * (p_b**(q - 1) / S_q - 1)
+
+(``q = 1``: ``g_b = -ln p_b - H``; ``q = 0``: the box count is exact, ``g = 0``).
+
+Serial dependence and the overlap of a stream's words (the n-words at
+positions t and t+1 share n-1 symbols) make the levels and their
+differences move together, which a multinomial model cannot see.  When the
+stream itself is at hand, the covariance of the levels is estimated by
+*batch means* of the same influence values (:class:`BatchSums`): every
+position (or point) contributes ``g_level(its box)``, positions are cut into
+``B`` consecutive batches of length ``b``, and
+``Cov(H_i, H_j) ~ B * Cov_batches(S_i / N_i, S_j / N_j)`` from the batch sums
+``S`` (the subseries estimator of Carlstein 1986, Ann. Statist. 14:1171).
+The routes take ``b`` = the automatic block length of the bootstrap
+(Politis & White on the surprisal series, floored at 10 x the deepest
+level; :func:`fractalseq.resampling._block_length.choose_block_length`), so
+the covariance is what the non-overlapping block bootstrap of the linearised
+statistics would give with infinitely many replicates -- computed exactly,
+without resampling or a seed, and whatever block length the interval uses.
+Without a block length, ``b = max(sqrt(N), 10 * levels)`` (Flegal & Jones
+2010, Ann. Statist. 38:1034).
+
+A difference of two nested levels ``H_q(n+1) - H_q(n)`` (every box of level
+n+1 lies in one box of level n) has the influence value
+``g_{n+1}(child) - g_n(parent)`` per box pair, so its variance is the
+weighted variance of that over the pairs (for q = 1 this is the variance of
+the conditional surprisal ``-ln p(a | w)`` divided by N).  The variances
+ignore serial dependence; they set relative weights and a linearity
+tolerance, while intervals come from the block bootstrap.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+from fractalseq.words._counts import WordCounts
+
+
+def box_influence(counts: np.ndarray, qs: np.ndarray) -> np.ndarray:
+    """Centred influence values ``g_b`` of ``H_q`` per box, shape ``(boxes, Q)`` (nats).
+
+    Parameters
+    ----------
+    counts:
+        Occurrences per box (zeros allowed; they get ``g = 0``).
+    qs:
+        Orders q.
+    """
+    c = np.asarray(counts, dtype=np.float64)
+    out = np.zeros((c.size, qs.size))
+    N = float(c.sum())
+    if N <= 0:
+        return out
+    hit = c > 0
+    p = c[hit] / N
+    lnp = np.log(p)
+    for j, q in enumerate(qs):
+        q = float(q)
+        if q == 0.0:
+            continue
+        if q == 1.0:
+            g = -lnp
+        else:
+            a = q * lnp
+            ln_s = float(a.max() + math.log(np.exp(a - a.max()).sum()))
+            g = q / (1.0 - q) * np.exp((q - 1.0) * lnp - ln_s)
+        g = g - float(np.sum(p * g))
+        out[hit, j] = g
+    return out
+
+
+def variance_from_influence(counts: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """``sum_b p_b g_b**2 / N`` per column of ``g`` (the delta-method variance)."""
+    c = np.asarray(counts, dtype=np.float64)
+    N = float(c.sum())
+    if N <= 0:
+        return np.full(g.shape[1], np.nan)
+    mean = (c @ g) / N
+    return np.maximum((c @ (g * g)) / N - mean * mean, 0.0) / N
+
+
+def word_level_variances(wc: WordCounts, top: int, qs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Delta-method variances of ``H_q(n)``, n = 1..top, and of ``H_q(n+1) - H_q(n)``.
+
+    Returns ``(var, dvar)`` of shapes ``(top, Q)`` and ``(top - 1, Q)``.  The parent of
+    an (n+1)-word is its n-symbol prefix (the address shifted right by one symbol).
+    """
+    Q = qs.size
+    var = np.full((top, Q), np.nan)
+    dvar = np.full((max(top - 1, 0), Q), np.nan)
+    prev_addr = prev_g = None
+    shift = np.uint64(wc.bits)
+    for i in range(top):
+        addr, cnt = wc.words(i + 1)
+        g = box_influence(cnt, qs)
+        var[i] = variance_from_influence(cnt, g)
+        if prev_addr is not None and prev_g is not None:
+            parent = np.searchsorted(prev_addr, addr.astype(np.uint64) >> shift)
+            parent = np.minimum(parent, prev_addr.size - 1)
+            dvar[i - 1] = variance_from_influence(cnt, g - prev_g[parent])
+        prev_addr, prev_g = addr.astype(np.uint64), g
+    return var, dvar
+
+
+@njit(cache=True)
+def _pair_moments(lab_a, lab_b, ga, gb, out):
+    """Sums over points kept at both levels of ``d = gb[lab_b] - ga[lab_a]``: out[0] = n, out[1] = sum d, out[2] = sum d^2."""
+    Q = ga.shape[1]
+    for t in range(lab_a.shape[0]):
+        a = lab_a[t]
+        b = lab_b[t]
+        if a < 0 or b < 0:
+            continue
+        out[0, 0] += 1.0
+        for j in range(Q):
+            d = gb[b, j] - ga[a, j]
+            out[1, j] += d
+            out[2, j] += d * d
+
+
+def point_difference_variance(lab_a: np.ndarray, lab_b: np.ndarray, ga: np.ndarray, gb: np.ndarray) -> np.ndarray:
+    """Delta-method variance of ``H_q(b) - H_q(a)`` from every point's box at two scales (labels, -1 = skipped)."""
+    Q = ga.shape[1]
+    out = np.zeros((3, Q))
+    _pair_moments(np.ascontiguousarray(lab_a), np.ascontiguousarray(lab_b), np.ascontiguousarray(ga),
+                  np.ascontiguousarray(gb), out)
+    n = out[0, 0]
+    if n <= 0:
+        return np.full(Q, np.nan)
+    mean = out[1] / n
+    return np.maximum(out[2] / n - mean * mean, 0.0) / n
+
+
+#: Batch length of the batch-means covariance: at least this many times the number of levels.
+BATCH_LEVELS = 10
+
+
+def batch_length(length: int, levels: int) -> int:
+    """Batch length ``max(ceil(sqrt(N)), BATCH_LEVELS * levels)``, at most ``N``."""
+    return int(max(1, min(int(length), max(math.ceil(math.sqrt(max(length, 1))), BATCH_LEVELS * int(levels)))))
+
+
+@njit(cache=True)
+def _batch_sums(labels, g, b, out):
+    """``out[t // b] += g[labels[t]]`` over positions with a label (``-1`` skipped)."""
+    Q = g.shape[1]
+    for t in range(labels.shape[0]):
+        a = labels[t]
+        if a < 0:
+            continue
+        k = t // b
+        for j in range(Q):
+            out[k, j] += g[a, j]
+
+
+class BatchSums:
+    """Accumulates per-batch sums of the influence values of every level; gives their covariance.
+
+    Parameters
+    ----------
+    length:
+        Number of positions (or points).
+    levels, q_count:
+        Number of levels and of orders q.
+    batch:
+        Batch length (default :func:`batch_length`).
+    """
+
+    def __init__(self, length: int, levels: int, q_count: int, batch: int | None = None) -> None:
+        self.b = batch_length(length, levels) if batch is None else int(max(1, min(int(length), int(batch))))
+        self.B = -(-int(length) // self.b)
+        self.sums = np.zeros((levels, self.B, q_count))
+        self.total = np.zeros(levels)
+
+    def add(self, level: int, labels: np.ndarray, counts: np.ndarray, g: np.ndarray, weight: float = 1.0) -> None:
+        """Add one level's labels (index into ``counts``/``g``, -1 = none) with influence table ``g``."""
+        out = np.zeros((self.B, g.shape[1]))
+        _batch_sums(np.ascontiguousarray(labels), np.ascontiguousarray(g), self.b, out)
+        self.sums[level] += weight * out
+        self.total[level] += weight * float(np.sum(counts))
+
+    def covariance(self) -> np.ndarray | None:
+        """``(Q, L, L)`` batch-means covariance of the level statistics; ``None`` with fewer than 10 batches."""
+        if self.B < 10:
+            return None
+        L, B, Q = self.sums.shape
+        N = np.where(self.total > 0, self.total, np.nan)
+        out = np.empty((Q, L, L))
+        for j in range(Q):
+            S = self.sums[:, :, j] / N[:, None]  # (L, B): each batch's share of the linearised deviation
+            out[j] = B * np.cov(S, ddof=1).reshape(L, L)
+        return out
