@@ -1,0 +1,574 @@
+"""Event novelty between two batches of log lines: new, vanished, changed and bursting templates.
+
+The drift test (:mod:`fractalseq.compare._drift`) compares word distributions
+by block permutations; it cannot see a template that occurs in one batch only
+(a template seen ``c`` times gives the same G contribution in whichever batch
+it lands) nor a burst that fills one block.  This module asks four narrower
+questions of the template id of every line, each with its own exact or
+bounded p-value, and combines them by Holm's step-down method (Holm 1979,
+Scand. J. Statist. 6:65).  Let ``n`` and ``m`` be the baseline's and the new
+batch's numbers of lines and ``a_t``, ``b_t`` the counts of template ``t``.
+
+``new_events`` (templates of the new batch absent from the baseline)
+    Statistic ``X``: the number of distinct new templates.  Its null rate
+    comes from the baseline itself, *leave blocks out*: the baseline is cut
+    into ``K`` contiguous blocks of ``L`` lines and ``D`` counts the templates
+    that occur in one block and nowhere else in the baseline.  With ``L = 1``
+    this is the Good–Turing count of singletons, whose share ``N_1 / n``
+    estimates the probability that the next line shows an unseen template
+    (Good 1953, Biometrika 40:237, from memory); blocks of lines keep a burst
+    of one rare event inside one block, so dependence between neighbouring
+    lines does not make rare templates look common.  For a stationary
+    source the expected number of new templates per line of the new batch is
+    at most that of a block when ``L <= m`` (a batch of ``m`` lines is
+    compared with ``n >= n - L`` lines, and the number of distinct templates
+    grows less than linearly with length), so the comparison is
+    conservative.  p-value: the conditional test of two Poisson counts,
+    ``X | X + D ~ Binomial(X + D, m / (m + K L))``, upper tail
+    (Przyborowski & Wilenski 1940, Biometrika 31:313; Lehmann & Romano,
+    *Testing Statistical Hypotheses*, 3rd ed., sec. 4.5, from memory).  It
+    carries the uncertainty of the baseline's estimate: a short baseline
+    (small ``K L``) needs many more new templates before ``p`` gets small.
+    The unit is the template, not the line, because one new event kind
+    usually brings many lines at once.
+``vanished_events`` (baseline templates absent from the new batch)
+    Conditional on ``c_t = a_t + b_t``, ``b_t ~ Binomial(c_t, pi)`` with
+    ``pi = m / (n + m)`` when the template's share did not change; the exact
+    one-sided p-value of ``b_t = 0`` is ``(1 - pi)**a_t``.  Family p-value:
+    Bonferroni over the templates whose smallest attainable p-value
+    ``(1 - pi)**c_t`` is at most ``alpha`` (Tarone 1990, Biometrics 46:515,
+    from memory: the screen depends on the margins ``c_t`` only, which the
+    conditional tests treat as fixed, so it keeps the level).
+``rate_changes`` (per-template share, both directions)
+    The exact two-sided binomial test of ``b_t`` given ``c_t`` and ``pi``
+    (the conditional test of two Poisson rates; p-value as
+    ``scipy.stats.binomtest``: sum of the probabilities not above the
+    observed one), Benjamini–Hochberg over the templates that pass the same
+    margin screen (Benjamini & Hochberg 1995, JRSS B 57:289; screening
+    discrete tests: Gilbert 2005, Appl. Statist. 54:143, from memory).
+    Family p-value: the smallest BH-adjusted value, which is Simes' global
+    p-value (Simes 1986, Biometrika 73:751).
+``bursts`` (templates concentrated in a short stretch of the new batch)
+    Statistic: the largest count ``S_t`` of template ``t`` in a window of
+    ``w`` consecutive new lines.  Null model: the count of a window follows
+    a negative binomial whose mean is ``w`` times the pooled rate
+    ``c_t / (n + m)`` and whose dispersion is estimated by moments from the
+    baseline's counts in non-overlapping windows of ``w`` lines (a template
+    that comes in runs in the baseline is allowed runs in the new batch).
+    Every window of ``w`` lines lies inside one of the ``ceil(m / w)``
+    windows ``[j w, j w + 2 w)``, so ``P(S_t >= s) <= ceil(m / w) P(N_2w >= s)``
+    (union bound; ``N_2w`` with twice the mean and the same size parameter,
+    which over-states its variance).  Family: Bonferroni over the templates
+    whose smallest attainable bound is at most ``alpha``.  Templates seen in
+    fewer than two baseline windows have no dispersion estimate and are left
+    to the rate test.
+
+Nothing here is random, so the same input gives the same bytes (no seed is
+needed).  Drift reports on logs are no security guarantee.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Mapping, Sequence
+
+import numpy as np
+from scipy import stats
+
+from fractalseq.errors import InputError, ParameterError
+from fractalseq.results import Result
+
+__all__ = [
+    "Burst", "EventBatch", "FamilyTest", "NewEvent", "NoveltyModel", "NoveltyOptions", "NoveltyResult", "RateChange",
+    "VanishedEvent", "benjamini_hochberg", "binomial_greater", "binomial_two_sided", "holm", "novelty_test",
+]
+
+FAMILIES: tuple[str, ...] = ("new_events", "vanished_events", "rate_changes", "bursts")
+#: Relative tolerance of "probability not above the observed one" (as scipy.stats.binomtest).
+_RERR = 1.0 + 1e-7
+#: Fewest baseline windows for the burst test's dispersion estimate.
+MIN_WINDOWS = 5
+
+
+# ============================================================ p-value tools
+def binomial_greater(k: int, n: int, p: float) -> float:
+    """Exact upper tail ``P(K >= k)`` of ``K ~ Binomial(n, p)`` (1 when ``k <= 0``)."""
+    if k <= 0:
+        return 1.0
+    if k > n:
+        return 0.0
+    return float(min(1.0, stats.binom.sf(k - 1, n, p)))
+
+
+def binomial_two_sided(k: int, n: int, p: float) -> float:
+    """Exact two-sided binomial p-value: the total probability of outcomes no more likely than ``k``.
+
+    The rule of ``scipy.stats.binomtest(k, n, p).pvalue`` (outcomes whose
+    probability is at most ``(1 + 1e-7)`` times that of ``k``), computed over
+    the whole support ``0..n``.
+    """
+    if n == 0:
+        return 1.0
+    pmf = stats.binom.pmf(np.arange(n + 1), n, p)
+    d = pmf[k]
+    return float(min(1.0, pmf[pmf <= d * _RERR].sum()))
+
+
+def holm(p: Sequence[float]) -> np.ndarray:
+    """Holm step-down adjusted p-values: ``p~_(i) = max_{j <= i} min(1, (m - j + 1) p_(j))``."""
+    p = np.asarray(p, dtype=float)
+    if p.size == 0:
+        return p
+    order = np.argsort(p, kind="stable")
+    adj = np.maximum.accumulate(np.minimum(1.0, (p.size - np.arange(p.size)) * p[order]))
+    out = np.empty(p.size)
+    out[order] = adj
+    return out
+
+
+def benjamini_hochberg(p: Sequence[float]) -> np.ndarray:
+    """Benjamini–Hochberg adjusted p-values: ``q_(i) = min_{j >= i} min(1, m p_(j) / j)``."""
+    p = np.asarray(p, dtype=float)
+    if p.size == 0:
+        return p
+    order = np.argsort(p, kind="stable")
+    ranked = p[order] * p.size / np.arange(1, p.size + 1)
+    adj = np.minimum(1.0, np.minimum.accumulate(ranked[::-1])[::-1])
+    out = np.empty(p.size)
+    out[order] = adj
+    return out
+
+
+# ================================================================= inputs
+@dataclass(frozen=True)
+class NoveltyOptions:
+    """Parameters of the event novelty test.
+
+    Attributes
+    ----------
+    alpha:
+        Level of the verdict (and of the margin screens).
+    blocks:
+        Number of baseline blocks ``K`` for the leave-blocks-out rate of new templates
+        (blocks are never longer than the new batch).
+    window:
+        Window ``w`` of the burst statistic, in lines (capped at a fifth of the baseline and at the new batch).
+    top:
+        How many templates to list per section (the counts and p-values cover all).
+    """
+
+    alpha: float = 0.05
+    blocks: int = 10
+    window: int = 50
+    top: int = 20
+
+    def check(self) -> None:
+        """Raise :class:`ParameterError` for impossible values."""
+        if not 0.0 < self.alpha < 1.0:
+            raise ParameterError(f"The level alpha must lie strictly between 0 and 1, not {self.alpha}.", parameter="alpha")
+        for name, least in (("blocks", 2), ("window", 2), ("top", 0)):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < least:
+                raise ParameterError(f"The {name} parameter must be a whole number of at least {least}, not {value!r}.", parameter=name)
+
+
+@dataclass(frozen=True)
+class EventBatch:
+    """The lines of one batch as template ids, with where each line came from.
+
+    Attributes
+    ----------
+    ids:
+        Template id of every non-blank line, in reading order.
+    inputs:
+        Names of the batch's inputs.
+    input_of:
+        Per line, the index of its input in ``inputs`` (default: all 0).
+    line_numbers:
+        Per line, its 1-based line number in its input (default: 1, 2, ...).
+    examples:
+        Template id -> the first line of the batch with that template (raw text).
+    """
+
+    ids: np.ndarray
+    inputs: tuple[str, ...] = ("batch",)
+    input_of: np.ndarray | None = None
+    line_numbers: np.ndarray | None = None
+    examples: Mapping[int, str] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        ids = np.asarray(self.ids, dtype=np.int64).ravel()
+        if ids.size and ids.min() < 0:
+            raise ParameterError("Template ids must be non-negative.", parameter="ids")
+        object.__setattr__(self, "ids", ids)
+        for name, default in (("input_of", np.zeros(ids.size, np.int64)), ("line_numbers", np.arange(1, ids.size + 1))):
+            value = getattr(self, name)
+            value = default if value is None else np.asarray(value, dtype=np.int64).ravel()
+            if value.size != ids.size:
+                raise ParameterError(f"{name} must hold one entry per line ({ids.size}), not {value.size}.", parameter=name)
+            object.__setattr__(self, name, value)
+
+    def where(self, position: int) -> tuple[str, int]:
+        """Input name and line number of the line at ``position``."""
+        return self.inputs[int(self.input_of[position])], int(self.line_numbers[position])
+
+
+# ================================================================ results
+@dataclass(frozen=True)
+class NewEvent(Result):
+    """A template of the new batch that never occurs in the baseline."""
+
+    template: str
+    lines: int
+    share: float
+    first_input: str
+    first_line: int
+    example: str
+
+
+@dataclass(frozen=True)
+class VanishedEvent(Result):
+    """A baseline template with a clear count that is absent from the new batch."""
+
+    template: str
+    baseline_count: int
+    expected_new: float
+    p_value: float
+    p_adjusted: float
+
+
+@dataclass(frozen=True)
+class RateChange(Result):
+    """A template whose share differs between the batches (BH-adjusted ``q_value`` at most alpha)."""
+
+    template: str
+    baseline_count: int
+    new_count: int
+    baseline_share: float
+    new_share: float
+    rate_ratio: float
+    direction: str
+    p_value: float
+    q_value: float
+
+
+@dataclass(frozen=True)
+class Burst(Result):
+    """A template concentrated in a window of the new batch."""
+
+    template: str
+    count: int
+    window: int
+    expected: float
+    first_input: str
+    first_line: int
+    last_line: int
+    p_value: float
+    p_adjusted: float
+
+
+@dataclass(frozen=True)
+class FamilyTest(Result):
+    """One family of the novelty test: its statistic, p-value and Holm-adjusted p-value."""
+
+    family: str
+    statistic: float
+    statistic_name: str
+    tested: int
+    p_value: float
+    p_adjusted: float
+    method: str
+
+
+@dataclass(frozen=True)
+class NoveltyModel(Result):
+    """The baseline's leave-blocks-out rate of new templates (the null of ``new_events``)."""
+
+    block_lines: int
+    blocks: int
+    unseen_templates: int
+    rate_per_line: float
+    expected_new_templates: float
+
+
+@dataclass(frozen=True)
+class NoveltyResult(Result):
+    """Outcome of :func:`novelty_test`; its JSON is the ``novelty`` key of ``fractalseq drift --json`` on logs."""
+
+    verdict: str
+    changed: bool
+    p_value: float
+    alpha: float
+    method: str
+    baseline_lines: int
+    new_lines: int
+    templates: int
+    families: tuple[FamilyTest, ...]
+    new_events: tuple[NewEvent, ...]
+    new_templates: int
+    novel_lines: int
+    novel_share: float
+    model: NoveltyModel
+    vanished_events: tuple[VanishedEvent, ...]
+    rate_changes: tuple[RateChange, ...]
+    bursts: tuple[Burst, ...]
+    notes: tuple[str, ...] = ()
+
+
+# ================================================================= the test
+def novelty_test(
+    baseline: EventBatch, new: EventBatch, templates: Sequence[str], options: NoveltyOptions | None = None
+) -> NoveltyResult:
+    """Test the new batch's events against the baseline's: new, vanished, changed and bursting templates.
+
+    Parameters
+    ----------
+    baseline, new:
+        The batches' lines as ids into ``templates`` (one template table for both).
+    templates:
+        Template text of every id.
+    options:
+        Level, blocks, window and listing length (default :class:`NoveltyOptions`).
+
+    Returns
+    -------
+    NoveltyResult
+        The four family tests (Holm-adjusted), the verdict and the listed templates.
+
+    Raises
+    ------
+    InputError
+        When a batch holds no line.
+    ParameterError
+        When an id has no template text or an option is impossible.
+    """
+    options = options or NoveltyOptions()
+    options.check()
+    n, m = baseline.ids.size, new.ids.size
+    if n == 0 or m == 0:
+        raise InputError("The novelty test needs lines in both batches.")
+    T = len(templates)
+    if max(int(baseline.ids.max()), int(new.ids.max())) >= T:
+        raise ParameterError("A template id has no template text.", parameter="templates")
+    a = np.bincount(baseline.ids, minlength=T)
+    b = np.bincount(new.ids, minlength=T)
+    pi = m / (n + m)
+    alpha = options.alpha
+    notes: list[str] = []
+
+    fam_a, new_events, model, novel_lines = _new_events(baseline, new, a, b, templates, options, notes)
+    fam_b, vanished = _vanished(a, b, pi, templates, options)
+    fam_c, changes = _rate_changes(a, b, pi, n, m, templates, options)
+    fam_d, bursts = _bursts(baseline, new, a, b, templates, options, notes)
+    families = [fam_a, fam_b, fam_c, fam_d]
+    tested = [f for f in families if f.tested > 0]
+    adj = holm([f.p_value for f in tested])
+    by_name = {f.family: float(q) for f, q in zip(tested, adj)}
+    families = [_with_adjusted(f, by_name.get(f.family, 1.0)) for f in families]
+    p_min = min(by_name.values(), default=1.0)
+    changed = p_min < alpha
+    worst = min(tested, key=lambda f: by_name[f.family]).family if tested else "none"
+    if changed:
+        verdict = f"EVENTS CHANGED: {worst.replace('_', ' ')} (smallest Holm-adjusted p = {_fmt_p(p_min)} < {alpha:g})."
+    else:
+        verdict = f"EVENTS CONSISTENT: no new, vanished, changed or bursting templates at level {alpha:g} (smallest Holm-adjusted p = {_fmt_p(p_min)})."
+    return NoveltyResult(
+        verdict, bool(changed), float(p_min), alpha,
+        "four families (new templates, vanished templates, per-template rates, bursts), Holm-adjusted across families",
+        int(n), int(m), int(np.count_nonzero((a + b) > 0)), tuple(families), new_events,
+        int(np.count_nonzero((a == 0) & (b > 0))), int(novel_lines), float(novel_lines / m), model,
+        vanished, changes, bursts, tuple(notes),
+    )
+
+
+def _with_adjusted(f: FamilyTest, p_adj: float) -> FamilyTest:
+    from dataclasses import replace
+
+    return replace(f, p_adjusted=p_adj)
+
+
+def _fmt_p(p: float) -> str:
+    return f"{p:.3g}" if p >= 0.001 else f"{p:.1e}"
+
+
+def _first_positions(ids: np.ndarray, T: int) -> np.ndarray:
+    """First position of every template in ``ids`` (``-1`` when absent)."""
+    first = np.full(T, -1, dtype=np.int64)
+    uniq, idx = np.unique(ids, return_index=True)
+    first[uniq] = idx
+    return first
+
+
+def leave_blocks_out(ids: np.ndarray, block_lines: int) -> tuple[int, int]:
+    """Blocks and the number of templates that occur in exactly one block and nowhere else.
+
+    The first ``K = len(ids) // block_lines`` blocks of ``block_lines`` lines
+    are the leave-out blocks; the remaining lines only ever serve as the
+    reference.  Returns ``(K, D)``.
+    """
+    n = ids.size
+    K = n // block_lines
+    if K == 0:
+        return 0, 0
+    block = np.arange(n, dtype=np.int64) // block_lines
+    block[K * block_lines:] = -1
+    T = int(ids.max()) + 1
+    lo = np.full(T, np.iinfo(np.int64).max)
+    hi = np.full(T, -2, dtype=np.int64)
+    np.minimum.at(lo, ids, block)
+    np.maximum.at(hi, ids, block)
+    present = hi > -2
+    return K, int(np.count_nonzero(present & (lo == hi) & (lo >= 0)))
+
+
+def _new_events(baseline, new, a, b, templates, options, notes):
+    n, m = baseline.ids.size, new.ids.size
+    novel = np.flatnonzero((a == 0) & (b > 0))
+    X = int(novel.size)
+    novel_lines = int(b[novel].sum())
+    L = max(1, min(n // options.blocks, m))
+    K, D = leave_blocks_out(baseline.ids, L)
+    exposure = K * L
+    if K < 2:
+        notes.append(f"the baseline is too short to estimate how often new templates appear ({n} lines); new templates were not tested")
+        p, tested = 1.0, 0
+    else:
+        p, tested = binomial_greater(X, X + D, m / (m + exposure)), 1
+    rate = D / exposure if exposure else math.nan
+    model = NoveltyModel(int(L), int(K), int(D), float(rate), float(rate * m) if exposure else math.nan)
+    first = _first_positions(new.ids, len(templates))
+    order = sorted(novel, key=lambda t: (-int(b[t]), int(first[t])))[: options.top]
+    events = []
+    for t in order:
+        inp, line = new.where(int(first[t]))
+        events.append(NewEvent(templates[t], int(b[t]), float(b[t] / m), inp, line, new.examples.get(int(t), "")))
+    fam = FamilyTest(
+        "new_events", float(X), "distinct templates of the new batch absent from the baseline", tested, float(p), math.nan,
+        f"conditional binomial of {X} new templates against {D} in {K} leave-out baseline blocks of {L} lines",
+    )
+    return fam, tuple(events), model, novel_lines
+
+
+def _vanished(a, b, pi, templates, options):
+    c = a + b
+    screen = np.flatnonzero((a > 0) & (c * math.log1p(-pi) <= math.log(options.alpha)))
+    gone = screen[b[screen] == 0]
+    p = np.exp(a[gone] * math.log1p(-pi)) if gone.size else np.zeros(0)
+    k = int(screen.size)
+    p_family = float(min(1.0, k * p.min())) if gone.size else 1.0
+    order = np.lexsort((gone, p))[: options.top] if gone.size else []
+    events = tuple(
+        VanishedEvent(templates[gone[i]], int(a[gone[i]]), float(a[gone[i]] * pi / (1 - pi)), float(p[i]), float(min(1.0, k * p[i])))
+        for i in order
+    )
+    fam = FamilyTest(
+        "vanished_events", float(gone.size), "baseline templates with a clear count absent from the new batch", k, p_family, math.nan,
+        f"exact binomial (1 - pi)^count, pi = {pi:.4g}; Bonferroni over {k} templates whose count can reach alpha",
+    )
+    return fam, events
+
+
+def _min_two_sided(c: int, pi: float) -> float:
+    return min(binomial_two_sided(0, c, pi), binomial_two_sided(c, c, pi))
+
+
+def _rate_changes(a, b, pi, n, m, templates, options):
+    c = a + b
+    cand = np.flatnonzero(c > 0)
+    attainable: dict[int, float] = {}
+    screen = []
+    for t in cand:
+        ct = int(c[t])
+        if ct not in attainable:
+            attainable[ct] = _min_two_sided(ct, pi)
+        if attainable[ct] <= options.alpha:
+            screen.append(int(t))
+    screen_arr = np.asarray(screen, dtype=np.int64)
+    p = np.asarray([binomial_two_sided(int(b[t]), int(c[t]), pi) for t in screen_arr])
+    q = benjamini_hochberg(p)
+    p_family = float(q.min()) if q.size else 1.0
+    hits = np.flatnonzero(q <= options.alpha)
+    hits = hits[np.lexsort((screen_arr[hits], p[hits]))][: options.top] if hits.size else hits
+    changes = []
+    for i in hits:
+        t = int(screen_arr[i])
+        fa, fb = a[t] / n, b[t] / m
+        ratio = fb / fa if fa > 0 else math.inf
+        changes.append(RateChange(templates[t], int(a[t]), int(b[t]), float(fa), float(fb), float(ratio),
+                                  "more in new" if fb > fa else "less in new", float(p[i]), float(q[i])))
+    fam = FamilyTest(
+        "rate_changes", float(np.count_nonzero(q <= options.alpha)), "templates whose share changed (BH q <= alpha)",
+        int(screen_arr.size), p_family, math.nan,
+        f"exact two-sided binomial per template, pi = {pi:.4g}; Benjamini-Hochberg over {screen_arr.size} templates "
+        "whose count can reach alpha; family p = Simes",
+    )
+    return fam, tuple(changes)
+
+
+def _max_window(pos: np.ndarray, w: int) -> tuple[int, int]:
+    """Largest number of sorted positions in a window of ``w`` consecutive positions, and where it starts (an index)."""
+    ends = np.searchsorted(pos, pos + w, side="left")
+    counts = ends - np.arange(pos.size)
+    i = int(np.argmax(counts))
+    return int(counts[i]), i
+
+
+def _tail_2w(s: int, mean_w: float, size: float | None, n_windows: int) -> float:
+    """Union bound ``ceil(m / w) * P(N >= s)``, ``N`` a negative binomial (Poisson when ``size`` is None) of mean ``2 mean_w``."""
+    mu = 2.0 * mean_w
+    if size is None:
+        tail = stats.poisson.sf(s - 1, mu)
+    else:
+        tail = stats.nbinom.sf(s - 1, size, size / (size + mu))
+    return float(min(1.0, n_windows * tail))
+
+
+def _bursts(baseline, new, a, b, templates, options, notes):
+    n, m = baseline.ids.size, new.ids.size
+    w = min(options.window, n // MIN_WINDOWS, m)
+    empty = FamilyTest("bursts", 0.0, "templates concentrated in a window of the new batch", 0, 1.0, math.nan, "not tested")
+    if w < 2:
+        notes.append("a batch is too short for the burst test (it needs five baseline windows of at least two lines)")
+        return empty, ()
+    nb_windows = n // w
+    n_windows = -(-m // w)
+    # per (template, baseline window) counts, kept sparse: sums, sums of squares, windows seen
+    key = baseline.ids[: nb_windows * w] * nb_windows + np.arange(nb_windows * w) // w
+    cells, per_cell = np.unique(key, return_counts=True)
+    owner = cells // nb_windows
+    total = np.bincount(owner, weights=per_cell, minlength=a.size)
+    squares = np.bincount(owner, weights=per_cell.astype(float) ** 2, minlength=a.size)
+    seen = np.bincount(owner, minlength=a.size)
+    order = np.argsort(new.ids, kind="stable")
+    starts = np.searchsorted(new.ids[order], np.arange(a.size + 1))
+    rows = []
+    for t in np.flatnonzero((b >= 2) & (seen >= 2)):
+        mu_b = float(total[t]) / nb_windows
+        var = (float(squares[t]) - nb_windows * mu_b * mu_b) / (nb_windows - 1)
+        size = mu_b * mu_b / (var - mu_b) if var > mu_b else None
+        mean_w = w * float(a[t] + b[t]) / (n + m)
+        if _tail_2w(min(int(b[t]), w), mean_w, size, n_windows) > options.alpha:
+            continue  # cannot reach alpha even with every occurrence in one window
+        pos = order[starts[t] : starts[t + 1]]
+        s, i = _max_window(pos, w)
+        last = pos[i + s - 1]
+        rows.append((int(t), s, mean_w, _tail_2w(s, mean_w, size, n_windows), int(pos[i]), int(last)))
+    k = len(rows)
+    if k == 0:
+        fam = FamilyTest("bursts", 0.0, "templates concentrated in a window of the new batch", 0, 1.0, math.nan,
+                         f"window {w} lines; no template has counts that could show a burst")
+        return fam, ()
+    rows.sort(key=lambda r: (r[3], r[0]))
+    p_family = float(min(1.0, k * rows[0][3]))
+    out = []
+    for t, s, mean_w, p, first, last in rows[: options.top]:
+        if min(1.0, k * p) > options.alpha:
+            break
+        inp, line = new.where(first)
+        out.append(Burst(templates[t], s, int(w), float(mean_w), inp, line, new.where(last)[1], float(p), float(min(1.0, k * p))))
+    fam = FamilyTest(
+        "bursts", float(rows[0][1]), f"largest count of one template in {w} consecutive new lines", k, p_family, math.nan,
+        f"negative binomial fitted to {nb_windows} baseline windows, union bound over {n_windows} windows; Bonferroni over {k} templates",
+    )
+    return fam, tuple(out)
