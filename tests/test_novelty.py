@@ -20,6 +20,7 @@ from fractalseq.compare._novelty import (
     NoveltyOptions,
     benjamini_hochberg,
     binomial_greater,
+    binomial_greater_scaled,
     binomial_two_sided,
     holm,
     leave_blocks_out,
@@ -37,6 +38,15 @@ def test_binomial_tails_equal_scipy_binomtest(n, p):
     for k in range(n + 1):
         assert binomial_greater(k, n, p) == pytest.approx(binomtest(k, n, p, alternative="greater").pvalue, rel=1e-9, abs=1e-300)
         assert binomial_two_sided(k, n, p) == pytest.approx(binomtest(k, n, p).pvalue, rel=1e-9, abs=1e-300)
+
+
+def test_scaled_binomial_tail_is_the_exact_tail_at_whole_numbers_and_monotone_between():
+    # I_p(k, N - k + 1) = P(Binomial(N, p) >= k) (Abramowitz & Stegun 26.5.24, from memory); checked against scipy
+    for n, p in ((12, 0.4), (40, 0.5326)):
+        for k in range(1, n + 1):
+            assert binomial_greater_scaled(k, n, p) == pytest.approx(binomtest(k, n, p, alternative="greater").pvalue, rel=1e-9)
+    between = [binomial_greater_scaled(x, 20.5, 0.5) for x in np.linspace(9.0, 11.0, 9)]
+    assert all(a > b for a, b in zip(between, between[1:]))
 
 
 def test_benjamini_hochberg_hand_example_and_plain_reference():

@@ -29,8 +29,15 @@ batch's numbers of lines and ``a_t``, ``b_t`` the counts of template ``t``.
     *Testing Statistical Hypotheses*, 3rd ed., sec. 4.5, from memory).  It
     carries the uncertainty of the baseline's estimate: a short baseline
     (small ``K L``) needs many more new templates before ``p`` gets small.
-    The unit is the template, not the line, because one new event kind
-    usually brings many lines at once.
+    One new event kind usually brings many lines at once, so lines are not
+    Poisson counts; the second statistic counts the new *lines* divided by
+    the dispersion index ``phi = sum s^2 / sum s`` of the clusters (``s`` the
+    lines of each new template, of both batches pooled as the null pools
+    them): a compound Poisson count has variance ``phi`` times its mean, and
+    scaled counts are compared like Poisson counts (quasi-Poisson; McCullagh
+    & Nelder, *Generalized Linear Models*, 2nd ed., 1989, from memory), the
+    binomial tail taken at non-integer counts by the incomplete beta
+    function.  Family p-value: twice the smaller of the two (Bonferroni).
 ``vanished_events`` (baseline templates absent from the new batch)
     Conditional on ``c_t = a_t + b_t``, ``b_t ~ Binomial(c_t, pi)`` with
     ``pi = m / (n + m)`` when the template's share did not change; the exact
@@ -81,7 +88,8 @@ from fractalseq.results import Result
 
 __all__ = [
     "Burst", "EventBatch", "FamilyTest", "NewEvent", "NoveltyModel", "NoveltyOptions", "NoveltyResult", "RateChange",
-    "VanishedEvent", "benjamini_hochberg", "binomial_greater", "binomial_two_sided", "holm", "novelty_test",
+    "VanishedEvent", "benjamini_hochberg", "binomial_greater", "binomial_greater_scaled", "binomial_two_sided", "holm",
+    "leave_blocks_out", "novelty_test",
 ]
 
 FAMILIES: tuple[str, ...] = ("new_events", "vanished_events", "rate_changes", "bursts")
@@ -407,10 +415,16 @@ def leave_blocks_out(ids: np.ndarray, block_lines: int) -> tuple[int, int]:
     are the leave-out blocks; the remaining lines only ever serve as the
     reference.  Returns ``(K, D)``.
     """
+    K, sizes = _leave_out_sizes(ids, block_lines)
+    return K, int(sizes.size)
+
+
+def _leave_out_sizes(ids: np.ndarray, block_lines: int) -> tuple[int, np.ndarray]:
+    """Blocks, and the line count of every template confined to one leave-out block."""
     n = ids.size
     K = n // block_lines
     if K == 0:
-        return 0, 0
+        return 0, np.zeros(0, np.int64)
     block = np.arange(n, dtype=np.int64) // block_lines
     block[K * block_lines:] = -1
     T = int(ids.max()) + 1
@@ -419,7 +433,24 @@ def leave_blocks_out(ids: np.ndarray, block_lines: int) -> tuple[int, int]:
     np.minimum.at(lo, ids, block)
     np.maximum.at(hi, ids, block)
     present = hi > -2
-    return K, int(np.count_nonzero(present & (lo == hi) & (lo >= 0)))
+    confined = np.flatnonzero(present & (lo == hi) & (lo >= 0))
+    return K, np.bincount(ids, minlength=T)[confined]
+
+
+def binomial_greater_scaled(x: float, total: float, p: float) -> float:
+    """``P(K >= x)`` for ``K ~ Binomial(total, p)`` extended to non-integer counts.
+
+    Uses ``P(Binomial(N, p) >= k) = I_p(k, N - k + 1)``, the regularized
+    incomplete beta function (Abramowitz & Stegun 26.5.24, from memory), which
+    is defined for real ``k`` and ``N``; at whole numbers it is the exact tail.
+    """
+    if x <= 0:
+        return 1.0
+    if x > total:
+        return 0.0
+    from scipy.special import betainc
+
+    return float(min(1.0, betainc(x, total - x + 1.0, p)))
 
 
 def _new_events(baseline, new, a, b, templates, options, notes):
@@ -428,13 +459,21 @@ def _new_events(baseline, new, a, b, templates, options, notes):
     X = int(novel.size)
     novel_lines = int(b[novel].sum())
     L = max(1, min(n // options.blocks, m))
-    K, D = leave_blocks_out(baseline.ids, L)
+    K, sizes = _leave_out_sizes(baseline.ids, L)
+    D = int(sizes.size)
     exposure = K * L
     if K < 2:
         notes.append(f"the baseline is too short to estimate how often new templates appear ({n} lines); new templates were not tested")
         p, tested = 1.0, 0
     else:
-        p, tested = binomial_greater(X, X + D, m / (m + exposure)), 1
+        share = m / (m + exposure)
+        p_templates = binomial_greater(X, X + D, share)
+        # lines: new templates bring clusters of lines; counts divided by the dispersion index
+        # sum(s^2) / sum(s) of the clusters of both batches behave like Poisson counts (quasi-Poisson)
+        clusters = np.concatenate([sizes, b[novel]]).astype(float)
+        phi = float((clusters**2).sum() / clusters.sum()) if clusters.size else 1.0
+        p_lines = binomial_greater_scaled(novel_lines / phi, (novel_lines + float(sizes.sum())) / phi, share)
+        p, tested = min(1.0, 2.0 * min(p_templates, p_lines)), 1
     rate = D / exposure if exposure else math.nan
     model = NoveltyModel(int(L), int(K), int(D), float(rate), float(rate * m) if exposure else math.nan)
     first = _first_positions(new.ids, len(templates))
@@ -445,7 +484,8 @@ def _new_events(baseline, new, a, b, templates, options, notes):
         events.append(NewEvent(templates[t], int(b[t]), float(b[t] / m), inp, line, new.examples.get(int(t), "")))
     fam = FamilyTest(
         "new_events", float(X), "distinct templates of the new batch absent from the baseline", tested, float(p), math.nan,
-        f"conditional binomial of {X} new templates against {D} in {K} leave-out baseline blocks of {L} lines",
+        f"conditional binomial of {X} new templates ({novel_lines} lines) against {D} ({int(sizes.sum())} lines) in {K} leave-out "
+        f"baseline blocks of {L} lines; lines scaled by their dispersion index; Bonferroni over the two",
     )
     return fam, tuple(events), model, novel_lines
 
