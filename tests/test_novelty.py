@@ -15,16 +15,14 @@ import pytest
 from scipy.stats import binomtest
 
 from _paths import CLI, LOGS
-from fractalseq.compare._novelty import (
-    EventBatch,
-    NoveltyOptions,
+from fractalseq.compare._novelty import EventBatch, NoveltyOptions, dispersion_index, leave_blocks_out, novelty_test
+from fractalseq.compare._pvalues import (
     benjamini_hochberg,
     binomial_greater,
     binomial_greater_scaled,
+    binomial_less_scaled,
     binomial_two_sided,
     holm,
-    leave_blocks_out,
-    novelty_test,
 )
 from fractalseq.errors import ParameterError
 from fractalseq.jobs._events import novelty_files
@@ -45,6 +43,7 @@ def test_scaled_binomial_tail_is_the_exact_tail_at_whole_numbers_and_monotone_be
     for n, p in ((12, 0.4), (40, 0.5326)):
         for k in range(1, n + 1):
             assert binomial_greater_scaled(k, n, p) == pytest.approx(binomtest(k, n, p, alternative="greater").pvalue, rel=1e-9)
+            assert binomial_less_scaled(k, n, p) == pytest.approx(binomtest(k, n, p, alternative="less").pvalue, rel=1e-9)
     between = [binomial_greater_scaled(x, 20.5, 0.5) for x in np.linspace(9.0, 11.0, 9)]
     assert all(a > b for a, b in zip(between, between[1:]))
 
@@ -86,11 +85,26 @@ def test_leave_blocks_out_counts_templates_confined_to_one_block():
     assert leave_blocks_out(ids, 1) == (ids.size, int(np.count_nonzero(counts == 1)))
 
 
+def test_dispersion_index_is_pearson_chi2_over_degrees_of_freedom():
+    # blocks of 4 lines, 5 blocks; template 1 counts per block 0, 4, 0, 0, 1 (c = 5): Pearson X^2 against equal
+    # counts 1 per block = (1 + 9 + 1 + 1 + 0) / 1 = 12, phi = 12 / 4 = 3 (worked by hand);
+    # template 0 fills the rest: counts 4, 0, 4, 4, 3 -> e = 3, X^2 = (1 + 9 + 1 + 1 + 0) / 3 = 4, phi = max(1, 1) = 1
+    ids = np.array([0, 0, 0, 0, 1, 1, 1, 1, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 1])
+    phi, J = dispersion_index(ids, 3, 4)
+    assert J == 5
+    np.testing.assert_allclose(phi, [1.0, 3.0, 1.0])
+    from scipy.stats import chisquare  # reference: scipy's Pearson statistic
+
+    assert chisquare([0, 4, 0, 0, 1]).statistic / 4 == pytest.approx(phi[1])
+
+
 def test_vanished_and_new_event_p_values_are_the_exact_binomial_tails():
-    # invented: template 2 has 12 lines in the baseline (800 lines), none in the new batch (400 lines)
+    # invented: template 2 has 12 lines spread evenly over the baseline (800 lines), none in the new batch (400 lines);
+    # spread evenly its dispersion index is 1, so the test is the exact binomial one
     rng = np.random.default_rng(1)
-    base = np.concatenate([rng.integers(0, 2, 788), np.full(12, 2)])
-    rng.shuffle(base)
+    base = rng.integers(0, 2, 800)
+    base[np.arange(12) * 66 + 7] = 2
+    assert dispersion_index(base, 3, 80)[0][2] == 1.0
     new = rng.integers(0, 2, 400)
     res = novelty_test(EventBatch(base), EventBatch(new), ["a", "b", "c"])
     (gone,) = res.vanished_events
@@ -146,9 +160,10 @@ def _split(tmp_path, name, insert=None, block=100):
     return [SourceSpec(str(tmp_path / "base.log"), "base.log")], [SourceSpec(str(tmp_path / "new.log"), "new.log")], at
 
 
+@pytest.mark.parametrize("block", [50, 100])
 @pytest.mark.parametrize("name", ["dpkg-excerpt.log", "apt-term-excerpt.log", "jtreg-output-excerpt.log"])
-def test_interleaved_halves_of_one_real_log_show_no_change(tmp_path, name):
-    base, new, _ = _split(tmp_path, name)
+def test_interleaved_halves_of_one_real_log_show_no_change(tmp_path, name, block):
+    base, new, _ = _split(tmp_path, name, block=block)
     res = novelty_files(base, new)
     assert not res.changed, res.verdict
     assert res.p_value >= 0.05
@@ -168,6 +183,18 @@ def test_another_service_inserted_into_a_package_log_is_listed_as_new_events(tmp
         assert e.example in inserted
     twice = novelty_files(base, new)
     assert json.dumps(twice.to_dict(), sort_keys=True) == json.dumps(res.to_dict(), sort_keys=True)
+
+
+def test_a_test_log_inserted_into_a_package_log_is_one_new_event_with_a_changed_rate(tmp_path):
+    # 150 lines of jtreg output, nearly all "Passed: <test>": one new template, so the evidence is its rate
+    inserted = _nonblank("jtreg-output-excerpt.log")[:150]
+    base, new, at = _split(tmp_path, "dpkg-excerpt.log", insert=inserted)
+    res = novelty_files(base, new)
+    assert res.changed
+    top = res.new_events[0]
+    assert top.template.startswith("Passed:") and top.lines == sum(ln.startswith("Passed:") for ln in inserted)
+    assert at < top.first_line <= at + len(inserted)
+    assert any(c.template == top.template and c.direction == "more in new" for c in res.rate_changes)
 
 
 @pytest.mark.parametrize("pair", [("dpkg-excerpt.log", "apt-term-excerpt.log"), ("jtreg-output-excerpt.log", "fail2ban-sshd.log")])

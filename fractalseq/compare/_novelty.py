@@ -33,24 +33,36 @@ batch's numbers of lines and ``a_t``, ``b_t`` the counts of template ``t``.
     Poisson counts; the second statistic counts the new *lines* divided by
     the dispersion index ``phi = sum s^2 / sum s`` of the clusters (``s`` the
     lines of each new template, of both batches pooled as the null pools
-    them): a compound Poisson count has variance ``phi`` times its mean, and
+    them, or the baseline's alone once it has ``MIN_CLUSTERS`` of them): a
+    compound Poisson count has variance ``phi`` times its mean, and
     scaled counts are compared like Poisson counts (quasi-Poisson; McCullagh
     & Nelder, *Generalized Linear Models*, 2nd ed., 1989, from memory), the
     binomial tail taken at non-integer counts by the incomplete beta
     function.  Family p-value: twice the smaller of the two (Bonferroni).
+Lines of one template often come in runs (one package install writes a
+dozen status lines), so line counts are over-dispersed.  Each template gets
+a dispersion index ``phi_t >= 1`` from the baseline's blocks
+(:func:`dispersion_index`, quasi-Poisson; a template absent from the
+baseline gets the index of the baseline's leave-out templates); its counts
+are divided by ``phi_t`` before the binomial tests below, which are exact
+when ``phi_t = 1`` and use the incomplete-beta extension of the binomial
+tail otherwise (:mod:`fractalseq.compare._pvalues`).
+
 ``vanished_events`` (baseline templates absent from the new batch)
     Conditional on ``c_t = a_t + b_t``, ``b_t ~ Binomial(c_t, pi)`` with
     ``pi = m / (n + m)`` when the template's share did not change; the exact
-    one-sided p-value of ``b_t = 0`` is ``(1 - pi)**a_t``.  Family p-value:
-    Bonferroni over the templates whose smallest attainable p-value
-    ``(1 - pi)**c_t`` is at most ``alpha`` (Tarone 1990, Biometrics 46:515,
-    from memory: the screen depends on the margins ``c_t`` only, which the
-    conditional tests treat as fixed, so it keeps the level).
+    one-sided p-value of ``b_t = 0`` is ``(1 - pi)**a_t`` (with dispersion,
+    ``(1 - pi)**(a_t / phi_t)``).  Family p-value: Bonferroni over the
+    templates whose smallest attainable p-value ``(1 - pi)**(c_t / phi_t)`` is
+    at most ``alpha`` (Tarone 1990, Biometrics 46:515, from memory: the
+    screen depends on the margins only, which the conditional tests treat as
+    fixed, so it keeps the level).
 ``rate_changes`` (per-template share, both directions)
-    The exact two-sided binomial test of ``b_t`` given ``c_t`` and ``pi``
-    (the conditional test of two Poisson rates; p-value as
-    ``scipy.stats.binomtest``: sum of the probabilities not above the
-    observed one), Benjamini–Hochberg over the templates that pass the same
+    The two-sided binomial test of ``b_t`` given ``c_t`` and ``pi`` (the
+    conditional test of two Poisson rates; exact p-value as
+    ``scipy.stats.binomtest`` when ``phi_t = 1``: the sum of the
+    probabilities not above the observed one; twice the smaller scaled tail
+    otherwise), Benjamini–Hochberg over the templates that pass the same
     margin screen (Benjamini & Hochberg 1995, JRSS B 57:289; screening
     discrete tests: Gilbert 2005, Appl. Statist. 54:143, from memory).
     Family p-value: the smallest BH-adjusted value, which is Simes' global
@@ -83,69 +95,28 @@ from typing import Mapping, Sequence
 import numpy as np
 from scipy import stats
 
+from fractalseq.compare._pvalues import (
+    benjamini_hochberg,
+    binomial_greater,
+    binomial_greater_scaled,
+    binomial_less_scaled,
+    binomial_two_sided,
+    binomial_two_sided_scaled,
+    holm,
+)
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.results import Result
 
 __all__ = [
     "Burst", "EventBatch", "FamilyTest", "NewEvent", "NoveltyModel", "NoveltyOptions", "NoveltyResult", "RateChange",
-    "VanishedEvent", "benjamini_hochberg", "binomial_greater", "binomial_greater_scaled", "binomial_two_sided", "holm",
-    "leave_blocks_out", "novelty_test",
+    "VanishedEvent", "dispersion_index", "leave_blocks_out", "novelty_test",
 ]
 
 FAMILIES: tuple[str, ...] = ("new_events", "vanished_events", "rate_changes", "bursts")
-#: Relative tolerance of "probability not above the observed one" (as scipy.stats.binomtest).
-_RERR = 1.0 + 1e-7
+#: Fewest leave-out templates of the baseline for a dispersion index of its own (else both batches' are pooled).
+MIN_CLUSTERS = 10
 #: Fewest baseline windows for the burst test's dispersion estimate.
 MIN_WINDOWS = 5
-
-
-# ============================================================ p-value tools
-def binomial_greater(k: int, n: int, p: float) -> float:
-    """Exact upper tail ``P(K >= k)`` of ``K ~ Binomial(n, p)`` (1 when ``k <= 0``)."""
-    if k <= 0:
-        return 1.0
-    if k > n:
-        return 0.0
-    return float(min(1.0, stats.binom.sf(k - 1, n, p)))
-
-
-def binomial_two_sided(k: int, n: int, p: float) -> float:
-    """Exact two-sided binomial p-value: the total probability of outcomes no more likely than ``k``.
-
-    The rule of ``scipy.stats.binomtest(k, n, p).pvalue`` (outcomes whose
-    probability is at most ``(1 + 1e-7)`` times that of ``k``), computed over
-    the whole support ``0..n``.
-    """
-    if n == 0:
-        return 1.0
-    pmf = stats.binom.pmf(np.arange(n + 1), n, p)
-    d = pmf[k]
-    return float(min(1.0, pmf[pmf <= d * _RERR].sum()))
-
-
-def holm(p: Sequence[float]) -> np.ndarray:
-    """Holm step-down adjusted p-values: ``p~_(i) = max_{j <= i} min(1, (m - j + 1) p_(j))``."""
-    p = np.asarray(p, dtype=float)
-    if p.size == 0:
-        return p
-    order = np.argsort(p, kind="stable")
-    adj = np.maximum.accumulate(np.minimum(1.0, (p.size - np.arange(p.size)) * p[order]))
-    out = np.empty(p.size)
-    out[order] = adj
-    return out
-
-
-def benjamini_hochberg(p: Sequence[float]) -> np.ndarray:
-    """Benjamini–Hochberg adjusted p-values: ``q_(i) = min_{j >= i} min(1, m p_(j) / j)``."""
-    p = np.asarray(p, dtype=float)
-    if p.size == 0:
-        return p
-    order = np.argsort(p, kind="stable")
-    ranked = p[order] * p.size / np.arange(1, p.size + 1)
-    adj = np.minimum(1.0, np.minimum.accumulate(ranked[::-1])[::-1])
-    out = np.empty(p.size)
-    out[order] = adj
-    return out
 
 
 # ================================================================= inputs
@@ -298,6 +269,7 @@ class NoveltyModel(Result):
     unseen_templates: int
     rate_per_line: float
     expected_new_templates: float
+    cluster_dispersion: float
 
 
 @dataclass(frozen=True)
@@ -366,8 +338,14 @@ def novelty_test(
     notes: list[str] = []
 
     fam_a, new_events, model, novel_lines = _new_events(baseline, new, a, b, templates, options, notes)
-    fam_b, vanished = _vanished(a, b, pi, templates, options)
-    fam_c, changes = _rate_changes(a, b, pi, n, m, templates, options)
+    phi, J = dispersion_index(baseline.ids, T, max(1, min(n // options.blocks, m)))
+    if J < MIN_WINDOWS:
+        notes.append("the baseline is too short to estimate how lines of one template cluster; "
+                     "the vanished and rate tests treat lines as independent")
+    # templates absent from the baseline cluster as the baseline's own rare templates do
+    phi[a == 0] = model.cluster_dispersion
+    fam_b, vanished = _vanished(a, b, pi, phi, templates, options)
+    fam_c, changes = _rate_changes(a, b, pi, phi, n, m, templates, options)
     fam_d, bursts = _bursts(baseline, new, a, b, templates, options, notes)
     families = [fam_a, fam_b, fam_c, fam_d]
     tested = [f for f in families if f.tested > 0]
@@ -437,20 +415,30 @@ def _leave_out_sizes(ids: np.ndarray, block_lines: int) -> tuple[int, np.ndarray
     return K, np.bincount(ids, minlength=T)[confined]
 
 
-def binomial_greater_scaled(x: float, total: float, p: float) -> float:
-    """``P(K >= x)`` for ``K ~ Binomial(total, p)`` extended to non-integer counts.
+def dispersion_index(baseline: np.ndarray, T: int, block_lines: int) -> tuple[np.ndarray, int]:
+    """Per template, the dispersion index of its counts over the baseline's blocks, and the number of blocks.
 
-    Uses ``P(Binomial(N, p) >= k) = I_p(k, N - k + 1)``, the regularized
-    incomplete beta function (Abramowitz & Stegun 26.5.24, from memory), which
-    is defined for real ``k`` and ``N``; at whole numbers it is the exact tail.
+    The baseline is cut into ``J`` blocks of ``block_lines`` lines (an
+    incomplete last block left out); for template ``t`` with ``c`` lines in
+    them, ``phi_t = max(1, X^2 / (J - 1))`` with ``X^2 = J sum_j x_j^2 / c - c``
+    the Pearson statistic of equal counts per block (the quasi-Poisson
+    estimate of dispersion; McCullagh & Nelder 1989, from memory).  A
+    template whose lines come in runs gets ``phi > 1``; independent lines give
+    ``phi`` near 1; a template absent from the blocks gets 1.  With fewer than
+    ``MIN_WINDOWS`` blocks every ``phi`` is 1.
     """
-    if x <= 0:
-        return 1.0
-    if x > total:
-        return 0.0
-    from scipy.special import betainc
-
-    return float(min(1.0, betainc(x, total - x + 1.0, p)))
+    J = baseline.size // block_lines
+    phi = np.ones(T)
+    if J < MIN_WINDOWS:
+        return phi, J
+    key = baseline[: J * block_lines] * np.int64(J) + np.arange(J * block_lines) // block_lines
+    cells, per_cell = np.unique(key, return_counts=True)
+    owner = cells // J
+    c = np.bincount(owner, weights=per_cell, minlength=T)
+    sq = np.bincount(owner, weights=per_cell.astype(float) ** 2, minlength=T)
+    seen = c > 0
+    phi[seen] = np.maximum(1.0, (J * sq[seen] / c[seen] - c[seen]) / (J - 1))
+    return phi, J
 
 
 def _new_events(baseline, new, a, b, templates, options, notes):
@@ -470,12 +458,13 @@ def _new_events(baseline, new, a, b, templates, options, notes):
         p_templates = binomial_greater(X, X + D, share)
         # lines: new templates bring clusters of lines; counts divided by the dispersion index
         # sum(s^2) / sum(s) of the clusters of both batches behave like Poisson counts (quasi-Poisson)
-        clusters = np.concatenate([sizes, b[novel]]).astype(float)
+        clusters = (sizes if D >= MIN_CLUSTERS else np.concatenate([sizes, b[novel]])).astype(float)
         phi = float((clusters**2).sum() / clusters.sum()) if clusters.size else 1.0
         p_lines = binomial_greater_scaled(novel_lines / phi, (novel_lines + float(sizes.sum())) / phi, share)
         p, tested = min(1.0, 2.0 * min(p_templates, p_lines)), 1
     rate = D / exposure if exposure else math.nan
-    model = NoveltyModel(int(L), int(K), int(D), float(rate), float(rate * m) if exposure else math.nan)
+    phi_base = float((sizes.astype(float) ** 2).sum() / sizes.sum()) if D else 1.0
+    model = NoveltyModel(int(L), int(K), int(D), float(rate), float(rate * m) if exposure else math.nan, phi_base)
     first = _first_positions(new.ids, len(templates))
     order = sorted(novel, key=lambda t: (-int(b[t]), int(first[t])))[: options.top]
     events = []
@@ -490,11 +479,12 @@ def _new_events(baseline, new, a, b, templates, options, notes):
     return fam, tuple(events), model, novel_lines
 
 
-def _vanished(a, b, pi, templates, options):
+def _vanished(a, b, pi, phi, templates, options):
     c = a + b
-    screen = np.flatnonzero((a > 0) & (c * math.log1p(-pi) <= math.log(options.alpha)))
+    log_q = math.log1p(-pi)
+    screen = np.flatnonzero((a > 0) & (c / phi * log_q <= math.log(options.alpha)))
     gone = screen[b[screen] == 0]
-    p = np.exp(a[gone] * math.log1p(-pi)) if gone.size else np.zeros(0)
+    p = np.exp(a[gone] / phi[gone] * log_q) if gone.size else np.zeros(0)
     k = int(screen.size)
     p_family = float(min(1.0, k * p.min())) if gone.size else 1.0
     order = np.lexsort((gone, p))[: options.top] if gone.size else []
@@ -504,28 +494,24 @@ def _vanished(a, b, pi, templates, options):
     )
     fam = FamilyTest(
         "vanished_events", float(gone.size), "baseline templates with a clear count absent from the new batch", k, p_family, math.nan,
-        f"exact binomial (1 - pi)^count, pi = {pi:.4g}; Bonferroni over {k} templates whose count can reach alpha",
+        f"binomial (1 - pi)^(count / phi), pi = {pi:.4g}, phi the template's dispersion index; "
+        f"Bonferroni over {k} templates whose count can reach alpha",
     )
     return fam, events
 
 
-def _min_two_sided(c: int, pi: float) -> float:
-    return min(binomial_two_sided(0, c, pi), binomial_two_sided(c, c, pi))
+def _rate_p(k: float, c: float, pi: float, phi: float) -> float:
+    """Two-sided p-value of ``k`` of ``c`` lines in the new batch: exact binomial, or dispersion-scaled when ``phi > 1``."""
+    if phi <= 1.0:
+        return binomial_two_sided(int(k), int(c), pi)
+    return binomial_two_sided_scaled(k / phi, c / phi, pi)
 
 
-def _rate_changes(a, b, pi, n, m, templates, options):
+def _rate_changes(a, b, pi, phi, n, m, templates, options):
     c = a + b
-    cand = np.flatnonzero(c > 0)
-    attainable: dict[int, float] = {}
-    screen = []
-    for t in cand:
-        ct = int(c[t])
-        if ct not in attainable:
-            attainable[ct] = _min_two_sided(ct, pi)
-        if attainable[ct] <= options.alpha:
-            screen.append(int(t))
+    screen = [int(t) for t in np.flatnonzero(c > 0) if min(_rate_p(0, c[t], pi, phi[t]), _rate_p(c[t], c[t], pi, phi[t])) <= options.alpha]
     screen_arr = np.asarray(screen, dtype=np.int64)
-    p = np.asarray([binomial_two_sided(int(b[t]), int(c[t]), pi) for t in screen_arr])
+    p = np.asarray([_rate_p(b[t], c[t], pi, phi[t]) for t in screen_arr])
     q = benjamini_hochberg(p)
     p_family = float(q.min()) if q.size else 1.0
     hits = np.flatnonzero(q <= options.alpha)
@@ -540,8 +526,8 @@ def _rate_changes(a, b, pi, n, m, templates, options):
     fam = FamilyTest(
         "rate_changes", float(np.count_nonzero(q <= options.alpha)), "templates whose share changed (BH q <= alpha)",
         int(screen_arr.size), p_family, math.nan,
-        f"exact two-sided binomial per template, pi = {pi:.4g}; Benjamini-Hochberg over {screen_arr.size} templates "
-        "whose count can reach alpha; family p = Simes",
+        f"two-sided binomial per template, pi = {pi:.4g} (exact; counts divided by the template's dispersion index "
+        f"when above 1); Benjamini-Hochberg over {screen_arr.size} templates whose count can reach alpha; family p = Simes",
     )
     return fam, tuple(changes)
 
