@@ -89,7 +89,7 @@ needed).  Drift reports on logs are no security guarantee.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Mapping, Sequence
 
 import numpy as np
@@ -369,8 +369,6 @@ def novelty_test(
 
 
 def _with_adjusted(f: FamilyTest, p_adj: float) -> FamilyTest:
-    from dataclasses import replace
-
     return replace(f, p_adjusted=p_adj)
 
 
