@@ -99,7 +99,6 @@ from fractalseq.compare._pvalues import (
     benjamini_hochberg,
     binomial_greater,
     binomial_greater_scaled,
-    binomial_less_scaled,
     binomial_two_sided,
     binomial_two_sided_scaled,
     holm,

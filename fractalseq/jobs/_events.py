@@ -29,40 +29,39 @@ _BLOCK = 1 << 20
 def event_batches(baseline: Sequence[SourceSpec], new: Sequence[SourceSpec]) -> tuple[EventBatch, EventBatch, list[str]]:
     """Mine the lines of both batches together; each batch's lines as template ids, and the template texts."""
     miner = TemplateMiner()
+    add = miner.add
     parts = []
     for specs in (baseline, new):
-        raw: list[int] = []
-        where: list[int] = []
+        raw: list[np.ndarray] = []
+        where: list[np.ndarray] = []
         numbers: list[np.ndarray] = []
         first: dict[int, tuple[int, str]] = {}  # cluster -> (position in the batch, its first line)
+        done = 0
         for k, spec in enumerate(specs):
             for first_line, lines in _lines(locate(spec.path), _BLOCK, ReadStats()):
                 kept = [j for j, line in enumerate(lines) if line and not line.isspace()]
-                for j in kept:
-                    cid = miner.add(lines[j])
+                cids = np.asarray([add(lines[j]) for j in kept], dtype=np.int64)
+                uniq, at = np.unique(cids, return_index=True)
+                for cid, i in zip(uniq.tolist(), at.tolist()):
                     if cid not in first:
-                        first[cid] = (len(raw), lines[j])
-                    raw.append(cid)
+                        first[cid] = (done + i, lines[kept[i]])
+                raw.append(cids)
                 numbers.append(first_line + np.asarray(kept, dtype=np.int64))
-                where.extend([k] * len(kept))
+                where.append(np.full(len(kept), k, dtype=np.int64))
+                done += len(kept)
         parts.append((raw, where, numbers, first, tuple(s.name for s in specs)))
     templates = miner.finish()
     final = np.asarray(miner.final_ids, dtype=np.int64)
     batches = []
+    cat = lambda xs: np.concatenate(xs) if xs else np.zeros(0, np.int64)  # noqa: E731
     for raw, where, numbers, first, names in parts:
-        ids = final[np.asarray(raw, dtype=np.int64)] if raw else np.zeros(0, np.int64)
+        ids = final[cat(raw)]
         earliest: dict[int, tuple[int, str]] = {}
         for cid, (pos, text) in first.items():  # the earliest line of each template in this batch
             t = int(final[cid])
             if t not in earliest or pos < earliest[t][0]:
                 earliest[t] = (pos, text)
-        batches.append(
-            EventBatch(
-                ids, names, np.asarray(where, dtype=np.int64),
-                np.concatenate(numbers) if numbers else np.zeros(0, np.int64),
-                {t: v[1] for t, v in earliest.items()},
-            )
-        )
+        batches.append(EventBatch(ids, names, cat(where), cat(numbers), {t: v[1] for t, v in earliest.items()}))
     return batches[0], batches[1], [t.text for t in templates]
 
 
