@@ -169,8 +169,9 @@ def test_interleaved_halves_of_one_real_log_show_no_change(tmp_path, name, block
     assert res.p_value >= 0.05
 
 
-def test_another_service_inserted_into_a_package_log_is_listed_as_new_events(tmp_path):
-    inserted = _nonblank("fail2ban-postfix.log")[:150]
+@pytest.mark.parametrize("other", ["fail2ban-postfix.log", "fail2ban-sshd.log"])
+def test_another_service_inserted_into_a_package_log_is_listed_as_new_events(tmp_path, other):
+    inserted = _nonblank(other)[:150]  # postfix: all its 133 non-blank lines; sshd: its first 150
     base, new, at = _split(tmp_path, "dpkg-excerpt.log", insert=inserted)
     res = novelty_files(base, new)
     assert res.changed
