@@ -216,7 +216,10 @@ def drift(
     compares ordinal patterns, which ignore level and scale.
 
     Exit status: 0 no change detected, 1 changed (smallest adjusted p < --alpha),
-    2 usage or input error. Drift reports on logs are no security guarantee.
+    2 usage or input error. Log inputs also get the event novelty test (templates new
+    in the new batch, vanished, changed in rate, bursting; both batches mined together),
+    printed after the drift report and under the key "novelty" of --json; its verdict
+    counts for the exit status too. Drift reports on logs are no security guarantee.
 
     Example: fractalseq drift logs/monday.log logs/tuesday.log --format log --alpha 0.01
     """
@@ -235,18 +238,59 @@ def drift(
     stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
     with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
-        result = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+        report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+    result = report.drift
     if out is not None:
         from fractalseq.report.drift import write_outputs
 
         write_outputs(result, Path(out), force=True)
+        if report.novelty is not None:
+            from fractalseq.io._outputs import to_json, write_text
+
+            write_text(Path(out) / "novelty.json", to_json(report.novelty.to_dict()), force=True)
     if json_out:
-        typer.echo(result.to_json(), nl=False)
+        typer.echo(report.to_json(), nl=False)
     else:
         from fractalseq.report.drift import drift_text
 
         typer.echo(drift_text(result), nl=False)
-    raise typer.Exit(EXIT_FOUND if result.changed else 0)
+        if report.novelty is not None:
+            _print_novelty(report.novelty)
+    raise typer.Exit(EXIT_FOUND if report.changed else 0)
+
+
+def _safe(text: object) -> str:
+    """Text from the input made safe for the terminal: control characters shown as ``?``, rich markup escaped."""
+    from rich.markup import escape
+
+    return escape("".join(ch if ch.isprintable() else "?" for ch in str(text)))
+
+
+def _print_novelty(nov) -> None:
+    """The event novelty sections after the drift report (strings from the input escaped)."""
+    out = common.out_console
+    say = lambda line="": out.print(line, highlight=False, soft_wrap=True, emoji=False)  # noqa: E731
+    say(_safe(nov.verdict))
+    for f in nov.families:
+        say(f"  {f.family:<16} p = {f.p_value:<10.3g} adjusted {f.p_adjusted:<10.3g} {_safe(f.method)}")
+    m = nov.model
+    say(f"\nnew events: {nov.new_templates} templates, {nov.novel_lines} lines ({100 * nov.novel_share:.1f}% of the new batch); "
+        f"the baseline shows {m.rate_per_line:.3g} unseen templates per line (leave-out blocks of {m.block_lines} lines)")
+    for e in nov.new_events:
+        say(f"  {e.lines:>7}  {_safe(e.template)}\n           first at {_safe(e.first_input)}:{e.first_line}: {_safe(e.example)}")
+    say(f"\nvanished events: {len(nov.vanished_events)}")
+    for e in nov.vanished_events:
+        say(f"  baseline {e.baseline_count:>6} (expected {e.expected_new:.1f} in new)  p = {e.p_adjusted:.3g}  {_safe(e.template)}")
+    say(f"\nrate changes: {len(nov.rate_changes)}")
+    for c in nov.rate_changes:
+        say(f"  baseline {c.baseline_count:>6} new {c.new_count:>6}  {c.direction:<11}  q = {c.q_value:.3g}  {_safe(c.template)}")
+    if nov.bursts:
+        say(f"\nbursts: {len(nov.bursts)}")
+        for b in nov.bursts:
+            say(f"  {b.count} in {b.window} lines at {_safe(b.first_input)}:{b.first_line}-{b.last_line} "
+                f"(expected {b.expected:.2g})  p = {b.p_adjusted:.3g}  {_safe(b.template)}")
+    for n in nov.notes:
+        say(f"note: {_safe(n)}")
 
 
 def _num(v) -> str:

@@ -12,6 +12,7 @@ from typing import Any
 _NAMES: dict[str, str] = {
     "CachePlan": "fractalseq.jobs._files",
     "DaskEngine": "fractalseq.jobs._engines",
+    "DriftReport": "fractalseq.jobs._files",
     "ProcessEngine": "fractalseq.jobs._engines",
     "ProfileResult": "fractalseq.jobs._profile",
     "ReaderOptions": "fractalseq.jobs._inputs",

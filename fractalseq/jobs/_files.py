@@ -26,11 +26,12 @@ from fractalseq.words._counts import WordCounts
 
 if TYPE_CHECKING:
     from fractalseq.compare._drift import DriftOptions, DriftResult
+    from fractalseq.compare._novelty import NoveltyOptions, NoveltyResult
     from fractalseq.compare._scan import ScanResult
     from fractalseq.jobs._survey import Progress, SurveyOptions, SurveyResult
 
 __all__ = [
-    "CachePlan", "CountSummary", "batch_specs", "count_files", "drift_files", "parse_penalty", "scan_file", "survey_cache",
+    "CachePlan", "CountSummary", "DriftReport", "batch_specs", "count_files", "drift_files", "parse_penalty", "scan_file", "survey_cache",
     "survey_files",
 ]
 
@@ -117,6 +118,40 @@ def batch_specs(batch: Batch, stdin_lines: Sequence[str] | None = None) -> list[
     return expand_inputs([str(b) for b in batch])
 
 
+@dataclass(frozen=True)
+class DriftReport(Result):
+    """What ``fractalseq drift`` reports: the drift test and, for logs, the event novelty test.
+
+    Attributes
+    ----------
+    drift:
+        The drift test (:class:`~fractalseq.compare._drift.DriftResult`).
+    novelty:
+        The event novelty test (:class:`~fractalseq.compare._novelty.NoveltyResult`) when both
+        batches are logs read as templates; ``None`` otherwise.
+    """
+
+    drift: "DriftResult"
+    novelty: "NoveltyResult | None" = None
+
+    @property
+    def changed(self) -> bool:
+        """True when the drift test or the event novelty test found a change."""
+        return bool(self.drift.changed or (self.novelty is not None and self.novelty.changed))
+
+    def to_dict(self) -> dict:
+        """The drift document, with the key ``novelty`` added when the novelty test ran."""
+        out = self.drift.to_dict()
+        if self.novelty is not None:
+            out["novelty"] = self.novelty.to_dict()
+        return out
+
+    def to_json(self) -> str:
+        from fractalseq.io._outputs import to_json
+
+        return to_json(self.to_dict())
+
+
 def drift_files(
     baseline: Batch,
     new: Batch,
@@ -126,7 +161,8 @@ def drift_files(
     engine: Engine | None = None,
     stdin_lines: Sequence[str] | None = None,
     on_done: Callable[[int, object], None] | None = None,
-) -> "DriftResult":
+    novelty: "NoveltyOptions | None" = None,
+) -> DriftReport:
     """Does the ``new`` batch come from the same source as the ``baseline``?
 
     Both batches are read with the same ``reader`` options; numeric batches
@@ -147,10 +183,14 @@ def drift_files(
         Lines of an ``@-`` batch list.
     on_done:
         Called after each input's blocks are counted.
+    novelty:
+        Options of the event novelty test (default :class:`~fractalseq.compare._novelty.NoveltyOptions`
+        with the drift test's ``alpha``); it runs when every input was read as a log
+        (alphabet of templates) and none is standard input.
 
     Returns
     -------
-    DriftResult
+    DriftReport
         The result ``fractalseq drift ... --json`` prints.
     """
     from fractalseq.compare._drift import DriftOptions, drift_test
@@ -169,7 +209,16 @@ def drift_files(
     if note:
         notes = result.notes
         result = dataclasses.replace(result, notes=type(notes)([note, *notes]))
-    return result
+    events = None
+    logs = all(s.alphabet.name == "templates" for s in base + fresh)
+    if logs and any(s.path == "-" for s in base_specs + new_specs):
+        result = dataclasses.replace(result, notes=type(result.notes)([*result.notes, "standard input can be read only once: the event novelty test was left out"]))
+    elif logs:
+        from fractalseq.compare._novelty import NoveltyOptions
+        from fractalseq.jobs._events import novelty_files
+
+        events = novelty_files(base_specs, new_specs, novelty or NoveltyOptions(alpha=options.alpha))
+    return DriftReport(result, events)
 
 
 def _is_stdin(batch: Batch) -> bool:
