@@ -150,7 +150,7 @@ def learn(
 
     from fractalseq.cli.inputs import reader_options, shared_numeric_cuts
     from fractalseq.predict._predictor import CellPredictor, baseline_orders
-    from fractalseq.words._counts import count_inputs
+    from fractalseq.words._corpus import count_inputs
 
     check_writable(out, force)
     max_depth = _deepest(depth, old_max_depth, quiet)

@@ -83,7 +83,7 @@ def count_files(
     InputError
         When the inputs hold no usable symbol.
     """
-    from fractalseq.words._counts import count_inputs
+    from fractalseq.words._corpus import count_inputs
 
     reader = reader or ReaderOptions()
     wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)

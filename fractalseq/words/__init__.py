@@ -14,11 +14,11 @@ from fractalseq.words._counts import (
     WordCounter,
     WordCounts,
     check_depth,
-    count_inputs,
     count_words,
     decode_address,
     encode_address,
 )
+from fractalseq.words._corpus import count_inputs
 from fractalseq.words._pieces import DEFAULT_PIECE, Piece, count_piece, count_words_split, iter_pieces
 
 __all__ = [

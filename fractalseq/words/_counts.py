@@ -22,7 +22,7 @@ import hashlib
 import json
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Iterable, Iterator
+from typing import Iterable, Iterator
 
 import numpy as np
 
@@ -30,7 +30,7 @@ from fractalseq.words import _kernels as kernels
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import FractalseqError, InputError, ModelFileError, ParameterError
 from fractalseq.io._npz import DEFAULT_MAX_BYTES, read_container, write_container
-from fractalseq.stream import Chunk, ReadReport, SymbolArray, SymbolStream
+from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 
 #: Dense tables are used up to this many address bits (4**12 cells for DNA).
 DENSE_MAX_BITS = 24
@@ -655,53 +655,3 @@ def count_words(
     for chunk in chunks:
         counter.add(chunk.codes, chunk.starts)
     return counter.finish()
-
-
-def count_inputs(
-    inputs: Iterable[tuple[str, SymbolStream]],
-    depth: int | Callable[[Alphabet], int],
-    parallel: bool = True,
-    on_input: Callable[[str], None] | None = None,
-) -> tuple[WordCounts, list[tuple[str, ReadReport]]]:
-    """Count the words of several inputs together, streamed; each input is its own segment.
-
-    Parameters
-    ----------
-    inputs:
-        ``(name, stream)`` pairs (a generator may open each file when it is reached).
-    depth:
-        Deepest word length, or a function of the first input's alphabet giving it.
-    parallel:
-        Threaded counting of large chunks (see :class:`WordCounter`).
-    on_input:
-        Called with each input's name once it is counted (progress display).
-
-    Returns
-    -------
-    The counts and, per input, what its reader kept and dropped.
-
-    Raises
-    ------
-    InputError
-        No input, or an input whose alphabet differs from the first one's.
-    """
-    counter = None
-    reports: list[tuple[str, ReadReport]] = []
-    for name, stream in inputs:
-        if counter is None:
-            a = stream.alphabet
-            counter = WordCounter(a, depth(a) if callable(depth) else depth, parallel=parallel)
-        elif not counter.alphabet.same_symbols(stream.alphabet):
-            raise InputError(
-                f"{name} has a different alphabet from the first input; pass one --alphabet (e.g. dna) for all inputs."
-            )
-        for chunk in stream.chunks():
-            counter.add(chunk.codes, chunk.starts)
-        # close the open segment: inputs never continue each other
-        counter.add(np.zeros(0, counter.alphabet.code_dtype), np.zeros(0, np.int64), final=True)
-        reports.append((name, stream.report))
-        if on_input is not None:
-            on_input(name)
-    if counter is None:
-        raise InputError("There is no input to count; give at least one file.")
-    return counter.finish(), reports
