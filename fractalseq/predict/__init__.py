@@ -7,18 +7,20 @@ learn), which bounds the entropy rate from above.
 """
 
 from fractalseq.predict._baselines import CompressorMeter, MarkovBaseline, compressor_bits, kt_bits, kt_bits_by_order
-from fractalseq.predict._modelfile import load_model, read_header, save_model
+from fractalseq.predict._modelfile import ModelState, read_header, read_state, write_state
 from fractalseq.predict._predictor import (
     CellPredictor,
     OnlineCoder,
     PredictionResult,
     baseline_orders,
     evaluate_online,
+    load_model,
     online_code_length,
+    save_model,
 )
 
 __all__ = [
-    "CellPredictor", "CompressorMeter", "MarkovBaseline", "OnlineCoder", "PredictionResult", "baseline_orders",
+    "CellPredictor", "CompressorMeter", "MarkovBaseline", "ModelState", "OnlineCoder", "PredictionResult", "baseline_orders",
     "compressor_bits", "evaluate_online", "kt_bits", "kt_bits_by_order", "load_model", "online_code_length",
-    "read_header", "save_model",
+    "read_header", "read_state", "save_model", "write_state",
 ]

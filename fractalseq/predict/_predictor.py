@@ -46,6 +46,7 @@ import numpy as np
 from fractalseq.predict import _kernels as K
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ModelFileError, ParameterError
+from fractalseq.predict._modelfile import ModelState, read_state, write_state
 from fractalseq.predict._baselines import CompressorMeter, MarkovBaseline, kt_bits_after_training, kt_bits_by_order
 from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 
@@ -1108,19 +1109,87 @@ class CellPredictor:
         return evaluate_online(source, **kwargs, **self._online_params())
 
     # ---------------------------------------------------------- persistence
-    def save(self, path, force: bool = False):
-        """Write the fitted model (see :mod:`fractalseq.predict._modelfile`)."""
-        from fractalseq.predict import _modelfile as modelfile
-
+    def to_state(self) -> ModelState:
+        """The fitted model as a plain state (JSON-ready header and cell tables) for :mod:`fractalseq.predict._modelfile`."""
         _check_fitted(self)
-        return modelfile.save_model(self, path, force=force)
+        arrays: dict[str, np.ndarray] = {}
+        for n in self.depths_:
+            arrays[f"cells_{n}"] = np.ascontiguousarray(self.cells_[n], dtype=np.uint64)
+            arrays[f"counts_{n}"] = np.ascontiguousarray(self.counts_[n], dtype=np.uint32)
+        params = {k: (list(v) if isinstance(v, (tuple, np.ndarray)) else v) for k, v in self.get_params().items()}
+        if isinstance(params.get("depths"), list):
+            params["depths"] = [int(d) for d in params["depths"]]
+        header = {
+            "alphabet": self.alphabet_.to_dict(),
+            "params": params,
+            "ladder": list(self.ladder_),
+            "depths": list(self.depths_),
+            "reverse_complement": bool(self.reverse_complement_),
+            "training": {
+                "symbols": self.n_symbols_,
+                "segments": self.n_segments_,
+                "pruned_cells": self.pruned_cells_,
+                "max_cells": self.max_cells_,
+            },
+            "baseline": {
+                "max_order": self.baseline_max_order_,
+                "order": self.baseline_order_,
+                "bits_per_symbol_by_order": {str(k): v for k, v in self.baseline_bits_.items()},
+            },
+            # how the training data were read (numeric cut points, column), so new data are read the same way
+            "reader": {k: (list(v) if isinstance(v, tuple) else v) for k, v in self.reader_.items()},
+        }
+        return ModelState(header=header, arrays=arrays)
+
+    @classmethod
+    def from_state(cls, state: ModelState) -> "CellPredictor":
+        """Rebuild a fitted model from a state written by :meth:`to_state` (as read by :func:`~fractalseq.predict._modelfile.read_state`)."""
+        where = state.origin or "The model state"
+        header = state.header
+        try:
+            alphabet = Alphabet.from_dict(header["alphabet"])
+            depths = [int(n) for n in header["depths"]]
+            ladder = tuple(int(n) for n in header["ladder"])
+            params = dict(header["params"])
+            training = header["training"]
+            K_b = int(header["baseline"]["max_order"])
+            reverse = bool(header["reverse_complement"])
+            n_symbols, n_segments = int(training["symbols"]), int(training["segments"])
+            pruned = int(training.get("pruned_cells", 0))
+        except (KeyError, TypeError, ValueError, InputError):
+            raise ModelFileError(f"{where} has an incomplete model header; learn the model again.") from None
+        reader = header.get("reader", {})
+        if not isinstance(reader, dict):
+            raise ModelFileError(f"{where} has a damaged reader section in its header; learn the model again.")
+        tables = state.tables(depths, alphabet.size)
+        known = set(cls().get_params())
+        model = cls(**{k: v for k, v in params.items() if k in known})
+        try:
+            model._install(alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, 0)
+        except (KeyError, TypeError, ValueError) as exc:
+            raise ModelFileError(f"{where} does not describe a consistent model ({exc}); learn the model again.") from None
+        model.pruned_cells_ = pruned
+        model.reader_ = dict(reader)
+        return model
+
+    def save(self, path, force: bool = False):
+        """Write the fitted model (see :mod:`fractalseq.predict._modelfile`); refuses to overwrite without ``force``."""
+        return write_state(self.to_state(), path, force=force)
 
     @classmethod
     def load(cls, path) -> "CellPredictor":
-        """Read a model written by :meth:`save` (never uses pickle)."""
-        from fractalseq.predict import _modelfile as modelfile
+        """Read a model written by :meth:`save` (checksums verified, never uses pickle)."""
+        return cls.from_state(read_state(path))
 
-        return modelfile.load_model(path)
+
+def save_model(model: CellPredictor, path, force: bool = False):
+    """Write a fitted :class:`CellPredictor` to ``path`` (see :meth:`CellPredictor.save`)."""
+    return model.save(path, force=force)
+
+
+def load_model(path) -> CellPredictor:
+    """Read a model file written by :func:`save_model` (see :meth:`CellPredictor.load`)."""
+    return CellPredictor.load(path)
 
 
 def _fit_blend(depths, cells, counts, alphabet: Alphabet, alpha: float, discount) -> tuple[dict, dict]:
