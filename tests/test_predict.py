@@ -15,7 +15,7 @@ import pytest
 from scipy.special import gammaln
 
 from fractalseq import alphabet as al
-from fractalseq.predict import _kernels as K
+from fractalseq.predict import _kernel_tools as K
 from fractalseq.errors import InputError, ModelFileError, ParameterError
 from fractalseq.predict._predictor import CellPredictor, OnlineCoder, evaluate_online, online_code_length
 from fractalseq.predict._baselines import compressor_bits, kt_bits, packed_bytes
@@ -172,9 +172,7 @@ def test_packed_and_dense_rows_give_identical_results():
         c = OnlineCoder(al.dna(), depths=(2, 5, 9, 14), max_cells=4096)
         if not packed:  # switch the same configuration to dense rows
             c.packed = False
-            c.counts = np.zeros((c.rows, 4), np.uint16)
-            c.tags = np.zeros(c.rows, np.uint16)
-            c.totals = np.zeros(c.rows, np.uint32)
+            c.rows = c.dense_rows()
         c.feed(arr.codes, arr.starts)
         coders.append(c)
     a, b = coders

@@ -43,7 +43,9 @@ from typing import Iterable, Iterator, Sequence
 
 import numpy as np
 
-from fractalseq.predict import _kernels as K
+from fractalseq.predict import _fitted_kernels as FK
+from fractalseq.predict import _kernel_tools as K
+from fractalseq.predict._online_kernel import online_chunk
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ModelFileError, ParameterError
 from fractalseq.predict._modelfile import ModelState, read_state, write_state
@@ -457,8 +459,8 @@ class OnlineCoder:
         for d, dr in zip(ds, direct):
             rbits.append(b * d if dr else hb)
         rows = np.array([1 << r for r in rbits], dtype=np.int64)
-        self.rows = int(rows.sum())
-        self.table_bytes = self.rows * row_bytes
+        self.n_rows = int(rows.sum())
+        self.table_bytes = self.n_rows * row_bytes
         self.cfg = {
             "A": A,
             "b": b,
@@ -482,12 +484,7 @@ class OnlineCoder:
             "learning_rate": self.lr,
             "reverse_complement": self.reverse,
         }
-        if self.packed:
-            self.table = _aligned_zeros(self.rows, np.uint64)
-        else:
-            self.counts = _aligned_zeros(self.rows * A, np.uint16).reshape(self.rows, A)
-            self.tags = np.zeros(self.rows, dtype=np.uint16)
-            self.totals = np.zeros(self.rows, dtype=np.uint32)
+        self.rows = self.dense_rows() if not self.packed else (_aligned_zeros(self.n_rows, np.uint64),)
         self.weights = np.full((M + 1, M), min(1.0, 2.0 / M), dtype=np.float64)
         self.hist = np.zeros(2, dtype=np.uint64)
         self.seg = np.zeros(1, dtype=np.int64)
@@ -502,25 +499,22 @@ class OnlineCoder:
         starts = np.ascontiguousarray(starts, dtype=np.int64)
         sur = np.empty(codes.size if surprisal else 0, dtype=np.float32)
         c = self.cfg
-        if self.packed:
-            K.online_packed(
-                codes, starts, c["A"], c["b"], c["depth"], c["direct"], c["rbits"], c["offset"], self.limit,
-                c["ir_on"], c["masks"], c["comp"], self.logt, self.lr, self.table, self.weights, self.hist, self.seg,
-                self.stats, self.calib, sur,
-            )
-        else:
-            K.online_dense(
-                codes, starts, c["A"], c["b"], c["depth"], c["direct"], c["rbits"], c["offset"], self.limit,
-                self.alpha, c["ir_on"], c["masks"], c["comp"], self.logt, self.lr, self.counts, self.counts.reshape(-1), self.tags,
-                self.totals, self.weights, self.hist, self.seg, self.stats, self.calib, sur,
-            )
+        online_chunk(
+            codes, starts, c["A"], c["b"], c["depth"], c["direct"], c["rbits"], c["offset"], self.limit, self.alpha,
+            c["ir_on"], c["masks"], c["comp"], self.logt, self.lr, self.rows, self.weights, self.hist, self.seg,
+            self.stats, self.calib, sur,
+        )
         return sur if surprisal else None
+
+    def dense_rows(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Empty dense row store ``(counts, flat counts, tags, totals)`` of this coder's size (any alphabet)."""
+        A = self.alphabet.size
+        flat = _aligned_zeros(self.n_rows * A, np.uint16)
+        return flat.reshape(self.n_rows, A), flat, np.zeros(self.n_rows, np.uint16), np.zeros(self.n_rows, np.uint32)
 
     def cells_stored(self) -> int:
         """Rows holding a cell now."""
-        if self.packed:
-            return int(np.count_nonzero(self.table))
-        return int(np.count_nonzero(self.totals))
+        return int(np.count_nonzero(self.rows[0] if self.packed else self.rows[3]))
 
     @property
     def length(self) -> int:
@@ -569,12 +563,12 @@ def _cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, 
         words, counts = wc.words(n + 1)
         words = np.ascontiguousarray(words, dtype=np.uint64)
         counts = np.ascontiguousarray(counts, dtype=np.int64)
-        cells, cc = K.group_cells(words, counts, a.bits, a.size)
+        cells, cc = FK.group_cells(words, counts, a.bits, a.size)
         if reverse:
-            rw = K.revcomp_addresses(words, n + 1, a.bits)
+            rw = FK.revcomp_addresses(words, n + 1, a.bits)
             order = np.argsort(rw, kind="stable")
-            rcells, rcc = K.group_cells(rw[order], counts[order], a.bits, a.size)
-            cells, merged = K.merge_cells(cells, cc, rcells, rcc)
+            rcells, rcc = FK.group_cells(rw[order], counts[order], a.bits, a.size)
+            cells, merged = FK.merge_cells(cells, cc, rcells, rcc)
             cc = _to_u32(merged)
         out[n] = (cells, cc)
     return out
@@ -897,7 +891,7 @@ class CellPredictor:
         self._masks = np.array([(1 << (a.bits * n)) - 1 for n in ds], dtype=np.uint64)
         size = 1 << max(4, int(math.ceil(math.log2(max(2 * self._addr.size, 2)))))
         self._index = np.zeros(size, dtype=np.int64)
-        K.build_index(self._addr, self._dstart, self._depth_arr, self._index)
+        FK.build_index(self._addr, self._dstart, self._depth_arr, self._index)
 
     @property
     def n_cells_(self) -> int:
@@ -919,7 +913,7 @@ class CellPredictor:
             raise ModelFileError("Cannot merge models with different cell depths or strand settings; learn both alike.")
         tables = {}
         for n in self.depths_:
-            addr, cnt = K.merge_cells(self.cells_[n], self.counts_[n], other.cells_[n], other.counts_[n])
+            addr, cnt = FK.merge_cells(self.cells_[n], self.counts_[n], other.cells_[n], other.counts_[n])
             tables[n] = (addr, _to_u32(cnt))
         out = CellPredictor(**self.get_params())
         out._install(
@@ -974,7 +968,7 @@ class CellPredictor:
         m = offsets.size - 1
         out = np.zeros((m, self.alphabet_.size), dtype=np.float64)
         deepest = np.zeros(m, dtype=np.int64)
-        K.fitted_proba(
+        FK.fitted_proba(
             flat, offsets, self.alphabet_.size, self.alphabet_.bits, self._depth_arr, self._masks, self._dstart,
             self._addr, self._counts, self._index, self._beta, self._disc, out, deepest,
         )
@@ -1056,7 +1050,7 @@ class CellPredictor:
             codes = np.ascontiguousarray(chunk.codes)
             st = np.ascontiguousarray(chunk.starts, dtype=np.int64)
             sur = np.empty(codes.size if tally is not None else 0, dtype=np.float32)
-            K.fitted_score(
+            FK.fitted_score(
                 codes, st, a.size, a.bits, self._depth_arr, self._masks, self._dstart, self._addr, self._counts,
                 self._index, self._beta, self._disc, hist, seg, stats, calib, sur,
             )
@@ -1275,7 +1269,7 @@ def _prune(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
             if gone > total - cap:
                 # the last class is cut in hash order (deterministic, no bias toward any address)
                 rare = np.flatnonzero(~keep)
-                order = np.argsort(K.hash_cells(cells[rare], n), kind="stable")
+                order = np.argsort(FK.hash_cells(cells[rare], n), kind="stable")
                 keep[rare[order[: gone - (total - cap)]]] = True
                 gone = total - cap
             if gone:
