@@ -269,7 +269,7 @@ def test_fitted_model_scores_a_markov_source_near_its_entropy_rate():
     train = from_codes(al.binary(), markov_chain(P, 1, 200_000, seed=20))
     test = from_codes(al.binary(), markov_chain(P, 1, 100_000, seed=21))
     m = CellPredictor(depths=(1, 2, 4)).fit(train)
-    assert abs(m.score(test) - 0.5693865938) < 0.01  # Cover & Thomas §4.2 (B2)
+    assert abs(m.bits_per_symbol(test) - 0.5693865938) < 0.01  # Cover & Thomas §4.2 (B2)
     assert m.baseline_order_ == 1
     e = m.evaluate(test)
     assert abs(e.baselines["markov"]["bits_per_symbol"] - 0.5693865938) < 0.01
@@ -288,7 +288,8 @@ def test_predict_proba_rows_are_distributions_and_match_score():
     assert np.all(p > 0)
     assert np.allclose(p.sum(axis=1), 1.0, atol=1e-12)
     bits = -np.log2(p[np.arange(300), test]).mean()
-    assert m.score(from_codes(a, test)) == pytest.approx(bits, rel=1e-12)
+    assert m.bits_per_symbol(from_codes(a, test)) == pytest.approx(bits, rel=1e-12)
+    assert m.score(from_codes(a, test)) == -m.bits_per_symbol(from_codes(a, test))  # higher is better
     assert m.predict_proba(["abcab"]).shape == (1, 3)
     with pytest.raises(InputError):
         m.predict_proba(["abz"])
@@ -319,6 +320,18 @@ def test_scikit_learn_contract():
     learned = [k for k in vars(m) if k.endswith("_") and not k.startswith("_")]
     assert {"alphabet_", "depths_", "cells_", "counts_", "n_symbols_", "baseline_order_"} <= set(learned)
     assert m.predict_proba(["ACG"]).argmax() == 3
+    # parameters are introspected from __init__ (scikit-learn's BaseEstimator does the same)
+    import inspect
+
+    assert list(m.get_params()) == [p for p in inspect.signature(CellPredictor.__init__).parameters if p != "self"]
+    # every fit starts from scratch: refitting on other data equals a fresh fit, nothing of the first survives
+    m.fit(from_codes(al.binary(), np.tile([0, 1, 1], 300)), reader={"column": "v"})
+    fresh = CellPredictor(**m.get_params()).fit(from_codes(al.binary(), np.tile([0, 1, 1], 300)), reader={"column": "v"})
+    assert sorted(vars(m)) == sorted(vars(fresh))
+    assert m.depths_ == fresh.depths_ and m.alphabet_.size == 2 and m.reader_ == {"column": "v"}
+    assert all(np.array_equal(m.counts_[n], fresh.counts_[n]) for n in m.depths_)
+    m.fit(from_codes(al.binary(), np.tile([0, 1, 1], 300)))
+    assert m.reader_ == {}
 
 
 def test_fitted_reverse_complement_counts_both_strands():
@@ -353,7 +366,8 @@ def test_model_file_round_trip_and_rejections(tmp_path):
     m.save(path)
     back = CellPredictor.load(path)
     assert back.get_params() == m.get_params()
-    assert back.score(arr) == m.score(arr)
+    assert back.reader_ == m.reader_ == {}
+    assert back.bits_per_symbol(arr) == m.bits_per_symbol(arr)
     with np.load(path, allow_pickle=False) as z:
         assert all(z[k].dtype != object for k in z.files)
     from fractalseq.errors import OutputError
@@ -389,4 +403,4 @@ def test_model_file_round_trip_and_rejections(tmp_path):
         CellPredictor.load(tmp_path / "missing.npz")
     # a model applied to data over another alphabet
     with pytest.raises(ModelFileError, match="alphabet"):
-        back.score(from_codes(al.protein(), np.zeros(10, np.uint8)))
+        back.bits_per_symbol(from_codes(al.protein(), np.zeros(10, np.uint8)))

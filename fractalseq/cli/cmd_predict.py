@@ -171,8 +171,7 @@ def learn(
         )
     if wc.length == 0:
         raise InputError("The training inputs hold no usable symbols; check the files and the --alphabet/--format options.")
-    model.fit_counts(wc)
-    model.reader_ = {k: (list(v) if isinstance(v, tuple) else v) for k, v in reader.items()}
+    model.fit_counts(wc, reader=reader)
     model.save(out, force=force)
     rows = [
         {"depth": n, "cells": int(model.cells_[n].size), "observations": int(model.counts_[n].sum(dtype=np.int64))}

@@ -37,6 +37,7 @@ Genomic output is for research, not for clinical decisions.
 
 from __future__ import annotations
 
+import inspect
 import math
 from dataclasses import dataclass, field, replace
 from typing import Iterable, Iterator, Sequence
@@ -76,6 +77,8 @@ _DISCOUNTS = (0.0, 0.25, 0.5, 0.75)
 _GRID_CELLS = 100_000
 #: Online mode: shallower cells are estimated well from one strand and get no reverse-complement updates.
 IR_MIN_DEPTH = 5
+#: Private arrays of a fitted model's cell index (rebuilt by every fit).
+_INDEX_ATTRS = ("_dstart", "_addr", "_counts", "_depth_arr", "_beta", "_disc", "_masks", "_index")
 #: Default window (symbols) of the per-window report.
 DEFAULT_WINDOW = 10_000
 
@@ -737,6 +740,8 @@ class CellPredictor:
         Training bits per symbol of every candidate order.
     concentration_, discount_ : dict of int to float
         Blend parameters of every depth (leave-one-out choice).
+    reader_ : dict
+        How the training data were read (the ``reader`` argument of :meth:`fit`), e.g. numeric cut points.
 
     Examples
     --------
@@ -768,23 +773,22 @@ class CellPredictor:
         self.reverse_complement = reverse_complement
 
     # -------------------------------------------------------- sklearn API
+    @classmethod
+    def _param_names(cls) -> tuple[str, ...]:
+        """Names of the constructor's parameters, read from its signature."""
+        sig = inspect.signature(cls.__init__)
+        return tuple(n for n, p in sig.parameters.items() if n != "self" and p.kind == p.POSITIONAL_OR_KEYWORD)
+
     def get_params(self, deep: bool = True) -> dict:
-        """Constructor parameters."""
-        return {
-            "depths": self.depths,
-            "max_depth": self.max_depth,
-            "smoothing": self.smoothing,
-            "discount": self.discount,
-            "max_cells": self.max_cells,
-            "learning_rate": self.learning_rate,
-            "reverse_complement": self.reverse_complement,
-        }
+        """Constructor parameters (introspected from ``__init__``, as scikit-learn does)."""
+        return {name: getattr(self, name) for name in self._param_names()}
 
     def set_params(self, **params) -> "CellPredictor":
-        """Set constructor parameters (unknown names raise :class:`ParameterError`)."""
+        """Set constructor parameters (unknown names raise :class:`ParameterError`); learned state is untouched until the next fit."""
+        names = self._param_names()
         for k, v in params.items():
-            if k not in self.get_params():
-                raise ParameterError(f"CellPredictor has no parameter {k!r}; use one of {', '.join(self.get_params())}.")
+            if k not in names:
+                raise ParameterError(f"CellPredictor has no parameter {k!r}; use one of {', '.join(names)}.", parameter=k)
             setattr(self, k, v)
         return self
 
@@ -793,14 +797,12 @@ class CellPredictor:
         return f"CellPredictor({args})"
 
     def _online_params(self) -> dict:
-        return {
-            "depths": self.depths,
-            "max_depth": self.max_depth,
-            "smoothing": self.smoothing,
-            "max_cells": self.max_cells,
-            "learning_rate": self.learning_rate,
-            "reverse_complement": self.reverse_complement,
-        }
+        return {k: v for k, v in self.get_params().items() if k != "discount"}
+
+    def _reset(self) -> None:
+        """Forget everything learned (attributes ending in ``_`` and the private index arrays)."""
+        for name in [k for k in vars(self) if k.endswith("_") or k in _INDEX_ATTRS]:
+            delattr(self, name)
 
     def _validate(self, alphabet: Alphabet) -> tuple[tuple[int, ...], bool]:
         s = self.smoothing
@@ -818,10 +820,23 @@ class CellPredictor:
         return ladder, reverse
 
     # ---------------------------------------------------------------- fit
-    def fit(self, source: Source) -> "CellPredictor":
-        """Count the cells of a training stream (read chunk by chunk); returns ``self``."""
+    def fit(self, source: Source, reader: dict | None = None) -> "CellPredictor":
+        """Count the cells of a training stream (read chunk by chunk); returns ``self``.
+
+        Parameters
+        ----------
+        source:
+            The training data.
+        reader:
+            How the training data were read (numeric cut points, column, ...; the keyword
+            options of :func:`fractalseq.sources.open_source`), kept as ``reader_`` and in the
+            model file so that new data can be read the same way.  Default: nothing special.
+
+        Every fit starts from scratch: all learned state of a previous fit is forgotten.
+        """
         from fractalseq.words._counts import count_words
 
+        self._reset()
         src = _as_source(source)
         ladder, _ = self._validate(src.alphabet)
         K_b = baseline_orders(src.alphabet)
@@ -829,10 +844,16 @@ class CellPredictor:
         wc = count_words(src, depth)
         if wc.length == 0:
             raise InputError(f"{getattr(src, 'name', 'The input')} holds no symbols to learn from; check the input.")
-        return self.fit_counts(wc)
+        return self.fit_counts(wc, reader=reader)
 
-    def fit_counts(self, counts) -> "CellPredictor":
-        """Fit from :class:`~fractalseq.words._counts.WordCounts` (deep enough for every depth), e.g. one piece of a large input."""
+    def fit_counts(self, counts, reader: dict | None = None) -> "CellPredictor":
+        """Fit from :class:`~fractalseq.words._counts.WordCounts` (deep enough for every depth), e.g. one piece of a large input.
+
+        ``reader`` is as in :meth:`fit`.  All learned state of a previous fit is forgotten first.
+        """
+        self._reset()
+        if reader is not None and not isinstance(reader, dict):
+            raise ParameterError(f"reader must be a dictionary of reader options, not {type(reader).__name__}.", parameter="reader")
         alphabet = counts.alphabet
         if counts.length == 0:
             raise InputError("The word counts hold no symbols to learn from; check the input.")
@@ -845,11 +866,12 @@ class CellPredictor:
             )
         tables = _cell_tables(counts, fit_depths, reverse)
         tables = {n: (c, _to_u32(cc)) for n, (c, cc) in tables.items()}
-        self._install(alphabet, ladder, reverse, K_b, tables, int(counts.length), int(counts.segments), 0)
+        self._install(alphabet, ladder, reverse, K_b, tables, int(counts.length), int(counts.segments), 0, reader)
         return self
 
-    def _install(self, alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, pruned) -> None:
-        self.reader_: dict = getattr(self, "reader_", {})  # reader options of the training data (set by the CLI)
+    def _install(self, alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, pruned, reader=None) -> None:
+        # reader options of the training data, JSON-ready (tuples as lists) as the model file keeps them
+        self.reader_: dict = {k: (list(v) if isinstance(v, tuple) else v) for k, v in (reader or {}).items()}
         self.alphabet_ = alphabet
         self.ladder_ = tuple(ladder)
         self.reverse_complement_ = bool(reverse)
@@ -911,6 +933,8 @@ class CellPredictor:
             )
         if self.depths_ != other.depths_ or self.reverse_complement_ != other.reverse_complement_:
             raise ModelFileError("Cannot merge models with different cell depths or strand settings; learn both alike.")
+        if self.reader_ != other.reader_:
+            raise ModelFileError("Cannot merge models whose training data were read differently (numeric cut points, column); learn both alike.")
         tables = {}
         for n in self.depths_:
             addr, cnt = FK.merge_cells(self.cells_[n], self.counts_[n], other.cells_[n], other.counts_[n])
@@ -919,7 +943,7 @@ class CellPredictor:
         out._install(
             self.alphabet_, self.ladder_, self.reverse_complement_, self.baseline_max_order_, tables,
             self.n_symbols_ + other.n_symbols_, self.n_segments_ + other.n_segments_,
-            self.pruned_cells_ + other.pruned_cells_,
+            self.pruned_cells_ + other.pruned_cells_, self.reader_,
         )
         return out
 
@@ -1020,7 +1044,14 @@ class CellPredictor:
         return f"read it with --alphabet {name if name != 'learned' else 'symbols:...'} or learn a model on this kind of data."
 
     def score(self, source: Source) -> float:
-        """Bits per symbol of held-out data under the fitted model (lower is better)."""
+        """Mean log2-likelihood per symbol of held-out data under the fitted model (higher is better; scikit-learn's convention).
+
+        It is ``-bits_per_symbol(source)``; :meth:`evaluate` gives the full report.
+        """
+        return -self.bits_per_symbol(source)
+
+    def bits_per_symbol(self, source: Source) -> float:
+        """Code length of held-out data under the fitted model, in bits per symbol (lower is better)."""
         return self.evaluate(source, baselines=False, window=None).bits_per_symbol
 
     def evaluate(
@@ -1131,7 +1162,7 @@ class CellPredictor:
                 "bits_per_symbol_by_order": {str(k): v for k, v in self.baseline_bits_.items()},
             },
             # how the training data were read (numeric cut points, column), so new data are read the same way
-            "reader": {k: (list(v) if isinstance(v, tuple) else v) for k, v in self.reader_.items()},
+            "reader": dict(self.reader_),
         }
         return ModelState(header=header, arrays=arrays)
 
@@ -1159,11 +1190,10 @@ class CellPredictor:
         known = set(cls().get_params())
         model = cls(**{k: v for k, v in params.items() if k in known})
         try:
-            model._install(alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, 0)
+            model._install(alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, 0, reader)
         except (KeyError, TypeError, ValueError) as exc:
             raise ModelFileError(f"{where} does not describe a consistent model ({exc}); learn the model again.") from None
-        model.pruned_cells_ = pruned
-        model.reader_ = dict(reader)
+        model.pruned_cells_ = pruned  # cells pruned when the model was learned (the file keeps the rest)
         return model
 
     def save(self, path, force: bool = False):
