@@ -10,10 +10,10 @@ fractalseq is for research, not for clinical decisions.
 
 What it shows (Python API):
 
-* :class:`fractalseq.predict._predictor.CellPredictor` — ``fit`` on a training stream,
+* :class:`fractalseq.predict.CellPredictor` — ``fit`` on a training stream,
   ``predict_proba`` for contexts, ``bits_per_symbol`` on held-out data (``score`` is its negative, higher is better),
   ``save``/``load`` of the model file (no pickle);
-* :func:`fractalseq.predict._predictor.online_code_length` — predict-then-update code length
+* :func:`fractalseq.predict.online_code_length` — predict-then-update code length
   of a stream with no training data: an upper bound on its information content.
 
 Run::
@@ -30,7 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from fractalseq.datasets import _scenario as scenario
-from fractalseq.predict._predictor import CellPredictor, online_code_length
+from fractalseq.predict import CellPredictor, online_code_length
 from fractalseq.sources import open_source
 
 from _scenario_setup import make_scenario, run_example  # shared options, output folder and scenario of the examples
@@ -70,7 +70,7 @@ def run(folder: Path, args: argparse.Namespace) -> None:
           f"{model.bits_per_symbol(other):.3f}")
     online = online_code_length(train, reverse_complement=False)
     print(f"  online predict-then-update on kelp-chain (upper bound): {online.bits_per_symbol:.3f}, "
-          f"top-1 accuracy {online.top1:.3f}")
+          f"top-1 accuracy {online.top1_accuracy:.3f}")
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -17,7 +17,8 @@ from scipy.special import gammaln
 from fractalseq import alphabet as al
 from fractalseq.predict import _kernel_tools as K
 from fractalseq.errors import InputError, ModelFileError, ParameterError
-from fractalseq.predict._predictor import CellPredictor, OnlineCoder, evaluate_online, online_code_length
+from fractalseq.predict._online import OnlineCoder, evaluate_online, online_code_length
+from fractalseq.predict._predictor import CellPredictor
 from fractalseq.predict._baselines import compressor_bits, kt_bits, packed_bytes
 from fractalseq.stream import from_codes
 
@@ -120,10 +121,10 @@ def test_online_converges_to_iid_shannon_entropy():
     x = rng.choice(4, size=10**6, p=[0.5, 0.25, 0.125, 0.125]).astype(np.uint8)
     r = online_code_length(from_codes(al.from_symbols("wxyz"), x))
     assert abs(r.bits_per_symbol - 1.75) < 0.01
-    assert r.calibration_error < 0.03
+    assert r.expected_calibration_error < 0.03
     # order-0 KT alone is calibrated on an i.i.d. source
     kt = online_code_length(from_codes(al.from_symbols("wxyz"), x[:100_000]), depths=(0,), learning_rate=0.0)
-    assert kt.calibration_error < 0.005
+    assert kt.expected_calibration_error < 0.005
 
 
 def test_top1_accuracy_matches_bayes_optimal_rate():
@@ -131,8 +132,8 @@ def test_top1_accuracy_matches_bayes_optimal_rate():
     P = np.array([[0.9, 0.1], [0.4, 0.6]])
     x = markov_chain(P, 1, 10**5, seed=8)
     r = online_code_length(from_codes(al.binary(), x), depths=(1,))
-    assert abs(r.top1 - 0.84) < 0.01
-    assert r.top3 == 1.0
+    assert abs(r.top1_accuracy - 0.84) < 0.01
+    assert r.top3_accuracy == 1.0
 
 
 # ------------------------------------------------------------- mechanics
@@ -215,10 +216,10 @@ def test_memory_cap_is_respected_and_reported():
     rng = np.random.default_rng(10)
     arr = from_codes(al.dna(), rng.integers(0, 4, 50000).astype(np.uint8))
     r = online_code_length(arr, max_cells=1 << 12)
-    assert r.cells_cap == 1 << 12
-    assert r.cells_stored <= 1 << 12
-    assert r.evictions > 0
-    assert r.table_bytes <= 8 * (1 << 12)
+    assert r.memory.cells_cap == 1 << 12
+    assert r.memory.cells_stored <= 1 << 12
+    assert r.memory.evictions > 0
+    assert r.memory.table_bytes <= 8 * (1 << 12)
     with pytest.raises(ParameterError):
         online_code_length(arr, max_cells=10)
 
@@ -259,8 +260,8 @@ def test_lambda_phage_beats_standard_library_compressors_and_fixed_order_markov(
     assert r.baselines["compressors"]["bz2_packed"] == pytest.approx(8.0 * len(bz2.compress(packed, 9)) / len(arr))
     assert r.bits_per_symbol < r.baselines["markov"]["bits_per_symbol"]
     assert 1.85 < r.bits_per_symbol < 2.0  # a small phage genome is close to incompressible
-    assert r.records and r.records[0]["length"] == 48502
-    assert r.records[0]["total_bits"] == pytest.approx(r.total_bits, rel=1e-6)
+    assert r.records and r.records[0].length == 48502
+    assert r.records[0].total_bits == pytest.approx(r.total_bits, rel=1e-6)
 
 
 # ---------------------------------------------------------------- fitted mode
@@ -273,7 +274,7 @@ def test_fitted_model_scores_a_markov_source_near_its_entropy_rate():
     assert m.baseline_order_ == 1
     e = m.evaluate(test)
     assert abs(e.baselines["markov"]["bits_per_symbol"] - 0.5693865938) < 0.01
-    assert abs(e.top1 - 0.84) < 0.01  # REFERENCE-CHECKS F3
+    assert abs(e.top1_accuracy - 0.84) < 0.01  # REFERENCE-CHECKS F3
 
 
 def test_predict_proba_rows_are_distributions_and_match_score():
@@ -297,12 +298,12 @@ def test_predict_proba_rows_are_distributions_and_match_score():
     e = m.evaluate(from_codes(a, test), baselines=False)
     conf = p.max(axis=1)
     hit = p.argmax(axis=1) == test
-    assert e.top1 == pytest.approx(hit.mean())
+    assert e.top1_accuracy == pytest.approx(hit.mean())
     bins = np.minimum((conf * 10).astype(int), 9)
     ece = sum(abs(hit[bins == k].sum() - conf[bins == k].sum()) for k in range(10)) / len(test)
-    assert e.calibration_error == pytest.approx(ece, rel=1e-9)
+    assert e.expected_calibration_error == pytest.approx(ece, rel=1e-9)
     rank = (p > p[np.arange(300), test][:, None]).sum(axis=1)
-    assert e.top3 == pytest.approx((rank < 3).mean())
+    assert e.top3_accuracy == pytest.approx((rank < 3).mean())
 
 
 def test_scikit_learn_contract():

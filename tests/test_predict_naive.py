@@ -23,7 +23,8 @@ from fractalseq import alphabet as al
 from fractalseq.predict._kernel_tools import (
     BUCKET, CALIB_BINS, LR_BOOST, LR_SCALE, MAX_LOGIT_GAP, ST_BRIER, ST_EVICT, ST_INSERT, ST_NATS, ST_TOP1, ST_TOP3,
 )
-from fractalseq.predict._predictor import CellPredictor, OnlineCoder
+from fractalseq.predict._online import OnlineCoder
+from fractalseq.predict._predictor import CellPredictor
 from fractalseq.stream import from_codes
 
 M64 = (1 << 64) - 1

@@ -64,6 +64,13 @@ OPTION_OF: dict[str, str] = {
     "step": "--step",
     "level": "--level",
     "block_length": "--block",
+    "model": "--model",
+    "depths": "--depths",
+    "smoothing": "--smoothing",
+    "discount": "--discount",
+    "max_cells": "--max-cells",
+    "learning_rate": "--learning-rate",
+    "reverse_complement": "--strands",
 }
 
 

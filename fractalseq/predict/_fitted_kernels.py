@@ -12,7 +12,19 @@ import numpy as np
 from numba import njit
 
 from fractalseq.errors import ParameterError
-from fractalseq.predict._kernel_tools import CALIB_BINS, ST_BRIER, ST_COUNT, ST_NATS, ST_SIZE, ST_TOP1, ST_TOP3, _borrow, _cell_hash, _score_symbol
+from fractalseq.predict._kernel_tools import (
+    CALIB_BINS,
+    ST_BRIER,
+    ST_COUNT,
+    ST_NATS,
+    ST_SIZE,
+    ST_TOP1,
+    ST_TOP3,
+    _borrow,
+    _cell_hash,
+    _score_symbol,
+)
+
 
 # ------------------------------------------------------------ fitted model
 @njit(cache=True)
