@@ -226,11 +226,17 @@ def test_memory_cap_is_respected_and_reported():
 
 def test_bad_parameters_are_one_sentence_errors():
     arr = from_codes(al.dna(), np.zeros(100, np.uint8))
-    for kw in (dict(depths=(40,)), dict(smoothing=-1.0), dict(learning_rate=2.0), dict(depths=())):
+    for kw in (dict(depths=(40,)), dict(smoothing=-1.0), dict(learning_rate=2.0), dict(depths=()), dict(max_cells=10)):
         with pytest.raises(ParameterError) as e:
             online_code_length(arr, **kw)
         msg = str(e.value)
         assert re.search(r"[.!?] [A-Z]", msg) is None and msg.endswith(".") and "\n" not in msg
+        # the library names the parameter (the command line maps it to its option), never an option
+        assert e.value.parameter == next(iter(kw)) and "--" not in msg
+    for kw in (dict(discount=1.5), dict(smoothing=0), dict(max_cells=0), dict(reverse_complement="sideways")):
+        with pytest.raises(ParameterError) as e:
+            CellPredictor(**kw).fit(arr)
+        assert e.value.parameter == next(iter(kw)) and "--" not in str(e.value)
 
 
 # ---------------------------------------------------------- real genome

@@ -104,7 +104,8 @@ def prune_cells(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
     keep_fixed = sum(tables[n][0].size for n in tables if n <= K_b)
     if keep_fixed > cap:
         raise ParameterError(
-            f"The cells up to depth {K_b} alone number {keep_fixed}; raise max_cells to at least {keep_fixed}."
+            f"The cells up to depth {K_b} alone number {keep_fixed}; raise max_cells to at least {keep_fixed}.",
+            parameter="max_cells",
         )
     deep = sorted((n for n in tables if n > K_b), reverse=True)
     tables = dict(tables)

@@ -82,13 +82,13 @@ class OnlineCoder:
         self.alphabet = alphabet
         A, b = alphabet.size, alphabet.bits
         if not (isinstance(smoothing, (int, float)) and smoothing > 0 and math.isfinite(smoothing)):
-            raise ParameterError(f"The smoothing must be a positive number (e.g. 0.5), not {smoothing!r}.")
+            raise ParameterError(f"The smoothing must be a positive number (e.g. 0.5), not {smoothing!r}.", parameter="smoothing")
         if not (isinstance(learning_rate, (int, float)) and 0 <= learning_rate < 1):
-            raise ParameterError(f"The learning rate must lie in [0, 1), not {learning_rate!r}.")
+            raise ParameterError(f"The learning rate must lie in [0, 1), not {learning_rate!r}.", parameter="learning_rate")
         self.reverse = use_reverse(alphabet, reverse_complement)
         ds = check_depths(depths if depths is not None else default_depths(alphabet, max_depth), alphabet, self.reverse)
         if self.reverse and ds[-1] > 31:
-            raise ParameterError("Reverse-complement counting works up to depth 31; use smaller depths or turn it off.")
+            raise ParameterError("Reverse-complement counting works up to depth 31; use smaller depths or turn it off.", parameter="depths")
         self.depths = ds
         M = len(ds)
         self.packed = A <= 4
@@ -98,7 +98,7 @@ class OnlineCoder:
         else:
             cap = int(max_cells)
             if cap < M * K.BUCKET * 16:
-                raise ParameterError(f"max_cells {cap} is too small for {M} depths; allow at least {M * K.BUCKET * 16}.")
+                raise ParameterError(f"max_cells {cap} is too small for {M} depths; allow at least {M * K.BUCKET * 16}.", parameter="max_cells")
         self.cells_cap = cap
         share = cap / M
         direct = np.array([b * d <= math.floor(math.log2(share)) for d in ds])

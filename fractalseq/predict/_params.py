@@ -68,14 +68,15 @@ def check_depths(depths: Sequence[int], alphabet: Alphabet, reverse: bool) -> tu
     try:
         ds = tuple(sorted({int(d) for d in depths}))
     except (TypeError, ValueError):
-        raise ParameterError(f"Cell depths must be whole numbers, not {depths!r}.") from None
+        raise ParameterError(f"Cell depths must be whole numbers, not {depths!r}.", parameter="depths") from None
     if not ds:
-        raise ParameterError("At least one cell depth is needed; give e.g. --depths 2,4,8.")
+        raise ParameterError("At least one cell depth is needed; give e.g. depths 2, 4, 8.", parameter="depths")
     limit = alphabet.max_depth - 1
     if ds[0] < 0 or ds[-1] > limit:
         raise ParameterError(
             f"Cell depths must lie in 0..{limit} for the {alphabet.name} alphabet ({alphabet.bits} bits a symbol); "
-            f"got {ds[0]}..{ds[-1]}."
+            f"got {ds[0]}..{ds[-1]}.",
+            parameter="depths",
         )
     return ds
 
@@ -95,12 +96,13 @@ def use_reverse(alphabet: Alphabet, setting: bool | str) -> bool:
         if complement_map(alphabet) is None:
             raise ParameterError(
                 f"Reverse-complement counting needs a DNA or RNA alphabet (ACGT/ACGU), not {alphabet.name}; "
-                "turn it off."
+                "turn it off.",
+                parameter="reverse_complement",
             )
         return True
     if setting in (False, "off", "no"):
         return False
-    raise ParameterError(f"reverse_complement must be 'auto', True or False, not {setting!r}.")
+    raise ParameterError(f"reverse_complement must be 'auto', True or False, not {setting!r}.", parameter="reverse_complement")
 
 
 def depth_class(alphabet: Alphabet, depth: int) -> int:
@@ -114,7 +116,8 @@ def as_source(source) -> Source:
     if isinstance(source, (SymbolStream, SymbolArray)):
         return source
     raise ParameterError(
-        f"Expected a SymbolStream or SymbolArray (see fractalseq.sources.open_source), not {type(source).__name__}."
+        f"Expected a SymbolStream or SymbolArray (see fractalseq.sources.open_source), not {type(source).__name__}.",
+        parameter="source",
     )
 
 

@@ -8,17 +8,17 @@ in, from coarse to fine.
 
 Two modes
 ---------
-*online* (:func:`online_code_length`, :meth:`CellPredictor.score_online`)
+*online* (:func:`~fractalseq.predict._online.online_code_length`, :meth:`CellPredictor.score_online`)
     Predict, then update, over one stream.  Cells of several depths live in
     tables of bounded size (direct for shallow depths, hashed buckets with
     pruning of the rarest cell for deep ones); their estimates
     ``(c_s + alpha) / (N + A alpha)`` are mixed geometrically with weights
-    learned online (see :mod:`fractalseq.predict._kernels`).  For DNA the deep
+    learned online (see :mod:`fractalseq.predict._online_kernel`).  For DNA the deep
     cells are also updated with the reverse complement of each word, so a
     repeat read on the other strand is recognised.  The total code length is
     an upper bound on the information content of the stream (it is the length
     an arithmetic coder driven by these probabilities would need, within 2 bits).
-*fitted* (:meth:`CellPredictor.fit`, :meth:`~CellPredictor.score`, :meth:`~CellPredictor.predict_proba`)
+*fitted* (:meth:`CellPredictor.fit`, :meth:`~CellPredictor.bits_per_symbol`, :meth:`~CellPredictor.predict_proba`)
     Exact counts of the training data (mergeable: counts of two parts add up
     to the counts of the whole), blended from coarse to fine by interpolated
     absolute discounting,
@@ -31,6 +31,13 @@ Two modes
 Evaluation beside every score: log-loss in bits per symbol, top-1 and top-3
 accuracy, expected calibration error, and two baselines computed in the same
 run (:mod:`fractalseq.predict._baselines`).
+
+Where things live: parameters and their checks in :mod:`~fractalseq.predict._params`,
+the online coder in :mod:`~fractalseq.predict._online`, cell tables, pruning and the
+blend's parameters in :mod:`~fractalseq.predict._cells`, results in
+:mod:`~fractalseq.predict._results`, the model file in :mod:`~fractalseq.predict._modelfile`
+(a plain state; :meth:`CellPredictor.to_state` / :meth:`CellPredictor.from_state`), this
+module holds the estimator.
 
 Genomic output is for research, not for clinical decisions.
 """
@@ -200,12 +207,12 @@ class CellPredictor:
     def _validate(self, alphabet: Alphabet) -> tuple[tuple[int, ...], bool]:
         s = self.smoothing
         if not (isinstance(s, (int, float)) and not isinstance(s, bool) and s > 0 and math.isfinite(s)):
-            raise ParameterError(f"The smoothing must be a positive number (e.g. 0.5), not {s!r}.")
+            raise ParameterError(f"The smoothing must be a positive number (e.g. 0.5), not {s!r}.", parameter="smoothing")
         d = self.discount
         if d != "auto" and not (isinstance(d, (int, float)) and not isinstance(d, bool) and 0 <= d < 1):
-            raise ParameterError(f"The discount must be 'auto' or lie in [0, 1), not {d!r}.")
+            raise ParameterError(f"The discount must be 'auto' or lie in [0, 1), not {d!r}.", parameter="discount")
         if self.max_cells is not None and (isinstance(self.max_cells, bool) or int(self.max_cells) < 1):
-            raise ParameterError(f"max_cells must be a positive number of cells, not {self.max_cells!r}.")
+            raise ParameterError(f"max_cells must be a positive number of cells, not {self.max_cells!r}.", parameter="max_cells")
         reverse = use_reverse(alphabet, self.reverse_complement)
         ladder = check_depths(
             self.depths if self.depths is not None else default_depths(alphabet, self.max_depth), alphabet, reverse
@@ -257,7 +264,8 @@ class CellPredictor:
         fit_depths = tuple(sorted(set(range(K_b + 1)) | set(ladder)))
         if counts.depth < fit_depths[-1] + 1:
             raise ParameterError(
-                f"Word counts of depth {counts.depth} cannot feed cells of depth {fit_depths[-1]}; count to depth {fit_depths[-1] + 1}."
+                f"Word counts of depth {counts.depth} cannot feed cells of depth {fit_depths[-1]}; count to depth {fit_depths[-1] + 1}.",
+                parameter="counts",
             )
         tables = cell_tables(counts, fit_depths, reverse)
         tables = {n: (c, to_u32(cc)) for n, (c, cc) in tables.items()}
@@ -324,7 +332,7 @@ class CellPredictor:
         if not self.alphabet_.same_symbols(other.alphabet_):
             raise ModelFileError(
                 f"Cannot merge models over different alphabets ({self.alphabet_.name} vs {other.alphabet_.name}); "
-                "learn both with the same --alphabet."
+                "learn both with the same alphabet."
             )
         if self.depths_ != other.depths_ or self.reverse_complement_ != other.reverse_complement_:
             raise ModelFileError("Cannot merge models with different cell depths or strand settings; learn both alike.")
@@ -433,10 +441,10 @@ class CellPredictor:
         """How to read data the way the training data were read (for the mismatch message)."""
         name = self.alphabet_.name
         if name.startswith(("threshold", "quantile", "ordinal")):
-            return "read it with the model's numeric settings (leave out --bins/--thresholds/--ordinal) or learn a model on this kind of data."
+            return "read it with the model's own numeric settings (no bins, thresholds or ordinal patterns of its own) or learn a model on this kind of data."
         if name == "templates":
-            return "read it as a log (--format log) or learn a model on this kind of data."
-        return f"read it with --alphabet {name if name != 'learned' else 'symbols:...'} or learn a model on this kind of data."
+            return "read it as a log (format 'log') or learn a model on this kind of data."
+        return f"read it with the alphabet {name if name != 'learned' else 'symbols:...'} or learn a model on this kind of data."
 
     def score(self, source: Source) -> float:
         """Mean log2-likelihood per symbol of held-out data under the fitted model (higher is better; scikit-learn's convention).
