@@ -3,8 +3,9 @@
 The twins are written from the docstrings of :mod:`fractalseq.predict._online_kernel`,
 :mod:`fractalseq.predict._kernel_tools` and :mod:`fractalseq.predict._fitted_kernels`, one
 symbol at a time in plain Python (dictionaries, lists, ``math``), with none of the kernels'
-tricks (prefetch ring, packed rows, log tables, open-addressing index).  A shared bug in the
-packed and dense kernels, which ``packed == dense`` cannot see, shows up here.
+tricks (prefetch ring, packed rows, log tables, open-addressing index).  A bug in the one loop
+both row layouts share, which ``packed == dense`` cannot see, shows up here; both layouts are
+checked.
 
 Checks: code length in nats to 1e-9 (relative), top-1/top-3 hits, evictions and insertions
 exactly, the mixing weights to 1e-9; fitted: the cell counts exactly (word counting by hand,

@@ -3,7 +3,9 @@
 The ``--json`` output of ``score`` is a public contract (documented in the
 README): a top-level ``bits_per_symbol`` (all sources together) and a
 ``sources`` list whose items carry at least ``name``, ``length`` and
-``bits_per_symbol``.
+``bits_per_symbol``.  The documents and every decision behind them (template union,
+training cut points kept in the model, unseen templates) come from
+:mod:`fractalseq.jobs._learn_score`; this module parses options and formats.
 """
 
 from __future__ import annotations

@@ -62,10 +62,18 @@ class OnlineCoder:
     alphabet:
         Alphabet of the stream.
     depths, max_depth, smoothing, max_cells, learning_rate, reverse_complement:
-        See :class:`CellPredictor`.
+        See :class:`~fractalseq.predict._predictor.CellPredictor`.
     length_hint:
         Length of the stream when known: hashed tables are then sized to about four
         rows per word they can receive (never above the cap), so short inputs stay small.
+
+    Attributes
+    ----------
+    rows:
+        The row store of :func:`~fractalseq.predict._online_kernel.online_chunk`: ``(table,)`` packed
+        (``A <= 4``) or ``(counts, flat counts, tags, totals)`` dense (:meth:`dense_rows`; any alphabet).
+    n_rows, table_bytes:
+        Rows of all regions together and their memory.
     """
 
     def __init__(

@@ -424,7 +424,8 @@ def online_chunk(codes, starts, A, b, depth, direct, rbits, offset, limit, alpha
         counts, flat, tags, totals = rows
         n_rows = counts.shape[0]
         _need(counts.dtype == np.uint16 and counts.shape == (n_rows, A) and counts.flags.c_contiguous, "counts as uint16 (rows, A)", "rows")
-        _need(flat.dtype == np.uint16 and flat.size == counts.size and np.shares_memory(flat, counts), "flat counts sharing the counts' memory", "rows")
+        _need(flat.dtype == np.uint16 and flat.size == counts.size and flat.ctypes.data == counts.ctypes.data,
+              "flat counts over the counts' memory", "rows")
         _need(tags.dtype == np.uint16 and totals.dtype == np.uint32 and tags.shape == totals.shape == (n_rows,), "tags uint16 and totals uint32, one per row", "rows")
         _need(bool(np.all(limit <= DENSE_LIMIT)), f"count limits of dense rows of at most {DENSE_LIMIT}", "limit")
     _need(bool(np.all(offset + (1 << rbits) <= n_rows)), "regions (offset, 2**rbits rows) inside the table", "offset")

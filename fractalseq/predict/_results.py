@@ -148,8 +148,8 @@ class PredictionResult(Result):
     window: int = DEFAULT_WINDOW
     most_surprising_windows: tuple[SurprisingWindow, ...] = ()
     baselines: dict = field(default_factory=dict)
-    window_bits: np.ndarray | None = field(default=None, repr=False, metadata={"json": False})
-    surprisal: np.ndarray | None = field(default=None, repr=False, metadata={"json": False})
+    window_bits: np.ndarray | None = field(default=None, repr=False, compare=False, metadata={"json": False})
+    surprisal: np.ndarray | None = field(default=None, repr=False, compare=False, metadata={"json": False})
 
 
 def surprising_windows(window_bits, window: int, length: int, records, top: int) -> tuple[SurprisingWindow, ...]:
