@@ -40,7 +40,8 @@ sys.path.insert(0, str(HERE.parent))
 sys.path.insert(0, str(HERE))
 
 from fractalseq.io._outputs import write_json, write_text  # noqa: E402
-from fractalseq.predict._predictor import _cell_tables, online_code_length  # noqa: E402
+from fractalseq.predict._cells import cell_tables  # noqa: E402
+from fractalseq.predict._online import online_code_length  # noqa: E402
 from fractalseq.predict._baselines import compressor_bits, kt_bits_by_order, symbol_bytes  # noqa: E402
 from fractalseq.sources import open_source  # noqa: E402
 from fractalseq.stream import from_codes  # noqa: E402
@@ -56,7 +57,7 @@ MARKOV_ORDERS = 16
 def fixed_order_markov(arr) -> tuple[int, float, dict]:
     """Best adaptive KT Markov model of orders 0..MARKOV_ORDERS on the stream itself (closed form from counts)."""
     wc = count_words(arr, MARKOV_ORDERS + 1)
-    tables = _cell_tables(wc, range(MARKOV_ORDERS + 1))
+    tables = cell_tables(wc, range(MARKOV_ORDERS + 1))
     bits = kt_bits_by_order(tables, len(arr), arr.alphabet.size)
     per = {k: v / len(arr) for k, v in bits.items()}
     best = min(per, key=per.get)
@@ -88,9 +89,9 @@ def genome_row(name: str, path: Path, repeat: int) -> dict:
         "bases": n,
         "records": len(arr.report.records),
         "online_bits_per_base": res.bits_per_symbol,
-        "top1": res.top1,
-        "top3": res.top3,
-        "calibration_error": res.calibration_error,
+        "top1": res.top1_accuracy,
+        "top3": res.top3_accuracy,
+        "calibration_error": res.expected_calibration_error,
         "compressors_bits_per_base": comp,
         "best_compressor": min(comp, key=comp.get),
         "markov_kt_best_order": order,
@@ -107,10 +108,10 @@ def genome_row(name: str, path: Path, repeat: int) -> dict:
         "speed_ratio_vs_lzma9": lz_cpu / cpu,
         "speed_ratio_vs_lzma9_wall": lz_wall / wall,
         "depths": list(res.depths),
-        "cells_cap": res.cells_cap,
-        "cells_stored": res.cells_stored,
-        "evictions": res.evictions,
-        "table_mib": res.table_bytes / 2**20,
+        "cells_cap": res.memory.cells_cap,
+        "cells_stored": res.memory.cells_stored,
+        "evictions": res.memory.evictions,
+        "table_mib": res.memory.table_bytes / 2**20,
         "reverse_complement": res.reverse_complement,
     }
     row["checks"] = {

@@ -13,8 +13,8 @@ What it shows (Python API):
 everything through the façade ``import fractalseq as fs``:
 
 * ``fs.CellPredictor`` — ``fit`` on a training stream,
-  ``predict_proba`` for contexts, ``score`` (bits per symbol on held-out data),
-  ``save``/``load`` of the model file (no pickle);
+  ``predict_proba`` for contexts, ``bits_per_symbol`` on held-out data (``score`` is the mean
+  log2-likelihood per symbol, higher is better), ``save``/``load`` of the model file (no pickle);
 * ``fs.online_code_length`` — predict-then-update code length
   of a stream with no training data: an upper bound on its information content.
 
@@ -64,13 +64,13 @@ def run(folder: Path, args: argparse.Namespace) -> None:
     lo, hi = truth["kelp-island"].island
     arr = test.to_array()
     print(f"bits/symbol  truth (entropy rate) {h:.3f}")
-    print(f"  fitted model on kelp-island before its island (same chain, held out): {model.score(arr.slice(0, lo)):.3f}")
-    print(f"  fitted model on the repeat island {lo:,}-{hi:,} (never seen in training): {model.score(arr.slice(lo, hi)):.3f}")
+    print(f"  fitted model on kelp-island before its island (same chain, held out): {model.bits_per_symbol(arr.slice(0, lo)):.3f}")
+    print(f"  fitted model on the repeat island {lo:,}-{hi:,} (never seen in training): {model.bits_per_symbol(arr.slice(lo, hi)):.3f}")
     print(f"  fitted model on kelp-sticky (another chain, truth {truth['kelp-sticky'].entropy_rate_bits:.3f}): "
-          f"{model.score(other):.3f}")
+          f"{model.bits_per_symbol(other):.3f}")
     online = fs.online_code_length(train, reverse_complement=False)
     print(f"  online predict-then-update on kelp-chain (upper bound): {online.bits_per_symbol:.3f}, "
-          f"top-1 accuracy {online.top1:.3f}")
+          f"top-1 accuracy {online.top1_accuracy:.3f}")
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -15,9 +15,10 @@ import pytest
 from scipy.special import gammaln
 
 from fractalseq import alphabet as al
-from fractalseq.predict import _kernels as K
+from fractalseq.predict import _kernel_tools as K
 from fractalseq.errors import InputError, ModelFileError, ParameterError
-from fractalseq.predict._predictor import CellPredictor, OnlineCoder, evaluate_online, online_code_length
+from fractalseq.predict._online import OnlineCoder, evaluate_online, online_code_length
+from fractalseq.predict._predictor import CellPredictor
 from fractalseq.predict._baselines import compressor_bits, kt_bits, packed_bytes
 from fractalseq.stream import from_codes
 
@@ -120,10 +121,10 @@ def test_online_converges_to_iid_shannon_entropy():
     x = rng.choice(4, size=10**6, p=[0.5, 0.25, 0.125, 0.125]).astype(np.uint8)
     r = online_code_length(from_codes(al.from_symbols("wxyz"), x))
     assert abs(r.bits_per_symbol - 1.75) < 0.01
-    assert r.calibration_error < 0.03
+    assert r.expected_calibration_error < 0.03
     # order-0 KT alone is calibrated on an i.i.d. source
     kt = online_code_length(from_codes(al.from_symbols("wxyz"), x[:100_000]), depths=(0,), learning_rate=0.0)
-    assert kt.calibration_error < 0.005
+    assert kt.expected_calibration_error < 0.005
 
 
 def test_top1_accuracy_matches_bayes_optimal_rate():
@@ -131,8 +132,8 @@ def test_top1_accuracy_matches_bayes_optimal_rate():
     P = np.array([[0.9, 0.1], [0.4, 0.6]])
     x = markov_chain(P, 1, 10**5, seed=8)
     r = online_code_length(from_codes(al.binary(), x), depths=(1,))
-    assert abs(r.top1 - 0.84) < 0.01
-    assert r.top3 == 1.0
+    assert abs(r.top1_accuracy - 0.84) < 0.01
+    assert r.top3_accuracy == 1.0
 
 
 # ------------------------------------------------------------- mechanics
@@ -172,9 +173,7 @@ def test_packed_and_dense_rows_give_identical_results():
         c = OnlineCoder(al.dna(), depths=(2, 5, 9, 14), max_cells=4096)
         if not packed:  # switch the same configuration to dense rows
             c.packed = False
-            c.counts = np.zeros((c.rows, 4), np.uint16)
-            c.tags = np.zeros(c.rows, np.uint16)
-            c.totals = np.zeros(c.rows, np.uint32)
+            c.rows = c.dense_rows()
         c.feed(arr.codes, arr.starts)
         coders.append(c)
     a, b = coders
@@ -217,21 +216,27 @@ def test_memory_cap_is_respected_and_reported():
     rng = np.random.default_rng(10)
     arr = from_codes(al.dna(), rng.integers(0, 4, 50000).astype(np.uint8))
     r = online_code_length(arr, max_cells=1 << 12)
-    assert r.cells_cap == 1 << 12
-    assert r.cells_stored <= 1 << 12
-    assert r.evictions > 0
-    assert r.table_bytes <= 8 * (1 << 12)
+    assert r.memory.cells_cap == 1 << 12
+    assert r.memory.cells_stored <= 1 << 12
+    assert r.memory.evictions > 0
+    assert r.memory.table_bytes <= 8 * (1 << 12)
     with pytest.raises(ParameterError):
         online_code_length(arr, max_cells=10)
 
 
 def test_bad_parameters_are_one_sentence_errors():
     arr = from_codes(al.dna(), np.zeros(100, np.uint8))
-    for kw in (dict(depths=(40,)), dict(smoothing=-1.0), dict(learning_rate=2.0), dict(depths=())):
+    for kw in (dict(depths=(40,)), dict(smoothing=-1.0), dict(learning_rate=2.0), dict(depths=()), dict(max_cells=10)):
         with pytest.raises(ParameterError) as e:
             online_code_length(arr, **kw)
         msg = str(e.value)
         assert re.search(r"[.!?] [A-Z]", msg) is None and msg.endswith(".") and "\n" not in msg
+        # the library names the parameter (the command line maps it to its option), never an option
+        assert e.value.parameter == next(iter(kw)) and "--" not in msg
+    for kw in (dict(discount=1.5), dict(smoothing=0), dict(max_cells=0), dict(reverse_complement="sideways")):
+        with pytest.raises(ParameterError) as e:
+            CellPredictor(**kw).fit(arr)
+        assert e.value.parameter == next(iter(kw)) and "--" not in str(e.value)
 
 
 # ---------------------------------------------------------- real genome
@@ -261,8 +266,8 @@ def test_lambda_phage_beats_standard_library_compressors_and_fixed_order_markov(
     assert r.baselines["compressors"]["bz2_packed"] == pytest.approx(8.0 * len(bz2.compress(packed, 9)) / len(arr))
     assert r.bits_per_symbol < r.baselines["markov"]["bits_per_symbol"]
     assert 1.85 < r.bits_per_symbol < 2.0  # a small phage genome is close to incompressible
-    assert r.records and r.records[0]["length"] == 48502
-    assert r.records[0]["total_bits"] == pytest.approx(r.total_bits, rel=1e-6)
+    assert r.records and r.records[0].length == 48502
+    assert r.records[0].total_bits == pytest.approx(r.total_bits, rel=1e-6)
 
 
 # ---------------------------------------------------------------- fitted mode
@@ -271,11 +276,11 @@ def test_fitted_model_scores_a_markov_source_near_its_entropy_rate():
     train = from_codes(al.binary(), markov_chain(P, 1, 200_000, seed=20))
     test = from_codes(al.binary(), markov_chain(P, 1, 100_000, seed=21))
     m = CellPredictor(depths=(1, 2, 4)).fit(train)
-    assert abs(m.score(test) - 0.5693865938) < 0.01  # Cover & Thomas §4.2 (B2)
+    assert abs(m.bits_per_symbol(test) - 0.5693865938) < 0.01  # Cover & Thomas §4.2 (B2)
     assert m.baseline_order_ == 1
     e = m.evaluate(test)
     assert abs(e.baselines["markov"]["bits_per_symbol"] - 0.5693865938) < 0.01
-    assert abs(e.top1 - 0.84) < 0.01  # REFERENCE-CHECKS F3
+    assert abs(e.top1_accuracy - 0.84) < 0.01  # REFERENCE-CHECKS F3
 
 
 def test_predict_proba_rows_are_distributions_and_match_score():
@@ -290,7 +295,8 @@ def test_predict_proba_rows_are_distributions_and_match_score():
     assert np.all(p > 0)
     assert np.allclose(p.sum(axis=1), 1.0, atol=1e-12)
     bits = -np.log2(p[np.arange(300), test]).mean()
-    assert m.score(from_codes(a, test)) == pytest.approx(bits, rel=1e-12)
+    assert m.bits_per_symbol(from_codes(a, test)) == pytest.approx(bits, rel=1e-12)
+    assert m.score(from_codes(a, test)) == -m.bits_per_symbol(from_codes(a, test))  # higher is better
     assert m.predict_proba(["abcab"]).shape == (1, 3)
     with pytest.raises(InputError):
         m.predict_proba(["abz"])
@@ -298,12 +304,12 @@ def test_predict_proba_rows_are_distributions_and_match_score():
     e = m.evaluate(from_codes(a, test), baselines=False)
     conf = p.max(axis=1)
     hit = p.argmax(axis=1) == test
-    assert e.top1 == pytest.approx(hit.mean())
+    assert e.top1_accuracy == pytest.approx(hit.mean())
     bins = np.minimum((conf * 10).astype(int), 9)
     ece = sum(abs(hit[bins == k].sum() - conf[bins == k].sum()) for k in range(10)) / len(test)
-    assert e.calibration_error == pytest.approx(ece, rel=1e-9)
+    assert e.expected_calibration_error == pytest.approx(ece, rel=1e-9)
     rank = (p > p[np.arange(300), test][:, None]).sum(axis=1)
-    assert e.top3 == pytest.approx((rank < 3).mean())
+    assert e.top3_accuracy == pytest.approx((rank < 3).mean())
 
 
 def test_scikit_learn_contract():
@@ -321,6 +327,18 @@ def test_scikit_learn_contract():
     learned = [k for k in vars(m) if k.endswith("_") and not k.startswith("_")]
     assert {"alphabet_", "depths_", "cells_", "counts_", "n_symbols_", "baseline_order_"} <= set(learned)
     assert m.predict_proba(["ACG"]).argmax() == 3
+    # parameters are introspected from __init__ (scikit-learn's BaseEstimator does the same)
+    import inspect
+
+    assert list(m.get_params()) == [p for p in inspect.signature(CellPredictor.__init__).parameters if p != "self"]
+    # every fit starts from scratch: refitting on other data equals a fresh fit, nothing of the first survives
+    m.fit(from_codes(al.binary(), np.tile([0, 1, 1], 300)), reader={"column": "v"})
+    fresh = CellPredictor(**m.get_params()).fit(from_codes(al.binary(), np.tile([0, 1, 1], 300)), reader={"column": "v"})
+    assert sorted(vars(m)) == sorted(vars(fresh))
+    assert m.depths_ == fresh.depths_ and m.alphabet_.size == 2 and m.reader_ == {"column": "v"}
+    assert all(np.array_equal(m.counts_[n], fresh.counts_[n]) for n in m.depths_)
+    m.fit(from_codes(al.binary(), np.tile([0, 1, 1], 300)))
+    assert m.reader_ == {}
 
 
 def test_fitted_reverse_complement_counts_both_strands():
@@ -355,7 +373,8 @@ def test_model_file_round_trip_and_rejections(tmp_path):
     m.save(path)
     back = CellPredictor.load(path)
     assert back.get_params() == m.get_params()
-    assert back.score(arr) == m.score(arr)
+    assert back.reader_ == m.reader_ == {}
+    assert back.bits_per_symbol(arr) == m.bits_per_symbol(arr)
     with np.load(path, allow_pickle=False) as z:
         assert all(z[k].dtype != object for k in z.files)
     from fractalseq.errors import OutputError
@@ -391,4 +410,4 @@ def test_model_file_round_trip_and_rejections(tmp_path):
         CellPredictor.load(tmp_path / "missing.npz")
     # a model applied to data over another alphabet
     with pytest.raises(ModelFileError, match="alphabet"):
-        back.score(from_codes(al.protein(), np.zeros(10, np.uint8)))
+        back.bits_per_symbol(from_codes(al.protein(), np.zeros(10, np.uint8)))

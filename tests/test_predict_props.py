@@ -8,7 +8,9 @@ from hypothesis import strategies as st
 
 from fractalseq import alphabet as al
 from fractalseq.words._pieces import count_piece, iter_pieces
-from fractalseq.predict._predictor import CellPredictor, baseline_orders, online_code_length
+from fractalseq.predict._online import online_code_length
+from fractalseq.predict._params import baseline_orders
+from fractalseq.predict._predictor import CellPredictor
 from fractalseq.stream import from_codes
 
 SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])

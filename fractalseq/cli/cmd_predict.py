@@ -3,7 +3,9 @@
 The ``--json`` output of ``score`` is a public contract (documented in the
 README): a top-level ``bits_per_symbol`` (all sources together) and a
 ``sources`` list whose items carry at least ``name``, ``length`` and
-``bits_per_symbol``.
+``bits_per_symbol``.  The documents and every decision behind them (template union,
+training cut points kept in the model, unseen templates) come from
+:mod:`fractalseq.jobs._learn_score`; this module parses options and formats.
 """
 
 from __future__ import annotations
@@ -15,17 +17,8 @@ import typer
 from rich.table import Table
 
 from fractalseq.cli import common
-from fractalseq.cli.inputs import open_input
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._outputs import check_writable, to_json
-
-RESEARCH_NOTE = "Genomic output is for research, not for clinical decisions."
-LOG_NOTE = "Surprise scores of event logs are no security guarantee."
-
-
-def _note(alphabets) -> str:
-    """The caution that fits the inputs: logs (template alphabets) or sequences."""
-    return LOG_NOTE if any(getattr(a, "name", "") == "templates" for a in alphabets) else RESEARCH_NOTE
 
 DEPTHS = typer.Option(
     None, "--depths", help="Cell depths in symbols, comma-separated (e.g. 3,6,10,14,20); default: a ladder up to --depth (3,6,10,14,20 for DNA)."
@@ -92,24 +85,6 @@ def _model_params(depths, max_depth, smoothing, max_cells, strands) -> dict:
     }
 
 
-def _is_templates(alphabet) -> bool:
-    return getattr(alphabet, "name", None) == "templates"
-
-
-def _training_alphabet(paths: list[str], fmt: str, alphabet: str, policy: str, reader: dict):
-    """The alphabet to read the training files with: the union of their log templates when they are logs."""
-    if len(paths) < 2 or fmt not in ("log", "auto"):
-        return alphabet
-    from fractalseq.compare._distances import joint_alphabet
-
-    if "-" in paths:
-        return alphabet
-    streams = [open_input(p, fmt, alphabet, policy, **reader) for p in paths]
-    if not all(_is_templates(s.alphabet) for s in streams):
-        return alphabet
-    return joint_alphabet([s.alphabet for s in streams])
-
-
 # ------------------------------------------------------------------- learn
 def learn(
     paths: List[str] = typer.Argument(..., help="Training files (FASTA/FASTQ/text/log/numeric, optionally compressed); - reads standard input."),
@@ -146,57 +121,22 @@ def learn(
 
     Example: fractalseq learn strainA.fna.gz strainB.fna.gz -o kleb.npz
     """
-    import numpy as np
-
-    from fractalseq.cli.inputs import reader_options, shared_numeric_cuts
-    from fractalseq.predict._predictor import CellPredictor, baseline_orders
-    from fractalseq.words._corpus import count_inputs
+    from fractalseq.cli.inputs import reader_options
+    from fractalseq.jobs._learn_score import learn_files
 
     check_writable(out, force)
     max_depth = _deepest(depth, old_max_depth, quiet)
-    model = CellPredictor(**_model_params(depths, max_depth, smoothing, max_cells, strands), discount=_discount(discount))
-    reader, _ = shared_numeric_cuts(list(paths), fmt, reader_options(column, bins, thresholds, ordinal), bins)
-    read_alpha = _training_alphabet(list(paths), fmt, alphabet, policy, reader)
-    read_fmt = "log" if _is_templates(read_alpha) else fmt
-
-    def deepest(a) -> int:  # cells and baseline orders of the model, for the first input's alphabet
-        ladder, _ = model._validate(a)
-        return max(max(ladder), baseline_orders(a)) + 1
-
+    params = {**_model_params(depths, max_depth, smoothing, max_cells, strands), "discount": _discount(discount)}
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
-        wc, reports = count_inputs(
-            ((p, open_input(p, read_fmt, read_alpha, policy, **reader)) for p in paths), deepest,
-            on_input=lambda _: bar.advance(task),
+        report = learn_files(
+            list(paths), out=out, force=force, fmt=fmt, alphabet=alphabet, policy=policy,
+            reader=reader_options(column, bins, thresholds, ordinal), params=params, on_input=lambda _: bar.advance(task),
         )
-    if wc.length == 0:
-        raise InputError("The training inputs hold no usable symbols; check the files and the --alphabet/--format options.")
-    model.fit_counts(wc)
-    model.reader_ = {k: (list(v) if isinstance(v, tuple) else v) for k, v in reader.items()}
-    model.save(out, force=force)
-    rows = [
-        {"depth": n, "cells": int(model.cells_[n].size), "observations": int(model.counts_[n].sum(dtype=np.int64))}
-        for n in model.depths_
-    ]
-    result = {
-        "model": str(out),
-        "alphabet": model.alphabet_.to_dict(),
-        "inputs": [{"name": p, **r.to_dict()} for p, r in reports],
-        "symbols": model.n_symbols_,
-        "segments": model.n_segments_,
-        "cell_depths": list(model.ladder_),
-        "stored_depths": rows,
-        "reverse_complement": model.reverse_complement_,
-        "cells": model.n_cells_,
-        "max_cells": model.max_cells_,
-        "pruned_cells": model.pruned_cells_,
-        "baseline_order": model.baseline_order_,
-        "baseline_training_bits_per_symbol": model.baseline_bits_[model.baseline_order_],
-        "params": model.get_params(),
-        "note": _note([model.alphabet_]),
-    }
+    model = report.predictor
+    rows = [r.to_dict() for r in report.stored_depths]
     if json_out:
-        typer.echo(to_json(result), nl=False)
+        typer.echo(to_json(report.to_dict()), nl=False)
         return
     a = model.alphabet_
     t = Table(title=f"Model {out}: {model.n_symbols_:,} symbols in {model.n_segments_:,} segments ({a.name}, A = {a.size})")
@@ -219,7 +159,7 @@ def learn(
         f"{model.baseline_bits_[model.baseline_order_]:.4f} bits/symbol on the training data."
     )
     if not quiet:
-        common.err_console.print(f"wrote {out}. {_note([model.alphabet_])}")
+        common.err_console.print(f"wrote {out}. {report.note}")
 
 
 # ------------------------------------------------------------------- score
@@ -270,76 +210,40 @@ def score(
 
     Example: fractalseq score --online genome.fna.xz --window 50000 --json
     """
-    from fractalseq.predict._predictor import CellPredictor, evaluate_online
-
-    if (model is None) == (not online):
-        raise ParameterError("Give either --model MODEL (fitted mode) or --online (no model file), not both or neither.")
-    fitted = CellPredictor.load(model) if model is not None else None
-    if fitted is not None:
-        read_alpha = alphabet if alphabet is not None else fitted.alphabet_
-    else:
-        read_alpha = alphabet if alphabet is not None else "dna"
     from fractalseq.cli.inputs import reader_options
+    from fractalseq.jobs._learn_score import score_files
 
-    reader = reader_options(column, bins, thresholds, ordinal)
-    if fitted is not None and not reader:
-        reader = {k: (tuple(v) if isinstance(v, list) else v) for k, v in fitted.reader_.items()}
     params = _model_params(depths, _deepest(depth, old_max_depth, quiet), smoothing, max_cells, strands)
     params["learning_rate"] = learning_rate
-    results = []
     with common.progress(quiet) as bar:
         task = bar.add_task("scoring", total=len(paths))
-        for p in paths:
-            stream = open_input(p, fmt, read_alpha, policy, **reader)
-            if fitted is not None:
-                res = fitted.evaluate(stream, window=window)
-            else:
-                res = evaluate_online(stream, window=window, **params)
-            if res.length == 0:
-                raise InputError(f"{p} holds no usable symbols; check the file and the --alphabet/--format options.")
-            results.append((p, stream.alphabet, res, stream.report))
-            bar.advance(task)
-    total_bits = sum(r.total_bits for _, _, r, _ in results)
-    total_len = sum(r.length for _, _, r, _ in results)
-    doc = {
-        "mode": "fitted" if fitted is not None else "online",
-        "model": str(model) if model is not None else None,
-        "bits_per_symbol": total_bits / total_len,
-        "total_bits": total_bits,
-        "length": total_len,
-        "sources": [],
-        "note": _note(a for _, a, _, _ in results),
-    }
-    for p, a, r, rep in results:
-        d = r.to_dict(windows=top)
-        d["name"] = p
-        d["stream_name"] = r.name
-        d["alphabet"] = a.to_dict()
-        d["dropped"] = dict(sorted(rep.dropped.items()))
-        if "unlisted_templates" in rep.extra:
-            # log lines whose template the model never saw: not scored (the policy left them out), listed here
-            d["unseen_templates"] = rep.extra["unlisted_templates"]
-        doc["sources"].append(d)
+        report = score_files(
+            list(paths), model, online=online, fmt=fmt, alphabet=alphabet, policy=policy,
+            reader=reader_options(column, bins, thresholds, ordinal), window=window, top=top, params=params,
+            on_source=lambda _: bar.advance(task),
+        )
     if json_out:
-        typer.echo(to_json(doc), nl=False)
+        typer.echo(to_json(report.to_dict()), nl=False)
         return
-    mode = f"model {model}" if fitted is not None else "online (predict, then update)"
+    mode = f"model {model}" if report.mode == "fitted" else "online (predict, then update)"
     t = Table(title=f"Code length, {mode}")
     for col in ("source", "symbols", "bits/symbol", "top-1", "top-3", "calib. error", "Markov KT (order)", "best compressor"):
         t.add_column(col, justify="left" if col in ("source", "best compressor") else "right")
-    for p, a, r, _ in results:
+    for r in report.sources:
         mk = r.baselines.get("markov", {})
         comp = r.baselines.get("compressors", {})
         cname, cbits = _compressor_summary(comp) if comp else ("", float("nan"))
         t.add_row(
-            p, f"{r.length:,}", f"{r.bits_per_symbol:.4f}", f"{r.top1:.3f}", f"{r.top3:.3f}", f"{r.calibration_error:.4f}",
+            r.name, f"{r.length:,}", f"{r.bits_per_symbol:.4f}", f"{r.top1_accuracy:.3f}", f"{r.top3_accuracy:.3f}",
+            f"{r.expected_calibration_error:.4f}",
             f"{mk.get('bits_per_symbol', float('nan')):.4f} ({mk.get('order', '-')})", f"{cbits:.4f} {cname}",
         )
     common.out_console.print(t)
-    common.out_console.print(f"All sources: {doc['bits_per_symbol']:.4f} bits/symbol over {total_len:,} symbols.")
-    for p, a, r, rep in results:
-        unseen = rep.extra.get("unlisted_templates") or []
-        if unseen:
+    common.out_console.print(f"All sources: {report.bits_per_symbol:.4f} bits/symbol over {report.length:,} symbols.")
+    for r in report.sources:
+        p = r.name
+        if r.unseen_templates:
+            unseen = r.unseen_templates
             ut = Table(title=f"{p}: {sum(e['count'] for e in unseen):,} lines with templates the model never saw (not scored)")
             for col in ("lines", "first line", "template"):
                 ut.add_column(col, justify="left" if col == "template" else "right")
@@ -351,24 +255,24 @@ def score(
             for col in ("record", "start", "symbols", "bits/symbol"):
                 rt.add_column(col, justify="left" if col == "record" else "right")
             for rec in r.records:
-                bps = rec["bits_per_symbol"]
-                rt.add_row(rec["name"], f"{rec['start']:,}", f"{rec['length']:,}", "-" if bps is None else f"{bps:.4f}")
+                bps = rec.bits_per_symbol
+                rt.add_row(rec.name, f"{rec.start:,}", f"{rec.length:,}", "-" if bps is None else f"{bps:.4f}")
             common.out_console.print(rt)
-        wins = r.surprising_windows(top)
-        if wins:
+        if r.most_surprising_windows:
             wt = Table(title=f"{p}: most surprising windows of {r.window:,} symbols")
             for col in ("start", "end", "record", "bits/symbol"):
                 wt.add_column(col, justify="left" if col == "record" else "right")
-            for w in wins:
-                wt.add_row(f"{w['start']:,}", f"{w['end']:,}", w["record"] or "-", f"{w['bits_per_symbol']:.4f}")
+            for w in r.most_surprising_windows:
+                wt.add_row(f"{w.start:,}", f"{w.end:,}", w.record or "-", f"{w.bits_per_symbol:.4f}")
             common.out_console.print(wt)
-        mem = "evictions" if r.mode == "online" else "pruned at learning"
+        m = r.memory
+        gone = f"evictions {m.evictions:,}" if r.mode == "online" else f"pruned at learning {m.cells_pruned:,}"
         common.out_console.print(
-            f"{p}: cells cap {r.cells_cap:,}, stored {r.cells_stored:,}, {mem} {r.evictions:,}, tables {r.table_bytes / 2**20:.1f} MiB; "
+            f"{p}: cells cap {m.cells_cap:,}, stored {m.cells_stored:,}, {gone}, tables {m.table_bytes / 2**20:.1f} MiB; "
             f"depths {', '.join(map(str, r.depths))}; {'both strands' if r.reverse_complement else 'one strand'}."
         )
     if not quiet:
-        common.err_console.print(doc["note"])
+        common.err_console.print(report.note)
 
 
 # -------------------------------------------------------------------- next
@@ -387,6 +291,7 @@ def next_symbols(
 
     Example: fractalseq next GATTACAGATTACA --model kleb.npz --top 4
     """
+    from fractalseq.jobs._learn_score import caution
     from fractalseq.predict._predictor import CellPredictor
 
     fitted = CellPredictor.load(model)
@@ -403,7 +308,7 @@ def next_symbols(
         ctx = context
     rows = fitted.next_symbols(ctx, top=top)
     depth = rows[0]["deepest_cell_depth"] if rows else None
-    doc = {"model": str(model), "context": ctx, "deepest_cell_depth": depth, "next": rows, "note": _note([fitted.alphabet_])}
+    doc = {"model": str(model), "context": ctx, "deepest_cell_depth": depth, "next": rows, "note": caution([fitted.alphabet_])}
     if json_out:
         typer.echo(to_json(doc), nl=False)
         return

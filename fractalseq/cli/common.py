@@ -91,6 +91,13 @@ OPTION_OF: dict[str, str] = {
     "alpha": "--alpha",
     "adjust": "--adjust",
     "figures": "--figures",
+    "model": "--model",
+    "depths": "--depths",
+    "smoothing": "--smoothing",
+    "discount": "--discount",
+    "max_cells": "--max-cells",
+    "learning_rate": "--learning-rate",
+    "reverse_complement": "--strands",
 }
 
 

@@ -34,6 +34,11 @@ _NAMES: dict[str, str] = {
     "survey_cache": "fractalseq.jobs._files",
     "survey_files": "fractalseq.jobs._files",
     "write_survey": "fractalseq.jobs._survey",
+    "LearnReport": "fractalseq.jobs._learn_score",
+    "ScoreReport": "fractalseq.jobs._learn_score",
+    "SourceScore": "fractalseq.jobs._learn_score",
+    "learn_files": "fractalseq.jobs._learn_score",
+    "score_files": "fractalseq.jobs._learn_score",
 }
 
 __all__ = sorted(_NAMES)  # noqa: PLE0605 - the lazy names are the table above

@@ -187,12 +187,12 @@ def _predictor_code_length(arr: SymbolArray):
     bits = float(res.bits_per_symbol)
     details = {
         "total_bits": float(res.total_bits),
-        "top1": float(res.top1),
-        "top3": float(res.top3),
-        "calibration_error": float(res.calibration_error),
+        "top1": float(res.top1_accuracy),
+        "top3": float(res.top3_accuracy),
+        "calibration_error": float(res.expected_calibration_error),
         "depths": [int(d) for d in res.depths],
-        "cells_stored": int(res.cells_stored),
-        "evictions": int(res.evictions),
+        "cells_stored": int(res.memory.cells_stored),
+        "evictions": int(res.memory.evictions),
     }
     return ent.EntropyEstimate(
         quantity="entropy rate upper bound", method="online predictor", estimate=bits, unit="bits/symbol",

@@ -6,19 +6,33 @@ in ``__init__``, learning in ``fit``, learned state in attributes ending in
 learn), which bounds the entropy rate from above.
 """
 
-from fractalseq.predict._baselines import CompressorMeter, MarkovBaseline, compressor_bits, kt_bits, kt_bits_by_order
-from fractalseq.predict._modelfile import load_model, read_header, save_model
-from fractalseq.predict._predictor import (
-    CellPredictor,
-    OnlineCoder,
+from fractalseq.predict._baselines import (
+    CompressorMeter,
+    MarkovBaseline,
+    compressor_bits,
+    kt_bits,
+    kt_bits_by_order,
+)
+from fractalseq.predict._modelfile import (
+    ModelState,
+    read_header,
+    read_state,
+    write_state,
+)
+from fractalseq.predict._online import OnlineCoder, evaluate_online, online_code_length
+from fractalseq.predict._params import baseline_orders
+from fractalseq.predict._predictor import CellPredictor, load_model, save_model
+from fractalseq.predict._results import (
+    CalibrationBin,
+    FittedMemory,
+    OnlineMemory,
     PredictionResult,
-    baseline_orders,
-    evaluate_online,
-    online_code_length,
+    RecordScore,
+    SurprisingWindow,
 )
 
 __all__ = [
-    "CellPredictor", "CompressorMeter", "MarkovBaseline", "OnlineCoder", "PredictionResult", "baseline_orders",
+    "CalibrationBin", "CellPredictor", "FittedMemory", "OnlineMemory", "RecordScore", "SurprisingWindow", "CompressorMeter", "MarkovBaseline", "ModelState", "OnlineCoder", "PredictionResult", "baseline_orders",
     "compressor_bits", "evaluate_online", "kt_bits", "kt_bits_by_order", "load_model", "online_code_length",
-    "read_header", "save_model",
+    "read_header", "read_state", "save_model", "write_state",
 ]

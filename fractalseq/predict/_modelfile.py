@@ -1,4 +1,9 @@
-"""The model file of a fitted :class:`~fractalseq.predict._predictor.CellPredictor`.
+"""The model file: a plain state (a JSON header and arrays) written and read with checksums, never pickled.
+
+This module knows nothing of the predictor: it writes and reads a
+:class:`ModelState` (a header dictionary plus named arrays).  The predictor
+turns itself into a state (:meth:`~fractalseq.predict._predictor.CellPredictor.to_state`)
+and builds itself from one (:meth:`~fractalseq.predict._predictor.CellPredictor.from_state`).
 
 Format (version 1)
 ------------------
@@ -19,6 +24,7 @@ members are plain arrays only, so it loads with ``allow_pickle=False``:
           "reverse_complement": true/false,
           "training": {"symbols": ..., "segments": ..., "pruned_cells": ..., "max_cells": ...},
           "baseline": {"max_order": K, "order": k, "bits_per_symbol_by_order": {"0": ..., ...}},
+          "reader": {how the training data were read: numeric cut points, column...},
           "sha256": {"cells_0": "<hex>", "counts_0": "<hex>", ...},
           "software": "fractalseq <version>"
         }
@@ -31,9 +37,9 @@ members are plain arrays only, so it loads with ``allow_pickle=False``:
     ``uint32`` ``(cells, A)``: how often each symbol followed each cell.
 
 The checksum of an array is the SHA-256 of its raw bytes (C order, the
-dtype above).  Loading checks the format name, the version, every checksum,
-dtypes and shapes, and refuses anything else with one sentence
-(:class:`~fractalseq.errors.ModelFileError`).
+dtype above).  Reading checks the format name, the version, every checksum,
+the dtypes and shapes of the cell tables and their order, and refuses
+anything else with one sentence (:class:`~fractalseq.errors.ModelFileError`).
 """
 
 from __future__ import annotations
@@ -43,56 +49,71 @@ import io
 import json
 import zipfile
 import zlib
+from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
-from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ModelFileError
 from fractalseq.io._outputs import write_bytes
 
 FORMAT = "fractalseq-model"
 VERSION = 1
+#: Header keys the file layer adds and checks itself (not part of a model's own state).
+_ENVELOPE = ("format", "version", "sha256", "software")
+
+
+@dataclass(frozen=True)
+class ModelState:
+    """What a model file holds: a JSON-ready header and the cell tables.
+
+    Attributes
+    ----------
+    header:
+        The model's description (alphabet, params, ladder, depths, training, baseline, reader);
+        plain JSON types only.
+    arrays:
+        ``cells_<n>`` (uint64 sorted addresses) and ``counts_<n>`` (uint32 ``(cells, A)``) of every stored depth.
+    origin:
+        Where the state was read from (for messages); empty for a state built in memory.
+    """
+
+    header: dict[str, Any]
+    arrays: dict[str, np.ndarray] = field(default_factory=dict)
+    origin: str = ""
+
+    def tables(self, depths, A: int) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+        """``{n: (cells, counts)}`` of the given depths, checked for type, shape and order."""
+        where = self.origin or "The model state"
+        out = {}
+        for n in depths:
+            kc, kn = f"cells_{n}", f"counts_{n}"
+            if kc not in self.arrays or kn not in self.arrays:
+                raise ModelFileError(f"{where} lacks the cells of depth {n}; the file is damaged, learn the model again.")
+            cells, counts = self.arrays[kc], self.arrays[kn]
+            if cells.dtype != np.uint64 or counts.dtype != np.uint32 or counts.ndim != 2 or counts.shape != (cells.size, A):
+                raise ModelFileError(f"{where} has cells of depth {n} with the wrong type or shape; learn the model again.")
+            if cells.size > 1 and not np.all(cells[1:] > cells[:-1]):
+                raise ModelFileError(f"{where} has unsorted cells at depth {n}; learn the model again.")
+            out[n] = (cells, counts)
+        return out
 
 
 def _digest(a: np.ndarray) -> str:
     return hashlib.sha256(np.ascontiguousarray(a).tobytes()).hexdigest()
 
 
-def save_model(model, path: str | Path, force: bool = False) -> Path:
-    """Write a fitted model atomically (refuses to overwrite without ``force``)."""
+def write_state(state: ModelState, path: str | Path, force: bool = False) -> Path:
+    """Write a model state atomically (refuses to overwrite without ``force``)."""
     from fractalseq import __version__
 
-    arrays: dict[str, np.ndarray] = {}
-    for n in model.depths_:
-        arrays[f"cells_{n}"] = np.ascontiguousarray(model.cells_[n], dtype=np.uint64)
-        arrays[f"counts_{n}"] = np.ascontiguousarray(model.counts_[n], dtype=np.uint32)
-    header = {
-        "format": FORMAT,
-        "version": VERSION,
-        "alphabet": model.alphabet_.to_dict(),
-        "params": {k: (list(v) if isinstance(v, tuple) else v) for k, v in model.get_params().items()},
-        "ladder": list(model.ladder_),
-        "depths": list(model.depths_),
-        "reverse_complement": bool(model.reverse_complement_),
-        "training": {
-            "symbols": model.n_symbols_,
-            "segments": model.n_segments_,
-            "pruned_cells": model.pruned_cells_,
-            "max_cells": model.max_cells_,
-        },
-        "baseline": {
-            "max_order": model.baseline_max_order_,
-            "order": model.baseline_order_,
-            "bits_per_symbol_by_order": {str(k): v for k, v in model.baseline_bits_.items()},
-        },
-        "sha256": {k: _digest(v) for k, v in arrays.items()},
-        "software": f"fractalseq {__version__}",
-        # how the training data were read (numeric cut points, column), so new data are read the same way
-        "reader": dict(getattr(model, "reader_", {}) or {}),
-    }
-    if isinstance(header["params"].get("depths"), np.ndarray):
-        header["params"]["depths"] = header["params"]["depths"].tolist()
+    arrays = {k: np.ascontiguousarray(v) for k, v in state.arrays.items()}
+    header = {k: v for k, v in state.header.items() if k not in _ENVELOPE}
+    header.update(
+        format=FORMAT, version=VERSION, sha256={k: _digest(v) for k, v in arrays.items()},
+        software=f"fractalseq {__version__}",
+    )
     buf = io.BytesIO()
     head = np.frombuffer(json.dumps(header, sort_keys=True).encode("utf-8"), dtype=np.uint8)
     np.savez_compressed(buf, header=head, **arrays)
@@ -100,9 +121,26 @@ def save_model(model, path: str | Path, force: bool = False) -> Path:
 
 
 def read_header(path: str | Path) -> dict:
-    """The JSON header of a model file (checked like :func:`load_model`, arrays not verified)."""
+    """The JSON header of a model file (checked like :func:`read_state`, arrays not verified)."""
     data = _read_arrays(Path(path), only_header=True)
     return _parse_header(data, Path(path))
+
+
+def read_state(path: str | Path) -> ModelState:
+    """Read a model file and verify its header and the checksum of every array (never uses pickle)."""
+    path = Path(path)
+    data = _read_arrays(path)
+    header = _parse_header(data, path)
+    sums = header.get("sha256")
+    if not isinstance(sums, dict):
+        raise ModelFileError(f"{path} has an incomplete model header; learn the model again.")
+    for name, digest in sums.items():
+        if name not in data:
+            raise ModelFileError(f"{path} lacks the array {name!r}; the file is truncated or damaged, learn the model again.")
+        if _digest(data[name]) != digest:
+            raise ModelFileError(f"{path} is damaged: array {name!r} fails its checksum; learn the model again.")
+    arrays = {k: v for k, v in data.items() if k in sums}
+    return ModelState(header=header, arrays=arrays, origin=str(path))
 
 
 def _read_arrays(path: Path, only_header: bool = False) -> dict[str, np.ndarray]:
@@ -137,55 +175,3 @@ def _parse_header(data: dict, path: Path) -> dict:
             "learn the model again with this version."
         )
     return header
-
-
-def load_model(path: str | Path):
-    """Read, verify and rebuild a :class:`~fractalseq.predict._predictor.CellPredictor` (never uses pickle)."""
-    from fractalseq.predict._predictor import CellPredictor
-
-    path = Path(path)
-    data = _read_arrays(path)
-    header = _parse_header(data, path)
-    try:
-        alphabet = Alphabet.from_dict(header["alphabet"])
-        depths = [int(n) for n in header["depths"]]
-        ladder = [int(n) for n in header["ladder"]]
-        params = dict(header["params"])
-        training = header["training"]
-        baseline = header["baseline"]
-        sums = header["sha256"]
-    except (KeyError, TypeError, ValueError, InputError):
-        raise ModelFileError(f"{path} has an incomplete model header; learn the model again.") from None
-    for name, digest in sums.items():
-        if name not in data:
-            raise ModelFileError(f"{path} lacks the array {name!r}; the file is truncated or damaged, learn the model again.")
-        if _digest(data[name]) != digest:
-            raise ModelFileError(f"{path} is damaged: array {name!r} fails its checksum; learn the model again.")
-    A = alphabet.size
-    tables = {}
-    for n in depths:
-        kc, kn = f"cells_{n}", f"counts_{n}"
-        if kc not in sums or kn not in sums:
-            raise ModelFileError(f"{path} lacks the cells of depth {n}; the file is damaged, learn the model again.")
-        cells, counts = data[kc], data[kn]
-        if cells.dtype != np.uint64 or counts.dtype != np.uint32 or counts.ndim != 2 or counts.shape != (cells.size, A):
-            raise ModelFileError(f"{path} has cells of depth {n} with the wrong type or shape; learn the model again.")
-        if cells.size > 1 and not np.all(cells[1:] > cells[:-1]):
-            raise ModelFileError(f"{path} has unsorted cells at depth {n}; learn the model again.")
-        tables[n] = (cells, counts)
-    known = set(CellPredictor().get_params())
-    model = CellPredictor(**{k: v for k, v in params.items() if k in known})
-    try:
-        K_b = int(baseline["max_order"])
-        model._install(
-            alphabet, tuple(ladder), bool(header["reverse_complement"]), K_b, tables,
-            int(training["symbols"]), int(training["segments"]), 0,
-        )
-    except (KeyError, TypeError, ValueError) as exc:
-        raise ModelFileError(f"{path} does not describe a consistent model ({exc}); learn the model again.") from None
-    model.pruned_cells_ = int(training.get("pruned_cells", 0))
-    reader = header.get("reader", {})
-    if not isinstance(reader, dict):
-        raise ModelFileError(f"{path} has a damaged reader section in its header; learn the model again.")
-    model.reader_ = reader
-    return model

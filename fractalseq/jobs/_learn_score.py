@@ -1,0 +1,303 @@
+"""Learning a predictor from files and scoring files with it: the policy behind ``learn`` and ``score``.
+
+Decisions that belong to the job, not to the command line:
+
+* several training logs are read over the **union of their templates**, so no
+  file's events become unknown to the model;
+* numeric inputs binned by quantiles are **cut at the quantiles of all training
+  files together**, and those cut points are **kept in the model** (``reader_``)
+  so that ``score`` reads new data with the same symbols;
+* scoring with a model reads new data with the model's alphabet and reader options
+  unless others are given; log lines whose template the model never saw are not
+  scored but listed (``unseen_templates``);
+* the JSON documents of ``learn --json`` (:class:`LearnReport`) and ``score --json``
+  (:class:`ScoreReport`) are generated from these results, so a Python caller and the
+  command line get the same document for the same arguments.
+
+Genomic output is for research, not for clinical decisions; surprise scores of event
+logs are no security guarantee.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Iterable, Sequence
+
+from fractalseq.alphabet import Alphabet
+from fractalseq.errors import FractalseqError, InputError, ParameterError
+from fractalseq.predict._online import evaluate_online
+from fractalseq.predict._predictor import CellPredictor
+from fractalseq.predict._results import DEFAULT_TOP_WINDOWS, DEFAULT_WINDOW, PredictionResult
+from fractalseq.results import Result
+
+RESEARCH_NOTE = "Genomic output is for research, not for clinical decisions."
+LOG_NOTE = "Surprise scores of event logs are no security guarantee."
+#: Quantile bins of numeric input when the reader options give none (the reader's default).
+DEFAULT_BINS = 4
+
+
+def caution(alphabets: Iterable[Any]) -> str:
+    """The caution that fits the inputs: logs (template alphabets) or sequences."""
+    return LOG_NOTE if any(getattr(a, "name", "") == "templates" for a in alphabets) else RESEARCH_NOTE
+
+
+def _is_templates(alphabet) -> bool:
+    return getattr(alphabet, "name", None) == "templates"
+
+
+def _open(path: str, fmt: str, alphabet, policy: str, reader: dict):
+    from fractalseq.sources import open_source
+
+    return open_source(path, fmt=fmt, alphabet=alphabet, policy=policy, **reader)
+
+
+def training_reader(paths: Sequence[str], fmt: str, reader: dict) -> dict:
+    """Reader options that cut numeric training files at the quantiles of all of them together.
+
+    Unchanged when the input is not numeric, or when ``reader`` fixes the cut points
+    (``thresholds``) or asks for ordinal patterns.
+    """
+    from fractalseq.sources import detect_format, shared_quantile_edges
+
+    if not paths or "thresholds" in reader or reader.get("ordinal"):
+        return dict(reader)
+    kind = fmt
+    if fmt == "auto" and paths[0] != "-":
+        try:
+            kind = detect_format(paths[0])
+        except FractalseqError:
+            return dict(reader)  # reading the file will say what is wrong
+    if kind != "numeric":
+        return dict(reader)
+    edges = shared_quantile_edges(list(paths), int(reader.get("bins", DEFAULT_BINS)), reader.get("column"))
+    out = {k: v for k, v in reader.items() if k != "bins"}
+    out["thresholds"] = tuple(float(e) for e in edges)
+    return out
+
+
+def training_alphabet(paths: Sequence[str], fmt: str, alphabet, policy: str, reader: dict):
+    """The alphabet to read training files with: the union of their log templates when they are several logs."""
+    if len(paths) < 2 or fmt not in ("log", "auto") or "-" in paths:
+        return alphabet
+    from fractalseq.compare._distances import joint_alphabet
+
+    streams = [_open(p, fmt, alphabet, policy, reader) for p in paths]
+    if not all(_is_templates(s.alphabet) for s in streams):
+        return alphabet
+    return joint_alphabet([s.alphabet for s in streams])
+
+
+# ------------------------------------------------------------------- learn
+@dataclass(frozen=True)
+class DepthCells(Result):
+    """Cells stored at one depth and the observations they hold."""
+
+    depth: int
+    cells: int
+    observations: int
+
+
+@dataclass(frozen=True)
+class LearnReport(Result):
+    """A model learned from files: what it holds and how it was read (the ``learn --json`` document).
+
+    ``predictor`` is the fitted :class:`~fractalseq.predict._predictor.CellPredictor` (not in the JSON form);
+    ``model`` is the file it was written to (``None`` when not saved).
+    """
+
+    model: str | None
+    alphabet: dict
+    inputs: tuple[dict, ...]
+    symbols: int
+    segments: int
+    cell_depths: tuple[int, ...]
+    stored_depths: tuple[DepthCells, ...]
+    reverse_complement: bool
+    cells: int
+    max_cells: int
+    pruned_cells: int
+    baseline_order: int
+    baseline_training_bits_per_symbol: float
+    params: dict
+    note: str
+    predictor: CellPredictor = field(repr=False, compare=False, metadata={"json": False})
+
+
+def learn_files(
+    paths: Sequence[str],
+    *,
+    out: str | Path | None = None,
+    force: bool = False,
+    fmt: str = "auto",
+    alphabet: str | Alphabet = "dna",
+    policy: str = "break",
+    reader: dict | None = None,
+    params: dict | None = None,
+    on_input: Callable[[str], None] | None = None,
+) -> LearnReport:
+    """Learn a :class:`~fractalseq.predict._predictor.CellPredictor` from training files (and save it).
+
+    Parameters
+    ----------
+    paths:
+        Training files (``-`` for standard input); each is its own segment, so no context spans two files.
+    out, force:
+        Model file to write (``None``: do not save); ``force`` overwrites an existing file.
+    fmt, alphabet, policy:
+        How to read the files (see :func:`fractalseq.sources.open_source`).
+    reader:
+        Numeric reader options (``column``, ``bins``, ``thresholds``, ``ordinal``); quantile cuts are
+        taken over all training files and kept in the model.
+    params:
+        Parameters of the predictor (``depths``, ``max_depth``, ``smoothing``, ``discount``, ``max_cells``,
+        ``reverse_complement``...).
+    on_input:
+        Called with each file's name once it is counted (progress display).
+    """
+    from fractalseq.words._corpus import count_inputs
+
+    paths = [str(p) for p in paths]
+    if not paths:
+        raise ParameterError("Give at least one training file.", parameter="paths")
+    model = CellPredictor(**(params or {}))
+    read = training_reader(paths, fmt, dict(reader or {}))
+    read_alpha = training_alphabet(paths, fmt, alphabet, policy, read)
+    read_fmt = "log" if _is_templates(read_alpha) else fmt
+    wc, reports = count_inputs(
+        ((p, _open(p, read_fmt, read_alpha, policy, read)) for p in paths), model.count_depth, on_input=on_input,
+    )
+    if wc.length == 0:
+        raise InputError("The training inputs hold no usable symbols; check the files and the alphabet and format they are read with.")
+    model.fit_counts(wc, reader=read)
+    if out is not None:
+        model.save(out, force=force)
+    rows = tuple(
+        DepthCells(n, int(model.cells_[n].size), int(model.counts_[n].sum(dtype="int64"))) for n in model.depths_
+    )
+    return LearnReport(
+        model=None if out is None else str(out),
+        alphabet=model.alphabet_.to_dict(),
+        inputs=tuple({"name": p, **r.to_dict()} for p, r in reports),
+        symbols=model.n_symbols_,
+        segments=model.n_segments_,
+        cell_depths=model.ladder_,
+        stored_depths=rows,
+        reverse_complement=model.reverse_complement_,
+        cells=model.n_cells_,
+        max_cells=model.max_cells_,
+        pruned_cells=model.pruned_cells_,
+        baseline_order=model.baseline_order_,
+        baseline_training_bits_per_symbol=model.baseline_bits_[model.baseline_order_],
+        params=model.get_params(),
+        note=caution([model.alphabet_]),
+        predictor=model,
+    )
+
+
+# ------------------------------------------------------------------- score
+@dataclass(frozen=True)
+class SourceScore(PredictionResult):
+    """The score of one file: the predictor's result plus how the file was read.
+
+    ``name`` is the path as given; ``stream_name`` the reader's name of the stream; ``dropped`` the
+    symbols or lines left out by reason; ``unseen_templates`` the log templates the model never saw
+    (their lines were not scored; empty for other inputs).
+    """
+
+    stream_name: str = ""
+    alphabet: dict = field(default_factory=dict)
+    dropped: dict = field(default_factory=dict)
+    unseen_templates: tuple = ()
+
+
+@dataclass(frozen=True)
+class ScoreReport(Result):
+    """Scores of several files (the ``score --json`` document): all together, then per file."""
+
+    mode: str
+    model: str | None
+    bits_per_symbol: float
+    total_bits: float
+    length: int
+    sources: tuple[SourceScore, ...]
+    note: str
+
+
+def score_files(
+    paths: Sequence[str],
+    model: CellPredictor | str | Path | None = None,
+    *,
+    online: bool = False,
+    fmt: str = "auto",
+    alphabet: str | Alphabet | None = None,
+    policy: str = "break",
+    reader: dict | None = None,
+    window: int = DEFAULT_WINDOW,
+    top: int = DEFAULT_TOP_WINDOWS,
+    params: dict | None = None,
+    on_source: Callable[[str], None] | None = None,
+) -> ScoreReport:
+    """Score files with a fitted model (a model file or object) or online (``online=True``, a fresh model per file).
+
+    Parameters
+    ----------
+    paths:
+        Files to score (``-`` for standard input).
+    model:
+        A fitted :class:`~fractalseq.predict._predictor.CellPredictor` or the path of a model file; ``None`` with ``online``.
+    online:
+        Predict each symbol from the file's own past, then learn it (no model).
+    fmt, alphabet, policy:
+        How to read the files; ``alphabet=None`` means the model's alphabet (``dna`` online).
+    reader:
+        Numeric reader options; empty or ``None`` means the model's own (its training cut points).
+    window, top:
+        Window (symbols) of the per-window code lengths and how many of the most surprising to list.
+    params:
+        Online mode: parameters of the predictor (``depths``, ``smoothing``, ``learning_rate``...).
+    on_source:
+        Called with each file's name once it is scored (progress display).
+    """
+    if (model is None) == (not online):
+        raise ParameterError("Give either a model (fitted mode) or online=True (no model), not both or neither.", parameter="model")
+    model_name = None
+    if isinstance(model, (str, Path)):
+        model_name = str(model)
+        model = CellPredictor.load(model)
+    read_alpha = alphabet if alphabet is not None else (model.alphabet_ if model is not None else "dna")
+    read = dict(reader or {})
+    if model is not None and not read:
+        read = {k: (tuple(v) if isinstance(v, list) else v) for k, v in model.reader_.items()}
+    scored, alphabets = [], []
+    for p in map(str, paths):
+        stream = _open(p, fmt, read_alpha, policy, read)
+        if model is not None:
+            res = model.evaluate(stream, window=window, top_windows=top)
+        else:
+            res = evaluate_online(stream, window=window, top_windows=top, **(params or {}))
+        if res.length == 0:
+            raise InputError(f"{p} holds no usable symbols; check the file and the alphabet and format it is read with.")
+        rep = stream.report
+        alphabets.append(stream.alphabet)
+        values = {f.name: getattr(res, f.name) for f in dataclasses.fields(res)}
+        values["name"] = p
+        scored.append(SourceScore(
+            **values, stream_name=res.name, alphabet=stream.alphabet.to_dict(), dropped=dict(sorted(rep.dropped.items())),
+            # log lines whose template the model never saw: not scored (the policy left them out), listed here
+            unseen_templates=tuple(rep.extra.get("unlisted_templates", ())),
+        ))
+        if on_source is not None:
+            on_source(p)
+    total_bits = sum(s.total_bits for s in scored)
+    length = sum(s.length for s in scored)
+    return ScoreReport(
+        mode="fitted" if model is not None else "online",
+        model=model_name,
+        bits_per_symbol=total_bits / length if length else float("nan"),
+        total_bits=total_bits,
+        length=length,
+        sources=tuple(scored),
+        note=caution(alphabets),
+    )
