@@ -67,7 +67,7 @@ def test_learn_json_of_the_job_and_the_command_line_are_identical(tmp_path: Path
     capsys.readouterr()
     assert main(["learn", *paths, "-f", "log", "-o", str(out), "--force", "--json", "-q"]) == 0
     assert capsys.readouterr().out == python
-    assert sorted(json.loads(python)["alphabet"]["symbols"]) == ["svc drain <num>", "svc sync <num>", "svc up <num>"]
+    assert sorted(json.loads(python)["alphabet"]["symbols"]) == ["svc drain <*>", "svc sync <*>", "svc up <*>"]
 
 
 def test_score_needs_a_model_or_online():
