@@ -143,7 +143,7 @@ def write_container(path: str | Path, header: dict[str, Any], arrays: dict[str, 
 
 # ------------------------------------------------------------------ reading
 def read_container(path: str | Path, expected_format: str, max_bytes: int = DEFAULT_MAX_BYTES,
-                   expected_version: int = 1) -> tuple[dict[str, Any], dict[str, np.ndarray]]:
+                   expected_version: int = 1, remedy: str | None = None) -> tuple[dict[str, Any], dict[str, np.ndarray]]:
     """Read and verify a file written by :func:`write_container` (or numpy's ``savez`` with the same layout).
 
     Parameters
@@ -157,6 +157,9 @@ def read_container(path: str | Path, expected_format: str, max_bytes: int = DEFA
         declaring more is refused before anything is decompressed.
     expected_version:
         The header's ``version`` the caller reads.
+    remedy:
+        The fix to name in a refusal instead of the generic one (e.g. "learn the model
+        again"); each refusal is "problem; fix."
 
     Returns
     -------
@@ -176,12 +179,22 @@ def read_container(path: str | Path, expected_format: str, max_bytes: int = DEFA
     if path.is_dir():
         raise InputError(f"{path} is a folder, not a {expected_format} file; give the .npz file.")
     try:
+        return _read_file(path, expected_format, int(max_bytes), expected_version)
+    except ModelFileError as exc:
+        if remedy is None:
+            raise
+        problem = str(exc).rsplit("; ", 1)[0]
+        raise ModelFileError(f"{problem}; {remedy}.") from None
+
+
+def _read_file(path: Path, kind: str, max_bytes: int, version: int) -> tuple[dict[str, Any], dict[str, np.ndarray]]:
+    try:
         with open(path, "rb") as raw:
             start = raw.read(8)
-            _refuse_non_zip(path, start, expected_format)
+            _refuse_non_zip(path, start, kind)
             raw.seek(0)
             with zipfile.ZipFile(raw) as zf:
-                return _read_zip(path, zf, expected_format, int(max_bytes), expected_version)
+                return _read_zip(path, zf, kind, max_bytes, version)
     except ModelFileError:
         raise
     except (zipfile.BadZipFile, zipfile.LargeZipFile, EOFError, zlib.error, OSError, ValueError,

@@ -7,8 +7,10 @@ and builds itself from one (:meth:`~fractalseq.predict._predictor.CellPredictor.
 
 Format (version 1)
 ------------------
-A ZIP archive in numpy's ``.npz`` layout (``numpy.savez_compressed``) whose
-members are plain arrays only, so it loads with ``allow_pickle=False``:
+A ZIP archive in numpy's ``.npz`` layout written and read by the
+checksummed container (:mod:`fractalseq.io._npz`), whose members are plain
+numeric arrays only; the header also lists each array's dtype and shape
+(``arrays``), checked before anything is decompressed:
 
 ``header``
     ``uint8`` bytes of a UTF-8 JSON object::
@@ -45,10 +47,6 @@ anything else with one sentence (:class:`~fractalseq.errors.ModelFileError`).
 from __future__ import annotations
 
 import hashlib
-import io
-import json
-import zipfile
-import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -56,7 +54,7 @@ from typing import Any
 import numpy as np
 
 from fractalseq.errors import InputError, ModelFileError
-from fractalseq.io._outputs import write_bytes
+from fractalseq.io._npz import DEFAULT_MAX_BYTES, read_container, write_container
 
 FORMAT = "fractalseq-model"
 VERSION = 1
@@ -105,73 +103,36 @@ def _digest(a: np.ndarray) -> str:
 
 
 def write_state(state: ModelState, path: str | Path, force: bool = False) -> Path:
-    """Write a model state atomically (refuses to overwrite without ``force``)."""
+    """Write a model state atomically through the checksummed container (refuses to overwrite without ``force``)."""
     from fractalseq import __version__
 
     arrays = {k: np.ascontiguousarray(v) for k, v in state.arrays.items()}
     header = {k: v for k, v in state.header.items() if k not in _ENVELOPE}
-    header.update(
-        format=FORMAT, version=VERSION, sha256={k: _digest(v) for k, v in arrays.items()},
-        software=f"fractalseq {__version__}",
-    )
-    buf = io.BytesIO()
-    head = np.frombuffer(json.dumps(header, sort_keys=True).encode("utf-8"), dtype=np.uint8)
-    np.savez_compressed(buf, header=head, **arrays)
-    return write_bytes(path, buf.getvalue(), force=force)
+    header.update(format=FORMAT, version=VERSION, software=f"fractalseq {__version__}")
+    return write_container(path, header, arrays, force=force)
 
 
-def read_header(path: str | Path) -> dict:
-    """The JSON header of a model file (checked like :func:`read_state`, arrays not verified)."""
-    data = _read_arrays(Path(path), only_header=True)
-    return _parse_header(data, Path(path))
+def read_header(path: str | Path, max_bytes: int = DEFAULT_MAX_BYTES) -> dict:
+    """The JSON header of a model file (the whole file is checked as by :func:`read_state`)."""
+    return read_state(path, max_bytes).header
 
 
-def read_state(path: str | Path) -> ModelState:
-    """Read a model file and verify its header and the checksum of every array (never uses pickle)."""
+def read_state(path: str | Path, max_bytes: int = DEFAULT_MAX_BYTES) -> ModelState:
+    """Read a model file as hostile input: members, dtypes, shapes and declared sizes are checked before
+    anything is decompressed (:func:`fractalseq.io._npz.read_container`), then every checksum; never pickle.
+
+    Parameters
+    ----------
+    path:
+        The model file.
+    max_bytes:
+        Cap on the arrays' total declared size (a file declaring more is refused before reading).
+    """
     path = Path(path)
-    data = _read_arrays(path)
-    header = _parse_header(data, path)
-    sums = header.get("sha256")
-    if not isinstance(sums, dict):
-        raise ModelFileError(f"{path} has an incomplete model header; learn the model again.")
-    for name, digest in sums.items():
-        if name not in data:
-            raise ModelFileError(f"{path} lacks the array {name!r}; the file is truncated or damaged, learn the model again.")
-        if _digest(data[name]) != digest:
-            raise ModelFileError(f"{path} is damaged: array {name!r} fails its checksum; learn the model again.")
-    arrays = {k: v for k, v in data.items() if k in sums}
-    return ModelState(header=header, arrays=arrays, origin=str(path))
-
-
-def _read_arrays(path: Path, only_header: bool = False) -> dict[str, np.ndarray]:
     if not path.exists():
         raise InputError(f"Model file {path} does not exist; check the path or run 'fractalseq learn' first.")
     if path.is_dir():
         raise InputError(f"{path} is a folder, not a model file; give the file written by 'fractalseq learn'.")
-    try:
-        with np.load(path, allow_pickle=False) as z:
-            names = list(z.files)
-            if only_header:
-                names = [n for n in names if n == "header"]
-            return {k: z[k] for k in names}
-    except (zipfile.BadZipFile, EOFError, zlib.error, OSError, ValueError, KeyError) as exc:
-        what = "truncated or damaged" if not isinstance(exc, ValueError) or "pickle" not in str(exc) else "holds pickled objects"
-        raise ModelFileError(f"{path} is not a readable fractalseq model file ({what}); learn the model again.") from None
-
-
-def _parse_header(data: dict, path: Path) -> dict:
-    if "header" not in data:
-        raise ModelFileError(f"{path} has no model header; it is not a fractalseq model file.")
-    try:
-        header = json.loads(bytes(np.asarray(data["header"], dtype=np.uint8)).decode("utf-8"))
-    except (ValueError, UnicodeDecodeError, TypeError):
-        raise ModelFileError(f"{path} has a damaged model header; learn the model again.") from None
-    if not isinstance(header, dict) or header.get("format") != FORMAT:
-        fmt = header.get("format") if isinstance(header, dict) else None
-        raise ModelFileError(f"{path} is a {fmt!r} file, not a fractalseq model; give a file written by 'fractalseq learn'.")
-    if header.get("version") != VERSION:
-        raise ModelFileError(
-            f"{path} is model-file version {header.get('version')!r} but this fractalseq reads version {VERSION}; "
-            "learn the model again with this version."
-        )
-    return header
+    header, arrays = read_container(path, FORMAT, max_bytes=max_bytes, expected_version=VERSION,
+                                    remedy="learn the model again (fractalseq learn)")
+    return ModelState(header=header, arrays=arrays, origin=str(path))

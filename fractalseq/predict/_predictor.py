@@ -87,6 +87,11 @@ _INDEX_ATTRS = ("_dstart", "_addr", "_counts", "_depth_arr", "_beta", "_disc", "
 
 
 # ------------------------------------------------------------- fitted mode
+def _lower_first(text: str) -> str:
+    """A sentence used inside another one: its first letter in lower case."""
+    return text[:1].lower() + text[1:]
+
+
 def _check_fitted(model: "CellPredictor") -> None:
     if not hasattr(model, "cells_"):
         raise ParameterError("This predictor is not fitted yet; call fit() or load a model file first.")
@@ -588,9 +593,20 @@ class CellPredictor:
         reader = header.get("reader", {})
         if not isinstance(reader, dict):
             raise ModelFileError(f"{where} has a damaged reader section in its header; learn the model again.")
-        tables = state.tables(depths, alphabet.size)
         known = set(cls().get_params())
         model = cls(**{k: v for k, v in params.items() if k in known})
+        lr = model.learning_rate
+        try:  # the header's settings are checked exactly as fit checks them, before any table is trusted
+            expected_ladder, _ = model._validate(alphabet)
+            if not (isinstance(lr, (int, float)) and not isinstance(lr, bool) and 0 <= lr < 1):
+                raise ParameterError(f"the learning rate must lie in [0, 1), not {lr!r}", parameter="learning_rate")
+        except (ParameterError, TypeError, ValueError) as exc:
+            raise ModelFileError(
+                f"{where} declares settings no model can have ({_lower_first(str(exc).rstrip('.'))}); learn the model again."
+            ) from None
+        if tuple(expected_ladder) != ladder or K_b < 0 or sorted(set(depths)) != sorted(set(range(K_b + 1)) | set(ladder)):
+            raise ModelFileError(f"{where} lists cell depths that do not match its settings; learn the model again.")
+        tables = state.tables(depths, alphabet.size)
         try:
             model._install(alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, 0, reader)
         except (KeyError, TypeError, ValueError) as exc:

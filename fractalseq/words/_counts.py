@@ -371,7 +371,8 @@ class WordCounts:
             Cap on the arrays' total declared size; a file declaring more is refused
             before anything is decompressed.
         """
-        header, data = read_container(path, FILE_FORMAT, max_bytes=max_bytes, expected_version=FILE_VERSION)
+        header, data = read_container(path, FILE_FORMAT, max_bytes=max_bytes, expected_version=FILE_VERSION,
+                                      remedy="count the input again")
         return cls._from_header(header, data, str(path))
 
     @classmethod
