@@ -15,6 +15,9 @@ from fractalseq.cli.app import main
 from fractalseq.report.figures import fig_to_png, figure, style
 from fractalseq.report.html import HtmlReport
 
+#: Whole processes or many of them: part of every CI run; skip in a quick loop with -m 'not slow'.
+pytestmark = pytest.mark.slow
+
 EVIL = "<script>alert(1)</script>"
 
 

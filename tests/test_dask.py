@@ -21,6 +21,9 @@ from fractalseq.words._counts import count_words
 
 from _paths import LAMBDA
 
+#: Whole processes or many of them: part of every CI run; skip in a quick loop with -m 'not slow'.
+pytestmark = pytest.mark.slow
+
 
 @pytest.fixture(scope="module")
 def client():

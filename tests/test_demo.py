@@ -18,6 +18,9 @@ import pytest
 
 from browser_check import check_report_in_browser
 
+#: Whole processes or many of them: part of every CI run; skip in a quick loop with -m 'not slow'.
+pytestmark = pytest.mark.slow
+
 
 def _run_demo(folder: Path, extra: list[str]) -> subprocess.CompletedProcess:
     cmd = [sys.executable, "-m", "fractalseq.cli", "demo", "--out", str(folder), "--json", "--quiet"] + extra

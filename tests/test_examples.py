@@ -23,6 +23,9 @@ import pytest
 from fractalseq.datasets import _scenario as scenario
 
 from _paths import ROOT
+
+#: Whole processes or many of them: part of every CI run; skip in a quick loop with -m 'not slow'.
+pytestmark = pytest.mark.slow
 EXAMPLES = ("profile_a_sample", "compare_samples", "predict_next_symbol", "relay_log_drift")
 
 

@@ -40,6 +40,9 @@ from pathlib import Path
 
 import pytest
 
+#: Whole processes or many of them: part of every CI run; skip in a quick loop with -m 'not slow'.
+pytestmark = pytest.mark.slow
+
 HERE = Path(__file__).resolve().parent
 CONTRACTS = HERE / "contracts"
 REFERENCE = HERE.parent / "reference"

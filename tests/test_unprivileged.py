@@ -82,6 +82,9 @@ def test_configure_leaves_a_given_cache_dir_alone(monkeypatch, tmp_path):
 _PROBE = r"""
 import json, sys, sysconfig
 from fractalseq.cli.app import main
+
+#: Whole processes or many of them: part of every CI run; skip in a quick loop with -m 'not slow'.
+pytestmark = pytest.mark.slow
 try:
     main(sys.argv[1:])
 except SystemExit:
