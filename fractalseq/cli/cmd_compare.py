@@ -260,10 +260,8 @@ def drift(
 
 
 def _safe(text: object) -> str:
-    """Text from the input made safe for the terminal: control characters shown as ``?``, rich markup escaped."""
-    from rich.markup import escape
-
-    return escape("".join(ch if ch.isprintable() else "?" for ch in str(text)))
+    """Text from the input made safe for the terminal (the consoles never interpret markup)."""
+    return common.safe(str(text))
 
 
 def _print_novelty(nov) -> None:

@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import typer
+from rich.text import Text
 from rich.table import Table
 
 from fractalseq.cli import common
@@ -34,7 +35,7 @@ def demo(
 
     prepare_folder(out, force)  # refuse a file or a non-empty folder before any work
     if not quiet and not json_out:
-        common.err_console.print(f"[bold]{SCENARIO_NOTE}[/bold]")
+        common.err_console.print(Text(SCENARIO_NOTE, style="bold"))
     with common.err_console.status("starting", spinner="dots") if not quiet else _Null() as status:
         def step(text: str) -> None:
             if status is not None:
@@ -57,7 +58,7 @@ def demo(
         est = f"{r.estimate:.3f}" if isinstance(r.estimate, float) else str(r.estimate)
         ci = f"{r.low:.3f}–{r.high:.3f}" if r.low is not None and r.high is not None else ""
         truth = f"{r.truth:.3f}" if isinstance(r.truth, float) else str(r.truth)
-        inside = "" if r.within is None else ("[green]yes[/green]" if r.within else "[red]no[/red]")
+        inside = Text("") if r.within is None else (Text("yes", style="green") if r.within else Text("no", style="red"))
         table.add_row(r.subject, r.figure, est, ci, truth, inside)
     common.out_console.print(table)
     common.out_console.print(f"Report: {out / 'index.html'}  ({result.seconds:.1f} s)")

@@ -8,6 +8,7 @@ from typing import List, Optional
 
 import typer
 from rich.table import Table
+from rich.text import Text
 
 from fractalseq.cli import common
 from fractalseq.cli.inputs import reader, safe_stem
@@ -80,7 +81,7 @@ RATE_SHORT = {
 def _print_tables(result, quiet: bool) -> None:
     con = common.out_console
     d = result.to_dict()
-    t = Table(title=f"{result.name}: {result.length:,} symbols, {result.segments:,} segment(s), "
+    t = Table(title=f"{common.safe(result.name)}: {result.length:,} symbols, {result.segments:,} segment(s), "
                     f"{result.alphabet.name} (A = {result.alphabet_size}), k = {result.ratio:g}; rates in bits/symbol")
     t.add_column("quantity", no_wrap=True)
     t.add_column("estimate", justify="right", no_wrap=True)
@@ -116,8 +117,27 @@ def _print_tables(result, quiet: bool) -> None:
         t.add_row(f"consistency q={r['q']:g}", r["verdict"], "",
                   f"{_fmt(r['dimension_bits'])} vs {_fmt(r['entropy_bits'])}")
     con.print(t)
+    _print_templates(result.read)
     for n in () if quiet else result.notes:
         common.err_console.print(f"note: {n}", markup=False, highlight=False)
+
+
+#: Templates listed under a log's profile table (all of them are in the JSON and the report).
+TOP_TEMPLATES = 10
+
+
+def _print_templates(read: dict | None) -> None:
+    """The most frequent event templates of a log input, escaped for the terminal."""
+    templates = (read or {}).get("templates") or []
+    if not templates:
+        return
+    t = Table(title=f"most frequent templates ({min(len(templates), TOP_TEMPLATES)} of {len(templates):,})")
+    t.add_column("count", justify="right", no_wrap=True)
+    t.add_column("first line", justify="right", no_wrap=True)
+    t.add_column("template")
+    for row in sorted(templates, key=lambda r: (-int(r["count"]), int(r["first_line"])))[:TOP_TEMPLATES]:
+        t.add_row(f"{int(row['count']):,}", f"{int(row['first_line']):,}", Text(common.safe(str(row["template"]))))
+    common.out_console.print(t)
 
 
 def profile(

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 from typing import List, Optional
 
@@ -12,31 +11,8 @@ from rich.table import Table
 from rich.text import Text
 
 from fractalseq.cli import common
+from fractalseq.cli.common import json_safe, safe
 from fractalseq.io._outputs import check_writable, prepare_folder, to_json, write_csv, write_text
-
-# characters that a terminal could act on: C0 and C1 controls, DEL, and the bidirectional-text controls
-_UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
-_NAMED = {"\t": "\\t", "\r": "\\r", "\n": "\\n"}
-
-
-def _escape_char(m: re.Match) -> str:
-    c = m.group(0)
-    named = _NAMED.get(c)
-    if named:
-        return named
-    o = ord(c)
-    return f"\\x{o:02x}" if o < 0x100 else f"\\u{o:04x}"
-
-
-def safe(text: str) -> str:
-    """``text`` with every terminal control character shown as an escape (``\\x1b``, ``\\r``, ``\\u202e``)."""
-    return _UNSAFE.sub(_escape_char, text)
-
-
-def _json_safe(doc: str) -> str:
-    # JSON escapes C0 controls itself; DEL, C1 and bidirectional controls are legal raw, so escape them too
-    return re.sub("[\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]", lambda m: f"\\u{ord(m.group(0)):04x}", doc)
-
 
 def _fields_text(t: dict) -> str:
     parts = []
@@ -85,7 +61,7 @@ def templates(
             for note in log.notes():
                 common.err_console.print(Text(f"{safe(log.name)}: {note}"))
     if json_out:
-        typer.echo(_json_safe(to_json(run.to_dict())), nl=False)
+        typer.echo(json_safe(to_json(run.to_dict())), nl=False)
         return
     _print_table(run)
     if not quiet:

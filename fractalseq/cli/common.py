@@ -9,6 +9,8 @@ from __future__ import annotations
 
 from typing import Any
 
+import re
+
 import typer
 from rich.console import Console
 
@@ -107,9 +109,11 @@ def option_hint(parameter: str | None) -> str:
     return f" (option {option})" if option else ""
 
 
-#: Standard error console for progress and notes (standard output stays clean for --json).
-err_console = Console(stderr=True)
-out_console = Console()
+#: Standard error console for progress and notes (standard output stays clean for --json).  Neither console
+#: interprets rich markup: names, paths and templates come from the input and are printed as they are (styles
+#: are given as Text objects); control characters go through :func:`safe`.
+err_console = Console(stderr=True, markup=False)
+out_console = Console(markup=False)
 
 
 def progress(quiet: bool):
@@ -129,3 +133,29 @@ def progress(quiet: bool):
         disable=quiet or not err_console.is_terminal,
         transient=True,
     )
+
+
+# characters that a terminal could act on: C0 and C1 controls, DEL, and the bidirectional-text controls
+_UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+_NAMED = {"\t": "\\t", "\r": "\\r", "\n": "\\n"}
+
+
+def _escape_char(m: re.Match) -> str:
+    c = m.group(0)
+    named = _NAMED.get(c)
+    if named:
+        return named
+    o = ord(c)
+    return f"\\x{o:02x}" if o < 0x100 else f"\\u{o:04x}"
+
+
+def safe(text: str) -> str:
+    """``text`` from the input with every terminal control character shown as an escape (``\\x1b``, ``\\r``,
+    ``\\u202e``): the one sanitiser for strings from input on their way to a terminal."""
+    return _UNSAFE.sub(_escape_char, text)
+
+
+def json_safe(doc: str) -> str:
+    """A JSON document with DEL, C1 and bidirectional controls escaped too (JSON escapes C0 itself)."""
+    # JSON escapes C0 controls itself; DEL, C1 and bidirectional controls are legal raw, so escape them too
+    return re.sub("[\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]", lambda m: f"\\u{ord(m.group(0)):04x}", doc)

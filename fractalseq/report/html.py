@@ -186,8 +186,14 @@ def _sort_key(value: Any) -> str | None:
     return None
 
 
+#: Characters a page should never carry raw: C0/C1 controls (but tab and newline), DEL, bidirectional controls.
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+
+
 def _esc(text: Any) -> str:
-    return html.escape(str(text), quote=True)
+    """HTML-escaped text with control characters shown as visible escapes (``\\x1b``)."""
+    shown = _CONTROL.sub(lambda m: f"\\x{ord(m.group(0)):02x}" if ord(m.group(0)) < 0x100 else f"\\u{ord(m.group(0)):04x}", str(text))
+    return html.escape(shown, quote=True)
 
 
 class HtmlReport:

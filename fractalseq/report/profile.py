@@ -38,6 +38,9 @@ from fractalseq.report.html import HtmlReport, Link
 if TYPE_CHECKING:  # for annotations only: the report never imports the jobs layer at run time
     from fractalseq.jobs._profile import ProfileResult
 
+#: Event templates listed in the report of a log (the JSON keeps all of them).
+TOP_TEMPLATES = 20
+
 FIGURES = ("encoding.png", "scaling.png", "spectrum.png", "falpha.png", "entropies.png")
 GENOMIC_ALPHABETS = ("dna", "rna", "protein")
 
@@ -365,6 +368,12 @@ def profile_page(result: ProfileResult, pngs: dict[str, bytes], caution: str, fi
     if recs:
         page.table(["record", "start", "length"], [[r.get("name"), r.get("start"), r.get("length")] for r in recs],
                    caption=f"Records ({rd.get('records_total', len(recs))} in all)")
+    templates = rd.get("templates") or []
+    if templates:
+        top = sorted(templates, key=lambda r: (-int(r["count"]), int(r["first_line"])))[:TOP_TEMPLATES]
+        page.table(["count", "first line", "template", "example"],
+                   [[int(r["count"]), int(r["first_line"]), str(r["template"]), str(r.get("example", ""))] for r in top],
+                   caption=f"Most frequent event templates ({len(top)} of {len(templates):,}; all are in profile.json)")
     if rd.get("notes"):
         page.note("Reader notes", [str(n) for n in rd["notes"]])
     page.key_values([("bootstrap replicates", result.n_boot), ("seed", result.seed), ("confidence level", result.level),
