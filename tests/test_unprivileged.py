@@ -37,6 +37,9 @@ import pytest
 
 from fractalseq import _numba_cache
 
+#: Whole processes or many of them: part of every CI run; skip in a quick loop with -m 'not slow'.
+pytestmark = pytest.mark.slow
+
 ROOT = Path(__file__).resolve().parents[1]
 AS_ROOT = hasattr(os, "geteuid") and os.geteuid() == 0
 needs_root = pytest.mark.skipif(not AS_ROOT, reason="switching to the user nobody needs root")
@@ -83,8 +86,6 @@ _PROBE = r"""
 import json, sys, sysconfig
 from fractalseq.cli.app import main
 
-#: Whole processes or many of them: part of every CI run; skip in a quick loop with -m 'not slow'.
-pytestmark = pytest.mark.slow
 try:
     main(sys.argv[1:])
 except SystemExit:
