@@ -23,7 +23,7 @@ count of the cell is halved (rounding up).
 
 The loop is written once (:func:`_online_chunk`); the few operations that
 touch a row (:func:`_row_tag`, :func:`_row_total`, :func:`_row_log`,
-:func:`_row_reset`, :func:`_row_bump`, :func:`_row_prefetch`) are chosen by
+:func:`_row_empty`, :func:`_row_reset`, :func:`_row_bump`, :func:`_row_prefetch`) are chosen by
 the type of the row store when the kernel is compiled (``numba.extending.overload``),
 so each layout gets its own machine code with no branch on the layout.  The
 bucket claim is written out in both update loops (forward and reverse
@@ -108,6 +108,10 @@ def _row_total(rows, r):
     """Sum of the counts of row ``r``."""
 
 
+def _row_empty(rows, r):
+    """Whether row ``r`` has never held a cell (no tag, no counts)."""
+
+
 def _row_log(rows, s, k, i, logt, alpha):
     """``log(c_k + alpha_i)`` of count ``k`` of row ``s`` (depth index ``i``)."""
 
@@ -144,6 +148,13 @@ def _ov_total(rows, r):
     if _packed(rows):
         return lambda rows, r: _ptotal(rows[0][r])
     return lambda rows, r: np.int64(rows[3][r])
+
+
+@overload(_row_empty)
+def _ov_empty(rows, r):
+    if _packed(rows):
+        return lambda rows, r: rows[0][r] == 0
+    return lambda rows, r: (np.int64(rows[3][r]) | np.int64(rows[2][r])) == 0
 
 
 @overload(_row_log)
@@ -317,7 +328,7 @@ def _online_chunk(codes, starts, A, b, depth, direct, rbits, offset, limit, alph
                 s = base
                 bt = 1 << 62
                 for k in range(BUCKET):
-                    if _row_total(rows, base + k) == 0 and _row_tag(rows, base + k) == 0:
+                    if _row_empty(rows, base + k):
                         s = base + k
                         bt = -1
                         break
@@ -344,7 +355,7 @@ def _online_chunk(codes, starts, A, b, depth, direct, rbits, offset, limit, alph
                         s = base
                         bt = 1 << 62
                         for k in range(BUCKET):
-                            if _row_total(rows, base + k) == 0 and _row_tag(rows, base + k) == 0:
+                            if _row_empty(rows, base + k):
                                 s = base + k
                                 bt = -1
                                 break
