@@ -22,7 +22,7 @@ Before an increment that would take a count past the depth's limit, every
 count of the cell is halved (rounding up).
 
 The loop is written once (:func:`_online_chunk`); the few operations that
-touch a row (:func:`_row_tag`, :func:`_row_total`, :func:`_row_logs`,
+touch a row (:func:`_row_tag`, :func:`_row_total`, :func:`_row_log`,
 :func:`_row_empty`, :func:`_row_reset`, :func:`_row_bump`, :func:`_row_prefetch`) are chosen by
 the type of the row store when the kernel is compiled (``numba.extending.overload``),
 so each layout gets its own machine code with no branch on the layout.  The
@@ -108,12 +108,12 @@ def _row_total(rows, r):
     """Sum of the counts of row ``r``."""
 
 
-def _row_logs(rows, s, A, i, logt, alpha, lin, q):
-    """``lin[q, k] = log(c_k + alpha_i)`` for the counts of row ``s`` (depth index ``i``); False (nothing written) if the row is empty."""
-
-
 def _row_empty(rows, r):
     """Whether row ``r`` has never held a cell (no tag, no counts)."""
+
+
+def _row_log(rows, s, k, i, logt, alpha):
+    """``log(c_k + alpha_i)`` of count ``k`` of row ``s`` (depth index ``i``)."""
 
 
 def _row_reset(rows, s, tag, A):
@@ -150,33 +150,21 @@ def _ov_total(rows, r):
     return lambda rows, r: np.int64(rows[3][r])
 
 
-@overload(_row_logs)
-def _ov_logs(rows, s, A, i, logt, alpha, lin, q):
-    if _packed(rows):
-        def impl(rows, s, A, i, logt, alpha, lin, q):
-            v = rows[0][s]
-            if _ptotal(v) == 0:
-                return False
-            for k in range(A):
-                lin[q, k] = logt[i, np.int64((v >> np.uint64(12 * k)) & _M12)]
-            return True
-    else:
-        def impl(rows, s, A, i, logt, alpha, lin, q):
-            if rows[3][s] == 0:
-                return False
-            counts = rows[0]
-            for k in range(A):
-                c = np.int64(counts[s, k])
-                lin[q, k] = logt[i, c] if c < LOG_TABLE else math.log(c + alpha[i])
-            return True
-    return impl
-
-
 @overload(_row_empty)
 def _ov_empty(rows, r):
     if _packed(rows):
         return lambda rows, r: rows[0][r] == 0
-    return lambda rows, r: rows[3][r] == 0 and rows[2][r] == 0
+    return lambda rows, r: (np.int64(rows[3][r]) | np.int64(rows[2][r])) == 0
+
+
+@overload(_row_log)
+def _ov_log(rows, s, k, i, logt, alpha):
+    # one expression each: small enough for LLVM to inline (a call would pass every array of the row store)
+    if _packed(rows):
+        return lambda rows, s, k, i, logt, alpha: logt[i, np.int64((rows[0][s] >> np.uint64(12 * k)) & _M12)]
+    return lambda rows, s, k, i, logt, alpha: (
+        logt[i, np.int64(rows[0][s, k])] if rows[0][s, k] < LOG_TABLE else math.log(np.int64(rows[0][s, k]) + alpha[i])
+    )
 
 
 @overload(_row_reset)
@@ -317,8 +305,10 @@ def _online_chunk(codes, starts, A, b, depth, direct, rbits, offset, limit, alph
             if not direct[i]:
                 s = _find(rows, s, ring_ft[r, i])
             row[i] = s
-            if s < 0 or not _row_logs(rows, s, A, i, logt, alpha, lin, nin):
+            if s < 0 or _row_total(rows, s) == 0:
                 continue
+            for k in range(A):
+                lin[nin, k] = _row_log(rows, s, k, i, logt, alpha)
             inp[nin] = i
             nin += 1
             deep = i + 1
