@@ -60,6 +60,7 @@ from fractalseq import alphabet as al  # noqa: E402
 from fractalseq.datasets import _markov as markov  # noqa: E402
 from fractalseq.io._outputs import write_json, write_text  # noqa: E402
 from fractalseq.dimensions._spectrum import binomial_dimension, dimension_spectrum  # noqa: E402
+from fractalseq.resampling import Resampling  # noqa: E402
 from fractalseq.stream import from_codes  # noqa: E402
 
 PHI = (1 + math.sqrt(5)) / 2
@@ -119,8 +120,8 @@ def one(task: tuple) -> dict:
     arr = simulate(name, n, seed)
     truth = truths(name)
     t0 = time.perf_counter()
-    res = dimension_spectrum(arr, qs=QS, ratio=0.5, n_boot=n_boot, seed=rep, scheme=scheme, interval=interval,
-                             falpha=False, rates=True)
+    res = dimension_spectrum(arr, qs=QS, ratio=0.5, falpha=False, rates=True,
+                             resampling=Resampling(n_boot=n_boot, seed=rep, scheme=scheme, interval=interval))
     out: dict = {"source": name, "rep": rep, "block": res.block.length if res.block else None}
     for q in QS:
         d = res.get(q)
@@ -138,7 +139,7 @@ def one(task: tuple) -> dict:
 
     wc = count_words(arr, 12 if arr.alphabet.size == 2 else 6)
     est = entropy.h_difference(wc)
-    est = entropy.bootstrap_rate(est, arr, n_boot=n_boot, seed=rep, scheme=scheme, interval=interval)
+    est = entropy.bootstrap_rate(est, arr, resampling=Resampling(n_boot=n_boot, seed=rep, scheme=scheme, interval=interval))
     out["h_entropy"] = {
         "estimate": est.estimate, "low": est.low, "high": est.high, "order": est.depth,
         "covered": bool(est.low - SLACK <= truth["h"] <= est.high + SLACK),
@@ -147,8 +148,8 @@ def one(task: tuple) -> dict:
     if consistency:
         from fractalseq.dimensions._consistency import consistency_table, verdict
 
-        tab = consistency_table(arr, qs=QS, ratio=0.5, n_boot=max(n_boot // 2, 50), seed=rep, offsets=4,
-                                scheme=scheme, interval=interval)
+        boot = Resampling(n_boot=max(n_boot // 2, 50), seed=rep, scheme=scheme, interval=interval)
+        tab = consistency_table(arr, qs=QS, ratio=0.5, offsets=4, resampling=boot)
         out["verdicts"] = {f"q{int(row.q)}": row.verdict for row in tab.rows}
         # what the verdict would be with the shifted-grid geometry (reported, not used by the table)
         out["verdicts_shifted"] = {

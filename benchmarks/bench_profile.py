@@ -33,6 +33,7 @@ sys.path.insert(0, str(HERE.parent))
 def run_one(path: Path, n_boot: int, seed: int) -> dict:
     from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, contract, profile_source
     from fractalseq.report.profile import is_genomic, write_profile_report
+    from fractalseq.resampling import Resampling
     from fractalseq.sources import open_source
     from fractalseq.words._counts import count_words
 
@@ -43,7 +44,7 @@ def run_one(path: Path, n_boot: int, seed: int) -> dict:
     count_words(arr, min(12, arr.alphabet.max_depth)).spectra()
     t_ref = time.perf_counter() - t0
     t0 = time.perf_counter()
-    res = profile_source(arr, n_boot=n_boot, seed=seed)
+    res = profile_source(arr, resampling=Resampling(n_boot=n_boot, seed=seed))
     t_prof = time.perf_counter() - t0
     with tempfile.TemporaryDirectory() as tmp:
         t0 = time.perf_counter()
@@ -97,9 +98,10 @@ def main() -> int:
     paths = [("lambda", genomes.LAMBDA), (args.genome, genomes.klebsiella()[args.genome])]
     # warm-up: compile the numba kernels (cached on disk) outside the timed runs
     from fractalseq.jobs._profile import profile_source
+    from fractalseq.resampling import Resampling
     from fractalseq.sources import open_source
 
-    profile_source(open_source(genomes.LAMBDA).to_array(), n_boot=20 if n_boot else 0)
+    profile_source(open_source(genomes.LAMBDA).to_array(), resampling=Resampling(n_boot=20 if n_boot else 0))
     out = {"target": "full profile of a 5-Mbase genome under 10 s on one core", "threads": args.threads,
            "cpu_count": os.cpu_count(), "load_average": list(os.getloadavg()), "runs": []}
     for label, p in paths:

@@ -47,12 +47,12 @@ def run(folder: Path, args: argparse.Namespace) -> None:
     arr = fs.open_source(truth.path, alphabet="dna").to_array()
     wc = fs.count_words(arr, 8)
     h = fs.h_difference(wc)  # H_{n+1} - H_n with the Grassberger correction, bits per symbol
-    d2 = fs.dimension_spectrum(wc, qs=(2.0,), n_boot=0).get(2.0)
+    d2 = fs.dimension_spectrum(wc, qs=(2.0,), resampling=fs.Resampling.none()).get(2.0)
     print(f"entropy rate  truth {truth.entropy_rate_bits:.3f}  H(n+1)-H(n) at n={h.depth}: {h.estimate:.3f} bits/symbol")
     print(f"D_2 (counts)  truth {truth.dimension(2.0):.3f}  estimate {d2.estimate:.3f} (depths {d2.n_lo}-{d2.n_hi})")
 
     # 2. the whole profile, with block-bootstrap intervals
-    res = fs.profile_source(arr, qs=(0.0, 1.0, 2.0), n_boot=boot, seed=args.seed)
+    res = fs.profile_source(arr, qs=(0.0, 1.0, 2.0), resampling=fs.Resampling(n_boot=boot, seed=args.seed))
     print(f"profile of {res.length:,} symbols, {boot} bootstrap replicates, k = {res.ratio:g}:")
     for q in (0.0, 1.0, 2.0):
         d = res.spectrum.get(q)

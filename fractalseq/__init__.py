@@ -13,6 +13,8 @@ Use it through this façade::
 
     stream = fs.open_source("genome.fna.gz")            # any supported input
     spec = fs.dimension_spectrum(stream, qs=[2.0])      # D_2 with a bootstrap interval
+    boot = fs.Resampling(n_boot=400, seed=7)            # other bootstrap settings, checked once
+    again = fs.dimension_spectrum(stream, qs=[2.0], resampling=boot)
     print(spec.dims[0].estimate, spec.dims[0].low, spec.dims[0].high)
 
 The families behind it are subpackages with their own ``__all__``:
@@ -70,6 +72,7 @@ _FACADE: dict[str, str] = {
     "bootstrap_rate": "fractalseq.entropy",
     # resampling
     "block_bootstrap": "fractalseq.resampling",
+    "Resampling": "fractalseq.resampling",
     # prediction
     "CellPredictor": "fractalseq.predict",
     "online_code_length": "fractalseq.predict",
@@ -122,6 +125,7 @@ __all__ = [
     "CellPredictor",
     "DriftOptions",
     "ReaderOptions",
+    "Resampling",
     "SurveyOptions",
     "WordCounts",
     "absent_words",

@@ -19,6 +19,7 @@ from fractalseq import alphabet as al
 from fractalseq.resampling import _bootstrap as bs
 from fractalseq.datasets import _markov as markov
 from fractalseq.errors import ParameterError
+from fractalseq.resampling import Resampling
 from fractalseq.stream import from_codes
 from fractalseq.words._counts import count_words
 
@@ -116,12 +117,12 @@ def test_generic_bootstrap_estimate_and_determinism():
         c = c[c > 0] / c.sum()
         return [float(-(c * np.log(c)).sum()), float(tables[1][1] / tables[1].sum())]
 
-    res = bs.block_bootstrap(arr, [1, 3], stat, n_boot=40, seed=1)
+    res = bs.block_bootstrap(arr, [1, 3], stat, resampling=Resampling(n_boot=40, seed=1))
     ref = wc.frequencies(3)
     assert res.estimate[0] == pytest.approx(float(-(ref * np.log(ref)).sum()), abs=1e-12)
-    again = bs.block_bootstrap(arr, [1, 3], stat, n_boot=40, seed=1)
+    again = bs.block_bootstrap(arr, [1, 3], stat, resampling=Resampling(n_boot=40, seed=1))
     assert res.replicates.tobytes() == again.replicates.tobytes()
-    other = bs.block_bootstrap(arr, [1, 3], stat, n_boot=40, seed=2)
+    other = bs.block_bootstrap(arr, [1, 3], stat, resampling=Resampling(n_boot=40, seed=2))
     assert not np.array_equal(res.replicates, other.replicates)
     # percentile intervals are numpy's quantiles of the replicates (general-purpose reference)
     lo, hi = res.interval(0.9, "percentile")
@@ -142,7 +143,7 @@ def test_bootstrap_se_of_plugin_entropy_matches_basharin():
         f = c[c > 0] / c.sum()
         return float(-(f * np.log(f)).sum())
 
-    res = bs.block_bootstrap(arr, [1], stat, n_boot=400, seed=0, block_length=50)
+    res = bs.block_bootstrap(arr, [1], stat, resampling=Resampling(n_boot=400, seed=0, block_length=50))
     H = float(-(p * np.log(p)).sum())
     theory = math.sqrt((float((p * np.log(p) ** 2).sum()) - H * H) / 40_000)
     # 400 replicates: the SE of a bootstrap SE is ~ 1/sqrt(800) = 3.5%; allow 15%
@@ -166,9 +167,9 @@ def test_blocks_capture_markov_dependence():
     def stat(tables):
         return float(tables[1][1] / tables[1].sum())
 
-    blocked = bs.block_bootstrap(arr, [1], stat, n_boot=300, seed=0, block_length=100)
+    blocked = bs.block_bootstrap(arr, [1], stat, resampling=Resampling(n_boot=300, seed=0, block_length=100))
     assert blocked.stderr()[0] == pytest.approx(theory, rel=0.15)
-    iid = bs.block_bootstrap(arr, [1], stat, n_boot=300, seed=0, block_length=1)
+    iid = bs.block_bootstrap(arr, [1], stat, resampling=Resampling(n_boot=300, seed=0, block_length=1))
     assert iid.stderr()[0] == pytest.approx(theory / math.sqrt(3), rel=0.15)
 
 
@@ -226,9 +227,9 @@ def test_bad_bootstrap_parameters():
     with pytest.raises(ParameterError):
         bs.make_plan(1000, 10, 5, scheme="jackknife")
     with pytest.raises(ParameterError):
-        bs.block_bootstrap(arr, [1], lambda t: 0.0, block_length=5000)
+        bs.block_bootstrap(arr, [1], lambda t: 0.0, resampling=Resampling(block_length=5000))
     with pytest.raises(ParameterError):
-        bs.block_bootstrap(arr, [1], lambda t: 0.0, n_boot=-1)
+        bs.block_bootstrap(arr, [1], lambda t: 0.0, resampling=Resampling(n_boot=-1))
     with pytest.raises(ParameterError):
         bs.block_bootstrap(arr, [], lambda t: 0.0)
 
@@ -317,8 +318,9 @@ def test_block_bootstrap_equals_naive_recounting(case):
     """The fast bootstrap (labels, block tables, weights) gives exactly the tables of recounting each replicate."""
     A, codes, starts, depths, ell, n_boot, seed, scheme = case
     arr = from_codes(DNA if A == 4 else BIN, codes, starts=starts)
-    res = bs.block_bootstrap(arr, depths, lambda t: np.concatenate([t[n] for n in depths]).astype(float),
-                             n_boot=n_boot, seed=seed, block_length=ell, scheme=scheme)
+    # any replicate count (the public function asks for 0 or at least 20): the runner with plain settings
+    res = bs.run_block_bootstrap(arr, depths, lambda t: np.concatenate([t[n] for n in depths]).astype(float),
+                                 n_boot, seed, ell, scheme)
     plan = bs.make_plan(len(codes), res.block_length, n_boot, seed, scheme)
     expected = np.concatenate(naive_replicate_tables(codes, starts, depths, plan), axis=1)
     assert res.replicates.shape == expected.shape
@@ -339,7 +341,7 @@ def test_replicate_spectra_equal_naive_recounting(case):
             np.add.at(h[i], np.asarray(t[n].value, dtype=np.int64), np.asarray(t[n].multiplicity, dtype=float))
         return h.ravel()
 
-    res = bs.block_bootstrap(arr, depths, histogram, n_boot=n_boot, seed=seed, block_length=ell, spectra=True)
+    res = bs.run_block_bootstrap(arr, depths, histogram, n_boot, seed, ell, "nonoverlapping", spectra=True)
     plan = bs.make_plan(T, res.block_length, n_boot, seed, "nonoverlapping")
     tables = naive_replicate_tables(codes, starts, depths, plan)
     for r in range(n_boot):

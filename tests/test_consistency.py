@@ -20,6 +20,7 @@ from fractalseq.dimensions._consistency import (
 )
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._outputs import to_json
+from fractalseq.resampling import Resampling
 from fractalseq.stream import from_codes
 
 BIN = al.binary()
@@ -30,7 +31,7 @@ P2 = np.array([[0.9, 0.1], [0.4, 0.6]])
 @pytest.fixture(scope="module")
 def markov_table():
     arr = from_codes(BIN, markov.simulate_markov(P2, 100_000, seed=31))
-    return arr, consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=4)
+    return arr, consistency_table(arr, qs=(0, 1, 2), offsets=4, resampling=Resampling(n_boot=60, seed=1))
 
 
 def test_reusing_the_spectrum_pass_gives_the_same_table(markov_table):
@@ -42,14 +43,15 @@ def test_reusing_the_spectrum_pass_gives_the_same_table(markov_table):
     from fractalseq.dimensions._spectrum import dimension_spectrum
 
     arr, _ = markov_table
-    spec = dimension_spectrum(arr, (0.0, 1.0, 2.0, 3.0), n_boot=60, seed=1, rates=True)
+    spec = dimension_spectrum(arr, (0.0, 1.0, 2.0, 3.0), rates=True, resampling=Resampling(n_boot=60, seed=1))
     info = RateResult(tuple(r for r in spec.rates if r.q in (0.0, 1.0, 2.0)), spec.block, 60, 1, len(arr))
-    reused = consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=0, block_length=spec.block,
-                               information=info, levels=spec.data_limit)
-    fresh = consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=0, block_length=spec.block)
+    reused = consistency_table(arr, qs=(0, 1, 2), offsets=0, information=info, levels=spec.data_limit,
+                               resampling=Resampling(n_boot=60, seed=1, block_length=spec.block))
+    fresh = consistency_table(arr, qs=(0, 1, 2), offsets=0, resampling=Resampling(n_boot=60, seed=1, block_length=spec.block))
     assert to_json([r.to_dict() for r in reused.rows]) == to_json([r.to_dict() for r in fresh.rows])
     with pytest.raises(ParameterError, match="another stream"):
-        consistency_table(from_codes(BIN, arr.codes[: len(arr) // 2]), qs=(0, 1, 2), n_boot=0, information=info)
+        consistency_table(from_codes(BIN, arr.codes[: len(arr) // 2]), qs=(0, 1, 2), information=info,
+                          resampling=Resampling.none())
 
 
 def test_stationary_markov_chain_is_consistent(markov_table):
@@ -89,7 +91,7 @@ def test_grid_that_does_not_tile_the_cylinders_is_caught():
     are off by 1-3% over a few levels) while h_1 = 1 bit exactly for fair coin flips.  The table must say so.
     """
     arr = from_codes(BIN, markov.bernoulli(100_000, 0.5, seed=2))
-    res = consistency_table(arr, qs=(1, 2), ratio=0.4, n_boot=60, seed=0, offsets=0)
+    res = consistency_table(arr, qs=(1, 2), ratio=0.4, offsets=0, resampling=Resampling(n_boot=60, seed=0))
     assert any("does not tile" in f for f in res.flags)
     assert res.get(1).verdict == INCONSISTENT
     assert res.get(1).information_low <= 1.0 <= res.get(1).information_high
@@ -99,7 +101,7 @@ def test_grid_that_does_not_tile_the_cylinders_is_caught():
 
 def test_same_seed_same_table(markov_table):
     arr, res = markov_table
-    again = consistency_table(arr, qs=(0, 1, 2), n_boot=60, seed=1, offsets=4)
+    again = consistency_table(arr, qs=(0, 1, 2), offsets=4, resampling=Resampling(n_boot=60, seed=1))
     assert to_json(res.to_dict()) == to_json(again.to_dict())
 
 
@@ -109,7 +111,7 @@ def test_golden_mean_rates_by_conditional_form():
     (Cover & Thomas 2006, Problem 4.7: H(p)/(1+p) at p = 1/2), h_2 = 0.642981363 bits (REFERENCE-CHECKS A6).
     """
     arr = from_codes(BIN, markov.golden_mean(200_000, seed=9, p=0.5))
-    res = conditional_rates(arr, qs=(0, 1, 2), n_boot=60, seed=2)
+    res = conditional_rates(arr, qs=(0, 1, 2), resampling=Resampling(n_boot=60, seed=2))
     phi = (1 + math.sqrt(5)) / 2
     assert res.get(0).estimate == pytest.approx(math.log2(phi), abs=2e-3)
     assert res.get(1).estimate == pytest.approx(2 / 3, abs=0.01)
@@ -123,14 +125,14 @@ def test_golden_mean_rates_by_conditional_form():
 
 def test_overlapping_maps_are_not_applicable():
     arr = from_codes(BIN, markov.bernoulli(20_000, 0.5, seed=3))
-    res = consistency_table(arr, qs=(0, 1), ratio=0.6, n_boot=0, offsets=2)
+    res = consistency_table(arr, qs=(0, 1), ratio=0.6, offsets=2, resampling=Resampling.none())
     assert all(r.verdict == NOT_APPLICABLE for r in res.rows)
     assert res.flags and "overlap" in res.flags[0]
 
 
 def test_short_stream_is_too_little_data():
     arr = from_codes(BIN, markov.bernoulli(200, 0.5, seed=3))
-    res = consistency_table(arr, qs=(1, 2), n_boot=0, offsets=2)
+    res = consistency_table(arr, qs=(1, 2), offsets=2, resampling=Resampling.none())
     assert all(r.verdict == TOO_LITTLE for r in res.rows)
 
 
@@ -161,7 +163,7 @@ def test_one_home_for_the_renyi_rate():
     arr = from_codes(BIN, markov.simulate_markov(P2, 100_000, seed=31))
     wc = count_words(arr, 6)
     for n in (2, 4):
-        a = conditional_rates(arr, qs=(2,), order=n, n_boot=0).get(2)
+        a = conditional_rates(arr, qs=(2,), order=n, resampling=Resampling.none()).get(2)
         b = h_renyi(wc, 2, depth=n)
         assert a.order == b.depth == n
         # the collision sums themselves are computed by log-gamma (dimensions) and by products (entropy):

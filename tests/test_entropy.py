@@ -20,6 +20,7 @@ from fractalseq.entropy._compressors import _pack
 from fractalseq.datasets import _markov as mk
 from fractalseq.alphabet import binary, dna
 from fractalseq.errors import InputError, ParameterError
+from fractalseq.resampling import Resampling
 from fractalseq.stream import from_codes
 from fractalseq.words._counts import count_words
 
@@ -408,19 +409,19 @@ def test_block_bootstrap_interval_for_rates():
     arr = from_codes(binary(), x)
     wc = count_words(arr, 12)
     truth = mk.entropy_rate(TWO_STATE)
-    est = E.bootstrap_rate(E.h_difference(wc), arr, n_boot=100, seed=1)
+    est = E.bootstrap_rate(E.h_difference(wc), arr, resampling=Resampling(n_boot=100, seed=1))
     assert est.low < truth < est.high
     assert 0.002 < est.details["bootstrap"]["stderr"] < 0.007
     assert "block bootstrap" in est.note and est.reliable
     assert est.to_dict()["low"] == est.low
-    r2 = E.bootstrap_rate(E.h_renyi(wc, 2), arr, n_boot=100, seed=1)
+    r2 = E.bootstrap_rate(E.h_renyi(wc, 2), arr, resampling=Resampling(n_boot=100, seed=1))
     assert r2.low < mk.renyi_rate(TWO_STATE, 2) < r2.high
     # same seed, same interval
-    again = E.bootstrap_rate(E.h_difference(wc), arr, n_boot=100, seed=1)
+    again = E.bootstrap_rate(E.h_difference(wc), arr, resampling=Resampling(n_boot=100, seed=1))
     assert (again.low, again.high) == (est.low, est.high)
     other = from_codes(binary(), mk.simulate_markov(TWO_STATE, 100_000, seed=4))
     with pytest.raises(InputError):
-        E.bootstrap_rate(E.h_difference(wc), other, n_boot=10)
+        E.bootstrap_rate(E.h_difference(wc), other, resampling=Resampling(n_boot=20))
     with pytest.raises(ParameterError):
         E.bootstrap_rate(E.h_compressors(x, 2), arr)
 

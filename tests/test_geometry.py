@@ -13,6 +13,7 @@ from fractalseq.dimensions import _geometry as geo
 from fractalseq.datasets import _markov as markov
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._outputs import to_json
+from fractalseq.resampling import Resampling
 from fractalseq.stream import from_codes
 from fractalseq.words._counts import count_words
 
@@ -72,7 +73,8 @@ def test_aligned_grid_similarity_dimension(size, ratio, expected):
     pts = enc.points(arr, ratio)
     keep = geo.transient_mask(arr, 60)
     scales = ratio ** np.arange(3, 9, dtype=float)
-    res = geo.geometric_spectrum(pts, (0,), scales=scales, aligned=True, valid=keep, n_boot=0, falpha=False, unit_cube=True)
+    res = geo.geometric_spectrum(pts, (0,), scales=scales, aligned=True, valid=keep, falpha=False, unit_cube=True,
+                                 resampling=Resampling.none())
     # REFERENCE-CHECKS A1: aligned grid, q = 0: abs tol 1e-9 when every m-word occurs
     assert res.get(0).estimate == pytest.approx(expected, abs=1e-9)
 
@@ -82,8 +84,8 @@ def test_shifted_grids_cantor_within_three_percent():
     arr = from_codes(BIN, markov.bernoulli(200_000, 0.5, seed=3))
     pts = enc.points(arr, 1 / 3)
     keep = geo.transient_mask(arr, 60)
-    res = geo.geometric_spectrum(pts, (0, 1, 2), scales=(1 / 3) ** np.arange(2, 9, dtype=float), offsets=8, seed=1,
-                                 valid=keep, n_boot=0, falpha=False)
+    res = geo.geometric_spectrum(pts, (0, 1, 2), scales=(1 / 3) ** np.arange(2, 9, dtype=float), offsets=8,
+                                 valid=keep, falpha=False, resampling=Resampling(n_boot=0, seed=1))
     for q in (0, 1, 2):
         assert res.get(q).estimate == pytest.approx(math.log(2) / math.log(3), rel=0.03)
     assert res.get(0).lattice_stderr is not None
@@ -95,7 +97,8 @@ def test_overlapping_maps_fill_the_interval():
     pts = enc.points(arr, 0.6)
     keep = geo.transient_mask(arr, 60)
     scales = 2.0 ** -np.arange(4, 11, dtype=float)
-    res = geo.geometric_spectrum(pts, (0,), scales=scales, aligned=True, valid=keep, n_boot=0, falpha=False, unit_cube=True)
+    res = geo.geometric_spectrum(pts, (0,), scales=scales, aligned=True, valid=keep, falpha=False, unit_cube=True,
+                                 resampling=Resampling.none())
     assert res.get(0).estimate == pytest.approx(1.0, abs=1e-3)
 
 
@@ -104,8 +107,8 @@ def test_binomial_measure_by_box_counting():
     arr = from_codes(BIN, markov.bernoulli(200_000, 0.3, seed=5))
     pts = enc.points(arr, 0.5)
     keep = geo.transient_mask(arr, 60)
-    res = geo.geometric_spectrum(pts, (1, 2), scales=2.0 ** -np.arange(3, 10, dtype=float), offsets=4, seed=2,
-                                 valid=keep, n_boot=30)
+    res = geo.geometric_spectrum(pts, (1, 2), scales=2.0 ** -np.arange(3, 10, dtype=float), offsets=4,
+                                 valid=keep, resampling=Resampling(n_boot=30, seed=2))
     assert res.get(1).estimate == pytest.approx(0.881290899, abs=0.01)
     assert res.get(2).estimate == pytest.approx(0.785875195, abs=0.01)
     # the intervals (bootstrap plus lattice spread) hold the closed forms within 3 standard errors
@@ -114,8 +117,8 @@ def test_binomial_measure_by_box_counting():
         assert d.low - slack <= value <= d.high + slack
         assert d.high - d.low < 0.05
     assert res.block is not None
-    again = geo.geometric_spectrum(pts, (1, 2), scales=2.0 ** -np.arange(3, 10, dtype=float), offsets=4, seed=2,
-                                   valid=keep, n_boot=30)
+    again = geo.geometric_spectrum(pts, (1, 2), scales=2.0 ** -np.arange(3, 10, dtype=float), offsets=4,
+                                   valid=keep, resampling=Resampling(n_boot=30, seed=2))
     assert to_json(res.to_dict()) == to_json(again.to_dict())
 
 
@@ -123,7 +126,7 @@ def test_default_scales_on_a_plain_cloud():
     # uniform points in the unit square: D_q = 2 for every q (Lebesgue measure; common practice)
     rng = np.random.default_rng(0)
     pts = rng.random((100_000, 2))
-    res = geo.geometric_spectrum(pts, (0, 2), n_boot=0, offsets=4)
+    res = geo.geometric_spectrum(pts, (0, 2), offsets=4, resampling=Resampling.none())
     assert res.get(0).estimate == pytest.approx(2.0, abs=0.02)
     assert res.get(2).estimate == pytest.approx(2.0, abs=0.02)
     assert res.route == "geometric box counting"

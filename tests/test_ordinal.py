@@ -19,6 +19,7 @@ from fractalseq.entropy._ordinal import sub_pattern_map
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.jobs._profile import profile_source
 from fractalseq.sources.numeric import ordinal_alphabet
+from fractalseq.resampling import Resampling
 from fractalseq.stream import SymbolArray
 
 
@@ -158,7 +159,7 @@ def test_logistic_map_pattern_stream_rate_is_at_most_one_bit(orbit):
     for m in (3, 4, 5):
         codes, starts = ordinal_patterns(orbit[:100_000], m)
         arr = SymbolArray(ordinal_alphabet(m), codes, starts, name=f"logistic-m{m}")
-        res = profile_source(arr, n_boot=0, image=False)
+        res = profile_source(arr, image=False, resampling=Resampling.none())
         d = res.to_dict()
         rates = d["entropy_rate_bits"]
         for name in ("plugin", "miller-madow", "grassberger"):
@@ -191,7 +192,7 @@ def test_periodic_series_has_per_step_rate_near_zero(m):
     t = np.arange(20_000)
     codes, starts = ordinal_patterns(np.sin(2 * np.pi * t / 12.5 + 0.3), m)
     arr = SymbolArray(ordinal_alphabet(m), codes, starts, name="periodic")
-    d = profile_source(arr, n_boot=0, image=False).to_dict()
+    d = profile_source(arr, image=False, resampling=Resampling.none()).to_dict()
     assert abs(d["entropy_rate_bits"]["grassberger"]["estimate"]) < 0.01
     assert d["rate_to_use"]["estimate"] < 0.02
     assert d["permutation_entropy"]["distinct"] <= 25  # one pattern per phase at most

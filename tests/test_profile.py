@@ -33,6 +33,7 @@ from fractalseq.io._outputs import to_json
 from fractalseq.jobs._profile import CAUTION_GENOMIC, contract, profile_source
 from fractalseq.report.profile import FIGURES, safe_name, write_profile_report
 from fractalseq.sources import open_source
+from fractalseq.resampling import Resampling
 from fractalseq.stream import from_codes
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -44,7 +45,7 @@ VERDICTS = {"consistent", "inconsistent", "too little data", "not applicable"}
 def lambda_profile():
     assert LAMBDA.is_file(), f"{LAMBDA} is missing (copy of bowtie2-examples' lambda_virus.fa.gz)"
     arr = open_source(LAMBDA).to_array()
-    return profile_source(arr, n_boot=40, seed=3)
+    return profile_source(arr, resampling=Resampling(n_boot=40, seed=3))
 
 
 def test_lambda_numbers_are_sane(lambda_profile):
@@ -108,7 +109,7 @@ def test_full_shift_dimensions_match_closed_form():
     for A, k, tol in ((4, 0.5, 0.01), (4, 1 / 3, 0.01), (2, 0.5, 0.01)):
         codes = rng.integers(0, A, 60_000).astype(np.uint8)
         arr = from_codes(al.from_symbols("ACGT"[:A]), codes, name=f"iid{A}")
-        r = profile_source(arr, ratio=k, n_boot=0, image=False, qs=(0, 2))
+        r = profile_source(arr, ratio=k, image=False, qs=(0, 2), resampling=Resampling.none())
         expect = math.log(A) / math.log(1 / k)
         for row in r.dimension_rows():
             assert abs(row["estimate"] - expect) <= tol * expect, (A, k, row)
@@ -120,7 +121,7 @@ def test_markov_chain_rates_match_closed_form():
     P = np.array([[0.9, 0.1], [0.4, 0.6]])
     codes = simulate_markov(P, 200_000, seed=5)
     arr = from_codes(al.binary(), np.asarray(codes, np.uint8), name="chain")
-    r = profile_source(arr, n_boot=0, image=False, qs=(1, 2))
+    r = profile_source(arr, image=False, qs=(1, 2), resampling=Resampling.none())
     assert abs(r.rate_dict()["grassberger"]["estimate"] - 0.5693865938) <= 0.015
     d = {row["q"]: row["estimate"] for row in r.dimension_rows()}
     assert abs(d[1.0] - 0.569386594) <= 0.02
@@ -130,12 +131,12 @@ def test_markov_chain_rates_match_closed_form():
 def test_short_and_overlapping_inputs_are_flagged_not_crashed():
     rng = np.random.default_rng(2)
     arr = from_codes(al.dna(), rng.integers(0, 4, 50).astype(np.uint8), name="tiny")
-    r = profile_source(arr, n_boot=0, image=False)
+    r = profile_source(arr, image=False, resampling=Resampling.none())
     d = r.to_dict()
     assert all(c["verdict"] == "too little data" for c in d["consistency"])
     assert any("consistency table: not computed" in n for n in d["notes"])
     arr = from_codes(al.dna(), rng.integers(0, 4, 3000).astype(np.uint8), name="overlap")
-    r = profile_source(arr, ratio=0.7, n_boot=0, image=False, qs=(0,))
+    r = profile_source(arr, ratio=0.7, image=False, qs=(0,), resampling=Resampling.none())
     d = r.to_dict()
     assert d["overlap"]["overlapping"] is True
     assert d["consistency"][0]["verdict"] == "not applicable"
@@ -167,9 +168,9 @@ def test_report_folder_is_complete(tmp_path, lambda_profile):
 def test_profile_is_deterministic_for_a_seed():
     rng = np.random.default_rng(4)
     arr = from_codes(al.dna(), rng.integers(0, 4, 8000).astype(np.uint8), name="det")
-    a = to_json(contract([profile_source(arr, n_boot=20, seed=1, image=False)]))
-    b = to_json(contract([profile_source(arr, n_boot=20, seed=1, image=False)]))
-    c = to_json(contract([profile_source(arr, n_boot=20, seed=2, image=False)]))
+    a = to_json(contract([profile_source(arr, image=False, resampling=Resampling(n_boot=20, seed=1))]))
+    b = to_json(contract([profile_source(arr, image=False, resampling=Resampling(n_boot=20, seed=1))]))
+    c = to_json(contract([profile_source(arr, image=False, resampling=Resampling(n_boot=20, seed=2))]))
     assert a == b
     assert a != c  # the seed reaches the bootstrap
 

@@ -17,6 +17,7 @@ from fractalseq import alphabet as al
 from fractalseq.resampling import _bootstrap as bs
 from fractalseq.resampling import _replicates as rp
 from fractalseq.dimensions import _spectrum as sp
+from fractalseq.resampling import Resampling
 from fractalseq.stream import from_codes
 
 
@@ -125,8 +126,9 @@ def test_batch_replicate_rates_equal_one_replicate_at_a_time():
     def batch(specs):
         return np.column_stack([E.replicate_rates(specs[3], specs[4], m) for m in E.METHODS])
 
-    one = bs.block_bootstrap(arr, (3, 4), stat, n_boot=30, seed=4, block_length=600, spectra=True)
-    many = bs.block_bootstrap(arr, (3, 4), stat, n_boot=30, seed=4, block_length=600, spectra=True, batch_statistic=batch)
+    one = bs.block_bootstrap(arr, (3, 4), stat, spectra=True, resampling=Resampling(n_boot=30, seed=4, block_length=600))
+    many = bs.block_bootstrap(arr, (3, 4), stat, spectra=True, batch_statistic=batch,
+                              resampling=Resampling(n_boot=30, seed=4, block_length=600))
     assert np.allclose(one.replicates, many.replicates, rtol=1e-12, atol=1e-12)
     assert np.array_equal(one.estimate, many.estimate)
     spec = rp.replicate_spectra(rp.item_tables(*bs.word_labels(arr, 4)[:1], 4, 600), bs.make_plan(len(arr), 600, 5).block_weights(), cap=8)

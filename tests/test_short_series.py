@@ -24,6 +24,7 @@ from fractalseq.entropy._depth import evidence_depth
 from fractalseq.entropy._estimators import EntropyEstimate, choose_depth
 from fractalseq.jobs._profile import profile_source
 from fractalseq.sources import open_source
+from fractalseq.resampling import Resampling
 from fractalseq.stream import SymbolArray
 from fractalseq.words._counts import count_words
 
@@ -93,7 +94,7 @@ def real_profiles() -> list[tuple[str, dict, dict]]:
     out = []
     for path, kw in CASES:
         arr = open_source(path, fmt="numeric", column=COLUMN[path], **kw).to_array()
-        out.append((path.name, kw, profile_source(arr, n_boot=40, seed=1, image=False).to_dict()))
+        out.append((path.name, kw, profile_source(arr, image=False, resampling=Resampling(n_boot=40, seed=1)).to_dict()))
     return out
 
 
@@ -158,11 +159,11 @@ def test_source_with_daily_memory_is_read_deep_enough():
     arr = SymbolArray(al.from_symbols("0123"), np.tile(day, 84).astype(np.uint8), np.array([0]), name="invented-load")
     fixed, _ = choose_depth(len(arr), 4, offset=1)
     assert fixed == 1
-    d = profile_source(arr, n_boot=0, image=False).to_dict()
+    d = profile_source(arr, image=False, resampling=Resampling.none()).to_dict()
     g = d["entropy_rate_bits"]["grassberger"]
     assert g["depth"] > fixed and abs(g["estimate"]) < 0.01
     # forced to the shallow depth, the estimate lies above the online code length: the bound is the figure to use
-    d2 = profile_source(arr, n_boot=0, image=False, depth=2).to_dict()
+    d2 = profile_source(arr, image=False, depth=2, resampling=Resampling.none()).to_dict()
     g2, bound = d2["entropy_rate_bits"]["grassberger"], d2["entropy_rate_bits"]["online_predictor"]
     assert g2["estimate"] > bound["estimate"] and g2["within_bounds"] is False
     assert d2["rate_to_use"]["estimator"] in ("online_predictor", "compressors")

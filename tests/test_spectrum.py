@@ -27,6 +27,7 @@ from fractalseq.dimensions._spectrum import (
     dimension_spectrum,
     level_stats,
 )
+from fractalseq.resampling import Resampling
 from fractalseq.stream import from_codes
 from fractalseq.words._counts import count_words
 
@@ -62,7 +63,7 @@ def test_full_shift_similarity_dimension(size, ratio, expected):
     rng = np.random.default_rng(size)
     alphabet = BIN if size == 2 else DNA
     arr = from_codes(alphabet, rng.integers(0, size, 200_000))
-    res = dimension_spectrum(arr, qs=(0, 1, 2), ratio=ratio, n_boot=0)
+    res = dimension_spectrum(arr, qs=(0, 1, 2), ratio=ratio, resampling=Resampling.none())
     d0 = res.get(0)
     # every n-word occurs at the depths used, so D_0 = ln A / ln(1/k) up to rounding
     assert d0.estimate == pytest.approx(expected, abs=1e-9)
@@ -94,7 +95,7 @@ def test_binomial_formula_matches_published_values():
 
 
 def test_binomial_cascade_fixed_range(bernoulli_1e6):
-    res = dimension_spectrum(bernoulli_1e6, qs=(-2, 0, 1, 2, 3), depth_range=(6, 10), n_boot=0)
+    res = dimension_spectrum(bernoulli_1e6, qs=(-2, 0, 1, 2, 3), depth_range=(6, 10), resampling=Resampling.none())
     for q, value in BINOMIAL_P03.items():
         # REFERENCE-CHECKS A4: n = 1e6, m in [6, 10]: abs tol 2e-3 for 0 <= q <= 3
         assert res.get(q).estimate == pytest.approx(value, abs=2e-3), q
@@ -105,13 +106,13 @@ def test_binomial_cascade_fixed_range(bernoulli_1e6):
     assert any("rarest box" in f for f in neg.flags)  # depth 10's rarest box is seen ~6 times, far too few
     # the automatic range stops where the rarest box is seen >= q(q-1)/(2 * 0.01) = 300 times;
     # REFERENCE-CHECKS A4: 0.02 for q = -2 (there per level; differences amplify the deepest level's noise)
-    auto = dimension_spectrum(bernoulli_1e6, qs=(-2,), n_boot=0, falpha=False).get(-2)
+    auto = dimension_spectrum(bernoulli_1e6, qs=(-2,), falpha=False, resampling=Resampling.none()).get(-2)
     assert auto.estimate == pytest.approx(1.239067446, abs=0.02)
     assert 1e6 * 0.3**auto.n_hi >= 300 / 3
 
 
 def test_binomial_cascade_automatic_range(bernoulli_1e6):
-    res = dimension_spectrum(bernoulli_1e6, qs=(0, 1, 2), n_boot=0)
+    res = dimension_spectrum(bernoulli_1e6, qs=(0, 1, 2), resampling=Resampling.none())
     for q in (0, 1, 2):
         d = res.get(q)
         assert d.estimate == pytest.approx(BINOMIAL_P03[q], abs=2e-3), q
@@ -128,7 +129,7 @@ def test_binomial_falpha_chhabra_jensen(bernoulli_1e6):
     REFERENCE-CHECKS A4 (Halsey et al. 1986): p = 0.3, alpha(2) = 0.704254755, f = 0.622634316;
     alpha(0) = 1.125769384 with f = 1; alpha(1) = f(alpha(1)) = D_1.
     """
-    res = dimension_spectrum(bernoulli_1e6, qs=(0, 1, 2), depth_range=(6, 10), n_boot=0)
+    res = dimension_spectrum(bernoulli_1e6, qs=(0, 1, 2), depth_range=(6, 10), resampling=Resampling.none())
     fa = {p.q: p for p in res.falpha}
     assert fa[2.0].alpha == pytest.approx(0.704254755, abs=3e-3)
     assert fa[2.0].f == pytest.approx(0.622634316, abs=3e-3)
@@ -147,7 +148,7 @@ def test_two_state_markov_renyi_dimensions():
     """
     P = np.array([[0.9, 0.1], [0.4, 0.6]])
     arr = binary_stream(markov.simulate_markov(P, 1_000_000, seed=5))
-    res = dimension_spectrum(arr, qs=(0, 1, 2), n_boot=0)
+    res = dimension_spectrum(arr, qs=(0, 1, 2), resampling=Resampling.none())
     assert res.get(0).estimate == pytest.approx(1.0, abs=1e-9)
     assert res.get(1).estimate == pytest.approx(0.569386594, abs=0.01)
     assert res.get(2).estimate == pytest.approx(0.297736275, abs=0.01)
@@ -158,7 +159,7 @@ def test_dna_like_chain(ratio, d1, d2):
     """The 4x4 DNA-like chain of REFERENCE-CHECKS A5 (Rached et al. 2001), k = 1/2 and 1/3, tol 0.01."""
     P = np.array([[0.4, 0.1, 0.2, 0.3], [0.3, 0.3, 0.05, 0.35], [0.25, 0.25, 0.3, 0.2], [0.2, 0.2, 0.3, 0.3]])
     arr = from_codes(DNA, markov.simulate_markov(P, 1_000_000, seed=7))
-    res = dimension_spectrum(arr, qs=(1, 2), ratio=ratio, n_boot=0)
+    res = dimension_spectrum(arr, qs=(1, 2), ratio=ratio, resampling=Resampling.none())
     assert res.get(1).estimate == pytest.approx(d1, abs=0.01)
     assert res.get(2).estimate == pytest.approx(d2, abs=0.01)
 
@@ -171,7 +172,7 @@ def test_golden_mean_shift():
     D_2 = -log2((1 + sqrt 17)/8) = 0.642981363 (REFERENCE-CHECKS A6); tolerance 3e-3 at n = 1e6.
     """
     arr = binary_stream(markov.golden_mean(1_000_000, seed=3, p=0.5))
-    res = dimension_spectrum(arr, qs=(0, 1, 2), n_boot=0)
+    res = dimension_spectrum(arr, qs=(0, 1, 2), resampling=Resampling.none())
     assert res.get(0).estimate == pytest.approx(math.log2(PHI), abs=3e-3)
     assert res.get(1).estimate == pytest.approx(2 / 3, abs=3e-3)
     assert res.get(2).estimate == pytest.approx(-math.log2((1 + math.sqrt(17)) / 8), abs=3e-3)
@@ -189,7 +190,7 @@ def test_golden_mean_shift():
 def markov_boot():
     P = np.array([[0.9, 0.1], [0.4, 0.6]])
     arr = binary_stream(markov.simulate_markov(P, 100_000, seed=21))
-    return arr, dimension_spectrum(arr, qs=(0, 1, 2, -1), n_boot=60, seed=4)
+    return arr, dimension_spectrum(arr, qs=(0, 1, 2, -1), resampling=Resampling(n_boot=60, seed=4))
 
 
 def test_bootstrap_intervals_cover_truth_and_are_reported(markov_boot):
@@ -210,9 +211,9 @@ def test_bootstrap_intervals_cover_truth_and_are_reported(markov_boot):
 
 def test_same_seed_same_bytes(markov_boot):
     arr, res = markov_boot
-    again = dimension_spectrum(arr, qs=(0, 1, 2, -1), n_boot=60, seed=4)
+    again = dimension_spectrum(arr, qs=(0, 1, 2, -1), resampling=Resampling(n_boot=60, seed=4))
     assert to_json(res.to_dict()) == to_json(again.to_dict())
-    other = dimension_spectrum(arr, qs=(0, 1, 2, -1), n_boot=60, seed=5)
+    other = dimension_spectrum(arr, qs=(0, 1, 2, -1), resampling=Resampling(n_boot=60, seed=5))
     assert other.get(1).low != res.get(1).low
     # the fit weights and the range come from the counts, so only the interval moves with the seed
     assert other.get(1).estimate == res.get(1).estimate
@@ -223,7 +224,7 @@ def test_point_estimates_do_not_depend_on_resampling(markov_boot):
     """D_q, its scaling range, f(alpha) and the rates are the same with 0, 60 or 200 replicates and any seed."""
     arr, _ = markov_boot
     runs = [
-        dimension_spectrum(arr, qs=(0, 1, 2, -1), n_boot=b, seed=s, rates=True)
+        dimension_spectrum(arr, qs=(0, 1, 2, -1), rates=True, resampling=Resampling(n_boot=b, seed=s))
         for b, s in ((0, 0), (60, 4), (60, 5), (200, 9))
     ]
     first = runs[0]
@@ -240,9 +241,9 @@ def test_point_estimates_do_not_depend_on_resampling(markov_boot):
 
 def test_word_counts_input_gives_same_estimates():
     arr = binary_stream(markov.bernoulli(50_000, 0.3, seed=2))
-    from_stream = dimension_spectrum(arr, qs=(1, 2), depth_range=(2, 7), n_boot=0)
+    from_stream = dimension_spectrum(arr, qs=(1, 2), depth_range=(2, 7), resampling=Resampling.none())
     wc = count_words(arr, 9)
-    from_counts = dimension_spectrum(wc, qs=(1, 2), depth_range=(2, 7), n_boot=30)
+    from_counts = dimension_spectrum(wc, qs=(1, 2), depth_range=(2, 7), resampling=Resampling(n_boot=30))
     for q in (1, 2):
         assert from_counts.get(q).estimate == pytest.approx(from_stream.get(q).estimate, abs=1e-12)
         assert math.isfinite(from_counts.get(q).low)
@@ -251,7 +252,7 @@ def test_word_counts_input_gives_same_estimates():
 
 def test_short_stream_reports_too_little_data():
     arr = binary_stream(markov.bernoulli(300, 0.5, seed=1))
-    res = dimension_spectrum(arr, qs=(1, 2), n_boot=0)
+    res = dimension_spectrum(arr, qs=(1, 2), resampling=Resampling.none())
     for d in res.dims:
         assert math.isnan(d.estimate)
         assert any("too little data" in f for f in d.flags)
@@ -260,7 +261,7 @@ def test_short_stream_reports_too_little_data():
 def test_periodic_stream_has_dimension_zero():
     # a periodic sequence has a finite set of words: D_q = 0 for every q (entropy rate 0; REFERENCE-CHECKS B7)
     arr = binary_stream(np.tile(np.array([0, 1, 1], np.uint8), 20_000))
-    res = dimension_spectrum(arr, qs=(0, 1, 2), n_boot=0)
+    res = dimension_spectrum(arr, qs=(0, 1, 2), resampling=Resampling.none())
     for q in (0, 1, 2):
         assert res.get(q).estimate == pytest.approx(0.0, abs=1e-4)
 
@@ -314,7 +315,7 @@ def test_large_counts_and_extreme_q_do_not_overflow():
 def test_overlapping_maps_switch_to_box_counting():
     # REFERENCE-CHECKS A2: k = 0.6, A = 2 on [0, 1]: the maps overlap; measured D_0 = 1, not ln 2 / ln(1/0.6)
     arr = binary_stream(markov.bernoulli(200_000, 0.5, seed=8))
-    res = dimension_spectrum(arr, qs=(0,), ratio=0.6, n_boot=0, falpha=False)
+    res = dimension_spectrum(arr, qs=(0,), ratio=0.6, falpha=False, resampling=Resampling.none())
     assert res.route == "geometric box counting"
     assert any(f.startswith(OVERLAP) for f in res.flags)
     assert res.get(0).estimate == pytest.approx(1.0, abs=0.01)
@@ -330,10 +331,7 @@ def test_bad_parameters_raise_one_sentence_errors():
         (dict(qs=()), "qs"),
         (dict(qs=(float("nan"),)), "qs"),
         (dict(depth_range=(5, 5)), "depth_range"),
-        (dict(n_boot=5), "n_boot"),
-        (dict(interval="magic"), "interval"),
-        (dict(scheme="circular"), "scheme"),
-        (dict(level=1.5), "level"),
+        (dict(resampling=200), "resampling"),  # the replicate count alone is not the settings object
         (dict(starve=0.5), "starve"),
     ]
     for kwargs, parameter in cases:
@@ -357,7 +355,7 @@ def test_other_block_schemes_and_rates(scheme):
     """
     P = np.array([[0.9, 0.1], [0.4, 0.6]])
     arr = binary_stream(markov.simulate_markov(P, 50_000, seed=12))
-    res = dimension_spectrum(arr, qs=(1,), n_boot=40, seed=1, scheme=scheme, falpha=False, rates=True)
+    res = dimension_spectrum(arr, qs=(1,), falpha=False, rates=True, resampling=Resampling(n_boot=40, seed=1, scheme=scheme))
     d = res.get(1)
     h1 = 0.5693865938
     assert res.scheme == scheme

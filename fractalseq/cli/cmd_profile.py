@@ -209,8 +209,8 @@ def profile(
                 bar.update(task, description=f"{path}: {name}")
                 bar.advance(task)
 
-            res = profile_source(arr, ratio=settings.ratio, qs=settings.qs, depth=settings.depth, n_boot=settings.n_boot,
-                                 seed=settings.seed, level=settings.level, progress=on_step)
+            res = profile_source(arr, ratio=settings.ratio, qs=settings.qs, depth=settings.depth,
+                                 resampling=settings.resampling, progress=on_step)
             results.append(res)
             if out is not None:
                 bar.update(task, description=f"{path}: writing report")

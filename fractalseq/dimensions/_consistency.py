@@ -42,7 +42,7 @@ not expected to be flagged.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Sequence
 
 import numpy as np
@@ -50,6 +50,7 @@ import numpy as np
 from fractalseq.dimensions import _spectrum as sp
 from fractalseq.entropy._renyi_rates import RateEstimate
 from fractalseq.resampling import _bootstrap as bs
+from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.results import Result
 from fractalseq.stream import SymbolArray, SymbolStream
@@ -83,12 +84,7 @@ def conditional_rates(
     arr: SymbolArray,
     qs: Sequence[float] = (0.0, 1.0, 2.0),
     order: int | None = None,
-    n_boot: int = 200,
-    seed: int = 0,
-    block_length: "int | bs.BlockLength | None" = None,
-    scheme: str = "nonoverlapping",
-    level: float = 0.95,
-    interval: str = "centered",
+    resampling: Resampling | None = None,
     starve: float = sp.STARVE,
     corrected: bool = True,
 ) -> RateResult:
@@ -97,10 +93,12 @@ def conditional_rates(
     ``order`` (``n``) is automatic when ``None``: the middle of the linear
     run of ``H_q(n)`` chosen as in :mod:`fractalseq.dimensions._spectrum` (the block
     entropies have converged to a straight line there, and the data are not
-    yet starved; for ``q <= 0`` every word is seen).
+    yet starved; for ``q <= 0`` every word is seen).  ``resampling``: the
+    block-bootstrap settings (``None``: ``Resampling()``; ``Resampling.none()``: no interval).
     """
     qv = sp.check_qs(qs)
-    sp.check_boot(n_boot, level, interval, scheme)
+    rs = as_resampling(resampling)
+    n_boot, seed, block_length, scheme, level, interval = rs.n_boot, rs.seed, rs.block_length, rs.scheme, rs.level, rs.interval
     if isinstance(arr, SymbolStream):
         arr = arr.to_array()
     if not isinstance(arr, SymbolArray):
@@ -178,13 +176,8 @@ def consistency_table(
     qs: Sequence[float] = (0.0, 1.0, 2.0),
     ratio: float = 0.5,
     corners: np.ndarray | None = None,
-    n_boot: int = 200,
-    seed: int = 0,
-    block_length: "int | bs.BlockLength | None" = None,
-    scheme: str = "nonoverlapping",
+    resampling: Resampling | None = None,
     offsets: int = 4,
-    level: float = 0.95,
-    interval: str = "centered",
     starve: float = sp.STARVE,
     information: RateResult | None = None,
     levels: int | None = None,
@@ -199,8 +192,9 @@ def consistency_table(
         Orders q.
     ratio, corners:
         The encoding (hypercube corners by default).
-    n_boot, seed, block_length, scheme, level, interval:
-        Block bootstrap settings, shared by both sides (same blocks).
+    resampling:
+        Block bootstrap settings (:class:`~fractalseq.resampling.Resampling`; ``None``:
+        ``Resampling()``), shared by both sides (same blocks).
     offsets:
         Random grid offsets averaged for the shifted-grid column (0: skip it).
     information:
@@ -227,23 +221,22 @@ def consistency_table(
         raise InputError("consistency_table needs the stream (a SymbolArray or SymbolStream).")
     qv = sp.check_qs(qs)
     k = encoding.check_ratio(ratio)
-    sp.check_boot(n_boot, level, interval, scheme)
+    rs = as_resampling(resampling)
     if len(arr) <= sp.TRANSIENT + 10:
         raise InputError(f"The stream has {len(arr)} symbols; the consistency table needs more than {sp.TRANSIENT + 10}.")
     overlapping, reason = sp._overlapping(arr.alphabet, k, corners)
     if information is None:
-        info = conditional_rates(arr, qv, n_boot=n_boot, seed=seed, block_length=block_length, scheme=scheme,
-                                 level=level, interval=interval, starve=starve)
+        info = conditional_rates(arr, qv, resampling=rs, starve=starve)
     else:
         missing = [float(q) for q in qv if all(r.q != float(q) for r in information.rates)]
         if missing or information.length != len(arr):
             raise ParameterError("The information side given was computed on another stream or other orders q; recompute it.", parameter="information")
         info = information
     # the geometric side uses the same block length (same blocks, same seed)
-    ell = info.block if info.block is not None else block_length
+    ell = info.block if info.block is not None else rs.block_length
     if levels is None:
         wc = sp._counts_for(arr, starve, None, None)
-        probe = sp._word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, True)
+        probe = sp._word_level_data(wc, None, qv, k, wc.depth, starve, 0, rs.seed, None, rs.scheme, True)
         top = max(probe.data_limit + 1, sp.MIN_LEVELS)
     else:
         if not isinstance(levels, (int, np.integer)) or levels < 1:
@@ -262,7 +255,7 @@ def consistency_table(
     if not tiles:
         flags.append(f"the grid of side k^m does not tile the cylinders for k = {k:g}; the geometric side carries lattice bias")
     common = dict(
-        scales=scales, seed=seed, n_boot=n_boot, block_length=ell, scheme=scheme, level=level, interval=interval,
+        scales=scales, resampling=replace(rs, block_length=ell),
         valid=valid, falpha=False, starve=starve, origin=origin,
     )
     geo = geometry.geometric_spectrum(pts, qv, aligned=True, unit_cube=(corners is None), **common)

@@ -33,6 +33,7 @@ import numpy as np
 from numba import njit
 
 from fractalseq.resampling import _bootstrap as bs
+from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.dimensions import _level_variance as lv
 from fractalseq.dimensions import _levels as lev
 from fractalseq.dimensions import _parameters as par
@@ -372,12 +373,7 @@ def geometric_spectrum(
     qs: Sequence[float] = (0.0, 1.0, 2.0),
     scales: Sequence[float] | None = None,
     offsets: int = OFFSETS,
-    seed: int = 0,
-    n_boot: int = 200,
-    block_length: "int | bs.BlockLength | None" = None,
-    scheme: str = "nonoverlapping",
-    level: float = 0.95,
-    interval: str = "centered",
+    resampling: Resampling | None = None,
     valid: np.ndarray | None = None,
     origin: np.ndarray | None = None,
     aligned: bool = False,
@@ -402,11 +398,10 @@ def geometric_spectrum(
         Box sides (any order; sorted from large to small).  Default
         :func:`default_scales`.
     offsets:
-        Number of random grid shifts averaged (seeded by ``seed``); ignored when ``aligned``.
-    seed:
-        Seed of the offsets and the bootstrap.
-    n_boot, block_length, scheme, level, interval:
-        Block bootstrap settings (``n_boot=0``: none).
+        Number of random grid shifts averaged (seeded by ``resampling.seed``); ignored when ``aligned``.
+    resampling:
+        Block bootstrap settings (:class:`~fractalseq.resampling.Resampling`; ``None``:
+        ``Resampling()``; ``Resampling.none()``: no bootstrap); its seed also draws the offsets.
     valid:
         Mask of points to use (e.g. :func:`transient_mask`); others are skipped.
     origin:
@@ -433,7 +428,8 @@ def geometric_spectrum(
         ``route = "geometric box counting"``; ``n_lo``/``n_hi`` are 1-based scale indices.
     """
     qv = par.check_qs(qs)
-    par.check_boot(n_boot, level, interval, scheme)
+    rs = as_resampling(resampling)
+    n_boot, seed, block_length, scheme, level, interval = rs.n_boot, rs.seed, rs.block_length, rs.scheme, rs.level, rs.interval
     p = _check_points(points)
     T, D = p.shape
     keep = _check_mask(valid, T)

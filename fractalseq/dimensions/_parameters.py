@@ -7,7 +7,6 @@ from typing import Sequence
 import numpy as np
 
 from fractalseq.errors import ParameterError
-from fractalseq.resampling import _bootstrap as bs
 
 
 #: Deepest depth keeps distinct words <= occurrences / STARVE.
@@ -52,19 +51,6 @@ def check_qs(qs: Sequence[float] | float) -> np.ndarray:
     if not np.all(np.isfinite(arr)):
         raise ParameterError("Orders q must be finite numbers.", parameter="qs")
     return arr
-
-
-def check_boot(n_boot: int, level: float, interval: str, scheme: str) -> None:
-    if not isinstance(n_boot, (int, np.integer)) or n_boot < 0:
-        raise ParameterError(f"The number of bootstrap replicates must be 0 or more, not {n_boot!r}.", parameter="n_boot")
-    if 0 < n_boot < 20:
-        raise ParameterError(f"{n_boot} bootstrap replicates are too few for an interval; use 0 (none) or at least 20.", parameter="n_boot")
-    if not 0.5 < level < 1:
-        raise ParameterError(f"Confidence level {level} is outside (0.5, 1); use e.g. 0.95.", parameter="level")
-    if interval not in bs.INTERVALS:
-        raise ParameterError(f"Unknown interval method {interval!r}; use one of {', '.join(bs.INTERVALS)}.", parameter="interval")
-    if scheme not in bs.SCHEMES:
-        raise ParameterError(f"Unknown bootstrap scheme {scheme!r}; use one of {', '.join(bs.SCHEMES)}.", parameter="scheme")
 
 
 def method_name(q: float, corrected: bool) -> str:

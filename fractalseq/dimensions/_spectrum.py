@@ -84,7 +84,6 @@ from fractalseq.dimensions._parameters import (
     TRANSIENT,
     UNSEEN_MAX,
     Z_LINEAR,
-    check_boot,
     check_qs,
     method_name,
 )
@@ -93,13 +92,14 @@ from fractalseq.dimensions._spectrum_results import DimensionEstimate, FAlphaPoi
 from fractalseq.entropy._renyi_rates import RateEstimate, renyi_rate_bits
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.resampling import _bootstrap as bs
+from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, count_words
 
 __all__ = [
     "AUTO_ADDRESS_BITS", "DimensionEstimate", "FAlphaPoint", "LevelData", "LevelStats", "MIN_LEVELS", "NEGATIVE_Q",
     "OVERLAP", "RESOLUTION", "RateEstimate", "STARVE", "SpectrumResult", "TRANSIENT", "UNSEEN_MAX", "Z_LINEAR",
-    "binomial_dimension", "check_boot", "check_qs", "choose_range", "dimension_spectrum", "estimate_all",
+    "binomial_dimension", "check_qs", "choose_range", "dimension_spectrum", "estimate_all",
     "fit_slope", "level_stats", "level_vector", "method_name", "rates_from", "replicate_vectors",
 ]
 
@@ -236,12 +236,7 @@ def dimension_spectrum(
     qs: Sequence[float] = (0.0, 1.0, 2.0),
     ratio: float = 0.5,
     depth_range: tuple[int, int] | None = None,
-    n_boot: int = 200,
-    seed: int = 0,
-    block_length: "int | bs.BlockLength | None" = None,
-    scheme: str = "nonoverlapping",
-    level: float = 0.95,
-    interval: str = "centered",
+    resampling: Resampling | None = None,
     corners: np.ndarray | None = None,
     falpha: bool = True,
     starve: float = STARVE,
@@ -264,8 +259,10 @@ def dimension_spectrum(
         overlapping maps a stream is sent to :func:`fractalseq.dimensions._geometry.geometric_spectrum`.
     depth_range:
         ``(n_lo, n_hi)`` word lengths to fit over; automatic when ``None``.
-    n_boot, seed, block_length, scheme, level, interval:
-        Block bootstrap settings (see :mod:`fractalseq.resampling._bootstrap`); ``n_boot=0`` skips it.
+    resampling:
+        Block bootstrap settings (:class:`~fractalseq.resampling.Resampling`: replicates, seed,
+        block length, scheme, level, interval method); ``None``: ``Resampling()``;
+        ``Resampling.none()`` skips the bootstrap.
     corners:
         Custom corner layout (default binary hypercube corners).
     falpha:
@@ -288,7 +285,8 @@ def dimension_spectrum(
 
     qv = check_qs(qs)
     k = check_ratio(ratio)
-    check_boot(n_boot, level, interval, scheme)
+    rs = as_resampling(resampling)
+    n_boot, seed, scheme, level, interval = rs.n_boot, rs.seed, rs.scheme, rs.level, rs.interval
     if starve <= 1:
         raise ParameterError(f"The starvation factor must exceed 1 (default {STARVE}), not {starve}.", parameter="starve")
     arr: SymbolArray | None
@@ -316,8 +314,7 @@ def dimension_spectrum(
         pts = encoding.points(arr, k, corners, drop=0)
         valid = geometry.transient_mask(arr, TRANSIENT)
         res = geometry.geometric_spectrum(
-            pts, qv, scales=None, n_boot=n_boot, seed=seed, block_length=block_length, scheme=scheme,
-            level=level, interval=interval, valid=valid, falpha=falpha, starve=starve, corrected=corrected,
+            pts, qv, scales=None, resampling=rs, valid=valid, falpha=falpha, starve=starve, corrected=corrected,
             scale_range=depth_range,
         )
         return SpectrumResult(
@@ -351,7 +348,7 @@ def dimension_spectrum(
     top = max(min(top, wc.depth), 0)
     block = None
     if arr is not None and n_boot > 0 and top >= 1:
-        block = bs.resolve_block(arr, top, block_length, scheme)
+        block = bs.resolve_block(arr, top, rs.block_length, scheme)
         if block.blocks < bs.MIN_BLOCKS:
             flags.append(f"only {block.blocks} blocks of {block.length} symbols: intervals are unreliable")
     if top >= 1:

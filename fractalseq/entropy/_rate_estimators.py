@@ -12,7 +12,7 @@ from fractalseq.entropy._shannon import _rate_depth, _wc_info, method_name, rate
 from fractalseq.errors import InputError, ParameterError
 
 if TYPE_CHECKING:  # for annotations only: the bootstrap module is imported where it is used
-    from fractalseq.resampling._bootstrap import BlockLength
+    from fractalseq.resampling._options import Resampling
 
 
 def h_difference(wc, depth: int | None = None, method: str = "grassberger") -> EntropyEstimate:
@@ -61,12 +61,7 @@ def h_ratio(wc, depth: int | None = None, method: str = "grassberger") -> Entrop
 def bootstrap_rate(
     est: EntropyEstimate,
     stream,
-    n_boot: int = 200,
-    seed: int = 0,
-    level: float = 0.95,
-    block_length: "int | BlockLength | None" = None,
-    scheme: str = "nonoverlapping",
-    interval: str = "centered",
+    resampling: "Resampling | None" = None,
 ) -> EntropyEstimate:
     """Attach a block-bootstrap interval to a rate from :func:`h_difference`, :func:`h_ratio` or :func:`h_renyi`.
 
@@ -83,11 +78,17 @@ def bootstrap_rate(
         An estimate made from the counts of ``stream``.
     stream:
         The :class:`~fractalseq.stream.SymbolArray` (or stream) the counts came from.
-    n_boot, seed, level, block_length, scheme, interval:
-        Passed to the bootstrap (``interval``: ``centered`` (default, as everywhere in the
-        package; chosen by the calibration study), ``percentile``, ``basic`` or ``bc``).
+    resampling:
+        The bootstrap settings (:class:`~fractalseq.resampling.Resampling`; ``None``:
+        ``Resampling()``).  Its ``interval`` method is ``centered`` by default, as everywhere
+        in the package (chosen by the calibration study); ``percentile``, ``basic`` and ``bc``
+        are the others.
     """
     from fractalseq.resampling import _bootstrap as bs
+    from fractalseq.resampling._options import as_resampling
+
+    rs = as_resampling(resampling)
+    n_boot, seed, level, scheme, interval = rs.n_boot, rs.seed, rs.level, rs.scheme, rs.interval
 
     if est.depth is None or est.quantity not in ("entropy rate", "Renyi entropy rate"):
         raise ParameterError(f"A bootstrap interval is available for depth-based entropy rates, not for {est.method}.", parameter="est")
@@ -116,7 +117,7 @@ def bootstrap_rate(
     else:
         raise ParameterError(f"A bootstrap interval is not available for the {est.method} estimate.", parameter="est")
     res = bs.block_bootstrap(
-        stream, depths, statistic, n_boot=n_boot, seed=seed, block_length=block_length, scheme=scheme, spectra=True
+        stream, depths, statistic, rs, spectra=True
     )
     if not math.isclose(float(res.estimate[0]), est.estimate, rel_tol=1e-9, abs_tol=1e-12):
         raise InputError("The stream given to the bootstrap is not the one the counts came from; pass the same input.")

@@ -7,8 +7,9 @@ through it, so the same options give the same symbols whoever asks.
 :meth:`ReaderOptions.with_baseline_cuts` is the rule that cuts numeric batches
 at the quantiles of a baseline (drift, survey ``common_cuts``, predictor
 training), so that a shift in level changes the symbols.
-:func:`check_seed` is the one rule for seeds: a whole number with
-``0 <= seed < 2**64``.
+:func:`check_seed` is the one rule for seeds (a whole number with
+``0 <= seed < 2**64``); it lives with the bootstrap settings
+(:mod:`fractalseq.resampling._options`) and is offered here too.
 """
 
 from __future__ import annotations
@@ -19,30 +20,13 @@ from typing import Sequence
 
 from fractalseq.alphabet import Alphabet, check_policy, resolve
 from fractalseq.errors import FractalseqError, InputError, ParameterError
+from fractalseq.resampling._options import check_seed
 from fractalseq.stream import SymbolArray, SymbolStream
 
 #: Quantile bins of numeric input when none are given (the numeric reader's default).
 DEFAULT_BINS = 4
-#: Seeds are whole numbers below this bound (the width of numpy's seed words times two).
-SEED_BOUND = 1 << 64
 
 __all__ = ["DEFAULT_BINS", "ReaderOptions", "check_seed", "parse_thresholds"]
-
-
-def check_seed(seed: object) -> int:
-    """Return ``seed`` as an int if it is a whole number with ``0 <= seed < 2**64``.
-
-    Raises
-    ------
-    ParameterError
-        For anything else (``parameter="seed"``).
-    """
-    if isinstance(seed, bool) or not isinstance(seed, int) and not hasattr(seed, "__index__"):
-        raise ParameterError(f"The seed must be a whole number from 0 to 2**64 - 1, not {seed!r}.", parameter="seed")
-    value = int(seed)  # type: ignore[call-overload]
-    if not 0 <= value < SEED_BOUND:
-        raise ParameterError(f"The seed must be a whole number from 0 to 2**64 - 1, not {value}.", parameter="seed")
-    return value
 
 
 def parse_thresholds(text: str | None) -> tuple[float, ...] | None:

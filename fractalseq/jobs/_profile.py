@@ -36,13 +36,14 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Callable, Sequence
 
 import numpy as np
 
 from fractalseq.words import _absent as absent_mod
 from fractalseq.resampling import _bootstrap as bs
+from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.dimensions import _consistency as cons
 from fractalseq.entropy import _estimators as ent
 from fractalseq.entropy import _lz as lz
@@ -50,7 +51,7 @@ from fractalseq.dimensions import _spectrum as sp
 from fractalseq.alphabet import Alphabet
 from fractalseq.encoding import check_ratio, corner_layout, density_image, overlap_check, points
 from fractalseq.errors import FractalseqError, InputError, ParameterError
-from fractalseq.jobs._inputs import ReaderOptions, check_seed
+from fractalseq.jobs._inputs import ReaderOptions
 from fractalseq.jobs._profile_rates import (
     annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_order, safe_ordinal_entropy,
 )
@@ -67,6 +68,8 @@ __all__ = [
 
 #: Default number of block-bootstrap replicates of a profile.
 DEFAULT_BOOT = 100
+#: The block rule, scheme and interval method every interval of a profile uses.
+PROFILE_RESAMPLING = Resampling(n_boot=0)
 #: Deepest default word length counted for the block-entropy table.
 MAX_AUTO_DEPTH = 12
 #: LZ76 parses at most this many symbols (a prefix; the result says so).
@@ -233,16 +236,16 @@ class ProfileSettings:
     def __post_init__(self) -> None:
         object.__setattr__(self, "qs", check_qs(self.qs))
         object.__setattr__(self, "ratio", check_ratio(self.ratio))
-        n_boot = self.n_boot
-        if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 0:
-            raise ParameterError(f"Bootstrap replicates must be 0 (none) or a whole number of at least 20, not {n_boot!r}.", parameter="n_boot")
-        if 0 < n_boot < 20:
-            raise ParameterError(f"{n_boot} bootstrap replicates are too few for an interval; use 0 (none) or at least 20.", parameter="n_boot")
-        if not 0.5 < float(self.level) < 1:
-            raise ParameterError(f"Confidence level {self.level} is outside (0.5, 1); use e.g. 0.95.", parameter="level")
+        rs = Resampling(n_boot=self.n_boot, seed=self.seed, level=self.level)  # the one check of these three
         if self.depth is not None and (isinstance(self.depth, bool) or not isinstance(self.depth, (int, np.integer)) or self.depth < 2):
             raise ParameterError(f"Depth {self.depth!r} is too small; the entropy rates need words of length 2 or more.", parameter="depth")
-        object.__setattr__(self, "seed", check_seed(self.seed))
+        object.__setattr__(self, "n_boot", rs.n_boot)
+        object.__setattr__(self, "seed", rs.seed)
+
+    @property
+    def resampling(self) -> Resampling:
+        """The bootstrap settings of every interval of the profile."""
+        return Resampling(n_boot=self.n_boot, seed=self.seed, level=self.level)
 
     def depth_for(self, length: int, alphabet: Alphabet) -> int:
         """The deepest word length counted for a stream of ``length`` symbols over ``alphabet``."""
@@ -329,14 +332,14 @@ def _block_entropies(arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...
 
 
 def _dimensions(
-    arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], k: float, n_boot: int, seed: int, level: float, notes: list[str]
+    arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], k: float, rs: Resampling, notes: list[str]
 ) -> tuple[sp.SpectrumResult, tuple[ScalingCurve, ...]]:
     """Step 3: D_q and f(alpha) (user's orders plus a grid for the f(alpha) curve) and the scaling curves.
 
     The conditional Rényi rates of the consistency table come from the same bootstrap pass.
     """
     all_qs = tuple(sorted(set(user_qs) | set(FALPHA_QS)))
-    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, n_boot=n_boot, seed=seed, level=level, falpha=True, rates=True)
+    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, resampling=rs, falpha=True, rates=True)
     notes.extend(f"dimensions: {f}" for f in spec.flags)
     wc_spec = None
     if spec.route == "word counts":
@@ -346,13 +349,14 @@ def _dimensions(
 
 
 def _rate_intervals(
-    arr: SymbolArray, rate_est: dict[str, ent.EntropyEstimate], n_boot: int, seed: int, level: float, block, notes: list[str]
+    arr: SymbolArray, rate_est: dict[str, ent.EntropyEstimate], rs: Resampling, block, notes: list[str]
 ) -> dict[str, Any] | None:
     """Step 4: intervals of the rate estimates by the block bootstrap (counts re-weighted, never recounted).
 
     Updates ``rate_est`` in place; returns the bootstrap's block rule (``None`` without a bootstrap).
     """
     n_rate = rate_est["grassberger"].depth or 0
+    n_boot, level = rs.n_boot, rs.level
     if n_boot > 0 and len(arr) >= 2 * (n_rate + 2):
         depths = (n_rate, n_rate + 1) if n_rate >= 1 else (1,)
 
@@ -372,9 +376,9 @@ def _rate_intervals(
             return np.column_stack([ent.replicate_rates(s0, specs[n_rate + 1], m) for m in ent.METHODS])
 
         boot = bs.block_bootstrap(
-            arr, depths, stat, n_boot=n_boot, seed=seed, block_length=block, spectra=True, batch_statistic=batch
+            arr, depths, stat, replace(rs, block_length=block), spectra=True, batch_statistic=batch
         )
-        lo, hi = boot.interval(level)
+        lo, hi = boot.interval(level, rs.interval)
         for j, m in enumerate(ent.METHODS):
             if np.isfinite(lo[j]) and np.isfinite(hi[j]):
                 rate_est[m] = rate_est[m].with_interval(lo[j], hi[j], f"{level:.0%} block bootstrap, {n_boot} replicates")
@@ -386,8 +390,8 @@ def _rate_intervals(
 
 
 def _consistency(
-    arr: SymbolArray, spec: sp.SpectrumResult, user_qs: tuple[float, ...], k: float, n_boot: int, seed: int,
-    offsets: int, level: float, notes: list[str],
+    arr: SymbolArray, spec: sp.SpectrumResult, user_qs: tuple[float, ...], k: float, rs: Resampling,
+    offsets: int, notes: list[str],
 ) -> cons.ConsistencyResult | None:
     """Step 5: the consistency table (geometry against information), or ``None`` with a note saying why."""
     L = len(arr)
@@ -398,12 +402,11 @@ def _consistency(
     info = None
     if spec.route == "word counts" and spec.rates:
         info = cons.RateResult(
-            tuple(r for r in spec.rates if r.q in user_qs), block, int(n_boot) if block else 0, int(seed), L
+            tuple(r for r in spec.rates if r.q in user_qs), block, rs.n_boot if block else 0, rs.seed, L
         )
     try:
         consistency = cons.consistency_table(
-            arr, user_qs, ratio=k, n_boot=n_boot, seed=seed, offsets=offsets, level=level,
-            block_length=block, information=info,
+            arr, user_qs, ratio=k, resampling=replace(rs, block_length=block), offsets=offsets, information=info,
             levels=spec.data_limit if spec.route == "word counts" and spec.data_limit else None,
         )
     except FractalseqError as exc:
@@ -471,9 +474,7 @@ def profile_source(
     ratio: float = 0.5,
     qs: Sequence[float] = (0.0, 1.0, 2.0),
     depth: int | None = None,
-    n_boot: int = DEFAULT_BOOT,
-    seed: int = 0,
-    level: float = 0.95,
+    resampling: Resampling | None = None,
     offsets: int = CONSISTENCY_OFFSETS,
     lz_max_length: int | None = LZ_MAX_LENGTH,
     compress_max_length: int | None = COMPRESS_MAX_LENGTH,
@@ -496,12 +497,12 @@ def profile_source(
         Deepest word length of the block-entropy table; default
         :func:`auto_depth` (three past the fixed rule's length), counted deeper while
         every counted length is supported by the counts (at most 12).
-    n_boot:
-        Block-bootstrap replicates of every interval (0: none; else at least 20).
-    seed:
-        Seed of every random step; the same seed gives the same result.
-    level:
-        Confidence level of the intervals.
+    resampling:
+        Replicates of every interval (``n_boot``; 0: none, else at least 20), the seed of
+        every random step (the same seed gives the same result) and the confidence
+        ``level``; ``None``: ``Resampling(n_boot=DEFAULT_BOOT)``.  The profile chooses
+        one block length for all intervals and uses non-overlapping blocks and centered
+        intervals, so ``block_length``, ``scheme`` and ``interval`` must keep their defaults.
     offsets:
         Random grid offsets of the geometric side of the consistency table.
     lz_max_length, compress_max_length:
@@ -517,6 +518,15 @@ def profile_source(
     -------
     ProfileResult
     """
+    rs = as_resampling(resampling, Resampling(n_boot=DEFAULT_BOOT))
+    for name in ("block_length", "scheme", "interval"):
+        if getattr(rs, name) != getattr(PROFILE_RESAMPLING, name):
+            raise ParameterError(
+                f"The profile chooses the block length itself and uses {PROFILE_RESAMPLING.scheme} blocks with "
+                f"{PROFILE_RESAMPLING.interval} intervals; leave resampling.{name} at its default.",
+                parameter=name,
+            )
+    n_boot, seed, level = rs.n_boot, rs.seed, rs.level
     clock = _Clock(progress)
     settings = ProfileSettings(ratio, tuple(qs), depth, n_boot, level, seed)
     arr, N = _checked_input(arr, settings)
@@ -535,12 +545,12 @@ def profile_source(
     clock.step("block entropies")  # 2. block entropies and rate estimates
     found = _block_entropies(arr, wc, user_qs, notes)
     clock.step("dimensions")  # 3. dimensions, f(alpha) and the scaling data
-    spec, scaling = _dimensions(arr, wc, user_qs, k, n_boot, seed, level, notes)
+    spec, scaling = _dimensions(arr, wc, user_qs, k, rs, notes)
     clock.step("entropy-rate intervals")  # 4. one block length for every interval (the spectrum's)
-    rate_block = _rate_intervals(arr, found.rates, n_boot, seed, level, spec.block, notes)
+    rate_block = _rate_intervals(arr, found.rates, rs, spec.block, notes)
     rates: dict[str, tuple[str, ent.EntropyEstimate]] = {m: ("estimate", found.rates[m]) for m in ent.METHODS}
     clock.step("consistency table")  # 5. geometry against information
-    consistency = _consistency(arr, spec, user_qs, k, n_boot, seed, offsets, level, notes)
+    consistency = _consistency(arr, spec, user_qs, k, rs, offsets, notes)
     _rate_bounds(arr, rates, lz_max_length, compress_max_length, clock, notes)  # 6. LZ76, compressors, predictor
     clock.step("absent words")  # 7. absent words
     absent = _absent_words(wc, L, absent_list, notes)

@@ -20,7 +20,6 @@ Genomic output is for research, not for clinical decisions.
 
 from __future__ import annotations
 
-import inspect
 import json
 import time
 from dataclasses import dataclass, field, replace
@@ -184,12 +183,11 @@ def _store_depth(alphabet: Alphabet, options: SurveyOptions) -> int:
 
 def profile_row(arr: SymbolArray, options: SurveyOptions) -> dict:
     """Every per-source figure of one source, from :func:`fractalseq.jobs._profile.profile_source`."""
-    from fractalseq.jobs._profile import profile_source
+    from fractalseq.jobs._profile import DEFAULT_BOOT, profile_source
+    from fractalseq.resampling._options import Resampling
 
-    sig = inspect.signature(profile_source)
-    wanted = {"depth": options.depth, "ratio": options.ratio, "seed": options.seed}
-    kwargs = {k: v for k, v in wanted.items() if k in sig.parameters}
-    result = profile_source(arr, **kwargs)
+    resampling = Resampling(n_boot=DEFAULT_BOOT, seed=options.seed)
+    result = profile_source(arr, depth=options.depth, ratio=options.ratio, resampling=resampling)
     data = result.to_dict() if hasattr(result, "to_dict") else dict(result)
     return json.loads(to_json(data))
 

@@ -64,6 +64,7 @@ from fractalseq.resampling._block_length import (
 )
 from fractalseq.resampling._block_tables import BlockTables, block_tables, replicate_table, weighted_table
 from fractalseq.resampling._intervals import INTERVALS, interval_from
+from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.resampling._plan import SCHEMES, ResamplePlan, make_plan
 from fractalseq.resampling._replicates import CountSpectrum
 from fractalseq.resampling._word_labels import DENSE_LABEL_CELLS, rank_sorted_keys, word_labels
@@ -72,8 +73,8 @@ from fractalseq.stream import SymbolArray, SymbolStream
 
 __all__ = [
     "BLOCK_MULTIPLE", "BlockLength", "BlockTables", "BootstrapResult", "DENSE_LABEL_CELLS", "INTERVALS", "MIN_BLOCKS",
-    "ResamplePlan", "SCHEMES", "autocovariances", "block_bootstrap", "block_tables", "choose_block_length",
-    "interval_from", "make_plan", "politis_white", "rank_sorted_keys", "replicate_table", "resolve_block",
+    "ResamplePlan", "Resampling", "SCHEMES", "autocovariances", "block_bootstrap", "block_tables", "choose_block_length",
+    "interval_from", "make_plan", "politis_white", "rank_sorted_keys", "replicate_table", "resolve_block", "run_block_bootstrap",
     "surprisal_series", "user_block_length", "weighted_table", "word_labels",
 ]
 
@@ -157,10 +158,7 @@ def block_bootstrap(
     arr: SymbolArray | SymbolStream,
     depths: Sequence[int],
     statistic: Callable[[dict[int, np.ndarray]], Iterable[float] | float],
-    n_boot: int = 200,
-    seed: int = 0,
-    block_length: "int | BlockLength | None" = None,
-    scheme: str = "nonoverlapping",
+    resampling: Resampling | None = None,
     spectra: bool = False,
     batch_statistic: Callable[[dict], np.ndarray] | None = None,
 ) -> BootstrapResult:
@@ -179,15 +177,14 @@ def block_bootstrap(
         zeros when counting distinct words).  Returns a number or a vector.
         For the whole stream the counts equal
         :meth:`fractalseq.words._counts.WordCounts.counts`.
-    n_boot:
-        Number of replicates (0: estimate only).
-    seed:
-        Seed of the resampling; the same seed gives identical replicates.
-    block_length:
-        Block length in symbols; chosen from the data when ``None`` (see
-        :func:`choose_block_length`; the rule used is in ``result.block.rule``).
-    scheme:
-        ``"nonoverlapping"``, ``"moving"`` or ``"stationary"``.
+    resampling:
+        Replicates (``n_boot``, 0: estimate only), ``seed`` (the same seed
+        gives identical replicates), ``block_length`` (chosen from the data
+        when ``None``, see :func:`choose_block_length`; the rule used is in
+        ``result.block.rule``) and ``scheme`` (``"nonoverlapping"``,
+        ``"moving"`` or ``"stationary"``); ``None``: ``Resampling()``.  Its
+        ``level`` and ``interval`` are for the caller:
+        ``result.interval(resampling.level, resampling.interval)``.
     spectra:
         The statistic depends on the counts only through their spectrum (how
         many words occur ``v`` times; entropies do): it is then called with
@@ -206,6 +203,22 @@ def block_bootstrap(
     -------
     BootstrapResult
     """
+    rs = as_resampling(resampling)
+    return run_block_bootstrap(arr, depths, statistic, rs.n_boot, rs.seed, rs.block_length, rs.scheme, spectra, batch_statistic)
+
+
+def run_block_bootstrap(
+    arr: SymbolArray | SymbolStream,
+    depths: Sequence[int],
+    statistic: Callable[[dict[int, np.ndarray]], Iterable[float] | float],
+    n_boot: int,
+    seed: int,
+    block_length: "int | BlockLength | None",
+    scheme: str,
+    spectra: bool = False,
+    batch_statistic: Callable[[dict], np.ndarray] | None = None,
+) -> BootstrapResult:
+    """:func:`block_bootstrap` with plain settings (unchecked beyond ``n_boot >= 0``; any replicate count)."""
     arr = _as_array(arr)
     depths = tuple(sorted({int(d) for d in depths}))
     if not depths:
