@@ -17,7 +17,6 @@ limit).  ``NaN`` stays ``NaN`` in the dictionary; the JSON writer
 from __future__ import annotations
 
 import dataclasses
-import math
 from dataclasses import dataclass, field
 from typing import Any, ClassVar, Mapping
 
@@ -41,8 +40,6 @@ def to_plain(value: Any) -> Any:
         return {str(k): to_plain(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
         return [to_plain(v) for v in value]
-    if isinstance(value, float) and math.isinf(value):
-        return value
     return value
 
 
