@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 
 from fractalseq.alphabet import resolve
-from fractalseq.errors import InputError
+from fractalseq.errors import FractalseqError, InputError
 from fractalseq.sources import detect_format, open_source
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -174,3 +174,19 @@ def test_cli_refuses_a_log_without_times_in_one_sentence():
     assert res.returncode != 0
     assert "Traceback" not in res.stderr
     assert "choose the format" in res.stderr
+
+
+def test_a_template_alphabet_reads_a_log_as_log():
+    # a model keeps the template alphabet of its training log; a later log read with it under auto is a log
+    # (rule 7), every line counted against the listed templates as with an explicit --format log
+    path = LOGS / "dpkg-excerpt.log"
+    table = open_source(path, fmt="log", alphabet="learn").alphabet
+    assert table.name == "templates"
+    auto = open_source(path, alphabet=table)
+    explicit = open_source(path, fmt="log", alphabet=table)
+    assert auto.alphabet.symbols == table.symbols
+    assert (auto.to_array().codes == explicit.to_array().codes).all()
+    assert auto.report.extra["format"] == "log"
+    # ... but not a table: a template alphabet does not make a CSV a log
+    with pytest.raises(FractalseqError):
+        open_source(REF / "timeseries" / "sunspots_yearly.csv", alphabet=table).to_array()

@@ -50,6 +50,10 @@ Rules of ``fmt="auto"``, applied to the first 64 KiB after decompression:
    as symbols or an object is refused when fewer than half of the
    characters are its symbols or ambiguity codes.
 
+7. An alphabet a log or numeric reader made (named ``templates``, or
+   ``quantileN``/``thresholdN``/``ordinalN``, as a model keeps it): its own
+   format when the sampled lines are judged so by rule 5, before rule 6.
+
 A declared format is checked against the content: FASTA must start with
 ``>``, FASTQ with ``@`` and a ``+`` third line.
 """
@@ -249,6 +253,18 @@ def classify(block: bytes) -> tuple[str, str]:
     return "", reason
 
 
+_NUMERIC_ALPHABET = re.compile(r"(?:quantile|threshold|ordinal)\d+")
+
+
+def own_format(alphabet: Alphabet) -> str:
+    """``"log"`` for a template alphabet, ``"numeric"`` for a numeric symbolization's, else ``""`` (rule 7)."""
+    if alphabet.name == "templates":
+        return "log"
+    if _NUMERIC_ALPHABET.fullmatch(alphabet.name):
+        return "numeric"
+    return ""
+
+
 def detect_with_reason(block: bytes, alphabet: Alphabet | None, name: str, follow: bool = False) -> tuple[str, str]:
     """Pick a format for ``fmt="auto"`` by the module rules, with the reason for the read report.
 
@@ -276,6 +292,11 @@ def detect_with_reason(block: bytes, alphabet: Alphabet | None, name: str, follo
     if looks_fastq(block):
         return "fastq", "detected as FASTQ: an '@' line, sequence and a '+' line"
     if alphabet is not None:
+        own = own_format(alphabet)
+        if own:
+            fmt, why = classify(block)
+            if fmt == own:
+                return fmt, f"{why}; read with the given {alphabet.name} alphabet"
         if alphabet.name != "bytes" and alphabet.single_characters and all(ord(s) < 128 for s in alphabet.symbols):
             share = alphabet_share(block, alphabet)
             if share < 0.5:
