@@ -244,8 +244,13 @@ def test_auto_detection_rules(tmp_path):
     tai = tmp_path / "tai.log"
     tai.write_text("@400000004c91b044077a9e94 login: user=<a@b.c>\n@400000004c91b044077a9e95 logout\n+done\n")
     assert detect_format(tai, "learn") == "log"
-    # with the default dna alphabet a log is refused instead of read as garbage sequence
-    raises_one_sentence(InputError, open_source, log, match="does not look like dna")
+    # with the default dna alphabet a log is read as a log (its templates), not as garbage sequence
+    assert detect_format(log) == "log"
+    assert open_source(log).alphabet.name != "dna"
+    # ... while a dna Alphabet given as an object (a model's) does not follow: the log is refused
+    from fractalseq.alphabet import resolve
+
+    raises_one_sentence(InputError, open_source, log, alphabet=resolve("dna"), match="does not look like dna")
 
 
 # --------------------------------------------------------------- bad inputs

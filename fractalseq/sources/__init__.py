@@ -88,13 +88,20 @@ def _byte_path(a: Alphabet) -> bool:
     return a.name == "bytes" or all(ord(s) < 128 for s in a.symbols)
 
 
-def _prepare(path: str | os.PathLike, fmt: str, a: Alphabet | None, allow_binary: bool) -> tuple[Origin, str, bytes]:
+def _follows(spec: str | Alphabet | None) -> bool:
+    """True when the alphabet is a sequence preset given by name: a detected log or table brings its own."""
+    return isinstance(spec, str) and spec in sniff.SEQUENCE_PRESETS
+
+
+def _prepare(
+    path: str | os.PathLike, fmt: str, a: Alphabet | None, allow_binary: bool, follow: bool = False
+) -> tuple[Origin, str, bytes]:
     origin = locate(path)
     block = head(origin)
     sniff.check_content(block, origin.name, allow_binary)
     if fmt == "auto":
-        fmt = sniff.detect(block, a, origin.name)
-        origin.notes.append(f"format {fmt} (detected)")
+        fmt, why = sniff.detect_with_reason(block, a, origin.name, follow)
+        origin.notes.append(f"format {fmt} ({why})")
     else:
         sniff.check_declared(fmt, block, origin.name)
     return origin, fmt, block
@@ -107,7 +114,7 @@ def detect_format(path: str | os.PathLike, alphabet: str | Alphabet | None = "dn
     """
     a = _resolve(alphabet)
     allow = a is not None and a.name == "bytes"
-    return _prepare(path, "auto", a, allow)[1]
+    return _prepare(path, "auto", a, allow, _follows(alphabet))[1]
 
 
 def open_source(
@@ -179,7 +186,9 @@ def open_source(
         numeric.check_parameters(bins, thresholds, ordinal)
     a = _resolve(alphabet) if fmt not in ("tokens", "log", "numeric") else None
     allow_binary = a is not None and a.name == "bytes" and fmt in ("auto", "text")
-    origin, fmt, block = _prepare(path, fmt, a, allow_binary)
+    origin, fmt, block = _prepare(path, fmt, a, allow_binary, _follows(alphabet))
+    if fmt in ("log", "numeric") and _follows(alphabet):
+        alphabet = None  # detected: the log's templates or the numeric bins, as with the format given
     learn_block = max(chunk_size, _LEARN_BLOCK)
     stream_name = name or origin.name
     base_notes = origin.notes  # read when a pass begins: includes the note of a pipe copied for a learning pass

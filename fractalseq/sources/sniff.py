@@ -14,16 +14,45 @@ Rules of ``fmt="auto"``, applied to the first 64 KiB after decompression:
 4. First non-blank line starts with ``@``, followed by one or more sequence
    lines (letters, ``.``, ``*``, ``-``) and then a line starting with ``+``:
    **fastq**.
-5. Alphabet ``bytes``, a sequence preset (``dna``, ``rna``, ``protein``,
-   ``binary``) or explicit symbols: **text** (plain sequence: every character
-   is read; layout characters not in the alphabet are skipped).  With
-   ``auto`` a plain-sequence guess is refused when fewer than half of the
-   first block's non-layout characters belong to the alphabet (probably a log
-   or a table read with the default ``dna``).
-6. Alphabet learned: **numeric** when every sampled non-comment line is a
-   row of the same table and some column holds only numbers or missing
-   marks; else **log** when at least half of the sampled non-comment lines
-   carry a timestamp in their first 80 characters; else **text**.
+5. Alphabet learned, or a sequence preset (``dna``, ``rna``, ``protein``,
+   ``binary``) given by name, as the command line's default ``dna`` is,
+   when fewer than half of the first block's non-layout characters are its
+   symbols (for DNA/RNA counting ``N``; ambiguity codes not counted): the
+   sampled lines (the first 200 non-blank lines of the block
+   whose first non-blank character is not ``#``) are judged:
+
+   * **numeric** when they form one table (a delimiter or whitespace, an
+     optional header row) with at least one column holding only numbers or
+     missing marks (:func:`fractalseq.sources.numeric.looks_numeric`);
+   * else **log** when at least half of them start with a log header: a
+     header set aside by :func:`fractalseq.sources.headers.split_header`
+     that holds a time or a syslog ``<PRI>`` (ISO 8601 / ``YYYY-MM-DD
+     HH:MM:SS``, RFC 3164 ``Mmm dd hh:mm:ss host prog[pid]:``, RFC 5424
+     ``<pri>1 ...``, bracketed ``[dd/Mon/yyyy:hh:mm:ss +zone]`` and the
+     other times listed there), a first word that is a time (epoch seconds,
+     TAI64N ``@4000...``), or a JSON object (``{...}`` on one line);
+   * else, for the learned alphabet, **text**; for a preset, **text**
+     (plain sequence, as in rule 6) with a note naming the formats to
+     choose when symbols and ambiguity codes together make up at least half
+     of the characters, otherwise an :class:`InputError` naming them.  A
+     test or build log whose lines carry no time is not recognised as an
+     event log: read it with ``log`` explicitly, or as text.
+
+   The format so chosen brings its own alphabet (the log's templates, the
+   numeric symbolization's bins), as with an explicit ``log`` or
+   ``numeric``; the reason is kept as a note of the read report
+   (e.g. ``detected as an event log: 198 of 200 sampled lines start with a
+   timestamp or log header``).
+6. Alphabet ``bytes``, explicit symbols, an :class:`Alphabet` object, or a
+   preset whose symbols hold at least half of the characters: **text**
+   (plain sequence: every character is read; layout characters not in the
+   alphabet are skipped).  With ``auto`` a single-character alphabet given
+   as symbols or an object is refused when fewer than half of the
+   characters are its symbols or ambiguity codes.
+
+7. An alphabet a log or numeric reader made (named ``templates``, or
+   ``quantileN``/``thresholdN``/``ordinalN``, as a model keeps it): its own
+   format when the sampled lines are judged so by rule 5, before rule 6.
 
 A declared format is checked against the content: FASTA must start with
 ``>``, FASTQ with ``@`` and a ``+`` third line.
@@ -39,6 +68,7 @@ import numpy as np
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError
 from fractalseq.sources import numeric
+from fractalseq.sources.headers import split_header
 from fractalseq.sources.templates import has_timestamp
 
 FORMATS: tuple[str, ...] = ("auto", "fasta", "fastq", "text", "tokens", "log", "numeric")
@@ -140,6 +170,19 @@ def check_declared(fmt: str, block: bytes, name: str) -> None:
         )
 
 
+def symbol_share(block: bytes, alphabet: Alphabet) -> float:
+    """Share of non-layout bytes of ``block`` that are symbols of ``alphabet`` or its unknown mark (N for DNA/RNA)."""
+    arr = np.frombuffer(block, dtype=np.uint8)
+    cls = alphabet.byte_table()[arr]
+    body = cls != -3
+    if not body.any():
+        return 0.0
+    ok = cls >= 0
+    if alphabet.name in ("dna", "rna"):
+        ok |= (arr == ord("N")) | (arr == ord("n"))
+    return float(ok[body].mean())
+
+
 def alphabet_share(block: bytes, alphabet: Alphabet) -> float:
     """Share of non-layout bytes of ``block`` that are symbols or ambiguity codes of ``alphabet``."""
     arr = np.frombuffer(block, dtype=np.uint8)
@@ -151,25 +194,140 @@ def alphabet_share(block: bytes, alphabet: Alphabet) -> float:
     return float(((cls >= 0) | (cls == -2))[body].mean())
 
 
-def detect(block: bytes, alphabet: Alphabet | None, name: str) -> str:
-    """Pick a format for ``fmt="auto"`` by the module rules; raise when a plain-sequence guess fails."""
+SEQUENCE_PRESETS: tuple[str, ...] = ("dna", "rna", "protein", "binary")
+
+
+def starts_with_header(line: str) -> bool:
+    """True when ``line`` starts with a log header holding a time or ``<PRI>``, or is a JSON object (rule 5)."""
+    body = line.strip()
+    if body[:1] == "{" and body[-1:] == "}":
+        return True
+    _, msg = split_header(body)
+    if not body.endswith(msg):
+        return True  # a common-log date was taken from after the first fields
+    removed = body[: len(body) - len(msg)]
+    if removed[:1] == "<" and removed[1:2].isdigit():
+        return True
+    if removed and has_timestamp(removed, within=len(removed)):
+        return True
+    first = body.split(None, 1)[0] if body else ""
+    return has_timestamp(first, within=len(first)) and len(first) >= 10
+
+
+def sample_lines(block: bytes) -> list[str]:
+    """The sampled lines of rule 5: up to 200 non-blank, non-comment lines of the block."""
+    return [ln for ln in _lines(block) if not ln.lstrip().startswith("#")]
+
+
+def classify(block: bytes) -> tuple[str, str]:
+    """``(format, reason)`` for a block that is not a sequence: numeric, log or ``""`` (neither), by rule 5.
+
+    Parameters
+    ----------
+    block:
+        The first (decompressed) block of the input.
+
+    Returns
+    -------
+    (str, str)
+        The format (``"numeric"``, ``"log"`` or ``""``) and a sentence saying why,
+        e.g. ``"detected as an event log: 198 of 200 sampled lines start with a timestamp or log header"``.
+    """
+    lines = sample_lines(block)
+    if not lines:
+        return "", "no line to judge"
+    if numeric.looks_numeric(lines):
+        lay = numeric.detect_layout(lines)
+        rows = numeric.split_rows(lines[1:] if lay.header else lines, lay.delimiter)
+        width = max(len(r) for r in rows)
+        cols = numeric._numeric_columns(rows, width)
+        head = "a header row and " if lay.header else ""
+        return "numeric", (
+            f"detected as a numeric table: {head}{len(rows)} sampled rows, "
+            f"{len(cols)} of {width} column{'s' if width != 1 else ''} holding only numbers"
+        )
+    k = sum(starts_with_header(ln) for ln in lines)
+    reason = f"{k} of {len(lines)} sampled lines start with a timestamp or log header"
+    if k * 2 >= len(lines):
+        return "log", "detected as an event log: " + reason
+    return "", reason
+
+
+_NUMERIC_ALPHABET = re.compile(r"(?:quantile|threshold|ordinal)\d+")
+
+
+def own_format(alphabet: Alphabet) -> str:
+    """``"log"`` for a template alphabet, ``"numeric"`` for a numeric symbolization's, else ``""`` (rule 7)."""
+    if alphabet.name == "templates":
+        return "log"
+    if _NUMERIC_ALPHABET.fullmatch(alphabet.name):
+        return "numeric"
+    return ""
+
+
+def detect_with_reason(block: bytes, alphabet: Alphabet | None, name: str, follow: bool = False) -> tuple[str, str]:
+    """Pick a format for ``fmt="auto"`` by the module rules, with the reason for the read report.
+
+    Parameters
+    ----------
+    block:
+        The first (decompressed) block of the input.
+    alphabet:
+        The resolved alphabet, ``None`` when it is learned.
+    name:
+        The input's name, for messages.
+    follow:
+        True when the alphabet is a sequence preset given by name (as the
+        command line's default ``dna``), which a detected log or numeric
+        table replaces by its own alphabet.
+
+    Raises
+    ------
+    InputError
+        A preset alphabet holds too few of the characters and the content is
+        neither a log nor a numeric table.
+    """
     if looks_fasta(block):
-        return "fasta"
+        return "fasta", "detected as FASTA: the first character is '>'"
     if looks_fastq(block):
-        return "fastq"
+        return "fastq", "detected as FASTQ: an '@' line, sequence and a '+' line"
     if alphabet is not None:
+        own = own_format(alphabet)
+        if own:
+            fmt, why = classify(block)
+            if fmt == own:
+                return fmt, f"{why}; read with the given {alphabet.name} alphabet"
         if alphabet.name != "bytes" and alphabet.single_characters and all(ord(s) < 128 for s in alphabet.symbols):
             share = alphabet_share(block, alphabet)
             if share < 0.5:
+                why = ""
+                if follow:
+                    fmt, why = classify(block)
+                    if fmt:
+                        return fmt, f"{why}; the {alphabet.name} alphabet does not apply, the format's own is used"
+                    why = f" nor like an event log ({why})"
                 raise InputError(
                     f"{name} does not look like {alphabet.name} sequence (only {share:.0%} of its first "
-                    "characters are symbols of that alphabet); choose the format (log, numeric, text, tokens) "
-                    "and the alphabet (e.g. learn) explicitly."
+                    f"characters are symbols of that alphabet){why}; choose the format (log for an event log "
+                    "whose lines carry no time, numeric, text, tokens) and the alphabet (e.g. learn) explicitly."
                 )
-        return "text"
-    lines = [ln for ln in _lines(block) if not ln.lstrip().startswith("#")]
-    if lines and numeric.looks_numeric(lines):
-        return "numeric"
-    if lines and sum(has_timestamp(ln) for ln in lines) * 2 >= len(lines):
-        return "log"
-    return "text"
+            strict = symbol_share(block, alphabet)
+            if follow and strict < 0.5:
+                fmt, why = classify(block)
+                if fmt:
+                    return fmt, f"{why}; the {alphabet.name} alphabet does not apply, the format's own is used"
+                return "text", (
+                    f"read as plain {alphabet.name} sequence, but only {strict:.0%} of its first characters are "
+                    f"{alphabet.name} symbols ({share:.0%} with ambiguity codes) and {why}: for a log or prose "
+                    "choose the format (log, text, tokens) and the alphabet (learn)"
+                )
+        return "text", f"read as plain {alphabet.name} sequence"
+    fmt, why = classify(block)
+    if fmt:
+        return fmt, why
+    return "text", f"read as text: not a numeric table, and {why}"
+
+
+def detect(block: bytes, alphabet: Alphabet | None, name: str, follow: bool = False) -> str:
+    """Pick a format for ``fmt="auto"`` by the module rules (see :func:`detect_with_reason`)."""
+    return detect_with_reason(block, alphabet, name, follow)[0]
