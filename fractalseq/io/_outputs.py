@@ -12,9 +12,11 @@ import contextlib
 import json
 import math
 import os
+import re
 import signal
 import tempfile
 import threading
+import time
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, Iterable
@@ -95,11 +97,64 @@ def _signals_deferred():
         signal.pthread_sigmask(signal.SIG_SETMASK, previous)
 
 
+def _process_start() -> float:
+    """When this process started (:func:`time.time` scale); the module's import time where unknown."""
+    try:
+        with open("/proc/self/stat", "rb") as fh:
+            ticks = int(fh.read().rsplit(b")", 1)[1].split()[19])  # field 22: start time in clock ticks
+        with open("/proc/stat", "rb") as fh:
+            boot = next(int(line.split()[1]) for line in fh if line.startswith(b"btime "))
+        return boot + ticks / os.sysconf("SC_CLK_TCK")
+    except (OSError, ValueError, IndexError, StopIteration):
+        return time.time()
+
+
+#: Temporary files whose last change is older than this are not being written by this process.
+PROCESS_START = _process_start()
+#: The random part :func:`tempfile.mkstemp` puts in a name (8 of these characters).
+_MKSTEMP_PART = r"[a-z0-9_]{8}"
+
+
+def remove_stale_parts(path: Path | str, before: float | None = None) -> int:
+    """Remove temporary files an interrupted write of ``path`` left in its folder; return how many.
+
+    Only files named exactly as :func:`write_bytes` names its temporary files
+    for this path (``.NAME.XXXXXXXX.part``) and last changed before ``before``
+    (default: this process's start, so a write in progress elsewhere is left
+    alone) are removed; anything else is never touched.
+    """
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    limit = PROCESS_START if before is None else before
+    pattern = re.compile(re.escape(f".{path.name}.") + _MKSTEMP_PART + r"\.part")
+    removed = 0
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return 0
+    for entry in entries:
+        if not pattern.fullmatch(entry.name):
+            continue
+        try:
+            if not entry.is_file(follow_symlinks=False) or entry.stat(follow_symlinks=False).st_mtime >= limit:
+                continue
+            os.unlink(entry.path)
+            removed += 1
+        except OSError:
+            continue
+    return removed
+
+
 def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
-    """Atomically write ``data`` to ``path`` (temporary file in the same folder, then rename)."""
+    """Atomically write ``data`` to ``path`` (temporary file in the same folder, then rename).
+
+    Temporary files of an earlier, killed write of the same path are removed
+    first (:func:`remove_stale_parts`).
+    """
     path = Path(path)
     check_writable(path, force)
     path.parent.mkdir(parents=True, exist_ok=True)
+    remove_stale_parts(path)
     with _signals_deferred():
         fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
         try:
