@@ -132,6 +132,8 @@ def survey(
             kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
             typer.echo(f"interrupted:{kept or ' nothing was written'}.", err=True)
             raise typer.Exit(130) from None
+    for note in result.cache_notes:
+        common.err_console.print(f"note: {note}.", markup=False, highlight=False)
     if cached[0] and not quiet:
         common.err_console.print(f"resumed: {cached[0]} of {len(result.names)} sources read from the cache")
     if result.cache_pruned and not quiet:
