@@ -24,6 +24,7 @@ from typing import Any, Iterable
 import numpy as np
 
 from fractalseq.errors import OutputError
+from fractalseq.runner import pause_point
 
 
 def _clean(value: Any) -> Any:
@@ -170,6 +171,10 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
             except FileNotFoundError:
                 pass
             raise
+    for stage in _open_stages:
+        if stage.path in path.parents:
+            stage.files += 1
+            pause_point("report.file", stage.files)
     return path
 
 
@@ -245,10 +250,13 @@ def tracking_folders():
     global _created
     outer, _created = _created, []
     mine = _created
+    stages_before = list(_open_stages)
 
     def discard_empty() -> None:
         import shutil
 
+        for stage in [st for st in _open_stages if st not in stages_before]:
+            stage.discard()
         for top in reversed(mine):
             if top.is_dir() and not _holds_files(top):
                 shutil.rmtree(top, ignore_errors=True)
@@ -257,6 +265,8 @@ def tracking_folders():
         yield discard_empty
     finally:
         _created = outer
+        for stage in [st for st in _open_stages if st not in stages_before]:
+            stage.discard()  # a run that ended without committing its report folder leaves no trace
 
 
 def write_npz(path: Path | str, arrays: dict[str, np.ndarray], force: bool = False) -> Path:
@@ -269,3 +279,123 @@ def write_npz(path: Path | str, arrays: dict[str, np.ndarray], force: bool = Fal
     buf = io.BytesIO()
     np.savez(buf, **arrays)
     return write_bytes(path, buf.getvalue(), force=force)
+
+
+# ------------------------------------------------------------------ report folders written as a whole
+def check_folder(folder: Path | str, force: bool) -> Path:
+    """Refuse a file, or a folder holding visible files without ``force``; create nothing.
+
+    Returns the folder to write (a symbolic link to a folder is followed, so the
+    folder it points to is replaced, never the link).
+    """
+    folder = Path(folder)
+    if folder.is_symlink() and folder.is_dir():
+        folder = folder.resolve()
+    if folder.exists() and not folder.is_dir():
+        raise OutputError(f"{folder} is a file, not a folder; choose another output folder.")
+    if folder.exists() and any(p for p in folder.iterdir() if not p.name.startswith(".")) and not force:
+        raise _refusal(f"{folder} already holds files; allow overwriting them or choose another folder.", "force")
+    return folder
+
+
+#: Staged report folders opened and not yet committed or discarded.
+_open_stages: list["StagedFolder"] = []
+_PARTIAL = ".partial-"
+_OLD = ".old-"
+
+
+class StagedFolder:
+    """A report folder built under a hidden sibling name and renamed into place as a whole.
+
+    ``StagedFolder(folder, force)`` checks ``folder`` as :func:`prepare_folder`
+    does (a file, or a folder holding visible files without ``force``, is refused)
+    and creates the sibling ``.NAME.partial-XXXXXXXX`` in the same parent; the
+    writers write into :attr:`path`; :meth:`commit` renames it to ``folder``
+    (``os.rename`` of a folder is atomic on one file system).  An existing
+    ``folder`` (empty, or replaced with ``force``) is swapped: renamed away to
+    ``.NAME.old-XXXXXXXX``, the new one renamed in, the old one removed.  Hidden
+    entries of the existing folder that the new one lacks (a survey's ``.cache``)
+    are moved into the new folder first, so they survive.  An interrupted run
+    (:meth:`discard`, or the command line's :func:`tracking_folders`) leaves
+    nothing under the final name; siblings left by a killed run (older than this
+    process) are removed when the same folder is staged again.
+
+    Also a context manager: commits on success, discards on any exception.
+    """
+
+    def __init__(self, folder: Path | str, force: bool) -> None:
+        folder = check_folder(folder, force)
+        parent = folder.parent if str(folder.parent) else Path(".")
+        top = None  # the outermost parent folder this call creates (removed by the command line if the run fails)
+        for candidate in (parent, *parent.parents):
+            if candidate.exists():
+                break
+            top = candidate
+        try:
+            parent.mkdir(parents=True, exist_ok=True)
+            if top is not None and _created is not None:
+                _created.append(top)
+            _remove_stale_stages(parent, folder.name)
+            self.path = Path(tempfile.mkdtemp(prefix=f".{folder.name}{_PARTIAL}", dir=parent))
+            os.chmod(self.path, 0o777 & ~_UMASK)  # mkdtemp makes 0700; give the usual permissions
+        except OSError as exc:
+            raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
+        self.folder = folder
+        self.files = 0
+        self.done = False
+        _open_stages.append(self)
+
+    def commit(self) -> Path:
+        """Move the finished folder into place (carrying hidden entries of an existing one); return its path."""
+        import shutil
+
+        if self.done:
+            return self.folder
+        with _signals_deferred():
+            old = None
+            if self.folder.is_dir():
+                for entry in sorted(self.folder.iterdir()):
+                    if entry.name.startswith(".") and not (self.path / entry.name).exists():
+                        os.rename(entry, self.path / entry.name)
+                old = Path(tempfile.mkdtemp(prefix=f".{self.folder.name}{_OLD}", dir=self.folder.parent))
+                os.rename(self.folder, old / "folder")
+            os.rename(self.path, self.folder)
+            self.done = True
+            _open_stages.remove(self)
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)
+        return self.folder
+
+    def discard(self) -> None:
+        """Remove the unfinished folder (nothing is left under the final name)."""
+        import shutil
+
+        if self.done:
+            return
+        self.done = True
+        if self in _open_stages:
+            _open_stages.remove(self)
+        shutil.rmtree(self.path, ignore_errors=True)
+
+    def __enter__(self) -> Path:
+        return self.path
+
+    def __exit__(self, kind, value, tb) -> None:
+        if kind is None:
+            self.commit()
+        else:
+            self.discard()
+
+
+def _remove_stale_stages(parent: Path, name: str) -> None:
+    """Remove ``.NAME.partial-XXXXXXXX`` / ``.NAME.old-XXXXXXXX`` siblings a killed run left (older than this process)."""
+    import shutil
+
+    pattern = re.compile(re.escape(f".{name}") + "(?:" + re.escape(_PARTIAL) + "|" + re.escape(_OLD) + ")" + _MKSTEMP_PART)
+    for entry in os.scandir(parent):
+        try:
+            if (pattern.fullmatch(entry.name) and entry.is_dir(follow_symlinks=False)
+                    and entry.stat(follow_symlinks=False).st_mtime < PROCESS_START):
+                shutil.rmtree(entry.path, ignore_errors=True)
+        except OSError:
+            continue
