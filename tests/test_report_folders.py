@@ -144,3 +144,14 @@ def test_a_failed_build_leaves_nothing_and_a_killed_runs_leftovers_go(tmp_path):
         write_text(path / "a.txt", "x")
     assert sorted(p.name for p in tmp_path.iterdir()) == [".other.partial-abcd1234", "out"]
     assert (out / "a.txt").read_text() == "x"
+
+
+def test_the_working_directory_as_report_folder_is_filled_in_place(tmp_path, monkeypatch):
+    """``--out .`` must never rename the working directory away: the finished files are moved into it."""
+    (tmp_path / "old.json").write_text("old")
+    monkeypatch.chdir(tmp_path)
+    with StagedFolder(".", force=True) as path:
+        write_text(path / "new.json", "{}\n")
+        write_text(path / "old.json", "new")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["new.json", "old.json"]
+    assert (tmp_path / "old.json").read_text() == "new" and os.getcwd() == str(tmp_path)

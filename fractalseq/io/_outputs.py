@@ -288,14 +288,13 @@ def check_folder(folder: Path | str, force: bool) -> Path:
     Returns the folder to write (a symbolic link to a folder is followed, so the
     folder it points to is replaced, never the link).
     """
-    folder = Path(folder)
-    if folder.is_symlink() and folder.is_dir():
-        folder = folder.resolve()
-    if folder.exists() and not folder.is_dir():
-        raise OutputError(f"{folder} is a file, not a folder; choose another output folder.")
-    if folder.exists() and any(p for p in folder.iterdir() if not p.name.startswith(".")) and not force:
-        raise _refusal(f"{folder} already holds files; allow overwriting them or choose another folder.", "force")
-    return folder
+    given = Path(folder)  # named in messages as the user wrote it
+    if given.exists() and not given.is_dir():
+        raise OutputError(f"{given} is a file, not a folder; choose another output folder.")
+    if given.exists() and any(p for p in given.iterdir() if not p.name.startswith(".")) and not force:
+        raise _refusal(f"{given} already holds files; allow overwriting them or choose another folder.", "force")
+    folder = Path(os.path.abspath(given))  # "." and "out/.." get a name and a parent
+    return folder.resolve() if folder.is_symlink() and folder.is_dir() else folder
 
 
 #: Staged report folders opened and not yet committed or discarded.
@@ -351,6 +350,8 @@ class StagedFolder:
 
         if self.done:
             return self.folder
+        if self.folder.is_dir() and _holds_cwd(self.folder):
+            return self._merge_into_place()
         with _signals_deferred():
             old = None
             if self.folder.is_dir():
@@ -364,6 +365,21 @@ class StagedFolder:
             _open_stages.remove(self)
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
+        return self.folder
+
+    def _merge_into_place(self) -> Path:
+        """Commit into a folder that holds the working directory (never renamed away): entry by entry."""
+        import shutil
+
+        with _signals_deferred():
+            for entry in sorted(self.path.iterdir()):
+                target = self.folder / entry.name
+                if target.is_dir() and not target.is_symlink() and entry.is_dir():
+                    shutil.rmtree(target)
+                os.replace(entry, target)
+            self.done = True
+            _open_stages.remove(self)
+        shutil.rmtree(self.path, ignore_errors=True)
         return self.folder
 
     def discard(self) -> None:
@@ -385,6 +401,16 @@ class StagedFolder:
             self.commit()
         else:
             self.discard()
+
+
+def _holds_cwd(folder: Path) -> bool:
+    """Whether ``folder`` is the working directory or one of its parents."""
+    try:
+        cwd = Path(os.getcwd()).resolve()
+    except OSError:
+        return False
+    target = folder.resolve()
+    return cwd == target or target in cwd.parents
 
 
 def _remove_stale_stages(parent: Path, name: str) -> None:
