@@ -90,7 +90,7 @@ def survey(
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
     """
     from fractalseq.cli.inputs import reader
-    from fractalseq.io._outputs import prepare_folder
+    from fractalseq.io._outputs import StagedFolder
     from fractalseq.jobs._files import survey_cache, survey_files
     from fractalseq.jobs._sources import expand_inputs
     from fractalseq.jobs._survey import SurveyOptions, write_outputs
@@ -101,8 +101,9 @@ def survey(
     )
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
     specs = expand_inputs(list(paths or []), from_list, stdin_lines)
-    if out is not None:
-        prepare_folder(out, force)  # the hidden .cache folder of an interrupted run does not count
+    # the report is built aside and renamed into place at the end; the cache stays in OUT/.cache meanwhile
+    # (an interrupted run leaves only it) and is carried into the new folder by the commit
+    stage = StagedFolder(out, force) if out is not None else None
     plan = survey_cache(out, cache, use_cache=not no_cache)
     store = plan.store
     with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
@@ -132,11 +133,15 @@ def survey(
             kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
             typer.echo(f"interrupted:{kept or ' nothing was written'}.", err=True)
             raise typer.Exit(130) from None
+    for note in result.cache_notes:
+        common.err_console.print(f"note: {note}.", markup=False, highlight=False)
     if cached[0] and not quiet:
         common.err_console.print(f"resumed: {cached[0]} of {len(result.names)} sources read from the cache")
     if result.cache_pruned and not quiet:
         common.err_console.print(f"removed {result.cache_pruned} cache entries of earlier runs from {store.folder}", markup=False, highlight=False)
-    written = write_outputs(result, Path(out), force=True) if out is not None else []
+    written = write_outputs(result, stage.path, force=True) if stage is not None else []
+    if stage is not None:
+        stage.commit()
     if json_out:
         typer.echo(result.to_json(), nl=False)
         return
@@ -232,9 +237,9 @@ def drift(
     options.check()
     read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
     if out is not None:
-        from fractalseq.io._outputs import prepare_folder
+        from fractalseq.io._outputs import StagedFolder
 
-        prepare_folder(out, force)
+        stage = StagedFolder(out, force)  # built aside, renamed into place at the end
     stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
     with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
@@ -243,11 +248,12 @@ def drift(
     if out is not None:
         from fractalseq.report.drift import write_outputs
 
-        write_outputs(result, Path(out), force=True)
+        write_outputs(result, stage.path, force=True)
         if report.novelty is not None:
             from fractalseq.io._outputs import to_json, write_text
 
-            write_text(Path(out) / "novelty.json", to_json(report.novelty.to_dict()), force=True)
+            write_text(stage.path / "novelty.json", to_json(report.novelty.to_dict()), force=True)
+        stage.commit()
     if json_out:
         typer.echo(report.to_json(), nl=False)
     else:
@@ -335,9 +341,9 @@ def scan(
     read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
     pen = parse_penalty(penalty)
     if out is not None:
-        from fractalseq.io._outputs import prepare_folder
+        from fractalseq.io._outputs import StagedFolder
 
-        prepare_folder(out, force)
+        stage = StagedFolder(out, force)  # built aside, renamed into place at the end
     with common.progress(quiet) as bar:
         task = bar.add_task("reading", total=2)
         result = scan_file(
@@ -348,7 +354,8 @@ def scan(
     if out is not None:
         from fractalseq.report.scan import write_outputs
 
-        write_outputs(result, Path(out), force=True)
+        write_outputs(result, stage.path, force=True)
+        stage.commit()
     if json_out:
         typer.echo(result.to_json(), nl=False)
         return

@@ -181,7 +181,7 @@ def profile(
 
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
     """
-    from fractalseq.io._outputs import prepare_folder, to_json
+    from fractalseq.io._outputs import StagedFolder, to_json
     from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, STEPS, ProfileSettings, contract, profile_source
     from fractalseq.report.profile import is_genomic, safe_name, write_profile_index, write_profile_report
 
@@ -196,8 +196,7 @@ def profile(
     results = []
     subfolders: list[str] = []
     taken: set[str] = {"index.html", "profile.json"}
-    if out is not None:
-        prepare_folder(out, force)
+    stage = StagedFolder(out, force) if out is not None else None  # built aside, renamed into place at the end
     with common.progress(quiet) as bar:
         for path in paths:
             task = bar.add_task(f"{path}: reading", total=len(STEPS) + 1)
@@ -212,14 +211,15 @@ def profile(
             res = profile_source(arr, ratio=settings.ratio, qs=settings.qs, depth=settings.depth,
                                  resampling=settings.resampling, progress=on_step)
             results.append(res)
-            if out is not None:
+            if stage is not None:
                 bar.update(task, description=f"{path}: writing report")
                 sub = safe_name(safe_stem(path), taken)
-                write_profile_report(res, out / sub, contract([res], parameters), caution([res]), force=force)
+                write_profile_report(res, stage.path / sub, contract([res], parameters), caution([res]), force=force)
                 subfolders.append(sub)
             bar.remove_task(task)
-    if out is not None:
-        write_profile_index(results, subfolders, out, contract(results, parameters), caution(results), force=force)
+    if stage is not None:
+        write_profile_index(results, subfolders, stage.path, contract(results, parameters), caution(results), force=force)
+        stage.commit()
         if not quiet:
             common.err_console.print(f"wrote {len(results)} profile(s) to {out}/ (open {out}/index.html)",
                                      markup=False, highlight=False)

@@ -12,7 +12,7 @@ from rich.text import Text
 
 from fractalseq.cli import common
 from fractalseq.cli.common import json_safe, safe
-from fractalseq.io._outputs import check_writable, prepare_folder, to_json, write_csv, write_text
+from fractalseq.io._outputs import StagedFolder, check_writable, to_json, write_csv, write_text
 
 def _fields_text(t: dict) -> str:
     parts = []
@@ -45,7 +45,7 @@ def templates(
     if csv_file is not None:
         check_writable(csv_file, force)
     if out is not None:
-        prepare_folder(out, force)  # before reading: a refused run leaves nothing behind
+        stage = StagedFolder(out, force)  # before reading; built aside, renamed into place at the end
     with common.progress(quiet) as bar:
         task = bar.add_task("mining templates", total=len(paths))
         run = mine_logs(paths, on_input=lambda _: bar.advance(task))
@@ -54,8 +54,9 @@ def templates(
         write_csv(csv_file, header, rows, force=force)
     if out is not None:
         header, rows = run.csv_rows()
-        write_text(out / "templates.json", to_json(run.to_dict()), force=force)
-        write_csv(out / "templates.csv", header, rows, force=force)
+        write_text(stage.path / "templates.json", to_json(run.to_dict()), force=force)
+        write_csv(stage.path / "templates.csv", header, rows, force=force)
+        stage.commit()
     if not quiet:
         for log in run.inputs:
             for note in log.notes():

@@ -13,10 +13,14 @@ interrupted job resumes where it stopped: finished sources are read back,
 the rest are computed.
 
 An entry is two files written atomically (:mod:`fractalseq.io._outputs`): an
-``.npz`` of plain arrays (loaded with ``allow_pickle=False``) and a ``.json``
-holding the results and the SHA-256 of the arrays file.  The ``.json`` is
-written last, so its presence marks a complete entry; an entry whose arrays
-fail their checksum is treated as absent and recomputed.
+``.npz`` container of plain arrays (:mod:`fractalseq.io._npz`, each array
+checksummed, read with :func:`~fractalseq.io._npz.read_container`, never
+pickle) and a ``.json`` holding the results, the SHA-256 of the arrays file
+and the SHA-256 of its own content (``entry_sha256``, over the deterministic
+JSON of the other keys).  The ``.json`` is written last, so its presence marks
+a complete entry.  An entry whose JSON or arrays fail a check (hand-edited,
+damaged) is reported by :meth:`ResultCache.lookup` as damaged, and the job
+recomputes it with a note.
 
 :meth:`ResultCache.prune` removes the entries a finished job did not use
 (the survey does this for its own ``OUT/.cache`` folder), so the folder holds
@@ -26,7 +30,6 @@ the entries of the last run rather than of every run before it.
 from __future__ import annotations
 
 import hashlib
-import io
 import json
 import re
 from pathlib import Path
@@ -34,11 +37,14 @@ from typing import Any, Iterable
 
 import numpy as np
 
-from fractalseq.errors import OutputError
-from fractalseq.io._outputs import to_json, write_bytes, write_text
+from fractalseq.errors import InputError, ModelFileError, OutputError
+from fractalseq.io._npz import read_container, write_container
+from fractalseq.io._outputs import to_json, write_text
 
-#: Bump when the meaning of cached results changes.
-CACHE_VERSION = 1
+#: Bump when the meaning of cached results changes (2: checksummed JSON, arrays in the checked container).
+CACHE_VERSION = 2
+#: The ``format`` of a cache entry's arrays container.
+ARRAYS_FORMAT = "fractalseq-cache-arrays"
 _BLOCK = 1 << 20
 #: File names of a complete entry's two files, and of the temporary files of an interrupted write.
 _ENTRY_FILE = re.compile(r"^([0-9a-f]{64})\.(?:json|npz)$")
@@ -101,35 +107,57 @@ class ResultCache:
         sub = self.folder / key[:2]
         return sub / f"{key}.json", sub / f"{key}.npz"
 
-    def get(self, key: str) -> tuple[dict, dict[str, np.ndarray]] | None:
-        """The cached ``(results, arrays)`` of ``key``, or ``None`` if absent or damaged."""
+    def lookup(self, key: str) -> tuple[tuple[dict, dict[str, np.ndarray]] | None, str | None]:
+        """The cached ``(results, arrays)`` of ``key`` (or ``None``) and why an existing entry was not used.
+
+        Returns
+        -------
+        tuple
+            ``(entry, problem)``: ``entry`` is ``None`` when there is no usable entry;
+            ``problem`` is ``None`` when the entry is usable or simply absent, else a
+            short phrase ("its JSON fails its checksum", ...) for a note.
+        """
         if self.folder is None:
-            return None
+            return None, None
         jpath, npath = self._paths(key)
+        if not jpath.exists():
+            return None, None
         try:
             entry = json.loads(jpath.read_text(encoding="utf-8"))
-            blob = npath.read_bytes()
         except (OSError, ValueError):
-            return None
-        if entry.get("key") != key or entry.get("arrays_sha256") != hashlib.sha256(blob).hexdigest():
-            return None
+            return None, "its JSON cannot be read"
+        if not isinstance(entry, dict) or not isinstance(entry.get("results"), dict):
+            return None, "its JSON is not a cache entry"
+        body = {k: v for k, v in entry.items() if k != "entry_sha256"}
+        if entry.get("entry_sha256") != hashlib.sha256(to_json(body).encode("utf-8")).hexdigest():
+            return None, "its JSON fails its checksum"
+        if entry.get("key") != key:
+            return None, "its JSON belongs to another entry"
         try:
-            with np.load(io.BytesIO(blob), allow_pickle=False) as z:
-                arrays = {k: z[k] for k in z.files}
-        except (OSError, ValueError):
-            return None
-        return entry["results"], arrays
+            blob = npath.read_bytes()
+        except OSError:
+            return None, "its arrays file is missing"
+        if entry.get("arrays_sha256") != hashlib.sha256(blob).hexdigest():
+            return None, "its arrays file fails its checksum"
+        try:
+            _, arrays = read_container(npath, ARRAYS_FORMAT, expected_version=CACHE_VERSION)
+        except (InputError, ModelFileError):
+            return None, "its arrays file is damaged"
+        return (entry["results"], arrays), None
+
+    def get(self, key: str) -> tuple[dict, dict[str, np.ndarray]] | None:
+        """The cached ``(results, arrays)`` of ``key``, or ``None`` if absent or damaged (see :meth:`lookup`)."""
+        return self.lookup(key)[0]
 
     def put(self, key: str, results: dict, arrays: dict[str, np.ndarray] | None = None) -> None:
         """Store one entry (arrays first, then the JSON that marks it complete)."""
         if self.folder is None:
             return
         jpath, npath = self._paths(key)
-        buf = io.BytesIO()
-        np.savez(buf, **{k: np.asarray(v) for k, v in (arrays or {}).items()})
-        blob = buf.getvalue()
-        write_bytes(npath, blob, force=True)
-        entry = {"key": key, "arrays_sha256": hashlib.sha256(blob).hexdigest(), "results": results}
+        write_container(npath, {"format": ARRAYS_FORMAT, "version": CACHE_VERSION},
+                        {k: np.asarray(v) for k, v in (arrays or {}).items()}, force=True)
+        entry = {"key": key, "arrays_sha256": file_hash(npath), "results": results}
+        entry["entry_sha256"] = hashlib.sha256(to_json(entry).encode("utf-8")).hexdigest()
         write_text(jpath, to_json(entry), force=True)
 
     def __contains__(self, key: str) -> bool:

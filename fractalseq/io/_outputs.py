@@ -12,9 +12,11 @@ import contextlib
 import json
 import math
 import os
+import re
 import signal
 import tempfile
 import threading
+import time
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, Iterable
@@ -22,6 +24,7 @@ from typing import Any, Iterable
 import numpy as np
 
 from fractalseq.errors import OutputError
+from fractalseq.runner import pause_point
 
 
 def _clean(value: Any) -> Any:
@@ -95,11 +98,64 @@ def _signals_deferred():
         signal.pthread_sigmask(signal.SIG_SETMASK, previous)
 
 
+def _process_start() -> float:
+    """When this process started (:func:`time.time` scale); the module's import time where unknown."""
+    try:
+        with open("/proc/self/stat", "rb") as fh:
+            ticks = int(fh.read().rsplit(b")", 1)[1].split()[19])  # field 22: start time in clock ticks
+        with open("/proc/stat", "rb") as fh:
+            boot = next(int(line.split()[1]) for line in fh if line.startswith(b"btime "))
+        return boot + ticks / os.sysconf("SC_CLK_TCK")
+    except (OSError, ValueError, IndexError, StopIteration):
+        return time.time()
+
+
+#: Temporary files whose last change is older than this are not being written by this process.
+PROCESS_START = _process_start()
+#: The random part :func:`tempfile.mkstemp` puts in a name (8 of these characters).
+_MKSTEMP_PART = r"[a-z0-9_]{8}"
+
+
+def remove_stale_parts(path: Path | str, before: float | None = None) -> int:
+    """Remove temporary files an interrupted write of ``path`` left in its folder; return how many.
+
+    Only files named exactly as :func:`write_bytes` names its temporary files
+    for this path (``.NAME.XXXXXXXX.part``) and last changed before ``before``
+    (default: this process's start, so a write in progress elsewhere is left
+    alone) are removed; anything else is never touched.
+    """
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    limit = PROCESS_START if before is None else before
+    pattern = re.compile(re.escape(f".{path.name}.") + _MKSTEMP_PART + r"\.part")
+    removed = 0
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return 0
+    for entry in entries:
+        if not pattern.fullmatch(entry.name):
+            continue
+        try:
+            if not entry.is_file(follow_symlinks=False) or entry.stat(follow_symlinks=False).st_mtime >= limit:
+                continue
+            os.unlink(entry.path)
+            removed += 1
+        except OSError:
+            continue
+    return removed
+
+
 def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
-    """Atomically write ``data`` to ``path`` (temporary file in the same folder, then rename)."""
+    """Atomically write ``data`` to ``path`` (temporary file in the same folder, then rename).
+
+    Temporary files of an earlier, killed write of the same path are removed
+    first (:func:`remove_stale_parts`).
+    """
     path = Path(path)
     check_writable(path, force)
     path.parent.mkdir(parents=True, exist_ok=True)
+    remove_stale_parts(path)
     with _signals_deferred():
         fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
         try:
@@ -115,6 +171,10 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
             except FileNotFoundError:
                 pass
             raise
+    for stage in _open_stages:
+        if stage.path in path.parents:
+            stage.files += 1
+            pause_point("report.file", stage.files)
     return path
 
 
@@ -190,10 +250,13 @@ def tracking_folders():
     global _created
     outer, _created = _created, []
     mine = _created
+    stages_before = list(_open_stages)
 
     def discard_empty() -> None:
         import shutil
 
+        for stage in [st for st in _open_stages if st not in stages_before]:
+            stage.discard()
         for top in reversed(mine):
             if top.is_dir() and not _holds_files(top):
                 shutil.rmtree(top, ignore_errors=True)
@@ -202,6 +265,8 @@ def tracking_folders():
         yield discard_empty
     finally:
         _created = outer
+        for stage in [st for st in _open_stages if st not in stages_before]:
+            stage.discard()  # a run that ended without committing its report folder leaves no trace
 
 
 def write_npz(path: Path | str, arrays: dict[str, np.ndarray], force: bool = False) -> Path:
@@ -214,3 +279,149 @@ def write_npz(path: Path | str, arrays: dict[str, np.ndarray], force: bool = Fal
     buf = io.BytesIO()
     np.savez(buf, **arrays)
     return write_bytes(path, buf.getvalue(), force=force)
+
+
+# ------------------------------------------------------------------ report folders written as a whole
+def check_folder(folder: Path | str, force: bool) -> Path:
+    """Refuse a file, or a folder holding visible files without ``force``; create nothing.
+
+    Returns the folder to write (a symbolic link to a folder is followed, so the
+    folder it points to is replaced, never the link).
+    """
+    given = Path(folder)  # named in messages as the user wrote it
+    if given.exists() and not given.is_dir():
+        raise OutputError(f"{given} is a file, not a folder; choose another output folder.")
+    if given.exists() and any(p for p in given.iterdir() if not p.name.startswith(".")) and not force:
+        raise _refusal(f"{given} already holds files; allow overwriting them or choose another folder.", "force")
+    folder = Path(os.path.abspath(given))  # "." and "out/.." get a name and a parent
+    return folder.resolve() if folder.is_symlink() and folder.is_dir() else folder
+
+
+#: Staged report folders opened and not yet committed or discarded.
+_open_stages: list["StagedFolder"] = []
+_PARTIAL = ".partial-"
+_OLD = ".old-"
+
+
+class StagedFolder:
+    """A report folder built under a hidden sibling name and renamed into place as a whole.
+
+    ``StagedFolder(folder, force)`` checks ``folder`` as :func:`prepare_folder`
+    does (a file, or a folder holding visible files without ``force``, is refused)
+    and creates the sibling ``.NAME.partial-XXXXXXXX`` in the same parent; the
+    writers write into :attr:`path`; :meth:`commit` renames it to ``folder``
+    (``os.rename`` of a folder is atomic on one file system).  An existing
+    ``folder`` (empty, or replaced with ``force``) is swapped: renamed away to
+    ``.NAME.old-XXXXXXXX``, the new one renamed in, the old one removed.  Hidden
+    entries of the existing folder that the new one lacks (a survey's ``.cache``)
+    are moved into the new folder first, so they survive.  An interrupted run
+    (:meth:`discard`, or the command line's :func:`tracking_folders`) leaves
+    nothing under the final name; siblings left by a killed run (older than this
+    process) are removed when the same folder is staged again.
+
+    Also a context manager: commits on success, discards on any exception.
+    """
+
+    def __init__(self, folder: Path | str, force: bool) -> None:
+        folder = check_folder(folder, force)
+        parent = folder.parent if str(folder.parent) else Path(".")
+        top = None  # the outermost parent folder this call creates (removed by the command line if the run fails)
+        for candidate in (parent, *parent.parents):
+            if candidate.exists():
+                break
+            top = candidate
+        try:
+            parent.mkdir(parents=True, exist_ok=True)
+            if top is not None and _created is not None:
+                _created.append(top)
+            _remove_stale_stages(parent, folder.name)
+            self.path = Path(tempfile.mkdtemp(prefix=f".{folder.name}{_PARTIAL}", dir=parent))
+            os.chmod(self.path, 0o777 & ~_UMASK)  # mkdtemp makes 0700; give the usual permissions
+        except OSError as exc:
+            raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
+        self.folder = folder
+        self.files = 0
+        self.done = False
+        _open_stages.append(self)
+
+    def commit(self) -> Path:
+        """Move the finished folder into place (carrying hidden entries of an existing one); return its path."""
+        import shutil
+
+        if self.done:
+            return self.folder
+        if self.folder.is_dir() and _holds_cwd(self.folder):
+            return self._merge_into_place()
+        with _signals_deferred():
+            old = None
+            if self.folder.is_dir():
+                for entry in sorted(self.folder.iterdir()):
+                    if entry.name.startswith(".") and not (self.path / entry.name).exists():
+                        os.rename(entry, self.path / entry.name)
+                old = Path(tempfile.mkdtemp(prefix=f".{self.folder.name}{_OLD}", dir=self.folder.parent))
+                os.rename(self.folder, old / "folder")
+            os.rename(self.path, self.folder)
+            self.done = True
+            _open_stages.remove(self)
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)
+        return self.folder
+
+    def _merge_into_place(self) -> Path:
+        """Commit into a folder that holds the working directory (never renamed away): entry by entry."""
+        import shutil
+
+        with _signals_deferred():
+            for entry in sorted(self.path.iterdir()):
+                target = self.folder / entry.name
+                if target.is_dir() and not target.is_symlink() and entry.is_dir():
+                    shutil.rmtree(target)
+                os.replace(entry, target)
+            self.done = True
+            _open_stages.remove(self)
+        shutil.rmtree(self.path, ignore_errors=True)
+        return self.folder
+
+    def discard(self) -> None:
+        """Remove the unfinished folder (nothing is left under the final name)."""
+        import shutil
+
+        if self.done:
+            return
+        self.done = True
+        if self in _open_stages:
+            _open_stages.remove(self)
+        shutil.rmtree(self.path, ignore_errors=True)
+
+    def __enter__(self) -> Path:
+        return self.path
+
+    def __exit__(self, kind, value, tb) -> None:
+        if kind is None:
+            self.commit()
+        else:
+            self.discard()
+
+
+def _holds_cwd(folder: Path) -> bool:
+    """Whether ``folder`` is the working directory or one of its parents."""
+    try:
+        cwd = Path(os.getcwd()).resolve()
+    except OSError:
+        return False
+    target = folder.resolve()
+    return cwd == target or target in cwd.parents
+
+
+def _remove_stale_stages(parent: Path, name: str) -> None:
+    """Remove ``.NAME.partial-XXXXXXXX`` / ``.NAME.old-XXXXXXXX`` siblings a killed run left (older than this process)."""
+    import shutil
+
+    pattern = re.compile(re.escape(f".{name}") + "(?:" + re.escape(_PARTIAL) + "|" + re.escape(_OLD) + ")" + _MKSTEMP_PART)
+    for entry in os.scandir(parent):
+        try:
+            if (pattern.fullmatch(entry.name) and entry.is_dir(follow_symlinks=False)
+                    and entry.stat(follow_symlinks=False).st_mtime < PROCESS_START):
+                shutil.rmtree(entry.path, ignore_errors=True)
+        except OSError:
+            continue

@@ -334,6 +334,9 @@ class SurveyResult(Result):
     cache_pruned:
         Cache entries of earlier runs removed after this one (``run_survey(...,
         prune_cache=True)``); not part of the JSON, which depends only on the inputs and options.
+    cache_notes:
+        One sentence per cache entry that was damaged or edited and was recomputed;
+        not part of the JSON (the recomputed result equals an uncached run).
     """
 
     sources: tuple[dict, ...]
@@ -344,6 +347,7 @@ class SurveyResult(Result):
     fractalseq: str = __version__
     caution: str = CAUTION
     cache_pruned: int = field(default=0, metadata={"json": False})
+    cache_notes: tuple[str, ...] = field(default=(), metadata={"json": False})
 
     # views kept for callers that read the matrices directly
     @property
@@ -469,13 +473,16 @@ def run_survey(
     keys: list[str] = []
     todo: list[int] = []
     tasks: list[SurveyTask] = []
+    damaged: list[str] = []
     for i, spec in enumerate(specs):
         arr = _read_stdin(spec, options) if spec.path == "-" else None
         content = _content_hash(spec, arr)
         key = cache_key(content, params)
         hashes.append(content)
         keys.append(key)
-        hit = cache.get(key)
+        hit, problem = cache.lookup(key)
+        if problem is not None:
+            damaged.append(f"the cached entry of {spec.name} was not used ({problem}); it was recomputed")
         if hit is not None:
             results, arrays = hit
             outputs[i] = {**results, "counts_arrays": arrays}
@@ -505,6 +512,8 @@ def run_survey(
     if tasks:
         engine.map(survey_task, tasks, on_done=done)
     result = merge_survey(specs, outputs, hashes, options)  # type: ignore[arg-type]
+    if damaged:
+        result = replace(result, cache_notes=tuple(damaged))
     if prune_cache:
         result = replace(result, cache_pruned=cache.prune(keys, before=started))
     return result
