@@ -87,4 +87,32 @@ class Estimate(Result):
     notes: tuple[str, ...] = field(default=())
 
 
-__all__ = ["Estimate", "Result", "to_plain"]
+__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "CAUTION_LOGS", "Estimate", "Result", "caution_for", "to_plain"]
+
+
+# ------------------------------------------------------------------ cautions
+#: Sequence alphabets whose output carries the genomic caution.
+GENOMIC_ALPHABETS = frozenset({"dna", "rna", "protein"})
+#: The alphabet name of event-log templates (see :mod:`fractalseq.sources.logs`).
+LOG_ALPHABET = "templates"
+CAUTION_GENOMIC = "Genomic output is for research, not for clinical decisions."
+CAUTION_LOGS = "Reports on event logs (scans, surprise scores, drift, predicted events) are no security guarantee."
+CAUTION_GENERAL = (
+    "Genomic output is for research, not for clinical decisions; reports on event logs are no security guarantee."
+)
+
+
+def caution_for(alphabet_names: Any) -> str:
+    """The caution that fits the inputs, from their alphabet names (or alphabets).
+
+    Logs only (template alphabets): :data:`CAUTION_LOGS`; sequences only (DNA, RNA,
+    protein): :data:`CAUTION_GENOMIC`; anything else or a mix: :data:`CAUTION_GENERAL`.
+    """
+    names = {str(getattr(a, "name", a)) for a in alphabet_names}
+    logs = LOG_ALPHABET in names
+    genomic = bool(names & GENOMIC_ALPHABETS)
+    if logs and not genomic:
+        return CAUTION_LOGS
+    if genomic and not logs:
+        return CAUTION_GENOMIC
+    return CAUTION_GENERAL

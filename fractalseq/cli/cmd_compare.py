@@ -304,8 +304,12 @@ def _num(v) -> str:
 # ====================================================================== scan
 def scan(
     path: str = typer.Argument(..., help="Input file (FASTA/FASTQ/text/log/numeric, optionally compressed), or - for standard input."),
-    window: int = typer.Option(10000, "--window", "-W", min=2, help="Window length (symbols)."),
-    step: Optional[int] = typer.Option(None, "--step", "-S", min=1, help="Step between window starts (symbols); default: window / 4."),
+    window: Optional[int] = typer.Option(
+        None, "--window", "-W", min=2,
+        help="Window length in symbols (one symbol = one log line or numeric row); default: logs and numeric columns, "
+             "the size that gives at least 50 windows but at least 40 lines; other inputs 10,000.",
+    ),
+    step: Optional[int] = typer.Option(None, "--step", "-S", min=1, help="Step between window starts (symbols, lines for logs); default: window / 4."),
     depth: Optional[int] = typer.Option(None, "--depth", "-n", min=1, help="Word length n of the window figures (symbols); default: largest n with A^n x 20 <= window."),
     penalty: str = typer.Option("bic", "--penalty", help="Change-point penalty: bic, i.e. (figures + 1) x ln(independent windows), or a number."),
     alphabet: str = common.ALPHABET,
@@ -331,7 +335,13 @@ def scan(
     below the typical entropy rate are flagged low-complexity (repeats, low-complexity
     regions in genomes; in logs, stretches dominated by few templates). With --out:
     scan.json, scan.csv (one row per window), scan.png and scan.html.
-    Genomic output is for research, not for clinical decisions.
+
+    Logs: each non-blank line is one symbol (its template), so windows count lines;
+    intervals are shown as file line numbers (1-based, as an editor shows them, blank
+    lines counted) and name the templates that dominate them. Numeric columns: one
+    symbol per row, intervals shown as file line numbers of the rows (and the time
+    column's values when there is one). Genomic output is for research, not for
+    clinical decisions; reports on logs are no security guarantee.
 
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
@@ -359,25 +369,54 @@ def scan(
     if json_out:
         typer.echo(result.to_json(), nl=False)
         return
-    lines = [
-        f"{result.name}: {result.length} symbols, {len(result.starts)} windows of {result.window} (step {result.step}), depth {result.depth}.",
-        f"{len(result.segmentation.breaks)} change points; {len(result.low_complexity)} low-complexity region(s).",
-        f"Method: {result.segmentation.method}; penalty {result.segmentation.penalty:.3g} ({result.segmentation.penalty_rule}).",
-        "",
-        f"{'start':>12}{'end':>12}" + "".join(f"{k:>14}" for k in result.series) + "  low",
-    ]
+    _print_scan(result)
+
+
+def _span(iv: dict, unit: str) -> tuple[str, str]:
+    """First and last coordinate of an interval: file lines/rows for line-oriented inputs, else symbols (end exclusive)."""
+    if unit == "symbol":
+        return f"{iv['start']:,}", f"{iv['end']:,}"
+    first, last = f"{iv[f'first_{unit}']:,}", f"{iv[f'last_{unit}']:,}"
+    if iv.get("first_time") is not None:
+        first, last = f"{first} ({_safe(iv['first_time'])})", f"{last} ({_safe(iv['last_time'])})"
+    return first, last
+
+
+def _print_scan(result) -> None:
+    """The scan as text: summary, segments (with their dominant templates for logs), regions, notes, caution."""
+    from rich.text import Text
+
+    unit = result.unit
+    what = {"line": "lines (one symbol per non-blank line)", "row": "rows (one symbol per value)"}.get(unit, "symbols")
+    say = common.say
+    say(f"{_safe(result.name)}: {result.length:,} {what}; {len(result.starts)} windows of {result.window:,} "
+        f"(step {result.step:,}), depth {result.depth}.")
+    say(f"{len(result.segmentation.breaks)} change points; {len(result.low_complexity)} low-complexity region(s). "
+        f"Method: {result.segmentation.method}; penalty {result.segmentation.penalty:.3g} ({result.segmentation.penalty_rule}).")
+    first, last = ("first line", "last line") if unit == "line" else ("first row", "last row") if unit == "row" else ("start", "end")
+    t = Table(title="Segments between change points" + ("" if unit == "symbol" else " (file line numbers)"))
+    for col in (first, last, "windows", *result.series, "low"):
+        t.add_column(col, justify="right" if col != "low" else "left", no_wrap=True)
+    logs = any("templates" in iv for iv in result.intervals)
+    if logs:
+        t.add_column("dominant templates (lines)")
     for iv in result.intervals:
-        lines.append(
-            f"{iv['start']:>12}{iv['end']:>12}" + "".join(f"{_num(iv.get(k)):>14}" for k in result.series) + ("  yes" if iv["low_complexity"] else "")
-        )
+        row = [*_span(iv, unit), f"{iv['windows']:,}", *(_num(iv.get(k)) for k in result.series), "yes" if iv["low_complexity"] else ""]
+        if logs:
+            row.append(Text("\n".join(f"{e['count']:,}  {_safe(e['template'])}" for e in iv.get("templates", ()))))
+        t.add_row(*row)
+    common.out_console.print(t)
     if result.low_complexity:
-        lines += ["", "Low-complexity regions:"]
+        say("Low-complexity regions:")
         for iv in result.low_complexity:
-            lines.append(f"  {iv['start']}-{iv['end']}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol")
+            a, b = _span(iv, unit)
+            names = "; ".join(f"{_safe(e['template'])} x{e['count']:,}" for e in iv.get("templates", ()))
+            say(f"  {unit if unit != 'symbol' else 'symbols'} {a}-{b}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol"
+                + (f"  ({names})" if names else ""))
     for n in result.notes:
-        lines.append(f"note: {n}")
-    lines.append("Genomic output is for research, not for clinical decisions.")
-    typer.echo("\n".join(lines))
+        say(f"note: {_safe(n)}")
+    common.read_notes(result.read_notes)
+    common.caution_line(result.caution)
 
 
 def register(app: typer.Typer) -> None:

@@ -26,7 +26,35 @@ from fractalseq.stream import SymbolArray, SymbolStream
 #: Quantile bins of numeric input when none are given (the numeric reader's default).
 DEFAULT_BINS = 4
 
-__all__ = ["DEFAULT_BINS", "ReaderOptions", "check_seed", "parse_thresholds"]
+#: Window of ``scan`` and ``score`` for inputs that are not line-oriented (genomes, text), in symbols.
+DEFAULT_SYMBOL_WINDOW = 10_000
+#: Line-oriented inputs (logs, numeric columns): the default window gives at least this many windows...
+MIN_WINDOWS = 50
+#: ...but holds at least this many lines (rows).
+MIN_LINE_WINDOW = 40
+
+__all__ = [
+    "DEFAULT_BINS", "DEFAULT_SYMBOL_WINDOW", "MIN_LINE_WINDOW", "MIN_WINDOWS", "ReaderOptions", "check_seed",
+    "default_window", "parse_thresholds",
+]
+
+
+def default_window(length: int, line_oriented: bool, overlapping: bool) -> int:
+    """The default window (symbols) of ``scan`` (``overlapping``: step = window / 4) or ``score`` (windows side by side).
+
+    Genomes and other inputs: :data:`DEFAULT_SYMBOL_WINDOW`.  Line-oriented inputs (one
+    symbol per log line or per numeric row): the largest window that still gives
+    :data:`MIN_WINDOWS` windows, but at least :data:`MIN_LINE_WINDOW` lines.
+    """
+    if not line_oriented:
+        return DEFAULT_SYMBOL_WINDOW
+    n = max(0, int(length))
+    if overlapping:  # windows = (n - w) // (w // 4) + 1
+        w = max(MIN_LINE_WINDOW, (4 * n) // (MIN_WINDOWS + 3))
+        while w > MIN_LINE_WINDOW and (n - w) // max(1, w // 4) + 1 < MIN_WINDOWS:
+            w -= 1
+        return w
+    return max(MIN_LINE_WINDOW, n // MIN_WINDOWS)
 
 
 def parse_thresholds(text: str | None) -> tuple[float, ...] | None:

@@ -253,7 +253,9 @@ def open_source(
             begin(report)
             yield from logs.chunks(origin, table, chunk_size, report, policy)
 
-        return SymbolStream(table.alphabet, log_factory, stream_name)
+        log_stream = SymbolStream(table.alphabet, log_factory, stream_name)
+        log_stream.unit = "line"
+        return log_stream
 
     if fmt == "numeric":
         numeric.check_parameters(bins, thresholds, ordinal)
@@ -266,7 +268,9 @@ def open_source(
             begin(report)
             yield from numeric.symbol_chunks(origin, layout, plan, chunk_size, report)
 
-        return SymbolStream(plan.alphabet, numeric_factory, stream_name)
+        numeric_stream = SymbolStream(plan.alphabet, numeric_factory, stream_name)
+        numeric_stream.unit = "row"
+        return numeric_stream
 
     raise ParameterError(f"Format {fmt!r} is not known; use one of {', '.join(FORMATS)}.")  # pragma: no cover
 

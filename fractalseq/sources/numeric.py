@@ -71,7 +71,7 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.sources import kernels as K
 from fractalseq.sources.rawio import Origin, line_blocks
-from fractalseq.stream import Chunk, ReadReport, Record
+from fractalseq.stream import Chunk, Positions, ReadReport, Record
 
 MISSING = frozenset({"", "na", "nan", "null", "none", "n/a", "?", "-"})
 #: Header names of columns that hold the time of a row rather than a measurement.
@@ -288,7 +288,8 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
 
 
 def parse_values(
-    lines: list[str], first_line: int, layout: Layout, name: str, started: bool, clock: dict | None = None
+    lines: list[str], first_line: int, layout: Layout, name: str, started: bool, clock: dict | None = None,
+    where: list | None = None,
 ) -> tuple[np.ndarray, bool]:
     """Values of the chosen column in ``lines`` (NaN for missing).
 
@@ -298,7 +299,9 @@ def parse_values(
     column (``layout.time_step > 0``) and a ``clock`` (``{"last": None,
     "gaps": 0}``, carried across blocks), a NaN is inserted before each row
     that follows a gap, and ``clock["gaps"]`` counts them.  Returns the values
-    and the updated ``started``.
+    and the updated ``started``.  With a list ``where``, appends ``(line numbers, times)``
+    aligned with the values: the 1-based file line of each value (-1 for an inserted gap)
+    and the time-column text of its row (``None`` without a time column).
     """
     keep: list[tuple[int, str]] = []
     for i, ln in enumerate(lines):
@@ -314,6 +317,10 @@ def parse_values(
     if not keep:
         return np.zeros(0, dtype=np.float64), started
     rows = split_rows([ln for _, ln in keep], layout.delimiter)
+    numbers = first_line + np.fromiter((i for i, _ in keep), dtype=np.int64, count=len(keep)) if where is not None else None
+    times = None
+    if where is not None and layout.time_index >= 0:
+        times = np.array([r[layout.time_index].strip() if len(r) > layout.time_index else "" for r in rows], dtype=object)
     col = layout.column
     fields = np.array([r[col] if len(r) > col else "" for r in rows], dtype=str)
     low = np.char.lower(np.char.strip(fields))
@@ -345,18 +352,27 @@ def parse_values(
         if gap.size:
             clock["gaps"] += int(gap.size)
             out = np.insert(out, gap, np.nan)
+            if numbers is not None:
+                numbers = np.insert(numbers, gap, -1)
+                times = None if times is None else np.insert(times, gap, "")
+    if where is not None:
+        where.append((numbers, times))
     return out, started
 
 
-def value_blocks(origin: Origin, layout: Layout, block_size: int, clock: dict | None = None) -> Iterator[np.ndarray]:
-    """The column's values block by block (NaN = missing, or a gap in the time column when ``clock`` is given)."""
+def value_blocks(
+    origin: Origin, layout: Layout, block_size: int, clock: dict | None = None, where: list | None = None
+) -> Iterator[np.ndarray]:
+    """The column's values block by block (NaN = missing, or a gap in the time column when ``clock`` is given).
+
+    ``where`` collects each block's line numbers and times (see :func:`parse_values`)."""
     started = False
     for first_line, block in line_blocks(origin, block_size):
         text = block.decode("utf-8", errors="replace")
         lines = text.split("\n")
         if lines and lines[-1] == "":
             lines.pop()
-        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started, clock)
+        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started, clock, where)
         yield vals
 
 
@@ -431,14 +447,17 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
     dtype = p.alphabet.code_dtype
     total = segments = missing = values = 0
     clock: dict = {"last": None, "gaps": 0}
+    where: list = []
+    valid_parts: list[np.ndarray] = []
     if p.method == "ordinal":
         m = p.order
         fact = np.array([math.factorial(i) for i in range(m + 1)], dtype=np.int64)
         carry = np.zeros(0)
         in_seg = 0
-        for v in value_blocks(origin, layout, block_size, clock):
+        for v in value_blocks(origin, layout, block_size, clock, where):
             if v.size == 0:
                 continue
+            valid_parts.append(np.isfinite(v))
             values += v.size
             x = np.concatenate([carry, v]) if carry.size else v
             codes = np.empty(x.size, dtype=dtype)
@@ -454,11 +473,12 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
             segments += ns
     else:
         prev_valid = False
-        for v in value_blocks(origin, layout, block_size, clock):
+        for v in value_blocks(origin, layout, block_size, clock, where):
             if v.size == 0:
                 continue
             values += v.size
             valid = np.isfinite(v)
+            valid_parts.append(valid)
             missing += int((~valid).sum())
             codes = np.searchsorted(p.edges, v[valid], side="right").astype(dtype)
             before = np.concatenate([[prev_valid], valid[:-1]])
@@ -482,6 +502,7 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
             f"{' ' + layout.time_unit if layout.time_unit else ''}) end a segment"
         )
     report.records = [Record(origin.name, 0, int(total))]
+    report.positions = _row_positions(where, valid_parts, p.order if p.method == "ordinal" else 1, layout, int(total))
     info = {
         "column": layout.column_name,
         "column_index": layout.column,
@@ -509,3 +530,27 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
                 "use a smaller ordinal order or fill the gaps."
             )
         raise InputError(f"{origin.name} has no numbers in column {layout.column_name!r}; check the file or the column.")
+
+
+def _row_positions(where: list, valid_parts: list[np.ndarray], order: int, layout: Layout, total: int) -> Positions | None:
+    """The file line (and time text) of each symbol: the row of its value, or of the last value of its pattern."""
+    parts = [w for w in where if w[0] is not None]
+    if not parts or not valid_parts:
+        return None
+    numbers = np.concatenate([w[0] for w in parts])
+    valid = np.concatenate(valid_parts)
+    if numbers.size != valid.size:
+        return None  # pragma: no cover - blocks with values always carry their lines
+    if order > 1:  # a pattern ends at a value preceded by order - 1 valid values in the same run
+        idx = np.arange(valid.size)
+        last_bad = np.maximum.accumulate(np.where(~valid, idx, -1))
+        run = idx - last_bad
+        keep = valid & (run >= order)
+    else:
+        keep = valid
+    if int(keep.sum()) != total:
+        return None  # pragma: no cover - the kernels and this rule agree
+    times = None
+    if layout.time_index >= 0 and all(w[1] is not None for w in parts):
+        times = tuple(str(t) for t in np.concatenate([w[1] for w in parts])[keep])
+    return Positions("row", numbers[keep], layout.time_column or None, times)
