@@ -87,7 +87,7 @@ class Estimate(Result):
     notes: tuple[str, ...] = field(default=())
 
 
-__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "CAUTION_LOGS", "Estimate", "Result", "caution_for", "to_plain"]
+__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "CAUTION_LOGS", "Estimate", "Result", "caution_for", "is_log_alphabet", "to_plain"]
 
 
 # ------------------------------------------------------------------ cautions
@@ -102,14 +102,20 @@ CAUTION_GENERAL = (
 )
 
 
+def is_log_alphabet(alphabet: Any) -> bool:
+    """True for an alphabet (or alphabet name) of log templates, also the union of several logs' (``joint-templates``)."""
+    name = str(getattr(alphabet, "name", alphabet))
+    return name == LOG_ALPHABET or name.endswith("-" + LOG_ALPHABET)
+
+
 def caution_for(alphabet_names: Any) -> str:
     """The caution that fits the inputs, from their alphabet names (or alphabets).
 
     Logs only (template alphabets): :data:`CAUTION_LOGS`; sequences only (DNA, RNA,
     protein): :data:`CAUTION_GENOMIC`; anything else or a mix: :data:`CAUTION_GENERAL`.
     """
-    names = {str(getattr(a, "name", a)) for a in alphabet_names}
-    logs = LOG_ALPHABET in names
+    names = {str(getattr(a, "name", a)).removeprefix("joint-") for a in alphabet_names}
+    logs = any(is_log_alphabet(n) for n in names)
     genomic = bool(names & GENOMIC_ALPHABETS)
     if logs and not genomic:
         return CAUTION_LOGS

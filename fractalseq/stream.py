@@ -135,13 +135,7 @@ class ReadReport:
 
     def summary_notes(self, top: int = 5) -> list[str]:
         """The reader's notes plus one sentence on dropped symbols (the ``top`` reasons): what a table shows."""
-        out = [str(n) for n in self.notes]
-        if self.dropped:
-            items = sorted(self.dropped.items(), key=lambda kv: (-kv[1], kv[0]))
-            shown = ", ".join(f"{k} x{v:,}" for k, v in items[:top])
-            more = f" and {len(items) - top} more reasons" if len(items) > top else ""
-            out.append(f"{self.dropped_total:,} symbols left out: {shown}{more}")
-        return out
+        return read_summary(self.notes, self.dropped, top)
 
     def to_dict(self) -> dict:
         return {
@@ -153,6 +147,17 @@ class ReadReport:
             "notes": list(self.notes),
             **self.extra,
         }
+
+
+def read_summary(notes, dropped: dict | None, top: int = 5) -> list[str]:
+    """A read report's ``notes`` plus one sentence on the ``dropped`` symbols by reason (the ``top`` reasons)."""
+    out = [str(n) for n in notes or ()]
+    if dropped:
+        items = sorted(dropped.items(), key=lambda kv: (-kv[1], kv[0]))
+        shown = ", ".join(f"{k} x{v:,}" for k, v in items[:top])
+        more = f" and {len(items) - top} more reasons" if len(items) > top else ""
+        out.append(f"{sum(dropped.values()):,} symbols left out: {shown}{more}")
+    return out
 
 
 class SymbolStream:

@@ -164,10 +164,18 @@ def survey(
             "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
         )
     for note in result.notes:
-        common.out_console.print(f"note: {note}")
+        common.say(f"note: {_safe(note)}")
+    for s in result.sources:
+        common.read_notes(_read_summary(s.get("read")), s["name"])
     if written:
-        common.out_console.print(f"Wrote {len(written)} files to {out}.")
-    common.out_console.print("Genomic output is for research, not for clinical decisions.")
+        common.say(f"Wrote {len(written)} files to {_safe(out)}.")
+    common.caution_line(result.caution)
+
+
+def _read_summary(read: dict | None) -> list[str]:
+    from fractalseq.stream import read_summary
+
+    return read_summary((read or {}).get("notes"), (read or {}).get("dropped"))
 
 
 def _cell(v) -> str:
@@ -262,6 +270,7 @@ def drift(
         typer.echo(drift_text(result), nl=False)
         if report.novelty is not None:
             _print_novelty(report.novelty)
+        common.caution_line(result.caution)
     raise typer.Exit(EXIT_FOUND if report.changed else 0)
 
 

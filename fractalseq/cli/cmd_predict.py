@@ -76,6 +76,12 @@ def _deepest(depth: Optional[int], old_max_depth: Optional[int], quiet: bool) ->
     return old_max_depth
 
 
+def _summary(read: dict) -> list[str]:
+    from fractalseq.stream import read_summary
+
+    return read_summary(read.get("notes"), read.get("dropped"))
+
+
 def _model_params(depths, max_depth, smoothing, max_cells, strands) -> dict:
     return {
         "depths": _depths(depths),
@@ -160,7 +166,10 @@ def learn(
         f"{model.baseline_bits_[model.baseline_order_]:.4f} bits/symbol on the training data."
     )
     if not quiet:
-        common.err_console.print(f"wrote {out}. {report.note}")
+        common.err_console.print(f"wrote {common.safe(str(out))}.", markup=False, highlight=False)
+    for item in report.inputs:
+        common.read_notes(_summary(item), item["name"] if len(report.inputs) > 1 else "")
+    common.caution_line(report.note)
 
 
 # ------------------------------------------------------------------- score
@@ -249,14 +258,14 @@ def score(
         p = r.name
         if r.unseen_templates:
             unseen = r.unseen_templates
-            ut = Table(title=f"{p}: {sum(e['count'] for e in unseen):,} lines with templates the model never saw (not scored)")
+            ut = Table(title=f"{common.safe(p)}: {sum(e['count'] for e in unseen):,} lines with templates the model never saw (not scored)")
             for col in ("lines", "first line", "template"):
                 ut.add_column(col, justify="left" if col == "template" else "right")
             for e in unseen[:top]:
-                ut.add_row(f"{e['count']:,}", f"{e['first_line']:,}", e["template"])
+                ut.add_row(f"{e['count']:,}", f"{e['first_line']:,}", Text(common.safe(e["template"])))
             common.out_console.print(ut)
         if len(r.records) > 1:
-            rt = Table(title=f"{p}: records")
+            rt = Table(title=f"{common.safe(p)}: records")
             for col in ("record", "start", "symbols", "bits/symbol"):
                 rt.add_column(col, justify="left" if col == "record" else "right")
             for rec in r.records:

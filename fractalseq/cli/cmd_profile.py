@@ -118,6 +118,10 @@ def _print_tables(result, quiet: bool) -> None:
                   f"{_fmt(r['dimension_bits'])} vs {_fmt(r['entropy_bits'])}")
     con.print(t)
     _print_templates(result.read)
+    from fractalseq.stream import read_summary
+
+    read = result.read or {}
+    common.read_notes(read_summary(read.get("notes"), read.get("dropped")))
     for n in () if quiet else result.notes:
         common.err_console.print(f"note: {n}", markup=False, highlight=False)
 
@@ -182,10 +186,10 @@ def profile(
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
     """
     from fractalseq.io._outputs import StagedFolder, to_json
-    from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, STEPS, ProfileSettings, contract, profile_source
-    from fractalseq.report.profile import is_genomic, safe_name, write_profile_index, write_profile_report
+    from fractalseq.jobs._profile import STEPS, ProfileSettings, contract, profile_caution, profile_source
+    from fractalseq.report.profile import safe_name, write_profile_index, write_profile_report
 
-    caution = lambda rs: CAUTION_GENOMIC if is_genomic(rs) else CAUTION_GENERAL  # noqa: E731
+    caution = profile_caution
 
     # validate everything before reading anything
     settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed)
@@ -229,6 +233,7 @@ def profile(
     if out is None:
         for res in results:
             _print_tables(res, quiet)
+        common.caution_line(caution(results))
 
 
 def register(app: typer.Typer) -> None:

@@ -40,7 +40,7 @@ from fractalseq import __version__
 from fractalseq.compare._changepoint import Segmentation, segment_series
 from fractalseq.errors import ParameterError
 from fractalseq.io._outputs import to_json
-from fractalseq.results import CAUTION_GENERAL, LOG_ALPHABET, Result, caution_for
+from fractalseq.results import CAUTION_GENERAL, Result, caution_for, is_log_alphabet
 from fractalseq.stream import Positions, SymbolArray
 from fractalseq.words._kernels import AT_START, _segment_words
 
@@ -365,7 +365,7 @@ def _locate(entry: dict, arr: SymbolArray, positions: Positions | None) -> None:
     a, b = int(entry["start"]), int(entry["end"])
     if positions is not None:
         entry.update(positions.span(a, b))
-    if arr.alphabet.name == LOG_ALPHABET:
+    if is_log_alphabet(arr.alphabet):
         entry["templates"] = dominant_templates(arr, a, b)
 
 

@@ -31,7 +31,7 @@ from fractalseq.jobs._inputs import default_window
 from fractalseq.predict._online import evaluate_online
 from fractalseq.predict._predictor import CellPredictor
 from fractalseq.predict._results import DEFAULT_TOP_WINDOWS, DEFAULT_WINDOW, PredictionResult
-from fractalseq.results import CAUTION_GENOMIC, CAUTION_LOGS, Result, caution_for
+from fractalseq.results import CAUTION_GENOMIC, CAUTION_LOGS, Result, caution_for, is_log_alphabet
 
 RESEARCH_NOTE = CAUTION_GENOMIC
 LOG_NOTE = CAUTION_LOGS
@@ -45,7 +45,7 @@ def caution(alphabets: Iterable[Any]) -> str:
 
 
 def _is_templates(alphabet) -> bool:
-    return getattr(alphabet, "name", None) == "templates"
+    return is_log_alphabet(alphabet) if alphabet is not None else False
 
 
 def _open(path: str, fmt: str, alphabet, policy: str, reader: dict):
@@ -279,6 +279,8 @@ def score_files(
     if model is not None and not read:
         read = {k: (tuple(v) if isinstance(v, list) else v) for k, v in model.reader_.items()}
     scored, alphabets = [], []
+    if fmt == "auto" and _is_templates(read_alpha):
+        fmt = "log"  # a log model (one log's templates or the union of several) reads logs
     for p in map(str, paths):
         stream = _open(p, fmt, read_alpha, policy, read)
         lined = stream.unit != "symbol"

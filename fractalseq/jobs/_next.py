@@ -23,7 +23,7 @@ import re
 from typing import Any
 
 from fractalseq.errors import InputError
-from fractalseq.results import LOG_ALPHABET, caution_for
+from fractalseq.results import caution_for, is_log_alphabet
 
 #: Separator of template texts in a log context.
 SEPARATOR = "||"
@@ -113,7 +113,7 @@ def next_after(model: Any, context: str, top: int = 5, model_name: str = "") -> 
     list) and the context is also given as ids (``context_ids``).
     """
     a = model.alphabet_
-    logs = a.name == LOG_ALPHABET
+    logs = is_log_alphabet(a)
     if logs:
         codes = template_context(context, tuple(a.symbols))
         rows = model.next_symbols(codes, top=top)

@@ -56,12 +56,12 @@ from fractalseq.jobs._profile_rates import (
     annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_order, safe_ordinal_entropy,
 )
 from fractalseq.jobs._profile_result import RATE_NAMES, ProfileResult, ScalingCurve
-from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract
+from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract, profile_caution
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
 
 __all__ = [
-    "CAUTION_GENERAL", "CAUTION_GENOMIC", "DEFAULT_BOOT", "FORMAT", "STEPS", "VERSION", "ProfileResult", "ProfileSettings",
+    "CAUTION_GENERAL", "CAUTION_GENOMIC", "DEFAULT_BOOT", "FORMAT", "STEPS", "VERSION", "ProfileResult", "ProfileSettings", "profile_caution",
     "ScalingCurve",
     "auto_depth", "check_qs", "contract", "image_levels", "profile_source",
 ]

@@ -46,7 +46,7 @@ from fractalseq.io._outputs import to_json
 from fractalseq.jobs._inputs import DEFAULT_BINS, ReaderOptions, check_seed
 from fractalseq.jobs._sources import SourceSpec, expand_inputs
 from fractalseq.report.survey import SurveyView
-from fractalseq.results import Result
+from fractalseq.results import Result, caution_for
 from fractalseq.runner import Engine, SerialEngine, pause_point
 from fractalseq.stream import ReadReport, SymbolArray
 from fractalseq.words._counts import WordCounts, count_words
@@ -583,7 +583,8 @@ def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: S
         spectrum=SpectrumDistances(spec_d),
         clustering=clustering,
     )
-    return SurveyResult(tuple(sources), distances, options, tuple(notes))
+    kinds = [((s.get("profile") or {}).get("alphabet") or {}).get("name", "") for s in sources]
+    return SurveyResult(tuple(sources), distances, options, tuple(notes), caution=caution_for(kinds))
 
 
 def report_view(result: SurveyResult) -> SurveyView:
@@ -603,7 +604,7 @@ def report_view(result: SurveyResult) -> SurveyView:
             f"profile depth {'automatic' if result.options.depth is None else result.options.depth}, "
             f"ratio k = {result.options.ratio}, seed {result.options.seed}"
         ),
-        caution=CAUTION,
+        caution=result.caution,
     )
 
 

@@ -56,7 +56,7 @@ def _num_text(v) -> str:
 
 def drift_html(result: DriftResult):
     """The drift report as a self-contained HTML page."""
-    page = HtmlReport("Drift test", result.verdict, caution=CAUTION)
+    page = HtmlReport("Drift test", result.verdict, caution=result.caution or CAUTION)
     page.section("Verdict")
     page.paragraph(result.verdict)
     page.key_values(
