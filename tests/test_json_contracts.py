@@ -5,7 +5,8 @@ through the command line only (``python -m fractalseq ...`` in a child process, 
 on small fixed inputs with fixed seeds:
 
 - real data with provenance in ``reference/PROVENANCE.md``: the phage lambda genome
-  (``lambda_virus.fa.gz``) and the 40 kb fragment of human chromosome 17 (``chr17.hg19.part.fa``);
+  (``lambda_virus.fa.gz``), the 40 kb fragment of human chromosome 17 (``chr17.hg19.part.fa``), two logs
+  of ``reference/logs`` and the weekly CO2 series of ``reference/timeseries``;
 - the invented scenario of ``fractalseq demo`` (simulated samples and relay logs), written by the demo
   itself into a temporary folder.
 
@@ -48,6 +49,8 @@ CONTRACTS = HERE / "contracts"
 REFERENCE = HERE.parent / "reference"
 LAMBDA = REFERENCE / "lambda_virus.fa.gz"
 CHR17 = REFERENCE / "chr17.hg19.part.fa"
+LOGS = REFERENCE / "logs"
+CO2 = REFERENCE / "timeseries" / "co2_mauna_loa_weekly.csv"
 REGENERATE = os.environ.get("FRACTALSEQ_REGENERATE_CONTRACTS", "") not in ("", "0")
 
 # Dict-valued keys whose keys are data, not names (collapsed to "{}" in key paths).
@@ -207,6 +210,17 @@ COMMANDS = {
              lambda r: [["scan", CHR17, "--window", "1000", "--seed", "0", "--json", "--quiet"]], (0,)),
     "learn": ("learn --json: model of the demo's kelp-chain sample",
               lambda r: [_learn_dna(r)], (0,)),
+    "scan-log": ("scan --json: a real package-manager log (reference/logs/dpkg-excerpt.log), default window of lines; "
+                 "file line numbers and dominant templates",
+                 lambda r: [["scan", LOGS / "dpkg-excerpt.log", "--json", "--quiet"]], (0,)),
+    "scan-numeric": ("scan --json: the weekly Mauna Loa CO2 series (reference/timeseries), default window of rows; "
+                     "file line numbers and dates of the rows",
+                     lambda r: [["scan", CO2, "--json", "--quiet"]], (0,)),
+    "score-online-log": ("score --json --online: a real sshd log with blank lines (reference/logs/fail2ban-sshd.log); "
+                         "windows located by file line numbers",
+                         lambda r: [["score", LOGS / "fail2ban-sshd.log", "--online", "--json", "--quiet"]], (0,)),
+    "next-log": ("next --json: a context of template ids under the model of the demo's first relay log batch",
+                 lambda r: [_learn_log(r), ["next", "#0 #1", "--model", "relay.npz", "--top", "3", "--json"]], (0,)),
     "learn-log": ("learn --json --format log: model of the demo's first relay log batch (template table)",
                   lambda r: [_learn_log(r)], (0,)),
     "score-fitted": ("score --json --model: kelp-sticky sample read with the kelp-chain model",

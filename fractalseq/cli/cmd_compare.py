@@ -398,9 +398,10 @@ def _print_scan(result) -> None:
     unit = result.unit
     what = {"line": "lines (one symbol per non-blank line)", "row": "rows (one symbol per value)"}.get(unit, "symbols")
     say = common.say
-    say(f"{_safe(result.name)}: {result.length:,} {what}; {len(result.starts)} windows of {result.window:,} "
+    say(f"{_safe(result.name)}: {result.length:,} {what}; {len(result.starts)} window{'' if len(result.starts) == 1 else 's'} of {result.window:,} "
         f"(step {result.step:,}), depth {result.depth}.")
-    say(f"{len(result.segmentation.breaks)} change points; {len(result.low_complexity)} low-complexity region(s). "
+    breaks = len(result.segmentation.breaks)
+    say(f"{breaks} change point{'' if breaks == 1 else 's'}; {len(result.low_complexity)} low-complexity region(s). "
         f"Method: {result.segmentation.method}; penalty {result.segmentation.penalty:.3g} ({result.segmentation.penalty_rule}).")
     first, last = ("first line", "last line") if unit == "line" else ("first row", "last row") if unit == "row" else ("start", "end")
     t = Table(title="Segments between change points" + ("" if unit == "symbol" else " (file line numbers)"))

@@ -272,7 +272,7 @@ def scan_file(
     if lined and len(arr) < window:
         unit = arr.report.positions.unit
         raise ParameterError(
-            f"{arr.name} has {len(arr)} {unit}s to scan, fewer than one window of {window} {unit}s; "
+            f"{arr.name} has {len(arr)} {unit}{'' if len(arr) == 1 else 's'} to scan, fewer than one window of {window} {unit}s; "
             "give a smaller window.", parameter="window",
         )
     return scan_stream(arr, window, step, depth, ratio, pen, seed)
