@@ -262,3 +262,18 @@ def test_scan_page_of_a_log_carries_the_log_caution(tmp_path):
     assert "dominant templates" in page and "first line" in page
     doc = json.loads((tmp_path / "scan" / "scan.json").read_text())
     assert doc["caution"] == CAUTION_LOGS
+
+
+def test_ordinal_patterns_sit_at_the_row_of_their_last_value():
+    """Order-3 patterns need three consecutive numbers: each symbol sits at the row of the third (CO2 series with gaps)."""
+    from fractalseq.sources import open_source
+
+    with CO2.open(newline="") as fh:
+        rows = list(csv.reader(fh))
+    ok = [i > 0 and bool(r) and r[1].strip() not in ("", "NA", "nan") for i, r in enumerate(rows)]
+    expected = [i + 1 for i in range(2, len(rows)) if ok[i] and ok[i - 1] and ok[i - 2]]
+    arr = open_source(CO2, ordinal=3).to_array()
+    pos = arr.report.positions
+    assert pos.unit == "row" and len(arr) == len(expected)
+    assert pos.values.tolist() == expected
+    assert list(pos.times[:2]) == [rows[expected[0] - 1][0], rows[expected[1] - 1][0]]

@@ -421,7 +421,7 @@ def _print_scan(result) -> None:
         for iv in result.low_complexity:
             a, b = _span(iv, unit)
             names = "; ".join(f"{_safe(e['template'])} x{e['count']:,}" for e in iv.get("templates", ()))
-            say(f"  {unit if unit != 'symbol' else 'symbols'} {a}-{b}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol"
+            say(f"  {unit}s {a}-{b}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol"
                 + (f"  ({names})" if names else ""))
     for n in result.notes:
         say(f"note: {_safe(n)}")
