@@ -63,19 +63,21 @@ def count(
             f"{r['distinct'] / r['possible']:.4f}",
         )
     common.out_console.print(table)
-    for p, r in reports:
-        if r["dropped_total"]:
-            parts = ", ".join(f"{k}: {v:,}" for k, v in sorted(r["dropped"].items()))
-            common.err_console.print(f"{p}: dropped {r['dropped_total']:,} symbols ({parts})")
     if top:
         t2 = Table(title=f"Most frequent {wc.depth}-words")
         t2.add_column("word")
         t2.add_column("count", justify="right")
         for row in result["top"]:
-            t2.add_row(row["word"], f"{row['count']:,}")
+            t2.add_row(common.safe(str(row["word"])), f"{row['count']:,}")
         common.out_console.print(t2)
+    from fractalseq.results import caution_for
+    from fractalseq.stream import read_summary
+
+    for p, r in reports:  # what each reader reported: format, lines cut, symbols left out...
+        common.read_notes(read_summary(r.get("notes"), r.get("dropped")), p if len(reports) > 1 else "")
+    common.caution_line(caution_for([wc.alphabet]))
     if save is not None and not quiet:
-        common.err_console.print(f"saved counts to {save}")
+        common.err_console.print(f"saved counts to {common.safe(str(save))}", markup=False, highlight=False)
 
 
 def register(app: typer.Typer) -> None:
