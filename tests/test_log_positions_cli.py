@@ -277,3 +277,18 @@ def test_ordinal_patterns_sit_at_the_row_of_their_last_value():
     assert pos.unit == "row" and len(arr) == len(expected)
     assert pos.values.tolist() == expected
     assert list(pos.times[:2]) == [rows[expected[0] - 1][0], rows[expected[1] - 1][0]]
+
+
+@pytest.mark.parametrize("chunk", [37, 512, 1 << 22])
+def test_positions_do_not_depend_on_the_block_size(chunk):
+    """Blocks of any size give the same file lines (block edges inside lines and rows; common practice)."""
+    from fractalseq.sources import open_source
+
+    log = LOGS / "fail2ban-sshd.log"
+    arr = open_source(log, chunk_size=chunk).to_array()
+    assert arr.report.positions.values.tolist() == _event_lines(log)
+    with CO2.open(newline="") as fh:
+        rows = list(csv.reader(fh))
+    expected = [i + 1 for i, r in enumerate(rows) if i > 0 and r and r[1].strip()]
+    num = open_source(CO2, chunk_size=chunk).to_array()
+    assert num.report.positions.values.tolist() == expected
