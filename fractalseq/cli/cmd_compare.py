@@ -167,7 +167,7 @@ def survey(
         common.out_console.print(f"note: {note}")
     if written:
         common.out_console.print(f"Wrote {len(written)} files to {out}.")
-    common.out_console.print("Genomic output is for research, not for clinical decisions.")
+    common.out_console.print(result.caution)
 
 
 def _cell(v) -> str:

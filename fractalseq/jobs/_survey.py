@@ -57,6 +57,13 @@ __all__ = [
 ]
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
+#: the caution of a survey of event logs only (template alphabets)
+CAUTION_LOGS = "Survey and drift reports on event logs are no security guarantee."
+
+
+def caution_for(alphabets: Sequence[Any]) -> str:
+    """:data:`CAUTION_LOGS` when every source is an event log (a template alphabet), else :data:`CAUTION`."""
+    return CAUTION_LOGS if alphabets and all(getattr(a, "name", "") == "templates" for a in alphabets) else CAUTION
 #: Deepest word length stored per source for the distances (capped by the alphabet's address width).
 STORE_DEPTH = 8
 #: Cap on the number of possible words A**n stored per source.
@@ -583,7 +590,7 @@ def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: S
         spectrum=SpectrumDistances(spec_d),
         clustering=clustering,
     )
-    return SurveyResult(tuple(sources), distances, options, tuple(notes))
+    return SurveyResult(tuple(sources), distances, options, tuple(notes), caution=caution_for(alphabets))
 
 
 def report_view(result: SurveyResult) -> SurveyView:
@@ -603,7 +610,7 @@ def report_view(result: SurveyResult) -> SurveyView:
             f"profile depth {'automatic' if result.options.depth is None else result.options.depth}, "
             f"ratio k = {result.options.ratio}, seed {result.options.seed}"
         ),
-        caution=CAUTION,
+        caution=result.caution,
     )
 
 
