@@ -159,10 +159,18 @@ def survey(
         table.add_row(*[_cell(r[i]) for i in idx])
     common.out_console.print(table)
     if len(result.names) >= 2:
-        a, b = result.clustering.top_split()
-        common.out_console.print(
-            "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
-        )
+        groups = result.clustering.top_groups()
+        if len(groups) > 2:
+            height = float(result.clustering.linkage[-1][2])
+            common.out_console.print(
+                f"Top of the clustering: {len(groups)} groups joined at the same distance ({height:.3g}): "
+                + " vs ".join("{" + ", ".join(result.names[i] for i in g) + "}" for g in groups)
+            )
+        else:
+            a, b = result.clustering.top_split()
+            common.out_console.print(
+                "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
+            )
     for note in result.notes:
         common.out_console.print(f"note: {note}")
     if written:

@@ -185,7 +185,12 @@ def profile(
     from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, STEPS, ProfileSettings, contract, profile_source
     from fractalseq.report.profile import is_genomic, safe_name, write_profile_index, write_profile_report
 
-    caution = lambda rs: CAUTION_GENOMIC if is_genomic(rs) else CAUTION_GENERAL  # noqa: E731
+    from fractalseq.report.profile_json import CAUTION_LOGS
+
+    def caution(rs) -> str:
+        if is_genomic(rs):
+            return CAUTION_GENOMIC
+        return CAUTION_LOGS if rs and all(r.alphabet.name == "templates" for r in rs) else CAUTION_GENERAL
 
     # validate everything before reading anything
     settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed)
@@ -229,6 +234,8 @@ def profile(
     if out is None:
         for res in results:
             _print_tables(res, quiet)
+        if caution(results) == CAUTION_LOGS:
+            common.out_console.print("Reports on event logs are no security guarantee.", markup=False, highlight=False)
 
 
 def register(app: typer.Typer) -> None:

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Any, Protocol, Sequence
 
-__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "FORMAT", "VERSION", "contract"]
+__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "CAUTION_LOGS", "FORMAT", "VERSION", "contract"]
 
 FORMAT = "fractalseq-profile"
 VERSION = 1
@@ -17,6 +17,11 @@ CAUTION_GENOMIC = "Genomic output is for research, not for clinical decisions."
 CAUTION_GENERAL = (
     "Estimates describe the stream given, at its length; read the reliability notes before comparing numbers. "
     + CAUTION_GENOMIC
+)
+#: the caution of profiles of event logs only
+CAUTION_LOGS = (
+    "Estimates describe the stream given, at its length; read the reliability notes before comparing numbers. "
+    "Reports on event logs are no security guarantee."
 )
 
 
