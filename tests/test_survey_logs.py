@@ -19,8 +19,8 @@ from scipy.cluster.hierarchy import fcluster
 
 from _paths import LOGS
 
-#: (log, first line, last line, pieces): the jtreg excerpt's first 150 lines are all "Passed:" lines, so its
-#: pieces are cut from the rest, where its summary, GNU time and make lines are
+#: (log, first line, last line, pieces): the jtreg excerpt's first 234 lines are all "Passed:" lines (a piece of
+#: them alone has a single template), so its pieces are cut from line 150 on, each holding other kinds too
 PIECES = [
     ("dpkg-excerpt", 1, 2000, 3),
     ("apt-term-excerpt", 1, 1200, 3),
