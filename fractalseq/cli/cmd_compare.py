@@ -282,6 +282,7 @@ def _print_novelty(nov) -> None:
     """The event novelty sections after the drift report (strings from the input escaped)."""
     out = common.out_console
     say = lambda line="": out.print(line, highlight=False, soft_wrap=True, emoji=False)  # noqa: E731
+    say()
     say(_safe(nov.verdict))
     for f in nov.families:
         say(f"  {f.family:<16} p = {f.p_value:<10.3g} adjusted {f.p_adjusted:<10.3g} {_safe(f.method)}")
@@ -303,6 +304,7 @@ def _print_novelty(nov) -> None:
                 f"(expected {b.expected:.2g})  p = {b.p_adjusted:.3g}  {_safe(b.template)}")
     for n in nov.notes:
         say(f"note: {_safe(n)}")
+    say("\nDrift reports on logs are no security guarantee.")
 
 
 def _num(v) -> str:
