@@ -197,6 +197,8 @@ def test_one_differing_word_is_a_variable_only_with_evidence():
     assert mine(["user alice logged in", "user bob logged in", "user carol logged in"])[0] == ["user <*> logged in"]
     # two names seen once are not yet evidence of a variable (they could be two events)
     assert len(mine(["user alice logged in", "user bob logged in"])[0]) == 2
+    # threshold 1: a line joins only when every word of the template agrees (numbers are no evidence)
+    assert mine(["a b 1", "a b 2", "a c 3"], threshold=1.0) == (["a b <*>", "a c <*>"], [0, 0, 1])
     # words that recur keep their templates however many there are (dpkg's status states)
     states = ["installed", "unpacked", "half-configured", "half-installed", "config-files"] * 4
     assert len(mine([f"status {w} pkg{i}:amd64 1.{i}" for i, w in enumerate(states)])[0]) == 5

@@ -13,10 +13,14 @@ Each line goes through these steps:
 3. Grouping, in one streaming pass (the general fixed-depth scheme of
    online log parsers): lines are routed by (pinned tokens, number of free
    tokens, the first ``depth`` free tokens, masked ones as ``<*>``); within a
-   route a line joins the cluster whose template it matches best, when the
-   share of positions where the line's token equals the template's token is
-   at least ``threshold``; else it starts a cluster.  A position whose tokens
-   differ between members becomes ``<*>``.  A message seen before (same
+   route a line joins the cluster whose template it matches best, when more
+   than ``threshold`` of the template's plain words (no digit, no inner
+   punctuation: :func:`_routable`) equal the line's tokens at the same
+   positions; else it starts a cluster.  Masked tokens and other non-words
+   are no evidence either way, so ``job 12 started`` and ``job 12 done``
+   (one word of two agreeing) stay apart while ``upgrade libfoo1:amd64 <*>``
+   and ``upgrade libbar2:amd64 <*>`` join.  A position whose tokens differ
+   between members becomes ``<*>``.  A message seen before (same
    text) joins the cluster it joined then.  A route with many clusters
    compares a line with the ``MAX_SCAN`` most recently matched ones only.
 4. Free-text tails: the lines sharing pinned tokens and routing head (the
@@ -29,11 +33,16 @@ Each line goes through these steps:
    fixed format with a few optional words (``Connection closed by [invalid
    user] <*> port <*>``) has few different words after its head and keeps
    its templates.
-5. A merge pass (:meth:`TemplateMiner.finish`): templates with the same
-   pinned tokens and length are folded when they differ only at positions
-   where one of them has ``<*>`` and share enough constant tokens, repeated
-   until nothing changes (identical templates first; each template is tried
-   against at most ``MAX_SCAN`` kept ones).
+5. A merge pass (:meth:`TemplateMiner.finish`) over templates with the same
+   pinned tokens and length: first, templates seen on one line each that are
+   equal but at one position, where they hold ``VARIABLE_WORDS`` or more
+   different words, fold into one with ``<*>`` there (many different words
+   each seen once mark an open set of values, such as user names; words that
+   recur, or two alternatives, are kept apart); then templates are folded
+   when they differ only at positions where one of them has ``<*>`` and share
+   enough constant tokens, repeated until nothing changes (identical
+   templates first; each template is tried against at most ``MAX_SCAN`` kept
+   ones).
 
 Template ids are given by order of first appearance after the merge pass.
 Everything depends on the sequence of lines only (not on how they were cut
@@ -156,7 +165,8 @@ class TemplateMiner:
     Parameters
     ----------
     threshold:
-        Least share of equal tokens for a line to join a cluster (0 < t <= 1).
+        A line joins a cluster when more than this share of the template's
+        plain words equal the line's tokens, or all of them do (0 < t <= 1).
     depth:
         Number of leading free tokens in the routing key.  A leading token
         that is not a plain word (it holds a digit, ``:``, ``.``, ``/``...)
@@ -303,7 +313,7 @@ class TemplateMiner:
             tpl = c.tokens
             same = sum(map(eq, tpl, probe))
             const = c.words
-            if const and same <= limit * const:
+            if const and same <= limit * const and same < const:  # all words agreeing always qualifies
                 continue
             if same > best_sim:
                 best, best_sim, best_wild = cid, same, -1
