@@ -159,10 +159,18 @@ def survey(
         table.add_row(*[_cell(r[i]) for i in idx])
     common.out_console.print(table)
     if len(result.names) >= 2:
-        a, b = result.clustering.top_split()
-        common.out_console.print(
-            "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
-        )
+        groups = result.clustering.top_groups()
+        if len(groups) > 2:
+            height = float(result.clustering.linkage[-1][2])
+            common.out_console.print(
+                f"Top of the clustering: {len(groups)} groups joined at the same distance ({height:.3g}): "
+                + " vs ".join("{" + ", ".join(result.names[i] for i in g) + "}" for g in groups)
+            )
+        else:
+            a, b = result.clustering.top_split()
+            common.out_console.print(
+                "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
+            )
     for note in result.notes:
         common.say(f"note: {_safe(note)}")
     for s in result.sources:
@@ -283,6 +291,7 @@ def _print_novelty(nov) -> None:
     """The event novelty sections after the drift report (strings from the input escaped)."""
     out = common.out_console
     say = lambda line="": out.print(line, highlight=False, soft_wrap=True, emoji=False)  # noqa: E731
+    say()
     say(_safe(nov.verdict))
     for f in nov.families:
         say(f"  {f.family:<16} p = {f.p_value:<10.3g} adjusted {f.p_adjusted:<10.3g} {_safe(f.method)}")
@@ -304,6 +313,7 @@ def _print_novelty(nov) -> None:
                 f"(expected {b.expected:.2g})  p = {b.p_adjusted:.3g}  {_safe(b.template)}")
     for n in nov.notes:
         say(f"note: {_safe(n)}")
+    say("\nDrift reports on logs are no security guarantee.")
 
 
 def _num(v) -> str:

@@ -295,7 +295,9 @@ def _checked_input(arr: SymbolArray | SymbolStream, settings: ProfileSettings) -
     if not isinstance(arr, SymbolArray):
         raise InputError("profile_source needs a stream (SymbolArray or SymbolStream).")
     if arr.alphabet.size < 2:
-        raise InputError("The alphabet has fewer than 2 symbols; there is no complexity to measure.")
+        what = f"{arr.name} has" if arr.name and arr.name != "stream" else "The alphabet has"
+        kind = "templates (all its lines are one event kind)" if arr.alphabet.name == "templates" else "symbols"
+        raise InputError(f"{what} fewer than 2 distinct {kind}; there is no complexity to measure.")
     L = len(arr)
     if L < 2:
         raise InputError(f"The stream has {L} symbol(s); a profile needs at least 2.")

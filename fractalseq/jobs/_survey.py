@@ -57,6 +57,7 @@ __all__ = [
 ]
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
+
 #: Deepest word length stored per source for the distances (capped by the alphabet's address width).
 STORE_DEPTH = 8
 #: Cap on the number of possible words A**n stored per source.
