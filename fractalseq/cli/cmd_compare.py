@@ -45,6 +45,8 @@ def survey(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     common_cuts: bool = typer.Option(
         False, "--common-cuts", help="numeric input: cut every source at the quantiles of all sources pooled (levels compared), not each at its own (only dynamics compared)."
     ),
@@ -96,7 +98,7 @@ def survey(
     from fractalseq.jobs._survey import SurveyOptions, write_outputs
 
     options = SurveyOptions.from_reader(
-        reader(fmt, alphabet, policy, column, bins, thresholds, ordinal),
+        reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed),
         depth=depth, ratio=ratio, distance_depth=distance_depth, seed=seed, linkage=linkage,
     )
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
@@ -194,6 +196,8 @@ def drift(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     figures: str = typer.Option("words,transitions,entropy_rate,D2", "--figures", help="Comma-separated figures to test: words, transitions, entropy_rate, D2."),
     top: int = typer.Option(10, "--top", min=0, help="How many contributing words and contexts to list."),
     ratio: float = common.RATIO,
@@ -235,7 +239,7 @@ def drift(
     figs = tuple(f.strip() for f in figures.split(",") if f.strip())
     options = DriftOptions(depth, block, permutations, alpha, adjust, seed, ratio, figs, top)
     options.check()
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
     if out is not None:
         from fractalseq.io._outputs import StagedFolder
 

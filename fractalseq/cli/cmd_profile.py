@@ -153,6 +153,8 @@ def profile(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     ratio: float = common.RATIO,
     qs: str = QS,
     depth: Optional[int] = PROFILE_DEPTH,
@@ -189,7 +191,7 @@ def profile(
 
     # validate everything before reading anything
     settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed)
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
     _check_out(out, force)
     parameters = settings.parameters(read)
 

@@ -53,7 +53,7 @@ from fractalseq.encoding import check_ratio, corner_layout, density_image, overl
 from fractalseq.errors import FractalseqError, InputError, ParameterError
 from fractalseq.jobs._inputs import ReaderOptions
 from fractalseq.jobs._profile_rates import (
-    annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_order, safe_ordinal_entropy,
+    annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_delay, ordinal_order, safe_ordinal_entropy,
 )
 from fractalseq.jobs._profile_result import RATE_NAMES, ProfileResult, ScalingCurve
 from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract
@@ -318,9 +318,9 @@ def _block_entropies(arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...
 
     The rates are read at the block length the counts support (:func:`fractalseq.jobs._profile_rates.evidence_rates`).
     """
-    order = ordinal_order(arr)
-    rows = annotate_rows(tuple(ent.entropy_table(wc)), order)
-    rate_est, _ = evidence_rates(wc, order)
+    order, delay = ordinal_order(arr), ordinal_delay(arr)
+    rows = annotate_rows(tuple(ent.entropy_table(wc)), order, delay)
+    rate_est, _ = evidence_rates(wc, order, delay)
     renyi = tuple(ent.h_renyi(wc, q) for q in user_qs)
     topo = ent.h_topological_growth(wc)
     try:

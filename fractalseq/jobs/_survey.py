@@ -43,7 +43,7 @@ from fractalseq.compare._distances import (
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
 from fractalseq.io._outputs import to_json
-from fractalseq.jobs._inputs import DEFAULT_BINS, ReaderOptions, check_seed
+from fractalseq.jobs._inputs import ReaderOptions, check_seed
 from fractalseq.jobs._sources import SourceSpec, expand_inputs
 from fractalseq.report.survey import SurveyView
 from fractalseq.results import Result
@@ -119,11 +119,7 @@ class SurveyOptions:
     @property
     def reader_options(self) -> ReaderOptions:
         """The reader settings of every source as one :class:`ReaderOptions`."""
-        extra = dict(self.reader)
-        return ReaderOptions(
-            self.fmt, self.alphabet, self.policy, extra.get("column"), extra.get("bins", DEFAULT_BINS),
-            None if extra.get("thresholds") is None else tuple(extra["thresholds"]), extra.get("ordinal", 0),
-        )
+        return ReaderOptions.from_numeric(self.fmt, self.alphabet, self.policy, dict(self.reader))
 
     def task_params(self) -> dict:
         """Parameters that change a per-source result (the cache key)."""

@@ -127,6 +127,9 @@ def open_source(
     bins: int = 4,
     thresholds: list[float] | None = None,
     ordinal: int = 0,
+    delay: int = 1,
+    ties: str = "time",
+    seed: int = 0,
     chunk_size: int = DEFAULT_CHUNK,
     name: str | None = None,
 ) -> SymbolStream:
@@ -157,6 +160,13 @@ def open_source(
         numeric: fixed bin edges instead of quantiles.
     ordinal:
         numeric: ordinal-pattern order ``m`` (2..8); 0 uses bins/thresholds.
+    delay:
+        numeric, ordinal patterns: embedding delay ``tau`` in samples (default 1).
+    ties:
+        numeric, ordinal patterns: equal values ordered by ``time`` (default) or by a
+        seeded ``dither`` (see :mod:`fractalseq.sources.numeric`).
+    seed:
+        numeric, ``ties="dither"``: seed of the dither.
     chunk_size:
         Decompressed bytes read per block; no chunk holds more symbols.
     name:
@@ -183,7 +193,7 @@ def open_source(
     if isinstance(chunk_size, bool) or not isinstance(chunk_size, int) or chunk_size < 1:
         raise ParameterError(f"The chunk size must be a positive whole number of bytes; got {chunk_size!r}.", parameter="chunk_size")
     if fmt == "numeric":
-        numeric.check_parameters(bins, thresholds, ordinal)
+        numeric.check_parameters(bins, thresholds, ordinal, delay, ties)
     a = _resolve(alphabet) if fmt not in ("tokens", "log", "numeric") else None
     allow_binary = a is not None and a.name == "bytes" and fmt in ("auto", "text")
     origin, fmt, block = _prepare(path, fmt, a, allow_binary, _follows(alphabet))
@@ -256,11 +266,11 @@ def open_source(
         return SymbolStream(table.alphabet, log_factory, stream_name)
 
     if fmt == "numeric":
-        numeric.check_parameters(bins, thresholds, ordinal)
+        numeric.check_parameters(bins, thresholds, ordinal, delay, ties)
         layout = _numeric_layout(origin, block, column)
         if not ordinal and thresholds is None:
             spool(origin)  # quantile bins need a first pass
-        plan, info = numeric.plan(origin, layout, bins, thresholds, ordinal, learn_block)
+        plan, info = numeric.plan(origin, layout, bins, thresholds, ordinal, learn_block, delay, ties, seed)
 
         def numeric_factory(report: ReadReport) -> Iterator[Chunk]:
             begin(report)

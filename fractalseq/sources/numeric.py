@@ -50,11 +50,18 @@ For both, the symbol of ``x`` is the number of edges ``<= x``
     order of appearance (a stable sort: the earlier value counts as smaller).
     The alphabet is all ``m!`` permutations in lexicographic order, written as
     digit strings (``"012"`` is the identity, code 0).  A NaN-free run of
-    length ``L`` gives ``L - m + 1`` symbols in one segment.  The reader uses
-    delay 1 (consecutive values) and ties by time; an embedding delay
-    ``tau`` and ties broken by a seeded random dither are available on
-    arrays through :func:`fractalseq.entropy._ordinal.ordinal_patterns`,
-    which gives the same codes for delay 1 and ties by time.
+    length ``L`` gives ``L - m + 1`` symbols in one segment.
+``delay`` (embedding delay ``tau``, default 1)
+    The window is ``x[t], x[t+tau], ..., x[t+(m-1)tau]``; a window holding a
+    missing value is skipped, and a segment starts at every window whose
+    predecessor (the window one sample earlier) was skipped.
+``ties`` (``time``, default, or ``dither``)
+    ``time``: equal values are ordered by time (the rule above).  ``dither``:
+    by an independent uniform key per value (missing values and time gaps
+    included), drawn in file order from ``numpy.random.default_rng(seed)``,
+    as if an infinitesimal random dither were added.  With delay and ties the
+    codes equal those of :func:`fractalseq.entropy._ordinal.ordinal_patterns`
+    on the column's values (NaN for missing values and gaps) with the same seed.
 """
 
 from __future__ import annotations
@@ -77,6 +84,10 @@ MISSING = frozenset({"", "na", "nan", "null", "none", "n/a", "?", "-"})
 #: Header names of columns that hold the time of a row rather than a measurement.
 TIME_NAMES = frozenset({"time", "date", "datetime", "timestamp", "year", "t", "index"})
 MAX_ORDER = 8
+#: Largest embedding delay of ordinal patterns (samples).
+MAX_DELAY = 100_000
+#: How equal values are ordered inside an ordinal pattern.
+TIE_RULES = ("time", "dither")
 _DIGITS = "0123456789abcdefghijklmnopqrstuvwxyz"
 
 
@@ -389,10 +400,24 @@ class Plan:
     alphabet: Alphabet
     edges: np.ndarray = field(default_factory=lambda: np.zeros(0))
     order: int = 0
+    delay: int = 1
+    ties: str = "time"
+    seed: int = 0
 
 
-def check_parameters(bins: int, thresholds: list[float] | None, ordinal: int) -> None:
+def check_parameters(
+    bins: int, thresholds: list[float] | None, ordinal: int, delay: int = 1, ties: str = "time"
+) -> None:
     """Raise :class:`ParameterError` for impossible symbolization parameters."""
+    if isinstance(delay, bool) or not isinstance(delay, (int, np.integer)) or not 1 <= int(delay) <= MAX_DELAY:
+        raise ParameterError(f"The embedding delay must be a whole number of samples from 1 to {MAX_DELAY}; got {delay!r}.",
+                             parameter="delay")
+    if ties not in TIE_RULES:
+        raise ParameterError(f"Ties are ordered by 'time' or by a seeded 'dither'; got {ties!r}.", parameter="ties")
+    if not ordinal and (int(delay) != 1 or ties != "time"):
+        which = "delay" if int(delay) != 1 else "ties"
+        raise ParameterError(f"The {'embedding delay' if which == 'delay' else 'tie rule'} applies to ordinal patterns only; "
+                             "give an ordinal order as well.", parameter=which)
     if ordinal:
         if thresholds:
             raise ParameterError("Give either thresholds or an ordinal order, not both.", parameter="ordinal")
@@ -409,11 +434,12 @@ def check_parameters(bins: int, thresholds: list[float] | None, ordinal: int) ->
 
 
 def plan(
-    origin: Origin, layout: Layout, bins: int, thresholds: list[float] | None, ordinal: int, block_size: int
+    origin: Origin, layout: Layout, bins: int, thresholds: list[float] | None, ordinal: int, block_size: int,
+    delay: int = 1, ties: str = "time", seed: int = 0,
 ) -> tuple[Plan, dict]:
     """Decide the symbolization (first pass over the column for quantile edges)."""
     if ordinal:
-        return Plan("ordinal", ordinal_alphabet(ordinal), order=ordinal), {}
+        return Plan("ordinal", ordinal_alphabet(ordinal), order=ordinal, delay=int(delay), ties=ties, seed=int(seed)), {}
     if thresholds is not None:
         edges = np.asarray(thresholds, dtype=np.float64)
         return Plan("thresholds", Alphabet(f"threshold{len(edges) + 1}", bin_symbols(len(edges) + 1)), edges), {}
@@ -436,6 +462,8 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
         fact = np.array([math.factorial(i) for i in range(m + 1)], dtype=np.int64)
         carry = np.zeros(0)
         in_seg = 0
+        general = p.delay != 1 or p.ties != "time"
+        key = _Keys(p.ties, p.seed)
         for v in value_blocks(origin, layout, block_size, clock):
             if v.size == 0:
                 continue
@@ -443,11 +471,14 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
             x = np.concatenate([carry, v]) if carry.size else v
             codes = np.empty(x.size, dtype=dtype)
             starts = np.empty(x.size + 1, dtype=np.int64)
-            nc, ns, in_seg, nan = K.ordinal_codes(x, m, carry.size, in_seg, codes, starts, fact)
+            if general:
+                nc, ns, in_seg, nan, carry = _general_ordinal(x, v.size, carry.size, key, m, p, in_seg, codes, starts, fact)
+            else:
+                nc, ns, in_seg, nan = K.ordinal_codes(x, m, carry.size, in_seg, codes, starts, fact)
+                tail = x[-(m - 1):] if m > 1 else x[:0]
+                cut = np.flatnonzero(np.isnan(tail))
+                carry = tail[cut[-1] + 1:] if cut.size else tail.copy()
             missing += nan
-            tail = x[-(m - 1):] if m > 1 else x[:0]
-            cut = np.flatnonzero(np.isnan(tail))
-            carry = tail[cut[-1] + 1:] if cut.size else tail.copy()
             if nc:
                 yield Chunk(codes[:nc], starts[:ns].copy())
             total += nc
@@ -495,8 +526,13 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
     }
     if p.method == "ordinal":
         info["order"] = p.order
-        info["delay"] = 1
-        info["tie_rule"] = "stable: equal values ordered by appearance"
+        info["delay"] = p.delay
+        info["ties"] = p.ties
+        if p.ties == "dither":
+            info["tie_rule"] = f"dither: equal values ordered by a uniform key per value, seed {p.seed}"
+            info["seed"] = p.seed
+        else:
+            info["tie_rule"] = "stable: equal values ordered by appearance"
     else:
         info["edges"] = [float(e) for e in p.edges]
         if np.any(np.diff(p.edges) == 0):
@@ -506,6 +542,39 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
         if p.method == "ordinal" and values:
             raise InputError(
                 f"{origin.name} has no run of {p.order} consecutive numbers in column {layout.column_name!r}; "
-                "use a smaller ordinal order or fill the gaps."
+                "use a smaller ordinal order or fill the gaps." if p.delay == 1 else
+                f"{origin.name} has no complete window of {p.order} numbers {p.delay} samples apart in column "
+                f"{layout.column_name!r}; use a smaller ordinal order or delay, or fill the gaps."
             )
         raise InputError(f"{origin.name} has no numbers in column {layout.column_name!r}; check the file or the column.")
+
+
+class _Keys:
+    """Tie keys of the values in file order: their position (ties by time) or a seeded uniform number (dither)."""
+
+    def __init__(self, ties: str, seed: int) -> None:
+        self.rng = np.random.default_rng(seed) if ties == "dither" else None
+        self.seen = 0
+        self.carry = np.zeros(0)
+
+    def next(self, n: int) -> np.ndarray:
+        """Keys of the next ``n`` values (the same numbers whatever the block sizes)."""
+        if self.rng is not None:
+            out = self.rng.random(n)
+        else:
+            out = np.arange(self.seen, self.seen + n, dtype=np.float64)
+        self.seen += n
+        return out
+
+
+def _general_ordinal(
+    x: np.ndarray, fresh: int, skip: int, key: _Keys, m: int, p: Plan, in_seg: int,
+    codes: np.ndarray, starts: np.ndarray, fact: np.ndarray,
+) -> tuple[int, int, int, int, np.ndarray]:
+    """One block of :func:`fractalseq.sources.kernels.ordinal_codes_delay`; carries the last ``(m-1) delay`` values and keys."""
+    k = key.next(fresh)
+    keys = np.concatenate([key.carry, k]) if key.carry.size else k
+    nc, ns, in_seg, nan = K.ordinal_codes_delay(x, keys, m, p.delay, skip, in_seg, codes, starts, fact)
+    span = (m - 1) * p.delay
+    key.carry = keys[-span:].copy() if span else keys[:0]
+    return nc, ns, in_seg, nan, (x[-span:].copy() if span else x[:0])
