@@ -41,7 +41,7 @@ def survey(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
-    column: Optional[str] = common.COLUMN,
+    column: Optional[str] = common.COLUMNS,
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
@@ -95,14 +95,14 @@ def survey(
     from fractalseq.io._outputs import StagedFolder
     from fractalseq.jobs._files import survey_cache, survey_files
     from fractalseq.jobs._sources import expand_inputs
-    from fractalseq.jobs._survey import SurveyOptions, write_outputs
+    from fractalseq.jobs._survey import SurveyOptions, column_specs, write_outputs
 
     options = SurveyOptions.from_reader(
         reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed),
         depth=depth, ratio=ratio, distance_depth=distance_depth, seed=seed, linkage=linkage,
     )
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
-    specs = expand_inputs(list(paths or []), from_list, stdin_lines)
+    specs = column_specs(expand_inputs(list(paths or []), from_list, stdin_lines), options.reader_options)
     # the report is built aside and renamed into place at the end; the cache stays in OUT/.cache meanwhile
     # (an interrupted run leaves only it) and is carried into the new folder by the commit
     stage = StagedFolder(out, force) if out is not None else None
@@ -153,7 +153,7 @@ def survey(
     rate_cols = [i for i, h in enumerate(header) if h == "h_grassberger"] or [
         i for i, h in enumerate(header) if h.startswith("h_") and not h.endswith(("_low", "_high")) and h != "h_top"
     ][:1]
-    idx[4:4] = rate_cols
+    idx[5:5] = rate_cols  # after D2
     table = Table(title=f"Survey of {len(result.names)} sources (D_q in units of log 1/k, k = {ratio:g}; entropies in bits)")
     for i in idx:
         table.add_column(header[i], justify="left" if header[i] == "name" else "right")
@@ -169,7 +169,11 @@ def survey(
         common.out_console.print(f"note: {note}")
     if written:
         common.out_console.print(f"Wrote {len(written)} files to {out}.")
-    common.out_console.print("Genomic output is for research, not for clinical decisions.")
+    kinds = {(s.get("profile") or {}).get("input", {}).get("format") for s in result.sources}
+    if "log" in kinds:
+        common.out_console.print("Drift and surprise reports on logs are no security guarantee.")
+    if kinds - {"log", "numeric"}:  # sequences (or formats not recorded): the research caution
+        common.out_console.print("Genomic output is for research, not for clinical decisions.")
 
 
 def _cell(v) -> str:
@@ -192,7 +196,7 @@ def drift(
     permutations: int = typer.Option(999, "--permutations", "-R", min=19, help="Block permutations; the smallest possible p-value is 1/(R+1)."),
     alpha: float = typer.Option(0.05, "--alpha", help="Level of the verdict (exit status 1 when the smallest adjusted p-value is below it)."),
     adjust: str = typer.Option("holm", "--adjust", help="Adjustment across the figures tested: holm or bh (Benjamini-Hochberg)."),
-    column: Optional[str] = common.COLUMN,
+    column: Optional[str] = common.COLUMNS,
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
@@ -234,6 +238,7 @@ def drift(
     """
     from fractalseq.cli.inputs import reader
     from fractalseq.compare._drift import DriftOptions
+    from fractalseq.jobs._drift_columns import batch_columns, drift_columns
     from fractalseq.jobs._files import drift_files
 
     figs = tuple(f.strip() for f in figures.split(",") if f.strip())
@@ -245,9 +250,19 @@ def drift(
 
         stage = StagedFolder(out, force)  # built aside, renamed into place at the end
     stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
+    columns = batch_columns(baseline, read, stdin_lines)  # --column a,b / all: one test per column
     with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
-        report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+        if columns is not None:
+            several = drift_columns(baseline, new, columns, options, read, engine=eng, stdin_lines=stdin_lines,
+                                    on_done=lambda i, r: bar.advance(task))
+        else:
+            report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+    if columns is not None:
+        _drift_by_column(several, stage.path if out is not None else None, json_out)
+        if out is not None:
+            stage.commit()
+        raise typer.Exit(EXIT_FOUND if several.changed else 0)
     result = report.drift
     if out is not None:
         from fractalseq.report.drift import write_outputs
@@ -267,6 +282,26 @@ def drift(
         if report.novelty is not None:
             _print_novelty(report.novelty)
     raise typer.Exit(EXIT_FOUND if report.changed else 0)
+
+
+def _drift_by_column(several, folder: Optional[Path], json_out: bool) -> None:
+    """Print (and write) the drift of several columns: the verdict across columns, then each column's report."""
+    from fractalseq.report.drift import drift_text, write_outputs
+
+    if folder is not None:
+        from fractalseq.cli.inputs import safe_stem
+        from fractalseq.io._outputs import write_text
+
+        for col, rep in zip(several.columns, several.reports):
+            write_outputs(rep.drift, folder / safe_stem(col), force=True)
+        write_text(folder / "drift.json", several.to_json(), force=True)
+    if json_out:
+        typer.echo(several.to_json(), nl=False)
+        return
+    typer.echo(several.verdict)
+    for col, p, rep in zip(several.columns, several.p_across, several.reports):
+        typer.echo(f"\n=== column {_safe(col)} (smallest adjusted p {rep.drift.p_value:.3g}; across columns {p:.3g})")
+        typer.echo(drift_text(rep.drift), nl=False)
 
 
 def _safe(text: object) -> str:

@@ -63,6 +63,11 @@ TIES = typer.Option(
          "or by dither (a random key per value from --seed, 0 where the command has none).",
 )
 COLUMN = typer.Option(None, "--column", help="numeric input: CSV column name or 0-based index.")
+COLUMNS = typer.Option(
+    None, "--column",
+    help="numeric input: CSV column name or 0-based index; several (a,b) or all (every numeric column but time) "
+         "give one source per column.",
+)
 THRESHOLDS = typer.Option(
     None, "--thresholds", help="numeric input: fixed bin edges, increasing and comma-separated (e.g. 0.2,0.5,0.8), instead of quantile --bins."
 )

@@ -175,6 +175,19 @@ class ReaderOptions:
         return opts
 
     # ---------------------------------------------------------- reading
+    def per_column(self, path: str | os.PathLike) -> list[tuple[str | None, "ReaderOptions"]]:
+        """One ``(column, options)`` per source that ``path`` gives with these options.
+
+        A multi-column choice (``column="a,b"``, ``"0,2"`` or ``"all"``) gives one entry per
+        column, each reading that column alone; otherwise the one entry is ``(None, self)``.
+        """
+        from fractalseq.sources import numeric_columns
+
+        names = numeric_columns(path, self.column, self.fmt) if isinstance(self.column, str) else None
+        if names is None:
+            return [(None, self)]
+        return [(c, replace(self, column=c)) for c in names]
+
     def open(self, path: str | os.PathLike, name: str | None = None) -> SymbolStream:
         """Open one input (``-`` is standard input) as a stream with these options."""
         from fractalseq.sources import open_source

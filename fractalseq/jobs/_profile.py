@@ -269,6 +269,13 @@ class ProfileSettings:
         return out
 
 
+def _bound_name(by: str, alphabet_size: int, order: int) -> str:
+    """What gave the smallest upper bound, in words (``alphabet`` is log2 A, or log2 m for ordinal patterns)."""
+    if by != "alphabet":
+        return by
+    return f"log2 {order}: a pattern has at most {order} successors" if order else f"log2 {alphabet_size}, the alphabet's limit"
+
+
 # ---------------------------------------------------------------- the steps
 class _Clock:
     """Seconds per step (kept out of the JSON) and the progress callback."""
@@ -565,7 +572,8 @@ def profile_source(
     if choice.estimator != "grassberger":
         notes.append(f"entropy rate: {choice.reason}")
     notes.extend(f"entropy rate ({name}): {rates[name][1].estimate:.4f} bits/symbol lies outside [0, {choice.upper_bound:.4f}], "
-                 f"the smallest upper bound ({choice.upper_bound_by})" for name, ok in choice.within.items()
+                 f"the smallest upper bound ({_bound_name(choice.upper_bound_by, arr.alphabet.size, order)})"
+                 for name, ok in choice.within.items()
                  if not ok and rates[name][0] == "estimate" and name != "grassberger")
     notes.extend(_reliability_notes(rates, found.topological, absent))
     settings = {

@@ -53,7 +53,7 @@ from fractalseq.sources.sniff import FORMATS
 from fractalseq.sources.templates import line_template
 from fractalseq.stream import DEFAULT_CHUNK, Chunk, ReadReport, SymbolStream
 
-__all__ = ["FORMATS", "detect_format", "line_template", "open_source", "shared_quantile_edges"]
+__all__ = ["FORMATS", "detect_format", "line_template", "numeric_columns", "open_source", "shared_quantile_edges"]
 
 _LEARN_BLOCK = 1 << 16
 
@@ -288,6 +288,28 @@ def _numeric_layout(origin: Origin, block: bytes, column: str | int | None) -> "
         sample = sample[:-1]
     layout = numeric.detect_layout(sample)
     return numeric.choose_column(layout, sample, column, origin.name)
+
+
+def numeric_columns(path: str | os.PathLike, column: str | int | None, fmt: str = "auto") -> list[str] | None:
+    """The columns of a multi-column choice (``"a,b"``, ``"0,2"``, ``"all"``) in a numeric file, else ``None``.
+
+    ``None`` means ``column`` names one column (or none): read the file as one source.
+    Otherwise each returned name (a header name, or a 0-based index as text) is read as its
+    own source with ``column=name`` (see :func:`fractalseq.sources.numeric.several_columns`).
+    """
+    if not isinstance(column, str) or not ("," in column or column.strip().lower() == "all"):
+        return None
+    if str(path) == "-":
+        raise ParameterError("Several columns cannot be read from standard input (it is read once); save it to a file "
+                             "or name one column.", parameter="column")
+    origin, kind, block = _prepare(path, fmt, None, False)
+    if kind != "numeric":
+        raise ParameterError(f"Several columns ({column!r}) apply to numeric tables; {origin.name} reads as {kind}.",
+                             parameter="column")
+    sample = block.decode("utf-8", errors="replace").split("\n")
+    if len(block) >= (1 << 16) and len(sample) > 1:
+        sample = sample[:-1]
+    return numeric.several_columns(numeric.detect_layout(sample), sample, column, origin.name)
 
 
 def shared_quantile_edges(paths: Sequence[str | os.PathLike], bins: int = 4, column: str | int | None = None) -> np.ndarray:

@@ -30,6 +30,15 @@ infinite values and rows too short to hold the column are *missing*: they end
 the segment.  Any other non-number is an :class:`InputError` naming the line.
 Quoted fields may not span lines.
 
+Several columns
+---------------
+``--column a,b`` (names or 0-based indices separated by commas) or ``--column all``
+asks for one source per column (:func:`several_columns` lists them; the jobs
+read each one as its own source).  ``all`` is every column whose sampled values
+are mostly numbers, except time columns and calendar parts (named ``quarter``,
+``month``, ``week``, ``day``, ``weekday``, ``doy``, ``hour``, ``minute``, ``second``).  A header name that contains a comma
+(or is ``all``) is read as that one column.
+
 Symbolization
 -------------
 ``quantile`` (default, ``bins`` symbols)
@@ -83,6 +92,8 @@ from fractalseq.stream import Chunk, ReadReport, Record
 MISSING = frozenset({"", "na", "nan", "null", "none", "n/a", "?", "-"})
 #: Header names of columns that hold the time of a row rather than a measurement.
 TIME_NAMES = frozenset({"time", "date", "datetime", "timestamp", "year", "t", "index"})
+#: Header names of calendar parts (a quarter, a month ...): left out of ``--column all`` with the time columns.
+CALENDAR_NAMES = frozenset({"quarter", "month", "week", "day", "weekday", "doy", "hour", "minute", "second"})
 MAX_ORDER = 8
 #: Largest embedding delay of ordinal patterns (samples).
 MAX_DELAY = 100_000
@@ -259,6 +270,47 @@ def _find_time_column(layout: Layout, rows: list[list[str]], width: int) -> None
             return
 
 
+def several_columns(layout: Layout, sample: Sequence[str], column: str | int | None, name: str) -> list[str] | None:
+    """The columns a multi-column choice names (``"a,b"``, ``"0,2"`` or ``"all"``), else ``None``.
+
+    Returns header names (0-based indices as text when there is no header), in file order
+    for ``all`` and in the order given otherwise, duplicates removed.  ``None`` when
+    ``column`` names one column (a header name is taken whole, commas and all).
+    """
+    if not isinstance(column, str):
+        return None
+    text = column.strip()
+    if layout.header and (text in layout.header or text.lower() in [h.lower() for h in layout.header]):
+        return None
+    data = _data_lines(sample)
+    rows = split_rows(data[1:] if layout.header else data, layout.delimiter)
+    width = max([len(r) for r in rows] + [len(layout.header or [])] + [1])
+    heads = layout.header or []
+
+    def label(c: int) -> str:
+        return heads[c] if c < len(heads) and heads[c] else str(c)
+
+    if text.lower() == "all":
+        found = _numeric_columns(rows, width, share=0.5)
+        measured = [c for c in found if not _time_like(heads[c] if c < len(heads) else "", rows, c)
+                    and not (c < len(heads) and heads[c].strip().lower() in CALENDAR_NAMES)]
+        cols = measured or found
+        if not cols:
+            raise InputError(f"{name} has no column of numbers; check the file or name the columns to read.")
+        return [label(c) for c in cols]
+    if "," not in text:
+        return None
+    out: list[str] = []
+    for part in (p.strip() for p in text.split(",")):
+        if not part:
+            raise ParameterError(f"The column list {column!r} has an empty entry; separate names or indices by single commas.",
+                                 parameter="column")
+        one = choose_column(Layout(layout.delimiter, layout.header), sample, part, name)
+        if label(one.column) not in out:
+            out.append(label(one.column))
+    return out
+
+
 def choose_column(layout: Layout, sample: Sequence[str], column: str | int | None, name: str) -> Layout:
     """Fill ``layout.column`` from a name, an index, or the first numeric column."""
     data = _data_lines(sample)
@@ -273,8 +325,11 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
         else:
             lowered = [n.lower() for n in names]
             if column.lower() not in lowered:
+                several = "," in column or column.strip().lower() == "all"
                 raise ParameterError(
-                    f"{name} has no column {column!r}; its columns are {', '.join(repr(n) for n in names[:12])}.",
+                    f"{name} has no column {column!r}; its columns are {', '.join(repr(n) for n in names[:12])}"
+                    + ("; several columns (a,b or all) are read as separate sources by profile, survey and drift, "
+                       "other commands read one." if several else "."),
                     parameter="column",
                 )
             idx = lowered.index(column.lower())
