@@ -21,6 +21,7 @@ logs are no security guarantee.
 from __future__ import annotations
 
 import dataclasses
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable, Iterable, Sequence
@@ -38,9 +39,19 @@ LOG_NOTE = "Surprise scores of event logs are no security guarantee."
 DEFAULT_BINS = 4
 
 
+SERIES_NOTE = ("Code lengths of a measured series are those of its symbols (the bins, thresholds or ordinal patterns "
+               "the model keeps), not of the raw values.")
+_NUMERIC_ALPHABET = re.compile(r"(quantile|threshold|ordinal)\d+")
+
+
 def caution(alphabets: Iterable[Any]) -> str:
-    """The caution that fits the inputs: logs (template alphabets) or sequences."""
-    return LOG_NOTE if any(getattr(a, "name", "") == "templates" for a in alphabets) else RESEARCH_NOTE
+    """The caution that fits the inputs: logs (template alphabets), measured series (numeric symbols) or sequences."""
+    alphabets = list(alphabets)
+    if any(getattr(a, "name", "") == "templates" for a in alphabets):
+        return LOG_NOTE
+    if alphabets and all(_NUMERIC_ALPHABET.fullmatch(str(getattr(a, "name", "") or "")) for a in alphabets):
+        return SERIES_NOTE
+    return RESEARCH_NOTE
 
 
 def _is_templates(alphabet) -> bool:

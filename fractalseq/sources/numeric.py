@@ -8,11 +8,12 @@ line, else runs of whitespace.  The first non-blank, non-comment line is a
 header when one of its fields is neither a number nor a missing mark.  Lines
 starting with ``#`` are skipped, and so are blank lines before the first
 data line.  The default column is the first whose sampled values are mostly
-(at least half) numbers and that is not a time column, when another such
-column exists: a time column is one named ``time``, ``date``, ``datetime``,
-``timestamp``, ``year``, ``t`` or ``index`` (any case), or one whose sampled
-values are whole numbers increasing strictly (years, ``YYYYMMDD`` dates,
-sample numbers).  It is skipped, not used; its name is reported as
+(at least half) numbers and that is neither a time column nor a calendar
+part, when another such column exists: a time column is one named ``time``,
+``date``, ``datetime``, ``timestamp``, ``year``, ``t`` or ``index`` (any case),
+or one whose sampled values are whole numbers increasing strictly (years,
+``YYYYMMDD`` dates, sample numbers); a calendar part is one named ``quarter``,
+``month``, ``week``, ``day``, ``weekday``, ``doy``, ``hour``, ``minute`` or ``second``.  It is skipped, not used; its name is reported as
 ``time_column``.
 
 Time column and gaps
@@ -328,6 +329,7 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
                 several = "," in column or column.strip().lower() == "all"
                 raise ParameterError(
                     f"{name} has no column {column!r}; its columns are {', '.join(repr(n) for n in names[:12])}"
+                    + (f" and {len(names) - 12} more" if len(names) > 12 else "")
                     + ("; several columns (a,b or all) are read as separate sources by profile, survey and drift, "
                        "other commands read one." if several else "."),
                     parameter="column",
@@ -343,7 +345,8 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
             raise InputError(f"{name} has no column of numbers; check the file or name the column to read.")
         heads = layout.header or []
         timed = [c for c in found if _time_like(heads[c] if c < len(heads) else "", rows, c)]
-        rest = [c for c in found if c not in timed]
+        calendar = [c for c in found if c < len(heads) and heads[c].strip().lower() in CALENDAR_NAMES]
+        rest = [c for c in found if c not in timed and c not in calendar]
         idx = rest[0] if rest else found[0]
         if rest and timed and timed[0] < idx:
             layout.time_column = heads[timed[0]] if timed[0] < len(heads) else str(timed[0])
