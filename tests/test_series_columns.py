@@ -73,6 +73,8 @@ def test_column_lists_name_the_measured_columns():
     assert numeric_columns(MACRO, "infl, realgdp") == ["infl", "realgdp"]
     assert numeric_columns(MACRO, "2,2,12") == ["realgdp", "infl"]  # 0-based indices, duplicates once
     assert numeric_columns(MACRO, "realgdp") is None  # one column: one source
+    # without --column: the first measured column (year is the time column, quarter a calendar part)
+    assert open_source(MACRO, bins=4).to_array().report.extra["numeric"]["column"] == "realgdp"
     assert numeric_columns(CO2, "all") == ["co2"]  # the date column is a time column
     with pytest.raises(ParameterError, match="no column 'gdp'"):
         numeric_columns(MACRO, "realgdp,gdp")
@@ -109,6 +111,27 @@ def test_survey_with_all_columns(capsys):
     doc = json.loads(out)
     assert [s["name"] for s in doc["sources"]] == [f"{MACRO.name}:{c}" for c in MEASURED]
     assert len(doc["distances"]["names"]) == len(MEASURED)
+    # every column's profile holds its rates to its own bounds: [0, smallest code length, log2 3 per step]
+    # (a pattern of order 3 has at most 3 successors: common practice, see the README)
+    for s in doc["sources"]:
+        prof, name = s["profile"], s["name"]
+        rates = prof["entropy_rate_bits"]
+        top = min([math.log2(3)] + [r["estimate"] for r in rates.values() if r["kind"] == "upper bound"
+                                    and r["estimate"] is not None and r["estimate"] <= math.log2(3)])
+        for key, r in rates.items():
+            inside = 0.0 <= r["estimate"] <= (math.log2(3) if r["kind"] == "upper bound" else top) + 1e-9
+            assert r["within_bounds"] is inside, (name, key, r["estimate"], top)
+        use = prof["rate_to_use"]
+        assert 0.0 <= use["estimate"] <= top + 1e-12, name
+        g = rates["grassberger"]
+        if g["within_bounds"]:
+            assert use["estimate"] == g["estimate"]
+        elif g["estimate"] < 0:  # population rises every quarter: one pattern, rate 0, a slightly negative estimate
+            assert use["estimate"] == 0.0 and "below 0" in use["reason"], name
+        else:
+            assert use["kind"] == "upper bound" and use["estimate"] == pytest.approx(top, abs=1e-12), name
+    pop = doc["sources"][MEASURED.index("pop")]["profile"]
+    assert pop["permutation_entropy"]["distinct"] == 1 and pop["permutation_entropy"]["bits"] == 0.0
 
 
 def test_missing_values_and_gaps_in_one_column_break_only_that_column(tmp_path):

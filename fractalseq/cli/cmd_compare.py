@@ -180,7 +180,7 @@ def _cell(v) -> str:
     if v is None:
         return "–"
     if isinstance(v, float):
-        return f"{v:.4g}"
+        return f"{0.0 if abs(v) < 1e-12 else v:.4g}"  # rounding noise (-6e-17) is 0
     return str(v)
 
 

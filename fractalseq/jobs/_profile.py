@@ -569,7 +569,8 @@ def profile_source(
     clock.step("")
 
     choice = choose_rate(rates, arr.alphabet.size, order, RATE_NAMES)  # every rate held to the bounds it has
-    if choice.estimator != "grassberger":
+    g = rates.get("grassberger")
+    if choice.estimator != "grassberger" or (g is not None and g[1] is not None and choice.estimate != g[1].estimate):
         notes.append(f"entropy rate: {choice.reason}")
     notes.extend(f"entropy rate ({name}): {rates[name][1].estimate:.4f} bits/symbol lies outside [0, {choice.upper_bound:.4f}], "
                  f"the smallest upper bound ({_bound_name(choice.upper_bound_by, arr.alphabet.size, order)})"
