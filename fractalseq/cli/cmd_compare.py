@@ -83,8 +83,9 @@ def survey(
     own sources and options: entries of earlier runs over other files or with other
     options are removed (a folder given with --cache is never pruned). --json prints
     the JSON contract (sources, distances) on standard output. Numeric inputs take the
-    reader options of fractalseq profile (--column, --bins, --thresholds, --ordinal),
-    applied to every source; by default each source is cut at its own quantiles
+    reader options of fractalseq profile (--column, --bins, --thresholds, --ordinal,
+    --delay, --ties), applied to every source; --column a,b or all makes each column of
+    each table its own source (FILE:COLUMN). By default each source is cut at its own quantiles
     (equally likely symbols: sources compared by their dynamics), with --common-cuts
     all at the pooled quantiles (a source at a higher level then gets other symbols).
     Genomic output is for research, not for clinical decisions.
@@ -226,7 +227,8 @@ def drift(
     compared over the union of both batches' templates. Numeric inputs binned by
     quantiles are cut at the baseline's quantiles for both batches (so a shift in
     level changes the symbols); --thresholds fixes the cut points, --ordinal
-    compares ordinal patterns, which ignore level and scale.
+    compares ordinal patterns, which ignore level and scale. --column a,b (or all)
+    tests each column on its own, with Holm's adjustment across the columns.
 
     Exit status: 0 no change detected, 1 changed (smallest adjusted p < --alpha),
     2 usage or input error. Log inputs also get the event novelty test (templates new
