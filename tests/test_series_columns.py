@@ -194,6 +194,19 @@ def test_reader_delay_and_ties_match_the_array_kernel(m, tau, ties, chunk):
         assert [arr.alphabet.symbols[c] for c in arr.codes] == names
 
 
+@pytest.mark.parametrize("m,tau", [(2, 1), (3, 1), (3, 4), (5, 2)])
+def test_pattern_ends_are_the_rows_of_the_windows(m, tau):
+    # the value each pattern ends at, on real CO2 with missing weeks, against a loop over the windows
+    from fractalseq.sources.numeric import pattern_ends
+
+    x = column(CO2, "co2")
+    ends = np.flatnonzero(pattern_ends(np.isfinite(x), m, tau))
+    want = [t for t in range((m - 1) * tau, len(x)) if all(not math.isnan(x[t - j * tau]) for j in range(m))]
+    assert ends.tolist() == want
+    arr = open_source(CO2, fmt="numeric", column="co2", ordinal=m, delay=tau).to_array()
+    assert len(arr) == len(want)
+
+
 def test_dither_breaks_ties_by_the_seed():
     # weekly CO2 is recorded to 0.1 ppm: hundreds of windows of 4 weeks hold equal values (ties), which the dither
     # orders by a seeded key instead of by time

@@ -607,6 +607,27 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
         raise InputError(f"{origin.name} has no numbers in column {layout.column_name!r}; check the file or the column.")
 
 
+def pattern_ends(valid: np.ndarray, order: int, delay: int = 1) -> np.ndarray:
+    """Which values end an ordinal pattern the reader emits: one boolean per value, in file order.
+
+    ``valid`` marks the values that are present (NaN, a missing value or an inserted time gap, is
+    ``False``), for the whole column as :func:`value_blocks` yields it.  The value at ``t`` ends a
+    pattern when ``t, t - delay, ..., t - (order - 1) delay`` are all present, so
+    ``np.flatnonzero(pattern_ends(...))[i]`` is the value (row) where symbol ``i`` ends: what a
+    report needs to give a symbol's position in the file or in the time column.
+    """
+    v = np.asarray(valid, dtype=bool)
+    span = (int(order) - 1) * int(delay)
+    out = v.copy()
+    for j in range(1, int(order)):
+        lag = j * int(delay)
+        out[lag:] &= v[:-lag] if lag < v.size else False
+        out[:min(lag, v.size)] = False
+    if span >= v.size:
+        out[:] = False
+    return out
+
+
 class _Keys:
     """Tie keys of the values in file order: their position (ties by time) or a seeded uniform number (dither)."""
 
