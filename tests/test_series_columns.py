@@ -197,7 +197,7 @@ def test_reader_delay_and_ties_match_the_array_kernel(m, tau, ties, chunk):
 @pytest.mark.parametrize("m,tau", [(2, 1), (3, 1), (3, 4), (5, 2)])
 def test_pattern_ends_are_the_rows_of_the_windows(m, tau):
     # the value each pattern ends at, on real CO2 with missing weeks, against a loop over the windows
-    from fractalseq.sources.numeric import pattern_ends
+    from fractalseq.sources.ordinal_stream import pattern_ends
 
     x = column(CO2, "co2")
     ends = np.flatnonzero(pattern_ends(np.isfinite(x), m, tau))

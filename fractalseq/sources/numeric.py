@@ -68,7 +68,8 @@ For both, the symbol of ``x`` is the number of edges ``<= x``
 ``ties`` (``time``, default, or ``dither``)
     ``time``: equal values are ordered by time (the rule above).  ``dither``:
     by an independent uniform key per value (missing values and time gaps
-    included), drawn in file order from ``numpy.random.default_rng(seed)``,
+    included), drawn in file order from ``numpy.random.default_rng(seed)``
+    (:mod:`fractalseq.sources.ordinal_stream`),
     as if an infinitesimal random dither were added.  With delay and ties the
     codes equal those of :func:`fractalseq.entropy._ordinal.ordinal_patterns`
     on the column's values (NaN for missing values and gaps) with the same seed.
@@ -87,6 +88,7 @@ import numpy as np
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.sources import kernels as K
+from fractalseq.sources import ordinal_stream as OS
 from fractalseq.sources.rawio import Origin, line_blocks
 from fractalseq.stream import Chunk, ReadReport, Record
 
@@ -521,7 +523,7 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
         carry = np.zeros(0)
         in_seg = 0
         general = p.delay != 1 or p.ties != "time"
-        key = _Keys(p.ties, p.seed)
+        key = OS.Keys(p.ties, p.seed)
         for v in value_blocks(origin, layout, block_size, clock):
             if v.size == 0:
                 continue
@@ -530,7 +532,7 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
             codes = np.empty(x.size, dtype=dtype)
             starts = np.empty(x.size + 1, dtype=np.int64)
             if general:
-                nc, ns, in_seg, nan, carry = _general_ordinal(x, v.size, carry.size, key, m, p, in_seg, codes, starts, fact)
+                nc, ns, in_seg, nan, carry = OS.general_ordinal(x, v.size, carry.size, key, m, p.delay, in_seg, codes, starts, fact)
             else:
                 nc, ns, in_seg, nan = K.ordinal_codes(x, m, carry.size, in_seg, codes, starts, fact)
                 tail = x[-(m - 1):] if m > 1 else x[:0]
@@ -605,55 +607,3 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
                 f"{layout.column_name!r}; use a smaller ordinal order or delay, or fill the gaps."
             )
         raise InputError(f"{origin.name} has no numbers in column {layout.column_name!r}; check the file or the column.")
-
-
-def pattern_ends(valid: np.ndarray, order: int, delay: int = 1) -> np.ndarray:
-    """Which values end an ordinal pattern the reader emits: one boolean per value, in file order.
-
-    ``valid`` marks the values that are present (NaN, a missing value or an inserted time gap, is
-    ``False``), for the whole column as :func:`value_blocks` yields it.  The value at ``t`` ends a
-    pattern when ``t, t - delay, ..., t - (order - 1) delay`` are all present, so
-    ``np.flatnonzero(pattern_ends(...))[i]`` is the value (row) where symbol ``i`` ends: what a
-    report needs to give a symbol's position in the file or in the time column.
-    """
-    v = np.asarray(valid, dtype=bool)
-    span = (int(order) - 1) * int(delay)
-    out = v.copy()
-    for j in range(1, int(order)):
-        lag = j * int(delay)
-        out[lag:] &= v[:-lag] if lag < v.size else False
-        out[:min(lag, v.size)] = False
-    if span >= v.size:
-        out[:] = False
-    return out
-
-
-class _Keys:
-    """Tie keys of the values in file order: their position (ties by time) or a seeded uniform number (dither)."""
-
-    def __init__(self, ties: str, seed: int) -> None:
-        self.rng = np.random.default_rng(seed) if ties == "dither" else None
-        self.seen = 0
-        self.carry = np.zeros(0)
-
-    def next(self, n: int) -> np.ndarray:
-        """Keys of the next ``n`` values (the same numbers whatever the block sizes)."""
-        if self.rng is not None:
-            out = self.rng.random(n)
-        else:
-            out = np.arange(self.seen, self.seen + n, dtype=np.float64)
-        self.seen += n
-        return out
-
-
-def _general_ordinal(
-    x: np.ndarray, fresh: int, skip: int, key: _Keys, m: int, p: Plan, in_seg: int,
-    codes: np.ndarray, starts: np.ndarray, fact: np.ndarray,
-) -> tuple[int, int, int, int, np.ndarray]:
-    """One block of :func:`fractalseq.sources.kernels.ordinal_codes_delay`; carries the last ``(m-1) delay`` values and keys."""
-    k = key.next(fresh)
-    keys = np.concatenate([key.carry, k]) if key.carry.size else k
-    nc, ns, in_seg, nan = K.ordinal_codes_delay(x, keys, m, p.delay, skip, in_seg, codes, starts, fact)
-    span = (m - 1) * p.delay
-    key.carry = keys[-span:].copy() if span else keys[:0]
-    return nc, ns, in_seg, nan, (x[-span:].copy() if span else x[:0])
