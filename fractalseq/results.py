@@ -17,6 +17,7 @@ limit).  ``NaN`` stays ``NaN`` in the dictionary; the JSON writer
 from __future__ import annotations
 
 import dataclasses
+import re
 from dataclasses import dataclass, field
 from typing import Any, ClassVar, Mapping
 
@@ -87,7 +88,7 @@ class Estimate(Result):
     notes: tuple[str, ...] = field(default=())
 
 
-__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "CAUTION_LOGS", "Estimate", "Result", "caution_for", "is_log_alphabet", "to_plain"]
+__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "CAUTION_LOGS", "CAUTION_SERIES", "Estimate", "Result", "caution_for", "is_log_alphabet", "to_plain"]
 
 
 # ------------------------------------------------------------------ cautions
@@ -97,6 +98,12 @@ GENOMIC_ALPHABETS = frozenset({"dna", "rna", "protein"})
 LOG_ALPHABET = "templates"
 CAUTION_GENOMIC = "Genomic output is for research, not for clinical decisions."
 CAUTION_LOGS = "Reports on event logs (scans, surprise scores, drift, predicted events) are no security guarantee."
+CAUTION_SERIES = (
+    "Estimates of a measured series describe its symbols (the bins, thresholds or ordinal patterns read), "
+    "not the raw values."
+)
+#: Alphabet names of symbolized numeric series (see :mod:`fractalseq.sources.numeric`).
+_SERIES_ALPHABET = re.compile(r"(quantile|threshold|ordinal)\d+")
 CAUTION_GENERAL = (
     "Genomic output is for research, not for clinical decisions; reports on event logs are no security guarantee."
 )
@@ -112,9 +119,12 @@ def caution_for(alphabet_names: Any) -> str:
     """The caution that fits the inputs, from their alphabet names (or alphabets).
 
     Logs only (template alphabets): :data:`CAUTION_LOGS`; sequences only (DNA, RNA,
-    protein): :data:`CAUTION_GENOMIC`; anything else or a mix: :data:`CAUTION_GENERAL`.
+    protein): :data:`CAUTION_GENOMIC`; symbolized numeric series only: :data:`CAUTION_SERIES`;
+    anything else or a mix: :data:`CAUTION_GENERAL`.
     """
     names = {str(getattr(a, "name", a)).removeprefix("joint-") for a in alphabet_names}
+    if names and all(_SERIES_ALPHABET.fullmatch(n) for n in names):
+        return CAUTION_SERIES
     logs = any(is_log_alphabet(n) for n in names)
     genomic = bool(names & GENOMIC_ALPHABETS)
     if logs and not genomic:

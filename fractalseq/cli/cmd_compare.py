@@ -41,10 +41,12 @@ def survey(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
-    column: Optional[str] = common.COLUMN,
+    column: Optional[str] = common.COLUMNS,
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     common_cuts: bool = typer.Option(
         False, "--common-cuts", help="numeric input: cut every source at the quantiles of all sources pooled (levels compared), not each at its own (only dynamics compared)."
     ),
@@ -81,8 +83,9 @@ def survey(
     own sources and options: entries of earlier runs over other files or with other
     options are removed (a folder given with --cache is never pruned). --json prints
     the JSON contract (sources, distances) on standard output. Numeric inputs take the
-    reader options of fractalseq profile (--column, --bins, --thresholds, --ordinal),
-    applied to every source; by default each source is cut at its own quantiles
+    reader options of fractalseq profile (--column, --bins, --thresholds, --ordinal,
+    --delay, --ties), applied to every source; --column a,b or all makes each column of
+    each table its own source (FILE:COLUMN). By default each source is cut at its own quantiles
     (equally likely symbols: sources compared by their dynamics), with --common-cuts
     all at the pooled quantiles (a source at a higher level then gets other symbols).
     Genomic output is for research, not for clinical decisions.
@@ -93,14 +96,14 @@ def survey(
     from fractalseq.io._outputs import StagedFolder
     from fractalseq.jobs._files import survey_cache, survey_files
     from fractalseq.jobs._sources import expand_inputs
-    from fractalseq.jobs._survey import SurveyOptions, write_outputs
+    from fractalseq.jobs._survey import SurveyOptions, column_specs, write_outputs
 
     options = SurveyOptions.from_reader(
-        reader(fmt, alphabet, policy, column, bins, thresholds, ordinal),
+        reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed),
         depth=depth, ratio=ratio, distance_depth=distance_depth, seed=seed, linkage=linkage,
     )
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
-    specs = expand_inputs(list(paths or []), from_list, stdin_lines)
+    specs = column_specs(expand_inputs(list(paths or []), from_list, stdin_lines), options.reader_options)
     # the report is built aside and renamed into place at the end; the cache stays in OUT/.cache meanwhile
     # (an interrupted run leaves only it) and is carried into the new folder by the commit
     stage = StagedFolder(out, force) if out is not None else None
@@ -151,7 +154,7 @@ def survey(
     rate_cols = [i for i, h in enumerate(header) if h == "h_grassberger"] or [
         i for i, h in enumerate(header) if h.startswith("h_") and not h.endswith(("_low", "_high")) and h != "h_top"
     ][:1]
-    idx[4:4] = rate_cols
+    idx[5:5] = rate_cols  # after D2
     table = Table(title=f"Survey of {len(result.names)} sources (D_q in units of log 1/k, k = {ratio:g}; entropies in bits)")
     for i in idx:
         table.add_column(header[i], justify="left" if header[i] == "name" else "right")
@@ -190,7 +193,7 @@ def _cell(v) -> str:
     if v is None:
         return "–"
     if isinstance(v, float):
-        return f"{v:.4g}"
+        return f"{0.0 if abs(v) < 1e-12 else v:.4g}"  # rounding noise (-6e-17) is 0
     return str(v)
 
 
@@ -206,10 +209,12 @@ def drift(
     permutations: int = typer.Option(999, "--permutations", "-R", min=19, help="Block permutations; the smallest possible p-value is 1/(R+1)."),
     alpha: float = typer.Option(0.05, "--alpha", help="Level of the verdict (exit status 1 when the smallest adjusted p-value is below it)."),
     adjust: str = typer.Option("holm", "--adjust", help="Adjustment across the figures tested: holm or bh (Benjamini-Hochberg)."),
-    column: Optional[str] = common.COLUMN,
+    column: Optional[str] = common.COLUMNS,
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     figures: str = typer.Option("words,transitions,entropy_rate,D2", "--figures", help="Comma-separated figures to test: words, transitions, entropy_rate, D2."),
     top: int = typer.Option(10, "--top", min=0, help="How many contributing words and contexts to list."),
     ratio: float = common.RATIO,
@@ -234,7 +239,8 @@ def drift(
     compared over the union of both batches' templates. Numeric inputs binned by
     quantiles are cut at the baseline's quantiles for both batches (so a shift in
     level changes the symbols); --thresholds fixes the cut points, --ordinal
-    compares ordinal patterns, which ignore level and scale.
+    compares ordinal patterns, which ignore level and scale. --column a,b (or all)
+    tests each column on its own, with Holm's adjustment across the columns.
 
     Exit status: 0 no change detected, 1 changed (smallest adjusted p < --alpha),
     2 usage or input error. Log inputs also get the event novelty test (templates new
@@ -246,20 +252,31 @@ def drift(
     """
     from fractalseq.cli.inputs import reader
     from fractalseq.compare._drift import DriftOptions
+    from fractalseq.jobs._drift_columns import batch_columns, drift_columns
     from fractalseq.jobs._files import drift_files
 
     figs = tuple(f.strip() for f in figures.split(",") if f.strip())
     options = DriftOptions(depth, block, permutations, alpha, adjust, seed, ratio, figs, top)
     options.check()
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
     if out is not None:
         from fractalseq.io._outputs import StagedFolder
 
         stage = StagedFolder(out, force)  # built aside, renamed into place at the end
     stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
+    columns = batch_columns(baseline, read, stdin_lines)  # --column a,b / all: one test per column
     with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
-        report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+        if columns is not None:
+            several = drift_columns(baseline, new, columns, options, read, engine=eng, stdin_lines=stdin_lines,
+                                    on_done=lambda i, r: bar.advance(task))
+        else:
+            report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+    if columns is not None:
+        _drift_by_column(several, stage.path if out is not None else None, json_out)
+        if out is not None:
+            stage.commit()
+        raise typer.Exit(EXIT_FOUND if several.changed else 0)
     result = report.drift
     if out is not None:
         from fractalseq.report.drift import write_outputs
@@ -280,6 +297,26 @@ def drift(
             _print_novelty(report.novelty)
         common.caution_line(result.caution)
     raise typer.Exit(EXIT_FOUND if report.changed else 0)
+
+
+def _drift_by_column(several, folder: Optional[Path], json_out: bool) -> None:
+    """Print (and write) the drift of several columns: the verdict across columns, then each column's report."""
+    from fractalseq.report.drift import drift_text, write_outputs
+
+    if folder is not None:
+        from fractalseq.cli.inputs import safe_stem
+        from fractalseq.io._outputs import write_text
+
+        for col, rep in zip(several.columns, several.reports):
+            write_outputs(rep.drift, folder / safe_stem(col), force=True)
+        write_text(folder / "drift.json", several.to_json(), force=True)
+    if json_out:
+        typer.echo(several.to_json(), nl=False)
+        return
+    typer.echo(several.verdict)
+    for col, p, rep in zip(several.columns, several.p_across, several.reports):
+        typer.echo(f"\n=== column {_safe(col)} (smallest adjusted p {rep.drift.p_value:.3g}; across columns {p:.3g})")
+        typer.echo(drift_text(rep.drift), nl=False)
 
 
 def _safe(text: object) -> str:
@@ -338,6 +375,8 @@ def scan(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     ratio: float = common.RATIO,
     out: Optional[Path] = common.OUT,
     json_out: bool = common.JSON,
@@ -367,7 +406,7 @@ def scan(
     from fractalseq.cli.inputs import reader
     from fractalseq.jobs._files import parse_penalty, scan_file
 
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
     pen = parse_penalty(penalty)
     if out is not None:
         from fractalseq.io._outputs import StagedFolder

@@ -103,6 +103,8 @@ def learn(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     depths: Optional[str] = DEPTHS,
     depth: Optional[int] = DEPTH,
     old_max_depth: Optional[int] = OLD_MAX_DEPTH,
@@ -138,7 +140,7 @@ def learn(
         task = bar.add_task("counting", total=len(paths))
         report = learn_files(
             list(paths), out=out, force=force, fmt=fmt, alphabet=alphabet, policy=policy,
-            reader=reader_options(column, bins, thresholds, ordinal), params=params, on_input=lambda _: bar.advance(task),
+            reader=reader_options(column, bins, thresholds, ordinal, delay, ties), params=params, on_input=lambda _: bar.advance(task),
         )
     model = report.predictor
     rows = [r.to_dict() for r in report.stored_depths]
@@ -204,6 +206,8 @@ def score(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
 ) -> None:
@@ -233,7 +237,7 @@ def score(
         task = bar.add_task("scoring", total=len(paths))
         report = score_files(
             list(paths), model, online=online, fmt=fmt, alphabet=alphabet, policy=policy,
-            reader=reader_options(column, bins, thresholds, ordinal), window=window, top=top, params=params,
+            reader=reader_options(column, bins, thresholds, ordinal, delay, ties), window=window, top=top, params=params,
             on_source=lambda _: bar.advance(task),
         )
     if json_out:

@@ -23,6 +23,8 @@ def count(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     save: Optional[Path] = typer.Option(None, "--save", help="Write the merged counts to this .npz file (loads without pickle)."),
     top: int = typer.Option(0, "--top", help="Also list the TOP most frequent words at the deepest depth (0 = none)."),
     json_out: bool = common.JSON,
@@ -41,7 +43,7 @@ def count(
 
     if save is not None:
         check_writable(save, force)
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties)
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
         summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task))

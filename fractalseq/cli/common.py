@@ -54,7 +54,20 @@ SEED = seed_option()
 FORCE = typer.Option(False, "--force", help="Overwrite existing output files.")
 BINS = typer.Option(4, "--bins", help="numeric input: number of quantile bins (symbols).")
 ORDINAL = typer.Option(0, "--ordinal", help="numeric input: ordinal-pattern order m (0 = use bins).")
+DELAY = typer.Option(
+    1, "--delay", help="numeric input with --ordinal: embedding delay tau, samples between the m values of a pattern."
+)
+TIES = typer.Option(
+    "time", "--ties",
+    help="numeric input with --ordinal: order equal values by time (the earlier counts as smaller) "
+         "or by dither (a random key per value from --seed, 0 where the command has none).",
+)
 COLUMN = typer.Option(None, "--column", help="numeric input: CSV column name or 0-based index.")
+COLUMNS = typer.Option(
+    None, "--column",
+    help="numeric input: CSV column name or 0-based index; several (a,b) or all (every numeric column but time "
+         "columns and calendar parts) give one source per column.",
+)
 THRESHOLDS = typer.Option(
     None, "--thresholds", help="numeric input: fixed bin edges, increasing and comma-separated (e.g. 0.2,0.5,0.8), instead of quantile --bins."
 )
@@ -72,6 +85,8 @@ OPTION_OF: dict[str, str] = {
     "n_boot": "--boot",
     "bins": "--bins",
     "ordinal": "--ordinal",
+    "delay": "--delay",
+    "ties": "--ties",
     "column": "--column",
     "thresholds": "--thresholds",
     "qs": "--q",

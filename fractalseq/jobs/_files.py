@@ -348,13 +348,17 @@ def survey_files(
     SurveyResult
         The result ``fractalseq survey ... --json`` prints.
     """
-    from fractalseq.jobs._survey import SurveyOptions, run_survey
+    from fractalseq.jobs._survey import SurveyOptions, column_specs, run_survey
 
     options = options or SurveyOptions()
     if inputs and all(isinstance(i, SourceSpec) for i in inputs) and from_list is None:
         specs = list(inputs)
     else:
         specs = expand_inputs([str(i) for i in inputs], from_list, stdin_lines)
+    specs = column_specs(specs, options.reader_options)  # --column a,b / all: one source per column
+    if common_cuts and any(s.column is not None for s in specs):
+        raise ParameterError("Common cuts pool the values of one column across files; with several columns, survey "
+                             "one column at a time or leave out common cuts.", parameter="common_cuts")
     if common_cuts:
         reader = options.reader_options
         if reader.thresholds is not None or reader.ordinal:

@@ -51,7 +51,7 @@ def drift_text(result: DriftResult) -> str:
 
 
 def _num_text(v) -> str:
-    return "–" if v is None else f"{v:.4g}"
+    return "–" if v is None else f"{v + 0.0:.4g}"  # + 0.0: never "-0"
 
 
 def drift_html(result: DriftResult):
