@@ -16,6 +16,10 @@ DNA_DEPTHS = (3, 6, 10, 14, 20)
 LADDER_FRACTIONS = (0.15, 0.3, 0.45, 0.6, 0.8, 1.0)
 #: Default budget of table memory (bytes) when ``max_cells`` is not given.
 DEFAULT_TABLE_BYTES = 1 << 28
+#: Online mode: alphabets larger than this use top-k cells (:mod:`fractalseq.predict._online_sparse`).
+DENSE_MAX_SYMBOLS = 256
+#: Online top-k cells: log2 of the rows a depth's region starts with (doubled as it fills).
+SPARSE_START_BITS = 10
 #: Default cap on the rows of the online tables.
 DEFAULT_ONLINE_CELLS = 1 << 24
 #: Default cap on the cells a fitted model keeps.
