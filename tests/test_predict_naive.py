@@ -15,6 +15,7 @@ both strands for DNA), the blended probabilities and the held-out code length to
 from __future__ import annotations
 
 import math
+import weakref
 
 import numpy as np
 from hypothesis import HealthCheck, given, settings
@@ -393,6 +394,22 @@ def naive_cells(codes, starts, alphabet, depth: int, reverse: bool) -> dict[int,
     return out
 
 
+_CELLS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()  # model -> {depth: cells}
+
+
+def naive_cell_dicts(model: CellPredictor, n: int) -> dict[int, dict[int, int]]:
+    """Cell address -> {symbol: count} of depth ``n``, read word by word from the model's table."""
+    per = _CELLS.setdefault(model, {})
+    if n not in per:
+        b = model.alphabet_.bits
+        t = model.counts_[n]
+        cells: dict[int, dict[int, int]] = {}
+        for w, c in zip(t.words(b).tolist(), t.counts.tolist()):
+            cells.setdefault(w >> b, {})[w & ((1 << b) - 1)] = c
+        per[n] = cells
+    return per[n]
+
+
 def naive_blend(model: CellPredictor, context: list[int]) -> list[float]:
     """p_n(s) = (max(c_s - d_n, 0) + (beta_n + d_n u) p_{n-1}(s)) / (N + beta_n), from uniform, coarse to fine."""
     A, b = model.alphabet_.size, model.alphabet_.bits
@@ -400,13 +417,13 @@ def naive_blend(model: CellPredictor, context: list[int]) -> list[float]:
     for n in model.depths_:
         if len(context) < n:
             break
-        table = dict(zip(model.cells_[n].tolist(), model.counts_[n].tolist()))
-        c = table.get(pack(context[len(context) - n :], b))
+        c = naive_cell_dicts(model, n).get(pack(context[len(context) - n :], b))
         if c is None:
             continue
         beta, d = model.concentration_[n], model.discount_[n]
-        u = sum(1 for v in c if v > 0)
-        p = [(max(c[s] - d, 0.0) + (beta + d * u) * p[s]) / (sum(c) + beta) for s in range(A)]
+        u = len(c)
+        tot = sum(c.values())
+        p = [(max(c.get(s, 0) - d, 0.0) + (beta + d * u) * p[s]) / (tot + beta) for s in range(A)]
     return p
 
 
@@ -429,7 +446,7 @@ def test_fitted_counts_and_blend_match_the_naive_twins(case):
     model = CellPredictor(depths=depths).fit(from_codes(alphabet, codes, starts))
     reverse = model.reverse_complement_
     for n in model.depths_:
-        got = dict(zip(model.cells_[n].tolist(), model.counts_[n].tolist()))
+        got = dict(zip(model.cells_[n].tolist(), model.counts_[n].dense(alphabet.size).tolist()))
         assert got == naive_cells(codes, starts, alphabet, n, reverse)
     contexts = [test[:t].tolist() for t in range(len(test))]
     p = model.predict_proba(contexts)
@@ -486,3 +503,34 @@ def test_large_alphabet_tables_do_not_scale_with_the_alphabet():
     assert large.rows[1].shape[0] < 8 * len(codes)  # rows follow the cells met (the regions double as they fill)
     assert large.table_bytes - small.table_bytes == 16 * (30_000 - 3000)
     assert (large.c0.shape, large.mark.shape) == ((30_000,), (30_000,))
+
+
+def test_large_alphabet_fitted_model_is_sparse_and_scores_like_its_full_distribution():
+    # A = 3,000: the fitted tables hold one entry per distinct (n+1)-word (never a row of A counts); the
+    # held-out code length is the sum of -log2 p(x) of the twin's blend, and the top-1/top-3 hits and the
+    # Brier score of the candidate-based kernel equal those read off the full distributions (predict_proba)
+    A = 3000
+    codes = _template_like_stream(A, 20_000, seed=8)
+    alphabet = al.from_symbols([f"e{i}" for i in range(A)])
+    model = CellPredictor(depths=(1, 2, 3)).fit(from_codes(alphabet, codes[:18_000]))
+    for n in model.depths_:
+        t = model.counts_[n]
+        assert t.counts.ndim == t.syms.ndim == 1 and t.counts.size <= 18_000
+        assert int(t.totals().sum()) == 18_000 - n
+    test = codes[18_000:]
+    contexts = [test[max(0, t - 3) : t].tolist() for t in range(len(test))]
+    # the scored stream is one segment: contexts are its own history (at most 3 symbols matter)
+    p = model.predict_proba(contexts)
+    assert np.allclose(p.sum(axis=1), 1.0, rtol=0, atol=1e-12)
+    rows = np.arange(len(test))
+    px = p[rows, test.astype(np.int64)]
+    twin = [naive_blend(model, contexts[t])[int(test[t])] for t in range(0, len(test), 97)]
+    assert np.allclose(twin, px[::97], rtol=1e-9, atol=0)
+    res = model.evaluate(from_codes(alphabet, test), baselines=False)
+    assert math.isclose(res.total_bits, float(-np.log2(px).sum()), rel_tol=1e-9)
+    rank = (p > px[:, None]).sum(axis=1) + np.array([(p[t, : test[t]] == px[t]).sum() for t in rows])
+    assert res.top1_accuracy * len(test) == int((rank == 0).sum())
+    assert res.top3_accuracy * len(test) == int((rank < 3).sum())
+    onehot = np.zeros_like(p)
+    onehot[rows, test.astype(np.int64)] = 1.0
+    assert math.isclose(res.brier, float(((p - onehot) ** 2).sum(axis=1).mean()), rel_tol=1e-9)

@@ -31,7 +31,7 @@ ALPHA_DIV = (1.0, 4.0, 16.0)
 CLASS_BITS = (20.0, 26.0)
 #: Baseline orders 0..K with b (K + 1) <= this many bits.
 BASELINE_BITS = 22
-#: Fitted blend: concentrations A alpha 2**k (k = 0..17) and discounts tried by leave-one-out likelihood.
+#: Fitted blend: concentrations A alpha 2**k (k = 0..17, and down to about 1/2 when A alpha > 64) and discounts tried by leave-one-out likelihood.
 BETA_STEPS = 18
 DISCOUNTS = (0.0, 0.25, 0.5, 0.75)
 #: Cells per depth used to choose the blend parameters (a regular subsample beyond).
