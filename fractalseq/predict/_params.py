@@ -126,8 +126,8 @@ def as_source(source) -> Source:
 
 
 def known_length(source: Source) -> int | None:
-    """Symbols of an in-memory source (``None`` for a stream read lazily)."""
-    return len(source) if isinstance(source, SymbolArray) else None
+    """Symbols of an in-memory source, or an upper bound a lazy stream knows (an event log's lines), else ``None``."""
+    return len(source) if isinstance(source, SymbolArray) else getattr(source, "length_hint", None)
 
 
 def source_chunks(source: Source) -> Iterator[Chunk]:

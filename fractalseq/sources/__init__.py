@@ -253,7 +253,8 @@ def open_source(
             begin(report)
             yield from logs.chunks(origin, table, chunk_size, report, policy)
 
-        return SymbolStream(table.alphabet, log_factory, stream_name)
+        # one symbol per line at most: the first pass's line count bounds the stream (tables are sized by it)
+        return SymbolStream(table.alphabet, log_factory, stream_name, length_hint=table.lines)
 
     if fmt == "numeric":
         numeric.check_parameters(bins, thresholds, ordinal)
