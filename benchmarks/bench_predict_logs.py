@@ -67,7 +67,7 @@ def predictor_alone(path: Path) -> dict:
         t = time.perf_counter()
         res = online_code_length(arr)
         best = min(best, time.perf_counter() - t)
-    coder = OnlineCoder(arr.alphabet, length_hint=None)
+    coder = OnlineCoder(arr.alphabet, length_hint=len(arr))  # as a command sizes it (the log's line count)
     coder.feed(arr.codes, arr.starts)
     return {"templates": arr.alphabet.size, "symbols": len(arr), "symbols_per_s": len(arr) / best,
             "bits_per_symbol": res.bits_per_symbol, "top1": res.top1_accuracy, "table_mib": coder.table_bytes / 2**20,

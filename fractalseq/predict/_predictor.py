@@ -15,7 +15,10 @@ Two modes
     ``(c_s + alpha) / (N + A alpha)`` are mixed geometrically with weights
     learned online (see :mod:`fractalseq.predict._online_kernel`).  For DNA the deep
     cells are also updated with the reverse complement of each word, so a
-    repeat read on the other strand is recognised.  The total code length is
+    repeat read on the other strand is recognised.  Alphabets of more than 256
+    symbols (event-log templates) use cells that keep their 8 most frequent
+    next symbols, blended from coarse to fine over an order-0 estimate (see
+    :mod:`fractalseq.predict._online_sparse`).  The total code length is
     an upper bound on the information content of the stream (it is the length
     an arithmetic coder driven by these probabilities would need, within 2 bits).
 *fitted* (:meth:`CellPredictor.fit`, :meth:`~CellPredictor.bits_per_symbol`, :meth:`~CellPredictor.predict_proba`)
@@ -119,10 +122,13 @@ class CellPredictor:
         ``"auto"`` (chosen per depth among 0, 0.25, 0.5, 0.75) or a number in [0, 1).
     max_cells:
         Memory cap.  Online: rows of the count tables (default 2**24, less for large
-        alphabets so the tables stay under 256 MiB); fitted: cells kept after counting
+        alphabets so the tables stay under 256 MiB; tables are sized by the input's length
+        when it is known, and above 256 symbols they start small and double up to the cap);
+        fitted: cells kept after counting
         (default 2**23), the rarest cells of the deepest depths are pruned first.
     learning_rate:
-        Online mode: step of the mixing-weight update.
+        Online mode: step of the mixing-weight update (alphabets of at most 256 symbols; larger ones
+        blend with fixed parameters and ignore it).
     reverse_complement:
         ``"auto"`` (on for DNA/RNA), ``True`` or ``False``: also count each word read on the other strand
         (online: for cells of depth 5 and more, :data:`IR_MIN_DEPTH`; fitted: every depth).
