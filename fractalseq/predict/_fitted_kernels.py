@@ -17,6 +17,8 @@ from numba import njit
 from fractalseq.errors import ParameterError
 from fractalseq.predict._kernel_tools import (
     CALIB_BINS,
+    _borrow,
+    _score_symbol,
     ST_BRIER,
     ST_COUNT,
     ST_NATS,
@@ -25,6 +27,9 @@ from fractalseq.predict._kernel_tools import (
     ST_TOP3,
     _cell_hash,
 )
+
+#: Alphabets up to this size are scored from the full distribution (A work per cell, fastest for small A).
+FULL_SCORE_SYMBOLS = 64
 
 
 # ------------------------------------------------------------ fitted model
@@ -54,7 +59,7 @@ def _find_row(index, addr, lo, hi, dn, a):
         h = (h + 1) & mask
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _cells_of(H, L, depths, masks, dstart, addr, index, rows, dix):
     """Rows of the stored cells of one history, coarse to fine; returns how many were found."""
     nf = 0
@@ -107,7 +112,8 @@ def _fitted_score(codes, starts, A, b, depths, masks, dstart, addr, ptr, syms, c
                   top0, sq0, mark, hist, seg, stats, calib, sur):
     """Code length (nats) of a chunk under the fitted, static model; same bookkeeping as the online kernels.
 
-    Only the symbol that occurred is blended; the ranks, the top symbol and the Brier score come from the
+    Up to :data:`FULL_SCORE_SYMBOLS` symbols the whole distribution is blended.  Beyond, only the symbol
+    that occurred is blended; the ranks, the top symbol and the Brier score come from the
     candidates (symbols stored in the history's cells deeper than 0, and ``top0``, the most frequent symbols
     of the depth-0 cell), as in :mod:`fractalseq.predict._online_sparse`: any other symbol ``s`` gets
     ``E p_0(s)``, below every ``top0`` symbol, and ``sq0`` is the sum of ``p_0(s)**2`` over all symbols.
@@ -128,6 +134,9 @@ def _fitted_score(codes, starts, A, b, depths, masks, dstart, addr, ptr, syms, c
     top3 = 0.0
     brier = 0.0
     g0 = np.int64(stats[ST_COUNT])
+    full = A <= FULL_SCORE_SYMBOLS
+    p = np.zeros(A if full else 0, np.float64)
+    cnt = np.zeros(A if full else 0, np.float64)
     for t in range(n):
         if sp < starts.shape[0] and starts[sp] == t:
             H = np.uint64(0)
@@ -135,6 +144,33 @@ def _fitted_score(codes, starts, A, b, depths, masks, dstart, addr, ptr, syms, c
             sp += 1
         x = np.int64(codes[t])
         nf = _cells_of(H, L, depths, masks, dstart, addr, index, rows, dix)
+        if full:  # small alphabet: the whole distribution, cell by cell
+            for s in range(A):
+                p[s] = 1.0 / A
+            for q in range(nf):
+                r = rows[q]
+                di = dix[q]
+                lo = ptr[r]
+                hi = ptr[r + 1]
+                tr = 0.0
+                for e in range(lo, hi):
+                    cnt[np.int64(syms[e])] = counts[e]
+                    tr += counts[e]
+                esc = beta[di] + discount[di] * (hi - lo)
+                den = tr + beta[di]
+                for s in range(A):
+                    c = cnt[s] - discount[di]
+                    if c < 0.0:
+                        c = 0.0
+                    p[s] = (c + esc * p[s]) / den
+                for e in range(ptr[r], ptr[r + 1]):
+                    cnt[np.int64(syms[e])] = 0.0
+            nats, brier, top1, top3 = _score_symbol(
+                _borrow(p), A, x, t, keep, _borrow(sur), _borrow(calib), nats, brier, top1, top3
+            )
+            H = (H << ub) | np.uint64(x)
+            L += 1
+            continue
         b0 = 1 if (nf > 0 and depths[dix[0]] == 0) else 0  # the depth-0 cell is the base of the candidates
         px = _prob(x, A, rows, dix, 0, nf, ptr, syms, counts, tot, used, beta, discount, 1.0 / A)
         nats -= math.log(px)
