@@ -172,6 +172,9 @@ class SymbolStream:
         iterated; returns an iterator of :class:`Chunk` and fills the report.
     name:
         Name of the source (file name, ``-`` for standard input).
+    length_hint:
+        An upper bound on the symbols a pass yields when the reader knows one (an event log's lines,
+        counted by its first pass), else ``None``; consumers may size tables by it.
     """
 
     def __init__(
@@ -179,9 +182,11 @@ class SymbolStream:
         alphabet: Alphabet,
         factory: Callable[[ReadReport], Iterator[Chunk]],
         name: str = "stream",
+        length_hint: int | None = None,
     ) -> None:
         self.alphabet = alphabet
         self.name = name
+        self.length_hint = None if length_hint is None else int(length_hint)
         self._factory = factory
         self.report = ReadReport()
         #: what one symbol is: ``"symbol"``, or ``"line"`` (event logs) / ``"row"`` (numeric columns) when the

@@ -175,7 +175,7 @@ def learn_files(
     if out is not None:
         model.save(out, force=force)
     rows = tuple(
-        DepthCells(n, int(model.cells_[n].size), int(model.counts_[n].sum(dtype="int64"))) for n in model.depths_
+        DepthCells(n, int(model.cells_[n].size), int(model.counts_[n].totals().sum())) for n in model.depths_
     )
     return LearnReport(
         model=None if out is None else str(out),

@@ -263,7 +263,8 @@ def open_source(
             begin(report)
             yield from logs.chunks(origin, table, chunk_size, report, policy)
 
-        log_stream = SymbolStream(table.alphabet, log_factory, stream_name)
+        # one symbol per line at most: the first pass's line count bounds the stream (tables are sized by it)
+        log_stream = SymbolStream(table.alphabet, log_factory, stream_name, length_hint=table.lines)
         log_stream.unit = "line"
         return log_stream
 
