@@ -19,18 +19,15 @@ from fractalseq.cli import common
 
 EXIT_FOUND = 1
 
-ENGINE = typer.Option(
-    None, "--engine", help="Where per-source work runs: serial, processes or dask (default: processes if --workers > 1, dask if --scheduler, else serial)."
-)
-WORKERS = typer.Option(None, "--workers", "-w", min=1, help="Local worker processes (processes engine, or a local Dask cluster); default: all cores for processes, 2 for dask.")
-SCHEDULER = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask).")
+ENGINE = common.ENGINE
+WORKERS = common.WORKERS
+SCHEDULER = common.SCHEDULER
+CONNECT_TIMEOUT = common.CONNECT_TIMEOUT
 SEED_HELP = "Seed of every random step (bootstrap intervals, permutations), 0 <= seed < 2^64; same input and seed, same bytes."
 
 
-def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str]):
-    from fractalseq.jobs._engines import make_engine
-
-    return make_engine(kind, workers, scheduler)
+def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str], timeout: float = 5.0):
+    return common.make_engine(kind, workers, scheduler, timeout)
 
 
 
@@ -64,6 +61,7 @@ def survey(
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
     scheduler: Optional[str] = SCHEDULER,
+    connect_timeout: float = CONNECT_TIMEOUT,
 ) -> None:
     """Survey many sources: one row of complexity figures per source, distances and a clustering.
 
@@ -106,7 +104,7 @@ def survey(
     stage = StagedFolder(out, force) if out is not None else None
     plan = survey_cache(out, cache, use_cache=not no_cache)
     store = plan.store
-    with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
+    with _engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
         overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=len(specs))
         rows = {}
         show_rows = len(specs) <= 20
@@ -205,6 +203,7 @@ def drift(
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
     scheduler: Optional[str] = SCHEDULER,
+    connect_timeout: float = CONNECT_TIMEOUT,
 ) -> None:
     """Does the NEW batch come from the same source as the BASELINE?
 
@@ -241,7 +240,7 @@ def drift(
 
         stage = StagedFolder(out, force)  # built aside, renamed into place at the end
     stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
-    with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
+    with _engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
         report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
     result = report.drift
