@@ -97,6 +97,7 @@ OPTION_OF: dict[str, str] = {
     "engine": "--engine",
     "address": "--scheduler",
     "connect_timeout": "--connect-timeout",
+    "piece": "--piece",
     "window": "--window",
     "step": "--step",
     "level": "--level",

@@ -75,8 +75,28 @@ def count_files(
     *,
     top: int = 0,
     on_input: Callable[[str], None] | None = None,
+    engine: Engine | None = None,
+    piece: int | None = None,
+    on_piece: Callable[[int, object], None] | None = None,
 ) -> CountSummary:
     """Count every word of length 1..``depth`` of several inputs together (what ``fractalseq count`` does).
+
+    Parameters
+    ----------
+    paths, depth, reader, top:
+        Inputs, deepest word length, reader options, most frequent words to list.
+    on_input:
+        Called with each input's name once it is counted.
+    engine:
+        Where the counting runs.  ``None`` or the serial engine count each input
+        in one streamed pass in this process; another engine splits each input
+        into pieces of ``piece`` symbols overlapping by ``depth - 1``
+        (:func:`~fractalseq.words._pieces.count_words_split`), counts them on
+        its workers and adds them up in order: the counts are identical.
+    piece:
+        Symbols per piece (default :data:`~fractalseq.words._pieces.DEFAULT_PIECE`).
+    on_piece:
+        Called as ``on_piece(index, counts)`` when a piece is counted.
 
     Raises
     ------
@@ -86,7 +106,10 @@ def count_files(
     from fractalseq.words._corpus import count_inputs
 
     reader = reader or ReaderOptions()
-    wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    if engine is None or isinstance(engine, SerialEngine):
+        wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    else:
+        wc, reports = _count_split(paths, depth, reader, engine, piece, on_input, on_piece)
     if wc.length == 0:
         raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
     return CountSummary(
@@ -100,6 +123,29 @@ def count_files(
         top=tuple({"word": w, "count": c} for w, c in wc.top(wc.depth, top)) if top else (),
         counts=wc,
     )
+
+
+def _count_split(paths, depth, reader, engine, piece, on_input, on_piece):
+    """Each input split into pieces counted on ``engine``; inputs added in order (each its own segments)."""
+    from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split, settle_storage
+
+    chunk = DEFAULT_PIECE if piece is None else int(piece)
+    if isinstance(chunk, bool) or chunk < 1:
+        raise ParameterError(f"The piece size must be a positive number of symbols, not {piece!r}.", parameter="piece")
+    total: WordCounts | None = None
+    reports = []
+    for p in paths:
+        stream = reader.open(p)
+        if total is not None and not total.alphabet.same_symbols(stream.alphabet):
+            raise InputError(f"{p} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs.")
+        wc = count_words_split(stream, depth, engine, chunk=chunk, on_done=on_piece)
+        total = wc if total is None else total + wc
+        reports.append((p, stream.report))
+        if on_input is not None:
+            on_input(p)
+    if total is None:
+        raise InputError("There is no input to count; give at least one file.")
+    return settle_storage(total), reports
 
 
 # =================================================================== drift
