@@ -170,11 +170,13 @@ def main() -> int:
     RESULTS.mkdir(exist_ok=True)
     path = RESULTS / "survey_scale.json"
     doc = json.loads(path.read_text()) if path.exists() else {}
+    if "count" in doc and "symbols" in doc["count"]:
+        doc["count"] = {f"depth{doc['count']['depth']}": doc["count"]}
     doc["machine"] = {"cores": os.cpu_count()}
     doc["note"] = "invented data (simulated Markov chains); whole processes through the command line; ratios, not absolute targets"
     for name in args.only.split(","):
         if name == "count":
-            doc["count"] = section_count(args.mbase, args.depth)
+            doc.setdefault("count", {})[f"depth{args.depth}"] = section_count(args.mbase, args.depth)
         elif name == "survey":
             doc["survey"] = section_survey()
         elif name == "many":
@@ -183,10 +185,12 @@ def main() -> int:
     write_text(path, to_json(doc), force=True)
     lines = ["# Scale: split counting and large surveys", "", doc["note"] + ".", ""]
     if "count" in doc:
-        c = doc["count"]
         lines += ["| count | symbols | depth | serial s | 2 workers s | speed-up | identical JSON | load before/after |",
-                  "|---|---|---|---|---|---|---|---|",
-                  f"| one FASTA | {c['symbols']:,} | {c['depth']} | {c['serial_s']} | {c['workers2_s']} | {c['speedup']}x | {c['identical_json']} | {c['load_before']}/{c['load_after']} |", ""]
+                  "|---|---|---|---|---|---|---|---|"]
+        for c in doc["count"].values():
+            lines.append(f"| one FASTA | {c['symbols']:,} | {c['depth']} | {c['serial_s']} | {c['workers2_s']} | {c['speedup']}x | "
+                         f"{c['identical_json']} | {c['load_before']}/{c['load_after']} |")
+        lines.append("")
     if "survey" in doc:
         s = doc["survey"]
         lines += ["| survey | sources x length | 2 workers s | serial s | speed-up | profiles only s | overhead ms/source | identical JSON |",

@@ -19,6 +19,9 @@ from fractalseq.cli import common
 
 EXIT_FOUND = 1
 
+PER_RECORD = typer.Option(
+    False, "--per-record", help="Take every record of every input (chromosome, contig, read) as a source of its own, named INPUT:RECORD.",
+)
 ENGINE = common.ENGINE
 WORKERS = common.WORKERS
 SCHEDULER = common.SCHEDULER
@@ -58,6 +61,7 @@ def survey(
         None, "--cache", help="Folder of the per-source result cache, kept as it is and shareable by several surveys (default: OUT/.cache with --out, pruned after each run; else none)."
     ),
     no_cache: bool = typer.Option(False, "--no-cache", help="Do not read or write the per-source cache."),
+    per_record: bool = PER_RECORD,
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
     scheduler: Optional[str] = SCHEDULER,
@@ -83,6 +87,8 @@ def survey(
     applied to every source; by default each source is cut at its own quantiles
     (equally likely symbols: sources compared by their dynamics), with --common-cuts
     all at the pooled quantiles (a source at a higher level then gets other symbols).
+    With --per-record every record of every input (the chromosomes of an assembly,
+    the contigs of a metagenome) is a source of its own, named INPUT:RECORD.
     Genomic output is for research, not for clinical decisions.
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
@@ -105,9 +111,9 @@ def survey(
     plan = survey_cache(out, cache, use_cache=not no_cache)
     store = plan.store
     with _engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
-        overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=len(specs))
+        overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=None if per_record else len(specs))
         rows = {}
-        show_rows = len(specs) <= 20
+        show_rows = len(specs) <= 20 and not per_record
         cached = [0]
 
         def progress(event: str, i: int, spec) -> None:
@@ -125,7 +131,7 @@ def survey(
                     bar.update(rows[i], completed=1, description=f"  {spec.name} (done)")
 
         try:
-            result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress)
+            result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress, per_record=per_record)
         except KeyboardInterrupt:
             bar.stop()
             kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
@@ -200,6 +206,7 @@ def drift(
     quiet: bool = common.QUIET,
     seed: int = common.seed_option(help=SEED_HELP),
     force: bool = common.FORCE,
+    per_record: bool = PER_RECORD,
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
     scheduler: Optional[str] = SCHEDULER,
@@ -242,7 +249,8 @@ def drift(
     stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
     with _engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
-        report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+        report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task),
+                             per_record=per_record)
     result = report.drift
     if out is not None:
         from fractalseq.report.drift import write_outputs

@@ -140,6 +140,19 @@ def _print_templates(read: dict | None) -> None:
     common.out_console.print(t)
 
 
+def _each_source(paths: List[str], read, per_record: bool):
+    """``(name, symbols)`` per input, or per record of each input with ``per_record`` (each input read once)."""
+    for path in paths:
+        arr = read.read(path)
+        if not per_record:
+            yield path, arr
+            continue
+        from fractalseq.jobs._records import record_arrays
+
+        for part in record_arrays(arr, path):
+            yield part.name, part
+
+
 def profile(
     paths: List[str] = typer.Argument(
         ..., help="Input files (FASTA/FASTQ/text/log/numeric, optionally compressed); - reads standard input.",
@@ -161,6 +174,9 @@ def profile(
     seed: int = common.SEED,
     force: bool = common.FORCE,
     quiet: bool = common.QUIET,
+    per_record: bool = typer.Option(
+        False, "--per-record", help="Profile every record of every input (chromosome, contig, read) on its own, named INPUT:RECORD.",
+    ),
 ) -> None:
     """Measure the complexity of each input: dimensions, entropies, consistency.
 
@@ -176,6 +192,10 @@ def profile(
     tables, PNG figures) and DIR/index.html links them. --json prints the same
     numbers on standard output (the JSON contract in the README); the same
     input and --seed give the same bytes.
+
+    With --per-record every record of an input (the chromosomes of an assembly, the
+    contigs of a metagenome) is profiled on its own, as if it were a file of its own,
+    and named INPUT:RECORD.
 
     Genomic output is for research, not for clinical decisions.
 
@@ -198,9 +218,8 @@ def profile(
     taken: set[str] = {"index.html", "profile.json"}
     stage = StagedFolder(out, force) if out is not None else None  # built aside, renamed into place at the end
     with common.progress(quiet) as bar:
-        for path in paths:
-            task = bar.add_task(f"{path}: reading", total=len(STEPS) + 1)
-            arr = read.read(path)
+        for path, arr in _each_source(paths, read, per_record):
+            task = bar.add_task(f"{path}: read", total=len(STEPS) + 1)
             settings.depth_for(len(arr), arr.alphabet)  # refuse an impossible depth before any work
             bar.advance(task)
 

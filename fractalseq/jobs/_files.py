@@ -208,6 +208,7 @@ def drift_files(
     stdin_lines: Sequence[str] | None = None,
     on_done: Callable[[int, object], None] | None = None,
     novelty: "NoveltyOptions | None" = None,
+    per_record: bool = False,
 ) -> DriftReport:
     """Does the ``new`` batch come from the same source as the ``baseline``?
 
@@ -233,6 +234,9 @@ def drift_files(
         Options of the event novelty test (default :class:`~fractalseq.compare._novelty.NoveltyOptions`
         with the drift test's ``alpha``); it runs when every input was read as a log
         (alphabet of templates) and none is standard input.
+    per_record:
+        Every record of every input (chromosome, contig, read) is an input of its batch
+        of its own (:mod:`fractalseq.jobs._records`).
 
     Returns
     -------
@@ -249,8 +253,14 @@ def drift_files(
         raise ParameterError("Standard input can be read only once; give '-' for one batch at most.")
     base_specs, new_specs = batch_specs(baseline, stdin_lines), batch_specs(new, stdin_lines)
     cut, note = reader.with_baseline_cuts([s.path for s in base_specs])
-    base = [cut.open(s.path, name=s.name) for s in base_specs]
-    fresh = [cut.open(s.path, name=s.name) for s in new_specs]
+    if per_record:
+        from fractalseq.jobs._records import record_sources
+
+        base = [arr for _, arr in record_sources(base_specs, cut)]
+        fresh = [arr for _, arr in record_sources(new_specs, cut)]
+    else:
+        base = [cut.open(s.path, name=s.name) for s in base_specs]
+        fresh = [cut.open(s.path, name=s.name) for s in new_specs]
     result = drift_test(base, fresh, options, engine or SerialEngine(), on_done=on_done)
     if note:
         notes = result.notes
@@ -356,6 +366,7 @@ def survey_files(
     engine: Engine | None = None,
     cache: CachePlan | None = None,
     progress: "Progress | None" = None,
+    per_record: bool = False,
 ) -> "SurveyResult":
     """Survey files, folders, patterns and list files (what ``fractalseq survey`` does).
 
@@ -376,6 +387,10 @@ def survey_files(
         The cache and its pruning rule (:func:`survey_cache`; default: none).
     progress:
         See :func:`~fractalseq.jobs._survey.run_survey`.
+    per_record:
+        Every record of every input (a chromosome, a contig, a read) is a source of
+        its own, named ``INPUT:RECORD`` (:mod:`fractalseq.jobs._records`); each input
+        is read once.
 
     Returns
     -------
@@ -400,4 +415,9 @@ def survey_files(
             raise ParameterError("Common cuts apply to numeric input only; read the inputs as numeric or leave them out.", parameter="common_cuts")
         options = dataclasses.replace(options, reader=tuple(sorted(reader.numeric_options().items())))
     plan = cache or CachePlan(ResultCache(None))
-    return run_survey(specs, options, engine, plan.store, progress, prune_cache=plan.prune)
+    arrays = None
+    if per_record:
+        from fractalseq.jobs._records import per_record as split_records
+
+        specs, arrays = split_records(specs, options.reader_options)
+    return run_survey(specs, options, engine, plan.store, progress, prune_cache=plan.prune, arrays=arrays)

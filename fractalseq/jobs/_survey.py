@@ -433,6 +433,7 @@ def run_survey(
     cache: ResultCache | None = None,
     progress: Progress | None = None,
     prune_cache: bool = False,
+    arrays: Sequence[SymbolArray | None] | None = None,
 ) -> SurveyResult:
     """Survey sources: per-source figures (cached), distances and clustering.
 
@@ -456,6 +457,10 @@ def run_survey(
         exactly the current sources and parameters.  Meant for a cache that belongs
         to this survey (``survey --out DIR`` uses ``DIR/.cache``), not for one shared
         by several surveys.  An interrupted or failed survey prunes nothing.
+    arrays:
+        Symbols already read, one per source (``None`` where the source is to be
+        read from its path): the records of a per-record survey.  Such a source
+        is keyed in the cache by its symbols.
 
     Returns
     -------
@@ -474,8 +479,12 @@ def run_survey(
     todo: list[int] = []
     tasks: list[SurveyTask] = []
     damaged: list[str] = []
+    if arrays is not None and len(arrays) != len(specs):
+        raise ParameterError("Give one symbol array (or None) per source.", parameter="arrays")
     for i, spec in enumerate(specs):
-        arr = _read_stdin(spec, options) if spec.path == "-" else None
+        arr = arrays[i] if arrays is not None else None
+        if arr is None and spec.path == "-":
+            arr = _read_stdin(spec, options)
         content = _content_hash(spec, arr)
         key = cache_key(content, params)
         hashes.append(content)
@@ -510,7 +519,9 @@ def run_survey(
         pause_point("survey.cached", finished[0])
 
     if tasks:
-        engine.map(survey_task, tasks, on_done=done)
+        # a bounded number of tasks in flight: thousands of sources do not all sit in the engine's queue
+        for j, res in engine.imap(survey_task, tasks, max_pending=4 * engine.workers + 2):
+            done(j, res)
     result = merge_survey(specs, outputs, hashes, options)  # type: ignore[arg-type]
     if damaged:
         result = replace(result, cache_notes=tuple(damaged))
