@@ -479,10 +479,11 @@ def run_survey(
     todo: list[int] = []
     tasks: list[SurveyTask] = []
     damaged: list[str] = []
-    if arrays is not None and len(arrays) != len(specs):
+    given = arrays
+    if given is not None and len(given) != len(specs):
         raise ParameterError("Give one symbol array (or None) per source.", parameter="arrays")
     for i, spec in enumerate(specs):
-        arr = arrays[i] if arrays is not None else None
+        arr = given[i] if given is not None else None
         if arr is None and spec.path == "-":
             arr = _read_stdin(spec, options)
         content = _content_hash(spec, arr)
