@@ -18,6 +18,8 @@ from rich.table import Table
 from fractalseq.cli import common
 
 EXIT_FOUND = 1
+#: Sources listed in the survey's terminal table (all of them are in --json and --out).
+TERMINAL_ROWS = 50
 
 PER_RECORD = typer.Option(
     False, "--per-record", help="Take every record of every input (chromosome, contig, read) as a source of its own, named INPUT:RECORD.",
@@ -159,14 +161,17 @@ def survey(
     table = Table(title=f"Survey of {len(result.names)} sources (D_q in units of log 1/k, k = {ratio:g}; entropies in bits)")
     for i in idx:
         table.add_column(header[i], justify="left" if header[i] == "name" else "right")
-    for r in table_rows:
-        table.add_row(*[_cell(r[i]) for i in idx])
+    for r in table_rows[:TERMINAL_ROWS]:
+        table.add_row(*[_cell(common.safe(r[i]) if isinstance(r[i], str) else r[i]) for i in idx])
     common.out_console.print(table)
+    if len(table_rows) > TERMINAL_ROWS:
+        common.out_console.print(f"(the first {TERMINAL_ROWS} of {len(table_rows)} sources; --out or --json give every row)")
     if len(result.names) >= 2:
         a, b = result.clustering.top_split()
-        common.out_console.print(
-            "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
+        side = lambda group: (  # noqa: E731
+            "{" + ", ".join(common.safe(result.names[i]) for i in group) + "}" if len(group) <= 10 else f"{{{len(group)} sources}}"
         )
+        common.out_console.print(f"Top split of the clustering: {side(a)} vs {side(b)}")
     for note in result.notes:
         common.out_console.print(f"note: {note}")
     if written:
