@@ -192,6 +192,10 @@ def profile_row(arr: SymbolArray, options: SurveyOptions) -> dict:
     return json.loads(to_json(data))
 
 
+#: Survey tasks started in this process (the pause point ``survey.task:N`` counts them).
+_TASKS_RUN = [0]
+
+
 def survey_task(task: SurveyTask) -> dict:
     """Map step for one source: its profile and its word counts (runs on a worker).
 
@@ -199,6 +203,8 @@ def survey_task(task: SurveyTask) -> dict:
     kept and dropped), ``counts_header`` and ``counts_arrays`` (the word
     counts up to the stored distance depth, see :meth:`WordCounts.to_arrays`).
     """
+    _TASKS_RUN[0] += 1
+    pause_point("survey.task", _TASKS_RUN[0])  # test hook: a worker stopped inside its n-th task
     opts = task.options
     if task.codes is not None:
         alphabet = Alphabet.from_dict(task.alphabet or {})

@@ -15,7 +15,7 @@ import numpy as np
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.runner import Engine, OnDone, SerialEngine
+from fractalseq.runner import Engine, OnDone, SerialEngine, pause_point
 from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 from fractalseq.words._counts import DENSE_MAX_BITS, WordCounts, check_depth, count_words
 
@@ -100,6 +100,10 @@ def iter_pieces(source: SymbolStream | SymbolArray, chunk: int, overlap: int) ->
         yield Piece(alphabet, buf.copy(), rel[(rel >= 0) & (rel < buf.size)], int(buf.size), offset, True, index)
 
 
+#: Pieces counted in this process (the pause point ``count.piece:N`` counts them).
+_PIECES_RUN = [0]
+
+
 def count_piece(task: tuple[Piece, int]) -> WordCounts:
     """Counts of the words (lengths ``1..depth``) that *start* in a piece's core.
 
@@ -112,6 +116,8 @@ def count_piece(task: tuple[Piece, int]) -> WordCounts:
     and they are subtracted.
     """
     piece, depth = task
+    _PIECES_RUN[0] += 1
+    pause_point("count.piece", _PIECES_RUN[0])  # test hook: a worker stopped inside its n-th piece
     alphabet = piece.alphabet
     whole = count_words(SymbolArray(alphabet, piece.codes, piece.starts, "piece"), depth)
     tl, ta, tc = whole.tail_len, whole.tail_addr, whole.tail_count
