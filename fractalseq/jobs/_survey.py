@@ -501,7 +501,7 @@ def run_survey(
             damaged.append(f"the cached entry of {spec.name} was not used ({problem}); it was recomputed")
         if hit is not None:
             results, arrays = hit
-            outputs[i] = {**results, "counts_arrays": arrays}
+            outputs[i] = _kept_for_merge({**results, "counts_arrays": arrays}, options)
             if progress:
                 progress("cached", i, spec)
             continue
@@ -519,7 +519,7 @@ def run_survey(
         i = todo[j]
         stored = {k: v for k, v in res.items() if k != "counts_arrays"}
         cache.put(keys[i], stored, res["counts_arrays"])
-        outputs[i] = res
+        outputs[i] = _kept_for_merge(res, options)
         if progress:
             progress("done", i, specs[i])
         finished[0] += 1
@@ -537,15 +537,38 @@ def run_survey(
     return result
 
 
+def _counts_of(out: dict) -> WordCounts:
+    arrays = dict(out["counts_arrays"])
+    arrays["header"] = np.frombuffer(json.dumps(out["counts_header"], sort_keys=True).encode(), np.uint8)
+    return WordCounts.from_arrays(arrays, "cached counts")
+
+
+def _kept_for_merge(out: dict, options: SurveyOptions) -> dict:
+    """A finished source as the merge needs it: its word counts cut to the deepest distance depth it allows.
+
+    The distance depth is at most the one this source's own length and alphabet allow (the shortest
+    source and the joint alphabet only lower it), so counts beyond it are never read; dropping them
+    keeps thousands of finished sources small in memory (the cache keeps the full counts).
+    """
+    wc = _counts_of(out)
+    if options.distance_depth is not None:
+        depth = min(int(options.distance_depth), wc.depth)
+    else:
+        depth = 1
+        while depth < wc.depth and float(wc.alphabet.size) ** (depth + 1) * WORDS_PER_CELL <= wc.length:
+            depth += 1
+    if depth >= wc.depth:
+        return out
+    header, arrays = wc.truncate(depth).to_arrays()
+    return {**out, "counts_header": header, "counts_arrays": arrays}
+
+
 def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: Sequence[str], options: SurveyOptions) -> SurveyResult:
     """Merge and estimate: rows in input order, aligned word tables, distances, clustering."""
     notes: list[str] = []
     counts: list[WordCounts] = []
     for out in outputs:
-        arrays = dict(out["counts_arrays"])
-        header = out["counts_header"]
-        arrays["header"] = np.frombuffer(json.dumps(header, sort_keys=True).encode(), np.uint8)
-        counts.append(WordCounts.from_arrays(arrays, "cached counts"))
+        counts.append(_counts_of(out))
     alphabets = [wc.alphabet for wc in counts]
     joint = joint_alphabet(alphabets)
     if joint is not alphabets[0]:
