@@ -18,19 +18,21 @@ from rich.table import Table
 from fractalseq.cli import common
 
 EXIT_FOUND = 1
+#: Sources listed in the survey's terminal table (all of them are in --json and --out).
+TERMINAL_ROWS = 50
 
-ENGINE = typer.Option(
-    None, "--engine", help="Where per-source work runs: serial, processes or dask (default: processes if --workers > 1, dask if --scheduler, else serial)."
+PER_RECORD = typer.Option(
+    False, "--per-record", help="Take every record of every input (chromosome, contig, read) as a source of its own, named INPUT:RECORD.",
 )
-WORKERS = typer.Option(None, "--workers", "-w", min=1, help="Local worker processes (processes engine, or a local Dask cluster); default: all cores for processes, 2 for dask.")
-SCHEDULER = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask).")
+ENGINE = common.ENGINE
+WORKERS = common.WORKERS
+SCHEDULER = common.SCHEDULER
+CONNECT_TIMEOUT = common.CONNECT_TIMEOUT
 SEED_HELP = "Seed of every random step (bootstrap intervals, permutations), 0 <= seed < 2^64; same input and seed, same bytes."
 
 
-def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str]):
-    from fractalseq.jobs._engines import make_engine
-
-    return make_engine(kind, workers, scheduler)
+def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str], timeout: float = 5.0):
+    return common.make_engine(kind, workers, scheduler, timeout)
 
 
 
@@ -63,9 +65,11 @@ def survey(
         None, "--cache", help="Folder of the per-source result cache, kept as it is and shareable by several surveys (default: OUT/.cache with --out, pruned after each run; else none)."
     ),
     no_cache: bool = typer.Option(False, "--no-cache", help="Do not read or write the per-source cache."),
+    per_record: bool = PER_RECORD,
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
     scheduler: Optional[str] = SCHEDULER,
+    connect_timeout: float = CONNECT_TIMEOUT,
 ) -> None:
     """Survey many sources: one row of complexity figures per source, distances and a clustering.
 
@@ -88,6 +92,8 @@ def survey(
     each table its own source (FILE:COLUMN). By default each source is cut at its own quantiles
     (equally likely symbols: sources compared by their dynamics), with --common-cuts
     all at the pooled quantiles (a source at a higher level then gets other symbols).
+    With --per-record every record of every input (the chromosomes of an assembly,
+    the contigs of a metagenome) is a source of its own, named INPUT:RECORD.
     Genomic output is for research, not for clinical decisions.
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
@@ -109,10 +115,10 @@ def survey(
     stage = StagedFolder(out, force) if out is not None else None
     plan = survey_cache(out, cache, use_cache=not no_cache)
     store = plan.store
-    with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
-        overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=len(specs))
+    with _engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
+        overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=None if per_record else len(specs))
         rows = {}
-        show_rows = len(specs) <= 20
+        show_rows = len(specs) <= 20 and not per_record
         cached = [0]
 
         def progress(event: str, i: int, spec) -> None:
@@ -130,7 +136,7 @@ def survey(
                     bar.update(rows[i], completed=1, description=f"  {spec.name} (done)")
 
         try:
-            result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress)
+            result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress, per_record=per_record)
         except KeyboardInterrupt:
             bar.stop()
             kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
@@ -158,22 +164,25 @@ def survey(
     table = Table(title=f"Survey of {len(result.names)} sources (D_q in units of log 1/k, k = {ratio:g}; entropies in bits)")
     for i in idx:
         table.add_column(header[i], justify="left" if header[i] == "name" else "right")
-    for r in table_rows:
-        table.add_row(*[_cell(r[i]) for i in idx])
+    for r in table_rows[:TERMINAL_ROWS]:
+        table.add_row(*[_cell(common.safe(r[i]) if isinstance(r[i], str) else r[i]) for i in idx])
     common.out_console.print(table)
+    if len(table_rows) > TERMINAL_ROWS:
+        common.out_console.print(f"(the first {TERMINAL_ROWS} of {len(table_rows)} sources; --out or --json give every row)")
     if len(result.names) >= 2:
+        side = lambda group: (  # noqa: E731
+            "{" + ", ".join(common.safe(result.names[i]) for i in group) + "}" if len(group) <= 10 else f"{{{len(group)} sources}}"
+        )
         groups = result.clustering.top_groups()
         if len(groups) > 2:
             height = float(result.clustering.linkage[-1][2])
             common.out_console.print(
                 f"Top of the clustering: {len(groups)} groups joined at the same distance ({height:.3g}): "
-                + " vs ".join("{" + ", ".join(result.names[i] for i in g) + "}" for g in groups)
+                + " vs ".join(side(g) for g in groups)
             )
         else:
             a, b = result.clustering.top_split()
-            common.out_console.print(
-                "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
-            )
+            common.out_console.print(f"Top split of the clustering: {side(a)} vs {side(b)}")
     for note in result.notes:
         common.say(f"note: {_safe(note)}")
     for s in result.sources:
@@ -223,9 +232,11 @@ def drift(
     quiet: bool = common.QUIET,
     seed: int = common.seed_option(help=SEED_HELP),
     force: bool = common.FORCE,
+    per_record: bool = PER_RECORD,
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
     scheduler: Optional[str] = SCHEDULER,
+    connect_timeout: float = CONNECT_TIMEOUT,
 ) -> None:
     """Does the NEW batch come from the same source as the BASELINE?
 
@@ -265,13 +276,18 @@ def drift(
         stage = StagedFolder(out, force)  # built aside, renamed into place at the end
     stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
     columns = batch_columns(baseline, read, stdin_lines)  # --column a,b / all: one test per column
-    with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
+    if columns is not None and per_record:
+        from fractalseq.errors import ParameterError
+
+        raise ParameterError("--per-record and a list of columns cannot be combined; choose one way to split the inputs.")
+    with _engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
         if columns is not None:
             several = drift_columns(baseline, new, columns, options, read, engine=eng, stdin_lines=stdin_lines,
                                     on_done=lambda i, r: bar.advance(task))
         else:
-            report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+            report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines,
+                                 on_done=lambda i, r: bar.advance(task), per_record=per_record)
     if columns is not None:
         _drift_by_column(several, stage.path if out is not None else None, json_out)
         if out is not None:

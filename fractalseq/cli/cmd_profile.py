@@ -191,6 +191,22 @@ def _print_templates(read: dict | None) -> None:
     common.out_console.print(t)
 
 
+def _each_source(paths: List[str], read, per_record: bool):
+    """``(name, symbols)`` per input, per column of a numeric table (``--column a,b`` / ``all``: ``FILE:COLUMN``),
+    or per record of each input with ``per_record`` (each input read once)."""
+    for path in paths:
+        for col, opts in read.per_column(path):
+            label = path if col is None else f"{path}:{col}"
+            arr = opts.read(path, name=None if col is None else label)
+            if not per_record:
+                yield label, arr
+                continue
+            from fractalseq.jobs._records import record_arrays
+
+            for part in record_arrays(arr, label):
+                yield part.name, part
+
+
 def profile(
     paths: List[str] = typer.Argument(
         ..., help="Input files (FASTA/FASTQ/text/log/numeric, optionally compressed); - reads standard input.",
@@ -214,6 +230,9 @@ def profile(
     seed: int = common.SEED,
     force: bool = common.FORCE,
     quiet: bool = common.QUIET,
+    per_record: bool = typer.Option(
+        False, "--per-record", help="Profile every record of every input (chromosome, contig, read) on its own, named INPUT:RECORD.",
+    ),
 ) -> None:
     """Measure the complexity of each input: dimensions, entropies, consistency.
 
@@ -229,6 +248,10 @@ def profile(
     tables, PNG figures) and DIR/index.html links them. --json prints the same
     numbers on standard output (the JSON contract in the README); the same
     input and --seed give the same bytes.
+
+    With --per-record every record of an input (the chromosomes of an assembly, the
+    contigs of a metagenome) is profiled on its own, as if it were a file of its own,
+    and named INPUT:RECORD.
 
     Genomic output is for research, not for clinical decisions.
 
@@ -251,11 +274,8 @@ def profile(
     taken: set[str] = {"index.html", "profile.json"}
     stage = StagedFolder(out, force) if out is not None else None  # built aside, renamed into place at the end
     with common.progress(quiet) as bar:
-        sources = [(path, col, opts) for path in paths for col, opts in read.per_column(path)]  # a,b / all: a source per column
-        for path, col, opts in sources:
-            label = path if col is None else f"{path}:{col}"
+        for label, arr in _each_source(paths, read, per_record):
             task = bar.add_task(f"{label}: reading", total=len(STEPS) + 1)
-            arr = opts.read(path, name=None if col is None else label)
             settings.depth_for(len(arr), arr.alphabet)  # refuse an impossible depth before any work
             bar.advance(task)
 

@@ -30,12 +30,25 @@ def count(
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,
+    engine: Optional[str] = common.ENGINE,
+    workers: Optional[int] = common.WORKERS,
+    scheduler: Optional[str] = common.SCHEDULER,
+    connect_timeout: float = common.CONNECT_TIMEOUT,
+    piece: int = typer.Option(
+        1 << 24, "--piece", min=1,
+        help="With --engine/--workers/--scheduler: symbols per piece; each input is split into pieces overlapping by DEPTH-1 symbols, counted on the workers and added up exactly.",
+    ),
 ) -> None:
     """Count every word of length 1..DEPTH exactly, merging all inputs.
 
     Occupied boxes of the encoding at scale k^n are the distinct n-words, so the
     table printed here is also the box-counting ladder. Inputs are read in chunks;
     memory is bounded by the distinct words counted.
+
+    With --workers N (or --engine dask, --scheduler tcp://HOST:PORT) each input is
+    split into pieces of --piece symbols that overlap by DEPTH-1 symbols; the pieces
+    are counted on the workers and added up in order, so the counts are identical
+    to a serial run.
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
@@ -44,9 +57,9 @@ def count(
     if save is not None:
         check_writable(save, force)
     read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties)
-    with common.progress(quiet) as bar:
-        task = bar.add_task("counting", total=len(paths))
-        summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task))
+    with common.make_engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
+        task = bar.add_task("counting" if eng.name == "serial" else f"counting ({eng.name}, {eng.workers} workers)", total=len(paths))
+        summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task), engine=eng, piece=piece)
     wc = summary.counts
     if save is not None:
         wc.save(save, force=force)

@@ -72,6 +72,24 @@ THRESHOLDS = typer.Option(
     None, "--thresholds", help="numeric input: fixed bin edges, increasing and comma-separated (e.g. 0.2,0.5,0.8), instead of quantile --bins."
 )
 
+ENGINE = typer.Option(
+    None, "--engine", help="Where the work runs: serial, processes or dask (default: processes if --workers > 1, dask if --scheduler, else serial)."
+)
+WORKERS = typer.Option(
+    None, "--workers", "-w", min=1,
+    help="Local worker processes (processes engine, or a local Dask cluster), at most 4 per core; default: all cores for processes, 2 for dask.",
+)
+SCHEDULER = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask).")
+CONNECT_TIMEOUT = typer.Option(5.0, "--connect-timeout", help="Seconds allowed for reaching the --scheduler (default 5).")
+
+
+def make_engine(kind: str | None, workers: int | None, scheduler: str | None, timeout: float = 5.0):
+    """The engine the options ask for (checked, and the scheduler reached, before any work)."""
+    from fractalseq.jobs._engines import make_engine as build
+
+    return build(kind, workers, scheduler, timeout)
+
+
 #: Library parameter name -> the command-line option that sets it.  Library errors name
 #: parameters (``ParameterError.parameter``); the command line adds the option to change.
 OPTION_OF: dict[str, str] = {
@@ -93,6 +111,8 @@ OPTION_OF: dict[str, str] = {
     "workers": "--workers",
     "engine": "--engine",
     "address": "--scheduler",
+    "connect_timeout": "--connect-timeout",
+    "piece": "--piece",
     "window": "--window",
     "step": "--step",
     "level": "--level",

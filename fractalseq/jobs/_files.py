@@ -75,8 +75,28 @@ def count_files(
     *,
     top: int = 0,
     on_input: Callable[[str], None] | None = None,
+    engine: Engine | None = None,
+    piece: int | None = None,
+    on_piece: Callable[[int, object], None] | None = None,
 ) -> CountSummary:
     """Count every word of length 1..``depth`` of several inputs together (what ``fractalseq count`` does).
+
+    Parameters
+    ----------
+    paths, depth, reader, top:
+        Inputs, deepest word length, reader options, most frequent words to list.
+    on_input:
+        Called with each input's name once it is counted.
+    engine:
+        Where the counting runs.  ``None`` or the serial engine count each input
+        in one streamed pass in this process; another engine splits each input
+        into pieces of ``piece`` symbols overlapping by ``depth - 1``
+        (:func:`~fractalseq.words._pieces.count_words_split`), counts them on
+        its workers and adds them up in order: the counts are identical.
+    piece:
+        Symbols per piece (default :data:`~fractalseq.words._pieces.DEFAULT_PIECE`).
+    on_piece:
+        Called as ``on_piece(index, counts)`` when a piece is counted.
 
     Raises
     ------
@@ -86,7 +106,10 @@ def count_files(
     from fractalseq.words._corpus import count_inputs
 
     reader = reader or ReaderOptions()
-    wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    if engine is None or isinstance(engine, SerialEngine):
+        wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    else:
+        wc, reports = _count_split(paths, depth, reader, engine, piece, on_input, on_piece)
     if wc.length == 0:
         raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
     return CountSummary(
@@ -100,6 +123,29 @@ def count_files(
         top=tuple({"word": w, "count": c} for w, c in wc.top(wc.depth, top)) if top else (),
         counts=wc,
     )
+
+
+def _count_split(paths, depth, reader, engine, piece, on_input, on_piece):
+    """Each input split into pieces counted on ``engine``; inputs added in order (each its own segments)."""
+    from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split, settle_storage
+
+    chunk = DEFAULT_PIECE if piece is None else int(piece)
+    if isinstance(chunk, bool) or chunk < 1:
+        raise ParameterError(f"The piece size must be a positive number of symbols, not {piece!r}.", parameter="piece")
+    total: WordCounts | None = None
+    reports = []
+    for p in paths:
+        stream = reader.open(p)
+        if total is not None and not total.alphabet.same_symbols(stream.alphabet):
+            raise InputError(f"{p} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs.")
+        wc = count_words_split(stream, depth, engine, chunk=chunk, on_done=on_piece)
+        total = wc if total is None else total + wc
+        reports.append((p, stream.report))
+        if on_input is not None:
+            on_input(p)
+    if total is None:
+        raise InputError("There is no input to count; give at least one file.")
+    return settle_storage(total), reports
 
 
 # =================================================================== drift
@@ -162,6 +208,7 @@ def drift_files(
     stdin_lines: Sequence[str] | None = None,
     on_done: Callable[[int, object], None] | None = None,
     novelty: "NoveltyOptions | None" = None,
+    per_record: bool = False,
 ) -> DriftReport:
     """Does the ``new`` batch come from the same source as the ``baseline``?
 
@@ -187,6 +234,9 @@ def drift_files(
         Options of the event novelty test (default :class:`~fractalseq.compare._novelty.NoveltyOptions`
         with the drift test's ``alpha``); it runs when every input was read as a log
         (alphabet of templates) and none is standard input.
+    per_record:
+        Every record of every input (chromosome, contig, read) is an input of its batch
+        of its own (:mod:`fractalseq.jobs._records`).
 
     Returns
     -------
@@ -203,8 +253,14 @@ def drift_files(
         raise ParameterError("Standard input can be read only once; give '-' for one batch at most.")
     base_specs, new_specs = batch_specs(baseline, stdin_lines), batch_specs(new, stdin_lines)
     cut, note = reader.with_baseline_cuts([s.path for s in base_specs])
-    base = [cut.open(s.path, name=s.name) for s in base_specs]
-    fresh = [cut.open(s.path, name=s.name) for s in new_specs]
+    if per_record:
+        from fractalseq.jobs._records import record_sources
+
+        base = [arr for _, arr in record_sources(base_specs, cut)]
+        fresh = [arr for _, arr in record_sources(new_specs, cut)]
+    else:
+        base = [cut.open(s.path, name=s.name) for s in base_specs]
+        fresh = [cut.open(s.path, name=s.name) for s in new_specs]
     result = drift_test(base, fresh, options, engine or SerialEngine(), on_done=on_done)
     if note:
         notes = result.notes
@@ -322,6 +378,7 @@ def survey_files(
     engine: Engine | None = None,
     cache: CachePlan | None = None,
     progress: "Progress | None" = None,
+    per_record: bool = False,
 ) -> "SurveyResult":
     """Survey files, folders, patterns and list files (what ``fractalseq survey`` does).
 
@@ -342,6 +399,10 @@ def survey_files(
         The cache and its pruning rule (:func:`survey_cache`; default: none).
     progress:
         See :func:`~fractalseq.jobs._survey.run_survey`.
+    per_record:
+        Every record of every input (a chromosome, a contig, a read) is a source of
+        its own, named ``INPUT:RECORD`` (:mod:`fractalseq.jobs._records`); each input
+        is read once.
 
     Returns
     -------
@@ -370,4 +431,9 @@ def survey_files(
             raise ParameterError("Common cuts apply to numeric input only; read the inputs as numeric or leave them out.", parameter="common_cuts")
         options = dataclasses.replace(options, reader=tuple(sorted(reader.numeric_options().items())))
     plan = cache or CachePlan(ResultCache(None))
-    return run_survey(specs, options, engine, plan.store, progress, prune_cache=plan.prune)
+    arrays = None
+    if per_record:
+        from fractalseq.jobs._records import per_record as split_records
+
+        specs, arrays = split_records(specs, options.reader_options)
+    return run_survey(specs, options, engine, plan.store, progress, prune_cache=plan.prune, arrays=arrays)

@@ -189,6 +189,10 @@ def profile_row(arr: SymbolArray, options: SurveyOptions) -> dict:
     return json.loads(to_json(data))
 
 
+#: Survey tasks started in this process (the pause point ``survey.task:N`` counts them).
+_TASKS_RUN = [0]
+
+
 def survey_task(task: SurveyTask) -> dict:
     """Map step for one source: its profile and its word counts (runs on a worker).
 
@@ -196,6 +200,8 @@ def survey_task(task: SurveyTask) -> dict:
     kept and dropped), ``counts_header`` and ``counts_arrays`` (the word
     counts up to the stored distance depth, see :meth:`WordCounts.to_arrays`).
     """
+    _TASKS_RUN[0] += 1
+    pause_point("survey.task", _TASKS_RUN[0])  # test hook: a worker stopped inside its n-th task
     opts = task.options
     if task.codes is not None:
         alphabet = Alphabet.from_dict(task.alphabet or {})
@@ -444,6 +450,7 @@ def run_survey(
     cache: ResultCache | None = None,
     progress: Progress | None = None,
     prune_cache: bool = False,
+    arrays: Sequence[SymbolArray | None] | None = None,
 ) -> SurveyResult:
     """Survey sources: per-source figures (cached), distances and clustering.
 
@@ -467,6 +474,10 @@ def run_survey(
         exactly the current sources and parameters.  Meant for a cache that belongs
         to this survey (``survey --out DIR`` uses ``DIR/.cache``), not for one shared
         by several surveys.  An interrupted or failed survey prunes nothing.
+    arrays:
+        Symbols already read, one per source (``None`` where the source is to be
+        read from its path): the records of a per-record survey.  Such a source
+        is keyed in the cache by its symbols.
 
     Returns
     -------
@@ -486,8 +497,13 @@ def run_survey(
     todo: list[int] = []
     tasks: list[SurveyTask] = []
     damaged: list[str] = []
+    given = arrays
+    if given is not None and len(given) != len(specs):
+        raise ParameterError("Give one symbol array (or None) per source.", parameter="arrays")
     for i, spec in enumerate(specs):
-        arr = _read_stdin(spec, options) if spec.path == "-" else None
+        arr = given[i] if given is not None else None
+        if arr is None and spec.path == "-":
+            arr = _read_stdin(spec, options)
         content = _content_hash(spec, arr)
         key = cache_key(content, params if spec.column is None else {**params, "column": spec.column})
         hashes.append(content)
@@ -497,7 +513,7 @@ def run_survey(
             damaged.append(f"the cached entry of {spec.name} was not used ({problem}); it was recomputed")
         if hit is not None:
             results, arrays = hit
-            outputs[i] = {**results, "counts_arrays": arrays}
+            outputs[i] = _kept_for_merge({**results, "counts_arrays": arrays}, options)
             if progress:
                 progress("cached", i, spec)
             continue
@@ -515,14 +531,16 @@ def run_survey(
         i = todo[j]
         stored = {k: v for k, v in res.items() if k != "counts_arrays"}
         cache.put(keys[i], stored, res["counts_arrays"])
-        outputs[i] = res
+        outputs[i] = _kept_for_merge(res, options)
         if progress:
             progress("done", i, specs[i])
         finished[0] += 1
         pause_point("survey.cached", finished[0])
 
     if tasks:
-        engine.map(survey_task, tasks, on_done=done)
+        # a bounded number of tasks in flight: thousands of sources do not all sit in the engine's queue
+        for j, res in engine.imap(survey_task, tasks, max_pending=4 * engine.workers + 2):
+            done(j, res)
     result = merge_survey(specs, outputs, hashes, options)  # type: ignore[arg-type]
     if damaged:
         result = replace(result, cache_notes=tuple(damaged))
@@ -531,15 +549,38 @@ def run_survey(
     return result
 
 
+def _counts_of(out: dict) -> WordCounts:
+    arrays = dict(out["counts_arrays"])
+    arrays["header"] = np.frombuffer(json.dumps(out["counts_header"], sort_keys=True).encode(), np.uint8)
+    return WordCounts.from_arrays(arrays, "cached counts")
+
+
+def _kept_for_merge(out: dict, options: SurveyOptions) -> dict:
+    """A finished source as the merge needs it: its word counts cut to the deepest distance depth it allows.
+
+    The distance depth is at most the one this source's own length and alphabet allow (the shortest
+    source and the joint alphabet only lower it), so counts beyond it are never read; dropping them
+    keeps thousands of finished sources small in memory (the cache keeps the full counts).
+    """
+    wc = _counts_of(out)
+    if options.distance_depth is not None:
+        depth = min(int(options.distance_depth), wc.depth)
+    else:
+        depth = 1
+        while depth < wc.depth and float(wc.alphabet.size) ** (depth + 1) * WORDS_PER_CELL <= wc.length:
+            depth += 1
+    if depth >= wc.depth:
+        return out
+    header, arrays = wc.truncate(depth).to_arrays()
+    return {**out, "counts_header": header, "counts_arrays": arrays}
+
+
 def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: Sequence[str], options: SurveyOptions) -> SurveyResult:
     """Merge and estimate: rows in input order, aligned word tables, distances, clustering."""
     notes: list[str] = []
     counts: list[WordCounts] = []
     for out in outputs:
-        arrays = dict(out["counts_arrays"])
-        header = out["counts_header"]
-        arrays["header"] = np.frombuffer(json.dumps(header, sort_keys=True).encode(), np.uint8)
-        counts.append(WordCounts.from_arrays(arrays, "cached counts"))
+        counts.append(_counts_of(out))
     alphabets = [wc.alphabet for wc in counts]
     joint = joint_alphabet(alphabets)
     if joint is not alphabets[0]:
