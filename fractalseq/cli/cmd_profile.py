@@ -24,6 +24,10 @@ PROFILE_DEPTH = typer.Option(
     help="Deepest word length (symbols) of the block-entropy table (default: deep enough for the longest words the data support, at most 12).",
 )
 LEVEL = typer.Option(0.95, "--level", help="Confidence level of the intervals, between 0.5 and 1.")
+QUICK = typer.Option(
+    False, "--quick",
+    help="First look: no bootstrap (--boot ignored; no bootstrap intervals), no consistency table, no compressor bound.",
+)
 
 
 def parse_qs(text: str) -> tuple[float, ...]:
@@ -159,6 +163,7 @@ def profile(
     boot: int = BOOT,
     level: float = LEVEL,
     seed: int = common.SEED,
+    quick: bool = QUICK,
     force: bool = common.FORCE,
     quiet: bool = common.QUIET,
 ) -> None:
@@ -175,7 +180,10 @@ def profile(
     --out DIR each input gets a folder DIR/NAME (index.html, profile.json, CSV
     tables, PNG figures) and DIR/index.html links them. --json prints the same
     numbers on standard output (the JSON contract in the README); the same
-    input and --seed give the same bytes.
+    input and --seed give the same bytes. --quick leaves out the bootstrap, the
+    consistency table and the compressor bound for a first look at a big input.
+    Beyond 2^22 symbols the consistency table and the density image use the
+    first 2^22 symbols (the JSON's settings and notes say so).
 
     Genomic output is for research, not for clinical decisions.
 
@@ -188,7 +196,7 @@ def profile(
     caution = lambda rs: CAUTION_GENOMIC if is_genomic(rs) else CAUTION_GENERAL  # noqa: E731
 
     # validate everything before reading anything
-    settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed)
+    settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed, quick=quick)
     read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
     _check_out(out, force)
     parameters = settings.parameters(read)
@@ -209,7 +217,7 @@ def profile(
                 bar.advance(task)
 
             res = profile_source(arr, ratio=settings.ratio, qs=settings.qs, depth=settings.depth,
-                                 resampling=settings.resampling, progress=on_step)
+                                 resampling=settings.resampling, progress=on_step, quick=settings.quick)
             results.append(res)
             if stage is not None:
                 bar.update(task, description=f"{path}: writing report")

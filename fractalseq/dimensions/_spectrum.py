@@ -216,6 +216,7 @@ def _word_level_data(
             batches.add(i, labels, counts, box_influence(counts, qs))
             if reps is not None and plan is not None:
                 reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
+            del labels, words, counts  # one depth's labels at a time
         cov = batches.covariance()
     x = depths * math.log(1.0 / ratio)
     dl, cl = limits_from(distinct, occ, unseen, starve)

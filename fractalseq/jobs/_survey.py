@@ -90,6 +90,9 @@ class SurveyOptions:
         Linkage rule of the clustering (``average``, ``complete``, ``single``, ``weighted``).
     reader:
         Extra reader options (numeric columns, bins ...), as a sorted tuple of pairs.
+    quick:
+        First look: each source's profile without bootstrap, consistency table and compressor
+        bound (:data:`fractalseq.jobs._profile.QUICK_SKIPS`).
     """
 
     fmt: str = "auto"
@@ -101,6 +104,7 @@ class SurveyOptions:
     seed: int = 0
     linkage: str = "average"
     reader: tuple[tuple[str, Any], ...] = ()
+    quick: bool = False
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "seed", check_seed(self.seed))
@@ -137,6 +141,7 @@ class SurveyOptions:
             "seed": self.seed,
             "reader": [list(kv) for kv in self.reader],
             "fractalseq": __version__,
+            **({"quick": True} if self.quick else {}),  # absent otherwise: earlier cache keys stay valid
         }
 
     def to_dict(self) -> dict:
@@ -151,6 +156,7 @@ class SurveyOptions:
             "seed": self.seed,
             "linkage": self.linkage,
             "reader": {k: v for k, v in self.reader},
+            **({"quick": True} if self.quick else {}),
         }
 
 
@@ -187,7 +193,7 @@ def profile_row(arr: SymbolArray, options: SurveyOptions) -> dict:
     from fractalseq.resampling._options import Resampling
 
     resampling = Resampling(n_boot=DEFAULT_BOOT, seed=options.seed)
-    result = profile_source(arr, depth=options.depth, ratio=options.ratio, resampling=resampling)
+    result = profile_source(arr, depth=options.depth, ratio=options.ratio, resampling=resampling, quick=options.quick)
     data = result.to_dict() if hasattr(result, "to_dict") else dict(result)
     return json.loads(to_json(data))
 
