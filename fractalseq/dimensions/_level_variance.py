@@ -227,6 +227,23 @@ class BatchSums:
         self.sums[level] += weight * out
         self.total[level] += weight * float(np.sum(counts))
 
+    def add_counts(self, level: int, labels: np.ndarray, counts: np.ndarray, qs: np.ndarray) -> None:
+        """:meth:`add` with the influence table of ``counts`` (:func:`box_influence`), built one q at a time
+        when it would exceed :data:`WHOLE_TABLE_CELLS` cells (the same sums, in the same order)."""
+        qs = np.asarray(qs, dtype=np.float64)
+        if counts.size * qs.size <= WHOLE_TABLE_CELLS:
+            self.add(level, labels, counts, box_influence(counts, qs))
+            return
+        lab = np.ascontiguousarray(labels)
+        out = np.zeros((self.B, qs.size))
+        col = np.zeros((self.B, 1))
+        for j in range(qs.size):
+            col[:] = 0.0
+            _batch_sums(lab, np.ascontiguousarray(box_influence(counts, qs[j : j + 1])), self.b, col)
+            out[:, j] = col[:, 0]
+        self.sums[level] += 1.0 * out
+        self.total[level] += 1.0 * float(np.sum(counts))
+
     def covariance(self) -> np.ndarray | None:
         """``(Q, L, L)`` batch-means covariance of the level statistics; ``None`` with fewer than 10 batches."""
         if self.B < 10:
