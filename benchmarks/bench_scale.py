@@ -186,7 +186,7 @@ def main() -> int:
                 reference = ref["seconds"] / mbase
                 extra["reference"] = {"command": "xz -9 -T1 (same FASTA file)", "mbase": mbase, **ref,
                                       "seconds_per_mbase": round(reference, 3)}
-            cmds = commands(path, work, mbase if records == 1 else mbase, args.learn_max)
+            cmds = commands(path, work, mbase, args.learn_max)
             if mbase >= 1000:  # the gigabase run: the bounded commands only
                 cmds = {k: v for k, v in cmds.items() if k in ("count --depth 16", "profile --quick", "score --online --baselines none")}
             for name, argv in cmds.items():

@@ -66,7 +66,8 @@ def _item_rows(labels, span, ell, m, row_ptr, blocks, counts):
     T = labels.shape[0]
     last = np.full(m, -1, dtype=np.int32)
     nb = (T + ell - 1) // ell
-    fill = row_ptr[:-1].copy()
+    # row_ptr[i] serves as row i's fill cursor (no copy of it); afterwards it holds each row's end,
+    # shifted back by one place into the row offsets
     for b in range(nb):
         a = b * ell
         e = min(a + ell, T)
@@ -75,11 +76,14 @@ def _item_rows(labels, span, ell, m, row_ptr, blocks, counts):
             if lab >= 0:
                 if last[lab] != b:
                     last[lab] = b
-                    blocks[fill[lab]] = b
-                    counts[fill[lab]] = 1
-                    fill[lab] += 1
+                    blocks[row_ptr[lab]] = b
+                    counts[row_ptr[lab]] = 1
+                    row_ptr[lab] += 1
                 else:
-                    counts[fill[lab] - 1] += 1
+                    counts[row_ptr[lab] - 1] += 1
+    for i in range(m, 0, -1):
+        row_ptr[i] = row_ptr[i - 1]
+    row_ptr[0] = 0
 
 
 @dataclass(frozen=True)
