@@ -207,7 +207,7 @@ def main() -> int:
         "rows": rows, **extra,
     }
     lines = [
-        "| command | Mbase | records | peak memory | bytes/symbol | time | s/Mbase | speed vs xz -9 |",
+        "| command | Mbase | records | peak memory | bytes/symbol | time | s/Mbase | xz -9 time / this time |",
         "|---|---:|---:|---:|---:|---:|---:|---:|",
     ]
     for r in rows:
