@@ -23,6 +23,8 @@ def count(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     save: Optional[Path] = typer.Option(None, "--save", help="Write the merged counts to this .npz file (loads without pickle)."),
     top: int = typer.Option(0, "--top", help="Also list the TOP most frequent words at the deepest depth (0 = none)."),
     json_out: bool = common.JSON,
@@ -41,7 +43,7 @@ def count(
 
     if save is not None:
         check_writable(save, force)
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties)
     with common.progress(quiet) as bar:
         task = bar.add_task("counting", total=len(paths))
         summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task))
@@ -63,19 +65,21 @@ def count(
             f"{r['distinct'] / r['possible']:.4f}",
         )
     common.out_console.print(table)
-    for p, r in reports:
-        if r["dropped_total"]:
-            parts = ", ".join(f"{k}: {v:,}" for k, v in sorted(r["dropped"].items()))
-            common.err_console.print(f"{p}: dropped {r['dropped_total']:,} symbols ({parts})")
     if top:
         t2 = Table(title=f"Most frequent {wc.depth}-words")
         t2.add_column("word")
         t2.add_column("count", justify="right")
         for row in result["top"]:
-            t2.add_row(row["word"], f"{row['count']:,}")
+            t2.add_row(common.safe(str(row["word"])), f"{row['count']:,}")
         common.out_console.print(t2)
+    from fractalseq.results import caution_for
+    from fractalseq.stream import read_summary
+
+    for p, r in reports:  # what each reader reported: format, lines cut, symbols left out...
+        common.read_notes(read_summary(r.get("notes"), r.get("dropped")), p if len(reports) > 1 else "")
+    common.caution_line(caution_for([wc.alphabet]))
     if save is not None and not quiet:
-        common.err_console.print(f"saved counts to {save}")
+        common.err_console.print(f"saved counts to {common.safe(str(save))}", markup=False, highlight=False)
 
 
 def register(app: typer.Typer) -> None:

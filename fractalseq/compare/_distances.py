@@ -178,6 +178,25 @@ class Clustering:
         root = self.linkage[-1]
         return sorted(members(int(root[0]))), sorted(members(int(root[1])))
 
+    def top_groups(self, tolerance: float = 1e-9) -> list[list[int]]:
+        """The groups joined at the root's height: two, or more when several merges tie at the top.
+
+        Sources that share nothing (logs with no common template are at the
+        largest possible distance) are joined at one height; the order in which
+        tied merges happen is arbitrary, so they are reported together.
+        """
+        from scipy.cluster.hierarchy import fcluster
+
+        s = self.linkage.shape[0] + 1
+        if s < 2:
+            return [list(range(s))]
+        top = float(self.linkage[-1][2])
+        labels = fcluster(self.linkage, t=top - tolerance, criterion="distance")
+        groups: dict[int, list[int]] = {}
+        for i, lab in enumerate(labels):
+            groups.setdefault(int(lab), []).append(i)
+        return sorted(groups.values(), key=lambda g: g[0])
+
     def to_dict(self) -> dict:
         return {
             "method": self.method,

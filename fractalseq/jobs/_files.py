@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Callable, Sequence
 
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache
-from fractalseq.jobs._inputs import ReaderOptions, check_seed
+from fractalseq.jobs._inputs import ReaderOptions, check_seed, default_window
 from fractalseq.jobs._sources import SourceSpec, expand_inputs
 from fractalseq.results import Result
 from fractalseq.runner import Engine, SerialEngine
@@ -241,7 +241,7 @@ def parse_penalty(text: str | float) -> float | str:
 
 def scan_file(
     path: str | os.PathLike,
-    window: int,
+    window: int | None = None,
     step: int | None = None,
     depth: int | None = None,
     *,
@@ -253,8 +253,11 @@ def scan_file(
 ) -> "ScanResult":
     """Read one input and scan it in sliding windows (what ``fractalseq scan`` does).
 
-    ``on_read`` is called once the input is in memory.  See
-    :func:`fractalseq.compare._scan.scan_stream` for the other parameters.
+    ``window=None`` chooses it (:func:`~fractalseq.jobs._inputs.default_window`): for
+    line-oriented inputs (logs, numeric columns: one symbol per line or row) the size that
+    gives at least 50 windows (at least 40 lines), else 10,000 symbols.  ``on_read`` is
+    called once the input is in memory.  See :func:`fractalseq.compare._scan.scan_stream`
+    for the other parameters.
     """
     from fractalseq.compare._scan import scan_stream
 
@@ -263,6 +266,15 @@ def scan_file(
     arr = (reader or ReaderOptions()).read(path)
     if on_read is not None:
         on_read()
+    lined = arr.report.positions is not None
+    if window is None:
+        window = default_window(len(arr), lined, overlapping=True)
+    if lined and len(arr) < window:
+        unit = arr.report.positions.unit
+        raise ParameterError(
+            f"{arr.name} has {len(arr)} {unit}{'' if len(arr) == 1 else 's'} to scan, fewer than one window of {window} {unit}s; "
+            "give a smaller window.", parameter="window",
+        )
     return scan_stream(arr, window, step, depth, ratio, pen, seed)
 
 
@@ -336,13 +348,17 @@ def survey_files(
     SurveyResult
         The result ``fractalseq survey ... --json`` prints.
     """
-    from fractalseq.jobs._survey import SurveyOptions, run_survey
+    from fractalseq.jobs._survey import SurveyOptions, column_specs, run_survey
 
     options = options or SurveyOptions()
     if inputs and all(isinstance(i, SourceSpec) for i in inputs) and from_list is None:
         specs = list(inputs)
     else:
         specs = expand_inputs([str(i) for i in inputs], from_list, stdin_lines)
+    specs = column_specs(specs, options.reader_options)  # --column a,b / all: one source per column
+    if common_cuts and any(s.column is not None for s in specs):
+        raise ParameterError("Common cuts pool the values of one column across files; with several columns, survey "
+                             "one column at a time or leave out common cuts.", parameter="common_cuts")
     if common_cuts:
         reader = options.reader_options
         if reader.thresholds is not None or reader.ordinal:

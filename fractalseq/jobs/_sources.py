@@ -17,10 +17,12 @@ __all__ = ["SourceSpec", "expand_inputs"]
 
 @dataclass(frozen=True)
 class SourceSpec:
-    """One input of a survey: a path (``-`` for standard input) and its display name."""
+    """One input of a survey: a path (``-`` for standard input), its display name, and for one column of a
+    numeric table read as its own source (``--column a,b`` or ``all``), that column (``None``: the reader's)."""
 
     path: str
     name: str
+    column: str | None = None
 
 
 def _folder_files(folder: Path) -> list[Path]:

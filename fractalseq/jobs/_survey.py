@@ -43,10 +43,10 @@ from fractalseq.compare._distances import (
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
 from fractalseq.io._outputs import to_json
-from fractalseq.jobs._inputs import DEFAULT_BINS, ReaderOptions, check_seed
+from fractalseq.jobs._inputs import ReaderOptions, check_seed
 from fractalseq.jobs._sources import SourceSpec, expand_inputs
 from fractalseq.report.survey import SurveyView
-from fractalseq.results import Result
+from fractalseq.results import Result, caution_for
 from fractalseq.runner import Engine, SerialEngine, pause_point
 from fractalseq.stream import ReadReport, SymbolArray
 from fractalseq.words._counts import WordCounts, count_words
@@ -57,6 +57,7 @@ __all__ = [
 ]
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
+
 #: Deepest word length stored per source for the distances (capped by the alphabet's address width).
 STORE_DEPTH = 8
 #: Cap on the number of possible words A**n stored per source.
@@ -123,11 +124,7 @@ class SurveyOptions:
     @property
     def reader_options(self) -> ReaderOptions:
         """The reader settings of every source as one :class:`ReaderOptions`."""
-        extra = dict(self.reader)
-        return ReaderOptions(
-            self.fmt, self.alphabet, self.policy, extra.get("column"), extra.get("bins", DEFAULT_BINS),
-            None if extra.get("thresholds") is None else tuple(extra["thresholds"]), extra.get("ordinal", 0),
-        )
+        return ReaderOptions.from_numeric(self.fmt, self.alphabet, self.policy, dict(self.reader))
 
     def task_params(self) -> dict:
         """Parameters that change a per-source result (the cache key)."""
@@ -211,7 +208,8 @@ def survey_task(task: SurveyTask) -> dict:
         arr = SymbolArray(alphabet, task.codes, task.starts if task.starts is not None else np.zeros(0, np.int64), task.spec.name,
                           task.report if task.report is not None else ReadReport())
     else:
-        arr = opts.reader_options.open(task.spec.path, name=task.spec.name).to_array()
+        read = opts.reader_options if task.spec.column is None else replace(opts.reader_options, column=task.spec.column)
+        arr = read.open(task.spec.path, name=task.spec.name).to_array()
     if len(arr) == 0:
         raise InputError(f"{task.spec.path} holds no usable symbols; check the file, its format and the alphabet.")
     arr.name = task.spec.name
@@ -425,6 +423,19 @@ def _content_hash(spec: SourceSpec, arr: SymbolArray | None) -> str:
     return "file:" + file_hash(spec.path)
 
 
+def column_specs(specs: Sequence[SourceSpec], reader: ReaderOptions) -> list[SourceSpec]:
+    """The sources with a multi-column choice (``column="a,b"`` or ``"all"``) spread out: one per column,
+    named ``NAME:COLUMN``; other sources unchanged."""
+    out: list[SourceSpec] = []
+    for spec in specs:
+        if spec.column is not None:
+            out.append(spec)
+            continue
+        for col, _ in reader.per_column(spec.path):
+            out.append(spec if col is None else SourceSpec(spec.path, f"{spec.name}:{col}", col))
+    return out
+
+
 def _read_stdin(spec: SourceSpec, options: SurveyOptions) -> SymbolArray:
     arr = options.reader_options.open("-", name=spec.name).to_array()
     if len(arr) == 0:
@@ -470,6 +481,7 @@ def run_survey(
     """
     if not specs:
         raise InputError("No inputs were given; name files, folders, patterns or a list file.")
+    specs = column_specs(specs, options.reader_options)
     engine = engine or SerialEngine()
     cache = cache or ResultCache(None)
     started = time.time()
@@ -483,7 +495,7 @@ def run_survey(
     for i, spec in enumerate(specs):
         arr = _read_stdin(spec, options) if spec.path == "-" else None
         content = _content_hash(spec, arr)
-        key = cache_key(content, params)
+        key = cache_key(content, params if spec.column is None else {**params, "column": spec.column})
         hashes.append(content)
         keys.append(key)
         hit, problem = cache.lookup(key)
@@ -589,7 +601,8 @@ def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: S
         spectrum=SpectrumDistances(spec_d),
         clustering=clustering,
     )
-    return SurveyResult(tuple(sources), distances, options, tuple(notes))
+    kinds = [((s.get("profile") or {}).get("alphabet") or {}).get("name", "") for s in sources]
+    return SurveyResult(tuple(sources), distances, options, tuple(notes), caution=caution_for(kinds))
 
 
 def report_view(result: SurveyResult) -> SurveyView:
@@ -609,7 +622,7 @@ def report_view(result: SurveyResult) -> SurveyView:
             f"profile depth {'automatic' if result.options.depth is None else result.options.depth}, "
             f"ratio k = {result.options.ratio}, seed {result.options.seed}"
         ),
-        caution=CAUTION,
+        caution=result.caution,
     )
 
 
