@@ -277,7 +277,7 @@ class SymbolArray:
             report.dropped = dict(self.report.dropped)
             yield from self.chunks(chunk_size)
 
-        s = SymbolStream(self.alphabet, factory, self.name)
+        s = SymbolStream(self.alphabet, factory, self.name, length_hint=len(self.codes))
         s.report = self.report
         return s
 
