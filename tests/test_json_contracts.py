@@ -237,22 +237,25 @@ COMMANDS = {
     "scan-numeric": ("scan --json: the weekly Mauna Loa CO2 series (reference/timeseries), default window of rows; "
                      "file line numbers and dates of the rows",
                      lambda r: [["scan", CO2, "--json", "--quiet"]], (0,)),
-    "score-online-log": ("score --json --online: a real sshd log with blank lines (reference/logs/fail2ban-sshd.log); "
+    "score-online-log": ("score --json --online --baselines all: a real sshd log with blank lines (reference/logs/fail2ban-sshd.log); "
                          "windows located by file line numbers",
-                         lambda r: [["score", LOGS / "fail2ban-sshd.log", "--online", "--json", "--quiet"]], (0,)),
+                         lambda r: [["score", LOGS / "fail2ban-sshd.log", "--online", "--baselines", "all", "--json", "--quiet"]], (0,)),
     "next-log": ("next --json: a context of template ids under the model of the demo's first relay log batch",
                  lambda r: [_learn_log(r), ["next", "#0 #1", "--model", "relay.npz", "--top", "3", "--json"]], (0,)),
     "learn-log": ("learn --json --format log: model of the demo's first relay log batch (template table)",
                   lambda r: [_learn_log(r)], (0,)),
-    "score-fitted": ("score --json --model: kelp-sticky sample read with the kelp-chain model",
+    # score: --baselines all, so the contract holds every baseline key (the default, markov, leaves out
+    # baselines.compressors; none leaves baselines an empty object)
+    "score-fitted": ("score --json --model --baselines all: kelp-sticky sample read with the kelp-chain model",
                      lambda r: [_learn_dna(r), ["score", _samples(r) / "kelp-sticky.fa", "--model", "kelp.npz",
-                                                "--json", "--quiet"]], (0,)),
-    "score-online": ("score --json --online: kelp-sticky sample, no model",
-                     lambda r: [["score", _samples(r) / "kelp-sticky.fa", "--online", "--json", "--quiet"]], (0,)),
-    "score-fitted-log": ("score --json --model --format log: second relay batch read with the first batch's model "
-                         "(unseen templates)",
+                                                "--baselines", "all", "--json", "--quiet"]], (0,)),
+    "score-online": ("score --json --online --baselines all: kelp-sticky sample, no model",
+                     lambda r: [["score", _samples(r) / "kelp-sticky.fa", "--online", "--baselines", "all",
+                                 "--json", "--quiet"]], (0,)),
+    "score-fitted-log": ("score --json --model --format log --baselines all: second relay batch read with the first "
+                         "batch's model (unseen templates)",
                          lambda r: [_learn_log(r), ["score", _logs(r) / "relay-week2.log", "--format", "log",
-                                                    "--model", "relay.npz", "--json", "--quiet"]], (0,)),
+                                                    "--model", "relay.npz", "--baselines", "all", "--json", "--quiet"]], (0,)),
     "next": ("next --json: most likely symbols after ACGTAC under the kelp-chain model",
              lambda r: [_learn_dna(r), ["next", "ACGTAC", "--model", "kelp.npz", "--top", "4", "--json"]], (0,)),
 }

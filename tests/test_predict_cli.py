@@ -55,7 +55,8 @@ def test_learn_score_next_round_trip(files: Path, capsys):
     assert doc["cells"] > 0 and doc["pruned_cells"] == 0 and doc["baseline_order"] >= 0
     assert model.exists()
 
-    code, out, _ = run(capsys, "score", files / "test.fa", "--model", model, "--json", "--window", "1000", "--top", "3", "-q")
+    code, out, _ = run(capsys, "score", files / "test.fa", "--model", model, "--json", "--window", "1000", "--top", "3", "-q",
+                         "--baselines", "all")
     assert code == 0
     doc = json.loads(out)
     src = doc["sources"][0]
@@ -171,7 +172,7 @@ def test_score_table_lists_records_and_windows(files: Path, capsys):
 
 
 def test_online_score_of_lambda_beats_its_compressors(capsys):
-    code, out, _ = run(capsys, "score", "--online", LAMBDA, "--json", "-q")
+    code, out, _ = run(capsys, "score", "--online", LAMBDA, "--json", "-q", "--baselines", "all")
     assert code == 0
     src = json.loads(out)["sources"][0]
     assert src["length"] == 48502  # NC_001416.1 (Sanger et al. 1982)

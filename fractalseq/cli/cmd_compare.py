@@ -56,6 +56,9 @@ def survey(
     ratio: float = common.RATIO,
     distance_depth: Optional[int] = typer.Option(None, "--distance-depth", min=1, help="Word length n of the Jensen-Shannon distances (symbols); default: largest n with A^n x 20 <= shortest source, at most 8."),
     linkage: str = typer.Option("average", "--linkage", help="Clustering linkage: average, complete, single or weighted."),
+    quick: bool = typer.Option(
+        False, "--quick", help="First look at a big corpus: profiles without bootstrap intervals, consistency table and compressor bound."
+    ),
     out: Optional[Path] = common.OUT,
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
@@ -106,7 +109,7 @@ def survey(
 
     options = SurveyOptions.from_reader(
         reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed),
-        depth=depth, ratio=ratio, distance_depth=distance_depth, seed=seed, linkage=linkage,
+        depth=depth, ratio=ratio, distance_depth=distance_depth, seed=seed, linkage=linkage, quick=quick,
     )
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
     specs = column_specs(expand_inputs(list(paths or []), from_list, stdin_lines), options.reader_options)

@@ -206,6 +206,10 @@ def score(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    baselines: str = typer.Option(
+        "markov", "--baselines",
+        help="Baselines beside the score: markov (the KT Markov model, cheap), all (also lzma, bz2 and zlib, which take longer than the predictor), or none.",
+    ),
     delay: int = common.DELAY,
     ties: str = common.TIES,
     json_out: bool = common.JSON,
@@ -219,8 +223,9 @@ def score(
     information content. Beside every score: top-1 and top-3 accuracy, the
     expected calibration error, the best fixed-order adaptive Markov model
     (Krichevsky-Trofimov estimates; order chosen on the training data, or in
-    hindsight on the file itself with --online) and lzma/bz2/zlib on the same
-    symbols (as text and packed). The model options (--depths ... --strands)
+    hindsight on the file itself with --online) and, with --baselines all,
+    lzma/bz2/zlib on the same symbols (as text and packed); --baselines none
+    leaves every baseline out (the quickest score). The model options (--depths ... --strands)
     apply to --online only. Exit status 2 for unusable input, e.g. data whose
     alphabet differs from the model's. With a model, data are read with the
     model's symbolization (its log templates, its numeric cut points) unless
@@ -238,7 +243,7 @@ def score(
         report = score_files(
             list(paths), model, online=online, fmt=fmt, alphabet=alphabet, policy=policy,
             reader=reader_options(column, bins, thresholds, ordinal, delay, ties), window=window, top=top, params=params,
-            on_source=lambda _: bar.advance(task),
+            on_source=lambda _: bar.advance(task), baselines=baselines,
         )
     if json_out:
         typer.echo(to_json(report.to_dict()), nl=False)
@@ -248,13 +253,14 @@ def score(
     for col in ("source", "symbols", "bits/symbol", "top-1", "top-3", "calib. error", "Markov KT (order)", "best compressor"):
         t.add_column(col, justify="left" if col in ("source", "best compressor") else "right")
     for r in report.sources:
-        mk = r.baselines.get("markov", {})
-        comp = r.baselines.get("compressors", {})
+        mk = r.baselines.get("markov")
+        comp = r.baselines.get("compressors")
         cname, cbits = _compressor_summary(comp) if comp else ("", float("nan"))
         t.add_row(
-            r.name, f"{r.length:,}", f"{r.bits_per_symbol:.4f}", f"{r.top1_accuracy:.3f}", f"{r.top3_accuracy:.3f}",
+            common.safe(r.name), f"{r.length:,}", f"{r.bits_per_symbol:.4f}", f"{r.top1_accuracy:.3f}", f"{r.top3_accuracy:.3f}",
             f"{r.expected_calibration_error:.4f}",
-            f"{mk.get('bits_per_symbol', float('nan')):.4f} ({mk.get('order', '-')})", f"{cbits:.4f} {cname}",
+            f"{mk['bits_per_symbol']:.4f} ({mk['order']})" if mk else "not computed",
+            f"{cbits:.4f} {cname}" if comp else "not computed",
         )
     common.out_console.print(t)
     common.out_console.print(f"All sources: {report.bits_per_symbol:.4f} bits/symbol over {report.length:,} symbols.")

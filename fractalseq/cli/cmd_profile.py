@@ -25,6 +25,10 @@ PROFILE_DEPTH = typer.Option(
     help="Deepest word length (symbols) of the block-entropy table (default: deep enough for the longest words the data support, at most 12).",
 )
 LEVEL = typer.Option(0.95, "--level", help="Confidence level of the intervals, between 0.5 and 1.")
+QUICK = typer.Option(
+    False, "--quick",
+    help="First look: no bootstrap (--boot ignored; no bootstrap intervals), no consistency table, no compressor bound.",
+)
 
 
 def parse_qs(text: str) -> tuple[float, ...]:
@@ -228,6 +232,7 @@ def profile(
     boot: int = BOOT,
     level: float = LEVEL,
     seed: int = common.SEED,
+    quick: bool = QUICK,
     force: bool = common.FORCE,
     quiet: bool = common.QUIET,
     per_record: bool = typer.Option(
@@ -247,7 +252,10 @@ def profile(
     --out DIR each input gets a folder DIR/NAME (index.html, profile.json, CSV
     tables, PNG figures) and DIR/index.html links them. --json prints the same
     numbers on standard output (the JSON contract in the README); the same
-    input and --seed give the same bytes.
+    input and --seed give the same bytes. --quick leaves out the bootstrap, the
+    consistency table and the compressor bound for a first look at a big input.
+    Beyond 2^22 symbols the consistency table and the density image use the
+    first 2^22 symbols (the JSON's settings and notes say so).
 
     With --per-record every record of an input (the chromosomes of an assembly, the
     contigs of a metagenome) is profiled on its own, as if it were a file of its own,
@@ -264,7 +272,7 @@ def profile(
     caution = profile_caution
 
     # validate everything before reading anything
-    settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed)
+    settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed, quick=quick)
     read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
     _check_out(out, force)
     parameters = settings.parameters(read)
@@ -284,7 +292,7 @@ def profile(
                 bar.advance(task)
 
             res = profile_source(arr, ratio=settings.ratio, qs=settings.qs, depth=settings.depth,
-                                 resampling=settings.resampling, progress=on_step)
+                                 resampling=settings.resampling, progress=on_step, quick=settings.quick)
             results.append(res)
             if stage is not None:
                 bar.update(task, description=f"{label}: writing report")

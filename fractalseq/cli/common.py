@@ -108,6 +108,7 @@ OPTION_OF: dict[str, str] = {
     "column": "--column",
     "thresholds": "--thresholds",
     "qs": "--q",
+    "baselines": "--baselines",
     "workers": "--workers",
     "engine": "--engine",
     "address": "--scheduler",

@@ -97,27 +97,57 @@ def variance_from_influence(counts: np.ndarray, g: np.ndarray) -> np.ndarray:
     return np.maximum((c @ (g * g)) / N - mean * mean, 0.0) / N
 
 
+#: Levels with at most this many (box, q) cells build the whole influence table at once; larger ones
+#: go one q at a time (memory of a few box-length vectors instead of ``boxes x Q`` tables).
+WHOLE_TABLE_CELLS = 1 << 22
+
+
 def word_level_variances(wc: WordCounts, top: int, qs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Delta-method variances of ``H_q(n)``, n = 1..top, and of ``H_q(n+1) - H_q(n)``.
 
     Returns ``(var, dvar)`` of shapes ``(top, Q)`` and ``(top - 1, Q)``.  The parent of
     an (n+1)-word is its n-symbol prefix (the address shifted right by one symbol).
+    Levels beyond :data:`WHOLE_TABLE_CELLS` cells are computed one q at a time (the same
+    influence values; the sums over boxes may differ in the last bit from the whole-table product).
     """
     Q = qs.size
     var = np.full((top, Q), np.nan)
     dvar = np.full((max(top - 1, 0), Q), np.nan)
-    prev_addr = prev_g = None
+    prev_addr = prev_g = prev_cnt = None
     shift = np.uint64(wc.bits)
     for i in range(top):
         addr, cnt = wc.words(i + 1)
-        g = box_influence(cnt, qs)
-        var[i] = variance_from_influence(cnt, g)
-        if prev_addr is not None and prev_g is not None:
-            parent = np.searchsorted(prev_addr, addr.astype(np.uint64) >> shift)
+        addr = addr.astype(np.uint64, copy=False)
+        parent = None
+        if prev_addr is not None:
+            parent = np.searchsorted(prev_addr, addr >> shift)
             parent = np.minimum(parent, prev_addr.size - 1)
-            dvar[i - 1] = variance_from_influence(cnt, g - prev_g[parent])
-        prev_addr, prev_g = addr.astype(np.uint64), g
+        if cnt.size * Q <= WHOLE_TABLE_CELLS and (prev_cnt is None or prev_g is not None):
+            g = box_influence(cnt, qs)
+            var[i] = variance_from_influence(cnt, g)
+            if parent is not None and prev_g is not None:
+                dvar[i - 1] = variance_from_influence(cnt, g - prev_g[parent])
+            prev_g = g if cnt.size * Q <= WHOLE_TABLE_CELLS else None
+        else:
+            c = np.asarray(cnt, dtype=np.float64)
+            N = float(c.sum())
+            for j in range(Q):
+                gj = box_influence(cnt, qs[j : j + 1])[:, 0]
+                var[i, j] = _column_variance(c, N, gj)
+                if parent is not None and prev_cnt is not None:
+                    pj = box_influence(prev_cnt, qs[j : j + 1])[:, 0]
+                    dvar[i - 1, j] = _column_variance(c, N, gj - pj[parent])
+            prev_g = None
+        prev_addr, prev_cnt = addr, cnt
     return var, dvar
+
+
+def _column_variance(c: np.ndarray, N: float, g: np.ndarray) -> float:
+    """:func:`variance_from_influence` for one column."""
+    if N <= 0:
+        return float("nan")
+    mean = float(np.dot(c, g)) / N
+    return max(float(np.dot(c, g * g)) / N - mean * mean, 0.0) / N
 
 
 @njit(cache=True)
@@ -196,6 +226,23 @@ class BatchSums:
         _batch_sums(np.ascontiguousarray(labels), np.ascontiguousarray(g), self.b, out)
         self.sums[level] += weight * out
         self.total[level] += weight * float(np.sum(counts))
+
+    def add_counts(self, level: int, labels: np.ndarray, counts: np.ndarray, qs: np.ndarray) -> None:
+        """:meth:`add` with the influence table of ``counts`` (:func:`box_influence`), built one q at a time
+        when it would exceed :data:`WHOLE_TABLE_CELLS` cells (the same sums, in the same order)."""
+        qs = np.asarray(qs, dtype=np.float64)
+        if counts.size * qs.size <= WHOLE_TABLE_CELLS:
+            self.add(level, labels, counts, box_influence(counts, qs))
+            return
+        lab = np.ascontiguousarray(labels)
+        out = np.zeros((self.B, qs.size))
+        col = np.zeros((self.B, 1))
+        for j in range(qs.size):
+            col[:] = 0.0
+            _batch_sums(lab, np.ascontiguousarray(box_influence(counts, qs[j : j + 1])), self.b, col)
+            out[:, j] = col[:, 0]
+        self.sums[level] += 1.0 * out
+        self.total[level] += 1.0 * float(np.sum(counts))
 
     def covariance(self) -> np.ndarray | None:
         """``(Q, L, L)`` batch-means covariance of the level statistics; ``None`` with fewer than 10 batches."""

@@ -72,7 +72,7 @@ from typing import Sequence
 import numpy as np
 
 from fractalseq.alphabet import Alphabet
-from fractalseq.dimensions._level_variance import BatchSums, box_influence, word_level_variances
+from fractalseq.dimensions._level_variance import BatchSums, word_level_variances
 from fractalseq.dimensions._levels import LevelData, LevelStats, level_stats, level_vector, limits_from, replicate_vectors
 from fractalseq.dimensions._parameters import (
     AUTO_ADDRESS_BITS,
@@ -213,9 +213,10 @@ def _word_level_data(
         for i, n in enumerate(depths):
             labels, words = bs.word_labels(arr, int(n))
             counts = np.bincount(labels[labels >= 0], minlength=words.size)
-            batches.add(i, labels, counts, box_influence(counts, qs))
+            batches.add_counts(i, labels, counts, qs)
             if reps is not None and plan is not None:
                 reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
+            del labels, words, counts  # one depth's labels at a time
         cov = batches.covariance()
     x = depths * math.log(1.0 / ratio)
     dl, cl = limits_from(distinct, occ, unseen, starve)

@@ -28,6 +28,7 @@ from typing import Any, Callable, Iterable, Sequence
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import FractalseqError, InputError, ParameterError
 from fractalseq.jobs._inputs import default_window
+from fractalseq.predict._baselines import baseline_kinds
 from fractalseq.predict._online import evaluate_online
 from fractalseq.predict._predictor import CellPredictor
 from fractalseq.predict._results import DEFAULT_TOP_WINDOWS, DEFAULT_WINDOW, PredictionResult
@@ -243,6 +244,7 @@ def score_files(
     top: int = DEFAULT_TOP_WINDOWS,
     params: dict | None = None,
     on_source: Callable[[str], None] | None = None,
+    baselines: str = "markov",
 ) -> ScoreReport:
     """Score files with a fitted model (a model file or object) or online (``online=True``, a fresh model per file).
 
@@ -267,7 +269,12 @@ def score_files(
         Online mode: parameters of the predictor (``depths``, ``smoothing``, ``learning_rate``...).
     on_source:
         Called with each file's name once it is scored (progress display).
+    baselines:
+        ``"markov"`` (default: the KT Markov baseline, cheap), ``"all"`` (also lzma, bz2 and zlib on the
+        same symbols, which take longer than the predictor itself) or ``"none"``; a baseline not
+        computed is absent from each source's ``baselines`` object.
     """
+    baseline_kinds(baselines)  # one sentence for a bad choice, before anything is read
     if (model is None) == (not online):
         raise ParameterError("Give either a model (fitted mode) or online=True (no model), not both or neither.", parameter="model")
     model_name = None
@@ -294,9 +301,9 @@ def score_files(
             size = window if window is not None else DEFAULT_WINDOW
             src = stream
         if model is not None:
-            res = model.evaluate(src, window=size, top_windows=top)
+            res = model.evaluate(src, window=size, top_windows=top, baselines=baselines)
         else:
-            res = evaluate_online(src, window=size, top_windows=top, **(params or {}))
+            res = evaluate_online(src, window=size, top_windows=top, baselines=baselines, **(params or {}))
         if res.length == 0:
             raise InputError(f"{p} holds no usable symbols; check the file and the alphabet and format it is read with.")
         rep = arr.report if arr is not None else stream.report

@@ -61,7 +61,8 @@ from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
 
 __all__ = [
-    "CAUTION_GENERAL", "CAUTION_GENOMIC", "DEFAULT_BOOT", "FORMAT", "STEPS", "VERSION", "ProfileResult", "ProfileSettings", "profile_caution",
+    "CAUTION_GENERAL", "CAUTION_GENOMIC", "CONSISTENCY_MAX_LENGTH", "DEFAULT_BOOT", "FORMAT", "IMAGE_MAX_LENGTH",
+    "QUICK_SKIPS", "STEPS", "VERSION", "ProfileResult", "ProfileSettings", "profile_caution",
     "ScalingCurve",
     "auto_depth", "check_qs", "contract", "image_levels", "profile_source",
 ]
@@ -76,6 +77,12 @@ MAX_AUTO_DEPTH = 12
 LZ_MAX_LENGTH = 1 << 19
 #: The compressor bound compresses at most this many symbols.
 COMPRESS_MAX_LENGTH = 1 << 18
+#: The consistency table's geometric side boxes the points of at most this many symbols (a prefix; the
+#: information side is then computed on the same prefix, and the JSON's ``settings`` says so).
+CONSISTENCY_MAX_LENGTH = 1 << 22
+#: The density image draws the points of at most this many symbols (a prefix; 2^22 points fill the
+#: largest image, 512 x 512 pixels, 16 times over).
+IMAGE_MAX_LENGTH = 1 << 22
 #: Shifted grids of the consistency table's extra column (0: none; the profile reports the aligned
 #: grid, on which the verdict rests, so the shifted column is left to :func:`fractalseq.dimensions._consistency.consistency_table`).
 CONSISTENCY_OFFSETS = 0
@@ -85,6 +92,9 @@ FALPHA_QS = (-2.0, -1.0, -0.5, 0.0, 0.5, 1.0, 1.5, 2.0, 3.0, 4.0)
 ABSENT_LIST = 25
 #: Records of the input listed in the JSON (the rest are counted).
 RECORDS_LISTED = 50
+
+#: What ``quick=True`` (``profile --quick``, ``survey --quick``) leaves out, for a first look at big corpora.
+QUICK_SKIPS = ("bootstrap intervals", "consistency table", "compressor bound")
 
 #: The steps of a profile, in order, as reported to a progress callback.
 STEPS = (
@@ -224,6 +234,9 @@ class ProfileSettings:
         Confidence level of the intervals, in (0.5, 1).
     seed:
         Seed of every random step (:func:`fractalseq.jobs._inputs.check_seed`).
+    quick:
+        First-look mode: no bootstrap (``n_boot`` becomes 0), no consistency table, no
+        compressor bound (:data:`QUICK_SKIPS`).
     """
 
     ratio: float = 0.5
@@ -232,9 +245,12 @@ class ProfileSettings:
     n_boot: int = DEFAULT_BOOT
     level: float = 0.95
     seed: int = 0
+    quick: bool = False
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "qs", check_qs(self.qs))
+        if self.quick:
+            object.__setattr__(self, "n_boot", 0)
         object.__setattr__(self, "ratio", check_ratio(self.ratio))
         rs = Resampling(n_boot=self.n_boot, seed=self.seed, level=self.level)  # the one check of these three
         if self.depth is not None and (isinstance(self.depth, bool) or not isinstance(self.depth, (int, np.integer)) or self.depth < 2):
@@ -266,6 +282,8 @@ class ProfileSettings:
         }
         if reader.numeric_options():
             out["reader"] = reader.numeric_options()
+        if self.quick:  # present only in quick mode, so the default document keeps its bytes
+            out["quick"] = True
         return out
 
 
@@ -400,13 +418,26 @@ def _rate_intervals(
 
 def _consistency(
     arr: SymbolArray, spec: sp.SpectrumResult, user_qs: tuple[float, ...], k: float, rs: Resampling,
-    offsets: int, notes: list[str],
+    offsets: int, notes: list[str], max_length: int | None = CONSISTENCY_MAX_LENGTH,
 ) -> cons.ConsistencyResult | None:
-    """Step 5: the consistency table (geometry against information), or ``None`` with a note saying why."""
+    """Step 5: the consistency table (geometry against information), or ``None`` with a note saying why.
+
+    Beyond ``max_length`` symbols both sides are measured on the prefix of that length (the point
+    cloud and its box labels cost about 30 bytes per symbol), with a note.
+    """
     L = len(arr)
     if L <= sp.TRANSIENT + 10:
         notes.append(f"consistency table: not computed, the stream has {L} symbols (needs more than {sp.TRANSIENT + 10})")
         return None
+    if max_length is not None and L > max_length:
+        notes.append(f"consistency table: both sides measured on the first {max_length:,} of {L:,} symbols")
+        try:
+            table = cons.consistency_table(arr.slice(0, max_length), user_qs, ratio=k, resampling=rs, offsets=offsets)
+        except FractalseqError as exc:
+            notes.append(f"consistency table: not computed ({exc})")
+            return None
+        notes.extend(f"consistency table: {f}" for f in table.flags)
+        return table
     block = spec.block
     info = None
     if spec.route == "word counts" and spec.rates:
@@ -427,7 +458,7 @@ def _consistency(
 
 def _rate_bounds(
     arr: SymbolArray, rates: dict[str, tuple[str, ent.EntropyEstimate]], lz_max_length: int | None,
-    compress_max_length: int | None, clock: _Clock, notes: list[str],
+    compress_max_length: int | None, clock: _Clock, notes: list[str], compressors: bool = True,
 ) -> None:
     """Step 6: Lempel-Ziv, the compressor bound and the online predictor, added to ``rates``."""
     clock.step("Lempel-Ziv")
@@ -437,7 +468,8 @@ def _rate_bounds(
         notes.append(f"LZ76: not computed ({exc})")
     clock.step("compressors")
     try:
-        rates["compressors"] = ("upper bound", ent.h_compressors(arr, max_length=compress_max_length))
+        if compressors:
+            rates["compressors"] = ("upper bound", ent.h_compressors(arr, max_length=compress_max_length))
     except FractalseqError as exc:
         notes.append(f"compressor bound: not computed ({exc})")
     clock.step("online predictor")
@@ -456,10 +488,14 @@ def _absent_words(wc: WordCounts, length: int, absent_list: int, notes: list[str
         return None
 
 
-def _encoding_image(arr: SymbolArray, k: float, image: bool) -> tuple[np.ndarray | None, int | None]:
-    """Step 8: the density image of the encoding and log2 of its side, or ``(None, None)``."""
+def _encoding_image(
+    arr: SymbolArray, k: float, image: bool, max_length: int | None = IMAGE_MAX_LENGTH
+) -> tuple[np.ndarray | None, int | None]:
+    """Step 8: the density image of the encoding (of a prefix of ``max_length`` symbols) and log2 of its side."""
     if not image:
         return None, None
+    if max_length is not None and len(arr) > max_length:
+        arr = arr.slice(0, max_length)
     levels = image_levels(len(arr))
     return density_image(points(arr, k), size=1 << levels), levels
 
@@ -490,6 +526,9 @@ def profile_source(
     absent_list: int = ABSENT_LIST,
     image: bool = True,
     progress: Callable[[str], None] | None = None,
+    consistency_max_length: int | None = CONSISTENCY_MAX_LENGTH,
+    image_max_length: int | None = IMAGE_MAX_LENGTH,
+    quick: bool = False,
 ) -> ProfileResult:
     """Measure one stream with every estimator of the package.
 
@@ -522,6 +561,12 @@ def profile_source(
         Compute the density image of the encoding.
     progress:
         Called with the name of each step of :data:`STEPS` as it starts.
+    consistency_max_length, image_max_length:
+        Prefix lengths for the consistency table (both sides) and the density image (``None``: whole
+        stream); the JSON's ``settings`` records them.
+    quick:
+        Leave out what :data:`QUICK_SKIPS` names (the bootstrap, so no intervals; the consistency
+        table; the compressor bound), each with a note: a first look at a big input.
 
     Returns
     -------
@@ -535,9 +580,11 @@ def profile_source(
                 f"{PROFILE_RESAMPLING.interval} intervals; leave resampling.{name} at its default.",
                 parameter=name,
             )
+    if quick:
+        rs = replace(rs, n_boot=0)
     n_boot, seed, level = rs.n_boot, rs.seed, rs.level
     clock = _Clock(progress)
-    settings = ProfileSettings(ratio, tuple(qs), depth, n_boot, level, seed)
+    settings = ProfileSettings(ratio, tuple(qs), depth, n_boot, level, seed, quick=bool(quick))
     arr, N = _checked_input(arr, settings)
     user_qs, k = settings.qs, settings.ratio
     L = len(arr)
@@ -559,12 +606,16 @@ def profile_source(
     rate_block = _rate_intervals(arr, found.rates, rs, spec.block, notes)
     rates: dict[str, tuple[str, ent.EntropyEstimate]] = {m: ("estimate", found.rates[m]) for m in ent.METHODS}
     clock.step("consistency table")  # 5. geometry against information
-    consistency = _consistency(arr, spec, user_qs, k, rs, offsets, notes)
-    _rate_bounds(arr, rates, lz_max_length, compress_max_length, clock, notes)  # 6. LZ76, compressors, predictor
+    if quick:
+        consistency = None
+        notes.append("quick mode: " + ", ".join(QUICK_SKIPS) + " left out")
+    else:
+        consistency = _consistency(arr, spec, user_qs, k, rs, offsets, notes, consistency_max_length)
+    _rate_bounds(arr, rates, lz_max_length, None if quick else compress_max_length, clock, notes, compressors=not quick)  # 6. LZ76, compressors, predictor
     clock.step("absent words")  # 7. absent words
     absent = _absent_words(wc, L, absent_list, notes)
     clock.step("encoding image")  # 8. encoding image
-    img, levels_img = _encoding_image(arr, k, image)
+    img, levels_img = _encoding_image(arr, k, image, image_max_length)
     clock.step("permutation entropy")  # 9. ordinal patterns: permutation entropy
     order = ordinal_order(arr)
     permutation = safe_ordinal_entropy(arr, order, n_boot, seed, level, notes)
@@ -585,6 +636,8 @@ def profile_source(
         "consistency_offsets": offsets,
         "falpha_qs": list(FALPHA_QS),
         "image_pixels": None if levels_img is None else 1 << levels_img,
+        "consistency_max_length": consistency_max_length,
+        "image_max_length": image_max_length,
     }
     return ProfileResult(
         name=arr.name,
@@ -616,4 +669,5 @@ def profile_source(
         timings=clock.timings,
         permutation=permutation,
         rate_choice=choice,
+        quick=bool(quick),
     )

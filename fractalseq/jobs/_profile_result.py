@@ -70,6 +70,10 @@ class ScalingCurve:
         }
 
 
+#: Consistency verdict of a profile made in quick mode (the table was not computed).
+SKIPPED = "skipped"
+
+
 @dataclass(frozen=True, eq=False)
 class ProfileResult:
     """Everything measured on one source (see :func:`profile_source`).
@@ -150,6 +154,7 @@ class ProfileResult:
     timings: dict[str, float] = field(default_factory=dict, compare=False)
     permutation: OrdinalEntropy | None = None
     rate_choice: RateChoice | None = None
+    quick: bool = False  # quick mode left the consistency table out (verdict ``skipped``)
 
     # -------------------------------------------------------------- views
     @property
@@ -217,7 +222,8 @@ class ProfileResult:
                 {
                     "q": float(q), "dimension": None, "dimension_bits": None, "dimension_bits_low": None,
                     "dimension_bits_high": None, "entropy_bits": None, "entropy_bits_low": None,
-                    "entropy_bits_high": None, "difference_bits": None, "verdict": cons.TOO_LITTLE,
+                    "entropy_bits_high": None, "difference_bits": None,
+                    "verdict": SKIPPED if self.quick else cons.TOO_LITTLE,
                     "flags": [n for n in self.notes if n.startswith("consistency")],
                 }
                 for q in self.qs

@@ -91,6 +91,9 @@ class SurveyOptions:
         Linkage rule of the clustering (``average``, ``complete``, ``single``, ``weighted``).
     reader:
         Extra reader options (numeric columns, bins ...), as a sorted tuple of pairs.
+    quick:
+        First look: each source's profile without bootstrap, consistency table and compressor
+        bound (:data:`fractalseq.jobs._profile.QUICK_SKIPS`).
     """
 
     fmt: str = "auto"
@@ -102,6 +105,7 @@ class SurveyOptions:
     seed: int = 0
     linkage: str = "average"
     reader: tuple[tuple[str, Any], ...] = ()
+    quick: bool = False
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "seed", check_seed(self.seed))
@@ -134,6 +138,7 @@ class SurveyOptions:
             "seed": self.seed,
             "reader": [list(kv) for kv in self.reader],
             "fractalseq": __version__,
+            **({"quick": True} if self.quick else {}),  # absent otherwise: earlier cache keys stay valid
         }
 
     def to_dict(self) -> dict:
@@ -148,6 +153,7 @@ class SurveyOptions:
             "seed": self.seed,
             "linkage": self.linkage,
             "reader": {k: v for k, v in self.reader},
+            **({"quick": True} if self.quick else {}),
         }
 
 
@@ -184,7 +190,7 @@ def profile_row(arr: SymbolArray, options: SurveyOptions) -> dict:
     from fractalseq.resampling._options import Resampling
 
     resampling = Resampling(n_boot=DEFAULT_BOOT, seed=options.seed)
-    result = profile_source(arr, depth=options.depth, ratio=options.ratio, resampling=resampling)
+    result = profile_source(arr, depth=options.depth, ratio=options.ratio, resampling=resampling, quick=options.quick)
     data = result.to_dict() if hasattr(result, "to_dict") else dict(result)
     return json.loads(to_json(data))
 

@@ -30,6 +30,22 @@ from fractalseq.alphabet import Alphabet
 
 LN2 = math.log(2.0)
 
+#: Which baselines a score computes: none, the KT Markov model only (cheap, the default), or also the compressors.
+BASELINE_CHOICES = ("none", "markov", "all")
+
+
+def baseline_kinds(baselines: "bool | str") -> tuple[bool, bool]:
+    """``(markov, compressors)`` for a choice of :data:`BASELINE_CHOICES` (``True``: all, ``False``: none)."""
+    if isinstance(baselines, bool):
+        return baselines, baselines
+    if baselines not in BASELINE_CHOICES:
+        from fractalseq.errors import ParameterError
+
+        raise ParameterError(
+            f"Baselines {baselines!r} is not one of {', '.join(BASELINE_CHOICES)}.", parameter="baselines"
+        )
+    return baselines != "none", baselines == "all"
+
 
 def kt_bits(counts: np.ndarray, prior: np.ndarray | None = None) -> float:
     """Adaptive KT code length (bits) of the symbols counted in ``counts`` (cells x A).

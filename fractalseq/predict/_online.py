@@ -12,6 +12,7 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.errors import ParameterError
 from fractalseq.predict import _kernel_tools as K
 from fractalseq.predict._baselines import (
+    baseline_kinds,
     CompressorMeter,
     MarkovBaseline,
     kt_bits_by_order,
@@ -347,13 +348,15 @@ def evaluate_online(
     *,
     window: int = DEFAULT_WINDOW,
     keep_surprisal: bool = False,
-    baselines: bool = True,
+    baselines: bool | str = True,
     top_windows: int = DEFAULT_TOP_WINDOWS,
     **params,
 ) -> PredictionResult:
     """Online code length with per-window/per-record detail and both baselines from the same pass.
 
-    Parameters are those of :func:`online_code_length`; ``baselines=False`` skips the baselines.
+    Parameters are those of :func:`online_code_length`; ``baselines`` is ``"all"`` (or ``True``),
+    ``"markov"`` (the KT model only: the compressors are what makes scoring slow) or ``"none"``
+    (or ``False``); a baseline not computed is absent from ``result.baselines``.
 
     The Markov baseline is the adaptive KT model of the best order on the
     stream itself (chosen in hindsight, orders ``0..K`` of :func:`baseline_orders`);
@@ -366,18 +369,24 @@ def evaluate_online(
     if isinstance(window, bool) or int(window) < 1:
         raise ParameterError(f"The window must be a positive number of symbols, not {window!r}.", parameter="window")
     tally = Tally(int(window), keep_surprisal)
-    counter = WordCounter(src.alphabet, baseline_orders(src.alphabet) + 1) if baselines else None
-    meter = CompressorMeter(src.alphabet) if baselines else None
+    want_markov, want_compressors = baseline_kinds(baselines)
+    counter = WordCounter(src.alphabet, baseline_orders(src.alphabet) + 1) if want_markov else None
+    meter = CompressorMeter(src.alphabet) if want_compressors else None
     for chunk in source_chunks(src):
         sur = coder.feed(chunk.codes, chunk.starts, surprisal=True)
         tally.add(sur, chunk.starts)
         if counter is not None:
             counter.add(chunk.codes, chunk.starts)
+        if meter is not None:
             meter.feed(chunk.codes)
     wins, sur, recs = tally.finish(src.report.records)
     res = coder.result(getattr(src, "name", "stream"), records=recs, window=int(window), window_bits=wins, surprisal=sur,
                        top_windows=top_windows)
-    if counter is not None and coder.length:
-        wc = counter.finish()
-        res = replace(res, baselines={"markov": markov_online_baseline(wc).to_dict(), "compressors": meter.result()})
+    if coder.length and (counter is not None or meter is not None):
+        found = {}
+        if counter is not None:
+            found["markov"] = markov_online_baseline(counter.finish()).to_dict()
+        if meter is not None:
+            found["compressors"] = meter.result()
+        res = replace(res, baselines=found)
     return res

@@ -59,6 +59,7 @@ from fractalseq.errors import InputError, ModelFileError, ParameterError
 from fractalseq.predict import _fitted_kernels as FK
 from fractalseq.predict import _kernel_tools as K
 from fractalseq.predict._baselines import (
+    baseline_kinds,
     CompressorMeter,
     MarkovBaseline,
     kt_bits_after_training,
@@ -492,7 +493,7 @@ class CellPredictor:
         *,
         window: int | None = DEFAULT_WINDOW,
         keep_surprisal: bool = False,
-        baselines: bool = True,
+        baselines: bool | str = True,
         top_windows: int = DEFAULT_TOP_WINDOWS,
     ) -> PredictionResult:
         """Score held-out data with the fitted model: code length, accuracy, calibration and baselines.
@@ -506,7 +507,9 @@ class CellPredictor:
         keep_surprisal:
             Keep the bits of every position in ``result.surprisal``.
         baselines:
-            Also score the fixed-order KT baseline and the compressors on the same data.
+            ``"all"`` (or ``True``): the fixed-order KT baseline and the compressors on the same data;
+            ``"markov"``: the KT baseline only; ``"none"`` (or ``False``): neither. A baseline not
+            computed is absent from ``result.baselines``.
         top_windows:
             How many of the most surprising windows the result lists.
         """
@@ -522,8 +525,9 @@ class CellPredictor:
         hist = np.zeros(2, np.uint64)
         seg = np.zeros(1, np.int64)
         tally = Tally(window or DEFAULT_WINDOW, keep_surprisal) if (window or keep_surprisal) else None
-        counter = WordCounter(a, self.baseline_order_ + 1) if baselines else None
-        meter = CompressorMeter(a) if baselines else None
+        want_markov, want_compressors = baseline_kinds(baselines)
+        counter = WordCounter(a, self.baseline_order_ + 1) if want_markov else None
+        meter = CompressorMeter(a) if want_compressors else None
         for chunk in source_chunks(src):
             codes = np.ascontiguousarray(chunk.codes)
             st = np.ascontiguousarray(chunk.starts, dtype=np.int64)
@@ -533,6 +537,7 @@ class CellPredictor:
                 tally.add(sur, st)
             if counter is not None:
                 counter.add(codes, st)
+            if meter is not None:
                 meter.feed(codes)
         n = int(stats[K.ST_COUNT])
         wins, sur, recs = tally.finish(src.report.records) if tally is not None else (None, None, [])
@@ -544,6 +549,8 @@ class CellPredictor:
             records=recs, window=int(window or DEFAULT_WINDOW), window_bits=wins if window else None, surprisal=sur,
             top_windows=top_windows,
         )
+        if meter is not None and n and counter is None:
+            res = replace(res, baselines={"compressors": meter.result()})
         if counter is not None and n:
             wc = counter.finish()
             k = self.baseline_order_
@@ -553,7 +560,10 @@ class CellPredictor:
                 k, bits / n, "model training data", dict(self.baseline_bits_),
                 None if hind is None else hind.order, None if hind is None else hind.bits_per_symbol,
             )
-            res = replace(res, baselines={"markov": mb.to_dict(), "compressors": meter.result()})
+            found = {"markov": mb.to_dict()}
+            if meter is not None:
+                found["compressors"] = meter.result()
+            res = replace(res, baselines=found)
         return res
 
     def score_online(self, source: Source, **kwargs) -> PredictionResult:

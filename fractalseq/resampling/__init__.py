@@ -8,12 +8,28 @@ they are ``_block_length``, intervals ``_intervals``; ``_bootstrap`` runs it all
 settings of a bootstrap travel as one validated :class:`Resampling` (``_options``).
 """
 
-from fractalseq.resampling._block_length import BlockLength, choose_block_length, politis_white
-from fractalseq.resampling._bootstrap import BootstrapResult, block_bootstrap
-from fractalseq.resampling._intervals import INTERVALS, interval_from
-from fractalseq.resampling._options import Resampling
-from fractalseq.resampling._plan import SCHEMES, ResamplePlan, make_plan
-from fractalseq.resampling._replicates import CountSpectrum, ReplicateSpectra, replicate_spectra
+from importlib import import_module
+from typing import Any
+
+#: Where each public name lives; loaded on first use (PEP 562), so that a module needing only
+#: ``_options`` (every command's seed check) does not import numba kernels and scipy.
+_WHERE = {
+    "BlockLength": "_block_length", "choose_block_length": "_block_length", "politis_white": "_block_length",
+    "BootstrapResult": "_bootstrap", "block_bootstrap": "_bootstrap",
+    "INTERVALS": "_intervals", "interval_from": "_intervals",
+    "Resampling": "_options",
+    "SCHEMES": "_plan", "ResamplePlan": "_plan", "make_plan": "_plan",
+    "CountSpectrum": "_replicates", "ReplicateSpectra": "_replicates", "replicate_spectra": "_replicates",
+}
+
+
+def __getattr__(name: str) -> Any:
+    if name in _WHERE:
+        value = getattr(import_module(f"{__name__}.{_WHERE[name]}"), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
 
 __all__ = [
     "BlockLength", "BootstrapResult", "CountSpectrum", "INTERVALS", "ReplicateSpectra", "ResamplePlan", "Resampling", "SCHEMES",

@@ -45,7 +45,6 @@ def autocovariances(x: np.ndarray, max_lag: int, segment: int | None = None) -> 
     L = int(segment) if segment else max(4 * M, 1 << 14)
     L = max(L, 1)
     N = sfft.next_fast_len(L + M, real=True)
-    xp = np.concatenate([x, np.zeros(M + L)])
     S = -(-n // L)
     out = np.zeros(M + 1)
     batch = max(1, (1 << 22) // N)
@@ -53,9 +52,11 @@ def autocovariances(x: np.ndarray, max_lag: int, segment: int | None = None) -> 
         s1 = min(S, s0 + batch)
         a = np.zeros((s1 - s0, N))
         b = np.zeros((s1 - s0, N))
-        for i, s in enumerate(range(s0, s1)):
-            a[i, :L] = xp[s * L : s * L + L]
-            b[i, : L + M] = xp[s * L : s * L + L + M]
+        for i, s in enumerate(range(s0, s1)):  # past the end the rows stay zero (no padded copy of x)
+            seg = x[s * L : s * L + L]
+            a[i, : seg.size] = seg
+            seg = x[s * L : s * L + L + M]
+            b[i, : seg.size] = seg
         fa = sfft.rfft(a, axis=1)
         fb = sfft.rfft(b, axis=1)
         out += sfft.irfft(np.conj(fa) * fb, N, axis=1)[:, : M + 1].sum(axis=0)
@@ -78,11 +79,11 @@ def politis_white(series: np.ndarray) -> tuple[float, float]:
     (stationary, moving) block lengths, floats >= 1 (1 for a constant or white series).
     """
     x = np.asarray(series, dtype=np.float64)
-    x = x[np.isfinite(x)]
+    x = x[np.isfinite(x)]  # a copy, centred in place below
     n = x.size
     if n < 16:
         return 1.0, 1.0
-    x = x - x.mean()
+    x -= x.mean()
     var = float(np.sum(x * x)) / n  # not BLAS: thread-count independent bits
     if var <= 1e-300:
         return 1.0, 1.0

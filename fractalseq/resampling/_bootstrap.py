@@ -228,6 +228,27 @@ def run_block_bootstrap(
     T = len(arr)
     arr.require_length(max(depths) + 1, "the bootstrap")
     block = resolve_block(arr, max(depths), block_length, scheme)
+    notes: list[str] = []
+    if block.blocks < MIN_BLOCKS:
+        notes.append(f"only {block.blocks} blocks: intervals are unreliable")
+    if spectra and (scheme == "nonoverlapping" or not n_boot):
+        # one depth at a time: its labels live only while its spectra are built (memory of one depth)
+        full, specs = {}, {}
+        weights = make_plan(T, block.length, n_boot, seed, scheme).block_weights() if n_boot else None
+        for n in depths:
+            lab = word_labels(arr, n)[0]
+            size = int(lab.max()) + 1 if lab.size and lab.max() >= 0 else 0
+            full[n] = CountSpectrum.of_counts(np.bincount(lab[lab >= 0], minlength=size))
+            if weights is not None:
+                specs[n] = rp.replicate_spectra(rp.item_tables(lab, n, block.length, size), weights)
+            del lab
+        estimate = np.atleast_1d(np.asarray(statistic(full), dtype=np.float64)).copy()
+        reps = np.full((n_boot, estimate.size), np.nan)
+        if batch_statistic is not None and n_boot:
+            reps[:] = np.asarray(batch_statistic(specs), dtype=np.float64).reshape(n_boot, estimate.size)
+        for r in range(n_boot if batch_statistic is None else 0):
+            reps[r] = np.asarray(statistic({n: CountSpectrum(*s.spectrum(r)) for n, s in specs.items()}), dtype=np.float64)
+        return BootstrapResult(estimate, reps, depths, block, scheme, int(n_boot), int(seed), T, tuple(notes))
     labels = {n: word_labels(arr, n)[0] for n in depths}
     sizes = {n: int(labels[n].max()) + 1 if labels[n].size and labels[n].max() >= 0 else 0 for n in depths}
     full = {n: np.bincount(labels[n][labels[n] >= 0], minlength=sizes[n]).astype(np.int64) for n in depths}
@@ -235,18 +256,7 @@ def run_block_bootstrap(
         full = {n: CountSpectrum.of_counts(c) for n, c in full.items()}
     estimate = np.atleast_1d(np.asarray(statistic(full), dtype=np.float64)).copy()
     reps = np.full((n_boot, estimate.size), np.nan)
-    notes: list[str] = []
-    if block.blocks < MIN_BLOCKS:
-        notes.append(f"only {block.blocks} blocks: intervals are unreliable")
-    if n_boot and spectra and scheme == "nonoverlapping":
-        plan = make_plan(T, block.length, n_boot, seed, scheme)
-        weights = plan.block_weights()
-        specs = {n: rp.replicate_spectra(rp.item_tables(labels[n], n, block.length, sizes[n]), weights) for n in depths}
-        if batch_statistic is not None:
-            reps[:] = np.asarray(batch_statistic(specs), dtype=np.float64).reshape(n_boot, estimate.size)
-        for r in range(n_boot if batch_statistic is None else 0):
-            reps[r] = np.asarray(statistic({n: CountSpectrum(*s.spectrum(r)) for n, s in specs.items()}), dtype=np.float64)
-    elif n_boot:
+    if n_boot:
         plan = make_plan(T, block.length, n_boot, seed, scheme)
         weights = plan.block_weights() if scheme == "nonoverlapping" else None
         btabs = {n: block_tables(labels[n], n, block.length) for n in depths} if weights is not None else {}

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtri
 
 from fractalseq.errors import ParameterError
 
@@ -49,6 +48,8 @@ def interval_from(
         else:
             frac = (np.sum(r < est[j]) + 0.5 * np.sum(r == est[j])) / r.size
             frac = min(max(frac, 0.5 / r.size), 1 - 0.5 / r.size)
+            from scipy.special import ndtri  # loaded only for bias-corrected intervals
+
             z0 = float(ndtri(frac))
             za = float(ndtri(a))
             from scipy.special import ndtr

@@ -9,13 +9,16 @@ rule for seeds (a whole number with ``0 <= seed < 2**64``), shared by the jobs.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from fractalseq.errors import ParameterError
-from fractalseq.resampling._block_length import BlockLength
 from fractalseq.resampling._intervals import INTERVALS
 from fractalseq.resampling._plan import SCHEMES
+
+if TYPE_CHECKING:  # the block-length module loads numba kernels: imported only where a BlockLength is given
+    from fractalseq.resampling._block_length import BlockLength
 
 #: Seeds are whole numbers below this bound (the width of numpy's seed words times two).
 SEED_BOUND = 1 << 64
@@ -55,6 +58,15 @@ def check_replicates(n_boot: object) -> int:
             parameter="n_boot",
         )
     return int(n_boot)
+
+
+def _is_block_length(value: object) -> bool:
+    """Is ``value`` a :class:`BlockLength` (imported only then: the module loads numba kernels)."""
+    if isinstance(value, (bool, int, float, str, np.integer, np.floating)):
+        return False
+    from fractalseq.resampling._block_length import BlockLength
+
+    return isinstance(value, BlockLength)
 
 
 @dataclass(frozen=True)
@@ -98,7 +110,7 @@ class Resampling:
         object.__setattr__(self, "n_boot", check_replicates(self.n_boot))
         object.__setattr__(self, "seed", check_seed(self.seed))
         ell = self.block_length
-        if ell is not None and not isinstance(ell, BlockLength):
+        if ell is not None and not _is_block_length(ell):
             if isinstance(ell, bool) or not isinstance(ell, (int, np.integer)) or ell < 1:
                 raise ParameterError(
                     f"Block length must be a positive whole number of symbols, not {ell!r}.", parameter="block_length"

@@ -35,9 +35,9 @@ class ResamplePlan:
             raise ParameterError("Block weights exist only for the non-overlapping scheme.", parameter="scheme")
         B = -(-self.length // self.block_length)
         W = np.zeros((self.n_boot, B), dtype=np.int64)
-        ids = (self.starts // self.block_length).reshape(self.n_boot, -1)
-        for r in range(self.n_boot):
-            W[r] = np.bincount(ids[r], minlength=B)
+        for r in range(self.n_boot):  # one replicate at a time (no second copy of the plan)
+            s, _ = self.blocks(r)
+            W[r] = np.bincount(s // self.block_length, minlength=B)
         return W
 
 
@@ -52,9 +52,10 @@ def make_plan(length: int, block_length: int, n_boot: int, seed: int = 0, scheme
     rng = np.random.default_rng(seed)
     if scheme == "nonoverlapping":
         nb = -(-T // ell)
-        ids = rng.integers(0, nb, size=(n_boot, nb))
-        starts = (ids * ell).astype(np.int64)
-        lens = np.minimum(ell, T - starts).astype(np.int64)
+        starts = rng.integers(0, nb, size=(n_boot, nb)).astype(np.int64, copy=False)
+        starts *= ell  # in place: the plan's arrays are its only length-sized memory
+        lens = np.subtract(T, starts)
+        np.minimum(lens, ell, out=lens)
         offsets = np.arange(n_boot + 1, dtype=np.int64) * nb
         return ResamplePlan(T, ell, scheme, seed, n_boot, starts.ravel(), lens.ravel(), offsets)
     if scheme == "moving":

@@ -38,12 +38,11 @@ DEFAULT_CAP = 8192
 
 
 @njit(cache=True)
-def _item_rows(labels, span, ell, m, row_ptr, blocks, counts):
-    """Fill the item-major block tables; returns the number of (item, block) pairs.
+def _item_row_sizes(labels, span, ell, m, row_ptr):
+    """First pass: ``row_ptr`` (zeroed, size ``m + 1``) becomes the row offsets; returns the pair count.
 
     An item at ``t`` covering ``span`` positions belongs to block ``t // ell``
     if it ends inside that block (items straddling two blocks are left out).
-    ``row_ptr`` must be zeroed, of size ``m + 1``.
     """
     T = labels.shape[0]
     last = np.full(m, -1, dtype=np.int32)
@@ -58,8 +57,17 @@ def _item_rows(labels, span, ell, m, row_ptr, blocks, counts):
                 row_ptr[lab + 1] += 1
     for i in range(m):
         row_ptr[i + 1] += row_ptr[i]
-    fill = row_ptr[:-1].copy()
-    last[:] = -1
+    return row_ptr[m]
+
+
+@njit(cache=True)
+def _item_rows(labels, span, ell, m, row_ptr, blocks, counts):
+    """Second pass: fill the item-major block tables (arrays sized by :func:`_item_row_sizes`)."""
+    T = labels.shape[0]
+    last = np.full(m, -1, dtype=np.int32)
+    nb = (T + ell - 1) // ell
+    # row_ptr[i] serves as row i's fill cursor (no copy of it); afterwards it holds each row's end,
+    # shifted back by one place into the row offsets
     for b in range(nb):
         a = b * ell
         e = min(a + ell, T)
@@ -68,12 +76,14 @@ def _item_rows(labels, span, ell, m, row_ptr, blocks, counts):
             if lab >= 0:
                 if last[lab] != b:
                     last[lab] = b
-                    blocks[fill[lab]] = b
-                    counts[fill[lab]] = 1
-                    fill[lab] += 1
+                    blocks[row_ptr[lab]] = b
+                    counts[row_ptr[lab]] = 1
+                    row_ptr[lab] += 1
                 else:
-                    counts[fill[lab] - 1] += 1
-    return row_ptr[m]
+                    counts[row_ptr[lab] - 1] += 1
+    for i in range(m, 0, -1):
+        row_ptr[i] = row_ptr[i - 1]
+    row_ptr[0] = 0
 
 
 @dataclass(frozen=True)
@@ -99,10 +109,12 @@ def item_tables(labels: np.ndarray, span: int, block_length: int, size: int | No
     ell = max(int(block_length), 1)
     m = int(size) if size is not None else (int(lab.max()) + 1 if T and lab.max() >= 0 else 0)
     row_ptr = np.zeros(m + 1, dtype=np.int64)
-    blocks = np.empty(T, dtype=np.int32)
-    counts = np.empty(T, dtype=np.int32)
-    k = _item_rows(lab, int(span), ell, m, row_ptr, blocks, counts) if T and m else 0
-    return ItemTables(row_ptr, blocks[:k].copy(), counts[:k].copy(), -(-T // ell) if T else 0)
+    k = int(_item_row_sizes(lab, int(span), ell, m, row_ptr)) if T and m else 0
+    blocks = np.empty(k, dtype=np.int32)  # sized exactly: no length-sized temporaries
+    counts = np.empty(k, dtype=np.int32)
+    if k:
+        _item_rows(lab, int(span), ell, m, row_ptr, blocks, counts)
+    return ItemTables(row_ptr, blocks, counts, -(-T // ell) if T else 0)
 
 
 @njit(cache=True)

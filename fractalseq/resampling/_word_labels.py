@@ -26,30 +26,6 @@ DENSE_LABEL_CELLS = 1 << 24
 
 
 @njit(cache=True)
-def _dense_labels(addr, valid, cells, labels):
-    """Rank the addresses present in a table of ``cells`` entries; label every valid position with its rank."""
-    table = np.zeros(cells, dtype=np.int32)
-    n = addr.shape[0]
-    for t in range(n):
-        if valid[t]:
-            table[addr[t]] = 1
-    k = 0
-    for a in range(cells):
-        if table[a]:
-            table[a] = k
-            k += 1
-        else:
-            table[a] = -1
-    for t in range(n):
-        labels[t] = table[addr[t]] if valid[t] else -1
-    words = np.empty(k, dtype=np.uint64)
-    for a in range(cells):
-        if table[a] >= 0:
-            words[table[a]] = a
-    return words
-
-
-@njit(cache=True)
 def rank_sorted_keys(keys, shift, labels, words):
     """``keys`` sorted, each ``item << shift | position``: label each position with the rank of its item.
 
@@ -71,12 +47,73 @@ def rank_sorted_keys(keys, shift, labels, words):
     return k + 1
 
 
-def word_labels(arr: SymbolArray, depth: int) -> tuple[np.ndarray, np.ndarray]:
+#: Positions labelled per chunk (the address temporaries live for one chunk only).
+LABEL_CHUNK = 1 << 22
+
+
+@njit(cache=True)
+def _mark_dense(addr, valid, table):
+    """``table[addr[t]] = 1`` for every valid position."""
+    for t in range(addr.shape[0]):
+        if valid[t]:
+            table[addr[t]] = 1
+
+
+@njit(cache=True)
+def _rank_dense(table):
+    """Turn the marks of ``table`` into ranks (-1: absent); returns the present addresses in order."""
+    k = 0
+    for a in range(table.shape[0]):
+        if table[a]:
+            table[a] = k
+            k += 1
+        else:
+            table[a] = -1
+    words = np.empty(k, dtype=np.uint64)
+    for a in range(table.shape[0]):
+        if table[a] >= 0:
+            words[table[a]] = a
+    return words
+
+
+@njit(cache=True)
+def _label_dense(addr, valid, table, labels):
+    """``labels[t] = table[addr[t]]`` for valid positions, -1 elsewhere."""
+    for t in range(addr.shape[0]):
+        labels[t] = table[addr[t]] if valid[t] else -1
+
+
+def _chunk_addresses(arr: SymbolArray, depth: int, a: int, b: int) -> tuple[np.ndarray, np.ndarray]:
+    """Addresses and validity of the ``depth``-words starting at positions ``a..b-1``.
+
+    The slice carries ``depth - 1`` lookahead symbols and the segment starts inside it
+    (plus its own first position), so every word gets the address and validity it has
+    in the whole stream.
+    """
+    T = len(arr)
+    e = min(b + depth - 1, T)
+    st = arr.starts
+    inner = st[(st > a) & (st < e)] - a
+    starts = np.concatenate([np.zeros(1, np.int64), inner.astype(np.int64)])
+    addr = np.zeros(e - a, dtype=np.uint64)
+    valid = np.zeros(e - a, dtype=bool)
+    _word_addresses(arr.codes[a:e], starts, int(depth), int(arr.alphabet.bits), addr, valid)
+    return addr[: b - a], valid[: b - a]
+
+
+def _chunks(T: int, chunk: int):
+    for a in range(0, T, chunk):
+        yield a, min(a + chunk, T)
+
+
+def word_labels(arr: SymbolArray, depth: int, chunk: int = LABEL_CHUNK) -> tuple[np.ndarray, np.ndarray]:
     """Label every position with the index of the ``depth``-word starting there.
 
     Short words (``A**depth`` at most :data:`DENSE_LABEL_CELLS` addresses) are
-    ranked in a dense table; longer ones by one sort of ``address << b |
-    position`` keys when they fit 64 bits, else by :func:`numpy.unique`.
+    ranked in a dense table; longer ones against the sorted distinct words
+    (collected chunk by chunk, then one :func:`numpy.searchsorted` per chunk).
+    Addresses are computed ``chunk`` positions at a time, so beyond the labels
+    themselves memory is bounded by the distinct words, not by the length.
 
     Returns
     -------
@@ -88,26 +125,27 @@ def word_labels(arr: SymbolArray, depth: int) -> tuple[np.ndarray, np.ndarray]:
     bits = arr.alphabet.bits
     if depth < 1 or bits * depth > 64:
         raise ParameterError(f"Depth {depth} is outside 1..{arr.alphabet.max_depth} for this alphabet.", parameter="depth")
-    addr = np.zeros(T, dtype=np.uint64)
-    valid = np.zeros(T, dtype=bool)
-    if T:
-        _word_addresses(arr.codes, arr.starts, int(depth), int(bits), addr, valid)
+    chunk = max(int(chunk), 1)
     cells = 1 << (bits * depth) if bits * depth <= 62 else 0
     if 0 < cells <= DENSE_LABEL_CELLS:
+        table = np.zeros(cells, dtype=np.int32)
+        for a, b in _chunks(T, chunk):
+            _mark_dense(*_chunk_addresses(arr, depth, a, b), table)
+        words = _rank_dense(table)
         labels = np.empty(T, dtype=np.int32)
-        words = _dense_labels(addr, valid, int(cells), labels)
+        for a, b in _chunks(T, chunk):
+            _label_dense(*_chunk_addresses(arr, depth, a, b), table, labels[a:b])
         return labels, words
-    shift = max(int(T - 1).bit_length(), 1)
-    if bits * depth + shift <= 64 and T < 2**31 - 1:
-        pos = np.flatnonzero(valid).astype(np.uint64)
-        keys = (addr[valid] << np.uint64(shift)) | pos
-        keys.sort()
-        labels = np.full(T, -1, dtype=np.int32)
-        words = np.empty(keys.size, dtype=np.uint64)
-        k = rank_sorted_keys(keys, shift, labels, words)
-        return labels, words[:k].copy()
-    words, inv = np.unique(addr[valid], return_inverse=True)
+    parts = []
+    for a, b in _chunks(T, chunk):
+        addr, valid = _chunk_addresses(arr, depth, a, b)
+        parts.append(np.unique(addr[valid]))
+    words = np.unique(np.concatenate(parts)) if parts else np.zeros(0, np.uint64)
+    del parts
     dtype = np.int32 if words.size < 2**31 - 1 else np.int64
     labels = np.full(T, -1, dtype=dtype)
-    labels[valid] = inv.astype(dtype)
-    return labels, words
+    for a, b in _chunks(T, chunk):
+        addr, valid = _chunk_addresses(arr, depth, a, b)
+        pos = np.flatnonzero(valid)
+        labels[a + pos] = np.searchsorted(words, addr[pos]).astype(dtype)
+    return labels, words.astype(np.uint64, copy=False)

@@ -8,18 +8,27 @@ frequencies; :class:`WordCounts` holds them for all depths at once, merges by
 too, because they are read straight off the counts.
 """
 
-from fractalseq.words._absent import WordReport, WordRow, absent_words, observed_expected, word_deviations
-from fractalseq.words._counts import (
-    Spectrum,
-    WordCounter,
-    WordCounts,
-    check_depth,
-    count_words,
-    decode_address,
-    encode_address,
-)
-from fractalseq.words._corpus import count_inputs
-from fractalseq.words._pieces import DEFAULT_PIECE, Piece, count_piece, count_words_split, iter_pieces
+from importlib import import_module
+from typing import Any
+
+#: Where each public name lives; loaded on first use (PEP 562), so that counting words does not
+#: import scipy (the absent-word statistics need it).
+_WHERE = {
+    **dict.fromkeys(("WordReport", "WordRow", "absent_words", "observed_expected", "word_deviations"), "_absent"),
+    **dict.fromkeys(("Spectrum", "WordCounter", "WordCounts", "check_depth", "count_words", "decode_address",
+                     "encode_address"), "_counts"),
+    "count_inputs": "_corpus",
+    **dict.fromkeys(("DEFAULT_PIECE", "Piece", "count_piece", "count_words_split", "iter_pieces"), "_pieces"),
+}
+
+
+def __getattr__(name: str) -> Any:
+    if name in _WHERE:
+        value = getattr(import_module(f"{__name__}.{_WHERE[name]}"), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
 
 __all__ = [
     "DEFAULT_PIECE", "Piece", "Spectrum", "WordCounter", "WordCounts", "WordReport", "WordRow", "absent_words",

@@ -1,0 +1,238 @@
+"""Peak memory and time of whole commands on large simulated inputs, through the command line.
+
+Each measurement is one process, ``/usr/bin/time -v python -m fractalseq ...``: the peak resident
+set size (``Maximum resident set size``) and the wall time, with bytes per symbol. Inputs are
+simulated FASTA written to a temporary folder (an invented order-2 Markov source over ACGT with a
+fixed seed, 80 bases a line): one record, and a multi-record assembly of 24 records. Commands:
+
+* ``count --depth 16`` (word counts up to 16-words),
+* ``profile`` (default settings: 100 bootstrap replicates) and ``profile --quick``,
+* ``learn`` (fitted model, up to ``--learn-max`` Mbase: it is the memory-hungriest command),
+* ``score --online`` (default baselines: the KT Markov model) and ``--baselines none``.
+
+Speed is given as a ratio to a reference measured in the same run: ``xz -9`` on the same FASTA file
+(seconds per Mbase). On a real genome (a Klebsiella assembly from ``benchmarks/genomes.py``, 5.7 Mbase,
+E. coli-sized) the quick online score is timed against ``xz -9`` of the same bases, both as whole
+processes; the start-up of a command (``import fractalseq`` and a first numba call served from the
+cache) is measured on a tiny input.
+
+Run::
+
+    python benchmarks/bench_scale.py                       # 10 and 50 Mbase
+    python benchmarks/bench_scale.py --sizes 10,50,100     # add 100 Mbase (needs ~3 GB free)
+    python benchmarks/bench_scale.py --gigabase            # also one simulated 1-Gbase input (long)
+
+Writes ``benchmarks/results/scale.json`` and ``scale.md``. The genomes are for benchmarking only;
+genomic output is for research, not for clinical decisions.
+"""
+
+from __future__ import annotations
+
+import argparse
+import lzma
+import os
+import platform
+import re
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+from numba import njit
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+sys.path.insert(0, str(HERE))
+
+from genomes import klebsiella, write_results  # noqa: E402
+
+RECORDS_MULTI = 24
+LINE = 80
+
+
+@njit(cache=True)
+def _markov2(u, cum, out, state):
+    for i in range(u.size):
+        s = 0
+        while s < 3 and u[i] > cum[state, s]:
+            s += 1
+        out[i] = s
+        state = ((state * 4) + s) & 15
+    return state
+
+
+def simulate_fasta(path: Path, bases: int, records: int, seed: int = 1) -> None:
+    """An invented order-2 Markov source over ACGT (transition rows from a Dirichlet draw), as FASTA."""
+    rng = np.random.default_rng(seed)
+    cum = np.cumsum(rng.dirichlet(np.ones(4) * 2.0, size=16), axis=1)
+    letters = np.frombuffer(b"ACGT", np.uint8)
+    per = bases // records
+    state = 0
+    with open(path, "wb") as f:
+        for r in range(records):
+            f.write(f">sim{r} invented order-2 Markov sequence for benchmarks\n".encode())
+            n = per if r < records - 1 else bases - per * (records - 1)
+            done = 0
+            while done < n:
+                m = min(1 << 22, n - done)
+                m -= m % LINE if m > LINE else 0
+                out = np.empty(m, np.uint8)
+                state = _markov2(rng.random(m), cum, out, state)
+                text = letters[out]
+                full = m // LINE * LINE
+                lines = np.concatenate([text[:full].reshape(-1, LINE), np.full((full // LINE, 1), 10, np.uint8)], axis=1)
+                f.write(lines.tobytes())
+                if m > full:
+                    f.write(text[full:].tobytes() + b"\n")
+                done += m
+
+
+def timed(argv: list[str], stdout=subprocess.DEVNULL) -> dict:
+    """Wall time and peak RSS of one process (``/usr/bin/time -v``)."""
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    t0 = time.perf_counter()
+    proc = subprocess.run(["/usr/bin/time", "-v", *argv], stdout=stdout, stderr=subprocess.PIPE, text=True, env=env)
+    wall = time.perf_counter() - t0
+    m = re.search(r"Maximum resident set size \(kbytes\): (\d+)", proc.stderr)
+    rss = int(m.group(1)) * 1024 if m else None
+    if proc.returncode != 0:
+        tail = proc.stderr.strip().splitlines()[-25:]
+        print("\n".join(tail), file=sys.stderr)
+    return {"seconds": round(wall, 2), "peak_bytes": rss, "exit": proc.returncode}
+
+
+def fs(*args: str) -> list[str]:
+    return [sys.executable, "-m", "fractalseq", *map(str, args)]
+
+
+def commands(path: Path, work: Path, mbase: float, learn_max: float) -> dict[str, list[str]]:
+    out = {
+        "count --depth 16": fs("count", path, "--depth", "16", "--json", "--quiet"),
+        "profile": fs("profile", path, "--json", "--quiet"),
+        "profile --quick": fs("profile", path, "--quick", "--json", "--quiet"),
+        "score --online": fs("score", "--online", path, "--json", "--quiet"),
+        "score --online --baselines none": fs("score", "--online", path, "--baselines", "none", "--json", "--quiet"),
+    }
+    if mbase <= learn_max:
+        out["learn"] = fs("learn", path, "-o", work / "model.npz", "--json", "--quiet", "--force")
+    return out
+
+
+def genome_bases(path: Path, dest: Path) -> tuple[Path, Path, int]:
+    """The genome as plain FASTA and as bare bases (what ``xz`` compresses), and its length."""
+    text = lzma.decompress(path.read_bytes()).decode()
+    fasta = dest / "genome.fa"
+    fasta.write_text(text)
+    bases = "".join(line.strip() for line in text.splitlines() if not line.startswith(">"))
+    raw = dest / "genome.txt"
+    raw.write_text(bases)
+    return fasta, raw, len(bases)
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--sizes", default="10,50", help="Mbase of the simulated inputs, comma-separated.")
+    ap.add_argument("--gigabase", action="store_true", help="Also one simulated 1-Gbase input (count, profile --quick, score).")
+    ap.add_argument("--learn-max", type=float, default=10, help="Largest input (Mbase) given to learn.")
+    ap.add_argument("--skip", default="", help="Commands to leave out, comma-separated (e.g. 'profile').")
+    ap.add_argument("--multi-max", type=float, default=50, help="Largest size that also gets the multi-record input.")
+    args = ap.parse_args()
+    sizes = [float(s) for s in args.sizes.split(",") if s.strip()]
+    skip = {s.strip() for s in args.skip.split(",") if s.strip()}
+    rows: list[dict] = []
+    extra: dict = {}
+    with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
+        work = Path(tmp)
+        # start-up: import, and a whole command on a tiny input (numba kernels from the cache)
+        tiny = work / "tiny.fa"
+        simulate_fasta(tiny, 1000, 1)
+        timed(fs("count", tiny, "--quiet"))  # fill the cache once
+        extra["startup"] = {
+            "import_seconds": timed([sys.executable, "-c", "import fractalseq"])["seconds"],
+            "count_tiny_seconds": timed(fs("count", tiny, "--quiet"))["seconds"],
+            "score_online_tiny_seconds": timed(fs("score", "--online", tiny, "--baselines", "none", "--quiet"))["seconds"],
+            "profile_tiny_seconds": timed(fs("profile", tiny, "--quiet", "--boot", "0"))["seconds"],
+        }
+        print("start-up:", extra["startup"], flush=True)
+        # the E. coli-sized real genome: quick online score against xz -9, whole processes
+        try:
+            gpath = klebsiella()["Klebs_HS11286"]
+            fasta, raw, L = genome_bases(gpath, work)
+            g = {"genome": "Klebs_HS11286 (kleborate-examples)", "bases": L}
+            g["xz -9"] = timed(["xz", "-9", "-c", str(raw)])
+            for name, argv in (
+                ("score --online --baselines none", fs("score", "--online", fasta, "--baselines", "none", "--quiet")),
+                ("score --online", fs("score", "--online", fasta, "--quiet")),
+                ("score --online --baselines all", fs("score", "--online", fasta, "--baselines", "all", "--quiet")),
+            ):
+                g[name] = timed(argv)
+                g[name]["ratio_to_xz"] = round(g[name]["seconds"] / g["xz -9"]["seconds"], 2)
+            extra["genome"] = g
+            print("genome:", g, flush=True)
+        except Exception as exc:  # no network or no apt: say so in the results
+            extra["genome"] = {"skipped": f"{type(exc).__name__}: {exc}"}
+        inputs = [(s, 1) for s in sizes] + [(s, RECORDS_MULTI) for s in sizes if s <= args.multi_max]
+        if args.gigabase:
+            inputs.append((1000.0, RECORDS_MULTI))
+        reference = None
+        for mbase, records in inputs:
+            path = work / f"sim{int(mbase)}m_{records}r.fa"
+            simulate_fasta(path, int(mbase * 1e6), records)
+            symbols = int(mbase * 1e6)
+            if reference is None:  # xz -9 seconds per Mbase on the first input: the speed reference
+                ref = timed(["xz", "-9", "-T1", "-c", str(path)])
+                reference = ref["seconds"] / mbase
+                extra["reference"] = {"command": "xz -9 -T1 (same FASTA file)", "mbase": mbase, **ref,
+                                      "seconds_per_mbase": round(reference, 3)}
+            cmds = commands(path, work, mbase, args.learn_max)
+            if mbase >= 1000:  # the gigabase run: the bounded commands only
+                cmds = {k: v for k, v in cmds.items() if k in ("count --depth 16", "profile --quick", "score --online --baselines none")}
+            for name, argv in cmds.items():
+                if name.split()[0] in skip or name in skip:
+                    continue
+                r = timed(argv)
+                row = {
+                    "command": name, "mbase": mbase, "records": records, "symbols": symbols, **r,
+                    "bytes_per_symbol": round(r["peak_bytes"] / symbols, 1) if r["peak_bytes"] else None,
+                    "seconds_per_mbase": round(r["seconds"] / mbase, 3),
+                    "speed_vs_xz": round(reference / (r["seconds"] / mbase), 3),
+                }
+                rows.append(row)
+                print(row, flush=True)
+            path.unlink()
+    data = {
+        "machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}",
+        "rows": rows, **extra,
+    }
+    lines = [
+        "| command | Mbase | records | peak memory | bytes/symbol | time | s/Mbase | xz -9 time / this time |",
+        "|---|---:|---:|---:|---:|---:|---:|---:|",
+    ]
+    for r in rows:
+        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
+        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
+        lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {r['records']} | {mem} | {r['bytes_per_symbol']} | "
+                     f"{r['seconds']:.1f} s | {r['seconds_per_mbase']:.2f} | {r['speed_vs_xz']:.2f}× |")
+    g = extra.get("genome", {})
+    if "xz -9" in g:
+        lines += ["", f"Real genome {g['genome']}, {g['bases']:,} bases, whole processes:", "",
+                  "| command | time | peak memory | time / xz -9 |", "|---|---:|---:|---:|"]
+        lines.append(f"| `xz -9` (bases only) | {g['xz -9']['seconds']:.1f} s | {g['xz -9']['peak_bytes'] / 2**20:,.0f} MiB | 1.00 |")
+        for name in ("score --online --baselines none", "score --online", "score --online --baselines all"):
+            r = g[name]
+            lines.append(f"| `{name}` | {r['seconds']:.1f} s | {r['peak_bytes'] / 2**20:,.0f} MiB | {r['ratio_to_xz']:.2f} |")
+    st = extra["startup"]
+    lines += ["", f"Start-up (1,000-base input, numba cache warm): `import fractalseq` {st['import_seconds']:.2f} s; "
+              f"`count` {st['count_tiny_seconds']:.2f} s; `score --online --baselines none` {st['score_online_tiny_seconds']:.2f} s; "
+              f"`profile --boot 0` {st['profile_tiny_seconds']:.2f} s.",
+              f"Reference: {extra['reference']['command']}, {extra['reference']['seconds_per_mbase']:.2f} s/Mbase. "
+              f"Machine: {data['machine']}.", ""]
+    write_results("scale", data, "\n".join(lines))
+    print("\n".join(lines))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
