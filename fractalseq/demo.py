@@ -117,6 +117,7 @@ def run_demo(
     from fractalseq.jobs._inputs import check_seed
 
     seed = check_seed(seed)  # before the warm-up process or any folder
+    length, log_lines = scen.check_size(length, log_lines)
     t0 = time.perf_counter()
     say = step or (lambda s: None)
     # On a first run the numba kernels are compiled before they are cached; the predictor's are the

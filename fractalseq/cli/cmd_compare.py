@@ -128,10 +128,12 @@ def survey(
 
         try:
             result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress)
-        except KeyboardInterrupt:
+        except (KeyboardInterrupt, SystemError) as exc:
+            if not common.caused_by_interrupt(exc):
+                raise
             bar.stop()
             kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
-            typer.echo(f"interrupted:{kept or ' nothing was written'}.", err=True)
+            common.interrupt_note = f"interrupted:{kept or ' nothing was written'}."
             raise typer.Exit(130) from None
     for note in result.cache_notes:
         common.err_console.print(f"note: {note}.", markup=False, highlight=False)

@@ -33,6 +33,9 @@ def demo(
     from fractalseq.io._outputs import prepare_folder
     from fractalseq.datasets._scenario import SCENARIO_NOTE
 
+    from fractalseq.datasets._scenario import check_size
+
+    check_size(length)  # the memory a sample length implies, before any folder or note
     prepare_folder(out, force)  # refuse a file or a non-empty folder before any work
     if not quiet and not json_out:
         common.err_console.print(Text(SCENARIO_NOTE, style="bold"))

@@ -24,7 +24,7 @@ def count(
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
     save: Optional[Path] = typer.Option(None, "--save", help="Write the merged counts to this .npz file (loads without pickle)."),
-    top: int = typer.Option(0, "--top", help="Also list the TOP most frequent words at the deepest depth (0 = none)."),
+    top: int = typer.Option(0, "--top", min=0, help="Also list the TOP most frequent words at the deepest depth (0 = none)."),
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,

@@ -69,6 +69,43 @@ def check_writable(path: Path, force: bool) -> None:
     parent = path.parent if str(path.parent) else Path(".")
     if parent.exists() and not parent.is_dir():
         raise OutputError(f"{parent} is a file, not a folder; choose another output folder.")
+    probe_writable(path)
+
+
+def _nearest_existing(folder: Path) -> Path:
+    for candidate in (folder, *folder.parents):
+        if os.path.lexists(candidate):
+            return candidate
+    return Path(".")  # pragma: no cover - a relative path always ends at "."
+
+
+def probe_writable(path: Path | str, what: str = "") -> None:
+    """Refuse, before any work, an output ``path`` whose folder this process cannot write.
+
+    Creates and removes one empty temporary file named like :func:`write_bytes`'s
+    temporaries (``.NAME.XXXXXXXX.part``) in the folder that will receive
+    ``path`` (or in the nearest existing folder above it, where the missing
+    folders would be created), so a read-only folder, a read-only file system
+    or a missing permission is found before the computation, and the message
+    names the user's path, never a temporary name.
+    """
+    path = Path(path)
+    parent = path.parent if str(path.parent) else Path(".")
+    where = _nearest_existing(parent)
+    if not where.is_dir():
+        raise OutputError(f"{where} is a file, not a folder; choose another place for {path}.")
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=where)
+    except OSError as exc:
+        label = what or str(path)
+        raise OutputError(
+            f"{label} cannot be written: {where} refuses new files ({exc.strerror}); choose another place or fix its permissions."
+        ) from None
+    os.close(fd)
+    try:
+        os.unlink(tmp)
+    except OSError:  # pragma: no cover - removed by someone else
+        pass
 
 
 def _current_umask() -> int:
@@ -157,7 +194,10 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
     path.parent.mkdir(parents=True, exist_ok=True)
     remove_stale_parts(path)
     with _signals_deferred():
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+        try:
+            fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+        except OSError as exc:
+            raise OutputError(f"{path} cannot be written ({exc.strerror}); choose another place or fix its permissions.") from None
         try:
             os.fchmod(fd, 0o666 & ~_UMASK)  # mkstemp makes 0600; give the usual permissions
             with os.fdopen(fd, "wb") as fh:
@@ -165,11 +205,16 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
                 fh.flush()
                 os.fsync(fh.fileno())
             os.replace(tmp, path)
-        except BaseException:
+        except BaseException as exc:
             try:
                 os.unlink(tmp)
             except FileNotFoundError:
                 pass
+            if isinstance(exc, OSError) and not isinstance(exc, OutputError):
+                # name the user's path, never the temporary file (a full disk, a quota, a vanished folder)
+                raise OutputError(
+                    f"{path} could not be written ({exc.strerror or exc}); free space or choose another place."
+                ) from None
             raise
     for stage in _open_stages:
         if stage.path in path.parents:
@@ -232,6 +277,7 @@ def prepare_folder(folder: Path | str, force: bool) -> Path:
         raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
     if top is not None and _created is not None:
         _created.append(top)
+    probe_writable(folder / "report", what=f"The output folder {folder}")
     return folder
 
 
@@ -294,7 +340,12 @@ def check_folder(folder: Path | str, force: bool) -> Path:
     if given.exists() and any(p for p in given.iterdir() if not p.name.startswith(".")) and not force:
         raise _refusal(f"{given} already holds files; allow overwriting them or choose another folder.", "force")
     folder = Path(os.path.abspath(given))  # "." and "out/.." get a name and a parent
-    return folder.resolve() if folder.is_symlink() and folder.is_dir() else folder
+    folder = folder.resolve() if folder.is_symlink() and folder.is_dir() else folder
+    # the report is built beside the folder and renamed into place: its parent must take new entries
+    probe_writable(folder / "report", what=f"The output folder {given}")
+    if folder.is_dir():
+        probe_writable(folder.parent / folder.name, what=f"The output folder {given}")
+    return folder
 
 
 #: Staged report folders opened and not yet committed or discarded.

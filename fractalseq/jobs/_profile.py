@@ -294,8 +294,9 @@ def _checked_input(arr: SymbolArray | SymbolStream, settings: ProfileSettings) -
         arr = arr.to_array()
     if not isinstance(arr, SymbolArray):
         raise InputError("profile_source needs a stream (SymbolArray or SymbolStream).")
-    if arr.alphabet.size < 2:
-        raise InputError("The alphabet has fewer than 2 symbols; there is no complexity to measure.")
+    from fractalseq.alphabet import require_two_symbols
+
+    require_two_symbols(arr.alphabet, arr.name or "The input")
     L = len(arr)
     if L < 2:
         raise InputError(f"The stream has {L} symbol(s); a profile needs at least 2.")

@@ -63,8 +63,11 @@ def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_line
             lp = Path(list_file)
             try:
                 lines = lp.read_text(encoding="utf-8").splitlines()
-            except FileNotFoundError:
-                raise InputError(f"The list file {list_file} does not exist; check the path.") from None
+            except (FileNotFoundError, NotADirectoryError) as exc:
+                from fractalseq.guards import path_problem
+
+                why = path_problem(str(lp)) or f"cannot be read ({exc.strerror}); check the path"
+                raise InputError(f"The list file {list_file} {why}.") from None
             except (OSError, UnicodeDecodeError) as exc:
                 raise InputError(f"The list file {list_file} cannot be read ({exc}); give a UTF-8 text file.") from None
             base = lp.parent
@@ -93,7 +96,9 @@ def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_line
                 raise InputError(f"The pattern {item} matches no file; check the pattern (quote it for the shell).")
             paths.extend(found)
         else:
-            raise InputError(f"Input {item} does not exist; check the path.")
+            from fractalseq.guards import path_problem
+
+            raise InputError(f"Input {item} {path_problem(str(p)) or 'is neither a file nor a folder; give a file'}.")
     if not paths:
         raise InputError("No inputs were given; name files, folders, patterns or a list file.")
     if paths.count("-") > 1 or ("-" in paths and list_file == "-"):
