@@ -315,6 +315,13 @@ def drift_test(
         raise InputError("A batch holds no symbols; give inputs with data.")
     if ta.counts.sum() == 0 or tb.counts.sum() == 0:
         raise ParameterError(f"A batch has no word of length {depth}; use a smaller depth.", parameter="depth")
+    if options.block is not None and ta.blocks + tb.blocks < 3:
+        # one block per batch: no permutation can change anything, so the test could never say a thing
+        raise ParameterError(
+            f"Blocks of {block} symbols leave {ta.blocks} + {tb.blocks} blocks in the batches "
+            f"({la} and {lb} symbols), too few to permute; use a block well below the shorter batch.",
+            parameter="block",
+        )
     if depth > 1 and float(joint.size) ** depth * WORDS_PER_CELL > min(la, lb):
         notes.append(f"few words per possible {depth}-word; the word tests have little power. Use a smaller --depth")
     return _permutation_test(ta, tb, depth, block, joint, options, notes)

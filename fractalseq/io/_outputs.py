@@ -64,6 +64,11 @@ def check_writable(path: Path, force: bool) -> None:
     path = Path(path)
     if path.exists() and path.is_dir():
         raise OutputError(f"{path} is a folder, not a file; give a file name.")
+    if os.path.lexists(path) and not path.exists():
+        raise OutputError(f"{path} is a symbolic link that leads nowhere (or to itself); remove it or give another file name.")
+    if path.exists() and not path.is_file():
+        # a device, a pipe or a socket: replacing it by a renamed file (as --force would) must never happen
+        raise OutputError(f"{path} is a {_special_kind(path)}, not a regular file; give a file name.")
     if path.exists() and not force:
         raise _refusal(f"{path} already exists; allow overwriting it or choose another name.", "force")
     parent = path.parent if str(path.parent) else Path(".")
@@ -106,6 +111,19 @@ def probe_writable(path: Path | str, what: str = "") -> None:
         os.unlink(tmp)
     except OSError:  # pragma: no cover - removed by someone else
         pass
+
+
+def _special_kind(path: Path) -> str:
+    import stat
+
+    mode = os.stat(path).st_mode
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "device"
+    if stat.S_ISFIFO(mode):
+        return "named pipe"
+    if stat.S_ISSOCK(mode):
+        return "socket"
+    return "special file"
 
 
 def _current_umask() -> int:
@@ -367,8 +385,9 @@ class StagedFolder:
     entries of the existing folder that the new one lacks (a survey's ``.cache``)
     are moved into the new folder first, so they survive.  An interrupted run
     (:meth:`discard`, or the command line's :func:`tracking_folders`) leaves
-    nothing under the final name; siblings left by a killed run (older than this
-    process) are removed when the same folder is staged again.
+    nothing under the final name; siblings left by a killed run (no live process
+    holds their ``flock``; where locks are unavailable, older than this process)
+    are removed when the same folder is staged again.
 
     Also a context manager: commits on success, discards on any exception.
     """
@@ -388,6 +407,7 @@ class StagedFolder:
             _remove_stale_stages(parent, folder.name)
             self.path = Path(tempfile.mkdtemp(prefix=f".{folder.name}{_PARTIAL}", dir=parent))
             os.chmod(self.path, 0o777 & ~_UMASK)  # mkdtemp makes 0700; give the usual permissions
+            self._lock = _lock_folder(self.path)  # held while this process lives: the sibling is not stale
         except OSError as exc:
             raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
         self.folder = folder
@@ -414,6 +434,7 @@ class StagedFolder:
             os.rename(self.path, self.folder)
             self.done = True
             _open_stages.remove(self)
+            self._release()
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
         return self.folder
@@ -430,8 +451,14 @@ class StagedFolder:
                 os.replace(entry, target)
             self.done = True
             _open_stages.remove(self)
+            self._release()
         shutil.rmtree(self.path, ignore_errors=True)
         return self.folder
+
+    def _release(self) -> None:
+        fd, self._lock = getattr(self, "_lock", None), None
+        if fd is not None:
+            os.close(fd)
 
     def discard(self) -> None:
         """Remove the unfinished folder (nothing is left under the final name)."""
@@ -440,6 +467,7 @@ class StagedFolder:
         if self.done:
             return
         self.done = True
+        self._release()
         if self in _open_stages:
             _open_stages.remove(self)
         shutil.rmtree(self.path, ignore_errors=True)
@@ -464,15 +492,60 @@ def _holds_cwd(folder: Path) -> bool:
     return cwd == target or target in cwd.parents
 
 
+def _lock_folder(path: Path) -> int | None:
+    """Hold an exclusive ``flock`` on the folder ``path`` (its descriptor stays open while this process lives).
+
+    A staged folder is locked by the run that builds it; the lock goes with the
+    process, so a sibling nobody holds is the leftover of a killed run, whatever
+    its time stamps say.  ``None`` where locks are not available.
+    """
+    try:
+        import fcntl
+
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | getattr(os, "O_CLOEXEC", 0))
+    except (ImportError, OSError):
+        return None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        os.close(fd)
+        return None
+    return fd
+
+
+def _unheld(path: str) -> bool | None:
+    """True when no process holds the folder's lock, False when one does, None when that cannot be told."""
+    fd = _lock_folder(Path(path))
+    if fd is not None:
+        os.close(fd)
+        return True
+    try:
+        import fcntl  # noqa: F401 - locks exist, so the failure means someone holds it
+    except ImportError:
+        return None
+    return False if os.path.isdir(path) else None
+
+
 def _remove_stale_stages(parent: Path, name: str) -> None:
-    """Remove ``.NAME.partial-XXXXXXXX`` / ``.NAME.old-XXXXXXXX`` siblings a killed run left (older than this process)."""
+    """Remove ``.NAME.partial-XXXXXXXX`` / ``.NAME.old-XXXXXXXX`` siblings a killed run left.
+
+    A ``partial`` sibling is stale when no live process holds its lock (a run
+    holds the lock of the folder it builds until it ends); where locks cannot be
+    told, and for ``old`` siblings (which live only for the instant of a swap),
+    when it is older than this process.
+    """
     import shutil
 
-    pattern = re.compile(re.escape(f".{name}") + "(?:" + re.escape(_PARTIAL) + "|" + re.escape(_OLD) + ")" + _MKSTEMP_PART)
+    pattern = re.compile(re.escape(f".{name}") + "(" + re.escape(_PARTIAL) + "|" + re.escape(_OLD) + ")" + _MKSTEMP_PART)
     for entry in os.scandir(parent):
         try:
-            if (pattern.fullmatch(entry.name) and entry.is_dir(follow_symlinks=False)
-                    and entry.stat(follow_symlinks=False).st_mtime < PROCESS_START):
+            match = pattern.fullmatch(entry.name)
+            if not match or not entry.is_dir(follow_symlinks=False):
+                continue
+            free = _unheld(entry.path) if match.group(1) == _PARTIAL else None
+            if free is False:
+                continue
+            if free or entry.stat(follow_symlinks=False).st_mtime < PROCESS_START:
                 shutil.rmtree(entry.path, ignore_errors=True)
         except OSError:
             continue
