@@ -112,10 +112,11 @@ def _run(argv: list[str] | None) -> int:
             return _interrupted()
         return int(result or 0)
     except FractalseqError as exc:
-        from fractalseq.cli.common import option_hint
+        from fractalseq.cli.common import option_hint, safe
 
         hint = option_hint(getattr(exc, "parameter", None))
-        typer.echo(f"error: {exc}{hint}" if not hint else f"error: {str(exc).rstrip('.')}{hint}.", err=True)
+        text = safe(str(exc))  # messages quote paths and symbols from the input: no terminal control reaches the screen
+        typer.echo(f"error: {text}{hint}" if not hint else f"error: {text.rstrip('.')}{hint}.", err=True)
         return EXIT_USAGE
     except typer.Exit as exc:
         if exc.exit_code == 130:
@@ -124,11 +125,15 @@ def _run(argv: list[str] | None) -> int:
     except KeyboardInterrupt:
         return _interrupted()
     except MemoryError as exc:
-        typer.echo(f"error: {_memory_sentence(exc, argv)}", err=True)
+        from fractalseq.cli.common import safe
+
+        typer.echo(safe(f"error: {_memory_sentence(exc, argv)}"), err=True)
         return EXIT_USAGE
     except OSError as exc:
+        from fractalseq.cli.common import safe
+
         where = f" ({exc.filename})" if getattr(exc, "filename", None) else ""
-        typer.echo(f"error: {exc.strerror or exc}{where}; check the path and permissions.", err=True)
+        typer.echo(safe(f"error: {exc.strerror or exc}{where}; check the path and permissions."), err=True)
         return EXIT_USAGE
     except Exception as exc:  # click usage errors and the like
         if _caused_by_interrupt(exc):
@@ -144,8 +149,10 @@ def _run(argv: list[str] | None) -> int:
             return _interrupted()
         if os.environ.get("FRACTALSEQ_DEBUG"):
             raise
+        from fractalseq.cli.common import safe
+
         typer.echo(
-            f"error: internal failure ({type(exc).__name__}: {exc}); please report it with the command you ran.",
+            safe(f"error: internal failure ({type(exc).__name__}: {exc}); please report it with the command you ran."),
             err=True,
         )
         return 3
@@ -230,7 +237,9 @@ def _usage_error(exc: Exception) -> int:
     message = " ".join(str(exc.format_message()).split()).rstrip(".")
     ctx = getattr(exc, "ctx", None)
     command = getattr(ctx, "command_path", None) or "fractalseq"
-    typer.echo(f"error: {message}; see {command} --help.", err=True)
+    from fractalseq.cli.common import safe
+
+    typer.echo(safe(f"error: {message}; see {command} --help."), err=True)
     return EXIT_USAGE
 
 

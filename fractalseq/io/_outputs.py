@@ -84,7 +84,7 @@ def _nearest_existing(folder: Path) -> Path:
     return Path(".")  # pragma: no cover - a relative path always ends at "."
 
 
-def probe_writable(path: Path | str, what: str = "") -> None:
+def probe_writable(path: Path | str, shown: Path | str | None = None) -> None:
     """Refuse, before any work, an output ``path`` whose folder this process cannot write.
 
     Creates and removes one empty temporary file named like :func:`write_bytes`'s
@@ -95,14 +95,14 @@ def probe_writable(path: Path | str, what: str = "") -> None:
     names the user's path, never a temporary name.
     """
     path = Path(path)
+    label = path if shown is None else shown  # the user's path, as given
     parent = path.parent if str(path.parent) else Path(".")
     where = _nearest_existing(parent)
     if not where.is_dir():
-        raise OutputError(f"{where} is a file, not a folder; choose another place for {path}.")
+        raise OutputError(f"{where} is a file, not a folder; choose another place for {label}.")
     try:
         fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=where)
     except OSError as exc:
-        label = what or str(path)
         raise OutputError(
             f"{label} cannot be written: {where} refuses new files ({exc.strerror}); choose another place or fix its permissions."
         ) from None
@@ -295,7 +295,7 @@ def prepare_folder(folder: Path | str, force: bool) -> Path:
         raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
     if top is not None and _created is not None:
         _created.append(top)
-    probe_writable(folder / "report", what=f"The output folder {folder}")
+    probe_writable(folder / "report", shown=folder)
     return folder
 
 
@@ -360,9 +360,9 @@ def check_folder(folder: Path | str, force: bool) -> Path:
     folder = Path(os.path.abspath(given))  # "." and "out/.." get a name and a parent
     folder = folder.resolve() if folder.is_symlink() and folder.is_dir() else folder
     # the report is built beside the folder and renamed into place: its parent must take new entries
-    probe_writable(folder / "report", what=f"The output folder {given}")
+    probe_writable(folder / "report", shown=given)
     if folder.is_dir():
-        probe_writable(folder.parent / folder.name, what=f"The output folder {given}")
+        probe_writable(folder.parent / folder.name, shown=given)
     return folder
 
 
