@@ -168,3 +168,28 @@ def test_sigkill_while_the_report_is_written_then_the_rerun_gives_the_same_bytes
         assert (out / ref.name).read_bytes() == ref.read_bytes()
     assert _stages(tmp_path, "out") == []
     assert main([*args, "--out", str(out)]) == 2  # and nothing is overwritten without --force
+
+
+# ----------------------------------------------------------------- the demo's report folder
+def test_an_interrupted_demo_leaves_nothing_and_the_rerun_needs_no_force(tmp_path):
+    """``demo --out`` is built under a hidden sibling too; its JSON names the final folder, never the sibling."""
+    out = tmp_path / "demo"
+    args = ["demo", "--out", str(out), "--length", "6000", "-q", "--json"]
+    proc = subprocess.Popen(CLI + args, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            env={**os.environ, PAUSE_VARIABLE: "report.file:1"})
+
+    def first_file_written() -> bool:
+        return any(f.is_file() and not f.name.endswith(".part") for st in _stages(tmp_path, "demo") for f in st.rglob("*"))
+
+    _wait_until(proc, first_file_written)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=300)
+    assert proc.returncode == 130, err
+    _one_interruption_line(err)
+    assert not out.exists() and _stages(tmp_path, "demo") == []
+    done = subprocess.run(CLI + args, capture_output=True, text=True, timeout=SAFETY)
+    assert done.returncode == 0, done.stderr
+    assert out.is_dir() and _stages(tmp_path, "demo") == []
+    for page in [out / "demo.json", *out.rglob("*.json"), *out.rglob("*.html")]:
+        assert ".partial-" not in page.read_text(encoding="utf-8"), page
+    assert str(out / "data" / "samples") in (out / "demo.json").read_text(encoding="utf-8")
