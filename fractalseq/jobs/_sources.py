@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import glob
 import os
+import stat
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Sequence
@@ -12,7 +13,22 @@ from fractalseq.errors import InputError
 
 _GLOB_CHARS = set("*?[")
 
-__all__ = ["SourceSpec", "expand_inputs"]
+__all__ = ["SourceSpec", "expand_inputs", "is_stream_path"]
+
+
+def is_stream_path(path: str) -> bool:
+    """True for standard input (``-``) and for a pipe or character device given by path (``<(cmd)``, a FIFO).
+
+    Such an input can be read once only: jobs that need it more than once read it
+    into memory (or a temporary copy) first, as they do standard input.
+    """
+    if path == "-":
+        return True
+    try:
+        mode = os.stat(path).st_mode
+    except OSError:
+        return False
+    return stat.S_ISFIFO(mode) or stat.S_ISCHR(mode) or stat.S_ISSOCK(mode)
 
 
 @dataclass(frozen=True)
@@ -83,7 +99,7 @@ def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_line
         p = Path(item)
         if base is not None and not p.is_absolute():
             p = base / p
-        if p.is_file():
+        if p.is_file() or is_stream_path(str(p)):
             paths.append(str(p))
         elif p.is_dir():
             found = _folder_files(p)
