@@ -193,3 +193,20 @@ def test_an_interrupted_demo_leaves_nothing_and_the_rerun_needs_no_force(tmp_pat
     for page in [out / "demo.json", *out.rglob("*.json"), *out.rglob("*.html")]:
         assert ".partial-" not in page.read_text(encoding="utf-8"), page
     assert str(out / "data" / "samples") in (out / "demo.json").read_text(encoding="utf-8")
+
+
+def test_ctrl_c_while_the_commands_are_imported_is_one_line_too(tmp_path):
+    """The first second of a run imports numba and scipy; an interrupt there is exit 130 and one line as well."""
+    import sys
+
+    flag = tmp_path / "paused"
+    src = _write_fasta(tmp_path / "s.fa", 3, 2000)
+    proc = subprocess.Popen([sys.executable, "-m", "fractalseq", "count", str(src), "--save", str(tmp_path / "c.npz")],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            env={**os.environ, PAUSE_VARIABLE: "cli.import:1", PAUSE_FLAG_VARIABLE: str(flag)})
+    _wait_until(proc, flag.exists)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130, err
+    _one_interruption_line(err)
+    assert not (tmp_path / "c.npz").exists()

@@ -78,6 +78,9 @@ def _register_all() -> None:
         module.register(app)
 
 
+from fractalseq.runner import pause_point  # noqa: E402 - the test hook, light
+
+pause_point("cli.import", 1)  # test hook: blocks while the command modules are about to be imported
 _register_all()
 
 
