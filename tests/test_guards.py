@@ -9,6 +9,7 @@ practice); ``resource.setrlimit(RLIMIT_AS)`` caps a process's address space (Pyt
 from __future__ import annotations
 
 import os
+import re
 import subprocess
 import sys
 
@@ -94,3 +95,16 @@ def test_out_of_memory_names_what_and_the_options_of_the_command(monkeypatch, ca
     assert err.startswith("error: out of memory while running count (Unable to allocate 7.45 TiB")
     assert "--depth" in err and err.endswith(".") and len(err.splitlines()) == 1
     assert "depth" not in err.split("(")[0]  # the cause is not presumed to be the depth
+
+
+def test_numpys_bare_full_stop_does_not_split_the_sentence(monkeypatch, capsys):
+    import fractalseq.jobs._files as files
+    from fractalseq.cli.app import main
+
+    def too_big(*args, **kwargs):
+        raise MemoryError("Unable to allocate 273. MiB for an array with shape (3572282, 10) and data type float64")
+
+    monkeypatch.setattr(files, "count_files", too_big)
+    assert main(["count", str(ROOT / "reference" / "lambda_virus.fa.gz")]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "273 MiB" in err and not re.search(r"[.!?]\s+[A-Z]", err), err

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import importlib
 import os
+import re
 import sys
 
 import typer
@@ -212,7 +213,8 @@ def _memory_sentence(exc: MemoryError, argv: list[str] | None) -> str:
     """What ran out (numpy names the array it failed to allocate) and which options control it."""
     words = list(sys.argv[1:] if argv is None else argv)
     command = next((w for w in words if not w.startswith("-")), "")
-    detail = " ".join(str(exc).split())
+    # numpy says "Unable to allocate 273. MiB ...": drop the bare full stop so the sentence stays one sentence
+    detail = re.sub(r"(\d)\.(?!\d)", r"\1", " ".join(str(exc).split()))
     what = f" ({detail.rstrip('.')})" if detail else ""
     options = MEMORY_OPTIONS.get(command)
     where = f" while running {command}" if command in MEMORY_OPTIONS else ""
