@@ -100,6 +100,9 @@ def _make_files(d: Path) -> None:
     os.symlink("loop-out-b.png", d / "loop-out.png")
     os.symlink("loop-out.png", d / "loop-out-b.png")
     (d / "one-symbol.txt").write_text("a" * 50_000)
+    (d / "indir").mkdir()
+    shutil.copy(d / "short.fa", d / "indir" / "in.fa")
+    (d / "indir" / "notes.txt").write_text("an input folder whose files must survive\n")
 
 
 @pytest.fixture(scope="module")
@@ -248,6 +251,17 @@ CASES: list[Case] = [
     Case("count-control-characters-in-a-missing-name", ("count", "{d}/ok\x1b]0;title\x07\x1b[2J.fa"),
          r"ok\\x1b\]0;title\\x07\\x1b\[2J\.fa does not exist", r"check the path"),
     Case("survey-empty-folder", ("survey", "{d}/folder"), r"holds no files", r"give a folder with inputs"),
+    # ---- outputs that would replace an input, even with --force
+    Case("count-save-over-its-own-input", ("count", "{d}/indir/in.fa", "--save", "{d}/indir/in.fa", "--force"),
+         r"in\.fa is one of the inputs", r"another output file name", unchanged=("indir/in.fa",), subprocess=True),
+    Case("learn-out-over-its-own-input", ("learn", "{d}/indir/in.fa", "-o", "{d}/indir/in.fa", "--force"),
+         r"one of the inputs", r"another output file name", unchanged=("indir/in.fa",)),
+    Case("profile-out-folder-holds-the-input", ("profile", "{d}/indir/in.fa", "--boot", "0", "--out", "{d}/indir", "--force"),
+         r"holds the input .*in\.fa", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
+    Case("survey-out-folder-is-the-input-folder", ("survey", "{d}/indir", "{d}/good.fa", "--out", "{d}/indir", "--force"),
+         r"holds the input", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
+    Case("scan-out-folder-holds-the-input", ("scan", "{d}/indir/in.fa", "--window", "20", "--out", "{d}/indir", "--force"),
+         r"holds the input", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
     # ---- sizes beyond memory, bounded before any work (what is allocated, which option sets it)
     Case("profile-boot-beyond-memory", ("profile", "{d}/good.fa", "--boot", "1000000000", "--out", "{d}/out-boot"),
          r"1000000000 bootstrap replicates .*memory", r"fewer replicates \(option --boot\)", absent=("out-boot",),

@@ -89,6 +89,7 @@ def survey(
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
     """
+    common.protect_inputs(paths, from_list)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader
     from fractalseq.io._outputs import StagedFolder
     from fractalseq.jobs._files import survey_cache, survey_files
@@ -230,6 +231,7 @@ def drift(
 
     Example: fractalseq drift logs/monday.log logs/tuesday.log --format log --alpha 0.01
     """
+    common.protect_inputs(baseline, new)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader
     from fractalseq.compare._drift import DriftOptions
     from fractalseq.jobs._files import drift_files
@@ -337,6 +339,7 @@ def scan(
 
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
+    common.protect_inputs(path)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader
     from fractalseq.jobs._files import parse_penalty, scan_file
 

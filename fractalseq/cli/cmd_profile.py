@@ -181,6 +181,7 @@ def profile(
 
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
     """
+    common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.io._outputs import StagedFolder, to_json
     from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, STEPS, ProfileSettings, contract, profile_source
     from fractalseq.report.profile import is_genomic, safe_name, write_profile_index, write_profile_report

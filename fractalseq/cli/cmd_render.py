@@ -36,6 +36,7 @@ def render(
 
     Example: fractalseq render reference/lambda_virus.fa --out lambda.png --ratio 0.5
     """
+    common.protect_inputs(path)  # no output may replace an input, even with --force
     from fractalseq import encoding
     from fractalseq.report.density import render_png
     from fractalseq.io._outputs import check_writable

@@ -37,6 +37,7 @@ def count(
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
+    common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.jobs._files import count_files  # imported here: numba makes it slow, and --help/completion need speed
 
     if save is not None:

@@ -10,6 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 import re
+from pathlib import Path
 
 import typer
 from rich.console import Console
@@ -127,6 +128,14 @@ def caused_by_interrupt(exc: BaseException) -> bool:
         seen.add(id(link))
         link = link.__cause__ or link.__context__
     return False
+
+
+def protect_inputs(*groups) -> None:
+    """Declare a command's inputs (paths, lists of paths): no output may replace them (io._outputs.protect_inputs)."""
+    from fractalseq.io._outputs import protect_inputs as protect
+
+    for group in groups:
+        protect([group] if isinstance(group, (str, Path)) or group is None else list(group))
 
 
 def option_hint(parameter: str | None) -> str:

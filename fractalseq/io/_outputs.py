@@ -52,6 +52,32 @@ def to_json(data: Any) -> str:
     return json.dumps(_clean(data), indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
 
 
+#: Real paths of this run's inputs (:func:`protect_inputs`): no output may replace one, even with ``force``.
+_protected: set[str] = set()
+
+
+def protect_inputs(paths: Iterable[str | Path | None]) -> None:
+    """Declare the run's inputs (files or folders; ``-`` and missing paths are skipped).
+
+    :func:`check_writable` then refuses an output file that is one of them, and
+    :func:`check_folder` an output folder that is or holds one (replacing it with
+    ``force`` would delete the input).  The command line declares each command's
+    inputs before it checks its outputs; :func:`tracking_folders` forgets them.
+    """
+    for p in paths:
+        if p is None or str(p) in ("", "-") or not os.path.exists(p):
+            continue
+        _protected.add(os.path.realpath(p))
+
+
+def _input_inside(folder: Path) -> str | None:
+    root = os.path.realpath(folder)
+    for p in sorted(_protected):
+        if p == root or p.startswith(root.rstrip(os.sep) + os.sep):
+            return p
+    return None
+
+
 def _refusal(message: str, parameter: str) -> OutputError:
     """An :class:`OutputError` naming the parameter that would allow the write (the command line adds its option)."""
     error = OutputError(message)
@@ -69,6 +95,8 @@ def check_writable(path: Path, force: bool) -> None:
     if path.exists() and not path.is_file():
         # a device, a pipe or a socket: replacing it by a renamed file (as --force would) must never happen
         raise OutputError(f"{path} is a {_special_kind(path)}, not a regular file; give a file name.")
+    if path.exists() and os.path.realpath(path) in _protected:
+        raise OutputError(f"{path} is one of the inputs and writing it would destroy it; give another output file name.")
     if path.exists() and not force:
         raise _refusal(f"{path} already exists; allow overwriting it or choose another name.", "force")
     parent = path.parent if str(path.parent) else Path(".")
@@ -313,6 +341,7 @@ def tracking_folders():
     """
     global _created
     outer, _created = _created, []
+    protected_before = set(_protected)
     mine = _created
     stages_before = list(_open_stages)
 
@@ -329,6 +358,8 @@ def tracking_folders():
         yield discard_empty
     finally:
         _created = outer
+        _protected.clear()
+        _protected.update(protected_before)
         for stage in [st for st in _open_stages if st not in stages_before]:
             stage.discard()  # a run that ended without committing its report folder leaves no trace
 
@@ -355,6 +386,11 @@ def check_folder(folder: Path | str, force: bool) -> Path:
     given = Path(folder)  # named in messages as the user wrote it
     if given.exists() and not given.is_dir():
         raise OutputError(f"{given} is a file, not a folder; choose another output folder.")
+    # (a folder holding the working directory is filled in place, entry by entry, never replaced)
+    inside = _input_inside(given) if given.exists() and not _holds_cwd(Path(os.path.abspath(given))) else None
+    if inside is not None:
+        raise OutputError(f"The output folder {given} holds the input {inside}, which replacing the folder would "
+                          "delete; choose another output folder.")
     if given.exists() and any(p for p in given.iterdir() if not p.name.startswith(".")) and not force:
         raise _refusal(f"{given} already holds files; allow overwriting them or choose another folder.", "force")
     folder = Path(os.path.abspath(given))  # "." and "out/.." get a name and a parent
