@@ -13,6 +13,8 @@ package ``gdb``; 100,014 lines whose test names have any number of words), and t
 * grouping accuracy (Zhu et al. 2019, "Tools and Benchmarks for Automated Log Parsing", ICSE-SEIP: a line is
   right when the lines sharing its template are exactly those sharing its label) on the labelled logs of
   reference/logs (labels written from the programs' message formats by reference/logs/label_rules.py).
+* survey of real logs: consecutive pieces of five logs of reference/logs surveyed together; same-log and
+  different-log Jensen-Shannon divergences and the purity of the survey's clustering cut into five clusters.
 * ``--before DIR``: the log reader's first pass (``logs.learn``, present in every version) measured with the
   package imported from DIR (e.g. an older commit's tree from ``git archive COMMIT fractalseq | tar -x -C DIR``)
   and from this tree, for a before/after table.
@@ -122,6 +124,60 @@ def accuracy_rows() -> list[dict]:
     return rows
 
 
+#: the survey of real logs: (log, first line, last line, pieces) -- as tests/test_survey_logs.py cuts them
+SURVEY_PIECES = [
+    ("dpkg-excerpt", 1, 2000, 3),
+    ("apt-term-excerpt", 1, 1200, 3),
+    ("gdb-check-excerpt", 1, 3000, 3),
+    ("fail2ban-sshd", 1, 399, 2),
+    ("jtreg-output-excerpt", 150, 351, 2),
+]
+
+
+def survey_figures() -> dict:
+    """Survey of consecutive pieces of five real logs: same-log and different-log distances, purity, seconds."""
+    import tempfile
+    import time
+    from collections import Counter
+
+    import numpy as np
+    from scipy.cluster.hierarchy import fcluster
+
+    from fractalseq.jobs._files import survey_files
+    from fractalseq.jobs._inputs import ReaderOptions
+    from fractalseq.jobs._survey import SurveyOptions
+
+    with tempfile.TemporaryDirectory() as d:
+        paths, logs = [], []
+        for name, first, last, k in SURVEY_PIECES:
+            lines = (LOGS / f"{name}.log").read_bytes().split(b"\n")[first - 1 : last]
+            step = len(lines) // k
+            for i in range(k):
+                part = lines[i * step : (i + 1) * step if i < k - 1 else len(lines)]
+                p = Path(d) / f"{name}-{i + 1}.log"
+                p.write_bytes(b"\n".join(part) + b"\n")
+                paths.append(str(p))
+                logs.append(name)
+        t = time.perf_counter()
+        res = survey_files(paths, SurveyOptions.from_reader(ReaderOptions(fmt="log")))
+        seconds = time.perf_counter() - t
+    js = np.asarray(res.js)
+    same = np.equal.outer(logs, logs)
+    off = ~np.eye(len(logs), dtype=bool)
+    within, between = js[same & off], js[~same]
+    clusters = fcluster(np.asarray(res.clustering.linkage, dtype=float), t=len(SURVEY_PIECES), criterion="maxclust")
+    by: dict = {}
+    for c, g in zip(clusters, logs):
+        by.setdefault(c, Counter())[g] += 1
+    purity = sum(cnt.most_common(1)[0][1] for cnt in by.values()) / len(logs)
+    per_log = {name: round(float(js[np.ix_([i for i, g in enumerate(logs) if g == name], [i for i, g in enumerate(logs) if g == name])][np.triu_indices(k, 1)].max()), 4)
+               for name, _, _, k in SURVEY_PIECES}
+    return {"pieces": len(paths), "logs": len(SURVEY_PIECES), "alphabet": res.js_alphabet, "depth": res.js_depth,
+            "within_max": round(float(within.max()), 4), "within_mean": round(float(within.mean()), 4),
+            "between_min": round(float(between.min()), 4), "between_mean": round(float(between.mean()), 4),
+            "purity": purity, "within_max_per_log": per_log, "seconds": round(seconds, 2)}
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeat", type=int, default=5)
@@ -154,7 +210,9 @@ def main() -> None:
         rows.append(row)
         print(row, flush=True)
     acc = accuracy_rows()
-    result = {"repeat": args.repeat, "rows": rows, "accuracy": acc, "skipped": skipped,
+    survey = survey_figures()
+    print(survey, flush=True)
+    result = {"repeat": args.repeat, "rows": rows, "accuracy": acc, "survey": survey, "skipped": skipped,
               "load_average_1_5_15": {"start": [round(x, 2) for x in load_start],
                                       "end": [round(x, 2) for x in os.getloadavg()]},
               "cpus": os.cpu_count(), "python": sys.version.split()[0],
@@ -190,6 +248,14 @@ def main() -> None:
            "| log | lines | labelled kinds | templates | grouping accuracy |", "| --- | ---: | ---: | ---: | ---: |"]
     for a in acc:
         md.append(f"| {a['log']} | {a['lines']:,} | {a['kinds']} | {a['templates']} | {a['grouping_accuracy']} |")
+    md += ["", f"Survey of {survey['pieces']} consecutive pieces of {survey['logs']} real logs of reference/logs "
+           f"(`survey --format log`; Jensen-Shannon divergence of the depth-{survey['depth']} template distributions "
+           f"over one table of templates joined across the survey, `{survey['alphabet']}`; {survey['seconds']} s):", "",
+           "| same-log divergence, max | same-log, mean | different-log, min | different-log, mean | purity (5 clusters) |",
+           "| ---: | ---: | ---: | ---: | ---: |",
+           f"| {survey['within_max']} | {survey['within_mean']} | {survey['between_min']} | {survey['between_mean']} "
+           f"| {survey['purity']} |", "",
+           "Largest same-log divergence per log: " + ", ".join(f"{k} {v}" for k, v in survey["within_max_per_log"].items()) + "."]
     if skipped:
         md += ["", "Skipped (missing or unreadable here): " + ", ".join(skipped)]
     md.append("")

@@ -27,7 +27,6 @@ Run::
 from __future__ import annotations
 
 import argparse
-import re
 import sys
 from pathlib import Path
 
@@ -37,8 +36,8 @@ from _scenario_setup import make_scenario, run_example  # shared options, output
 
 
 def fixed_words(template: str) -> str:
-    """The fixed text of a scenario template ('frame {frame} dropped ...' -> 'dropped ...' parts)."""
-    return max(re.split(r"\{\w+\}", template), key=len).strip()
+    """The longest fixed text of a scenario template ('frame <*> dropped after ...' -> 'dropped after ...')."""
+    return max(template.split("<*>"), key=len).strip()
 
 
 def run(folder: Path, args: argparse.Namespace) -> None:

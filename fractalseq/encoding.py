@@ -79,6 +79,30 @@ class OverlapCheck:
         }
 
 
+def _pairwise_separation(c: np.ndarray, k: float, block: int = 256) -> tuple[float, bool]:
+    """Smallest distance between two corners, and whether every pair is separated along some axis.
+
+    Custom corners: pairs are compared a block of rows at a time, so memory stays ``O(block * A * D)``.
+    """
+    A = c.shape[0]
+    extent = c.max(axis=0) - c.min(axis=0)
+    dmin = np.inf
+    sep_all = True
+    for lo in range(0, A, block):
+        hi = min(A, lo + block)
+        diff = np.abs(c[lo:hi, None, :] - c[None, :, :])
+        dist = np.sqrt((diff**2).sum(-1))
+        rows = np.arange(lo, hi)
+        dist[rows - lo, rows] = np.inf
+        dmin = min(dmin, float(dist.min()))
+        # image of the bounding box under map i: [k*lo + (1-k)c_i, k*hi + (1-k)c_i]; disjoint along axis d if
+        # (1-k)|c_i,d - c_j,d| >= k*extent_d (touching allowed)
+        sep = ((1 - k) * diff >= k * extent[None, None, :] - 1e-12).any(axis=-1)
+        sep[rows - lo, rows] = True
+        sep_all = sep_all and bool(sep.all())
+    return float(dmin), sep_all
+
+
 def overlap_check(ratio: float, corners: np.ndarray) -> OverlapCheck:
     """Check the open-set (non-overlap) condition for maps ``x -> k x + (1 - k) c``.
 
@@ -96,19 +120,19 @@ def overlap_check(ratio: float, corners: np.ndarray) -> OverlapCheck:
     A = c.shape[0]
     if A < 2:
         return OverlapCheck(False, "one symbol: a single map, nothing to overlap", k, float("inf"))
-    diff = np.abs(c[:, None, :] - c[None, :, :])
-    dist = np.sqrt((diff**2).sum(-1))
-    np.fill_diagonal(dist, np.inf)
-    dmin = float(dist.min())
-    if dmin == 0:
-        return OverlapCheck(True, "two symbols share a corner, so their maps coincide", k, 0.0)
-    extent = c.max(axis=0) - c.min(axis=0)
-    # image of the bounding box under map i: [k*lo + (1-k)c_i, k*hi + (1-k)c_i]; disjoint along axis d if
-    # (1-k)|c_i,d - c_j,d| >= k*extent_d (touching allowed)
-    sep_ok = ((1 - k) * diff >= k * extent[None, None, :] - 1e-12).any(axis=-1)
-    np.fill_diagonal(sep_ok, True)
-    if sep_ok.all():
-        return OverlapCheck(False, f"images of the maps are disjoint (k = {k:g})", k, dmin)
+    if c.shape == (A, max(1, math.ceil(math.log2(A)))) and np.array_equal(c, corner_layout(A)):
+        # binary hypercube corners, decided analytically (no table over pairs): distinct corners differ by 1 in
+        # some coordinate and every coordinate spans [0, 1], so the images k*[0,1]^D + (1-k)c are disjoint
+        # boxes (touching at k = 1/2) exactly when (1 - k) >= k
+        if k <= 0.5:
+            return OverlapCheck(False, f"images of the maps are disjoint (k = {k:g})", k, 1.0)
+        dmin = 1.0
+    else:
+        dmin, sep_all = _pairwise_separation(c, k)
+        if dmin == 0:
+            return OverlapCheck(True, "two symbols share a corner, so their maps coincide", k, 0.0)
+        if sep_all:
+            return OverlapCheck(False, f"images of the maps are disjoint (k = {k:g})", k, dmin)
     return OverlapCheck(
         True,
         f"k = {k:g} is too large for these corners: the images of the maps overlap, so boxes are not words "

@@ -17,6 +17,7 @@ limit).  ``NaN`` stays ``NaN`` in the dictionary; the JSON writer
 from __future__ import annotations
 
 import dataclasses
+import re
 from dataclasses import dataclass, field
 from typing import Any, ClassVar, Mapping
 
@@ -87,4 +88,47 @@ class Estimate(Result):
     notes: tuple[str, ...] = field(default=())
 
 
-__all__ = ["Estimate", "Result", "to_plain"]
+__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "CAUTION_LOGS", "CAUTION_SERIES", "Estimate", "Result", "caution_for", "is_log_alphabet", "to_plain"]
+
+
+# ------------------------------------------------------------------ cautions
+#: Sequence alphabets whose output carries the genomic caution.
+GENOMIC_ALPHABETS = frozenset({"dna", "rna", "protein"})
+#: The alphabet name of event-log templates (see :mod:`fractalseq.sources.logs`).
+LOG_ALPHABET = "templates"
+CAUTION_GENOMIC = "Genomic output is for research, not for clinical decisions."
+CAUTION_LOGS = "Reports on event logs (scans, surprise scores, drift, predicted events) are no security guarantee."
+CAUTION_SERIES = (
+    "Estimates of a measured series describe its symbols (the bins, thresholds or ordinal patterns read), "
+    "not the raw values."
+)
+#: Alphabet names of symbolized numeric series (see :mod:`fractalseq.sources.numeric`).
+_SERIES_ALPHABET = re.compile(r"(quantile|threshold|ordinal)\d+")
+CAUTION_GENERAL = (
+    "Genomic output is for research, not for clinical decisions; reports on event logs are no security guarantee."
+)
+
+
+def is_log_alphabet(alphabet: Any) -> bool:
+    """True for an alphabet (or alphabet name) of log templates, also the union of several logs' (``joint-templates``)."""
+    name = str(getattr(alphabet, "name", alphabet))
+    return name == LOG_ALPHABET or name.endswith("-" + LOG_ALPHABET)
+
+
+def caution_for(alphabet_names: Any) -> str:
+    """The caution that fits the inputs, from their alphabet names (or alphabets).
+
+    Logs only (template alphabets): :data:`CAUTION_LOGS`; sequences only (DNA, RNA,
+    protein): :data:`CAUTION_GENOMIC`; symbolized numeric series only: :data:`CAUTION_SERIES`;
+    anything else or a mix: :data:`CAUTION_GENERAL`.
+    """
+    names = {str(getattr(a, "name", a)).removeprefix("joint-") for a in alphabet_names}
+    if names and all(_SERIES_ALPHABET.fullmatch(n) for n in names):
+        return CAUTION_SERIES
+    logs = any(is_log_alphabet(n) for n in names)
+    genomic = bool(names & GENOMIC_ALPHABETS)
+    if logs and not genomic:
+        return CAUTION_LOGS
+    if genomic and not logs:
+        return CAUTION_GENOMIC
+    return CAUTION_GENERAL

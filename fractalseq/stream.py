@@ -64,6 +64,50 @@ class Record:
         return {"name": self.name, "start": self.start, "length": self.length}
 
 
+@dataclass(frozen=True)
+class Positions:
+    """Where each symbol of a line-oriented input sits in the file: symbol index -> coordinate.
+
+    Attributes
+    ----------
+    unit:
+        ``"line"`` (event logs: the 1-based line number of the symbol's line, as an editor
+        shows it, blank and skipped lines counted) or ``"row"`` (numeric columns: the
+        1-based file line number of the row the symbol comes from; for ordinal patterns,
+        the row of the pattern's last value).
+    values:
+        One coordinate per symbol (int64, increasing).
+    time_column, times:
+        Numeric inputs with a time column: its name and its text in each symbol's row.
+    """
+
+    unit: str
+    values: np.ndarray
+    time_column: str | None = None
+    times: tuple[str, ...] | None = None
+
+    def __len__(self) -> int:
+        return int(self.values.size)
+
+    def at(self, index: int) -> int:
+        """Coordinate of the symbol at ``index`` (clipped to the stream)."""
+        return int(self.values[min(max(int(index), 0), self.values.size - 1)])
+
+    def time_at(self, index: int) -> str | None:
+        """Time-column text of the symbol at ``index`` (``None`` without a time column)."""
+        if self.times is None or not self.times:
+            return None
+        return self.times[min(max(int(index), 0), len(self.times) - 1)]
+
+    def span(self, start: int, end: int) -> dict:
+        """JSON-ready coordinates of symbols ``start:end`` (end exclusive): first and last ``unit``, times."""
+        out: dict = {f"first_{self.unit}": self.at(start), f"last_{self.unit}": self.at(max(start, end - 1))}
+        if self.times is not None:
+            out["first_time"] = self.time_at(start)
+            out["last_time"] = self.time_at(max(start, end - 1))
+        return out
+
+
 @dataclass
 class ReadReport:
     """What a reader kept and dropped, filled while the stream is read.
@@ -77,6 +121,8 @@ class ReadReport:
     records: list[Record] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     extra: dict = field(default_factory=dict)
+    #: line-oriented inputs: where each symbol sits in the file (not in the JSON form)
+    positions: Positions | None = None
 
     def drop(self, reason: str, count: int) -> None:
         """Add ``count`` dropped symbols under ``reason``."""
@@ -86,6 +132,10 @@ class ReadReport:
     @property
     def dropped_total(self) -> int:
         return int(sum(self.dropped.values()))
+
+    def summary_notes(self, top: int = 5) -> list[str]:
+        """The reader's notes plus one sentence on dropped symbols (the ``top`` reasons): what a table shows."""
+        return read_summary(self.notes, self.dropped, top)
 
     def to_dict(self) -> dict:
         return {
@@ -97,6 +147,17 @@ class ReadReport:
             "notes": list(self.notes),
             **self.extra,
         }
+
+
+def read_summary(notes, dropped: dict | None, top: int = 5) -> list[str]:
+    """A read report's ``notes`` plus one sentence on the ``dropped`` symbols by reason (the ``top`` reasons)."""
+    out = [str(n) for n in notes or ()]
+    if dropped:
+        items = sorted(dropped.items(), key=lambda kv: (-kv[1], kv[0]))
+        shown = ", ".join(f"{k} x{v:,}" for k, v in items[:top])
+        more = f" and {len(items) - top} more reasons" if len(items) > top else ""
+        out.append(f"{sum(dropped.values()):,} symbols left out: {shown}{more}")
+    return out
 
 
 class SymbolStream:
@@ -111,6 +172,9 @@ class SymbolStream:
         iterated; returns an iterator of :class:`Chunk` and fills the report.
     name:
         Name of the source (file name, ``-`` for standard input).
+    length_hint:
+        An upper bound on the symbols a pass yields when the reader knows one (an event log's lines,
+        counted by its first pass), else ``None``; consumers may size tables by it.
     """
 
     def __init__(
@@ -118,11 +182,16 @@ class SymbolStream:
         alphabet: Alphabet,
         factory: Callable[[ReadReport], Iterator[Chunk]],
         name: str = "stream",
+        length_hint: int | None = None,
     ) -> None:
         self.alphabet = alphabet
         self.name = name
+        self.length_hint = None if length_hint is None else int(length_hint)
         self._factory = factory
         self.report = ReadReport()
+        #: what one symbol is: ``"symbol"``, or ``"line"`` (event logs) / ``"row"`` (numeric columns) when the
+        #: reader maps symbols to file lines (:attr:`ReadReport.positions`)
+        self.unit = "symbol"
 
     def chunks(self) -> Iterator[Chunk]:
         """Iterate over the chunks; :attr:`report` describes the last full pass."""
@@ -208,7 +277,7 @@ class SymbolArray:
             report.dropped = dict(self.report.dropped)
             yield from self.chunks(chunk_size)
 
-        s = SymbolStream(self.alphabet, factory, self.name)
+        s = SymbolStream(self.alphabet, factory, self.name, length_hint=len(self.codes))
         s.report = self.report
         return s
 

@@ -71,6 +71,19 @@ def test_thue_morse_box_counts_follow_a005942():
     assert got == a005942
 
 
+@pytest.mark.parametrize("A", [2, 3, 5, 8, 9, 33, 70])
+@pytest.mark.parametrize("k", [0.25, 1 / 3, 0.5, 0.5000001, 0.6])
+def test_overlap_check_of_hypercube_corners_decided_analytically_matches_the_pairwise_test(A, k):
+    # hypercube corners are decided without a table over pairs; the pairwise separating-axis test (the
+    # custom-corner route, a block of rows at a time) must agree on the same corners: disjoint iff k <= 1/2
+    # (common practice: the maps x -> k x + (1 - k) c of the unit cube's vertices tile it for k = 1/2)
+    corners = enc.corner_layout(A)
+    fast = enc.overlap_check(k, corners)
+    dmin, sep_all = enc._pairwise_separation(corners, k, block=7)
+    assert fast.overlapping == (k > 0.5) == (not sep_all)
+    assert dmin == fast.min_corner_distance == 1.0
+
+
 def test_overlap_check():
     two = enc.corner_layout(2)
     four = enc.corner_layout(4)

@@ -127,7 +127,8 @@ def test_predict_next_symbol(runs):
 def test_relay_log_drift(runs):
     out, folder = _ok(runs, "relay_log_drift")
     assert "truth: changed = True; test says changed = True" in out
-    assert "found among the top four: 2 of 2" in out
+    k = len(scenario.FAILURE_TEMPLATES)  # the scenario's new event kinds (its ground truth)
+    assert f"found among the top four: {k} of {k}" in out
     assert out.splitlines()[-1] == "Drift reports on logs are no security guarantee."
     doc = json.loads((folder / "drift.json").read_text())
     assert doc["changed"] is True

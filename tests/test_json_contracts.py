@@ -5,7 +5,10 @@ through the command line only (``python -m fractalseq ...`` in a child process, 
 on small fixed inputs with fixed seeds:
 
 - real data with provenance in ``reference/PROVENANCE.md``: the phage lambda genome
-  (``lambda_virus.fa.gz``) and the 40 kb fragment of human chromosome 17 (``chr17.hg19.part.fa``);
+  (``lambda_virus.fa.gz``), the 40 kb fragment of human chromosome 17 (``chr17.hg19.part.fa``), two logs
+  of ``reference/logs`` and the weekly CO2 series of ``reference/timeseries``;
+- the quarterly US macroeconomic table (``timeseries/us_macro_quarterly.csv``, public domain) for the numeric
+  documents (several columns, ordinal patterns);
 - the invented scenario of ``fractalseq demo`` (simulated samples and relay logs), written by the demo
   itself into a temporary folder.
 
@@ -48,6 +51,9 @@ CONTRACTS = HERE / "contracts"
 REFERENCE = HERE.parent / "reference"
 LAMBDA = REFERENCE / "lambda_virus.fa.gz"
 CHR17 = REFERENCE / "chr17.hg19.part.fa"
+LOGS = REFERENCE / "logs"
+CO2 = REFERENCE / "timeseries" / "co2_mauna_loa_weekly.csv"
+MACRO = REFERENCE / "timeseries" / "us_macro_quarterly.csv"
 REGENERATE = os.environ.get("FRACTALSEQ_REGENERATE_CONTRACTS", "") not in ("", "0")
 
 # Dict-valued keys whose keys are data, not names (collapsed to "{}" in key paths).
@@ -168,6 +174,16 @@ def work(tmp_path_factory) -> Path:
     return root
 
 
+def _macro_part(root: Path, which: str) -> Path:
+    """The real quarterly US macro table cut at 1984 (rows before, or from 1984 on), written once into the work folder."""
+    path = root / f"macro-{which}.csv"
+    if not path.exists():
+        lines = MACRO.read_text(encoding="utf-8").splitlines()
+        keep = [ln for ln in lines[1:] if (int(ln.split(",")[0]) < 1984) == (which == "before")]
+        path.write_text("\n".join([lines[0], *keep]) + "\n", encoding="utf-8")
+    return path
+
+
 def _samples(root: Path) -> Path:
     return root / "demo" / "data" / "samples"
 
@@ -203,10 +219,29 @@ COMMANDS = {
     "drift": ("drift --json: the demo's two relay log batches, --format log, 99 permutations, seed 0",
               lambda r: [["drift", _logs(r) / "relay-week1.log", _logs(r) / "relay-week2.log", "--format", "log",
                           "--permutations", "99", "--seed", "0", "--json", "--quiet"]], (0, 1)),
+    "profile-series": ("profile --json: two columns of the real quarterly US macro table as ordinal patterns of order 3, "
+                       "delay 2, --boot 20 --seed 1 (permutation_entropy filled in)",
+                       lambda r: [["profile", MACRO, "--column", "realgdp,infl", "--ordinal", "3", "--delay", "2",
+                                   "--boot", "20", "--seed", "1", "--json", "--quiet"]], (0,)),
+    "drift-columns": ("drift --json --column a,b: the real quarterly US macro table before 1984 against 1984 on, "
+                      "two columns, 99 permutations, seed 0",
+                      lambda r: [["drift", _macro_part(r, "before"), _macro_part(r, "after"), "--column", "realgdp,unemp",
+                                  "--permutations", "99", "--seed", "0", "--json", "--quiet"]], (0, 1)),
     "scan": ("scan --json: chr17 fragment (soft-masked repeats give a low-complexity run), window 1000",
              lambda r: [["scan", CHR17, "--window", "1000", "--seed", "0", "--json", "--quiet"]], (0,)),
     "learn": ("learn --json: model of the demo's kelp-chain sample",
               lambda r: [_learn_dna(r)], (0,)),
+    "scan-log": ("scan --json: a real package-manager log (reference/logs/dpkg-excerpt.log), default window of lines; "
+                 "file line numbers and dominant templates",
+                 lambda r: [["scan", LOGS / "dpkg-excerpt.log", "--json", "--quiet"]], (0,)),
+    "scan-numeric": ("scan --json: the weekly Mauna Loa CO2 series (reference/timeseries), default window of rows; "
+                     "file line numbers and dates of the rows",
+                     lambda r: [["scan", CO2, "--json", "--quiet"]], (0,)),
+    "score-online-log": ("score --json --online: a real sshd log with blank lines (reference/logs/fail2ban-sshd.log); "
+                         "windows located by file line numbers",
+                         lambda r: [["score", LOGS / "fail2ban-sshd.log", "--online", "--json", "--quiet"]], (0,)),
+    "next-log": ("next --json: a context of template ids under the model of the demo's first relay log batch",
+                 lambda r: [_learn_log(r), ["next", "#0 #1", "--model", "relay.npz", "--top", "3", "--json"]], (0,)),
     "learn-log": ("learn --json --format log: model of the demo's first relay log batch (template table)",
                   lambda r: [_learn_log(r)], (0,)),
     "score-fitted": ("score --json --model: kelp-sticky sample read with the kelp-chain model",

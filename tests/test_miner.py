@@ -34,7 +34,13 @@ SHA = {
     "fail2ban-apache-auth.log": "dfac64aa76d482bed138bd8e9edf0612d3befd7380c3abf68603c602d456901b",
     "gdb-check-excerpt.log": "a8aa7fcc873f072fda4eb13e94b7efe3369f8404b00523cae6c004c0ab853ce1",
 }
-LABELLED = ["dpkg-excerpt", "apt-term-excerpt", "jtreg-output-excerpt"]
+LABELLED = ["dpkg-excerpt", "apt-term-excerpt", "jtreg-output-excerpt", "fail2ban-sshd"]
+#: least grouping accuracy asserted per labelled log.  fail2ban's sshd sample is a test fixture that holds
+#: deliberately hostile lines (user names holding "from <address>", empty user names, an injected quote) and
+#: free-text comments, which no token-count-preserving miner can group as the labels do (30 of its 334 lines),
+#: and fixed strings that differ in one or three words of a long line ("no matching cipher" / "no matching MAC";
+#: PAM's "Authentication failure" / "authentication error"), which similarity grouping merges: 0.87 measured.
+LEAST_ACCURACY = {"dpkg-excerpt": 0.9, "apt-term-excerpt": 0.9, "jtreg-output-excerpt": 0.9, "fail2ban-sshd": 0.85}
 
 
 def _lines(path: Path) -> list[str]:
@@ -78,7 +84,7 @@ def test_grouping_accuracy_on_labelled_real_logs(name):
     assert len(codes) == len(truth)
     kinds = len(set(truth))
     found = stream.alphabet.size
-    assert grouping_accuracy(codes, truth) >= 0.9
+    assert grouping_accuracy(codes, truth) >= LEAST_ACCURACY[name]
     assert kinds / 2 <= found <= 2 * kinds
 
 
@@ -142,6 +148,62 @@ def _words(n: int, seed: int) -> list[str]:
     return ["".join(rng.choice(letters, 7)) for _ in range(n)]
 
 
+def test_sshd_sample_over_splitting_causes_are_gone():
+    """The causes that split fail2ban's sshd sample into ~135 templates, each checked on its own lines.
+
+    Labels: reference/logs/label_rules.py (sshd message formats, fail2ban's sample annotations).
+    """
+    lines, truth = _labelled("fail2ban-sshd")
+    texts, ids = mine(lines)
+
+    def kind_template(label: str) -> set:
+        return {texts[i] for i, t in zip(ids, truth) if t == label}
+
+    # "# failJSON: {...}": words then a JSON object -> one template per key set, whatever the values
+    assert kind_template("failJSON desc,host,match,time") == {"# failJSON: { desc=<*> host=<*> match=<*> time=<*> }"}
+    # Solaris' "[ID 800047 auth.info]" tag is header; "<invalid username>" is a placeholder value
+    assert kind_template("auth Failed keyboard-interactive port ssh") == {"Failed keyboard-interactive for <*> from <*> port <*> ssh2"}
+    # "[sshd]" and "[sshd]:" after the time are the program; host names and addresses are one field
+    assert kind_template("user-not-allowed not listed in AllowUsers") == {"User root from <*> not allowed because not listed in AllowUsers"}
+    # RFC 5424 structured data whose quoted value holds "]"
+    assert kind_template("auth Failed unknown invalid-user port ssh") == {"Failed unknown for invalid user redmond from <*> port <*> ssh2"}
+    by_id: dict = defaultdict(set)
+    for t, i in zip(truth, ids):
+        by_id[i].add(t)
+    merged = sum(1 for v in by_id.values() if len(v) > 1)
+    assert len(texts) <= 2 * len(set(truth)) and merged <= 12
+
+
+def test_one_differing_word_is_a_variable_only_with_evidence():
+    """Short lines differing in one word: a variable needs several different words seen once each.
+
+    Invented scenario (a job runner and a login service).  "job N started" / "job N done" are two events
+    (two words, each recurring); "user <name> logged in" with many names each seen once is one event, and
+    then also takes a name that recurs (root).
+    """
+    rng = np.random.default_rng(5)
+    names = _words(40, 9)
+    lines = []
+    for k in range(200):
+        lines.append(f"job {int(rng.integers(1, 99))} " + ("started" if k % 2 == 0 else "done"))
+        if k % 5 == 0:
+            lines.append(f"user {names[k // 5]} logged in")
+        if k % 7 == 0:
+            lines.append("user root logged in")
+    texts, ids = mine(lines)
+    assert sorted(texts) == ["job <*> done", "job <*> started", "user <*> logged in"]
+    # the smallest cases: two lines each
+    assert sorted(mine(["job 12 started", "job 12 done"])[0]) == ["job <*> done", "job <*> started"]
+    assert mine(["user alice logged in", "user bob logged in", "user carol logged in"])[0] == ["user <*> logged in"]
+    # two names seen once are not yet evidence of a variable (they could be two events)
+    assert len(mine(["user alice logged in", "user bob logged in"])[0]) == 2
+    # threshold 1: a line joins only when every word of the template agrees (numbers are no evidence)
+    assert mine(["a b 1", "a b 2", "a c 3"], threshold=1.0) == (["a b <*>", "a c <*>"], [0, 0, 1])
+    # words that recur keep their templates however many there are (dpkg's status states)
+    states = ["installed", "unpacked", "half-configured", "half-installed", "config-files"] * 4
+    assert len(mine([f"status {w} pkg{i}:amd64 1.{i}" for i, w in enumerate(states)])[0]) == 5
+
+
 def test_dpkg_log_templates_follow_the_documented_line_kinds():
     """dpkg(1) --log formats: status lines keep their state; package names and versions are variables."""
     texts, _ = mine(_lines(LOGS / "dpkg-excerpt.log"))
@@ -193,12 +255,14 @@ def test_invented_log_kinds_are_recovered():
     truth = [next(k for k, fmt in enumerate(["sshd", "job", "login_failed", "disk_full", "status"]) if fmt in ln) for ln in lines]
     assert grouping_accuracy(ids, truth) == 1.0
     assert "Failed password for <*> from <*> port <*> ssh2" in texts
-    assert '{ event=login_failed user=<*> msg: } bad password from <*>' in texts  # pinned tokens, then the message's
+    # pinned tokens (an object's keys in sorted order: its members are unordered, RFC 8259), then the message's
+    assert '{ event=login_failed msg: user=<*> } bad password from <*>' in texts
     assert "level=warn event=disk_full path=<*> used=<*>" in texts
 
 
 def test_ids_by_first_appearance_and_a_fixed_table_matches_lines():
-    lines = ["open 1 a", "close 1 a", "open 2 b", "close 3 b"]
+    # file names with digits are values; plain words would be evidence of different events
+    lines = ["open 1 f01", "close 1 f01", "open 2 f02", "close 3 f02"]
     m = TemplateMiner()
     cids = m.add_many(lines)
     tpls = m.finish()
@@ -207,7 +271,7 @@ def test_ids_by_first_appearance_and_a_fixed_table_matches_lines():
     assert [t.count for t in tpls] == [2, 2]
     idx = TemplateIndex(["close <*> <*>", "open <*> a", "open <*> <*>"])
     # the most specific matching template wins
-    assert [idx.match(ln) for ln in lines] == [1, 0, 2, 0]
+    assert [idx.match(ln.replace("f01", "a").replace("f02", "b")) for ln in lines] == [1, 0, 2, 0]
     assert idx.match("reboot now") == -1
 
 
@@ -294,6 +358,17 @@ def test_masks_on_a_one_megabyte_adversarial_token(kind):
     assert m.startswith("<*>") is variable or kind == "quoted"
 
 
+def test_placeholders_and_prefixed_json_on_a_one_megabyte_line():
+    tok = Tokenizer()
+    line = "<a b" * (MB // 4) + ">"
+    free = tok(line)[1]
+    assert free[-1].endswith("<*>")
+    pinned, free = tok("note " + '{"a": ' * (MB // 8) + "1" + "}" * (MB // 8))  # nesting too deep for json
+    assert pinned == () and free[0] == "note"
+    pinned, free = tok("expect: " + '{"k": "' + "v " * (MB // 2) + '"}')
+    assert pinned == ("expect:", "{", "k=<*>", "}") and free == []
+
+
 def test_header_and_tokenizer_on_a_one_megabyte_line():
     line = "Jan  5 10:11:12 " + "a" * MB + ' {"x":' + "[" * 1000 + " end"
     hdr, msg = split_header(line)
@@ -316,6 +391,13 @@ def test_header_and_tokenizer_on_a_one_megabyte_line():
         ("[05/Jan/2024:10:11:12 +0000] GET x", "", "", "", "GET x"),
         ("Sat Jun  1 02:17:42 2013 error: done", "", "", "ERROR", "done"),
         ("no header here", "", "", "", "no header here"),
+        # lines of fail2ban's sshd sample: a bracketed program after the time, Solaris' message tag,
+        # RFC 5424 structured data with a quoted "]"
+        ("Jun 25 23:53:34 [sshd] User root from 1.2.3.4", "", "sshd", "", "User root from 1.2.3.4"),
+        ("Mar  3 00:17:22 [sshd]: User root", "", "sshd", "", "User root"),
+        ("Mar 29 05:59:23 dusky sshd[20878]: [ID 800047 auth.info] Failed x", "dusky", "sshd", "", "Failed x"),
+        ('<38>1 2019-07-08T17:40:17.9-04:00 h.example.com sshd 55555 - [tq a="1"][x@123 t="[b]"] Failed y',
+         "h.example.com", "sshd", "", "Failed y"),
     ],
 )
 def test_headers(line, host, program, level, message):

@@ -70,3 +70,48 @@ def test_the_command_line_refuses_a_crafted_model(model_path, tmp_path):
     run = subprocess.run([*CLI, "next", "ACGT", "--model", path], capture_output=True, text=True)
     assert run.returncode == 2 and "Traceback" not in run.stderr
     assert run.stderr.startswith("error:") and "learn the model again" in run.stderr
+
+
+def _crafted_tables(model_path, tmp_path, change) -> str:
+    state = read_state(model_path)
+    header = {k: v for k, v in state.header.items() if k not in ("sha256", "arrays")}
+    arrays = {k: v.copy() for k, v in state.arrays.items()}
+    change(arrays)
+    out = tmp_path / "crafted.npz"
+    write_state(ModelState(header=header, arrays=arrays), out)  # checksums refitted: a crafted file
+    return str(out)
+
+
+def _symbol_outside(arrays):
+    arrays["words_1"][-1] = np.uint64(1 << 5)  # DNA, depth 1: a word is 2 symbols of 2 bits; bit 5 lies beyond
+
+
+TABLE_CASES = {
+    "zero count": lambda a: a["counts_2"].__setitem__(0, 0),
+    "unsorted words": lambda a: a.__setitem__("words_2", a["words_2"][::-1].copy()),
+    "word longer than its depth": _symbol_outside,
+    "counts of another length": lambda a: a.__setitem__("counts_3", a["counts_3"][:-1].copy()),
+}
+
+
+@pytest.mark.parametrize("name", sorted(TABLE_CASES))
+def test_crafted_cell_tables_are_refused_in_one_sentence(name, model_path, tmp_path):
+    path = _crafted_tables(model_path, tmp_path, TABLE_CASES[name])
+    with pytest.raises(ModelFileError) as err:
+        CellPredictor.load(path)
+    message = str(err.value)
+    assert message.count(". ") == 0 and message.endswith(".") and "learn the model again" in message, message
+
+
+def test_a_version_1_model_file_is_refused_with_a_sentence(model_path, tmp_path):
+    # version 1 kept a (cells, A) count matrix per depth; this version reads only the sparse layout
+    from fractalseq.io._npz import write_container
+
+    state = read_state(model_path)
+    header = {k: v for k, v in state.header.items() if k not in ("sha256", "arrays")}
+    header.update(format="fractalseq-model", version=1)
+    old = write_container(tmp_path / "old.npz", header, {"cells_0": np.zeros(1, np.uint64),
+                                                         "counts_0": np.ones((1, 4), np.uint32)})
+    with pytest.raises(ModelFileError) as err:
+        CellPredictor.load(old)
+    assert "version 1" in str(err.value) and "learn the model again" in str(err.value)

@@ -219,9 +219,9 @@ def test_reads_the_count_and_model_files_written_today(tmp_path, lambda_fasta):
 
     model = CellPredictor(max_depth=8).fit(open_source(lambda_fasta))
     mpath = model.save(tmp_path / "m.npz")
-    header, arrays = read_container(mpath, "fractalseq-model", max_bytes=1 << 30)
+    header, arrays = read_container(mpath, "fractalseq-model", max_bytes=1 << 30, expected_version=2)
     assert sorted(arrays) == sorted(header["sha256"])
-    assert {a.dtype.str for k, a in arrays.items() if k.startswith("cells_")} == {"<u8"}
+    assert {a.dtype.str for k, a in arrays.items() if k.startswith("words_")} == {"<u8"}
     assert {a.dtype.str for k, a in arrays.items() if k.startswith("counts_")} == {"<u4"}
     # a count file read as a model file is refused by kind
     assert "is a 'fractalseq-words' file, not a fractalseq-model file" in refused_as(cpath, "fractalseq-model")

@@ -143,7 +143,7 @@ def test_result_is_frozen_and_keeps_the_documented_json_keys():
     res = scan_stream(arr, 1000, 250)
     d = res.to_dict()
     assert set(d) == {"command", "fractalseq", "caution", "name", "length", "window", "step", "depth", "ratio",
-                      "figures", "windows", "change_points", "intervals", "low_complexity", "records", "notes"}
+                      "figures", "windows", "change_points", "intervals", "low_complexity", "records", "notes", "read_notes", "unit"}
     assert set(d["figures"]) == {"entropy_rate", "D0", "surprise"}
     assert set(d["windows"]) == {"start", *res.series}
     assert d["windows"]["start"] == res.starts.tolist()

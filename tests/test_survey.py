@@ -208,11 +208,12 @@ def test_survey_passes_numeric_reader_options_to_every_source(tmp_path, capsys):
         # entropy rate log2(3) bits (common practice; Cover & Thomas 2006, eq. 2.1 and section 4.2)
         h = s["entropy_rate_bits"]["grassberger"]["estimate"]
         assert abs(h - np.log2(3)) < 0.02, h
-    # without --column the reader takes the first numeric column (hour), so the options really reached the reader
+    # without --column the reader takes the first measured column (tide_m: hour is a calendar part, 0..23 again
+    # and again), so the options really reached the reader
     assert main(["survey", *files, "-f", "numeric", "-q", "--json"]) == 0
     plain = json.loads(capsys.readouterr().out)
     assert plain["parameters"]["reader"] == {}
-    assert {s["profile"]["input"]["numeric"]["column"] for s in plain["sources"]} == {"hour"}
+    assert {s["profile"]["input"]["numeric"]["column"] for s in plain["sources"]} == {"tide_m"}
     assert main(["survey", *files, "-f", "numeric", "--bins", "1", "-q", "--json"]) == 2  # impossible value, before reading
     assert "bins" in capsys.readouterr().err
     # profile takes the same options (here the column by 0-based index) and reads the same symbols

@@ -18,19 +18,21 @@ from rich.table import Table
 from fractalseq.cli import common
 
 EXIT_FOUND = 1
+#: Sources listed in the survey's terminal table (all of them are in --json and --out).
+TERMINAL_ROWS = 50
 
-ENGINE = typer.Option(
-    None, "--engine", help="Where per-source work runs: serial, processes or dask (default: processes if --workers > 1, dask if --scheduler, else serial)."
+PER_RECORD = typer.Option(
+    False, "--per-record", help="Take every record of every input (chromosome, contig, read) as a source of its own, named INPUT:RECORD.",
 )
-WORKERS = typer.Option(None, "--workers", "-w", min=1, help="Local worker processes (processes engine, or a local Dask cluster); default: all cores for processes, 2 for dask.")
-SCHEDULER = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask).")
+ENGINE = common.ENGINE
+WORKERS = common.WORKERS
+SCHEDULER = common.SCHEDULER
+CONNECT_TIMEOUT = common.CONNECT_TIMEOUT
 SEED_HELP = "Seed of every random step (bootstrap intervals, permutations), 0 <= seed < 2^64; same input and seed, same bytes."
 
 
-def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str]):
-    from fractalseq.jobs._engines import make_engine
-
-    return make_engine(kind, workers, scheduler)
+def _engine(kind: Optional[str], workers: Optional[int], scheduler: Optional[str], timeout: float = 5.0):
+    return common.make_engine(kind, workers, scheduler, timeout)
 
 
 
@@ -41,10 +43,12 @@ def survey(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
-    column: Optional[str] = common.COLUMN,
+    column: Optional[str] = common.COLUMNS,
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     common_cuts: bool = typer.Option(
         False, "--common-cuts", help="numeric input: cut every source at the quantiles of all sources pooled (levels compared), not each at its own (only dynamics compared)."
     ),
@@ -61,9 +65,11 @@ def survey(
         None, "--cache", help="Folder of the per-source result cache, kept as it is and shareable by several surveys (default: OUT/.cache with --out, pruned after each run; else none)."
     ),
     no_cache: bool = typer.Option(False, "--no-cache", help="Do not read or write the per-source cache."),
+    per_record: bool = PER_RECORD,
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
     scheduler: Optional[str] = SCHEDULER,
+    connect_timeout: float = CONNECT_TIMEOUT,
 ) -> None:
     """Survey many sources: one row of complexity figures per source, distances and a clustering.
 
@@ -81,10 +87,13 @@ def survey(
     own sources and options: entries of earlier runs over other files or with other
     options are removed (a folder given with --cache is never pruned). --json prints
     the JSON contract (sources, distances) on standard output. Numeric inputs take the
-    reader options of fractalseq profile (--column, --bins, --thresholds, --ordinal),
-    applied to every source; by default each source is cut at its own quantiles
+    reader options of fractalseq profile (--column, --bins, --thresholds, --ordinal,
+    --delay, --ties), applied to every source; --column a,b or all makes each column of
+    each table its own source (FILE:COLUMN). By default each source is cut at its own quantiles
     (equally likely symbols: sources compared by their dynamics), with --common-cuts
     all at the pooled quantiles (a source at a higher level then gets other symbols).
+    With --per-record every record of every input (the chromosomes of an assembly,
+    the contigs of a metagenome) is a source of its own, named INPUT:RECORD.
     Genomic output is for research, not for clinical decisions.
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
@@ -94,23 +103,23 @@ def survey(
     from fractalseq.io._outputs import StagedFolder
     from fractalseq.jobs._files import survey_cache, survey_files
     from fractalseq.jobs._sources import expand_inputs
-    from fractalseq.jobs._survey import SurveyOptions, write_outputs
+    from fractalseq.jobs._survey import SurveyOptions, column_specs, write_outputs
 
     options = SurveyOptions.from_reader(
-        reader(fmt, alphabet, policy, column, bins, thresholds, ordinal),
+        reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed),
         depth=depth, ratio=ratio, distance_depth=distance_depth, seed=seed, linkage=linkage,
     )
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
-    specs = expand_inputs(list(paths or []), from_list, stdin_lines)
+    specs = column_specs(expand_inputs(list(paths or []), from_list, stdin_lines), options.reader_options)
     # the report is built aside and renamed into place at the end; the cache stays in OUT/.cache meanwhile
     # (an interrupted run leaves only it) and is carried into the new folder by the commit
     stage = StagedFolder(out, force) if out is not None else None
     plan = survey_cache(out, cache, use_cache=not no_cache)
     store = plan.store
-    with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
-        overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=len(specs))
+    with _engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
+        overall = bar.add_task(f"survey ({eng.name}, {eng.workers} worker{'s' if eng.workers != 1 else ''})", total=None if per_record else len(specs))
         rows = {}
-        show_rows = len(specs) <= 20
+        show_rows = len(specs) <= 20 and not per_record
         cached = [0]
 
         def progress(event: str, i: int, spec) -> None:
@@ -128,7 +137,7 @@ def survey(
                     bar.update(rows[i], completed=1, description=f"  {spec.name} (done)")
 
         try:
-            result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress)
+            result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress, per_record=per_record)
         except (KeyboardInterrupt, SystemError) as exc:
             if not common.caused_by_interrupt(exc):
                 raise
@@ -154,30 +163,49 @@ def survey(
     rate_cols = [i for i, h in enumerate(header) if h == "h_grassberger"] or [
         i for i, h in enumerate(header) if h.startswith("h_") and not h.endswith(("_low", "_high")) and h != "h_top"
     ][:1]
-    idx[4:4] = rate_cols
+    idx[5:5] = rate_cols  # after D2
     table = Table(title=f"Survey of {len(result.names)} sources (D_q in units of log 1/k, k = {ratio:g}; entropies in bits)")
     for i in idx:
         table.add_column(header[i], justify="left" if header[i] == "name" else "right")
-    for r in table_rows:
-        table.add_row(*[_cell(r[i]) for i in idx])
+    for r in table_rows[:TERMINAL_ROWS]:
+        table.add_row(*[_cell(common.safe(r[i]) if isinstance(r[i], str) else r[i]) for i in idx])
     common.out_console.print(table)
+    if len(table_rows) > TERMINAL_ROWS:
+        common.out_console.print(f"(the first {TERMINAL_ROWS} of {len(table_rows)} sources; --out or --json give every row)")
     if len(result.names) >= 2:
-        a, b = result.clustering.top_split()
-        common.out_console.print(
-            "Top split of the clustering: {" + ", ".join(result.names[i] for i in a) + "} vs {" + ", ".join(result.names[i] for i in b) + "}"
+        side = lambda group: (  # noqa: E731
+            "{" + ", ".join(common.safe(result.names[i]) for i in group) + "}" if len(group) <= 10 else f"{{{len(group)} sources}}"
         )
+        groups = result.clustering.top_groups()
+        if len(groups) > 2:
+            height = float(result.clustering.linkage[-1][2])
+            common.out_console.print(
+                f"Top of the clustering: {len(groups)} groups joined at the same distance ({height:.3g}): "
+                + " vs ".join(side(g) for g in groups)
+            )
+        else:
+            a, b = result.clustering.top_split()
+            common.out_console.print(f"Top split of the clustering: {side(a)} vs {side(b)}")
     for note in result.notes:
-        common.out_console.print(f"note: {note}")
+        common.say(f"note: {_safe(note)}")
+    for s in result.sources:
+        common.read_notes(_read_summary(s.get("read")), s["name"])
     if written:
-        common.out_console.print(f"Wrote {len(written)} files to {out}.")
-    common.out_console.print("Genomic output is for research, not for clinical decisions.")
+        common.say(f"Wrote {len(written)} files to {_safe(out)}.")
+    common.caution_line(result.caution)
+
+
+def _read_summary(read: dict | None) -> list[str]:
+    from fractalseq.stream import read_summary
+
+    return read_summary((read or {}).get("notes"), (read or {}).get("dropped"))
 
 
 def _cell(v) -> str:
     if v is None:
         return "–"
     if isinstance(v, float):
-        return f"{v:.4g}"
+        return f"{0.0 if abs(v) < 1e-12 else v:.4g}"  # rounding noise (-6e-17) is 0
     return str(v)
 
 
@@ -193,10 +221,12 @@ def drift(
     permutations: int = typer.Option(999, "--permutations", "-R", min=19, help="Block permutations; the smallest possible p-value is 1/(R+1)."),
     alpha: float = typer.Option(0.05, "--alpha", help="Level of the verdict (exit status 1 when the smallest adjusted p-value is below it)."),
     adjust: str = typer.Option("holm", "--adjust", help="Adjustment across the figures tested: holm or bh (Benjamini-Hochberg)."),
-    column: Optional[str] = common.COLUMN,
+    column: Optional[str] = common.COLUMNS,
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     figures: str = typer.Option("words,transitions,entropy_rate,D2", "--figures", help="Comma-separated figures to test: words, transitions, entropy_rate, D2."),
     top: int = typer.Option(10, "--top", min=0, help="How many contributing words and contexts to list."),
     ratio: float = common.RATIO,
@@ -205,9 +235,11 @@ def drift(
     quiet: bool = common.QUIET,
     seed: int = common.seed_option(help=SEED_HELP),
     force: bool = common.FORCE,
+    per_record: bool = PER_RECORD,
     engine: Optional[str] = ENGINE,
     workers: Optional[int] = WORKERS,
     scheduler: Optional[str] = SCHEDULER,
+    connect_timeout: float = CONNECT_TIMEOUT,
 ) -> None:
     """Does the NEW batch come from the same source as the BASELINE?
 
@@ -221,7 +253,8 @@ def drift(
     compared over the union of both batches' templates. Numeric inputs binned by
     quantiles are cut at the baseline's quantiles for both batches (so a shift in
     level changes the symbols); --thresholds fixes the cut points, --ordinal
-    compares ordinal patterns, which ignore level and scale.
+    compares ordinal patterns, which ignore level and scale. --column a,b (or all)
+    tests each column on its own, with Holm's adjustment across the columns.
 
     Exit status: 0 no change detected, 1 changed (smallest adjusted p < --alpha),
     2 usage or input error. Log inputs also get the event novelty test (templates new
@@ -234,20 +267,36 @@ def drift(
     common.protect_inputs(baseline, new)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader
     from fractalseq.compare._drift import DriftOptions
+    from fractalseq.jobs._drift_columns import batch_columns, drift_columns
     from fractalseq.jobs._files import drift_files
 
     figs = tuple(f.strip() for f in figures.split(",") if f.strip())
     options = DriftOptions(depth, block, permutations, alpha, adjust, seed, ratio, figs, top)
     options.check()
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
     if out is not None:
         from fractalseq.io._outputs import StagedFolder
 
         stage = StagedFolder(out, force)  # built aside, renamed into place at the end
     stdin_lines = sys.stdin.read().splitlines() if "@-" in (baseline, new) else None
-    with _engine(engine, workers, scheduler) as eng, common.progress(quiet) as bar:
+    columns = batch_columns(baseline, read, stdin_lines)  # --column a,b / all: one test per column
+    if columns is not None and per_record:
+        from fractalseq.errors import ParameterError
+
+        raise ParameterError("--per-record and a list of columns cannot be combined; choose one way to split the inputs.")
+    with _engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
         task = bar.add_task(f"counting blocks ({eng.name})", total=None)
-        report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines, on_done=lambda i, r: bar.advance(task))
+        if columns is not None:
+            several = drift_columns(baseline, new, columns, options, read, engine=eng, stdin_lines=stdin_lines,
+                                    on_done=lambda i, r: bar.advance(task))
+        else:
+            report = drift_files(baseline, new, options, read, engine=eng, stdin_lines=stdin_lines,
+                                 on_done=lambda i, r: bar.advance(task), per_record=per_record)
+    if columns is not None:
+        _drift_by_column(several, stage.path if out is not None else None, json_out)
+        if out is not None:
+            stage.commit()
+        raise typer.Exit(EXIT_FOUND if several.changed else 0)
     result = report.drift
     if out is not None:
         from fractalseq.report.drift import write_outputs
@@ -266,7 +315,28 @@ def drift(
         typer.echo(drift_text(result), nl=False)
         if report.novelty is not None:
             _print_novelty(report.novelty)
+        common.caution_line(result.caution)
     raise typer.Exit(EXIT_FOUND if report.changed else 0)
+
+
+def _drift_by_column(several, folder: Optional[Path], json_out: bool) -> None:
+    """Print (and write) the drift of several columns: the verdict across columns, then each column's report."""
+    from fractalseq.report.drift import drift_text, write_outputs
+
+    if folder is not None:
+        from fractalseq.cli.inputs import safe_stem
+        from fractalseq.io._outputs import write_text
+
+        for col, rep in zip(several.columns, several.reports):
+            write_outputs(rep.drift, folder / safe_stem(col), force=True)
+        write_text(folder / "drift.json", several.to_json(), force=True)
+    if json_out:
+        typer.echo(several.to_json(), nl=False)
+        return
+    typer.echo(several.verdict)
+    for col, p, rep in zip(several.columns, several.p_across, several.reports):
+        typer.echo(f"\n=== column {_safe(col)} (smallest adjusted p {rep.drift.p_value:.3g}; across columns {p:.3g})")
+        typer.echo(drift_text(rep.drift), nl=False)
 
 
 def _safe(text: object) -> str:
@@ -278,6 +348,7 @@ def _print_novelty(nov) -> None:
     """The event novelty sections after the drift report (strings from the input escaped)."""
     out = common.out_console
     say = lambda line="": out.print(line, highlight=False, soft_wrap=True, emoji=False)  # noqa: E731
+    say()
     say(_safe(nov.verdict))
     for f in nov.families:
         say(f"  {f.family:<16} p = {f.p_value:<10.3g} adjusted {f.p_adjusted:<10.3g} {_safe(f.method)}")
@@ -299,6 +370,7 @@ def _print_novelty(nov) -> None:
                 f"(expected {b.expected:.2g})  p = {b.p_adjusted:.3g}  {_safe(b.template)}")
     for n in nov.notes:
         say(f"note: {_safe(n)}")
+    say("\nDrift reports on logs are no security guarantee.")
 
 
 def _num(v) -> str:
@@ -308,8 +380,12 @@ def _num(v) -> str:
 # ====================================================================== scan
 def scan(
     path: str = typer.Argument(..., help="Input file (FASTA/FASTQ/text/log/numeric, optionally compressed), or - for standard input."),
-    window: int = typer.Option(10000, "--window", "-W", min=2, help="Window length (symbols)."),
-    step: Optional[int] = typer.Option(None, "--step", "-S", min=1, help="Step between window starts (symbols); default: window / 4."),
+    window: Optional[int] = typer.Option(
+        None, "--window", "-W", min=2,
+        help="Window length in symbols (one symbol = one log line or numeric row); default: logs and numeric columns, "
+             "the size that gives at least 50 windows but at least 40 lines; other inputs 10,000.",
+    ),
+    step: Optional[int] = typer.Option(None, "--step", "-S", min=1, help="Step between window starts (symbols, lines for logs); default: window / 4."),
     depth: Optional[int] = typer.Option(None, "--depth", "-n", min=1, help="Word length n of the window figures (symbols); default: largest n with A^n x 20 <= window."),
     penalty: str = typer.Option("bic", "--penalty", help="Change-point penalty: bic, i.e. (figures + 1) x ln(independent windows), or a number."),
     alphabet: str = common.ALPHABET,
@@ -319,6 +395,8 @@ def scan(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     ratio: float = common.RATIO,
     out: Optional[Path] = common.OUT,
     json_out: bool = common.JSON,
@@ -335,7 +413,13 @@ def scan(
     below the typical entropy rate are flagged low-complexity (repeats, low-complexity
     regions in genomes; in logs, stretches dominated by few templates). With --out:
     scan.json, scan.csv (one row per window), scan.png and scan.html.
-    Genomic output is for research, not for clinical decisions.
+
+    Logs: each non-blank line is one symbol (its template), so windows count lines;
+    intervals are shown as file line numbers (1-based, as an editor shows them, blank
+    lines counted) and name the templates that dominate them. Numeric columns: one
+    symbol per row, intervals shown as file line numbers of the rows (and the time
+    column's values when there is one). Genomic output is for research, not for
+    clinical decisions; reports on logs are no security guarantee.
 
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
@@ -343,7 +427,7 @@ def scan(
     from fractalseq.cli.inputs import reader
     from fractalseq.jobs._files import parse_penalty, scan_file
 
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
     pen = parse_penalty(penalty)
     if out is not None:
         from fractalseq.io._outputs import StagedFolder
@@ -364,25 +448,55 @@ def scan(
     if json_out:
         typer.echo(result.to_json(), nl=False)
         return
-    lines = [
-        f"{result.name}: {result.length} symbols, {len(result.starts)} windows of {result.window} (step {result.step}), depth {result.depth}.",
-        f"{len(result.segmentation.breaks)} change points; {len(result.low_complexity)} low-complexity region(s).",
-        f"Method: {result.segmentation.method}; penalty {result.segmentation.penalty:.3g} ({result.segmentation.penalty_rule}).",
-        "",
-        f"{'start':>12}{'end':>12}" + "".join(f"{k:>14}" for k in result.series) + "  low",
-    ]
+    _print_scan(result)
+
+
+def _span(iv: dict, unit: str) -> tuple[str, str]:
+    """First and last coordinate of an interval: file lines/rows for line-oriented inputs, else symbols (end exclusive)."""
+    if unit == "symbol":
+        return f"{iv['start']:,}", f"{iv['end']:,}"
+    first, last = f"{iv[f'first_{unit}']:,}", f"{iv[f'last_{unit}']:,}"
+    if iv.get("first_time") is not None:
+        first, last = f"{first} ({_safe(iv['first_time'])})", f"{last} ({_safe(iv['last_time'])})"
+    return first, last
+
+
+def _print_scan(result) -> None:
+    """The scan as text: summary, segments (with their dominant templates for logs), regions, notes, caution."""
+    from rich.text import Text
+
+    unit = result.unit
+    what = {"line": "lines (one symbol per non-blank line)", "row": "rows (one symbol per value)"}.get(unit, "symbols")
+    say = common.say
+    say(f"{_safe(result.name)}: {result.length:,} {what}; {len(result.starts)} window{'' if len(result.starts) == 1 else 's'} of {result.window:,} "
+        f"(step {result.step:,}), depth {result.depth}.")
+    breaks = len(result.segmentation.breaks)
+    say(f"{breaks} change point{'' if breaks == 1 else 's'}; {len(result.low_complexity)} low-complexity region(s). "
+        f"Method: {result.segmentation.method}; penalty {result.segmentation.penalty:.3g} ({result.segmentation.penalty_rule}).")
+    first, last = ("first line", "last line") if unit == "line" else ("first row", "last row") if unit == "row" else ("start", "end")
+    t = Table(title="Segments between change points" + ("" if unit == "symbol" else " (file line numbers)"))
+    for col in (first, last, "windows", *result.series, "low"):
+        t.add_column(col, justify="right" if col != "low" else "left", no_wrap=True)
+    logs = any("templates" in iv for iv in result.intervals)
+    if logs:
+        t.add_column("dominant templates (lines)")
     for iv in result.intervals:
-        lines.append(
-            f"{iv['start']:>12}{iv['end']:>12}" + "".join(f"{_num(iv.get(k)):>14}" for k in result.series) + ("  yes" if iv["low_complexity"] else "")
-        )
+        row = [*_span(iv, unit), f"{iv['windows']:,}", *(_num(iv.get(k)) for k in result.series), "yes" if iv["low_complexity"] else ""]
+        if logs:
+            row.append(Text("\n".join(f"{e['count']:,}  {_safe(e['template'])}" for e in iv.get("templates", ()))))
+        t.add_row(*row)
+    common.out_console.print(t)
     if result.low_complexity:
-        lines += ["", "Low-complexity regions:"]
+        say("Low-complexity regions:")
         for iv in result.low_complexity:
-            lines.append(f"  {iv['start']}-{iv['end']}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol")
+            a, b = _span(iv, unit)
+            names = "; ".join(f"{_safe(e['template'])} x{e['count']:,}" for e in iv.get("templates", ()))
+            say(f"  {unit}s {a}-{b}  entropy rate {_num(iv.get('entropy_rate'))} bits/symbol"
+                + (f"  ({names})" if names else ""))
     for n in result.notes:
-        lines.append(f"note: {n}")
-    lines.append("Genomic output is for research, not for clinical decisions.")
-    typer.echo("\n".join(lines))
+        say(f"note: {_safe(n)}")
+    common.read_notes(result.read_notes)
+    common.caution_line(result.caution)
 
 
 def register(app: typer.Typer) -> None:

@@ -15,9 +15,10 @@ from typing import List, Optional
 
 import typer
 from rich.table import Table
+from rich.text import Text
 
 from fractalseq.cli import common
-from fractalseq.errors import InputError, ParameterError
+from fractalseq.errors import ParameterError
 from fractalseq.io._outputs import check_writable, to_json
 
 DEPTHS = typer.Option(
@@ -75,6 +76,12 @@ def _deepest(depth: Optional[int], old_max_depth: Optional[int], quiet: bool) ->
     return old_max_depth
 
 
+def _summary(read: dict) -> list[str]:
+    from fractalseq.stream import read_summary
+
+    return read_summary(read.get("notes"), read.get("dropped"))
+
+
 def _model_params(depths, max_depth, smoothing, max_cells, strands) -> dict:
     return {
         "depths": _depths(depths),
@@ -96,6 +103,8 @@ def learn(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     depths: Optional[str] = DEPTHS,
     depth: Optional[int] = DEPTH,
     old_max_depth: Optional[int] = OLD_MAX_DEPTH,
@@ -132,7 +141,7 @@ def learn(
         task = bar.add_task("counting", total=len(paths))
         report = learn_files(
             list(paths), out=out, force=force, fmt=fmt, alphabet=alphabet, policy=policy,
-            reader=reader_options(column, bins, thresholds, ordinal), params=params, on_input=lambda _: bar.advance(task),
+            reader=reader_options(column, bins, thresholds, ordinal, delay, ties), params=params, on_input=lambda _: bar.advance(task),
         )
     model = report.predictor
     rows = [r.to_dict() for r in report.stored_depths]
@@ -160,7 +169,10 @@ def learn(
         f"{model.baseline_bits_[model.baseline_order_]:.4f} bits/symbol on the training data."
     )
     if not quiet:
-        common.err_console.print(f"wrote {out}. {report.note}")
+        common.err_console.print(f"wrote {common.safe(str(out))}.", markup=False, highlight=False)
+    for item in report.inputs:
+        common.read_notes(_summary(item), item["name"] if len(report.inputs) > 1 else "")
+    common.caution_line(report.note)
 
 
 # ------------------------------------------------------------------- score
@@ -178,7 +190,11 @@ def score(
     ),
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
-    window: int = typer.Option(10_000, "--window", "-W", min=1, help="Window length in symbols for the per-window code lengths."),
+    window: Optional[int] = typer.Option(
+        None, "--window", "-W", min=1,
+        help="Window length in symbols (one symbol = one log line or numeric row) for the per-window code lengths; "
+             "default: logs and numeric columns, the size that gives at least 50 windows but at least 40 lines; other inputs 10,000.",
+    ),
     top: int = typer.Option(5, "--top", "-t", min=0, help="Number of most surprising windows to list per file."),
     depths: Optional[str] = DEPTHS,
     depth: Optional[int] = DEPTH,
@@ -191,6 +207,8 @@ def score(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
 ) -> None:
@@ -221,7 +239,7 @@ def score(
         task = bar.add_task("scoring", total=len(paths))
         report = score_files(
             list(paths), model, online=online, fmt=fmt, alphabet=alphabet, policy=policy,
-            reader=reader_options(column, bins, thresholds, ordinal), window=window, top=top, params=params,
+            reader=reader_options(column, bins, thresholds, ordinal, delay, ties), window=window, top=top, params=params,
             on_source=lambda _: bar.advance(task),
         )
     if json_out:
@@ -246,14 +264,14 @@ def score(
         p = r.name
         if r.unseen_templates:
             unseen = r.unseen_templates
-            ut = Table(title=f"{p}: {sum(e['count'] for e in unseen):,} lines with templates the model never saw (not scored)")
+            ut = Table(title=f"{common.safe(p)}: {sum(e['count'] for e in unseen):,} lines with templates the model never saw (not scored)")
             for col in ("lines", "first line", "template"):
                 ut.add_column(col, justify="left" if col == "template" else "right")
             for e in unseen[:top]:
-                ut.add_row(f"{e['count']:,}", f"{e['first_line']:,}", e["template"])
+                ut.add_row(f"{e['count']:,}", f"{e['first_line']:,}", Text(common.safe(e["template"])))
             common.out_console.print(ut)
         if len(r.records) > 1:
-            rt = Table(title=f"{p}: records")
+            rt = Table(title=f"{common.safe(p)}: records")
             for col in ("record", "start", "symbols", "bits/symbol"):
                 rt.add_column(col, justify="left" if col == "record" else "right")
             for rec in r.records:
@@ -261,11 +279,21 @@ def score(
                 rt.add_row(rec.name, f"{rec.start:,}", f"{rec.length:,}", "-" if bps is None else f"{bps:.4f}")
             common.out_console.print(rt)
         if r.most_surprising_windows:
-            wt = Table(title=f"{p}: most surprising windows of {r.window:,} symbols")
-            for col in ("start", "end", "record", "bits/symbol"):
+            unit = r.unit
+            what = {"line": "lines (file line numbers)", "row": "rows (file line numbers)"}.get(unit, "symbols")
+            wt = Table(title=f"{common.safe(p)}: most surprising windows of {r.window:,} {what}")
+            cols = ("start", "end") if unit == "symbol" else (f"first {unit}", f"last {unit}")
+            for col in (*cols, "record", "bits/symbol"):
                 wt.add_column(col, justify="left" if col == "record" else "right")
             for w in r.most_surprising_windows:
-                wt.add_row(f"{w.start:,}", f"{w.end:,}", w.record or "-", f"{w.bits_per_symbol:.4f}")
+                if unit == "symbol":
+                    a, b = f"{w.start:,}", f"{w.end:,}"
+                else:
+                    c = w.coordinates
+                    a, b = f"{c[f'first_{unit}']:,}", f"{c[f'last_{unit}']:,}"
+                    if c.get("first_time") is not None:
+                        a, b = f"{a} ({common.safe(c['first_time'])})", f"{b} ({common.safe(c['last_time'])})"
+                wt.add_row(a, b, common.safe(w.record or "-"), f"{w.bits_per_symbol:.4f}")
             common.out_console.print(wt)
         m = r.memory
         gone = f"evictions {m.evictions:,}" if r.mode == "online" else f"pruned at learning {m.cells_pruned:,}"
@@ -273,13 +301,16 @@ def score(
             f"{p}: cells cap {m.cells_cap:,}, stored {m.cells_stored:,}, {gone}, tables {m.table_bytes / 2**20:.1f} MiB; "
             f"depths {', '.join(map(str, r.depths))}; {'both strands' if r.reverse_complement else 'one strand'}."
         )
-    if not quiet:
-        common.err_console.print(report.note)
+        common.read_notes(r.read_notes, p if len(report.sources) > 1 else "")
+    common.caution_line(report.note)
 
 
 # -------------------------------------------------------------------- next
 def next_symbols(
-    context: str = typer.Argument(..., help="The context: symbols in order, oldest first (space-separated for multi-character symbols); '' for none."),
+    context: str = typer.Argument(
+        ..., help="The context, oldest first: symbols (space-separated when longer than one character); for a log model "
+                  "template ids '#3 #7' or template texts separated by ' || ' (\\| is a literal |); '' for none."
+    ),
     model: Path = typer.Option(..., "--model", "-m", help="Model file written by 'fractalseq learn'."),
     top: int = typer.Option(5, "--top", "-t", min=1, help="Number of next symbols to list."),
     json_out: bool = common.JSON,
@@ -291,37 +322,48 @@ def next_symbols(
     column shows how often each symbol followed the deepest matching cell in the
     training data. A symbol outside the model's alphabet is an error (exit 2).
 
+    Log models: the context is a list of events, oldest first, given as template ids
+    ('#3 #7 #12', the numbers next prints beside its predictions; an empty context ''
+    lists the most frequent events with their ids) or as template texts separated by
+    ' || ' ('status unpacked <*> <*> || status installed <*> <*>'); a raw log line is
+    matched to its template; ids and texts may be mixed. Inside a text \\| stands for
+    a literal |, \\# for a # at its start, \\\\ for a backslash. The predicted next
+    events are printed as template texts with their ids. Predictions on logs are no
+    security guarantee.
+
     Example: fractalseq next GATTACAGATTACA --model kleb.npz --top 4
+
+    Example: fractalseq next '#4 #8' --model dpkg.npz
     """
-    from fractalseq.jobs._learn_score import caution
+    from fractalseq.jobs._next import next_after
     from fractalseq.predict._predictor import CellPredictor
 
     fitted = CellPredictor.load(model)
-    a = fitted.alphabet_
-    if a.single_characters:
-        bad = [ch for ch in context if not ch.isspace() and (ch.upper() if a.case_insensitive else ch) not in a.symbols]
-        if bad:
-            raise InputError(
-                f"The context holds {bad[0]!r}, which is not in the model's {a.name} alphabet ({a.describe_symbols(8)}); "
-                "use only those symbols."
-            )
-        ctx = "".join(ch for ch in context if not ch.isspace())
-    else:
-        ctx = context
-    rows = fitted.next_symbols(ctx, top=top)
-    depth = rows[0]["deepest_cell_depth"] if rows else None
-    doc = {"model": str(model), "context": ctx, "deepest_cell_depth": depth, "next": rows, "note": caution([fitted.alphabet_])}
+    doc = next_after(fitted, context, top=top, model_name=str(model))
     if json_out:
-        typer.echo(to_json(doc), nl=False)
+        typer.echo(common.json_safe(to_json(doc)), nl=False)
         return
-    shown = ctx if len(ctx) <= 40 else "..." + ctx[-37:]
-    t = Table(title=f"Next symbol after {shown!r} (deepest cell: depth {depth})")
-    for col in ("rank", "symbol", "probability", "count in deepest cell"):
-        t.add_column(col, justify="left" if col == "symbol" else "right")
+    rows, depth, ctx = doc["next"], doc["deepest_cell_depth"], doc["context"]
+    logs = "context_ids" in doc
+    if logs:
+        title = f"Next event after {len(doc['context_ids'])} event(s) {ctx or '(no context)'} (deepest cell: depth {depth})"
+    else:
+        shown = ctx if len(ctx) <= 40 else "..." + ctx[-37:]
+        title = f"Next symbol after {common.safe(repr(shown))} (deepest cell: depth {depth})"
+    t = Table(title=title)
+    cols = ("rank", "id", "template", "probability", "count in deepest cell") if logs else ("rank", "symbol", "probability", "count in deepest cell")
+    for col in cols:
+        t.add_column(col, justify="left" if col in ("symbol", "template") else "right")
     for i, r in enumerate(rows, 1):
         c = r["count_in_deepest_cell"]
-        t.add_row(str(i), r["symbol"], f"{r['probability']:.4f}", "-" if c is None else f"{c:,}")
+        sym = [f"#{r['id']}", Text(common.safe(r["symbol"]))] if logs else [Text(common.safe(r["symbol"]))]
+        t.add_row(str(i), *sym, f"{r['probability']:.4f}", "-" if c is None else f"{c:,}")
+    if logs and doc["context_templates"]:
+        common.say("context, oldest first:")
+        for k, text in zip(doc["context_ids"], doc["context_templates"]):
+            common.say(f"  #{k}  {common.safe(text)}")
     common.out_console.print(t)
+    common.caution_line(doc["note"])
 
 
 def register(app: typer.Typer) -> None:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import re
 from pathlib import Path
 from typing import List, Optional
 
@@ -72,6 +73,23 @@ def _depths(first, last) -> str:
     return f"depths {first}-{last}" if first != last else f"depth {first}"
 
 
+def _numeric_line(read: dict) -> str:
+    """For a numeric input: the column read, its time column, missing values and gaps (one line), else nothing."""
+    info = read.get("numeric") if isinstance(read, dict) else None
+    if not isinstance(info, dict):
+        return ""
+    parts = [f"column {common.safe(str(info.get('column')))!r}"]
+    if info.get("time_column"):
+        step = info.get("time_step")
+        unit = info.get("time_unit") or ""
+        parts.append(f"time column {common.safe(str(info['time_column']))!r}"
+                     + (f" (step {step:g}{' ' + unit if unit else ''})" if step else ""))
+    parts.append(f"{info.get('values', 0):,} values, {info.get('missing', 0):,} missing, {info.get('time_gaps', 0):,} time gap(s)")
+    if info.get("method") == "ordinal":
+        parts.append(f"ordinal patterns of order {info.get('order')}, delay {info.get('delay', 1)}, ties by {info.get('ties', 'time')}")
+    return "\n" + "; ".join(parts)
+
+
 RATE_SHORT = {
     "plugin": "h plug-in", "miller-madow": "h Miller-Madow", "grassberger": "h Grassberger", "lz76": "h LZ76",
     "compressors": "h <= compressors", "online_predictor": "h <= online predictor", "alphabet": "the alphabet's limit",
@@ -82,7 +100,8 @@ def _print_tables(result, quiet: bool) -> None:
     con = common.out_console
     d = result.to_dict()
     t = Table(title=f"{common.safe(result.name)}: {result.length:,} symbols, {result.segments:,} segment(s), "
-                    f"{result.alphabet.name} (A = {result.alphabet_size}), k = {result.ratio:g}; rates in bits/symbol")
+                    f"{result.alphabet.name} (A = {result.alphabet_size}), k = {result.ratio:g}; rates in bits/symbol"
+                    + _numeric_line(d.get("input") or {}))
     t.add_column("quantity", no_wrap=True)
     t.add_column("estimate", justify="right", no_wrap=True)
     t.add_column(f"{result.level:.0%} interval", justify="right", no_wrap=True)
@@ -95,7 +114,8 @@ def _print_tables(result, quiet: bool) -> None:
     for name, r in d["entropy_rate_bits"].items():
         note = (f"n = {r['depth']}{per}" if r["depth"] is not None else r["kind"]) + ("" if r["reliable"] else ", unreliable")
         if r.get("within_bounds") is False:
-            note += ", above the alphabet's limit" if r["kind"] == "upper bound" else ", above the smallest upper bound"
+            limit = f"log2 {pe['order']}" if pe else "log2 A"
+            note += f", above {limit}, the largest rate possible" if r["kind"] == "upper bound" else ", above the smallest upper bound"
         t.add_row(RATE_SHORT.get(name, name), _fmt(r["estimate"]), _interval(r["low"], r["high"]), note)
     use = d.get("rate_to_use")
     if use:
@@ -118,8 +138,39 @@ def _print_tables(result, quiet: bool) -> None:
                   f"{_fmt(r['dimension_bits'])} vs {_fmt(r['entropy_bits'])}")
     con.print(t)
     _print_templates(result.read)
-    for n in () if quiet else result.notes:
+    from fractalseq.stream import read_summary
+
+    read = result.read or {}
+    common.read_notes(read_summary(read.get("notes"), read.get("dropped")))
+    for n in () if quiet else merged_notes(result.notes):
         common.err_console.print(f"note: {n}", markup=False, highlight=False)
+
+
+_NAMED_NOTE = re.compile(r"^(?P<what>[^():]+) \((?P<name>[^()]+)\): (?P<rest>.*)$", re.S)
+
+
+def merged_notes(notes) -> list[str]:
+    """Notes in order, with ``what (a): text`` and ``what (b): text`` (the same text) said once as ``what (a, b): text``."""
+    out: list[str] = []
+    where: dict[tuple[str, str], int] = {}
+    names: dict[int, list[str]] = {}
+    for n in notes:
+        hit = _NAMED_NOTE.match(str(n))
+        if hit is None:
+            out.append(str(n))
+            continue
+        key = (hit["what"], hit["rest"])
+        if key in where:
+            names[where[key]].append(hit["name"])
+            continue
+        where[key] = len(out)
+        names[len(out)] = [hit["name"]]
+        out.append(str(n))
+    for i, ns in names.items():
+        if len(ns) > 1:
+            hit = _NAMED_NOTE.match(out[i])
+            out[i] = f"{hit['what']} ({', '.join(ns)}): {hit['rest']}"
+    return out
 
 
 #: Templates listed under a log's profile table (all of them are in the JSON and the report).
@@ -140,6 +191,22 @@ def _print_templates(read: dict | None) -> None:
     common.out_console.print(t)
 
 
+def _each_source(paths: List[str], read, per_record: bool):
+    """``(name, symbols)`` per input, per column of a numeric table (``--column a,b`` / ``all``: ``FILE:COLUMN``),
+    or per record of each input with ``per_record`` (each input read once)."""
+    for path in paths:
+        for col, opts in read.per_column(path):
+            label = path if col is None else f"{path}:{col}"
+            arr = opts.read(path, name=None if col is None else label)
+            if not per_record:
+                yield label, arr
+                continue
+            from fractalseq.jobs._records import record_arrays
+
+            for part in record_arrays(arr, label):
+                yield part.name, part
+
+
 def profile(
     paths: List[str] = typer.Argument(
         ..., help="Input files (FASTA/FASTQ/text/log/numeric, optionally compressed); - reads standard input.",
@@ -149,10 +216,12 @@ def profile(
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
-    column: Optional[str] = common.COLUMN,
+    column: Optional[str] = common.COLUMNS,
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     ratio: float = common.RATIO,
     qs: str = QS,
     depth: Optional[int] = PROFILE_DEPTH,
@@ -161,6 +230,9 @@ def profile(
     seed: int = common.SEED,
     force: bool = common.FORCE,
     quiet: bool = common.QUIET,
+    per_record: bool = typer.Option(
+        False, "--per-record", help="Profile every record of every input (chromosome, contig, read) on its own, named INPUT:RECORD.",
+    ),
 ) -> None:
     """Measure the complexity of each input: dimensions, entropies, consistency.
 
@@ -177,20 +249,24 @@ def profile(
     numbers on standard output (the JSON contract in the README); the same
     input and --seed give the same bytes.
 
+    With --per-record every record of an input (the chromosomes of an assembly, the
+    contigs of a metagenome) is profiled on its own, as if it were a file of its own,
+    and named INPUT:RECORD.
+
     Genomic output is for research, not for clinical decisions.
 
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
     """
     common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.io._outputs import StagedFolder, to_json
-    from fractalseq.jobs._profile import CAUTION_GENERAL, CAUTION_GENOMIC, STEPS, ProfileSettings, contract, profile_source
-    from fractalseq.report.profile import is_genomic, safe_name, write_profile_index, write_profile_report
+    from fractalseq.jobs._profile import STEPS, ProfileSettings, contract, profile_caution, profile_source
+    from fractalseq.report.profile import safe_name, write_profile_index, write_profile_report
 
-    caution = lambda rs: CAUTION_GENOMIC if is_genomic(rs) else CAUTION_GENERAL  # noqa: E731
+    caution = profile_caution
 
     # validate everything before reading anything
     settings = ProfileSettings(ratio=ratio, qs=parse_qs(qs), depth=depth, n_boot=boot, level=level, seed=seed)
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
     _check_out(out, force)
     parameters = settings.parameters(read)
 
@@ -199,22 +275,21 @@ def profile(
     taken: set[str] = {"index.html", "profile.json"}
     stage = StagedFolder(out, force) if out is not None else None  # built aside, renamed into place at the end
     with common.progress(quiet) as bar:
-        for path in paths:
-            task = bar.add_task(f"{path}: reading", total=len(STEPS) + 1)
-            arr = read.read(path)
+        for label, arr in _each_source(paths, read, per_record):
+            task = bar.add_task(f"{label}: reading", total=len(STEPS) + 1)
             settings.depth_for(len(arr), arr.alphabet)  # refuse an impossible depth before any work
             bar.advance(task)
 
-            def on_step(name: str, task=task, path=path) -> None:
-                bar.update(task, description=f"{path}: {name}")
+            def on_step(name: str, task=task, label=label) -> None:
+                bar.update(task, description=f"{label}: {name}")
                 bar.advance(task)
 
             res = profile_source(arr, ratio=settings.ratio, qs=settings.qs, depth=settings.depth,
                                  resampling=settings.resampling, progress=on_step)
             results.append(res)
             if stage is not None:
-                bar.update(task, description=f"{path}: writing report")
-                sub = safe_name(safe_stem(path), taken)
+                bar.update(task, description=f"{label}: writing report")
+                sub = safe_name(safe_stem(label), taken)
                 write_profile_report(res, stage.path / sub, contract([res], parameters), caution([res]), force=force)
                 subfolders.append(sub)
             bar.remove_task(task)
@@ -230,6 +305,7 @@ def profile(
     if out is None:
         for res in results:
             _print_tables(res, quiet)
+        common.caution_line(caution(results))
 
 
 def register(app: typer.Typer) -> None:

@@ -25,6 +25,8 @@ def render(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     drop: int = typer.Option(20, "--drop", min=0, help="Points dropped at each segment start (the transient remembering the start)."),
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,
@@ -45,7 +47,7 @@ def render(
         raise ParameterError(f"{out} does not end in .png; render writes PNG images.")
     check_writable(out, force)
     k = encoding.check_ratio(ratio)
-    arr = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal).read(path)
+    arr = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties).read(path)
     corners = encoding.corner_layout(arr.alphabet.size)
     check = encoding.overlap_check(k, corners)
     pts = encoding.points(arr, k, drop=drop)

@@ -6,7 +6,6 @@ from pathlib import Path
 from typing import List, Optional
 
 import typer
-from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
@@ -42,6 +41,7 @@ def templates(
     """
     common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.jobs._templates import mine_logs  # imported here: --help and completion need speed
+    from fractalseq.results import CAUTION_LOGS
 
     if csv_file is not None:
         check_writable(csv_file, force)
@@ -66,6 +66,7 @@ def templates(
         typer.echo(json_safe(to_json(run.to_dict())), nl=False)
         return
     _print_table(run)
+    common.caution_line(CAUTION_LOGS)
     if not quiet:
         for target in [p for p in (csv_file, out) if p is not None]:
             common.err_console.print(Text(f"wrote {safe(str(target))}"))
@@ -94,12 +95,7 @@ def _print_table(run) -> None:
             row += [Text(f"{c:,}") for c in t["counts"]]
         row += [Text(safe(t["example"])), Text(safe(_fields_text(t)))]
         table.add_row(*row)
-    console = common.out_console
-    if not console.is_terminal:
-        # off a terminal nothing is cut: the table is as wide as its widest row
-        need = Console(width=1 << 20).measure(table).maximum
-        console = Console(width=max(need, 20), highlight=False, emoji=False)
-    console.print(table)
+    common.out_console.print(table)  # off a terminal nothing is cut: the table is as wide as its widest row
 
 
 def register(app: typer.Typer) -> None:

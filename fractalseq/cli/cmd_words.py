@@ -23,17 +23,32 @@ def count(
     bins: int = common.BINS,
     thresholds: Optional[str] = common.THRESHOLDS,
     ordinal: int = common.ORDINAL,
+    delay: int = common.DELAY,
+    ties: str = common.TIES,
     save: Optional[Path] = typer.Option(None, "--save", help="Write the merged counts to this .npz file (loads without pickle)."),
     top: int = typer.Option(0, "--top", min=0, help="Also list the TOP most frequent words at the deepest depth (0 = none)."),
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,
+    engine: Optional[str] = common.ENGINE,
+    workers: Optional[int] = common.WORKERS,
+    scheduler: Optional[str] = common.SCHEDULER,
+    connect_timeout: float = common.CONNECT_TIMEOUT,
+    piece: int = typer.Option(
+        1 << 24, "--piece", min=1,
+        help="With --engine/--workers/--scheduler: symbols per piece; each input is split into pieces overlapping by DEPTH-1 symbols, counted on the workers and added up exactly.",
+    ),
 ) -> None:
     """Count every word of length 1..DEPTH exactly, merging all inputs.
 
     Occupied boxes of the encoding at scale k^n are the distinct n-words, so the
     table printed here is also the box-counting ladder. Inputs are read in chunks;
     memory is bounded by the distinct words counted.
+
+    With --workers N (or --engine dask, --scheduler tcp://HOST:PORT) each input is
+    split into pieces of --piece symbols that overlap by DEPTH-1 symbols; the pieces
+    are counted on the workers and added up in order, so the counts are identical
+    to a serial run.
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
@@ -42,10 +57,10 @@ def count(
 
     if save is not None:
         check_writable(save, force)
-    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal)
-    with common.progress(quiet) as bar:
-        task = bar.add_task("counting", total=len(paths))
-        summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task))
+    read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties)
+    with common.make_engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
+        task = bar.add_task("counting" if eng.name == "serial" else f"counting ({eng.name}, {eng.workers} workers)", total=len(paths))
+        summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task), engine=eng, piece=piece)
     wc = summary.counts
     if save is not None:
         wc.save(save, force=force)
@@ -64,19 +79,21 @@ def count(
             f"{r['distinct'] / r['possible']:.4f}",
         )
     common.out_console.print(table)
-    for p, r in reports:
-        if r["dropped_total"]:
-            parts = ", ".join(f"{k}: {v:,}" for k, v in sorted(r["dropped"].items()))
-            common.err_console.print(f"{p}: dropped {r['dropped_total']:,} symbols ({parts})")
     if top:
         t2 = Table(title=f"Most frequent {wc.depth}-words")
         t2.add_column("word")
         t2.add_column("count", justify="right")
         for row in result["top"]:
-            t2.add_row(row["word"], f"{row['count']:,}")
+            t2.add_row(common.safe(str(row["word"])), f"{row['count']:,}")
         common.out_console.print(t2)
+    from fractalseq.results import caution_for
+    from fractalseq.stream import read_summary
+
+    for p, r in reports:  # what each reader reported: format, lines cut, symbols left out...
+        common.read_notes(read_summary(r.get("notes"), r.get("dropped")), p if len(reports) > 1 else "")
+    common.caution_line(caution_for([wc.alphabet]))
     if save is not None and not quiet:
-        common.err_console.print(f"saved counts to {save}")
+        common.err_console.print(f"saved counts to {common.safe(str(save))}", markup=False, highlight=False)
 
 
 def register(app: typer.Typer) -> None:

@@ -13,7 +13,7 @@ import re
 from pathlib import Path
 
 import typer
-from rich.console import Console
+from rich.console import Console, ConsoleDimensions
 
 ALPHABET = typer.Option(
     "dna",
@@ -55,10 +55,41 @@ SEED = seed_option()
 FORCE = typer.Option(False, "--force", help="Overwrite existing output files.")
 BINS = typer.Option(4, "--bins", help="numeric input: number of quantile bins (symbols).")
 ORDINAL = typer.Option(0, "--ordinal", help="numeric input: ordinal-pattern order m (0 = use bins).")
+DELAY = typer.Option(
+    1, "--delay", help="numeric input with --ordinal: embedding delay tau, samples between the m values of a pattern."
+)
+TIES = typer.Option(
+    "time", "--ties",
+    help="numeric input with --ordinal: order equal values by time (the earlier counts as smaller) "
+         "or by dither (a random key per value from --seed, 0 where the command has none).",
+)
 COLUMN = typer.Option(None, "--column", help="numeric input: CSV column name or 0-based index.")
+COLUMNS = typer.Option(
+    None, "--column",
+    help="numeric input: CSV column name or 0-based index; several (a,b) or all (every numeric column but time "
+         "columns and calendar parts) give one source per column.",
+)
 THRESHOLDS = typer.Option(
     None, "--thresholds", help="numeric input: fixed bin edges, increasing and comma-separated (e.g. 0.2,0.5,0.8), instead of quantile --bins."
 )
+
+ENGINE = typer.Option(
+    None, "--engine", help="Where the work runs: serial, processes or dask (default: processes if --workers > 1, dask if --scheduler, else serial)."
+)
+WORKERS = typer.Option(
+    None, "--workers", "-w", min=1,
+    help="Local worker processes (processes engine, or a local Dask cluster), at most 4 per core; default: all cores for processes, 2 for dask.",
+)
+SCHEDULER = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask).")
+CONNECT_TIMEOUT = typer.Option(5.0, "--connect-timeout", help="Seconds allowed for reaching the --scheduler (default 5).")
+
+
+def make_engine(kind: str | None, workers: int | None, scheduler: str | None, timeout: float = 5.0):
+    """The engine the options ask for (checked, and the scheduler reached, before any work)."""
+    from fractalseq.jobs._engines import make_engine as build
+
+    return build(kind, workers, scheduler, timeout)
+
 
 #: Library parameter name -> the command-line option that sets it.  Library errors name
 #: parameters (``ParameterError.parameter``); the command line adds the option to change.
@@ -73,12 +104,16 @@ OPTION_OF: dict[str, str] = {
     "n_boot": "--boot",
     "bins": "--bins",
     "ordinal": "--ordinal",
+    "delay": "--delay",
+    "ties": "--ties",
     "column": "--column",
     "thresholds": "--thresholds",
     "qs": "--q",
     "workers": "--workers",
     "engine": "--engine",
     "address": "--scheduler",
+    "connect_timeout": "--connect-timeout",
+    "piece": "--piece",
     "window": "--window",
     "step": "--step",
     "level": "--level",
@@ -144,11 +179,68 @@ def option_hint(parameter: str | None) -> str:
     return f" (option {option})" if option else ""
 
 
+#: Width of standard output when it is no terminal (a pipe, a file): wide enough that no table cell, header,
+#: template, path or note is cut or wrapped.
+PIPE_WIDTH = 1 << 20
+
+
+class OutputConsole(Console):
+    """Standard output: as wide as the terminal on a terminal; off a terminal nothing is cut or wrapped.
+
+    Checked at every print (a test runner or a caller may swap ``sys.stdout``), so every command
+    gets whole lines in a pipe from this one place.  Tables are only as wide as their content.
+    """
+
+    @property
+    def size(self) -> ConsoleDimensions:
+        dims = Console.size.fget(self)  # type: ignore[attr-defined]
+        if self._width is None and not self.is_terminal:
+            return ConsoleDimensions(PIPE_WIDTH, dims.height)
+        return dims
+
+    @size.setter
+    def size(self, new_size: tuple[int, int]) -> None:
+        Console.size.fset(self, new_size)  # type: ignore[attr-defined]
+
+    def print(self, *objects: Any, **kwargs: Any) -> None:
+        """Print; off a terminal a table title wider than its table goes on its own line (never wrapped)."""
+        if not self.is_terminal and len(objects) == 1:
+            from rich.table import Table
+
+            obj = objects[0]
+            if isinstance(obj, Table) and isinstance(obj.title, str) and len(obj.title) > self.measure(obj).maximum:
+                title, obj.title = obj.title, None
+                try:
+                    super().print(title, highlight=False, emoji=False, soft_wrap=True)
+                    super().print(obj, **kwargs)
+                finally:
+                    obj.title = title
+                return
+        super().print(*objects, **kwargs)
+
+
 #: Standard error console for progress and notes (standard output stays clean for --json).  Neither console
 #: interprets rich markup: names, paths and templates come from the input and are printed as they are (styles
 #: are given as Text objects); control characters go through :func:`safe`.
-err_console = Console(stderr=True, markup=False)
-out_console = Console(markup=False)
+err_console = OutputConsole(stderr=True, markup=False)
+out_console = OutputConsole(markup=False)
+
+
+def say(line: str = "") -> None:
+    """One line of text on standard output, whole (no markup, no highlighting, never wrapped off a terminal)."""
+    out_console.print(line, highlight=False, emoji=False, soft_wrap=not out_console.is_terminal)
+
+
+def caution_line(caution: str) -> None:
+    """The caution that closes a command's terminal output (logs, genomes, or both)."""
+    say(caution)
+
+
+def read_notes(notes, name: str = "") -> None:
+    """The reader's notes (lines cut, Latin-1 lines, junk bytes, blank lines, dropped symbols) on standard output."""
+    prefix = f"{safe(name)}: " if name else ""
+    for n in notes or ():
+        say(f"read note: {prefix}{safe(str(n))}")
 
 
 def progress(quiet: bool):

@@ -18,22 +18,21 @@ __all__ = ["DEFAULT_BINS", "open_input", "read_input", "reader", "reader_options
 def reader(
     fmt: str = "auto", alphabet: str = "dna", policy: str = "break", column: str | None = None,
     bins: int = DEFAULT_BINS, thresholds: str | None = None, ordinal: int = 0,
+    delay: int = 1, ties: str = "time", seed: int = 0,
 ) -> ReaderOptions:
     """The reader options of a command (``--format``, ``--alphabet``, ``--unknown`` and the numeric options)."""
-    return ReaderOptions.parse(fmt, alphabet, policy, column, bins, thresholds, ordinal)
+    return ReaderOptions.parse(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed)
 
 
-def reader_options(column: str | None, bins: int = DEFAULT_BINS, thresholds: str | None = None, ordinal: int = 0) -> dict:
+def reader_options(column: str | None, bins: int = DEFAULT_BINS, thresholds: str | None = None, ordinal: int = 0,
+                   delay: int = 1, ties: str = "time", seed: int = 0) -> dict:
     """The numeric reader options that differ from the defaults, as keywords of ``open_source``."""
-    return ReaderOptions.parse(column=column, bins=bins, thresholds=thresholds, ordinal=ordinal).numeric_options()
+    return ReaderOptions.parse(column=column, bins=bins, thresholds=thresholds, ordinal=ordinal,
+                               delay=delay, ties=ties, seed=seed).numeric_options()
 
 
 def _options(fmt: str, alphabet, policy: str, options: dict) -> ReaderOptions:
-    thresholds = options.get("thresholds")
-    return ReaderOptions(
-        fmt, alphabet, policy, options.get("column"), options.get("bins", DEFAULT_BINS),
-        None if thresholds is None else tuple(thresholds), options.get("ordinal", 0),
-    )
+    return ReaderOptions.from_numeric(fmt, alphabet, policy, options)
 
 
 def shared_numeric_cuts(baseline: list[str], fmt: str, options: dict, bins: int = DEFAULT_BINS) -> tuple[dict, str]:

@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Sequence
+from typing import Iterator, Sequence
 
 import numpy as np
 
@@ -110,15 +110,54 @@ def word_matrix(tables: Sequence[tuple[np.ndarray, np.ndarray]]) -> tuple[np.nda
     return words, mat
 
 
+#: Elements of the largest temporary array of a blocked pairwise computation (float64: 32 MiB).
+BLOCK_ELEMENTS = 1 << 22
+
+
+def _row_blocks(n: int, width: int) -> Iterator[tuple[int, int]]:
+    """Blocks of rows ``[lo, hi)`` such that ``(hi - lo) x (n - lo) x width`` stays within :data:`BLOCK_ELEMENTS`.
+
+    The blocks depend only on ``n`` and ``width``, so every run splits the same way.
+    """
+    lo = 0
+    while lo < n:
+        b = max(1, BLOCK_ELEMENTS // max(1, (n - lo) * max(1, width)))
+        yield lo, min(n, lo + b)
+        lo += b
+
+
+def _plogp_sum(x: np.ndarray) -> np.ndarray:
+    """``sum(-x log2 x)`` over the last axis, with ``0 log 0 = 0``."""
+    logs = np.zeros_like(x)
+    np.log2(x, out=logs, where=x > 0)
+    return -(x * logs).sum(axis=-1)
+
+
 def js_matrix(counts: np.ndarray) -> np.ndarray:
-    """Symmetric matrix of pairwise Jensen–Shannon divergences (bits) of the rows of a count matrix."""
+    """Symmetric matrix of pairwise Jensen–Shannon divergences (bits) of the rows of a count matrix.
+
+    Computed in blocks of rows against the rows after them (:func:`_row_blocks`), so memory is
+    ``O(sources x words)`` plus a fixed-size temporary, never ``sources^2 x words``.  Each entry is
+    ``H((p + q) / 2) - (H(p) + H(q)) / 2`` clipped to ``[0, 1]``, as :func:`js_divergence`.
+    """
     counts = np.asarray(counts, dtype=float)
     s = counts.shape[0]
     out = np.zeros((s, s), dtype=float)
-    for i in range(s):
-        for j in range(i + 1, s):
-            out[i, j] = out[j, i] = js_divergence(counts[i], counts[j])
-    return out
+    if s < 2:
+        return out
+    sums = counts.sum(axis=1)
+    if (sums <= 0).any():
+        raise InputError("A Jensen-Shannon divergence needs at least one word in each source; a source is too short.")
+    p = counts / sums[:, None]
+    h = _plogp_sum(p)
+    for lo, hi in _row_blocks(s, p.shape[1]):
+        m = 0.5 * (p[lo:hi, None, :] + p[None, lo:, :])
+        d = _plogp_sum(m) - 0.5 * (h[lo:hi, None] + h[None, lo:])
+        np.clip(d, 0.0, 1.0, out=d)
+        for r in range(hi - lo):
+            i = lo + r
+            out[i, i + 1 :] = d[r, r + 1 :]
+    return out + out.T
 
 
 def spectrum_distance(qa: Sequence[float], da: Sequence[float], qb: Sequence[float], db: Sequence[float]) -> float:
@@ -133,12 +172,38 @@ def spectrum_distance(qa: Sequence[float], da: Sequence[float], qb: Sequence[flo
 
 
 def spectrum_matrix(spectra: Sequence[tuple[Sequence[float], Sequence[float]]]) -> np.ndarray:
-    """Pairwise :func:`spectrum_distance` of ``(q values, D_q values)`` per source."""
+    """Pairwise :func:`spectrum_distance` of ``(q values, D_q values)`` per source (blocked, vectorised).
+
+    Each pair's RMS runs over the orders q that both sources estimated (finite values); a pair
+    with none in common gets NaN.
+    """
     s = len(spectra)
+    table: list[dict[float, float]] = []
+    for qs, ds in spectra:
+        table.append({float(q): float(d) for q, d in zip(qs, ds) if d is not None and math.isfinite(float(d))})
+    orders = sorted({q for row in table for q in row})
+    values = np.full((s, len(orders)), np.nan)
+    col = {q: k for k, q in enumerate(orders)}
+    for i, row in enumerate(table):
+        for q, d in row.items():
+            values[i, col[q]] = d
     out = np.zeros((s, s), dtype=float)
-    for i in range(s):
-        for j in range(i + 1, s):
-            out[i, j] = out[j, i] = spectrum_distance(*spectra[i], *spectra[j])
+    if s < 2:
+        return out
+    have = np.isfinite(values)
+    filled = np.where(have, values, 0.0)
+    for lo, hi in _row_blocks(s, len(orders)):
+        both = have[lo:hi, None, :] & have[None, lo:, :]
+        diff = np.where(both, filled[lo:hi, None, :] - filled[None, lo:, :], 0.0)
+        n_common = both.sum(axis=-1)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            d = np.sqrt((diff**2).sum(axis=-1) / n_common)
+        d[n_common == 0] = np.nan
+        for r in range(hi - lo):
+            i = lo + r
+            out[i, i + 1 :] = d[r, r + 1 :]
+    low = np.tril_indices(s, -1)
+    out[low] = out.T[low]
     return out
 
 
@@ -177,6 +242,25 @@ class Clustering:
 
         root = self.linkage[-1]
         return sorted(members(int(root[0]))), sorted(members(int(root[1])))
+
+    def top_groups(self, tolerance: float = 1e-9) -> list[list[int]]:
+        """The groups joined at the root's height: two, or more when several merges tie at the top.
+
+        Sources that share nothing (logs with no common template are at the
+        largest possible distance) are joined at one height; the order in which
+        tied merges happen is arbitrary, so they are reported together.
+        """
+        from scipy.cluster.hierarchy import fcluster
+
+        s = self.linkage.shape[0] + 1
+        if s < 2:
+            return [list(range(s))]
+        top = float(self.linkage[-1][2])
+        labels = fcluster(self.linkage, t=top - tolerance, criterion="distance")
+        groups: dict[int, list[int]] = {}
+        for i, lab in enumerate(labels):
+            groups.setdefault(int(lab), []).append(i)
+        return sorted(groups.values(), key=lambda g: g[0])
 
     def to_dict(self) -> dict:
         return {

@@ -55,7 +55,7 @@ from fractalseq.compare._distances import joint_alphabet, js_divergence
 from fractalseq.compare._homogeneity import ADJUSTMENTS, _Figures, _xlogx, adjust_pvalues, conditional_g, g_statistic
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._outputs import to_json
-from fractalseq.results import Result
+from fractalseq.results import Result, caution_for
 from fractalseq.runner import Engine, SerialEngine
 from fractalseq.stream import SymbolArray, SymbolStream
 
@@ -199,7 +199,7 @@ class DriftResult(Result):
     verdict, alpha, adjust, method:
         Derived from the above: the one-line verdict, the level, the adjustment and a sentence naming the method.
     command, fractalseq, caution:
-        The document's kind, the package version, and the caution every drift report carries.
+        The document's kind, the package version, and the caution that fits the batches (logs, genomes, or both).
     """
 
     changed: bool
@@ -224,6 +224,7 @@ class DriftResult(Result):
     caution: str = field(default=CAUTION, init=False)
 
     def __post_init__(self) -> None:
+        object.__setattr__(self, "caution", caution_for([(self.alphabet or {}).get("name", "")]))
         opts = self.parameters
         method = (
             f"block permutation test, {opts.permutations} permutations of {self.block}-symbol blocks; "

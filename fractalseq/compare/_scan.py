@@ -40,11 +40,13 @@ from fractalseq import __version__
 from fractalseq.compare._changepoint import Segmentation, segment_series
 from fractalseq.errors import ParameterError
 from fractalseq.io._outputs import to_json
-from fractalseq.results import Result
-from fractalseq.stream import SymbolArray
+from fractalseq.results import CAUTION_GENERAL, Result, caution_for, is_log_alphabet
+from fractalseq.stream import Positions, SymbolArray
 from fractalseq.words._kernels import AT_START, _segment_words
 
-CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
+CAUTION = CAUTION_GENERAL
+#: Templates named per segment of a log scan (the most frequent first).
+TOP_TEMPLATES = 3
 FIGURES: tuple[str, ...] = ("entropy_rate", "D0", "surprise")
 #: Automatic depth: the window must hold this many words per possible word.
 WORDS_PER_CELL = 20
@@ -187,11 +189,23 @@ class ScanResult(Result):
         Records (e.g. FASTA records) of the stream, for orientation.
     notes:
         Sentences on limits and left-out figures.
+    read_notes:
+        What the reader reported (lines cut, Latin-1 lines, junk bytes and blank lines skipped, symbols left out).
+    unit, positions:
+        The input's own unit (``symbol``; ``line`` for event logs, ``row`` for numeric
+        columns) and, for line-oriented inputs, where each symbol sits in the file
+        (:class:`~fractalseq.stream.Positions`).  With positions, intervals and low-complexity
+        regions carry ``first_<unit>`` and ``last_<unit>`` (file coordinates of their first and
+        last symbol; ``first_time``/``last_time`` with a time column), ``windows`` carries
+        ``first_<unit>`` and ``last_<unit>`` per window, and ``change_points`` the ``<unit>s``
+        at the change positions.  Log intervals also name their most frequent ``templates``.
     windows, change_points, figures:
         Derived for the JSON form: per-window values with their starts, the
         segmentation with the change positions, and what each figure is (:data:`FIGURE_DEFINITIONS`).
-    command, fractalseq, caution:
-        The document's kind, the package version, and the caution every scan report carries.
+    caution:
+        The caution that fits the input (logs, genomes, or both in general).
+    command, fractalseq:
+        The document's kind and the package version.
     """
 
     name: str
@@ -207,22 +221,34 @@ class ScanResult(Result):
     low_complexity: tuple[dict, ...] = ()
     records: tuple[dict, ...] = ()
     notes: tuple[str, ...] = ()
+    read_notes: tuple[str, ...] = ()
+    unit: str = "symbol"
+    positions: Positions | None = field(default=None, repr=False, metadata={"json": False})
     windows: dict = field(init=False)
     change_points: dict = field(init=False)
     figures: dict = field(init=False)
     command: str = field(default="scan", init=False)
     fractalseq: str = field(default=__version__, init=False)
-    caution: str = field(default=CAUTION, init=False)
+    caution: str = CAUTION
 
     def __post_init__(self) -> None:
+        windows: dict = {"start": self.starts}
+        change_points: dict = {**self.segmentation.to_dict(), "positions": self.change_positions()}
+        pos = self.positions
+        if pos is not None and len(pos) == self.length and self.starts.size:
+            u = pos.unit
+            windows[f"first_{u}"] = pos.values[self.starts]
+            windows[f"last_{u}"] = pos.values[np.minimum(self.starts + self.window - 1, self.length - 1)]
+            change_points[f"{u}s"] = [pos.at(int(round(p))) for p in change_points["positions"]]
         derived = {
-            "windows": {"start": self.starts, **self.series},
-            "change_points": {**self.segmentation.to_dict(), "positions": self.change_positions()},
+            "windows": {**windows, **self.series},
+            "change_points": change_points,
             "figures": dict(FIGURE_DEFINITIONS),
             "intervals": tuple(self.intervals),
             "low_complexity": tuple(self.low_complexity),
             "records": tuple(self.records),
             "notes": tuple(self.notes),
+            "read_notes": tuple(self.read_notes),
         }
         for name, value in derived.items():
             object.__setattr__(self, name, value)
@@ -323,11 +349,41 @@ def scan_stream(
     intervals = _intervals(seg, starts, figures, window, step, T)
     regions = _low_regions(seg, intervals, starts, figures, window, T)
     records = [r.to_dict() for r in (arr.report.records if arr.report is not None else [])][:1000]
+    positions = arr.report.positions if arr.report is not None else None
+    if positions is not None and len(positions) != T:
+        positions = None  # not this stream's map (a slice, say): positions stay in symbols
+    for entry in (*intervals, *regions):
+        _locate(entry, arr, positions)
     return ScanResult(
         name=arr.name, length=T, window=int(window), step=step, depth=int(depth), ratio=ratio, starts=starts,
         series=figures, segmentation=seg, intervals=tuple(intervals), low_complexity=tuple(regions),
         records=tuple(records), notes=tuple(notes),
+        read_notes=tuple(arr.report.summary_notes()) if arr.report is not None else (), unit=positions.unit if positions is not None else "symbol",
+        positions=positions, caution=caution_for([arr.alphabet]),
     )
+
+
+def _locate(entry: dict, arr: SymbolArray, positions: Positions | None) -> None:
+    """Add file coordinates and, for a log, the templates that dominate ``entry``'s stretch."""
+    a, b = int(entry["start"]), int(entry["end"])
+    if positions is not None:
+        entry.update(positions.span(a, b))
+    if is_log_alphabet(arr.alphabet):
+        entry["templates"] = dominant_templates(arr, a, b)
+
+
+def dominant_templates(arr: SymbolArray, start: int, end: int, top: int = TOP_TEMPLATES) -> list[dict]:
+    """The ``top`` most frequent symbols of ``arr[start:end]`` (ties by code): ``symbol`` (code), ``template``, ``count``, ``share``."""
+    codes = arr.codes[max(0, start):max(start, end)]
+    if codes.size == 0:
+        return []
+    counts = np.bincount(codes.astype(np.int64), minlength=arr.alphabet.size)
+    order = np.lexsort((np.arange(counts.size), -counts))[:top]
+    names = arr.alphabet.symbols
+    return [
+        {"symbol": int(c), "template": names[int(c)], "count": int(counts[c]), "share": float(counts[c]) / codes.size}
+        for c in order if counts[c] > 0
+    ]
 
 
 def _intervals(seg: Segmentation, starts: np.ndarray, figures: dict[str, np.ndarray], window: int, step: int, T: int) -> list[dict]:

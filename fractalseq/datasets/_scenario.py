@@ -7,8 +7,12 @@ to know how complex each sample is, which samples are alike, whether this
 week's relay log differs from last week's, and where along one sample a
 low-complexity stretch sits.  The samples are simulated from Markov chains
 whose entropy rates and Rényi dimensions are known in closed form; one sample
-carries an inserted tandem-repeat island at a known position; the relay log's
-second batch contains a failure mode that the first batch never shows.
+carries an inserted tandem-repeat island at a known position.  The relay logs
+are a collector's weekly files of three invented services (two relay hosts
+writing RFC 3164 syslog lines, a gauge hub writing RFC 5424 lines, an archive
+gateway writing JSON lines) with varying fields (relay and gauge numbers, frame
+ids, durations, addresses, paths, session ids); the second week contains a
+failure mode (three new event kinds) that the first week never shows.
 """
 
 from __future__ import annotations
@@ -60,7 +64,7 @@ class SourceTruth:
 
 @dataclass(frozen=True)
 class LogTruth:
-    """The two relay-log batches and what changed between them."""
+    """The two relay-log batches and what changed between them (``new_templates``: the templates of the new event kinds)."""
 
     baseline: str
     new: str
@@ -197,17 +201,35 @@ def simulate_sources(length: int, seed: int) -> list[tuple[str, str, np.ndarray,
 
 
 # ---------------------------------------------------------------- relay logs
+# The station's log collector gathers three services into one file per week (all invented):
+#   * two relay hosts (relay-north runs relays r1 and r2, relay-south r3 and r4) write RFC 3164 syslog lines
+#     ("Mar  1 00:00:04 relay-north tide-relay[2311]: ...", a level word on some);
+#   * the gauge hub writes RFC 5424 lines ("<134>1 2031-03-01T00:00:04.120Z gauge-hub gauged 4121 - - ...");
+#   * the archive gateway writes JSON lines (one object per line, its event in "event").
+# Event formats (index = state of the healthy relay's chain); fields in braces vary from line to line.
 _EVENTS = (
-    "relay {relay} accepted reading from gauge {gauge}: level={level}m",
-    "relay {relay} queued frame {frame} for archive",
-    "archive upload of {n} frames finished in {ms} ms",
-    "heartbeat from gauge {gauge} ok",
-    "upload to archive slow: {ms} ms, retrying",
-    "relay {relay} reconnected to archive after {ms} ms",
+    ("relay", "relay {relay} accepted reading from gauge {gauge}: level={level}m"),
+    ("relay", "relay {relay} queued frame {frame} for archive"),
+    ("archive", '{{"ts": "{iso}", "service": "archive", "level": "info", "event": "upload_done", "frames": {n}, '
+                '"ms": {ms}, "path": "/srv/archive/2031/{day}/batch-{batch}.tar", "client": "{ip}"}}'),
+    ("gauge", "heartbeat from gauge {gauge} ok in {ms}ms"),
+    ("relay", "WARN upload to archive {archive}:8443 slow: {ms} ms, retrying (attempt {k})"),
+    ("relay", "relay {relay} reconnected to archive after {sec}s, session {session}"),
 )
+#: the week-2 failure mode (new event kinds): a gauge sends frames whose checksum fails
 _FAILURE = (
-    "checksum mismatch on gauge {gauge} frame {frame}",
-    "frame {frame} dropped after checksum failure",
+    ("relay", "ERROR checksum mismatch on gauge {gauge} frame {frame}"),
+    ("relay", "frame {frame} dropped after checksum failure"),
+    ("archive", '{{"ts": "{iso}", "service": "archive", "level": "warn", "event": "frame_rejected", "frame": "{frame}", '
+                '"reason": "checksum", "client": "{ip}"}}'),
+)
+#: the templates of the failure mode's lines, written by hand from the formats above in the notation of
+#: fractalseq's templates (README "Templates"): header set aside, values as <*>, a JSON object as its sorted
+#: keys with the values of event-naming keys kept
+FAILURE_TEMPLATES = (
+    "checksum mismatch on gauge <*> frame <*>",
+    "frame <*> dropped after checksum failure",
+    "{ client=<*> event=frame_rejected frame=<*> level=warn reason=<*> service=<*> ts=<*> }",
 )
 # event-to-event transition matrix of the healthy relay (rows: previous event)
 _HEALTHY = np.array(
@@ -220,24 +242,45 @@ _HEALTHY = np.array(
         [0.50, 0.20, 0.10, 0.15, 0.03, 0.02],
     ]
 )
+_MONTHS = "Jan Feb Mar Apr May Jun Jul Aug Sep Oct Nov Dec".split()
 
 
-def _fill(template: str, rng: np.random.Generator, t: float) -> str:
+def _fill(source: str, template: str, rng: np.random.Generator, t: float, day0: int) -> str:
+    """One log line of ``source`` (relay, gauge, archive) at ``t`` seconds after midnight of March ``day0``."""
+    relay = int(rng.integers(1, 5))
     fields = {
-        "relay": f"r{rng.integers(1, 5)}",
+        "relay": f"r{relay}",
         "gauge": f"{rng.integers(100, 140)}",
         "level": f"{rng.normal(2.0, 0.6):.2f}",
         "frame": f"0x{rng.integers(0, 2**32):08x}",
         "n": f"{rng.integers(5, 60)}",
         "ms": f"{int(rng.gamma(2.0, 40.0))}",
+        "sec": f"{rng.gamma(2.0, 3.0):.1f}",
+        "k": f"{rng.integers(1, 4)}",
+        "archive": f"10.4.0.{rng.integers(2, 6)}",
+        "ip": f"10.4.{rng.integers(1, 3)}.{rng.integers(10, 250)}",
+        "batch": f"{rng.integers(0, 10**6):06d}",
+        "session": "-".join(f"{rng.integers(0, 16**w):0{w}x}" for w in (8, 4, 4, 4, 12)),
     }
-    hh, rem = divmod(int(t), 3600)
+    secs = int(t)
+    day, rem = divmod(secs, 86400)
+    hh, rem = divmod(rem, 3600)
     mm, ss = divmod(rem, 60)
-    return f"2031-03-{1 + hh // 24:02d}T{hh % 24:02d}:{mm:02d}:{ss:02d}Z tide-relay " + template.format(**fields)
+    ms = int((t - secs) * 1000)
+    d = day0 + day
+    iso = f"2031-03-{d:02d}T{hh:02d}:{mm:02d}:{ss:02d}.{ms:03d}Z"
+    fields["iso"], fields["day"] = iso, f"03/{d:02d}"
+    msg = template.format(**fields)
+    if source == "archive":
+        return msg
+    if source == "gauge":
+        return f"<134>1 {iso} gauge-hub gauged 4121 - - {msg}"
+    host, pid = ("relay-north", 2311) if relay <= 2 else ("relay-south", 1870)
+    return f"{_MONTHS[2]} {d:2d} {hh:02d}:{mm:02d}:{ss:02d} {host} tide-relay[{pid}]: {msg}"
 
 
-def simulate_log(lines: int, seed: int, failure_rate: float) -> str:
-    """Relay log lines; with ``failure_rate > 0`` checksum failures (a new failure mode) appear."""
+def simulate_log(lines: int, seed: int, failure_rate: float, day0: int = 1) -> str:
+    """Collector log lines of the three services; with ``failure_rate > 0`` checksum failures (a new failure mode) appear."""
     rng = np.random.default_rng(seed)
     cum = np.cumsum(_HEALTHY, axis=1)
     state = 0
@@ -246,13 +289,13 @@ def simulate_log(lines: int, seed: int, failure_rate: float) -> str:
     for _ in range(lines):  # generating text is inherently per line; the demo keeps it small
         t += rng.exponential(4.0)
         if failure_rate and state == 1 and rng.random() < failure_rate:
-            out.append(_fill(_FAILURE[0], rng, t))
-            out.append(_fill(_FAILURE[1], rng, t + 0.01))
+            for k, (src, fmt) in enumerate(_FAILURE):
+                out.append(_fill(src, fmt, rng, t + 0.01 * k, day0))
             state = 4  # a failure makes the next upload slow
             continue
         state = int(np.searchsorted(cum[state], rng.random(), side="right"))
         state = min(state, len(_EVENTS) - 1)
-        out.append(_fill(_EVENTS[state], rng, t))
+        out.append(_fill(*_EVENTS[state], rng, t, day0))
     return "\n".join(out) + "\n"
 
 
@@ -279,7 +322,7 @@ def generate(folder: str | Path, seed: int = 7, length: int = 120_000, log_lines
         truths.append(SourceTruth(name, str(path), desc, int(codes.size), float(h), {float(k): float(v) for k, v in renyi.items()}, island))
     week1 = folder / "logs" / "relay-week1.log"
     week2 = folder / "logs" / "relay-week2.log"
-    write_text(week1, simulate_log(log_lines, seed + 1, 0.0), force=force)
-    write_text(week2, simulate_log(log_lines, seed + 2, 0.08), force=force)
-    logs = LogTruth(str(week1), str(week2), True, _FAILURE, (log_lines, log_lines))
+    write_text(week1, simulate_log(log_lines, seed + 1, 0.0, day0=1), force=force)
+    write_text(week2, simulate_log(log_lines, seed + 2, 0.08, day0=8), force=force)
+    logs = LogTruth(str(week1), str(week2), True, FAILURE_TEMPLATES, (log_lines, log_lines))
     return Scenario(str(folder), seed, tuple(truths), logs)

@@ -13,8 +13,9 @@ profile has are
 The lower bound is 0 (a rate is not negative).  :func:`hold_to_bounds` says,
 for each named estimate, whether it lies inside ``[lower, smallest upper
 bound]`` (an upper bound is held against the alphabet's limit only), and picks
-the figure to use: the preferred estimate when it is inside, else the
-smallest upper bound, with a sentence saying so.
+the figure to use: the preferred estimate when it is inside, 0 when it lies
+below 0 (a bias-corrected estimator can overshoot on a nearly constant
+stream), else the smallest upper bound, with a sentence saying so.
 """
 
 from __future__ import annotations
@@ -117,6 +118,13 @@ def hold_to_bounds(
         e = pick[1]
         return RateChoice(preferred, pick[0], float(e.estimate), e.low, e.high, 0.0, bound, by, within,
                           f"{label(preferred)} lies inside [0, {bound:.4f}], the smallest upper bound being {bound_text}")
+    if pick is not None and pick[1] is not None and _finite(pick[1].estimate) and float(pick[1].estimate) < 0.0:
+        # below the lower bound: a bias correction overshooting on a (nearly) constant stream; the figure is 0
+        e = pick[1]
+        clip = lambda v: None if v is None or not _finite(v) else min(max(float(v), 0.0), bound)  # noqa: E731
+        return RateChoice(preferred, pick[0], 0.0, clip(e.low), clip(e.high), 0.0, bound, by, within,
+                          f"{label(preferred)} = {float(e.estimate):.4f} bits/symbol lies below 0, the lower bound "
+                          f"(a rate is never negative); use 0")
     if pick is None or pick[1] is None or not _finite(pick[1].estimate):
         why = f"{label(preferred)} was not computed"
     else:

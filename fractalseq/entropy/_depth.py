@@ -32,13 +32,16 @@ def supported(distinct: int, occurrences: int, per_seen: float = SAMPLES_PER_SEE
     return distinct > 0 and distinct * per_seen <= occurrences
 
 
-def ordinal_possible_words(order: int, k: int) -> int:
-    """Possible k-words of a stream of ordinal patterns of order ``m`` (delay 1): ``m! * m**(k-1)``.
+def ordinal_possible_words(order: int, k: int, delay: int = 1) -> int:
+    """Possible k-words of a stream of ordinal patterns of order ``m`` and delay ``tau``.
 
-    Consecutive patterns share ``m - 1`` values, so the next pattern is fixed by where the new
-    value falls among them: ``m`` choices.
+    With delay 1, ``m! * m**(k-1)``: consecutive patterns share ``m - 1`` values, so the next
+    pattern is fixed by where the new value falls among them: ``m`` choices.  With delay
+    ``tau`` the pattern at ``t`` shares ``m - 1`` values with the one at ``t - tau`` and none
+    with those in between, so ``m!**min(k, tau) * m**max(k - tau, 0)``.
     """
-    return math.factorial(int(order)) * int(order) ** (int(k) - 1)
+    m, k, tau = int(order), int(k), max(int(delay), 1)
+    return math.factorial(m) ** min(k, tau) * m ** max(k - tau, 0)
 
 
 @dataclass(frozen=True)

@@ -12,6 +12,7 @@ from typing import Any
 _NAMES: dict[str, str] = {
     "CachePlan": "fractalseq.jobs._files",
     "DaskEngine": "fractalseq.jobs._engines",
+    "DriftColumnsReport": "fractalseq.jobs._drift_columns",
     "DriftReport": "fractalseq.jobs._files",
     "ProcessEngine": "fractalseq.jobs._engines",
     "ProfileResult": "fractalseq.jobs._profile",
@@ -25,6 +26,8 @@ _NAMES: dict[str, str] = {
     "count_files": "fractalseq.jobs._files",
     "CountSummary": "fractalseq.jobs._files",
     "ProfileSettings": "fractalseq.jobs._profile",
+    "batch_columns": "fractalseq.jobs._drift_columns",
+    "drift_columns": "fractalseq.jobs._drift_columns",
     "drift_files": "fractalseq.jobs._files",
     "expand_inputs": "fractalseq.jobs._sources",
     "make_engine": "fractalseq.jobs._engines",

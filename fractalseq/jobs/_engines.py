@@ -43,6 +43,7 @@ from typing import Any
 import numpy as np
 
 from fractalseq.errors import ParameterError
+from fractalseq.jobs._scheduler import DEFAULT_CONNECT_TIMEOUT, check_timeout, parse_address, probe_scheduler
 from fractalseq.runner import Engine, SerialEngine
 
 ENGINES: tuple[str, ...] = ("serial", "processes", "dask")
@@ -65,7 +66,7 @@ class ProcessEngine(Engine):
     name = "processes"
 
     def __init__(self, workers: int) -> None:
-        self.workers = _check_workers(workers)
+        self.workers = _check_workers(workers, local=True)
         self._pool: ProcessPoolExecutor | None = None
 
     def _ensure(self) -> ProcessPoolExecutor:
@@ -124,21 +125,29 @@ class DaskEngine(Engine):
 
     name = "dask"
 
-    def __init__(self, address: str | None = None, workers: int | None = None, client: Any = None) -> None:
-        distributed = import_dask()
+    def __init__(
+        self, address: str | None = None, workers: int | None = None, client: Any = None,
+        timeout: float = DEFAULT_CONNECT_TIMEOUT,
+    ) -> None:
         self._own_cluster = None
         self._own_client = client is None
         if client is not None:
             self.client = client
         elif address:
+            checked = parse_address(address)  # a bad address is refused before Dask is even imported
+            timeout = check_timeout(timeout)
+            distributed = import_dask()
+            probe_scheduler(checked, timeout)
             try:
-                self.client = distributed.Client(address, timeout="20s")
+                self.client = distributed.Client(checked.url, timeout=f"{timeout}s")
             except (OSError, TimeoutError) as exc:
                 raise ParameterError(
-                    f"Cannot reach the Dask scheduler at {address} ({exc}); check the address or start the scheduler."
+                    f"Cannot reach the Dask scheduler at {checked.url} ({exc}); check the address or start the scheduler.",
+                    parameter="address",
                 ) from None
         else:
-            n = _check_workers(workers or 2)
+            n = _check_workers(workers or 2, local=True)
+            distributed = import_dask()
             self._own_cluster = distributed.LocalCluster(
                 n_workers=n, processes=True, threads_per_worker=1, dashboard_address=None, silence_logs=40
             )
@@ -177,9 +186,26 @@ def import_dask():
     return distributed
 
 
-def _check_workers(workers: int | None) -> int:
+#: Local worker processes allowed per core (more only compete for the cores and exhaust file handles).
+WORKERS_PER_CORE = 4
+
+
+def max_local_workers() -> int:
+    """The most local worker processes an engine starts on this machine (:data:`WORKERS_PER_CORE` per core)."""
+    return WORKERS_PER_CORE * max(1, os.cpu_count() or 1)
+
+
+def _check_workers(workers: int | None, local: bool = False) -> int:
     if workers is None or isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
         raise ParameterError(f"The number of workers must be a positive whole number, not {workers!r}.", parameter="workers")
+    cap = max_local_workers()
+    if local and workers > cap:
+        cores = max(1, os.cpu_count() or 1)
+        raise ParameterError(
+            f"{int(workers)} local workers are more than this machine's {cores} core{'s' if cores != 1 else ''} can use "
+            f"(at most {WORKERS_PER_CORE} per core, {cap} here); ask for {cap} or fewer, or run them on a Dask cluster.",
+            parameter="workers",
+        )
     return int(workers)
 
 
@@ -210,7 +236,10 @@ def _worker_init() -> None:  # pragma: no cover - runs in the workers
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
-def make_engine(kind: str | None = None, workers: int | None = None, address: str | None = None) -> Engine:
+def make_engine(
+    kind: str | None = None, workers: int | None = None, address: str | None = None,
+    timeout: float = DEFAULT_CONNECT_TIMEOUT,
+) -> Engine:
     """Build an engine from command-line style settings.
 
     Parameters
@@ -221,13 +250,16 @@ def make_engine(kind: str | None = None, workers: int | None = None, address: st
     workers:
         Local worker processes (processes engine, or a local Dask cluster).
     address:
-        Dask scheduler address.
+        Dask scheduler address (``tcp://HOST:PORT``), checked and tried before any work.
+    timeout:
+        Seconds allowed for reaching the scheduler.
 
     Raises
     ------
     ParameterError
-        Unknown engine, bad worker count, an address for a non-Dask engine, or
-        Dask asked for but not installed.
+        Unknown engine, bad worker count (more than :func:`max_local_workers` local
+        workers), an address for a non-Dask engine, a malformed or unreachable
+        address, or Dask asked for but not installed.
     """
     if kind is None:
         kind = "dask" if address else ("processes" if (workers or 1) > 1 else "serial")
@@ -241,5 +273,5 @@ def make_engine(kind: str | None = None, workers: int | None = None, address: st
         return SerialEngine()
     if kind == "processes":
         return ProcessEngine(workers if workers is not None else max(1, os.cpu_count() or 1))
-    return DaskEngine(address=address, workers=workers)
+    return DaskEngine(address=address, workers=workers, timeout=timeout)
 

@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Callable, Sequence
 
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache
-from fractalseq.jobs._inputs import ReaderOptions, check_seed
+from fractalseq.jobs._inputs import ReaderOptions, check_seed, default_window
 from fractalseq.jobs._sources import SourceSpec, expand_inputs
 from fractalseq.results import Result
 from fractalseq.runner import Engine, SerialEngine
@@ -75,8 +75,28 @@ def count_files(
     *,
     top: int = 0,
     on_input: Callable[[str], None] | None = None,
+    engine: Engine | None = None,
+    piece: int | None = None,
+    on_piece: Callable[[int, object], None] | None = None,
 ) -> CountSummary:
     """Count every word of length 1..``depth`` of several inputs together (what ``fractalseq count`` does).
+
+    Parameters
+    ----------
+    paths, depth, reader, top:
+        Inputs, deepest word length, reader options, most frequent words to list.
+    on_input:
+        Called with each input's name once it is counted.
+    engine:
+        Where the counting runs.  ``None`` or the serial engine count each input
+        in one streamed pass in this process; another engine splits each input
+        into pieces of ``piece`` symbols overlapping by ``depth - 1``
+        (:func:`~fractalseq.words._pieces.count_words_split`), counts them on
+        its workers and adds them up in order: the counts are identical.
+    piece:
+        Symbols per piece (default :data:`~fractalseq.words._pieces.DEFAULT_PIECE`).
+    on_piece:
+        Called as ``on_piece(index, counts)`` when a piece is counted.
 
     Raises
     ------
@@ -86,7 +106,10 @@ def count_files(
     from fractalseq.words._corpus import count_inputs
 
     reader = reader or ReaderOptions()
-    wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    if engine is None or isinstance(engine, SerialEngine):
+        wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    else:
+        wc, reports = _count_split(paths, depth, reader, engine, piece, on_input, on_piece)
     if wc.length == 0:
         raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
     return CountSummary(
@@ -100,6 +123,29 @@ def count_files(
         top=tuple({"word": w, "count": c} for w, c in wc.top(wc.depth, top)) if top else (),
         counts=wc,
     )
+
+
+def _count_split(paths, depth, reader, engine, piece, on_input, on_piece):
+    """Each input split into pieces counted on ``engine``; inputs added in order (each its own segments)."""
+    from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split, settle_storage
+
+    chunk = DEFAULT_PIECE if piece is None else int(piece)
+    if isinstance(chunk, bool) or chunk < 1:
+        raise ParameterError(f"The piece size must be a positive number of symbols, not {piece!r}.", parameter="piece")
+    total: WordCounts | None = None
+    reports = []
+    for p in paths:
+        stream = reader.open(p)
+        if total is not None and not total.alphabet.same_symbols(stream.alphabet):
+            raise InputError(f"{p} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs.")
+        wc = count_words_split(stream, depth, engine, chunk=chunk, on_done=on_piece)
+        total = wc if total is None else total + wc
+        reports.append((p, stream.report))
+        if on_input is not None:
+            on_input(p)
+    if total is None:
+        raise InputError("There is no input to count; give at least one file.")
+    return settle_storage(total), reports
 
 
 # =================================================================== drift
@@ -162,6 +208,7 @@ def drift_files(
     stdin_lines: Sequence[str] | None = None,
     on_done: Callable[[int, object], None] | None = None,
     novelty: "NoveltyOptions | None" = None,
+    per_record: bool = False,
 ) -> DriftReport:
     """Does the ``new`` batch come from the same source as the ``baseline``?
 
@@ -187,6 +234,9 @@ def drift_files(
         Options of the event novelty test (default :class:`~fractalseq.compare._novelty.NoveltyOptions`
         with the drift test's ``alpha``); it runs when every input was read as a log
         (alphabet of templates) and none is standard input.
+    per_record:
+        Every record of every input (chromosome, contig, read) is an input of its batch
+        of its own (:mod:`fractalseq.jobs._records`).
 
     Returns
     -------
@@ -210,8 +260,14 @@ def drift_files(
         # a pipe can be read once: the test passes over each batch more than once, so hold it in memory
         return stream.to_array() if s.path != "-" and is_stream_path(s.path) else stream
 
-    base = [opened(s) for s in base_specs]
-    fresh = [opened(s) for s in new_specs]
+    if per_record:
+        from fractalseq.jobs._records import record_sources
+
+        base = [arr for _, arr in record_sources(base_specs, cut)]
+        fresh = [arr for _, arr in record_sources(new_specs, cut)]
+    else:
+        base = [opened(s) for s in base_specs]
+        fresh = [opened(s) for s in new_specs]
     result = drift_test(base, fresh, options, engine or SerialEngine(), on_done=on_done)
     if note:
         notes = result.notes
@@ -248,7 +304,7 @@ def parse_penalty(text: str | float) -> float | str:
 
 def scan_file(
     path: str | os.PathLike,
-    window: int,
+    window: int | None = None,
     step: int | None = None,
     depth: int | None = None,
     *,
@@ -260,8 +316,11 @@ def scan_file(
 ) -> "ScanResult":
     """Read one input and scan it in sliding windows (what ``fractalseq scan`` does).
 
-    ``on_read`` is called once the input is in memory.  See
-    :func:`fractalseq.compare._scan.scan_stream` for the other parameters.
+    ``window=None`` chooses it (:func:`~fractalseq.jobs._inputs.default_window`): for
+    line-oriented inputs (logs, numeric columns: one symbol per line or row) the size that
+    gives at least 50 windows (at least 40 lines), else 10,000 symbols.  ``on_read`` is
+    called once the input is in memory.  See :func:`fractalseq.compare._scan.scan_stream`
+    for the other parameters.
     """
     from fractalseq.compare._scan import scan_stream
 
@@ -270,6 +329,15 @@ def scan_file(
     arr = (reader or ReaderOptions()).read(path)
     if on_read is not None:
         on_read()
+    lined = arr.report.positions is not None
+    if window is None:
+        window = default_window(len(arr), lined, overlapping=True)
+    if lined and len(arr) < window:
+        unit = arr.report.positions.unit
+        raise ParameterError(
+            f"{arr.name} has {len(arr)} {unit}{'' if len(arr) == 1 else 's'} to scan, fewer than one window of {window} {unit}s; "
+            "give a smaller window.", parameter="window",
+        )
     return scan_stream(arr, window, step, depth, ratio, pen, seed)
 
 
@@ -317,6 +385,7 @@ def survey_files(
     engine: Engine | None = None,
     cache: CachePlan | None = None,
     progress: "Progress | None" = None,
+    per_record: bool = False,
 ) -> "SurveyResult":
     """Survey files, folders, patterns and list files (what ``fractalseq survey`` does).
 
@@ -337,19 +406,27 @@ def survey_files(
         The cache and its pruning rule (:func:`survey_cache`; default: none).
     progress:
         See :func:`~fractalseq.jobs._survey.run_survey`.
+    per_record:
+        Every record of every input (a chromosome, a contig, a read) is a source of
+        its own, named ``INPUT:RECORD`` (:mod:`fractalseq.jobs._records`); each input
+        is read once.
 
     Returns
     -------
     SurveyResult
         The result ``fractalseq survey ... --json`` prints.
     """
-    from fractalseq.jobs._survey import SurveyOptions, run_survey
+    from fractalseq.jobs._survey import SurveyOptions, column_specs, run_survey
 
     options = options or SurveyOptions()
     if inputs and all(isinstance(i, SourceSpec) for i in inputs) and from_list is None:
         specs = list(inputs)
     else:
         specs = expand_inputs([str(i) for i in inputs], from_list, stdin_lines)
+    specs = column_specs(specs, options.reader_options)  # --column a,b / all: one source per column
+    if common_cuts and any(s.column is not None for s in specs):
+        raise ParameterError("Common cuts pool the values of one column across files; with several columns, survey "
+                             "one column at a time or leave out common cuts.", parameter="common_cuts")
     if common_cuts:
         reader = options.reader_options
         if reader.thresholds is not None or reader.ordinal:
@@ -361,4 +438,9 @@ def survey_files(
             raise ParameterError("Common cuts apply to numeric input only; read the inputs as numeric or leave them out.", parameter="common_cuts")
         options = dataclasses.replace(options, reader=tuple(sorted(reader.numeric_options().items())))
     plan = cache or CachePlan(ResultCache(None))
-    return run_survey(specs, options, engine, plan.store, progress, prune_cache=plan.prune)
+    arrays = None
+    if per_record:
+        from fractalseq.jobs._records import per_record as split_records
+
+        specs, arrays = split_records(specs, options.reader_options)
+    return run_survey(specs, options, engine, plan.store, progress, prune_cache=plan.prune, arrays=arrays)

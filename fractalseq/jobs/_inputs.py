@@ -26,7 +26,35 @@ from fractalseq.stream import SymbolArray, SymbolStream
 #: Quantile bins of numeric input when none are given (the numeric reader's default).
 DEFAULT_BINS = 4
 
-__all__ = ["DEFAULT_BINS", "ReaderOptions", "check_seed", "parse_thresholds"]
+#: Window of ``scan`` and ``score`` for inputs that are not line-oriented (genomes, text), in symbols.
+DEFAULT_SYMBOL_WINDOW = 10_000
+#: Line-oriented inputs (logs, numeric columns): the default window gives at least this many windows...
+MIN_WINDOWS = 50
+#: ...but holds at least this many lines (rows).
+MIN_LINE_WINDOW = 40
+
+__all__ = [
+    "DEFAULT_BINS", "DEFAULT_SYMBOL_WINDOW", "MIN_LINE_WINDOW", "MIN_WINDOWS", "ReaderOptions", "check_seed",
+    "default_window", "parse_thresholds",
+]
+
+
+def default_window(length: int, line_oriented: bool, overlapping: bool) -> int:
+    """The default window (symbols) of ``scan`` (``overlapping``: step = window / 4) or ``score`` (windows side by side).
+
+    Genomes and other inputs: :data:`DEFAULT_SYMBOL_WINDOW`.  Line-oriented inputs (one
+    symbol per log line or per numeric row): the largest window that still gives
+    :data:`MIN_WINDOWS` windows, but at least :data:`MIN_LINE_WINDOW` lines.
+    """
+    if not line_oriented:
+        return DEFAULT_SYMBOL_WINDOW
+    n = max(0, int(length))
+    if overlapping:  # windows = (n - w) // (w // 4) + 1
+        w = max(MIN_LINE_WINDOW, (4 * n) // (MIN_WINDOWS + 3))
+        while w > MIN_LINE_WINDOW and (n - w) // max(1, w // 4) + 1 < MIN_WINDOWS:
+            w -= 1
+        return w
+    return max(MIN_LINE_WINDOW, n // MIN_WINDOWS)
 
 
 def parse_thresholds(text: str | None) -> tuple[float, ...] | None:
@@ -61,6 +89,12 @@ class ReaderOptions:
         numeric: fixed, increasing bin edges instead of quantiles.
     ordinal:
         numeric: ordinal-pattern order (0: bins or thresholds).
+    delay:
+        numeric, ordinal patterns: embedding delay in samples (default 1).
+    ties:
+        numeric, ordinal patterns: equal values ordered by ``time`` (default) or by a seeded ``dither``.
+    seed:
+        numeric, ``ties="dither"``: seed of the dither (the command's ``--seed``).
 
     Raises
     ------
@@ -76,6 +110,9 @@ class ReaderOptions:
     bins: int = DEFAULT_BINS
     thresholds: tuple[float, ...] | None = None
     ordinal: int = 0
+    delay: int = 1
+    ties: str = "time"
+    seed: int = 0
 
     def __post_init__(self) -> None:
         from fractalseq.sources import numeric
@@ -98,7 +135,7 @@ class ReaderOptions:
                 f"The alphabet must be a name, 'learn', 'symbols:...' or an Alphabet, not {type(self.alphabet).__name__}.",
                 parameter="alphabet",
             )
-        for name in ("bins", "ordinal"):
+        for name in ("bins", "ordinal", "delay"):
             value = getattr(self, name)
             if isinstance(value, bool) or not hasattr(value, "__index__"):
                 raise ParameterError(f"The {name} option must be a whole number, not {value!r}.", parameter=name)
@@ -106,12 +143,14 @@ class ReaderOptions:
         if self.thresholds is not None:
             object.__setattr__(self, "thresholds", tuple(float(t) for t in self.thresholds))
         try:
-            numeric.check_parameters(self.bins, None if self.thresholds is None else list(self.thresholds), self.ordinal)
+            numeric.check_parameters(self.bins, None if self.thresholds is None else list(self.thresholds), self.ordinal,
+                                     self.delay, self.ties)
         except ParameterError as exc:
             if exc.parameter is not None:
                 raise
             which = "ordinal" if self.ordinal else "thresholds" if self.thresholds is not None else "bins"
             raise ParameterError(str(exc), parameter=which) from None
+        object.__setattr__(self, "seed", check_seed(self.seed))
 
     @classmethod
     def parse(
@@ -123,9 +162,22 @@ class ReaderOptions:
         bins: int = DEFAULT_BINS,
         thresholds: str | None = None,
         ordinal: int = 0,
+        delay: int = 1,
+        ties: str = "time",
+        seed: int = 0,
     ) -> "ReaderOptions":
         """Reader options from text as typed (thresholds ``"0.2,0.5,0.8"``)."""
-        return cls(fmt, alphabet, policy, column, bins, parse_thresholds(thresholds), ordinal)
+        return cls(fmt, alphabet, policy, column, bins, parse_thresholds(thresholds), ordinal, delay, ties, seed)
+
+    @classmethod
+    def from_numeric(cls, fmt: str = "auto", alphabet: str | Alphabet = "dna", policy: str = "break",
+                     options: dict | None = None) -> "ReaderOptions":
+        """Reader options from :meth:`numeric_options` as stored (a cache key, a model file, a survey's options)."""
+        extra = dict(options or {})
+        thresholds = extra.get("thresholds")
+        return cls(fmt, alphabet, policy, extra.get("column"), extra.get("bins", DEFAULT_BINS),
+                   None if thresholds is None else tuple(thresholds), extra.get("ordinal", 0),
+                   extra.get("delay", 1), extra.get("ties", "time"), extra.get("seed", 0))
 
     # ------------------------------------------------------------ views
     def numeric_options(self) -> dict:
@@ -143,9 +195,27 @@ class ReaderOptions:
             opts["thresholds"] = self.thresholds
         if self.ordinal:
             opts["ordinal"] = self.ordinal
+        if self.delay != 1:
+            opts["delay"] = self.delay
+        if self.ties != "time":
+            opts["ties"] = self.ties
+            opts["seed"] = self.seed  # the dither's seed changes the symbols
         return opts
 
     # ---------------------------------------------------------- reading
+    def per_column(self, path: str | os.PathLike) -> list[tuple[str | None, "ReaderOptions"]]:
+        """One ``(column, options)`` per source that ``path`` gives with these options.
+
+        A multi-column choice (``column="a,b"``, ``"0,2"`` or ``"all"``) gives one entry per
+        column, each reading that column alone; otherwise the one entry is ``(None, self)``.
+        """
+        from fractalseq.sources import numeric_columns
+
+        names = numeric_columns(path, self.column, self.fmt) if isinstance(self.column, str) else None
+        if names is None:
+            return [(None, self)]
+        return [(c, replace(self, column=c)) for c in names]
+
     def open(self, path: str | os.PathLike, name: str | None = None) -> SymbolStream:
         """Open one input (``-`` is standard input) as a stream with these options."""
         from fractalseq.sources import open_source

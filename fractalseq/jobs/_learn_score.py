@@ -27,24 +27,25 @@ from typing import Any, Callable, Iterable, Sequence
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import FractalseqError, InputError, ParameterError
+from fractalseq.jobs._inputs import default_window
 from fractalseq.predict._online import evaluate_online
 from fractalseq.predict._predictor import CellPredictor
 from fractalseq.predict._results import DEFAULT_TOP_WINDOWS, DEFAULT_WINDOW, PredictionResult
-from fractalseq.results import Result
+from fractalseq.results import CAUTION_GENOMIC, CAUTION_LOGS, Result, caution_for, is_log_alphabet
 
-RESEARCH_NOTE = "Genomic output is for research, not for clinical decisions."
-LOG_NOTE = "Surprise scores of event logs are no security guarantee."
+RESEARCH_NOTE = CAUTION_GENOMIC
+LOG_NOTE = CAUTION_LOGS
 #: Quantile bins of numeric input when the reader options give none (the reader's default).
 DEFAULT_BINS = 4
 
 
 def caution(alphabets: Iterable[Any]) -> str:
-    """The caution that fits the inputs: logs (template alphabets) or sequences."""
-    return LOG_NOTE if any(getattr(a, "name", "") == "templates" for a in alphabets) else RESEARCH_NOTE
+    """The caution that fits the inputs: logs (template alphabets), sequences, or both (:func:`fractalseq.results.caution_for`)."""
+    return caution_for(alphabets)
 
 
 def _is_templates(alphabet) -> bool:
-    return getattr(alphabet, "name", None) == "templates"
+    return is_log_alphabet(alphabet) if alphabet is not None else False
 
 
 def _open(path: str, fmt: str, alphabet, policy: str, reader: dict):
@@ -174,7 +175,7 @@ def learn_files(
     if out is not None:
         model.save(out, force=force)
     rows = tuple(
-        DepthCells(n, int(model.cells_[n].size), int(model.counts_[n].sum(dtype="int64"))) for n in model.depths_
+        DepthCells(n, int(model.cells_[n].size), int(model.counts_[n].totals().sum())) for n in model.depths_
     )
     return LearnReport(
         model=None if out is None else str(out),
@@ -203,13 +204,17 @@ class SourceScore(PredictionResult):
 
     ``name`` is the path as given; ``stream_name`` the reader's name of the stream; ``dropped`` the
     symbols or lines left out by reason; ``unseen_templates`` the log templates the model never saw
-    (their lines were not scored; empty for other inputs).
+    (their lines were not scored; empty for other inputs); ``unit`` what a symbol is (``symbol``,
+    ``line`` for logs, ``row`` for numeric columns: the most surprising windows then also carry
+    ``first_<unit>``/``last_<unit>``, file line numbers); ``read_notes`` what the reader reported.
     """
 
     stream_name: str = ""
     alphabet: dict = field(default_factory=dict)
     dropped: dict = field(default_factory=dict)
     unseen_templates: tuple = ()
+    unit: str = "symbol"
+    read_notes: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -234,7 +239,7 @@ def score_files(
     alphabet: str | Alphabet | None = None,
     policy: str = "break",
     reader: dict | None = None,
-    window: int = DEFAULT_WINDOW,
+    window: int | None = None,
     top: int = DEFAULT_TOP_WINDOWS,
     params: dict | None = None,
     on_source: Callable[[str], None] | None = None,
@@ -254,7 +259,10 @@ def score_files(
     reader:
         Numeric reader options; empty or ``None`` means the model's own (its training cut points).
     window, top:
-        Window (symbols) of the per-window code lengths and how many of the most surprising to list.
+        Window (symbols) of the per-window code lengths and how many of the most surprising to list;
+        ``window=None`` chooses it per file (:func:`~fractalseq.jobs._inputs.default_window`): logs and
+        numeric columns get windows of lines (rows) that give at least 50 windows (at least 40 lines),
+        other inputs 10,000 symbols.
     params:
         Online mode: parameters of the predictor (``depths``, ``smoothing``, ``learning_rate``...).
     on_source:
@@ -271,22 +279,41 @@ def score_files(
     if model is not None and not read:
         read = {k: (tuple(v) if isinstance(v, list) else v) for k, v in model.reader_.items()}
     scored, alphabets = [], []
+    if fmt == "auto" and _is_templates(read_alpha):
+        fmt = "log"  # a log model (one log's templates or the union of several) reads logs
     for p in map(str, paths):
         stream = _open(p, fmt, read_alpha, policy, read)
-        if model is not None:
-            res = model.evaluate(stream, window=window, top_windows=top)
+        lined = stream.unit != "symbol"
+        size = window
+        arr = None
+        if lined:  # one symbol per line: read it whole (one code per line) to size the windows and map positions
+            arr = stream.to_array()
+            size = window if window is not None else default_window(len(arr), True, overlapping=False)
+            src = arr.as_stream()
         else:
-            res = evaluate_online(stream, window=window, top_windows=top, **(params or {}))
+            size = window if window is not None else DEFAULT_WINDOW
+            src = stream
+        if model is not None:
+            res = model.evaluate(src, window=size, top_windows=top)
+        else:
+            res = evaluate_online(src, window=size, top_windows=top, **(params or {}))
         if res.length == 0:
             raise InputError(f"{p} holds no usable symbols; check the file and the alphabet and format it is read with.")
-        rep = stream.report
+        rep = arr.report if arr is not None else stream.report
         alphabets.append(stream.alphabet)
         values = {f.name: getattr(res, f.name) for f in dataclasses.fields(res)}
         values["name"] = p
+        pos = rep.positions
+        if pos is not None and len(pos) == res.length:
+            values["most_surprising_windows"] = tuple(
+                dataclasses.replace(w, coordinates=pos.span(w.start, w.end)) for w in res.most_surprising_windows
+            )
         scored.append(SourceScore(
             **values, stream_name=res.name, alphabet=stream.alphabet.to_dict(), dropped=dict(sorted(rep.dropped.items())),
             # log lines whose template the model never saw: not scored (the policy left them out), listed here
             unseen_templates=tuple(rep.extra.get("unlisted_templates", ())),
+            unit=pos.unit if pos is not None and len(pos) == res.length else "symbol",
+            read_notes=tuple(rep.summary_notes()),
         ))
         if on_source is not None:
             on_source(p)

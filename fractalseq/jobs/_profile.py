@@ -53,15 +53,15 @@ from fractalseq.encoding import check_ratio, corner_layout, density_image, overl
 from fractalseq.errors import FractalseqError, InputError, ParameterError
 from fractalseq.jobs._inputs import ReaderOptions
 from fractalseq.jobs._profile_rates import (
-    annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_order, safe_ordinal_entropy,
+    annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_delay, ordinal_order, safe_ordinal_entropy,
 )
 from fractalseq.jobs._profile_result import RATE_NAMES, ProfileResult, ScalingCurve
-from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract
+from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract, profile_caution
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
 
 __all__ = [
-    "CAUTION_GENERAL", "CAUTION_GENOMIC", "DEFAULT_BOOT", "FORMAT", "STEPS", "VERSION", "ProfileResult", "ProfileSettings",
+    "CAUTION_GENERAL", "CAUTION_GENOMIC", "DEFAULT_BOOT", "FORMAT", "STEPS", "VERSION", "ProfileResult", "ProfileSettings", "profile_caution",
     "ScalingCurve",
     "auto_depth", "check_qs", "contract", "image_levels", "profile_source",
 ]
@@ -269,6 +269,13 @@ class ProfileSettings:
         return out
 
 
+def _bound_name(by: str, alphabet_size: int, order: int) -> str:
+    """What gave the smallest upper bound, in words (``alphabet`` is log2 A, or log2 m for ordinal patterns)."""
+    if by != "alphabet":
+        return by
+    return f"log2 {order}: a pattern has at most {order} successors" if order else f"log2 {alphabet_size}, the alphabet's limit"
+
+
 # ---------------------------------------------------------------- the steps
 class _Clock:
     """Seconds per step (kept out of the JSON) and the progress callback."""
@@ -294,9 +301,13 @@ def _checked_input(arr: SymbolArray | SymbolStream, settings: ProfileSettings) -
         arr = arr.to_array()
     if not isinstance(arr, SymbolArray):
         raise InputError("profile_source needs a stream (SymbolArray or SymbolStream).")
-    from fractalseq.alphabet import require_two_symbols
-
-    require_two_symbols(arr.alphabet, arr.name or "The input")
+    if arr.alphabet.size < 2:
+        what = f"{arr.name} has" if arr.name and arr.name != "stream" else "The alphabet has"
+        kind = "templates (all its lines are one event kind)" if arr.alphabet.name == "templates" else "symbols"
+        raise InputError(
+            f"{what} fewer than 2 distinct {kind}, so there is no complexity to measure; give data with at least "
+            "two different symbols, or read it with a fixed alphabet (e.g. dna)."
+        )
     L = len(arr)
     if L < 2:
         raise InputError(f"The stream has {L} symbol(s); a profile needs at least 2.")
@@ -319,9 +330,9 @@ def _block_entropies(arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...
 
     The rates are read at the block length the counts support (:func:`fractalseq.jobs._profile_rates.evidence_rates`).
     """
-    order = ordinal_order(arr)
-    rows = annotate_rows(tuple(ent.entropy_table(wc)), order)
-    rate_est, _ = evidence_rates(wc, order)
+    order, delay = ordinal_order(arr), ordinal_delay(arr)
+    rows = annotate_rows(tuple(ent.entropy_table(wc)), order, delay)
+    rate_est, _ = evidence_rates(wc, order, delay)
     renyi = tuple(ent.h_renyi(wc, q) for q in user_qs)
     topo = ent.h_topological_growth(wc)
     try:
@@ -563,10 +574,12 @@ def profile_source(
     clock.step("")
 
     choice = choose_rate(rates, arr.alphabet.size, order, RATE_NAMES)  # every rate held to the bounds it has
-    if choice.estimator != "grassberger":
+    g = rates.get("grassberger")
+    if choice.estimator != "grassberger" or (g is not None and g[1] is not None and choice.estimate != g[1].estimate):
         notes.append(f"entropy rate: {choice.reason}")
     notes.extend(f"entropy rate ({name}): {rates[name][1].estimate:.4f} bits/symbol lies outside [0, {choice.upper_bound:.4f}], "
-                 f"the smallest upper bound ({choice.upper_bound_by})" for name, ok in choice.within.items()
+                 f"the smallest upper bound ({_bound_name(choice.upper_bound_by, arr.alphabet.size, order)})"
+                 for name, ok in choice.within.items()
                  if not ok and rates[name][0] == "estimate" and name != "grassberger")
     notes.extend(_reliability_notes(rates, found.topological, absent))
     settings = {

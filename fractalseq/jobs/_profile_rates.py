@@ -27,7 +27,7 @@ from fractalseq.errors import FractalseqError
 from fractalseq.stream import SymbolArray
 from fractalseq.words._counts import WordCounts, count_words
 
-__all__ = ["annotate_rows", "choose_rate", "deepen_counts", "evidence_rates", "ordinal_entropy", "ordinal_order"]
+__all__ = ["annotate_rows", "choose_rate", "deepen_counts", "evidence_rates", "ordinal_delay", "ordinal_entropy", "ordinal_order"]
 
 _ORDINAL = re.compile(r"ordinal(\d+)")
 
@@ -47,13 +47,29 @@ def _numeric_info(arr: SymbolArray) -> dict:
     return dict(extra.get("numeric", {}))
 
 
-def evidence_rates(wc: WordCounts, order: int = 0) -> tuple[dict[str, ent.EntropyEstimate], EvidenceDepth]:
+def ordinal_delay(arr: SymbolArray) -> int:
+    """The embedding delay of a stream of ordinal patterns, as its reader reports it (1 when not said)."""
+    try:
+        return max(int(_numeric_info(arr).get("delay", 1)), 1)
+    except (TypeError, ValueError):
+        return 1
+
+
+def _min_depth(order: int, delay: int, counted: int) -> int:
+    """Shallowest block length of a per-step rate: ``tau`` for ordinal patterns (the pattern ``tau``
+    steps back shares ``m - 1`` values with the next one), when the counts reach it."""
+    return min(max(int(delay), 1), counted - 1) if order and counted >= 2 else 0
+
+
+def evidence_rates(wc: WordCounts, order: int = 0, delay: int = 1) -> tuple[dict[str, ent.EntropyEstimate], EvidenceDepth]:
     """Plug-in, Miller–Madow and Grassberger ``H(n+1) - H(n)`` at the block length the counts support."""
-    ev = evidence_depth(wc, min_depth=1 if order and wc.depth >= 2 else 0)
+    ev = evidence_depth(wc, min_depth=_min_depth(order, delay, wc.depth))
     note = ev.note()
     if order:
-        note += (f"; ordinal patterns of order {order}: {ordinal_possible_words(order, ev.depth + 1)} possible "
-                 f"{ev.depth + 1}-words (a pattern has at most {order} successors), not {wc.alphabet.size}^{ev.depth + 1}")
+        lag = "" if delay == 1 else f" {delay} steps later"
+        note += (f"; ordinal patterns of order {order}{'' if delay == 1 else f', delay {delay}'}: "
+                 f"{ordinal_possible_words(order, ev.depth + 1, delay)} possible "
+                 f"{ev.depth + 1}-words (a pattern has at most {order} successors{lag}), not {wc.alphabet.size}^{ev.depth + 1}")
     if not ev.supported:
         note = f"too short: the words are seen fewer than {ent.SAMPLES_PER_SEEN_WORD} times on average; " + note
     out = {}
@@ -72,9 +88,12 @@ def deepen_counts(arr: SymbolArray, wc: WordCounts, cap: int) -> WordCounts:
     The default counted depth comes from the fixed rule; a source with memory (few of its possible
     words occur) supports longer words, and its rate is read too shallow unless they are counted.
     """
-    order = ordinal_order(arr)
+    order, delay = ordinal_order(arr), ordinal_delay(arr)
     cap = int(min(cap, arr.alphabet.max_depth))
-    while wc.depth < cap and evidence_depth(wc, min_depth=1 if order else 0).limited_by_count:
+    need = delay + 1 if order else 0  # a per-step rate of patterns with delay tau needs (tau + 1)-words
+    if wc.depth < min(need, cap):
+        wc = count_words(arr, int(min(need, cap)))
+    while wc.depth < cap and evidence_depth(wc, min_depth=_min_depth(order, delay, wc.depth)).limited_by_count:
         wc = count_words(arr, int(min(cap, wc.depth + 4)))
     return wc
 
@@ -83,7 +102,7 @@ def ordinal_entropy(arr: SymbolArray, order: int, n_boot: int, seed: int, level:
     """Permutation entropy of a stream of ordinal patterns (delay and tie rule as the reader reports them)."""
     info = _numeric_info(arr)
     delay = int(info.get("delay", 1))
-    ties = "dither" if "dither" in str(info.get("tie_rule", "")) else "time"
+    ties = str(info.get("ties", "time"))
     return permutation_entropy_of_codes(arr.codes, arr.starts, order, delay, ties, n_boot=n_boot, seed=seed, level=level)
 
 
@@ -96,15 +115,15 @@ def choose_rate(rates: dict[str, tuple[str, ent.EntropyEstimate]], alphabet_size
     return hold_to_bounds(rates, math.log2(alphabet_size), f"log2 of the alphabet size {alphabet_size}", labels=labels)
 
 
-def annotate_rows(rows: tuple[dict[str, Any], ...], order: int) -> tuple[dict[str, Any], ...]:
+def annotate_rows(rows: tuple[dict[str, Any], ...], order: int, delay: int = 1) -> tuple[dict[str, Any], ...]:
     """Block-entropy rows with ``supported`` (observed words seen 20 times on average) and, for ordinal
-    patterns, ``possible`` = ``m! m^(n-1)``."""
+    patterns, ``possible`` = ``m! m^(n-1)`` (delay 1; see :func:`ordinal_possible_words`)."""
     out = []
     for r in rows:
         r = dict(r)
         r["supported"] = supported(int(r["distinct"]), int(r["occurrences"]))
         if order:
-            r["possible"] = float(ordinal_possible_words(order, int(r["depth"])))
+            r["possible"] = float(ordinal_possible_words(order, int(r["depth"]), delay))
         out.append(r)
     return tuple(out)
 

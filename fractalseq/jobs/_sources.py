@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import glob
+import itertools
 import os
 import stat
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Sequence
+from typing import Iterable, Iterator, Sequence
 
 from fractalseq.errors import InputError
 
@@ -33,14 +34,57 @@ def is_stream_path(path: str) -> bool:
 
 @dataclass(frozen=True)
 class SourceSpec:
-    """One input of a survey: a path (``-`` for standard input) and its display name."""
+    """One input of a survey: a path (``-`` for standard input), its display name, and for one column of a
+    numeric table read as its own source (``--column a,b`` or ``all``), that column (``None``: the reader's)."""
 
     path: str
     name: str
+    column: str | None = None
 
 
 def _folder_files(folder: Path) -> list[Path]:
     return sorted(p for p in folder.rglob("*") if p.is_file() and not any(part.startswith(".") for part in p.relative_to(folder).parts))
+
+
+def _identity(path: str) -> tuple[int, int] | str:
+    """What makes two paths the same input: device and inode (one stat, no walk of the path), else the real path."""
+    try:
+        st = os.stat(path)
+    except OSError:
+        return os.path.realpath(path)
+    return (st.st_dev, st.st_ino)
+
+
+def _list_entries(list_file: str | None, stdin_lines: Sequence[str] | None) -> Iterator[tuple[str, Path]]:
+    """The entries of a list file, read line by line (a list of a million lines is never held as text)."""
+    if list_file is None:
+        return
+    if list_file == "-":
+        lines: Iterable[str] = stdin_lines or []
+        base = Path(".")
+        for ln in lines:
+            ln = ln.strip()
+            if ln and not ln.startswith("#"):
+                yield ln, base
+        return
+    lp = Path(list_file)
+    try:
+        fh = open(lp, encoding="utf-8")
+    except (FileNotFoundError, NotADirectoryError) as exc:
+        from fractalseq.guards import path_problem
+
+        why = path_problem(str(lp)) or f"cannot be read ({exc.strerror}); check the path"
+        raise InputError(f"The list file {list_file} {why}.") from None
+    except OSError as exc:
+        raise InputError(f"The list file {list_file} cannot be read ({exc.strerror or exc}); give a UTF-8 text file.") from None
+    with fh:
+        try:
+            for ln in fh:
+                ln = ln.strip()
+                if ln and not ln.startswith("#"):
+                    yield ln, lp.parent
+        except (OSError, UnicodeDecodeError) as exc:
+            raise InputError(f"The list file {list_file} cannot be read ({exc}); give a UTF-8 text file.") from None
 
 
 def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_lines: Sequence[str] | None = None) -> list[SourceSpec]:
@@ -71,26 +115,7 @@ def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_line
         A path that does not exist, a pattern or folder matching no file, or
         no input at all.
     """
-    raw: list[tuple[str, Path | None]] = [(it, None) for it in items]
-    if list_file is not None:
-        if list_file == "-":
-            lines, base = list(stdin_lines or []), Path(".")
-        else:
-            lp = Path(list_file)
-            try:
-                lines = lp.read_text(encoding="utf-8").splitlines()
-            except (FileNotFoundError, NotADirectoryError) as exc:
-                from fractalseq.guards import path_problem
-
-                why = path_problem(str(lp)) or f"cannot be read ({exc.strerror}); check the path"
-                raise InputError(f"The list file {list_file} {why}.") from None
-            except (OSError, UnicodeDecodeError) as exc:
-                raise InputError(f"The list file {list_file} cannot be read ({exc}); give a UTF-8 text file.") from None
-            base = lp.parent
-        for ln in lines:
-            ln = ln.strip()
-            if ln and not ln.startswith("#"):
-                raw.append((ln, base))
+    raw = itertools.chain(((it, None) for it in items), _list_entries(list_file, stdin_lines))
     paths: list[str] = []
     for item, base in raw:
         if item == "-":
@@ -99,13 +124,17 @@ def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_line
         p = Path(item)
         if base is not None and not p.is_absolute():
             p = base / p
-        if p.is_file() or is_stream_path(str(p)):
-            paths.append(str(p))
-        elif p.is_dir():
+        try:
+            mode = os.stat(p).st_mode
+        except (OSError, ValueError):
+            mode = 0
+        if stat.S_ISDIR(mode):
             found = _folder_files(p)
             if not found:
                 raise InputError(f"The folder {item} holds no files; give a folder with inputs.")
             paths.extend(str(f) for f in found)
+        elif mode:
+            paths.append(str(p))  # a regular file, or a pipe or device the reader will judge
         elif _GLOB_CHARS & set(str(p)):
             found = sorted(f for f in glob.glob(str(p), recursive=True) if Path(f).is_file())
             if not found:
@@ -119,10 +148,10 @@ def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_line
         raise InputError("No inputs were given; name files, folders, patterns or a list file.")
     if paths.count("-") > 1 or ("-" in paths and list_file == "-"):
         raise InputError("Standard input can be read only once; give '-' once and not together with a list read from standard input.")
-    seen: set[str] = set()
+    seen: set = set()
     unique: list[str] = []
     for p in paths:
-        key = p if p == "-" else os.path.realpath(p)
+        key = p if p == "-" else _identity(p)
         if key not in seen:
             seen.add(key)
             unique.append(p)

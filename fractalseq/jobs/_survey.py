@@ -43,10 +43,10 @@ from fractalseq.compare._distances import (
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
 from fractalseq.io._outputs import to_json
-from fractalseq.jobs._inputs import DEFAULT_BINS, ReaderOptions, check_seed
+from fractalseq.jobs._inputs import ReaderOptions, check_seed
 from fractalseq.jobs._sources import SourceSpec, expand_inputs, is_stream_path
 from fractalseq.report.survey import SurveyView
-from fractalseq.results import Result
+from fractalseq.results import Result, caution_for
 from fractalseq.runner import Engine, SerialEngine, pause_point
 from fractalseq.stream import ReadReport, SymbolArray
 from fractalseq.words._counts import WordCounts, count_words
@@ -57,6 +57,7 @@ __all__ = [
 ]
 
 CAUTION = "Genomic output is for research, not for clinical decisions; drift reports on logs are no security guarantee."
+
 #: Deepest word length stored per source for the distances (capped by the alphabet's address width).
 STORE_DEPTH = 8
 #: Cap on the number of possible words A**n stored per source.
@@ -119,11 +120,7 @@ class SurveyOptions:
     @property
     def reader_options(self) -> ReaderOptions:
         """The reader settings of every source as one :class:`ReaderOptions`."""
-        extra = dict(self.reader)
-        return ReaderOptions(
-            self.fmt, self.alphabet, self.policy, extra.get("column"), extra.get("bins", DEFAULT_BINS),
-            None if extra.get("thresholds") is None else tuple(extra["thresholds"]), extra.get("ordinal", 0),
-        )
+        return ReaderOptions.from_numeric(self.fmt, self.alphabet, self.policy, dict(self.reader))
 
     def task_params(self) -> dict:
         """Parameters that change a per-source result (the cache key)."""
@@ -192,6 +189,10 @@ def profile_row(arr: SymbolArray, options: SurveyOptions) -> dict:
     return json.loads(to_json(data))
 
 
+#: Survey tasks started in this process (the pause point ``survey.task:N`` counts them).
+_TASKS_RUN = [0]
+
+
 def survey_task(task: SurveyTask) -> dict:
     """Map step for one source: its profile and its word counts (runs on a worker).
 
@@ -199,13 +200,16 @@ def survey_task(task: SurveyTask) -> dict:
     kept and dropped), ``counts_header`` and ``counts_arrays`` (the word
     counts up to the stored distance depth, see :meth:`WordCounts.to_arrays`).
     """
+    _TASKS_RUN[0] += 1
+    pause_point("survey.task", _TASKS_RUN[0])  # test hook: a worker stopped inside its n-th task
     opts = task.options
     if task.codes is not None:
         alphabet = Alphabet.from_dict(task.alphabet or {})
         arr = SymbolArray(alphabet, task.codes, task.starts if task.starts is not None else np.zeros(0, np.int64), task.spec.name,
                           task.report if task.report is not None else ReadReport())
     else:
-        arr = opts.reader_options.open(task.spec.path, name=task.spec.name).to_array()
+        read = opts.reader_options if task.spec.column is None else replace(opts.reader_options, column=task.spec.column)
+        arr = read.open(task.spec.path, name=task.spec.name).to_array()
     if len(arr) == 0:
         raise InputError(f"{task.spec.path} holds no usable symbols; check the file, its format and the alphabet.")
     arr.name = task.spec.name
@@ -419,6 +423,19 @@ def _content_hash(spec: SourceSpec, arr: SymbolArray | None) -> str:
     return "file:" + file_hash(spec.path)
 
 
+def column_specs(specs: Sequence[SourceSpec], reader: ReaderOptions) -> list[SourceSpec]:
+    """The sources with a multi-column choice (``column="a,b"`` or ``"all"``) spread out: one per column,
+    named ``NAME:COLUMN``; other sources unchanged."""
+    out: list[SourceSpec] = []
+    for spec in specs:
+        if spec.column is not None:
+            out.append(spec)
+            continue
+        for col, _ in reader.per_column(spec.path):
+            out.append(spec if col is None else SourceSpec(spec.path, f"{spec.name}:{col}", col))
+    return out
+
+
 def _read_stdin(spec: SourceSpec, options: SurveyOptions) -> SymbolArray:
     """Standard input or a pipe, read once into memory (its cache key is the hash of its symbols)."""
     arr = options.reader_options.open(spec.path, name=spec.name).to_array()
@@ -435,6 +452,7 @@ def run_survey(
     cache: ResultCache | None = None,
     progress: Progress | None = None,
     prune_cache: bool = False,
+    arrays: Sequence[SymbolArray | None] | None = None,
 ) -> SurveyResult:
     """Survey sources: per-source figures (cached), distances and clustering.
 
@@ -458,6 +476,10 @@ def run_survey(
         exactly the current sources and parameters.  Meant for a cache that belongs
         to this survey (``survey --out DIR`` uses ``DIR/.cache``), not for one shared
         by several surveys.  An interrupted or failed survey prunes nothing.
+    arrays:
+        Symbols already read, one per source (``None`` where the source is to be
+        read from its path): the records of a per-record survey.  Such a source
+        is keyed in the cache by its symbols.
 
     Returns
     -------
@@ -466,6 +488,7 @@ def run_survey(
     """
     if not specs:
         raise InputError("No inputs were given; name files, folders, patterns or a list file.")
+    specs = column_specs(specs, options.reader_options)
     engine = engine or SerialEngine()
     cache = cache or ResultCache(None)
     started = time.time()
@@ -476,10 +499,15 @@ def run_survey(
     todo: list[int] = []
     tasks: list[SurveyTask] = []
     damaged: list[str] = []
+    given = arrays
+    if given is not None and len(given) != len(specs):
+        raise ParameterError("Give one symbol array (or None) per source.", parameter="arrays")
     for i, spec in enumerate(specs):
-        arr = _read_stdin(spec, options) if is_stream_path(spec.path) else None
+        arr = given[i] if given is not None else None
+        if arr is None and is_stream_path(spec.path):
+            arr = _read_stdin(spec, options)
         content = _content_hash(spec, arr)
-        key = cache_key(content, params)
+        key = cache_key(content, params if spec.column is None else {**params, "column": spec.column})
         hashes.append(content)
         keys.append(key)
         hit, problem = cache.lookup(key)
@@ -487,7 +515,7 @@ def run_survey(
             damaged.append(f"the cached entry of {spec.name} was not used ({problem}); it was recomputed")
         if hit is not None:
             results, arrays = hit
-            outputs[i] = {**results, "counts_arrays": arrays}
+            outputs[i] = _kept_for_merge({**results, "counts_arrays": arrays}, options)
             if progress:
                 progress("cached", i, spec)
             continue
@@ -505,14 +533,16 @@ def run_survey(
         i = todo[j]
         stored = {k: v for k, v in res.items() if k != "counts_arrays"}
         cache.put(keys[i], stored, res["counts_arrays"])
-        outputs[i] = res
+        outputs[i] = _kept_for_merge(res, options)
         if progress:
             progress("done", i, specs[i])
         finished[0] += 1
         pause_point("survey.cached", finished[0])
 
     if tasks:
-        engine.map(survey_task, tasks, on_done=done)
+        # a bounded number of tasks in flight: thousands of sources do not all sit in the engine's queue
+        for j, res in engine.imap(survey_task, tasks, max_pending=4 * engine.workers + 2):
+            done(j, res)
     result = merge_survey(specs, outputs, hashes, options)  # type: ignore[arg-type]
     if damaged:
         result = replace(result, cache_notes=tuple(damaged))
@@ -521,15 +551,38 @@ def run_survey(
     return result
 
 
+def _counts_of(out: dict) -> WordCounts:
+    arrays = dict(out["counts_arrays"])
+    arrays["header"] = np.frombuffer(json.dumps(out["counts_header"], sort_keys=True).encode(), np.uint8)
+    return WordCounts.from_arrays(arrays, "cached counts")
+
+
+def _kept_for_merge(out: dict, options: SurveyOptions) -> dict:
+    """A finished source as the merge needs it: its word counts cut to the deepest distance depth it allows.
+
+    The distance depth is at most the one this source's own length and alphabet allow (the shortest
+    source and the joint alphabet only lower it), so counts beyond it are never read; dropping them
+    keeps thousands of finished sources small in memory (the cache keeps the full counts).
+    """
+    wc = _counts_of(out)
+    if options.distance_depth is not None:
+        depth = min(int(options.distance_depth), wc.depth)
+    else:
+        depth = 1
+        while depth < wc.depth and float(wc.alphabet.size) ** (depth + 1) * WORDS_PER_CELL <= wc.length:
+            depth += 1
+    if depth >= wc.depth:
+        return out
+    header, arrays = wc.truncate(depth).to_arrays()
+    return {**out, "counts_header": header, "counts_arrays": arrays}
+
+
 def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: Sequence[str], options: SurveyOptions) -> SurveyResult:
     """Merge and estimate: rows in input order, aligned word tables, distances, clustering."""
     notes: list[str] = []
     counts: list[WordCounts] = []
     for out in outputs:
-        arrays = dict(out["counts_arrays"])
-        header = out["counts_header"]
-        arrays["header"] = np.frombuffer(json.dumps(header, sort_keys=True).encode(), np.uint8)
-        counts.append(WordCounts.from_arrays(arrays, "cached counts"))
+        counts.append(_counts_of(out))
     alphabets = [wc.alphabet for wc in counts]
     joint = joint_alphabet(alphabets)
     if joint is not alphabets[0]:
@@ -585,7 +638,8 @@ def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: S
         spectrum=SpectrumDistances(spec_d),
         clustering=clustering,
     )
-    return SurveyResult(tuple(sources), distances, options, tuple(notes))
+    kinds = [((s.get("profile") or {}).get("alphabet") or {}).get("name", "") for s in sources]
+    return SurveyResult(tuple(sources), distances, options, tuple(notes), caution=caution_for(kinds))
 
 
 def report_view(result: SurveyResult) -> SurveyView:
@@ -605,7 +659,7 @@ def report_view(result: SurveyResult) -> SurveyView:
             f"profile depth {'automatic' if result.options.depth is None else result.options.depth}, "
             f"ratio k = {result.options.ratio}, seed {result.options.seed}"
         ),
-        caution=CAUTION,
+        caution=result.caution,
     )
 
 

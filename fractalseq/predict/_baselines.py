@@ -54,34 +54,51 @@ def kt_bits(counts: np.ndarray, prior: np.ndarray | None = None) -> float:
     return float(nats / LN2)
 
 
-def kt_bits_by_order(cell_tables: dict[int, tuple[np.ndarray, np.ndarray]], length: int, A: int) -> dict[int, float]:
+def kt_bits_sparse(totals: np.ndarray, counts: np.ndarray, A: int, prior_totals=None, prior_counts=None) -> float:
+    """:func:`kt_bits` from the totals of every cell and the non-zero counts only (zero counts add nothing).
+
+    ``prior_totals`` / ``prior_counts``: counts seen before, aligned with ``totals`` / ``counts``.
+    """
+    tot_m = np.zeros(len(totals)) if prior_totals is None else np.asarray(prior_totals, dtype=np.float64)
+    m = np.zeros(len(counts)) if prior_counts is None else np.asarray(prior_counts, dtype=np.float64)
+    tot = tot_m + np.asarray(totals, dtype=np.float64)
+    nats = np.sum(gammaln(tot + A / 2.0) - gammaln(tot_m + A / 2.0))
+    nats -= np.sum(gammaln(m + np.asarray(counts, dtype=np.float64) + 0.5) - gammaln(m + 0.5))
+    return float(nats / LN2)
+
+
+def kt_bits_by_order(cell_tables: dict, length: int, A: int) -> dict[int, float]:
     """Code length (bits) of the order-k adaptive KT model for every order in ``cell_tables``.
 
-    ``cell_tables[k] = (cell addresses, counts)`` at depth k of the coded data;
-    ``length`` is the number of symbols (positions without a full context are
-    charged ``log2 A`` bits).
+    ``cell_tables[k]`` is the :class:`~fractalseq.predict._cells.CellTable` of depth k of the coded data;
+    ``length`` is the number of symbols (positions without a full context are charged ``log2 A`` bits).
     """
     out = {}
-    for k, (_, counts) in sorted(cell_tables.items()):
-        covered = int(np.asarray(counts, dtype=np.int64).sum())
-        out[k] = kt_bits(counts) + (length - covered) * math.log2(A)
+    for k, table in sorted(cell_tables.items()):
+        totals = table.totals()
+        covered = int(totals.sum())
+        out[k] = kt_bits_sparse(totals, table.counts, A) + (length - covered) * math.log2(A)
     return out
 
 
-def kt_bits_after_training(
-    train_cells: np.ndarray, train_counts: np.ndarray, cells: np.ndarray, counts: np.ndarray, length: int, A: int
-) -> float:
-    """Order-k adaptive KT code length of new data whose model starts from training counts."""
-    covered = int(np.asarray(counts, dtype=np.int64).sum())
-    if cells.size == 0:
+def kt_bits_after_training(train, table, length: int, A: int, b: int) -> float:
+    """Order-k adaptive KT code length of new data (a :class:`~fractalseq.predict._cells.CellTable`) whose model
+    starts from the training counts (another one, same depth)."""
+    totals = table.totals()
+    covered = int(totals.sum())
+    if table.size == 0:
         return length * math.log2(A)
-    idx = np.searchsorted(train_cells, cells)
-    idx = np.minimum(idx, max(train_cells.size - 1, 0))
-    prior = np.zeros(counts.shape, dtype=np.float64)
-    if train_cells.size:
-        hit = train_cells[idx] == cells
-        prior[hit] = train_counts[idx[hit]]
-    return kt_bits(counts, prior) + (length - covered) * math.log2(A)
+    prior_tot = np.zeros(table.size)
+    prior = np.zeros(table.counts.size)
+    if train.size:
+        i = np.minimum(np.searchsorted(train.cells, table.cells), train.size - 1)
+        hit = train.cells[i] == table.cells
+        prior_tot[hit] = train.totals()[i[hit]]
+        tw, w = train.words(b), table.words(b)
+        j = np.minimum(np.searchsorted(tw, w), tw.size - 1)
+        hw = tw[j] == w
+        prior[hw] = train.counts[j[hw]]
+    return kt_bits_sparse(totals, table.counts, A, prior_tot, prior) + (length - covered) * math.log2(A)
 
 
 @dataclass(frozen=True)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+from dataclasses import dataclass
 from typing import Iterable
 
 import numpy as np
@@ -12,63 +14,170 @@ from fractalseq.predict import _fitted_kernels as FK
 from fractalseq.predict._params import BETA_STEPS, DISCOUNTS, GRID_CELLS
 
 
-def cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, tuple[np.ndarray, np.ndarray]]:
-    """Cells (contexts of depth n) and their (cells, A) symbol counts from word counts, for each n."""
+@dataclass(frozen=True)
+class CellTable:
+    """The cells of one depth and the symbols that followed them, stored sparsely (no row of ``A`` counts).
+
+    Entry ``e`` says that symbol ``syms[e]`` followed the cell ``cells[i]`` (for ``ptr[i] <= e < ptr[i + 1]``)
+    ``counts[e]`` times; within a cell the symbols are increasing, and only symbols seen are stored, so the
+    table's size is the number of distinct words of length ``n + 1``, whatever the alphabet.
+
+    Attributes
+    ----------
+    cells : uint64, sorted strictly increasing cell addresses
+    ptr : int64 ``(cells + 1,)``, first entry of each cell
+    syms : uint32, the symbols
+    counts : uint32 (or uint64 before :func:`to_u32`), their counts, all positive
+    """
+
+    cells: np.ndarray
+    ptr: np.ndarray
+    syms: np.ndarray
+    counts: np.ndarray
+
+    @classmethod
+    def from_words(cls, words: np.ndarray, counts: np.ndarray, b: int) -> "CellTable":
+        """From sorted (n+1)-word addresses and their counts (zero counts dropped)."""
+        words = np.ascontiguousarray(words, dtype=np.uint64)
+        counts = np.asarray(counts)
+        keep = counts > 0
+        if not keep.all():
+            words, counts = words[keep], counts[keep]
+        ub = np.uint64(b)
+        ctx = words >> ub
+        first = np.ones(words.size, dtype=bool)
+        first[1:] = ctx[1:] != ctx[:-1]
+        starts = np.flatnonzero(first)
+        ptr = np.append(starts, words.size).astype(np.int64)
+        syms = (words & np.uint64((1 << b) - 1)).astype(np.uint32)
+        return cls(ctx[starts], ptr, syms, np.ascontiguousarray(counts))
+
+    @property
+    def size(self) -> int:
+        """Cells stored."""
+        return int(self.cells.size)
+
+    def totals(self) -> np.ndarray:
+        """Total count of every cell (int64)."""
+        c = np.concatenate([[0], np.cumsum(self.counts, dtype=np.int64)])
+        return c[self.ptr[1:]] - c[self.ptr[:-1]]
+
+    def distinct(self) -> np.ndarray:
+        """Distinct symbols seen after every cell."""
+        return np.diff(self.ptr)
+
+    def words(self, b: int) -> np.ndarray:
+        """The (n+1)-word address of every entry (sorted)."""
+        rep = np.repeat(self.cells, self.distinct())
+        return (rep << np.uint64(b)) | self.syms.astype(np.uint64)
+
+    def select(self, keep: np.ndarray) -> "CellTable":
+        """The cells where ``keep`` is true."""
+        n = self.distinct()
+        ek = np.repeat(keep, n)
+        return CellTable(self.cells[keep], np.concatenate([[0], np.cumsum(n[keep])]).astype(np.int64), self.syms[ek],
+                         self.counts[ek])
+
+    def merge(self, other: "CellTable", b: int) -> "CellTable":
+        """Counts of both tables added (uint64 counts; :func:`to_u32` checks overflow)."""
+        w = np.concatenate([self.words(b), other.words(b)])
+        c = np.concatenate([self.counts.astype(np.uint64), other.counts.astype(np.uint64)])
+        uw, inv = np.unique(w, return_inverse=True)
+        summed = np.zeros(uw.size, np.uint64)
+        np.add.at(summed, inv, c)
+        return CellTable.from_words(uw, summed, b)
+
+    def dense(self, A: int) -> np.ndarray:
+        """The ``(cells, A)`` count matrix (small alphabets and tests only)."""
+        out = np.zeros((self.size, A), dtype=np.int64)
+        out[np.repeat(np.arange(self.size), self.distinct()), self.syms.astype(np.int64)] = self.counts
+        return out
+
+    def nbytes(self) -> int:
+        return int(self.cells.nbytes + self.ptr.nbytes + self.syms.nbytes + self.counts.nbytes)
+
+
+def cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, CellTable]:
+    """Cells (contexts of depth n) and the symbols that followed them (a :class:`CellTable`) from word counts, for each n."""
     a = wc.alphabet
     out = {}
     for n in orders:
         words, counts = wc.words(n + 1)
         words = np.ascontiguousarray(words, dtype=np.uint64)
         counts = np.ascontiguousarray(counts, dtype=np.int64)
-        cells, cc = FK.group_cells(words, counts, a.bits, a.size)
+        table = CellTable.from_words(words, counts, a.bits)
         if reverse:
             rw = FK.revcomp_addresses(words, n + 1, a.bits)
             order = np.argsort(rw, kind="stable")
-            rcells, rcc = FK.group_cells(rw[order], counts[order], a.bits, a.size)
-            cells, merged = FK.merge_cells(cells, cc, rcells, rcc)
-            cc = to_u32(merged)
-        out[n] = (cells, cc)
+            table = table.merge(CellTable.from_words(rw[order], counts[order], a.bits), a.bits)
+        out[n] = to_u32(table)
     return out
 
 
-def to_u32(counts: np.ndarray) -> np.ndarray:
+def to_u32(table: CellTable) -> CellTable:
+    """The table with uint32 counts (refused beyond 2**32 - 1)."""
+    counts = table.counts
     if counts.size and int(counts.max()) > np.iinfo(np.uint32).max:
         raise InputError("A cell was seen more than 4,294,967,295 times, beyond what a model stores; split the input.")
-    return counts.astype(np.uint32)
+    return CellTable(table.cells, table.ptr, table.syms, counts.astype(np.uint32))
 
-def fit_blend(depths, cells, counts, alphabet: Alphabet, alpha: float, discount) -> tuple[dict, dict]:
+
+def blended_at(depths, tables: dict, params: dict, addr: np.ndarray, syms: np.ndarray, upto: int, A: int, b: int) -> np.ndarray:
+    """Blended probability of ``syms`` after contexts ``addr`` through the depths before ``upto`` (coarse to fine).
+
+    As in :func:`fit_blend`: a depth whose cell is absent restarts from the uniform ``1/A``.
+    """
+    p = np.full(addr.size, 1.0 / A)
+    for m in depths:
+        if m >= upto:
+            break
+        beta, d = params[m]
+        t = tables[m]
+        key = addr & np.uint64((1 << (b * m)) - 1)
+        i = np.minimum(np.searchsorted(t.cells, key), max(t.size - 1, 0))
+        found = (t.cells[i] == key) if t.size else np.zeros(addr.size, bool)
+        w = t.words(b)
+        wk = (key << np.uint64(b)) | syms.astype(np.uint64)
+        j = np.minimum(np.searchsorted(w, wk), max(w.size - 1, 0))
+        c = np.where((w[j] == wk) if w.size else False, t.counts[j] if w.size else 0, 0).astype(np.float64)
+        tot = t.totals()[i].astype(np.float64) if t.size else np.zeros(addr.size)
+        u = t.distinct()[i].astype(np.float64) if t.size else np.zeros(addr.size)
+        q = (np.maximum(c - d, 0.0) + (beta + d * u) * p) / (tot + beta)
+        p = np.where(found, q, 1.0 / A)
+    return p
+
+
+def fit_blend(depths, tables: dict, alphabet: Alphabet, alpha: float, discount) -> tuple[dict, dict]:
     """Concentration and discount of every depth, chosen by leave-one-out likelihood of the training counts.
 
     Depth by depth from the coarsest, each observation is predicted from its
     cell with itself removed, blended with the parent's full estimate; the
     pair ``(beta, d)`` with the highest total log-likelihood wins (ties: the
     smaller).  A pure function of the counts, so merged models get exactly
-    the parameters of a model fitted on everything.
+    the parameters of a model fitted on everything.  Only the symbols seen
+    in a cell contribute, so the work is linear in the stored entries.
     """
     A, b = alphabet.size, alphabet.bits
     betas: dict[int, float] = {}
     discs: dict[int, float] = {}
-    grid_b = [A * alpha * 2.0**k for k in range(BETA_STEPS)]
+    # A alpha 2**k, k = 0..17; a large alphabet (A alpha > 64) also tries concentrations down to about 1/2,
+    # since its cells see far fewer observations than A alpha
+    low = int(math.floor(math.log2(A * alpha / 0.5))) if A * alpha > 64 else 0
+    grid_b = [A * alpha * 2.0**k for k in range(-low, BETA_STEPS)]
     grid_d = list(DISCOUNTS) if discount == "auto" else [float(discount)]
-    prev_cells = prev_p = None
-    prev_depth = 0
+    done: dict[int, tuple[float, float]] = {}
     for n in depths:
-        c = counts[n].astype(np.float64)
-        C = c.shape[0]
-        if prev_cells is None or C == 0:
-            pp = np.full(c.shape, 1.0 / A, dtype=np.float64)
-        else:
-            par = cells[n] & np.uint64((1 << (b * prev_depth)) - 1)
-            rows = np.minimum(np.searchsorted(prev_cells, par), max(prev_cells.size - 1, 0))
-            found = prev_cells[rows] == par
-            pp = prev_p[rows].astype(np.float64)
-            pp[~found] = 1.0 / A
+        t = tables[n]
+        C = t.size
         step = max(1, -(-C // GRID_CELLS))
-        cs, ps = c[::step], pp[::step]
-        N = cs.sum(axis=1, keepdims=True)
-        u = (cs > 0).sum(axis=1, keepdims=True)
-        seen = cs > 0
-        cl = np.where(seen, cs - 1.0, 0.0)
+        sub = t.select(np.arange(C) % step == 0) if step > 1 else t
+        nper = sub.distinct()
+        addr = np.repeat(sub.cells, nper)
+        cs = sub.counts.astype(np.float64)
+        ps = blended_at(sorted(done), tables, done, addr, sub.syms, n, A, b) if done else np.full(cs.size, 1.0 / A)
+        N = np.repeat(sub.totals(), nper).astype(np.float64)
+        u = np.repeat(nper, nper).astype(np.float64)
+        cl = cs - 1.0
         ul = u - (cs == 1)
         best = (-np.inf, grid_b[0], grid_d[0])
         for d in grid_d:
@@ -76,17 +185,13 @@ def fit_blend(depths, cells, counts, alphabet: Alphabet, alpha: float, discount)
             for beta in grid_b:
                 with np.errstate(divide="ignore"):
                     q = (kept + (beta + d * ul) * ps) / (N - 1.0 + beta)
-                    ll = float(np.sum(cs[seen] * np.log(q[seen])))
+                    ll = float(np.sum(cs * np.log(q)))
                 if ll > best[0]:
                     best = (ll, beta, d)
         _, beta, d = best
         betas[n], discs[n] = float(beta), float(d)
         if C:
-            Nf = c.sum(axis=1, keepdims=True)
-            uf = (c > 0).sum(axis=1, keepdims=True)
-            prev_p = ((np.maximum(c - d, 0.0) + (beta + d * uf) * pp) / (Nf + beta)).astype(np.float32)
-            prev_cells = cells[n]
-            prev_depth = n
+            done[n] = (float(beta), float(d))
     return betas, discs
 
 
@@ -98,10 +203,10 @@ def prune_cells(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
     hash of their address.  A cell never outlives its coarser parent (whose
     total is at least as large).
     """
-    total = sum(t[0].size for t in tables.values())
+    total = sum(t.size for t in tables.values())
     if total <= cap:
         return tables, 0
-    keep_fixed = sum(tables[n][0].size for n in tables if n <= K_b)
+    keep_fixed = sum(tables[n].size for n in tables if n <= K_b)
     if keep_fixed > cap:
         raise ParameterError(
             f"The cells up to depth {K_b} alone number {keep_fixed}; raise max_cells to at least {keep_fixed}.",
@@ -113,8 +218,9 @@ def prune_cells(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
     threshold = 1
     while total > cap:
         for n in deep:
-            cells, counts = tables[n]
-            tot = counts.sum(axis=1, dtype=np.int64)
+            table = tables[n]
+            cells = table.cells
+            tot = table.totals()
             keep = tot > threshold
             gone = int(cells.size - keep.sum())
             if gone > total - cap:
@@ -124,12 +230,12 @@ def prune_cells(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
                 keep[rare[order[: gone - (total - cap)]]] = True
                 gone = total - cap
             if gone:
-                tables[n] = (cells[keep], counts[keep])
+                tables[n] = table.select(keep)
                 total -= gone
                 dropped += gone
             if total <= cap:
                 break
         threshold = threshold * 2 if threshold < (1 << 40) else threshold
-        if all(tables[n][0].size == 0 for n in deep):
+        if all(tables[n].size == 0 for n in deep):
             break
     return tables, dropped

@@ -1,12 +1,15 @@
-"""Numba kernels of the fitted predictor: the cell index, the coarse-to-fine blend, scoring, and cell tables.
+"""Numba kernels of the fitted predictor: the cell index, the coarse-to-fine blend over sparse cells, scoring.
 
 Every kernel is private (``_name``) and called through the public wrapper of
 the same name below, which checks types and shapes first.  The blend is
-described in :func:`_blend`; scoring shares its bookkeeping with the online
-kernel (:func:`fractalseq.predict._kernel_tools._score_symbol`).
+described in :func:`_prob`; a cell stores only the symbols seen after it (a
+:class:`~fractalseq.predict._cells.CellTable`), so scoring a symbol costs the
+cells of its history, not the alphabet.
 """
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 from numba import njit
@@ -14,16 +17,19 @@ from numba import njit
 from fractalseq.errors import ParameterError
 from fractalseq.predict._kernel_tools import (
     CALIB_BINS,
+    _borrow,
+    _score_symbol,
     ST_BRIER,
     ST_COUNT,
     ST_NATS,
     ST_SIZE,
     ST_TOP1,
     ST_TOP3,
-    _borrow,
     _cell_hash,
-    _score_symbol,
 )
+
+#: Alphabets up to this size are scored from the full distribution (A work per cell, fastest for small A).
+FULL_SCORE_SYMBOLS = 64
 
 
 # ------------------------------------------------------------ fitted model
@@ -53,52 +59,73 @@ def _find_row(index, addr, lo, hi, dn, a):
         h = (h + 1) & mask
 
 
-@njit(cache=True)
-def _blend(H, L, A, depths, masks, dstart, addr, counts, index, beta, discount, p):
-    """Blend the cells of one history from coarse to fine into ``p``; returns the deepest cell found.
-
-    ``p_n(s) = (max(c_s - d_n, 0) + (beta_n + d_n u) p_{n-1}(s)) / (N + beta_n)``
-    with ``N`` the cell's total, ``u`` its number of distinct symbols and
-    ``beta_n``, ``d_n`` the concentration and discount of the depth; an
-    absent cell leaves ``p`` unchanged.
-    """
-    for s in range(A):
-        p[s] = 1.0 / A
-    deepest = -1
+@njit(cache=True, inline="always")
+def _cells_of(H, L, depths, masks, dstart, addr, index, rows, dix):
+    """Rows of the stored cells of one history, coarse to fine; returns how many were found."""
+    nf = 0
     for di in range(depths.shape[0]):
         dn = depths[di]
         if L < dn:
             break
-        a = H & masks[di]
-        r = _find_row(index, addr, dstart[di], dstart[di + 1], dn, a)
+        r = _find_row(index, addr, dstart[di], dstart[di + 1], dn, H & masks[di])
         if r < 0:
             continue
-        deepest = di
-        tot = 0.0
-        u = 0
-        for s in range(A):
-            c = counts[r, s]
-            tot += c
-            if c > 0:
-                u += 1
-        esc = beta[di] + discount[di] * u
-        den = tot + beta[di]
-        for s in range(A):
-            c = counts[r, s] - discount[di]
-            if c < 0.0:
-                c = 0.0
-            p[s] = (c + esc * p[s]) / den
-    return deepest
+        rows[nf] = r
+        dix[nf] = di
+        nf += 1
+    return nf
+
+
+@njit(cache=True, inline="always")
+def _count_of(ptr, syms, counts, r, s):
+    """Count of symbol ``s`` in cell row ``r`` (binary search among its increasing symbols), 0 if absent."""
+    lo = ptr[r]
+    hi = ptr[r + 1]
+    while lo < hi:
+        mid = (lo + hi) >> 1
+        v = np.int64(syms[mid])
+        if v < s:
+            lo = mid + 1
+        elif v > s:
+            hi = mid
+        else:
+            return counts[mid]
+    return 0.0
+
+
+@njit(cache=True, inline="always")
+def _prob(s, A, rows, dix, lo, nf, ptr, syms, counts, tot, used, beta, discount, p):
+    """Blend of symbol ``s`` from ``p`` through found rows ``lo..nf-1`` (coarse to fine):
+    ``p_n(s) = (max(c_s - d_n, 0) + (beta_n + d_n u) p_{n-1}(s)) / (N + beta_n)``."""
+    for q in range(lo, nf):
+        r = rows[q]
+        di = dix[q]
+        c = _count_of(ptr, syms, counts, r, s) - discount[di]
+        if c < 0.0:
+            c = 0.0
+        p = (c + (beta[di] + discount[di] * used[r]) * p) / (tot[r] + beta[di])
+    return p
 
 
 @njit(cache=True)
-def _fitted_score(codes, starts, A, b, depths, masks, dstart, addr, counts, index, beta, discount,
-                 hist, seg, stats, calib, sur):
-    """Code length (nats) of a chunk under the fitted, static model; same bookkeeping as the online kernels."""
+def _fitted_score(codes, starts, A, b, depths, masks, dstart, addr, ptr, syms, counts, tot, used, index, beta, discount,
+                  top0, sq0, mark, hist, seg, stats, calib, sur):
+    """Code length (nats) of a chunk under the fitted, static model; same bookkeeping as the online kernels.
+
+    Up to :data:`FULL_SCORE_SYMBOLS` symbols the whole distribution is blended.  Beyond, only the symbol
+    that occurred is blended; the ranks, the top symbol and the Brier score come from the
+    candidates (symbols stored in the history's cells deeper than 0, and ``top0``, the most frequent symbols
+    of the depth-0 cell), as in :mod:`fractalseq.predict._online_sparse`: any other symbol ``s`` gets
+    ``E p_0(s)``, below every ``top0`` symbol, and ``sq0`` is the sum of ``p_0(s)**2`` over all symbols.
+    """
     n = codes.shape[0]
+    M = depths.shape[0]
     ub = np.uint64(b)
-    p = np.zeros(A, np.float64)
     keep = sur.shape[0] == n
+    rows = np.zeros(M, np.int64)
+    dix = np.zeros(M, np.int64)
+    ntop = top0.shape[0]
+    cand = np.zeros(64, np.int64)
     H = hist[0]
     L = seg[0]
     sp = 0
@@ -106,16 +133,103 @@ def _fitted_score(codes, starts, A, b, depths, masks, dstart, addr, counts, inde
     top1 = 0.0
     top3 = 0.0
     brier = 0.0
+    g0 = np.int64(stats[ST_COUNT])
+    full = A <= FULL_SCORE_SYMBOLS
+    p = np.zeros(A if full else 0, np.float64)
+    cnt = np.zeros(A if full else 0, np.float64)
     for t in range(n):
         if sp < starts.shape[0] and starts[sp] == t:
             H = np.uint64(0)
             L = 0
             sp += 1
         x = np.int64(codes[t])
-        _blend(H, L, A, depths, masks, dstart, addr, counts, index, beta, discount, p)
-        nats, brier, top1, top3 = _score_symbol(
-            _borrow(p), A, x, t, keep, _borrow(sur), _borrow(calib), nats, brier, top1, top3
-        )
+        nf = _cells_of(H, L, depths, masks, dstart, addr, index, rows, dix)
+        if full:  # small alphabet: the whole distribution, cell by cell
+            for s in range(A):
+                p[s] = 1.0 / A
+            for q in range(nf):
+                r = rows[q]
+                di = dix[q]
+                lo = ptr[r]
+                hi = ptr[r + 1]
+                tr = 0.0
+                for e in range(lo, hi):
+                    cnt[np.int64(syms[e])] = counts[e]
+                    tr += counts[e]
+                esc = beta[di] + discount[di] * (hi - lo)
+                den = tr + beta[di]
+                for s in range(A):
+                    c = cnt[s] - discount[di]
+                    if c < 0.0:
+                        c = 0.0
+                    p[s] = (c + esc * p[s]) / den
+                for e in range(ptr[r], ptr[r + 1]):
+                    cnt[np.int64(syms[e])] = 0.0
+            nats, brier, top1, top3 = _score_symbol(
+                _borrow(p), A, x, t, keep, _borrow(sur), _borrow(calib), nats, brier, top1, top3
+            )
+            H = (H << ub) | np.uint64(x)
+            L += 1
+            continue
+        b0 = 1 if (nf > 0 and depths[dix[0]] == 0) else 0  # the depth-0 cell is the base of the candidates
+        px = _prob(x, A, rows, dix, 0, nf, ptr, syms, counts, tot, used, beta, discount, 1.0 / A)
+        nats -= math.log(px)
+        if keep:
+            sur[t] = -math.log2(px)
+        E = 1.0
+        nc = ntop
+        for q in range(b0, nf):
+            r = rows[q]
+            E *= (beta[dix[q]] + discount[dix[q]] * used[r]) / (tot[r] + beta[dix[q]])
+            nc += ptr[r + 1] - ptr[r]
+        if cand.shape[0] < nc:
+            cand = np.zeros(2 * nc, np.int64)
+        stamp = g0 + t + 1
+        nc = 0
+        for k in range(ntop):
+            s = top0[k]
+            mark[s] = stamp
+            cand[nc] = s
+            nc += 1
+        for q in range(b0, nf):
+            r = rows[q]
+            for e in range(ptr[r], ptr[r + 1]):
+                s = np.int64(syms[e])
+                if mark[s] != stamp:
+                    mark[s] = stamp
+                    cand[nc] = s
+                    nc += 1
+        best = -1
+        pbest = -1.0
+        rank = 0
+        sq = 0.0
+        sqb = 0.0
+        for m in range(nc):
+            s = cand[m]
+            p0s = _prob(s, A, rows, dix, 0, b0, ptr, syms, counts, tot, used, beta, discount, 1.0 / A)
+            ps = _prob(s, A, rows, dix, b0, nf, ptr, syms, counts, tot, used, beta, discount, p0s)
+            if ps > pbest or (ps == pbest and s < best):
+                pbest = ps
+                best = s
+            if s != x and (ps > px or (ps == px and s < x)):
+                rank += 1
+            sq += ps * ps
+            sqb += p0s * p0s
+        rest = sq0 - sqb
+        if rest < 0.0:
+            rest = 0.0
+        brier += sq + E * E * rest - 2.0 * px + 1.0
+        if rank == 0:
+            top1 += 1.0
+        if rank < 3:
+            top3 += 1.0
+        cb = int(pbest * CALIB_BINS)
+        if cb >= CALIB_BINS:
+            cb = CALIB_BINS - 1
+        calib[cb, 0] += 1.0
+        calib[cb, 1] += pbest
+        if best == x:
+            calib[cb, 2] += 1.0
         H = (H << ub) | np.uint64(x)
         L += 1
     hist[0] = H
@@ -129,76 +243,34 @@ def _fitted_score(codes, starts, A, b, depths, masks, dstart, addr, counts, inde
 
 
 @njit(cache=True)
-def _fitted_proba(ctx_codes, ctx_offsets, A, b, depths, masks, dstart, addr, counts, index, beta, discount, out, deepest):
-    """Blended next-symbol probabilities after each context (``ctx_codes[ctx_offsets[i]:ctx_offsets[i+1]]``)."""
+def _fitted_proba(ctx_codes, ctx_offsets, A, b, depths, masks, dstart, addr, ptr, syms, counts, tot, used, index, beta,
+                  discount, out, deepest):
+    """Blended next-symbol probabilities of every symbol after each context (``ctx_codes[ctx_offsets[i]:ctx_offsets[i+1]]``)."""
     ub = np.uint64(b)
-    p = np.zeros(A, np.float64)
+    M = depths.shape[0]
+    rows = np.zeros(M, np.int64)
+    dix = np.zeros(M, np.int64)
     for i in range(out.shape[0]):
         lo = ctx_offsets[i]
         hi = ctx_offsets[i + 1]
         H = np.uint64(0)
         for t in range(lo, hi):
             H = (H << ub) | np.uint64(ctx_codes[t])
-        deepest[i] = _blend(H, hi - lo, A, depths, masks, dstart, addr, counts, index, beta, discount, p)
+        nf = _cells_of(H, hi - lo, depths, masks, dstart, addr, index, rows, dix)
         for s in range(A):
-            out[i, s] = p[s]
-
-
-@njit(cache=True)
-def _group_cells(words, wcounts, b, A):
-    """Turn sorted (n+1)-word addresses and counts into n-cells: unique contexts and a (cells, A) count matrix."""
-    m = words.shape[0]
-    ub = np.uint64(b)
-    symmask = np.uint64((1 << b) - 1)
-    ncell = 0
-    prev = np.uint64(0)
-    for i in range(m):
-        c = words[i] >> ub
-        if i == 0 or c != prev:
-            ncell += 1
-            prev = c
-    cells = np.empty(ncell, np.uint64)
-    counts = np.zeros((ncell, A), np.uint32)
-    k = -1
-    for i in range(m):
-        c = words[i] >> ub
-        if k < 0 or c != cells[k]:
-            k += 1
-            cells[k] = c
-        counts[k, np.int64(words[i] & symmask)] += wcounts[i]
-    return cells, counts
-
-
-@njit(cache=True)
-def _merge_cells(a_addr, a_counts, b_addr, b_counts):
-    """Union of two sorted cell tables, counts added (raises nothing; the caller checks overflow)."""
-    na = a_addr.shape[0]
-    nb = b_addr.shape[0]
-    A = a_counts.shape[1]
-    out_addr = np.empty(na + nb, np.uint64)
-    out_counts = np.zeros((na + nb, A), np.uint64)
-    i = 0
-    j = 0
-    k = 0
-    while i < na or j < nb:
-        if j >= nb or (i < na and a_addr[i] < b_addr[j]):
-            out_addr[k] = a_addr[i]
+            out[i, s] = 1.0 / A
+        for q in range(nf):
+            r = rows[q]
+            di = dix[q]
+            esc = beta[di] + discount[di] * used[r]
+            den = tot[r] + beta[di]
             for s in range(A):
-                out_counts[k, s] = a_counts[i, s]
-            i += 1
-        elif i >= na or b_addr[j] < a_addr[i]:
-            out_addr[k] = b_addr[j]
-            for s in range(A):
-                out_counts[k, s] = b_counts[j, s]
-            j += 1
-        else:
-            out_addr[k] = a_addr[i]
-            for s in range(A):
-                out_counts[k, s] = np.uint64(a_counts[i, s]) + np.uint64(b_counts[j, s])
-            i += 1
-            j += 1
-        k += 1
-    return out_addr[:k], out_counts[:k]
+                out[i, s] = esc * out[i, s] / den
+            for e in range(ptr[r], ptr[r + 1]):
+                c = counts[e] - discount[di]
+                if c > 0.0:
+                    out[i, np.int64(syms[e])] += c / den
+        deepest[i] = dix[nf - 1] if nf > 0 else -1
 
 
 @njit(cache=True)
@@ -232,13 +304,19 @@ def _need(ok: bool, what: str, parameter: str) -> None:
         raise ParameterError(f"The fitted kernels need {what}.", parameter=parameter)
 
 
-def _check_model(A, depths, masks, dstart, addr, counts, index, beta, discount) -> None:
+def _check_model(A, depths, masks, dstart, addr, ptr, syms, counts, tot, used, index, beta, discount) -> None:
     M = depths.shape[0]
+    C = addr.size
     _need(depths.dtype == np.int64 and masks.dtype == np.uint64 and masks.shape == (M,), "depths int64 and masks uint64, one per depth", "depths")
     _need(dstart.dtype == np.int64 and dstart.shape == (M + 1,), "dstart as int64 of length depths + 1", "dstart")
-    _need(addr.dtype == np.uint64 and addr.ndim == 1 and (M == 0 or int(dstart[-1]) == addr.size), "addr as uint64 rows ending at dstart[-1]", "addr")
-    _need(counts.dtype == np.float64 and counts.shape == (addr.size, A), "counts as float64 (rows, A)", "counts")
-    _need(index.dtype == np.int64 and index.size >= 2 * max(addr.size, 1) and (index.size & (index.size - 1)) == 0,
+    _need(addr.dtype == np.uint64 and addr.ndim == 1 and (M == 0 or int(dstart[-1]) == C), "addr as uint64 rows ending at dstart[-1]", "addr")
+    _need(ptr.dtype == np.int64 and ptr.shape == (C + 1,) and int(ptr[0]) == 0 and bool(np.all(np.diff(ptr) >= 0)),
+          "ptr as int64 entry starts, one per cell plus one", "ptr")
+    E = int(ptr[-1])
+    _need(syms.dtype == np.uint32 and syms.shape == (E,) and (E == 0 or int(syms.max()) < A), f"syms as uint32 symbols in 0..{A - 1}, one per entry", "syms")
+    _need(counts.dtype == np.float64 and counts.shape == (E,), "counts as float64, one per entry", "counts")
+    _need(tot.dtype == used.dtype == np.float64 and tot.shape == used.shape == (C,), "tot and used as float64, one per cell", "tot")
+    _need(index.dtype == np.int64 and index.size >= 2 * max(C, 1) and (index.size & (index.size - 1)) == 0,
           "an int64 index of a power-of-two size at least twice the rows", "index")
     _need(beta.shape == discount.shape == (M,) and beta.dtype == discount.dtype == np.float64, "beta and discount as float64, one per depth", "beta")
 
@@ -250,38 +328,31 @@ def build_index(addr, dstart, depths, index) -> None:
     _build_index(addr, dstart, depths, index)
 
 
-def fitted_score(codes, starts, A, b, depths, masks, dstart, addr, counts, index, beta, discount, hist, seg, stats, calib, sur) -> float:
-    """Code length (nats) of a chunk under the fitted model; accumulates ``stats``/``calib`` and fills ``sur`` (bits) if sized."""
-    _check_model(A, depths, masks, dstart, addr, counts, index, beta, discount)
+def fitted_score(codes, starts, A, b, model, top0, sq0, mark, hist, seg, stats, calib, sur) -> float:
+    """Code length (nats) of a chunk under the fitted model; accumulates ``stats``/``calib`` and fills ``sur`` (bits) if sized.
+
+    ``model`` is ``(depths, masks, dstart, addr, ptr, syms, counts, tot, used, index, beta, discount)``; ``top0``
+    int64, the ``min(3, A)`` or more most frequent symbols of the depth-0 cell (count descending, code ascending; codes 0, 1, 2...
+    without one); ``sq0`` the sum over all symbols of the squared depth-0 estimate; ``mark`` int64[A] scratch.
+    """
+    _check_model(A, *model)
     _need(codes.ndim == 1 and (codes.size == 0 or int(codes.max()) < A), f"codes in 0..{A - 1}", "codes")
     _need(starts.dtype == np.int64, "starts as int64", "starts")
+    _need(top0.dtype == np.int64 and min(3, A) <= top0.size <= A and int(top0.max()) < A and int(top0.min()) >= 0, "top0 as at least 3 int64 codes", "top0")
+    _need(mark.dtype == np.int64 and mark.shape == (A,), "mark as int64[A]", "mark")
     _need(stats.shape == (ST_SIZE,) and calib.shape == (CALIB_BINS, 3), "stats and calib of the kernel's layout", "stats")
     _need(sur.dtype == np.float32 and sur.shape in ((0,), (codes.size,)), "sur as float32 of length 0 or the chunk's", "sur")
-    return _fitted_score(codes, starts, A, b, depths, masks, dstart, addr, counts, index, beta, discount, hist, seg, stats, calib, sur)
+    return _fitted_score(codes, starts, A, b, *model, top0, float(sq0), mark, hist, seg, stats, calib, sur)
 
 
-def fitted_proba(ctx_codes, ctx_offsets, A, b, depths, masks, dstart, addr, counts, index, beta, discount, out, deepest) -> None:
+def fitted_proba(ctx_codes, ctx_offsets, A, b, model, out, deepest) -> None:
     """Blended next-symbol probabilities after each context into ``out`` and the deepest cell found into ``deepest``."""
-    _check_model(A, depths, masks, dstart, addr, counts, index, beta, discount)
+    _check_model(A, *model)
     m = ctx_offsets.size - 1
     _need(ctx_codes.dtype == np.int64 and ctx_offsets.dtype == np.int64 and m >= 0, "int64 context codes and offsets", "contexts")
     _need(ctx_codes.size == 0 or (int(ctx_codes.min()) >= 0 and int(ctx_codes.max()) < A), f"context codes in 0..{A - 1}", "contexts")
     _need(out.shape == (m, A) and deepest.shape == (m,), "out (contexts, A) and deepest (contexts,)", "out")
-    _fitted_proba(ctx_codes, ctx_offsets, A, b, depths, masks, dstart, addr, counts, index, beta, discount, out, deepest)
-
-
-def group_cells(words, wcounts, b, A):
-    """Sorted (n+1)-word addresses and counts -> (unique n-cells, (cells, A) uint32 counts)."""
-    _need(words.dtype == np.uint64 and wcounts.shape == words.shape, "uint64 words and one count per word", "words")
-    _need(words.size < 2 or bool(np.all(words[1:] >= words[:-1])), "sorted words", "words")
-    return _group_cells(words, wcounts, b, A)
-
-
-def merge_cells(a_addr, a_counts, b_addr, b_counts):
-    """Union of two sorted cell tables with counts added (uint64 counts; the caller checks overflow)."""
-    _need(a_counts.shape[1:] == b_counts.shape[1:] and a_counts.shape[0] == a_addr.size and b_counts.shape[0] == b_addr.size,
-          "two cell tables over the same alphabet", "a_counts")
-    return _merge_cells(a_addr, a_counts, b_addr, b_counts)
+    _fitted_proba(ctx_codes, ctx_offsets, A, b, *model, out, deepest)
 
 
 def revcomp_addresses(words, n, b):

@@ -5,7 +5,7 @@ This module knows nothing of the predictor: it writes and reads a
 turns itself into a state (:meth:`~fractalseq.predict._predictor.CellPredictor.to_state`)
 and builds itself from one (:meth:`~fractalseq.predict._predictor.CellPredictor.from_state`).
 
-Format (version 1)
+Format (version 2; version 1 stored a ``(cells, A)`` count matrix per depth and is refused)
 ------------------
 A ZIP archive in numpy's ``.npz`` layout written and read by the
 checksummed container (:mod:`fractalseq.io._npz`), whose members are plain
@@ -27,16 +27,18 @@ numeric arrays only; the header also lists each array's dtype and shape
           "training": {"symbols": ..., "segments": ..., "pruned_cells": ..., "max_cells": ...},
           "baseline": {"max_order": K, "order": k, "bits_per_symbol_by_order": {"0": ..., ...}},
           "reader": {how the training data were read: numeric cut points, column...},
-          "sha256": {"cells_0": "<hex>", "counts_0": "<hex>", ...},
+          "sha256": {"words_0": "<hex>", "counts_0": "<hex>", ...},
           "software": "fractalseq <version>"
         }
 
-``cells_<n>``
-    ``uint64``, sorted strictly increasing addresses of the stored cells of
-    depth ``n`` (the last ``n`` symbols packed ``b`` bits each, first symbol
-    most significant).
+``words_<n>``
+    ``uint64``, sorted strictly increasing addresses of the words of length
+    ``n + 1`` seen in training: a stored cell of depth ``n`` (its ``n``
+    symbols packed ``b`` bits each, first symbol most significant) followed
+    by one symbol that followed it.
 ``counts_<n>``
-    ``uint32`` ``(cells, A)``: how often each symbol followed each cell.
+    ``uint32``, one per word, positive: how often that symbol followed that cell.
+    Only symbols seen are stored, so the file's size does not grow with the alphabet.
 
 The checksum of an array is the SHA-256 of its raw bytes (C order, the
 dtype above).  Reading checks the format name, the version, every checksum,
@@ -57,7 +59,7 @@ from fractalseq.errors import InputError, ModelFileError
 from fractalseq.io._npz import DEFAULT_MAX_BYTES, read_container, write_container
 
 FORMAT = "fractalseq-model"
-VERSION = 1
+VERSION = 2
 #: Header keys the file layer adds and checks itself (not part of a model's own state).
 _ENVELOPE = ("format", "version", "sha256", "software")
 
@@ -72,7 +74,7 @@ class ModelState:
         The model's description (alphabet, params, ladder, depths, training, baseline, reader);
         plain JSON types only.
     arrays:
-        ``cells_<n>`` (uint64 sorted addresses) and ``counts_<n>`` (uint32 ``(cells, A)``) of every stored depth.
+        ``words_<n>`` (uint64 sorted (n+1)-word addresses) and ``counts_<n>`` (uint32, one per word) of every stored depth.
     origin:
         Where the state was read from (for messages); empty for a state built in memory.
     """
@@ -81,20 +83,27 @@ class ModelState:
     arrays: dict[str, np.ndarray] = field(default_factory=dict)
     origin: str = ""
 
-    def tables(self, depths, A: int) -> dict[int, tuple[np.ndarray, np.ndarray]]:
-        """``{n: (cells, counts)}`` of the given depths, checked for type, shape and order."""
+    def tables(self, depths, alphabet) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+        """``{n: (words, counts)}`` of the given depths, checked for type, shape, order and symbols."""
         where = self.origin or "The model state"
+        A, b = alphabet.size, alphabet.bits
         out = {}
         for n in depths:
-            kc, kn = f"cells_{n}", f"counts_{n}"
-            if kc not in self.arrays or kn not in self.arrays:
+            kw, kn = f"words_{n}", f"counts_{n}"
+            if kw not in self.arrays or kn not in self.arrays:
                 raise ModelFileError(f"{where} lacks the cells of depth {n}; the file is damaged, learn the model again.")
-            cells, counts = self.arrays[kc], self.arrays[kn]
-            if cells.dtype != np.uint64 or counts.dtype != np.uint32 or counts.ndim != 2 or counts.shape != (cells.size, A):
+            words, counts = self.arrays[kw], self.arrays[kn]
+            if words.dtype != np.uint64 or counts.dtype != np.uint32 or words.ndim != 1 or counts.shape != words.shape:
                 raise ModelFileError(f"{where} has cells of depth {n} with the wrong type or shape; learn the model again.")
-            if cells.size > 1 and not np.all(cells[1:] > cells[:-1]):
+            if words.size > 1 and not np.all(words[1:] > words[:-1]):
                 raise ModelFileError(f"{where} has unsorted cells at depth {n}; learn the model again.")
-            out[n] = (cells, counts)
+            if counts.size and int(counts.min()) == 0:
+                raise ModelFileError(f"{where} stores a zero count at depth {n}; learn the model again.")
+            groups = [(words >> np.uint64(b * g)) & np.uint64((1 << b) - 1) for g in range(n + 1)] if words.size else []
+            if words.size and (max(int(g.max()) for g in groups) >= A
+                               or (b * (n + 1) < 64 and int(words[-1]) >> (b * (n + 1)) != 0)):
+                raise ModelFileError(f"{where} has words of depth {n} outside its {A}-symbol alphabet; learn the model again.")
+            out[n] = (words, counts)
         return out
 
 

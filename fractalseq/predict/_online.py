@@ -17,12 +17,15 @@ from fractalseq.predict._baselines import (
     kt_bits_by_order,
 )
 from fractalseq.predict._cells import cell_tables
+from fractalseq.predict import _online_sparse as S
 from fractalseq.predict._online_kernel import online_chunk
 from fractalseq.predict._params import (
     ALPHA_DIV,
     COUNT_LIMITS,
     DEFAULT_ONLINE_CELLS,
     DEFAULT_TABLE_BYTES,
+    DENSE_MAX_SYMBOLS,
+    SPARSE_START_BITS,
     IR_MIN_DEPTH,
     Source,
     as_source,
@@ -88,7 +91,7 @@ class OnlineCoder:
         length_hint: int | None = None,
     ) -> None:
         self.alphabet = alphabet
-        A, b = alphabet.size, alphabet.bits
+        A = alphabet.size
         if not (isinstance(smoothing, (int, float)) and smoothing > 0 and math.isfinite(smoothing)):
             raise ParameterError(f"The smoothing must be a positive number (e.g. 0.5), not {smoothing!r}.", parameter="smoothing")
         if not (isinstance(learning_rate, (int, float)) and 0 <= learning_rate < 1):
@@ -100,7 +103,8 @@ class OnlineCoder:
         self.depths = ds
         M = len(ds)
         self.packed = A <= 4
-        row_bytes = 8 if self.packed else 2 * A + 6
+        self.sparse = A > DENSE_MAX_SYMBOLS
+        row_bytes = 8 if self.packed else (S.ROW_BYTES if self.sparse else 2 * A + 6)
         if max_cells is None:
             cap = min(DEFAULT_ONLINE_CELLS, max(DEFAULT_TABLE_BYTES // row_bytes, 1 << 12))
         else:
@@ -108,6 +112,32 @@ class OnlineCoder:
             if cap < M * K.BUCKET * 16:
                 raise ParameterError(f"max_cells {cap} is too small for {M} depths; allow at least {M * K.BUCKET * 16}.", parameter="max_cells")
         self.cells_cap = cap
+        self.row_bytes = row_bytes
+        classes = [depth_class(alphabet, d) for d in ds]
+        self.alpha = np.array([smoothing / ALPHA_DIV[c] for c in classes], dtype=np.float64)
+        self.limit = np.array([COUNT_LIMITS[c] for c in classes], dtype=np.int64)
+        self.lr = float(learning_rate)
+        self.params = {
+            "depths": list(ds),
+            "smoothing": float(smoothing),
+            "max_cells": cap,
+            "learning_rate": self.lr,
+            "reverse_complement": self.reverse,
+        }
+        if self.sparse:
+            self._init_sparse(cap, float(smoothing))
+        else:
+            self._init_rows(cap, length_hint)
+        self.weights = np.full((M + 1, M), min(1.0, 2.0 / M), dtype=np.float64)
+        self.hist = np.zeros(2, dtype=np.uint64)
+        self.seg = np.zeros(1, dtype=np.int64)
+        self.stats = np.zeros(K.ST_SIZE, dtype=np.float64)
+        self.calib = np.zeros((K.CALIB_BINS, 3), dtype=np.float64)
+
+    def _init_rows(self, cap: int, length_hint: int | None) -> None:
+        """Tables of the packed and dense layouts: fixed regions, direct where they fit."""
+        alphabet, ds = self.alphabet, self.depths
+        A, b, M = alphabet.size, alphabet.bits, len(ds)
         share = cap / M
         direct = np.array([b * d <= math.floor(math.log2(share)) for d in ds])
         direct_rows = sum(1 << (b * d) for d, dr in zip(ds, direct) if dr)
@@ -122,7 +152,7 @@ class OnlineCoder:
             rbits.append(b * d if dr else hb)
         rows = np.array([1 << r for r in rbits], dtype=np.int64)
         self.n_rows = int(rows.sum())
-        self.table_bytes = self.n_rows * row_bytes
+        self.table_bytes = self.n_rows * self.row_bytes
         self.cfg = {
             "A": A,
             "b": b,
@@ -134,24 +164,70 @@ class OnlineCoder:
             "ir_on": np.array([self.reverse and d >= IR_MIN_DEPTH for d in ds], dtype=np.bool_),
             "comp": complement_map(alphabet) if self.reverse else np.zeros(0, dtype=np.int64),
         }
-        classes = [depth_class(alphabet, d) for d in ds]
-        self.alpha = np.array([smoothing / ALPHA_DIV[c] for c in classes], dtype=np.float64)
-        self.limit = np.array([COUNT_LIMITS[c] for c in classes], dtype=np.int64)
         self.logt = np.log(np.arange(K.LOG_TABLE, dtype=np.float64)[None, :] + self.alpha[:, None])
-        self.lr = float(learning_rate)
-        self.params = {
-            "depths": list(ds),
-            "smoothing": float(smoothing),
-            "max_cells": cap,
-            "learning_rate": self.lr,
-            "reverse_complement": self.reverse,
-        }
         self.rows = self.dense_rows() if not self.packed else (_aligned_zeros(self.n_rows, np.uint64),)
-        self.weights = np.full((M + 1, M), min(1.0, 2.0 / M), dtype=np.float64)
-        self.hist = np.zeros(2, dtype=np.uint64)
-        self.seg = np.zeros(1, dtype=np.int64)
-        self.stats = np.zeros(K.ST_SIZE, dtype=np.float64)
-        self.calib = np.zeros((K.CALIB_BINS, 3), dtype=np.float64)
+
+    def _init_sparse(self, cap: int, alpha0: float) -> None:
+        """Top-k tables (:mod:`fractalseq.predict._online_sparse`): every region starts small and doubles as it fills."""
+        alphabet, ds = self.alphabet, self.depths
+        A, b, M = alphabet.size, alphabet.bits, len(ds)
+        # a region never needs more rows than its depth has cells (A**n), nor more than its share of the cap
+        self.max_bits = np.array(
+            [max(3, min(int(math.floor(math.log2(cap / M))), math.ceil(d * math.log2(A)) + 1)) for d in ds], dtype=np.int64
+        )
+        rbits = np.minimum(self.max_bits, SPARSE_START_BITS)
+        self.cfg = {
+            "A": A,
+            "b": b,
+            "depth": np.array(ds, dtype=np.int64),
+            "masks": np.array([(1 << (b * d)) - 1 for d in ds], dtype=np.uint64),
+            "beta": np.full(M, S.SPARSE_BETA, dtype=np.float64),
+            "disc": np.full(M, S.SPARSE_DISCOUNT, dtype=np.float64),
+            "alpha0": alpha0,
+        }
+        self._layout(rbits)
+        self.rows = tuple(S.empty_rows(self.n_rows))
+        self.fill = np.zeros(M, np.int64)
+        self.c0 = np.zeros(A, np.float64)
+        self.top0 = np.arange(S.TOP0, dtype=np.int64)
+        self.base = np.array([0.0, A * alpha0 * alpha0], dtype=np.float64)
+        self.mark = np.zeros(A, np.int64)
+
+    def _layout(self, rbits: np.ndarray) -> None:
+        rows = np.int64(1) << rbits
+        self.cfg["rbits"] = rbits.astype(np.int64)
+        self.cfg["offset"] = np.concatenate([[0], np.cumsum(rows)[:-1]]).astype(np.int64)
+        self.cfg["grow_at"] = np.where(rbits < self.max_bits, (rows * S.GROW_LOAD).astype(np.int64), np.int64(1) << 62)
+        self.n_rows = int(rows.sum())
+        self.table_bytes = self.n_rows * self.row_bytes + 16 * self.alphabet.size
+
+    def _grow(self) -> None:
+        """Double every region filled past its growth mark and move the stored cells over."""
+        c = self.cfg
+        old_rbits, old_offset = c["rbits"], c["offset"]
+        rbits = np.where(self.fill >= c["grow_at"], np.minimum(old_rbits + 1, self.max_bits), old_rbits)
+        self._layout(rbits)
+        self.rows = S.rehash(c["depth"], old_rbits, old_offset, *self.rows, c["rbits"], c["offset"], self.n_rows)
+
+    def _feed_sparse(self, codes: np.ndarray, starts: np.ndarray, sur: np.ndarray) -> None:
+        c = self.cfg
+        pos = 0
+        n = codes.size
+        while True:
+            part = codes[pos:]
+            st = starts[starts >= pos] - pos
+            out = sur[pos:] if sur.size else sur
+            done = S.sparse_chunk(
+                part, st, c["A"], c["b"], c["depth"], c["rbits"], c["offset"], self.limit, c["masks"], c["beta"], c["disc"],
+                c["alpha0"], *self.rows, self.fill, c["grow_at"], self.c0, self.top0, self.base, self.mark, self.hist,
+                self.seg, self.stats, self.calib, out,
+            )
+            pos += done
+            if pos >= n and not np.any(self.fill >= c["grow_at"]):
+                return
+            self._grow()
+            if pos >= n:
+                return
 
     def feed(self, codes: np.ndarray, starts: np.ndarray, surprisal: bool = False) -> np.ndarray | None:
         """Code one chunk (``starts``: segment starts inside it); returns its surprisals in bits if asked."""
@@ -160,6 +236,9 @@ class OnlineCoder:
             codes = codes.astype(self.alphabet.code_dtype)
         starts = np.ascontiguousarray(starts, dtype=np.int64)
         sur = np.empty(codes.size if surprisal else 0, dtype=np.float32)
+        if self.sparse:
+            self._feed_sparse(codes, starts, sur)
+            return sur if surprisal else None
         c = self.cfg
         online_chunk(
             codes, starts, c["A"], c["b"], c["depth"], c["direct"], c["rbits"], c["offset"], self.limit, self.alpha,
@@ -176,7 +255,7 @@ class OnlineCoder:
 
     def cells_stored(self) -> int:
         """Rows holding a cell now."""
-        return int(np.count_nonzero(self.rows[0] if self.packed else self.rows[3]))
+        return int(np.count_nonzero(self.rows[0] if self.packed else self.rows[3]))  # sparse rows: totals are rows[3] too
 
     @property
     def length(self) -> int:

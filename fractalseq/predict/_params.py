@@ -16,6 +16,10 @@ DNA_DEPTHS = (3, 6, 10, 14, 20)
 LADDER_FRACTIONS = (0.15, 0.3, 0.45, 0.6, 0.8, 1.0)
 #: Default budget of table memory (bytes) when ``max_cells`` is not given.
 DEFAULT_TABLE_BYTES = 1 << 28
+#: Online mode: alphabets larger than this use top-k cells (:mod:`fractalseq.predict._online_sparse`).
+DENSE_MAX_SYMBOLS = 256
+#: Online top-k cells: log2 of the rows a depth's region starts with (doubled as it fills).
+SPARSE_START_BITS = 10
 #: Default cap on the rows of the online tables.
 DEFAULT_ONLINE_CELLS = 1 << 24
 #: Default cap on the cells a fitted model keeps.
@@ -27,7 +31,7 @@ ALPHA_DIV = (1.0, 4.0, 16.0)
 CLASS_BITS = (20.0, 26.0)
 #: Baseline orders 0..K with b (K + 1) <= this many bits.
 BASELINE_BITS = 22
-#: Fitted blend: concentrations A alpha 2**k (k = 0..17) and discounts tried by leave-one-out likelihood.
+#: Fitted blend: concentrations A alpha 2**k (k = 0..17, and down to about 1/2 when A alpha > 64) and discounts tried by leave-one-out likelihood.
 BETA_STEPS = 18
 DISCOUNTS = (0.0, 0.25, 0.5, 0.75)
 #: Cells per depth used to choose the blend parameters (a regular subsample beyond).
@@ -122,8 +126,8 @@ def as_source(source) -> Source:
 
 
 def known_length(source: Source) -> int | None:
-    """Symbols of an in-memory source (``None`` for a stream read lazily)."""
-    return len(source) if isinstance(source, SymbolArray) else None
+    """Symbols of an in-memory source, or an upper bound a lazy stream knows (an event log's lines), else ``None``."""
+    return len(source) if isinstance(source, SymbolArray) else getattr(source, "length_hint", None)
 
 
 def source_chunks(source: Source) -> Iterator[Chunk]:

@@ -15,7 +15,10 @@ Two modes
     ``(c_s + alpha) / (N + A alpha)`` are mixed geometrically with weights
     learned online (see :mod:`fractalseq.predict._online_kernel`).  For DNA the deep
     cells are also updated with the reverse complement of each word, so a
-    repeat read on the other strand is recognised.  The total code length is
+    repeat read on the other strand is recognised.  Alphabets of more than 256
+    symbols (event-log templates) use cells that keep their 8 most frequent
+    next symbols, blended from coarse to fine over an order-0 estimate (see
+    :mod:`fractalseq.predict._online_sparse`).  The total code length is
     an upper bound on the information content of the stream (it is the length
     an arithmetic coder driven by these probabilities would need, within 2 bits).
 *fitted* (:meth:`CellPredictor.fit`, :meth:`~CellPredictor.bits_per_symbol`, :meth:`~CellPredictor.predict_proba`)
@@ -61,7 +64,7 @@ from fractalseq.predict._baselines import (
     kt_bits_after_training,
     kt_bits_by_order,
 )
-from fractalseq.predict._cells import cell_tables, fit_blend, prune_cells, to_u32
+from fractalseq.predict._cells import CellTable, cell_tables, fit_blend, prune_cells, to_u32
 from fractalseq.predict._modelfile import ModelState, read_state, write_state
 from fractalseq.predict._online import evaluate_online, markov_online_baseline, online_code_length  # noqa: F401 (online_code_length: callers import it from here)
 from fractalseq.predict._params import (
@@ -83,7 +86,9 @@ from fractalseq.predict._results import (
 )
 from fractalseq.predict._tally import Tally
 
-_INDEX_ATTRS = ("_dstart", "_addr", "_counts", "_depth_arr", "_beta", "_disc", "_masks", "_index")
+_INDEX_ATTRS = ("_model", "_top0", "_sq0", "_mark", "_depth_arr", "_index_bytes")
+#: Most frequent symbols of the depth-0 cell always among the scoring candidates (see _fitted_kernels.fitted_score).
+TOP0 = 4
 
 
 # ------------------------------------------------------------- fitted mode
@@ -111,16 +116,19 @@ class CellPredictor:
         Additive constant ``alpha`` of each cell's estimate ``(c_s + alpha) / (N + A alpha)``
         (0.5 = Krichevsky–Trofimov).  Online, cells deeper than ``A**n > 2**20`` use
         ``alpha / 4`` and beyond ``2**26`` ``alpha / 16``; fitted, ``A alpha`` is the
-        smallest concentration ``beta_n`` tried (the grid is ``A alpha 2**k``, k = 0..17).
+        smallest concentration ``beta_n`` tried (the grid is ``A alpha 2**k``, k = 0..17, reaching down to about 1/2 when ``A alpha > 64``).
     discount:
         Fitted mode: absolute discount ``d`` of every count in the coarse-to-fine blend,
         ``"auto"`` (chosen per depth among 0, 0.25, 0.5, 0.75) or a number in [0, 1).
     max_cells:
         Memory cap.  Online: rows of the count tables (default 2**24, less for large
-        alphabets so the tables stay under 256 MiB); fitted: cells kept after counting
+        alphabets so the tables stay under 256 MiB; tables are sized by the input's length
+        when it is known, and above 256 symbols they start small and double up to the cap);
+        fitted: cells kept after counting
         (default 2**23), the rarest cells of the deepest depths are pruned first.
     learning_rate:
-        Online mode: step of the mixing-weight update.
+        Online mode: step of the mixing-weight update (alphabets of at most 256 symbols; larger ones
+        blend with fixed parameters and ignore it).
     reverse_complement:
         ``"auto"`` (on for DNA/RNA), ``True`` or ``False``: also count each word read on the other strand
         (online: for cells of depth 5 and more, :data:`IR_MIN_DEPTH`; fitted: every depth).
@@ -132,8 +140,9 @@ class CellPredictor:
         Depths of the fitted cells (0 .. K for the Markov baseline, then the ladder).
     cells_ : dict of int to ndarray
         Sorted cell addresses per depth.
-    counts_ : dict of int to ndarray
-        ``(cells, A)`` symbol counts per depth.
+    counts_ : dict of int to CellTable
+        The symbols seen after each cell and their counts, per depth (sparse: only symbols seen are stored;
+        ``counts_[n].dense(A)`` gives the ``(cells, A)`` matrix).
     n_symbols_, n_segments_ : int
         Training symbols and segments.
     pruned_cells_ : int
@@ -273,7 +282,6 @@ class CellPredictor:
                 parameter="counts",
             )
         tables = cell_tables(counts, fit_depths, reverse)
-        tables = {n: (c, to_u32(cc)) for n, (c, cc) in tables.items()}
         self._install(alphabet, ladder, reverse, K_b, tables, int(counts.length), int(counts.segments), 0, reader)
         return self
 
@@ -291,37 +299,56 @@ class CellPredictor:
         self.pruned_cells_ = int(pruned) + more
         self.max_cells_ = cap
         self.depths_ = tuple(sorted(tables))
-        self.cells_ = {n: tables[n][0] for n in self.depths_}
-        self.counts_ = {n: tables[n][1] for n in self.depths_}
+        self.cells_ = {n: tables[n].cells for n in self.depths_}
+        self.counts_ = {n: tables[n] for n in self.depths_}
         # baseline order chosen on the training data (closed form from the counts)
         strands = 2 if reverse else 1
         bits = kt_bits_by_order({k: tables[k] for k in range(K_b + 1)}, strands * self.n_symbols_, alphabet.size)
         per = {k: v / (strands * self.n_symbols_) for k, v in bits.items()}
         self.baseline_bits_ = per
         self.baseline_order_ = int(min(per, key=lambda k: (per[k], k)))
-        self.concentration_, self.discount_ = fit_blend(
-            self.depths_, self.cells_, self.counts_, alphabet, float(self.smoothing), self.discount
-        )
+        self.concentration_, self.discount_ = fit_blend(self.depths_, self.counts_, alphabet, float(self.smoothing), self.discount)
         self._build_index()
 
     def _build_index(self) -> None:
         a = self.alphabet_
+        A = a.size
         ds = self.depths_
-        sizes = [self.cells_[n].size for n in ds]
-        self._dstart = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)
-        self._addr = np.concatenate([self.cells_[n] for n in ds]).astype(np.uint64) if ds else np.zeros(0, np.uint64)
-        self._counts = (
-            np.concatenate([self.counts_[n] for n in ds]).astype(np.float64)
-            if ds
-            else np.zeros((0, a.size), np.float64)
-        )
+        tabs = [self.counts_[n] for n in ds]
+        sizes = [t.size for t in tabs]
+        dstart = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)
+        addr = np.concatenate([t.cells for t in tabs] + [np.zeros(0, np.uint64)]).astype(np.uint64)
+        entries = np.cumsum([0] + [int(t.ptr[-1]) for t in tabs])
+        ptr = np.concatenate([t.ptr[:-1] + e for t, e in zip(tabs, entries)] + [np.array([entries[-1]])]).astype(np.int64)
+        syms = np.concatenate([t.syms for t in tabs] + [np.zeros(0, np.uint32)]).astype(np.uint32)
+        counts = np.concatenate([t.counts for t in tabs] + [np.zeros(0, np.uint32)]).astype(np.float64)
+        tot = np.concatenate([t.totals() for t in tabs] + [np.zeros(0, np.int64)]).astype(np.float64)
+        used = np.diff(ptr).astype(np.float64)
         self._depth_arr = np.array(ds, dtype=np.int64)
-        self._beta = np.array([self.concentration_[n] for n in ds], dtype=np.float64)
-        self._disc = np.array([self.discount_[n] for n in ds], dtype=np.float64)
-        self._masks = np.array([(1 << (a.bits * n)) - 1 for n in ds], dtype=np.uint64)
-        size = 1 << max(4, int(math.ceil(math.log2(max(2 * self._addr.size, 2)))))
-        self._index = np.zeros(size, dtype=np.int64)
-        FK.build_index(self._addr, self._dstart, self._depth_arr, self._index)
+        beta = np.array([self.concentration_[n] for n in ds], dtype=np.float64)
+        disc = np.array([self.discount_[n] for n in ds], dtype=np.float64)
+        masks = np.array([(1 << (a.bits * n)) - 1 for n in ds], dtype=np.uint64)
+        size = 1 << max(4, int(math.ceil(math.log2(max(2 * addr.size, 2)))))
+        index = np.zeros(size, dtype=np.int64)
+        FK.build_index(addr, dstart, self._depth_arr, index)
+        self._model = (self._depth_arr, masks, dstart, addr, ptr, syms, counts, tot, used, index, beta, disc)
+        self._index_bytes = int(sum(x.nbytes for x in self._model))
+        # the depth-0 cell: its most frequent symbols (count descending, code ascending) and sum of squares
+        k = min(TOP0, A)
+        if ds and ds[0] == 0 and tabs[0].size:
+            t0 = tabs[0]
+            c0 = t0.counts.astype(np.float64)
+            s0 = t0.syms.astype(np.int64)
+            full = np.zeros(A)
+            full[s0] = c0
+            self._top0 = np.lexsort((np.arange(A), -full))[:k].astype(np.int64)
+            esc, den = beta[0] + disc[0] * s0.size, float(c0.sum()) + beta[0]
+            p_seen = (np.maximum(c0 - disc[0], 0.0) + esc / A) / den
+            self._sq0 = float(np.sum(p_seen**2) + (A - s0.size) * (esc / A / den) ** 2)
+        else:
+            self._top0 = np.arange(k, dtype=np.int64)
+            self._sq0 = 1.0 / A
+        self._mark = np.zeros(A, np.int64)
 
     @property
     def n_cells_(self) -> int:
@@ -343,10 +370,8 @@ class CellPredictor:
             raise ModelFileError("Cannot merge models with different cell depths or strand settings; learn both alike.")
         if self.reader_ != other.reader_:
             raise ModelFileError("Cannot merge models whose training data were read differently (numeric cut points, column); learn both alike.")
-        tables = {}
-        for n in self.depths_:
-            addr, cnt = FK.merge_cells(self.cells_[n], self.counts_[n], other.cells_[n], other.counts_[n])
-            tables[n] = (addr, to_u32(cnt))
+        b = self.alphabet_.bits
+        tables = {n: to_u32(self.counts_[n].merge(other.counts_[n], b)) for n in self.depths_}
         out = CellPredictor(**self.get_params())
         out._install(
             self.alphabet_, self.ladder_, self.reverse_complement_, self.baseline_max_order_, tables,
@@ -400,10 +425,7 @@ class CellPredictor:
         m = offsets.size - 1
         out = np.zeros((m, self.alphabet_.size), dtype=np.float64)
         deepest = np.zeros(m, dtype=np.int64)
-        FK.fitted_proba(
-            flat, offsets, self.alphabet_.size, self.alphabet_.bits, self._depth_arr, self._masks, self._dstart,
-            self._addr, self._counts, self._index, self._beta, self._disc, out, deepest,
-        )
+        FK.fitted_proba(flat, offsets, self.alphabet_.size, self.alphabet_.bits, self._model, out, deepest)
         return out, deepest
 
     def next_symbols(self, context, top: int = 5) -> list[dict]:
@@ -420,14 +442,16 @@ class CellPredictor:
             a_ = 0
             for c in flat[max(0, flat.size - depth) :] if depth else []:
                 a_ = (a_ << b) | int(c)
-            cells = self.cells_[depth]
-            i = int(np.searchsorted(cells, np.uint64(a_)))
-            counts = self.counts_[depth][i] if i < cells.size and cells[i] == a_ else None
+            table = self.counts_[depth]
+            i = int(np.searchsorted(table.cells, np.uint64(a_)))
+            if i < table.size and table.cells[i] == a_:
+                lo, hi = int(table.ptr[i]), int(table.ptr[i + 1])
+                counts = dict(zip(table.syms[lo:hi].tolist(), table.counts[lo:hi].tolist()))
         return [
             {
                 "symbol": self.alphabet_.symbols[int(s)],
                 "probability": float(p[s]),
-                "count_in_deepest_cell": None if counts is None else int(counts[s]),
+                "count_in_deepest_cell": None if counts is None else int(counts.get(int(s), 0)),
                 "deepest_cell_depth": depth,
             }
             for s in order
@@ -504,10 +528,7 @@ class CellPredictor:
             codes = np.ascontiguousarray(chunk.codes)
             st = np.ascontiguousarray(chunk.starts, dtype=np.int64)
             sur = np.empty(codes.size if tally is not None else 0, dtype=np.float32)
-            FK.fitted_score(
-                codes, st, a.size, a.bits, self._depth_arr, self._masks, self._dstart, self._addr, self._counts,
-                self._index, self._beta, self._disc, hist, seg, stats, calib, sur,
-            )
+            FK.fitted_score(codes, st, a.size, a.bits, self._model, self._top0, self._sq0, self._mark, hist, seg, stats, calib, sur)
             if tally is not None:
                 tally.add(sur, st)
             if counter is not None:
@@ -515,7 +536,7 @@ class CellPredictor:
                 meter.feed(codes)
         n = int(stats[K.ST_COUNT])
         wins, sur, recs = tally.finish(src.report.records) if tally is not None else (None, None, [])
-        table_bytes = int(self._addr.nbytes + sum(c.nbytes for c in self.counts_.values()) + self._index.nbytes)
+        table_bytes = int(self._index_bytes)
         res = prediction_result(
             "fitted", name, stats, calib, depths=self.depths_,
             memory=FittedMemory(self.max_cells_, self.n_cells_, self.pruned_cells_, table_bytes),
@@ -526,8 +547,7 @@ class CellPredictor:
         if counter is not None and n:
             wc = counter.finish()
             k = self.baseline_order_
-            cells, cc = cell_tables(wc, [k])[k]
-            bits = kt_bits_after_training(self.cells_[k], self.counts_[k], cells, cc, n, a.size)
+            bits = kt_bits_after_training(self.counts_[k], cell_tables(wc, [k])[k], n, a.size, a.bits)
             hind = markov_online_baseline(wc) if wc.depth - 1 >= 0 else None
             mb = MarkovBaseline(
                 k, bits / n, "model training data", dict(self.baseline_bits_),
@@ -545,9 +565,10 @@ class CellPredictor:
         """The fitted model as a plain state (JSON-ready header and cell tables) for :mod:`fractalseq.predict._modelfile`."""
         _check_fitted(self)
         arrays: dict[str, np.ndarray] = {}
+        b = self.alphabet_.bits
         for n in self.depths_:
-            arrays[f"cells_{n}"] = np.ascontiguousarray(self.cells_[n], dtype=np.uint64)
-            arrays[f"counts_{n}"] = np.ascontiguousarray(self.counts_[n], dtype=np.uint32)
+            arrays[f"words_{n}"] = np.ascontiguousarray(self.counts_[n].words(b), dtype=np.uint64)
+            arrays[f"counts_{n}"] = np.ascontiguousarray(self.counts_[n].counts, dtype=np.uint32)
         params = {k: (list(v) if isinstance(v, (tuple, np.ndarray)) else v) for k, v in self.get_params().items()}
         if isinstance(params.get("depths"), list):
             params["depths"] = [int(d) for d in params["depths"]]
@@ -606,7 +627,7 @@ class CellPredictor:
             ) from None
         if tuple(expected_ladder) != ladder or K_b < 0 or sorted(set(depths)) != sorted(set(range(K_b + 1)) | set(ladder)):
             raise ModelFileError(f"{where} lists cell depths that do not match its settings; learn the model again.")
-        tables = state.tables(depths, alphabet.size)
+        tables = {n: CellTable.from_words(w, c, alphabet.bits) for n, (w, c) in state.tables(depths, alphabet).items()}
         try:
             model._install(alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, 0, reader)
         except (KeyError, TypeError, ValueError) as exc:

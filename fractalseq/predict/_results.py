@@ -59,6 +59,12 @@ class SurprisingWindow(Result):
     end: int
     bits_per_symbol: float
     record: str | None
+    #: file coordinates of a line-oriented input (``first_line``/``last_line``, ``first_row``...), merged into the JSON form
+    coordinates: dict = field(default_factory=dict, compare=False, metadata={"json": False})
+
+    def to_dict(self) -> dict:
+        """The window's JSON form: ``start``, ``end`` (symbols, end exclusive), bits, record, then its file coordinates."""
+        return {**super().to_dict(), **self.coordinates}
 
 
 @dataclass(frozen=True)

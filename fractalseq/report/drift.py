@@ -51,12 +51,12 @@ def drift_text(result: DriftResult) -> str:
 
 
 def _num_text(v) -> str:
-    return "–" if v is None else f"{v:.4g}"
+    return "–" if v is None else f"{v + 0.0:.4g}"  # + 0.0: never "-0"
 
 
 def drift_html(result: DriftResult):
     """The drift report as a self-contained HTML page."""
-    page = HtmlReport("Drift test", result.verdict, caution=CAUTION)
+    page = HtmlReport("Drift test", result.verdict, caution=result.caution or CAUTION)
     page.section("Verdict")
     page.paragraph(result.verdict)
     page.key_values(

@@ -9,15 +9,20 @@ from __future__ import annotations
 
 from typing import Any, Protocol, Sequence
 
-__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "FORMAT", "VERSION", "contract"]
+from fractalseq.results import CAUTION_GENOMIC, caution_for
+
+__all__ = ["CAUTION_GENERAL", "CAUTION_GENOMIC", "FORMAT", "VERSION", "contract", "profile_caution"]
 
 FORMAT = "fractalseq-profile"
 VERSION = 1
-CAUTION_GENOMIC = "Genomic output is for research, not for clinical decisions."
-CAUTION_GENERAL = (
-    "Estimates describe the stream given, at its length; read the reliability notes before comparing numbers. "
-    + CAUTION_GENOMIC
-)
+ESTIMATES_NOTE = "Estimates describe the stream given, at its length; read the reliability notes before comparing numbers. "
+CAUTION_GENERAL = ESTIMATES_NOTE + CAUTION_GENOMIC
+
+
+def profile_caution(results: Sequence[Any]) -> str:
+    """The caution of a profile document or page: the estimates note, then the caution that fits the inputs
+    (genomes: research only; logs: no security guarantee; see :func:`fractalseq.results.caution_for`)."""
+    return ESTIMATES_NOTE + caution_for([getattr(r, "alphabet", "") for r in results])
 
 
 class _Source(Protocol):
@@ -29,7 +34,7 @@ def contract(results: Sequence[_Source], parameters: dict | None = None) -> dict
     return {
         "format": FORMAT,
         "version": VERSION,
-        "caution": CAUTION_GENERAL,
+        "caution": profile_caution(results),
         "parameters": dict(parameters or {}),
         "sources": [r.to_dict() for r in results],
     }

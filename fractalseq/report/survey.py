@@ -18,7 +18,7 @@ from fractalseq.io._outputs import write_bytes, write_csv, write_text
 from fractalseq.report import figures
 from fractalseq.report.html import HtmlReport
 
-__all__ = ["MATRIX_IN_PAGE", "NAMED_LEAVES", "SurveyView", "dendrogram_png", "heatmap_png", "html_report", "spectra_png", "write_report"]
+__all__ = ["MATRIX_IN_PAGE", "NAMED_LEAVES", "TABLE_ROWS", "SurveyView", "block_means", "dendrogram_png", "heatmap_png", "html_report", "spectra_png", "write_report"]
 
 #: Sources drawn in colour with a legend in the overlaid spectra (more: thin lines, no legend).
 LABELLED_SOURCES = 12
@@ -26,6 +26,12 @@ LABELLED_SOURCES = 12
 NAMED_LEAVES = 60
 #: Sources whose distance matrices are shown as tables in survey.html (more: distances.csv only).
 MATRIX_IN_PAGE = 40
+#: Rows of the per-source table in survey.html (more: the first ones, the rest in survey.csv).
+TABLE_ROWS = 500
+#: Cells per side of the heat map (more sources: the ordered matrix averaged over blocks of sources).
+HEATMAP_CELLS = 400
+#: Leaves of the dendrogram (more sources: the last merges only, small clusters drawn as one leaf).
+DENDROGRAM_LEAVES = 400
 
 
 @dataclass(frozen=True, eq=False)
@@ -103,10 +109,12 @@ def dendrogram_png(view: SurveyView) -> bytes:
     named = n <= NAMED_LEAVES  # beyond that the leaves are too many to label; the CSV and JSON name them
     with figures.style():
         fig, ax = figures.figure(7.6, max(3.0, 0.32 * n + 1.5) if named else 12.0)
+        truncate = {"truncate_mode": "lastp", "p": DENDROGRAM_LEAVES} if n > DENDROGRAM_LEAVES else {}
         if view.clustering.linkage.shape[0]:
             dendrogram(
                 view.clustering.linkage, labels=[figures.short(nm, 32) for nm in view.names] if named else None,
                 no_labels=not named, orientation="right", ax=ax, color_threshold=0, above_threshold_color="#0b6e69",
+                **truncate,
             )
         ax.set_xlabel("Jensen–Shannon distance (bits^½)")
         ax.set_title(f"Clustering ({view.clustering.method} linkage), depth-{view.js_depth} words")
@@ -116,10 +124,29 @@ def dendrogram_png(view: SurveyView) -> bytes:
 
 def heatmap_png(view: SurveyView) -> bytes:
     """Heat map of the Jensen–Shannon divergences, rows in dendrogram order."""
-    order = view.clustering.order or list(range(len(view.names)))
-    m = view.js[np.ix_(order, order)]
+    order = np.asarray(view.clustering.order or list(range(len(view.names))), dtype=np.int64)
     labels = [view.names[i] for i in order] if len(order) <= NAMED_LEAVES else None
-    return figures.heatmap_png(m, labels, f"Jensen–Shannon divergence, depth-{view.js_depth} words", "bits")
+    title = f"Jensen–Shannon divergence, depth-{view.js_depth} words"
+    if len(order) > HEATMAP_CELLS:
+        title += f" (means over blocks of about {len(order) / HEATMAP_CELLS:.1f} sources)"
+    return figures.heatmap_png(block_means(view.js, order, HEATMAP_CELLS), labels, title, "bits")
+
+
+def block_means(matrix: np.ndarray, order: np.ndarray, cells: int) -> np.ndarray:
+    """``matrix`` with rows and columns in ``order``, averaged over ``cells`` x ``cells`` blocks when larger.
+
+    Built row block by row block, so no reordered copy of a large matrix is made.
+    """
+    n = len(order)
+    if n <= cells:
+        return np.asarray(matrix, float)[np.ix_(order, order)]
+    edges = np.linspace(0, n, cells + 1).round().astype(np.int64)
+    out = np.zeros((cells, cells))
+    for a in range(cells):
+        rows = np.asarray(matrix[order[edges[a] : edges[a + 1]]], float)[:, order]
+        sums = np.add.reduceat(rows.sum(axis=0), edges[:-1])
+        out[a] = sums / ((edges[a + 1] - edges[a]) * np.diff(edges))
+    return out
 
 
 def html_report(view: SurveyView, drawn: Mapping[str, bytes] | None = None) -> HtmlReport:
@@ -137,7 +164,10 @@ def html_report(view: SurveyView, drawn: Mapping[str, bytes] | None = None) -> H
         "topological entropy and the online predictor's bits per symbol, each with its interval (low, high). "
         "Click a heading to sort."
     )
-    page.table(list(view.header), [list(r) for r in view.rows], sortable=True, caption="Per-source figures")
+    shown = [list(r) for r in view.rows[:TABLE_ROWS]]
+    if len(view.rows) > TABLE_ROWS:
+        page.paragraph(f"The first {TABLE_ROWS} of {len(view.rows)} sources are listed (input order); survey.csv holds every row.")
+    page.table(list(view.header), shown, sortable=True, caption="Per-source figures")
     page.section("Spectra")
     page.figure(figs.get("spectra") or spectra_png(view), "D_q against q for every source (bands: intervals).", "Overlaid D_q spectra")
     page.section("Distances")
@@ -153,7 +183,9 @@ def html_report(view: SurveyView, drawn: Mapping[str, bytes] | None = None) -> H
         page.paragraph(f"The {n} × {n} distance matrices are in distances.csv and survey.json (too large for this page).")
     if len(names) >= 2:
         page.figure(figs.get("heatmap") or heatmap_png(view), "Jensen–Shannon divergences, rows and columns in dendrogram order.", "Distance heat map")
-        page.figure(figs.get("dendrogram") or dendrogram_png(view), "Hierarchical clustering of the sources.", "Dendrogram")
+        page.figure(figs.get("dendrogram") or dendrogram_png(view), "Hierarchical clustering of the sources"
+                    + (f" (the last {DENDROGRAM_LEAVES} merges; a leaf may stand for a cluster)." if n > DENDROGRAM_LEAVES else "."),
+                    "Dendrogram")
     if view.notes:
         page.section("Notes")
         page.note("", list(view.notes))

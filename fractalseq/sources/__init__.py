@@ -53,7 +53,7 @@ from fractalseq.sources.sniff import FORMATS
 from fractalseq.sources.templates import line_template
 from fractalseq.stream import DEFAULT_CHUNK, Chunk, ReadReport, SymbolStream
 
-__all__ = ["FORMATS", "detect_format", "line_template", "open_source", "shared_quantile_edges"]
+__all__ = ["FORMATS", "detect_format", "line_template", "numeric_columns", "open_source", "shared_quantile_edges"]
 
 _LEARN_BLOCK = 1 << 16
 
@@ -127,6 +127,9 @@ def open_source(
     bins: int = 4,
     thresholds: list[float] | None = None,
     ordinal: int = 0,
+    delay: int = 1,
+    ties: str = "time",
+    seed: int = 0,
     chunk_size: int = DEFAULT_CHUNK,
     name: str | None = None,
 ) -> SymbolStream:
@@ -157,6 +160,13 @@ def open_source(
         numeric: fixed bin edges instead of quantiles.
     ordinal:
         numeric: ordinal-pattern order ``m`` (2..8); 0 uses bins/thresholds.
+    delay:
+        numeric, ordinal patterns: embedding delay ``tau`` in samples (default 1).
+    ties:
+        numeric, ordinal patterns: equal values ordered by ``time`` (default) or by a
+        seeded ``dither`` (see :mod:`fractalseq.sources.numeric`).
+    seed:
+        numeric, ``ties="dither"``: seed of the dither.
     chunk_size:
         Decompressed bytes read per block; no chunk holds more symbols.
     name:
@@ -183,7 +193,7 @@ def open_source(
     if isinstance(chunk_size, bool) or not isinstance(chunk_size, int) or chunk_size < 1:
         raise ParameterError(f"The chunk size must be a positive whole number of bytes; got {chunk_size!r}.", parameter="chunk_size")
     if fmt == "numeric":
-        numeric.check_parameters(bins, thresholds, ordinal)
+        numeric.check_parameters(bins, thresholds, ordinal, delay, ties)
     a = _resolve(alphabet) if fmt not in ("tokens", "log", "numeric") else None
     allow_binary = a is not None and a.name == "bytes" and fmt in ("auto", "text")
     origin, fmt, block = _prepare(path, fmt, a, allow_binary, _follows(alphabet))
@@ -253,20 +263,25 @@ def open_source(
             begin(report)
             yield from logs.chunks(origin, table, chunk_size, report, policy)
 
-        return SymbolStream(table.alphabet, log_factory, stream_name)
+        # one symbol per line at most: the first pass's line count bounds the stream (tables are sized by it)
+        log_stream = SymbolStream(table.alphabet, log_factory, stream_name, length_hint=table.lines)
+        log_stream.unit = "line"
+        return log_stream
 
     if fmt == "numeric":
-        numeric.check_parameters(bins, thresholds, ordinal)
+        numeric.check_parameters(bins, thresholds, ordinal, delay, ties)
         layout = _numeric_layout(origin, block, column)
         if not ordinal and thresholds is None:
             spool(origin)  # quantile bins need a first pass
-        plan, info = numeric.plan(origin, layout, bins, thresholds, ordinal, learn_block)
+        plan, info = numeric.plan(origin, layout, bins, thresholds, ordinal, learn_block, delay, ties, seed)
 
         def numeric_factory(report: ReadReport) -> Iterator[Chunk]:
             begin(report)
             yield from numeric.symbol_chunks(origin, layout, plan, chunk_size, report)
 
-        return SymbolStream(plan.alphabet, numeric_factory, stream_name)
+        numeric_stream = SymbolStream(plan.alphabet, numeric_factory, stream_name)
+        numeric_stream.unit = "row"
+        return numeric_stream
 
     raise ParameterError(f"Format {fmt!r} is not known; use one of {', '.join(FORMATS)}.")  # pragma: no cover
 
@@ -278,6 +293,28 @@ def _numeric_layout(origin: Origin, block: bytes, column: str | int | None) -> "
         sample = sample[:-1]
     layout = numeric.detect_layout(sample)
     return numeric.choose_column(layout, sample, column, origin.name)
+
+
+def numeric_columns(path: str | os.PathLike, column: str | int | None, fmt: str = "auto") -> list[str] | None:
+    """The columns of a multi-column choice (``"a,b"``, ``"0,2"``, ``"all"``) in a numeric file, else ``None``.
+
+    ``None`` means ``column`` names one column (or none): read the file as one source.
+    Otherwise each returned name (a header name, or a 0-based index as text) is read as its
+    own source with ``column=name`` (see :func:`fractalseq.sources.numeric.several_columns`).
+    """
+    if not isinstance(column, str) or not ("," in column or column.strip().lower() == "all"):
+        return None
+    if str(path) == "-":
+        raise ParameterError("Several columns cannot be read from standard input (it is read once); save it to a file "
+                             "or name one column.", parameter="column")
+    origin, kind, block = _prepare(path, fmt, None, False)
+    if kind != "numeric":
+        raise ParameterError(f"Several columns ({column!r}) apply to numeric tables; {origin.name} reads as {kind}.",
+                             parameter="column")
+    sample = block.decode("utf-8", errors="replace").split("\n")
+    if len(block) >= (1 << 16) and len(sample) > 1:
+        sample = sample[:-1]
+    return numeric.several_columns(numeric.detect_layout(sample), sample, column, origin.name)
 
 
 def shared_quantile_edges(paths: Sequence[str | os.PathLike], bins: int = 4, column: str | int | None = None) -> np.ndarray:

@@ -3,7 +3,8 @@
 Recognised at the start of a line, in this order (each optional):
 
 1. ``<PRI>`` of syslog; ``<PRI>1 TIME HOST APP PROCID MSGID SD`` of RFC 5424
-   (structured data ``[...]`` or ``-`` is dropped with the header).
+   (structured data ``[...]`` or ``-`` is dropped with the header; a quoted
+   parameter value may hold ``]``).
 2. A timestamp: ISO 8601 / RFC 3339 (``2024-01-05 10:11:12``,
    ``2024-01-05T10:11:12.123Z``, ``2024/01/05 10:11:12``), RFC 3164 syslog
    (``Jan  5 10:11:12``, optional weekday and year), ``05-Jan-2024 10:11:12``,
@@ -11,7 +12,9 @@ Recognised at the start of a line, in this order (each optional):
    (``10:11:12.5``), and any of these in square brackets, including the
    common-log date ``[05/Jan/2024:10:11:12 +0000]``.  A common-log date after
    the first three fields (``host ident user [date] ...``) is removed too.
-3. ``host program[pid]:`` after a syslog-style time, or ``program[pid]:``.
+3. ``host program[pid]:`` after a syslog-style time, or ``program[pid]:``, or a
+   bracketed ``[program]`` (with or without ``:``) right after a time; then
+   Solaris' message tag ``[ID <number> <facility>.<level>]``, dropped.
 4. A level word (``INFO``, ``WARN``, ``ERROR``, ``DEBUG``... see ``LEVELS``),
    upper case, or any case inside brackets or followed by ``:``.
 
@@ -56,6 +59,8 @@ _HOST_PROG = re.compile(r"([\w.-]{1,255}) ([\w./@-]{1,64})(?:\[\d{1,10}\])?:(?: 
 _PROG_PID = re.compile(r"([\w./@-]{1,64})\[\d{1,10}\]:(?: +|$)")
 _PROG = re.compile(r"([\w./@-]{1,64})(?:\[\d{1,10}\])?:(?: +|$)")
 _WORD = re.compile(r"\[?([A-Za-z]{3,11})\]?:?(?: +|$)")
+_BRACKET_PROG = re.compile(r"\[([\w./@-]{1,64})\]:?(?: +|$)")
+_SOLARIS_ID = re.compile(r"\[ID \d{1,10} [\w-]{1,32}\.[\w-]{1,32}\](?: +|$)")
 
 
 class Header(NamedTuple):
@@ -113,12 +118,15 @@ def _skip_sd(line: str, pos: int) -> int:
         return min(n, pos + 2)
     while pos < n and line[pos] == "[":
         i = pos + 1
+        quoted = False
         while i < n:
             c = line[i]
             if c == "\\":
                 i += 2
                 continue
-            if c == "]":
+            if c == '"':
+                quoted = not quoted
+            elif c == "]" and not quoted:
                 break
             i += 1
         pos = i + 1
@@ -201,6 +209,14 @@ def split_header(line: str) -> tuple[Header, str]:
             m = (_PROG if syslog_like and not lv else _PROG_PID).match(line, pos)
             if m is not None:
                 program, pos = m.group(1), m.end()
+        if not program and stamped and not lv and line.startswith("[", pos):
+            m = _BRACKET_PROG.match(line, pos)
+            if m is not None and m.group(1).upper() not in LEVELS:
+                program, pos = m.group(1), m.end()
+        if program and line.startswith("[ID ", pos):
+            m = _SOLARIS_ID.match(line, pos)
+            if m is not None:
+                pos = m.end()
         if not lv and pos != at:
             lv, pos = _level(line, pos)
     if not pos:

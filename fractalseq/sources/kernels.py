@@ -1,6 +1,6 @@
 """Numba kernels of the input readers.
 
-Two kernels:
+Three kernels:
 
 :func:`scan_symbols`
     one pass over a block of raw values (bytes, or indices into a small
@@ -13,7 +13,8 @@ Two kernels:
 
 :func:`ordinal_codes`
     Bandt–Pompe ordinal patterns of order ``m`` over a float array, with
-    NaN ending the segment.
+    NaN ending the segment; :func:`ordinal_codes_delay` is its general form
+    (embedding delay, ties ordered by a key).
 
 Lookup-table classes (see :mod:`fractalseq.alphabet`): ``code >= 0`` a symbol,
 ``-1`` unknown, ``-2`` ambiguous, ``-3`` layout (ignored silently).
@@ -346,4 +347,69 @@ def ordinal_codes(x, m, skip, in_seg, codes, starts, fact):  # pragma: no cover 
                 in_seg = 1
             codes[nc] = code
             nc += 1
+    return nc, ns, in_seg, nan_count
+
+
+@njit(cache=True)
+def ordinal_codes_delay(x, key, m, tau, skip, in_seg, codes, starts, fact):  # pragma: no cover - numba
+    """Ordinal-pattern codes of every NaN-free window ``x[t-(m-1)tau], ..., x[t-tau], x[t]`` of ``x``.
+
+    The general form of :func:`ordinal_codes`: an embedding delay ``tau`` and
+    equal values ordered by ``key`` (the smaller key counts as smaller: the
+    position for ties by time, a seeded uniform number for a dither).  A window
+    is emitted at its last value ``t >= skip`` (the first ``skip`` values were
+    carried over from the previous chunk, their windows already emitted); a
+    segment starts at every emitted window whose predecessor (the window ending
+    at ``t - 1``) was not emitted.  ``in_seg`` is 1 when the window ending just
+    before ``x[skip]`` was emitted.  Returns ``(n_codes, n_starts, in_seg, nan_count)``
+    with ``nan_count`` the NaN values at ``t >= skip``.
+    """
+    n = x.shape[0]
+    span = (m - 1) * tau
+    perm = np.empty(m, dtype=np.int64)
+    nc = 0
+    ns = 0
+    nan_count = 0
+    for t in range(skip, n):
+        if math.isnan(x[t]):
+            nan_count += 1
+        ok = t >= span
+        if ok:
+            for j in range(m):
+                if math.isnan(x[t - span + j * tau]):
+                    ok = False
+                    break
+        if not ok:
+            in_seg = 0
+            continue
+        first = t - span
+        for a in range(m):
+            perm[a] = a
+        for a in range(1, m):  # insertion sort of the positions by (value, key)
+            k = perm[a]
+            v = x[first + k * tau]
+            kv = key[first + k * tau]
+            j = a - 1
+            while j >= 0:
+                q = perm[j]
+                vq = x[first + q * tau]
+                if vq > v or (vq == v and key[first + q * tau] > kv):
+                    perm[j + 1] = q
+                    j -= 1
+                else:
+                    break
+            perm[j + 1] = k
+        rank = 0
+        for a in range(m):
+            smaller = 0
+            for j in range(a + 1, m):
+                if perm[j] < perm[a]:
+                    smaller += 1
+            rank += smaller * fact[m - 1 - a]
+        if in_seg == 0:
+            starts[ns] = nc
+            ns += 1
+            in_seg = 1
+        codes[nc] = rank
+        nc += 1
     return nc, ns, in_seg, nan_count

@@ -35,7 +35,7 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError
 from fractalseq.sources.miner import TemplateIndex, TemplateMiner
 from fractalseq.sources.rawio import Origin, line_blocks
-from fractalseq.stream import Chunk, ReadReport, Record
+from fractalseq.stream import Chunk, Positions, ReadReport, Record
 
 _EXAMPLE_CHARS = 500
 #: lines longer than this many characters are cut
@@ -281,7 +281,8 @@ def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadRe
     index = {t: i for i, t in enumerate(table.alphabet.symbols)}
     dtype = table.alphabet.code_dtype
     total = 0
-    for _, templates in _template_blocks(origin, table, block_size):
+    where: list[np.ndarray] = []
+    for numbers, templates in _template_blocks(origin, table, block_size):
         try:
             codes = np.fromiter((index[t] for t in templates), dtype=dtype, count=len(templates))
         except KeyError:
@@ -289,6 +290,7 @@ def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadRe
         if codes.size:
             yield Chunk(codes, np.zeros(1 if total == 0 else 0, dtype=np.int64))
         total += codes.size
+        where.append(np.asarray(numbers, dtype=np.int64))
     if total != sum(e["count"] for e in table.entries):
         raise InputError(f"{origin.name} changed while it was read; read it again.")
     report.symbols = total
@@ -296,9 +298,15 @@ def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadRe
     report.records = [Record(origin.name, 0, total)]
     report.extra["templates"] = table.to_list()
     report.extra["lines"] = table.lines
+    report.positions = _line_positions(where)
     table.stats.fill(report)
     if table.blank:
         report.notes.append(f"{table.blank} blank lines skipped")
+
+
+def _line_positions(parts: list[np.ndarray]) -> Positions:
+    """The 1-based file line number of every symbol (one per kept line)."""
+    return Positions("line", np.concatenate(parts) if parts else np.zeros(0, dtype=np.int64))
 
 
 def _fixed_chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadReport, policy: str) -> Iterator[Chunk]:
@@ -308,6 +316,8 @@ def _fixed_chunks(origin: Origin, table: TemplateTable, block_size: int, report:
     scan = item_scanner(table.alphabet, policy)
     total = segments = 0
     dropped: dict[str, int] = {}
+    where: list[np.ndarray] = []
+    listed = {t: i for i, t in enumerate(table.alphabet.symbols)}
     for numbers, templates in _template_blocks(origin, table, block_size):
         codes, starts, drops, err = scan(templates)
         if err >= 0:
@@ -321,7 +331,10 @@ def _fixed_chunks(origin: Origin, table: TemplateTable, block_size: int, report:
             yield Chunk(codes, starts)
         total += codes.size
         segments += starts.size
+        kept = np.fromiter((t in listed for t in templates), dtype=bool, count=len(templates))
+        where.append(np.asarray(numbers, dtype=np.int64)[kept])
     report.symbols = total
+    report.positions = _line_positions(where)
     report.segments = segments
     report.records = [Record(origin.name, 0, total)]
     for t, n in dropped.items():

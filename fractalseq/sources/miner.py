@@ -13,10 +13,14 @@ Each line goes through these steps:
 3. Grouping, in one streaming pass (the general fixed-depth scheme of
    online log parsers): lines are routed by (pinned tokens, number of free
    tokens, the first ``depth`` free tokens, masked ones as ``<*>``); within a
-   route a line joins the cluster whose template it matches best, when the
-   share of positions where the line's token equals the template's token is
-   at least ``threshold``; else it starts a cluster.  A position whose tokens
-   differ between members becomes ``<*>``.  A message seen before (same
+   route a line joins the cluster whose template it matches best, when more
+   than ``threshold`` of the template's plain words (no digit, no inner
+   punctuation: :func:`_routable`) equal the line's tokens at the same
+   positions; else it starts a cluster.  Masked tokens and other non-words
+   are no evidence either way, so ``job 12 started`` and ``job 12 done``
+   (one word of two agreeing) stay apart while ``upgrade libfoo1:amd64 <*>``
+   and ``upgrade libbar2:amd64 <*>`` join.  A position whose tokens differ
+   between members becomes ``<*>``.  A message seen before (same
    text) joins the cluster it joined then.  A route with many clusters
    compares a line with the ``MAX_SCAN`` most recently matched ones only.
 4. Free-text tails: the lines sharing pinned tokens and routing head (the
@@ -29,11 +33,16 @@ Each line goes through these steps:
    fixed format with a few optional words (``Connection closed by [invalid
    user] <*> port <*>``) has few different words after its head and keeps
    its templates.
-5. A merge pass (:meth:`TemplateMiner.finish`): templates with the same
-   pinned tokens and length are folded when they differ only at positions
-   where one of them has ``<*>`` and share enough constant tokens, repeated
-   until nothing changes (identical templates first; each template is tried
-   against at most ``MAX_SCAN`` kept ones).
+5. A merge pass (:meth:`TemplateMiner.finish`) over templates with the same
+   pinned tokens and length: first, templates seen on one line each that are
+   equal but at one position, where they hold ``VARIABLE_WORDS`` or more
+   different words, fold into one with ``<*>`` there (many different words
+   each seen once mark an open set of values, such as user names; words that
+   recur, or two alternatives, are kept apart); then templates are folded
+   when they differ only at positions where one of them has ``<*>`` and share
+   enough constant tokens, repeated until nothing changes (identical
+   templates first; each template is tried against at most ``MAX_SCAN`` kept
+   ones).
 
 Template ids are given by order of first appearance after the merge pass.
 Everything depends on the sequence of lines only (not on how they were cut
@@ -72,6 +81,8 @@ TAIL = "<...>"
 #: clusters have this many different lengths and this many different words right after the head
 FREE_TAIL_LENGTHS = 4
 FREE_TAIL_WORDS = 12
+#: different words at one position (the rest of the templates equal) that make it a variable in the merge pass
+VARIABLE_WORDS = 3
 #: clusters a line is compared with in one route (the most recently matched), templates one is tried against in the merge pass
 MAX_SCAN = 64
 _ROUTE_STRIP = "[]()<>{}:,;.!?\"'"
@@ -95,6 +106,8 @@ class MinedTemplate:
     count: int = 0
     first: int = 0  # order of the first line (0-based index among the mined lines)
     fields: dict[str, dict[str, int]] = field(default_factory=dict)
+    #: how many of the tokens are plain words (the evidence a line is compared on)
+    words: int = 0
 
     @property
     def text(self) -> str:
@@ -134,9 +147,11 @@ def _wild(tpl: list[str], free: list[str]) -> int:
 class _Family:
     """Lines sharing pinned tokens and routing head: their clusters, lengths and first words after the head."""
 
-    __slots__ = ("members", "lengths", "words", "tail")
+    __slots__ = ("members", "lengths", "words", "tail", "head")
 
-    def __init__(self) -> None:
+    def __init__(self, head: list[str]) -> None:
+        #: the routing head with the family's first line's tokens (``<*>`` where it routes as a wildcard)
+        self.head = head
         self.members: list[int] = []
         self.lengths: set[int] = set()
         self.words: set[str] = set()
@@ -150,7 +165,8 @@ class TemplateMiner:
     Parameters
     ----------
     threshold:
-        Least share of equal tokens for a line to join a cluster (0 < t <= 1).
+        A line joins a cluster when more than this share of the template's
+        plain words equal the line's tokens, or all of them do (0 < t <= 1).
     depth:
         Number of leading free tokens in the routing key.  A leading token
         that is not a plain word (it holds a digit, ``:``, ``.``, ``/``...)
@@ -204,6 +220,20 @@ class TemplateMiner:
         add = self.add
         return [add(ln) for ln in lines]
 
+    def _words(self, toks: Sequence[str]) -> list[bool]:
+        """Which tokens are plain words (:func:`_routable`), remembered per token."""
+        memo = self._route_word
+        out = []
+        for tok in toks:
+            ok = memo.get(tok)
+            if ok is None:
+                ok = _routable(tok)
+                if len(memo) >= _MSG_CACHE:
+                    memo.clear()
+                memo[tok] = ok
+            out.append(ok)
+        return out
+
     def _head(self, pinned: tuple[str, ...], n: int, free: list[str]) -> tuple[str, ...]:
         """Routing tokens of a line: its first ``depth`` free tokens, a token that is not a plain word as ``<*>``.
 
@@ -249,7 +279,7 @@ class TemplateMiner:
         fkey = (pinned, head)
         fam = self._families.get(fkey)
         if fam is None:
-            fam = self._families[fkey] = _Family()
+            fam = self._families[fkey] = _Family([a if a == WILDCARD else b for a, b in zip(head, free)])
             if any(t != WILDCARD for t in head):
                 fam.tail = -1  # a constant word in the head: the family may get a free-text tail
         elif fam.tail >= 0:
@@ -264,7 +294,7 @@ class TemplateMiner:
                 fam.lengths.add(n)
                 grew = True
             if grew and len(fam.lengths) >= FREE_TAIL_LENGTHS and len(fam.words) >= FREE_TAIL_WORDS:
-                return self._collapse(fam, pinned, head)
+                return self._collapse(fam, pinned)
         route = (fkey, n)
         members = self._routes.get(route)
         if members is None:
@@ -274,9 +304,17 @@ class TemplateMiner:
         best = -1
         best_sim = -1
         best_wild = -1
+        # only the plain words of the line (no digit, no inner punctuation) are evidence of agreement
+        words = self._words(free)
+        probe = [t if w else None for t, w in zip(free, words)]
+        limit = self.threshold
         for cid in (islice(reversed(members), MAX_SCAN) if crowded else members):
-            tpl = clusters[cid].tokens
-            same = sum(map(eq, tpl, free))
+            c = clusters[cid]
+            tpl = c.tokens
+            same = sum(map(eq, tpl, probe))
+            const = c.words
+            if const and same <= limit * const and same < const:  # all words agreeing always qualifies
+                continue
             if same > best_sim:
                 best, best_sim, best_wild = cid, same, -1
             elif same == best_sim:  # tie: the template with more wildcards where the line differs wins
@@ -285,24 +323,25 @@ class TemplateMiner:
                 wild = _wild(tpl, free)
                 if wild > best_wild:
                     best, best_wild = cid, wild
-        if best >= 0 and (n == 0 or best_sim >= self.threshold * n):
-            if best_sim < n:  # positions where the line differs become (or stay) wildcards
+        if best >= 0:
+            if clusters[best].tokens != free:  # positions where the line differs become (or stay) wildcards
                 c = clusters[best]
                 c.tokens = [a if a == b else WILDCARD for a, b in zip(c.tokens, free)]
+                c.words = sum(self._words(c.tokens))
             if crowded:  # most recently matched clusters are scanned first
                 del members[best]
                 members[best] = None
             return best
-        clusters.append(MinedTemplate(list(free), pinned, 0, self._lines))
+        clusters.append(MinedTemplate(list(free), pinned, 0, self._lines, words=sum(words)))
         cid = len(clusters) - 1
         members[cid] = None
         fam.members.append(cid)
         return cid
 
-    def _collapse(self, fam: _Family, pinned: tuple[str, ...], head: tuple[str, ...]) -> int:
+    def _collapse(self, fam: _Family, pinned: tuple[str, ...]) -> int:
         """The family's tail is free text: one template, the head then ``<...>``, takes all its lines."""
         first = self.clusters[fam.members[0]].first if fam.members else self._lines
-        self.clusters.append(MinedTemplate(list(head) + [TAIL], pinned, 0, first))
+        self.clusters.append(MinedTemplate(list(fam.head) + [TAIL], pinned, 0, first))
         tail = fam.tail = len(self.clusters) - 1
         for cid in fam.members:
             self._absorbed[cid] = tail
@@ -327,6 +366,42 @@ class TemplateMiner:
         need = max(1, math.ceil(self.threshold * max(const_a, const_b)))
         return shared >= need or (const_a == 0 and const_b == 0)
 
+    def _variable_positions(self, reps: list[tuple[int, list[str]]], parent: list[int]) -> list[tuple[int, list[str]]]:
+        """Fold templates seen on one line each that are equal but at one position, where they hold
+        at least ``VARIABLE_WORDS`` different words.
+
+        Many different words each seen once at one place are the mark of an
+        open set of values (a user name, a host name): ``user alice logged in``,
+        ``user bob logged in``, ``user carol logged in`` become ``user <*>
+        logged in`` (and the ordinary fold then takes ``user root logged in``
+        however often root recurs), while words that recur (``status
+        installed`` / ``status unpacked``), or only two alternatives
+        (``job <*> started`` / ``job <*> done``), keep their templates.
+        """
+        once = [k for k, (cid, _) in enumerate(reps) if self._counts[cid] == 1]
+        if len(once) < VARIABLE_WORDS:
+            return reps
+        n = len(reps[0][1])
+        alive = dict.fromkeys(once)
+        gone: set[int] = set()
+        toks = [list(t) for _, t in reps]
+        for p in range(n):
+            buckets: dict[tuple[str, ...], list[int]] = {}
+            for k in alive:
+                t = toks[k]
+                if t[p] == WILDCARD:
+                    continue
+                buckets.setdefault((*t[:p], *t[p + 1 :]), []).append(k)
+            for ks in buckets.values():
+                if len(ks) >= VARIABLE_WORDS:
+                    head = ks[0]
+                    toks[head][p] = WILDCARD
+                    for k in ks[1:]:
+                        parent[reps[k][0]] = reps[head][0]
+                        del alive[k]
+                        gone.add(k)
+        return [(cid, toks[k]) for k, (cid, _) in enumerate(reps) if k not in gone]
+
     def _fold(self, members: list[int], parent: list[int]) -> None:
         """Fold the templates of one (pinned, length) group; each is tried against at most ``MAX_SCAN`` kept ones."""
         reps: list[tuple[int, list[str]]] = []
@@ -337,8 +412,11 @@ class TemplateMiner:
             if rid is None:
                 exact[key] = cid
                 reps.append((cid, list(key)))
+                self._counts[cid] = self.clusters[cid].count
             else:
                 parent[cid] = rid
+                self._counts[rid] += self.clusters[cid].count
+        reps = self._variable_positions(reps, parent)
         changed = True
         while changed and len(reps) > 1:
             changed = False
@@ -364,6 +442,7 @@ class TemplateMiner:
         After this, :meth:`final_id` maps a cluster number to its template id.
         """
         parent = list(range(len(self.clusters)))
+        self._counts: dict[int, int] = {}
         for cid, tail in self._absorbed.items():
             parent[cid] = tail
         groups: dict[tuple, list[int]] = {}

@@ -8,11 +8,12 @@ line, else runs of whitespace.  The first non-blank, non-comment line is a
 header when one of its fields is neither a number nor a missing mark.  Lines
 starting with ``#`` are skipped, and so are blank lines before the first
 data line.  The default column is the first whose sampled values are mostly
-(at least half) numbers and that is not a time column, when another such
-column exists: a time column is one named ``time``, ``date``, ``datetime``,
-``timestamp``, ``year``, ``t`` or ``index`` (any case), or one whose sampled
-values are whole numbers increasing strictly (years, ``YYYYMMDD`` dates,
-sample numbers).  It is skipped, not used; its name is reported as
+(at least half) numbers and that is neither a time column nor a calendar
+part, when another such column exists: a time column is one named ``time``,
+``date``, ``datetime``, ``timestamp``, ``year``, ``t`` or ``index`` (any case),
+or one whose sampled values are whole numbers increasing strictly (years,
+``YYYYMMDD`` dates, sample numbers); a calendar part is one named ``quarter``,
+``month``, ``week``, ``day``, ``weekday``, ``doy``, ``hour``, ``minute`` or ``second``.  It is skipped, not used; its name is reported as
 ``time_column``.
 
 Time column and gaps
@@ -29,6 +30,15 @@ missing values).  Irregular times are not used.  Later blank lines, missing mark
 infinite values and rows too short to hold the column are *missing*: they end
 the segment.  Any other non-number is an :class:`InputError` naming the line.
 Quoted fields may not span lines.
+
+Several columns
+---------------
+``--column a,b`` (names or 0-based indices separated by commas) or ``--column all``
+asks for one source per column (:func:`several_columns` lists them; the jobs
+read each one as its own source).  ``all`` is every column whose sampled values
+are mostly numbers, except time columns and calendar parts (named ``quarter``,
+``month``, ``week``, ``day``, ``weekday``, ``doy``, ``hour``, ``minute``, ``second``).  A header name that contains a comma
+(or is ``all``) is read as that one column.
 
 Symbolization
 -------------
@@ -50,11 +60,19 @@ For both, the symbol of ``x`` is the number of edges ``<= x``
     order of appearance (a stable sort: the earlier value counts as smaller).
     The alphabet is all ``m!`` permutations in lexicographic order, written as
     digit strings (``"012"`` is the identity, code 0).  A NaN-free run of
-    length ``L`` gives ``L - m + 1`` symbols in one segment.  The reader uses
-    delay 1 (consecutive values) and ties by time; an embedding delay
-    ``tau`` and ties broken by a seeded random dither are available on
-    arrays through :func:`fractalseq.entropy._ordinal.ordinal_patterns`,
-    which gives the same codes for delay 1 and ties by time.
+    length ``L`` gives ``L - m + 1`` symbols in one segment.
+``delay`` (embedding delay ``tau``, default 1)
+    The window is ``x[t], x[t+tau], ..., x[t+(m-1)tau]``; a window holding a
+    missing value is skipped, and a segment starts at every window whose
+    predecessor (the window one sample earlier) was skipped.
+``ties`` (``time``, default, or ``dither``)
+    ``time``: equal values are ordered by time (the rule above).  ``dither``:
+    by an independent uniform key per value (missing values and time gaps
+    included), drawn in file order from ``numpy.random.default_rng(seed)``
+    (:mod:`fractalseq.sources.ordinal_stream`),
+    as if an infinitesimal random dither were added.  With delay and ties the
+    codes equal those of :func:`fractalseq.entropy._ordinal.ordinal_patterns`
+    on the column's values (NaN for missing values and gaps) with the same seed.
 """
 
 from __future__ import annotations
@@ -70,13 +88,20 @@ import numpy as np
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.sources import kernels as K
+from fractalseq.sources import ordinal_stream as OS
 from fractalseq.sources.rawio import Origin, line_blocks
-from fractalseq.stream import Chunk, ReadReport, Record
+from fractalseq.stream import Chunk, Positions, ReadReport, Record
 
 MISSING = frozenset({"", "na", "nan", "null", "none", "n/a", "?", "-"})
 #: Header names of columns that hold the time of a row rather than a measurement.
 TIME_NAMES = frozenset({"time", "date", "datetime", "timestamp", "year", "t", "index"})
+#: Header names of calendar parts (a quarter, a month ...): left out of ``--column all`` with the time columns.
+CALENDAR_NAMES = frozenset({"quarter", "month", "week", "day", "weekday", "doy", "hour", "minute", "second"})
 MAX_ORDER = 8
+#: Largest embedding delay of ordinal patterns (samples).
+MAX_DELAY = 100_000
+#: How equal values are ordered inside an ordinal pattern.
+TIE_RULES = ("time", "dither")
 _DIGITS = "0123456789abcdefghijklmnopqrstuvwxyz"
 
 
@@ -248,6 +273,47 @@ def _find_time_column(layout: Layout, rows: list[list[str]], width: int) -> None
             return
 
 
+def several_columns(layout: Layout, sample: Sequence[str], column: str | int | None, name: str) -> list[str] | None:
+    """The columns a multi-column choice names (``"a,b"``, ``"0,2"`` or ``"all"``), else ``None``.
+
+    Returns header names (0-based indices as text when there is no header), in file order
+    for ``all`` and in the order given otherwise, duplicates removed.  ``None`` when
+    ``column`` names one column (a header name is taken whole, commas and all).
+    """
+    if not isinstance(column, str):
+        return None
+    text = column.strip()
+    if layout.header and (text in layout.header or text.lower() in [h.lower() for h in layout.header]):
+        return None
+    data = _data_lines(sample)
+    rows = split_rows(data[1:] if layout.header else data, layout.delimiter)
+    width = max([len(r) for r in rows] + [len(layout.header or [])] + [1])
+    heads = layout.header or []
+
+    def label(c: int) -> str:
+        return heads[c] if c < len(heads) and heads[c] else str(c)
+
+    if text.lower() == "all":
+        found = _numeric_columns(rows, width, share=0.5)
+        measured = [c for c in found if not _time_like(heads[c] if c < len(heads) else "", rows, c)
+                    and not (c < len(heads) and heads[c].strip().lower() in CALENDAR_NAMES)]
+        cols = measured or found
+        if not cols:
+            raise InputError(f"{name} has no column of numbers; check the file or name the columns to read.")
+        return [label(c) for c in cols]
+    if "," not in text:
+        return None
+    out: list[str] = []
+    for part in (p.strip() for p in text.split(",")):
+        if not part:
+            raise ParameterError(f"The column list {column!r} has an empty entry; separate names or indices by single commas.",
+                                 parameter="column")
+        one = choose_column(Layout(layout.delimiter, layout.header), sample, part, name)
+        if label(one.column) not in out:
+            out.append(label(one.column))
+    return out
+
+
 def choose_column(layout: Layout, sample: Sequence[str], column: str | int | None, name: str) -> Layout:
     """Fill ``layout.column`` from a name, an index, or the first numeric column."""
     data = _data_lines(sample)
@@ -262,8 +328,12 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
         else:
             lowered = [n.lower() for n in names]
             if column.lower() not in lowered:
+                several = "," in column or column.strip().lower() == "all"
                 raise ParameterError(
-                    f"{name} has no column {column!r}; its columns are {', '.join(repr(n) for n in names[:12])}.",
+                    f"{name} has no column {column!r}; its columns are {', '.join(repr(n) for n in names[:12])}"
+                    + (f" and {len(names) - 12} more" if len(names) > 12 else "")
+                    + ("; several columns (a,b or all) are read as separate sources by profile, survey and drift, "
+                       "other commands read one." if several else "."),
                     parameter="column",
                 )
             idx = lowered.index(column.lower())
@@ -277,7 +347,8 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
             raise InputError(f"{name} has no column of numbers; check the file or name the column to read.")
         heads = layout.header or []
         timed = [c for c in found if _time_like(heads[c] if c < len(heads) else "", rows, c)]
-        rest = [c for c in found if c not in timed]
+        calendar = [c for c in found if c < len(heads) and heads[c].strip().lower() in CALENDAR_NAMES]
+        rest = [c for c in found if c not in timed and c not in calendar]
         idx = rest[0] if rest else found[0]
         if rest and timed and timed[0] < idx:
             layout.time_column = heads[timed[0]] if timed[0] < len(heads) else str(timed[0])
@@ -288,7 +359,8 @@ def choose_column(layout: Layout, sample: Sequence[str], column: str | int | Non
 
 
 def parse_values(
-    lines: list[str], first_line: int, layout: Layout, name: str, started: bool, clock: dict | None = None
+    lines: list[str], first_line: int, layout: Layout, name: str, started: bool, clock: dict | None = None,
+    where: list | None = None,
 ) -> tuple[np.ndarray, bool]:
     """Values of the chosen column in ``lines`` (NaN for missing).
 
@@ -298,7 +370,9 @@ def parse_values(
     column (``layout.time_step > 0``) and a ``clock`` (``{"last": None,
     "gaps": 0}``, carried across blocks), a NaN is inserted before each row
     that follows a gap, and ``clock["gaps"]`` counts them.  Returns the values
-    and the updated ``started``.
+    and the updated ``started``.  With a list ``where``, appends ``(line numbers, times)``
+    aligned with the values: the 1-based file line of each value (-1 for an inserted gap)
+    and the time-column text of its row (``None`` without a time column).
     """
     keep: list[tuple[int, str]] = []
     for i, ln in enumerate(lines):
@@ -314,6 +388,10 @@ def parse_values(
     if not keep:
         return np.zeros(0, dtype=np.float64), started
     rows = split_rows([ln for _, ln in keep], layout.delimiter)
+    numbers = first_line + np.fromiter((i for i, _ in keep), dtype=np.int64, count=len(keep)) if where is not None else None
+    times = None
+    if where is not None and layout.time_index >= 0:
+        times = np.array([r[layout.time_index].strip() if len(r) > layout.time_index else "" for r in rows], dtype=object)
     col = layout.column
     fields = np.array([r[col] if len(r) > col else "" for r in rows], dtype=str)
     low = np.char.lower(np.char.strip(fields))
@@ -345,18 +423,27 @@ def parse_values(
         if gap.size:
             clock["gaps"] += int(gap.size)
             out = np.insert(out, gap, np.nan)
+            if numbers is not None:
+                numbers = np.insert(numbers, gap, -1)
+                times = None if times is None else np.insert(times, gap, "")
+    if where is not None:
+        where.append((numbers, times))
     return out, started
 
 
-def value_blocks(origin: Origin, layout: Layout, block_size: int, clock: dict | None = None) -> Iterator[np.ndarray]:
-    """The column's values block by block (NaN = missing, or a gap in the time column when ``clock`` is given)."""
+def value_blocks(
+    origin: Origin, layout: Layout, block_size: int, clock: dict | None = None, where: list | None = None
+) -> Iterator[np.ndarray]:
+    """The column's values block by block (NaN = missing, or a gap in the time column when ``clock`` is given).
+
+    ``where`` collects each block's line numbers and times (see :func:`parse_values`)."""
     started = False
     for first_line, block in line_blocks(origin, block_size):
         text = block.decode("utf-8", errors="replace")
         lines = text.split("\n")
         if lines and lines[-1] == "":
             lines.pop()
-        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started, clock)
+        vals, started = parse_values([ln.rstrip("\r") for ln in lines], first_line, layout, origin.name, started, clock, where)
         yield vals
 
 
@@ -389,10 +476,24 @@ class Plan:
     alphabet: Alphabet
     edges: np.ndarray = field(default_factory=lambda: np.zeros(0))
     order: int = 0
+    delay: int = 1
+    ties: str = "time"
+    seed: int = 0
 
 
-def check_parameters(bins: int, thresholds: list[float] | None, ordinal: int) -> None:
+def check_parameters(
+    bins: int, thresholds: list[float] | None, ordinal: int, delay: int = 1, ties: str = "time"
+) -> None:
     """Raise :class:`ParameterError` for impossible symbolization parameters."""
+    if isinstance(delay, bool) or not isinstance(delay, (int, np.integer)) or not 1 <= int(delay) <= MAX_DELAY:
+        raise ParameterError(f"The embedding delay must be a whole number of samples from 1 to {MAX_DELAY}; got {delay!r}.",
+                             parameter="delay")
+    if ties not in TIE_RULES:
+        raise ParameterError(f"Ties are ordered by 'time' or by a seeded 'dither'; got {ties!r}.", parameter="ties")
+    if not ordinal and (int(delay) != 1 or ties != "time"):
+        which = "delay" if int(delay) != 1 else "ties"
+        raise ParameterError(f"The {'embedding delay' if which == 'delay' else 'tie rule'} applies to ordinal patterns only; "
+                             "give an ordinal order as well.", parameter=which)
     if ordinal:
         if thresholds:
             raise ParameterError("Give either thresholds or an ordinal order, not both.", parameter="ordinal")
@@ -409,11 +510,12 @@ def check_parameters(bins: int, thresholds: list[float] | None, ordinal: int) ->
 
 
 def plan(
-    origin: Origin, layout: Layout, bins: int, thresholds: list[float] | None, ordinal: int, block_size: int
+    origin: Origin, layout: Layout, bins: int, thresholds: list[float] | None, ordinal: int, block_size: int,
+    delay: int = 1, ties: str = "time", seed: int = 0,
 ) -> tuple[Plan, dict]:
     """Decide the symbolization (first pass over the column for quantile edges)."""
     if ordinal:
-        return Plan("ordinal", ordinal_alphabet(ordinal), order=ordinal), {}
+        return Plan("ordinal", ordinal_alphabet(ordinal), order=ordinal, delay=int(delay), ties=ties, seed=int(seed)), {}
     if thresholds is not None:
         edges = np.asarray(thresholds, dtype=np.float64)
         return Plan("thresholds", Alphabet(f"threshold{len(edges) + 1}", bin_symbols(len(edges) + 1)), edges), {}
@@ -431,34 +533,43 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
     dtype = p.alphabet.code_dtype
     total = segments = missing = values = 0
     clock: dict = {"last": None, "gaps": 0}
+    where: list = []
+    valid_parts: list[np.ndarray] = []
     if p.method == "ordinal":
         m = p.order
         fact = np.array([math.factorial(i) for i in range(m + 1)], dtype=np.int64)
         carry = np.zeros(0)
         in_seg = 0
-        for v in value_blocks(origin, layout, block_size, clock):
+        general = p.delay != 1 or p.ties != "time"
+        key = OS.Keys(p.ties, p.seed)
+        for v in value_blocks(origin, layout, block_size, clock, where):
             if v.size == 0:
                 continue
+            valid_parts.append(np.isfinite(v))
             values += v.size
             x = np.concatenate([carry, v]) if carry.size else v
             codes = np.empty(x.size, dtype=dtype)
             starts = np.empty(x.size + 1, dtype=np.int64)
-            nc, ns, in_seg, nan = K.ordinal_codes(x, m, carry.size, in_seg, codes, starts, fact)
+            if general:
+                nc, ns, in_seg, nan, carry = OS.general_ordinal(x, v.size, carry.size, key, m, p.delay, in_seg, codes, starts, fact)
+            else:
+                nc, ns, in_seg, nan = K.ordinal_codes(x, m, carry.size, in_seg, codes, starts, fact)
+                tail = x[-(m - 1):] if m > 1 else x[:0]
+                cut = np.flatnonzero(np.isnan(tail))
+                carry = tail[cut[-1] + 1:] if cut.size else tail.copy()
             missing += nan
-            tail = x[-(m - 1):] if m > 1 else x[:0]
-            cut = np.flatnonzero(np.isnan(tail))
-            carry = tail[cut[-1] + 1:] if cut.size else tail.copy()
             if nc:
                 yield Chunk(codes[:nc], starts[:ns].copy())
             total += nc
             segments += ns
     else:
         prev_valid = False
-        for v in value_blocks(origin, layout, block_size, clock):
+        for v in value_blocks(origin, layout, block_size, clock, where):
             if v.size == 0:
                 continue
             values += v.size
             valid = np.isfinite(v)
+            valid_parts.append(valid)
             missing += int((~valid).sum())
             codes = np.searchsorted(p.edges, v[valid], side="right").astype(dtype)
             before = np.concatenate([[prev_valid], valid[:-1]])
@@ -482,6 +593,9 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
             f"{' ' + layout.time_unit if layout.time_unit else ''}) end a segment"
         )
     report.records = [Record(origin.name, 0, int(total))]
+    report.positions = _row_positions(
+        where, valid_parts, p.order if p.method == "ordinal" else 1, p.delay if p.method == "ordinal" else 1, layout, int(total)
+    )
     info = {
         "column": layout.column_name,
         "column_index": layout.column,
@@ -495,8 +609,13 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
     }
     if p.method == "ordinal":
         info["order"] = p.order
-        info["delay"] = 1
-        info["tie_rule"] = "stable: equal values ordered by appearance"
+        info["delay"] = p.delay
+        info["ties"] = p.ties
+        if p.ties == "dither":
+            info["tie_rule"] = f"dither: equal values ordered by a uniform key per value, seed {p.seed}"
+            info["seed"] = p.seed
+        else:
+            info["tie_rule"] = "stable: equal values ordered by appearance"
     else:
         info["edges"] = [float(e) for e in p.edges]
         if np.any(np.diff(p.edges) == 0):
@@ -506,6 +625,29 @@ def symbol_chunks(origin: Origin, layout: Layout, p: Plan, block_size: int, repo
         if p.method == "ordinal" and values:
             raise InputError(
                 f"{origin.name} has no run of {p.order} consecutive numbers in column {layout.column_name!r}; "
-                "use a smaller ordinal order or fill the gaps."
+                "use a smaller ordinal order or fill the gaps." if p.delay == 1 else
+                f"{origin.name} has no complete window of {p.order} numbers {p.delay} samples apart in column "
+                f"{layout.column_name!r}; use a smaller ordinal order or delay, or fill the gaps."
             )
         raise InputError(f"{origin.name} has no numbers in column {layout.column_name!r}; check the file or the column.")
+
+
+def _row_positions(
+    where: list, valid_parts: list[np.ndarray], order: int, delay: int, layout: Layout, total: int
+) -> Positions | None:
+    """The file line (and time text) of each symbol: the row of its value, or of the last value of its pattern."""
+    parts = [w for w in where if w[0] is not None]
+    if not parts or not valid_parts:
+        return None
+    numbers = np.concatenate([w[0] for w in parts])
+    valid = np.concatenate(valid_parts)
+    if numbers.size != valid.size:
+        return None  # pragma: no cover - blocks with values always carry their lines
+    # a pattern ends at a value whose order - 1 predecessors, delay apart, are present
+    keep = OS.pattern_ends(valid, order, delay) if order > 1 else valid
+    if int(keep.sum()) != total:
+        return None  # pragma: no cover - the kernels and this rule agree
+    times = None
+    if layout.time_index >= 0 and all(w[1] is not None for w in parts):
+        times = tuple(str(t) for t in np.concatenate([w[1] for w in parts])[keep])
+    return Positions("row", numbers[keep], layout.time_column or None, times)

@@ -4,8 +4,9 @@ A message becomes two token lists:
 
 ``pinned``
     Tokens that must be equal for two lines to share a template (they are part
-    of the grouping key and never become wildcards): for a JSON object or a
-    logfmt line, one token per key, ``key=<*>`` for a value, or ``key=value``
+    of the grouping key and never become wildcards): for a JSON object (keys
+    in sorted order: members of an object are unordered) or a logfmt line
+    (keys in their order), one token per key, ``key=<*>`` for a value, or ``key=value``
     when the key names an event or a level (``EVENT_KEYS``) and the value is a
     short identifier-like string (``"event":"login_failed"``, ``level=error``).
 ``free``
@@ -15,7 +16,13 @@ A message becomes two token lists:
 
 Plain text: a double-quoted span holding three or more spaces (a user agent,
 a free-text query) becomes the single token ``"<*>"``; short quoted spans
-(``"GET /x HTTP/1.1"``) are split into words like the rest of the line.
+(``"GET /x HTTP/1.1"``) are split into words like the rest of the line.  An
+angle-bracketed phrase of two to four words (``<invalid username>``, a
+placeholder printed instead of a value) becomes ``<*>``.
+
+A message of words followed by a JSON object (``# expect: {"time": ...}``,
+``request done {"ms": 12}``) is structured: its words (masked) and the object's
+keys are pinned, as for a JSON line.
 """
 
 from __future__ import annotations
@@ -82,6 +89,35 @@ def _collapse_quotes(msg: str) -> str:
     return "".join(out)
 
 
+def _collapse_angles(msg: str) -> str:
+    """Replace ``<a placeholder>`` (angle brackets around 2-4 words, nothing nested) by ``<*>``.
+
+    Each span is found by a forward search for ``>`` and a backward search
+    for the last ``<`` before it, so every character is looked at a bounded
+    number of times (linear time).
+    """
+    out = []
+    pos = 0
+    while True:
+        i = msg.find("<", pos)
+        if i < 0:
+            break
+        j = msg.find(">", i + 1)
+        if j < 0:
+            break
+        i = msg.rfind("<", i, j)
+        if 1 <= msg.count(" ", i, j) <= 3 and msg[i + 1] != " " and msg[j - 1] != " ":
+            out.append(msg[pos:i])
+            out.append(WILDCARD)
+        else:
+            out.append(msg[pos : j + 1])
+        pos = j + 1
+    if not out:
+        return msg
+    out.append(msg[pos:])
+    return "".join(out)
+
+
 def _logfmt(msg: str) -> list[tuple[str, str]] | None:
     """``key=value`` pairs of a logfmt message, or ``None`` when it is not one (quoted values may hold spaces)."""
     pairs = []
@@ -129,29 +165,35 @@ class Tokenizer:
     def _text(self, msg: str) -> list[str]:
         if '"' in msg:
             msg = _collapse_quotes(msg)
+        if "<" in msg:
+            msg = _collapse_angles(msg)
         toks = self.mask(msg.split())
         return toks
 
     def _structured(self, msg: str) -> tuple[tuple[str, ...], list[str]] | None:
         c = msg[0]
-        if c == "{" and msg[-1] == "}":
+        if msg[-1] == "}" and c != "{":
+            res = self._prefixed_json(msg)
+            if res is not None:
+                return res
+        elif c == "{" and msg[-1] == "}":
             try:
                 obj = json.loads(msg)
-            except ValueError:
+            except (ValueError, RecursionError):
                 return None
             if not isinstance(obj, dict):
                 return None
-            pinned = ["{"]
+            members: list[tuple[str, str]] = []
             free: list[str] = []
             for k, v in obj.items():
                 key = _key(str(k))
                 if key.lower() in MESSAGE_KEYS and isinstance(v, str) and not free:
-                    pinned.append(key + ":")
+                    members.append((key, key + ":"))
                     free = self._text(v)
                 else:
-                    pinned.append(_value_token(key, v))
-            pinned.append("}")
-            return tuple(pinned), free
+                    members.append((key, _value_token(key, v)))
+            members.sort()  # an object is an unordered set of members (RFC 8259): key order does not split templates
+            return ("{", *(t for _, t in members), "}"), free
         if "=" in msg and _LOGFMT_START.match(msg):
             pairs = _logfmt(msg)
             if pairs is None:
@@ -166,6 +208,17 @@ class Tokenizer:
                     pinned.append(_value_token(k, v))
             return tuple(pinned), free
         return None
+
+    def _prefixed_json(self, msg: str) -> tuple[tuple[str, ...], list[str]] | None:
+        """``words {json object}``: the words (masked) then the object's structure are pinned, its message is free."""
+        i = msg.find(" {")
+        if i < 0:
+            return None
+        res = self._structured(msg[i + 1 :])
+        if res is None or res[0][:1] != ("{",):
+            return None
+        pinned, free = res
+        return tuple(self._text(msg[:i])) + pinned, free
 
     def __call__(self, msg: str) -> tuple[tuple[str, ...], list[str]]:
         """Pinned and free tokens of a message (see the module documentation)."""

@@ -15,9 +15,9 @@ import numpy as np
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.runner import Engine, OnDone, SerialEngine
+from fractalseq.runner import Engine, OnDone, SerialEngine, pause_point
 from fractalseq.stream import Chunk, SymbolArray, SymbolStream
-from fractalseq.words._counts import WordCounts, check_depth, count_words
+from fractalseq.words._counts import DENSE_MAX_BITS, WordCounts, check_depth, count_words
 
 #: Default piece size for splitting one large source (symbols).
 DEFAULT_PIECE = 1 << 24
@@ -100,6 +100,10 @@ def iter_pieces(source: SymbolStream | SymbolArray, chunk: int, overlap: int) ->
         yield Piece(alphabet, buf.copy(), rel[(rel >= 0) & (rel < buf.size)], int(buf.size), offset, True, index)
 
 
+#: Pieces counted in this process (the pause point ``count.piece:N`` counts them).
+_PIECES_RUN = [0]
+
+
 def count_piece(task: tuple[Piece, int]) -> WordCounts:
     """Counts of the words (lengths ``1..depth``) that *start* in a piece's core.
 
@@ -112,6 +116,8 @@ def count_piece(task: tuple[Piece, int]) -> WordCounts:
     and they are subtracted.
     """
     piece, depth = task
+    _PIECES_RUN[0] += 1
+    pause_point("count.piece", _PIECES_RUN[0])  # test hook: a worker stopped inside its n-th piece
     alphabet = piece.alphabet
     whole = count_words(SymbolArray(alphabet, piece.codes, piece.starts, "piece"), depth)
     tl, ta, tc = whole.tail_len, whole.tail_addr, whole.tail_count
@@ -146,6 +152,26 @@ def _add_counts(a: WordCounts, b: WordCounts) -> WordCounts:
     return a + b
 
 
+def settle_storage(wc: WordCounts) -> WordCounts:
+    """The same counts in the table kind a one-pass count picks (:class:`~fractalseq.words._counts.WordCounter`).
+
+    A one-pass count keeps a dense table when ``b N <= 24`` and more than an
+    eighth of its cells are occupied, else sorted words; sums of pieces may
+    come out in the other kind, which would change ``storage`` in a document.
+    """
+    cells = 1 << (wc.bits * wc.depth) if wc.bits * wc.depth <= DENSE_MAX_BITS else 0
+    words, counts = wc.leaf()
+    want_dense = bool(cells) and int(np.count_nonzero(counts)) > cells // 8
+    if want_dense == (wc.dense is not None):
+        return wc
+    if want_dense:
+        dense = np.zeros(cells, dtype=np.int64)
+        dense[words.astype(np.int64)] = counts
+        return WordCounts(wc.alphabet, wc.depth, wc.length, wc.segments, dense, None, None, wc.tail_len, wc.tail_addr, wc.tail_count)
+    keep = counts > 0
+    return WordCounts(wc.alphabet, wc.depth, wc.length, wc.segments, None, words[keep], counts[keep], wc.tail_len, wc.tail_addr, wc.tail_count)
+
+
 def count_words_split(
     source: SymbolStream | SymbolArray,
     depth: int,
@@ -175,6 +201,6 @@ def count_words_split(
     engine = engine or SerialEngine()
     tasks = ((p, depth) for p in iter_pieces(source, chunk, depth - 1))
     try:
-        return engine.map_reduce(count_piece, tasks, _add_counts, on_done)
+        return settle_storage(engine.map_reduce(count_piece, tasks, _add_counts, on_done))
     except InputError:
         raise InputError(f"{source.name} holds no symbols to count; give a file with data.") from None

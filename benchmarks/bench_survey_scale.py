@@ -1,0 +1,214 @@
+"""Scale: one big source counted across workers, and surveys of many small sources.
+
+All data are invented here (simulated Markov chains with seeded transition matrices), so the
+benchmark needs no download.  Every command runs as a whole process through the command line
+(``python -m fractalseq``), as a user would run it; speed is a ratio to a reference run of the
+same script (serial), never an absolute target in a test.
+
+Sections (``--only count,survey,many``):
+
+count
+    ``fractalseq count --depth D`` of one simulated FASTA of ``--mbase`` million symbols, serially
+    and with ``--workers 2`` (pieces of 2^24 symbols overlapping by D-1, counted on the workers
+    and added up).  Reports both times, the speed-up (target >= 1.6x on two idle cores) and
+    whether the two JSON documents are byte-identical.
+survey
+    ``fractalseq survey`` of 400 simulated sources of 20 kb with ``--workers 2`` (target < 40 s),
+    the same serially, and the per-source overhead of the serial survey beyond the profile itself
+    (sum of ``profile_source`` times measured in one process; target <= 50 ms per source).
+many
+    ``fractalseq survey --from-list`` of ``--many`` sources of 2 kb (default 2000), peak memory of
+    the command (``resource`` of the child) and its time.
+
+Writes benchmarks/results/survey_scale.json and survey_scale.md.  The load average of the
+machine before and after each section is recorded: other jobs on a shared machine lower the
+speed-up.
+
+Usage: python benchmarks/bench_survey_scale.py [--only count] [--mbase 100] [--many 2000]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+sys.path.insert(0, str(ROOT))
+
+import numpy as np  # noqa: E402
+
+from fractalseq.io._outputs import to_json, write_text  # noqa: E402
+
+DATA = HERE / "data" / "scale"
+RESULTS = HERE / "results"
+CLI = [sys.executable, "-m", "fractalseq"]
+ENV = {**os.environ, "PYTHONPATH": str(ROOT)}
+
+
+def _chain(seed: int) -> np.ndarray:
+    return np.random.default_rng(seed).dirichlet(np.full(4, 1.5), size=16)
+
+
+def write_fasta(path: Path, n: int, seed: int, records: int = 1, width: int = 80) -> Path:
+    """An invented order-2 Markov DNA sequence of ``n`` symbols as FASTA (written in blocks)."""
+    from fractalseq.datasets._markov import simulate_markov
+
+    if path.exists() and path.stat().st_size > n:
+        return path
+    path.parent.mkdir(parents=True, exist_ok=True)
+    P = _chain(seed % 7)
+    per = n // records
+    tmp = path.with_suffix(".tmp")
+    with open(tmp, "w") as fh:
+        for r in range(records):
+            fh.write(f">sim{seed}_{r} invented order-2 Markov chain\n")
+            left, block = per, 0
+            while left > 0:
+                m = min(left, 8_000_000)
+                x = simulate_markov(P, m, seed=seed * 1000 + r * 100 + block, order=2)
+                text = np.frombuffer(b"ACGT", np.uint8)[x].tobytes().decode()
+                fh.write("\n".join(text[i : i + width] for i in range(0, len(text), width)) + "\n")
+                left -= m
+                block += 1
+    tmp.rename(path)
+    return path
+
+
+def run(args: list[str]) -> tuple[float, str, int, float]:
+    """Run a command; wall time, standard output, exit status, peak memory of the command's own process (MiB).
+
+    The peak comes from ``/usr/bin/time -f %M`` (maximum resident set of that process; worker
+    processes it starts are not included).
+    """
+    t0 = time.perf_counter()
+    p = subprocess.run(["/usr/bin/time", "-f", "peak_kib=%M", *CLI, *args], capture_output=True, text=True, env=ENV)
+    dt = time.perf_counter() - t0
+    if p.returncode not in (0, 1):
+        raise SystemExit(f"{' '.join(args)} failed: {p.stderr.strip()}")
+    peak = next((int(ln.split("=", 1)[1]) for ln in reversed(p.stderr.splitlines()) if ln.startswith("peak_kib=")), 0)
+    return dt, p.stdout, p.returncode, peak / 1024
+
+
+def section_count(mbase: int, depth: int) -> dict:
+    path = write_fasta(DATA / f"sim{mbase}M.fa", mbase * 1_000_000, seed=3)
+    load0 = os.getloadavg()[0]
+    run(["count", str(DATA / "warm.fa") if (DATA / "warm.fa").exists() else str(write_fasta(DATA / "warm.fa", 50_000, 1)), "--depth", str(depth), "--json"])
+    t_serial, out_serial, _, _ = run(["count", str(path), "--depth", str(depth), "--json", "--quiet"])
+    t_par, out_par, _, _ = run(["count", str(path), "--depth", str(depth), "--json", "--quiet", "--workers", "2"])
+    return {
+        "symbols": mbase * 1_000_000, "depth": depth, "serial_s": round(t_serial, 2), "workers2_s": round(t_par, 2),
+        "speedup": round(t_serial / t_par, 3), "identical_json": out_serial == out_par,
+        "load_before": round(load0, 2), "load_after": round(os.getloadavg()[0], 2),
+    }
+
+
+def _sources(n: int, length: int, tag: str) -> Path:
+    folder = DATA / f"{tag}_{n}x{length}"
+    listing = folder / "list.txt"
+    if listing.exists():
+        return listing
+    folder.mkdir(parents=True, exist_ok=True)
+    from fractalseq.datasets._markov import simulate_markov
+
+    names = []
+    for i in range(n):
+        p = folder / f"s{i:05d}.fa"
+        x = simulate_markov(_chain(i % 5), length, seed=10_000 + i, order=2)
+        p.write_text(f">s{i} invented\n" + np.frombuffer(b"ACGT", np.uint8)[x].tobytes().decode() + "\n")
+        names.append(p.name)
+    listing.write_text("\n".join(names) + "\n")
+    return listing
+
+
+def section_survey(n: int = 400, length: int = 20_000) -> dict:
+    listing = _sources(n, length, "survey")
+    load0 = os.getloadavg()[0]
+    t_par, out_par, _, peak_par = run(["survey", "--from-list", str(listing), "--workers", "2", "--no-cache", "--json", "--quiet"])
+    # overhead: one process, the same sources surveyed serially and profiled alone (compile time paid first)
+    code = (
+        "import sys,time,os; from fractalseq.jobs._files import survey_files; from fractalseq.jobs._survey import SurveyOptions;"
+        "from fractalseq.jobs._profile import DEFAULT_BOOT, profile_source; from fractalseq.resampling._options import Resampling;"
+        "from fractalseq.jobs._inputs import ReaderOptions; d=os.path.dirname(sys.argv[1]);"
+        "p=[os.path.join(d,l.strip()) for l in open(sys.argv[1]) if l.strip()]; o=SurveyOptions(); r=ReaderOptions();"
+        "survey_files(p[:2], o); arrs=[r.read(x) for x in p]; t=time.perf_counter();"
+        "[profile_source(a, depth=o.depth, ratio=o.ratio, resampling=Resampling(n_boot=DEFAULT_BOOT, seed=o.seed)) for a in arrs];"
+        "tp=time.perf_counter()-t; t=time.perf_counter(); res=survey_files(p, o); ts=time.perf_counter()-t;"
+        "print(tp, ts, res.to_json()==sys.stdin.read())"
+    )
+    prof = subprocess.run([sys.executable, "-c", code, str(listing)], input=out_par, capture_output=True, text=True, env=ENV, check=True)
+    t_profiles, t_serial, same = prof.stdout.split()
+    t_profiles, t_serial = float(t_profiles), float(t_serial)
+    return {
+        "sources": n, "length": length, "workers2_s": round(t_par, 2), "serial_in_process_s": round(t_serial, 2),
+        "speedup": round(t_serial / t_par, 3), "identical_json": same == "True",
+        "profiles_only_s": round(t_profiles, 2), "overhead_ms_per_source": round(1000 * (t_serial - t_profiles) / n, 1),
+        "peak_mib_workers2": round(peak_par, 1),
+        "load_before": round(load0, 2), "load_after": round(os.getloadavg()[0], 2),
+    }
+
+
+def section_many(n: int, length: int = 2_000) -> dict:
+    listing = _sources(n, length, "many")
+    load0 = os.getloadavg()[0]
+    out = DATA / f"many_out_{n}"
+    t, doc, _, peak = run(["survey", "--from-list", str(listing), "--workers", "2", "--out", str(out), "--force", "--quiet"])
+    html = (out / "survey.html").stat().st_size if (out / "survey.html").exists() else None
+    return {
+        "sources": n, "length": length, "workers2_s": round(t, 1), "peak_mib": round(peak, 1), "html_bytes": html,
+        "load_before": round(load0, 2), "load_after": round(os.getloadavg()[0], 2),
+    }
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--only", default="count,survey,many")
+    ap.add_argument("--mbase", type=int, default=100)
+    ap.add_argument("--depth", type=int, default=12)
+    ap.add_argument("--many", type=int, default=2000)
+    args = ap.parse_args()
+    RESULTS.mkdir(exist_ok=True)
+    path = RESULTS / "survey_scale.json"
+    doc = json.loads(path.read_text()) if path.exists() else {}
+    if "count" in doc and "symbols" in doc["count"]:
+        doc["count"] = {f"depth{doc['count']['depth']}": doc["count"]}
+    doc["machine"] = {"cores": os.cpu_count()}
+    doc["note"] = "invented data (simulated Markov chains); whole processes through the command line; ratios, not absolute targets"
+    for name in args.only.split(","):
+        if name == "count":
+            doc.setdefault("count", {})[f"depth{args.depth}"] = section_count(args.mbase, args.depth)
+        elif name == "survey":
+            doc["survey"] = section_survey()
+        elif name == "many":
+            doc["many"] = section_many(args.many)
+        print(name, json.dumps(doc.get(name)), flush=True)
+    write_text(path, to_json(doc), force=True)
+    lines = ["# Scale: split counting and large surveys", "", doc["note"] + ".", ""]
+    if "count" in doc:
+        lines += ["| count | symbols | depth | serial s | 2 workers s | speed-up | identical JSON | load before/after |",
+                  "|---|---|---|---|---|---|---|---|"]
+        for c in doc["count"].values():
+            lines.append(f"| one FASTA | {c['symbols']:,} | {c['depth']} | {c['serial_s']} | {c['workers2_s']} | {c['speedup']}x | "
+                         f"{c['identical_json']} | {c['load_before']}/{c['load_after']} |")
+        lines.append("")
+    if "survey" in doc:
+        s = doc["survey"]
+        lines += ["| survey | sources x length | 2 workers s (command) | serial s (in process) | speed-up | profiles only s | overhead ms/source | identical JSON | load before/after |",
+                  "|---|---|---|---|---|---|---|---|---|",
+                  f"| 400 small | {s['sources']} x {s['length']:,} | {s['workers2_s']} | {s['serial_in_process_s']} | {s['speedup']}x | "
+                  f"{s['profiles_only_s']} | {s['overhead_ms_per_source']} | {s['identical_json']} | {s['load_before']}/{s['load_after']} |", ""]
+    if "many" in doc:
+        m = doc["many"]
+        lines += ["| many | sources x length | 2 workers s | peak MiB | survey.html bytes |", "|---|---|---|---|---|",
+                  f"| --from-list | {m['sources']} x {m['length']:,} | {m['workers2_s']} | {m['peak_mib']} | {m['html_bytes']} |", ""]
+    write_text(RESULTS / "survey_scale.md", "\n".join(lines), force=True)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
