@@ -130,6 +130,7 @@ def learn(
 
     Example: fractalseq learn strainA.fna.gz strainB.fna.gz -o kleb.npz
     """
+    common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader_options
     from fractalseq.jobs._learn_score import learn_files
 
@@ -233,6 +234,7 @@ def score(
 
     Example: fractalseq score --online genome.fna.xz --window 50000 --json
     """
+    common.protect_inputs(paths, model)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader_options
     from fractalseq.jobs._learn_score import score_files
 

@@ -364,6 +364,9 @@ def scan_stream(
     if T < window:
         raise ParameterError(f"{arr.name} has {T} symbols, fewer than one window of {window}; use a smaller window.", parameter="window")
     if depth is None:
+        from fractalseq.alphabet import require_two_symbols
+
+        require_two_symbols(arr.alphabet, arr.name or "The input")
         depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth, *ordinal_shape(arr))
     if depth < 1 or depth >= window:
         raise ParameterError(f"The depth must lie between 1 and the window length; got {depth}.", parameter="depth")
