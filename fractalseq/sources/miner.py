@@ -61,7 +61,8 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from itertools import islice
+from collections import Counter
+from itertools import chain, islice
 from operator import eq
 from typing import Sequence
 
@@ -95,6 +96,8 @@ def _routable(tok: str) -> bool:
 #: distinct values kept per header field and template (the rest are counted under "")
 _FIELD_VALUES = 8
 _MSG_CACHE = 1 << 16
+#: routes with more clusters than this find a line's cluster through their word index instead of a scan
+_INDEXED = 16
 
 
 @dataclass
@@ -159,6 +162,45 @@ class _Family:
         self.tail = -2
 
 
+class _Route:
+    """Clusters of one route (by when they were made or last matched) and an index of their template words."""
+
+    __slots__ = ("members", "index", "bare")
+
+    def __init__(self) -> None:
+        self.members: dict[int, None] = {}
+        #: (position, word) -> clusters whose template has that plain word there
+        self.index: dict[tuple[int, str], set[int]] = {}
+        #: clusters whose template holds no plain word
+        self.bare: set[int] = set()
+
+    def learn(self, cid: int, toks: list[str], words: list[bool]) -> None:
+        """Index a new cluster's template."""
+        index = self.index
+        any_word = False
+        for i, (t, w) in enumerate(zip(toks, words)):
+            if w:
+                any_word = True
+                s = index.get((i, t))
+                if s is None:
+                    index[(i, t)] = {cid}
+                else:
+                    s.add(cid)
+        if not any_word:
+            self.bare.add(cid)
+
+    def forget(self, cid: int, old: list[str], new: list[str], n_words: int) -> None:
+        """Drop the words a cluster's template lost (they became wildcards)."""
+        index = self.index
+        for i, (a, b) in enumerate(zip(old, new)):
+            if a != b:
+                s = index.get((i, a))
+                if s is not None:
+                    s.discard(cid)
+        if not n_words:
+            self.bare.add(cid)
+
+
 class TemplateMiner:
     """Streaming template miner (see the module documentation).
 
@@ -187,7 +229,10 @@ class TemplateMiner:
         self._children: dict[tuple, set[str]] = {}
         self.tokenize = Tokenizer()
         self.clusters: list[MinedTemplate] = []
-        self._routes: dict[tuple, dict[int, None]] = {}
+        self._routes: dict[tuple, _Route] = {}
+        #: per cluster, when it was made or last moved to the end of its route (the route's order)
+        self._stamp: list[int] = []
+        self._clock = 0
         self._families: dict[tuple, _Family] = {}
         self._absorbed: dict[int, int] = {}
         self._head_memo: dict[tuple, tuple[str, ...]] = {}
@@ -203,7 +248,7 @@ class TemplateMiner:
         hdr, msg = split_header(line)
         cid = self._seen.get(msg)
         if cid is None:
-            pinned, free = self.tokenize(msg)
+            pinned, free = self.tokenize.uncached(msg)  # ``_seen`` remembers messages
             cid = self._place(pinned, free)
             if len(self._seen) >= _MSG_CACHE:
                 self._seen.clear()
@@ -223,15 +268,15 @@ class TemplateMiner:
     def _words(self, toks: Sequence[str]) -> list[bool]:
         """Which tokens are plain words (:func:`_routable`), remembered per token."""
         memo = self._route_word
-        out = []
-        for tok in toks:
-            ok = memo.get(tok)
-            if ok is None:
-                ok = _routable(tok)
-                if len(memo) >= _MSG_CACHE:
-                    memo.clear()
-                memo[tok] = ok
-            out.append(ok)
+        out = list(map(memo.get, toks))
+        if None in out:
+            for i, ok in enumerate(out):
+                if ok is None:
+                    tok = toks[i]
+                    ok = out[i] = _routable(tok)
+                    if len(memo) >= _MSG_CACHE:
+                        memo.clear()
+                    memo[tok] = ok
         return out
 
     def _head(self, pinned: tuple[str, ...], n: int, free: list[str]) -> tuple[str, ...]:
@@ -296,16 +341,47 @@ class TemplateMiner:
             if grew and len(fam.lengths) >= FREE_TAIL_LENGTHS and len(fam.words) >= FREE_TAIL_WORDS:
                 return self._collapse(fam, pinned)
         route = (fkey, n)
-        members = self._routes.get(route)
-        if members is None:
-            members = self._routes[route] = {}
+        rt = self._routes.get(route)
+        if rt is None:
+            rt = self._routes[route] = _Route()
+        members = rt.members
         clusters = self.clusters
         crowded = len(members) > MAX_SCAN
+        # only the plain words of the line (no digit, no inner punctuation) are evidence of agreement
+        words = self._words(free)
+        if len(members) > _INDEXED:
+            best = self._best_indexed(rt, free, words, crowded)
+        else:
+            best = self._best_scan(members, free, words, crowded)
+        if best >= 0:
+            c = clusters[best]
+            old = c.tokens
+            if old != free:  # positions where the line differs become (or stay) wildcards
+                new = [a if a == b else WILDCARD for a, b in zip(old, free)]
+                if new != old:
+                    c.tokens = new
+                    c.words = sum(self._words(new))
+                    rt.forget(best, old, new, c.words)
+            if crowded:  # most recently matched clusters are scanned first
+                del members[best]
+                members[best] = None
+                self._stamp[best] = self._clock = self._clock + 1
+            return best
+        cid = len(clusters)
+        clusters.append(MinedTemplate(list(free), pinned, 0, self._lines, words=sum(words)))
+        members[cid] = None
+        self._stamp.append(self._clock + 1)
+        self._clock += 1
+        rt.learn(cid, free, words)
+        fam.members.append(cid)
+        return cid
+
+    def _best_scan(self, members: dict[int, None], free: list[str], words: list[bool], crowded: bool) -> int:
+        """The cluster a line joins (-1: none), by comparing it with every scanned cluster of its route."""
+        clusters = self.clusters
         best = -1
         best_sim = -1
         best_wild = -1
-        # only the plain words of the line (no digit, no inner punctuation) are evidence of agreement
-        words = self._words(free)
         probe = [t if w else None for t, w in zip(free, words)]
         limit = self.threshold
         for cid in (islice(reversed(members), MAX_SCAN) if crowded else members):
@@ -323,20 +399,56 @@ class TemplateMiner:
                 wild = _wild(tpl, free)
                 if wild > best_wild:
                     best, best_wild = cid, wild
-        if best >= 0:
-            if clusters[best].tokens != free:  # positions where the line differs become (or stay) wildcards
-                c = clusters[best]
-                c.tokens = [a if a == b else WILDCARD for a, b in zip(c.tokens, free)]
-                c.words = sum(self._words(c.tokens))
-            if crowded:  # most recently matched clusters are scanned first
-                del members[best]
-                members[best] = None
-            return best
-        clusters.append(MinedTemplate(list(free), pinned, 0, self._lines, words=sum(words)))
-        cid = len(clusters) - 1
-        members[cid] = None
-        fam.members.append(cid)
-        return cid
+        return best
+
+    def _best_indexed(self, rt: _Route, free: list[str], words: list[bool], crowded: bool) -> int:
+        """:meth:`_best_scan` found through the route's index of template words (same choice, no scan).
+
+        A cluster agrees with the line on ``same`` words, counted from the
+        index; one with no agreeing word qualifies only when its template has
+        no word at all (``rt.bare``).  Among the qualifying clusters of the
+        scanned ones (the ``MAX_SCAN`` most recent when crowded), the scan
+        keeps the first in scan order with the most agreeing words, then the
+        most wildcards where the line differs: the same is picked here.
+        """
+        idx = rt.index
+        same_of = Counter(chain.from_iterable(filter(None, [idx.get((i, t)) for i, (t, w) in enumerate(zip(free, words)) if w])))
+        for cid in rt.bare:
+            same_of[cid] = 0
+        if not same_of:
+            return -1
+        stamp = self._stamp
+        if crowded:
+            lo = stamp[next(islice(reversed(rt.members), MAX_SCAN - 1, None))]
+        else:
+            lo = -1
+        clusters = self.clusters
+        limit = self.threshold
+        best_sim = -1
+        tied: list[int] = []
+        for cid, same in same_of.items():
+            if stamp[cid] < lo:
+                continue
+            const = clusters[cid].words
+            if const and same <= limit * const and same < const:
+                continue
+            if same > best_sim:
+                best_sim = same
+                tied = [cid]
+            elif same == best_sim:
+                tied.append(cid)
+        if not tied:
+            return -1
+        if len(tied) == 1:
+            return tied[0]
+        # scan order: most recent first when crowded, else the route's order (oldest first)
+        tied.sort(key=stamp.__getitem__, reverse=crowded)
+        best, best_wild = tied[0], _wild(clusters[tied[0]].tokens, free)
+        for cid in tied[1:]:
+            wild = _wild(clusters[cid].tokens, free)
+            if wild > best_wild:
+                best, best_wild = cid, wild
+        return best
 
     def _collapse(self, fam: _Family, pinned: tuple[str, ...]) -> int:
         """The family's tail is free text: one template, the head then ``<...>``, takes all its lines."""
