@@ -167,8 +167,7 @@ class Tokenizer:
             msg = _collapse_quotes(msg)
         if "<" in msg:
             msg = _collapse_angles(msg)
-        toks = self.mask(msg.split())
-        return toks
+        return self.mask(msg.split())
 
     def _structured(self, msg: str) -> tuple[tuple[str, ...], list[str]] | None:
         c = msg[0]
