@@ -22,7 +22,10 @@ Each line goes through these steps:
    and ``upgrade libbar2:amd64 <*>`` join.  A position whose tokens differ
    between members becomes ``<*>``.  A message seen before (same
    text) joins the cluster it joined then.  A route with many clusters
-   compares a line with the ``MAX_SCAN`` most recently matched ones only.
+   compares a line with the ``MAX_SCAN`` most recently matched ones only;
+   one with more than a few finds the clusters sharing a word with the line
+   through an index of (position, word) -> clusters, which picks the cluster
+   the comparison in scan order would pick.
 4. Free-text tails: the lines sharing pinned tokens and routing head (the
    first ``depth`` tokens, at least one of them a constant word) form a
    *family*.  Once its lines show ``FREE_TAIL_LENGTHS`` different token
@@ -116,6 +119,22 @@ class MinedTemplate:
     def text(self) -> str:
         """The template as text: tokens joined by single spaces."""
         return " ".join(self.pinned + tuple(self.tokens)) if self.pinned else " ".join(self.tokens)
+
+    def absorb_header(self, hdr: Header) -> None:
+        """:meth:`absorb_fields` of one line's header (its non-empty fields, once each)."""
+        fields = self.fields
+        for name, v in zip(Header._fields, hdr):
+            if v:
+                slot = fields.get(name)
+                if slot is None:
+                    slot = fields[name] = {}
+                c = slot.get(v)
+                if c is not None:
+                    slot[v] = c + 1
+                elif len(slot) < _FIELD_VALUES:
+                    slot[v] = 1
+                else:
+                    slot[""] = slot.get("", 0) + 1
 
     def absorb_fields(self, hdr: Header | dict[str, dict[str, int]], n: int = 1) -> None:
         items = hdr.items() if isinstance(hdr, dict) else ((k, {v: n}) for k, v in zip(hdr._fields, hdr) if v)
@@ -256,7 +275,7 @@ class TemplateMiner:
         c = self.clusters[cid]
         c.count += 1
         if hdr[0] or hdr[1] or hdr[2]:
-            c.absorb_fields(hdr)
+            c.absorb_header(hdr)
         self._lines += 1
         return cid
 
