@@ -72,6 +72,7 @@ from typing import Sequence
 from fractalseq.errors import ParameterError
 from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
+from fractalseq.sources.routes import Route
 from fractalseq.sources.structured import Tokenizer
 
 __all__ = ["DEFAULT_DEPTH", "DEFAULT_THRESHOLD", "TAIL", "MinedTemplate", "TemplateIndex", "TemplateMiner", "line_signature"]
@@ -181,45 +182,6 @@ class _Family:
         self.tail = -2
 
 
-class _Route:
-    """Clusters of one route (by when they were made or last matched) and an index of their template words."""
-
-    __slots__ = ("members", "index", "bare")
-
-    def __init__(self) -> None:
-        self.members: dict[int, None] = {}
-        #: (position, word) -> clusters whose template has that plain word there
-        self.index: dict[tuple[int, str], set[int]] = {}
-        #: clusters whose template holds no plain word
-        self.bare: set[int] = set()
-
-    def learn(self, cid: int, toks: list[str], words: list[bool]) -> None:
-        """Index a new cluster's template."""
-        index = self.index
-        any_word = False
-        for i, (t, w) in enumerate(zip(toks, words)):
-            if w:
-                any_word = True
-                s = index.get((i, t))
-                if s is None:
-                    index[(i, t)] = {cid}
-                else:
-                    s.add(cid)
-        if not any_word:
-            self.bare.add(cid)
-
-    def forget(self, cid: int, old: list[str], new: list[str], n_words: int) -> None:
-        """Drop the words a cluster's template lost (they became wildcards)."""
-        index = self.index
-        for i, (a, b) in enumerate(zip(old, new)):
-            if a != b:
-                s = index.get((i, a))
-                if s is not None:
-                    s.discard(cid)
-        if not n_words:
-            self.bare.add(cid)
-
-
 class TemplateMiner:
     """Streaming template miner (see the module documentation).
 
@@ -248,7 +210,7 @@ class TemplateMiner:
         self._children: dict[tuple, set[str]] = {}
         self.tokenize = Tokenizer()
         self.clusters: list[MinedTemplate] = []
-        self._routes: dict[tuple, _Route] = {}
+        self._routes: dict[tuple, Route] = {}
         #: per cluster, when it was made or last moved to the end of its route (the route's order)
         self._stamp: list[int] = []
         self._clock = 0
@@ -362,7 +324,7 @@ class TemplateMiner:
         route = (fkey, n)
         rt = self._routes.get(route)
         if rt is None:
-            rt = self._routes[route] = _Route()
+            rt = self._routes[route] = Route()
         members = rt.members
         clusters = self.clusters
         crowded = len(members) > MAX_SCAN
@@ -420,7 +382,7 @@ class TemplateMiner:
                     best, best_wild = cid, wild
         return best
 
-    def _best_indexed(self, rt: _Route, free: list[str], words: list[bool], crowded: bool) -> int:
+    def _best_indexed(self, rt: Route, free: list[str], words: list[bool], crowded: bool) -> int:
         """:meth:`_best_scan` found through the route's index of template words (same choice, no scan).
 
         A cluster agrees with the line on ``same`` words, counted from the
