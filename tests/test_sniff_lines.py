@@ -199,3 +199,24 @@ def test_sniff_block_with_junk_lines_stays_text():
     assert is_binary(b"ACGT\x00ACGT\n")  # the only line holds a NUL
     assert is_binary(random.Random(3).randbytes(4000) + text[:200])
     assert is_binary("na\u00efve caf\u00e9 text\n".encode("utf-16"))  # UTF-16: a NUL in every line
+
+
+# ------------------------------------------------------------------ a pipe is still read once
+@pytest.mark.parametrize("compress", [False, True], ids=["plain", "gzip"])
+def test_headerless_log_through_a_fifo_is_read_once_as_a_log(tmp_path, compress):
+    from test_pipes import fifo_with
+
+    from fractalseq.sources import open_source, rawio
+
+    path = LOGS / "apt-term-excerpt.log"
+    data = path.read_bytes()
+    want = open_source(path)
+    with fifo_with(tmp_path, gzip.compress(data) if compress else data) as fifo:
+        stream = open_source(fifo)
+        got = stream.to_array()
+        assert stream.report.extra["format"] == "log"
+        assert any("read from a pipe (opened once)" in n for n in stream.report.notes)
+        assert any("line-oriented log" in n for n in stream.report.notes)
+    rawio.close_pipes()
+    assert got.alphabet.symbols == want.alphabet.symbols
+    assert got.codes.tolist() == want.to_array().codes.tolist()
