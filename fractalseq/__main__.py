@@ -1,6 +1,6 @@
 """``python -m fractalseq`` runs the command line."""
 
-from fractalseq.cli.app import entry
+from fractalseq.cli.__main__ import entry
 
 if __name__ == "__main__":
     entry()

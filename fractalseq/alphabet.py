@@ -267,3 +267,22 @@ def resolve(spec: str) -> Alphabet | None:
             raise ParameterError("The alphabet 'symbols:' lists no symbols; write e.g. symbols:abc.")
         return from_symbols(chars)
     return preset(spec)
+
+
+def require_two_symbols(alphabet: "Alphabet", name: str = "The input") -> None:
+    """Refuse an alphabet of fewer than two symbols (every word is the same: nothing to measure).
+
+    The one rule of every measuring job (profile, survey, scan, drift), so the
+    message names the cause instead of an automatic depth running away.
+
+    Raises
+    ------
+    InputError
+        When ``alphabet`` has fewer than two symbols.
+    """
+    if alphabet.size < 2:
+        only = f" ({alphabet.symbols[0]!r})" if alphabet.size == 1 else ""
+        raise InputError(
+            f"{name} uses only {alphabet.size} distinct symbol{only}, so there is no complexity to measure; "
+            "give data with at least two different symbols, or read it with a fixed alphabet (e.g. dna)."
+        )

@@ -11,12 +11,12 @@ from __future__ import annotations
 
 import lzma
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable
 
 from fractalseq.datasets import _scenario as scen
-from fractalseq.io._outputs import prepare_folder, to_json, write_json, write_text
+from fractalseq.io._outputs import StagedFolder, to_json, write_json, write_text
 
 CAUTION = (
     "Invented data. Genomic output of fractalseq is for research, not for clinical decisions; drift "
@@ -105,6 +105,29 @@ def run_demo(
     step:
         Called with a short description before each stage (progress display).
     """
+    from fractalseq.jobs._inputs import check_seed
+
+    seed = check_seed(seed)  # before the warm-up process or any folder
+    length, log_lines = scen.check_size(length, log_lines)
+    t0 = time.perf_counter()
+    say = step or (lambda s: None)
+    # On a first run the numba kernels are compiled before they are cached; the predictor's are the
+    # largest, so a second process compiles them while this one surveys (they are loaded from the cache
+    # when the predictor steps come).  Once cached, this costs a process start on the other core.
+    stage = StagedFolder(folder, force)  # built under a hidden sibling, renamed into place at the end
+    try:
+        warm = _start_predictor_warmup()
+        result = _run_in(stage.path, Path(folder), seed, length, log_lines, workers, force, say, warm, t0)
+        stage.commit()
+    except BaseException:
+        stage.discard()
+        raise
+    return result
+
+
+def _run_in(out: Path, final: Path, seed: int, length: int, log_lines: int, workers: int, force: bool,
+            say: Callable[[str], None], warm, t0: float) -> DemoResult:
+    """The demo's work, written into ``out`` (the staged folder); paths are recorded as under ``final``."""
     from fractalseq.compare._drift import DriftOptions, drift_test
     from fractalseq.report.drift import write_outputs as write_drift
     from fractalseq.jobs._engines import make_engine
@@ -114,16 +137,14 @@ def run_demo(
     from fractalseq.sources import open_source
     from fractalseq.jobs._survey import SurveyOptions, expand_inputs, run_survey
     from fractalseq.jobs._survey import write_outputs as write_survey
-    from fractalseq.jobs._inputs import check_seed
 
-    seed = check_seed(seed)  # before the warm-up process or any folder
-    t0 = time.perf_counter()
-    say = step or (lambda s: None)
-    # On a first run the numba kernels are compiled before they are cached; the predictor's are the
-    # largest, so a second process compiles them while this one surveys (they are loaded from the cache
-    # when the predictor steps come).  Once cached, this costs a process start on the other core.
-    warm = _start_predictor_warmup()
-    out = prepare_folder(folder, force=True) if Path(folder).is_dir() and not any(Path(folder).iterdir()) else prepare_folder(folder, force)
+    staged = str(out)
+
+    def shown(path: str | Path) -> str:
+        """A path in the staged folder as it will be named once the folder is in place."""
+        text = str(path)
+        return str(final) + text[len(staged):] if text.startswith(staged) else text
+
     say("simulating the invented scenario")
     sc = scen.generate(out / "data", seed=seed, length=length, log_lines=log_lines, force=force)
     files: list[Path] = []
@@ -140,6 +161,7 @@ def run_demo(
         close = getattr(engine, "close", None)
         if close:
             close()
+    survey = replace(survey, sources=tuple({**e, "path": shown(e["path"])} for e in survey.sources))
     files += write_survey(survey, out / "survey", force=force)
     by_name = {r["name"]: r for r in survey.to_dict()["sources"]}
     for truth in sc.sources:
@@ -162,7 +184,7 @@ def run_demo(
     # 2. scan of the sample with the repeat island
     say("scanning the island sample")
     island = next(s for s in sc.sources if s.island is not None)
-    arr = open_source(island.path).to_array()
+    arr = open_source(island.path, name=shown(island.path)).to_array()
     window = max(1000, length // 60)
     scan = scan_stream(arr, window=window, seed=seed)
     files += write_scan(scan, out / "scan", force=force)
@@ -180,8 +202,8 @@ def run_demo(
 
     # 3. drift between the two relay-log batches
     say("testing the relay logs for drift")
-    base = open_source(sc.logs.baseline, fmt="log", alphabet="learn").to_array()
-    new = open_source(sc.logs.new, fmt="log", alphabet="learn").to_array()
+    base = open_source(sc.logs.baseline, fmt="log", alphabet="learn", name=shown(sc.logs.baseline)).to_array()
+    new = open_source(sc.logs.new, fmt="log", alphabet="learn", name=shown(sc.logs.new)).to_array()
     drift = drift_test([base], [new], DriftOptions(seed=seed, permutations=199))
     files += write_drift(drift, out / "drift", force=force)
     dd = drift.to_dict()
@@ -218,11 +240,15 @@ def run_demo(
     notes.extend(f"week 2 event kind the week-1 model never saw: {t}" for t in unseen)
 
     seconds = time.perf_counter() - t0
-    result = DemoResult(sc, tuple(rows), tuple(str(p) for p in files), seconds, tuple(notes))
+    sc = replace(
+        sc, folder=shown(sc.folder), sources=tuple(replace(s, path=shown(s.path)) for s in sc.sources),
+        logs=replace(sc.logs, baseline=shown(sc.logs.baseline), new=shown(sc.logs.new)),
+    )
+    result = DemoResult(sc, tuple(rows), tuple(shown(p) for p in files), seconds, tuple(notes))
     say("writing the index")
     files.append(write_json(out / "demo.json", result.to_dict(), force=force))
-    files.append(write_text(out / "index.html", index_page(result, out).render(), force=force))
-    return DemoResult(sc, tuple(rows), tuple(str(p) for p in files), seconds, tuple(notes))
+    files.append(write_text(out / "index.html", index_page(result, final).render(), force=force))
+    return DemoResult(sc, tuple(rows), tuple(shown(p) for p in files), seconds, tuple(notes))
 
 
 def warm_predictor() -> None:  # pragma: no cover - runs in the warm-up process

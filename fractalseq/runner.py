@@ -19,6 +19,8 @@ from fractalseq.errors import InputError
 
 #: Environment variable of the test pause point (see :func:`pause_point`).
 PAUSE_VARIABLE = "FRACTALSEQ_PAUSE_AT"
+#: Environment variable naming a file :func:`pause_point` creates when it blocks (optional).
+PAUSE_FLAG_VARIABLE = "FRACTALSEQ_PAUSE_FLAG"
 
 
 def pause_point(name: str, count: int) -> None:
@@ -27,10 +29,17 @@ def pause_point(name: str, count: int) -> None:
     Tests that interrupt a running job set the variable, wait until the job
     has reached the named point (e.g. the first source stored in the cache),
     then send the signal: what was finished before the pause is then known
-    exactly, whatever the speed of the machine.  Unset, it costs one lookup.
+    exactly, whatever the speed of the machine.  With ``FRACTALSEQ_PAUSE_FLAG``
+    set to a path, the file is created when the pause begins (for pause points
+    that leave no output of their own, such as ``words.kernel``: just before a
+    counting kernel runs).  Unset, it costs one lookup.
     """
     want = os.environ.get(PAUSE_VARIABLE)
     if want and want == f"{name}:{count}":
+        flag = os.environ.get(PAUSE_FLAG_VARIABLE)
+        if flag:  # tell the waiting test that the pause is reached (for points that leave no file of their own)
+            with open(flag, "w", encoding="utf-8") as fh:
+                fh.write(f"{name}:{count}\n")
         while True:  # pragma: no cover - ended by the signal the test sends
             time.sleep(0.05)
 

@@ -17,7 +17,7 @@ PKG = Path(fractalseq.__file__).parent
 
 #: Rank of each top-level unit; a module may import units of its own rank or lower only.
 LAYERS: dict[str, int] = {
-    "errors": 0, "results": 0, "alphabet": 0, "_numba_cache": 0, "stream": 1, "runner": 1,
+    "errors": 0, "results": 0, "alphabet": 0, "_numba_cache": 0, "guards": 0, "stream": 1, "runner": 1,
     "io": 2, "sources": 2,
     "words": 3, "encoding": 3, "datasets": 3,
     "resampling": 4,

@@ -93,6 +93,16 @@ def _make_files(d: Path) -> None:
     data = (d / "dna.npz").read_bytes()
     (d / "trunc.npz").write_bytes(data[: len(data) // 2])
     shutil.copy(d / "dna.npz", d / "old-model.npz")
+    # hostile paths: a symbolic link loop, a link to nothing, an output name that is a link loop
+    os.symlink("loop-b.fa", d / "loop-a.fa")
+    os.symlink("loop-a.fa", d / "loop-b.fa")
+    os.symlink("nowhere.fa", d / "dangling.fa")
+    os.symlink("loop-out-b.png", d / "loop-out.png")
+    os.symlink("loop-out.png", d / "loop-out-b.png")
+    (d / "one-symbol.txt").write_text("a" * 50_000)
+    (d / "indir").mkdir()
+    shutil.copy(d / "short.fa", d / "indir" / "in.fa")
+    (d / "indir" / "notes.txt").write_text("an input folder whose files must survive\n")
 
 
 @pytest.fixture(scope="module")
@@ -216,10 +226,73 @@ CASES: list[Case] = [
          stdin=bytes(range(256)) * 8, subprocess=True),
     Case("profile-stdin-all-N", ("profile", "-", "--boot", "0"), r"no (usable |dna )?symbols", r"check|alphabet",
          stdin=b">n\n" + b"N" * 3000 + b"\n"),
+    # ---- hostile paths: link loops, dangling links, devices, control characters (issue "nothing lost, nothing let in")
+    Case("count-symlink-loop", ("count", "{d}/loop-a.fa"), r"loop-a\.fa is a symbolic link loop", r"point the link at a file",
+         subprocess=True),
+    Case("profile-symlink-loop", ("profile", "{d}/loop-a.fa", "--boot", "0", "--out", "{d}/out-loop"),
+         r"symbolic link loop", r"point the link", absent=("out-loop",)),
+    Case("survey-symlink-loop", ("survey", "{d}/good.fa", "{d}/loop-a.fa", "--out", "{d}/out-survey-loop"),
+         r"loop-a\.fa is a symbolic link loop", r"point the link", absent=("out-survey-loop",)),
+    Case("next-model-symlink-loop", ("next", "ACGT", "--model", "{d}/loop-a.fa"), r"symbolic link loop", r"point the link"),
+    Case("templates-symlink-loop", ("templates", "{d}/loop-a.fa"), r"symbolic link loop", r"point the link", subprocess=True),
+    Case("count-dangling-link", ("count", "{d}/dangling.fa"), r"symbolic link to nowhere\.fa, which does not exist",
+         r"fix the link"),
+    Case("count-dev-null", ("count", "/dev/null"), r"/dev/null is empty", r"give a file"),
+    Case("render-dev-null", ("render", "/dev/null", "-o", "{d}/out-null.png"), r"/dev/null is empty", r"give a file",
+         absent=("out-null.png",)),
+    Case("count-save-over-a-device-even-with-force", ("count", "{d}/good.fa", "--save", "/dev/null", "--force"),
+         r"/dev/null is a device", r"give a file name"),
+    Case("learn-out-over-a-device-even-with-force", ("learn", "{d}/good.fa", "-o", "/dev/full", "--force"),
+         r"/dev/full is a device", r"give a file name"),
+    Case("render-out-is-a-link-loop", ("render", "{d}/good.fa", "-o", "{d}/loop-out.png", "--force"),
+         r"symbolic link that leads nowhere", r"remove it|another file name"),
+    Case("profile-out-beneath-a-device", ("profile", "{d}/good.fa", "--boot", "0", "--out", "/dev/null/report"),
+         r"/dev/null is a file", r"another place for /dev/null/report"),
+    Case("count-control-characters-in-a-missing-name", ("count", "{d}/ok\x1b]0;title\x07\x1b[2J.fa"),
+         r"ok\\x1b\]0;title\\x07\\x1b\[2J\.fa does not exist", r"check the path"),
+    Case("survey-empty-folder", ("survey", "{d}/folder"), r"holds no files", r"give a folder with inputs"),
+    # ---- outputs that would replace an input, even with --force
+    Case("count-save-over-its-own-input", ("count", "{d}/indir/in.fa", "--save", "{d}/indir/in.fa", "--force"),
+         r"in\.fa is one of the inputs", r"another output file name", unchanged=("indir/in.fa",), subprocess=True),
+    Case("learn-out-over-its-own-input", ("learn", "{d}/indir/in.fa", "-o", "{d}/indir/in.fa", "--force"),
+         r"one of the inputs", r"another output file name", unchanged=("indir/in.fa",)),
+    Case("profile-out-folder-holds-the-input", ("profile", "{d}/indir/in.fa", "--boot", "0", "--out", "{d}/indir", "--force"),
+         r"holds the input .*in\.fa", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
+    Case("survey-out-folder-is-the-input-folder", ("survey", "{d}/indir", "{d}/good.fa", "--out", "{d}/indir", "--force"),
+         r"holds the input", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
+    Case("scan-out-folder-holds-the-input", ("scan", "{d}/indir/in.fa", "--window", "20", "--out", "{d}/indir", "--force"),
+         r"holds the input", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
+    # ---- sizes beyond memory, bounded before any work (what is allocated, which option sets it)
+    Case("profile-boot-beyond-memory", ("profile", "{d}/good.fa", "--boot", "1000000000", "--out", "{d}/out-boot"),
+         r"1000000000 bootstrap replicates .*memory", r"fewer replicates \(option --boot\)", absent=("out-boot",),
+         subprocess=True),
+    Case("drift-permutations-beyond-memory", ("drift", "{d}/good.fa", "{d}/good.fa", "--permutations", "1000000000000"),
+         r"1000000000000 permutations .*memory", r"fewer permutations \(option --permutations\)", subprocess=True),
+    Case("demo-length-beyond-memory", ("demo", "--length", "10000000000000", "--out", "{d}/out-demo-len"),
+         r"10000000000000 bases .*memory", r"smaller length \(option --length\)", absent=("out-demo-len",),
+         subprocess=True),
+    Case("scan-window-beyond-any-input", ("scan", "{d}/good.fa", "--window", "1000000000000000000000"),
+         r"fewer than one window", r"smaller window \(option --window\)"),
+    Case("count-depth-of-22-digits", ("count", "--depth", "1000000000000000000000", "{d}/good.fa"),
+         r"exceeds the address width", r"--depth 32 or less"),
+    Case("drift-block-longer-than-the-batches", ("drift", "{d}/good.fa", "{d}/short.fa", "--block", "100000000000"),
+         r"too few to permute", r"smaller|below the shorter batch.*--block"),
+    # ---- impossible numbers (one rule each, on parsing) and inputs with a single symbol
+    Case("render-negative-drop", ("render", "{d}/good.fa", "-o", "{d}/out-drop.png", "--drop", "-5"),
+         r"--drop", r"greater than or equal to 0.*--help", absent=("out-drop.png",)),
+    Case("render-size-below-eight", ("render", "{d}/good.fa", "-o", "{d}/out-size.png", "--size", "3"),
+         r"--size", r"greater than or equal to 8.*--help", absent=("out-size.png",)),
+    Case("count-negative-top", ("count", "--top", "-3", "{d}/good.fa"), r"--top", r"greater than or equal to 0.*--help"),
+    Case("scan-one-symbol-input", ("scan", "{d}/one-symbol.txt", "-a", "learn", "--format", "text"),
+         r"only 1 distinct symbol \('a'\)", r"at least two different symbols|fixed alphabet", subprocess=True),
+    Case("drift-one-symbol-input", ("drift", "{d}/one-symbol.txt", "{d}/one-symbol.txt", "-a", "learn", "--format", "text"),
+         r"only 1 distinct symbol", r"at least two different symbols|fixed alphabet"),
+    Case("profile-one-symbol-input", ("profile", "{d}/one-symbol.txt", "-a", "learn", "--format", "text", "--boot", "0"),
+         r"only 1 distinct symbol|fewer than 2 distinct symbols", r"at least two different symbols|fixed alphabet"),
 ]
 
 #: Every command must have at least one case (and one run as a real process).
-COMMANDS = ("count", "render", "profile", "learn", "score", "next", "survey", "drift", "scan", "demo")
+COMMANDS = ("count", "render", "profile", "learn", "score", "next", "survey", "drift", "scan", "demo", "templates")
 
 
 def _fill(text: str, d: Path) -> str:
@@ -254,7 +327,7 @@ def check_refusal(case: Case, d: Path, status: int, out: str, err: str, before: 
 
 
 def test_the_table_covers_every_command_and_is_large_enough():
-    assert len(CASES) >= 30
+    assert len(CASES) >= 60
     assert len({c.id for c in CASES}) == len(CASES)
     for command in COMMANDS:
         assert any(c.argv[0] == command for c in CASES), f"no bad-input case for {command}"

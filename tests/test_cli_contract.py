@@ -381,12 +381,14 @@ def test_every_command_refuses_a_negative_seed_in_one_sentence(command, sample, 
 
 def test_library_errors_name_parameters_and_the_command_names_the_option(sample, tmp_path, capsys):
     """A library ParameterError carries the parameter; the command line adds the option that sets it."""
+    existing = tmp_path / "existing.npz"  # an earlier output (not an input: an input is refused even with --force)
+    existing.write_bytes(b"an earlier output\n")
     cases = [
         (["survey", str(sample), "--distance-depth", "40"], "distance_depth", "(option --distance-depth)."),
         (["scan", str(sample), "--window", "2000", "--penalty", "soft"], "penalty", "(option --penalty)."),
         (["count", str(sample), "--thresholds", "1,x"], "thresholds", "(option --thresholds)."),
         (["count", str(sample), "--unknown", "drop"], "policy", "(option --unknown)."),
-        (["count", str(sample), "--save", str(sample)], "force", "(option --force)."),
+        (["count", str(sample), "--save", str(existing)], "force", "(option --force)."),
         (["survey", str(sample), "--cache", str(sample)], "cache", "(option --cache)."),
     ]
     for argv, parameter, hint in cases:

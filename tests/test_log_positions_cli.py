@@ -22,6 +22,7 @@ from pathlib import Path
 
 import pytest
 
+from _paths import CLI
 from fractalseq.jobs._inputs import MIN_LINE_WINDOW, MIN_WINDOWS
 from fractalseq.jobs._next import split_context, template_context
 from fractalseq.results import CAUTION_GENOMIC, CAUTION_LOGS
@@ -292,3 +293,32 @@ def test_positions_do_not_depend_on_the_block_size(chunk):
     expected = [i + 1 for i, r in enumerate(rows) if i > 0 and r and r[1].strip()]
     num = open_source(CO2, chunk_size=chunk).to_array()
     assert num.report.positions.values.tolist() == expected
+
+
+def test_score_of_several_logs_keeps_the_others_when_one_has_no_known_template(tmp_path):
+    # a model learned on the real dpkg excerpt knows none of the sshd sample's templates (reference/logs, provenance
+    # in reference/logs/README.md): that file is listed with its unseen templates, the dpkg result is not lost
+    model = tmp_path / "dpkg.npz"
+    learn = subprocess.run([*CLI, "learn", str(LOGS / "dpkg-excerpt.log"), "-f", "log", "-o", str(model), "-q"],
+                           capture_output=True, text=True)
+    assert learn.returncode == 0, learn.stderr
+    both = subprocess.run([*CLI, "score", "-m", str(model), str(LOGS / "dpkg-excerpt.log"), str(LOGS / "fail2ban-sshd.log"),
+                           "-f", "log", "--json", "-q"], capture_output=True, text=True)
+    assert both.returncode == 0, both.stderr
+    doc = json.loads(both.stdout)
+    alone = subprocess.run([*CLI, "score", "-m", str(model), str(LOGS / "dpkg-excerpt.log"), "-f", "log", "--json", "-q"],
+                           capture_output=True, text=True)
+    first = json.loads(alone.stdout)["sources"][0]
+    assert doc["sources"][0]["bits_per_symbol"] == first["bits_per_symbol"]
+    sshd = doc["sources"][1]
+    assert sshd["length"] == 0 and sshd["bits_per_symbol"] is None
+    assert sum(e["count"] for e in sshd["unseen_templates"]) == sum(
+        1 for line in (LOGS / "fail2ban-sshd.log").read_text(encoding="utf-8", errors="replace").splitlines() if line.strip())
+    assert doc["bits_per_symbol"] == first["bits_per_symbol"] and doc["length"] == first["length"]
+    table = subprocess.run([*CLI, "score", "-m", str(model), str(LOGS / "dpkg-excerpt.log"), str(LOGS / "fail2ban-sshd.log"),
+                            "-f", "log", "-q"], capture_output=True, text=True)
+    assert table.returncode == 0 and "nan" not in table.stdout and "never saw" in table.stdout
+    # only files of new templates: one sentence, exit 2
+    none = subprocess.run([*CLI, "score", "-m", str(model), str(LOGS / "fail2ban-sshd.log"), str(LOGS / "fail2ban-sshd.log"),
+                           "-f", "log", "-q"], capture_output=True, text=True)
+    assert none.returncode == 2 and "Traceback" not in none.stderr and len(none.stderr.strip().splitlines()) == 1

@@ -241,3 +241,49 @@ def test_cli_count_reads_process_substitution(tmp_path, kind, extra):
     done = subprocess.run(["bash", "-c", script + " " + " ".join(["--depth", "4", "--json", *extra]), "bash",
                            *CLI, "count"], capture_output=True, text=True, env=dict(_env(), SRC=str(src)))
     _check_count(done, SHORT)
+
+
+# ------------------------------------------------------------------ survey and drift: pipes read once
+def _json_without_paths(text: str):
+    """The document with every string blanked: a pipe's name and path differ from the file's; no number may."""
+    def blank(x):
+        if isinstance(x, dict):
+            return {k: blank(v) for k, v in x.items() if k not in ("content_sha256", "notes")}  # notes say "pipe"
+        if isinstance(x, list):
+            return [blank(v) for v in x]
+        return "" if isinstance(x, str) else x
+
+    return blank(json.loads(text))
+
+
+@pytest.mark.skipif(shutil.which("bash") is None, reason="process substitution needs bash")
+@pytest.mark.parametrize("command", ["survey", "drift"])
+def test_survey_and_drift_read_process_substitutions_like_files(tmp_path, command):
+    """``<(cat file)`` is a pipe: survey and drift read it once (into memory) and give the file's figures."""
+    a, b = tmp_path / "a.fa", tmp_path / "b.fa"
+    a.write_bytes(SHORT_FASTA)
+    b.write_bytes(f">invented\n{SEQ[100_000:130_000]}\n".encode())
+    opts = ["--seed", "4", "--json", "-q"] + (["--depth", "4"] if command == "survey" else ["--permutations", "99"])
+    files = subprocess.run([*CLI, command, str(a), str(b), *opts], capture_output=True, text=True, env=_env())
+    assert files.returncode in (0, 1), files.stderr
+    script = f'exec "$@" <(cat "$A") <(cat "$B") {" ".join(opts)}'
+    pipes = subprocess.run(["bash", "-c", script, "bash", *CLI, command], capture_output=True, text=True,
+                           env=dict(_env(), A=str(a), B=str(b)))
+    assert pipes.returncode == files.returncode, pipes.stderr
+    if command == "survey":
+        assert _json_without_paths(pipes.stdout) == _json_without_paths(files.stdout)
+    else:
+        got, want = json.loads(pipes.stdout), json.loads(files.stdout)
+        assert [t["p_value"] for t in got["tests"]] == [t["p_value"] for t in want["tests"]]
+        assert [t["statistic"] for t in got["tests"]] == [t["statistic"] for t in want["tests"]]
+
+
+def test_survey_reads_a_fifo_given_by_path(tmp_path):
+    b = tmp_path / "b.fa"
+    b.write_bytes(f">invented\n{SEQ[100_000:130_000]}\n".encode())
+    with fifo_with(tmp_path, SHORT_FASTA) as path:
+        done = subprocess.run([*CLI, "survey", str(path), str(b), "--depth", "4", "--json", "-q", "--no-cache"],
+                              capture_output=True, text=True, env=_env())
+    assert done.returncode == 0, done.stderr
+    doc = json.loads(done.stdout)
+    assert [s["length"] for s in doc["sources"]] == [len(SHORT), 30_000]

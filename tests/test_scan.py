@@ -163,3 +163,28 @@ def test_errors_name_the_parameter():
         with pytest.raises(ParameterError) as err:
             scan_stream(arr, **kwargs)
         assert err.value.parameter == name and "--" not in str(err.value)
+
+
+def _logistic_csv(path, n: int, x0: float = 0.4) -> None:
+    x, rows = x0, ["x"]
+    for _ in range(n):
+        x = 4.0 * x * (1.0 - x)
+        rows.append(repr(x))
+    path.write_text("\n".join(rows) + "\n")
+
+
+@pytest.mark.parametrize("delay", [1, 2])
+def test_scan_of_ordinal_patterns_reports_a_per_step_rate(tmp_path, delay):
+    # The pattern stream of the logistic map at r = 4 is a factor of the map, so its entropy rate per step is at
+    # most the map's Kolmogorov-Sinai entropy, 1 bit (Bandt, Keller & Pompe 2002, Nonlinearity 15:1595, from
+    # memory); a single pattern of order 3 carries up to log2 3! = 2.58 bits, so a scan that read the entropy
+    # of single patterns (depth 1) would report about 2.3 bits here.
+    path = tmp_path / "logistic.csv"
+    _logistic_csv(path, 20_000)
+    run = subprocess.run([*CLI, "scan", str(path), "--format", "numeric", "--ordinal", "3", "--delay", str(delay),
+                          "--window", "4000", "--json", "-q"], capture_output=True, text=True)
+    assert run.returncode == 0, run.stderr
+    doc = json.loads(run.stdout)
+    assert doc["depth"] >= delay + 1
+    rates = [iv["entropy_rate"] for iv in doc["intervals"]]
+    assert rates and max(rates) <= 1.05, rates

@@ -106,13 +106,13 @@ def _nobody() -> tuple[int, int]:
     return pw.pw_uid, pw.pw_gid
 
 
-def _as_nobody(args: list[str], env: dict[str, str]) -> subprocess.CompletedProcess:
+def _as_nobody(args: list[str], env: dict[str, str], timeout: float | None = None) -> subprocess.CompletedProcess:
     uid, gid = _nobody()
     if shutil.which("setpriv"):
         cmd = ["setpriv", f"--reuid={uid}", f"--regid={gid}", "--clear-groups", *args]
     else:
         cmd = ["runuser", "-u", "nobody", "--", *args]
-    return subprocess.run(cmd, capture_output=True, text=True, env=env, cwd="/")
+    return subprocess.run(cmd, capture_output=True, text=True, env=env, cwd="/", timeout=timeout)
 
 
 def _plain_env(**extra: str) -> dict[str, str]:
@@ -260,3 +260,44 @@ def test_a_squatted_shared_folder_is_not_used(world):
     assert not list(squat.iterdir())
     # the private folder of that run was removed at exit
     assert [p.name for p in tmp.iterdir()] == [squat.name]
+
+
+def _one_sentence(done: subprocess.CompletedProcess) -> str:
+    lines = [ln for ln in done.stderr.splitlines() if ln.strip()]
+    assert done.returncode == 2, done.stderr
+    assert "Traceback" not in done.stderr
+    assert len(lines) == 1 and lines[0].startswith("error: ") and lines[0].endswith("."), done.stderr
+    return lines[0]
+
+
+@needs_root
+def test_an_unreadable_input_is_one_sentence_for_nobody(world):
+    secret = world["base"] / "secret.fa"
+    shutil.copy(world["fasta"], secret)
+    secret.chmod(0o600)  # root's file: nobody may not read it
+    done = _as_nobody([world["python"], "-m", "fractalseq", "count", str(secret)], world["env"])
+    line = _one_sentence(done)
+    assert "secret.fa" in line and "permission denied" in line.lower() and "permissions" in line
+
+
+@needs_root
+@pytest.mark.parametrize("argv", [
+    ("count", "{fasta}", "--depth", "4", "--save", "{ro}/counts.npz"),
+    ("learn", "{fasta}", "--depth", "3", "-o", "{ro}/model.npz"),
+    ("render", "{fasta}", "-o", "{ro}/picture.png"),
+    ("profile", "{fasta}", "--boot", "0", "--out", "{ro}/report"),
+    ("scan", "{fasta}", "--window", "2000", "--out", "{ro}/scan"),
+    ("survey", "{fasta}", "{fasta}", "--out", "{ro}/survey"),
+], ids=["count-save", "learn", "render", "profile", "scan", "survey"])
+def test_a_read_only_output_place_is_refused_before_any_work(world, argv):
+    """Item 11 of the hostile-input issue: the user's path is named, never a temporary ``.part`` file, and the
+    refusal comes first (the pause hook before the counting kernel is armed: a run that got that far would hang)."""
+    ro = world["base"]  # root's folder, 0755: nobody cannot create anything in it
+    args = [a.format(fasta=world["fasta"], ro=ro) for a in argv]
+    env = dict(world["env"], FRACTALSEQ_PAUSE_AT="words.kernel:1")
+    before = sorted(p.name for p in ro.iterdir())
+    done = _as_nobody([world["python"], "-m", "fractalseq", *args], env, timeout=300)
+    line = _one_sentence(done)
+    target = Path(args[args.index("--save" if "--save" in args else "-o" if "-o" in args else "--out") + 1]).name
+    assert target in line and ".part" not in line and "Permission denied" in line, line
+    assert sorted(p.name for p in ro.iterdir()) == before

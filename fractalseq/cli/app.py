@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import importlib
 import os
+import re
 import sys
 
 import typer
@@ -78,6 +79,9 @@ def _register_all() -> None:
         module.register(app)
 
 
+from fractalseq.runner import pause_point  # noqa: E402 - the test hook, light
+
+pause_point("cli.import", 1)  # test hook: blocks while the command modules are about to be imported
 _register_all()
 
 
@@ -104,42 +108,118 @@ def main(argv: list[str] | None = None) -> int:
 
 def _run(argv: list[str] | None) -> int:
     try:
+        from fractalseq.cli import common
+
+        common.interrupt_note = None
         result = app(args=argv, prog_name="fractalseq", standalone_mode=False)
+        if result == 130:  # typer turns an uncaught Ctrl-C into Exit(130), returned here without a word
+            return _interrupted()
         return int(result or 0)
     except FractalseqError as exc:
-        from fractalseq.cli.common import option_hint
+        from fractalseq.cli.common import option_hint, safe
 
         hint = option_hint(getattr(exc, "parameter", None))
-        typer.echo(f"error: {exc}{hint}" if not hint else f"error: {str(exc).rstrip('.')}{hint}.", err=True)
+        text = safe(str(exc))  # messages quote paths and symbols from the input: no terminal control reaches the screen
+        typer.echo(f"error: {text}{hint}" if not hint else f"error: {text.rstrip('.')}{hint}.", err=True)
         return EXIT_USAGE
     except typer.Exit as exc:
+        if exc.exit_code == 130:
+            return _interrupted()
         return int(exc.exit_code)
     except KeyboardInterrupt:
-        typer.echo("interrupted: finished outputs are kept, nothing half-written was left.", err=True)
-        return 130
-    except MemoryError:
-        typer.echo("error: out of memory; use a smaller depth or split the input.", err=True)
+        return _interrupted()
+    except MemoryError as exc:
+        from fractalseq.cli.common import safe
+
+        typer.echo(safe(f"error: {_memory_sentence(exc, argv)}"), err=True)
         return EXIT_USAGE
     except OSError as exc:
+        from fractalseq.cli.common import safe
+
         where = f" ({exc.filename})" if getattr(exc, "filename", None) else ""
-        typer.echo(f"error: {exc.strerror or exc}{where}; check the path and permissions.", err=True)
+        typer.echo(safe(f"error: {exc.strerror or exc}{where}; check the path and permissions."), err=True)
         return EXIT_USAGE
     except Exception as exc:  # click usage errors and the like
+        if _caused_by_interrupt(exc):
+            # Ctrl-C inside a compiled kernel surfaces as "SystemError: ... returned a result with an
+            # exception set" (the interrupt is its cause or context): an interruption all the same
+            return _interrupted()
         usage, abort = _click_exceptions()
         if isinstance(exc, usage):
             if type(exc).__name__ == "NoArgsIsHelpError":  # the help was printed already
                 return EXIT_USAGE
             return _usage_error(exc)
         if isinstance(exc, abort):
-            typer.echo("interrupted.", err=True)
-            return 130
+            return _interrupted()
         if os.environ.get("FRACTALSEQ_DEBUG"):
             raise
+        from fractalseq.cli.common import safe
+
         typer.echo(
-            f"error: internal failure ({type(exc).__name__}: {exc}); please report it with the command you ran.",
+            safe(f"error: internal failure ({type(exc).__name__}: {exc}); please report it with the command you ran."),
             err=True,
         )
         return 3
+
+
+INTERRUPTED = "interrupted: finished outputs are kept, nothing half-written was left."
+
+
+def _interrupted() -> int:
+    """Report an interruption in one line (exit status 130, the shell's 128 + SIGINT)."""
+    import signal
+
+    # a second Ctrl-C while the message is printed must not turn into a traceback
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN) if _main_thread() else None
+    try:
+        from fractalseq.cli import common
+
+        typer.echo(common.interrupt_note or INTERRUPTED, err=True)
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGINT, previous)
+    return 130
+
+
+def _main_thread() -> bool:
+    import threading
+
+    return threading.current_thread() is threading.main_thread()
+
+
+def _caused_by_interrupt(exc: BaseException) -> bool:
+    from fractalseq.cli.common import caused_by_interrupt
+
+    return caused_by_interrupt(exc)
+
+
+#: Command -> the options that set how much memory it allocates (named when memory runs out).
+MEMORY_OPTIONS: dict[str, str] = {
+    "count": "--depth (or split the input)",
+    "render": "--size",
+    "profile": "--depth and --boot",
+    "learn": "--depth and --max-cells",
+    "score": "--window (and the model file's size: learn it with a smaller --depth or --max-cells)",
+    "next": "the model file's size (learn it with a smaller --depth or --max-cells)",
+    "survey": "--depth, --boot and --workers",
+    "drift": "--depth, --block and --permutations",
+    "scan": "--window and --depth",
+    "demo": "--length",
+    "templates": "the size of the input",
+}
+
+
+def _memory_sentence(exc: MemoryError, argv: list[str] | None) -> str:
+    """What ran out (numpy names the array it failed to allocate) and which options control it."""
+    words = list(sys.argv[1:] if argv is None else argv)
+    command = next((w for w in words if not w.startswith("-")), "")
+    # numpy says "Unable to allocate 273. MiB ...": drop the bare full stop so the sentence stays one sentence
+    detail = re.sub(r"(\d)\.(?!\d)", r"\1", " ".join(str(exc).split()))
+    what = f" ({detail.rstrip('.')})" if detail else ""
+    options = MEMORY_OPTIONS.get(command)
+    where = f" while running {command}" if command in MEMORY_OPTIONS else ""
+    fix = f"use smaller values of {options}" if options else "use smaller options or a smaller input"
+    return f"out of memory{where}{what}; {fix}."
 
 
 def _click_exceptions() -> tuple[tuple[type, ...], tuple[type, ...]]:
@@ -162,7 +242,9 @@ def _usage_error(exc: Exception) -> int:
     message = " ".join(str(exc.format_message()).split()).rstrip(".")
     ctx = getattr(exc, "ctx", None)
     command = getattr(ctx, "command_path", None) or "fractalseq"
-    typer.echo(f"error: {message}; see {command} --help.", err=True)
+    from fractalseq.cli.common import safe
+
+    typer.echo(safe(f"error: {message}; see {command} --help."), err=True)
     return EXIT_USAGE
 
 

@@ -101,6 +101,7 @@ def survey(
 
     Example: fractalseq survey genomes/ phage.fa --out survey --workers 2
     """
+    common.protect_inputs(paths, from_list)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader
     from fractalseq.io._outputs import StagedFolder
     from fractalseq.jobs._files import survey_cache, survey_files
@@ -140,10 +141,12 @@ def survey(
 
         try:
             result = survey_files(specs, options, common_cuts=common_cuts, engine=eng, cache=plan, progress=progress, per_record=per_record)
-        except KeyboardInterrupt:
+        except (KeyboardInterrupt, SystemError) as exc:
+            if not common.caused_by_interrupt(exc):
+                raise
             bar.stop()
             kept = " finished sources are kept in the cache; run the same command again to resume" if store.enabled else ""
-            typer.echo(f"interrupted:{kept or ' nothing was written'}.", err=True)
+            common.interrupt_note = f"interrupted:{kept or ' nothing was written'}."
             raise typer.Exit(130) from None
     for note in result.cache_notes:
         common.err_console.print(f"note: {note}.", markup=False, highlight=False)
@@ -264,6 +267,7 @@ def drift(
 
     Example: fractalseq drift logs/monday.log logs/tuesday.log --format log --alpha 0.01
     """
+    common.protect_inputs(baseline, new)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader
     from fractalseq.compare._drift import DriftOptions
     from fractalseq.jobs._drift_columns import batch_columns, drift_columns
@@ -422,6 +426,7 @@ def scan(
 
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
+    common.protect_inputs(path)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader
     from fractalseq.jobs._files import parse_penalty, scan_file
 

@@ -30,10 +30,13 @@ def demo(
     Example: fractalseq demo --out demo-report
     """
     from fractalseq.demo import CAUTION, run_demo, summary_json
-    from fractalseq.io._outputs import prepare_folder
+    from fractalseq.io._outputs import check_folder
     from fractalseq.datasets._scenario import SCENARIO_NOTE
 
-    prepare_folder(out, force)  # refuse a file or a non-empty folder before any work
+    from fractalseq.datasets._scenario import check_size
+
+    check_size(length)  # the memory a sample length implies, before any folder or note
+    check_folder(out, force)  # refuse a file, a non-empty folder or an unwritable place before any work (creates nothing)
     if not quiet and not json_out:
         common.err_console.print(Text(SCENARIO_NOTE, style="bold"))
     with common.err_console.status("starting", spinner="dots") if not quiet else _Null() as status:

@@ -130,6 +130,7 @@ def learn(
 
     Example: fractalseq learn strainA.fna.gz strainB.fna.gz -o kleb.npz
     """
+    common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader_options
     from fractalseq.jobs._learn_score import learn_files
 
@@ -233,6 +234,7 @@ def score(
 
     Example: fractalseq score --online genome.fna.xz --window 50000 --json
     """
+    common.protect_inputs(paths, model)  # no output may replace an input, even with --force
     from fractalseq.cli.inputs import reader_options
     from fractalseq.jobs._learn_score import score_files
 
@@ -256,6 +258,9 @@ def score(
         mk = r.baselines.get("markov")
         comp = r.baselines.get("compressors")
         cname, cbits = _compressor_summary(comp) if comp else ("", float("nan"))
+        if not r.length:  # nothing the model knows (a log of new templates only): listed below, not scored
+            t.add_row(common.safe(r.name), "0", "–", "–", "–", "–", "–", "–")
+            continue
         t.add_row(
             common.safe(r.name), f"{r.length:,}", f"{r.bits_per_symbol:.4f}", f"{r.top1_accuracy:.3f}", f"{r.top3_accuracy:.3f}",
             f"{r.expected_calibration_error:.4f}",
@@ -280,7 +285,7 @@ def score(
                 rt.add_column(col, justify="left" if col == "record" else "right")
             for rec in r.records:
                 bps = rec.bits_per_symbol
-                rt.add_row(rec.name, f"{rec.start:,}", f"{rec.length:,}", "-" if bps is None else f"{bps:.4f}")
+                rt.add_row(common.safe(rec.name), f"{rec.start:,}", f"{rec.length:,}", "-" if bps is None else f"{bps:.4f}")
             common.out_console.print(rt)
         if r.most_surprising_windows:
             unit = r.unit
@@ -301,10 +306,12 @@ def score(
             common.out_console.print(wt)
         m = r.memory
         gone = f"evictions {m.evictions:,}" if r.mode == "online" else f"pruned at learning {m.cells_pruned:,}"
-        common.out_console.print(
-            f"{p}: cells cap {m.cells_cap:,}, stored {m.cells_stored:,}, {gone}, tables {m.table_bytes / 2**20:.1f} MiB; "
-            f"depths {', '.join(map(str, r.depths))}; {'both strands' if r.reverse_complement else 'one strand'}."
-        )
+        if r.length:  # (a source of length 0 was not scored: no tables to speak of)
+            common.out_console.print(
+                f"{common.safe(p)}: cells cap {m.cells_cap:,}, stored {m.cells_stored:,}, {gone}, tables "
+                f"{m.table_bytes / 2**20:.1f} MiB; depths {', '.join(map(str, r.depths))}; "
+                f"{'both strands' if r.reverse_complement else 'one strand'}."
+            )
         common.read_notes(r.read_notes, p if len(report.sources) > 1 else "")
     common.caution_line(report.note)
 

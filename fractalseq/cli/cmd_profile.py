@@ -265,6 +265,7 @@ def profile(
 
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
     """
+    common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.io._outputs import StagedFolder, to_json
     from fractalseq.jobs._profile import STEPS, ProfileSettings, contract, profile_caution, profile_source
     from fractalseq.report.profile import safe_name, write_profile_index, write_profile_report

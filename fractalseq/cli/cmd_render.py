@@ -17,7 +17,7 @@ def render(
     path: str = typer.Argument(..., help="Input file (any supported format, optionally compressed); - reads standard input."),
     out: Path = typer.Option(..., "--out", "-o", help="PNG file to write."),
     ratio: float = common.RATIO,
-    size: int = typer.Option(512, "--size", help="Image width and height in pixels (8..8192)."),
+    size: int = typer.Option(512, "--size", min=8, max=8192, help="Image width and height in pixels (8..8192)."),
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,
     policy: str = common.POLICY,
@@ -27,7 +27,7 @@ def render(
     ordinal: int = common.ORDINAL,
     delay: int = common.DELAY,
     ties: str = common.TIES,
-    drop: int = typer.Option(20, "--drop", help="Points dropped at each segment start (the transient remembering the start)."),
+    drop: int = typer.Option(20, "--drop", min=0, help="Points dropped at each segment start (the transient remembering the start)."),
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,
 ) -> None:
@@ -38,6 +38,7 @@ def render(
 
     Example: fractalseq render reference/lambda_virus.fa --out lambda.png --ratio 0.5
     """
+    common.protect_inputs(path)  # no output may replace an input, even with --force
     from fractalseq import encoding
     from fractalseq.report.density import render_png
     from fractalseq.io._outputs import check_writable
@@ -49,7 +50,7 @@ def render(
     arr = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties).read(path)
     corners = encoding.corner_layout(arr.alphabet.size)
     check = encoding.overlap_check(k, corners)
-    pts = encoding.points(arr, k, drop=max(0, drop))
+    pts = encoding.points(arr, k, drop=drop)
     label = "non-overlapping maps" if not check.overlapping else "overlapping maps"
     title = f"{arr.name}: encoding, k = {k:g} ({label}), {len(arr):,} symbols"
     labels = tuple(arr.alphabet.symbols) if arr.alphabet.size <= 16 and arr.alphabet.single_characters else ()

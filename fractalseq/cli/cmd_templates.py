@@ -39,6 +39,7 @@ def templates(
 
     Example: fractalseq templates /var/log/dpkg.log --csv dpkg-templates.csv
     """
+    common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.jobs._templates import mine_logs  # imported here: --help and completion need speed
     from fractalseq.results import CAUTION_LOGS
 

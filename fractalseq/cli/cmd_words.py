@@ -26,7 +26,7 @@ def count(
     delay: int = common.DELAY,
     ties: str = common.TIES,
     save: Optional[Path] = typer.Option(None, "--save", help="Write the merged counts to this .npz file (loads without pickle)."),
-    top: int = typer.Option(0, "--top", help="Also list the TOP most frequent words at the deepest depth (0 = none)."),
+    top: int = typer.Option(0, "--top", min=0, help="Also list the TOP most frequent words at the deepest depth (0 = none)."),
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,
@@ -52,6 +52,7 @@ def count(
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
+    common.protect_inputs(paths)  # no output may replace an input, even with --force
     from fractalseq.jobs._files import count_files  # imported here: numba makes it slow, and --help/completion need speed
 
     if save is not None:

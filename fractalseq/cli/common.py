@@ -10,6 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 import re
+from pathlib import Path
 
 import typer
 from rich.console import Console, ConsoleDimensions
@@ -136,7 +137,41 @@ OPTION_OF: dict[str, str] = {
     "max_cells": "--max-cells",
     "learning_rate": "--learning-rate",
     "reverse_complement": "--strands",
+    "length": "--length",
+    "log_lines": "--log-lines",
+    "size": "--size",
+    "drop": "--drop",
+    "top": "--top",
 }
+
+
+#: The one line printed when the run is interrupted, when a command has a more precise one than the default.
+interrupt_note: str | None = None
+
+
+def caused_by_interrupt(exc: BaseException) -> bool:
+    """True when ``exc`` is a KeyboardInterrupt or was raised while one was being delivered (cause/context chain).
+
+    Ctrl-C that lands while a compiled (numba) kernel runs is delivered when the
+    kernel returns and can surface as ``SystemError: ... returned a result with
+    an exception set`` whose context is the KeyboardInterrupt: still an interruption.
+    """
+    seen: set[int] = set()
+    link: BaseException | None = exc
+    while link is not None and id(link) not in seen:
+        if isinstance(link, KeyboardInterrupt):
+            return True
+        seen.add(id(link))
+        link = link.__cause__ or link.__context__
+    return False
+
+
+def protect_inputs(*groups) -> None:
+    """Declare a command's inputs (paths, lists of paths): no output may replace them (io._outputs.protect_inputs)."""
+    from fractalseq.io._outputs import protect_inputs as protect
+
+    for group in groups:
+        protect([group] if isinstance(group, (str, Path)) or group is None else list(group))
 
 
 def option_hint(parameter: str | None) -> str:

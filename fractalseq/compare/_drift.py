@@ -118,6 +118,12 @@ class DriftOptions(Result):
             raise ParameterError(f"block must be a positive whole number of symbols, not {self.block!r}.", parameter="block")
         if not isinstance(self.permutations, (int, np.integer)) or self.permutations < 19:
             raise ParameterError("Use at least 19 permutations (the smallest p-value is 1/(R+1)).", parameter="permutations")
+        from fractalseq.guards import check_memory
+
+        # every permutation keeps one statistic per figure (8 bytes each) until the p-values are taken
+        per = 8 * max(1, len(self.figures))
+        check_memory(int(self.permutations) * per, f"{int(self.permutations)} permutations (their statistics, {per} bytes each)",
+                     "permutations", "use fewer permutations")
         if not 0.0 < self.alpha < 1.0:
             raise ParameterError(f"The level alpha must lie strictly between 0 and 1, not {self.alpha}.", parameter="alpha")
         if self.adjust not in ADJUSTMENTS:
@@ -133,6 +139,9 @@ class DriftOptions(Result):
 
 # ================================================================ automatic choices
 def _auto_depth(alphabet: Alphabet, shortest: int) -> int:
+    from fractalseq.alphabet import require_two_symbols
+
+    require_two_symbols(alphabet, "Each batch")
     n = 1
     while n < 3 and n < alphabet.max_depth and float(alphabet.size) ** (n + 1) * WORDS_PER_CELL <= shortest:
         n += 1
@@ -307,6 +316,13 @@ def drift_test(
         raise InputError("A batch holds no symbols; give inputs with data.")
     if ta.counts.sum() == 0 or tb.counts.sum() == 0:
         raise ParameterError(f"A batch has no word of length {depth}; use a smaller depth.", parameter="depth")
+    if options.block is not None and ta.blocks + tb.blocks < 3:
+        # one block per batch: no permutation can change anything, so the test could never say a thing
+        raise ParameterError(
+            f"Blocks of {block} symbols leave {ta.blocks} + {tb.blocks} blocks in the batches "
+            f"({la} and {lb} symbols), too few to permute; use a block well below the shorter batch.",
+            parameter="block",
+        )
     if depth > 1 and float(joint.size) ** depth * WORDS_PER_CELL > min(la, lb):
         notes.append(f"few words per possible {depth}-word; the word tests have little power. Use a smaller --depth")
     return _permutation_test(ta, tb, depth, block, joint, options, notes)

@@ -30,6 +30,7 @@ Genomic output is for research, not for clinical decisions.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -38,6 +39,7 @@ from numba import njit
 
 from fractalseq import __version__
 from fractalseq.compare._changepoint import Segmentation, segment_series
+from fractalseq.entropy._depth import ordinal_possible_words
 from fractalseq.errors import ParameterError
 from fractalseq.io._outputs import to_json
 from fractalseq.results import CAUTION_GENERAL, Result, caution_for, is_log_alphabet
@@ -133,12 +135,39 @@ def window_counts(codes, starts, depth, bits, window, step, n_windows):
     return N, Kw, Kc, Sw, Sc
 
 
-def choose_scan_depth(alphabet_size: int, window: int, max_depth: int) -> int:
-    """Largest n with ``A**n * 20 <= window`` (at least 1, at most ``max_depth``)."""
+def choose_scan_depth(alphabet_size: int, window: int, max_depth: int, order: int = 0, delay: int = 1) -> int:
+    """Largest n with ``possible n-words * 20 <= window`` (at least 1, at most ``max_depth``).
+
+    Possible n-words are ``A**n``; for a stream of ordinal patterns of order ``m`` (``order``) and
+    delay ``tau`` they are ``m!**min(n, tau) * m**max(n - tau, 0)`` (consecutive patterns overlap),
+    and the depth is at least ``tau + 1``: the entropy rate at depth ``n`` conditions on ``n - 1``
+    patterns, and only the pattern ``tau`` steps back shares values with the next one, so shallower
+    depths give the entropy of single patterns (up to ``log2 m!``), not a per-step rate (up to
+    ``log2 m``).
+    """
+    if order:
+        lowest = min(int(delay) + 1, max_depth)
+        n = lowest
+        while n < max_depth and ordinal_possible_words(order, n + 1, delay) * WORDS_PER_CELL <= window:
+            n += 1
+        return n
     n = 1
     while n < max_depth and float(alphabet_size) ** (n + 1) * WORDS_PER_CELL <= window:
         n += 1
     return n
+
+
+def ordinal_shape(arr: SymbolArray) -> tuple[int, int]:
+    """``(order m, delay tau)`` when ``arr`` holds ordinal patterns (alphabet ``ordinal<m>`` of ``m!`` symbols), else ``(0, 1)``."""
+    hit = re.fullmatch(r"ordinal(\d+)", arr.alphabet.name or "")
+    if hit is None or not 2 <= int(hit.group(1)) <= 8 or arr.alphabet.size != math.factorial(int(hit.group(1))):
+        return 0, 1
+    extra = getattr(getattr(arr, "report", None), "extra", None) or {}
+    try:
+        delay = max(int(dict(extra.get("numeric", {})).get("delay", 1)), 1)
+    except (TypeError, ValueError):
+        delay = 1
+    return int(hit.group(1)), delay
 
 
 def surprise_series(arr: SymbolArray) -> np.ndarray | None:
@@ -335,7 +364,10 @@ def scan_stream(
     if T < window:
         raise ParameterError(f"{arr.name} has {T} symbols, fewer than one window of {window}; use a smaller window.", parameter="window")
     if depth is None:
-        depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth)
+        from fractalseq.alphabet import require_two_symbols
+
+        require_two_symbols(arr.alphabet, arr.name or "The input")
+        depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth, *ordinal_shape(arr))
     if depth < 1 or depth >= window:
         raise ParameterError(f"The depth must lie between 1 and the window length; got {depth}.", parameter="depth")
     starts, figures, notes = window_figures(arr, int(window), step, int(depth), ratio, seed)

@@ -134,6 +134,35 @@ def _iid_renyi(p: np.ndarray, q: float) -> float:
     return float(math.log2((p**q).sum()) / (1.0 - q))
 
 
+#: Simulated samples of the scenario, and the fewest bytes a base costs while the demo makes and reads it
+#: (its code, its FASTA text, and its 8-byte word address when counted).
+SAMPLES = 5
+BYTES_PER_BASE = 10
+
+
+def check_size(length: object, log_lines: object = 6_000) -> tuple[int, int]:
+    """Refuse, before anything is simulated, sample lengths or log sizes that cannot be simulated here.
+
+    Raises
+    ------
+    ParameterError
+        ``length`` below 5000 or beyond the memory it implies (``parameter="length"``), or
+        ``log_lines`` below 100 or beyond memory (``parameter="log_lines"``).
+    """
+    from fractalseq.errors import ParameterError
+    from fractalseq.guards import check_memory
+
+    for name, value, least in (("length", length, 5_000), ("log_lines", log_lines, 100)):
+        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < least:
+            raise ParameterError(f"{name} must be a whole number of at least {least}, not {value!r}.", parameter=name)
+    check_memory(SAMPLES * int(length) * BYTES_PER_BASE,
+                 f"{SAMPLES} simulated samples of {int(length)} bases (at least {BYTES_PER_BASE} bytes a base)",
+                 "length", "use a smaller length")
+    check_memory(int(log_lines) * 200, f"two log batches of {int(log_lines)} lines (about 100 bytes a line)",
+                 "log_lines", "use fewer log lines")
+    return int(length), int(log_lines)
+
+
 def simulate_sources(length: int, seed: int) -> list[tuple[str, str, np.ndarray, dict, float, tuple | None]]:
     """The simulated symbiont samples: (name, description, codes, renyi_bits, entropy_rate, island)."""
     qs = (0.0, 1.0, 2.0)
@@ -285,6 +314,7 @@ def generate(folder: str | Path, seed: int = 7, length: int = 120_000, log_lines
         Lines per log batch (the second batch adds failure lines).
     """
     folder = Path(folder)
+    length, log_lines = check_size(length, log_lines)
     truths = []
     for name, desc, codes, renyi, h, island in simulate_sources(length, seed):
         path = folder / "samples" / f"{name}.fa"

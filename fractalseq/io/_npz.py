@@ -175,7 +175,9 @@ def read_container(path: str | Path, expected_format: str, max_bytes: int = DEFA
     """
     path = Path(path)
     if not path.exists():
-        raise InputError(f"{path} does not exist; check the path.")
+        from fractalseq.guards import path_problem
+
+        raise InputError(f"{path} {path_problem(str(path)) or 'cannot be opened; check the path'}.")
     if path.is_dir():
         raise InputError(f"{path} is a folder, not a {expected_format} file; give the .npz file.")
     try:

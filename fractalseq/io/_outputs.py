@@ -52,6 +52,32 @@ def to_json(data: Any) -> str:
     return json.dumps(_clean(data), indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
 
 
+#: Real paths of this run's inputs (:func:`protect_inputs`): no output may replace one, even with ``force``.
+_protected: set[str] = set()
+
+
+def protect_inputs(paths: Iterable[str | Path | None]) -> None:
+    """Declare the run's inputs (files or folders; ``-`` and missing paths are skipped).
+
+    :func:`check_writable` then refuses an output file that is one of them, and
+    :func:`check_folder` an output folder that is or holds one (replacing it with
+    ``force`` would delete the input).  The command line declares each command's
+    inputs before it checks its outputs; :func:`tracking_folders` forgets them.
+    """
+    for p in paths:
+        if p is None or str(p) in ("", "-") or not os.path.exists(p):
+            continue
+        _protected.add(os.path.realpath(p))
+
+
+def _input_inside(folder: Path) -> str | None:
+    root = os.path.realpath(folder)
+    for p in sorted(_protected):
+        if p == root or p.startswith(root.rstrip(os.sep) + os.sep):
+            return p
+    return None
+
+
 def _refusal(message: str, parameter: str) -> OutputError:
     """An :class:`OutputError` naming the parameter that would allow the write (the command line adds its option)."""
     error = OutputError(message)
@@ -64,11 +90,68 @@ def check_writable(path: Path, force: bool) -> None:
     path = Path(path)
     if path.exists() and path.is_dir():
         raise OutputError(f"{path} is a folder, not a file; give a file name.")
+    if os.path.lexists(path) and not path.exists():
+        raise OutputError(f"{path} is a symbolic link that leads nowhere (or to itself); remove it or give another file name.")
+    if path.exists() and not path.is_file():
+        # a device, a pipe or a socket: replacing it by a renamed file (as --force would) must never happen
+        raise OutputError(f"{path} is a {_special_kind(path)}, not a regular file; give a file name.")
+    if path.exists() and os.path.realpath(path) in _protected:
+        raise OutputError(f"{path} is one of the inputs and writing it would destroy it; give another output file name.")
     if path.exists() and not force:
         raise _refusal(f"{path} already exists; allow overwriting it or choose another name.", "force")
     parent = path.parent if str(path.parent) else Path(".")
     if parent.exists() and not parent.is_dir():
         raise OutputError(f"{parent} is a file, not a folder; choose another output folder.")
+    probe_writable(path)
+
+
+def _nearest_existing(folder: Path) -> Path:
+    for candidate in (folder, *folder.parents):
+        if os.path.lexists(candidate):
+            return candidate
+    return Path(".")  # pragma: no cover - a relative path always ends at "."
+
+
+def probe_writable(path: Path | str, shown: Path | str | None = None) -> None:
+    """Refuse, before any work, an output ``path`` whose folder this process cannot write.
+
+    Creates and removes one empty temporary file named like :func:`write_bytes`'s
+    temporaries (``.NAME.XXXXXXXX.part``) in the folder that will receive
+    ``path`` (or in the nearest existing folder above it, where the missing
+    folders would be created), so a read-only folder, a read-only file system
+    or a missing permission is found before the computation, and the message
+    names the user's path, never a temporary name.
+    """
+    path = Path(path)
+    label = path if shown is None else shown  # the user's path, as given
+    parent = path.parent if str(path.parent) else Path(".")
+    where = _nearest_existing(parent)
+    if not where.is_dir():
+        raise OutputError(f"{where} is a file, not a folder; choose another place for {label}.")
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=where)
+    except OSError as exc:
+        raise OutputError(
+            f"{label} cannot be written: {where} refuses new files ({exc.strerror}); choose another place or fix its permissions."
+        ) from None
+    os.close(fd)
+    try:
+        os.unlink(tmp)
+    except OSError:  # pragma: no cover - removed by someone else
+        pass
+
+
+def _special_kind(path: Path) -> str:
+    import stat
+
+    mode = os.stat(path).st_mode
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "device"
+    if stat.S_ISFIFO(mode):
+        return "named pipe"
+    if stat.S_ISSOCK(mode):
+        return "socket"
+    return "special file"
 
 
 def _current_umask() -> int:
@@ -157,7 +240,10 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
     path.parent.mkdir(parents=True, exist_ok=True)
     remove_stale_parts(path)
     with _signals_deferred():
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+        try:
+            fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+        except OSError as exc:
+            raise OutputError(f"{path} cannot be written ({exc.strerror}); choose another place or fix its permissions.") from None
         try:
             os.fchmod(fd, 0o666 & ~_UMASK)  # mkstemp makes 0600; give the usual permissions
             with os.fdopen(fd, "wb") as fh:
@@ -165,11 +251,16 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
                 fh.flush()
                 os.fsync(fh.fileno())
             os.replace(tmp, path)
-        except BaseException:
+        except BaseException as exc:
             try:
                 os.unlink(tmp)
             except FileNotFoundError:
                 pass
+            if isinstance(exc, OSError) and not isinstance(exc, OutputError):
+                # name the user's path, never the temporary file (a full disk, a quota, a vanished folder)
+                raise OutputError(
+                    f"{path} could not be written ({exc.strerror or exc}); free space or choose another place."
+                ) from None
             raise
     for stage in _open_stages:
         if stage.path in path.parents:
@@ -232,6 +323,7 @@ def prepare_folder(folder: Path | str, force: bool) -> Path:
         raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
     if top is not None and _created is not None:
         _created.append(top)
+    probe_writable(folder / "report", shown=folder)
     return folder
 
 
@@ -249,6 +341,7 @@ def tracking_folders():
     """
     global _created
     outer, _created = _created, []
+    protected_before = set(_protected)
     mine = _created
     stages_before = list(_open_stages)
 
@@ -265,6 +358,8 @@ def tracking_folders():
         yield discard_empty
     finally:
         _created = outer
+        _protected.clear()
+        _protected.update(protected_before)
         for stage in [st for st in _open_stages if st not in stages_before]:
             stage.discard()  # a run that ended without committing its report folder leaves no trace
 
@@ -291,10 +386,20 @@ def check_folder(folder: Path | str, force: bool) -> Path:
     given = Path(folder)  # named in messages as the user wrote it
     if given.exists() and not given.is_dir():
         raise OutputError(f"{given} is a file, not a folder; choose another output folder.")
+    # (a folder holding the working directory is filled in place, entry by entry, never replaced)
+    inside = _input_inside(given) if given.exists() and not _holds_cwd(Path(os.path.abspath(given))) else None
+    if inside is not None:
+        raise OutputError(f"The output folder {given} holds the input {inside}, which replacing the folder would "
+                          "delete; choose another output folder.")
     if given.exists() and any(p for p in given.iterdir() if not p.name.startswith(".")) and not force:
         raise _refusal(f"{given} already holds files; allow overwriting them or choose another folder.", "force")
     folder = Path(os.path.abspath(given))  # "." and "out/.." get a name and a parent
-    return folder.resolve() if folder.is_symlink() and folder.is_dir() else folder
+    folder = folder.resolve() if folder.is_symlink() and folder.is_dir() else folder
+    # the report is built beside the folder and renamed into place: its parent must take new entries
+    probe_writable(folder / "report", shown=given)
+    if folder.is_dir():
+        probe_writable(folder.parent / folder.name, shown=given)
+    return folder
 
 
 #: Staged report folders opened and not yet committed or discarded.
@@ -316,8 +421,9 @@ class StagedFolder:
     entries of the existing folder that the new one lacks (a survey's ``.cache``)
     are moved into the new folder first, so they survive.  An interrupted run
     (:meth:`discard`, or the command line's :func:`tracking_folders`) leaves
-    nothing under the final name; siblings left by a killed run (older than this
-    process) are removed when the same folder is staged again.
+    nothing under the final name; siblings left by a killed run (no live process
+    holds their ``flock``; where locks are unavailable, older than this process)
+    are removed when the same folder is staged again.
 
     Also a context manager: commits on success, discards on any exception.
     """
@@ -337,6 +443,7 @@ class StagedFolder:
             _remove_stale_stages(parent, folder.name)
             self.path = Path(tempfile.mkdtemp(prefix=f".{folder.name}{_PARTIAL}", dir=parent))
             os.chmod(self.path, 0o777 & ~_UMASK)  # mkdtemp makes 0700; give the usual permissions
+            self._lock = _lock_folder(self.path)  # held while this process lives: the sibling is not stale
         except OSError as exc:
             raise OutputError(f"Cannot create the output folder {folder} ({exc.strerror}); choose another place.") from None
         self.folder = folder
@@ -363,6 +470,7 @@ class StagedFolder:
             os.rename(self.path, self.folder)
             self.done = True
             _open_stages.remove(self)
+            self._release()
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
         return self.folder
@@ -379,8 +487,14 @@ class StagedFolder:
                 os.replace(entry, target)
             self.done = True
             _open_stages.remove(self)
+            self._release()
         shutil.rmtree(self.path, ignore_errors=True)
         return self.folder
+
+    def _release(self) -> None:
+        fd, self._lock = getattr(self, "_lock", None), None
+        if fd is not None:
+            os.close(fd)
 
     def discard(self) -> None:
         """Remove the unfinished folder (nothing is left under the final name)."""
@@ -389,6 +503,7 @@ class StagedFolder:
         if self.done:
             return
         self.done = True
+        self._release()
         if self in _open_stages:
             _open_stages.remove(self)
         shutil.rmtree(self.path, ignore_errors=True)
@@ -413,15 +528,60 @@ def _holds_cwd(folder: Path) -> bool:
     return cwd == target or target in cwd.parents
 
 
+def _lock_folder(path: Path) -> int | None:
+    """Hold an exclusive ``flock`` on the folder ``path`` (its descriptor stays open while this process lives).
+
+    A staged folder is locked by the run that builds it; the lock goes with the
+    process, so a sibling nobody holds is the leftover of a killed run, whatever
+    its time stamps say.  ``None`` where locks are not available.
+    """
+    try:
+        import fcntl
+
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | getattr(os, "O_CLOEXEC", 0))
+    except (ImportError, OSError):
+        return None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        os.close(fd)
+        return None
+    return fd
+
+
+def _unheld(path: str) -> bool | None:
+    """True when no process holds the folder's lock, False when one does, None when that cannot be told."""
+    fd = _lock_folder(Path(path))
+    if fd is not None:
+        os.close(fd)
+        return True
+    try:
+        import fcntl  # noqa: F401 - locks exist, so the failure means someone holds it
+    except ImportError:
+        return None
+    return False if os.path.isdir(path) else None
+
+
 def _remove_stale_stages(parent: Path, name: str) -> None:
-    """Remove ``.NAME.partial-XXXXXXXX`` / ``.NAME.old-XXXXXXXX`` siblings a killed run left (older than this process)."""
+    """Remove ``.NAME.partial-XXXXXXXX`` / ``.NAME.old-XXXXXXXX`` siblings a killed run left.
+
+    A ``partial`` sibling is stale when no live process holds its lock (a run
+    holds the lock of the folder it builds until it ends); where locks cannot be
+    told, and for ``old`` siblings (which live only for the instant of a swap),
+    when it is older than this process.
+    """
     import shutil
 
-    pattern = re.compile(re.escape(f".{name}") + "(?:" + re.escape(_PARTIAL) + "|" + re.escape(_OLD) + ")" + _MKSTEMP_PART)
+    pattern = re.compile(re.escape(f".{name}") + "(" + re.escape(_PARTIAL) + "|" + re.escape(_OLD) + ")" + _MKSTEMP_PART)
     for entry in os.scandir(parent):
         try:
-            if (pattern.fullmatch(entry.name) and entry.is_dir(follow_symlinks=False)
-                    and entry.stat(follow_symlinks=False).st_mtime < PROCESS_START):
+            match = pattern.fullmatch(entry.name)
+            if not match or not entry.is_dir(follow_symlinks=False):
+                continue
+            free = _unheld(entry.path) if match.group(1) == _PARTIAL else None
+            if free is False:
+                continue
+            if free or entry.stat(follow_symlinks=False).st_mtime < PROCESS_START:
                 shutil.rmtree(entry.path, ignore_errors=True)
         except OSError:
             continue

@@ -253,14 +253,21 @@ def drift_files(
         raise ParameterError("Standard input can be read only once; give '-' for one batch at most.")
     base_specs, new_specs = batch_specs(baseline, stdin_lines), batch_specs(new, stdin_lines)
     cut, note = reader.with_baseline_cuts([s.path for s in base_specs])
+    from fractalseq.jobs._sources import is_stream_path
+
+    def opened(s):
+        stream = cut.open(s.path, name=s.name)
+        # a pipe can be read once: the test passes over each batch more than once, so hold it in memory
+        return stream.to_array() if s.path != "-" and is_stream_path(s.path) else stream
+
     if per_record:
         from fractalseq.jobs._records import record_sources
 
         base = [arr for _, arr in record_sources(base_specs, cut)]
         fresh = [arr for _, arr in record_sources(new_specs, cut)]
     else:
-        base = [cut.open(s.path, name=s.name) for s in base_specs]
-        fresh = [cut.open(s.path, name=s.name) for s in new_specs]
+        base = [opened(s) for s in base_specs]
+        fresh = [opened(s) for s in new_specs]
     result = drift_test(base, fresh, options, engine or SerialEngine(), on_done=on_done)
     if note:
         notes = result.notes

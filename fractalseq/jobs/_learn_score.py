@@ -304,9 +304,11 @@ def score_files(
             res = model.evaluate(src, window=size, top_windows=top, baselines=baselines)
         else:
             res = evaluate_online(src, window=size, top_windows=top, baselines=baselines, **(params or {}))
-        if res.length == 0:
-            raise InputError(f"{p} holds no usable symbols; check the file and the alphabet and format it is read with.")
         rep = arr.report if arr is not None else stream.report
+        if res.length == 0 and (len(paths) == 1 or not rep.extra.get("unlisted_templates")):
+            raise InputError(f"{p} holds no usable symbols; check the file and the alphabet and format it is read with.")
+        # a log none of whose templates the model knows: kept as a source of length 0 with its unseen templates
+        # listed, so the other files' results are not lost
         alphabets.append(stream.alphabet)
         values = {f.name: getattr(res, f.name) for f in dataclasses.fields(res)}
         values["name"] = p
@@ -324,8 +326,11 @@ def score_files(
         ))
         if on_source is not None:
             on_source(p)
-    total_bits = sum(s.total_bits for s in scored)
+    total_bits = sum(s.total_bits for s in scored if s.length)
     length = sum(s.length for s in scored)
+    if length == 0:
+        raise InputError("None of the inputs holds a symbol the model can score (every template is new to it); "
+                         "learn a model on logs of the same kind.")
     return ScoreReport(
         mode="fitted" if model is not None else "online",
         model=model_name,

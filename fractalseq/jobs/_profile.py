@@ -322,7 +322,10 @@ def _checked_input(arr: SymbolArray | SymbolStream, settings: ProfileSettings) -
     if arr.alphabet.size < 2:
         what = f"{arr.name} has" if arr.name and arr.name != "stream" else "The alphabet has"
         kind = "templates (all its lines are one event kind)" if arr.alphabet.name == "templates" else "symbols"
-        raise InputError(f"{what} fewer than 2 distinct {kind}; there is no complexity to measure.")
+        raise InputError(
+            f"{what} fewer than 2 distinct {kind}, so there is no complexity to measure; give data with at least "
+            "two different symbols, or read it with a fixed alphabet (e.g. dna)."
+        )
     L = len(arr)
     if L < 2:
         raise InputError(f"The stream has {L} symbol(s); a profile needs at least 2.")

@@ -14,7 +14,22 @@ from fractalseq.errors import InputError
 
 _GLOB_CHARS = set("*?[")
 
-__all__ = ["SourceSpec", "expand_inputs"]
+__all__ = ["SourceSpec", "expand_inputs", "is_stream_path"]
+
+
+def is_stream_path(path: str) -> bool:
+    """True for standard input (``-``) and for a pipe or character device given by path (``<(cmd)``, a FIFO).
+
+    Such an input can be read once only: jobs that need it more than once read it
+    into memory (or a temporary copy) first, as they do standard input.
+    """
+    if path == "-":
+        return True
+    try:
+        mode = os.stat(path).st_mode
+    except OSError:
+        return False
+    return stat.S_ISFIFO(mode) or stat.S_ISCHR(mode) or stat.S_ISSOCK(mode)
 
 
 @dataclass(frozen=True)
@@ -55,8 +70,11 @@ def _list_entries(list_file: str | None, stdin_lines: Sequence[str] | None) -> I
     lp = Path(list_file)
     try:
         fh = open(lp, encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(f"The list file {list_file} does not exist; check the path.") from None
+    except (FileNotFoundError, NotADirectoryError) as exc:
+        from fractalseq.guards import path_problem
+
+        why = path_problem(str(lp)) or f"cannot be read ({exc.strerror}); check the path"
+        raise InputError(f"The list file {list_file} {why}.") from None
     except OSError as exc:
         raise InputError(f"The list file {list_file} cannot be read ({exc.strerror or exc}); give a UTF-8 text file.") from None
     with fh:
@@ -123,7 +141,9 @@ def expand_inputs(items: Sequence[str], list_file: str | None = None, stdin_line
                 raise InputError(f"The pattern {item} matches no file; check the pattern (quote it for the shell).")
             paths.extend(found)
         else:
-            raise InputError(f"Input {item} does not exist; check the path.")
+            from fractalseq.guards import path_problem
+
+            raise InputError(f"Input {item} {path_problem(str(p)) or 'is neither a file nor a folder; give a file'}.")
     if not paths:
         raise InputError("No inputs were given; name files, folders, patterns or a list file.")
     if paths.count("-") > 1 or ("-" in paths and list_file == "-"):

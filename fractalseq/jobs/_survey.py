@@ -44,7 +44,7 @@ from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
 from fractalseq.io._outputs import to_json
 from fractalseq.jobs._inputs import ReaderOptions, check_seed
-from fractalseq.jobs._sources import SourceSpec, expand_inputs
+from fractalseq.jobs._sources import SourceSpec, expand_inputs, is_stream_path
 from fractalseq.report.survey import SurveyView
 from fractalseq.results import Result, caution_for
 from fractalseq.runner import Engine, SerialEngine, pause_point
@@ -443,9 +443,11 @@ def column_specs(specs: Sequence[SourceSpec], reader: ReaderOptions) -> list[Sou
 
 
 def _read_stdin(spec: SourceSpec, options: SurveyOptions) -> SymbolArray:
-    arr = options.reader_options.open("-", name=spec.name).to_array()
+    """Standard input or a pipe, read once into memory (its cache key is the hash of its symbols)."""
+    arr = options.reader_options.open(spec.path, name=spec.name).to_array()
     if len(arr) == 0:
-        raise InputError("Standard input holds no usable symbols; check the data, its format and the alphabet.")
+        what = "Standard input" if spec.path == "-" else f"The pipe {spec.path}"
+        raise InputError(f"{what} holds no usable symbols; check the data, its format and the alphabet.")
     return arr
 
 
@@ -508,7 +510,7 @@ def run_survey(
         raise ParameterError("Give one symbol array (or None) per source.", parameter="arrays")
     for i, spec in enumerate(specs):
         arr = given[i] if given is not None else None
-        if arr is None and spec.path == "-":
+        if arr is None and is_stream_path(spec.path):
             arr = _read_stdin(spec, options)
         content = _content_hash(spec, arr)
         key = cache_key(content, params if spec.column is None else {**params, "column": spec.column})

@@ -139,6 +139,11 @@ def read_state(path: str | Path, max_bytes: int = DEFAULT_MAX_BYTES) -> ModelSta
     """
     path = Path(path)
     if not path.exists():
+        from fractalseq.guards import path_problem
+
+        why = path_problem(str(path))
+        if why and not why.startswith("does not exist"):
+            raise InputError(f"Model file {path} {why}.")
         raise InputError(f"Model file {path} does not exist; check the path or run 'fractalseq learn' first.")
     if path.is_dir():
         raise InputError(f"{path} is a folder, not a model file; give the file written by 'fractalseq learn'.")

@@ -57,6 +57,11 @@ def check_replicates(n_boot: object) -> int:
             f"{n_boot} bootstrap replicates are too few for an interval; use 0 (none) or at least {MIN_REPLICATES}.",
             parameter="n_boot",
         )
+    from fractalseq.guards import check_memory
+
+    # a replicate draws at least 10 blocks (the block length is capped at a tenth of the stream), 24 bytes each
+    check_memory(int(n_boot) * REPLICATE_FLOOR_BYTES, f"{int(n_boot)} bootstrap replicates (their block draws, at least "
+                 f"{REPLICATE_FLOOR_BYTES} bytes each)", "n_boot", "use fewer replicates")
     return int(n_boot)
 
 
@@ -67,6 +72,10 @@ def _is_block_length(value: object) -> bool:
     from fractalseq.resampling._block_length import BlockLength
 
     return isinstance(value, BlockLength)
+
+
+#: Fewest bytes a replicate's block draws take (10 blocks x start, length and index, 8 bytes each).
+REPLICATE_FLOOR_BYTES = 240
 
 
 @dataclass(frozen=True)

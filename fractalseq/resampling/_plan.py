@@ -49,6 +49,11 @@ def make_plan(length: int, block_length: int, n_boot: int, seed: int = 0, scheme
     if T < 1:
         raise InputError("There is nothing to resample: the stream is empty.")
     ell = max(1, min(ell, T))
+    from fractalseq.guards import check_memory
+
+    blocks = -(-T // ell)
+    check_memory(24 * int(n_boot) * blocks, f"{int(n_boot)} bootstrap replicates of {blocks} blocks each (24 bytes a block)",
+                 "n_boot", "use fewer replicates or longer blocks")
     rng = np.random.default_rng(seed)
     if scheme == "nonoverlapping":
         nb = -(-T // ell)

@@ -221,4 +221,6 @@ def split_header(line: str) -> tuple[Header, str]:
             lv, pos = _level(line, pos)
     if not pos:
         return _EMPTY, line
+    if not (host or program or lv):
+        return _EMPTY, line[pos:]
     return Header(host, program, lv), line[pos:]

@@ -246,9 +246,11 @@ class TokenMasker:
         self._cache: dict[str, str] = {}
 
     def __call__(self, tokens: list[str]) -> list[str]:
-        get = self._cache.get
-        miss = self._miss
-        return [get(t) or miss(t) for t in tokens]
+        out = list(map(self._cache.get, tokens))  # most tokens were seen before: no Python step per token
+        if None in out:
+            miss = self._miss
+            out = [m if m is not None else miss(t) for m, t in zip(out, tokens)]
+        return out
 
     def _miss(self, tok: str) -> str:
         m = mask_token(tok) or tok

@@ -22,7 +22,10 @@ Each line goes through these steps:
    and ``upgrade libbar2:amd64 <*>`` join.  A position whose tokens differ
    between members becomes ``<*>``.  A message seen before (same
    text) joins the cluster it joined then.  A route with many clusters
-   compares a line with the ``MAX_SCAN`` most recently matched ones only.
+   compares a line with the ``MAX_SCAN`` most recently matched ones only;
+   one with more than a few finds the clusters sharing a word with the line
+   through an index of (position, word) -> clusters, which picks the cluster
+   the comparison in scan order would pick.
 4. Free-text tails: the lines sharing pinned tokens and routing head (the
    first ``depth`` tokens, at least one of them a constant word) form a
    *family*.  Once its lines show ``FREE_TAIL_LENGTHS`` different token
@@ -61,13 +64,15 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from itertools import islice
+from collections import Counter
+from itertools import chain, islice
 from operator import eq
 from typing import Sequence
 
 from fractalseq.errors import ParameterError
 from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
+from fractalseq.sources.routes import Route
 from fractalseq.sources.structured import Tokenizer
 
 __all__ = ["DEFAULT_DEPTH", "DEFAULT_THRESHOLD", "TAIL", "MinedTemplate", "TemplateIndex", "TemplateMiner", "line_signature"]
@@ -95,6 +100,8 @@ def _routable(tok: str) -> bool:
 #: distinct values kept per header field and template (the rest are counted under "")
 _FIELD_VALUES = 8
 _MSG_CACHE = 1 << 16
+#: routes with more clusters than this find a line's cluster through their word index instead of a scan
+_INDEXED = 16
 
 
 @dataclass
@@ -113,6 +120,22 @@ class MinedTemplate:
     def text(self) -> str:
         """The template as text: tokens joined by single spaces."""
         return " ".join(self.pinned + tuple(self.tokens)) if self.pinned else " ".join(self.tokens)
+
+    def absorb_header(self, hdr: Header) -> None:
+        """:meth:`absorb_fields` of one line's header (its non-empty fields, once each)."""
+        fields = self.fields
+        for name, v in zip(Header._fields, hdr):
+            if v:
+                slot = fields.get(name)
+                if slot is None:
+                    slot = fields[name] = {}
+                c = slot.get(v)
+                if c is not None:
+                    slot[v] = c + 1
+                elif len(slot) < _FIELD_VALUES:
+                    slot[v] = 1
+                else:
+                    slot[""] = slot.get("", 0) + 1
 
     def absorb_fields(self, hdr: Header | dict[str, dict[str, int]], n: int = 1) -> None:
         items = hdr.items() if isinstance(hdr, dict) else ((k, {v: n}) for k, v in zip(hdr._fields, hdr) if v)
@@ -187,7 +210,10 @@ class TemplateMiner:
         self._children: dict[tuple, set[str]] = {}
         self.tokenize = Tokenizer()
         self.clusters: list[MinedTemplate] = []
-        self._routes: dict[tuple, dict[int, None]] = {}
+        self._routes: dict[tuple, Route] = {}
+        #: per cluster, when it was made or last moved to the end of its route (the route's order)
+        self._stamp: list[int] = []
+        self._clock = 0
         self._families: dict[tuple, _Family] = {}
         self._absorbed: dict[int, int] = {}
         self._head_memo: dict[tuple, tuple[str, ...]] = {}
@@ -203,7 +229,7 @@ class TemplateMiner:
         hdr, msg = split_header(line)
         cid = self._seen.get(msg)
         if cid is None:
-            pinned, free = self.tokenize(msg)
+            pinned, free = self.tokenize.uncached(msg)  # ``_seen`` remembers messages
             cid = self._place(pinned, free)
             if len(self._seen) >= _MSG_CACHE:
                 self._seen.clear()
@@ -211,7 +237,7 @@ class TemplateMiner:
         c = self.clusters[cid]
         c.count += 1
         if hdr[0] or hdr[1] or hdr[2]:
-            c.absorb_fields(hdr)
+            c.absorb_header(hdr)
         self._lines += 1
         return cid
 
@@ -223,15 +249,15 @@ class TemplateMiner:
     def _words(self, toks: Sequence[str]) -> list[bool]:
         """Which tokens are plain words (:func:`_routable`), remembered per token."""
         memo = self._route_word
-        out = []
-        for tok in toks:
-            ok = memo.get(tok)
-            if ok is None:
-                ok = _routable(tok)
-                if len(memo) >= _MSG_CACHE:
-                    memo.clear()
-                memo[tok] = ok
-            out.append(ok)
+        out = list(map(memo.get, toks))
+        if None in out:
+            for i, ok in enumerate(out):
+                if ok is None:
+                    tok = toks[i]
+                    ok = out[i] = _routable(tok)
+                    if len(memo) >= _MSG_CACHE:
+                        memo.clear()
+                    memo[tok] = ok
         return out
 
     def _head(self, pinned: tuple[str, ...], n: int, free: list[str]) -> tuple[str, ...]:
@@ -296,16 +322,47 @@ class TemplateMiner:
             if grew and len(fam.lengths) >= FREE_TAIL_LENGTHS and len(fam.words) >= FREE_TAIL_WORDS:
                 return self._collapse(fam, pinned)
         route = (fkey, n)
-        members = self._routes.get(route)
-        if members is None:
-            members = self._routes[route] = {}
+        rt = self._routes.get(route)
+        if rt is None:
+            rt = self._routes[route] = Route()
+        members = rt.members
         clusters = self.clusters
         crowded = len(members) > MAX_SCAN
+        # only the plain words of the line (no digit, no inner punctuation) are evidence of agreement
+        words = self._words(free)
+        if len(members) > _INDEXED:
+            best = self._best_indexed(rt, free, words, crowded)
+        else:
+            best = self._best_scan(members, free, words, crowded)
+        if best >= 0:
+            c = clusters[best]
+            old = c.tokens
+            if old != free:  # positions where the line differs become (or stay) wildcards
+                new = [a if a == b else WILDCARD for a, b in zip(old, free)]
+                if new != old:
+                    c.tokens = new
+                    c.words = sum(self._words(new))
+                    rt.forget(best, old, new, c.words)
+            if crowded:  # most recently matched clusters are scanned first
+                del members[best]
+                members[best] = None
+                self._stamp[best] = self._clock = self._clock + 1
+            return best
+        cid = len(clusters)
+        clusters.append(MinedTemplate(list(free), pinned, 0, self._lines, words=sum(words)))
+        members[cid] = None
+        self._stamp.append(self._clock + 1)
+        self._clock += 1
+        rt.learn(cid, free, words)
+        fam.members.append(cid)
+        return cid
+
+    def _best_scan(self, members: dict[int, None], free: list[str], words: list[bool], crowded: bool) -> int:
+        """The cluster a line joins (-1: none), by comparing it with every scanned cluster of its route."""
+        clusters = self.clusters
         best = -1
         best_sim = -1
         best_wild = -1
-        # only the plain words of the line (no digit, no inner punctuation) are evidence of agreement
-        words = self._words(free)
         probe = [t if w else None for t, w in zip(free, words)]
         limit = self.threshold
         for cid in (islice(reversed(members), MAX_SCAN) if crowded else members):
@@ -323,20 +380,56 @@ class TemplateMiner:
                 wild = _wild(tpl, free)
                 if wild > best_wild:
                     best, best_wild = cid, wild
-        if best >= 0:
-            if clusters[best].tokens != free:  # positions where the line differs become (or stay) wildcards
-                c = clusters[best]
-                c.tokens = [a if a == b else WILDCARD for a, b in zip(c.tokens, free)]
-                c.words = sum(self._words(c.tokens))
-            if crowded:  # most recently matched clusters are scanned first
-                del members[best]
-                members[best] = None
-            return best
-        clusters.append(MinedTemplate(list(free), pinned, 0, self._lines, words=sum(words)))
-        cid = len(clusters) - 1
-        members[cid] = None
-        fam.members.append(cid)
-        return cid
+        return best
+
+    def _best_indexed(self, rt: Route, free: list[str], words: list[bool], crowded: bool) -> int:
+        """:meth:`_best_scan` found through the route's index of template words (same choice, no scan).
+
+        A cluster agrees with the line on ``same`` words, counted from the
+        index; one with no agreeing word qualifies only when its template has
+        no word at all (``rt.bare``).  Among the qualifying clusters of the
+        scanned ones (the ``MAX_SCAN`` most recent when crowded), the scan
+        keeps the first in scan order with the most agreeing words, then the
+        most wildcards where the line differs: the same is picked here.
+        """
+        idx = rt.index
+        same_of = Counter(chain.from_iterable(filter(None, [idx.get((i, t)) for i, (t, w) in enumerate(zip(free, words)) if w])))
+        for cid in rt.bare:
+            same_of[cid] = 0
+        if not same_of:
+            return -1
+        stamp = self._stamp
+        if crowded:
+            lo = stamp[next(islice(reversed(rt.members), MAX_SCAN - 1, None))]
+        else:
+            lo = -1
+        clusters = self.clusters
+        limit = self.threshold
+        best_sim = -1
+        tied: list[int] = []
+        for cid, same in same_of.items():
+            if stamp[cid] < lo:
+                continue
+            const = clusters[cid].words
+            if const and same <= limit * const and same < const:
+                continue
+            if same > best_sim:
+                best_sim = same
+                tied = [cid]
+            elif same == best_sim:
+                tied.append(cid)
+        if not tied:
+            return -1
+        if len(tied) == 1:
+            return tied[0]
+        # scan order: most recent first when crowded, else the route's order (oldest first)
+        tied.sort(key=stamp.__getitem__, reverse=crowded)
+        best, best_wild = tied[0], _wild(clusters[tied[0]].tokens, free)
+        for cid in tied[1:]:
+            wild = _wild(clusters[cid].tokens, free)
+            if wild > best_wild:
+                best, best_wild = cid, wild
+        return best
 
     def _collapse(self, fam: _Family, pinned: tuple[str, ...]) -> int:
         """The family's tail is free text: one template, the head then ``<...>``, takes all its lines."""

@@ -311,7 +311,9 @@ def locate(path: str | os.PathLike) -> Origin:
         if name == "":
             raise InputError("The input path is empty; give a file name or - for standard input.")
         if not p.exists():
-            raise InputError(f"{name} does not exist; check the path.")
+            from fractalseq.guards import path_problem
+
+            raise InputError(f"{name} {path_problem(name) or 'cannot be opened; check the path'}.")
         if p.is_dir():
             raise InputError(f"{name} is a folder, not a file; give a file inside it.")
         st = p.stat()

@@ -167,8 +167,7 @@ class Tokenizer:
             msg = _collapse_quotes(msg)
         if "<" in msg:
             msg = _collapse_angles(msg)
-        toks = self.mask(msg.split())
-        return toks
+        return self.mask(msg.split())
 
     def _structured(self, msg: str) -> tuple[tuple[str, ...], list[str]] | None:
         c = msg[0]
@@ -225,14 +224,22 @@ class Tokenizer:
         hit = self._cache.get(msg)
         if hit is not None:
             return hit
+        res = self.uncached(msg)
+        if len(self._cache) >= self._LIMIT:
+            self._cache.clear()
+        self._cache[msg] = res
+        return res
+
+    def uncached(self, msg: str) -> tuple[tuple[str, ...], list[str]]:
+        """:meth:`__call__` without its cache (for a caller that remembers messages itself)."""
         msg_s = msg.strip()
+        if msg_s and msg_s[-1] != "}" and "=" not in msg_s:
+            toks = self._text(msg_s)  # plain text: no JSON object, no logfmt pair
+            return (), toks if toks else [EMPTY_TOKEN]
         res = self._structured(msg_s) if msg_s else None
         if res is None:
             toks = self._text(msg_s)
             res = ((), toks if toks else [EMPTY_TOKEN])
         elif not res[1] and not res[0]:
             res = ((), [EMPTY_TOKEN])
-        if len(self._cache) >= self._LIMIT:
-            self._cache.clear()
-        self._cache[msg] = res
         return res

@@ -8,6 +8,7 @@ import numpy as np
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError
+from fractalseq.runner import pause_point
 from fractalseq.stream import ReadReport, SymbolStream
 from fractalseq.words._counts import WordCounter, WordCounts
 
@@ -42,6 +43,7 @@ def count_inputs(
     """
     counter = None
     reports: list[tuple[str, ReadReport]] = []
+    chunks = 0
     for name, stream in inputs:
         if counter is None:
             a = stream.alphabet
@@ -51,6 +53,8 @@ def count_inputs(
                 f"{name} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs."
             )
         for chunk in stream.chunks():
+            chunks += 1
+            pause_point("words.kernel", chunks)  # test hook: blocks just before a counting kernel runs
             counter.add(chunk.codes, chunk.starts)
         # close the open segment: inputs never continue each other
         counter.add(np.zeros(0, counter.alphabet.code_dtype), np.zeros(0, np.int64), final=True)
