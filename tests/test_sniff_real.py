@@ -85,29 +85,39 @@ def test_published_header_examples(tmp_path):
 
 
 # ------------------------------------------------- logs without a line header
-def test_apt_term_log_has_no_header_and_says_which_format(tmp_path):
+def test_apt_term_log_has_no_header_and_is_read_as_lines(tmp_path):
     # apt's term.log copies dpkg's terminal output: lines like "Unpacking x (1.0) ..." carry no time,
-    # only the "Log started: <date>" lines do (reference/logs/README.md); it is not judged an event log
+    # only the "Log started: <date>" lines do (reference/logs/README.md); it is not an event log with
+    # headers, but its lines are words, not sequence: a line-oriented log under the default alphabet
     path = LOGS / "apt-term-excerpt.log"
     lines = [ln for ln in path.read_text(errors="replace").splitlines() if ln.strip()][:200]
     assert sum(ln.startswith("Log started: ") for ln in lines) < len(lines) / 2
-    with pytest.raises(InputError) as info:
-        open_source(path)
-    msg = str(info.value)
-    assert "does not look like dna" in msg and "log for an event log" in msg
-    assert "\n" not in msg
-    assert detect_format(path, "learn") == "text"
-    assert len(open_source(path, fmt="log", alphabet="learn").alphabet) > 1
+    assert detect_format(path) == "log"
+    notes = _notes(path)
+    assert any("read as a line-oriented log" in n and "0 of 200 sampled lines start with a timestamp" in n
+               for n in notes), notes
+    assert detect_format(path, "learn") == "text"  # characters asked for: no rule turns them into a log
+    assert open_source(path).alphabet.symbols == open_source(path, fmt="log", alphabet="learn").alphabet.symbols
 
 
 @pytest.mark.parametrize("name", ["gdb-check-excerpt.log", "jtreg-output-excerpt.log"])
-def test_test_logs_without_times_stay_text_with_a_warning_note(name):
+def test_test_logs_without_times_are_line_oriented_logs(name):
     # DejaGnu "PASS: name" and jtreg "Passed: name" lines carry no time (reference/logs/README.md)
     path = LOGS / name
     assert detect_format(path, "learn") == "text"
-    assert detect_format(path) == "text"  # under dna: plain sequence, as before, but the note says so
+    assert detect_format(path) == "log"  # under dna: lines of words, few dna symbols
     notes = _notes(path)
-    assert any("choose the format (log, text, tokens)" in n for n in notes), notes
+    assert any("read as a line-oriented log" in n for n in notes), notes
+
+
+def test_lines_without_words_are_still_refused_under_dna(tmp_path):
+    # invented: lines of punctuation and digits hold no word and few dna symbols
+    path = tmp_path / "marks.txt"
+    path.write_text("%% ## ..\n== ** ;;\n@@ !! ~~\n")
+    with pytest.raises(InputError) as info:
+        open_source(path)
+    msg = str(info.value)
+    assert "does not look like dna" in msg and "log for an event log" in msg and "\n" not in msg
 
 
 # ------------------------------------------------------------- numeric tables
@@ -138,7 +148,7 @@ def test_an_alphabet_object_does_not_follow():
         open_source(LOGS / "dpkg-excerpt.log", alphabet=resolve("dna"))
 
 
-def test_prose_is_not_a_log(tmp_path):
+def test_prose_is_read_as_lines_under_dna(tmp_path):
     # invented prose: no line starts with a time
     path = tmp_path / "prose.txt"
     path.write_text(
@@ -147,10 +157,9 @@ def test_prose_is_not_a_log(tmp_path):
         "By noon the gulls had left for the fields behind the town.\n"
     )
     assert detect_format(path, "learn") == "text"
-    # under dna, IUPAC ambiguity letters make up over half of English letters: read as plain sequence as
-    # before, with a note naming the formats to choose
-    assert detect_format(path) == "text"
-    assert any("choose the format (log, text, tokens)" in n for n in _notes(path)), _notes(path)
+    # under dna, lines of words with few dna symbols are a line-oriented log; the note names the way back
+    assert detect_format(path) == "log"
+    assert any("choose the text format and the learn alphabet" in n for n in _notes(path)), _notes(path)
 
 
 # ----------------------------------------------------------------------- CLI
@@ -169,9 +178,19 @@ def test_cli_profile_detects_a_real_log():
     assert src["alphabet_size"] > 1
 
 
-def test_cli_refuses_a_log_without_times_in_one_sentence():
+def test_cli_reads_a_log_without_times_as_lines():
     res = _cli("profile", str(LOGS / "apt-term-excerpt.log"), "--json", "--boot", "0")
-    assert res.returncode != 0
+    assert res.returncode == 0, res.stderr
+    src = json.loads(res.stdout)["sources"][0]
+    assert src["input"]["format"] == "log"
+    assert any("read as a line-oriented log" in n for n in src["input"]["notes"])
+
+
+def test_cli_refuses_lines_without_words_in_one_sentence(tmp_path):
+    path = tmp_path / "marks.txt"  # invented: punctuation only, no word, no dna symbol
+    path.write_text("%% ## ..\n== ** ;;\n@@ !! ~~\n")
+    res = _cli("profile", str(path), "--json", "--boot", "0")
+    assert res.returncode == 2
     assert "Traceback" not in res.stderr
     assert "choose the format" in res.stderr
 

@@ -20,7 +20,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from fractalseq.errors import InputError
-from fractalseq.sources.logs import ReadStats, _lines
+from fractalseq.sources.logs import ReadStats, _lines, junk_note
 from fractalseq.sources.miner import TemplateMiner
 from fractalseq.sources.rawio import head, locate
 from fractalseq.sources.sniff import check_content, is_binary
@@ -64,7 +64,7 @@ class LogInput:
         if s.lines_cut:
             out.append(f"{s.lines_cut} over-long lines cut")
         if s.junk_bytes_skipped:
-            out.append(f"{s.junk_bytes_skipped} NUL or binary junk bytes skipped")
+            out.append(junk_note(s))
         if s.latin1_lines:
             out.append(f"{s.latin1_lines} lines that are not UTF-8 read as Latin-1")
         return out

@@ -258,6 +258,8 @@ def open_source(
         # a template alphabet given in advance (a model's) is kept; otherwise the templates are learned
         spool(origin)  # both read a first pass
         table = logs.fixed(origin, alphabet, learn_block) if isinstance(alphabet, Alphabet) else logs.learn(origin, learn_block)
+        if policy == "error" and table.stats.junk_bytes_skipped:
+            raise InputError(logs.junk_refusal(origin.name, table.stats))
 
         def log_factory(report: ReadReport) -> Iterator[Chunk]:
             begin(report)

@@ -10,9 +10,14 @@ ties by template text.  Blank lines are skipped (counted in a note).
 Reading is forgiving: a line that is not UTF-8 is decoded as Latin-1
 (counted), runs of NUL bytes and other binary junk (control bytes other than
 tab, line feed, vertical tab, form feed, carriage return and escape) are
-skipped (counted), and lines longer than ``LINE_LIMIT`` characters are cut
-(counted).  The counts are in ``report.extra`` (``lines_cut``,
-``junk_bytes_skipped``, ``latin1_lines``) and in a note when not zero.
+skipped (counted), a line whose control bytes make up more than 2 % of it
+once its NULs are set aside is binary junk and left out whole (its bytes
+counted with the junk, the number of such lines and the first one's line
+number in the note; it gives no symbol), and lines longer than
+``LINE_LIMIT`` characters are cut (counted).  The counts are in
+``report.extra`` (``lines_cut``, ``junk_bytes_skipped``, ``latin1_lines``)
+and in a note when not zero.  Under the ``error`` policy a log holding junk
+is refused (:func:`junk_refusal`, raised by :func:`fractalseq.sources.open_source`).
 
 The template table goes into ``report.extra["templates"]``: one entry per
 symbol in code order with the template text, its count, the 1-based line
@@ -35,6 +40,7 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError
 from fractalseq.sources.miner import TemplateIndex, TemplateMiner
 from fractalseq.sources.rawio import Origin, line_blocks
+from fractalseq.sources.sniff import junk_line_mask, line_junk
 from fractalseq.stream import Chunk, Positions, ReadReport, Record
 
 _EXAMPLE_CHARS = 500
@@ -51,6 +57,9 @@ class ReadStats:
     lines_cut: int = 0
     junk_bytes_skipped: int = 0
     latin1_lines: int = 0
+    #: lines left out whole as binary junk (no symbol), and the first one's line number (0: none)
+    junk_lines: int = 0
+    first_junk_line: int = 0
 
     def fill(self, report: ReadReport) -> None:
         report.extra["lines_cut"] = self.lines_cut
@@ -59,7 +68,7 @@ class ReadStats:
         if self.lines_cut:
             report.notes.append(f"{self.lines_cut} lines longer than {LINE_LIMIT} characters cut")
         if self.junk_bytes_skipped:
-            report.notes.append(f"{self.junk_bytes_skipped} NUL or binary junk bytes skipped")
+            report.notes.append(junk_note(self))
         if self.latin1_lines:
             report.notes.append(f"{self.latin1_lines} lines that are not UTF-8 read as Latin-1")
 
@@ -92,11 +101,44 @@ class TemplateTable:
         return [dict(e) for e in self.entries]
 
 
-def _decode(block: bytes, stats: ReadStats) -> list[str]:
-    """Lines of a block: junk bytes removed, UTF-8 or (per line) Latin-1, CR removed, long lines cut."""
+def junk_note(stats: ReadStats) -> str:
+    """The read note on skipped junk: bytes, and lines left out whole with the first one's number."""
+    note = f"{stats.junk_bytes_skipped} NUL or binary junk bytes skipped"
+    if stats.junk_lines:
+        note += (f", {stats.junk_lines} line{'s' if stats.junk_lines != 1 else ''} of binary junk left out "
+                 f"(the first at line {stats.first_junk_line})")
+    return note
+
+
+def junk_refusal(name: str, stats: ReadStats) -> str:
+    """The one-sentence refusal of a log holding junk under the ``error`` policy."""
+    where = f" (the first junk line is line {stats.first_junk_line})" if stats.first_junk_line else ""
+    return (f"{name} holds {stats.junk_bytes_skipped} NUL or binary junk bytes{where}, under the error policy; "
+            "use the skip or break policy to read the log without them.")
+
+
+def _strip_junk(block: bytes, stats: ReadStats, first_line: int) -> bytes:
+    """The block with NUL and control bytes removed; a line that is mostly junk is emptied (counted)."""
     clean = block.translate(None, _JUNK)
-    if len(clean) != len(block):
-        stats.junk_bytes_skipped += len(block) - len(clean)
+    if len(clean) == len(block):
+        return block
+    length, nul, control = line_junk(block)
+    bad = junk_line_mask(length, nul, control)
+    if bad.any():
+        parts = block.split(b"\n")
+        for i in np.flatnonzero(bad).tolist():
+            parts[i] = b""
+        stats.junk_lines += int(np.count_nonzero(bad))
+        if not stats.first_junk_line:
+            stats.first_junk_line = first_line + int(np.flatnonzero(bad)[0])
+        clean = b"\n".join(parts).translate(None, _JUNK)
+    stats.junk_bytes_skipped += len(block) - len(clean)
+    return clean
+
+
+def _decode(block: bytes, stats: ReadStats, first_line: int = 1) -> list[str]:
+    """Lines of a block: junk bytes and junk lines removed, UTF-8 or (per line) Latin-1, CR removed, long lines cut."""
+    clean = _strip_junk(block, stats, first_line)
     try:
         lines = clean.decode("utf-8").split("\n")
     except UnicodeDecodeError:
@@ -121,7 +163,7 @@ def _decode(block: bytes, stats: ReadStats) -> list[str]:
 def _lines(origin: Origin, block_size: int, stats: ReadStats) -> Iterator[tuple[int, list[str]]]:
     """Blocks of decoded lines: ``(first_line_number, lines)`` with CR and LF removed."""
     for first_line, block in line_blocks(origin, block_size):
-        yield first_line, _decode(block, stats)
+        yield first_line, _decode(block, stats, first_line)
 
 
 #: Logs with more non-blank lines than this are mined again on every pass instead of keeping
@@ -198,6 +240,7 @@ def _tally(origin: Origin, block_size: int, listed: tuple[str, ...] | None = Non
             else:
                 ids.append(np.asarray(raw, dtype=np.int64))
                 numbers.append(nums)
+    blank -= stats.junk_lines  # left out as junk, noted as such
     if not raw_counts:
         raise InputError(f"{origin.name} holds no log lines (only blank lines); give a log with events.")
     mined = miner._templates or []

@@ -3,13 +3,18 @@
 Rules of ``fmt="auto"``, applied to the first 64 KiB after decompression:
 
 1. Empty, or only blank lines: :class:`InputError`.
-2. Binary content (a NUL byte outside runs of 8 or more; NUL runs making up
-   half the block or more, or a block without a line end once they are set
-   aside; or, in the rest, more than 5 % control characters other
-   than tab, line feed, vertical tab, form feed, carriage return and escape
-   (colour codes in logs); or not
-   UTF-8 with more than 30 % bytes above 127): :class:`InputError`, unless the
-   alphabet is ``bytes`` and the format is ``auto`` or ``text``.
+2. Binary content: :class:`InputError`, unless the alphabet is ``bytes`` and
+   the format is ``auto`` or ``text``.  Judged by lines (cut at line feeds),
+   so that a text log holding a run of NUL bytes or a block of binary junk
+   (as a crash leaves) stays text: a line is junk when it holds a NUL byte or
+   when control bytes other than tab, line feed, vertical tab, form feed,
+   carriage return and escape (colour codes in logs) make up more than 2 %
+   of it once its NULs are set aside.  Binary when junk lines make up half
+   of the non-blank lines or more (an executable, an image, compressed or
+   random data: nearly every line), or when the other lines are not UTF-8
+   with more than 30 % bytes above 127.  The rules below judge the block
+   without its junk lines and NUL bytes (:func:`text_part`); the log reader
+   skips them and counts them (:mod:`fractalseq.sources.logs`).
 3. First non-blank character ``>``: **fasta**.
 4. First non-blank line starts with ``@``, followed by one or more sequence
    lines (letters, ``.``, ``*``, ``-``) and then a line starting with ``+``:
@@ -31,12 +36,19 @@ Rules of ``fmt="auto"``, applied to the first 64 KiB after decompression:
      ``<pri>1 ...``, bracketed ``[dd/Mon/yyyy:hh:mm:ss +zone]`` and the
      other times listed there), a first word that is a time (epoch seconds,
      TAI64N ``@4000...``), or a JSON object (``{...}`` on one line);
+   * else, for a preset only, **log** (a line-oriented log, one template
+     per line) when fewer than half of the characters are the preset's
+     symbols (ambiguity codes not counted) and the sampled lines are lines
+     of words (:func:`line_oriented`): at least one sampled line, at least
+     half of them holding two or more words (whitespace-separated tokens
+     holding a letter), and a median sampled line of at most 1,000
+     characters.  Build and test logs (DejaGnu ``PASS: ...``, jtreg
+     ``Passed: ...``, apt's ``term.log``) are read so; the note says why and
+     how to read characters instead (``text`` with the learned alphabet);
    * else, for the learned alphabet, **text**; for a preset, **text**
      (plain sequence, as in rule 6) with a note naming the formats to
      choose when symbols and ambiguity codes together make up at least half
-     of the characters, otherwise an :class:`InputError` naming them.  A
-     test or build log whose lines carry no time is not recognised as an
-     event log: read it with ``log`` explicitly, or as text.
+     of the characters, otherwise an :class:`InputError` naming them.
 
    The format so chosen brings its own alphabet (the log's templates, the
    numeric symbolization's bins), as with an explicit ``log`` or
@@ -72,7 +84,6 @@ from fractalseq.sources.headers import split_header
 from fractalseq.sources.templates import has_timestamp
 
 FORMATS: tuple[str, ...] = ("auto", "fasta", "fastq", "text", "tokens", "log", "numeric")
-_NUL_RUN = re.compile(rb"\x00{8,}")
 _CONTROL = np.ones(256, dtype=bool)
 _CONTROL[32:127] = False
 _CONTROL[128:] = False
@@ -80,21 +91,71 @@ for _b in b"\t\n\x0b\x0c\r\x1b":
     _CONTROL[_b] = False
 
 
+#: a line whose control bytes (NUL aside) exceed this share of its bytes is binary junk
+JUNK_CONTROL_SHARE = 0.02
+
+
+def line_junk(block: bytes) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per line of ``block`` (cut at line feeds): ``(length, NUL bytes, other control bytes)``.
+
+    Control bytes are those other than tab, line feed, vertical tab, form
+    feed, carriage return and escape (colour codes in logs).
+    """
+    arr = np.frombuffer(block, dtype=np.uint8)
+    nl = arr == 10
+    line = np.cumsum(nl) - nl  # a line feed belongs to the line it ends
+    n = int(line[-1]) + 1 if arr.size else 0
+    length = np.bincount(line, minlength=n)
+    nul = np.bincount(line, weights=arr == 0, minlength=n).astype(np.int64)
+    control = np.bincount(line, weights=_CONTROL[arr], minlength=n).astype(np.int64) - nul
+    return length, nul, control
+
+
+def junk_line_mask(length: np.ndarray, nul: np.ndarray, control: np.ndarray) -> np.ndarray:
+    """Lines that are binary junk: control bytes (NUL aside) over 2 % of the line once its NULs are set aside."""
+    return control > JUNK_CONTROL_SHARE * np.maximum(length - nul, 1)
+
+
+def text_part(block: bytes) -> bytes:
+    """The block without its junk lines and NUL bytes (what rule 3 onwards judge)."""
+    arr = np.frombuffer(block, dtype=np.uint8)
+    if not _CONTROL[arr].any():
+        return block
+    length, nul, control = line_junk(block)
+    bad = junk_line_mask(length, nul, control)
+    nl = arr == 10
+    keep = ~bad[np.cumsum(nl) - nl] & (arr != 0)
+    return arr[keep].tobytes()
+
+
 def is_binary(block: bytes) -> bool:
-    """True when ``block`` looks like binary data rather than text (rule 2 above)."""
+    """True when ``block`` looks like binary data rather than text (rule 2 above).
+
+    Judged by lines, so that a text log with a run of NUL bytes or a block of
+    junk inside it is still text: binary when the lines holding a NUL byte
+    or junk make up half of the non-blank lines or more, or when the rest is
+    not UTF-8 with more than 30 % bytes above 127.
+    """
     if not block:
         return False
-    if b"\x00" in block:
-        # a text log may hold blocks of NUL bytes (a file preallocated or cut by a crash): judge the rest
-        rest = _NUL_RUN.sub(b"", block)
-        if b"\x00" in rest or len(rest) * 2 < len(block) or b"\n" not in rest:
+    if b"\x00" not in block and not _CONTROL[np.frombuffer(block, dtype=np.uint8)].any():
+        bad = None
+    else:
+        length, nul, control = line_junk(block)
+        bad = (nul > 0) | junk_line_mask(length, nul, control)
+        arr = np.frombuffer(block, dtype=np.uint8)
+        nl = arr == 10
+        line = np.cumsum(nl) - nl
+        visible = np.bincount(line, weights=arr > 32, minlength=length.size)
+        nonblank = (visible > 0) | bad
+        if not nonblank.any():
+            return False
+        if 2 * int(np.count_nonzero(bad & nonblank)) >= int(np.count_nonzero(nonblank)):
             return True
-        block = rest
+        keep = ~bad[line]
+        block = arr[keep].tobytes()
     arr = np.frombuffer(block, dtype=np.uint8)
-    if _CONTROL[arr].mean() > 0.05:
-        return True
-    high = (arr >= 128).mean()
-    if high > 0.30:
+    if arr.size and (arr >= 128).mean() > 0.30:
         try:
             codecs.getincrementaldecoder("utf-8")().decode(block, final=False)
         except UnicodeDecodeError:
@@ -253,6 +314,31 @@ def classify(block: bytes) -> tuple[str, str]:
     return "", reason
 
 
+#: the line-oriented rule: at least this many sampled lines, half or more of them holding two or more words,
+#: and a median sampled line of at most this many characters
+LINE_RULE_MIN_LINES = 1
+LINE_RULE_MAX_MEDIAN = 1000
+
+
+def line_features(block: bytes) -> dict:
+    """Measurable features of the sampled lines (rule 5): count, lines of two or more words, median length.
+
+    A word is a whitespace-separated token holding a letter.
+    """
+    lines = sample_lines(block)
+    worded = sum(sum(any(c.isalpha() for c in tok) for tok in ln.split()) >= 2 for ln in lines)
+    lengths = sorted(len(ln) for ln in lines)
+    median = lengths[len(lengths) // 2] if lengths else 0
+    return {"lines": len(lines), "worded": worded, "median": median}
+
+
+def line_oriented(block: bytes) -> tuple[bool, dict]:
+    """True when the sampled lines are lines of words (rule 5's line-oriented log), with the features."""
+    f = line_features(block)
+    ok = f["lines"] >= LINE_RULE_MIN_LINES and 2 * f["worded"] >= f["lines"] and f["median"] <= LINE_RULE_MAX_MEDIAN
+    return ok, f
+
+
 _NUMERIC_ALPHABET = re.compile(r"(?:quantile|threshold|ordinal)\d+")
 
 
@@ -287,6 +373,7 @@ def detect_with_reason(block: bytes, alphabet: Alphabet | None, name: str, follo
         A preset alphabet holds too few of the characters and the content is
         neither a log nor a numeric table.
     """
+    block = text_part(block)  # junk lines (text with junk inside passed rule 2) are not judged
     if looks_fasta(block):
         return "fasta", "detected as FASTA: the first character is '>'"
     if looks_fastq(block):
@@ -299,23 +386,28 @@ def detect_with_reason(block: bytes, alphabet: Alphabet | None, name: str, follo
                 return fmt, f"{why}; read with the given {alphabet.name} alphabet"
         if alphabet.name != "bytes" and alphabet.single_characters and all(ord(s) < 128 for s in alphabet.symbols):
             share = alphabet_share(block, alphabet)
-            if share < 0.5:
-                why = ""
-                if follow:
-                    fmt, why = classify(block)
-                    if fmt:
-                        return fmt, f"{why}; the {alphabet.name} alphabet does not apply, the format's own is used"
-                    why = f" nor like an event log ({why})"
-                raise InputError(
-                    f"{name} does not look like {alphabet.name} sequence (only {share:.0%} of its first "
-                    f"characters are symbols of that alphabet){why}; choose the format (log for an event log "
-                    "whose lines carry no time, numeric, text, tokens) and the alphabet (e.g. learn) explicitly."
-                )
             strict = symbol_share(block, alphabet)
+            why = ""
             if follow and strict < 0.5:
                 fmt, why = classify(block)
                 if fmt:
                     return fmt, f"{why}; the {alphabet.name} alphabet does not apply, the format's own is used"
+                ok, f = line_oriented(block)
+                if ok:
+                    return "log", (
+                        f"read as a line-oriented log, one template per line: only {strict:.0%} of its first "
+                        f"characters are {alphabet.name} symbols and {f['worded']} of {f['lines']} sampled lines "
+                        f"hold two or more words (median {f['median']} characters a line; {why}); "
+                        "for characters choose the text format and the learn alphabet"
+                    )
+            if share < 0.5:
+                extra = f" nor like an event log ({why})" if why else ""
+                raise InputError(
+                    f"{name} does not look like {alphabet.name} sequence (only {share:.0%} of its first "
+                    f"characters are symbols of that alphabet){extra}; choose the format (log for an event log "
+                    "whose lines carry no time, numeric, text, tokens) and the alphabet (e.g. learn) explicitly."
+                )
+            if follow and strict < 0.5:
                 return "text", (
                     f"read as plain {alphabet.name} sequence, but only {strict:.0%} of its first characters are "
                     f"{alphabet.name} symbols ({share:.0%} with ambiguity codes) and {why}: for a log or prose "
