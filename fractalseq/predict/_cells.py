@@ -97,21 +97,60 @@ class CellTable:
         return int(self.cells.nbytes + self.ptr.nbytes + self.syms.nbytes + self.counts.nbytes)
 
 
+def depth_table(wc, n: int, reverse: bool = False) -> CellTable:
+    """The cells of depth ``n`` and the symbols that followed them (uint32 counts), from word counts.
+
+    With ``reverse`` the reverse complement of every (n+1)-word is counted too: the
+    reverse-complement addresses are sorted and merged with the forward words in one
+    pass, straight into the table (no copy of both strands side by side).
+    """
+    b = wc.alphabet.bits
+    words, counts = wc.words(n + 1)
+    words = np.ascontiguousarray(words, dtype=np.uint64)
+    if reverse:
+        rw = FK.revcomp_addresses(words, n + 1, b)
+        order = np.argsort(rw)  # addresses are unique: any sort gives the same order
+        rw = rw[order]
+        rc = counts[order]
+        del order
+    else:
+        rw, rc = np.zeros(0, np.uint64), counts[:0]
+    cells, ptr, syms, cnt, over = FK.strand_table(words, counts, rw, rc, b)
+    if over:
+        raise InputError("A cell was seen more than 4,294,967,295 times, beyond what a model stores; split the input.")
+    return CellTable(cells, ptr, syms, cnt)
+
+
 def cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, CellTable]:
     """Cells (contexts of depth n) and the symbols that followed them (a :class:`CellTable`) from word counts, for each n."""
-    a = wc.alphabet
-    out = {}
-    for n in orders:
-        words, counts = wc.words(n + 1)
-        words = np.ascontiguousarray(words, dtype=np.uint64)
-        counts = np.ascontiguousarray(counts, dtype=np.int64)
-        table = CellTable.from_words(words, counts, a.bits)
-        if reverse:
-            rw = FK.revcomp_addresses(words, n + 1, a.bits)
-            order = np.argsort(rw, kind="stable")
-            table = table.merge(CellTable.from_words(rw[order], counts[order], a.bits), a.bits)
-        out[n] = to_u32(table)
-    return out
+    return {n: depth_table(wc, n, reverse) for n in orders}
+
+
+def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: int) -> tuple[dict[int, CellTable], int]:
+    """:func:`cell_tables` with each depth beyond ``K_b`` cut to ``cap`` as soon as it is built; also the cells dropped.
+
+    :func:`prune_cells` drops cells in one global order (total class, deepest depth
+    first, then hash), so the cells of one deep depth that survive the cap over all
+    depths are a prefix of that depth's own order, no longer than what survives the
+    cap over that depth and the baseline depths alone.  Cutting each deep depth that
+    way as it is built, then applying :func:`prune_cells` over all depths, keeps
+    exactly the cells pruning at the end keeps, while no more than ``cap`` deep
+    cells of the depths already built are held at once.
+    """
+    tables: dict[int, CellTable] = {}
+    dropped = 0
+    for n in sorted(orders):
+        t = depth_table(wc, n, reverse)
+        if n > K_b:
+            fixed = {k: v for k, v in tables.items() if k <= K_b}
+            fixed[n] = t
+            del t
+            cut, gone = prune_cells(fixed, K_b, cap)
+            t = cut[n]
+            dropped += gone
+            del fixed, cut
+        tables[n] = t
+    return tables, dropped
 
 
 def to_u32(table: CellTable) -> CellTable:

@@ -290,6 +290,62 @@ def _revcomp_addresses(words, n, b):
 
 
 @njit(cache=True)
+def _strand_table(wa, ca, wb, cb, b, cells, ptr, syms, counts):
+    """Merge two sorted unique (word, count) tables into a cell table (equal words add; zero counts skipped).
+
+    With empty ``cells`` it only counts: returns ``(entries, cells)``; otherwise it fills
+    ``cells``, ``ptr``, ``syms`` and ``counts`` (uint32) and returns ``(entries, overflow)``,
+    ``overflow`` = 1 when a merged count exceeds ``2**32 - 1``.
+    """
+    fill = cells.shape[0] > 0
+    na = wa.shape[0]
+    nb = wb.shape[0]
+    ub = np.uint64(b)
+    smask = np.uint64((1 << b) - 1)
+    big = np.uint64(4294967295)
+    i = 0
+    j = 0
+    e = 0
+    c = -1
+    over = 0
+    prev = np.uint64(0)
+    while i < na or j < nb:
+        if j >= nb or (i < na and wa[i] < wb[j]):
+            w = np.uint64(wa[i])
+            n = np.uint64(ca[i])
+            i += 1
+        elif i >= na or wb[j] < wa[i]:
+            w = np.uint64(wb[j])
+            n = np.uint64(cb[j])
+            j += 1
+        else:
+            w = np.uint64(wa[i])
+            n = np.uint64(ca[i]) + np.uint64(cb[j])
+            i += 1
+            j += 1
+        if n == 0:
+            continue
+        ctx = w >> ub
+        if c < 0 or ctx != prev:
+            c += 1
+            prev = ctx
+            if fill:
+                cells[c] = ctx
+                ptr[c] = e
+        if fill:
+            syms[e] = np.uint32(w & smask)
+            if n > big:
+                over = 1
+                n = big
+            counts[e] = np.uint32(n)
+        e += 1
+    if fill:
+        ptr[c + 1] = e
+        return e, over
+    return e, c + 1
+
+
+@njit(cache=True)
 def _hash_cells(addr, depth):
     """:func:`cell_hash` of every address at one depth (a deterministic, unbiased order for pruning ties)."""
     out = np.empty(addr.shape[0], np.uint64)
@@ -359,6 +415,23 @@ def revcomp_addresses(words, n, b):
     """Addresses of the reverse complements of n-words (complement = code XOR (2**b - 1))."""
     _need(words.dtype == np.uint64 and 0 <= n * b <= 64, "uint64 words of at most 64 bits", "words")
     return _revcomp_addresses(words, n, b)
+
+
+def strand_table(wa, ca, wb, cb, b):
+    """Cells, entry pointers, symbols and uint32 counts of two sorted unique (n+1)-word tables added together.
+
+    Returns ``(cells, ptr, syms, counts, overflow)``; ``overflow`` is true when a count exceeds ``2**32 - 1``.
+    """
+    _need(wa.dtype == np.uint64 and wb.dtype == np.uint64 and ca.dtype == cb.dtype, "uint64 words and counts of one type", "words")
+    none = np.zeros(0, np.uint64)
+    e, c = _strand_table(wa, ca, wb, cb, b, none, np.zeros(0, np.int64), np.zeros(0, np.uint32), np.zeros(0, np.uint32))
+    cells, ptr = np.empty(c, np.uint64), np.empty(c + 1, np.int64)
+    syms, counts = np.empty(e, np.uint32), np.empty(e, np.uint32)
+    if c == 0:
+        ptr[0] = 0
+        return cells, ptr, syms, counts, False
+    _, over = _strand_table(wa, ca, wb, cb, b, cells, ptr, syms, counts)
+    return cells, ptr, syms, counts, bool(over)
 
 
 def hash_cells(addr, depth):
