@@ -346,6 +346,30 @@ def _strand_table(wa, ca, wb, cb, b, cells, ptr, syms, counts):
 
 
 @njit(cache=True)
+def _revcomp_in_range(words, counts, n, b, lo, hi, to_end, out_w, out_c):
+    """Reverse complements of n-words that fall in ``[lo, hi)`` (``[lo, end]`` with ``to_end``), with their counts.
+
+    With empty ``out_w`` it only counts them; returns how many there are.
+    """
+    fill = out_w.shape[0] > 0
+    ub = np.uint64(b)
+    symmask = np.uint64((1 << b) - 1)
+    k = 0
+    for i in range(words.shape[0]):
+        w = words[i]
+        r = np.uint64(0)
+        for _ in range(n):
+            r = (r << ub) | ((w & symmask) ^ symmask)
+            w >>= ub
+        if r >= lo and (to_end or r < hi):
+            if fill:
+                out_w[k] = r
+                out_c[k] = counts[i]
+            k += 1
+    return k
+
+
+@njit(cache=True)
 def _hash_cells(addr, depth):
     """:func:`cell_hash` of every address at one depth (a deterministic, unbiased order for pruning ties)."""
     out = np.empty(addr.shape[0], np.uint64)
@@ -432,6 +456,19 @@ def strand_table(wa, ca, wb, cb, b):
         return cells, ptr, syms, counts, False
     _, over = _strand_table(wa, ca, wb, cb, b, cells, ptr, syms, counts)
     return cells, ptr, syms, counts, bool(over)
+
+
+def revcomp_in_range(words, counts, n, b, lo: int, hi: int | None):
+    """Reverse complements (sorted) of the n-words that fall in ``[lo, hi)`` (``hi=None``: to the end), with their counts."""
+    _need(words.dtype == np.uint64 and 0 <= n * b <= 64, "uint64 words of at most 64 bits", "words")
+    lo_, hi_ = np.uint64(lo), np.uint64(0 if hi is None else hi)
+    m = _revcomp_in_range(words, counts, n, b, lo_, hi_, hi is None, np.zeros(0, np.uint64), counts[:0])
+    rw, rc = np.empty(m, np.uint64), np.empty(m, counts.dtype)
+    if m:
+        _revcomp_in_range(words, counts, n, b, lo_, hi_, hi is None, rw, rc)
+        order = np.argsort(rw)
+        rw, rc = rw[order], rc[order]
+    return rw, rc
 
 
 def hash_cells(addr, depth):
