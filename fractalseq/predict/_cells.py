@@ -265,14 +265,7 @@ def blended_at(depths, tables: dict, params: dict, addr: np.ndarray, syms: np.nd
         beta, d = params[m]
         t = tables[m]
         key = addr & np.uint64((1 << (b * m)) - 1)
-        i = np.minimum(np.searchsorted(t.cells, key), max(t.size - 1, 0))
-        found = (t.cells[i] == key) if t.size else np.zeros(addr.size, bool)
-        w = t.words(b)
-        wk = (key << np.uint64(b)) | syms.astype(np.uint64)
-        j = np.minimum(np.searchsorted(w, wk), max(w.size - 1, 0))
-        c = np.where((w[j] == wk) if w.size else False, t.counts[j] if w.size else 0, 0).astype(np.float64)
-        tot = t.totals()[i].astype(np.float64) if t.size else np.zeros(addr.size)
-        u = t.distinct()[i].astype(np.float64) if t.size else np.zeros(addr.size)
+        found, c, tot, u = FK.cell_lookup(t.cells, t.ptr, t.syms, t.counts, key, syms)
         q = (np.maximum(c - d, 0.0) + (beta + d * u) * p) / (tot + beta)
         p = np.where(found, q, 1.0 / A)
     return p

@@ -370,6 +370,31 @@ def _revcomp_in_range(words, counts, n, b, lo, hi, to_end, out_w, out_c):
 
 
 @njit(cache=True)
+def _cell_lookup(cells, ptr, syms, counts, keys, want, found, c, tot, used):
+    """For each (cell key, symbol): is the cell there, the symbol's count, the cell's total and distinct symbols."""
+    nc = cells.shape[0]
+    for q in range(keys.shape[0]):
+        k = keys[q]
+        lo = 0
+        hi = nc
+        while lo < hi:
+            mid = (lo + hi) >> 1
+            if cells[mid] < k:
+                lo = mid + 1
+            else:
+                hi = mid
+        if lo < nc and cells[lo] == k:
+            found[q] = True
+            t = np.int64(0)
+            for e in range(ptr[lo], ptr[lo + 1]):
+                t += np.int64(counts[e])
+                if syms[e] == want[q]:
+                    c[q] = np.float64(counts[e])
+            tot[q] = np.float64(t)
+            used[q] = np.float64(ptr[lo + 1] - ptr[lo])
+
+
+@njit(cache=True)
 def _hash_cells(addr, depth):
     """:func:`cell_hash` of every address at one depth (a deterministic, unbiased order for pruning ties)."""
     out = np.empty(addr.shape[0], np.uint64)
@@ -469,6 +494,19 @@ def revcomp_in_range(words, counts, n, b, lo: int, hi: int | None):
         order = np.argsort(rw)
         rw, rc = rw[order], rc[order]
     return rw, rc
+
+
+def cell_lookup(cells, ptr, syms, counts, keys, want):
+    """``(found, count of the symbol, cell total, distinct symbols)`` of each (cell key, symbol) pair in one cell table.
+
+    Absent cells and symbols give zeros.
+    """
+    _need(cells.dtype == np.uint64 and keys.dtype == np.uint64 and ptr.dtype == np.int64, "uint64 cells and keys, int64 ptr", "cells")
+    m = keys.shape[0]
+    found = np.zeros(m, np.bool_)
+    c, tot, used = np.zeros(m), np.zeros(m), np.zeros(m)
+    _cell_lookup(cells, ptr, syms, counts, keys, np.ascontiguousarray(want, dtype=syms.dtype), found, c, tot, used)
+    return found, c, tot, used
 
 
 def hash_cells(addr, depth):

@@ -125,8 +125,9 @@ class CellPredictor:
         Memory cap.  Online: rows of the count tables (default 2**24, less for large
         alphabets so the tables stay under 256 MiB; tables are sized by the input's length
         when it is known, and above 256 symbols they start small and double up to the cap);
-        fitted: cells kept after counting
-        (default 2**23), the rarest cells of the deepest depths are pruned first.
+        fitted: cells kept (default 2**23), the rarest cells of the deepest depths are pruned
+        first; the cap holds while the cell tables are built (a deep depth is built in address
+        parts and never held whole), with the cells that pruning at the end would keep.
     learning_rate:
         Online mode: step of the mixing-weight update (alphabets of at most 256 symbols; larger ones
         blend with fixed parameters and ignore it).
