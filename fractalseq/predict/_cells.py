@@ -12,6 +12,7 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.predict import _fitted_kernels as FK
 from fractalseq.predict._params import BETA_STEPS, DISCOUNTS, GRID_CELLS
+from fractalseq.words._kernels import merge_sorted_counts
 
 
 @dataclass(frozen=True)
@@ -135,20 +136,30 @@ def _part_tables(wc, n: int, reverse: bool):
     b = wc.alphabet.bits
     width = b * (n + 1)
     parts = BUILD_PARTS if width - 4 >= b else 1
-    words, counts = wc.words(n + 1)
-    words = np.ascontiguousarray(words, dtype=np.uint64)
+    # the leaf table itself at the deepest depth (no copy); the few segment tails merged into each part
+    words, counts, tw, tc = wc.words_unmerged(n + 1)
+    tc = tc.astype(counts.dtype)
     shift = width - 4
     for p in range(parts):
         lo = p << shift if parts > 1 else 0
         hi = (p + 1) << shift if p + 1 < parts else None
         i0 = int(np.searchsorted(words, np.uint64(lo)))
         i1 = words.size if hi is None else int(np.searchsorted(words, np.uint64(hi)))
+        j0 = int(np.searchsorted(tw, np.uint64(lo)))
+        j1 = tw.size if hi is None else int(np.searchsorted(tw, np.uint64(hi)))
+        fw, fc = words[i0:i1], counts[i0:i1]
+        if j1 > j0:
+            fw, fc = merge_sorted_counts(fw, fc, tw[j0:j1], tc[j0:j1])
         if reverse:
             rw, rc = FK.revcomp_in_range(words, counts, n + 1, b, lo, hi)
+            if tw.size:
+                tr, trc = FK.revcomp_in_range(tw, tc, n + 1, b, lo, hi)
+                if tr.size:
+                    rw, rc = merge_sorted_counts(rw, rc, tr, trc)
         else:
             rw, rc = np.zeros(0, np.uint64), counts[:0]
-        cells, ptr, syms, cnt, over = FK.strand_table(words[i0:i1], counts[i0:i1], rw, rc, b)
-        del rw, rc
+        cells, ptr, syms, cnt, over = FK.strand_table(fw, fc.astype(counts.dtype, copy=False), rw, rc.astype(counts.dtype, copy=False), b)
+        del rw, rc, fw, fc
         if over:
             raise InputError("A cell was seen more than 4,294,967,295 times, beyond what a model stores; split the input.")
         yield CellTable(cells, ptr, syms, cnt)
