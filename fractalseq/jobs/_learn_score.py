@@ -173,6 +173,7 @@ def learn_files(
     if wc.length == 0:
         raise InputError("The training inputs hold no usable symbols; check the files and the alphabet and format they are read with.")
     model.fit_counts(wc, reader=read)
+    del wc  # the word counts (about 16 bytes per input symbol) are not needed to save the model
     if out is not None:
         model.save(out, force=force)
     rows = tuple(

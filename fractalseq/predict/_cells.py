@@ -12,6 +12,7 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.predict import _fitted_kernels as FK
 from fractalseq.predict._params import BETA_STEPS, DISCOUNTS, GRID_CELLS
+from fractalseq.words._kernels import merge_sorted_counts
 
 
 @dataclass(frozen=True)
@@ -97,21 +98,162 @@ class CellTable:
         return int(self.cells.nbytes + self.ptr.nbytes + self.syms.nbytes + self.counts.nbytes)
 
 
+def depth_table(wc, n: int, reverse: bool = False) -> CellTable:
+    """The cells of depth ``n`` and the symbols that followed them (uint32 counts), from word counts.
+
+    With ``reverse`` the reverse complement of every (n+1)-word is counted too: the
+    reverse-complement addresses are sorted and merged with the forward words in one
+    pass, straight into the table (no copy of both strands side by side).
+    """
+    b = wc.alphabet.bits
+    words, counts = wc.words(n + 1)
+    words = np.ascontiguousarray(words, dtype=np.uint64)
+    if reverse:
+        rw = FK.revcomp_addresses(words, n + 1, b)
+        order = np.argsort(rw)  # addresses are unique: any sort gives the same order
+        rw = rw[order]
+        rc = counts[order]
+        del order
+    else:
+        rw, rc = np.zeros(0, np.uint64), counts[:0]
+    cells, ptr, syms, cnt, over = FK.strand_table(words, counts, rw, rc, b)
+    if over:
+        raise InputError("A cell was seen more than 4,294,967,295 times, beyond what a model stores; split the input.")
+    return CellTable(cells, ptr, syms, cnt)
+
+
 def cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, CellTable]:
     """Cells (contexts of depth n) and the symbols that followed them (a :class:`CellTable`) from word counts, for each n."""
-    a = wc.alphabet
-    out = {}
-    for n in orders:
-        words, counts = wc.words(n + 1)
-        words = np.ascontiguousarray(words, dtype=np.uint64)
-        counts = np.ascontiguousarray(counts, dtype=np.int64)
-        table = CellTable.from_words(words, counts, a.bits)
+    return {n: depth_table(wc, n, reverse) for n in orders}
+
+
+#: Address parts a deep depth is built in (bounds the memory of sorting the other strand).
+BUILD_PARTS = 16
+
+
+def _part_tables(wc, n: int, reverse: bool):
+    """The table of depth ``n`` in pieces of increasing address (see :func:`depth_table`); concatenated they are it."""
+    b = wc.alphabet.bits
+    width = b * (n + 1)
+    parts = BUILD_PARTS if width - 4 >= b else 1
+    # the leaf table itself at the deepest depth (no copy); the few segment tails merged into each part
+    words, counts, tw, tc = wc.words_unmerged(n + 1)
+    tc = tc.astype(counts.dtype)
+    shift = width - 4
+    for p in range(parts):
+        lo = p << shift if parts > 1 else 0
+        hi = (p + 1) << shift if p + 1 < parts else None
+        i0 = int(np.searchsorted(words, np.uint64(lo)))
+        i1 = words.size if hi is None else int(np.searchsorted(words, np.uint64(hi)))
+        j0 = int(np.searchsorted(tw, np.uint64(lo)))
+        j1 = tw.size if hi is None else int(np.searchsorted(tw, np.uint64(hi)))
+        fw, fc = words[i0:i1], counts[i0:i1]
+        if j1 > j0:
+            fw, fc = merge_sorted_counts(fw, fc, tw[j0:j1], tc[j0:j1])
         if reverse:
-            rw = FK.revcomp_addresses(words, n + 1, a.bits)
-            order = np.argsort(rw, kind="stable")
-            table = table.merge(CellTable.from_words(rw[order], counts[order], a.bits), a.bits)
-        out[n] = to_u32(table)
-    return out
+            rw, rc = FK.revcomp_in_range(words, counts, n + 1, b, lo, hi)
+            if tw.size:
+                tr, trc = FK.revcomp_in_range(tw, tc, n + 1, b, lo, hi)
+                if tr.size:
+                    rw, rc = merge_sorted_counts(rw, rc, tr, trc)
+        else:
+            rw, rc = np.zeros(0, np.uint64), counts[:0]
+        cells, ptr, syms, cnt, over = FK.strand_table(fw, fc.astype(counts.dtype, copy=False), rw, rc.astype(counts.dtype, copy=False), b)
+        del rw, rc, fw, fc
+        if over:
+            raise InputError("A cell was seen more than 4,294,967,295 times, beyond what a model stores; split the input.")
+        yield CellTable(cells, ptr, syms, cnt)
+
+
+def _total_class(tot: np.ndarray) -> np.ndarray:
+    """The round of :func:`prune_cells` that drops a cell of total ``t``: the smallest ``r`` with ``2**r >= t``."""
+    return np.frexp(np.maximum(tot - 1, 0).astype(np.float64))[1].astype(np.int64)
+
+
+def _concat(parts: list[CellTable]) -> CellTable:
+    if not parts:
+        return CellTable(np.zeros(0, np.uint64), np.zeros(1, np.int64), np.zeros(0, np.uint32), np.zeros(0, np.uint32))
+    if len(parts) == 1:
+        return parts[0]
+    offs = np.cumsum([0] + [int(t.ptr[-1]) for t in parts])
+    ptr = np.concatenate([t.ptr[:-1] + o for t, o in zip(parts, offs)] + [np.array([offs[-1]])]).astype(np.int64)
+    return CellTable(np.concatenate([t.cells for t in parts]), ptr, np.concatenate([t.syms for t in parts]),
+                     np.concatenate([t.counts for t in parts]))
+
+
+def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: int) -> tuple[dict[int, CellTable], int]:
+    """:func:`cell_tables` cut to ``cap`` cells as :func:`prune_cells` cuts them, without holding the uncut tables; also the cells dropped.
+
+    :func:`prune_cells` drops the cells of the depths beyond ``K_b`` in one order:
+    by total class (totals of at most 1, 2, 4, ...), within a class the deepest
+    depth first, within the class and depth where the cut falls the largest cell
+    hashes first (ties: the later address).  The deep depths are built in address
+    parts (:func:`_part_tables`) and never held whole: a first pass counts the
+    cells of every class and depth (the parts are kept while all cells fit under
+    the cap), a second collects the hashes of the one class cut, a third keeps the
+    cells before the cut.  The tables are exactly those of pruning at the end.
+    """
+    tables: dict[int, CellTable] = {}
+    deep = sorted(n for n in set(orders) if n > K_b)
+    for n in sorted(set(orders)):
+        if n <= K_b:
+            tables[n] = depth_table(wc, n, reverse)
+    nfixed = sum(t.size for t in tables.values())
+    if nfixed > cap and deep:
+        prune_cells(dict(tables), K_b, cap)  # raises: the baseline depths alone exceed the cap
+    hist = {n: np.zeros(64, np.int64) for n in deep}
+    kept: dict[int, list[CellTable]] | None = {n: [] for n in deep}
+    total = nfixed
+    for n in deep:
+        for t in _part_tables(wc, n, reverse):
+            total += t.size
+            hist[n] += np.bincount(_total_class(t.totals()), minlength=64)[:64]
+            if kept is not None and total <= cap:
+                kept[n].append(t)
+            else:
+                kept = None
+    if kept is not None:
+        tables.update({n: _concat(kept[n]) for n in deep})
+        return tables, 0
+    drop = total - cap
+    # the class (total round r, depth n) where the drops reach ``drop``: rounds in order, deepest depth first
+    acc = 0
+    r_cut, n_cut, keep_in_class = 63, deep[0], 0
+    for r in range(64):
+        for n in reversed(deep):
+            if acc + hist[n][r] >= drop:
+                r_cut, n_cut, keep_in_class = r, n, int(acc + hist[n][r] - drop)
+                break
+            acc += int(hist[n][r])
+        else:
+            continue
+        break
+    h_cut, ties = np.uint64(0), 0
+    if keep_in_class:
+        hashes = np.concatenate([FK.hash_cells(t.cells[_total_class(t.totals()) == r_cut], n_cut)
+                                 for t in _part_tables(wc, n_cut, reverse)])
+        h_cut = np.partition(hashes, keep_in_class - 1)[keep_in_class - 1]
+        ties = keep_in_class - int(np.count_nonzero(hashes < h_cut))
+        del hashes
+    for n in deep:
+        out = []
+        seen = 0
+        for t in _part_tables(wc, n, reverse):
+            r = _total_class(t.totals())
+            keep = (r > r_cut) | ((r == r_cut) & (n < n_cut))
+            if n == n_cut and keep_in_class:
+                at = np.flatnonzero(r == r_cut)
+                h = FK.hash_cells(t.cells[at], n)
+                tie = np.flatnonzero(h == h_cut)
+                ok = h < h_cut
+                ok[tie[: max(0, ties - seen)]] = True
+                seen += tie.size
+                keep[at[ok]] = True
+            out.append(t.select(keep))
+            del t
+        tables[n] = _concat(out)
+        del out
+    return tables, int(drop)
 
 
 def to_u32(table: CellTable) -> CellTable:
@@ -134,14 +276,7 @@ def blended_at(depths, tables: dict, params: dict, addr: np.ndarray, syms: np.nd
         beta, d = params[m]
         t = tables[m]
         key = addr & np.uint64((1 << (b * m)) - 1)
-        i = np.minimum(np.searchsorted(t.cells, key), max(t.size - 1, 0))
-        found = (t.cells[i] == key) if t.size else np.zeros(addr.size, bool)
-        w = t.words(b)
-        wk = (key << np.uint64(b)) | syms.astype(np.uint64)
-        j = np.minimum(np.searchsorted(w, wk), max(w.size - 1, 0))
-        c = np.where((w[j] == wk) if w.size else False, t.counts[j] if w.size else 0, 0).astype(np.float64)
-        tot = t.totals()[i].astype(np.float64) if t.size else np.zeros(addr.size)
-        u = t.distinct()[i].astype(np.float64) if t.size else np.zeros(addr.size)
+        found, c, tot, u = FK.cell_lookup(t.cells, t.ptr, t.syms, t.counts, key, syms)
         q = (np.maximum(c - d, 0.0) + (beta + d * u) * p) / (tot + beta)
         p = np.where(found, q, 1.0 / A)
     return p

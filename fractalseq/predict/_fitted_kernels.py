@@ -290,6 +290,111 @@ def _revcomp_addresses(words, n, b):
 
 
 @njit(cache=True)
+def _strand_table(wa, ca, wb, cb, b, cells, ptr, syms, counts):
+    """Merge two sorted unique (word, count) tables into a cell table (equal words add; zero counts skipped).
+
+    With empty ``cells`` it only counts: returns ``(entries, cells)``; otherwise it fills
+    ``cells``, ``ptr``, ``syms`` and ``counts`` (uint32) and returns ``(entries, overflow)``,
+    ``overflow`` = 1 when a merged count exceeds ``2**32 - 1``.
+    """
+    fill = cells.shape[0] > 0
+    na = wa.shape[0]
+    nb = wb.shape[0]
+    ub = np.uint64(b)
+    smask = np.uint64((1 << b) - 1)
+    big = np.uint64(4294967295)
+    i = 0
+    j = 0
+    e = 0
+    c = -1
+    over = 0
+    prev = np.uint64(0)
+    while i < na or j < nb:
+        if j >= nb or (i < na and wa[i] < wb[j]):
+            w = np.uint64(wa[i])
+            n = np.uint64(ca[i])
+            i += 1
+        elif i >= na or wb[j] < wa[i]:
+            w = np.uint64(wb[j])
+            n = np.uint64(cb[j])
+            j += 1
+        else:
+            w = np.uint64(wa[i])
+            n = np.uint64(ca[i]) + np.uint64(cb[j])
+            i += 1
+            j += 1
+        if n == 0:
+            continue
+        ctx = w >> ub
+        if c < 0 or ctx != prev:
+            c += 1
+            prev = ctx
+            if fill:
+                cells[c] = ctx
+                ptr[c] = e
+        if fill:
+            syms[e] = np.uint32(w & smask)
+            if n > big:
+                over = 1
+                n = big
+            counts[e] = np.uint32(n)
+        e += 1
+    if fill:
+        ptr[c + 1] = e
+        return e, over
+    return e, c + 1
+
+
+@njit(cache=True)
+def _revcomp_in_range(words, counts, n, b, lo, hi, to_end, out_w, out_c):
+    """Reverse complements of n-words that fall in ``[lo, hi)`` (``[lo, end]`` with ``to_end``), with their counts.
+
+    With empty ``out_w`` it only counts them; returns how many there are.
+    """
+    fill = out_w.shape[0] > 0
+    ub = np.uint64(b)
+    symmask = np.uint64((1 << b) - 1)
+    k = 0
+    for i in range(words.shape[0]):
+        w = words[i]
+        r = np.uint64(0)
+        for _ in range(n):
+            r = (r << ub) | ((w & symmask) ^ symmask)
+            w >>= ub
+        if r >= lo and (to_end or r < hi):
+            if fill:
+                out_w[k] = r
+                out_c[k] = counts[i]
+            k += 1
+    return k
+
+
+@njit(cache=True)
+def _cell_lookup(cells, ptr, syms, counts, keys, want, found, c, tot, used):
+    """For each (cell key, symbol): is the cell there, the symbol's count, the cell's total and distinct symbols."""
+    nc = cells.shape[0]
+    for q in range(keys.shape[0]):
+        k = keys[q]
+        lo = 0
+        hi = nc
+        while lo < hi:
+            mid = (lo + hi) >> 1
+            if cells[mid] < k:
+                lo = mid + 1
+            else:
+                hi = mid
+        if lo < nc and cells[lo] == k:
+            found[q] = True
+            t = np.int64(0)
+            for e in range(ptr[lo], ptr[lo + 1]):
+                t += np.int64(counts[e])
+                if syms[e] == want[q]:
+                    c[q] = np.float64(counts[e])
+            tot[q] = np.float64(t)
+            used[q] = np.float64(ptr[lo + 1] - ptr[lo])
+
+
+@njit(cache=True)
 def _hash_cells(addr, depth):
     """:func:`cell_hash` of every address at one depth (a deterministic, unbiased order for pruning ties)."""
     out = np.empty(addr.shape[0], np.uint64)
@@ -359,6 +464,49 @@ def revcomp_addresses(words, n, b):
     """Addresses of the reverse complements of n-words (complement = code XOR (2**b - 1))."""
     _need(words.dtype == np.uint64 and 0 <= n * b <= 64, "uint64 words of at most 64 bits", "words")
     return _revcomp_addresses(words, n, b)
+
+
+def strand_table(wa, ca, wb, cb, b):
+    """Cells, entry pointers, symbols and uint32 counts of two sorted unique (n+1)-word tables added together.
+
+    Returns ``(cells, ptr, syms, counts, overflow)``; ``overflow`` is true when a count exceeds ``2**32 - 1``.
+    """
+    _need(wa.dtype == np.uint64 and wb.dtype == np.uint64 and ca.dtype == cb.dtype, "uint64 words and counts of one type", "words")
+    none = np.zeros(0, np.uint64)
+    e, c = _strand_table(wa, ca, wb, cb, b, none, np.zeros(0, np.int64), np.zeros(0, np.uint32), np.zeros(0, np.uint32))
+    cells, ptr = np.empty(c, np.uint64), np.empty(c + 1, np.int64)
+    syms, counts = np.empty(e, np.uint32), np.empty(e, np.uint32)
+    if c == 0:
+        ptr[0] = 0
+        return cells, ptr, syms, counts, False
+    _, over = _strand_table(wa, ca, wb, cb, b, cells, ptr, syms, counts)
+    return cells, ptr, syms, counts, bool(over)
+
+
+def revcomp_in_range(words, counts, n, b, lo: int, hi: int | None):
+    """Reverse complements (sorted) of the n-words that fall in ``[lo, hi)`` (``hi=None``: to the end), with their counts."""
+    _need(words.dtype == np.uint64 and 0 <= n * b <= 64, "uint64 words of at most 64 bits", "words")
+    lo_, hi_ = np.uint64(lo), np.uint64(0 if hi is None else hi)
+    m = _revcomp_in_range(words, counts, n, b, lo_, hi_, hi is None, np.zeros(0, np.uint64), counts[:0])
+    rw, rc = np.empty(m, np.uint64), np.empty(m, counts.dtype)
+    if m:
+        _revcomp_in_range(words, counts, n, b, lo_, hi_, hi is None, rw, rc)
+        order = np.argsort(rw)
+        rw, rc = rw[order], rc[order]
+    return rw, rc
+
+
+def cell_lookup(cells, ptr, syms, counts, keys, want):
+    """``(found, count of the symbol, cell total, distinct symbols)`` of each (cell key, symbol) pair in one cell table.
+
+    Absent cells and symbols give zeros.
+    """
+    _need(cells.dtype == np.uint64 and keys.dtype == np.uint64 and ptr.dtype == np.int64, "uint64 cells and keys, int64 ptr", "cells")
+    m = keys.shape[0]
+    found = np.zeros(m, np.bool_)
+    c, tot, used = np.zeros(m), np.zeros(m), np.zeros(m)
+    _cell_lookup(cells, ptr, syms, counts, keys, np.ascontiguousarray(want, dtype=syms.dtype), found, c, tot, used)
+    return found, c, tot, used
 
 
 def hash_cells(addr, depth):

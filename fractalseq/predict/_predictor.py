@@ -65,7 +65,7 @@ from fractalseq.predict._baselines import (
     kt_bits_after_training,
     kt_bits_by_order,
 )
-from fractalseq.predict._cells import CellTable, cell_tables, fit_blend, prune_cells, to_u32
+from fractalseq.predict._cells import CellTable, capped_cell_tables, cell_tables, fit_blend, prune_cells, to_u32
 from fractalseq.predict._modelfile import ModelState, read_state, write_state
 from fractalseq.predict._online import evaluate_online, markov_online_baseline, online_code_length  # noqa: F401 (online_code_length: callers import it from here)
 from fractalseq.predict._params import (
@@ -125,8 +125,9 @@ class CellPredictor:
         Memory cap.  Online: rows of the count tables (default 2**24, less for large
         alphabets so the tables stay under 256 MiB; tables are sized by the input's length
         when it is known, and above 256 symbols they start small and double up to the cap);
-        fitted: cells kept after counting
-        (default 2**23), the rarest cells of the deepest depths are pruned first.
+        fitted: cells kept (default 2**23), the rarest cells of the deepest depths are pruned
+        first; the cap holds while the cell tables are built (a deep depth is built in address
+        parts and never held whole), with the cells that pruning at the end would keep.
     learning_rate:
         Online mode: step of the mixing-weight update (alphabets of at most 256 symbols; larger ones
         blend with fixed parameters and ignore it).
@@ -282,9 +283,16 @@ class CellPredictor:
                 f"Word counts of depth {counts.depth} cannot feed cells of depth {fit_depths[-1]}; count to depth {fit_depths[-1] + 1}.",
                 parameter="counts",
             )
-        tables = cell_tables(counts, fit_depths, reverse)
-        self._install(alphabet, ladder, reverse, K_b, tables, int(counts.length), int(counts.segments), 0, reader)
+        # depth by depth, each deep depth cut to the cell cap as soon as it is built (the same cells
+        # the cap keeps at the end, see capped_cell_tables), then the cap over all depths
+        tables, pruned = capped_cell_tables(counts, fit_depths, reverse, K_b, self._cap())
+        tables, more = prune_cells(tables, K_b, self._cap())
+        self._install(alphabet, ladder, reverse, K_b, tables, int(counts.length), int(counts.segments), pruned + more, reader)
         return self
+
+    def _cap(self) -> int:
+        """The cell cap of the fitted model (``max_cells`` or the default)."""
+        return DEFAULT_FITTED_CELLS if self.max_cells is None else int(self.max_cells)
 
     def _install(self, alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, pruned, reader=None) -> None:
         # reader options of the training data, JSON-ready (tuples as lists) as the model file keeps them
@@ -295,7 +303,7 @@ class CellPredictor:
         self.baseline_max_order_ = int(K_b)
         self.n_symbols_ = int(n_symbols)
         self.n_segments_ = int(n_segments)
-        cap = DEFAULT_FITTED_CELLS if self.max_cells is None else int(self.max_cells)
+        cap = self._cap()
         tables, more = prune_cells(tables, K_b, cap)
         self.pruned_cells_ = int(pruned) + more
         self.max_cells_ = cap
@@ -309,7 +317,12 @@ class CellPredictor:
         self.baseline_bits_ = per
         self.baseline_order_ = int(min(per, key=lambda k: (per[k], k)))
         self.concentration_, self.discount_ = fit_blend(self.depths_, self.counts_, alphabet, float(self.smoothing), self.discount)
-        self._build_index()
+        # the scoring index (about 60 bytes a cell) is built on first use: learning only saves the tables
+
+    def _ensure_index(self) -> None:
+        """Build the scoring index of the fitted cells unless it is there."""
+        if not hasattr(self, "_model"):
+            self._build_index()
 
     def _build_index(self) -> None:
         a = self.alphabet_
@@ -423,6 +436,7 @@ class CellPredictor:
         if isinstance(contexts, str):
             contexts = [contexts]
         flat, offsets = self._contexts(contexts)
+        self._ensure_index()
         m = offsets.size - 1
         out = np.zeros((m, self.alphabet_.size), dtype=np.float64)
         deepest = np.zeros(m, dtype=np.int64)
@@ -516,6 +530,7 @@ class CellPredictor:
         from fractalseq.words._counts import WordCounter
 
         _check_fitted(self)
+        self._ensure_index()
         src = as_source(source)
         name = getattr(src, "name", "stream")
         self._check_alphabet(src.alphabet, name)
@@ -640,6 +655,7 @@ class CellPredictor:
         tables = {n: CellTable.from_words(w, c, alphabet.bits) for n, (w, c) in state.tables(depths, alphabet).items()}
         try:
             model._install(alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, 0, reader)
+            model._build_index()  # checks the tables' consistency before any of them is trusted
         except (KeyError, TypeError, ValueError) as exc:
             raise ModelFileError(f"{where} does not describe a consistent model ({exc}); learn the model again.") from None
         model.pruned_cells_ = pruned  # cells pruned when the model was learned (the file keeps the rest)

@@ -163,6 +163,23 @@ class WordCounts:
             lw, lc = kernels.merge_sorted_counts(lw, lc, tw, tc)
         return lw, lc
 
+    def words_unmerged(self, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """:meth:`words` in two sorted tables not yet added: the n-prefixes of the leaves, and of the segment tails.
+
+        At the deepest depth the first table is the leaf table itself (no copy), for callers that
+        merge the few tails into pieces of it.  Addresses ``uint64``; leaf counts as stored.
+        """
+        n = self._check_n(n)
+        if self.dense is not None or n < self.depth:
+            lw, lc = self.words(n) if self.dense is not None else kernels.prefix_counts(
+                self.leaf_words, self.leaf_counts, self.bits * (self.depth - n))
+            if self.dense is not None:
+                return lw, lc, np.zeros(0, np.uint64), np.zeros(0, np.int64)
+        else:
+            lw, lc = self.leaf_words, self.leaf_counts
+        tw, tc = self._tail_prefixes(n)
+        return np.ascontiguousarray(lw, dtype=np.uint64), lc, tw, tc
+
     def counts(self, n: int) -> np.ndarray:
         """Counts of the distinct n-words, in address (lexicographic) order."""
         return self.words(n)[1]
