@@ -77,10 +77,8 @@ _EMPTY = Header("", "", "")
 _MON_WDAY = frozenset("Jan Feb Mar Apr May Jun Jul Aug Sep Oct Nov Dec Mon Tue Wed Thu Fri Sat Sun".split())
 
 
-def _level(line: str, pos: int) -> tuple[str, int]:
-    """A level word at ``pos`` (``\\[?[A-Za-z]{3,11}\\]?:?`` then spaces or the end), with plain string steps."""
-    end = line.find(" ", pos)
-    tok = line[pos:] if end < 0 else line[pos:end]
+def _level_word(tok: str) -> str:
+    """The level named by one token (``\\[?[A-Za-z]{3,11}\\]?:?``), upper case, or ``""``."""
     core = tok[1:] if tok[:1] == "[" else tok
     if core[-1:] == ":":
         core = core[:-1]
@@ -88,8 +86,30 @@ def _level(line: str, pos: int) -> tuple[str, int]:
         core = core[:-1]
     up = core.upper()
     if up not in LEVELS or not core.isascii() or not core.isalpha():
-        return "", pos
+        return ""
     if not (core.isupper() or tok[0] == "[" or tok[-1] == ":"):
+        return ""
+    return up
+
+
+#: :func:`_level_word` per token seen (the first word after a header repeats from line to line); bounded.
+_LEVEL_MEMO: dict[str, str] = {}
+
+
+def _level(line: str, pos: int) -> tuple[str, int]:
+    """A level word at ``pos`` (``\\[?[A-Za-z]{3,11}\\]?:?`` then spaces or the end), with plain string steps."""
+    end = line.find(" ", pos)
+    # a level word has 3 to 11 letters, with at most ``[``, ``]`` and ``:`` around it: other lengths never match
+    if not 3 <= (len(line) if end < 0 else end) - pos <= 14:
+        return "", pos
+    tok = line[pos:] if end < 0 else line[pos:end]
+    up = _LEVEL_MEMO.get(tok)
+    if up is None:
+        up = _level_word(tok)
+        if len(_LEVEL_MEMO) >= 4096:
+            _LEVEL_MEMO.clear()
+        _LEVEL_MEMO[tok] = up
+    if not up:
         return "", pos
     if end < 0:
         return up, len(line)
@@ -189,7 +209,7 @@ def split_header(line: str) -> tuple[Header, str]:
         m = _TIME_WORD.match(line, pos)
         if m is not None:
             pos, stamped, syslog_like = m.end(), True, True
-    if not stamped and pos == 0 and _clf_candidate(line):
+    if not stamped and pos == 0 and " [" in line and _clf_candidate(line):
         m = _CLF_AFTER.match(line)
         if m is not None:
             return _EMPTY, m.group(1) + line[m.end():]

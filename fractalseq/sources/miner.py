@@ -96,6 +96,8 @@ _ROUTE_STRIP = "[]()<>{}:,;.!?\"'"
 def _routable(tok: str) -> bool:
     """A leading token used in the routing key: a plain word (letters, ``-``, ``_``, ``'``), punctuation aside."""
     core = tok.strip(_ROUTE_STRIP)
+    if core.isalpha():
+        return True
     return bool(core) and core.replace("-", "").replace("_", "").replace("'", "").isalpha()
 #: distinct values kept per header field and template (the rest are counted under "")
 _FIELD_VALUES = 8

@@ -233,8 +233,12 @@ class Tokenizer:
     def uncached(self, msg: str) -> tuple[tuple[str, ...], list[str]]:
         """:meth:`__call__` without its cache (for a caller that remembers messages itself)."""
         msg_s = msg.strip()
-        if msg_s and msg_s[-1] != "}" and "=" not in msg_s:
-            toks = self._text(msg_s)  # plain text: no JSON object, no logfmt pair
+        if msg_s and msg_s[-1] != "}" and "=" not in msg_s:  # plain text: no JSON object, no logfmt pair
+            if '"' in msg_s:  # :meth:`_text`, inlined on this path taken by most lines
+                msg_s = _collapse_quotes(msg_s)
+            if "<" in msg_s:
+                msg_s = _collapse_angles(msg_s)
+            toks = self.mask(msg_s.split())
             return (), toks if toks else [EMPTY_TOKEN]
         res = self._structured(msg_s) if msg_s else None
         if res is None:
