@@ -14,20 +14,8 @@ point of the history falls in.
 
 Online tables
 -------------
-Each depth owns a region of one table.  A region is *direct* (one row per
-possible address, ``2**(b n)`` rows) when that fits the depth's row budget,
-otherwise *hashed*: rows are grouped in buckets of :data:`BUCKET` rows chosen
-by a hash of (address, depth); a row carries a 16-bit check tag, and a new
-cell takes the row of its bucket with the smallest total count (rare deep
-cells are pruned first).  Every replacement of a non-empty row is counted as
-an eviction.
-
-Two row layouts exist and behave identically:
-
-* packed (alphabets of at most 4 symbols): one ``uint64`` per row, four
-  12-bit counts at bits 0, 12, 24, 36 and the tag at bits 48..63;
-* dense (any alphabet): ``uint16`` counts ``(rows, A)``, a ``uint16`` tag and
-  a ``uint32`` total per row.
+The regions, row layouts (packed and dense) and hashing of the online tables are
+described once, in :mod:`fractalseq.predict._online_kernel`.
 
 Before an increment that would take a count past the depth's limit, every
 count of the cell is halved (rounding up).
