@@ -115,11 +115,13 @@ def run_demo(
     # largest, so a second process compiles them while this one surveys (they are loaded from the cache
     # when the predictor steps come).  Once cached, this costs a process start on the other core.
     stage = StagedFolder(folder, force)  # built under a hidden sibling, renamed into place at the end
+    warm = None
     try:
         warm = _start_predictor_warmup()
         result = _run_in(stage.path, Path(folder), seed, length, log_lines, workers, force, say, warm, t0)
         stage.commit()
     except BaseException:
+        _stop_warmup(warm)  # an interrupted or failed demo leaves no process behind
         stage.discard()
         raise
     return result
@@ -255,6 +257,10 @@ def warm_predictor() -> None:  # pragma: no cover - runs in the warm-up process
     """Compile (and cache) the predictor kernels the demo uses, on a few invented symbols."""
     import numpy as np
 
+    from fractalseq.runner import pause_point
+
+    pause_point("demo.warmup", 1)  # lets a test interrupt the demo while this process still runs
+
     from fractalseq import alphabet as al
     from fractalseq.predict._predictor import CellPredictor, online_code_length
     from fractalseq.stream import from_codes
@@ -279,6 +285,18 @@ def _start_predictor_warmup():
         )
     except OSError:  # no process to spare: the predictor steps compile for themselves
         return None
+
+
+def _stop_warmup(proc) -> None:
+    """End the warm-up process now (the demo was interrupted or failed); it holds nothing worth keeping."""
+    if proc is None or proc.poll() is not None:
+        return
+    proc.terminate()
+    try:
+        proc.wait(timeout=5)
+    except Exception:  # noqa: BLE001 - a process that ignores the request is killed
+        proc.kill()
+        proc.wait()
 
 
 def _finish_warmup(proc) -> None:

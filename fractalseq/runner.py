@@ -24,7 +24,7 @@ PAUSE_FLAG_VARIABLE = "FRACTALSEQ_PAUSE_FLAG"
 
 
 def pause_point(name: str, count: int) -> None:
-    """Block here forever when ``FRACTALSEQ_PAUSE_AT`` is ``name:count`` (a hook for interruption tests).
+    """Block here forever when ``FRACTALSEQ_PAUSE_AT`` names ``name:count`` (a hook for interruption tests).
 
     Tests that interrupt a running job set the variable, wait until the job
     has reached the named point (e.g. the first source stored in the cache),
@@ -32,13 +32,15 @@ def pause_point(name: str, count: int) -> None:
     exactly, whatever the speed of the machine.  With ``FRACTALSEQ_PAUSE_FLAG``
     set to a path, the file is created when the pause begins (for pause points
     that leave no output of their own, such as ``words.kernel``: just before a
-    counting kernel runs).  Unset, it costs one lookup.
+    counting kernel runs).  Several points may be named, separated by commas (a
+    child process inherits the variable: ``report.file:1,demo.warmup:1`` pauses
+    the demo and its warm-up process).  Unset, it costs one lookup.
     """
     want = os.environ.get(PAUSE_VARIABLE)
-    if want and want == f"{name}:{count}":
+    if want and f"{name}:{count}" in want.split(","):
         flag = os.environ.get(PAUSE_FLAG_VARIABLE)
         if flag:  # tell the waiting test that the pause is reached (for points that leave no file of their own)
-            with open(flag, "w", encoding="utf-8") as fh:
+            with open(flag, "a", encoding="utf-8") as fh:  # appended: several processes may pause
                 fh.write(f"{name}:{count}\n")
         while True:  # pragma: no cover - ended by the signal the test sends
             time.sleep(0.05)

@@ -103,6 +103,7 @@ def _make_files(d: Path) -> None:
     (d / "indir").mkdir()
     shutil.copy(d / "short.fa", d / "indir" / "in.fa")
     (d / "indir" / "notes.txt").write_text("an input folder whose files must survive\n")
+    (d / "list-of-indir.txt").write_text("# the list file lies outside the folder its entry is in\nindir/in.fa\ngood.fa\n")
 
 
 @pytest.fixture(scope="module")
@@ -260,6 +261,9 @@ CASES: list[Case] = [
          r"holds the input .*in\.fa", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
     Case("survey-out-folder-is-the-input-folder", ("survey", "{d}/indir", "{d}/good.fa", "--out", "{d}/indir", "--force"),
          r"holds the input", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
+    Case("survey-out-folder-holds-an-entry-of-the-list-file",
+         ("survey", "--from-list", "{d}/list-of-indir.txt", "--out", "{d}/indir", "--force"),
+         r"holds the input .*in\.fa", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
     Case("scan-out-folder-holds-the-input", ("scan", "{d}/indir/in.fa", "--window", "20", "--out", "{d}/indir", "--force"),
          r"holds the input", r"another output folder", unchanged=("indir/in.fa", "indir/notes.txt")),
     # ---- sizes beyond memory, bounded before any work (what is allocated, which option sets it)

@@ -108,3 +108,23 @@ def test_numpys_bare_full_stop_does_not_split_the_sentence(monkeypatch, capsys):
     assert main(["count", str(ROOT / "reference" / "lambda_virus.fa.gz")]) == 2
     err = capsys.readouterr().err.strip()
     assert "273 MiB" in err and not re.search(r"[.!?]\s+[A-Z]", err), err
+
+
+def test_a_link_to_an_input_is_replaced_as_an_output_and_the_input_is_untouched(tmp_path):
+    """An output path that is a symbolic link to an input: the atomic rename replaces the link itself
+    (POSIX ``rename(2)`` acts on the link, not its target — common practice), so with --force the write
+    is allowed and the input keeps its bytes; without --force the existing link is not overwritten."""
+    fasta = tmp_path / "in.fa"
+    fasta.write_text(">s invented test sequence\n" + "ACGTTGCA" * 200 + "\n")
+    before = fasta.read_bytes()
+    link = tmp_path / "counts.npz"
+    link.symlink_to(fasta.name)
+    cmd = [sys.executable, "-m", "fractalseq.cli", "count", str(fasta), "--depth", "3", "--save", str(link)]
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    refused = subprocess.run(cmd, capture_output=True, text=True, env=env)
+    assert refused.returncode == 2 and "already exists" in refused.stderr
+    assert link.is_symlink()
+    done = subprocess.run([*cmd, "--force"], capture_output=True, text=True, env=env)
+    assert done.returncode == 0, done.stderr
+    assert not link.is_symlink() and link.read_bytes()[:2] == b"PK"  # a zip archive took the link's place
+    assert fasta.read_bytes() == before

@@ -195,6 +195,50 @@ def test_an_interrupted_demo_leaves_nothing_and_the_rerun_needs_no_force(tmp_pat
     assert str(out / "data" / "samples") in (out / "demo.json").read_text(encoding="utf-8")
 
 
+def _children(pid: int) -> list[int]:
+    """Process ids whose parent is ``pid`` (Linux ``/proc/PID/stat``, field 4 — proc(5))."""
+    found = []
+    for entry in os.listdir("/proc"):
+        if entry.isdigit():
+            try:
+                with open(f"/proc/{entry}/stat", encoding="utf-8") as fh:
+                    fields = fh.read().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            if int(fields[1]) == pid:
+                found.append(int(entry))
+    return found
+
+
+def test_an_interrupted_demo_stops_its_warm_up_process(tmp_path):
+    """The demo's predictor warm-up runs in a second process; Ctrl-C on the demo ends that process too.
+
+    Both processes are held at pause points (the demo after its first report file, the warm-up
+    before it compiles anything), so the warm-up is certainly alive when the signal is sent.
+    """
+    flag = tmp_path / "paused"
+    args = ["demo", "--out", str(tmp_path / "demo"), "--length", "6000", "-q"]
+    proc = subprocess.Popen(CLI + args, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            env={**os.environ, PAUSE_VARIABLE: "report.file:1,demo.warmup:1", PAUSE_FLAG_VARIABLE: str(flag)})
+
+    def both_paused() -> bool:
+        written = any(f.is_file() and not f.name.endswith(".part") for st in _stages(tmp_path, "demo") for f in st.rglob("*"))
+        return written and flag.exists() and "demo.warmup:1" in flag.read_text(encoding="utf-8")
+
+    _wait_until(proc, both_paused)
+    warm = [pid for pid in _children(proc.pid) if b"warm_predictor" in open(f"/proc/{pid}/cmdline", "rb").read()]
+    assert len(warm) == 1
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=300)
+    try:
+        assert proc.returncode == 130, err
+        _one_interruption_line(err)
+        assert not os.path.exists(f"/proc/{warm[0]}"), "the warm-up process outlived the interrupted demo"
+    finally:
+        if os.path.exists(f"/proc/{warm[0]}"):
+            os.kill(warm[0], signal.SIGKILL)
+
+
 def test_ctrl_c_while_the_commands_are_imported_is_one_line_too(tmp_path):
     """The first second of a run imports numba and scipy; an interrupt there is exit 130 and one line as well."""
     import sys

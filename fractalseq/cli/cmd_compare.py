@@ -114,6 +114,7 @@ def survey(
     )
     stdin_lines = sys.stdin.read().splitlines() if from_list == "-" else None
     specs = column_specs(expand_inputs(list(paths or []), from_list, stdin_lines), options.reader_options)
+    common.protect_inputs([spec.path for spec in specs])  # the entries of a list file are inputs too
     # the report is built aside and renamed into place at the end; the cache stays in OUT/.cache meanwhile
     # (an interrupted run leaves only it) and is carried into the new folder by the commit
     stage = StagedFolder(out, force) if out is not None else None

@@ -95,7 +95,8 @@ def check_writable(path: Path, force: bool) -> None:
     if path.exists() and not path.is_file():
         # a device, a pipe or a socket: replacing it by a renamed file (as --force would) must never happen
         raise OutputError(f"{path} is a {_special_kind(path)}, not a regular file; give a file name.")
-    if path.exists() and os.path.realpath(path) in _protected:
+    # (a symbolic link to an input is replaced by the rename, never written through: the input is untouched)
+    if path.exists() and not path.is_symlink() and os.path.realpath(path) in _protected:
         raise OutputError(f"{path} is one of the inputs and writing it would destroy it; give another output file name.")
     if path.exists() and not force:
         raise _refusal(f"{path} already exists; allow overwriting it or choose another name.", "force")
