@@ -37,14 +37,22 @@ sys.path.insert(0, str(ROOT))
 from fractalseq.io._outputs import to_json, write_text  # noqa: E402
 
 
-def outcomes(junit: Path) -> dict[str, str]:
-    """Test id -> ``passed`` / ``failed`` / ``error`` / ``skipped`` from a JUnit XML report."""
+def outcomes(junit: Path, messages: dict[str, str] | None = None) -> dict[str, str]:
+    """Test id -> ``passed`` / ``failed`` / ``error`` / ``skipped`` from a JUnit XML report.
+
+    With ``messages``, the report's text of each failure or error is stored there (its last 4,000
+    characters: the assertion and the lines around it).
+    """
     result: dict[str, str] = {}
     if not junit.exists():
         return result
     for case in ET.parse(junit).getroot().iter("testcase"):
         test_id = f"{case.get('classname', '')}::{case.get('name', '')}"
         kinds = {child.tag for child in case}
+        if messages is not None:
+            for child in case:
+                if child.tag in ("failure", "error"):
+                    messages[test_id] = ((child.get("message") or "") + "\n" + (child.text or ""))[-4000:]
         if "failure" in kinds:
             result[test_id] = "failed"
         elif "error" in kinds:
@@ -65,12 +73,13 @@ def run_once(index: int, targets: list[str], extra: list[str]) -> dict:
         start = time.perf_counter()
         done = subprocess.run(cmd, cwd=ROOT, env=env, capture_output=True, text=True)
         seconds = time.perf_counter() - start
-        cases = outcomes(junit)
+        messages: dict[str, str] = {}
+        cases = outcomes(junit, messages)
     counts = {k: sum(1 for v in cases.values() if v == k) for k in ("passed", "failed", "error", "skipped")}
     bad = sorted(t for t, v in cases.items() if v in ("failed", "error"))
     tail = [ln for ln in done.stdout.splitlines() if ln.strip()][-1:] or [""]
     return {"run": index, "exit_status": done.returncode, **counts, "not_passed": bad,
-            "seconds": round(seconds, 1), "summary": tail[0]}
+            "seconds": round(seconds, 1), "summary": tail[0], "messages": {t: messages.get(t, "") for t in bad}}
 
 
 def markdown(doc: dict) -> str:
@@ -116,6 +125,8 @@ def main(argv: list[str] | None = None) -> int:
         results.append(r)
         print(f"run {i}/{args.runs}: exit {r['exit_status']}, {r['passed']} passed, {r['failed']} failed, "
               f"{r['error']} errors, {r['skipped']} skipped ({r['seconds']} s)", flush=True)
+        for test_id in r["not_passed"]:  # at once: a long loop must not hide a failure until its end
+            print(f"  not passed: {test_id}\n" + "\n".join("    " + ln for ln in r["messages"][test_id].splitlines()[-25:]), flush=True)
     seen_bad: dict[str, int] = {}
     for r in results:
         for t in r["not_passed"]:
