@@ -105,3 +105,14 @@ def test_empty_value_marking_on_a_one_megabyte_line():
     # fixed-width look-arounds only (linear time; speed is measured in benchmarks, not asserted here)
     free = Tokenizer()("a  " * (1 << 19))[1]
     assert len(free) == 2 * (1 << 19) - 1 and free[1] == "<*>" and free[-1] == "a"
+
+
+def test_an_empty_json_object_at_the_end_is_text():
+    """A line of GDB's check log (/usr/share/doc/gdb/check.log.gz, line 35596, shortened): a test name ending in "{}".
+
+    "words {json object}" pins the words and the object's keys; an empty object names no key, so the line stays text
+    and joins the other PASS lines (the whole log's 96,989 PASS lines were one template but for this one).
+    """
+    pinned, free = Tokenizer()("PASS: gdb.base/share-env-with-gdbserver.exp: long var value: set V = testing long vars; {}")
+    assert pinned == () and free[0] == "PASS:" and free[-1] == "{}"
+    assert Tokenizer()('request done {"ms": 12}')[0] == ("request", "done", "{", "ms=<*>", "}")

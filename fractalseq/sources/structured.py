@@ -232,7 +232,7 @@ class Tokenizer:
         if i < 0:
             return None
         res = self._structured(msg[i + 1 :])
-        if res is None or res[0][:1] != ("{",):
+        if res is None or res[0][:1] != ("{",) or len(res[0]) <= 2:  # ``{}`` names no key: the line is text
             return None
         pinned, free = res
         return tuple(self._text(msg[:i])) + pinned, free
