@@ -224,9 +224,11 @@ def test_piped_tables_keep_whole_templates_paths_and_headers(tmp_path):
     deep.mkdir(parents=True)
     log = deep / "gdb-check-excerpt.log"
     log.write_bytes((LOGS / "gdb-check-excerpt.log").read_bytes())
-    out = _cli("scan", log, "--format", "log", "--quiet").stdout
+    sshd = deep / "fail2ban-sshd.log"
+    sshd.write_bytes((LOGS / "fail2ban-sshd.log").read_bytes())
+    out = _cli("scan", sshd, "--format", "log", "--quiet").stdout
     assert "…" not in out
-    assert "gdb compile failed, default_target_compile: Can't find <*>" in out
+    assert "Failed keyboard-interactive for <*> from <*> port <*> ssh2" in out
     assert "dominant templates (lines)" in out
     out = _cli("score", "--online", log, "--format", "log", "--quiet").stdout
     assert "…" not in out

@@ -34,13 +34,14 @@ SHA = {
     "fail2ban-apache-auth.log": "dfac64aa76d482bed138bd8e9edf0612d3befd7380c3abf68603c602d456901b",
     "gdb-check-excerpt.log": "a8aa7fcc873f072fda4eb13e94b7efe3369f8404b00523cae6c004c0ab853ce1",
 }
-LABELLED = ["dpkg-excerpt", "apt-term-excerpt", "jtreg-output-excerpt", "fail2ban-sshd"]
-#: least grouping accuracy asserted per labelled log.  fail2ban's sshd sample is a test fixture that holds
-#: deliberately hostile lines (user names holding "from <address>", empty user names, an injected quote) and
-#: free-text comments, which no token-count-preserving miner can group as the labels do (30 of its 334 lines),
-#: and fixed strings that differ in one or three words of a long line ("no matching cipher" / "no matching MAC";
-#: PAM's "Authentication failure" / "authentication error"), which similarity grouping merges: 0.87 measured.
-LEAST_ACCURACY = {"dpkg-excerpt": 0.9, "apt-term-excerpt": 0.9, "jtreg-output-excerpt": 0.9, "fail2ban-sshd": 0.85}
+LABELLED = ["dpkg-excerpt", "apt-term-excerpt", "jtreg-output-excerpt", "gdb-check-excerpt", "fail2ban-sshd"]
+#: least grouping accuracy asserted per labelled log (the issue's target, 0.9, on each).  fail2ban's sshd sample
+#: is a test fixture that holds deliberately hostile lines (user names holding "from <address>", an injected
+#: quote, "# filterOptions:" with JSON values of different shapes) that no token-count-preserving miner groups
+#: as the labels do (about 20 of its 334 lines), and fixed strings that differ in one word of a long line
+#: ("no matching cipher" / "no matching MAC"; PAM's "Authentication failure" / "authentication error"), which
+#: the similarity grouping merges as it merges one-word values: 0.91 measured (reference/logs/README.md).
+LEAST_ACCURACY = dict.fromkeys(LABELLED, 0.9)
 
 
 def _lines(path: Path) -> list[str]:

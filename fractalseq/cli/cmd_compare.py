@@ -390,7 +390,7 @@ def scan(
              "the size that gives at least 50 windows but at least 40 lines; other inputs 10,000.",
     ),
     step: Optional[int] = typer.Option(None, "--step", "-S", min=1, help="Step between window starts (symbols, lines for logs); default: window / 4."),
-    depth: Optional[int] = typer.Option(None, "--depth", "-n", min=1, help="Word length n of the window figures (symbols); default: largest n with A^n x 20 <= window."),
+    depth: Optional[int] = typer.Option(None, "--depth", "-n", min=1, help="Word length n of the window figures (symbols); default: largest n with A^n x 20 <= window; for logs, largest n whose distinct n-words the median window sees 20 times each on average."),
     penalty: str = typer.Option("bic", "--penalty", help="Change-point penalty: bic, i.e. (figures + 1) x ln(independent windows), or a number."),
     alphabet: str = common.ALPHABET,
     fmt: str = common.FORMAT,

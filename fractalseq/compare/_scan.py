@@ -157,6 +157,36 @@ def choose_scan_depth(alphabet_size: int, window: int, max_depth: int, order: in
     return n
 
 
+#: Largest word table (address bits) the automatic depth of a log scan tries (2**22 cells of 8 bytes, twice).
+EVIDENCE_TABLE_BITS = 22
+
+
+def observed_scan_depth(arr: SymbolArray, window: int, step: int) -> int:
+    """Automatic depth of a log scan, from the words the windows hold instead of the ``A**n`` possible ones.
+
+    A log's alphabet is its template table (often dozens to thousands of templates), and a log uses few
+    of the ``A**n`` words those could make, so the fixed rule (:func:`choose_scan_depth`) stops at
+    ``n = 1`` and the entropy-rate figure becomes the entropy of single templates.  As the profile does
+    (:func:`fractalseq.entropy._depth.evidence_depth`), the depth is taken from the observed words: the
+    largest ``n`` such that every depth up to ``n`` has the median window seeing its distinct n-words
+    ``WORDS_PER_CELL`` (20) times on average (``20 * K_n <= N_n``), never shallower than the fixed rule,
+    at most the alphabet's deepest word and ``EVIDENCE_TABLE_BITS`` of table.
+    """
+    T = len(arr)
+    bits = int(arr.alphabet.bits)
+    n_windows = (T - window) // step + 1
+    n = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth)
+    k = 2
+    while k < window and k <= arr.alphabet.max_depth and bits * k <= EVIDENCE_TABLE_BITS:
+        N, Kw, _, _, _ = window_counts(arr.codes, arr.starts, k, bits, int(window), int(step), int(n_windows))
+        held = np.count_nonzero((N > 0) & (Kw * WORDS_PER_CELL <= N))
+        if 2 * held < n_windows:  # the median window does not see its n-words often enough
+            break
+        n = max(n, k)
+        k += 1
+    return n
+
+
 def ordinal_shape(arr: SymbolArray) -> tuple[int, int]:
     """``(order m, delay tau)`` when ``arr`` holds ordinal patterns (alphabet ``ordinal<m>`` of ``m!`` symbols), else ``(0, 1)``."""
     hit = re.fullmatch(r"ordinal(\d+)", arr.alphabet.name or "")
@@ -341,7 +371,8 @@ def scan_stream(
     step:
         Step S between window starts (default ``W / 4``).
     depth:
-        Word length n (default: largest n with ``A**n * 20 <= W``).
+        Word length n (default: largest n with ``A**n * 20 <= W``; for a log, from the observed words:
+        :func:`observed_scan_depth`).
     ratio:
         Contraction ratio k for D0.
     penalty:
@@ -367,7 +398,10 @@ def scan_stream(
         from fractalseq.alphabet import require_two_symbols
 
         require_two_symbols(arr.alphabet, arr.name or "The input")
-        depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth, *ordinal_shape(arr))
+        if is_log_alphabet(arr.alphabet):
+            depth = observed_scan_depth(arr, int(window), step)
+        else:
+            depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth, *ordinal_shape(arr))
     if depth < 1 or depth >= window:
         raise ParameterError(f"The depth must lie between 1 and the window length; got {depth}.", parameter="depth")
     starts, figures, notes = window_figures(arr, int(window), step, int(depth), ratio, seed)

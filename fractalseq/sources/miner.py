@@ -16,7 +16,8 @@ Each line goes through these steps:
    route a line joins the cluster whose template it matches best, when more
    than ``threshold`` of the template's plain words (no digit, no inner
    punctuation: :func:`_routable`) equal the line's tokens at the same
-   positions; else it starts a cluster.  Masked tokens and other non-words
+   positions and the two fix different constants at fewer than two
+   positions (:mod:`fractalseq.sources.evidence`); else it starts a cluster.  Masked tokens and other non-words
    are no evidence either way, so ``job 12 started`` and ``job 12 done``
    (one word of two agreeing) stay apart while ``upgrade libfoo1:amd64 <*>``
    and ``upgrade libbar2:amd64 <*>`` join.  A position whose tokens differ
@@ -35,7 +36,9 @@ Each line goes through these steps:
    tokens), which takes its earlier clusters and all its later lines.  A
    fixed format with a few optional words (``Connection closed by [invalid
    user] <*> port <*>``) has few different words after its head and keeps
-   its templates.
+   its templates.  Once a ``LABEL: ...`` family (``PASS: <*>``) has a free
+   text tail, the families of sibling labels of the same shape (``FAIL:``,
+   ``UNTESTED:``) get one at once (:func:`~fractalseq.sources.evidence.label_shape`).
 5. A merge pass (:meth:`TemplateMiner.finish`) over templates with the same
    pinned tokens and length: first, templates seen on one line each that are
    equal but at one position, where they hold ``VARIABLE_WORDS`` or more
@@ -70,6 +73,7 @@ from operator import eq
 from typing import Sequence
 
 from fractalseq.errors import ParameterError
+from fractalseq.sources.evidence import conflicting, label_shape
 from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
 from fractalseq.sources.routes import Route
@@ -217,6 +221,8 @@ class TemplateMiner:
         self._stamp: list[int] = []
         self._clock = 0
         self._families: dict[tuple, _Family] = {}
+        #: label shapes (:func:`_label_shape`) of families that got a free-text tail
+        self._free_labels: set[tuple] = set()
         self._absorbed: dict[int, int] = {}
         self._head_memo: dict[tuple, tuple[str, ...]] = {}
         self._route_word: dict[str, bool] = {}
@@ -310,6 +316,9 @@ class TemplateMiner:
             fam = self._families[fkey] = _Family([a if a == WILDCARD else b for a, b in zip(head, free)])
             if any(t != WILDCARD for t in head):
                 fam.tail = -1  # a constant word in the head: the family may get a free-text tail
+                shape = label_shape(pinned, head)
+                if shape is not None and shape in self._free_labels:
+                    return self._collapse(fam, pinned)  # a sibling label of this shape has a free-text tail
         elif fam.tail >= 0:
             return fam.tail
         if fam.tail == -1:
@@ -374,6 +383,8 @@ class TemplateMiner:
             const = c.words
             if const and same <= limit * const and same < const:  # all words agreeing always qualifies
                 continue
+            if conflicting(tpl, free):
+                continue
             if same > best_sim:
                 best, best_sim, best_wild = cid, same, -1
             elif same == best_sim:  # tie: the template with more wildcards where the line differs wins
@@ -415,6 +426,8 @@ class TemplateMiner:
             const = clusters[cid].words
             if const and same <= limit * const and same < const:
                 continue
+            if conflicting(clusters[cid].tokens, free):
+                continue
             if same > best_sim:
                 best_sim = same
                 tied = [cid]
@@ -441,6 +454,12 @@ class TemplateMiner:
         for cid in fam.members:
             self._absorbed[cid] = tail
         fam.members = []
+        shape = label_shape(pinned, fam.head)
+        if shape is not None and shape not in self._free_labels:
+            self._free_labels.add(shape)
+            for (pin, head), sib in list(self._families.items()):  # in order of first appearance: deterministic
+                if sib.tail == -1 and pin == pinned and label_shape(pin, head) == shape:
+                    self._collapse(sib, pin)
         return tail
 
     # ----------------------------------------------------------- merge pass

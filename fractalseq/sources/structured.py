@@ -18,7 +18,9 @@ Plain text: a double-quoted span holding three or more spaces (a user agent,
 a free-text query) becomes the single token ``"<*>"``; short quoted spans
 (``"GET /x HTTP/1.1"``) are split into words like the rest of the line.  An
 angle-bracketed phrase of two to four words (``<invalid username>``, a
-placeholder printed instead of a value) becomes ``<*>``.
+placeholder printed instead of a value) becomes ``<*>``.  Exactly two spaces
+between two tokens mark an empty value (``Invalid user  from ...``) and become
+`` <*> `` (:func:`_empty_fields`).
 
 A message of words followed by a JSON object (``# expect: {"time": ...}``,
 ``request done {"ms": 12}``) is structured: its words (masked) and the object's
@@ -118,6 +120,20 @@ def _collapse_angles(msg: str) -> str:
     return "".join(out)
 
 
+_EMPTY_FIELD = re.compile(r"(?<=\S)  (?=\S)")
+
+
+def _empty_fields(msg: str) -> str:
+    """Mark an empty field: exactly two spaces between two tokens become `` <*> ``.
+
+    A message printed from a format such as ``"Invalid user %s from %s"`` with an empty value has
+    two spaces where the value would be; marking it keeps the line's tokens aligned with the lines
+    that have a value.  Runs of three or more spaces (column alignment) are left alone.  The pattern
+    has fixed-width look-arounds only: linear time.
+    """
+    return _EMPTY_FIELD.sub(" " + WILDCARD + " ", msg)
+
+
 def _logfmt(msg: str) -> list[tuple[str, str]] | None:
     """``key=value`` pairs of a logfmt message, or ``None`` when it is not one (quoted values may hold spaces)."""
     pairs = []
@@ -167,6 +183,8 @@ class Tokenizer:
             msg = _collapse_quotes(msg)
         if "<" in msg:
             msg = _collapse_angles(msg)
+        if "  " in msg:
+            msg = _empty_fields(msg)
         return self.mask(msg.split())
 
     def _structured(self, msg: str) -> tuple[tuple[str, ...], list[str]] | None:
@@ -214,7 +232,7 @@ class Tokenizer:
         if i < 0:
             return None
         res = self._structured(msg[i + 1 :])
-        if res is None or res[0][:1] != ("{",):
+        if res is None or res[0][:1] != ("{",) or len(res[0]) <= 2:  # ``{}`` names no key: the line is text
             return None
         pinned, free = res
         return tuple(self._text(msg[:i])) + pinned, free
@@ -238,6 +256,8 @@ class Tokenizer:
                 msg_s = _collapse_quotes(msg_s)
             if "<" in msg_s:
                 msg_s = _collapse_angles(msg_s)
+            if "  " in msg_s:
+                msg_s = _empty_fields(msg_s)
             toks = self.mask(msg_s.split())
             return (), toks if toks else [EMPTY_TOKEN]
         res = self._structured(msg_s) if msg_s else None
