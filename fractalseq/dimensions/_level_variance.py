@@ -201,6 +201,19 @@ def _batch_sums(labels, g, b, out):
             out[k, j] += g[a, j]
 
 
+@njit(cache=True)
+def _batch_sums_at(labels, g, b, t0, out):
+    """:func:`_batch_sums` of a chunk of labels whose first position is ``t0``."""
+    Q = g.shape[1]
+    for t in range(labels.shape[0]):
+        a = labels[t]
+        if a < 0:
+            continue
+        k = (t0 + t) // b
+        for j in range(Q):
+            out[k, j] += g[a, j]
+
+
 class BatchSums:
     """Accumulates per-batch sums of the influence values of every level; gives their covariance.
 
@@ -241,6 +254,24 @@ class BatchSums:
             col[:] = 0.0
             _batch_sums(lab, np.ascontiguousarray(box_influence(counts, qs[j : j + 1])), self.b, col)
             out[:, j] = col[:, 0]
+        self.sums[level] += 1.0 * out
+        self.total[level] += 1.0 * float(np.sum(counts))
+
+    def add_chunks(self, level: int, chunks, counts: np.ndarray, qs: np.ndarray) -> None:
+        """:meth:`add_counts` with the labels given chunk by chunk: ``chunks()`` yields ``(first position, labels)``
+        in order of position, so every batch sum adds the same terms in the same order (the same bits)."""
+        qs = np.asarray(qs, dtype=np.float64)
+        whole = counts.size * qs.size <= WHOLE_TABLE_CELLS
+        out = np.zeros((self.B, qs.size))
+        col = np.zeros((self.B, 1))
+        for j in [None] if whole else range(qs.size):
+            g = np.ascontiguousarray(box_influence(counts, qs if j is None else qs[j : j + 1]))
+            dest = out if j is None else col
+            dest[:] = 0.0
+            for t0, lab in chunks():
+                _batch_sums_at(np.ascontiguousarray(lab), g, self.b, int(t0), dest)
+            if j is not None:
+                out[:, j] = col[:, 0]
         self.sums[level] += 1.0 * out
         self.total[level] += 1.0 * float(np.sum(counts))
 

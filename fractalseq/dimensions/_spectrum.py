@@ -73,7 +73,9 @@ import numpy as np
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.dimensions._level_variance import BatchSums, word_level_variances
-from fractalseq.dimensions._levels import LevelData, LevelStats, level_stats, level_vector, limits_from, replicate_vectors
+from fractalseq.dimensions._levels import (
+    LevelData, LevelStats, level_stats, level_vector, limits_from, replicate_vectors, spectra_vectors,
+)
 from fractalseq.dimensions._parameters import (
     AUTO_ADDRESS_BITS,
     MIN_LEVELS,
@@ -93,6 +95,9 @@ from fractalseq.entropy._renyi_rates import RateEstimate, renyi_rate_bits
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.resampling import _bootstrap as bs
 from fractalseq.resampling._options import Resampling, as_resampling
+from fractalseq.resampling._plan import block_major_weights
+from fractalseq.resampling._streamed import streamed_replicate_spectra
+from fractalseq.resampling._word_labels import WordIndex
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, count_words
 
@@ -186,6 +191,7 @@ def _word_level_data(
     block: bs.BlockLength | None,
     scheme: str,
     corrected: bool,
+    auto: bs.BlockLength | None = None,
 ) -> LevelData:
     depths = np.arange(1, top_depth + 1)
     L = depths.size
@@ -202,15 +208,27 @@ def _word_level_data(
     reps = None
     cov = None
     if arr is not None:
-        # every position labelled once per depth: the batch-means covariance of the levels (range rule)
-        # and, with replicates, the bootstrap (interval) share the labels
+        # every position labelled once per depth, chunk by chunk (no length-sized array): the
+        # batch-means covariance of the levels (range rule) and, with replicates, the bootstrap
+        # (interval) share the labels
         boot = n_boot > 0 and block is not None
-        plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme) if boot and block is not None else None
-        reps = np.empty((n_boot, L, K)) if plan is not None else None
+        streamed = scheme == "nonoverlapping"
+        plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme) if boot and block is not None and not streamed else None
+        weights = block_major_weights(len(arr), block.length, n_boot, seed) if boot and block is not None and streamed else None
+        reps = np.empty((n_boot, L, K)) if plan is not None or weights is not None else None
         # batches as long as the automatic bootstrap blocks (whatever block length the interval uses)
-        auto = bs.choose_block_length(arr, L, scheme="nonoverlapping")
+        if auto is None:
+            auto = bs.choose_block_length(arr, L, scheme="nonoverlapping")
         batches = BatchSums(len(arr), L, qs.size, batch=auto.length)
         for i, n in enumerate(depths):
+            if streamed:
+                index = WordIndex(arr, int(n))
+                counts, spectra = streamed_replicate_spectra(index, int(n), block.length if block is not None else 1, weights)
+                batches.add_chunks(i, index.chunks, counts, qs)
+                if reps is not None and spectra is not None:
+                    reps[:, i] = spectra_vectors(spectra, n_boot, qs, corrected)
+                del index, counts, spectra
+                continue
             labels, words = bs.word_labels(arr, int(n))
             counts = np.bincount(labels[labels >= 0], minlength=words.size)
             batches.add_counts(i, labels, counts, qs)
@@ -353,7 +371,11 @@ def dimension_spectrum(
         if block.blocks < bs.MIN_BLOCKS:
             flags.append(f"only {block.blocks} blocks of {block.length} symbols: intervals are unreliable")
     if top >= 1:
-        ld = _word_level_data(wc, arr, qv, k, top, starve, n_boot if arr is not None else 0, seed, block, scheme, corrected)
+        # the bootstrap's own automatic block is the batch length too: chosen once
+        auto = block if block is not None and rs.block_length is None and scheme == "nonoverlapping" else None
+        ld = _word_level_data(
+            wc, arr, qv, k, top, starve, n_boot if arr is not None else 0, seed, block, scheme, corrected, auto
+        )
         # limits are computed on the probe (all counted depths) so a user range cannot move them
         ld.data_limit = min(probe.data_limit, top - 1)
         ld.complete_limit = min(probe.complete_limit, top - 1)
