@@ -173,3 +173,48 @@ def test_profile_in_small_chunks_equals_default(monkeypatch, chunk, budget, piec
     monkeypatch.setattr(sr.streamed_replicate_spectra, "__defaults__", (rp.DEFAULT_CAP, budget))
     monkeypatch.setattr(wc_mod, "ARRAY_PIECE", piece)
     assert _profile_json(arr, image=False) == base
+
+
+@settings(max_examples=40, deadline=None)
+@given(data=st.data(), T=st.integers(1, 600), n=st.integers(1, 9), chunk=st.integers(1, 200), A=st.sampled_from([2, 3, 4, 20]))
+def test_distinct_words_in_chunks_equal_a_set(data, T, n, chunk, A):
+    """Koslicki's p(n) counted chunk by chunk equals the size of a Python set of the words (common practice)."""
+    from fractalseq.entropy import _topological as topo
+
+    codes = np.array(data.draw(st.lists(st.integers(0, A - 1), min_size=T, max_size=T)), dtype=np.uint8)
+    starts = sorted(set([0] + data.draw(st.lists(st.integers(0, T - 1), max_size=4))))
+    bounds = starts + [T]
+    ref = {tuple(codes[p : p + n]) for a, b in zip(bounds[:-1], bounds[1:]) for p in range(a, b - n + 1)}
+    got = topo.distinct_words(codes, np.array(starts, np.int64), n, A, chunk=chunk)
+    assert got == len(ref)
+    old = topo._DENSE_DISTINCT
+    try:
+        topo._DENSE_DISTINCT = 1  # the sorted route too
+        assert topo.distinct_words(codes, np.array(starts, np.int64), n, A, chunk=chunk) == len(ref)
+    finally:
+        topo._DENSE_DISTINCT = old
+
+
+@settings(max_examples=15, deadline=None)
+@given(chunk=st.integers(1, 3000), cells=st.integers(1, 400_000), big=st.booleans())
+def test_batch_covariance_by_q_groups_equals_whole_table(chunk, cells, big):
+    """The levels' batch-means covariance built a group of q at a time equals the whole table's."""
+    from fractalseq.dimensions import _level_variance as lv
+
+    arr = _markov_stream(8_000, 12, starts=(0, 3_100))
+    qs = np.array([-1.0, 0.0, 0.5, 1.0, 2.0, 4.0])
+    depths = (1, 3, 6, 9)
+    old = lv.WHOLE_TABLE_CELLS
+    try:
+        lv.WHOLE_TABLE_CELLS = 1 if big else old
+        whole = lv.BatchSums(len(arr), len(depths), qs.size, batch=41)
+        levels = []
+        for i, n in enumerate(depths):
+            labels, words = wl.word_labels(arr, n)
+            counts = np.bincount(labels[labels >= 0], minlength=words.size)
+            whole.add_counts(i, labels, counts, qs)
+            levels.append((wl.WordIndex(arr, n, chunk).chunks, counts))
+        got = lv.streamed_batch_covariance(len(arr), 41, levels, qs, cells=cells)
+    finally:
+        lv.WHOLE_TABLE_CELLS = old
+    assert np.array_equal(got, whole.covariance())

@@ -72,7 +72,7 @@ from typing import Sequence
 import numpy as np
 
 from fractalseq.alphabet import Alphabet
-from fractalseq.dimensions._level_variance import BatchSums, word_level_variances
+from fractalseq.dimensions._level_variance import BatchSums, streamed_batch_covariance, word_level_variances
 from fractalseq.dimensions._levels import (
     LevelData, LevelStats, level_stats, level_vector, limits_from, replicate_vectors, spectra_vectors,
 )
@@ -192,6 +192,7 @@ def _word_level_data(
     scheme: str,
     corrected: bool,
     auto: bs.BlockLength | None = None,
+    variances: bool = True,
 ) -> LevelData:
     depths = np.arange(1, top_depth + 1)
     L = depths.size
@@ -219,26 +220,32 @@ def _word_level_data(
         # batches as long as the automatic bootstrap blocks (whatever block length the interval uses)
         if auto is None:
             auto = bs.choose_block_length(arr, L, scheme="nonoverlapping")
-        batches = BatchSums(len(arr), L, qs.size, batch=auto.length)
+        batches = BatchSums(len(arr), L, qs.size, batch=auto.length) if not streamed else None
+        levels = []
         for i, n in enumerate(depths):
             if streamed:
                 index = WordIndex(arr, int(n))
                 counts, spectra = streamed_replicate_spectra(index, int(n), block.length if block is not None else 1, weights)
-                batches.add_chunks(i, index.chunks, counts, qs)
+                levels.append((index.chunks, counts))
                 if reps is not None and spectra is not None:
                     reps[:, i] = spectra_vectors(spectra, n_boot, qs, corrected)
                 del index, counts, spectra
                 continue
+            assert batches is not None
             labels, words = bs.word_labels(arr, int(n))
             counts = np.bincount(labels[labels >= 0], minlength=words.size)
             batches.add_counts(i, labels, counts, qs)
             if reps is not None and plan is not None:
                 reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
             del labels, words, counts  # one depth's labels at a time
-        cov = batches.covariance()
+        cov = batches.covariance() if batches is not None else streamed_batch_covariance(len(arr), auto.length, levels, qs)
+        del levels
     x = depths * math.log(1.0 / ratio)
     dl, cl = limits_from(distinct, occ, unseen, starve)
-    var, dvar = word_level_variances(wc, L, qs)
+    if variances:
+        var, dvar = word_level_variances(wc, L, qs)
+    else:  # a probe of the limits: its variances are never read (the deep levels' are the costly ones)
+        var, dvar = np.full((L, qs.size), np.nan), np.full((max(L - 1, 0), qs.size), np.nan)
     return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl, var, dvar, cov)
 
 
@@ -362,9 +369,11 @@ def dimension_spectrum(
         if n_boot:
             flags.append("word counts only: no bootstrap (it needs the stream); intervals from the fit residuals")
     # levels used: up to the data limit (or the user's end)
-    probe = _word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, corrected)
+    probe = _word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, corrected, variances=False)
     top = (user[1] if user else probe.data_limit + 1)
     top = max(min(top, wc.depth), 0)
+    if top < 1:  # the probe is the result: give it its variances
+        probe = _word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, corrected)
     block = None
     if arr is not None and n_boot > 0 and top >= 1:
         block = bs.resolve_block(arr, top, rs.block_length, scheme)

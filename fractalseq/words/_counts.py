@@ -634,7 +634,7 @@ class WordCounter:
 
 
 #: A :class:`SymbolArray` is counted in pieces of this many symbols (the same counts as one piece).
-ARRAY_PIECE = 1 << 24
+ARRAY_PIECE = 1 << 22
 
 
 def count_words(
