@@ -21,6 +21,8 @@ Run::
     python benchmarks/bench_scale.py                       # 10 and 50 Mbase
     python benchmarks/bench_scale.py --sizes 10,50,100     # add 100 Mbase (needs ~3 GB free)
     python benchmarks/bench_scale.py --gigabase            # also one simulated 1-Gbase input (long)
+    python benchmarks/bench_scale.py --profile-only --sizes 10,50,96 --before ../old-checkout
+                                                           # profile only, this tree against another one
 
 Writes ``benchmarks/results/scale.json`` and ``scale.md``. The genomes are for benchmarking only;
 genomic output is for research, not for clinical decisions.
@@ -89,18 +91,20 @@ def simulate_fasta(path: Path, bases: int, records: int, seed: int = 1) -> None:
                 done += m
 
 
-def timed(argv: list[str], stdout=subprocess.DEVNULL) -> dict:
-    """Wall time and peak RSS of one process (``/usr/bin/time -v``)."""
-    env = dict(os.environ, PYTHONPATH=str(ROOT))
+def timed(argv: list[str], stdout=subprocess.DEVNULL, root: Path = ROOT) -> dict:
+    """Wall time, CPU time (user + system, all threads) and peak RSS of one process (``/usr/bin/time -v``),
+    with ``root`` as the code imported (``PYTHONPATH``)."""
+    env = dict(os.environ, PYTHONPATH=str(root))
     t0 = time.perf_counter()
     proc = subprocess.run(["/usr/bin/time", "-v", *argv], stdout=stdout, stderr=subprocess.PIPE, text=True, env=env)
     wall = time.perf_counter() - t0
     m = re.search(r"Maximum resident set size \(kbytes\): (\d+)", proc.stderr)
     rss = int(m.group(1)) * 1024 if m else None
+    cpu = sum(float(x) for x in re.findall(r"(?:User|System) time \(seconds\): ([0-9.]+)", proc.stderr))
     if proc.returncode != 0:
         tail = proc.stderr.strip().splitlines()[-25:]
         print("\n".join(tail), file=sys.stderr)
-    return {"seconds": round(wall, 2), "peak_bytes": rss, "exit": proc.returncode}
+    return {"seconds": round(wall, 2), "cpu_seconds": round(cpu, 2), "peak_bytes": rss, "exit": proc.returncode}
 
 
 def fs(*args: str) -> list[str]:
@@ -131,6 +135,48 @@ def genome_bases(path: Path, dest: Path) -> tuple[Path, Path, int]:
     return fasta, raw, len(bases)
 
 
+def profile_scale(sizes: list[float], gigabase: bool, before: Path | None, work: Path) -> int:
+    """``profile --json`` of multi-record inputs through the command line, with this tree and optionally
+    ``before`` (another checkout): peak memory, bytes per symbol, CPU seconds, and whether the two
+    JSON documents are the same bytes.  Writes ``scale_profile.{json,md}``."""
+    rows = []
+    inputs = list(sizes) + ([1000.0] if gigabase else [])
+    for mbase in inputs:
+        path = work / f"sim{int(mbase)}m_{RECORDS_MULTI}r.fa"
+        simulate_fasta(path, int(mbase * 1e6), RECORDS_MULTI)
+        symbols = int(mbase * 1e6)
+        docs = {}
+        for tree, root in (("before", before), ("after", ROOT)):
+            if root is None:
+                continue
+            out = work / f"{tree}.json"
+            with open(out, "wb") as fh:
+                r = timed(fs("profile", path, "--json", "--quiet"), stdout=fh, root=root)
+            docs[tree] = out.read_bytes()
+            row = {"tree": tree, "mbase": mbase, "records": RECORDS_MULTI, "symbols": symbols, **r,
+                   "bytes_per_symbol": round(r["peak_bytes"] / symbols, 1) if r["peak_bytes"] else None,
+                   "cpu_seconds_per_mbase": round(r["cpu_seconds"] / mbase, 3)}
+            rows.append(row)
+            print(row, flush=True)
+        if len(docs) == 2:
+            rows[-1]["same_json"] = docs["before"] == docs["after"]
+        path.unlink()
+    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}",
+            "before": str(before) if before else None, "rows": rows}
+    lines = ["| code | Mbase | records | peak memory | bytes/symbol | CPU time | CPU s/Mbase | wall time | same JSON |",
+             "|---|---:|---:|---:|---:|---:|---:|---:|---|"]
+    for r in rows:
+        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
+        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
+        same = {True: "yes", False: "no"}.get(r.get("same_json"), "")
+        lines.append(f"| {r['tree']}{ok} | {r['mbase']:g} | {r['records']} | {mem} | {r['bytes_per_symbol']} | "
+                     f"{r['cpu_seconds']:.1f} s | {r['cpu_seconds_per_mbase']:.2f} | {r['seconds']:.0f} s | {same} |")
+    lines += ["", f"Machine: {data['machine']}. CPU time is user + system of the whole process.", ""]
+    write_results("scale_profile", data, "\n".join(lines))
+    print("\n".join(lines))
+    return 0
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--sizes", default="10,50", help="Mbase of the simulated inputs, comma-separated.")
@@ -138,8 +184,15 @@ def main() -> int:
     ap.add_argument("--learn-max", type=float, default=10, help="Largest input (Mbase) given to learn.")
     ap.add_argument("--skip", default="", help="Commands to leave out, comma-separated (e.g. 'profile').")
     ap.add_argument("--multi-max", type=float, default=50, help="Largest size that also gets the multi-record input.")
+    ap.add_argument("--profile-only", action="store_true",
+                    help="Only `profile` of the 24-record inputs at --sizes (and --gigabase); writes scale_profile.{json,md}.")
+    ap.add_argument("--before", type=Path, default=None,
+                    help="With --profile-only: another checkout whose `profile` is measured on the same inputs (JSON compared).")
     args = ap.parse_args()
     sizes = [float(s) for s in args.sizes.split(",") if s.strip()]
+    if args.profile_only:
+        with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
+            return profile_scale(sizes, args.gigabase, args.before, Path(tmp))
     skip = {s.strip() for s in args.skip.split(",") if s.strip()}
     rows: list[dict] = []
     extra: dict = {}

@@ -201,6 +201,19 @@ def _batch_sums(labels, g, b, out):
             out[k, j] += g[a, j]
 
 
+@njit(cache=True)
+def _batch_sums_at(labels, g, b, t0, out):
+    """:func:`_batch_sums` of a chunk of labels whose first position is ``t0``."""
+    Q = g.shape[1]
+    for t in range(labels.shape[0]):
+        a = labels[t]
+        if a < 0:
+            continue
+        k = (t0 + t) // b
+        for j in range(Q):
+            out[k, j] += g[a, j]
+
+
 class BatchSums:
     """Accumulates per-batch sums of the influence values of every level; gives their covariance.
 
@@ -244,6 +257,24 @@ class BatchSums:
         self.sums[level] += 1.0 * out
         self.total[level] += 1.0 * float(np.sum(counts))
 
+    def add_chunks(self, level: int, chunks, counts: np.ndarray, qs: np.ndarray) -> None:
+        """:meth:`add_counts` with the labels given chunk by chunk: ``chunks()`` yields ``(first position, labels)``
+        in order of position, so every batch sum adds the same terms in the same order (the same bits)."""
+        qs = np.asarray(qs, dtype=np.float64)
+        whole = counts.size * qs.size <= WHOLE_TABLE_CELLS
+        out = np.zeros((self.B, qs.size))
+        col = np.zeros((self.B, 1))
+        for j in [None] if whole else range(qs.size):
+            g = np.ascontiguousarray(box_influence(counts, qs if j is None else qs[j : j + 1]))
+            dest = out if j is None else col
+            dest[:] = 0.0
+            for t0, lab in chunks():
+                _batch_sums_at(np.ascontiguousarray(lab), g, self.b, int(t0), dest)
+            if j is not None:
+                out[:, j] = col[:, 0]
+        self.sums[level] += 1.0 * out
+        self.total[level] += 1.0 * float(np.sum(counts))
+
     def covariance(self) -> np.ndarray | None:
         """``(Q, L, L)`` batch-means covariance of the level statistics; ``None`` with fewer than 10 batches."""
         if self.B < 10:
@@ -255,3 +286,55 @@ class BatchSums:
             S = self.sums[:, :, j] / N[:, None]  # (L, B): each batch's share of the linearised deviation
             out[j] = B * np.cov(S, ddof=1).reshape(L, L)
         return out
+
+
+#: Batch sums held at once by :func:`streamed_batch_covariance` (float64 cells: 256 MB).
+BATCH_CELLS = 1 << 25
+
+
+def streamed_batch_covariance(
+    length: int, batch: int, levels: list, qs: np.ndarray, cells: int | None = None
+) -> np.ndarray | None:
+    """:meth:`BatchSums.covariance` after :meth:`BatchSums.add_counts` of every level, without the
+    ``(levels, batches, Q)`` table: a group of q at a time.
+
+    Parameters
+    ----------
+    length, batch:
+        Number of positions and batch length (as for :class:`BatchSums`).
+    levels:
+        One ``(chunks, counts)`` per level: ``chunks()`` yields ``(first position, labels)`` in order
+        (e.g. :meth:`fractalseq.resampling._word_labels.WordIndex.chunks`), ``counts`` the occurrences.
+    qs:
+        Orders q.
+    cells:
+        Batch sums held at once (default :data:`BATCH_CELLS`): ``levels x batches x group``.
+
+    Each level's influence values of a group of q are summed per batch in order of position (the
+    same terms in the same order as the whole table), so the result is the same, bit for bit; the
+    labels are read once per level and group.
+    """
+    qs = np.asarray(qs, dtype=np.float64)
+    sums = BatchSums(length, 1, 1, batch=batch)  # batch length and count only
+    b, B, L, Q = sums.b, sums.B, len(levels), qs.size
+    if B < 10:
+        return None
+    per_q = max(L * B, 1)
+    group = int(max(1, min(Q, (BATCH_CELLS if cells is None else int(cells)) // per_q)))
+    total = np.array([float(np.sum(c)) for _, c in levels])
+    N = np.where(total > 0, total, np.nan)
+    out = np.empty((Q, L, L))
+    for j0 in range(0, Q, group):
+        j1 = min(Q, j0 + group)
+        S = np.zeros((L, B, j1 - j0))
+        for i, (chunks, counts) in enumerate(levels):
+            if counts.size * qs.size <= WHOLE_TABLE_CELLS:
+                g = np.ascontiguousarray(box_influence(counts, qs)[:, j0:j1])
+            else:
+                g = np.ascontiguousarray(box_influence(counts, qs[j0:j1]))
+            for t0, lab in chunks():
+                _batch_sums_at(np.ascontiguousarray(lab), g, b, int(t0), S[i])
+        for j in range(j0, j1):
+            Sj = (S[:, :, j - j0] + 0.0) / N[:, None]  # 0.0 + x: the whole table's zero start (no -0.0)
+            out[j] = B * np.cov(Sj, ddof=1).reshape(L, L)
+    return out

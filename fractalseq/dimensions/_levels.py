@@ -234,6 +234,16 @@ def replicate_vectors(
     return out
 
 
+def spectra_vectors(spec, n_boot: int, qs: np.ndarray, corrected: bool) -> np.ndarray:
+    """``(n_boot, 3Q + 3)`` level vectors of every replicate from their count spectra
+    (:class:`~fractalseq.resampling._replicates.ReplicateSpectra`, e.g. streamed); see :func:`replicate_vectors`."""
+    qv = np.ascontiguousarray(qs, dtype=np.float64)
+    out = np.empty((n_boot, 3 * qv.size + 3))
+    if n_boot:
+        _spectra_vectors(spec.dense, spec.big, qv, bool(corrected), out)
+    return out
+
+
 @dataclass
 class LevelData:
     """Everything the fits need: per-level statistics of the data and of every replicate."""

@@ -72,8 +72,10 @@ from typing import Sequence
 import numpy as np
 
 from fractalseq.alphabet import Alphabet
-from fractalseq.dimensions._level_variance import BatchSums, word_level_variances
-from fractalseq.dimensions._levels import LevelData, LevelStats, level_stats, level_vector, limits_from, replicate_vectors
+from fractalseq.dimensions._level_variance import BatchSums, streamed_batch_covariance, word_level_variances
+from fractalseq.dimensions._levels import (
+    LevelData, LevelStats, level_stats, level_vector, limits_from, replicate_vectors, spectra_vectors,
+)
 from fractalseq.dimensions._parameters import (
     AUTO_ADDRESS_BITS,
     MIN_LEVELS,
@@ -93,6 +95,9 @@ from fractalseq.entropy._renyi_rates import RateEstimate, renyi_rate_bits
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.resampling import _bootstrap as bs
 from fractalseq.resampling._options import Resampling, as_resampling
+from fractalseq.resampling._plan import block_major_weights
+from fractalseq.resampling._streamed import streamed_replicate_spectra
+from fractalseq.resampling._word_labels import WordIndex
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, count_words
 
@@ -186,6 +191,8 @@ def _word_level_data(
     block: bs.BlockLength | None,
     scheme: str,
     corrected: bool,
+    auto: bs.BlockLength | None = None,
+    variances: bool = True,
 ) -> LevelData:
     depths = np.arange(1, top_depth + 1)
     L = depths.size
@@ -202,25 +209,43 @@ def _word_level_data(
     reps = None
     cov = None
     if arr is not None:
-        # every position labelled once per depth: the batch-means covariance of the levels (range rule)
-        # and, with replicates, the bootstrap (interval) share the labels
+        # every position labelled once per depth, chunk by chunk (no length-sized array): the
+        # batch-means covariance of the levels (range rule) and, with replicates, the bootstrap
+        # (interval) share the labels
         boot = n_boot > 0 and block is not None
-        plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme) if boot and block is not None else None
-        reps = np.empty((n_boot, L, K)) if plan is not None else None
+        streamed = scheme == "nonoverlapping"
+        plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme) if boot and block is not None and not streamed else None
+        weights = block_major_weights(len(arr), block.length, n_boot, seed) if boot and block is not None and streamed else None
+        reps = np.empty((n_boot, L, K)) if plan is not None or weights is not None else None
         # batches as long as the automatic bootstrap blocks (whatever block length the interval uses)
-        auto = bs.choose_block_length(arr, L, scheme="nonoverlapping")
-        batches = BatchSums(len(arr), L, qs.size, batch=auto.length)
+        if auto is None:
+            auto = bs.choose_block_length(arr, L, scheme="nonoverlapping")
+        batches = BatchSums(len(arr), L, qs.size, batch=auto.length) if not streamed else None
+        levels = []
         for i, n in enumerate(depths):
+            if streamed:
+                index = WordIndex(arr, int(n))
+                counts, spectra = streamed_replicate_spectra(index, int(n), block.length if block is not None else 1, weights)
+                levels.append((index.chunks, counts))
+                if reps is not None and spectra is not None:
+                    reps[:, i] = spectra_vectors(spectra, n_boot, qs, corrected)
+                del index, counts, spectra
+                continue
+            assert batches is not None
             labels, words = bs.word_labels(arr, int(n))
             counts = np.bincount(labels[labels >= 0], minlength=words.size)
             batches.add_counts(i, labels, counts, qs)
             if reps is not None and plan is not None:
                 reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
             del labels, words, counts  # one depth's labels at a time
-        cov = batches.covariance()
+        cov = batches.covariance() if batches is not None else streamed_batch_covariance(len(arr), auto.length, levels, qs)
+        del levels
     x = depths * math.log(1.0 / ratio)
     dl, cl = limits_from(distinct, occ, unseen, starve)
-    var, dvar = word_level_variances(wc, L, qs)
+    if variances:
+        var, dvar = word_level_variances(wc, L, qs)
+    else:  # a probe of the limits: its variances are never read (the deep levels' are the costly ones)
+        var, dvar = np.full((L, qs.size), np.nan), np.full((max(L - 1, 0), qs.size), np.nan)
     return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl, var, dvar, cov)
 
 
@@ -344,16 +369,22 @@ def dimension_spectrum(
         if n_boot:
             flags.append("word counts only: no bootstrap (it needs the stream); intervals from the fit residuals")
     # levels used: up to the data limit (or the user's end)
-    probe = _word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, corrected)
+    probe = _word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, corrected, variances=False)
     top = (user[1] if user else probe.data_limit + 1)
     top = max(min(top, wc.depth), 0)
+    if top < 1:  # the probe is the result: give it its variances
+        probe = _word_level_data(wc, None, qv, k, wc.depth, starve, 0, seed, None, scheme, corrected)
     block = None
     if arr is not None and n_boot > 0 and top >= 1:
         block = bs.resolve_block(arr, top, rs.block_length, scheme)
         if block.blocks < bs.MIN_BLOCKS:
             flags.append(f"only {block.blocks} blocks of {block.length} symbols: intervals are unreliable")
     if top >= 1:
-        ld = _word_level_data(wc, arr, qv, k, top, starve, n_boot if arr is not None else 0, seed, block, scheme, corrected)
+        # the bootstrap's own automatic block is the batch length too: chosen once
+        auto = block if block is not None and rs.block_length is None and scheme == "nonoverlapping" else None
+        ld = _word_level_data(
+            wc, arr, qv, k, top, starve, n_boot if arr is not None else 0, seed, block, scheme, corrected, auto
+        )
         # limits are computed on the probe (all counted depths) so a user range cannot move them
         ld.data_limit = min(probe.data_limit, top - 1)
         ld.complete_limit = min(probe.complete_limit, top - 1)

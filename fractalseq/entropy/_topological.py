@@ -61,15 +61,35 @@ def h_topological_growth(wc, depth: int | None = None) -> EntropyEstimate:
 _DENSE_DISTINCT = 1 << 28
 
 
-def distinct_words(codes: np.ndarray, starts: np.ndarray, n: int, A: int) -> int:
-    """Number of distinct n-words of codes ``0..A-1`` not spanning a segment start (a byte table, or a sort)."""
+#: Positions per chunk of :func:`distinct_words` (word addresses live one chunk at a time).
+DISTINCT_CHUNK = 1 << 22
+
+
+def distinct_words(codes: np.ndarray, starts: np.ndarray, n: int, A: int, chunk: int | None = None) -> int:
+    """Number of distinct n-words of codes ``0..A-1`` not spanning a segment start (a byte table, or a sort).
+
+    The words are addressed ``chunk`` positions at a time (each chunk with its ``n - 1`` lookahead
+    symbols, so every word is seen once), marked in the byte table or kept as each chunk's distinct
+    words: memory of one chunk plus the table, not 16 bytes per position.
+    """
     bits = max(1, (int(A) - 1).bit_length())
-    words, _ = segment_word_addresses(codes, starts, n, bits)
-    if bits * n < 63 and (1 << (bits * n)) <= _DENSE_DISTINCT:
-        seen = np.zeros(1 << (bits * n), np.bool_)
-        seen[words] = True
+    T = int(codes.size)
+    step = max(int(DISTINCT_CHUNK if chunk is None else chunk), 1)
+    st_all = np.asarray(starts, dtype=np.int64)
+    dense = bits * n < 63 and (1 << (bits * n)) <= _DENSE_DISTINCT
+    seen = np.zeros(1 << (bits * n), np.bool_) if dense else None
+    parts = []
+    for a in range(0, T, step):
+        e = min(a + step + n - 1, T)
+        inner = st_all[(st_all > a) & (st_all < e)] - a
+        words, _ = segment_word_addresses(codes[a:e], np.concatenate([[0], inner]).astype(np.int64), n, bits)
+        if seen is not None:
+            seen[words] = True
+        else:
+            parts.append(np.unique(words))
+    if seen is not None:
         return int(np.count_nonzero(seen))
-    return int(np.unique(words).size)
+    return int(np.unique(np.concatenate(parts)).size) if parts else 0
 
 
 def h_topological_koslicki(data, alphabet_size: int | None = None) -> EntropyEstimate:
@@ -108,7 +128,7 @@ def h_topological_koslicki(data, alphabet_size: int | None = None) -> EntropyEst
     prefix = A**n + n - 1
     st = starts[(starts >= 0) & (starts < prefix)]
     st = np.unique(np.concatenate([[0], st])).astype(np.int64)
-    p = distinct_words(np.ascontiguousarray(codes[:prefix]).astype(np.int64), st, n, A)
+    p = distinct_words(codes[:prefix], st, n, A)
     frac = math.log(p) / math.log(A) / n if p > 0 else 0.0
     notes = [f"prefix of {prefix} symbols (A^n + n - 1) of {L}"]
     if st.size > 1:

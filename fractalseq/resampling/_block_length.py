@@ -36,31 +36,93 @@ def autocovariances(x: np.ndarray, max_lag: int, segment: int | None = None) -> 
     plus ``max_lag`` points (each segment correlated with itself extended by
     ``max_lag`` points), so the cost grows like ``n log(segment)`` and the
     memory like a few segments, instead of one FFT of ``2n`` points.
+    (:class:`StreamedAutocovariances` with the whole series fed at once.)
     """
-    from scipy import fft as sfft
-
     x = np.ascontiguousarray(x, dtype=np.float64)
-    n = x.size
-    M = int(min(max(max_lag, 0), max(n - 1, 0)))
-    L = int(segment) if segment else max(4 * M, 1 << 14)
-    L = max(L, 1)
-    N = sfft.next_fast_len(L + M, real=True)
-    S = -(-n // L)
-    out = np.zeros(M + 1)
-    batch = max(1, (1 << 22) // N)
-    for s0 in range(0, S, batch):
-        s1 = min(S, s0 + batch)
+    acc = StreamedAutocovariances(x.size, max_lag, segment)
+    acc.feed(x)
+    return acc.finish()
+
+
+class StreamedAutocovariances:
+    """:func:`autocovariances` of a series handed over in pieces of any size (the same numbers, bit for bit).
+
+    The series is cut into the same segments and FFT batches whatever the pieces: a batch is
+    transformed once all of its points (and the ``max_lag`` points after it) have arrived, and the
+    points before the next batch are dropped, so memory is a batch (about 2^22 points), not the series.
+
+    Parameters
+    ----------
+    n:
+        Length of the whole series.
+    max_lag, segment:
+        As for :func:`autocovariances`.
+    """
+
+    def __init__(self, n: int, max_lag: int, segment: int | None = None) -> None:
+        from scipy import fft as sfft
+
+        self._fft = sfft
+        self.n = int(n)
+        self.M = int(min(max(max_lag, 0), max(self.n - 1, 0)))
+        L = int(segment) if segment else max(4 * self.M, 1 << 14)
+        self.L = max(L, 1)
+        self.N = sfft.next_fast_len(self.L + self.M, real=True)
+        self.S = -(-self.n // self.L)
+        self.batch = max(1, (1 << 22) // self.N)
+        self.out = np.zeros(self.M + 1)
+        self._parts: list[np.ndarray] = []
+        self._have = 0  # points held in _parts
+        self._g0 = 0  # global index of the first point held
+        self._s0 = 0  # first segment not yet transformed
+        self._seen = 0
+
+    def feed(self, values: np.ndarray) -> None:
+        """Append the next points of the series (float64, centred)."""
+        v = np.ascontiguousarray(values, dtype=np.float64)
+        if v.size == 0:
+            return
+        self._seen += v.size
+        if self._seen > self.n:
+            raise ParameterError(f"More than the announced {self.n} points were fed.", parameter="values")
+        self._parts.append(v)
+        self._have += v.size
+        self._run(final=False)
+
+    def finish(self) -> np.ndarray:
+        """The autocovariances once every point has been fed."""
+        self._run(final=True)
+        return self.out / self.n if self.n else self.out
+
+    def _run(self, final: bool) -> None:
+        while self._s0 < self.S:
+            s0 = self._s0
+            s1 = min(self.S, s0 + self.batch)
+            need = min(self.n, s1 * self.L + self.M)
+            if self._g0 + self._have < need and not final:
+                return
+            x = np.concatenate(self._parts) if len(self._parts) > 1 else self._parts[0] if self._parts else np.zeros(0)
+            self._parts = [x]
+            self._batch(x, s0, s1)
+            drop = min(s1 * self.L, self.n) - self._g0
+            rest = x[drop:]
+            self._parts = [rest] if rest.size else []
+            self._have = rest.size
+            self._g0 += drop
+            self._s0 = s1
+
+    def _batch(self, x: np.ndarray, s0: int, s1: int) -> None:
+        sfft, L, M, N, g0 = self._fft, self.L, self.M, self.N, self._g0
         a = np.zeros((s1 - s0, N))
         b = np.zeros((s1 - s0, N))
         for i, s in enumerate(range(s0, s1)):  # past the end the rows stay zero (no padded copy of x)
-            seg = x[s * L : s * L + L]
+            seg = x[s * L - g0 : s * L - g0 + L]
             a[i, : seg.size] = seg
-            seg = x[s * L : s * L + L + M]
+            seg = x[s * L - g0 : s * L - g0 + L + M]
             b[i, : seg.size] = seg
         fa = sfft.rfft(a, axis=1)
         fb = sfft.rfft(b, axis=1)
-        out += sfft.irfft(np.conj(fa) * fb, N, axis=1)[:, : M + 1].sum(axis=0)
-    return out / n
+        self.out += sfft.irfft(np.conj(fa) * fb, N, axis=1)[:, : M + 1].sum(axis=0)
 
 
 def politis_white(series: np.ndarray) -> tuple[float, float]:
@@ -87,10 +149,18 @@ def politis_white(series: np.ndarray) -> tuple[float, float]:
     var = float(np.sum(x * x)) / n  # not BLAS: thread-count independent bits
     if var <= 1e-300:
         return 1.0, 1.0
+    kn, m_max = _lag_limits(n)
+    return _pw_from_acov(n, autocovariances(x, m_max), kn, m_max)
+
+
+def _lag_limits(n: int) -> tuple[int, int]:
+    """``K_N`` and the largest lag ``m_max`` of the Politis-White rule for ``n`` points."""
     kn = max(5, int(math.sqrt(math.log10(n))))
-    m_max = int(math.ceil(math.sqrt(n))) + kn
-    m_max = min(m_max, n - 1)
-    acov = autocovariances(x, m_max)
+    return kn, min(int(math.ceil(math.sqrt(n))) + kn, n - 1)
+
+
+def _pw_from_acov(n: int, acov: np.ndarray, kn: int, m_max: int) -> tuple[float, float]:
+    """The Politis-White block lengths from the autocovariances (see :func:`politis_white`)."""
     rho = acov / acov[0]
     thr = 2.0 * math.sqrt(math.log10(n) / n)
     insignificant = np.abs(rho[1:]) < thr  # lag 1..m_max
@@ -155,6 +225,74 @@ def surprisal_series(arr: SymbolArray, order: int) -> np.ndarray:
     return out
 
 
+@njit(cache=True)
+def _surprisal_tallies(lab1, lab0, m0, joint, ctx, ctx_of):
+    """Add one chunk's word and context counts (and each word's context label); returns the words counted."""
+    total = 0
+    for t in range(lab1.shape[0]):
+        if lab1[t] >= 0:
+            joint[lab1[t]] += 1
+            total += 1
+            if m0 > 0:
+                ctx[lab0[t]] += 1
+                ctx_of[lab1[t]] = lab0[t]
+    return total
+
+
+@njit(cache=True)
+def _word_surprisals(joint, ctx, ctx_of, m0, total, vals):
+    """``vals[w] = -ln(count(w) / count(context of w))``: the operation :func:`_surprisals` does per position."""
+    for w in range(joint.shape[0]):
+        if joint[w] > 0:
+            den = ctx[ctx_of[w]] if m0 > 0 else total
+            vals[w] = -math.log(joint[w] / den)
+
+
+def streamed_politis_white(arr: SymbolArray, order: int, chunk: int | None = None) -> tuple[float, float]:
+    """:func:`politis_white` of :func:`surprisal_series` without holding the series.
+
+    Two passes over the stream, chunk by chunk (:class:`~fractalseq.resampling._word_labels.WordIndex`):
+    the word and context counts, then each chunk's surprisals (defined positions, in order) fed to
+    :class:`StreamedAutocovariances`.  A stream of one chunk gives :func:`politis_white` of the series
+    bit for bit.  With several chunks the mean is the exact sum over words ``sum_w count(w) s(w) / n``
+    (:func:`math.fsum`), which no chunking can change; it may differ from ``numpy.mean`` of the whole
+    series in the last bits.
+    """
+    from fractalseq.resampling._word_labels import WordIndex
+
+    i1 = WordIndex(arr, order + 1, chunk)
+    i0 = WordIndex(arr, order, chunk) if order > 0 else None
+    m0 = i0.size if i0 is not None else 0
+    joint = np.zeros(max(i1.size, 1), dtype=np.int64)
+    ctx = np.zeros(max(m0, 1), dtype=np.int64)
+    ctx_of = np.zeros(max(i1.size, 1), dtype=np.int64)
+    spans = list(range(0, len(arr), i1.chunk))
+    n = 0
+    for a in spans:
+        b = min(a + i1.chunk, len(arr))
+        lab1 = i1.labels(a, b)
+        lab0 = i0.labels(a, b) if i0 is not None else lab1
+        n += int(_surprisal_tallies(lab1, lab0, m0, joint, ctx, ctx_of))
+    vals = np.full(joint.size, np.nan)
+    _word_surprisals(joint, ctx, ctx_of, m0, n, vals)
+    if len(spans) <= 1:
+        lab1 = i1.labels(0, len(arr))
+        return politis_white(vals[lab1[lab1 >= 0]])
+    if n < 16:
+        return 1.0, 1.0
+    hit = joint > 0
+    mean = math.fsum((joint[hit] * vals[hit]).tolist()) / n
+    var = math.fsum((joint[hit] * (vals[hit] - mean) ** 2).tolist()) / n
+    if var <= 1e-300:
+        return 1.0, 1.0
+    kn, m_max = _lag_limits(n)
+    acc = StreamedAutocovariances(n, m_max)
+    for a in spans:
+        lab1 = i1.labels(a, min(a + i1.chunk, len(arr)))
+        acc.feed(vals[lab1[lab1 >= 0]] - mean)
+    return _pw_from_acov(n, acc.finish(), kn, m_max)
+
+
 @dataclass(frozen=True)
 class BlockLength(Result):
     """The block length used and how it was chosen.
@@ -211,12 +349,12 @@ def choose_block_length(
         order = int(min(2, max(depth - 1, 0)))
         if arr.alphabet.size > 16:
             order = min(order, 1)
-        series = surprisal_series(arr, order)
+        b_sb, b_cb = streamed_politis_white(arr, order)
         what = f"order-{order} surprisal series"
     else:
         what = "supplied series"
+        b_sb, b_cb = politis_white(series)
     T = int(length if length is not None else (len(arr) if arr is not None else len(series)))
-    b_sb, b_cb = politis_white(series)
     pw = b_sb if scheme == "stationary" else b_cb
     floor = int(multiple * max(int(depth), 1))
     ell = max(int(math.ceil(pw)), floor, 1)

@@ -50,7 +50,6 @@ from typing import Callable, ClassVar, Iterable, Mapping, Sequence
 import numpy as np
 
 from fractalseq.errors import InputError, ParameterError
-from fractalseq.resampling import _replicates as rp
 from fractalseq.resampling._block_length import (
     BLOCK_MULTIPLE,
     MIN_BLOCKS,
@@ -65,9 +64,10 @@ from fractalseq.resampling._block_length import (
 from fractalseq.resampling._block_tables import BlockTables, block_tables, replicate_table, weighted_table
 from fractalseq.resampling._intervals import INTERVALS, interval_from
 from fractalseq.resampling._options import Resampling, as_resampling
-from fractalseq.resampling._plan import SCHEMES, ResamplePlan, make_plan
+from fractalseq.resampling._plan import SCHEMES, ResamplePlan, block_major_weights, make_plan
 from fractalseq.resampling._replicates import CountSpectrum
-from fractalseq.resampling._word_labels import DENSE_LABEL_CELLS, rank_sorted_keys, word_labels
+from fractalseq.resampling._streamed import streamed_replicate_spectra
+from fractalseq.resampling._word_labels import DENSE_LABEL_CELLS, WordIndex, rank_sorted_keys, word_labels
 from fractalseq.results import Result
 from fractalseq.stream import SymbolArray, SymbolStream
 
@@ -232,16 +232,14 @@ def run_block_bootstrap(
     if block.blocks < MIN_BLOCKS:
         notes.append(f"only {block.blocks} blocks: intervals are unreliable")
     if spectra and (scheme == "nonoverlapping" or not n_boot):
-        # one depth at a time: its labels live only while its spectra are built (memory of one depth)
         full, specs = {}, {}
-        weights = make_plan(T, block.length, n_boot, seed, scheme).block_weights() if n_boot else None
-        for n in depths:
-            lab = word_labels(arr, n)[0]
-            size = int(lab.max()) + 1 if lab.size and lab.max() >= 0 else 0
-            full[n] = CountSpectrum.of_counts(np.bincount(lab[lab >= 0], minlength=size))
-            if weights is not None:
-                specs[n] = rp.replicate_spectra(rp.item_tables(lab, n, block.length, size), weights)
-            del lab
+        weights = block_major_weights(T, block.length, n_boot, seed) if n_boot else None
+        for n in depths:  # labelled chunk by chunk (no length-sized array), the same spectra
+            counts, spec = streamed_replicate_spectra(WordIndex(arr, n), n, block.length, weights)
+            full[n] = CountSpectrum.of_counts(counts)
+            if spec is not None:
+                specs[n] = spec
+            del counts
         estimate = np.atleast_1d(np.asarray(statistic(full), dtype=np.float64)).copy()
         reps = np.full((n_boot, estimate.size), np.nan)
         if batch_statistic is not None and n_boot:

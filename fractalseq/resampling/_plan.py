@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from numba import njit
 
 from fractalseq.errors import InputError, ParameterError
 
@@ -100,3 +101,37 @@ def make_plan(length: int, block_length: int, n_boot: int, seed: int = 0, scheme
         np.concatenate(l_parts) if l_parts else np.zeros(0, np.int64),
         np.asarray(offs, dtype=np.int64),
     )
+
+
+@njit(cache=True)
+def _tally_draws(draws, wt):
+    """``wt[b, r]`` = how often replicate ``r`` drew block ``b``."""
+    R, nb = draws.shape
+    for r in range(R):
+        for j in range(nb):
+            wt[draws[r, j], r] += 1
+
+
+def block_major_weights(length: int, block_length: int, n_boot: int, seed: int = 0) -> np.ndarray:
+    """``(blocks, n_boot)`` int32 weights of the non-overlapping scheme: ``make_plan(...).block_weights().T``.
+
+    The same draws as :func:`make_plan` (one call of ``integers`` on ``default_rng(seed)``, taken as
+    int32: numpy gives the same numbers for either width), tallied straight into the block-major table
+    that :func:`fractalseq.resampling._replicates.replicate_spectra` uses, so the plan's starts,
+    lengths and replicate-major weights (28 bytes per replicate and block) are never built: 8 bytes
+    per replicate and block while drawing, 4 after.
+    """
+    T, ell = int(length), int(block_length)
+    if T < 1:
+        raise InputError("There is nothing to resample: the stream is empty.")
+    ell = max(1, min(ell, T))
+    from fractalseq.guards import check_memory
+
+    nb = -(-T // ell)
+    check_memory(8 * int(n_boot) * nb, f"{int(n_boot)} bootstrap replicates of {nb} blocks each (8 bytes a block)",
+                 "n_boot", "use fewer replicates or longer blocks")
+    draws = np.random.default_rng(seed).integers(0, nb, size=(n_boot, nb), dtype=np.int32)
+    wt = np.zeros((nb, n_boot), dtype=np.int32)
+    if n_boot:
+        _tally_draws(draws, wt)
+    return wt

@@ -149,3 +149,83 @@ def word_labels(arr: SymbolArray, depth: int, chunk: int = LABEL_CHUNK) -> tuple
         pos = np.flatnonzero(valid)
         labels[a + pos] = np.searchsorted(words, addr[pos]).astype(dtype)
     return labels, words.astype(np.uint64, copy=False)
+
+
+#: Positions per chunk of the streamed passes (:class:`WordIndex`): labels live one chunk at a time.
+STREAM_CHUNK = 1 << 22
+
+
+class WordIndex:
+    """One depth's union table of words, labelling any stretch of positions on demand.
+
+    The streamed form of :func:`word_labels`: the table is built in one pass over the
+    stream (chunks of :data:`STREAM_CHUNK` positions), and :meth:`labels` gives the labels of
+    positions ``a..b-1``, equal to ``word_labels(arr, depth)[0][a:b]``, so no length-sized
+    label array is ever held.
+
+    Parameters
+    ----------
+    arr:
+        The stream.
+    depth:
+        Word length.
+    chunk:
+        Positions per chunk of :meth:`chunks` (default :data:`STREAM_CHUNK`).
+    """
+
+    def __init__(self, arr: SymbolArray, depth: int, chunk: int | None = None) -> None:
+        T = len(arr)
+        bits = arr.alphabet.bits
+        if depth < 1 or bits * depth > 64:
+            raise ParameterError(f"Depth {depth} is outside 1..{arr.alphabet.max_depth} for this alphabet.", parameter="depth")
+        self.arr, self.depth, self.length = arr, int(depth), T
+        self.chunk = max(int(STREAM_CHUNK if chunk is None else chunk), 1)
+        cells = 1 << (bits * depth) if bits * depth <= 62 else 0
+        self.table: np.ndarray | None = None
+        if 0 < cells <= DENSE_LABEL_CELLS:
+            table = np.zeros(cells, dtype=np.int32)
+            for a, b in _chunks(T, self.chunk):
+                _mark_dense(*_chunk_addresses(arr, depth, a, b), table)
+            self.words = _rank_dense(table)
+            self.table = table
+            self.dtype = np.dtype(np.int32)
+            return
+        parts = []
+        for a, b in _chunks(T, self.chunk):
+            addr, valid = _chunk_addresses(arr, depth, a, b)
+            parts.append(np.unique(addr[valid]))
+        words = np.unique(np.concatenate(parts)) if parts else np.zeros(0, np.uint64)
+        del parts
+        self.words = words.astype(np.uint64, copy=False)
+        self.dtype = np.dtype(np.int32 if words.size < 2**31 - 1 else np.int64)
+
+    @property
+    def size(self) -> int:
+        """Number of distinct words (labels run over ``0..size-1``)."""
+        return int(self.words.size)
+
+    def labels(self, a: int, b: int) -> np.ndarray:
+        """Labels of positions ``a..b-1`` (-1 where the word would cross a segment end)."""
+        addr, valid = _chunk_addresses(self.arr, self.depth, a, b)
+        if self.table is not None:
+            out = np.empty(b - a, dtype=np.int32)
+            _label_dense(addr, valid, self.table, out)
+            return out
+        out = np.full(b - a, -1, dtype=self.dtype)
+        pos = np.flatnonzero(valid)
+        out[pos] = np.searchsorted(self.words, addr[pos]).astype(self.dtype)
+        return out
+
+    def chunks(self, multiple: int = 1):
+        """``(a, labels of a..b-1)`` over the whole stream, chunks a whole multiple of ``multiple`` long."""
+        m = max(int(multiple), 1)
+        step = max(self.chunk // m, 1) * m
+        for a, b in _chunks(self.length, step):
+            yield a, self.labels(a, b)
+
+    def counts(self) -> np.ndarray:
+        """Occurrences of each word (int64, ``size`` long), as ``bincount`` of the whole label array."""
+        out = np.zeros(self.size, dtype=np.int64)
+        for _, lab in self.chunks():
+            out += np.bincount(lab[lab >= 0], minlength=self.size)
+        return out

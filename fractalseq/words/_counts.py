@@ -633,6 +633,10 @@ class WordCounter:
         return wc
 
 
+#: A :class:`SymbolArray` is counted in pieces of this many symbols (the same counts as one piece).
+ARRAY_PIECE = 1 << 22
+
+
 def count_words(
     source: SymbolStream | SymbolArray | Iterable[Chunk],
     depth: int,
@@ -658,9 +662,12 @@ def count_words(
     -------
     WordCounts
     """
-    if isinstance(source, SymbolArray):
+    if isinstance(source, SymbolArray):  # in pieces of ARRAY_PIECE symbols: temporaries of one piece
         counter = WordCounter(source.alphabet, depth, parallel=parallel, dense=dense)
-        counter.add(source.codes, source.starts, final=True)
+        T, st = len(source), source.starts
+        for a in range(0, max(T, 1), ARRAY_PIECE):
+            b = min(a + ARRAY_PIECE, T)
+            counter.add(source.codes[a:b], st[(st >= a) & (st < b)] - a, final=b >= T)
         return counter.finish()
     if isinstance(source, SymbolStream):
         alphabet = source.alphabet
