@@ -157,7 +157,7 @@ def mine_logs(
         check_content(block, origin.name, allow_binary=False)
         origins.append(origin)
     miner = TemplateMiner()
-    add = miner.add
+    add_many = miner.add_many
     firsts: dict[int, tuple[int, int, str]] = {}  # cluster -> (input, line number, example)
     raw_ids: list[np.ndarray] = []
     stats_of: list[ReadStats] = []
@@ -166,7 +166,13 @@ def mine_logs(
         parts: list[np.ndarray] = []
         for first_line, lines in _lines(origin, block_size, stats):
             top = len(miner.clusters)
-            ids = [add(ln) if ln and not ln.isspace() else -1 for ln in lines]
+            if "" in lines or any(map(str.isspace, lines)):
+                ids = [-1] * len(lines)
+                kept = [j for j, ln in enumerate(lines) if ln and not ln.isspace()]
+                for j, c in zip(kept, add_many([lines[j] for j in kept])):
+                    ids[j] = c
+            else:
+                ids = add_many(lines)
             if len(miner.clusters) > top:  # clusters are numbered as they are made: a new one first shows here
                 for j, c in enumerate(ids):
                     if c >= top and c not in firsts:

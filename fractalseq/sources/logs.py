@@ -151,7 +151,7 @@ def _decode(block: bytes, stats: ReadStats, first_line: int = 1) -> list[str]:
                 stats.latin1_lines += 1
     if lines[-1] == "":
         lines.pop()
-    out = [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
+    out = [ln[:-1] if ln.endswith("\r") else ln for ln in lines] if b"\r" in clean else lines
     if len(clean) > LINE_LIMIT and max(map(len, out), default=0) > LINE_LIMIT:
         for i, ln in enumerate(out):
             if len(ln) > LINE_LIMIT:
@@ -179,18 +179,22 @@ def _assign(origin: Origin, block_size: int, listed: tuple[str, ...] | None, sta
     miner = TemplateMiner()
     index = TemplateIndex(listed) if listed else None
     base = len(listed) if listed else 0
-    add = miner.add
+    add_many = miner.add_many
     for first_line, lines in _lines(origin, block_size, stats):
-        kept = [j for j, line in enumerate(lines) if line and not line.isspace()]
-        klines = [lines[j] for j in kept]
+        if "" in lines or any(map(str.isspace, lines)):
+            kept = [j for j, line in enumerate(lines) if line and not line.isspace()]
+            klines = [lines[j] for j in kept]
+        else:
+            kept, klines = None, lines
         if index is None:
-            raw = [add(ln) for ln in klines]
+            raw = add_many(klines)
         else:
             raw = []
             for ln in klines:
                 m = index.match(ln)
-                raw.append(m if m >= 0 else base + add(ln))
-        yield first_line + np.asarray(kept, dtype=np.int64), raw, klines, len(lines)
+                raw.append(m if m >= 0 else base + add_many((ln,))[0])
+        where = np.arange(len(lines), dtype=np.int64) if kept is None else np.asarray(kept, dtype=np.int64)
+        yield first_line + where, raw, klines, len(lines)
     miner.finish()
     return miner
 

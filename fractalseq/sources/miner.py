@@ -70,18 +70,18 @@ from operator import eq
 from typing import Sequence
 
 from fractalseq.errors import ParameterError
+from fractalseq.sources.headers import _EMPTY as _NO_HEADER
 from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
 from fractalseq.sources.routes import Route
 from fractalseq.sources.structured import Tokenizer
+from fractalseq.sources.template_index import TAIL, TemplateIndex
 
 __all__ = ["DEFAULT_DEPTH", "DEFAULT_THRESHOLD", "TAIL", "MinedTemplate", "TemplateIndex", "TemplateMiner", "line_signature"]
 
 DEFAULT_THRESHOLD = 0.5
 DEFAULT_DEPTH = 2
 DEFAULT_MAX_CHILDREN = 32
-#: a template ending in this token takes any number of further tokens (a free-text tail)
-TAIL = "<...>"
 #: a family of lines (same pinned tokens and routing head, with a constant word) has a free-text tail once its
 #: clusters have this many different lengths and this many different words right after the head
 FREE_TAIL_LENGTHS = 4
@@ -169,6 +169,12 @@ def _wild(tpl: list[str], free: list[str]) -> int:
     return sum(1 for a, b in zip(tpl, free) if a == WILDCARD and b != WILDCARD)
 
 
+def _constants(tokens: list[str]) -> tuple[list[str | None], int]:
+    """The template with ``None`` for each wildcard, and how many constants it holds."""
+    fixed = [None if t == WILDCARD else t for t in tokens]
+    return fixed, len(fixed) - fixed.count(None)
+
+
 class _Family:
     """Lines sharing pinned tokens and routing head: their clusters, lengths and first words after the head."""
 
@@ -219,6 +225,10 @@ class TemplateMiner:
         self._families: dict[tuple, _Family] = {}
         self._absorbed: dict[int, int] = {}
         self._head_memo: dict[tuple, tuple[str, ...]] = {}
+        #: routing key -> [family, route or None, family key] (see :meth:`_place`)
+        self._slots: dict[tuple, list] = {}
+        #: per cluster, its template with ``None`` for a wildcard (a line changes it when a constant differs)
+        self._fixed: list[tuple[list[str | None], int]] = []
         self._route_word: dict[str, bool] = {}
         self._seen: dict[tuple, int] = {}
         self._lines = 0
@@ -228,25 +238,54 @@ class TemplateMiner:
     # ------------------------------------------------------------ streaming
     def add(self, line: str) -> int:
         """Group one line; returns its cluster number (map it with :meth:`finish`)."""
-        hdr, msg = split_header(line)
-        cid = self._seen.get(msg)
-        if cid is None:
-            pinned, free = self.tokenize.uncached(msg)  # ``_seen`` remembers messages
-            cid = self._place(pinned, free)
-            if len(self._seen) >= _MSG_CACHE:
-                self._seen.clear()
-            self._seen[msg] = cid
-        c = self.clusters[cid]
-        c.count += 1
-        if hdr[0] or hdr[1] or hdr[2]:
-            c.absorb_header(hdr)
-        self._lines += 1
-        return cid
+        return self.add_many((line,))[0]
 
     def add_many(self, lines: Sequence[str]) -> list[int]:
-        """:meth:`add` of every line, in order."""
-        add = self.add
-        return [add(ln) for ln in lines]
+        """Group every line, in order; returns their cluster numbers (one loop over the block).
+
+        A message seen before (same text, in the bounded ``_seen`` memory)
+        joins the cluster it joined then, without being tokenized again.
+        """
+        seen = self._seen
+        clusters = self.clusters
+        tokenize = self.tokenize.uncached  # ``_seen`` remembers messages
+        plain, mask = self.tokenize.plain_words, self.tokenize.mask
+        slots = self._slots
+        depth = self.depth
+        place = self._place
+        split = split_header
+        out: list[int] = []
+        append = out.append
+        n0 = self._lines
+        for k, line in enumerate(lines):
+            hdr, msg = split(line)
+            cid = seen.get(msg)
+            if cid is None:
+                self._lines = n0 + k
+                words = plain(msg)
+                if not words:
+                    pinned, free = tokenize(msg)
+                    cid = place(pinned, free)
+                else:
+                    # a plain-text line of a family whose tail is free text needs only its routing words masked
+                    free = mask(words[:depth])
+                    slot = slots.get(((), len(words), *free))
+                    if slot is not None and slot[0].tail >= 0:
+                        cid = slot[0].tail
+                    else:
+                        if len(words) > depth:
+                            free += mask(words[depth:])
+                        cid = place((), free)
+                if len(seen) >= _MSG_CACHE:
+                    seen.clear()
+                seen[msg] = cid
+            c = clusters[cid]
+            c.count += 1
+            if hdr is not _NO_HEADER and (hdr[0] or hdr[1] or hdr[2]):
+                c.absorb_header(hdr)
+            append(cid)
+        self._lines = n0 + len(lines)
+        return out
 
     def _words(self, toks: Sequence[str]) -> list[bool]:
         """Which tokens are plain words (:func:`_routable`), remembered per token."""
@@ -303,17 +342,28 @@ class TemplateMiner:
 
     def _place(self, pinned: tuple[str, ...], free: list[str]) -> int:
         n = len(free)
-        head = self._head(pinned, n, free)
-        fkey = (pinned, head)
-        fam = self._families.get(fkey)
-        if fam is None:
-            fam = self._families[fkey] = _Family([a if a == WILDCARD else b for a, b in zip(head, free)])
-            if any(t != WILDCARD for t in head):
-                fam.tail = -1  # a constant word in the head: the family may get a free-text tail
-        elif fam.tail >= 0:
-            return fam.tail
+        key = (pinned, n, *free[: self.depth])
+        slot = self._slots.get(key)  # routing head, family and route of a key: fixed once made
+        if slot is None:
+            head = self._head(pinned, n, free)
+            fkey = (pinned, head)
+            fam = self._families.get(fkey)
+            if fam is None:
+                fam = self._families[fkey] = _Family([a if a == WILDCARD else b for a, b in zip(head, free)])
+                if any(t != WILDCARD for t in head):
+                    fam.tail = -1  # a constant word in the head: the family may get a free-text tail
+            elif fam.tail >= 0:
+                return fam.tail
+            slot = [fam, self._routes.get((fkey, n)), fkey]
+            if len(self._slots) >= _MSG_CACHE:
+                self._slots.clear()
+            self._slots[key] = slot
+        else:
+            fam = slot[0]
+            if fam.tail >= 0:
+                return fam.tail
         if fam.tail == -1:
-            k = len(head)
+            k = len(fam.head)
             grew = False
             if n > k and free[k] not in fam.words and len(fam.words) < FREE_TAIL_WORDS:
                 fam.words.add(free[k])
@@ -323,10 +373,9 @@ class TemplateMiner:
                 grew = True
             if grew and len(fam.lengths) >= FREE_TAIL_LENGTHS and len(fam.words) >= FREE_TAIL_WORDS:
                 return self._collapse(fam, pinned)
-        route = (fkey, n)
-        rt = self._routes.get(route)
+        rt = slot[1]
         if rt is None:
-            rt = self._routes[route] = Route()
+            rt = slot[1] = self._routes[(slot[2], n)] = Route()
         members = rt.members
         clusters = self.clusters
         crowded = len(members) > MAX_SCAN
@@ -337,14 +386,15 @@ class TemplateMiner:
         else:
             best = self._best_scan(members, free, words, crowded)
         if best >= 0:
-            c = clusters[best]
-            old = c.tokens
-            if old != free:  # positions where the line differs become (or stay) wildcards
-                new = [a if a == b else WILDCARD for a, b in zip(old, free)]
-                if new != old:
-                    c.tokens = new
-                    c.words = sum(self._words(new))
-                    rt.forget(best, old, new, c.words)
+            fixed, const = self._fixed[best]
+            # positions where the line differs from a constant of the template become wildcards
+            if sum(map(eq, fixed, free)) != const:
+                c = clusters[best]
+                old = c.tokens
+                new = c.tokens = [a if a == b else WILDCARD for a, b in zip(old, free)]
+                self._fixed[best] = _constants(new)
+                c.words = sum(self._words(new))
+                rt.forget(best, old, new, c.words)
             if crowded:  # most recently matched clusters are scanned first
                 del members[best]
                 members[best] = None
@@ -352,6 +402,7 @@ class TemplateMiner:
             return best
         cid = len(clusters)
         clusters.append(MinedTemplate(list(free), pinned, 0, self._lines, words=sum(words)))
+        self._fixed.append(_constants(free))
         members[cid] = None
         self._stamp.append(self._clock + 1)
         self._clock += 1
@@ -437,6 +488,7 @@ class TemplateMiner:
         """The family's tail is free text: one template, the head then ``<...>``, takes all its lines."""
         first = self.clusters[fam.members[0]].first if fam.members else self._lines
         self.clusters.append(MinedTemplate(list(fam.head) + [TAIL], pinned, 0, first))
+        self._fixed.append(([], 0))
         tail = fam.tail = len(self.clusters) - 1
         for cid in fam.members:
             self._absorbed[cid] = tail
@@ -598,71 +650,3 @@ def mine(lines: Sequence[str], threshold: float = DEFAULT_THRESHOLD, depth: int 
     tpls = m.finish()
     f = m.final_ids
     return [t.text for t in tpls], [f[c] for c in cids]
-
-
-class TemplateIndex:
-    """Lines matched against a template table given in advance (most specific matching template wins).
-
-    A template ending in ``<...>`` (:data:`TAIL`) matches a line that has its
-    other tokens and any number of tokens after them.
-
-    Parameters
-    ----------
-    templates:
-        Template texts (tokens joined by single spaces, ``<*>`` for a wildcard).
-    """
-
-    def __init__(self, templates: Sequence[str]) -> None:
-        self.templates = list(templates)
-        self._by_len: dict[int, list[tuple[int, int, list[str]]]] = {}
-        self._tails: list[tuple[int, int, list[str]]] = []
-        for i, t in enumerate(self.templates):
-            toks = t.split(" ")
-            const = sum(1 for x in toks if x != WILDCARD and x != TAIL)
-            if toks[-1] == TAIL:
-                self._tails.append((-const, i, toks[:-1]))
-            else:
-                self._by_len.setdefault(len(toks), []).append((-const, i, toks))
-        for v in self._by_len.values():
-            v.sort(key=lambda e: (e[0], e[1]))
-        self._tails.sort(key=lambda e: (e[0], e[1]))
-        self._cand: dict[tuple[int, str], list[tuple[int, int, list[str]]]] = {}
-        self._memo: dict[tuple[str, ...], int] = {}
-        self.tokenize = Tokenizer()
-
-    def _candidates(self, n: int, first: str) -> list[tuple[int, int, list[str]]]:
-        key = (n, first)
-        c = self._cand.get(key)
-        if c is None:
-            c = [e for e in self._by_len.get(n, ()) if e[2][0] == first or e[2][0] == WILDCARD]
-            if self._tails:
-                c += [e for e in self._tails if len(e[2]) <= n and (not e[2] or e[2][0] == first or e[2][0] == WILDCARD)]
-                c.sort(key=lambda e: (e[0], e[1]))
-            if len(self._cand) < _MSG_CACHE:
-                self._cand[key] = c
-        return c
-
-    def match_tokens(self, toks: Sequence[str]) -> int:
-        """Index of the most specific template matching the tokens, or -1."""
-        key = tuple(toks)
-        hit = self._memo.get(key)
-        if hit is not None:
-            return hit
-        res = -1
-        if toks:
-            for _, i, tt in self._candidates(len(toks), toks[0]):
-                for a, b in zip(tt, toks):
-                    if a != b and a != WILDCARD:
-                        break
-                else:
-                    res = i
-                    break
-        if len(self._memo) >= _MSG_CACHE:
-            self._memo.clear()
-        self._memo[key] = res
-        return res
-
-    def match(self, line: str) -> int:
-        """Index of the template a raw line matches, or -1."""
-        _, pinned, free = line_signature(line, self.tokenize)
-        return self.match_tokens(list(pinned) + free)
