@@ -169,10 +169,14 @@ def _wild(tpl: list[str], free: list[str]) -> int:
     return sum(1 for a, b in zip(tpl, free) if a == WILDCARD and b != WILDCARD)
 
 
-def _constants(tokens: list[str]) -> tuple[list[str | None], int]:
-    """The template with ``None`` for each wildcard, and how many constants it holds."""
+def _constants(tokens: list[str], words: list[bool]) -> tuple[list[str | None], int, list[str | None]]:
+    """The template with ``None`` for each wildcard, how many constants it holds, and it with ``None`` for each non-word.
+
+    A line changes the template when it differs from one of its constants;
+    it agrees with the template on as many words as the third list has tokens equal to the line's.
+    """
     fixed = [None if t == WILDCARD else t for t in tokens]
-    return fixed, len(fixed) - fixed.count(None)
+    return fixed, len(fixed) - fixed.count(None), [t if w else None for t, w in zip(tokens, words)]
 
 
 class _Family:
@@ -227,8 +231,10 @@ class TemplateMiner:
         self._head_memo: dict[tuple, tuple[str, ...]] = {}
         #: routing key -> [family, route or None, family key] (see :meth:`_place`)
         self._slots: dict[tuple, list] = {}
+        #: (number of words, first ``depth`` words before masking) of a plain-text line -> its slot
+        self._raw_slots: dict[tuple, list] = {}
         #: per cluster, its template with ``None`` for a wildcard (a line changes it when a constant differs)
-        self._fixed: list[tuple[list[str | None], int]] = []
+        self._fixed: list[tuple[list[str | None], int, list[str | None]]] = []
         self._route_word: dict[str, bool] = {}
         self._seen: dict[tuple, int] = {}
         self._lines = 0
@@ -250,7 +256,7 @@ class TemplateMiner:
         clusters = self.clusters
         tokenize = self.tokenize.uncached  # ``_seen`` remembers messages
         plain, mask = self.tokenize.plain_words, self.tokenize.mask
-        slots = self._slots
+        slots, raw_slots = self._slots, self._raw_slots
         depth = self.depth
         place = self._place
         split = split_header
@@ -267,15 +273,19 @@ class TemplateMiner:
                     pinned, free = tokenize(msg)
                     cid = place(pinned, free)
                 else:
-                    # a plain-text line of a family whose tail is free text needs only its routing words masked
-                    free = mask(words[:depth])
-                    slot = slots.get(((), len(words), *free))
+                    # plain text: its routing slot is known from its first words before masking (masks are
+                    # fixed rules), and a line of a family whose tail is free text needs no masking at all
+                    rkey = (len(words), *words[:depth])
+                    slot = raw_slots.get(rkey)
                     if slot is not None and slot[0].tail >= 0:
                         cid = slot[0].tail
                     else:
-                        if len(words) > depth:
-                            free += mask(words[depth:])
-                        cid = place((), free)
+                        free = mask(words)
+                        cid = place((), free, slot)
+                        if slot is None:
+                            if len(raw_slots) >= _MSG_CACHE:
+                                raw_slots.clear()
+                            raw_slots[rkey] = slots[((), len(free), *free[:depth])]
                 if len(seen) >= _MSG_CACHE:
                     seen.clear()
                 seen[msg] = cid
@@ -340,10 +350,12 @@ class TemplateMiner:
         self._head_memo[key] = head
         return head
 
-    def _place(self, pinned: tuple[str, ...], free: list[str]) -> int:
+    def _place(self, pinned: tuple[str, ...], free: list[str], slot: list | None = None) -> int:
+        """The cluster a line joins, or a new one (``slot``: the line's routing slot when known, see ``_slots``)."""
         n = len(free)
-        key = (pinned, n, *free[: self.depth])
-        slot = self._slots.get(key)  # routing head, family and route of a key: fixed once made
+        if slot is None:
+            key = (pinned, n, *free[: self.depth])
+            slot = self._slots.get(key)  # routing head, family and route of a key: fixed once made
         if slot is None:
             head = self._head(pinned, n, free)
             fkey = (pinned, head)
@@ -352,16 +364,14 @@ class TemplateMiner:
                 fam = self._families[fkey] = _Family([a if a == WILDCARD else b for a, b in zip(head, free)])
                 if any(t != WILDCARD for t in head):
                     fam.tail = -1  # a constant word in the head: the family may get a free-text tail
-            elif fam.tail >= 0:
-                return fam.tail
             slot = [fam, self._routes.get((fkey, n)), fkey]
             if len(self._slots) >= _MSG_CACHE:
                 self._slots.clear()
             self._slots[key] = slot
         else:
             fam = slot[0]
-            if fam.tail >= 0:
-                return fam.tail
+        if fam.tail >= 0:
+            return fam.tail
         if fam.tail == -1:
             k = len(fam.head)
             grew = False
@@ -374,26 +384,29 @@ class TemplateMiner:
             if grew and len(fam.lengths) >= FREE_TAIL_LENGTHS and len(fam.words) >= FREE_TAIL_WORDS:
                 return self._collapse(fam, pinned)
         rt = slot[1]
-        if rt is None:
-            rt = slot[1] = self._routes[(slot[2], n)] = Route()
+        if rt is None:  # a slot forgotten and made again may be older than its route
+            rt = self._routes.get((slot[2], n))
+            if rt is None:
+                rt = self._routes[(slot[2], n)] = Route()
+            slot[1] = rt
         members = rt.members
         clusters = self.clusters
         crowded = len(members) > MAX_SCAN
-        # only the plain words of the line (no digit, no inner punctuation) are evidence of agreement
-        words = self._words(free)
+        # only the plain words of the templates (no digit, no inner punctuation) are evidence of agreement
         if len(members) > _INDEXED:
-            best = self._best_indexed(rt, free, words, crowded)
+            best = self._best_indexed(rt, free, crowded)
         else:
-            best = self._best_scan(members, free, words, crowded)
+            best = self._best_scan(members, free, crowded)
         if best >= 0:
-            fixed, const = self._fixed[best]
+            fixed, const, _ = self._fixed[best]
             # positions where the line differs from a constant of the template become wildcards
             if sum(map(eq, fixed, free)) != const:
                 c = clusters[best]
                 old = c.tokens
                 new = c.tokens = [a if a == b else WILDCARD for a, b in zip(old, free)]
-                self._fixed[best] = _constants(new)
-                c.words = sum(self._words(new))
+                words = self._words(new)
+                self._fixed[best] = _constants(new, words)
+                c.words = sum(words)
                 rt.forget(best, old, new, c.words)
             if crowded:  # most recently matched clusters are scanned first
                 del members[best]
@@ -401,8 +414,9 @@ class TemplateMiner:
                 self._stamp[best] = self._clock = self._clock + 1
             return best
         cid = len(clusters)
+        words = self._words(free)
         clusters.append(MinedTemplate(list(free), pinned, 0, self._lines, words=sum(words)))
-        self._fixed.append(_constants(free))
+        self._fixed.append(_constants(free, words))
         members[cid] = None
         self._stamp.append(self._clock + 1)
         self._clock += 1
@@ -410,18 +424,18 @@ class TemplateMiner:
         fam.members.append(cid)
         return cid
 
-    def _best_scan(self, members: dict[int, None], free: list[str], words: list[bool], crowded: bool) -> int:
+    def _best_scan(self, members: dict[int, None], free: list[str], crowded: bool) -> int:
         """The cluster a line joins (-1: none), by comparing it with every scanned cluster of its route."""
         clusters = self.clusters
         best = -1
         best_sim = -1
         best_wild = -1
-        probe = [t if w else None for t, w in zip(free, words)]
+        fixed = self._fixed
         limit = self.threshold
         for cid in (islice(reversed(members), MAX_SCAN) if crowded else members):
             c = clusters[cid]
             tpl = c.tokens
-            same = sum(map(eq, tpl, probe))
+            same = sum(map(eq, fixed[cid][2], free))  # the template's words equal to the line's tokens
             const = c.words
             if const and same <= limit * const and same < const:  # all words agreeing always qualifies
                 continue
@@ -435,7 +449,7 @@ class TemplateMiner:
                     best, best_wild = cid, wild
         return best
 
-    def _best_indexed(self, rt: Route, free: list[str], words: list[bool], crowded: bool) -> int:
+    def _best_indexed(self, rt: Route, free: list[str], crowded: bool) -> int:
         """:meth:`_best_scan` found through the route's index of template words (same choice, no scan).
 
         A cluster agrees with the line on ``same`` words, counted from the
@@ -446,7 +460,7 @@ class TemplateMiner:
         most wildcards where the line differs: the same is picked here.
         """
         idx = rt.index
-        same_of = Counter(chain.from_iterable(filter(None, [idx.get((i, t)) for i, (t, w) in enumerate(zip(free, words)) if w])))
+        same_of = Counter(chain.from_iterable(filter(None, [idx.get(k) for k in enumerate(free)])))  # only words are indexed
         for cid in rt.bare:
             same_of[cid] = 0
         if not same_of:
@@ -488,7 +502,7 @@ class TemplateMiner:
         """The family's tail is free text: one template, the head then ``<...>``, takes all its lines."""
         first = self.clusters[fam.members[0]].first if fam.members else self._lines
         self.clusters.append(MinedTemplate(list(fam.head) + [TAIL], pinned, 0, first))
-        self._fixed.append(([], 0))
+        self._fixed.append(([], 0, []))
         tail = fam.tail = len(self.clusters) - 1
         for cid in fam.members:
             self._absorbed[cid] = tail
