@@ -62,6 +62,7 @@ any number of further tokens).
 
 from __future__ import annotations
 
+import gc
 import math
 from dataclasses import dataclass, field
 from collections import Counter
@@ -263,37 +264,44 @@ class TemplateMiner:
         out: list[int] = []
         append = out.append
         n0 = self._lines
-        for k, line in enumerate(lines):
-            hdr, msg = split(line)
-            cid = seen.get(msg)
-            if cid is None:
-                self._lines = n0 + k
-                words = plain(msg)
-                if not words:
-                    pinned, free = tokenize(msg)
-                    cid = place(pinned, free)
-                else:
-                    # plain text: its routing slot is known from its first words before masking (masks are
-                    # fixed rules), and a line of a family whose tail is free text needs no masking at all
-                    rkey = (len(words), *words[:depth])
-                    slot = raw_slots.get(rkey)
-                    if slot is not None and slot[0].tail >= 0:
-                        cid = slot[0].tail
+        collecting = gc.isenabled()  # the loop makes many short-lived lists: no cyclic collection meanwhile
+        if collecting:
+            gc.disable()
+        try:
+            for k, line in enumerate(lines):
+                hdr, msg = split(line)
+                cid = seen.get(msg)
+                if cid is None:
+                    self._lines = n0 + k
+                    words = plain(msg)
+                    if not words:
+                        pinned, free = tokenize(msg)
+                        cid = place(pinned, free)
                     else:
-                        free = mask(words)
-                        cid = place((), free, slot)
-                        if slot is None:
-                            if len(raw_slots) >= _MSG_CACHE:
-                                raw_slots.clear()
-                            raw_slots[rkey] = slots[((), len(free), *free[:depth])]
-                if len(seen) >= _MSG_CACHE:
-                    seen.clear()
-                seen[msg] = cid
-            c = clusters[cid]
-            c.count += 1
-            if hdr is not _NO_HEADER and (hdr[0] or hdr[1] or hdr[2]):
-                c.absorb_header(hdr)
-            append(cid)
+                        # plain text: its routing slot is known from its first words before masking (masks are
+                        # fixed rules), and a line of a family whose tail is free text needs no masking at all
+                        rkey = (len(words), *words[:depth])
+                        slot = raw_slots.get(rkey)
+                        if slot is not None and slot[0].tail >= 0:
+                            cid = slot[0].tail
+                        else:
+                            free = mask(words)
+                            cid = place((), free, slot)
+                            if slot is None:
+                                if len(raw_slots) >= _MSG_CACHE:
+                                    raw_slots.clear()
+                                raw_slots[rkey] = slots[((), len(free), *free[:depth])]
+                    if len(seen) >= _MSG_CACHE:
+                        seen.clear()
+                    seen[msg] = cid
+                c = clusters[cid]
+                c.count += 1
+                if hdr is not _NO_HEADER and (hdr[0] or hdr[1] or hdr[2]):
+                    c.absorb_header(hdr)
+                append(cid)
+        finally:
+            if collecting:
+                gc.enable()
         self._lines = n0 + len(lines)
         return out
 
