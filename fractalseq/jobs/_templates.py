@@ -173,11 +173,13 @@ def mine_logs(
                     ids[j] = c
             else:
                 ids = add_many(lines)
+            arr = np.asarray(ids, dtype=np.int64)
             if len(miner.clusters) > top:  # clusters are numbered as they are made: a new one first shows here
-                for j, c in enumerate(ids):
-                    if c >= top and c not in firsts:
-                        firsts[c] = (k, first_line + j, lines[j][:_EXAMPLE_CHARS])
-            parts.append(np.asarray(ids, dtype=np.int64))
+                new = np.flatnonzero(arr >= top)
+                made, first = np.unique(arr[new], return_index=True)
+                for c, j in zip(made.tolist(), new[first].tolist()):
+                    firsts[c] = (k, first_line + j, lines[j][:_EXAMPLE_CHARS])
+            parts.append(arr)
         raw_ids.append(np.concatenate(parts) if parts else np.zeros(0, dtype=np.int64))
         stats_of.append(stats)
         if on_input is not None:
