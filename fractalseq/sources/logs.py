@@ -241,19 +241,22 @@ def _tally(origin: Origin, block_size: int, listed: tuple[str, ...] | None = Non
             break
         total += n_lines
         blank += n_lines - len(raw)
-        for k, r in enumerate(raw):
-            c = raw_counts.get(r)
-            if c is None:
-                raw_counts[r] = 1
-                first_raw[r] = (int(nums[k]), klines[k][:_EXAMPLE_CHARS])
-            else:
-                raw_counts[r] = c + 1
+        arr = np.asarray(raw, dtype=np.int64)
+        if arr.size:  # count per raw id, and where each first occurs in the block, in one array pass
+            made, first, n = np.unique(arr, return_index=True, return_counts=True)
+            for r, k, c in zip(made.tolist(), first.tolist(), n.tolist()):
+                old = raw_counts.get(r)
+                if old is None:
+                    raw_counts[r] = c
+                    first_raw[r] = (int(nums[k]), klines[k][:_EXAMPLE_CHARS])
+                else:
+                    raw_counts[r] = old + c
         kept_lines += len(raw)
         if ids is not None and numbers is not None:
             if kept_lines > _KEEP_LINES:
                 ids = numbers = None
             else:
-                ids.append(np.asarray(raw, dtype=np.int64))
+                ids.append(arr)
                 numbers.append(nums)
     blank -= stats.junk_lines  # left out as junk, noted as such
     if not raw_counts:
@@ -331,6 +334,20 @@ def _template_blocks(origin: Origin, table: TemplateTable, block_size: int) -> I
             raise InputError(f"{origin.name} changed while it was read; read it again.") from None
 
 
+def _code_blocks(origin: Origin, table: TemplateTable, block_size: int, index: dict[str, int]) -> Iterator[tuple]:
+    """:func:`_template_blocks`, with the codes themselves (an array) when the first pass kept every line's template."""
+    if table.ids is None or table.seen is None or table.numbers is None:
+        yield from _template_blocks(origin, table, block_size)
+        return
+    lut = np.asarray([index.get(t, -1) for t in table.seen], dtype=np.int64)
+    step = max(1, block_size // 64)  # the blocks of :func:`_template_blocks`
+    for a in range(0, table.ids.size, step):
+        codes = lut[table.ids[a : a + step]]
+        if codes.size and codes.min() < 0:
+            raise InputError(f"{origin.name} changed while it was read; read it again.")
+        yield table.numbers[a : a + step], codes
+
+
 def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadReport, policy: str = "break") -> Iterator[Chunk]:
     """Second pass: the template code of every non-blank line (``policy`` applies to unlisted templates of a fixed table)."""
     if table.fixed:
@@ -340,11 +357,14 @@ def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadRe
     dtype = table.alphabet.code_dtype
     total = 0
     where: list[np.ndarray] = []
-    for numbers, templates in _template_blocks(origin, table, block_size):
-        try:
-            codes = np.fromiter((index[t] for t in templates), dtype=dtype, count=len(templates))
-        except KeyError:
-            raise InputError(f"{origin.name} changed while it was read; read it again.") from None
+    for numbers, templates in _code_blocks(origin, table, block_size, index):
+        if isinstance(templates, np.ndarray):
+            codes = templates.astype(dtype)
+        else:
+            try:
+                codes = np.fromiter((index[t] for t in templates), dtype=dtype, count=len(templates))
+            except KeyError:
+                raise InputError(f"{origin.name} changed while it was read; read it again.") from None
         if codes.size:
             yield Chunk(codes, np.zeros(1 if total == 0 else 0, dtype=np.int64))
         total += codes.size
