@@ -54,3 +54,24 @@ def test_index_and_scan_choose_the_same_clusters(seed, monkeypatch):
     ids_scan, texts_scan = _run(lines)
     assert ids_index == ids_scan
     assert texts_index == texts_scan
+
+
+def _collapse_then_crowd(seed: int) -> list[str]:
+    """A family folded into a free-text tail first, then a crowded route (invented lines)."""
+    rng = random.Random(seed)
+    words = [f"w{i}x" for i in range(400)]
+    lines = ["run test " + " ".join(rng.choice(words) for _ in range(rng.randint(1, 6))) for _ in range(40)]
+    lines += ["alpha beta " + " ".join(rng.choice(words) for _ in range(4)) for _ in range(120)]
+    return lines
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_a_free_text_tail_before_a_crowded_route_keeps_index_and_scan_equal(seed, monkeypatch):
+    """A tail template takes a cluster number too; the recency stamps must stay one per cluster (a tail
+    made before a crowded route once shifted them, and the index then failed or chose other clusters)."""
+    lines = _collapse_then_crowd(seed)
+    ids_index, texts_index = _run(lines)
+    assert any(t.endswith("<...>") for t in texts_index)  # the tail was made
+    assert ids_index[-1] > MAX_SCAN
+    monkeypatch.setattr(miner_mod, "_INDEXED", 10**9)
+    assert _run(lines) == (ids_index, texts_index)

@@ -157,7 +157,7 @@ def mine_logs(
         check_content(block, origin.name, allow_binary=False)
         origins.append(origin)
     miner = TemplateMiner()
-    add = miner.add
+    add_many = miner.add_many
     firsts: dict[int, tuple[int, int, str]] = {}  # cluster -> (input, line number, example)
     raw_ids: list[np.ndarray] = []
     stats_of: list[ReadStats] = []
@@ -166,12 +166,20 @@ def mine_logs(
         parts: list[np.ndarray] = []
         for first_line, lines in _lines(origin, block_size, stats):
             top = len(miner.clusters)
-            ids = [add(ln) if ln and not ln.isspace() else -1 for ln in lines]
+            if "" in lines or any(map(str.isspace, lines)):
+                ids = [-1] * len(lines)
+                kept = [j for j, ln in enumerate(lines) if ln and not ln.isspace()]
+                for j, c in zip(kept, add_many([lines[j] for j in kept])):
+                    ids[j] = c
+            else:
+                ids = add_many(lines)
+            arr = np.asarray(ids, dtype=np.int64)
             if len(miner.clusters) > top:  # clusters are numbered as they are made: a new one first shows here
-                for j, c in enumerate(ids):
-                    if c >= top and c not in firsts:
-                        firsts[c] = (k, first_line + j, lines[j][:_EXAMPLE_CHARS])
-            parts.append(np.asarray(ids, dtype=np.int64))
+                new = np.flatnonzero(arr >= top)
+                made, first = np.unique(arr[new], return_index=True)
+                for c, j in zip(made.tolist(), new[first].tolist()):
+                    firsts[c] = (k, first_line + j, lines[j][:_EXAMPLE_CHARS])
+            parts.append(arr)
         raw_ids.append(np.concatenate(parts) if parts else np.zeros(0, dtype=np.int64))
         stats_of.append(stats)
         if on_input is not None:

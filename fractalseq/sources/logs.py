@@ -139,8 +139,12 @@ def _strip_junk(block: bytes, stats: ReadStats, first_line: int) -> bytes:
 def _decode(block: bytes, stats: ReadStats, first_line: int = 1) -> list[str]:
     """Lines of a block: junk bytes and junk lines removed, UTF-8 or (per line) Latin-1, CR removed, long lines cut."""
     clean = _strip_junk(block, stats, first_line)
+    text = None
     try:
-        lines = clean.decode("utf-8").split("\n")
+        text = clean.decode("utf-8")
+        if "\r" in text:  # CR LF line ends: one pass over the block instead of a test per line
+            text = text.replace("\r\n", "\n")
+        lines = text.split("\n")
     except UnicodeDecodeError:
         lines = []
         for raw in clean.split(b"\n"):
@@ -151,7 +155,14 @@ def _decode(block: bytes, stats: ReadStats, first_line: int = 1) -> list[str]:
                 stats.latin1_lines += 1
     if lines[-1] == "":
         lines.pop()
-    out = [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
+    if b"\r" not in clean:
+        out = lines
+    elif text is None:
+        out = [ln[:-1] if ln.endswith("\r") else ln for ln in lines]
+    else:  # CR LF already made LF; a last line without LF may still end with CR
+        out = lines
+        if text.endswith("\r"):
+            out[-1] = out[-1][:-1]
     if len(clean) > LINE_LIMIT and max(map(len, out), default=0) > LINE_LIMIT:
         for i, ln in enumerate(out):
             if len(ln) > LINE_LIMIT:
@@ -179,18 +190,22 @@ def _assign(origin: Origin, block_size: int, listed: tuple[str, ...] | None, sta
     miner = TemplateMiner()
     index = TemplateIndex(listed) if listed else None
     base = len(listed) if listed else 0
-    add = miner.add
+    add_many = miner.add_many
     for first_line, lines in _lines(origin, block_size, stats):
-        kept = [j for j, line in enumerate(lines) if line and not line.isspace()]
-        klines = [lines[j] for j in kept]
+        if "" in lines or any(map(str.isspace, lines)):
+            kept = [j for j, line in enumerate(lines) if line and not line.isspace()]
+            klines = [lines[j] for j in kept]
+        else:
+            kept, klines = None, lines
         if index is None:
-            raw = [add(ln) for ln in klines]
+            raw = add_many(klines)
         else:
             raw = []
             for ln in klines:
                 m = index.match(ln)
-                raw.append(m if m >= 0 else base + add(ln))
-        yield first_line + np.asarray(kept, dtype=np.int64), raw, klines, len(lines)
+                raw.append(m if m >= 0 else base + add_many((ln,))[0])
+        where = np.arange(len(lines), dtype=np.int64) if kept is None else np.asarray(kept, dtype=np.int64)
+        yield first_line + where, raw, klines, len(lines)
     miner.finish()
     return miner
 
@@ -226,19 +241,22 @@ def _tally(origin: Origin, block_size: int, listed: tuple[str, ...] | None = Non
             break
         total += n_lines
         blank += n_lines - len(raw)
-        for k, r in enumerate(raw):
-            c = raw_counts.get(r)
-            if c is None:
-                raw_counts[r] = 1
-                first_raw[r] = (int(nums[k]), klines[k][:_EXAMPLE_CHARS])
-            else:
-                raw_counts[r] = c + 1
+        arr = np.asarray(raw, dtype=np.int64)
+        if arr.size:  # count per raw id, and where each first occurs in the block, in one array pass
+            made, first, n = np.unique(arr, return_index=True, return_counts=True)
+            for r, k, c in zip(made.tolist(), first.tolist(), n.tolist()):
+                old = raw_counts.get(r)
+                if old is None:
+                    raw_counts[r] = c
+                    first_raw[r] = (int(nums[k]), klines[k][:_EXAMPLE_CHARS])
+                else:
+                    raw_counts[r] = old + c
         kept_lines += len(raw)
         if ids is not None and numbers is not None:
             if kept_lines > _KEEP_LINES:
                 ids = numbers = None
             else:
-                ids.append(np.asarray(raw, dtype=np.int64))
+                ids.append(arr)
                 numbers.append(nums)
     blank -= stats.junk_lines  # left out as junk, noted as such
     if not raw_counts:
@@ -316,6 +334,20 @@ def _template_blocks(origin: Origin, table: TemplateTable, block_size: int) -> I
             raise InputError(f"{origin.name} changed while it was read; read it again.") from None
 
 
+def _code_blocks(origin: Origin, table: TemplateTable, block_size: int, index: dict[str, int]) -> Iterator[tuple]:
+    """:func:`_template_blocks`, with the codes themselves (an array) when the first pass kept every line's template."""
+    if table.ids is None or table.seen is None or table.numbers is None:
+        yield from _template_blocks(origin, table, block_size)
+        return
+    lut = np.asarray([index.get(t, -1) for t in table.seen], dtype=np.int64)
+    step = max(1, block_size // 64)  # the blocks of :func:`_template_blocks`
+    for a in range(0, table.ids.size, step):
+        codes = lut[table.ids[a : a + step]]
+        if codes.size and codes.min() < 0:
+            raise InputError(f"{origin.name} changed while it was read; read it again.")
+        yield table.numbers[a : a + step], codes
+
+
 def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadReport, policy: str = "break") -> Iterator[Chunk]:
     """Second pass: the template code of every non-blank line (``policy`` applies to unlisted templates of a fixed table)."""
     if table.fixed:
@@ -325,11 +357,14 @@ def chunks(origin: Origin, table: TemplateTable, block_size: int, report: ReadRe
     dtype = table.alphabet.code_dtype
     total = 0
     where: list[np.ndarray] = []
-    for numbers, templates in _template_blocks(origin, table, block_size):
-        try:
-            codes = np.fromiter((index[t] for t in templates), dtype=dtype, count=len(templates))
-        except KeyError:
-            raise InputError(f"{origin.name} changed while it was read; read it again.") from None
+    for numbers, templates in _code_blocks(origin, table, block_size, index):
+        if isinstance(templates, np.ndarray):
+            codes = templates.astype(dtype)
+        else:
+            try:
+                codes = np.fromiter((index[t] for t in templates), dtype=dtype, count=len(templates))
+            except KeyError:
+                raise InputError(f"{origin.name} changed while it was read; read it again.") from None
         if codes.size:
             yield Chunk(codes, np.zeros(1 if total == 0 else 0, dtype=np.int64))
         total += codes.size

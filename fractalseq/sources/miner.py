@@ -65,6 +65,7 @@ any number of further tokens).
 
 from __future__ import annotations
 
+import gc
 import math
 from dataclasses import dataclass, field
 from collections import Counter
@@ -74,18 +75,18 @@ from typing import Sequence
 
 from fractalseq.errors import ParameterError
 from fractalseq.sources.evidence import conflicting, label_shape
+from fractalseq.sources.headers import _EMPTY as _NO_HEADER
 from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
 from fractalseq.sources.routes import Route
 from fractalseq.sources.structured import Tokenizer
+from fractalseq.sources.template_index import TAIL, TemplateIndex
 
 __all__ = ["DEFAULT_DEPTH", "DEFAULT_THRESHOLD", "TAIL", "MinedTemplate", "TemplateIndex", "TemplateMiner", "line_signature"]
 
 DEFAULT_THRESHOLD = 0.5
 DEFAULT_DEPTH = 2
 DEFAULT_MAX_CHILDREN = 32
-#: a template ending in this token takes any number of further tokens (a free-text tail)
-TAIL = "<...>"
 #: a family of lines (same pinned tokens and routing head, with a constant word) has a free-text tail once its
 #: clusters have this many different lengths and this many different words right after the head
 FREE_TAIL_LENGTHS = 4
@@ -173,6 +174,16 @@ def _wild(tpl: list[str], free: list[str]) -> int:
     return sum(1 for a, b in zip(tpl, free) if a == WILDCARD and b != WILDCARD)
 
 
+def _constants(tokens: list[str], words: list[bool]) -> tuple[list[str | None], int, list[str | None]]:
+    """The template with ``None`` for each wildcard, how many constants it holds, and it with ``None`` for each non-word.
+
+    A line changes the template when it differs from one of its constants;
+    it agrees with the template on as many words as the third list has tokens equal to the line's.
+    """
+    fixed = [None if t == WILDCARD else t for t in tokens]
+    return fixed, len(fixed) - fixed.count(None), [t if w else None for t, w in zip(tokens, words)]
+
+
 class _Family:
     """Lines sharing pinned tokens and routing head: their clusters, lengths and first words after the head."""
 
@@ -225,6 +236,12 @@ class TemplateMiner:
         self._free_labels: set[tuple] = set()
         self._absorbed: dict[int, int] = {}
         self._head_memo: dict[tuple, tuple[str, ...]] = {}
+        #: routing key -> [family, route or None, family key] (see :meth:`_place`)
+        self._slots: dict[tuple, list] = {}
+        #: (number of words, first ``depth`` words before masking) of a plain-text line -> its slot
+        self._raw_slots: dict[tuple, list] = {}
+        #: per cluster, its template with ``None`` for a wildcard (a line changes it when a constant differs)
+        self._fixed: list[tuple[list[str | None], int, list[str | None]]] = []
         self._route_word: dict[str, bool] = {}
         self._seen: dict[tuple, int] = {}
         self._lines = 0
@@ -234,25 +251,65 @@ class TemplateMiner:
     # ------------------------------------------------------------ streaming
     def add(self, line: str) -> int:
         """Group one line; returns its cluster number (map it with :meth:`finish`)."""
-        hdr, msg = split_header(line)
-        cid = self._seen.get(msg)
-        if cid is None:
-            pinned, free = self.tokenize.uncached(msg)  # ``_seen`` remembers messages
-            cid = self._place(pinned, free)
-            if len(self._seen) >= _MSG_CACHE:
-                self._seen.clear()
-            self._seen[msg] = cid
-        c = self.clusters[cid]
-        c.count += 1
-        if hdr[0] or hdr[1] or hdr[2]:
-            c.absorb_header(hdr)
-        self._lines += 1
-        return cid
+        return self.add_many((line,))[0]
 
     def add_many(self, lines: Sequence[str]) -> list[int]:
-        """:meth:`add` of every line, in order."""
-        add = self.add
-        return [add(ln) for ln in lines]
+        """Group every line, in order; returns their cluster numbers (one loop over the block).
+
+        A message seen before (same text, in the bounded ``_seen`` memory)
+        joins the cluster it joined then, without being tokenized again.
+        """
+        seen = self._seen
+        clusters = self.clusters
+        tokenize = self.tokenize.uncached  # ``_seen`` remembers messages
+        plain, mask = self.tokenize.plain_words, self.tokenize.mask
+        slots, raw_slots = self._slots, self._raw_slots
+        depth = self.depth
+        place = self._place
+        split = split_header
+        out: list[int] = []
+        append = out.append
+        n0 = self._lines
+        collecting = gc.isenabled()  # the loop makes many short-lived lists: no cyclic collection meanwhile
+        if collecting:
+            gc.disable()
+        try:
+            for k, line in enumerate(lines):
+                hdr, msg = split(line)
+                cid = seen.get(msg)
+                if cid is None:
+                    self._lines = n0 + k
+                    words = plain(msg)
+                    if not words:
+                        pinned, free = tokenize(msg)
+                        cid = place(pinned, free)
+                    else:
+                        # plain text: its routing slot is known from its first words before masking (masks are
+                        # fixed rules), and a line of a family whose tail is free text needs no masking at all
+                        rkey = (len(words), *words[:depth])
+                        slot = raw_slots.get(rkey)
+                        if slot is not None and slot[0].tail >= 0:
+                            cid = slot[0].tail
+                        else:
+                            free = mask(words)
+                            cid = place((), free, slot)
+                            if slot is None:
+                                if len(raw_slots) >= _MSG_CACHE:
+                                    raw_slots.clear()
+                                raw_slots[rkey] = slots[((), len(free), *free[:depth])]
+                    if len(seen) >= _MSG_CACHE:
+                        seen.clear()
+                    seen[msg] = cid
+                c = clusters[cid]
+                c.count += 1
+                if hdr is not _NO_HEADER and (hdr[0] or hdr[1] or hdr[2]):
+                    c.absorb_header(hdr)
+                append(cid)
+        finally:
+            if collecting:
+                gc.enable()
+        self._lines = n0 + len(lines)
+        return out
 
     def _words(self, toks: Sequence[str]) -> list[bool]:
         """Which tokens are plain words (:func:`_routable`), remembered per token."""
@@ -307,22 +364,33 @@ class TemplateMiner:
         self._head_memo[key] = head
         return head
 
-    def _place(self, pinned: tuple[str, ...], free: list[str]) -> int:
+    def _place(self, pinned: tuple[str, ...], free: list[str], slot: list | None = None) -> int:
+        """The cluster a line joins, or a new one (``slot``: the line's routing slot when known, see ``_slots``)."""
         n = len(free)
-        head = self._head(pinned, n, free)
-        fkey = (pinned, head)
-        fam = self._families.get(fkey)
-        if fam is None:
-            fam = self._families[fkey] = _Family([a if a == WILDCARD else b for a, b in zip(head, free)])
-            if any(t != WILDCARD for t in head):
-                fam.tail = -1  # a constant word in the head: the family may get a free-text tail
-                shape = label_shape(pinned, head)
-                if shape is not None and shape in self._free_labels:
-                    return self._collapse(fam, pinned)  # a sibling label of this shape has a free-text tail
-        elif fam.tail >= 0:
+        if slot is None:
+            key = (pinned, n, *free[: self.depth])
+            slot = self._slots.get(key)  # routing head, family and route of a key: fixed once made
+        if slot is None:
+            head = self._head(pinned, n, free)
+            fkey = (pinned, head)
+            fam = self._families.get(fkey)
+            if fam is None:
+                fam = self._families[fkey] = _Family([a if a == WILDCARD else b for a, b in zip(head, free)])
+                if any(t != WILDCARD for t in head):
+                    fam.tail = -1  # a constant word in the head: the family may get a free-text tail
+                    shape = label_shape(pinned, head)
+                    if shape is not None and shape in self._free_labels:
+                        return self._collapse(fam, pinned)  # a sibling label of this shape has a free-text tail
+            slot = [fam, self._routes.get((fkey, n)), fkey]
+            if len(self._slots) >= _MSG_CACHE:
+                self._slots.clear()
+            self._slots[key] = slot
+        else:
+            fam = slot[0]
+        if fam.tail >= 0:
             return fam.tail
         if fam.tail == -1:
-            k = len(head)
+            k = len(fam.head)
             grew = False
             if n > k and free[k] not in fam.words and len(fam.words) < FREE_TAIL_WORDS:
                 fam.words.add(free[k])
@@ -332,35 +400,40 @@ class TemplateMiner:
                 grew = True
             if grew and len(fam.lengths) >= FREE_TAIL_LENGTHS and len(fam.words) >= FREE_TAIL_WORDS:
                 return self._collapse(fam, pinned)
-        route = (fkey, n)
-        rt = self._routes.get(route)
-        if rt is None:
-            rt = self._routes[route] = Route()
+        rt = slot[1]
+        if rt is None:  # a slot forgotten and made again may be older than its route
+            rt = self._routes.get((slot[2], n))
+            if rt is None:
+                rt = self._routes[(slot[2], n)] = Route()
+            slot[1] = rt
         members = rt.members
         clusters = self.clusters
         crowded = len(members) > MAX_SCAN
-        # only the plain words of the line (no digit, no inner punctuation) are evidence of agreement
-        words = self._words(free)
+        # only the plain words of the templates (no digit, no inner punctuation) are evidence of agreement
         if len(members) > _INDEXED:
-            best = self._best_indexed(rt, free, words, crowded)
+            best = self._best_indexed(rt, free, crowded)
         else:
-            best = self._best_scan(members, free, words, crowded)
+            best = self._best_scan(members, free, crowded)
         if best >= 0:
-            c = clusters[best]
-            old = c.tokens
-            if old != free:  # positions where the line differs become (or stay) wildcards
-                new = [a if a == b else WILDCARD for a, b in zip(old, free)]
-                if new != old:
-                    c.tokens = new
-                    c.words = sum(self._words(new))
-                    rt.forget(best, old, new, c.words)
+            fixed, const, _ = self._fixed[best]
+            # positions where the line differs from a constant of the template become wildcards
+            if sum(map(eq, fixed, free)) != const:
+                c = clusters[best]
+                old = c.tokens
+                new = c.tokens = [a if a == b else WILDCARD for a, b in zip(old, free)]
+                words = self._words(new)
+                self._fixed[best] = _constants(new, words)
+                c.words = sum(words)
+                rt.forget(best, old, new, c.words)
             if crowded:  # most recently matched clusters are scanned first
                 del members[best]
                 members[best] = None
                 self._stamp[best] = self._clock = self._clock + 1
             return best
         cid = len(clusters)
+        words = self._words(free)
         clusters.append(MinedTemplate(list(free), pinned, 0, self._lines, words=sum(words)))
+        self._fixed.append(_constants(free, words))
         members[cid] = None
         self._stamp.append(self._clock + 1)
         self._clock += 1
@@ -368,18 +441,18 @@ class TemplateMiner:
         fam.members.append(cid)
         return cid
 
-    def _best_scan(self, members: dict[int, None], free: list[str], words: list[bool], crowded: bool) -> int:
+    def _best_scan(self, members: dict[int, None], free: list[str], crowded: bool) -> int:
         """The cluster a line joins (-1: none), by comparing it with every scanned cluster of its route."""
         clusters = self.clusters
         best = -1
         best_sim = -1
         best_wild = -1
-        probe = [t if w else None for t, w in zip(free, words)]
+        fixed = self._fixed
         limit = self.threshold
         for cid in (islice(reversed(members), MAX_SCAN) if crowded else members):
             c = clusters[cid]
             tpl = c.tokens
-            same = sum(map(eq, tpl, probe))
+            same = sum(map(eq, fixed[cid][2], free))  # the template's words equal to the line's tokens
             const = c.words
             if const and same <= limit * const and same < const:  # all words agreeing always qualifies
                 continue
@@ -395,7 +468,7 @@ class TemplateMiner:
                     best, best_wild = cid, wild
         return best
 
-    def _best_indexed(self, rt: Route, free: list[str], words: list[bool], crowded: bool) -> int:
+    def _best_indexed(self, rt: Route, free: list[str], crowded: bool) -> int:
         """:meth:`_best_scan` found through the route's index of template words (same choice, no scan).
 
         A cluster agrees with the line on ``same`` words, counted from the
@@ -406,7 +479,7 @@ class TemplateMiner:
         most wildcards where the line differs: the same is picked here.
         """
         idx = rt.index
-        same_of = Counter(chain.from_iterable(filter(None, [idx.get((i, t)) for i, (t, w) in enumerate(zip(free, words)) if w])))
+        same_of = Counter(chain.from_iterable(filter(None, [idx.get(k) for k in enumerate(free)])))  # only words are indexed
         for cid in rt.bare:
             same_of[cid] = 0
         if not same_of:
@@ -450,6 +523,8 @@ class TemplateMiner:
         """The family's tail is free text: one template, the head then ``<...>``, takes all its lines."""
         first = self.clusters[fam.members[0]].first if fam.members else self._lines
         self.clusters.append(MinedTemplate(list(fam.head) + [TAIL], pinned, 0, first))
+        self._fixed.append(([], 0, []))
+        self._stamp.append(0)  # one stamp per cluster (a tail joins no route: it is never scanned)
         tail = fam.tail = len(self.clusters) - 1
         for cid in fam.members:
             self._absorbed[cid] = tail
@@ -617,71 +692,3 @@ def mine(lines: Sequence[str], threshold: float = DEFAULT_THRESHOLD, depth: int 
     tpls = m.finish()
     f = m.final_ids
     return [t.text for t in tpls], [f[c] for c in cids]
-
-
-class TemplateIndex:
-    """Lines matched against a template table given in advance (most specific matching template wins).
-
-    A template ending in ``<...>`` (:data:`TAIL`) matches a line that has its
-    other tokens and any number of tokens after them.
-
-    Parameters
-    ----------
-    templates:
-        Template texts (tokens joined by single spaces, ``<*>`` for a wildcard).
-    """
-
-    def __init__(self, templates: Sequence[str]) -> None:
-        self.templates = list(templates)
-        self._by_len: dict[int, list[tuple[int, int, list[str]]]] = {}
-        self._tails: list[tuple[int, int, list[str]]] = []
-        for i, t in enumerate(self.templates):
-            toks = t.split(" ")
-            const = sum(1 for x in toks if x != WILDCARD and x != TAIL)
-            if toks[-1] == TAIL:
-                self._tails.append((-const, i, toks[:-1]))
-            else:
-                self._by_len.setdefault(len(toks), []).append((-const, i, toks))
-        for v in self._by_len.values():
-            v.sort(key=lambda e: (e[0], e[1]))
-        self._tails.sort(key=lambda e: (e[0], e[1]))
-        self._cand: dict[tuple[int, str], list[tuple[int, int, list[str]]]] = {}
-        self._memo: dict[tuple[str, ...], int] = {}
-        self.tokenize = Tokenizer()
-
-    def _candidates(self, n: int, first: str) -> list[tuple[int, int, list[str]]]:
-        key = (n, first)
-        c = self._cand.get(key)
-        if c is None:
-            c = [e for e in self._by_len.get(n, ()) if e[2][0] == first or e[2][0] == WILDCARD]
-            if self._tails:
-                c += [e for e in self._tails if len(e[2]) <= n and (not e[2] or e[2][0] == first or e[2][0] == WILDCARD)]
-                c.sort(key=lambda e: (e[0], e[1]))
-            if len(self._cand) < _MSG_CACHE:
-                self._cand[key] = c
-        return c
-
-    def match_tokens(self, toks: Sequence[str]) -> int:
-        """Index of the most specific template matching the tokens, or -1."""
-        key = tuple(toks)
-        hit = self._memo.get(key)
-        if hit is not None:
-            return hit
-        res = -1
-        if toks:
-            for _, i, tt in self._candidates(len(toks), toks[0]):
-                for a, b in zip(tt, toks):
-                    if a != b and a != WILDCARD:
-                        break
-                else:
-                    res = i
-                    break
-        if len(self._memo) >= _MSG_CACHE:
-            self._memo.clear()
-        self._memo[key] = res
-        return res
-
-    def match(self, line: str) -> int:
-        """Index of the template a raw line matches, or -1."""
-        _, pinned, free = line_signature(line, self.tokenize)
-        return self.match_tokens(list(pinned) + free)

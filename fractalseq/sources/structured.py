@@ -248,8 +248,14 @@ class Tokenizer:
         self._cache[msg] = res
         return res
 
-    def uncached(self, msg: str) -> tuple[tuple[str, ...], list[str]]:
-        """:meth:`__call__` without its cache (for a caller that remembers messages itself)."""
+    @staticmethod
+    def plain_words(msg: str) -> list[str] | None:
+        """The words of a plain-text message before masking (quoted and angle-bracketed spans collapsed), or ``None``.
+
+        ``None`` for a message that may be structured (JSON object, logfmt) or
+        is blank: :meth:`uncached` gives its tokens.  For any other message,
+        :meth:`uncached` gives ``()`` and these words masked, one for one.
+        """
         msg_s = msg.strip()
         if msg_s and msg_s[-1] != "}" and "=" not in msg_s:  # plain text: no JSON object, no logfmt pair
             if '"' in msg_s:  # :meth:`_text`, inlined on this path taken by most lines
@@ -258,8 +264,16 @@ class Tokenizer:
                 msg_s = _collapse_angles(msg_s)
             if "  " in msg_s:
                 msg_s = _empty_fields(msg_s)
-            toks = self.mask(msg_s.split())
+            return msg_s.split()
+        return None
+
+    def uncached(self, msg: str) -> tuple[tuple[str, ...], list[str]]:
+        """:meth:`__call__` without its cache (for a caller that remembers messages itself)."""
+        raw = self.plain_words(msg)
+        if raw is not None:
+            toks = self.mask(raw)
             return (), toks if toks else [EMPTY_TOKEN]
+        msg_s = msg.strip()
         res = self._structured(msg_s) if msg_s else None
         if res is None:
             toks = self._text(msg_s)
