@@ -374,17 +374,19 @@ class TemplateMiner:
             head = self._head(pinned, n, free)
             fkey = (pinned, head)
             fam = self._families.get(fkey)
+            sibling_tail = False
             if fam is None:
                 fam = self._families[fkey] = _Family([a if a == WILDCARD else b for a, b in zip(head, free)])
                 if any(t != WILDCARD for t in head):
                     fam.tail = -1  # a constant word in the head: the family may get a free-text tail
                     shape = label_shape(pinned, head)
-                    if shape is not None and shape in self._free_labels:
-                        return self._collapse(fam, pinned)  # a sibling label of this shape has a free-text tail
+                    sibling_tail = shape is not None and shape in self._free_labels
             slot = [fam, self._routes.get((fkey, n)), fkey]
             if len(self._slots) >= _MSG_CACHE:
                 self._slots.clear()
-            self._slots[key] = slot
+            self._slots[key] = slot  # (the block loop reads the slot back, also after a collapse)
+            if sibling_tail:
+                return self._collapse(fam, pinned)  # a sibling label of this shape has a free-text tail
         else:
             fam = slot[0]
         if fam.tail >= 0:
