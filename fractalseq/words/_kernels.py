@@ -341,13 +341,31 @@ def lcp_histogram(sorted_unique, depth, bits, key_bits):
     return h
 
 
-@njit(cache=True)
-def merge_sorted_counts(wa, ca, wb, cb):
-    """Merge two (sorted unique words, counts) tables, adding counts of equal words."""
+@njit(cache=True, nogil=True)
+def _merged_size(wa, wb):
+    """Distinct words of two sorted unique word tables together."""
     na = wa.shape[0]
     nb = wb.shape[0]
-    out_w = np.empty(na + nb, dtype=wa.dtype)
-    out_c = np.empty(na + nb, dtype=np.int64)
+    i = 0
+    j = 0
+    k = 0
+    while i < na and j < nb:
+        if wa[i] < wb[j]:
+            i += 1
+        elif wb[j] < wa[i]:
+            j += 1
+        else:
+            i += 1
+            j += 1
+        k += 1
+    return k + (na - i) + (nb - j)
+
+
+@njit(cache=True, nogil=True)
+def _merge_into(wa, ca, wb, cb, out_w, out_c):
+    """Merge two (sorted unique words, counts) tables into ``out_w``/``out_c`` (sized by :func:`_merged_size`)."""
+    na = wa.shape[0]
+    nb = wb.shape[0]
     i = 0
     j = 0
     k = 0
@@ -376,7 +394,20 @@ def merge_sorted_counts(wa, ca, wb, cb):
         out_c[k] = cb[j]
         j += 1
         k += 1
-    return out_w[:k].copy(), out_c[:k].copy()
+
+
+def merge_sorted_counts(wa, ca, wb, cb, count_dtype=np.int64):
+    """Merge two (sorted unique words, counts) tables, adding counts of equal words.
+
+    The output is sized exactly by a first pass (no over-allocation, no copy): its
+    memory is that of the distinct words.  Counts come out as ``count_dtype``
+    (``int64`` unless asked; the caller of ``uint32`` vouches that no sum exceeds it).
+    """
+    m = _merged_size(wa, wb)
+    out_w = np.empty(m, dtype=wa.dtype)
+    out_c = np.empty(m, dtype=count_dtype)
+    _merge_into(wa, ca, wb, cb, out_w, out_c)
+    return out_w, out_c
 
 
 @njit(cache=True)
