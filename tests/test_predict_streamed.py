@@ -21,10 +21,11 @@ from hypothesis import strategies as st
 from fractalseq.alphabet import dna
 from fractalseq.errors import ParameterError
 from fractalseq.predict import CellPredictor
+from fractalseq.predict import _cells as cells_module
 from fractalseq.predict._fitted_kernels import RevcompParts
 from fractalseq.stream import from_codes
 from fractalseq.words import _counts as C
-from fractalseq.words._kernels import merge_sorted_counts
+from fractalseq.words._kernels import merge_into_first, merge_sorted_counts
 from reference_impl import word_counts
 from test_predict_naive import naive_cells
 
@@ -132,10 +133,13 @@ def test_merge_is_sized_exactly_and_adds_equal_words(a, b, dtype):
     wa, wb = np.array(sorted(da), np.uint64), np.array(sorted(db), np.uint64)
     ca = np.array([da[k] for k in sorted(da)], dtype)
     cb = np.array([db[k] for k in sorted(db)], dtype)
-    w, c = merge_sorted_counts(wa, ca, wb, cb, dtype)
     ref = {k: da.get(k, 0) + db.get(k, 0) for k in da.keys() | db.keys()}
-    assert c.dtype == dtype and w.size == len(ref)
-    assert dict(zip(w.tolist(), c.tolist())) == ref
+    # the plain merge, and the merge grown in the first table's own memory (given copies: it takes them over)
+    for w, c in (merge_sorted_counts(wa, ca, wb, cb, dtype), merge_into_first(wa.copy(), ca.copy(), wb, cb, dtype),
+                 merge_into_first(wb.copy(), cb.copy(), wa, ca, dtype)):
+        assert c.dtype == dtype and w.size == len(ref)
+        assert np.all(np.diff(w.astype(np.int64)) > 0)
+        assert dict(zip(w.tolist(), c.tolist())) == ref
 
 
 @SETTINGS
@@ -154,13 +158,30 @@ def test_reverse_complements_by_part_equal_a_dictionary(data):
         for i in range(n):
             r = (r << 2) | (3 - ((p >> (2 * i)) & 3))  # complement = 3 - code, symbols read backwards
         ref[r] = ref.get(r, 0) + c
-    parts = RevcompParts(leaf, counts, shift, n, 2, 4)
+    bits = data.draw(st.integers(0, min(8, 2 * n - 2)), label="part bits")
+    parts = RevcompParts(leaf, counts, shift, n, 2, bits)
     got: dict[int, int] = {}
-    for p in range(16):
+    for p in range(1 << bits):
         rw, rc = parts.part(p)
-        assert np.all(np.diff(rw.astype(np.int64)) > 0) and np.all(rw >> np.uint64(2 * n - 4) == p)
+        assert np.all(np.diff(rw.astype(np.int64)) > 0) and np.all(rw >> np.uint64(2 * n - bits) == p)
         got.update(zip(rw.tolist(), rc.tolist()))
     assert got == ref
+
+
+@pytest.mark.parametrize("reverse", [False, True])
+def test_the_number_of_address_parts_changes_no_table(monkeypatch, reverse):
+    # 4 leaves a part: up to 256 parts at the deep depths instead of 16; a binding cap cuts inside parts
+    codes = np.random.default_rng(10).integers(0, 4, 9_000)
+    codes[6_000:8_000] = codes[:2_000]
+    arr = from_codes(dna(), codes, np.array([0, 4_321]))
+    params = dict(depths=(3, 8, 13), reverse_complement=reverse)
+    plain = CellPredictor(**params).fit(arr)
+    cap = plain.n_cells_ - plain.cells_[13].size // 2
+    ref = [_arrays(plain), _arrays(CellPredictor(**params, max_cells=cap).fit(arr))]
+    monkeypatch.setattr(cells_module, "PART_LEAVES", 4)
+    got = [_arrays(CellPredictor(**params).fit(arr)), _arrays(CellPredictor(**params, max_cells=cap).fit(arr))]
+    for a, b in zip(ref, got):
+        assert sorted(a) == sorted(b) and all(a[k].dtype == b[k].dtype and np.array_equal(a[k], b[k]) for k in a)
 
 
 def test_counts_handed_to_the_fit_are_dropped_and_the_model_is_the_same():

@@ -127,8 +127,8 @@ def cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, C
     return {n: depth_table(wc, n, reverse) for n in orders}
 
 
-#: Address parts a deep depth is built in (bounds the memory of sorting the other strand).
-BUILD_PARTS = 16
+#: Address parts a deep depth is built in: at least 16, more (up to 256) so that a part holds about this many leaves.
+PART_LEAVES = 1 << 19
 
 
 def _part_tables(wc, n: int, reverse: bool):
@@ -141,12 +141,14 @@ def _part_tables(wc, n: int, reverse: bool):
     """
     b = wc.alphabet.bits
     width = b * (n + 1)
-    parts = BUILD_PARTS if width - 4 >= b else 1
     leaf, lc, shift, tw, tc = wc.prefix_source(n + 1)
+    # the parts only bound the memory: the tables concatenated are the same for any number of them
+    pbits = 0 if width - 4 < b else min(width - b, 8, max(4, math.ceil(math.log2(max(leaf.size, 1) / PART_LEAVES))))
+    parts = 1 << pbits
     dt = lc.dtype
     tc = tc.astype(dt)
-    rev = FK.RevcompParts(leaf, lc, shift, n + 1, b, 4 if parts > 1 else 0) if reverse else None
-    pshift = width - 4
+    rev = FK.RevcompParts(leaf, lc, shift, n + 1, b, pbits) if reverse else None
+    pshift = width - pbits
     for p in range(parts):
         lo = p << pshift if parts > 1 else 0
         hi = (p + 1) << pshift if p + 1 < parts else None

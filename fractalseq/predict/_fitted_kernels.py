@@ -382,43 +382,47 @@ def _revcomp_top(p, n, b, head, top_shift):
 
 
 @njit(cache=True)
-def _revcomp_prefix_parts(leaf, counts, shift, n, b, head, top_shift, part, out_w, out_c, sizes):
-    """Reverse complements of the distinct n-prefixes ``leaf >> shift`` of sorted leaf words, by address part.
-
-    The part of an address is its top bits; that of a reverse complement comes from
-    the prefix's last ``head`` symbols (:func:`_revcomp_top`), so the whole
-    complement is formed only for the prefixes of the part asked.  With ``part < 0``
-    it only counts the prefixes of every part into ``sizes``; otherwise it writes
-    those of ``part`` (counts summed over the leaves sharing the prefix) and
-    returns how many.
-    """
+def _revcomp_prefix_ids(leaf, shift, b, head, top_shift, ids, sizes):
+    """The part of the reverse complement of every leaf's prefix ``leaf >> shift`` (into ``ids``), and the
+    distinct prefixes of every part (into ``sizes``); equal prefixes are neighbours."""
     us = np.uint64(shift)
-    ub = np.uint64(b)
-    symmask = np.uint64((1 << b) - 1)
     m = leaf.shape[0]
-    k = 0
     i = 0
     while i < m:
         p = np.uint64(leaf[i]) >> us
-        j = i + 1
-        while j < m and (np.uint64(leaf[j]) >> us) == p:
-            j += 1
-        top = _revcomp_top(p, n, b, head, top_shift)
-        if part < 0:
-            sizes[top] += 1
-        elif top == part:
-            c = counts[i]
-            for q in range(i + 1, j):
-                c += counts[q]
-            w = p
-            r = np.uint64(0)
-            for _ in range(n):
-                r = (r << ub) | ((w & symmask) ^ symmask)
-                w >>= ub
-            out_w[k] = r
-            out_c[k] = c
-            k += 1
-        i = j
+        top = _revcomp_top(p, 0, b, head, top_shift)
+        sizes[top] += 1
+        ids[i] = top
+        i += 1
+        while i < m and (np.uint64(leaf[i]) >> us) == p:
+            ids[i] = top
+            i += 1
+
+
+@njit(cache=True)
+def _revcomp_prefix_gather(leaf, counts, sel, shift, n, b, out_w, out_c):
+    """Reverse complements of the prefixes of the leaves ``sel`` (increasing; equal prefixes neighbours), counts summed."""
+    us = np.uint64(shift)
+    ub = np.uint64(b)
+    symmask = np.uint64((1 << b) - 1)
+    k = 0
+    i = 0
+    m = sel.shape[0]
+    while i < m:
+        p = np.uint64(leaf[sel[i]]) >> us
+        c = counts[sel[i]]
+        i += 1
+        while i < m and (np.uint64(leaf[sel[i]]) >> us) == p:
+            c += counts[sel[i]]
+            i += 1
+        w = p
+        r = np.uint64(0)
+        for _ in range(n):
+            r = (r << ub) | ((w & symmask) ^ symmask)
+            w >>= ub
+        out_w[k] = r
+        out_c[k] = c
+        k += 1
     return k
 
 
@@ -552,27 +556,28 @@ def revcomp_in_range(words, counts, n, b, lo: int, hi: int | None):
 class RevcompParts:
     """Reverse complements of the n-prefixes of a sorted leaf table, one address part at a time.
 
-    Part ``p`` holds the addresses whose top ``part_bits`` bits (of ``n * b``) equal ``p``.
-    Nothing of the size of the leaf table is allocated: a first scan sizes every part,
-    each :meth:`part` call scans the leaves again and sorts only that part's complements.
+    Part ``p`` holds the addresses whose top ``part_bits`` bits (of ``n * b``, at most 8) equal
+    ``p``; that of a reverse complement comes from the prefix's last symbols.  A first scan notes
+    each leaf's part (one byte a leaf) and sizes the parts; each :meth:`part` call gathers that
+    part's leaves and sorts only their complements, so nothing else as large as the leaf table is held.
     """
 
     def __init__(self, leaf, counts, shift: int, n: int, b: int, part_bits: int) -> None:
-        _need(leaf.dtype == np.uint64 and 0 < n * b <= 64 and part_bits <= n * b, "uint64 leaves and words of at most 64 bits", "leaf")
+        _need(leaf.dtype == np.uint64 and 0 < n * b <= 64 and 0 <= part_bits <= min(8, n * b), "uint64 leaves, words of at most 64 bits", "leaf")
         self.leaf, self.counts, self.shift, self.n, self.b = leaf, counts, int(shift), int(n), int(b)
-        self.head = -(-part_bits // b)
-        self.top_shift = self.head * b - part_bits
+        head = -(-part_bits // b)
         self.sizes = np.zeros(1 << part_bits, np.int64)
-        _revcomp_prefix_parts(leaf, counts, self.shift, self.n, self.b, self.head, self.top_shift, -1,
-                              np.zeros(0, np.uint64), counts[:0], self.sizes)
+        self.ids = np.empty(leaf.shape[0], np.uint8)
+        _revcomp_prefix_ids(leaf, self.shift, self.b, head, head * b - part_bits, self.ids, self.sizes)
 
     def part(self, p: int) -> tuple[np.ndarray, np.ndarray]:
         """Sorted reverse-complement addresses of part ``p`` and their counts (the leaves' count type)."""
         m = int(self.sizes[p])
         rw, rc = np.empty(m, np.uint64), np.empty(m, self.counts.dtype)
         if m:
-            _revcomp_prefix_parts(self.leaf, self.counts, self.shift, self.n, self.b, self.head, self.top_shift, p,
-                                  rw, rc, self.sizes)
+            sel = np.flatnonzero(self.ids == p)
+            _revcomp_prefix_gather(self.leaf, self.counts, sel, self.shift, self.n, self.b, rw, rc)
+            del sel
             order = np.argsort(rw)  # addresses are unique: any sort gives the same order
             rw, rc = rw[order], rc[order]
         return rw, rc

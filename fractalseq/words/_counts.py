@@ -623,7 +623,7 @@ class WordCounter:
         while len(self._runs) >= 2 and self._runs[-2][0].size <= 2 * self._runs[-1][0].size:
             bw, bc = self._runs.pop()
             aw, ac = self._runs.pop()
-            self._runs.append(kernels.merge_sorted_counts(aw, ac, bw, bc, self._count_dtype))
+            self._runs.append(kernels.merge_into_first(aw, ac, bw, bc, self._count_dtype))
 
     def _widen(self) -> None:
         """Counts from here on as ``int64`` (the symbols counted reach ``2**32``)."""
@@ -643,7 +643,7 @@ class WordCounter:
         while len(self._runs) >= 2:
             bw, bc = self._runs.pop()
             aw, ac = self._runs.pop()
-            self._runs.append(kernels.merge_sorted_counts(aw, ac, bw, bc, self._count_dtype))
+            self._runs.append(kernels.merge_into_first(aw, ac, bw, bc, self._count_dtype))
         if self._runs:
             lw, lc = self._runs[0]
         else:
