@@ -78,6 +78,33 @@ def fitted_bits(tree: Path, model: Path, data: Path) -> float:
     return float(json.loads(out)["bits_per_symbol"])
 
 
+def report(rows: list[dict]) -> None:
+    """Write the rows (JSON and markdown table) and print the table."""
+    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}", "rows": rows}
+    sims = [r for r in rows if r["input"].startswith("simulated")]
+    for a, b in zip(sims, sims[1:]):
+        b["after"]["marginal_bytes_per_added_symbol"] = round(
+            (b["after"]["peak_bytes"] - a["after"]["peak_bytes"]) / (b["symbols"] - a["symbols"]), 1)
+    lines = ["| input | symbols | peak before | B/symbol before | peak after | B/symbol after | CPU before | CPU after | same model file (bytes) |",
+             "|---|---:|---:|---:|---:|---:|---:|---:|---|"]
+    for r in rows:
+        a, b = r["after"], r.get("before")
+        mib = lambda x: f"{x['peak_bytes'] / 2**20:,.0f} MiB"  # noqa: E731
+        secs = lambda x: f"{x['cpu_seconds']:.1f} s" if x else "-"  # noqa: E731
+        lines.append(
+            f"| {r['input']} | {r['symbols']:,} | {mib(b) if b else '-'} | {b['bytes_per_symbol'] if b else '-'} | {mib(a)} | "
+            f"{a['bytes_per_symbol']} | {secs(b)} | "
+            f"{a['cpu_seconds']:.1f} s | {r.get('same_model_bytes', '-')} |"
+        )
+    if len(sims) > 1:
+        lines += ["", "Growth of the peak (after) per added symbol, from the previous simulated size: " + ", ".join(
+            f"to {b['symbols'] / 1e6:g} Mbase {b['after']['marginal_bytes_per_added_symbol']} B" for b in sims[1:]) + "."]
+    lines += ["", f"Machine: {data['machine']}; whole processes under /usr/bin/time -v; CPU = user + system seconds "
+              "(shared machine: times are rough).", ""]
+    write_results("learn_memory", data, "\n".join(lines))
+    print("\n".join(lines))
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--before", type=Path, default=None, help="Another checkout to run the same commands with.")
@@ -114,29 +141,7 @@ def main() -> int:
             print(row, flush=True)
             if path.parent == work and path.name.startswith("sim"):
                 path.unlink()  # the simulated inputs are large: one at a time on disk
-    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}", "rows": rows}
-    sims = [r for r in rows if r["input"].startswith("simulated")]
-    for a, b in zip(sims, sims[1:]):
-        b["after"]["marginal_bytes_per_added_symbol"] = round(
-            (b["after"]["peak_bytes"] - a["after"]["peak_bytes"]) / (b["symbols"] - a["symbols"]), 1)
-    lines = ["| input | symbols | peak before | B/symbol before | peak after | B/symbol after | CPU before | CPU after | same model file (bytes) |",
-             "|---|---:|---:|---:|---:|---:|---:|---:|---|"]
-    for r in rows:
-        a, b = r["after"], r.get("before")
-        mib = lambda x: f"{x['peak_bytes'] / 2**20:,.0f} MiB"  # noqa: E731
-        secs = lambda x: f"{x['cpu_seconds']:.1f} s" if x else "-"  # noqa: E731
-        lines.append(
-            f"| {r['input']} | {r['symbols']:,} | {mib(b) if b else '-'} | {b['bytes_per_symbol'] if b else '-'} | {mib(a)} | "
-            f"{a['bytes_per_symbol']} | {secs(b)} | "
-            f"{a['cpu_seconds']:.1f} s | {r.get('same_model_bytes', '-')} |"
-        )
-    if len(sims) > 1:
-        lines += ["", "Growth of the peak (after) per added symbol, from the previous simulated size: " + ", ".join(
-            f"to {b['symbols'] / 1e6:g} Mbase {b['after']['marginal_bytes_per_added_symbol']} B" for b in sims[1:]) + "."]
-    lines += ["", f"Machine: {data['machine']}; whole processes under /usr/bin/time -v; CPU = user + system seconds "
-              "(shared machine: times are rough).", ""]
-    write_results("learn_memory", data, "\n".join(lines))
-    print("\n".join(lines))
+    report(rows)
     return 0
 
 
