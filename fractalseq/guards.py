@@ -11,6 +11,8 @@ Two small rules shared by every reader, writer and option:
   length) when even a lower bound of the memory it needs exceeds what this
   process may use (:func:`memory_budget`: physical memory, capped by the
   process's resource limits and its control group).
+
+One setting for jobs that build large tables in parts: :func:`return_freed_arrays`.
 """
 
 from __future__ import annotations
@@ -20,7 +22,7 @@ import os
 
 from fractalseq.errors import ParameterError
 
-__all__ = ["check_memory", "format_bytes", "memory_budget", "path_problem"]
+__all__ = ["check_memory", "format_bytes", "memory_budget", "path_problem", "return_freed_arrays"]
 
 
 def format_bytes(n: float) -> str:
@@ -110,3 +112,32 @@ def path_problem(name: str) -> str | None:
     if os.path.islink(name):
         return f"is a symbolic link to {os.readlink(name)}, which does not exist; fix the link or check the path"
     return "does not exist; check the path"
+
+
+#: Blocks from this size on are mapped apart by the C allocator after :func:`return_freed_arrays`.
+MAPPED_BLOCK_BYTES = 1 << 20
+
+
+def return_freed_arrays(threshold: int = MAPPED_BLOCK_BYTES) -> bool:
+    """Have the C allocator map every block of ``threshold`` bytes or more apart, so a freed array leaves the process.
+
+    glibc raises its mapping threshold after each large block freed (up to 32 MiB); arrays of a
+    few MiB then come from the heap, and freed among live ones they stay in the process: a job
+    that builds a table in parts of a few MiB ends up holding far more than it uses.  Fixing the
+    threshold (``mallopt(M_MMAP_THRESHOLD)``) keeps the resident size to what is live.  A
+    process-wide setting, meant for a command's process; elsewhere than glibc nothing happens.
+
+    Returns
+    -------
+    bool
+        Whether the allocator took the setting.
+    """
+    import ctypes
+    import ctypes.util
+
+    try:
+        mallopt = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6").mallopt
+    except (OSError, AttributeError, TypeError):
+        return False
+    m_mmap_threshold = -3  # glibc's <malloc.h>
+    return bool(mallopt(ctypes.c_int(m_mmap_threshold), ctypes.c_int(int(threshold))))

@@ -128,3 +128,31 @@ def test_a_link_to_an_input_is_replaced_as_an_output_and_the_input_is_untouched(
     assert done.returncode == 0, done.stderr
     assert not link.is_symlink() and link.read_bytes()[:2] == b"PK"  # a zip archive took the link's place
     assert fasta.read_bytes() == before
+
+
+_FREED_HALF = """
+import numpy as np
+from fractalseq.guards import return_freed_arrays
+
+def rss():
+    with open("/proc/self/status") as f:
+        return next(int(x.split()[1]) for x in f if x.startswith("VmRSS")) // 1024
+
+print(return_freed_arrays())
+big = np.ones(24 << 17)  # 24 MiB freed: glibc alone would raise its mapping threshold above the 4-MiB blocks below (0 MiB returned)
+del big
+blocks = [np.ones(1 << 19) for _ in range(64)]  # 64 blocks of 4 MiB, touched
+before = rss()
+del blocks[::2]  # every other one freed, between live ones
+print(before - rss())
+"""
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux") or os.confstr("CS_GNU_LIBC_VERSION") is None,
+                    reason="glibc's allocator setting")
+def test_freed_arrays_between_live_ones_leave_the_process():
+    # 32 blocks of 4 MiB freed among live ones: with the setting every one is mapped apart and returned
+    out = subprocess.run([sys.executable, "-c", _FREED_HALF], capture_output=True, text=True, check=True,
+                         env={**os.environ, "PYTHONPATH": str(ROOT)}).stdout.split()
+    assert out[0] == "True"
+    assert int(out[1]) >= 120, out  # 128 MiB freed, all of it returned to the system

@@ -19,6 +19,7 @@ from rich.text import Text
 
 from fractalseq.cli import common
 from fractalseq.errors import ParameterError
+from fractalseq.guards import return_freed_arrays
 from fractalseq.io._outputs import check_writable, to_json
 
 DEPTHS = typer.Option(
@@ -135,6 +136,7 @@ def learn(
     from fractalseq.jobs._learn_score import learn_files
 
     check_writable(out, force)
+    return_freed_arrays()  # the cell tables are built in parts of a few MiB: freed ones must not stay resident
     max_depth = _deepest(depth, old_max_depth, quiet)
     params = {**_model_params(depths, max_depth, smoothing, max_cells, strands), "discount": _discount(discount)}
     with common.progress(quiet) as bar:

@@ -12,7 +12,7 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.predict import _fitted_kernels as FK
 from fractalseq.predict._params import BETA_STEPS, DISCOUNTS, GRID_CELLS
-from fractalseq.words._kernels import merge_sorted_counts
+from fractalseq.words._kernels import merge_sorted_counts, prefix_counts
 
 
 @dataclass(frozen=True)
@@ -127,38 +127,50 @@ def cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, C
     return {n: depth_table(wc, n, reverse) for n in orders}
 
 
-#: Address parts a deep depth is built in (bounds the memory of sorting the other strand).
-BUILD_PARTS = 16
+#: Address parts a deep depth is built in: at least 16, more (up to 256) so that a part holds about this many leaves.
+PART_LEAVES = 1 << 19
 
 
 def _part_tables(wc, n: int, reverse: bool):
-    """The table of depth ``n`` in pieces of increasing address (see :func:`depth_table`); concatenated they are it."""
+    """The table of depth ``n`` in pieces of increasing address (see :func:`depth_table`); concatenated they are it.
+
+    Nothing as large as the word counts is built: each part's (n+1)-words are the prefixes of
+    a slice of the leaf table (:meth:`~fractalseq.words._counts.WordCounts.prefix_source`), its
+    reverse complements are collected part by part (:class:`~fractalseq.predict._fitted_kernels.RevcompParts`),
+    and the few segment tails are merged into each part.
+    """
     b = wc.alphabet.bits
     width = b * (n + 1)
-    parts = BUILD_PARTS if width - 4 >= b else 1
-    # the leaf table itself at the deepest depth (no copy); the few segment tails merged into each part
-    words, counts, tw, tc = wc.words_unmerged(n + 1)
-    tc = tc.astype(counts.dtype)
-    shift = width - 4
+    leaf, lc, shift, tw, tc = wc.prefix_source(n + 1)
+    # the parts only bound the memory: the tables concatenated are the same for any number of them
+    pbits = 0 if width - 4 < b else min(width - b, 8, max(4, math.ceil(math.log2(max(leaf.size, 1) / PART_LEAVES))))
+    parts = 1 << pbits
+    dt = lc.dtype
+    tc = tc.astype(dt)
+    rev = FK.RevcompParts(leaf, lc, shift, n + 1, b, pbits) if reverse else None
+    pshift = width - pbits
     for p in range(parts):
-        lo = p << shift if parts > 1 else 0
-        hi = (p + 1) << shift if p + 1 < parts else None
-        i0 = int(np.searchsorted(words, np.uint64(lo)))
-        i1 = words.size if hi is None else int(np.searchsorted(words, np.uint64(hi)))
+        lo = p << pshift if parts > 1 else 0
+        hi = (p + 1) << pshift if p + 1 < parts else None
+        i0 = int(np.searchsorted(leaf, np.uint64(lo << shift)))
+        i1 = leaf.size if hi is None else int(np.searchsorted(leaf, np.uint64(hi << shift)))
         j0 = int(np.searchsorted(tw, np.uint64(lo)))
         j1 = tw.size if hi is None else int(np.searchsorted(tw, np.uint64(hi)))
-        fw, fc = words[i0:i1], counts[i0:i1]
+        fw, fc = leaf[i0:i1], lc[i0:i1]
+        if shift:
+            fw, fc = prefix_counts(fw, fc, shift)
+            fc = fc.astype(dt, copy=False)
         if j1 > j0:
-            fw, fc = merge_sorted_counts(fw, fc, tw[j0:j1], tc[j0:j1])
-        if reverse:
-            rw, rc = FK.revcomp_in_range(words, counts, n + 1, b, lo, hi)
+            fw, fc = merge_sorted_counts(fw, fc, tw[j0:j1], tc[j0:j1], dt)
+        if rev is not None:
+            rw, rc = rev.part(p)
             if tw.size:
                 tr, trc = FK.revcomp_in_range(tw, tc, n + 1, b, lo, hi)
                 if tr.size:
-                    rw, rc = merge_sorted_counts(rw, rc, tr, trc)
+                    rw, rc = merge_sorted_counts(rw, rc, tr, trc, dt)
         else:
-            rw, rc = np.zeros(0, np.uint64), counts[:0]
-        cells, ptr, syms, cnt, over = FK.strand_table(fw, fc.astype(counts.dtype, copy=False), rw, rc.astype(counts.dtype, copy=False), b)
+            rw, rc = np.zeros(0, np.uint64), lc[:0]
+        cells, ptr, syms, cnt, over = FK.strand_table(fw, fc, rw, rc, b)
         del rw, rc, fw, fc
         if over:
             raise InputError("A cell was seen more than 4,294,967,295 times, beyond what a model stores; split the input.")
@@ -171,14 +183,23 @@ def _total_class(tot: np.ndarray) -> np.ndarray:
 
 
 def _concat(parts: list[CellTable]) -> CellTable:
+    """The parts (tables of increasing addresses) as one table; the list is emptied.
+
+    The fields are joined one at a time and each field's parts are released as soon as it is
+    joined, so at most one field is held twice (not the whole table).
+    """
     if not parts:
         return CellTable(np.zeros(0, np.uint64), np.zeros(1, np.int64), np.zeros(0, np.uint32), np.zeros(0, np.uint32))
     if len(parts) == 1:
-        return parts[0]
+        return parts.pop()
     offs = np.cumsum([0] + [int(t.ptr[-1]) for t in parts])
     ptr = np.concatenate([t.ptr[:-1] + o for t, o in zip(parts, offs)] + [np.array([offs[-1]])]).astype(np.int64)
-    return CellTable(np.concatenate([t.cells for t in parts]), ptr, np.concatenate([t.syms for t in parts]),
-                     np.concatenate([t.counts for t in parts]))
+    fields = {f: [getattr(t, f) for t in parts] for f in ("cells", "syms", "counts")}
+    parts.clear()
+    joined = {}
+    for f in ("cells", "syms", "counts"):
+        joined[f] = np.concatenate(fields.pop(f))
+    return CellTable(joined["cells"], ptr, joined["syms"], joined["counts"])
 
 
 def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: int) -> tuple[dict[int, CellTable], int]:

@@ -369,6 +369,63 @@ def _revcomp_in_range(words, counts, n, b, lo, hi, to_end, out_w, out_c):
     return k
 
 
+@njit(cache=True, inline="always")
+def _revcomp_top(p, n, b, head, top_shift):
+    """The top bits (``>> top_shift``) of the reverse complement of the n-word ``p``, from its last ``head`` symbols only."""
+    ub = np.uint64(b)
+    symmask = np.uint64((1 << b) - 1)
+    t = np.uint64(0)
+    for _ in range(head):
+        t = (t << ub) | ((p & symmask) ^ symmask)
+        p >>= ub
+    return t >> np.uint64(top_shift)
+
+
+@njit(cache=True)
+def _revcomp_prefix_ids(leaf, shift, b, head, top_shift, ids, sizes):
+    """The part of the reverse complement of every leaf's prefix ``leaf >> shift`` (into ``ids``), and the
+    distinct prefixes of every part (into ``sizes``); equal prefixes are neighbours."""
+    us = np.uint64(shift)
+    m = leaf.shape[0]
+    i = 0
+    while i < m:
+        p = np.uint64(leaf[i]) >> us
+        top = _revcomp_top(p, 0, b, head, top_shift)
+        sizes[top] += 1
+        ids[i] = top
+        i += 1
+        while i < m and (np.uint64(leaf[i]) >> us) == p:
+            ids[i] = top
+            i += 1
+
+
+@njit(cache=True)
+def _revcomp_prefix_gather(leaf, counts, sel, shift, n, b, out_w, out_c):
+    """Reverse complements of the prefixes of the leaves ``sel`` (increasing; equal prefixes neighbours), counts summed."""
+    us = np.uint64(shift)
+    ub = np.uint64(b)
+    symmask = np.uint64((1 << b) - 1)
+    k = 0
+    i = 0
+    m = sel.shape[0]
+    while i < m:
+        p = np.uint64(leaf[sel[i]]) >> us
+        c = counts[sel[i]]
+        i += 1
+        while i < m and (np.uint64(leaf[sel[i]]) >> us) == p:
+            c += counts[sel[i]]
+            i += 1
+        w = p
+        r = np.uint64(0)
+        for _ in range(n):
+            r = (r << ub) | ((w & symmask) ^ symmask)
+            w >>= ub
+        out_w[k] = r
+        out_c[k] = c
+        k += 1
+    return k
+
+
 @njit(cache=True)
 def _cell_lookup(cells, ptr, syms, counts, keys, want, found, c, tot, used):
     """For each (cell key, symbol): is the cell there, the symbol's count, the cell's total and distinct symbols."""
@@ -494,6 +551,36 @@ def revcomp_in_range(words, counts, n, b, lo: int, hi: int | None):
         order = np.argsort(rw)
         rw, rc = rw[order], rc[order]
     return rw, rc
+
+
+class RevcompParts:
+    """Reverse complements of the n-prefixes of a sorted leaf table, one address part at a time.
+
+    Part ``p`` holds the addresses whose top ``part_bits`` bits (of ``n * b``, at most 8) equal
+    ``p``; that of a reverse complement comes from the prefix's last symbols.  A first scan notes
+    each leaf's part (one byte a leaf) and sizes the parts; each :meth:`part` call gathers that
+    part's leaves and sorts only their complements, so nothing else as large as the leaf table is held.
+    """
+
+    def __init__(self, leaf, counts, shift: int, n: int, b: int, part_bits: int) -> None:
+        _need(leaf.dtype == np.uint64 and 0 < n * b <= 64 and 0 <= part_bits <= min(8, n * b), "uint64 leaves, words of at most 64 bits", "leaf")
+        self.leaf, self.counts, self.shift, self.n, self.b = leaf, counts, int(shift), int(n), int(b)
+        head = -(-part_bits // b)
+        self.sizes = np.zeros(1 << part_bits, np.int64)
+        self.ids = np.empty(leaf.shape[0], np.uint8)
+        _revcomp_prefix_ids(leaf, self.shift, self.b, head, head * b - part_bits, self.ids, self.sizes)
+
+    def part(self, p: int) -> tuple[np.ndarray, np.ndarray]:
+        """Sorted reverse-complement addresses of part ``p`` and their counts (the leaves' count type)."""
+        m = int(self.sizes[p])
+        rw, rc = np.empty(m, np.uint64), np.empty(m, self.counts.dtype)
+        if m:
+            sel = np.flatnonzero(self.ids == p)
+            _revcomp_prefix_gather(self.leaf, self.counts, sel, self.shift, self.n, self.b, rw, rc)
+            del sel
+            order = np.argsort(rw)  # addresses are unique: any sort gives the same order
+            rw, rc = rw[order], rc[order]
+        return rw, rc
 
 
 def cell_lookup(cells, ptr, syms, counts, keys, want):

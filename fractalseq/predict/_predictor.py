@@ -259,15 +259,18 @@ class CellPredictor:
 
         self._reset()
         src = as_source(source)
-        wc = count_words(src, self.count_depth(src.alphabet))
+        wc = count_words(src, self.count_depth(src.alphabet), compact=True)
         if wc.length == 0:
             raise InputError(f"{getattr(src, 'name', 'The input')} holds no symbols to learn from; check the input.")
-        return self.fit_counts(wc, reader=reader)
+        return self.fit_counts(wc, reader=reader, consume=True)
 
-    def fit_counts(self, counts, reader: dict | None = None) -> "CellPredictor":
+    def fit_counts(self, counts, reader: dict | None = None, consume: bool = False) -> "CellPredictor":
         """Fit from :class:`~fractalseq.words._counts.WordCounts` (deep enough for every depth), e.g. one piece of a large input.
 
-        ``reader`` is as in :meth:`fit`.  All learned state of a previous fit is forgotten first.
+        ``reader`` is as in :meth:`fit`.  With ``consume`` the counts are handed over: their tables
+        are dropped (:meth:`~fractalseq.words._counts.WordCounts.discard`) as soon as the cell tables
+        are built, before the blend is fitted, so a caller that counted only to fit holds them no
+        longer than needed.  All learned state of a previous fit is forgotten first.
         """
         self._reset()
         if reader is not None and not isinstance(reader, dict):
@@ -286,8 +289,11 @@ class CellPredictor:
         # depth by depth, each deep depth cut to the cell cap as soon as it is built (the same cells
         # the cap keeps at the end, see capped_cell_tables), then the cap over all depths
         tables, pruned = capped_cell_tables(counts, fit_depths, reverse, K_b, self._cap())
+        n_symbols, n_segments = int(counts.length), int(counts.segments)
+        if consume:
+            counts.discard()
         tables, more = prune_cells(tables, K_b, self._cap())
-        self._install(alphabet, ladder, reverse, K_b, tables, int(counts.length), int(counts.segments), pruned + more, reader)
+        self._install(alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, pruned + more, reader)
         return self
 
     def _cap(self) -> int:

@@ -18,6 +18,7 @@ def count_inputs(
     depth: int | Callable[[Alphabet], int],
     parallel: bool = True,
     on_input: Callable[[str], None] | None = None,
+    compact: bool = False,
 ) -> tuple[WordCounts, list[tuple[str, ReadReport]]]:
     """Count the words of several inputs together, streamed; each input is its own segment.
 
@@ -31,6 +32,8 @@ def count_inputs(
         Threaded counting of large chunks (see :class:`WordCounter`).
     on_input:
         Called with each input's name once it is counted (progress display).
+    compact:
+        ``uint32`` counts while they fit (see :class:`WordCounter`).
 
     Returns
     -------
@@ -47,7 +50,7 @@ def count_inputs(
     for name, stream in inputs:
         if counter is None:
             a = stream.alphabet
-            counter = WordCounter(a, depth(a) if callable(depth) else depth, parallel=parallel)
+            counter = WordCounter(a, depth(a) if callable(depth) else depth, parallel=parallel, compact=compact)
         elif not counter.alphabet.same_symbols(stream.alphabet):
             raise InputError(
                 f"{name} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs."

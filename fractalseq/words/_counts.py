@@ -27,6 +27,7 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from fractalseq.words import _kernels as kernels
+from fractalseq.words._threaded_runs import sorted_runs_threaded as _sorted_runs_threaded
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import FractalseqError, InputError, ModelFileError, ParameterError
 from fractalseq.io._npz import DEFAULT_MAX_BYTES, read_container, write_container
@@ -34,6 +35,8 @@ from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 
 #: Dense tables are used up to this many address bits (4**12 cells for DNA).
 DENSE_MAX_BITS = 24
+#: Largest count a ``uint32`` holds (compact counting widens to ``int64`` before the length reaches it).
+U32_MAX = (1 << 32) - 1
 #: Counts below this value are tallied in a direct table by :meth:`WordCounts.spectra`.
 SPECTRUM_CAP = 4096
 FILE_FORMAT = "fractalseq-words"
@@ -122,12 +125,15 @@ class WordCounts:
         return "dense" if self.dense is not None else "sparse"
 
     def _check_n(self, n: int) -> int:
+        if self._cache.get("discarded"):
+            raise ParameterError("These word counts were discarded after a fit used them; count the input again.")
         if not 1 <= n <= self.depth:
             raise ParameterError(f"Word length {n} is outside 1..{self.depth} counted; count deeper or ask less.")
         return int(n)
 
     def leaf(self) -> tuple[np.ndarray, np.ndarray]:
         """Sorted unique N-word addresses and counts (from either storage)."""
+        self._check_n(self.depth)
         if self.dense is not None:
             idx = np.flatnonzero(self.dense)
             return idx.astype(_key_dtype(self.bits, self.depth)), self.dense[idx]
@@ -163,22 +169,24 @@ class WordCounts:
             lw, lc = kernels.merge_sorted_counts(lw, lc, tw, tc)
         return lw, lc
 
-    def words_unmerged(self, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """:meth:`words` in two sorted tables not yet added: the n-prefixes of the leaves, and of the segment tails.
-
-        At the deepest depth the first table is the leaf table itself (no copy), for callers that
-        merge the few tails into pieces of it.  Addresses ``uint64``; leaf counts as stored.
+    def prefix_source(self, n: int) -> tuple[np.ndarray, np.ndarray, int, np.ndarray, np.ndarray]:
+        """The n-words unbuilt, ``(leaves, counts, shift, tail words, tail counts)``: prefixes ``leaves >> shift``
+        of the leaf table itself (no copy; equal prefixes are neighbours) plus the n-prefixes of the segment
+        tails, not yet added.  Dense storage gives the n-word table with shift 0.  Leaf counts as stored.
         """
         n = self._check_n(n)
-        if self.dense is not None or n < self.depth:
-            lw, lc = self.words(n) if self.dense is not None else kernels.prefix_counts(
-                self.leaf_words, self.leaf_counts, self.bits * (self.depth - n))
-            if self.dense is not None:
-                return lw, lc, np.zeros(0, np.uint64), np.zeros(0, np.int64)
-        else:
-            lw, lc = self.leaf_words, self.leaf_counts
+        if self.dense is not None:
+            lw, lc = self.words(n)
+            return lw, lc, 0, np.zeros(0, np.uint64), np.zeros(0, np.int64)
         tw, tc = self._tail_prefixes(n)
-        return np.ascontiguousarray(lw, dtype=np.uint64), lc, tw, tc
+        lw = np.ascontiguousarray(self.leaf_words, dtype=np.uint64)
+        return lw, self.leaf_counts, self.bits * (self.depth - n), tw, tc
+
+    def discard(self) -> None:
+        """Drop the tables (for a caller that handed these counts over and needs the memory); any later use raises."""
+        self.dense = self.leaf_words = self.leaf_counts = None
+        self._cache.clear()
+        self._cache["discarded"] = True
 
     def counts(self, n: int) -> np.ndarray:
         """Counts of the distinct n-words, in address (lexicographic) order."""
@@ -434,44 +442,6 @@ class WordCounts:
 
 
 # ------------------------------------------------------------------ helpers
-def _sorted_runs_threaded(codes, starts, depth, bits, keys, n_low, threads: int = 2):
-    """Unique words, counts and prefix histogram using ``threads`` threads.
-
-    Words are split by the top bit of their first symbol (so the two halves
-    are already in order), each half is sorted by numpy (which releases the
-    GIL), its distinct words counted, and then reduced by a ``nogil`` kernel
-    straight into its slice of the output.
-    """
-    from concurrent.futures import ThreadPoolExecutor
-
-    kernels.full_words_split(codes, starts, depth, bits, n_low, keys)
-    cuts = (0, int(n_low), int(keys.shape[0]))
-    parts = [(cuts[d], cuts[d + 1]) for d in range(2) if cuts[d + 1] > cuts[d]]
-    order = sorted(range(len(parts)), key=lambda i: parts[i][0] - parts[i][1])  # largest first
-
-    def sort_and_count(i: int) -> int:
-        lo, hi = parts[i]
-        keys[lo:hi].sort()
-        return kernels.count_runs(keys[lo:hi])
-
-    with ThreadPoolExecutor(max_workers=threads) as pool:
-        sizes = dict(zip(order, pool.map(sort_and_count, order)))
-        offsets = np.concatenate([[0], np.cumsum([sizes[i] for i in range(len(parts))])]).astype(np.int64)
-        uniq = np.empty(int(offsets[-1]), dtype=keys.dtype)
-        cnt = np.empty(int(offsets[-1]), dtype=np.int64)
-
-        def write(i: int) -> np.ndarray:
-            lo, hi = parts[i]
-            a, b = offsets[i], offsets[i + 1]
-            return kernels.write_runs(keys[lo:hi], uniq[a:b], cnt[a:b], depth, bits)[1]
-
-        hists = list(pool.map(write, order))
-    lcp = np.sum(hists, axis=0) if hists else np.zeros(depth + 1, np.int64)
-    # the last word of the low half and the first of the high half differ in the first symbol (no shared prefix)
-    lcp[0] += max(0, len(parts) - 1)
-    return uniq, cnt, lcp
-
-
 def encode_address(codes: Iterable[int], bits: int) -> int:
     """Packed address of a word given by its codes (first symbol most significant)."""
     a = 0
@@ -525,9 +495,13 @@ class WordCounter:
         Sort large chunks on two threads (words grouped by first symbol, each group sorted apart).
     dense:
         Force dense (True) or sparse (False) storage; default: dense when ``b N <= 24``.
+    compact:
+        Sparse counts as ``uint32`` (12 bytes a distinct word, not 16) while the symbols counted stay
+        below ``2**32`` (no word occurs more often); beyond, they widen to ``int64``.  Same counts.
     """
 
-    def __init__(self, alphabet: Alphabet, depth: int, parallel: bool = False, dense: bool | None = None) -> None:
+    def __init__(self, alphabet: Alphabet, depth: int, parallel: bool = False, dense: bool | None = None,
+                 compact: bool = False) -> None:
         self.alphabet = alphabet
         self.depth = check_depth(alphabet, depth)
         self.bits = alphabet.bits
@@ -540,6 +514,7 @@ class WordCounter:
         self._cells = 1 << (self.bits * self.depth) if self.use_dense else 0
         self._dense: np.ndarray | None = None  # allocated once the sparse runs outgrow cells / 8
         self._runs: list[tuple[np.ndarray, np.ndarray]] = []
+        self._count_dtype = np.dtype(np.uint32 if compact else np.int64)
         self._lcp: np.ndarray | None = None
         self._tails: tuple[list, list, list] = ([], [], [])
         self._carry = np.zeros(0, dtype=alphabet.code_dtype)
@@ -551,6 +526,8 @@ class WordCounter:
         """Add one chunk of codes with its segment starts (see :class:`fractalseq.stream.Chunk`)."""
         codes = np.ascontiguousarray(codes, dtype=self.alphabet.code_dtype)
         starts = np.asarray(starts, dtype=np.int64)
+        if self._count_dtype == np.uint32 and self.length + codes.size > U32_MAX:
+            self._widen()
         self.length += codes.size
         inside = np.unique(starts[(starts >= 0) & (starts < codes.size)])
         if codes.size:
@@ -577,7 +554,9 @@ class WordCounter:
             if n_full:
                 keys = np.empty(n_full, dtype=self.key_dtype)
                 n_low = kernels.low_half_words(vcodes, vstarts, self.depth, self.bits)
-                self._push_run(*_sorted_runs_threaded(vcodes, vstarts, self.depth, self.bits, keys, n_low))
+                uniq, cnt, lcp = _sorted_runs_threaded(vcodes, vstarts, self.depth, self.bits, keys, n_low)
+                del keys
+                self._push_run(uniq, cnt.astype(self._count_dtype, copy=False), lcp)
         elif keys.size:
             if self._dense is not None:
                 kernels.dense_add(self._dense, keys)
@@ -591,7 +570,7 @@ class WordCounter:
                 keys.sort()  # numpy's vectorised sort, in place
                 uniq, cnt, lcp = kernels.runs_with_lcp(keys, self.depth, self.bits, 8 * keys.dtype.itemsize)
                 del keys
-                self._push_run(uniq, cnt, lcp)
+                self._push_run(uniq, cnt.astype(self._count_dtype, copy=False), lcp)
         self._carry = vcodes[carry_from:].copy() if not final else vcodes[:0].copy()
         self._open = not final
 
@@ -607,7 +586,12 @@ class WordCounter:
         while len(self._runs) >= 2 and self._runs[-2][0].size <= 2 * self._runs[-1][0].size:
             bw, bc = self._runs.pop()
             aw, ac = self._runs.pop()
-            self._runs.append(kernels.merge_sorted_counts(aw, ac, bw, bc))
+            self._runs.append(kernels.merge_into_first(aw, ac, bw, bc, self._count_dtype))
+
+    def _widen(self) -> None:
+        """Counts from here on as ``int64`` (the symbols counted reach ``2**32``)."""
+        self._count_dtype = np.dtype(np.int64)
+        self._runs = [(w, c.astype(np.int64)) for w, c in self._runs]
 
     def finish(self) -> WordCounts:
         """Close the open segment and return the counts."""
@@ -622,11 +606,11 @@ class WordCounter:
         while len(self._runs) >= 2:
             bw, bc = self._runs.pop()
             aw, ac = self._runs.pop()
-            self._runs.append(kernels.merge_sorted_counts(aw, ac, bw, bc))
+            self._runs.append(kernels.merge_into_first(aw, ac, bw, bc, self._count_dtype))
         if self._runs:
             lw, lc = self._runs[0]
         else:
-            lw, lc = np.zeros(0, self.key_dtype), np.zeros(0, np.int64)
+            lw, lc = np.zeros(0, self.key_dtype), np.zeros(0, self._count_dtype)
         wc = WordCounts(self.alphabet, self.depth, self.length, self.segments, None, lw, lc, tl, ta, tc)
         if self._lcp is not None and len(self._runs) == 1:
             wc._cache["lcp"] = self._lcp
@@ -643,6 +627,7 @@ def count_words(
     alphabet: Alphabet | None = None,
     parallel: bool = False,
     dense: bool | None = None,
+    compact: bool = False,
 ) -> WordCounts:
     """Exact counts of all words of length 1..``depth`` of a stream.
 
@@ -657,13 +642,15 @@ def count_words(
         Use the threaded sort (buckets split by first symbol).
     dense:
         Force dense or sparse storage (default: dense when ``bits * depth <= 24``).
+    compact:
+        ``uint32`` counts while they fit (see :class:`WordCounter`).
 
     Returns
     -------
     WordCounts
     """
     if isinstance(source, SymbolArray):  # in pieces of ARRAY_PIECE symbols: temporaries of one piece
-        counter = WordCounter(source.alphabet, depth, parallel=parallel, dense=dense)
+        counter = WordCounter(source.alphabet, depth, parallel=parallel, dense=dense, compact=compact)
         T, st = len(source), source.starts
         for a in range(0, max(T, 1), ARRAY_PIECE):
             b = min(a + ARRAY_PIECE, T)
@@ -676,7 +663,7 @@ def count_words(
         if alphabet is None:
             raise ParameterError("count_words needs the alphabet when given bare chunks.")
         chunks = iter(source)
-    counter = WordCounter(alphabet, depth, parallel=parallel, dense=dense)
+    counter = WordCounter(alphabet, depth, parallel=parallel, dense=dense, compact=compact)
     for chunk in chunks:
         counter.add(chunk.codes, chunk.starts)
     return counter.finish()

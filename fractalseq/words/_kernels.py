@@ -341,13 +341,31 @@ def lcp_histogram(sorted_unique, depth, bits, key_bits):
     return h
 
 
-@njit(cache=True)
-def merge_sorted_counts(wa, ca, wb, cb):
-    """Merge two (sorted unique words, counts) tables, adding counts of equal words."""
+@njit(cache=True, nogil=True)
+def _merged_size(wa, wb):
+    """Distinct words of two sorted unique word tables together."""
     na = wa.shape[0]
     nb = wb.shape[0]
-    out_w = np.empty(na + nb, dtype=wa.dtype)
-    out_c = np.empty(na + nb, dtype=np.int64)
+    i = 0
+    j = 0
+    k = 0
+    while i < na and j < nb:
+        if wa[i] < wb[j]:
+            i += 1
+        elif wb[j] < wa[i]:
+            j += 1
+        else:
+            i += 1
+            j += 1
+        k += 1
+    return k + (na - i) + (nb - j)
+
+
+@njit(cache=True, nogil=True)
+def _merge_into(wa, ca, wb, cb, out_w, out_c):
+    """Merge two (sorted unique words, counts) tables into ``out_w``/``out_c`` (sized by :func:`_merged_size`)."""
+    na = wa.shape[0]
+    nb = wb.shape[0]
     i = 0
     j = 0
     k = 0
@@ -376,7 +394,64 @@ def merge_sorted_counts(wa, ca, wb, cb):
         out_c[k] = cb[j]
         j += 1
         k += 1
-    return out_w[:k].copy(), out_c[:k].copy()
+
+
+def merge_sorted_counts(wa, ca, wb, cb, count_dtype=np.int64):
+    """Merge two (sorted unique words, counts) tables, adding counts of equal words.
+
+    The output is sized exactly by a first pass (no over-allocation, no copy): its
+    memory is that of the distinct words.  Counts come out as ``count_dtype``
+    (``int64`` unless asked; the caller of ``uint32`` vouches that no sum exceeds it).
+    """
+    m = _merged_size(wa, wb)
+    out_w = np.empty(m, dtype=wa.dtype)
+    out_c = np.empty(m, dtype=count_dtype)
+    _merge_into(wa, ca, wb, cb, out_w, out_c)
+    return out_w, out_c
+
+
+@njit(cache=True, nogil=True)
+def _merge_backward(wa, ca, na, wb, cb):
+    """Merge ``(wb, cb)`` into ``(wa, ca)``, whose first ``na`` entries hold the other table and whose size is
+    the merged size: from the back, so no entry of the first table is overwritten before it is read."""
+    i = na - 1
+    j = wb.shape[0] - 1
+    k = wa.shape[0] - 1
+    while j >= 0:
+        if i >= 0 and wa[i] > wb[j]:
+            wa[k] = wa[i]
+            ca[k] = ca[i]
+            i -= 1
+        elif i >= 0 and wa[i] == wb[j]:
+            wa[k] = wa[i]
+            ca[k] = ca[i] + cb[j]
+            i -= 1
+            j -= 1
+        else:
+            wa[k] = wb[j]
+            ca[k] = cb[j]
+            j -= 1
+        k -= 1
+    # the first table's entries left (0..i) are already in place
+
+
+def merge_into_first(wa, ca, wb, cb, count_dtype=np.int64):
+    """:func:`merge_sorted_counts` in the memory of the first table when it owns it (the caller drops it).
+
+    The first table's arrays are grown in place (``realloc``, which moves no pages for
+    large blocks) to the merged size and merged from the back, so a merge holds the
+    output plus the second table, not both inputs beside the output.  Otherwise (a view,
+    another count type) it is the plain merge.
+    """
+    own = wa.base is None and ca.base is None and wa.flags.owndata and ca.flags.owndata
+    if not (own and wa.flags.c_contiguous and ca.flags.c_contiguous and ca.dtype == count_dtype and wa.dtype == wb.dtype):
+        return merge_sorted_counts(wa, ca, wb, cb, count_dtype)
+    na = wa.shape[0]
+    m = _merged_size(wa, wb)
+    wa.resize(m, refcheck=False)  # the caller holds no other reference to the first table
+    ca.resize(m, refcheck=False)
+    _merge_backward(wa, ca, na, wb, cb)
+    return wa, ca
 
 
 @njit(cache=True)
