@@ -196,7 +196,12 @@ def main() -> int:
     ap.add_argument("--mbase", type=int, default=100)
     ap.add_argument("--depth", type=int, default=12)
     ap.add_argument("--many", type=int, default=10_000)
+    ap.add_argument("--tree", default=None, help="run the commands from another source tree (a before/after comparison); "
+                    "its figures are stored under survey_<label>")
+    ap.add_argument("--label", default="before")
     args = ap.parse_args()
+    if args.tree:
+        ENV["PYTHONPATH"] = str(Path(args.tree).resolve())
     RESULTS.mkdir(exist_ok=True)
     path = RESULTS / "survey_scale.json"
     doc = json.loads(path.read_text()) if path.exists() else {}
@@ -208,10 +213,12 @@ def main() -> int:
         if name == "count":
             doc.setdefault("count", {})[f"depth{args.depth}"] = section_count(args.mbase, args.depth)
         elif name == "survey":
-            doc["survey"] = section_survey()
+            doc[f"survey_{args.label}" if args.tree else "survey"] = section_survey()
+            if args.tree:
+                doc[f"survey_{args.label}"]["tree"] = f"{args.label}: {subprocess.run(['git', '-C', args.tree, 'rev-parse', '--short', 'HEAD'], capture_output=True, text=True).stdout.strip()}"
         elif name == "many":
             doc["many"] = section_many(args.many)
-        print(name, json.dumps(doc.get(name)), flush=True)
+        print(name, json.dumps(doc.get(f"survey_{args.label}" if args.tree and name == "survey" else name)), flush=True)
     write_text(path, to_json(doc), force=True)
     lines = ["# Scale: split counting and large surveys", "", doc["note"] + ".", ""]
     if "count" in doc:
@@ -221,19 +228,21 @@ def main() -> int:
             lines.append(f"| one FASTA | {c['symbols']:,} | {c['depth']} | {c['serial_s']} | {c['workers2_s']} | {c['speedup']}x | "
                          f"{c['identical_json']} | {c['load_before']}/{c['load_after']} |")
         lines.append("")
-    if "survey" in doc and "serial_cpu_s" in doc["survey"]:
-        s = doc["survey"]
-        lines += [f"Survey of {s['sources']} sources of {s['length']:,} symbols (whole commands; CPU = user + system of the command and its workers; "
-                  f"load average {s['load_before']} before, {s['load_after']} after):", "",
-                  "| run | wall s | CPU s | peak MiB (parent) |", "|---|---|---|---|",
-                  f"| start-up: survey of one source | | {s['startup_cpu_s']} | |",
-                  f"| serial, --json --no-cache | {s['serial_s']} | {s['serial_cpu_s']} | {s['peak_mib_serial']} |",
-                  f"| 2 workers (processes), --json --no-cache | {s['workers2_s']} | {s['workers2_cpu_s']} | {s['peak_mib_workers2']} |",
-                  f"| 2 workers, --out (cache, HTML, figures) | {s['out_s']} | {s['out_cpu_s']} | {s['peak_mib_out']} |", "",
-                  f"Wall-clock ratio serial / 2 workers: {s['speedup_wall']}x; 2-worker CPU seconds per core: {s['workers2_cpu_s_per_core']} "
-                  f"(the wall time on two idle cores); identical JSON: {s['identical_json']}; JSON {s['json_bytes']:,} bytes.", "",
-                  f"In one process (CPU seconds): profiles alone {s['profiles_only_cpu_s']}, serial survey {s['survey_in_process_cpu_s']} "
-                  f"(its JSON text {s['json_text_cpu_s']} more): overhead {s['overhead_ms_per_source']} ms per source beyond the profile.", ""]
+    runs = [(k, doc[k]) for k in sorted(doc) if k.startswith("survey_")] + ([("survey", doc["survey"])] if "serial_cpu_s" in doc.get("survey", {}) else [])
+    if runs:
+        s0 = runs[-1][1]
+        lines += [f"Survey of {s0['sources']} sources of {s0['length']:,} symbols: whole commands under `nice -n 10`; CPU = user + system "
+                  "of the command and its worker processes; 'in process' = profiles alone vs a serial survey in one process (CPU s).", "",
+                  "| code | start-up CPU s | serial wall s | serial CPU s | 2 workers wall s | 2 workers CPU s | CPU s per core (2 workers) | "
+                  "2 workers --out wall s | --out CPU s | identical JSON | overhead ms/source (in process) | load before/after |",
+                  "|---|---|---|---|---|---|---|---|---|---|---|---|"]
+        for key, s in runs:
+            label = s.get("tree", "this tree") if key != "survey" else "this tree"
+            lines.append(f"| {label} | {s['startup_cpu_s']} | {s['serial_s']} | {s['serial_cpu_s']} | {s['workers2_s']} | {s['workers2_cpu_s']} | "
+                         f"{s['workers2_cpu_s_per_core']} | {s['out_s']} | {s['out_cpu_s']} | {s['identical_json']} | "
+                         f"{s['overhead_ms_per_source']} (profiles {s['profiles_only_cpu_s']} s, survey {s['survey_in_process_cpu_s']} s) | "
+                         f"{s['load_before']}/{s['load_after']} |")
+        lines.append("")
     if "many" in doc and "cpu_s" in doc["many"]:
         m = doc["many"]
         lines += ["| many | sources x length | mode | 2 workers wall s | CPU s | peak MiB | survey.json bytes | distances.npz bytes | survey.html bytes |",

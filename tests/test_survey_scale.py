@@ -156,6 +156,10 @@ def test_large_survey_json_references_a_checksummed_matrix_file(tmp_path, monkey
     doc = json.loads((tmp_path / "large" / "survey.json").read_text())
     dist = doc["distances"]
     assert "matrix" not in dist and "matrix" not in dist["spectrum"]
+    # the large form's keys, as the README's survey contract states them
+    assert set(dist) == {"names", "matrix_file", "measure", "depth", "alphabet", "spectrum", "clustering"}
+    assert set(dist["spectrum"]) == {"matrix_file", "measure"}
+    assert set(dist["matrix_file"]) == {"file", "array", "shape", "dtype", "sha256"} and dist["matrix_file"]["dtype"] == "<f8"
     assert dist["matrix_file"]["file"] == R.MATRIX_FILE and dist["matrix_file"]["shape"] == [3, 3]
     assert not (tmp_path / "large" / "distances.csv").exists()
     assert doc["sources"] == small["sources"] and dist["clustering"] == small["distances"]["clustering"]

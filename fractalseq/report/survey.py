@@ -79,10 +79,13 @@ class SurveyView:
 
 def spectra_png(view: SurveyView) -> bytes:
     """D_q against q for every source, overlaid (intervals as bands)."""
+    from matplotlib.collections import LineCollection
+
     crowded = len(view.sources) > LABELLED_SOURCES
     with figures.style():
         fig, ax = figures.figure(7.6, 4.6)
         drawn = False
+        lines = []
         for i, s in enumerate(view.sources):
             dims = [d for d in s["spectrum"] if d.get("estimate") is not None]
             if not dims:
@@ -90,8 +93,8 @@ def spectra_png(view: SurveyView) -> bytes:
             drawn = True
             q = np.array([float(d["q"]) for d in dims])
             est = np.array([float(d["estimate"]) for d in dims])
-            if crowded:  # many sources: thin lines of one colour, no bands or legend
-                ax.plot(q, est, color="#0b6e69", lw=0.8, alpha=max(0.08, min(0.6, 12.0 / len(view.sources))))
+            if crowded:  # many sources: thin lines of one colour, no bands or legend, drawn as one collection
+                lines.append(np.column_stack([q, est]))
                 continue
             color = figures.PALETTE[i % len(figures.PALETTE)]
             ax.plot(q, est, marker="o", color=color, label=figures.short(s["name"], 28))
@@ -99,6 +102,9 @@ def spectra_png(view: SurveyView) -> bytes:
             hi = np.array([np.nan if d.get("high") is None else float(d["high"]) for d in dims])
             if np.isfinite(lo).any():
                 ax.fill_between(q, lo, hi, color=color, alpha=0.15, lw=0)
+        if lines:  # one artist for thousands of sources (one line each took ~8 ms to draw)
+            ax.add_collection(LineCollection(lines, colors="#0b6e69", linewidths=0.8, alpha=max(0.08, min(0.6, 12.0 / len(view.sources)))))
+            ax.autoscale_view()
         ax.set_xlabel("order q")
         ax.set_ylabel("D_q")
         ax.set_title("Rényi dimension spectra" + (f" of {len(view.sources)} sources" if crowded else ""))
