@@ -176,3 +176,22 @@ def test_large_survey_json_references_a_checksummed_matrix_file(tmp_path, monkey
     (tmp_path / "large" / R.MATRIX_FILE).write_bytes((tmp_path / "other" / R.MATRIX_FILE).read_bytes())
     with pytest.raises(ModelFileError, match="SHA-256"):
         read_matrix(dist, tmp_path / "large")
+
+
+def test_command_line_says_where_the_matrices_of_a_large_survey_go(tmp_path, monkeypatch, capsys):
+    import json
+
+    from fractalseq.cli.app import main
+    from fractalseq.jobs import _survey as S
+    from fractalseq.report import survey as R
+
+    specs = _three_sources(tmp_path)
+    for module in (S, R):  # three sources treated as a large survey
+        monkeypatch.setattr(module, "MATRICES_IN_JSON", 2)
+    capsys.readouterr()
+    assert main(["survey", *[s.path for s in specs], "--quick", "--no-cache", "--json", "-q"]) == 0
+    printed = capsys.readouterr()
+    assert json.loads(printed.out)["distances"]["matrix_file"]["file"] == "distances.npz"
+    assert "3 x 3 distance matrices are too large for the JSON" in printed.err and "only --out writes that file" in printed.err
+    assert main(["survey", *[s.path for s in specs], "--quick", "--no-cache", "--out", str(tmp_path / "o"), "-q"]) == 0
+    assert "too large" not in capsys.readouterr().err and (tmp_path / "o" / "distances.npz").is_file()

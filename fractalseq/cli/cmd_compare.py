@@ -107,6 +107,7 @@ def survey(
     from fractalseq.jobs._files import survey_cache, survey_files
     from fractalseq.jobs._sources import expand_inputs
     from fractalseq.jobs._survey import SurveyOptions, column_specs, write_outputs
+    from fractalseq.report.survey import MATRICES_IN_JSON, MATRIX_FILE
 
     options = SurveyOptions.from_reader(
         reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed),
@@ -157,6 +158,11 @@ def survey(
     written = write_outputs(result, stage.path, force=True) if stage is not None else []
     if stage is not None:
         stage.commit()
+    if out is None and len(result.names) > MATRICES_IN_JSON:
+        common.err_console.print(
+            f"note: the {len(result.names)} x {len(result.names)} distance matrices are too large for the JSON, which refers to "
+            f"{MATRIX_FILE}; only --out writes that file.", markup=False, highlight=False,
+        )
     if json_out:
         typer.echo(result.to_json(), nl=False)
         return
