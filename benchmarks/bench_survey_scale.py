@@ -32,6 +32,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import shutil
 import subprocess
 import sys
 import time
@@ -89,7 +90,7 @@ def run(args: list[str]) -> tuple[float, str, int, float, float]:
     """
     t0 = time.perf_counter()
     p = subprocess.run(["nice", "-n", "10", "/usr/bin/time", "-f", "peak_kib=%M cpu=%U+%S", *CLI, *args],
-                       capture_output=True, text=True, env=ENV)
+                       capture_output=True, text=True, env=ENV, cwd=ENV["PYTHONPATH"])  # python -m puts the cwd first on the path
     dt = time.perf_counter() - t0
     if p.returncode not in (0, 1):
         raise SystemExit(f"{' '.join(args)} failed: {p.stderr.strip()}")
@@ -153,10 +154,11 @@ def section_survey(n: int = 400, length: int = 20_000) -> dict:
     t_par, out_par, _, peak_par, cpu_par = run(["survey", "--from-list", str(listing), "--engine", "processes", "--workers", "2",
                                                 "--no-cache", "--json", "--quiet"])
     out = DATA / f"survey_out_{n}"
+    shutil.rmtree(out, ignore_errors=True)  # no cache of an earlier run
     t_out, _, _, peak_out, cpu_out = run(["survey", "--from-list", str(listing), "--engine", "processes", "--workers", "2",
                                           "--out", str(out), "--force", "--quiet"])
     prof = subprocess.run(["nice", "-n", "10", sys.executable, "-c", OVERHEAD_CODE, str(listing)], input=out_par,
-                          capture_output=True, text=True, env=ENV, check=True)
+                          capture_output=True, text=True, env=ENV, check=True, cwd=ENV["PYTHONPATH"])
     t_profiles, t_serial, t_json, same = prof.stdout.split()
     t_profiles, t_serial, t_json = float(t_profiles), float(t_serial), float(t_json)
     return {
@@ -180,6 +182,7 @@ def section_many(n: int, length: int = 2_000, quick: bool = True) -> dict:
     listing = _sources(n, length, "many")
     load0 = os.getloadavg()[0]
     out = DATA / f"many_out_{n}"
+    shutil.rmtree(out, ignore_errors=True)  # no cache of an earlier run
     t, _, _, peak, cpu = run(["survey", "--from-list", str(listing), "--engine", "processes", "--workers", "2", "--out", str(out),
                               "--force", "--quiet", *(["--quick"] if quick else [])])
     size = {f.name: f.stat().st_size for f in out.iterdir() if f.is_file()}
@@ -215,7 +218,7 @@ def main() -> int:
         elif name == "survey":
             doc[f"survey_{args.label}" if args.tree else "survey"] = section_survey()
             if args.tree:
-                doc[f"survey_{args.label}"]["tree"] = f"{args.label}: {subprocess.run(['git', '-C', args.tree, 'rev-parse', '--short', 'HEAD'], capture_output=True, text=True).stdout.strip()}"
+                doc[f"survey_{args.label}"]["tree"] = args.label
         elif name == "many":
             doc["many"] = section_many(args.many)
         print(name, json.dumps(doc.get(f"survey_{args.label}" if args.tree and name == "survey" else name)), flush=True)
