@@ -32,6 +32,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import shutil
 import subprocess
 import sys
 import time
@@ -80,27 +81,31 @@ def write_fasta(path: Path, n: int, seed: int, records: int = 1, width: int = 80
     return path
 
 
-def run(args: list[str]) -> tuple[float, str, int, float]:
-    """Run a command; wall time, standard output, exit status, peak memory of the command's own process (MiB).
+def run(args: list[str]) -> tuple[float, str, int, float, float]:
+    """Run a command under ``nice -n 10``; wall time, standard output, exit status, peak memory (MiB), CPU seconds.
 
-    The peak comes from ``/usr/bin/time -f %M`` (maximum resident set of that process; worker
-    processes it starts are not included).
+    The peak comes from ``/usr/bin/time`` (``%M``, maximum resident set of the command's own process; worker
+    processes it starts are not included).  CPU seconds are user + system time of the command and of every
+    process it waited for (its worker processes included), so they do not depend on how busy the machine is.
     """
     t0 = time.perf_counter()
-    p = subprocess.run(["/usr/bin/time", "-f", "peak_kib=%M", *CLI, *args], capture_output=True, text=True, env=ENV)
+    p = subprocess.run(["nice", "-n", "10", "/usr/bin/time", "-f", "peak_kib=%M cpu=%U+%S", *CLI, *args],
+                       capture_output=True, text=True, env=ENV, cwd=ENV["PYTHONPATH"])  # python -m puts the cwd first on the path
     dt = time.perf_counter() - t0
     if p.returncode not in (0, 1):
         raise SystemExit(f"{' '.join(args)} failed: {p.stderr.strip()}")
-    peak = next((int(ln.split("=", 1)[1]) for ln in reversed(p.stderr.splitlines()) if ln.startswith("peak_kib=")), 0)
-    return dt, p.stdout, p.returncode, peak / 1024
+    line = next((ln for ln in reversed(p.stderr.splitlines()) if ln.startswith("peak_kib=")), "peak_kib=0 cpu=0+0")
+    peak, cpu = line.split()
+    user, system = cpu.split("=", 1)[1].split("+")
+    return dt, p.stdout, p.returncode, int(peak.split("=", 1)[1]) / 1024, float(user) + float(system)
 
 
 def section_count(mbase: int, depth: int) -> dict:
     path = write_fasta(DATA / f"sim{mbase}M.fa", mbase * 1_000_000, seed=3)
     load0 = os.getloadavg()[0]
     run(["count", str(DATA / "warm.fa") if (DATA / "warm.fa").exists() else str(write_fasta(DATA / "warm.fa", 50_000, 1)), "--depth", str(depth), "--json"])
-    t_serial, out_serial, _, _ = run(["count", str(path), "--depth", str(depth), "--json", "--quiet"])
-    t_par, out_par, _, _ = run(["count", str(path), "--depth", str(depth), "--json", "--quiet", "--workers", "2"])
+    t_serial, out_serial, _, _, _ = run(["count", str(path), "--depth", str(depth), "--json", "--quiet"])
+    t_par, out_par, _, _, _ = run(["count", str(path), "--depth", str(depth), "--json", "--quiet", "--workers", "2"])
     return {
         "symbols": mbase * 1_000_000, "depth": depth, "serial_s": round(t_serial, 2), "workers2_s": round(t_par, 2),
         "speedup": round(t_serial / t_par, 3), "identical_json": out_serial == out_par,
@@ -126,41 +131,64 @@ def _sources(n: int, length: int, tag: str) -> Path:
     return listing
 
 
+#: In one process: the sources profiled alone, then surveyed serially (compile time paid first); CPU seconds.
+OVERHEAD_CODE = (
+    "import sys,time,os; from fractalseq.jobs._files import survey_files; from fractalseq.jobs._survey import SurveyOptions;"
+    "from fractalseq.jobs._profile import DEFAULT_BOOT, profile_source; from fractalseq.resampling._options import Resampling;"
+    "from fractalseq.jobs._inputs import ReaderOptions; d=os.path.dirname(sys.argv[1]);"
+    "p=[os.path.join(d,l.strip()) for l in open(sys.argv[1]) if l.strip()]; o=SurveyOptions(); r=ReaderOptions();"
+    "survey_files(p[:2], o); t=time.process_time(); arrs=[r.read(x) for x in p];"
+    "[profile_source(a, depth=o.depth, ratio=o.ratio, resampling=Resampling(n_boot=DEFAULT_BOOT, seed=o.seed)) for a in arrs];"
+    "tp=time.process_time()-t; t=time.process_time(); res=survey_files(p, o); ts=time.process_time()-t;"
+    "t=time.process_time(); doc=res.to_json(); tj=time.process_time()-t;"
+    "print(tp, ts, tj, doc==sys.stdin.read())"
+)
+
+
 def section_survey(n: int = 400, length: int = 20_000) -> dict:
+    """400 sources of 20 kb: whole commands (serial and 2 workers), start-up, and the overhead beyond the profiles."""
     listing = _sources(n, length, "survey")
     load0 = os.getloadavg()[0]
-    t_par, out_par, _, peak_par = run(["survey", "--from-list", str(listing), "--workers", "2", "--no-cache", "--json", "--quiet"])
-    # overhead: one process, the same sources surveyed serially and profiled alone (compile time paid first)
-    code = (
-        "import sys,time,os; from fractalseq.jobs._files import survey_files; from fractalseq.jobs._survey import SurveyOptions;"
-        "from fractalseq.jobs._profile import DEFAULT_BOOT, profile_source; from fractalseq.resampling._options import Resampling;"
-        "from fractalseq.jobs._inputs import ReaderOptions; d=os.path.dirname(sys.argv[1]);"
-        "p=[os.path.join(d,l.strip()) for l in open(sys.argv[1]) if l.strip()]; o=SurveyOptions(); r=ReaderOptions();"
-        "survey_files(p[:2], o); arrs=[r.read(x) for x in p]; t=time.perf_counter();"
-        "[profile_source(a, depth=o.depth, ratio=o.ratio, resampling=Resampling(n_boot=DEFAULT_BOOT, seed=o.seed)) for a in arrs];"
-        "tp=time.perf_counter()-t; t=time.perf_counter(); res=survey_files(p, o); ts=time.perf_counter()-t;"
-        "print(tp, ts, res.to_json()==sys.stdin.read())"
-    )
-    prof = subprocess.run([sys.executable, "-c", code, str(listing)], input=out_par, capture_output=True, text=True, env=ENV, check=True)
-    t_profiles, t_serial, same = prof.stdout.split()
-    t_profiles, t_serial = float(t_profiles), float(t_serial)
+    _, _, _, _, cpu_start = run(["survey", str(listing.parent / "s00000.fa"), "--no-cache", "--json", "--quiet"])
+    t_ser, out_ser, _, peak_ser, cpu_ser = run(["survey", "--from-list", str(listing), "--no-cache", "--json", "--quiet"])
+    t_par, out_par, _, peak_par, cpu_par = run(["survey", "--from-list", str(listing), "--engine", "processes", "--workers", "2",
+                                                "--no-cache", "--json", "--quiet"])
+    out = DATA / f"survey_out_{n}"
+    shutil.rmtree(out, ignore_errors=True)  # no cache of an earlier run
+    t_out, _, _, peak_out, cpu_out = run(["survey", "--from-list", str(listing), "--engine", "processes", "--workers", "2",
+                                          "--out", str(out), "--force", "--quiet"])
+    prof = subprocess.run(["nice", "-n", "10", sys.executable, "-c", OVERHEAD_CODE, str(listing)], input=out_par,
+                          capture_output=True, text=True, env=ENV, check=True, cwd=ENV["PYTHONPATH"])
+    t_profiles, t_serial, t_json, same = prof.stdout.split()
+    t_profiles, t_serial, t_json = float(t_profiles), float(t_serial), float(t_json)
     return {
-        "sources": n, "length": length, "workers2_s": round(t_par, 2), "serial_in_process_s": round(t_serial, 2),
-        "speedup": round(t_serial / t_par, 3), "identical_json": same == "True",
-        "profiles_only_s": round(t_profiles, 2), "overhead_ms_per_source": round(1000 * (t_serial - t_profiles) / n, 1),
-        "peak_mib_workers2": round(peak_par, 1),
+        "sources": n, "length": length,
+        "startup_cpu_s": round(cpu_start, 2),
+        "serial_s": round(t_ser, 1), "serial_cpu_s": round(cpu_ser, 1), "peak_mib_serial": round(peak_ser, 1),
+        "workers2_s": round(t_par, 1), "workers2_cpu_s": round(cpu_par, 1), "peak_mib_workers2": round(peak_par, 1),
+        "speedup_wall": round(t_ser / t_par, 3),
+        "workers2_cpu_s_per_core": round(cpu_par / 2, 1),
+        "out_s": round(t_out, 1), "out_cpu_s": round(cpu_out, 1), "peak_mib_out": round(peak_out, 1),
+        "identical_json": out_ser == out_par and same == "True",
+        "profiles_only_cpu_s": round(t_profiles, 2), "survey_in_process_cpu_s": round(t_serial, 2), "json_text_cpu_s": round(t_json, 2),
+        "overhead_ms_per_source": round(1000 * (t_serial - t_profiles) / n, 1),
+        "json_bytes": len(out_par.encode()),
         "load_before": round(load0, 2), "load_after": round(os.getloadavg()[0], 2),
     }
 
 
-def section_many(n: int, length: int = 2_000) -> dict:
+def section_many(n: int, length: int = 2_000, quick: bool = True) -> dict:
+    """``--from-list`` of ``n`` small sources with ``--out`` (cache, HTML, matrix file), ``--quick`` by default."""
     listing = _sources(n, length, "many")
     load0 = os.getloadavg()[0]
     out = DATA / f"many_out_{n}"
-    t, doc, _, peak = run(["survey", "--from-list", str(listing), "--workers", "2", "--out", str(out), "--force", "--quiet"])
-    html = (out / "survey.html").stat().st_size if (out / "survey.html").exists() else None
+    shutil.rmtree(out, ignore_errors=True)  # no cache of an earlier run
+    t, _, _, peak, cpu = run(["survey", "--from-list", str(listing), "--engine", "processes", "--workers", "2", "--out", str(out),
+                              "--force", "--quiet", *(["--quick"] if quick else [])])
+    size = {f.name: f.stat().st_size for f in out.iterdir() if f.is_file()}
     return {
-        "sources": n, "length": length, "workers2_s": round(t, 1), "peak_mib": round(peak, 1), "html_bytes": html,
+        "sources": n, "length": length, "quick": quick, "workers2_s": round(t, 1), "cpu_s": round(cpu, 1), "peak_mib": round(peak, 1),
+        "html_bytes": size.get("survey.html"), "json_bytes": size.get("survey.json"), "npz_bytes": size.get("distances.npz"),
         "load_before": round(load0, 2), "load_after": round(os.getloadavg()[0], 2),
     }
 
@@ -170,8 +198,13 @@ def main() -> int:
     ap.add_argument("--only", default="count,survey,many")
     ap.add_argument("--mbase", type=int, default=100)
     ap.add_argument("--depth", type=int, default=12)
-    ap.add_argument("--many", type=int, default=2000)
+    ap.add_argument("--many", type=int, default=10_000)
+    ap.add_argument("--tree", default=None, help="run the commands from another source tree (a before/after comparison); "
+                    "its figures are stored under survey_<label>")
+    ap.add_argument("--label", default="before")
     args = ap.parse_args()
+    if args.tree:
+        ENV["PYTHONPATH"] = str(Path(args.tree).resolve())
     RESULTS.mkdir(exist_ok=True)
     path = RESULTS / "survey_scale.json"
     doc = json.loads(path.read_text()) if path.exists() else {}
@@ -183,10 +216,12 @@ def main() -> int:
         if name == "count":
             doc.setdefault("count", {})[f"depth{args.depth}"] = section_count(args.mbase, args.depth)
         elif name == "survey":
-            doc["survey"] = section_survey()
+            doc[f"survey_{args.label}" if args.tree else "survey"] = section_survey()
+            if args.tree:
+                doc[f"survey_{args.label}"]["tree"] = args.label
         elif name == "many":
             doc["many"] = section_many(args.many)
-        print(name, json.dumps(doc.get(name)), flush=True)
+        print(name, json.dumps(doc.get(f"survey_{args.label}" if args.tree and name == "survey" else name)), flush=True)
     write_text(path, to_json(doc), force=True)
     lines = ["# Scale: split counting and large surveys", "", doc["note"] + ".", ""]
     if "count" in doc:
@@ -196,16 +231,27 @@ def main() -> int:
             lines.append(f"| one FASTA | {c['symbols']:,} | {c['depth']} | {c['serial_s']} | {c['workers2_s']} | {c['speedup']}x | "
                          f"{c['identical_json']} | {c['load_before']}/{c['load_after']} |")
         lines.append("")
-    if "survey" in doc:
-        s = doc["survey"]
-        lines += ["| survey | sources x length | 2 workers s (command) | serial s (in process) | speed-up | profiles only s | overhead ms/source | identical JSON | load before/after |",
-                  "|---|---|---|---|---|---|---|---|---|",
-                  f"| 400 small | {s['sources']} x {s['length']:,} | {s['workers2_s']} | {s['serial_in_process_s']} | {s['speedup']}x | "
-                  f"{s['profiles_only_s']} | {s['overhead_ms_per_source']} | {s['identical_json']} | {s['load_before']}/{s['load_after']} |", ""]
-    if "many" in doc:
+    runs = [(k, doc[k]) for k in sorted(doc) if k.startswith("survey_")] + ([("survey", doc["survey"])] if "serial_cpu_s" in doc.get("survey", {}) else [])
+    if runs:
+        s0 = runs[-1][1]
+        lines += [f"Survey of {s0['sources']} sources of {s0['length']:,} symbols: whole commands under `nice -n 10`; CPU = user + system "
+                  "of the command and its worker processes; 'in process' = profiles alone vs a serial survey in one process (CPU s).", "",
+                  "| code | start-up CPU s | serial wall s | serial CPU s | 2 workers wall s | 2 workers CPU s | CPU s per core (2 workers) | "
+                  "2 workers --out wall s | --out CPU s | identical JSON | overhead ms/source (in process) | load before/after |",
+                  "|---|---|---|---|---|---|---|---|---|---|---|---|"]
+        for key, s in runs:
+            label = s.get("tree", "this tree") if key != "survey" else "this tree"
+            lines.append(f"| {label} | {s['startup_cpu_s']} | {s['serial_s']} | {s['serial_cpu_s']} | {s['workers2_s']} | {s['workers2_cpu_s']} | "
+                         f"{s['workers2_cpu_s_per_core']} | {s['out_s']} | {s['out_cpu_s']} | {s['identical_json']} | "
+                         f"{s['overhead_ms_per_source']} (profiles {s['profiles_only_cpu_s']} s, survey {s['survey_in_process_cpu_s']} s) | "
+                         f"{s['load_before']}/{s['load_after']} |")
+        lines.append("")
+    if "many" in doc and "cpu_s" in doc["many"]:
         m = doc["many"]
-        lines += ["| many | sources x length | 2 workers s | peak MiB | survey.html bytes |", "|---|---|---|---|---|",
-                  f"| --from-list | {m['sources']} x {m['length']:,} | {m['workers2_s']} | {m['peak_mib']} | {m['html_bytes']} |", ""]
+        lines += ["| many | sources x length | mode | 2 workers wall s | CPU s | peak MiB | survey.json bytes | distances.npz bytes | survey.html bytes |",
+                  "|---|---|---|---|---|---|---|---|---|",
+                  f"| --from-list --out | {m['sources']:,} x {m['length']:,} | {'--quick' if m['quick'] else 'full'} | {m['workers2_s']} | {m['cpu_s']} | "
+                  f"{m['peak_mib']} | {m['json_bytes']} | {m['npz_bytes']} | {m['html_bytes']} |", ""]
     write_text(RESULTS / "survey_scale.md", "\n".join(lines), force=True)
     return 0
 

@@ -56,7 +56,7 @@ def test_arrays_with_a_matching_file_checksum_are_still_read_through_the_checked
     """An arrays file replaced by a plain numpy archive (its file checksum refitted in a re-signed JSON) is refused."""
     import hashlib
 
-    from fractalseq.io._outputs import to_json
+    from fractalseq.io._outputs import compact_json
 
     cache = ResultCache(tmp_path / "c")
     key = "ef" * 32
@@ -67,8 +67,8 @@ def test_arrays_with_a_matching_file_checksum_are_still_read_through_the_checked
     entry = json.loads(jpath.read_text())
     entry["arrays_sha256"] = hashlib.sha256(npath.read_bytes()).hexdigest()
     body = {k: v for k, v in entry.items() if k != "entry_sha256"}
-    entry["entry_sha256"] = hashlib.sha256(to_json(body).encode()).hexdigest()
-    jpath.write_text(to_json(entry))
+    entry["entry_sha256"] = hashlib.sha256(compact_json(body).encode()).hexdigest()
+    jpath.write_text(compact_json(entry))
     assert cache.lookup(key) == (None, "its arrays file is damaged")
 
 

@@ -107,6 +107,7 @@ def survey(
     from fractalseq.jobs._files import survey_cache, survey_files
     from fractalseq.jobs._sources import expand_inputs
     from fractalseq.jobs._survey import SurveyOptions, column_specs, write_outputs
+    from fractalseq.report.survey import MATRICES_IN_JSON, MATRIX_FILE
 
     options = SurveyOptions.from_reader(
         reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties, seed),
@@ -158,6 +159,11 @@ def survey(
     written = write_outputs(result, stage.path, force=True) if stage is not None else []
     if stage is not None:
         stage.commit()
+    if out is None and len(result.names) > MATRICES_IN_JSON:
+        common.err_console.print(
+            f"note: the {len(result.names)} x {len(result.names)} distance matrices are too large for the JSON, which refers to "
+            f"{MATRIX_FILE}; only --out writes that file.", markup=False, highlight=False,
+        )
     if json_out:
         typer.echo(result.to_json(), nl=False)
         return
@@ -192,11 +198,24 @@ def survey(
             common.out_console.print(f"Top split of the clustering: {side(a)} vs {side(b)}")
     for note in result.notes:
         common.say(f"note: {_safe(note)}")
-    for s in result.sources:
-        common.read_notes(_read_summary(s.get("read")), s["name"])
+    _survey_read_notes(result.sources)
     if written:
         common.say(f"Wrote {len(written)} files to {_safe(out)}.")
     common.caution_line(result.caution)
+
+
+def _survey_read_notes(sources) -> None:
+    """The readers' notes of a survey; a note shared by several sources is printed once with their count."""
+    who: dict[str, list[str]] = {}
+    for s in sources:
+        for note in _read_summary(s.get("read")):
+            who.setdefault(str(note), []).append(s["name"])
+    for note, names in who.items():
+        if len(names) == 1:
+            common.read_notes([note], names[0])
+            continue
+        shown = ", ".join(common.safe(n) for n in names[:3]) + (f" and {len(names) - 3} more" if len(names) > 3 else "")
+        common.say(f"read note: {len(names)} sources ({shown}): {common.safe(note)}")
 
 
 def _read_summary(read: dict | None) -> list[str]:

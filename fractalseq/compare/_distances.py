@@ -126,6 +126,41 @@ def _row_blocks(n: int, width: int) -> Iterator[tuple[int, int]]:
         lo += b
 
 
+def mirror_upper(out: np.ndarray) -> None:
+    """Copy the strict upper triangle of a square matrix onto its lower triangle, in place.
+
+    Done a block of rows at a time (at most :data:`BLOCK_ELEMENTS` cells copied per step), so no
+    second ``n x n`` array is made; the copy is exact, so the result is symmetric bit for bit.
+    """
+    n = out.shape[0]
+    step = max(1, BLOCK_ELEMENTS // max(1, n))
+    for lo in range(0, n, step):
+        hi = min(n, lo + step)
+        out[lo:hi, :lo] = out[:lo, lo:hi].T
+        block = out[lo:hi, lo:hi]
+        low = np.tril_indices(hi - lo, -1)
+        block[low] = block.T[low]
+
+
+def condensed_upper(matrix: np.ndarray, transform=None) -> np.ndarray:
+    """The strict upper triangle of a square matrix row by row (scipy's condensed form), optionally transformed.
+
+    Equal to ``scipy.spatial.distance.squareform(matrix)`` for a symmetric matrix with a zero diagonal,
+    built one row at a time so that no ``n x n`` temporary is made; ``transform`` (e.g. ``np.sqrt``)
+    is applied in place to the condensed vector.
+    """
+    n = matrix.shape[0]
+    out = np.empty(n * (n - 1) // 2, dtype=float)
+    at = 0
+    for i in range(n - 1):
+        row = matrix[i, i + 1 :]
+        out[at : at + row.size] = row
+        at += row.size
+    if transform is not None:
+        transform(out, out=out)
+    return out
+
+
 def _plogp_sum(x: np.ndarray) -> np.ndarray:
     """``sum(-x log2 x)`` over the last axis, with ``0 log 0 = 0``."""
     logs = np.zeros_like(x)
@@ -157,7 +192,8 @@ def js_matrix(counts: np.ndarray) -> np.ndarray:
         for r in range(hi - lo):
             i = lo + r
             out[i, i + 1 :] = d[r, r + 1 :]
-    return out + out.T
+    mirror_upper(out)
+    return out
 
 
 def spectrum_distance(qa: Sequence[float], da: Sequence[float], qb: Sequence[float], db: Sequence[float]) -> float:
@@ -202,8 +238,7 @@ def spectrum_matrix(spectra: Sequence[tuple[Sequence[float], Sequence[float]]]) 
         for r in range(hi - lo):
             i = lo + r
             out[i, i + 1 :] = d[r, r + 1 :]
-    low = np.tril_indices(s, -1)
-    out[low] = out.T[low]
+    mirror_upper(out)
     return out
 
 
@@ -221,12 +256,17 @@ class Clustering:
         scipy linkage matrix ``(S-1, 4)``: merged clusters, height, size.
     order:
         Leaf order of the dendrogram (source indices).
+    leaf_order:
+        How ``order`` was chosen: ``"optimal"`` (scipy's optimal leaf ordering, neighbours in the
+        order as similar as the tree allows) or ``"linkage"`` (the tree's own order, for more than
+        :data:`OPTIMAL_ORDER_MAX` sources).
     """
 
     method: str
     metric: str
     linkage: np.ndarray
     order: list[int]
+    leaf_order: str = "optimal"
 
     def top_split(self) -> tuple[list[int], list[int]]:
         """The two groups of source indices joined last (the root's children)."""
@@ -268,13 +308,31 @@ class Clustering:
             "metric": self.metric,
             "linkage": [[int(r[0]), int(r[1]), float(r[2]), int(r[3])] for r in self.linkage],
             "order": list(self.order),
+            "leaf_order": self.leaf_order,
         }
 
 
-def cluster(distance: np.ndarray, method: str = "average", metric: str = "distance") -> Clustering:
-    """Agglomerative clustering of a symmetric distance matrix (scipy linkage).
+#: Most sources whose dendrogram leaves get scipy's optimal leaf ordering; its time grows steeply with
+#: the number of sources (measured here: 0.2 s at 500, 1.2 s at 1,000, 15 s at 2,000 sources), so larger
+#: surveys keep the linkage's own leaf order (``Clustering.leaf_order`` says which).
+OPTIMAL_ORDER_MAX = 1000
 
-    Needs at least two sources; a single source gives an empty linkage.
+
+def cluster(distance: np.ndarray, method: str = "average", metric: str = "distance") -> Clustering:
+    """Agglomerative clustering of distances (scipy linkage).
+
+    Parameters
+    ----------
+    distance:
+        A symmetric ``n x n`` distance matrix, or its condensed upper triangle (scipy's form,
+        :func:`condensed_upper`), which large surveys pass to avoid ``n x n`` temporaries.
+    method:
+        Linkage rule (:data:`LINKAGES`).
+    metric:
+        What the distances are (text kept in the result).
+
+    Needs at least two sources; a single source gives an empty linkage.  Up to
+    :data:`OPTIMAL_ORDER_MAX` sources the leaves are put in optimal order.
     """
     from scipy.cluster.hierarchy import leaves_list, linkage, optimal_leaf_ordering
     from scipy.spatial.distance import squareform
@@ -282,13 +340,18 @@ def cluster(distance: np.ndarray, method: str = "average", metric: str = "distan
     if method not in LINKAGES:
         raise ParameterError(f"Linkage {method!r} is not one of {', '.join(LINKAGES)}.")
     d = np.asarray(distance, dtype=float)
-    s = d.shape[0]
+    if d.ndim == 1:
+        condensed = d
+        s = int(round((1 + math.sqrt(1 + 8 * d.size)) / 2)) if d.size else 1
+    else:
+        s = d.shape[0]
+        condensed = squareform(0.5 * (d + d.T), checks=False) if s >= 2 else d
     if s < 2:
         return Clustering(method, metric, np.zeros((0, 4)), list(range(s)))
-    if not np.all(np.isfinite(d)):
+    if not np.all(np.isfinite(condensed)):
         raise InputError("A distance is undefined (a source too short for the depth); use a smaller depth.")
-    condensed = squareform(0.5 * (d + d.T), checks=False)
     z = linkage(condensed, method=method)
-    if s > 2:
+    optimal = s <= OPTIMAL_ORDER_MAX
+    if s > 2 and optimal:
         z = optimal_leaf_ordering(z, condensed)
-    return Clustering(method, metric, z, [int(i) for i in leaves_list(z)])
+    return Clustering(method, metric, z, [int(i) for i in leaves_list(z)], "optimal" if optimal else "linkage")

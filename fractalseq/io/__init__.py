@@ -6,7 +6,8 @@ nothing is overwritten without ``force``.
 """
 
 from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
-from fractalseq.io._npz import DEFAULT_MAX_BYTES, read_container, write_container
+from fractalseq.io._matrices import MATRIX_FORMAT, matrix_reference, read_matrix, write_matrices
+from fractalseq.io._npz import DEFAULT_MAX_BYTES, array_sha256, read_container, write_container
 from fractalseq.io._outputs import (
     check_writable,
     prepare_folder,
@@ -22,5 +23,5 @@ from fractalseq.io._outputs import (
 __all__ = [
     "DEFAULT_MAX_BYTES", "ResultCache", "array_hash", "cache_key", "check_writable", "file_hash", "prepare_folder", "to_json",
     "tracking_folders", "write_bytes", "write_csv", "write_json", "write_npz", "write_text",
-    "read_container", "write_container",
+    "read_container", "write_container", "array_sha256", "MATRIX_FORMAT", "matrix_reference", "read_matrix", "write_matrices",
 ]

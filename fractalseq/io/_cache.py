@@ -17,7 +17,7 @@ An entry is two files written atomically (:mod:`fractalseq.io._outputs`): an
 checksummed, read with :func:`~fractalseq.io._npz.read_container`, never
 pickle) and a ``.json`` holding the results, the SHA-256 of the arrays file
 and the SHA-256 of its own content (``entry_sha256``, over the deterministic
-JSON of the other keys).  The ``.json`` is written last, so its presence marks
+one-line JSON of the other keys, :func:`~fractalseq.io._outputs.compact_json`).  The ``.json`` is written last, so its presence marks
 a complete entry.  An entry whose JSON or arrays fail a check (hand-edited,
 damaged) is reported by :meth:`ResultCache.lookup` as damaged, and the job
 recomputes it with a note.
@@ -39,10 +39,11 @@ import numpy as np
 
 from fractalseq.errors import InputError, ModelFileError, OutputError
 from fractalseq.io._npz import read_container, write_container
-from fractalseq.io._outputs import to_json, write_text
+from fractalseq.io._outputs import compact_json, json_ready, write_text
 
-#: Bump when the meaning of cached results changes (2: checksummed JSON, arrays in the checked container).
-CACHE_VERSION = 2
+#: Bump when the meaning of cached results changes (2: checksummed JSON, arrays in the checked container;
+#: 3: the entry's JSON on one line, its checksum over that line).
+CACHE_VERSION = 3
 #: The ``format`` of a cache entry's arrays container.
 ARRAYS_FORMAT = "fractalseq-cache-arrays"
 _BLOCK = 1 << 20
@@ -129,7 +130,7 @@ class ResultCache:
         if not isinstance(entry, dict) or not isinstance(entry.get("results"), dict):
             return None, "its JSON is not a cache entry"
         body = {k: v for k, v in entry.items() if k != "entry_sha256"}
-        if entry.get("entry_sha256") != hashlib.sha256(to_json(body).encode("utf-8")).hexdigest():
+        if entry.get("entry_sha256") != hashlib.sha256(compact_json(body).encode("utf-8")).hexdigest():
             return None, "its JSON fails its checksum"
         if entry.get("key") != key:
             return None, "its JSON belongs to another entry"
@@ -154,11 +155,13 @@ class ResultCache:
         if self.folder is None:
             return
         jpath, npath = self._paths(key)
+        # no fsync: an entry damaged by a crash fails its checksums and is recomputed (one fsync per file
+        # was 11 ms of waiting per file here, the parent's largest cost in a survey of thousands of sources)
         write_container(npath, {"format": ARRAYS_FORMAT, "version": CACHE_VERSION},
-                        {k: np.asarray(v) for k, v in (arrays or {}).items()}, force=True)
-        entry = {"key": key, "arrays_sha256": file_hash(npath), "results": results}
-        entry["entry_sha256"] = hashlib.sha256(to_json(entry).encode("utf-8")).hexdigest()
-        write_text(jpath, to_json(entry), force=True)
+                        {k: np.asarray(v) for k, v in (arrays or {}).items()}, force=True, sync=False)
+        entry = json_ready({"key": key, "arrays_sha256": file_hash(npath), "results": results})  # cleaned once, encoded twice
+        entry["entry_sha256"] = hashlib.sha256(compact_json(entry, ready=True).encode("utf-8")).hexdigest()
+        write_text(jpath, compact_json(entry, ready=True) + "\n", force=True, sync=False)
 
     def __contains__(self, key: str) -> bool:
         return self.get(key) is not None

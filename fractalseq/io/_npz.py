@@ -60,7 +60,6 @@ from __future__ import annotations
 
 import ast
 import hashlib
-import io
 import json
 import re
 import zipfile
@@ -73,7 +72,7 @@ import numpy as np
 from fractalseq.errors import InputError, ModelFileError
 from fractalseq.io._outputs import write_bytes
 
-__all__ = ["DEFAULT_MAX_BYTES", "read_container", "write_container"]
+__all__ = ["DEFAULT_MAX_BYTES", "array_sha256", "read_container", "write_container"]
 
 HEADER_NAME = "header"
 #: largest JSON header accepted (the alphabet and reader sections live there)
@@ -88,14 +87,17 @@ _NUMERIC_KINDS = "biufc"
 _FIXED_TIME = (1980, 1, 1, 0, 0, 0)  # fixed member times: same content, same bytes
 
 
-def _digest(a: np.ndarray) -> str:
-    """SHA-256 of the raw C-order bytes (same value as over ``tobytes()``, without the copy)."""
+def array_sha256(a: np.ndarray) -> str:
+    """SHA-256 (hex) of an array's raw C-order bytes (same value as over ``tobytes()``, without the copy)."""
     return hashlib.sha256(np.array(a, order="C", copy=None).reshape(-1).view(np.uint8)).hexdigest()
+
+
+_digest = array_sha256
 
 
 # ------------------------------------------------------------------ writing
 def write_container(path: str | Path, header: dict[str, Any], arrays: dict[str, np.ndarray],
-                    force: bool = False) -> Path:
+                    force: bool = False, sync: bool = True) -> Path:
     """Write ``arrays`` and a JSON ``header`` as a checksummed ``.npz`` file, atomically.
 
     Parameters
@@ -109,6 +111,8 @@ def write_container(path: str | Path, header: dict[str, Any], arrays: dict[str, 
         Plain numeric arrays (names of letters, digits and ``_``; no object dtype).
     force:
         Replace an existing file.
+    sync:
+        ``fsync`` before the rename (:func:`fractalseq.io._outputs.write_bytes`).
 
     Returns
     -------
@@ -130,15 +134,17 @@ def write_container(path: str | Path, header: dict[str, Any], arrays: dict[str, 
     head["sha256"] = {k: _digest(v) for k, v in plain.items()}
     head["arrays"] = {k: {"dtype": v.dtype.str, "shape": list(v.shape)} for k, v in plain.items()}
     text = json.dumps(head, sort_keys=True).encode("utf-8")
-    buf = io.BytesIO()
-    with zipfile.ZipFile(buf, "w", compression=zipfile.ZIP_DEFLATED, allowZip64=True) as zf:
-        for name, a in [(HEADER_NAME, np.frombuffer(text, dtype=np.uint8))] + sorted(plain.items()):
-            info = zipfile.ZipInfo(f"{name}.npy", date_time=_FIXED_TIME)
-            info.compress_type = zipfile.ZIP_DEFLATED
-            info.external_attr = 0o644 << 16
-            with zf.open(info, "w", force_zip64=True) as fh:
-                np.lib.format.write_array(fh, a, allow_pickle=False)
-    return write_bytes(path, buf.getvalue(), force=force)
+
+    def emit(out: Any) -> None:  # streamed into the temporary file: a large array is never held twice
+        with zipfile.ZipFile(out, "w", compression=zipfile.ZIP_DEFLATED, allowZip64=True) as zf:
+            for name, a in [(HEADER_NAME, np.frombuffer(text, dtype=np.uint8))] + sorted(plain.items()):
+                info = zipfile.ZipInfo(f"{name}.npy", date_time=_FIXED_TIME)
+                info.compress_type = zipfile.ZIP_DEFLATED
+                info.external_attr = 0o644 << 16
+                with zf.open(info, "w", force_zip64=True) as fh:
+                    np.lib.format.write_array(fh, a, allow_pickle=False)
+
+    return write_bytes(path, emit, force=force, sync=sync)
 
 
 # ------------------------------------------------------------------ reading

@@ -19,7 +19,7 @@ import threading
 import time
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, Iterable
+from typing import Any, BinaryIO, Callable, Iterable
 
 import numpy as np
 
@@ -50,6 +50,21 @@ def _clean(value: Any) -> Any:
 def to_json(data: Any) -> str:
     """Deterministic JSON text: sorted keys, NaN as null, fixed float repr, trailing newline."""
     return json.dumps(_clean(data), indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def json_ready(data: Any) -> Any:
+    """``data`` as plain JSON values (numpy to Python, tuples to lists, NaN and infinities to None)."""
+    return _clean(data)
+
+
+def compact_json(data: Any, ready: bool = False) -> str:
+    """Deterministic JSON on one line (sorted keys, NaN as null, no spaces): the same values as :func:`to_json`.
+
+    For machine-read files (cache entries) and JSON round trips: Python's C encoder writes it, several
+    times faster than the indented form, which the standard library writes in Python.  ``ready=True``:
+    ``data`` already went through :func:`json_ready`.
+    """
+    return json.dumps(data if ready else _clean(data), sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
 
 
 #: Real paths of this run's inputs (:func:`protect_inputs`): no output may replace one, even with ``force``.
@@ -85,8 +100,12 @@ def _refusal(message: str, parameter: str) -> OutputError:
     return error
 
 
-def check_writable(path: Path, force: bool) -> None:
-    """Raise :class:`OutputError` if ``path`` exists and ``force`` is false, or its folder is unusable."""
+def check_writable(path: Path, force: bool, probe: bool = True) -> None:
+    """Raise :class:`OutputError` if ``path`` exists and ``force`` is false, or its folder is unusable.
+
+    ``probe=False`` leaves out the trial file of :func:`probe_writable` (for a caller that creates
+    its own file in the same, existing folder next and turns a refusal into the same kind of sentence).
+    """
     path = Path(path)
     if path.exists() and path.is_dir():
         raise OutputError(f"{path} is a folder, not a file; give a file name.")
@@ -103,7 +122,8 @@ def check_writable(path: Path, force: bool) -> None:
     parent = path.parent if str(path.parent) else Path(".")
     if parent.exists() and not parent.is_dir():
         raise OutputError(f"{parent} is a file, not a folder; choose another output folder.")
-    probe_writable(path)
+    if probe:
+        probe_writable(path)
 
 
 def _nearest_existing(folder: Path) -> Path:
@@ -198,6 +218,7 @@ def _process_start() -> float:
 PROCESS_START = _process_start()
 #: The random part :func:`tempfile.mkstemp` puts in a name (8 of these characters).
 _MKSTEMP_PART = r"[a-z0-9_]{8}"
+_MKSTEMP_RE = re.compile(_MKSTEMP_PART)
 
 
 def remove_stale_parts(path: Path | str, before: float | None = None) -> int:
@@ -211,14 +232,15 @@ def remove_stale_parts(path: Path | str, before: float | None = None) -> int:
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
     limit = PROCESS_START if before is None else before
-    pattern = re.compile(re.escape(f".{path.name}.") + _MKSTEMP_PART + r"\.part")
+    prefix = f".{path.name}."  # names .NAME.XXXXXXXX.part (compared as strings: no regex compiled per path)
     removed = 0
     try:
         entries = list(os.scandir(folder))
     except OSError:
         return 0
     for entry in entries:
-        if not pattern.fullmatch(entry.name):
+        name = entry.name
+        if not (name.startswith(prefix) and name.endswith(".part") and _MKSTEMP_RE.fullmatch(name[len(prefix) : -len(".part")])):
             continue
         try:
             if not entry.is_file(follow_symlinks=False) or entry.stat(follow_symlinks=False).st_mtime >= limit:
@@ -230,14 +252,18 @@ def remove_stale_parts(path: Path | str, before: float | None = None) -> int:
     return removed
 
 
-def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
+def write_bytes(path: Path | str, data: bytes | Callable[[BinaryIO], None], force: bool = False, sync: bool = True) -> Path:
     """Atomically write ``data`` to ``path`` (temporary file in the same folder, then rename).
 
-    Temporary files of an earlier, killed write of the same path are removed
-    first (:func:`remove_stale_parts`).
+    ``data`` is the bytes, or a function that writes them into the open (seekable) temporary file,
+    so a large file is streamed instead of being held in memory first.  ``sync=False`` skips the
+    ``fsync`` before the rename (still atomic, not durable across a power cut): for files that carry
+    their own checksum and are recomputed when damaged (cache entries).  Temporary files of an
+    earlier, killed write of the same path are removed first (:func:`remove_stale_parts`).
     """
     path = Path(path)
-    check_writable(path, force)
+    # an existing folder: the temporary file below is the probe (its refusal is one sentence too)
+    check_writable(path, force, probe=not path.parent.is_dir())
     path.parent.mkdir(parents=True, exist_ok=True)
     remove_stale_parts(path)
     with _signals_deferred():
@@ -248,9 +274,13 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
         try:
             os.fchmod(fd, 0o666 & ~_UMASK)  # mkstemp makes 0600; give the usual permissions
             with os.fdopen(fd, "wb") as fh:
-                fh.write(data)
+                if callable(data):
+                    data(fh)
+                else:
+                    fh.write(data)
                 fh.flush()
-                os.fsync(fh.fileno())
+                if sync:
+                    os.fsync(fh.fileno())
             os.replace(tmp, path)
         except BaseException as exc:
             try:
@@ -270,9 +300,9 @@ def write_bytes(path: Path | str, data: bytes, force: bool = False) -> Path:
     return path
 
 
-def write_text(path: Path | str, text: str, force: bool = False) -> Path:
-    """Atomically write UTF-8 text."""
-    return write_bytes(path, text.encode("utf-8"), force=force)
+def write_text(path: Path | str, text: str, force: bool = False, sync: bool = True) -> Path:
+    """Atomically write UTF-8 text (``sync`` as in :func:`write_bytes`)."""
+    return write_bytes(path, text.encode("utf-8"), force=force, sync=sync)
 
 
 def write_json(path: Path | str, data: Any, force: bool = False) -> Path:

@@ -34,6 +34,7 @@ from fractalseq.compare._distances import (
     LINKAGES,
     Clustering,
     cluster,
+    condensed_upper,
     joint_alphabet,
     js_matrix,
     remap_words,
@@ -42,10 +43,11 @@ from fractalseq.compare._distances import (
 )
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache, array_hash, cache_key, file_hash
-from fractalseq.io._outputs import to_json
+from fractalseq.io._matrices import matrix_reference
+from fractalseq.io._outputs import compact_json, to_json
 from fractalseq.jobs._inputs import ReaderOptions, check_seed
 from fractalseq.jobs._sources import SourceSpec, expand_inputs, is_stream_path
-from fractalseq.report.survey import SurveyView
+from fractalseq.report.survey import MATRICES_IN_JSON, MATRIX_FILE, SurveyView
 from fractalseq.results import Result, caution_for
 from fractalseq.runner import Engine, SerialEngine, pause_point
 from fractalseq.stream import ReadReport, SymbolArray
@@ -192,7 +194,7 @@ def profile_row(arr: SymbolArray, options: SurveyOptions) -> dict:
     resampling = Resampling(n_boot=DEFAULT_BOOT, seed=options.seed)
     result = profile_source(arr, depth=options.depth, ratio=options.ratio, resampling=resampling, quick=options.quick)
     data = result.to_dict() if hasattr(result, "to_dict") else dict(result)
-    return json.loads(to_json(data))
+    return json.loads(compact_json(data))  # the values of the indented JSON, written by the faster C encoder
 
 
 #: Survey tasks started in this process (the pause point ``survey.task:N`` counts them).
@@ -224,7 +226,7 @@ def survey_task(task: SurveyTask) -> dict:
     header, arrays = wc.to_arrays()
     read = arr.report.to_dict() if arr.report is not None else {}
     read = {k: read[k] for k in ("symbols", "segments", "dropped", "dropped_total", "notes") if k in read}
-    return {"profile": profile, "read": json.loads(to_json(read)), "counts_header": header, "counts_arrays": arrays}
+    return {"profile": profile, "read": json.loads(compact_json(read)), "counts_header": header, "counts_arrays": arrays}
 
 
 # ================================================================= results
@@ -322,6 +324,15 @@ class SurveyDistances(Result):
     alphabet: str
     spectrum: SpectrumDistances
     clustering: Clustering
+
+    def to_dict(self) -> dict:
+        """JSON form; above :data:`MATRICES_IN_JSON` sources each matrix is a ``matrix_file`` reference
+        (:func:`fractalseq.io._matrices.matrix_reference`) to ``distances.npz`` instead of nested lists."""
+        if len(self.names) <= MATRICES_IN_JSON:
+            return super().to_dict()
+        spectrum = {"matrix_file": matrix_reference(MATRIX_FILE, "spectrum", self.spectrum.matrix), "measure": self.spectrum.measure}
+        return {"names": list(self.names), "matrix_file": matrix_reference(MATRIX_FILE, "js", self.matrix), "measure": self.measure,
+                "depth": self.depth, "alphabet": self.alphabet, "spectrum": spectrum, "clustering": self.clustering.to_dict()}
 
 
 @dataclass(frozen=True, eq=False)
@@ -626,7 +637,7 @@ def merge_survey(specs: Sequence[SourceSpec], outputs: Sequence[dict], hashes: S
         sources.append(entry)
     spec_d = spectrum_matrix(spectra)
     if len(specs) >= 2:
-        clustering = cluster(np.sqrt(js), options.linkage, JS_METRIC)
+        clustering = cluster(condensed_upper(js, np.sqrt), options.linkage, JS_METRIC)  # no n x n temporaries
     else:
         clustering = cluster(np.zeros((1, 1)), options.linkage, JS_METRIC)
         notes.append("one source: no distances or clustering")

@@ -18,13 +18,13 @@ from fractalseq.io._outputs import write_bytes, write_csv, write_text
 from fractalseq.report import figures
 from fractalseq.report.html import HtmlReport
 
-__all__ = ["MATRIX_IN_PAGE", "NAMED_LEAVES", "TABLE_ROWS", "SurveyView", "block_means", "dendrogram_png", "heatmap_png", "html_report", "spectra_png", "write_report"]
+__all__ = ["MATRICES_IN_JSON", "MATRIX_CSV_MAX", "MATRIX_FILE", "MATRIX_IN_PAGE", "NAMED_LEAVES", "TABLE_ROWS", "SurveyView", "block_means", "dendrogram_png", "heatmap_png", "html_report", "spectra_png", "write_report"]
 
 #: Sources drawn in colour with a legend in the overlaid spectra (more: thin lines, no legend).
 LABELLED_SOURCES = 12
 #: Sources named on the dendrogram and heat map axes (more: unlabelled, fixed-size figures).
 NAMED_LEAVES = 60
-#: Sources whose distance matrices are shown as tables in survey.html (more: distances.csv only).
+#: Sources whose distance matrices are shown as tables in survey.html (more: the matrix files only).
 MATRIX_IN_PAGE = 40
 #: Rows of the per-source table in survey.html (more: the first ones, the rest in survey.csv).
 TABLE_ROWS = 500
@@ -32,6 +32,12 @@ TABLE_ROWS = 500
 HEATMAP_CELLS = 400
 #: Leaves of the dendrogram (more sources: the last merges only, small clusters drawn as one leaf).
 DENDROGRAM_LEAVES = 400
+#: Sources whose distance matrices survey.json holds as nested lists (more: in MATRIX_FILE, referenced by checksum).
+MATRICES_IN_JSON = 200
+#: Sources whose Jensen–Shannon matrix is also written as distances.csv (more: MATRIX_FILE only).
+MATRIX_CSV_MAX = 1000
+#: The file holding both matrices of a survey of more than MATRICES_IN_JSON sources.
+MATRIX_FILE = "distances.npz"
 
 
 @dataclass(frozen=True, eq=False)
@@ -73,10 +79,13 @@ class SurveyView:
 
 def spectra_png(view: SurveyView) -> bytes:
     """D_q against q for every source, overlaid (intervals as bands)."""
+    from matplotlib.collections import LineCollection
+
     crowded = len(view.sources) > LABELLED_SOURCES
     with figures.style():
         fig, ax = figures.figure(7.6, 4.6)
         drawn = False
+        lines = []
         for i, s in enumerate(view.sources):
             dims = [d for d in s["spectrum"] if d.get("estimate") is not None]
             if not dims:
@@ -84,8 +93,8 @@ def spectra_png(view: SurveyView) -> bytes:
             drawn = True
             q = np.array([float(d["q"]) for d in dims])
             est = np.array([float(d["estimate"]) for d in dims])
-            if crowded:  # many sources: thin lines of one colour, no bands or legend
-                ax.plot(q, est, color="#0b6e69", lw=0.8, alpha=max(0.08, min(0.6, 12.0 / len(view.sources))))
+            if crowded:  # many sources: thin lines of one colour, no bands or legend, drawn as one collection
+                lines.append(np.column_stack([q, est]))
                 continue
             color = figures.PALETTE[i % len(figures.PALETTE)]
             ax.plot(q, est, marker="o", color=color, label=figures.short(s["name"], 28))
@@ -93,6 +102,9 @@ def spectra_png(view: SurveyView) -> bytes:
             hi = np.array([np.nan if d.get("high") is None else float(d["high"]) for d in dims])
             if np.isfinite(lo).any():
                 ax.fill_between(q, lo, hi, color=color, alpha=0.15, lw=0)
+        if lines:  # one artist for thousands of sources (one line each took ~8 ms to draw)
+            ax.add_collection(LineCollection(lines, colors="#0b6e69", linewidths=0.8, alpha=max(0.08, min(0.6, 12.0 / len(view.sources)))))
+            ax.autoscale_view()
         ax.set_xlabel("order q")
         ax.set_ylabel("D_q")
         ax.set_title("Rényi dimension spectra" + (f" of {len(view.sources)} sources" if crowded else ""))
@@ -153,7 +165,7 @@ def html_report(view: SurveyView, drawn: Mapping[str, bytes] | None = None) -> H
     """The survey page (sortable tables, figures).
 
     ``drawn`` (``spectra``, ``heatmap``, ``dendrogram`` PNG bytes) are drawn here when not given.
-    Distance matrices of more than :data:`MATRIX_IN_PAGE` sources are left to ``distances.csv``.
+    Distance matrices of more than :data:`MATRIX_IN_PAGE` sources are left to the matrix files (:func:`matrix_files`).
     """
     figs = dict(drawn or {})
     n = len(view.sources)
@@ -180,7 +192,7 @@ def html_report(view: SurveyView, drawn: Mapping[str, bytes] | None = None) -> H
         page.table(["source"] + names, [[nm] + list(r) for nm, r in zip(names, view.js.tolist())], caption="Jensen–Shannon divergence (bits)")
         page.table(["source"] + names, [[nm] + list(r) for nm, r in zip(names, view.spectrum.tolist())], caption="RMS distance between D_q spectra")
     else:
-        page.paragraph(f"The {n} × {n} distance matrices are in distances.csv and survey.json (too large for this page).")
+        page.paragraph(f"The {n} × {n} distance matrices are in {matrix_files(n)} (too large for this page).")
     if len(names) >= 2:
         page.figure(figs.get("heatmap") or heatmap_png(view), "Jensen–Shannon divergences, rows and columns in dendrogram order.", "Distance heat map")
         page.figure(figs.get("dendrogram") or dendrogram_png(view), "Hierarchical clustering of the sources"
@@ -192,14 +204,30 @@ def html_report(view: SurveyView, drawn: Mapping[str, bytes] | None = None) -> H
     return page
 
 
+def matrix_files(n: int) -> str:
+    """Where the distance matrices of a survey of ``n`` sources are written (words for the page)."""
+    where = [f"{MATRIX_FILE} (both matrices, referenced from survey.json)" if n > MATRICES_IN_JSON else "survey.json"]
+    if n <= MATRIX_CSV_MAX:
+        where.insert(0, "distances.csv (Jensen–Shannon)")
+    return " and ".join(where)
+
+
 def write_report(view: SurveyView, folder: Path, force: bool = False) -> list[Path]:
-    """Write survey.csv, distances.csv, the PNG figures and survey.html into ``folder`` (atomically)."""
+    """Write survey.csv, the distance matrices, the PNG figures and survey.html into ``folder`` (atomically).
+
+    The matrices: distances.csv (Jensen–Shannon) up to :data:`MATRIX_CSV_MAX` sources, and both
+    matrices in :data:`MATRIX_FILE` (checksummed ``.npz``) above :data:`MATRICES_IN_JSON`.
+    """
+    from fractalseq.io._matrices import write_matrices
+
     folder = Path(folder)
     names = list(view.names)
-    written = [
-        write_csv(folder / "survey.csv", list(view.header), [list(r) for r in view.rows], force=force),
-        write_csv(folder / "distances.csv", ["source"] + names, [[nm] + list(r) for nm, r in zip(names, view.js.tolist())], force=force),
-    ]
+    written = [write_csv(folder / "survey.csv", list(view.header), [list(r) for r in view.rows], force=force)]
+    if len(names) <= MATRIX_CSV_MAX:
+        written.append(write_csv(folder / "distances.csv", ["source"] + names,
+                                 [[nm] + list(r) for nm, r in zip(names, view.js.tolist())], force=force))
+    if len(names) > MATRICES_IN_JSON:
+        written.append(write_matrices(folder / MATRIX_FILE, names, {"js": view.js, "spectrum": view.spectrum}, force=force))
     drawn = {"spectra": spectra_png(view)}  # drawn once, written as PNG files and embedded in the page
     if len(names) >= 2:
         drawn["heatmap"], drawn["dendrogram"] = heatmap_png(view), dendrogram_png(view)
