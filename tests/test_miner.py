@@ -392,6 +392,16 @@ def test_header_and_tokenizer_on_a_one_megabyte_line():
         ("[05/Jan/2024:10:11:12 +0000] GET x", "", "", "", "GET x"),
         ("Sat Jun  1 02:17:42 2013 error: done", "", "", "ERROR", "done"),
         ("no header here", "", "", "", "no header here"),
+        # ISO stamp then one space (dpkg.log's form, common practice): the first word decides whether the header
+        # goes on (a zone, a level, ``host prog:``, ``prog:``, ``[prog]``) or the message starts there
+        ("2025-06-24 14:36:25 status installed libc-bin:amd64 2.36-9", "", "", "", "status installed libc-bin:amd64 2.36-9"),
+        ("2024-01-05 10:11:12 UTC disk full", "", "", "", "disk full"),
+        ("2024-01-05 10:11:12 +0100 disk full", "", "", "", "disk full"),
+        ("2024-01-05 10:11:12 ERROR disk full", "", "", "ERROR", "disk full"),
+        ("2024-01-05 10:11:12 Error: x", "", "", "ERROR", "x"),
+        ("2024-01-05 10:11:12 belka sshd[7]: Failed", "belka", "sshd", "", "Failed"),
+        ("2024-01-05 10:11:12 cron: started", "", "cron", "", "started"),
+        ("2024-01-05 10:11:12 [main] started", "", "main", "", "started"),
         # lines of fail2ban's sshd sample: a bracketed program after the time, Solaris' message tag,
         # RFC 5424 structured data with a quoted "]"
         ("Jun 25 23:53:34 [sshd] User root from 1.2.3.4", "", "sshd", "", "User root from 1.2.3.4"),

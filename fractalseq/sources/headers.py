@@ -61,6 +61,9 @@ _PROG = re.compile(r"([\w./@-]{1,64})(?:\[\d{1,10}\])?:(?: +|$)")
 _WORD = re.compile(r"\[?([A-Za-z]{3,11})\]?:?(?: +|$)")
 _BRACKET_PROG = re.compile(r"\[([\w./@-]{1,64})\]:?(?: +|$)")
 _SOLARIS_ID = re.compile(r"\[ID \d{1,10} [\w-]{1,32}\.[\w-]{1,32}\](?: +|$)")
+# the most common stamp, ``YYYY-MM-DD HH:MM:SS`` then one space and no zone: where it matches, ``_TIME_DIGIT`` ends
+# at the same place (its optional fraction and zone cannot start there, and one space is all ``_END`` takes)
+_ISO_PLAIN = re.compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}:\d{2} (?![Z+\-UG ])")
 
 
 class Header(NamedTuple):
@@ -117,6 +120,17 @@ def _level(line: str, pos: int) -> tuple[str, int]:
     while end < n and line[end] == " ":
         end += 1
     return up, end
+
+
+#: :func:`_inert` per token seen (the first word after a stamp repeats from line to line); bounded.
+_INERT: dict[str, bool] = {}
+
+
+def _inert(tok: str) -> bool:
+    """True when a first word after a stamp (no space in it) is no level word, ends without ``:``, starts without ``[``."""
+    if tok[-1] == ":" or tok[0] == "[":
+        return False
+    return not (3 <= len(tok) <= 14 and _level_word(tok))
 
 
 def _clf_candidate(line: str) -> bool:
@@ -179,6 +193,26 @@ def split_header(line: str) -> tuple[Header, str]:
     if not line:
         return _EMPTY, line
     c = line[0]
+    if c.isdigit():
+        # fast path of a plain ISO stamp followed by a first word that names no level, no program (no ':' at its end)
+        # and no bracketed field, and by a second word without ':' at its end: the general steps below give no
+        # header field and the message after the stamp (any other line takes the general steps)
+        m = _ISO_PLAIN.match(line)
+        if m is not None:
+            pos = m.end()
+            e1 = line.find(" ", pos)
+            if e1 > pos:
+                tok = line[pos:e1]
+                inert = _INERT.get(tok)
+                if inert is None:
+                    inert = _inert(tok)
+                    if len(_INERT) >= 4096:
+                        _INERT.clear()
+                    _INERT[tok] = inert
+                if inert:
+                    e2 = line.find(" ", e1 + 1)
+                    if (line[e2 - 1] != ":") if e2 > e1 + 1 else (e2 >= 0 or len(line) == e1 + 1 or line[-1] != ":"):
+                        return _EMPTY, line[pos:]
     pos = 0
     host = program = ""
     syslog_like = False
