@@ -274,18 +274,23 @@ def _fitted_proba(ctx_codes, ctx_offsets, A, b, depths, masks, dstart, addr, ptr
 
 
 @njit(cache=True)
+def _revcomp_word(w, n, ub, symmask):
+    """Address of the reverse complement of one n-word (complement = code XOR ``symmask``)."""
+    r = np.uint64(0)
+    for _ in range(n):
+        r = (r << ub) | ((w & symmask) ^ symmask)
+        w >>= ub
+    return r
+
+
+@njit(cache=True)
 def _revcomp_addresses(words, n, b):
     """Addresses of the reverse complements of n-words (complement = code XOR (2**b - 1))."""
     out = np.empty_like(words)
     ub = np.uint64(b)
     symmask = np.uint64((1 << b) - 1)
     for i in range(words.shape[0]):
-        w = words[i]
-        r = np.uint64(0)
-        for _ in range(n):
-            r = (r << ub) | ((w & symmask) ^ symmask)
-            w >>= ub
-        out[i] = r
+        out[i] = _revcomp_word(words[i], n, ub, symmask)
     return out
 
 
@@ -356,11 +361,7 @@ def _revcomp_in_range(words, counts, n, b, lo, hi, to_end, out_w, out_c):
     symmask = np.uint64((1 << b) - 1)
     k = 0
     for i in range(words.shape[0]):
-        w = words[i]
-        r = np.uint64(0)
-        for _ in range(n):
-            r = (r << ub) | ((w & symmask) ^ symmask)
-            w >>= ub
+        r = _revcomp_word(words[i], n, ub, symmask)
         if r >= lo and (to_end or r < hi):
             if fill:
                 out_w[k] = r
