@@ -240,3 +240,40 @@ def test_score_online_as_a_real_process(files: Path):
     from fractalseq.jobs import score_files
 
     assert doc == json.loads(to_json(score_files([str(files / "test.fa")], online=True).to_dict()))
+
+
+def test_a_log_none_of_whose_lines_the_model_knows_says_why(tmp_path: Path, capsys):
+    """A model learned on dpkg's log, asked to score apt's terminal log: the sentence names the reason.
+
+    Real logs of reference/logs (provenance in reference/logs/README.md). The hand labels written from the two
+    programs' message formats (``dpkg-excerpt.labels``, ``apt-term-excerpt.labels``) share no event kind, so no
+    line of the apt log can match a template of the dpkg model; the line count in the sentence is checked against
+    a plain count of the apt log's non-blank lines (split at newline bytes, as the reader splits lines).
+    """
+    dpkg_kinds = {x.strip() for x in (LOGS / "dpkg-excerpt.labels").read_text().splitlines() if x.strip()}
+    apt_kinds = {x.strip() for x in (LOGS / "apt-term-excerpt.labels").read_text().splitlines() if x.strip()}
+    assert dpkg_kinds and apt_kinds and not dpkg_kinds & apt_kinds
+    lines = sum(1 for x in (LOGS / "apt-term-excerpt.log").read_bytes().split(b"\n") if x.strip())
+    model = tmp_path / "dpkg.npz"
+    code, out, _ = run(capsys, "learn", "-f", "log", LOGS / "dpkg-excerpt.log", "-o", model, "--json", "-q")
+    assert code == 0
+    known = len(json.loads(out)["alphabet"]["symbols"])
+    assert known == len(dpkg_kinds)  # 12 templates for 12 labelled kinds (grouping accuracy 1.0 on this excerpt)
+    why = f"none of its {lines:,} lines match one of the {known} templates the model knows"
+
+    # one file: exit 2 and one sentence that says why
+    code, out, err = run(capsys, "score", "-f", "log", "--model", model, LOGS / "apt-term-excerpt.log")
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and why in err and "holds no usable symbols" in err, err
+
+    # with a file it can score: listed with length 0, the reason in the JSON and under the table
+    code, out, _ = run(capsys, "score", "-f", "log", "--model", model, LOGS / "apt-term-excerpt.log",
+                       LOGS / "dpkg-excerpt.log", "--json", "-q")
+    assert code == 0
+    apt, dpkg = json.loads(out)["sources"]
+    assert apt["length"] == 0 and why in apt["not_scored"]
+    assert sum(e["count"] for e in apt["unseen_templates"]) == lines
+    assert dpkg["length"] == 2000 and dpkg["not_scored"] is None
+    code, out, _ = run(capsys, "score", "-f", "log", "--model", model, LOGS / "apt-term-excerpt.log",
+                       LOGS / "dpkg-excerpt.log", "-q")
+    assert code == 0 and f"apt-term-excerpt.log: not scored: {why}" in " ".join(out.split())

@@ -85,6 +85,25 @@ pause_point("cli.import", 1)  # test hook: blocks while the command modules are 
 _register_all()
 
 
+_built: tuple = (None, None)
+
+
+def _command():
+    """The click command of :data:`app`, built once per process (typer rebuilds it on every call: about 12 ms
+    of signatures and annotations for the eleven commands, which a caller running several commands in one
+    process, the tests among them, paid each time); rebuilt when the registered commands change."""
+    global _built
+    # typer reads one setting from the environment while building (its switch that makes --show-completion take
+    # the shell as a value): a change of it rebuilds too
+    key = (tuple(app.registered_commands), tuple(app.registered_groups), app.registered_callback,
+           os.environ.get("_TYPER_COMPLETE_TEST_DISABLE_SHELL_DETECTION"))
+    if _built[0] != key:
+        import typer.main
+
+        _built = (key, typer.main.get_command(app))
+    return _built[1]
+
+
 def fail(message: str) -> "typer.Exit":
     """Print one sentence on standard error and return an Exit(2) to raise."""
     typer.echo(f"error: {message}", err=True)
@@ -111,7 +130,7 @@ def _run(argv: list[str] | None) -> int:
         from fractalseq.cli import common
 
         common.interrupt_note = None
-        result = app(args=argv, prog_name="fractalseq", standalone_mode=False)
+        result = _command()(args=argv, prog_name="fractalseq", standalone_mode=False)
         if result == 130:  # typer turns an uncaught Ctrl-C into Exit(130), returned here without a word
             return _interrupted()
         return int(result or 0)

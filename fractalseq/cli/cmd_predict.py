@@ -273,6 +273,8 @@ def score(
     common.out_console.print(f"All sources: {report.bits_per_symbol:.4f} bits/symbol over {report.length:,} symbols.")
     for r in report.sources:
         p = r.name
+        if r.not_scored:  # a file of length 0 in the table above: say why
+            common.out_console.print(f"{common.safe(p)}: not scored: {r.not_scored}.")
         if r.unseen_templates:
             unseen = r.unseen_templates
             ut = Table(title=f"{common.safe(p)}: {sum(e['count'] for e in unseen):,} lines with templates the model never saw (not scored)")

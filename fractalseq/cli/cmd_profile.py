@@ -111,8 +111,10 @@ def _print_tables(result, quiet: bool) -> None:
     t.add_column(f"{result.level:.0%} interval", justify="right", no_wrap=True)
     t.add_column("note")
     for r in d["dimensions"]:
+        short = any(f.startswith("too little data") for f in r["flags"]) and None in r["scaling_range"]
         t.add_row(f"D_{r['q']:g}", _fmt(r["estimate"]), _interval(r["low"], r["high"]),
-                  _depths(*r["scaling_range"]) + ("" if r["reliable"] else ", see flags"))
+                  ("too few levels for a scaling range" if short else _depths(*r["scaling_range"]))
+                  + ("" if r["reliable"] else ", see flags"))
     pe = d.get("permutation_entropy")
     per = " per step" if pe else ""
     for name, r in d["entropy_rate_bits"].items():

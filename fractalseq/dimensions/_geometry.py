@@ -513,7 +513,7 @@ def geometric_spectrum(
     occ = np.full(S, float(n_used))
     unseen = per_offset[:, :, 3 * Q + 1].max(axis=0)
     dl, cl = lev.limits_from(distinct, occ, unseen, starve)
-    ld = lev.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl, var, dvar, batches.covariance())
+    ld = lev.LevelData(x, sc, est, reps, distinct, occ, unseen, dl, cl, var, dvar, batches.covariance(), starve=starve)
     user = None
     if scale_range is not None:
         lo, hi = int(scale_range[0]), int(scale_range[1])

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
-from fractalseq.dimensions._parameters import UNSEEN_MAX
+from fractalseq.dimensions._parameters import MIN_LEVELS, STARVE, UNSEEN_MAX
 from fractalseq.resampling._block_tables import replicate_table
 from fractalseq.resampling._plan import ResamplePlan
 
@@ -260,6 +260,8 @@ class LevelData:
     var: np.ndarray  # (L, Q) count-based variances of H_q per level (fit weights)
     dvar: np.ndarray  # (L - 1, Q) count-based variances of the differences H_q(i+1) - H_q(i)
     cov: np.ndarray | None = None  # (Q, L, L) batch-means covariance of the levels (needs the stream)
+    starve: float = STARVE  # the data limit's rule: distinct words <= occurrences / starve
+    limits_of: "LevelData | None" = None  # the levels the limits were found on, when more than these (a probe)
 
     def cov_of(self, j: int) -> np.ndarray | None:
         """The ``(L, L)`` covariance of ``H_q`` for the j-th q, or ``None``."""
@@ -274,6 +276,54 @@ def negative_q_min_count(q: float, rel_bias: float = 0.01) -> float:
     bias of the rarest box's term below ``rel_bias``.
     """
     return float(q * (q - 1.0) / (2.0 * rel_bias))
+
+
+def _levels(k: int) -> str:
+    return "no level" if k <= 0 else ("1 level" if k == 1 else f"{k} levels")
+
+
+def range_shortfall(data: LevelData, j: int, q: float, top: int, need: float | None = None) -> str:
+    """Why no scaling range was found for the ``j``-th q: the rule that left fewer than :data:`MIN_LEVELS` levels.
+
+    Parameters
+    ----------
+    data:
+        The levels of the fit.
+    j, q:
+        Index and value of the order.
+    top:
+        Index of the deepest level the fit could use (-1: none).
+    need:
+        For ``q < 0``, the occurrences the rarest box needs when that rule set ``top``, else ``None``.
+
+    Returns
+    -------
+    str
+        One flag, ``"too little data: ..."``, naming the rule and, when the levels are at hand, the first level
+        it refused (a run of 3 levels that is not straight is not this case: the fit then uses the deepest 3
+        levels and says so).
+    """
+    src = data.limits_of if data.limits_of is not None else data
+    usable = top + 1
+    if usable >= MIN_LEVELS:  # levels enough, but the statistic is not finite on some of them
+        bad = np.flatnonzero(~np.isfinite(data.est[: usable, j]))
+        at = f" from level {int(bad[0]) + 1} on" if bad.size else ""
+        return f"too little data: the level statistic is not finite{at}, which leaves fewer than {MIN_LEVELS} levels"
+    if need is not None:
+        return (f"too little data: {_levels(usable)} whose rarest box has >= {need:.0f} occurrences; "
+                f"a fit needs {MIN_LEVELS}")
+    if q <= 0 and data.complete_limit < data.data_limit:
+        i = data.complete_limit + 1
+        detail = f" (level {i + 1}: {float(src.unseen[i]):.3g} unseen boxes estimated)" if i < src.unseen.size else ""
+        return (f"too little data: {_levels(usable)} where every box is hit (estimated unseen boxes < {UNSEEN_MAX:g}); "
+                f"a fit needs {MIN_LEVELS}{detail}")
+    i = data.data_limit + 1
+    detail = ""
+    if i < src.distinct.size:
+        detail = (f" (level {i + 1}: {int(round(float(src.distinct[i]))):,} occupied boxes in "
+                  f"{int(round(float(src.occurrences[i]))):,} occurrences)")
+    return (f"too little data: {_levels(usable)} with at most one occupied box (distinct word) per {data.starve:g} occurrences; "
+            f"a fit needs {MIN_LEVELS}{detail}")
 
 
 def limits_from(distinct: np.ndarray, occurrences: np.ndarray, unseen: np.ndarray, starve: float) -> tuple[int, int]:

@@ -13,7 +13,7 @@ from typing import Callable
 
 import numpy as np
 
-from fractalseq.dimensions._levels import LevelData, negative_q_min_count
+from fractalseq.dimensions._levels import LevelData, negative_q_min_count, range_shortfall
 from fractalseq.dimensions._parameters import MIN_LEVELS, NEGATIVE_Q, RESOLUTION, Z_LINEAR
 from fractalseq.dimensions._spectrum_results import DimensionEstimate, FAlphaPoint, is_reliable
 from fractalseq.resampling import _bootstrap as bs
@@ -220,6 +220,7 @@ def estimate_all(
         if q < 0:
             flags.append(NEGATIVE_Q)
         top = data.complete_limit if q <= 0 else data.data_limit
+        rarest = None  # the occurrences the rarest box needs, when that rule sets the deepest level
         if q < 0:
             need = negative_q_min_count(q)
             mins = data.est[:, 3 * Q + 2]
@@ -230,6 +231,7 @@ def estimate_all(
                 neg_top = i
             if neg_top < top:
                 top = neg_top
+                rarest = need
                 if user_range is None:
                     flags.append(f"range limited to levels whose rarest box has >= {need:.0f} occurrences")
                 elif user_range[1] > neg_top:
@@ -251,7 +253,7 @@ def estimate_all(
                 flags.extend(choice.flags)
         local_all = np.diff(data.est[:, j]) / np.diff(data.x) if data.x.size > 1 else np.zeros(0)
         if choice is None:
-            flags.append("too little data: fewer than 3 usable levels")
+            flags.append(range_shortfall(data, j, float(q), top, rarest))
             dims.append(
                 DimensionEstimate(
                     q=float(q), estimate=float("nan"), low=float("nan"), high=float("nan"), reliable=False,

@@ -246,7 +246,7 @@ def _word_level_data(
         var, dvar = word_level_variances(wc, L, qs)
     else:  # a probe of the limits: its variances are never read (the deep levels' are the costly ones)
         var, dvar = np.full((L, qs.size), np.nan), np.full((max(L - 1, 0), qs.size), np.nan)
-    return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl, var, dvar, cov)
+    return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl, var, dvar, cov, starve=starve)
 
 
 def _overlapping(alphabet: Alphabet, ratio: float, corners) -> tuple[bool, str]:
@@ -388,6 +388,7 @@ def dimension_spectrum(
         # limits are computed on the probe (all counted depths) so a user range cannot move them
         ld.data_limit = min(probe.data_limit, top - 1)
         ld.complete_limit = min(probe.complete_limit, top - 1)
+        ld.limits_of = probe
     else:
         ld = probe
     if n_boot == 0:

@@ -210,7 +210,8 @@ class SourceScore(PredictionResult):
     symbols or lines left out by reason; ``unseen_templates`` the log templates the model never saw
     (their lines were not scored; empty for other inputs); ``unit`` what a symbol is (``symbol``,
     ``line`` for logs, ``row`` for numeric columns: the most surprising windows then also carry
-    ``first_<unit>``/``last_<unit>``, file line numbers); ``read_notes`` what the reader reported.
+    ``first_<unit>``/``last_<unit>``, file line numbers); ``read_notes`` what the reader reported;
+    ``not_scored`` why a file of length 0 was not scored (``None`` when it was scored).
     """
 
     stream_name: str = ""
@@ -219,6 +220,7 @@ class SourceScore(PredictionResult):
     unseen_templates: tuple = ()
     unit: str = "symbol"
     read_notes: tuple[str, ...] = ()
+    not_scored: str | None = None
 
 
 @dataclass(frozen=True)
@@ -232,6 +234,25 @@ class ScoreReport(Result):
     length: int
     sources: tuple[SourceScore, ...]
     note: str
+
+
+def unscored_reason(unseen: Sequence[dict] | None, alphabet) -> str | None:
+    """Why a log read with a model's templates gave no symbol to score, in one clause; ``None`` if no line was left out so.
+
+    Parameters
+    ----------
+    unseen:
+        The reader's templates that the model does not list (``count`` lines each), or ``None``.
+    alphabet:
+        The model's template alphabet the log was read with.
+    """
+    if not unseen:
+        return None
+    lines = sum(int(e["count"]) for e in unseen)
+    known = alphabet.size
+    return (f"none of its {lines:,} {'line matches' if lines == 1 else 'lines match'} one of the {known:,} "
+            f"{'template' if known == 1 else 'templates'} the model knows (they form {len(unseen):,} "
+            f"{'template' if len(unseen) == 1 else 'templates'} new to it)")
 
 
 def score_files(
@@ -308,7 +329,10 @@ def score_files(
         else:
             res = evaluate_online(src, window=size, top_windows=top, baselines=baselines, **(params or {}))
         rep = arr.report if arr is not None else stream.report
-        if res.length == 0 and (len(paths) == 1 or not rep.extra.get("unlisted_templates")):
+        why = unscored_reason(rep.extra.get("unlisted_templates"), stream.alphabet) if res.length == 0 else None
+        if res.length == 0 and (len(paths) == 1 or why is None):
+            if why is not None:
+                raise InputError(f"{p} holds no usable symbols: {why}; learn a model on logs of the same kind.")
             raise InputError(f"{p} holds no usable symbols; check the file and the alphabet and format it is read with.")
         # a log none of whose templates the model knows: kept as a source of length 0 with its unseen templates
         # listed, so the other files' results are not lost
@@ -326,6 +350,7 @@ def score_files(
             unseen_templates=tuple(rep.extra.get("unlisted_templates", ())),
             unit=pos.unit if pos is not None and len(pos) == res.length else "symbol",
             read_notes=tuple(rep.summary_notes()),
+            not_scored=why,
         ))
         if on_source is not None:
             on_source(p)
