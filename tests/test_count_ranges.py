@@ -227,6 +227,10 @@ def test_lambda_genome_in_ranges_equals_the_serial_count(tmp_path):
     w, c = split.counts.words(2)
     got = {"ACGT"[int(x) >> 2] + "ACGT"[int(x) & 3]: int(k) for x, k in zip(w, c) if k}
     assert got == dict(_naive(text, 2))
+    for depth in (8, 14):  # a dense and a sparse table: the saved counts are the same bytes as a serial count's
+        serial = count_files([str(path)], depth, ReaderOptions()).counts.save(tmp_path / f"s{depth}.npz")
+        split = count_files([str(path)], depth, ReaderOptions(), engine=InProcess(), piece=9_000).counts.save(tmp_path / f"p{depth}.npz")
+        assert split.read_bytes() == serial.read_bytes()
 
 
 @pytest.mark.slow

@@ -241,7 +241,8 @@ def count_range(task: tuple[ByteRange, int]) -> tuple[WordCounts, list[RangePart
     _PIECES_RUN[0] += 1
     pause_point("count.piece", _PIECES_RUN[0])  # test hook: a worker stopped inside its n-th piece
     alphabet = rng.reader.alphabet
-    counter = WordCounter(alphabet, depth)  # one thread: the workers are the parallelism
+    # one thread (the workers are the parallelism); uint32 counts while they fit: a third less to send back
+    counter = WordCounter(alphabet, depth, compact=True)
     with RangeScan(rng) as scan:
         for ch in scan.core():
             counter.add(ch.codes, ch.starts)
@@ -259,6 +260,14 @@ def count_range(task: tuple[ByteRange, int]) -> tuple[WordCounts, list[RangePart
 
 def _add_ranges(a: tuple[WordCounts, list[RangePart]], b: tuple[WordCounts, list[RangePart]]):
     return a[0] + b[0], a[1] + b[1]
+
+
+def _wide_counts(wc: WordCounts) -> WordCounts:
+    """The same counts with ``int64`` sparse counts, as a one-pass count holds them (a saved file is the same)."""
+    if wc.leaf_counts is None or wc.leaf_counts.dtype == np.int64:
+        return wc
+    return WordCounts(wc.alphabet, wc.depth, wc.length, wc.segments, wc.dense, wc.leaf_words, wc.leaf_counts.astype(np.int64),
+                      wc.tail_len, wc.tail_addr, wc.tail_count)
 
 
 def range_size(source: SymbolStream | SymbolArray, engine: Engine) -> int | None:
@@ -313,7 +322,7 @@ def count_words_split(
         done = None if on_done is None else (lambda i, res: on_done(i, res[0]))
         wc, parts = engine.map_reduce(count_range, ((r, depth) for r in ranges), _add_ranges, done)
         source.report = range_report(reader, parts)  # raises as the one-pass reader does when no symbol was kept
-        return settle_storage(wc)
+        return settle_storage(_wide_counts(wc))
     tasks = ((p, depth) for p in iter_pieces(source, chunk, depth - 1))
     try:
         return settle_storage(engine.map_reduce(count_piece, tasks, _add_counts, on_done))
