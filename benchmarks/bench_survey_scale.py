@@ -170,7 +170,7 @@ def section_count(mbase: int, depth: int) -> dict:
     # the route before byte ranges, still taken by inputs the workers cannot read apart: the parent reads the file and
     # sends pieces of 2^24 symbols (the error policy keeps the file off the byte-range route; this file has no unknown byte)
     t_old, out_old, _, peak_old, cpu_old = run(["count", str(path), "--depth", str(depth), "--json", "--quiet", "--workers", "2",
-                                                "--policy", "error"])
+                                                "--unknown", "error"])
     load1 = os.getloadavg()
     return {
         "symbols": mbase * 1_000_000, "depth": depth, "serial_s": round(t_serial, 2), "workers2_s": round(t_par, 2),

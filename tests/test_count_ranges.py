@@ -16,7 +16,9 @@ from __future__ import annotations
 import collections
 import gzip
 import os
+import struct
 import subprocess
+import zlib
 
 import numpy as np
 import pytest
@@ -28,6 +30,7 @@ from fractalseq.io._outputs import to_json
 from fractalseq.jobs._files import count_files
 from fractalseq.jobs._inputs import ReaderOptions
 from fractalseq.runner import Engine
+from fractalseq.sources import ranges as ranges_module
 from fractalseq.sources.ranges import plan_ranges
 from fractalseq.words._pieces import read_piece, source_pieces
 
@@ -55,6 +58,9 @@ class InProcess(Engine):
 
 
 _SEQ = "ACGTACGTACGTacgtNnRYXx-*"
+#: How far a cut may move to the next line start: 0 cuts exactly at the even points (inside headers, comments,
+#: sequence lines, between a CR and its LF); the default moves every cut of a small file to a line start.
+_SEARCH = st.sampled_from([0, 0, 1, 5, ranges_module.CUT_SEARCH])
 
 
 @st.composite
@@ -109,12 +115,14 @@ def _naive(text: str, n: int, upper: bool = True) -> collections.Counter:
     return c
 
 
-@settings(max_examples=120, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
-@given(text=fasta_texts(), depth=st.integers(1, 7), data=st.data())
-def test_ranges_of_fasta_layouts_give_the_serial_count_json(tmp_path, text, depth, data):
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@given(text=fasta_texts(), depth=st.integers(1, 7), policy=st.sampled_from(["break", "break", "skip"]), search=_SEARCH,
+       data=st.data())
+def test_ranges_of_fasta_layouts_give_the_serial_count_json(tmp_path, monkeypatch, text, depth, policy, search, data):
+    monkeypatch.setattr(ranges_module, "CUT_SEARCH", search)
     path = tmp_path / "x.fa"
     path.write_bytes(text.encode())
-    reader = ReaderOptions(fmt="fasta")
+    reader = ReaderOptions(fmt="fasta", policy=policy)
     try:
         serial = _summary_json(path, depth, reader)
     except InputError as exc:  # no symbol at all: the split read must say the same sentence
@@ -125,6 +133,8 @@ def test_ranges_of_fasta_layouts_give_the_serial_count_json(tmp_path, text, dept
     size = path.stat().st_size
     piece = data.draw(st.integers(1, size + 3), label="piece bytes")
     assert _summary_json(path, depth, reader, InProcess(), piece=piece) == serial  # counts, ladder, report: same bytes
+    if policy == "skip":
+        return  # the naive words below cut at every N: the break policy's rule
     split = count_files([str(path)], depth, reader, engine=InProcess(), piece=piece)
     n = min(depth, 3)
     w, c = split.counts.words(n)
@@ -132,9 +142,10 @@ def test_ranges_of_fasta_layouts_give_the_serial_count_json(tmp_path, text, dept
     assert got == dict(_naive(text, n))
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(text=fasta_texts(), policy=st.sampled_from(["break", "skip"]), depth=st.integers(1, 6), data=st.data())
-def test_byte_ranges_hold_the_symbols_and_segments_of_the_one_pass_read(tmp_path, text, policy, depth, data):
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(text=fasta_texts(), policy=st.sampled_from(["break", "skip"]), depth=st.integers(1, 6), search=_SEARCH, data=st.data())
+def test_byte_ranges_hold_the_symbols_and_segments_of_the_one_pass_read(tmp_path, monkeypatch, text, policy, depth, search, data):
+    monkeypatch.setattr(ranges_module, "CUT_SEARCH", search)
     path = tmp_path / "y.fa"
     path.write_bytes(text.encode())
     reader = ReaderOptions(fmt="fasta", policy=policy)
@@ -188,6 +199,58 @@ def test_a_long_unwrapped_record_is_cut_inside_its_line_and_a_header_inside_a_ra
     assert _summary_json(path, 10, reader, InProcess(), piece=70_000) == _summary_json(path, 10, reader)
 
 
+def _bgzf(data: bytes, block: int) -> bytes:
+    """BGZF by hand: gzip members of at most ``block`` input bytes, each with the ``BC`` extra field giving its
+    size minus one, then the empty end-of-file block (SAM/BAM format specification, section 4.1; from memory)."""
+    out = []
+    for i in range(0, len(data), block):
+        chunk = data[i : i + block]
+        comp = zlib.compressobj(6, zlib.DEFLATED, -15)
+        body = comp.compress(chunk) + comp.flush()
+        size = 12 + 6 + len(body) + 8  # header with XLEN, the BC subfield, deflate data, CRC32 and ISIZE
+        head = b"\x1f\x8b\x08\x04" + b"\x00" * 4 + b"\x00\xff" + struct.pack("<H", 6) + b"BC" + struct.pack("<HH", 2, size - 1)
+        out.append(head + body + struct.pack("<II", zlib.crc32(chunk), len(chunk)))
+    empty = zlib.compressobj(6, zlib.DEFLATED, -15)
+    body = empty.compress(b"") + empty.flush()
+    size = 12 + 6 + len(body) + 8
+    out.append(b"\x1f\x8b\x08\x04" + b"\x00" * 4 + b"\x00\xff" + struct.pack("<H", 6) + b"BC" + struct.pack("<HH", 2, size - 1)
+               + body + struct.pack("<II", 0, 0))
+    return b"".join(out)
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(text=fasta_texts(), block=st.sampled_from([5, 40, 300, 4096]), depth=st.integers(1, 6), search=_SEARCH, data=st.data())
+def test_ranges_of_bgzf_fasta_give_the_serial_count_json(tmp_path, monkeypatch, text, block, depth, search, data):
+    monkeypatch.setattr(ranges_module, "CUT_SEARCH", search)
+    raw = text.encode()
+    packed = _bgzf(raw, block)
+    assert gzip.decompress(packed) == raw  # the standard library reads the blocks as one gzip file
+    path = tmp_path / "x.fa.gz"
+    path.write_bytes(packed)
+    reader = ReaderOptions(fmt="fasta")
+    try:
+        serial = _summary_json(path, depth, reader)
+    except InputError:
+        return
+    assert reader.open(path).byte_reader is not None  # read in ranges, not by the parent
+    piece = data.draw(st.integers(1, len(raw) + 3), label="piece bytes")
+    assert _summary_json(path, depth, reader, InProcess(), piece=piece) == serial
+
+
+def test_a_damaged_bgzf_block_is_refused_in_one_sentence(tmp_path):
+    rng = np.random.default_rng(3)
+    raw = (">a\n" + "".join(np.array(list("ACGT"))[rng.integers(0, 4, 200_000)]) + "\n").encode()
+    packed = bytearray(_bgzf(raw, 4096))
+    packed[len(packed) - 28 - 300] ^= 0xFF  # inside the last data block (beyond the 64 KiB read to sniff the format)
+    path = tmp_path / "d.fa.gz"
+    path.write_bytes(bytes(packed))
+    stream = ReaderOptions(fmt="fasta").open(path)
+    assert stream.byte_reader is not None
+    with pytest.raises(InputError, match="damaged gzip"):
+        for item in source_pieces(stream, 300, 3):
+            read_piece(item)
+
+
 def test_compressed_input_the_error_policy_and_fastq_are_read_by_the_parent(tmp_path):
     plain = tmp_path / "a.fa"
     plain.write_text(">a\nACGTNACGT\n")
@@ -223,6 +286,7 @@ def test_lambda_genome_in_ranges_equals_the_serial_count(tmp_path):
     for piece in (997, 4_096, 20_000):
         split = count_files([str(path)], 8, ReaderOptions(), engine=InProcess(), piece=piece)
         assert split.length == letters  # every A, C, G, T of the file, counted once
+        assert split.length == 48_502  # the lambda genome NC_001416 is 48,502 bp long (from memory)
         assert to_json(split.to_dict()) == _summary_json(path, 8, ReaderOptions())
     w, c = split.counts.words(2)
     got = {"ACGT"[int(x) >> 2] + "ACGT"[int(x) & 3]: int(k) for x, k in zip(w, c) if k}

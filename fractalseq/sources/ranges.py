@@ -30,11 +30,13 @@ A range counts the symbols, drops and headers in its own bytes, then reads on
 past its end (line breaks, headers and all) until it holds ``overlap`` more
 symbols or the file ends; those lookahead symbols belong to the next range.
 
-Inputs read this way: uncompressed regular files read as FASTA, or as plain
-text through a byte lookup table, under the ``break`` or ``skip`` policy
-(:func:`reader_for` returns ``None`` otherwise: the parent then reads the
-input and ships pieces of symbols as before).  A leading UTF-8 byte-order
-mark is skipped as the one-pass reader skips it.
+Inputs read this way: regular files, uncompressed or BGZF (block gzip, whose
+blocks are listed from their headers and decompressed one by one:
+:mod:`fractalseq.sources.bgzf`), read as FASTA, or as plain text through a
+byte lookup table, under the ``break`` or ``skip`` policy (:func:`reader_for`
+returns ``None`` otherwise: the parent then reads the input and ships pieces
+of symbols as before).  Offsets are in decompressed bytes.  A leading UTF-8
+byte-order mark is skipped as the one-pass reader skips it.
 """
 
 from __future__ import annotations
@@ -49,6 +51,7 @@ from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.sources import kernels as K
 from fractalseq.sources.base import MAX_RECORDS, RecordLog, note_heavy_drops, require_symbols
+from fractalseq.sources.bgzf import BlockView, block_index
 from fractalseq.sources.rawio import Origin
 from fractalseq.sources.sequence import LAYOUTS, fill_report, layout_table
 from fractalseq.stream import Chunk, ReadReport
@@ -85,11 +88,17 @@ class ByteReader:
         The format the report names (``fasta`` or ``text``).
     skip:
         Bytes at the start that are not data (a UTF-8 byte-order mark).
-    size, mtime_ns:
+    size:
+        Bytes of data (decompressed), the byte-order mark included.
+    file_size, mtime_ns:
         The file's size and modification time when it was opened; a worker
         refuses a file that has changed since.
     notes:
         The reader's notes at the start of a pass (the format detection).
+    blocks:
+        BGZF files: (file offset, decompressed offset) of every block and of
+        the end (:func:`fractalseq.sources.bgzf.block_index`); ``None`` for an
+        uncompressed file.
     """
 
     path: str
@@ -100,8 +109,15 @@ class ByteReader:
     fmt: str
     skip: int
     size: int
+    file_size: int
     mtime_ns: int
     notes: tuple[str, ...] = ()
+    blocks: np.ndarray | None = field(default=None, repr=False, compare=False)
+
+    @property
+    def compression(self) -> str:
+        """What the report names: ``gzip`` for a BGZF file, else ``none``."""
+        return "none" if self.blocks is None else "gzip"
 
 
 @dataclass(frozen=True)
@@ -159,28 +175,52 @@ class RangePart:
 def reader_for(origin: Origin, layout: str, alphabet: Alphabet, policy: str, fmt: str) -> ByteReader | None:
     """The byte-range description of an input, or ``None`` when workers cannot read it apart.
 
-    Only uncompressed regular files read as FASTA or as plain bytes, under the
-    ``break`` or ``skip`` policy, qualify (standard input, pipes, compressed
-    files, FASTQ and the ``error`` policy are read by the parent).
+    Only regular files, uncompressed or BGZF, read as FASTA or as plain bytes,
+    under the ``break`` or ``skip`` policy, qualify (standard input, pipes,
+    other compressed files, FASTQ and the ``error`` policy are read by the parent).
+    The blocks of a BGZF file are listed here, from their headers.
     """
     if layout not in ("fasta", "plain") or policy not in ("break", "skip"):
         return None
-    if origin.path is None or origin.pipe is not None or origin.data is not None or origin.compression:
-        return None
-    try:
-        st = os.stat(origin.path)
-        with open(origin.path, "rb") as fh:
-            skip = len(_BOM) if fh.read(len(_BOM)) == _BOM else 0
-    except OSError:
+    if origin.path is None or origin.pipe is not None or origin.data is not None or origin.compression not in (None, "gzip"):
         return None
     import stat
 
-    if not stat.S_ISREG(st.st_mode):
-        return None
+    try:
+        st = os.stat(origin.path)
+        if not stat.S_ISREG(st.st_mode):
+            return None
+        with open(origin.path, "rb") as fh:
+            blocks = block_index(fh, int(st.st_size)) if origin.compression == "gzip" else None
+            if origin.compression == "gzip" and blocks is None:
+                return None  # plain gzip: one stream, read from its start
+            view = _view(fh, blocks, origin.name)
+            skip = len(_BOM) if view.read_at(0, len(_BOM)) == _BOM else 0
+    except (OSError, InputError):
+        return None  # the one-pass read says what is wrong
     return ByteReader(
-        str(os.path.abspath(origin.path)), origin.name, layout, alphabet, policy, fmt, skip, int(st.st_size),
-        int(st.st_mtime_ns), tuple(origin.notes),
+        str(os.path.abspath(origin.path)), origin.name, layout, alphabet, policy, fmt, skip, view.size, int(st.st_size),
+        int(st.st_mtime_ns), tuple(origin.notes), blocks,
     )
+
+
+class _FileView:
+    """Bytes of an uncompressed file at any offset."""
+
+    def __init__(self, fh: BinaryIO, size: int) -> None:
+        self.fh = fh
+        self.size = size
+
+    def read_at(self, pos: int, n: int) -> bytes:
+        self.fh.seek(pos)
+        return self.fh.read(max(0, n))
+
+
+def _view(fh: BinaryIO, blocks: np.ndarray | None, name: str):
+    if blocks is None:
+        fh.seek(0, os.SEEK_END)
+        return _FileView(fh, fh.tell())
+    return BlockView(fh, blocks, name)
 
 
 def plan_ranges(reader: ByteReader, size: int, overlap: int) -> list[ByteRange]:
@@ -195,12 +235,12 @@ def plan_ranges(reader: ByteReader, size: int, overlap: int) -> list[ByteRange]:
     begin, total = reader.skip, reader.size
     cuts = [begin]
     with _open_checked(reader) as fh:
+        view = _view(fh, reader.blocks, reader.name)
         at = begin + size
         while at < total:
             cut = at
             if reader.layout == "fasta":
-                fh.seek(at - 1)
-                near = fh.read(CUT_SEARCH + 1)
+                near = view.read_at(at - 1, CUT_SEARCH + 1)
                 hit = near.find(b"\n")
                 if hit >= 0:
                     cut = at + hit
@@ -222,7 +262,7 @@ def _open_checked(reader: ByteReader) -> BinaryIO:
         fh = open(reader.path, "rb")
     except OSError as exc:
         raise InputError(f"{reader.name} cannot be read by a worker ({exc.strerror or exc}); check the path on every machine.") from None
-    if int(st.st_size) != reader.size or int(st.st_mtime_ns) != reader.mtime_ns:
+    if int(st.st_size) != reader.file_size or int(st.st_mtime_ns) != reader.mtime_ns:
         fh.close()
         raise InputError(f"{reader.name} changed while it was being read; count it again once it is complete.")
     return fh
@@ -246,10 +286,12 @@ class RangeScan:
         self.events = np.zeros((_EVENTS, 3), dtype=np.int64)
         self.part = RangePart(task.index)
         self._fh: BinaryIO | None = None
+        self._view = None
         self._open_header = False  # a header of this range whose line has not ended yet
 
     def __enter__(self) -> "RangeScan":
         self._fh = _open_checked(self.task.reader)
+        self._view = _view(self._fh, self.task.reader.blocks, self.task.reader.name)
         return self
 
     def __exit__(self, *exc: object) -> None:
@@ -260,18 +302,17 @@ class RangeScan:
     # ------------------------------------------------------------ reading
     def core(self) -> Iterator[Chunk]:
         """The range's own symbols in chunks (chunk-relative segment starts, 0 included when one starts there)."""
-        fh = self._fh
-        assert fh is not None, "use RangeScan as a context manager"
+        view = self._view
+        assert view is not None, "use RangeScan as a context manager"
         t = self.task
-        self.state = _state_at(fh, t.start, t.reader, self.lut, self.pol)
-        fh.seek(t.start)
-        left = t.end - t.start
+        self.state = _state_at(view, t.start, t.reader, self.lut, self.pol)
+        at = t.start
         part = self.part
-        while left > 0:
-            data = fh.read(min(self.block, left))
+        while at < t.end:
+            data = view.read_at(at, min(self.block, t.end - at))
             if not data:
                 raise InputError(f"{t.reader.name} ended early while a worker read it; count it again once it is complete.")
-            left -= len(data)
+            at += len(data)
             codes, starts = self._scan(data, part.dropped, own=True)
             part.symbols += codes.size
             part.segments += starts.size
@@ -280,19 +321,20 @@ class RangeScan:
 
     def lookahead(self) -> Chunk:
         """Up to ``overlap`` symbols after the range (segment starts relative to them), reading on as needed."""
-        fh = self._fh
-        assert fh is not None, "use RangeScan as a context manager"
+        view = self._view
+        assert view is not None, "use RangeScan as a context manager"
         want = self.task.overlap
         parts: list[np.ndarray] = []
         starts: list[np.ndarray] = []
         got = 0
         scratch = np.zeros(256, np.int64)
         size = max(1 << 12, 4 * want)
-        fh.seek(self.task.end)
+        at = self.task.end
         while got < want or self._open_header:
-            data = fh.read(size)
+            data = view.read_at(at, size)
             if not data:
                 break
+            at += len(data)
             codes, st = self._scan(data, scratch, own=False)
             parts.append(codes)
             starts.append(st + got)
@@ -346,7 +388,7 @@ class RangeScan:
 
 
 # ------------------------------------------------------------ state at a cut
-def _state_at(fh: BinaryIO, pos: int, reader: ByteReader, lut: np.ndarray, pol: int) -> np.ndarray:
+def _state_at(view: "_FileView | BlockView", pos: int, reader: ByteReader, lut: np.ndarray, pol: int) -> np.ndarray:
     """The scanner state at byte ``pos``: the line's kind, line start flag, and whether a segment is pending."""
     mode = LAYOUTS[reader.layout]
     state = K.new_state(mode)
@@ -355,16 +397,14 @@ def _state_at(fh: BinaryIO, pos: int, reader: ByteReader, lut: np.ndarray, pol: 
     brk = pol == K.BREAK
     if mode == K.PLAIN:
         state[K.S_LINE_START] = 0
-        state[K.S_PENDING] = _pending_in_line(fh, reader.skip, pos, lut, brk, stop_at_line=False)
+        state[K.S_PENDING] = _pending_in_line(view, reader.skip, pos, lut, brk, stop_at_line=False)
         return state
-    fh.seek(pos - 1)
-    if fh.read(1) == b"\n":
+    if view.read_at(pos - 1, 1) == b"\n":
         line = pos
         state[K.S_PHASE], state[K.S_LINE_START] = K.P_SEQ, 1
     else:
-        line = _line_start(fh, reader.skip, pos)
-        fh.seek(line)
-        first = fh.read(1)
+        line = _line_start(view, reader.skip, pos)
+        first = view.read_at(line, 1)
         state[K.S_LINE_START] = 0
         if first == b">":  # inside a header line: its symbols-to-be start a new segment
             state[K.S_PHASE], state[K.S_PENDING] = K.P_HEADER, 1
@@ -373,22 +413,21 @@ def _state_at(fh: BinaryIO, pos: int, reader: ByteReader, lut: np.ndarray, pol: 
             state[K.S_PHASE] = K.P_COMMENT
         else:
             state[K.S_PHASE] = K.P_SEQ
-            found = _pending_in_line(fh, line, pos, lut, brk, stop_at_line=True)
+            found = _pending_in_line(view, line, pos, lut, brk, stop_at_line=True)
             if found >= 0:
                 state[K.S_PENDING] = found
                 return state
-    state[K.S_PENDING] = _pending_before_line(fh, reader.skip, line, lut, brk)
+    state[K.S_PENDING] = _pending_before_line(view, reader.skip, line, lut, brk)
     return state
 
 
-def _line_start(fh: BinaryIO, begin: int, pos: int) -> int:
+def _line_start(view: "_FileView | BlockView", begin: int, pos: int) -> int:
     """Start of the line holding byte ``pos - 1`` (searching backwards in growing windows)."""
     hi = pos
     width = _BACK_WINDOW
     while hi > begin:
         lo = max(begin, hi - width)
-        fh.seek(lo)
-        at = fh.read(hi - lo).rfind(b"\n")
+        at = view.read_at(lo, hi - lo).rfind(b"\n")
         if at >= 0:
             return lo + at + 1
         hi = lo
@@ -401,7 +440,7 @@ def _decides(cls: np.ndarray, brk: bool) -> np.ndarray:
     return (cls >= 0) | ((cls == -1) | (cls == -2)) if brk else cls >= 0
 
 
-def _pending_in_line(fh: BinaryIO, lo_limit: int, pos: int, lut: np.ndarray, brk: bool, stop_at_line: bool) -> int:
+def _pending_in_line(view: "_FileView | BlockView", lo_limit: int, pos: int, lut: np.ndarray, brk: bool, stop_at_line: bool) -> int:
     """Pending flag from the last deciding byte in ``[lo_limit, pos)`` (one line, or plain bytes).
 
     Returns 1 or 0, or -1 when no byte in the stretch decides (with ``stop_at_line``;
@@ -411,8 +450,7 @@ def _pending_in_line(fh: BinaryIO, lo_limit: int, pos: int, lut: np.ndarray, brk
     width = _BACK_WINDOW
     while hi > lo_limit:
         lo = max(lo_limit, hi - width)
-        fh.seek(lo)
-        cls = lut[np.frombuffer(fh.read(hi - lo), dtype=np.uint8)]
+        cls = lut[np.frombuffer(view.read_at(lo, hi - lo), dtype=np.uint8)]
         hit = np.flatnonzero(_decides(cls, brk))
         if hit.size:
             return 0 if cls[hit[-1]] >= 0 else 1
@@ -421,14 +459,13 @@ def _pending_in_line(fh: BinaryIO, lo_limit: int, pos: int, lut: np.ndarray, brk
     return -1 if stop_at_line else 1
 
 
-def _pending_before_line(fh: BinaryIO, begin: int, line: int, lut: np.ndarray, brk: bool) -> int:
+def _pending_before_line(view: "_FileView | BlockView", begin: int, line: int, lut: np.ndarray, brk: bool) -> int:
     """Pending flag at the start of the line at ``line``, from the lines before it (FASTA)."""
     hi = line
     width = _BACK_WINDOW
     while hi > begin:
         lo = max(begin, hi - width)
-        fh.seek(lo)
-        data = np.frombuffer(fh.read(line - lo), dtype=np.uint8)  # whole lines from the first line start in it
+        data = np.frombuffer(view.read_at(lo, line - lo), dtype=np.uint8)  # whole lines from the first line start in it
         heads = np.flatnonzero(data[:-1] == 10) + 1 if data.size else np.zeros(0, np.int64)
         if lo == begin:
             heads = np.concatenate([[0], heads]).astype(np.int64)
@@ -460,7 +497,7 @@ def range_report(reader: ByteReader, parts: list[RangePart]) -> ReadReport:
     report = ReadReport()
     report.notes.extend(reader.notes)
     report.extra["format"] = reader.fmt
-    report.extra["compression"] = "none"
+    report.extra["compression"] = reader.compression
     lut = layout_table(reader.layout, reader.alphabet.byte_table())
     recs = RecordLog(MAX_RECORDS)
     total = segments = 0
