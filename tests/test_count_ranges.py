@@ -291,6 +291,12 @@ def test_lambda_genome_in_ranges_equals_the_serial_count(tmp_path):
     w, c = split.counts.words(2)
     got = {"ACGT"[int(x) >> 2] + "ACGT"[int(x) & 3]: int(k) for x, k in zip(w, c) if k}
     assert got == dict(_naive(text, 2))
+    packed = tmp_path / "lambda.fa.gz"
+    packed.write_bytes(_bgzf(raw, 8_192))  # seven BGZF blocks of 8 KiB
+    assert ReaderOptions().open(packed).byte_reader is not None
+    bgzf_split = count_files([str(packed)], 8, ReaderOptions(), engine=InProcess(), piece=5_000)
+    assert to_json(bgzf_split.to_dict()) == _summary_json(packed, 8, ReaderOptions())
+    assert bgzf_split.counts.ladder() == split.counts.ladder()
     for depth in (8, 14):  # a dense and a sparse table: the saved counts are the same bytes as a serial count's
         serial = count_files([str(path)], depth, ReaderOptions()).counts.save(tmp_path / f"s{depth}.npz")
         split = count_files([str(path)], depth, ReaderOptions(), engine=InProcess(), piece=9_000).counts.save(tmp_path / f"p{depth}.npz")

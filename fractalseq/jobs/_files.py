@@ -95,7 +95,7 @@ def count_files(
         its workers and adds them up in order: the counts are identical.
     piece:
         Symbols per piece (default :data:`~fractalseq.words._pieces.DEFAULT_PIECE`).  An
-        uncompressed FASTA or plain-text file (under the ``break`` or ``skip`` policy) is
+        uncompressed or BGZF FASTA or plain-text file (under the ``break`` or ``skip`` policy) is
         cut into byte ranges that the workers read themselves
         (:func:`~fractalseq.words._pieces.source_pieces`); ``piece`` is then bytes per
         range, by default one range per worker

@@ -8,7 +8,7 @@ data, so any engine (:mod:`fractalseq.runner`) can count them.
 Two kinds of piece travel to workers (:func:`source_pieces`): a
 :class:`Piece` holds symbols the parent read, a
 :class:`~fractalseq.sources.ranges.ByteRange` names a stretch of an
-uncompressed file that the worker reads itself, so the file never passes
+uncompressed or BGZF file that the worker reads itself, so the file never passes
 through the parent or a scheduler.  :func:`read_piece` turns either into a
 :class:`Piece` inside a task.
 """
@@ -188,7 +188,7 @@ def settle_storage(wc: WordCounts) -> WordCounts:
 def source_pieces(source: SymbolStream | SymbolArray, chunk: int, overlap: int) -> Iterator[Piece | ByteRange]:
     """Pieces of a source for workers, overlapping by ``overlap`` symbols.
 
-    When the source is an uncompressed file the workers can read apart
+    When the source is a file the workers can read apart (uncompressed or BGZF)
     (:attr:`SymbolStream.byte_reader <fractalseq.stream.SymbolStream>`), the
     pieces are :class:`~fractalseq.sources.ranges.ByteRange` descriptions of
     about ``chunk`` bytes each and the parent reads only a few bytes near each
