@@ -192,6 +192,9 @@ class SymbolStream:
         #: what one symbol is: ``"symbol"``, or ``"line"`` (event logs) / ``"row"`` (numeric columns) when the
         #: reader maps symbols to file lines (:attr:`ReadReport.positions`)
         self.unit = "symbol"
+        #: a description of the file that lets worker processes read byte ranges of it themselves
+        #: (:class:`fractalseq.sources.ranges.ByteReader`), or ``None`` when the input cannot be read that way
+        self.byte_reader: object | None = None
 
     def chunks(self) -> Iterator[Chunk]:
         """Iterate over the chunks; :attr:`report` describes the last full pass."""

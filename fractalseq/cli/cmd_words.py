@@ -34,9 +34,11 @@ def count(
     workers: Optional[int] = common.WORKERS,
     scheduler: Optional[str] = common.SCHEDULER,
     connect_timeout: float = common.CONNECT_TIMEOUT,
-    piece: int = typer.Option(
-        1 << 24, "--piece", min=1,
-        help="With --engine/--workers/--scheduler: symbols per piece; each input is split into pieces overlapping by DEPTH-1 symbols, counted on the workers and added up exactly.",
+    piece: Optional[int] = typer.Option(
+        None, "--piece", min=1,
+        help="With --engine/--workers/--scheduler: symbols per piece (default 16777216); each input is split into pieces "
+        "overlapping by DEPTH-1 symbols, counted on the workers and added up exactly. FASTA and text files, uncompressed or "
+        "BGZF, are cut into byte ranges that the workers read themselves: then bytes per range (default: one range per worker).",
     ),
 ) -> None:
     """Count every word of length 1..DEPTH exactly, merging all inputs.
@@ -48,7 +50,9 @@ def count(
     With --workers N (or --engine dask, --scheduler tcp://HOST:PORT) each input is
     split into pieces of --piece symbols that overlap by DEPTH-1 symbols; the pieces
     are counted on the workers and added up in order, so the counts are identical
-    to a serial run.
+    to a serial run. An uncompressed or BGZF FASTA or text file is not read by this process:
+    each worker reads its own byte range of it (the file must be at the same path on
+    every worker of a cluster).
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """

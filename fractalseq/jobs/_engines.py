@@ -25,7 +25,10 @@ scheduler; the merged result is unchanged.
 Large sources are split into *pieces* of ``chunk`` symbols, each carrying
 the next ``N - 1`` symbols as lookahead, and each piece counts exactly the
 words that *start* inside it, so no word is lost at a piece edge and none is
-counted twice (:func:`iter_pieces`, :func:`count_piece`).
+counted twice (:func:`iter_pieces`, :func:`count_piece`).  An uncompressed
+or BGZF FASTA or text file is split into byte ranges that the workers read
+themselves (:mod:`fractalseq.sources.ranges`, :func:`count_range`), so only a
+path and two offsets travel to a worker.
 
 Arguments and results travel between processes with the standard library's
 pickle protocol (as multiprocessing and Dask do); nothing pickled is ever

@@ -94,7 +94,12 @@ def count_files(
         (:func:`~fractalseq.words._pieces.count_words_split`), counts them on
         its workers and adds them up in order: the counts are identical.
     piece:
-        Symbols per piece (default :data:`~fractalseq.words._pieces.DEFAULT_PIECE`).
+        Symbols per piece (default :data:`~fractalseq.words._pieces.DEFAULT_PIECE`).  An
+        uncompressed or BGZF FASTA or plain-text file (under the ``break`` or ``skip`` policy) is
+        cut into byte ranges that the workers read themselves
+        (:func:`~fractalseq.words._pieces.source_pieces`); ``piece`` is then bytes per
+        range, by default one range per worker
+        (:func:`~fractalseq.words._pieces.range_size`).
     on_piece:
         Called as ``on_piece(index, counts)`` when a piece is counted.
 
@@ -127,10 +132,9 @@ def count_files(
 
 def _count_split(paths, depth, reader, engine, piece, on_input, on_piece):
     """Each input split into pieces counted on ``engine``; inputs added in order (each its own segments)."""
-    from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split, settle_storage
+    from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split, range_size, settle_storage
 
-    chunk = DEFAULT_PIECE if piece is None else int(piece)
-    if isinstance(chunk, bool) or chunk < 1:
+    if piece is not None and (isinstance(piece, bool) or int(piece) < 1):
         raise ParameterError(f"The piece size must be a positive number of symbols, not {piece!r}.", parameter="piece")
     total: WordCounts | None = None
     reports = []
@@ -138,6 +142,7 @@ def _count_split(paths, depth, reader, engine, piece, on_input, on_piece):
         stream = reader.open(p)
         if total is not None and not total.alphabet.same_symbols(stream.alphabet):
             raise InputError(f"{p} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs.")
+        chunk = int(piece) if piece is not None else (range_size(stream, engine) or DEFAULT_PIECE)
         wc = count_words_split(stream, depth, engine, chunk=chunk, on_done=on_piece)
         total = wc if total is None else total + wc
         reports.append((p, stream.report))

@@ -218,14 +218,14 @@ def open_source(
                 "use a character alphabet.",
                 parameter="alphabet",
             )
-        return _byte_stream(origin, fmt, a, policy, chunk_size, stream_name, begin)
+        return _byte_stream(origin, fmt, a, policy, chunk_size, stream_name, begin, fmt)
 
     if fmt == "text":
         if a is None:
             spool(origin)
             a = text.learn_chars(origin, learn_block)
         if _byte_path(a):
-            return _byte_stream(origin, "plain", a, policy, chunk_size, stream_name, begin)
+            return _byte_stream(origin, "plain", a, policy, chunk_size, stream_name, begin, fmt)
         if not a.single_characters:
             raise ParameterError(
                 f"The {a.name} alphabet has symbols longer than one character; read this input with the tokens format.",
@@ -344,7 +344,11 @@ def shared_quantile_edges(paths: Sequence[str | os.PathLike], bins: int = 4, col
     return np.quantile(values, np.arange(1, bins) / bins)
 
 
-def _byte_stream(origin: Origin, layout: str, a: Alphabet, policy: str, chunk_size: int, stream_name: str, begin) -> SymbolStream:
+def _byte_stream(
+    origin: Origin, layout: str, a: Alphabet, policy: str, chunk_size: int, stream_name: str, begin, fmt: str
+) -> SymbolStream:
+    from fractalseq.sources.ranges import reader_for
+
     lut = a.byte_table()
 
     def factory(report: ReadReport) -> Iterator[Chunk]:
@@ -352,5 +356,7 @@ def _byte_stream(origin: Origin, layout: str, a: Alphabet, policy: str, chunk_si
         yield from sequence.scan(origin, layout, lut, a.code_dtype, policy, chunk_size, report, a)
         sequence.finish(report, origin, a)
 
-    return SymbolStream(a, factory, stream_name)
+    stream = SymbolStream(a, factory, stream_name)
+    stream.byte_reader = reader_for(origin, layout, a, policy, fmt)  # workers may read byte ranges themselves
+    return stream
 

@@ -90,10 +90,7 @@ def scan(
     """
     mode = LAYOUTS[layout]
     pol = K.POLICY_CODES[policy]
-    if mode != K.PLAIN:
-        lut = lut.copy()
-        lut[10] = IGNORED  # line ends are layout in FASTA/FASTQ whatever the alphabet
-        lut[13] = IGNORED
+    lut = layout_table(layout, lut)
     state = K.new_state(mode)
     dropped = np.zeros(256, dtype=np.int64)
     events = np.zeros((_EVENTS, 3), dtype=np.int64)
@@ -143,15 +140,44 @@ def scan(
         raise InputError(
             f"{origin.name} ends inside the quality line of read {recs.current}; the FASTQ file may be truncated."
         )
-    report.symbols = total
-    report.segments = segments
+    fill_report(report, origin.name, layout, lut, alphabet, total, segments, dropped, recs)
+
+
+def layout_table(layout: str, lut: np.ndarray) -> np.ndarray:
+    """The lookup table the scanner uses: line ends are layout in FASTA/FASTQ whatever the alphabet."""
+    if LAYOUTS[layout] == K.PLAIN:
+        return lut
+    lut = lut.copy()
+    lut[10] = IGNORED
+    lut[13] = IGNORED
+    return lut
+
+
+def fill_report(
+    report: ReadReport,
+    name: str,
+    layout: str,
+    lut: np.ndarray,
+    alphabet: Alphabet | None,
+    total: int,
+    segments: int,
+    dropped: np.ndarray,
+    recs: RecordLog,
+) -> None:
+    """Symbols, segments, drop reasons and records of a complete pass into ``report``.
+
+    Shared by the one-pass reader and the assembly of byte ranges read apart
+    (:mod:`fractalseq.sources.ranges`), so both write the same report.
+    """
+    report.symbols = int(total)
+    report.segments = int(segments)
     for b in np.flatnonzero(dropped):
         ch = chr(int(b))
         report.drop(drop_reason(ch, lut[b] == -2, alphabet), int(dropped[b]))
     if layout == "plain":
-        report.records = [Record(origin.name, 0, total)]
+        report.records = [Record(name, 0, int(total))]
     else:
-        recs.fill(report, total, "reads" if layout == "fastq" else "records")
+        recs.fill(report, int(total), "reads" if layout == "fastq" else "records")
 
 
 def _raise_scan_error(

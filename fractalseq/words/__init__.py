@@ -18,7 +18,8 @@ _WHERE = {
     **dict.fromkeys(("Spectrum", "WordCounter", "WordCounts", "check_depth", "count_words", "decode_address",
                      "encode_address"), "_counts"),
     "count_inputs": "_corpus",
-    **dict.fromkeys(("DEFAULT_PIECE", "Piece", "count_piece", "count_words_split", "iter_pieces"), "_pieces"),
+    **dict.fromkeys(("DEFAULT_PIECE", "Piece", "count_piece", "count_range", "count_words_split", "iter_pieces", "read_piece",
+                     "source_pieces"), "_pieces"),
 }
 
 
@@ -32,6 +33,6 @@ def __getattr__(name: str) -> Any:
 
 __all__ = [
     "DEFAULT_PIECE", "Piece", "Spectrum", "WordCounter", "WordCounts", "WordReport", "WordRow", "absent_words",
-    "check_depth", "count_inputs", "count_piece", "count_words", "count_words_split", "decode_address",
-    "encode_address", "iter_pieces", "observed_expected", "word_deviations",
+    "check_depth", "count_inputs", "count_piece", "count_range", "count_words", "count_words_split", "decode_address",
+    "encode_address", "iter_pieces", "observed_expected", "read_piece", "source_pieces", "word_deviations",
 ]
