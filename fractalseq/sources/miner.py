@@ -77,7 +77,7 @@ from fractalseq.errors import ParameterError
 from fractalseq.sources.evidence import conflicting, label_shape
 from fractalseq.sources.headers import _EMPTY as _NO_HEADER
 from fractalseq.sources.headers import Header, split_header
-from fractalseq.sources.masks import WILDCARD
+from fractalseq.sources.masks import WILDCARD, mask_token
 from fractalseq.sources.routes import Route
 from fractalseq.sources.structured import Tokenizer
 from fractalseq.sources.template_index import TAIL, TemplateIndex
@@ -184,6 +184,20 @@ def _constants(tokens: list[str], words: list[bool]) -> tuple[list[str | None], 
     return fixed, len(fixed) - fixed.count(None), [t if w else None for t, w in zip(tokens, words)]
 
 
+class _RouteTokens(dict):
+    """Word of a plain-text line before masking -> its routing token (the masked word if a plain word, else ``<*>``)."""
+
+    __slots__ = ()
+
+    def __missing__(self, word: str) -> str:
+        tok = mask_token(word) or word
+        tok = tok if _routable(tok) else WILDCARD
+        if len(self) >= _MSG_CACHE:
+            self.clear()
+        self[word] = tok
+        return tok
+
+
 class _Family:
     """Lines sharing pinned tokens and routing head: their clusters, lengths and first words after the head."""
 
@@ -235,11 +249,11 @@ class TemplateMiner:
         #: label shapes (:func:`_label_shape`) of families that got a free-text tail
         self._free_labels: set[tuple] = set()
         self._absorbed: dict[int, int] = {}
-        self._head_memo: dict[tuple, tuple[str, ...]] = {}
-        #: routing key -> [family, route or None, family key] (see :meth:`_place`)
+        #: (pinned tokens, number of free tokens, routing tokens of the first ``depth``) -> [family, route or None,
+        #: family key] (see :meth:`_place`); a routing token is the token when it is a plain word, else ``<*>``
         self._slots: dict[tuple, list] = {}
-        #: (number of words, first ``depth`` words before masking) of a plain-text line -> its slot
-        self._raw_slots: dict[tuple, list] = {}
+        #: word of a plain-text line before masking -> its routing token (masks are fixed rules)
+        self._route_tok = _RouteTokens()
         #: per cluster, its template with ``None`` for a wildcard (a line changes it when a constant differs)
         self._fixed: list[tuple[list[str | None], int, list[str | None]]] = []
         self._route_word: dict[str, bool] = {}
@@ -263,7 +277,8 @@ class TemplateMiner:
         clusters = self.clusters
         tokenize = self.tokenize.uncached  # ``_seen`` remembers messages
         plain, mask = self.tokenize.plain_words, self.tokenize.mask
-        slots, raw_slots = self._slots, self._raw_slots
+        slots = self._slots
+        route_tok = self._route_tok.__getitem__
         depth = self.depth
         place = self._place
         split = split_header
@@ -286,17 +301,11 @@ class TemplateMiner:
                     else:
                         # plain text: its routing slot is known from its first words before masking (masks are
                         # fixed rules), and a line of a family whose tail is free text needs no masking at all
-                        rkey = (len(words), *words[:depth])
-                        slot = raw_slots.get(rkey)
+                        slot = slots.get(((), len(words), *map(route_tok, words[:depth])))
                         if slot is not None and slot[0].tail >= 0:
                             cid = slot[0].tail
                         else:
-                            free = mask(words)
-                            cid = place((), free, slot)
-                            if slot is None:
-                                if len(raw_slots) >= _MSG_CACHE:
-                                    raw_slots.clear()
-                                raw_slots[rkey] = slots[((), len(free), *free[:depth])]
+                            cid = place((), mask(words), slot)
                     if len(seen) >= _MSG_CACHE:
                         seen.clear()
                     seen[msg] = cid
@@ -325,28 +334,18 @@ class TemplateMiner:
                     memo[tok] = ok
         return out
 
-    def _head(self, pinned: tuple[str, ...], n: int, free: list[str]) -> tuple[str, ...]:
-        """Routing tokens of a line: its first ``depth`` free tokens, a token that is not a plain word as ``<*>``.
+    def _head(self, pinned: tuple[str, ...], n: int, route: tuple[str, ...]) -> tuple[str, ...]:
+        """Routing head of a line: its routing tokens (``route``, ``<*>`` for a token that is no plain word), a word
+        refused at a level that already keeps ``max_children`` words as ``<*>``.
 
         Once a word is kept at a level, or refused because the level is full,
-        it routes the same way for good; so the result is remembered.
+        it routes the same way for good; so the head of a key never changes.
         """
-        key = (pinned, n, *free[: self.depth])
-        head = self._head_memo.get(key)
-        if head is not None:
-            return head
         out: list[str] = []
-        route: tuple = (pinned, n)
-        words = self._route_word
-        for tok in free[: self.depth]:
-            ok = words.get(tok)
-            if ok is None:
-                ok = _routable(tok)
-                if len(words) >= _MSG_CACHE:
-                    words.clear()
-                words[tok] = ok
-            if ok:
-                key_kids = route + tuple(out)
+        prefix: tuple = (pinned, n)
+        for tok in route:
+            if tok != WILDCARD:
+                key_kids = prefix + tuple(out)
                 kids = self._children.get(key_kids)
                 if kids is None:
                     kids = self._children[key_kids] = set()
@@ -355,23 +354,18 @@ class TemplateMiner:
                         tok = WILDCARD
                     else:
                         kids.add(tok)
-                out.append(tok)
-            else:
-                out.append(WILDCARD)
-        head = tuple(out)
-        if len(self._head_memo) >= _MSG_CACHE:
-            self._head_memo.clear()
-        self._head_memo[key] = head
-        return head
+            out.append(tok)
+        return tuple(out)
 
     def _place(self, pinned: tuple[str, ...], free: list[str], slot: list | None = None) -> int:
         """The cluster a line joins, or a new one (``slot``: the line's routing slot when known, see ``_slots``)."""
         n = len(free)
         if slot is None:
-            key = (pinned, n, *free[: self.depth])
+            route = tuple(t if w else WILDCARD for t, w in zip(free, self._words(free[: self.depth])))
+            key = (pinned, n, *route)
             slot = self._slots.get(key)  # routing head, family and route of a key: fixed once made
         if slot is None:
-            head = self._head(pinned, n, free)
+            head = self._head(pinned, n, route)
             fkey = (pinned, head)
             fam = self._families.get(fkey)
             sibling_tail = False
@@ -384,7 +378,7 @@ class TemplateMiner:
             slot = [fam, self._routes.get((fkey, n)), fkey]
             if len(self._slots) >= _MSG_CACHE:
                 self._slots.clear()
-            self._slots[key] = slot  # (the block loop reads the slot back, also after a collapse)
+            self._slots[key] = slot
             if sibling_tail:
                 return self._collapse(fam, pinned)  # a sibling label of this shape has a free-text tail
         else:
