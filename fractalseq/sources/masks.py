@@ -36,6 +36,7 @@ they are heuristics, and a constant that looks like a number is masked too.
 from __future__ import annotations
 
 import re
+from typing import Callable
 
 __all__ = [
     "WILDCARD",
@@ -286,14 +287,15 @@ class _MaskCache(dict):
 class TokenMasker:
     """Masks tokens with a bounded cache (most log words repeat)."""
 
-    __slots__ = ("_cache", "_get")
+    __slots__ = ("_cache", "one")
 
     def __init__(self) -> None:
         self._cache = _MaskCache()
-        self._get = self._cache.__getitem__
+        #: the masked token of one token (through the cache)
+        self.one: Callable[[str], str] = self._cache.__getitem__
 
     def __call__(self, tokens: list[str]) -> list[str]:
-        return list(map(self._get, tokens))  # a token seen before takes no Python step
+        return list(map(self.one, tokens))  # a token seen before takes no Python step
 
 
 def mask_tokens(tokens: list[str]) -> list[str]:

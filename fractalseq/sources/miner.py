@@ -71,13 +71,13 @@ from dataclasses import dataclass, field
 from collections import Counter
 from itertools import chain, islice
 from operator import eq
-from typing import Sequence
+from typing import Callable, Sequence
 
 from fractalseq.errors import ParameterError
 from fractalseq.sources.evidence import conflicting, label_shape
 from fractalseq.sources.headers import _EMPTY as _NO_HEADER
 from fractalseq.sources.headers import Header, split_header
-from fractalseq.sources.masks import WILDCARD, mask_token
+from fractalseq.sources.masks import WILDCARD
 from fractalseq.sources.routes import Route
 from fractalseq.sources.structured import Tokenizer
 from fractalseq.sources.template_index import TAIL, TemplateIndex
@@ -187,10 +187,15 @@ def _constants(tokens: list[str], words: list[bool]) -> tuple[list[str | None], 
 class _RouteTokens(dict):
     """Word of a plain-text line before masking -> its routing token (the masked word if a plain word, else ``<*>``)."""
 
-    __slots__ = ()
+    __slots__ = ("mask",)
+
+    def __init__(self, mask: Callable[[str], str]) -> None:
+        super().__init__()
+        #: the masked token of a word (the tokenizer's cache: the word is masked once for both)
+        self.mask = mask
 
     def __missing__(self, word: str) -> str:
-        tok = mask_token(word) or word
+        tok = self.mask(word)
         tok = tok if _routable(tok) else WILDCARD
         if len(self) >= _MSG_CACHE:
             self.clear()
@@ -253,7 +258,7 @@ class TemplateMiner:
         #: family key] (see :meth:`_place`); a routing token is the token when it is a plain word, else ``<*>``
         self._slots: dict[tuple, list] = {}
         #: word of a plain-text line before masking -> its routing token (masks are fixed rules)
-        self._route_tok = _RouteTokens()
+        self._route_tok = _RouteTokens(self.tokenize.mask.one)
         #: per cluster, its template with ``None`` for a wildcard (a line changes it when a constant differs)
         self._fixed: list[tuple[list[str | None], int, list[str | None]]] = []
         self._route_word: dict[str, bool] = {}
