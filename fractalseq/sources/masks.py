@@ -64,9 +64,8 @@ _IPV6_CHARS = _HEX | frozenset(":.")
 _DROP_DIGITS = str.maketrans("", "", "0123456789")
 _ID_CHARS = frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_-+/=")
 _TRAIL = ".:!?"
-_LEAD = frozenset("\"'([{<")
+_LEAD_CHARS = "\"'([{<"
 _TAIL_CHARS = "\"')]}>,;:.!?"
-_TAIL = frozenset(_TAIL_CHARS)
 # separators inside a whitespace token; a character class with one '+' runs in linear time
 _SPLIT = re.compile(r"([=,;#|()\[\]{}<>\"']+)")
 _SEP_CHARS = frozenset("=,;#|()[]{}<>\"'")
@@ -241,19 +240,14 @@ def mask_token(tok: str) -> str:
             # no lead to set aside and no piece to split: the core is the token without its trailing ".:!?"
             core = tok.rstrip(_TRAIL)
             return WILDCARD + tok[len(core):] if _letter_led_variable(core) else tok
-    n = len(tok)
     if ":" in tok:
         core = tok.strip("\"'()[]{}<>,;")
         if core and is_ipv6(core):
             return tok.replace(core, WILDCARD, 1)
-    i = 0
-    while i < n and tok[i] in _LEAD:
-        i += 1
-    j = n
-    while j > i and tok[j - 1] in _TAIL:
-        j -= 1
-    if j > i and is_variable(tok[i:j]):
-        return tok[:i] + WILDCARD + tok[j:]
+    i = len(tok) - len(tok.lstrip(_LEAD_CHARS))
+    core = tok[i:].rstrip(_TAIL_CHARS)
+    if core and (core[0] in _DIGITS or is_variable(core)):  # a core led by a digit is variable (number, version...)
+        return tok[:i] + WILDCARD + tok[i + len(core):]
     if _SEP_CHARS.isdisjoint(tok):
         return tok
     parts = _SPLIT.split(tok)

@@ -259,6 +259,8 @@ class TemplateMiner:
         self._slots: dict[tuple, list] = {}
         #: word of a plain-text line before masking -> its routing token (masks are fixed rules)
         self._route_tok = _RouteTokens(self.tokenize.mask.one)
+        #: (number of words, first ``depth`` words before masking) of a plain-text line -> its slot
+        self._raw_slots: dict[tuple, list] = {}
         #: per cluster, its template with ``None`` for a wildcard (a line changes it when a constant differs)
         self._fixed: list[tuple[list[str | None], int, list[str | None]]] = []
         self._route_word: dict[str, bool] = {}
@@ -281,8 +283,8 @@ class TemplateMiner:
         seen = self._seen
         clusters = self.clusters
         tokenize = self.tokenize.uncached  # ``_seen`` remembers messages
-        plain, mask = self.tokenize.plain_words, self.tokenize.mask
-        slots = self._slots
+        plain, mask = self.tokenize.plain_words, self.tokenize.mask.one
+        slots, raw_slots = self._slots, self._raw_slots
         route_tok = self._route_tok.__getitem__
         depth = self.depth
         place = self._place
@@ -306,11 +308,20 @@ class TemplateMiner:
                     else:
                         # plain text: its routing slot is known from its first words before masking (masks are
                         # fixed rules), and a line of a family whose tail is free text needs no masking at all
-                        slot = slots.get(((), len(words), *map(route_tok, words[:depth])))
-                        if slot is not None and slot[0].tail >= 0:
-                            cid = slot[0].tail
-                        else:
-                            cid = place((), mask(words), slot)
+                        rkey = (len(words), *words[:depth])
+                        slot = raw_slots.get(rkey)
+                        if slot is None:
+                            key = ((), rkey[0], *map(route_tok, words[:depth]))
+                            slot = slots.get(key)
+                            if slot is None:
+                                cid = place((), list(map(mask, words)))
+                                slot = slots[key]
+                            if len(raw_slots) >= _MSG_CACHE:
+                                raw_slots.clear()
+                            raw_slots[rkey] = slot
+                        if cid is None:
+                            tail = slot[0].tail
+                            cid = tail if tail >= 0 else place((), list(map(mask, words)), slot)
                     if len(seen) >= _MSG_CACHE:
                         seen.clear()
                     seen[msg] = cid
@@ -408,6 +419,11 @@ class TemplateMiner:
                 rt = self._routes[(slot[2], n)] = Route()
             slot[1] = rt
         members = rt.members
+        if len(members) == 1:
+            best, = members
+            fixed, const, _ = self._fixed[best]
+            if sum(map(eq, fixed, free)) == const:
+                return best  # the line has every constant of the only template of its route: it joins it unchanged
         clusters = self.clusters
         crowded = len(members) > MAX_SCAN
         # only the plain words of the templates (no digit, no inner punctuation) are evidence of agreement
