@@ -39,7 +39,7 @@ Each line goes through these steps:
    its templates.  Once a ``LABEL: ...`` family (``PASS: <*>``) has a free
    text tail, the families of sibling labels of the same shape (``FAIL:``,
    ``UNTESTED:``) get one at once (:func:`~fractalseq.sources.evidence.label_shape`).
-5. A merge pass (:meth:`TemplateMiner.finish`) over templates with the same
+5. A merge pass (:meth:`TemplateMiner.finish`, :mod:`fractalseq.sources.template_merge`) over templates with the same
    pinned tokens and length: first, templates seen on one line each that are
    equal but at one position, where they hold ``VARIABLE_WORDS`` or more
    different words, fold into one with ``<*>`` there (many different words
@@ -66,7 +66,6 @@ any number of further tokens).
 from __future__ import annotations
 
 import gc
-import math
 from dataclasses import dataclass, field
 from collections import Counter
 from itertools import chain, islice
@@ -80,6 +79,7 @@ from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
 from fractalseq.sources.routes import Route
 from fractalseq.sources.structured import Tokenizer
+from fractalseq.sources.template_merge import MAX_SCAN, fold_group
 from fractalseq.sources.template_index import TAIL, TemplateIndex
 
 __all__ = ["DEFAULT_DEPTH", "DEFAULT_THRESHOLD", "TAIL", "MinedTemplate", "TemplateIndex", "TemplateMiner", "line_signature"]
@@ -91,10 +91,6 @@ DEFAULT_MAX_CHILDREN = 32
 #: clusters have this many different lengths and this many different words right after the head
 FREE_TAIL_LENGTHS = 4
 FREE_TAIL_WORDS = 12
-#: different words at one position (the rest of the templates equal) that make it a variable in the merge pass
-VARIABLE_WORDS = 3
-#: clusters a line is compared with in one route (the most recently matched), templates one is tried against in the merge pass
-MAX_SCAN = 64
 _ROUTE_STRIP = "[]()<>{}:,;.!?\"'"
 
 
@@ -555,100 +551,13 @@ class TemplateMiner:
         return tail
 
     # ----------------------------------------------------------- merge pass
-    def _foldable(self, a: list[str], b: list[str]) -> bool:
-        shared = const_a = const_b = 0
-        for x, y in zip(a, b):
-            if x == WILDCARD:
-                if y != WILDCARD:
-                    const_b += 1
-                continue
-            const_a += 1
-            if y == WILDCARD:
-                continue
-            const_b += 1
-            if x != y:
-                return False
-            shared += 1
-        need = max(1, math.ceil(self.threshold * max(const_a, const_b)))
-        return shared >= need or (const_a == 0 and const_b == 0)
-
-    def _variable_positions(self, reps: list[tuple[int, list[str]]], parent: list[int]) -> list[tuple[int, list[str]]]:
-        """Fold templates seen on one line each that are equal but at one position, where they hold
-        at least ``VARIABLE_WORDS`` different words.
-
-        Many different words each seen once at one place are the mark of an
-        open set of values (a user name, a host name): ``user alice logged in``,
-        ``user bob logged in``, ``user carol logged in`` become ``user <*>
-        logged in`` (and the ordinary fold then takes ``user root logged in``
-        however often root recurs), while words that recur (``status
-        installed`` / ``status unpacked``), or only two alternatives
-        (``job <*> started`` / ``job <*> done``), keep their templates.
-        """
-        once = [k for k, (cid, _) in enumerate(reps) if self._counts[cid] == 1]
-        if len(once) < VARIABLE_WORDS:
-            return reps
-        n = len(reps[0][1])
-        alive = dict.fromkeys(once)
-        gone: set[int] = set()
-        toks = [list(t) for _, t in reps]
-        for p in range(n):
-            buckets: dict[tuple[str, ...], list[int]] = {}
-            for k in alive:
-                t = toks[k]
-                if t[p] == WILDCARD:
-                    continue
-                buckets.setdefault((*t[:p], *t[p + 1 :]), []).append(k)
-            for ks in buckets.values():
-                if len(ks) >= VARIABLE_WORDS:
-                    head = ks[0]
-                    toks[head][p] = WILDCARD
-                    for k in ks[1:]:
-                        parent[reps[k][0]] = reps[head][0]
-                        del alive[k]
-                        gone.add(k)
-        return [(cid, toks[k]) for k, (cid, _) in enumerate(reps) if k not in gone]
-
-    def _fold(self, members: list[int], parent: list[int]) -> None:
-        """Fold the templates of one (pinned, length) group; each is tried against at most ``MAX_SCAN`` kept ones."""
-        reps: list[tuple[int, list[str]]] = []
-        exact: dict[tuple[str, ...], int] = {}
-        for cid in members:
-            key = tuple(self.clusters[cid].tokens)
-            rid = exact.get(key)
-            if rid is None:
-                exact[key] = cid
-                reps.append((cid, list(key)))
-                self._counts[cid] = self.clusters[cid].count
-            else:
-                parent[cid] = rid
-                self._counts[rid] += self.clusters[cid].count
-        reps = self._variable_positions(reps, parent)
-        changed = True
-        while changed and len(reps) > 1:
-            changed = False
-            out: list[tuple[int, list[str]]] = []
-            for cid, toks in reps:
-                lo = max(0, len(out) - MAX_SCAN)
-                for k in range(lo, len(out)):
-                    rid, rt = out[k]
-                    if self._foldable(rt, toks):
-                        out[k] = (rid, [x if x == y else WILDCARD for x, y in zip(rt, toks)])
-                        parent[cid] = rid
-                        changed = True
-                        break
-                else:
-                    out.append((cid, toks))
-            reps = out
-        for rid, rt in reps:
-            self.clusters[rid].tokens = rt
-
     def finish(self) -> list[MinedTemplate]:
         """Run the merge pass; the final templates by order of first appearance.
 
         After this, :meth:`final_id` maps a cluster number to its template id.
         """
         parent = list(range(len(self.clusters)))
-        self._counts: dict[int, int] = {}
+        counts: dict[int, int] = {}
         for cid, tail in self._absorbed.items():
             parent[cid] = tail
         groups: dict[tuple, list[int]] = {}
@@ -657,7 +566,7 @@ class TemplateMiner:
                 continue
             groups.setdefault((c.pinned, len(c.tokens)), []).append(cid)
         for members in groups.values():
-            self._fold(members, parent)
+            fold_group(self.clusters, members, parent, counts, self.threshold)
         root = parent[:]
         for i in range(len(root)):
             r = root[i]
