@@ -223,6 +223,8 @@ def _letter_led_variable(core: str) -> bool:
     c = core[0]
     if c in "vV" and len(core) > 1 and core[1].isdigit():
         return True
+    if not _ID_CHARS.issuperset(core):
+        return False  # hex digits, dashed hex and ids hold only id characters
     if c in "abcdefABCDEF" and (is_hex(core) or _is_dashed_hex(core)):
         return True
     return is_id(core)
@@ -240,6 +242,11 @@ def mask_token(tok: str) -> str:
             # no lead to set aside and no piece to split: the core is the token without its trailing ".:!?"
             core = tok.rstrip(_TRAIL)
             return WILDCARD + tok[len(core):] if _letter_led_variable(core) else tok
+        if "/" in tok and ":" not in tok and "@" not in tok and _SEP_CHARS.isdisjoint(tok):
+            # no lead, no piece, no URL, email or IPv6: a path core is masked whatever rule comes before the path rule
+            core = tok.rstrip(_TRAIL)
+            if is_path(core):
+                return WILDCARD + tok[len(core):]
     if ":" in tok:
         core = tok.strip("\"'()[]{}<>,;")
         if core and is_ipv6(core):

@@ -214,6 +214,7 @@ class _Family:
         self.tail = -2
 
 
+
 class TemplateMiner:
     """Streaming template miner (see the module documentation).
 
@@ -284,6 +285,7 @@ class TemplateMiner:
         route_tok = self._route_tok.__getitem__
         depth = self.depth
         place = self._place
+        fixed_of = self._fixed
         split = split_header
         out: list[int] = []
         append = out.append
@@ -316,8 +318,25 @@ class TemplateMiner:
                                 raw_slots.clear()
                             raw_slots[rkey] = slot
                         if cid is None:
-                            tail = slot[0].tail
-                            cid = tail if tail >= 0 else place((), list(map(mask, words)), slot)
+                            fam = slot[0]
+                            if fam.tail >= 0:
+                                cid = fam.tail
+                            else:
+                                free = list(map(mask, words))
+                                rt = slot[1]
+                                if rt is not None and len(rt.members) == 1 and (
+                                    fam.tail == -2
+                                    or ((len(free) <= len(fam.head) or free[len(fam.head)] in fam.words
+                                         or len(fam.words) >= FREE_TAIL_WORDS)
+                                        and (len(free) in fam.lengths or len(fam.lengths) >= FREE_TAIL_LENGTHS))):
+                                    # the common case of :meth:`_place`: a family whose tail tracking learns nothing
+                                    # from the line, and a route of one template with all of whose constants it agrees
+                                    best, = rt.members
+                                    fixed, const, _ = fixed_of[best]
+                                    if sum(map(eq, fixed, free)) == const:
+                                        cid = best
+                                if cid is None:
+                                    cid = place((), free, slot)
                     if len(seen) >= _MSG_CACHE:
                         seen.clear()
                     seen[msg] = cid
