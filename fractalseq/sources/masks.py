@@ -247,6 +247,11 @@ def mask_token(tok: str) -> str:
             core = tok.rstrip(_TRAIL)
             if is_path(core):
                 return WILDCARD + tok[len(core):]
+    return _mask_by_rules(tok)
+
+
+def _mask_by_rules(tok: str) -> str:
+    """:func:`mask_token` by the general steps alone (its shortcuts give the same for the tokens they take)."""
     if ":" in tok:
         core = tok.strip("\"'()[]{}<>,;")
         if core and is_ipv6(core):
