@@ -214,7 +214,6 @@ class _Family:
         self.tail = -2
 
 
-
 class TemplateMiner:
     """Streaming template miner (see the module documentation).
 
