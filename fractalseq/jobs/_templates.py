@@ -15,6 +15,7 @@ mining.  Drift reports on logs are no security guarantee.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from itertools import compress
 from typing import Callable, Sequence
 
 import numpy as np
@@ -167,13 +168,11 @@ def mine_logs(
         for first_line, lines in _lines(origin, block_size, stats):
             top = len(miner.clusters)
             if "" in lines or any(map(str.isspace, lines)):
-                ids = [-1] * len(lines)
-                kept = [j for j, ln in enumerate(lines) if ln and not ln.isspace()]
-                for j, c in zip(kept, add_many([lines[j] for j in kept])):
-                    ids[j] = c
+                kept = list(map(bool, map(str.strip, lines)))  # a blank line (only whitespace) gets no template: -1
+                arr = np.full(len(lines), -1, dtype=np.int64)
+                arr[np.array(kept, dtype=bool)] = add_many(list(compress(lines, kept)))
             else:
-                ids = add_many(lines)
-            arr = np.asarray(ids, dtype=np.int64)
+                arr = np.asarray(add_many(lines), dtype=np.int64)
             if len(miner.clusters) > top:  # clusters are numbered as they are made: a new one first shows here
                 new = np.flatnonzero(arr >= top)
                 made, first = np.unique(arr[new], return_index=True)

@@ -19,6 +19,7 @@ Sibling labels
 from __future__ import annotations
 
 from functools import lru_cache
+from operator import ne
 from typing import Sequence
 
 from fractalseq.sources.masks import WILDCARD
@@ -60,6 +61,8 @@ def constant_part(tok: str) -> str:
 
 def conflicting(tpl: Sequence[str], free: Sequence[str]) -> bool:
     """Whether a template and a line's tokens fix different constants at ``CONFLICTS`` or more positions."""
+    if sum(map(ne, tpl, free)) < CONFLICTS:
+        return False  # too few different tokens (most lines): no need to look at what they fix
     k = 0
     for a, b in zip(tpl, free):
         if a != b:

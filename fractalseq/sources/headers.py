@@ -193,7 +193,17 @@ def split_header(line: str) -> tuple[Header, str]:
     if not line:
         return _EMPTY, line
     c = line[0]
-    if c.isdigit():
+    if c.isalpha() and line[:3] not in _MON_WDAY and " [" not in line:
+        # fast path of a line led by a word that starts no time: the general steps below give a header only when
+        # that word is a level word (``_level`` at 0, which looks at the first token alone)
+        end = line.find(" ")
+        tok = line if end < 0 else line[:end]
+        if not 3 <= len(tok) <= 14:
+            return _EMPTY, line
+        up = _LEVEL_MEMO.get(tok)
+        if up == "":
+            return _EMPTY, line
+    elif c.isdigit():
         # fast path of a plain ISO stamp followed by a first word that names no level, no program (no ':' at its end)
         # and no bracketed field, and by a second word without ':' at its end: the general steps below give no
         # header field and the message after the stamp (any other line takes the general steps)

@@ -36,6 +36,7 @@ they are heuristics, and a constant that looks like a number is masked too.
 from __future__ import annotations
 
 import re
+from typing import Callable
 
 __all__ = [
     "WILDCARD",
@@ -63,8 +64,8 @@ _IPV6_CHARS = _HEX | frozenset(":.")
 _DROP_DIGITS = str.maketrans("", "", "0123456789")
 _ID_CHARS = frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_-+/=")
 _TRAIL = ".:!?"
-_LEAD = frozenset("\"'([{<")
-_TAIL = frozenset("\"')]}>,;:.!?")
+_LEAD_CHARS = "\"'([{<"
+_TAIL_CHARS = "\"')]}>,;:.!?"
 # separators inside a whitespace token; a character class with one '+' runs in linear time
 _SPLIT = re.compile(r"([=,;#|()\[\]{}<>\"']+)")
 _SEP_CHARS = frozenset("=,;#|()[]{}<>\"'")
@@ -206,21 +207,59 @@ def is_variable(s: str) -> bool:
     return is_id(core)
 
 
+#: a token that is ASCII, holds none of these and fewer than two ``:`` is never masked (every rule needs one of them)
+_RISKY = frozenset("0123456789/@")
+#: a token led by an ASCII letter and holding none of these is judged by the letter-led rules alone
+_WORD_RISK = _SEP_CHARS | frozenset("/@")
+_LETTERS = frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ")
+
+
+def _letter_led_variable(core: str) -> bool:
+    """:func:`is_variable` of a core that starts with an ASCII letter and holds no ``/``, ``@``, separator or two ``:``.
+
+    Such a core is no number, IPv4 or IPv6 address, URL, email or path, so only
+    the ``v`` + digit, hex and id rules can apply (in that order, as in :func:`is_variable`).
+    """
+    c = core[0]
+    if c in "vV" and len(core) > 1 and core[1].isdigit():
+        return True
+    if not _ID_CHARS.issuperset(core):
+        return False  # hex digits, dashed hex and ids hold only id characters
+    if c in "abcdefABCDEF" and (is_hex(core) or _is_dashed_hex(core)):
+        return True
+    return is_id(core)
+
+
 def mask_token(tok: str) -> str:
     """The token with its variable pieces replaced by ``<*>`` (the whole token, brackets and quotes aside, when it is variable as a whole)."""
-    n = len(tok)
+    # shortcuts that give what the general steps below give, with fewer steps
+    if tok[:1] in _DIGITS and ":" not in tok:
+        return WILDCARD + tok[len(tok.rstrip(_TAIL_CHARS)):]  # no IPv6 test to pass first; a digit leads the core
+    if tok.isascii() and tok.count(":") < 2:
+        if _RISKY.isdisjoint(tok):
+            return tok  # no digit, "/" or "@", fewer than two ":": no rule can mask the token or a piece of it
+        if tok[0] in _LETTERS and _WORD_RISK.isdisjoint(tok):
+            # no lead to set aside and no piece to split: the core is the token without its trailing ".:!?"
+            core = tok.rstrip(_TRAIL)
+            return WILDCARD + tok[len(core):] if _letter_led_variable(core) else tok
+        if "/" in tok and ":" not in tok and "@" not in tok and _SEP_CHARS.isdisjoint(tok):
+            # no lead, no piece, no URL, email or IPv6: a path core is masked whatever rule comes before the path rule
+            core = tok.rstrip(_TRAIL)
+            if is_path(core):
+                return WILDCARD + tok[len(core):]
+    return _mask_by_rules(tok)
+
+
+def _mask_by_rules(tok: str) -> str:
+    """:func:`mask_token` by the general steps alone (its shortcuts give the same for the tokens they take)."""
     if ":" in tok:
         core = tok.strip("\"'()[]{}<>,;")
         if core and is_ipv6(core):
             return tok.replace(core, WILDCARD, 1)
-    i = 0
-    while i < n and tok[i] in _LEAD:
-        i += 1
-    j = n
-    while j > i and tok[j - 1] in _TAIL:
-        j -= 1
-    if j > i and is_variable(tok[i:j]):
-        return tok[:i] + WILDCARD + tok[j:]
+    i = len(tok) - len(tok.lstrip(_LEAD_CHARS))
+    core = tok[i:].rstrip(_TAIL_CHARS)
+    if core and (core[0] in _DIGITS or is_variable(core)):  # a core led by a digit is variable (number, version...)
+        return tok[:i] + WILDCARD + tok[i + len(core):]
     if _SEP_CHARS.isdisjoint(tok):
         return tok
     parts = _SPLIT.split(tok)
@@ -238,27 +277,31 @@ def mask_token(tok: str) -> str:
 _CACHE_LIMIT = 1 << 17
 
 
+class _MaskCache(dict):
+    """token -> masked token; a token not yet in it is masked once and kept (cleared past ``_CACHE_LIMIT`` entries)."""
+
+    __slots__ = ()
+
+    def __missing__(self, tok: str) -> str:
+        m = mask_token(tok) or tok
+        if len(self) >= _CACHE_LIMIT:
+            self.clear()
+        self[tok] = m
+        return m
+
+
 class TokenMasker:
     """Masks tokens with a bounded cache (most log words repeat)."""
 
-    __slots__ = ("_cache",)
+    __slots__ = ("_cache", "one")
 
     def __init__(self) -> None:
-        self._cache: dict[str, str] = {}
+        self._cache = _MaskCache()
+        #: the masked token of one token (through the cache)
+        self.one: Callable[[str], str] = self._cache.__getitem__
 
     def __call__(self, tokens: list[str]) -> list[str]:
-        out = list(map(self._cache.get, tokens))  # most tokens were seen before: no Python step per token
-        if None in out:
-            miss = self._miss
-            out = [m if m is not None else miss(t) for m, t in zip(out, tokens)]
-        return out
-
-    def _miss(self, tok: str) -> str:
-        m = mask_token(tok) or tok
-        if len(self._cache) >= _CACHE_LIMIT:
-            self._cache.clear()
-        self._cache[tok] = m
-        return m
+        return list(map(self.one, tokens))  # a token seen before takes no Python step
 
 
 def mask_tokens(tokens: list[str]) -> list[str]:

@@ -39,7 +39,7 @@ Each line goes through these steps:
    its templates.  Once a ``LABEL: ...`` family (``PASS: <*>``) has a free
    text tail, the families of sibling labels of the same shape (``FAIL:``,
    ``UNTESTED:``) get one at once (:func:`~fractalseq.sources.evidence.label_shape`).
-5. A merge pass (:meth:`TemplateMiner.finish`) over templates with the same
+5. A merge pass (:meth:`TemplateMiner.finish`, :mod:`fractalseq.sources.template_merge`) over templates with the same
    pinned tokens and length: first, templates seen on one line each that are
    equal but at one position, where they hold ``VARIABLE_WORDS`` or more
    different words, fold into one with ``<*>`` there (many different words
@@ -66,12 +66,11 @@ any number of further tokens).
 from __future__ import annotations
 
 import gc
-import math
 from dataclasses import dataclass, field
 from collections import Counter
 from itertools import chain, islice
 from operator import eq
-from typing import Sequence
+from typing import Callable, Sequence
 
 from fractalseq.errors import ParameterError
 from fractalseq.sources.evidence import conflicting, label_shape
@@ -80,6 +79,7 @@ from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
 from fractalseq.sources.routes import Route
 from fractalseq.sources.structured import Tokenizer
+from fractalseq.sources.template_merge import MAX_SCAN, fold_group
 from fractalseq.sources.template_index import TAIL, TemplateIndex
 
 __all__ = ["DEFAULT_DEPTH", "DEFAULT_THRESHOLD", "TAIL", "MinedTemplate", "TemplateIndex", "TemplateMiner", "line_signature"]
@@ -91,10 +91,6 @@ DEFAULT_MAX_CHILDREN = 32
 #: clusters have this many different lengths and this many different words right after the head
 FREE_TAIL_LENGTHS = 4
 FREE_TAIL_WORDS = 12
-#: different words at one position (the rest of the templates equal) that make it a variable in the merge pass
-VARIABLE_WORDS = 3
-#: clusters a line is compared with in one route (the most recently matched), templates one is tried against in the merge pass
-MAX_SCAN = 64
 _ROUTE_STRIP = "[]()<>{}:,;.!?\"'"
 
 
@@ -184,6 +180,25 @@ def _constants(tokens: list[str], words: list[bool]) -> tuple[list[str | None], 
     return fixed, len(fixed) - fixed.count(None), [t if w else None for t, w in zip(tokens, words)]
 
 
+class _RouteTokens(dict):
+    """Word of a plain-text line before masking -> its routing token (the masked word if a plain word, else ``<*>``)."""
+
+    __slots__ = ("mask",)
+
+    def __init__(self, mask: Callable[[str], str]) -> None:
+        super().__init__()
+        #: the masked token of a word (the tokenizer's cache: the word is masked once for both)
+        self.mask = mask
+
+    def __missing__(self, word: str) -> str:
+        tok = self.mask(word)
+        tok = tok if _routable(tok) else WILDCARD
+        if len(self) >= _MSG_CACHE:
+            self.clear()
+        self[word] = tok
+        return tok
+
+
 class _Family:
     """Lines sharing pinned tokens and routing head: their clusters, lengths and first words after the head."""
 
@@ -235,9 +250,11 @@ class TemplateMiner:
         #: label shapes (:func:`_label_shape`) of families that got a free-text tail
         self._free_labels: set[tuple] = set()
         self._absorbed: dict[int, int] = {}
-        self._head_memo: dict[tuple, tuple[str, ...]] = {}
-        #: routing key -> [family, route or None, family key] (see :meth:`_place`)
+        #: (pinned tokens, number of free tokens, routing tokens of the first ``depth``) -> [family, route or None,
+        #: family key] (see :meth:`_place`); a routing token is the token when it is a plain word, else ``<*>``
         self._slots: dict[tuple, list] = {}
+        #: word of a plain-text line before masking -> its routing token (masks are fixed rules)
+        self._route_tok = _RouteTokens(self.tokenize.mask.one)
         #: (number of words, first ``depth`` words before masking) of a plain-text line -> its slot
         self._raw_slots: dict[tuple, list] = {}
         #: per cluster, its template with ``None`` for a wildcard (a line changes it when a constant differs)
@@ -262,10 +279,12 @@ class TemplateMiner:
         seen = self._seen
         clusters = self.clusters
         tokenize = self.tokenize.uncached  # ``_seen`` remembers messages
-        plain, mask = self.tokenize.plain_words, self.tokenize.mask
+        plain, mask = self.tokenize.plain_words, self.tokenize.mask.one
         slots, raw_slots = self._slots, self._raw_slots
+        route_tok = self._route_tok.__getitem__
         depth = self.depth
         place = self._place
+        fixed_of = self._fixed
         split = split_header
         out: list[int] = []
         append = out.append
@@ -288,15 +307,35 @@ class TemplateMiner:
                         # fixed rules), and a line of a family whose tail is free text needs no masking at all
                         rkey = (len(words), *words[:depth])
                         slot = raw_slots.get(rkey)
-                        if slot is not None and slot[0].tail >= 0:
-                            cid = slot[0].tail
-                        else:
-                            free = mask(words)
-                            cid = place((), free, slot)
+                        if slot is None:
+                            key = ((), rkey[0], *map(route_tok, words[:depth]))
+                            slot = slots.get(key)
                             if slot is None:
-                                if len(raw_slots) >= _MSG_CACHE:
-                                    raw_slots.clear()
-                                raw_slots[rkey] = slots[((), len(free), *free[:depth])]
+                                cid = place((), list(map(mask, words)))
+                                slot = slots[key]
+                            if len(raw_slots) >= _MSG_CACHE:
+                                raw_slots.clear()
+                            raw_slots[rkey] = slot
+                        if cid is None:
+                            fam = slot[0]
+                            if fam.tail >= 0:
+                                cid = fam.tail
+                            else:
+                                free = list(map(mask, words))
+                                rt = slot[1]
+                                if rt is not None and len(rt.members) == 1 and (
+                                    fam.tail == -2
+                                    or ((len(free) <= len(fam.head) or free[len(fam.head)] in fam.words
+                                         or len(fam.words) >= FREE_TAIL_WORDS)
+                                        and (len(free) in fam.lengths or len(fam.lengths) >= FREE_TAIL_LENGTHS))):
+                                    # the common case of :meth:`_place`: a family whose tail tracking learns nothing
+                                    # from the line, and a route of one template with all of whose constants it agrees
+                                    best, = rt.members
+                                    fixed, const, _ = fixed_of[best]
+                                    if sum(map(eq, fixed, free)) == const:
+                                        cid = best
+                                if cid is None:
+                                    cid = place((), free, slot)
                     if len(seen) >= _MSG_CACHE:
                         seen.clear()
                     seen[msg] = cid
@@ -325,28 +364,18 @@ class TemplateMiner:
                     memo[tok] = ok
         return out
 
-    def _head(self, pinned: tuple[str, ...], n: int, free: list[str]) -> tuple[str, ...]:
-        """Routing tokens of a line: its first ``depth`` free tokens, a token that is not a plain word as ``<*>``.
+    def _head(self, pinned: tuple[str, ...], n: int, route: tuple[str, ...]) -> tuple[str, ...]:
+        """Routing head of a line: its routing tokens (``route``, ``<*>`` for a token that is no plain word), a word
+        refused at a level that already keeps ``max_children`` words as ``<*>``.
 
         Once a word is kept at a level, or refused because the level is full,
-        it routes the same way for good; so the result is remembered.
+        it routes the same way for good; so the head of a key never changes.
         """
-        key = (pinned, n, *free[: self.depth])
-        head = self._head_memo.get(key)
-        if head is not None:
-            return head
         out: list[str] = []
-        route: tuple = (pinned, n)
-        words = self._route_word
-        for tok in free[: self.depth]:
-            ok = words.get(tok)
-            if ok is None:
-                ok = _routable(tok)
-                if len(words) >= _MSG_CACHE:
-                    words.clear()
-                words[tok] = ok
-            if ok:
-                key_kids = route + tuple(out)
+        prefix: tuple = (pinned, n)
+        for tok in route:
+            if tok != WILDCARD:
+                key_kids = prefix + tuple(out)
                 kids = self._children.get(key_kids)
                 if kids is None:
                     kids = self._children[key_kids] = set()
@@ -355,23 +384,18 @@ class TemplateMiner:
                         tok = WILDCARD
                     else:
                         kids.add(tok)
-                out.append(tok)
-            else:
-                out.append(WILDCARD)
-        head = tuple(out)
-        if len(self._head_memo) >= _MSG_CACHE:
-            self._head_memo.clear()
-        self._head_memo[key] = head
-        return head
+            out.append(tok)
+        return tuple(out)
 
     def _place(self, pinned: tuple[str, ...], free: list[str], slot: list | None = None) -> int:
         """The cluster a line joins, or a new one (``slot``: the line's routing slot when known, see ``_slots``)."""
         n = len(free)
         if slot is None:
-            key = (pinned, n, *free[: self.depth])
+            route = tuple(t if w else WILDCARD for t, w in zip(free, self._words(free[: self.depth])))
+            key = (pinned, n, *route)
             slot = self._slots.get(key)  # routing head, family and route of a key: fixed once made
         if slot is None:
-            head = self._head(pinned, n, free)
+            head = self._head(pinned, n, route)
             fkey = (pinned, head)
             fam = self._families.get(fkey)
             sibling_tail = False
@@ -384,7 +408,7 @@ class TemplateMiner:
             slot = [fam, self._routes.get((fkey, n)), fkey]
             if len(self._slots) >= _MSG_CACHE:
                 self._slots.clear()
-            self._slots[key] = slot  # (the block loop reads the slot back, also after a collapse)
+            self._slots[key] = slot
             if sibling_tail:
                 return self._collapse(fam, pinned)  # a sibling label of this shape has a free-text tail
         else:
@@ -409,6 +433,11 @@ class TemplateMiner:
                 rt = self._routes[(slot[2], n)] = Route()
             slot[1] = rt
         members = rt.members
+        if len(members) == 1:
+            best, = members
+            fixed, const, _ = self._fixed[best]
+            if sum(map(eq, fixed, free)) == const:
+                return best  # the line has every constant of the only template of its route: it joins it unchanged
         clusters = self.clusters
         crowded = len(members) > MAX_SCAN
         # only the plain words of the templates (no digit, no inner punctuation) are evidence of agreement
@@ -540,100 +569,13 @@ class TemplateMiner:
         return tail
 
     # ----------------------------------------------------------- merge pass
-    def _foldable(self, a: list[str], b: list[str]) -> bool:
-        shared = const_a = const_b = 0
-        for x, y in zip(a, b):
-            if x == WILDCARD:
-                if y != WILDCARD:
-                    const_b += 1
-                continue
-            const_a += 1
-            if y == WILDCARD:
-                continue
-            const_b += 1
-            if x != y:
-                return False
-            shared += 1
-        need = max(1, math.ceil(self.threshold * max(const_a, const_b)))
-        return shared >= need or (const_a == 0 and const_b == 0)
-
-    def _variable_positions(self, reps: list[tuple[int, list[str]]], parent: list[int]) -> list[tuple[int, list[str]]]:
-        """Fold templates seen on one line each that are equal but at one position, where they hold
-        at least ``VARIABLE_WORDS`` different words.
-
-        Many different words each seen once at one place are the mark of an
-        open set of values (a user name, a host name): ``user alice logged in``,
-        ``user bob logged in``, ``user carol logged in`` become ``user <*>
-        logged in`` (and the ordinary fold then takes ``user root logged in``
-        however often root recurs), while words that recur (``status
-        installed`` / ``status unpacked``), or only two alternatives
-        (``job <*> started`` / ``job <*> done``), keep their templates.
-        """
-        once = [k for k, (cid, _) in enumerate(reps) if self._counts[cid] == 1]
-        if len(once) < VARIABLE_WORDS:
-            return reps
-        n = len(reps[0][1])
-        alive = dict.fromkeys(once)
-        gone: set[int] = set()
-        toks = [list(t) for _, t in reps]
-        for p in range(n):
-            buckets: dict[tuple[str, ...], list[int]] = {}
-            for k in alive:
-                t = toks[k]
-                if t[p] == WILDCARD:
-                    continue
-                buckets.setdefault((*t[:p], *t[p + 1 :]), []).append(k)
-            for ks in buckets.values():
-                if len(ks) >= VARIABLE_WORDS:
-                    head = ks[0]
-                    toks[head][p] = WILDCARD
-                    for k in ks[1:]:
-                        parent[reps[k][0]] = reps[head][0]
-                        del alive[k]
-                        gone.add(k)
-        return [(cid, toks[k]) for k, (cid, _) in enumerate(reps) if k not in gone]
-
-    def _fold(self, members: list[int], parent: list[int]) -> None:
-        """Fold the templates of one (pinned, length) group; each is tried against at most ``MAX_SCAN`` kept ones."""
-        reps: list[tuple[int, list[str]]] = []
-        exact: dict[tuple[str, ...], int] = {}
-        for cid in members:
-            key = tuple(self.clusters[cid].tokens)
-            rid = exact.get(key)
-            if rid is None:
-                exact[key] = cid
-                reps.append((cid, list(key)))
-                self._counts[cid] = self.clusters[cid].count
-            else:
-                parent[cid] = rid
-                self._counts[rid] += self.clusters[cid].count
-        reps = self._variable_positions(reps, parent)
-        changed = True
-        while changed and len(reps) > 1:
-            changed = False
-            out: list[tuple[int, list[str]]] = []
-            for cid, toks in reps:
-                lo = max(0, len(out) - MAX_SCAN)
-                for k in range(lo, len(out)):
-                    rid, rt = out[k]
-                    if self._foldable(rt, toks):
-                        out[k] = (rid, [x if x == y else WILDCARD for x, y in zip(rt, toks)])
-                        parent[cid] = rid
-                        changed = True
-                        break
-                else:
-                    out.append((cid, toks))
-            reps = out
-        for rid, rt in reps:
-            self.clusters[rid].tokens = rt
-
     def finish(self) -> list[MinedTemplate]:
         """Run the merge pass; the final templates by order of first appearance.
 
         After this, :meth:`final_id` maps a cluster number to its template id.
         """
         parent = list(range(len(self.clusters)))
-        self._counts: dict[int, int] = {}
+        counts: dict[int, int] = {}
         for cid, tail in self._absorbed.items():
             parent[cid] = tail
         groups: dict[tuple, list[int]] = {}
@@ -642,7 +584,7 @@ class TemplateMiner:
                 continue
             groups.setdefault((c.pinned, len(c.tokens)), []).append(cid)
         for members in groups.values():
-            self._fold(members, parent)
+            fold_group(self.clusters, members, parent, counts, self.threshold)
         root = parent[:]
         for i in range(len(root)):
             r = root[i]

@@ -89,6 +89,9 @@ _CONTROL[32:127] = False
 _CONTROL[128:] = False
 for _b in b"\t\n\x0b\x0c\r\x1b":
     _CONTROL[_b] = False
+#: the bytes that are not control bytes (deleted by ``bytes.translate``, they leave the control bytes)
+_NOT_CONTROL = bytes(np.flatnonzero(~_CONTROL).tolist())
+_HIGH = bytes(range(128, 256))
 
 
 #: a line whose control bytes (NUL aside) exceed this share of its bytes is binary junk
@@ -138,7 +141,7 @@ def is_binary(block: bytes) -> bool:
     """
     if not block:
         return False
-    if b"\x00" not in block and not _CONTROL[np.frombuffer(block, dtype=np.uint8)].any():
+    if not block.translate(None, _NOT_CONTROL):  # no NUL or other control byte
         bad = None
     else:
         length, nul, control = line_junk(block)
@@ -154,8 +157,7 @@ def is_binary(block: bytes) -> bool:
             return True
         keep = ~bad[line]
         block = arr[keep].tobytes()
-    arr = np.frombuffer(block, dtype=np.uint8)
-    if arr.size and (arr >= 128).mean() > 0.30:
+    if block and (len(block) - len(block.translate(None, _HIGH))) / len(block) > 0.30:
         try:
             codecs.getincrementaldecoder("utf-8")().decode(block, final=False)
         except UnicodeDecodeError:
