@@ -27,11 +27,12 @@ from typing import Any, Callable, Iterable, Sequence
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import FractalseqError, InputError, ParameterError
-from fractalseq.jobs._inputs import default_window
+from fractalseq.jobs._inputs import check_piece, default_window
 from fractalseq.predict._baselines import baseline_kinds
 from fractalseq.predict._online import evaluate_online
 from fractalseq.predict._predictor import CellPredictor
 from fractalseq.predict._results import DEFAULT_TOP_WINDOWS, DEFAULT_WINDOW, PredictionResult
+from fractalseq.runner import Engine, SerialEngine
 from fractalseq.results import CAUTION_GENOMIC, CAUTION_LOGS, Result, caution_for, is_log_alphabet
 
 RESEARCH_NOTE = CAUTION_GENOMIC
@@ -138,6 +139,8 @@ def learn_files(
     reader: dict | None = None,
     params: dict | None = None,
     on_input: Callable[[str], None] | None = None,
+    engine: Engine | None = None,
+    piece: int | None = None,
 ) -> LearnReport:
     """Learn a :class:`~fractalseq.predict._predictor.CellPredictor` from training files (and save it).
 
@@ -157,6 +160,12 @@ def learn_files(
         ``reverse_complement``...).
     on_input:
         Called with each file's name once it is counted (progress display).
+    engine, piece:
+        Where the words are counted: ``None`` or the serial engine count each file in one
+        streamed pass; another engine cuts each file into pieces of ``piece`` symbols
+        (default 2**24) overlapping by the counting depth minus one, counts them on its
+        workers and adds them up in order (exact integers: the model file is the same bytes).
+        The fit itself runs in this process.
     """
     from fractalseq.words._corpus import count_inputs
 
@@ -167,10 +176,12 @@ def learn_files(
     read = training_reader(paths, fmt, dict(reader or {}))
     read_alpha = training_alphabet(paths, fmt, alphabet, policy, read)
     read_fmt = "log" if _is_templates(read_alpha) else fmt
-    wc, reports = count_inputs(
-        ((p, _open(p, read_fmt, read_alpha, policy, read)) for p in paths), model.count_depth, on_input=on_input,
-        compact=True,
-    )
+    piece = check_piece(piece)
+    opened = ((p, _open(p, read_fmt, read_alpha, policy, read)) for p in paths)
+    if engine is None or isinstance(engine, SerialEngine):
+        wc, reports = count_inputs(opened, model.count_depth, on_input=on_input, compact=True)
+    else:
+        wc, reports = _count_on_engine(opened, model.count_depth, engine, piece, on_input)
     if wc.length == 0:
         raise InputError("The training inputs hold no usable symbols; check the files and the alphabet and format they are read with.")
     # the fit drops the word counts (12 bytes a distinct deepest word) once its cell tables are built
@@ -199,6 +210,22 @@ def learn_files(
         note=caution([model.alphabet_]),
         predictor=model,
     )
+
+
+def _count_on_engine(opened, depth_of, engine: Engine, piece: int | None, on_input):
+    """Each input cut into pieces counted on ``engine`` (:func:`~fractalseq.words._pieces.count_words_split`), inputs added in order."""
+    from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split, settle_storage
+
+    total, reports = None, []
+    for p, stream in opened:
+        if total is not None and not total.alphabet.same_symbols(stream.alphabet):
+            raise InputError(f"{p} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs.")
+        wc = count_words_split(stream, depth_of(stream.alphabet), engine, chunk=DEFAULT_PIECE if piece is None else piece)
+        total = wc if total is None else total + wc
+        reports.append((p, stream.report))
+        if on_input is not None:
+            on_input(p)
+    return settle_storage(total), reports
 
 
 # ------------------------------------------------------------------- score
@@ -248,6 +275,8 @@ def score_files(
     params: dict | None = None,
     on_source: Callable[[str], None] | None = None,
     baselines: str = "markov",
+    engine: Engine | None = None,
+    piece: int | None = None,
 ) -> ScoreReport:
     """Score files with a fitted model (a model file or object) or online (``online=True``, a fresh model per file).
 
@@ -276,8 +305,16 @@ def score_files(
         ``"markov"`` (default: the KT Markov baseline, cheap), ``"all"`` (also lzma, bz2 and zlib on the
         same symbols, which take longer than the predictor itself) or ``"none"``; a baseline not
         computed is absent from each source's ``baselines`` object.
+    engine, piece:
+        Fitted mode: each file is cut into pieces of ``piece`` symbols (default 2**24), scored on
+        ``engine`` (default: serially) and added up in order; every engine gives the same bytes
+        for the same ``piece`` (:mod:`fractalseq.predict._split_score`).
     """
     baseline_kinds(baselines)  # one sentence for a bad choice, before anything is read
+    piece = check_piece(piece)
+    if online and engine is not None and not isinstance(engine, SerialEngine):
+        raise ParameterError("Online scoring codes each file as one stream, which cannot be split into pieces; "
+                             "leave out the engine and workers.", parameter="engine")
     if (model is None) == (not online):
         raise ParameterError("Give either a model (fitted mode) or online=True (no model), not both or neither.", parameter="model")
     model_name = None
@@ -304,7 +341,7 @@ def score_files(
             size = window if window is not None else DEFAULT_WINDOW
             src = stream
         if model is not None:
-            res = model.evaluate(src, window=size, top_windows=top, baselines=baselines)
+            res = model.evaluate(src, window=size, top_windows=top, baselines=baselines, engine=engine, piece=piece, model_path=model_name)
         else:
             res = evaluate_online(src, window=size, top_windows=top, baselines=baselines, **(params or {}))
         rep = arr.report if arr is not None else stream.report
