@@ -144,3 +144,41 @@ def test_score_command_with_workers_prints_the_serial_bytes(tmp_path, lambda_mod
     split = subprocess.run([*base, "--workers", "2"], capture_output=True, text=True, timeout=300, env=env)
     assert serial.returncode == split.returncode == 0, split.stderr
     assert split.stdout == serial.stdout
+
+
+# ------------------------------------------------------------------ online, per record
+def test_online_per_record_on_processes_equals_serial_and_each_record_alone(tmp_path, engine):
+    rng = np.random.default_rng(3)
+    recs = ["".join(np.array(list("ACGT"))[rng.integers(0, 4, n)]) for n in (3_000, 50, 7_000)]
+    recs.append(recs[2])  # the last record repeats the third
+    path = tmp_path / "multi.fa"
+    path.write_text("".join(f">r{i} invented\n{s}\n" for i, s in enumerate(recs)))
+    serial = score_files([str(path)], online=True, per_record=True, window=1_000)
+    split = score_files([str(path)], online=True, per_record=True, window=1_000, engine=engine)
+    assert to_json(split.to_dict()) == to_json(serial.to_dict())
+    assert [s.name for s in serial.sources] == [f"{path}:r{i}" for i in range(4)]
+    for i, s in enumerate(recs):  # each record scores as the same record written to a file of its own
+        alone = tmp_path / f"r{i}.fa"
+        alone.write_text(f">r{i} invented\n{s}\n")
+        one = score_files([str(alone)], online=True, window=1_000).sources[0]
+        assert serial.sources[i].total_bits == one.total_bits and serial.sources[i].length == len(s)
+    assert serial.total_bits == sum(s.total_bits for s in serial.sources)
+    # one stream: the repeated record is predicted from the model the earlier records taught, so the file
+    # codes shorter than the sum of fresh starts (both are upper bounds; the per-record one is the larger)
+    whole = score_files([str(path)], online=True, window=1_000)
+    assert whole.total_bits < serial.total_bits
+    assert whole.length == serial.length
+
+
+@pytest.mark.slow
+def test_score_online_per_record_command_with_workers(tmp_path):
+    path = tmp_path / "m.fa"
+    path.write_text(_fasta(11, 4, 6_000))
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    base = [*CLI, "score", str(path), "--online", "--per-record", "--json"]
+    serial = subprocess.run(base, capture_output=True, text=True, timeout=300, env=env)
+    split = subprocess.run([*base, "--workers", "2"], capture_output=True, text=True, timeout=300, env=env)
+    assert serial.returncode == split.returncode == 0, split.stderr
+    assert split.stdout == serial.stdout
+    refused = subprocess.run([*CLI, "score", str(path), "--online", "--workers", "2"], capture_output=True, text=True, timeout=300, env=env)
+    assert refused.returncode == 2 and "Traceback" not in refused.stderr and "per record" in refused.stderr

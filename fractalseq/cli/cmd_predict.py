@@ -233,6 +233,11 @@ def score(
     scheduler: Optional[str] = common.SCHEDULER,
     connect_timeout: float = common.CONNECT_TIMEOUT,
     piece: int = common.PIECE,
+    per_record: bool = typer.Option(
+        False, "--per-record",
+        help="Score every record of every input (chromosome, contig, read) as a source of its own, named INPUT:RECORD; "
+             "with --online each record is coded by a fresh model (the total is the sum of the records' upper bounds).",
+    ),
 ) -> None:
     """Score files: bits per symbol overall, per record and per window, with the most surprising stretches.
 
@@ -257,6 +262,14 @@ def score(
     scored on the workers and the output is the same bytes as a serial run
     with the same --piece.
 
+    With --per-record every record is scored as a source of its own. Online,
+    a file is one stream by default (later records profit from what earlier
+    ones taught the model); with --per-record each record starts from a fresh
+    model, so each record's total is an upper bound on its own information
+    content and the total is their sum, a larger upper bound. Online scoring
+    runs on --workers only with --per-record (one record per task; the same
+    bytes as serial).
+
     Example: fractalseq score --online genome.fna.xz --window 50000 --json
     """
     common.protect_inputs(paths, model)  # no output may replace an input, even with --force
@@ -270,7 +283,7 @@ def score(
         report = score_files(
             list(paths), model, online=online, fmt=fmt, alphabet=alphabet, policy=policy,
             reader=reader_options(column, bins, thresholds, ordinal, delay, ties), window=window, top=top, params=params,
-            on_source=lambda _: bar.advance(task), baselines=baselines, engine=eng, piece=piece,
+            on_source=lambda _: bar.advance(task), baselines=baselines, engine=eng, piece=piece, per_record=per_record,
         )
     if json_out:
         typer.echo(to_json(report.to_dict()), nl=False)

@@ -212,6 +212,12 @@ def learn_files(
     )
 
 
+def _online_task(task: tuple) -> PredictionResult:
+    """Online code length of one source (a task of an engine): ``(source, window, top, baselines, params)``."""
+    src, size, top, baselines, params = task
+    return evaluate_online(src, window=size, top_windows=top, baselines=baselines, **params)
+
+
 def _count_on_engine(opened, depth_of, engine: Engine, piece: int | None, on_input):
     """Each input cut into pieces counted on ``engine`` (:func:`~fractalseq.words._pieces.count_words_split`), inputs added in order."""
     from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split, settle_storage
@@ -277,6 +283,7 @@ def score_files(
     baselines: str = "markov",
     engine: Engine | None = None,
     piece: int | None = None,
+    per_record: bool = False,
 ) -> ScoreReport:
     """Score files with a fitted model (a model file or object) or online (``online=True``, a fresh model per file).
 
@@ -308,13 +315,21 @@ def score_files(
     engine, piece:
         Fitted mode: each file is cut into pieces of ``piece`` symbols (default 2**24), scored on
         ``engine`` (default: serially) and added up in order; every engine gives the same bytes
-        for the same ``piece`` (:mod:`fractalseq.predict._split_score`).
+        for the same ``piece`` (:mod:`fractalseq.predict._split_score`).  Online mode takes an
+        engine only with ``per_record``: each record is then one task.
+    per_record:
+        Every record of every file (chromosome, contig, read) is a source of its own, named
+        ``INPUT:RECORD`` (:mod:`fractalseq.jobs._records`), scored from a fresh start: online, each
+        record is coded by a fresh model, so each record's code length is an upper bound on its own
+        information content and the total is their sum (an upper bound too, and larger than coding
+        the file as one stream, where later records profit from what earlier ones taught the model).
     """
     baseline_kinds(baselines)  # one sentence for a bad choice, before anything is read
     piece = check_piece(piece)
-    if online and engine is not None and not isinstance(engine, SerialEngine):
-        raise ParameterError("Online scoring codes each file as one stream, which cannot be split into pieces; "
-                             "leave out the engine and workers.", parameter="engine")
+    if online and not per_record and engine is not None and not isinstance(engine, SerialEngine):
+        raise ParameterError("Online scoring codes each file as one stream, which cannot be split into pieces; score each "
+                             "record as a stream of its own (per record) on the workers, or leave out the engine and workers.",
+                             parameter="engine")
     if (model is None) == (not online):
         raise ParameterError("Give either a model (fitted mode) or online=True (no model), not both or neither.", parameter="model")
     model_name = None
@@ -328,44 +343,68 @@ def score_files(
     scored, alphabets = [], []
     if fmt == "auto" and _is_templates(read_alpha):
         fmt = "log"  # a log model (one log's templates or the union of several) reads logs
+    # (input, name, source, read report, alphabet, window) of every source to score: a file, or each of its records
+    items: list[tuple] = []
     for p in map(str, paths):
         stream = _open(p, fmt, read_alpha, policy, read)
         lined = stream.unit != "symbol"
-        size = window
         arr = None
-        if lined:  # one symbol per line: read it whole (one code per line) to size the windows and map positions
+        if lined or per_record:  # one symbol per line: read it whole (one code per line) to size the windows and map positions
             arr = stream.to_array()
+        if lined:
             size = window if window is not None else default_window(len(arr), True, overlapping=False)
-            src = arr.as_stream()
         else:
             size = window if window is not None else DEFAULT_WINDOW
-            src = stream
-        if model is not None:
-            res = model.evaluate(src, window=size, top_windows=top, baselines=baselines, engine=engine, piece=piece, model_path=model_name)
+        if per_record:
+            from fractalseq.jobs._records import record_arrays
+
+            parts = list(record_arrays(arr, p))
+            if not parts:
+                raise InputError(f"{p} holds no record with usable symbols; check the file and the alphabet and format it is read with.")
+            items.extend((p, part.name, part, part.report, stream.alphabet, size) for part in parts)
         else:
-            res = evaluate_online(src, window=size, top_windows=top, baselines=baselines, **(params or {}))
-        rep = arr.report if arr is not None else stream.report
-        if res.length == 0 and (len(paths) == 1 or not rep.extra.get("unlisted_templates")):
-            raise InputError(f"{p} holds no usable symbols; check the file and the alphabet and format it is read with.")
+            # a lazy stream's report is complete once it is read: the stream stands for it until then
+            items.append((p, p, arr.as_stream() if lined else stream, arr.report if lined else stream, stream.alphabet, size))
+    last = {it[0]: i for i, it in enumerate(items)}
+
+    def scored_one(i: int, it: tuple, res: PredictionResult) -> None:
+        p, name, _, rep, alpha, _ = it
+        rep = rep.report if hasattr(rep, "chunks") else rep
+        if res.length == 0 and (len(items) == 1 or not rep.extra.get("unlisted_templates")):
+            raise InputError(f"{name} holds no usable symbols; check the file and the alphabet and format it is read with.")
         # a log none of whose templates the model knows: kept as a source of length 0 with its unseen templates
         # listed, so the other files' results are not lost
-        alphabets.append(stream.alphabet)
+        alphabets.append(alpha)
         values = {f.name: getattr(res, f.name) for f in dataclasses.fields(res)}
-        values["name"] = p
+        values["name"] = name
         pos = rep.positions
         if pos is not None and len(pos) == res.length:
             values["most_surprising_windows"] = tuple(
                 dataclasses.replace(w, coordinates=pos.span(w.start, w.end)) for w in res.most_surprising_windows
             )
         scored.append(SourceScore(
-            **values, stream_name=res.name, alphabet=stream.alphabet.to_dict(), dropped=dict(sorted(rep.dropped.items())),
+            **values, stream_name=res.name, alphabet=alpha.to_dict(), dropped=dict(sorted(rep.dropped.items())),
             # log lines whose template the model never saw: not scored (the policy left them out), listed here
             unseen_templates=tuple(rep.extra.get("unlisted_templates", ())),
             unit=pos.unit if pos is not None and len(pos) == res.length else "symbol",
             read_notes=tuple(rep.summary_notes()),
         ))
-        if on_source is not None:
+        if on_source is not None and last[p] == i:
             on_source(p)
+
+    if model is None and engine is not None and not isinstance(engine, SerialEngine):
+        # records are independent online codings: one task each, results taken in record order
+        tasks = [(it[2], it[5], top, baselines, dict(params or {})) for it in items]
+        for i, res in enumerate(engine.map(_online_task, tasks)):
+            scored_one(i, items[i], res)
+    else:
+        for i, it in enumerate(items):
+            if model is not None:
+                res = model.evaluate(it[2], window=it[5], top_windows=top, baselines=baselines, engine=engine, piece=piece,
+                                     model_path=model_name)
+            else:
+                res = _online_task((it[2], it[5], top, baselines, params or {}))
+            scored_one(i, it, res)
     total_bits = sum(s.total_bits for s in scored if s.length)
     length = sum(s.length for s in scored)
     if length == 0:
