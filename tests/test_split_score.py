@@ -182,3 +182,15 @@ def test_score_online_per_record_command_with_workers(tmp_path):
     assert split.stdout == serial.stdout
     refused = subprocess.run([*CLI, "score", str(path), "--online", "--workers", "2"], capture_output=True, text=True, timeout=300, env=env)
     assert refused.returncode == 2 and "Traceback" not in refused.stderr and "per record" in refused.stderr
+
+
+def test_a_worker_refuses_a_model_file_that_changed(lambda_model, tmp_path):
+    from fractalseq.errors import InputError
+    from fractalseq.predict._split_score import ModelHandle, file_key, handle_model
+
+    key = file_key(lambda_model)
+    got = handle_model(ModelHandle(str(lambda_model), key, kind=CellPredictor))
+    assert got.n_cells_ == CellPredictor.load(lambda_model).n_cells_
+    stale = (key[0], key[1] + 1, key[2])  # the size the parent saw differs from the file's now
+    with pytest.raises(InputError):
+        handle_model(ModelHandle(str(lambda_model), stale, kind=CellPredictor))

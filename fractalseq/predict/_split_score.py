@@ -219,9 +219,6 @@ def evaluate_pieces(
     ov = max(max(model.depths_, default=0), order, 1)
     if model_path is not None and engine.name == "processes":  # local workers read the same file; Dask workers get the model
         handle = ModelHandle(str(model_path), file_key(model_path), kind=type(model))
-        # the parent's own copy serves the parent (never reloaded there)
-        _LOADED.clear()
-        _LOADED[handle.key] = model
     else:
         handle = ModelHandle(None, None, model)
     meter = CompressorMeter(a) if want_compressors else None
@@ -243,9 +240,6 @@ def evaluate_pieces(
         if cut[0]:
             raise
         acc = _empty(keep_surprisal)  # a source with no symbol
-    finally:
-        if handle.path is not None:
-            _LOADED.clear()
     n = int(acc.stats[K.ST_COUNT])
     recs = record_scores(np.asarray(acc.seg_starts, np.int64), np.asarray(acc.seg_bits, np.float64), source.report.records)
     sur = None
