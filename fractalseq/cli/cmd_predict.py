@@ -266,7 +266,8 @@ def score(
     a file is one stream by default (later records profit from what earlier
     ones taught the model); with --per-record each record starts from a fresh
     model, so each record's total is an upper bound on its own information
-    content and the total is their sum, a larger upper bound. Online scoring
+    content and the total is their sum (usually larger than the one-stream
+    figure). Online scoring
     runs on --workers only with --per-record (one record per task; the same
     bytes as serial).
 

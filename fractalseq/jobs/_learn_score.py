@@ -321,7 +321,7 @@ def score_files(
         Every record of every file (chromosome, contig, read) is a source of its own, named
         ``INPUT:RECORD`` (:mod:`fractalseq.jobs._records`), scored from a fresh start: online, each
         record is coded by a fresh model, so each record's code length is an upper bound on its own
-        information content and the total is their sum (an upper bound too, and larger than coding
+        information content and the total is their sum (an upper bound too, usually larger than coding
         the file as one stream, where later records profit from what earlier ones taught the model).
     """
     baseline_kinds(baselines)  # one sentence for a bad choice, before anything is read
