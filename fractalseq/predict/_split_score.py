@@ -241,7 +241,9 @@ def evaluate_pieces(
             raise
         acc = _empty(keep_surprisal)  # a source with no symbol
     n = int(acc.stats[K.ST_COUNT])
-    recs = record_scores(np.asarray(acc.seg_starts, np.int64), np.asarray(acc.seg_bits, np.float64), source.report.records)
+    recs = []
+    if window or keep_surprisal:  # (as the per-window detail: a caller asking for neither wants the total only)
+        recs = record_scores(np.asarray(acc.seg_starts, np.int64), np.asarray(acc.seg_bits, np.float64), source.report.records)
     sur = None
     if keep_surprisal:
         sur = np.concatenate(acc.surprisal) if acc.surprisal else np.zeros(0, np.float32)
