@@ -4,7 +4,7 @@ A piece holds the symbols of ``m`` consecutive windows (``m = max(1, piece // st
 its core is the ``m * step`` symbols where they start, and it carries the
 ``window - step`` symbols the last of them reaches into the next piece
 (:func:`fractalseq.words._piece_source.worker_pieces`).  The window kernel
-(:func:`fractalseq.compare._scan.window_counts`) runs on each piece from empty
+(:func:`fractalseq.compare._window_kernel.window_counts`) runs on each piece from empty
 tables and the per-window arrays are joined in piece order.  The word and
 context counts are exact integers in any case; the running sums ``sum c ln c``
 are taken from each piece's first window on, so the serial path runs the same

@@ -43,7 +43,8 @@ def check_piece(piece) -> int | None:
     """A piece size (symbols) for splitting one large source: a positive whole number, or ``None`` for the default."""
     if piece is None:
         return None
-    if isinstance(piece, bool) or not isinstance(piece, (int,)) and not hasattr(piece, "__index__") or int(piece) < 1:
+    whole = not isinstance(piece, bool) and hasattr(piece, "__index__")  # int, numpy integers; not bool, float or text
+    if not whole or int(piece) < 1:
         raise ParameterError(f"The piece size must be a positive number of symbols, not {piece!r}.", parameter="piece")
     return int(piece)
 
