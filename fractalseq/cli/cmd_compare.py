@@ -426,6 +426,11 @@ def scan(
     quiet: bool = common.QUIET,
     seed: int = common.seed_option(help=SEED_HELP),
     force: bool = common.FORCE,
+    engine: Optional[str] = common.ENGINE,
+    workers: Optional[int] = common.WORKERS,
+    scheduler: Optional[str] = common.SCHEDULER,
+    connect_timeout: float = common.CONNECT_TIMEOUT,
+    piece: int = common.PIECE,
 ) -> None:
     """Complexity figures in sliding windows along a stream, with change points.
 
@@ -444,6 +449,12 @@ def scan(
     column's values when there is one). Genomic output is for research, not for
     clinical decisions; reports on logs are no security guarantee.
 
+    The windows are counted in pieces of about --piece symbols of whole windows;
+    with --workers N (or --engine dask, --scheduler) the pieces are counted on the
+    workers while one of them runs the online predictor along the whole stream (a
+    pass that cannot be cut); the change points are searched here. The output is
+    the same bytes as a serial run with the same --piece.
+
     Example: fractalseq scan chr.fa.gz --window 5000 --step 1000 --out scan
     """
     common.protect_inputs(path)  # no output may replace an input, even with --force
@@ -456,11 +467,12 @@ def scan(
         from fractalseq.io._outputs import StagedFolder
 
         stage = StagedFolder(out, force)  # built aside, renamed into place at the end
-    with common.progress(quiet) as bar:
+    with common.make_engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
         task = bar.add_task("reading", total=2)
+        what = "scanning" if eng.name == "serial" else f"scanning ({eng.name}, {eng.workers} workers)"
         result = scan_file(
             path, window, step, depth, reader=read, ratio=ratio, penalty=pen, seed=seed,
-            on_read=lambda: bar.update(task, advance=1, description="scanning"),
+            on_read=lambda: bar.update(task, advance=1, description=what), engine=eng, piece=piece,
         )
         bar.advance(task)
     if out is not None:

@@ -116,6 +116,11 @@ def learn(
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
     force: bool = common.FORCE,
+    engine: Optional[str] = common.ENGINE,
+    workers: Optional[int] = common.WORKERS,
+    scheduler: Optional[str] = common.SCHEDULER,
+    connect_timeout: float = common.CONNECT_TIMEOUT,
+    piece: int = common.PIECE,
 ) -> None:
     """Learn a predictor from training files and save it as a model file.
 
@@ -129,6 +134,11 @@ def learn(
     binned by quantiles are cut at the quantiles of all training files. The
     model keeps that symbolization, and 'score' reads new data with it.
 
+    With --workers N (or --engine dask, --scheduler) each file is cut into
+    pieces of --piece symbols whose words are counted on the workers and
+    added up exactly; the fit runs here, and the model file is the same
+    bytes as a serial run's.
+
     Example: fractalseq learn strainA.fna.gz strainB.fna.gz -o kleb.npz
     """
     common.protect_inputs(paths)  # no output may replace an input, even with --force
@@ -139,11 +149,12 @@ def learn(
     return_freed_arrays()  # the cell tables are built in parts of a few MiB: freed ones must not stay resident
     max_depth = _deepest(depth, old_max_depth, quiet)
     params = {**_model_params(depths, max_depth, smoothing, max_cells, strands), "discount": _discount(discount)}
-    with common.progress(quiet) as bar:
-        task = bar.add_task("counting", total=len(paths))
+    with common.make_engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
+        task = bar.add_task("counting" if eng.name == "serial" else f"counting ({eng.name}, {eng.workers} workers)", total=len(paths))
         report = learn_files(
             list(paths), out=out, force=force, fmt=fmt, alphabet=alphabet, policy=policy,
             reader=reader_options(column, bins, thresholds, ordinal, delay, ties), params=params, on_input=lambda _: bar.advance(task),
+            engine=eng, piece=piece,
         )
     model = report.predictor
     rows = [r.to_dict() for r in report.stored_depths]
@@ -217,6 +228,16 @@ def score(
     ties: str = common.TIES,
     json_out: bool = common.JSON,
     quiet: bool = common.QUIET,
+    engine: Optional[str] = common.ENGINE,
+    workers: Optional[int] = common.WORKERS,
+    scheduler: Optional[str] = common.SCHEDULER,
+    connect_timeout: float = common.CONNECT_TIMEOUT,
+    piece: int = common.PIECE,
+    per_record: bool = typer.Option(
+        False, "--per-record",
+        help="Score every record of every input (chromosome, contig, read) as a source of its own, named INPUT:RECORD; "
+             "with --online each record is coded by a fresh model (the total is the sum of the records' upper bounds).",
+    ),
 ) -> None:
     """Score files: bits per symbol overall, per record and per window, with the most surprising stretches.
 
@@ -234,6 +255,22 @@ def score(
     model's symbolization (its log templates, its numeric cut points) unless
     --column/--bins/--thresholds/--ordinal say otherwise.
 
+    Fitted mode cuts each file into pieces of --piece symbols (each piece
+    preceded by the model's deepest context, so every symbol is scored with
+    the history a single pass would give it) and adds the pieces' totals in
+    order; with --workers N (or --engine dask, --scheduler) the pieces are
+    scored on the workers and the output is the same bytes as a serial run
+    with the same --piece.
+
+    With --per-record every record is scored as a source of its own. Online,
+    a file is one stream by default (later records profit from what earlier
+    ones taught the model); with --per-record each record starts from a fresh
+    model, so each record's total is an upper bound on its own information
+    content and the total is their sum (usually larger than the one-stream
+    figure). Online scoring
+    runs on --workers only with --per-record (one record per task; the same
+    bytes as serial).
+
     Example: fractalseq score --online genome.fna.xz --window 50000 --json
     """
     common.protect_inputs(paths, model)  # no output may replace an input, even with --force
@@ -242,12 +279,12 @@ def score(
 
     params = _model_params(depths, _deepest(depth, old_max_depth, quiet), smoothing, max_cells, strands)
     params["learning_rate"] = learning_rate
-    with common.progress(quiet) as bar:
-        task = bar.add_task("scoring", total=len(paths))
+    with common.make_engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
+        task = bar.add_task("scoring" if eng.name == "serial" else f"scoring ({eng.name}, {eng.workers} workers)", total=len(paths))
         report = score_files(
             list(paths), model, online=online, fmt=fmt, alphabet=alphabet, policy=policy,
             reader=reader_options(column, bins, thresholds, ordinal, delay, ties), window=window, top=top, params=params,
-            on_source=lambda _: bar.advance(task), baselines=baselines,
+            on_source=lambda _: bar.advance(task), baselines=baselines, engine=eng, piece=piece, per_record=per_record,
         )
     if json_out:
         typer.echo(to_json(report.to_dict()), nl=False)

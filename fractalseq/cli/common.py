@@ -81,6 +81,12 @@ WORKERS = typer.Option(
     help="Local worker processes (processes engine, or a local Dask cluster), at most 4 per core; default: all cores for processes, 2 for dask.",
 )
 SCHEDULER = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask).")
+PIECE = typer.Option(
+    1 << 24, "--piece", min=1,
+    help="Symbols per piece: a large input is cut into pieces of this many symbols (overlapping by what a piece needs "
+         "from its neighbours), worked on by the engine and merged in order; the same piece size gives the same bytes "
+         "on every engine.",
+)
 CONNECT_TIMEOUT = typer.Option(5.0, "--connect-timeout", help="Seconds allowed for reaching the --scheduler (default 5).")
 
 

@@ -35,7 +35,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from numba import njit
 
 from fractalseq import __version__
 from fractalseq.compare._changepoint import Segmentation, segment_series
@@ -44,7 +43,8 @@ from fractalseq.errors import ParameterError
 from fractalseq.io._outputs import to_json
 from fractalseq.results import CAUTION_GENERAL, Result, caution_for, is_log_alphabet
 from fractalseq.stream import Positions, SymbolArray
-from fractalseq.words._kernels import AT_START, _segment_words
+from fractalseq.compare._scan_pieces import split_window_counts, surprise_series, surprise_task  # noqa: F401 (surprise_series: callers import it from here)
+from fractalseq.compare._window_kernel import window_counts
 
 CAUTION = CAUTION_GENERAL
 #: Templates named per segment of a log scan (the most frequent first).
@@ -56,83 +56,6 @@ WORDS_PER_CELL = 20
 MAX_TABLE_BITS = 26
 #: A segment is low-complexity when its entropy rate is this many noise scales below the median window.
 LOW_SCALES = 5.0
-
-
-@njit(cache=True)
-def _xlx(c):
-    return c * math.log(c) if c > 0 else 0.0
-
-
-@njit(cache=True)
-def window_counts(codes, starts, depth, bits, window, step, n_windows):
-    """Per window: words N, distinct words K_n, distinct contexts K_{n-1}, and
-    sums ``sum c ln c`` over words and over contexts (the context of a word is
-    its first ``n - 1`` symbols).
-
-    Returns ``(N, Kw, Kc, Sw, Sc)`` arrays of length ``n_windows``.
-    """
-    T = codes.shape[0]
-    words = np.empty(T, dtype=np.uint64)
-    has_word = np.zeros(T, dtype=np.bool_)  # where a word of the segment starts
-    _segment_words(codes, starts, depth, bits, T, AT_START, 0, words, has_word)
-    cw = np.zeros(1 << (bits * depth), dtype=np.int64)
-    cc = np.zeros(1 << (bits * (depth - 1)), dtype=np.int64)
-    N = np.zeros(n_windows, dtype=np.int64)
-    Kw = np.zeros(n_windows, dtype=np.int64)
-    Kc = np.zeros(n_windows, dtype=np.int64)
-    Sw = np.zeros(n_windows)
-    Sc = np.zeros(n_windows)
-    n = 0
-    kw = 0
-    kc = 0
-    sw = 0.0
-    sc = 0.0
-    lo = 0  # words at positions [lo, hi) are in the tables
-    hi = 0
-    for j in range(n_windows):
-        s0 = j * step
-        e0 = s0 + window - depth + 1  # words must end inside the window
-        while lo < s0:
-            if lo < hi:
-                if has_word[lo]:
-                    a = np.int64(words[lo])
-                    c = cw[a]
-                    sw += _xlx(c - 1) - _xlx(c)
-                    cw[a] = c - 1
-                    if c == 1:
-                        kw -= 1
-                    x = a >> (bits)
-                    c = cc[x]
-                    sc += _xlx(c - 1) - _xlx(c)
-                    cc[x] = c - 1
-                    if c == 1:
-                        kc -= 1
-                    n -= 1
-            lo += 1
-        if hi < lo:
-            hi = lo
-        while hi < e0:
-            if has_word[hi]:
-                a = np.int64(words[hi])
-                c = cw[a]
-                sw += _xlx(c + 1) - _xlx(c)
-                cw[a] = c + 1
-                if c == 0:
-                    kw += 1
-                x = a >> (bits)
-                c = cc[x]
-                sc += _xlx(c + 1) - _xlx(c)
-                cc[x] = c + 1
-                if c == 0:
-                    kc += 1
-                n += 1
-            hi += 1
-        N[j] = n
-        Kw[j] = kw
-        Kc[j] = kc
-        Sw[j] = sw
-        Sc[j] = sc
-    return N, Kw, Kc, Sw, Sc
 
 
 def choose_scan_depth(alphabet_size: int, window: int, max_depth: int, order: int = 0, delay: int = 1) -> int:
@@ -198,23 +121,6 @@ def ordinal_shape(arr: SymbolArray) -> tuple[int, int]:
     except (TypeError, ValueError):
         delay = 1
     return int(hit.group(1)), delay
-
-
-def surprise_series(arr: SymbolArray) -> np.ndarray | None:
-    """Per-symbol code length (bits) of the online predictor run once along the stream.
-
-    Uses :func:`fractalseq.predict._predictor.online_code_length` with ``keep_surprisal``;
-    ``None`` when the predictor is not available.
-    """
-    try:
-        from fractalseq.predict._predictor import online_code_length
-    except ImportError:
-        return None
-    res = online_code_length(arr, keep_surprisal=True)
-    v = getattr(res, "surprisal", None)
-    if v is None or np.ndim(v) != 1 or len(v) != len(arr):
-        return None
-    return np.asarray(v, dtype=np.float64)
 
 
 #: What each window figure is (the ``figures`` entry of the ``scan --json`` document).
@@ -326,15 +232,26 @@ class ScanResult(Result):
         return to_json(self.to_dict())
 
 
-def window_figures(arr: SymbolArray, window: int, step: int, depth: int, ratio: float = 0.5, seed: int = 0) -> tuple[np.ndarray, dict[str, np.ndarray], list[str]]:
-    """Window starts and the figures of every window (see the module documentation)."""
+def window_figures(
+    arr: SymbolArray, window: int, step: int, depth: int, ratio: float = 0.5, seed: int = 0, engine=None, piece: int | None = None,
+) -> tuple[np.ndarray, dict[str, np.ndarray], list[str]]:
+    """Window starts and the figures of every window (see the module documentation).
+
+    The windows are counted in pieces of about ``piece`` symbols of whole windows on ``engine``
+    (default: serially), the online predictor's pass running beside them as a task of its own
+    (:mod:`fractalseq.compare._scan_pieces`); the figures are the same bits on every engine.
+    """
+    from fractalseq.runner import SerialEngine
+
     T = len(arr)
     bits = arr.alphabet.bits
     if bits * depth > MAX_TABLE_BITS:
         raise ParameterError(f"depth {depth} needs a table of 2**{bits * depth} cells; use a smaller depth.", parameter="depth")
     n_windows = (T - window) // step + 1
     starts = np.arange(n_windows, dtype=np.int64) * step
-    N, Kw, Kc, Sw, Sc = window_counts(arr.codes, arr.starts, int(depth), int(bits), int(window), int(step), int(n_windows))
+    engine = engine or SerialEngine()
+    pending = engine.submit(surprise_task, arr)  # the one pass that cannot be cut, beside the pieces
+    N, Kw, Kc, Sw, Sc = split_window_counts(arr, int(depth), int(window), int(step), engine, piece)
     notes: list[str] = []
     with np.errstate(divide="ignore", invalid="ignore"):
         Nf = N.astype(float)
@@ -342,7 +259,7 @@ def window_figures(arr: SymbolArray, window: int, step: int, depth: int, ratio: 
         h = h / math.log(2.0)
         d0 = np.where(Kw > 0, np.log2(np.maximum(Kw, 1)) / (depth * math.log2(1.0 / ratio)), np.nan)
     figures = {"entropy_rate": h, "D0": d0}
-    bits_per_symbol = surprise_series(arr)
+    bits_per_symbol = pending.result()
     if bits_per_symbol is not None:
         c = np.concatenate([[0.0], np.cumsum(np.nan_to_num(bits_per_symbol))])
         figures["surprise"] = (c[starts + window] - c[starts]) / window
@@ -359,6 +276,8 @@ def scan_stream(
     ratio: float = 0.5,
     penalty: float | str = "bic",
     seed: int = 0,
+    engine=None,
+    piece: int | None = None,
 ) -> ScanResult:
     """Scan a stream in sliding windows and find change points.
 
@@ -379,6 +298,9 @@ def scan_stream(
         ``"bic"`` or a number (see :func:`fractalseq.compare._changepoint.segment_series`).
     seed:
         Seed of any random step (none at present; kept for the predictor).
+    engine, piece:
+        Where the windows are counted, in pieces of about ``piece`` symbols of whole windows
+        (default 2**24; :func:`window_figures`); every engine gives the same bytes for the same ``piece``.
 
     Returns
     -------
@@ -404,7 +326,7 @@ def scan_stream(
             depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth, *ordinal_shape(arr))
     if depth < 1 or depth >= window:
         raise ParameterError(f"The depth must lie between 1 and the window length; got {depth}.", parameter="depth")
-    starts, figures, notes = window_figures(arr, int(window), step, int(depth), ratio, seed)
+    starts, figures, notes = window_figures(arr, int(window), step, int(depth), ratio, seed, engine, piece)
     if len(starts) < 4:
         notes.append("fewer than 4 windows: no change points can be found; use a smaller --window or --step")
     overlap = max(1, int(math.ceil(window / step)))

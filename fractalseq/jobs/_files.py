@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Callable, Sequence
 
 from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._cache import ResultCache
-from fractalseq.jobs._inputs import ReaderOptions, check_seed, default_window
+from fractalseq.jobs._inputs import ReaderOptions, check_piece, check_seed, default_window
 from fractalseq.jobs._sources import SourceSpec, expand_inputs
 from fractalseq.results import Result
 from fractalseq.runner import Engine, SerialEngine
@@ -318,18 +318,23 @@ def scan_file(
     penalty: float | str = "bic",
     seed: int = 0,
     on_read: Callable[[], None] | None = None,
+    engine: Engine | None = None,
+    piece: int | None = None,
 ) -> "ScanResult":
     """Read one input and scan it in sliding windows (what ``fractalseq scan`` does).
 
     ``window=None`` chooses it (:func:`~fractalseq.jobs._inputs.default_window`): for
     line-oriented inputs (logs, numeric columns: one symbol per line or row) the size that
     gives at least 50 windows (at least 40 lines), else 10,000 symbols.  ``on_read`` is
-    called once the input is in memory.  See :func:`fractalseq.compare._scan.scan_stream`
-    for the other parameters.
+    called once the input is in memory.  ``engine`` and ``piece``: the windows are counted in
+    pieces of about ``piece`` symbols of whole windows on the engine (default: serially), the
+    same bytes on every engine.  See :func:`fractalseq.compare._scan.scan_stream` for the
+    other parameters.
     """
     from fractalseq.compare._scan import scan_stream
 
     seed = check_seed(seed)
+    piece = check_piece(piece)
     pen = parse_penalty(penalty)
     arr = (reader or ReaderOptions()).read(path)
     if on_read is not None:
@@ -343,7 +348,7 @@ def scan_file(
             f"{arr.name} has {len(arr)} {unit}{'' if len(arr) == 1 else 's'} to scan, fewer than one window of {window} {unit}s; "
             "give a smaller window.", parameter="window",
         )
-    return scan_stream(arr, window, step, depth, ratio, pen, seed)
+    return scan_stream(arr, window, step, depth, ratio, pen, seed, engine=engine, piece=piece)
 
 
 # ================================================================== survey

@@ -34,9 +34,19 @@ MIN_WINDOWS = 50
 MIN_LINE_WINDOW = 40
 
 __all__ = [
-    "DEFAULT_BINS", "DEFAULT_SYMBOL_WINDOW", "MIN_LINE_WINDOW", "MIN_WINDOWS", "ReaderOptions", "check_seed",
+    "DEFAULT_BINS", "DEFAULT_SYMBOL_WINDOW", "MIN_LINE_WINDOW", "MIN_WINDOWS", "ReaderOptions", "check_piece", "check_seed",
     "default_window", "parse_thresholds",
 ]
+
+
+def check_piece(piece) -> int | None:
+    """A piece size (symbols) for splitting one large source: a positive whole number, or ``None`` for the default."""
+    if piece is None:
+        return None
+    whole = not isinstance(piece, bool) and hasattr(piece, "__index__")  # int, numpy integers; not bool, float or text
+    if not whole or int(piece) < 1:
+        raise ParameterError(f"The piece size must be a positive number of symbols, not {piece!r}.", parameter="piece")
+    return int(piece)
 
 
 def default_window(length: int, line_oriented: bool, overlapping: bool) -> int:

@@ -27,11 +27,12 @@ from typing import Any, Callable, Iterable, Sequence
 
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import FractalseqError, InputError, ParameterError
-from fractalseq.jobs._inputs import default_window
+from fractalseq.jobs._inputs import check_piece, default_window
 from fractalseq.predict._baselines import baseline_kinds
 from fractalseq.predict._online import evaluate_online
 from fractalseq.predict._predictor import CellPredictor
 from fractalseq.predict._results import DEFAULT_TOP_WINDOWS, DEFAULT_WINDOW, PredictionResult
+from fractalseq.runner import Engine, SerialEngine
 from fractalseq.results import CAUTION_GENOMIC, CAUTION_LOGS, Result, caution_for, is_log_alphabet
 
 RESEARCH_NOTE = CAUTION_GENOMIC
@@ -138,6 +139,8 @@ def learn_files(
     reader: dict | None = None,
     params: dict | None = None,
     on_input: Callable[[str], None] | None = None,
+    engine: Engine | None = None,
+    piece: int | None = None,
 ) -> LearnReport:
     """Learn a :class:`~fractalseq.predict._predictor.CellPredictor` from training files (and save it).
 
@@ -157,6 +160,12 @@ def learn_files(
         ``reverse_complement``...).
     on_input:
         Called with each file's name once it is counted (progress display).
+    engine, piece:
+        Where the words are counted: ``None`` or the serial engine count each file in one
+        streamed pass; another engine cuts each file into pieces of ``piece`` symbols
+        (default 2**24) overlapping by the counting depth minus one, counts them on its
+        workers and adds them up in order (exact integers: the model file is the same bytes).
+        The fit itself runs in this process.
     """
     from fractalseq.words._corpus import count_inputs
 
@@ -167,10 +176,12 @@ def learn_files(
     read = training_reader(paths, fmt, dict(reader or {}))
     read_alpha = training_alphabet(paths, fmt, alphabet, policy, read)
     read_fmt = "log" if _is_templates(read_alpha) else fmt
-    wc, reports = count_inputs(
-        ((p, _open(p, read_fmt, read_alpha, policy, read)) for p in paths), model.count_depth, on_input=on_input,
-        compact=True,
-    )
+    piece = check_piece(piece)
+    opened = ((p, _open(p, read_fmt, read_alpha, policy, read)) for p in paths)
+    if engine is None or isinstance(engine, SerialEngine):
+        wc, reports = count_inputs(opened, model.count_depth, on_input=on_input, compact=True)
+    else:
+        wc, reports = _count_on_engine(opened, model.count_depth, engine, piece, on_input)
     if wc.length == 0:
         raise InputError("The training inputs hold no usable symbols; check the files and the alphabet and format they are read with.")
     # the fit drops the word counts (12 bytes a distinct deepest word) once its cell tables are built
@@ -199,6 +210,28 @@ def learn_files(
         note=caution([model.alphabet_]),
         predictor=model,
     )
+
+
+def _online_task(task: tuple) -> PredictionResult:
+    """Online code length of one source (a task of an engine): ``(source, window, top, baselines, params)``."""
+    src, size, top, baselines, params = task
+    return evaluate_online(src, window=size, top_windows=top, baselines=baselines, **params)
+
+
+def _count_on_engine(opened, depth_of, engine: Engine, piece: int | None, on_input):
+    """Each input cut into pieces counted on ``engine`` (:func:`~fractalseq.words._pieces.count_words_split`), inputs added in order."""
+    from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split, settle_storage
+
+    total, reports = None, []
+    for p, stream in opened:
+        if total is not None and not total.alphabet.same_symbols(stream.alphabet):
+            raise InputError(f"{p} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs.")
+        wc = count_words_split(stream, depth_of(stream.alphabet), engine, chunk=DEFAULT_PIECE if piece is None else piece)
+        total = wc if total is None else total + wc
+        reports.append((p, stream.report))
+        if on_input is not None:
+            on_input(p)
+    return settle_storage(total), reports
 
 
 # ------------------------------------------------------------------- score
@@ -269,6 +302,9 @@ def score_files(
     params: dict | None = None,
     on_source: Callable[[str], None] | None = None,
     baselines: str = "markov",
+    engine: Engine | None = None,
+    piece: int | None = None,
+    per_record: bool = False,
 ) -> ScoreReport:
     """Score files with a fitted model (a model file or object) or online (``online=True``, a fresh model per file).
 
@@ -297,8 +333,24 @@ def score_files(
         ``"markov"`` (default: the KT Markov baseline, cheap), ``"all"`` (also lzma, bz2 and zlib on the
         same symbols, which take longer than the predictor itself) or ``"none"``; a baseline not
         computed is absent from each source's ``baselines`` object.
+    engine, piece:
+        Fitted mode: each file is cut into pieces of ``piece`` symbols (default 2**24), scored on
+        ``engine`` (default: serially) and added up in order; every engine gives the same bytes
+        for the same ``piece`` (:mod:`fractalseq.predict._split_score`).  Online mode takes an
+        engine only with ``per_record``: each record is then one task.
+    per_record:
+        Every record of every file (chromosome, contig, read) is a source of its own, named
+        ``INPUT:RECORD`` (:mod:`fractalseq.jobs._records`), scored from a fresh start: online, each
+        record is coded by a fresh model, so each record's code length is an upper bound on its own
+        information content and the total is their sum (an upper bound too, usually larger than coding
+        the file as one stream, where later records profit from what earlier ones taught the model).
     """
     baseline_kinds(baselines)  # one sentence for a bad choice, before anything is read
+    piece = check_piece(piece)
+    if online and not per_record and engine is not None and not isinstance(engine, SerialEngine):
+        raise ParameterError("Online scoring codes each file as one stream, which cannot be split into pieces; score each "
+                             "record as a stream of its own (per record) on the workers, or leave out the engine and workers.",
+                             parameter="engine")
     if (model is None) == (not online):
         raise ParameterError("Give either a model (fitted mode) or online=True (no model), not both or neither.", parameter="model")
     model_name = None
@@ -312,48 +364,72 @@ def score_files(
     scored, alphabets = [], []
     if fmt == "auto" and _is_templates(read_alpha):
         fmt = "log"  # a log model (one log's templates or the union of several) reads logs
+    # (input, name, source, read report, alphabet, window) of every source to score: a file, or each of its records
+    items: list[tuple] = []
     for p in map(str, paths):
         stream = _open(p, fmt, read_alpha, policy, read)
         lined = stream.unit != "symbol"
-        size = window
         arr = None
-        if lined:  # one symbol per line: read it whole (one code per line) to size the windows and map positions
+        if lined or per_record:  # one symbol per line: read it whole (one code per line) to size the windows and map positions
             arr = stream.to_array()
+        if lined:
             size = window if window is not None else default_window(len(arr), True, overlapping=False)
-            src = arr.as_stream()
         else:
             size = window if window is not None else DEFAULT_WINDOW
-            src = stream
-        if model is not None:
-            res = model.evaluate(src, window=size, top_windows=top, baselines=baselines)
+        if per_record:
+            from fractalseq.jobs._records import record_arrays
+
+            parts = list(record_arrays(arr, p))
+            if not parts:
+                raise InputError(f"{p} holds no record with usable symbols; check the file and the alphabet and format it is read with.")
+            items.extend((p, part.name, part, part.report, stream.alphabet, size) for part in parts)
         else:
-            res = evaluate_online(src, window=size, top_windows=top, baselines=baselines, **(params or {}))
-        rep = arr.report if arr is not None else stream.report
-        why = unscored_reason(rep.extra.get("unlisted_templates"), stream.alphabet) if res.length == 0 else None
-        if res.length == 0 and (len(paths) == 1 or why is None):
+            # a lazy stream's report is complete once it is read: the stream stands for it until then
+            items.append((p, p, arr.as_stream() if lined else stream, arr.report if lined else stream, stream.alphabet, size))
+    last = {it[0]: i for i, it in enumerate(items)}
+
+    def scored_one(i: int, it: tuple, res: PredictionResult) -> None:
+        p, name, _, rep, alpha, _ = it
+        rep = rep.report if hasattr(rep, "chunks") else rep
+        why = unscored_reason(rep.extra.get("unlisted_templates"), alpha) if res.length == 0 else None
+        if res.length == 0 and (len(items) == 1 or why is None):
             if why is not None:
-                raise InputError(f"{p} holds no usable symbols: {why}; learn a model on logs of the same kind.")
-            raise InputError(f"{p} holds no usable symbols; check the file and the alphabet and format it is read with.")
+                raise InputError(f"{name} holds no usable symbols: {why}; learn a model on logs of the same kind.")
+            raise InputError(f"{name} holds no usable symbols; check the file and the alphabet and format it is read with.")
         # a log none of whose templates the model knows: kept as a source of length 0 with its unseen templates
         # listed, so the other files' results are not lost
-        alphabets.append(stream.alphabet)
+        alphabets.append(alpha)
         values = {f.name: getattr(res, f.name) for f in dataclasses.fields(res)}
-        values["name"] = p
+        values["name"] = name
         pos = rep.positions
         if pos is not None and len(pos) == res.length:
             values["most_surprising_windows"] = tuple(
                 dataclasses.replace(w, coordinates=pos.span(w.start, w.end)) for w in res.most_surprising_windows
             )
         scored.append(SourceScore(
-            **values, stream_name=res.name, alphabet=stream.alphabet.to_dict(), dropped=dict(sorted(rep.dropped.items())),
+            **values, stream_name=res.name, alphabet=alpha.to_dict(), dropped=dict(sorted(rep.dropped.items())),
             # log lines whose template the model never saw: not scored (the policy left them out), listed here
             unseen_templates=tuple(rep.extra.get("unlisted_templates", ())),
             unit=pos.unit if pos is not None and len(pos) == res.length else "symbol",
             read_notes=tuple(rep.summary_notes()),
             not_scored=why,
         ))
-        if on_source is not None:
+        if on_source is not None and last[p] == i:
             on_source(p)
+
+    if model is None and engine is not None and not isinstance(engine, SerialEngine):
+        # records are independent online codings: one task each, results taken in record order
+        tasks = [(it[2], it[5], top, baselines, dict(params or {})) for it in items]
+        for i, res in enumerate(engine.map(_online_task, tasks)):
+            scored_one(i, items[i], res)
+    else:
+        for i, it in enumerate(items):
+            if model is not None:
+                res = model.evaluate(it[2], window=it[5], top_windows=top, baselines=baselines, engine=engine, piece=piece,
+                                     model_path=model_name)
+            else:
+                res = _online_task((it[2], it[5], top, baselines, params or {}))
+            scored_one(i, it, res)
     total_bits = sum(s.total_bits for s in scored if s.length)
     length = sum(s.length for s in scored)
     if length == 0:

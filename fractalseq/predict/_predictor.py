@@ -49,7 +49,6 @@ from __future__ import annotations
 
 import inspect
 import math
-from dataclasses import replace
 from typing import Sequence
 
 import numpy as np
@@ -57,15 +56,11 @@ import numpy as np
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import InputError, ModelFileError, ParameterError
 from fractalseq.predict import _fitted_kernels as FK
-from fractalseq.predict import _kernel_tools as K
 from fractalseq.predict._baselines import (
     baseline_kinds,
-    CompressorMeter,
-    MarkovBaseline,
-    kt_bits_after_training,
     kt_bits_by_order,
 )
-from fractalseq.predict._cells import CellTable, capped_cell_tables, cell_tables, fit_blend, prune_cells, to_u32
+from fractalseq.predict._cells import CellTable, capped_cell_tables, fit_blend, prune_cells, to_u32
 from fractalseq.predict._modelfile import ModelState, read_state, write_state
 from fractalseq.predict._online import evaluate_online, markov_online_baseline, online_code_length  # noqa: F401 (online_code_length: callers import it from here)
 from fractalseq.predict._params import (
@@ -75,17 +70,13 @@ from fractalseq.predict._params import (
     baseline_orders,
     check_depths,
     default_depths,
-    source_chunks,
     use_reverse,
 )
 from fractalseq.predict._results import (
     DEFAULT_TOP_WINDOWS,
     DEFAULT_WINDOW,
-    FittedMemory,
     PredictionResult,
-    prediction_result,
 )
-from fractalseq.predict._tally import Tally
 
 _INDEX_ATTRS = ("_model", "_top0", "_sq0", "_mark", "_depth_arr", "_index_bytes")
 #: Most frequent symbols of the depth-0 cell always among the scoring candidates (see _fitted_kernels.fitted_score).
@@ -515,6 +506,10 @@ class CellPredictor:
         keep_surprisal: bool = False,
         baselines: bool | str = True,
         top_windows: int = DEFAULT_TOP_WINDOWS,
+        engine=None,
+        piece: int | None = None,
+        model_path=None,
+        on_done=None,
     ) -> PredictionResult:
         """Score held-out data with the fitted model: code length, accuracy, calibration and baselines.
 
@@ -532,60 +527,27 @@ class CellPredictor:
             computed is absent from ``result.baselines``.
         top_windows:
             How many of the most surprising windows the result lists.
+        engine, piece:
+            The source is scored in pieces of ``piece`` symbols (default 2**24) on ``engine``
+            (default: serially) and the pieces' totals are added in order, so every engine gives
+            the same bytes for the same ``piece`` (:mod:`fractalseq.predict._split_score`).
+        model_path:
+            The file this model was loaded from: worker processes load it once instead of
+            receiving the tables with every piece.
+        on_done:
+            Called as ``on_done(index, part)`` when a piece is scored.
         """
-        from fractalseq.words._counts import WordCounter
+        from fractalseq.predict._split_score import evaluate_pieces
 
         _check_fitted(self)
-        self._ensure_index()
         src = as_source(source)
-        name = getattr(src, "name", "stream")
-        self._check_alphabet(src.alphabet, name)
-        a = self.alphabet_
-        stats = np.zeros(K.ST_SIZE)
-        calib = np.zeros((K.CALIB_BINS, 3))
-        hist = np.zeros(2, np.uint64)
-        seg = np.zeros(1, np.int64)
-        tally = Tally(window or DEFAULT_WINDOW, keep_surprisal) if (window or keep_surprisal) else None
+        self._check_alphabet(src.alphabet, getattr(src, "name", "stream"))
         want_markov, want_compressors = baseline_kinds(baselines)
-        counter = WordCounter(a, self.baseline_order_ + 1) if want_markov else None
-        meter = CompressorMeter(a) if want_compressors else None
-        for chunk in source_chunks(src):
-            codes = np.ascontiguousarray(chunk.codes)
-            st = np.ascontiguousarray(chunk.starts, dtype=np.int64)
-            sur = np.empty(codes.size if tally is not None else 0, dtype=np.float32)
-            FK.fitted_score(codes, st, a.size, a.bits, self._model, self._top0, self._sq0, self._mark, hist, seg, stats, calib, sur)
-            if tally is not None:
-                tally.add(sur, st)
-            if counter is not None:
-                counter.add(codes, st)
-            if meter is not None:
-                meter.feed(codes)
-        n = int(stats[K.ST_COUNT])
-        wins, sur, recs = tally.finish(src.report.records) if tally is not None else (None, None, [])
-        table_bytes = int(self._index_bytes)
-        res = prediction_result(
-            "fitted", name, stats, calib, depths=self.depths_,
-            memory=FittedMemory(self.max_cells_, self.n_cells_, self.pruned_cells_, table_bytes),
-            reverse_complement=self.reverse_complement_, params={**self.get_params(), "depths": list(self.ladder_)},
-            records=recs, window=int(window or DEFAULT_WINDOW), window_bits=wins if window else None, surprisal=sur,
-            top_windows=top_windows,
+        return evaluate_pieces(
+            self, src, window=window, keep_surprisal=keep_surprisal, want_markov=want_markov,
+            want_compressors=want_compressors, top_windows=top_windows, engine=engine, piece=piece,
+            model_path=model_path, on_done=on_done,
         )
-        if meter is not None and n and counter is None:
-            res = replace(res, baselines={"compressors": meter.result()})
-        if counter is not None and n:
-            wc = counter.finish()
-            k = self.baseline_order_
-            bits = kt_bits_after_training(self.counts_[k], cell_tables(wc, [k])[k], n, a.size, a.bits)
-            hind = markov_online_baseline(wc) if wc.depth - 1 >= 0 else None
-            mb = MarkovBaseline(
-                k, bits / n, "model training data", dict(self.baseline_bits_),
-                None if hind is None else hind.order, None if hind is None else hind.bits_per_symbol,
-            )
-            found = {"markov": mb.to_dict()}
-            if meter is not None:
-                found["compressors"] = meter.result()
-            res = replace(res, baselines=found)
-        return res
 
     def score_online(self, source: Source, **kwargs) -> PredictionResult:
         """Online code length of a stream with this predictor's parameters (no fitting needed); see :func:`evaluate_online`."""

@@ -59,12 +59,16 @@ class Tally:
         if self.pos % self.window:
             wins.append(self._partial)
         sur = np.concatenate(self._parts) if self.keep and self._parts else None
-        starts = np.asarray(self.seg_starts, dtype=np.int64)
-        bits = np.asarray(self.seg_bits, dtype=np.float64)
-        rows = []
-        for r in records:
-            lo, ln = int(r.start), int(r.length)
-            sel = (starts >= lo) & (starts < lo + ln)
-            total = float(bits[sel].sum())
-            rows.append(RecordScore(r.name, lo, ln, total, total / ln if ln else None))
+        rows = record_scores(np.asarray(self.seg_starts, dtype=np.int64), np.asarray(self.seg_bits, dtype=np.float64), records)
         return np.asarray(wins, dtype=np.float64), sur, rows
+
+
+def record_scores(starts: np.ndarray, bits: np.ndarray, records) -> list[RecordScore]:
+    """Code length of each record from the code lengths of the segments (``bits``) starting at ``starts``."""
+    rows = []
+    for r in records:
+        lo, ln = int(r.start), int(r.length)
+        sel = (starts >= lo) & (starts < lo + ln)
+        total = float(bits[sel].sum())
+        rows.append(RecordScore(r.name, lo, ln, total, total / ln if ln else None))
+    return rows

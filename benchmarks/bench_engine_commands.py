@@ -1,0 +1,184 @@
+"""One large source on the engines: ``learn``, ``score`` (and ``scan``) serially and with ``--workers 2``.
+
+All data are invented here (simulated order-2 Markov DNA, the generator of
+``bench_survey_scale.py``), so nothing is downloaded.  Every command runs as a whole
+process through the command line under ``nice -n 10``.  Reported per command: CPU
+seconds (user + system of the command and of every process it waited for, so the
+workers are included), wall seconds, the peak resident memory of the whole process
+tree (the command plus its workers, sampled from ``/proc`` every 0.2 s) and of the
+command's own process, the load average before and after, and whether the serial and
+the ``--workers 2`` outputs are the same bytes.  Speed is the ratio serial / workers in
+the same run; on a shared 2-core machine the wall ratio depends on what else runs
+(the load average says how busy it was).
+
+Sections (``--only learn,score,scan``; each replaces its own entry in the JSON):
+
+learn
+    ``fractalseq learn`` of a ``--mbase`` FASTA (model files compared byte for byte).
+score
+    ``fractalseq score --model M --piece 2^22`` of a second ``--mbase`` FASTA with the model of the first.
+scan
+    ``fractalseq scan --piece 2^22`` of the second FASTA.
+
+Writes benchmarks/results/engine_commands.json and engine_commands.md.
+
+Usage: python benchmarks/bench_engine_commands.py [--mbase 24] [--only learn,score]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import threading
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(HERE))
+
+from bench_survey_scale import write_fasta  # noqa: E402
+
+from fractalseq.io._outputs import to_json, write_text  # noqa: E402
+
+DATA = HERE / "data" / "engine_commands"
+RESULTS = HERE / "results"
+CLI = [sys.executable, "-m", "fractalseq"]
+ENV = {**os.environ, "PYTHONPATH": str(ROOT)}
+#: Piece size of score and scan in both modes (the same piece gives the same bytes); 2^22 symbols makes
+#: five pieces of a 20-Mbase input, where the default 2^24 would leave one worker a piece a fifth the size.
+PIECE = 1 << 22
+
+
+def _tree_rss(root: int) -> int:
+    """Resident bytes of ``root`` and all its descendants (from /proc)."""
+    children: dict[int, list[int]] = {}
+    rss: dict[int, int] = {}
+    for d in os.listdir("/proc"):
+        if not d.isdigit():
+            continue
+        try:
+            with open(f"/proc/{d}/stat") as fh:
+                parts = fh.read().rsplit(")", 1)[1].split()
+            ppid, pages = int(parts[1]), int(parts[21])
+        except (OSError, IndexError, ValueError):
+            continue
+        children.setdefault(ppid, []).append(int(d))
+        rss[int(d)] = pages * os.sysconf("SC_PAGE_SIZE")
+    total, todo = 0, [root]
+    while todo:
+        p = todo.pop()
+        total += rss.get(p, 0)
+        todo.extend(children.get(p, []))
+    return total
+
+
+def run(args: list[str]) -> dict:
+    """Run one command under ``nice -n 10`` and measure it (see the module docstring)."""
+    load0 = os.getloadavg()[0]
+    t0 = time.perf_counter()
+    p = subprocess.Popen(["nice", "-n", "10", "/usr/bin/time", "-f", "peak_kib=%M cpu=%U+%S", *CLI, *args],
+                         stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=ENV, cwd=ENV["PYTHONPATH"])
+    peak = [0]
+    done = threading.Event()
+
+    def sample():
+        while not done.is_set():
+            peak[0] = max(peak[0], _tree_rss(p.pid))
+            done.wait(0.2)
+
+    th = threading.Thread(target=sample, daemon=True)
+    th.start()
+    out, err = p.communicate()
+    done.set()
+    th.join()
+    wall = time.perf_counter() - t0
+    err = err.decode(errors="replace")
+    if p.returncode not in (0, 1):
+        raise SystemExit(f"{' '.join(args)} failed: {err.strip()}")
+    line = next((ln for ln in reversed(err.splitlines()) if ln.startswith("peak_kib=")), "peak_kib=0 cpu=0+0")
+    own, cpu = line.split()
+    user, system = cpu.split("=", 1)[1].split("+")
+    return {
+        "wall_s": round(wall, 2), "cpu_s": round(float(user) + float(system), 2),
+        "peak_tree_mib": round(peak[0] / 2**20, 1), "peak_own_mib": round(int(own.split("=", 1)[1]) / 1024, 1),
+        "load_before": round(load0, 2), "load_after": round(os.getloadavg()[0], 2), "stdout": out,
+    }
+
+
+def compare(name: str, serial_args: list[str], workers_args: list[str], files: tuple[Path, Path] | None = None) -> dict:
+    s = run(serial_args)
+    w = run(workers_args)
+    so, wo = s.pop("stdout"), w.pop("stdout")
+    if files is not None:  # the learn document names its model file
+        wo = wo.replace(str(files[1]).encode(), str(files[0]).encode())
+    same = so == wo
+    if files is not None:
+        same = same and files[0].read_bytes() == files[1].read_bytes()
+    return {
+        "command": name, "serial": s, "workers2": w, "identical": same,
+        "cpu_ratio": round(w["cpu_s"] / s["cpu_s"], 3) if s["cpu_s"] else None,
+        "wall_speedup": round(s["wall_s"] / w["wall_s"], 3) if w["wall_s"] else None,
+    }
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--mbase", type=int, default=24)
+    ap.add_argument("--only", default="learn,score,scan")
+    args = ap.parse_args()
+    want = args.only.split(",")
+    n = args.mbase * 1_000_000
+    train = write_fasta(DATA / f"train{args.mbase}M.fa", n, seed=11, records=4)
+    test = write_fasta(DATA / f"test{args.mbase}M.fa", n, seed=12, records=6)
+    warm = write_fasta(DATA / "warm.fa", 50_000, seed=1)
+    model_a, model_b = DATA / "a.npz", DATA / "b.npz"
+    out = RESULTS / "engine_commands.json"
+    doc = json.loads(out.read_text()) if out.exists() else {}
+    doc["symbols"] = n
+    doc["cores"] = os.cpu_count()
+    run(["count", str(warm), "--depth", "4", "--json", "-q"])  # numba caches warm
+    if "learn" in want or not model_a.exists():
+        base = ["learn", str(train), "--json", "-q", "--force"]
+        r = compare("learn", [*base, "-o", str(model_a)], [*base, "-o", str(model_b), "--workers", "2"], (model_a, model_b))
+        r["note"] = "model files compared byte for byte; the JSON names the model file, so it is compared with the name replaced"
+        doc["learn"] = r
+        print(json.dumps(r), flush=True)
+    if "score" in want:
+        base = ["score", str(test), "--model", str(model_a), "--json", "-q", "--piece", str(PIECE)]
+        doc["score"] = compare("score --model", base, [*base, "--workers", "2"])
+        print(json.dumps(doc["score"]), flush=True)
+    if "scan" in want:
+        base = ["scan", str(test), "--json", "-q", "--piece", str(PIECE)]
+        doc["scan"] = compare("scan", base, [*base, "--workers", "2"])
+        print(json.dumps(doc["scan"]), flush=True)
+    RESULTS.mkdir(exist_ok=True)
+    write_text(out, to_json(doc), force=True)
+    rows = ["| command | mode | CPU s | wall s | peak MiB (tree) | peak MiB (own) | load before/after | same bytes |",
+            "| --- | --- | ---: | ---: | ---: | ---: | --- | --- |"]
+    for key in ("learn", "score", "scan"):
+        r = doc.get(key)
+        if not r:
+            continue
+        for mode in ("serial", "workers2"):
+            m = r[mode]
+            rows.append(f"| {r['command']} | {mode} | {m['cpu_s']} | {m['wall_s']} | {m['peak_tree_mib']} | {m['peak_own_mib']} | "
+                        f"{m['load_before']} / {m['load_after']} | {'yes' if r['identical'] else 'NO'} |")
+    md = [f"# One large source on the engines ({n / 1e6:.0f} Mbase simulated FASTA, {doc['cores']} cores, nice -n 10)", "",
+          "Serial and `--workers 2` runs of the same command, whole processes. CPU seconds include the workers; "
+          "the wall ratio depends on the load of the shared machine (load averages beside). `score` and `scan` "
+          "use `--piece 4194304` (2^22) in both modes.", "", *rows, ""]
+    for key in ("learn", "score", "scan"):
+        r = doc.get(key)
+        if r:
+            md.append(f"- {r['command']}: wall speed-up {r['wall_speedup']}x, CPU ratio (workers / serial) {r['cpu_ratio']}.")
+    write_text(RESULTS / "engine_commands.md", "\n".join(md) + "\n", force=True)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
