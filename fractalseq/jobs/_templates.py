@@ -14,6 +14,7 @@ mining.  Drift reports on logs are no security guarantee.
 
 from __future__ import annotations
 
+import gc
 from dataclasses import dataclass, field
 from itertools import compress
 from typing import Callable, Sequence
@@ -147,15 +148,30 @@ def mine_logs(
     InputError
         An input is missing, unreadable, empty, only blank lines or binary.
     """
+    # no cyclic garbage collection during the run (the miner makes many small containers and frees them by reference
+    # counts): re-enabled once the miner is gone, so its objects are never traversed by the collector
+    collecting = gc.isenabled()
+    if collecting:
+        gc.disable()
+    try:
+        return _mine(paths, block_size, on_input)
+    finally:
+        if collecting:
+            gc.enable()
+
+
+def _mine(paths: Sequence[str], block_size: int, on_input: Callable[[str], None] | None) -> TemplateRun:
+    """:func:`mine_logs` (its body)."""
     if not paths:
         raise InputError("No input given; name one or more log files.")
     origins = []
     for p in paths:
         origin = locate(p)
         block = head(origin)
-        if block and is_binary(block):
+        binary = bool(block) and is_binary(block)
+        if binary:
             raise InputError(f"{origin.name} looks like binary data, not a text log; give an event log (compressed or not).")
-        check_content(block, origin.name, allow_binary=False)
+        check_content(block, origin.name, allow_binary=False, binary=binary)
         origins.append(origin)
     miner = TemplateMiner()
     add_many = miner.add_many

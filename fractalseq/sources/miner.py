@@ -69,7 +69,7 @@ import gc
 from dataclasses import dataclass, field
 from collections import Counter
 from itertools import chain, islice
-from operator import eq
+from operator import eq, itemgetter
 from typing import Callable, Sequence
 
 from fractalseq.errors import ParameterError
@@ -78,7 +78,7 @@ from fractalseq.sources.headers import _EMPTY as _NO_HEADER
 from fractalseq.sources.headers import Header, split_header
 from fractalseq.sources.masks import WILDCARD
 from fractalseq.sources.routes import Route
-from fractalseq.sources.structured import Tokenizer
+from fractalseq.sources.structured import Tokenizer, _collapse_angles, _collapse_quotes, _empty_fields
 from fractalseq.sources.template_merge import MAX_SCAN, fold_group
 from fractalseq.sources.template_index import TAIL, TemplateIndex
 
@@ -170,14 +170,21 @@ def _wild(tpl: list[str], free: list[str]) -> int:
     return sum(1 for a, b in zip(tpl, free) if a == WILDCARD and b != WILDCARD)
 
 
-def _constants(tokens: list[str], words: list[bool]) -> tuple[list[str | None], int, list[str | None]]:
-    """The template with ``None`` for each wildcard, how many constants it holds, and it with ``None`` for each non-word.
+def _constants(tokens: list[str], words: list[bool]) -> tuple[list[str | None], int, list[str | None], Callable | None, tuple]:
+    """The template with ``None`` for each wildcard, how many constants it holds, it with ``None`` for each non-word,
+    and a picker of the tokens at the constants' positions with the constants it must give.
 
     A line changes the template when it differs from one of its constants;
-    it agrees with the template on as many words as the third list has tokens equal to the line's.
+    it agrees with the template on as many words as the third list has tokens equal to the line's.  The picker
+    (``None`` when there is no constant) gives a tuple of at least two tokens (a single position is picked twice).
     """
     fixed = [None if t == WILDCARD else t for t in tokens]
-    return fixed, len(fixed) - fixed.count(None), [t if w else None for t, w in zip(tokens, words)]
+    at = [i for i, t in enumerate(fixed) if t is not None]
+    if len(at) == 1:
+        at = at * 2
+    pick = itemgetter(*at) if at else None
+    return (fixed, len(fixed) - fixed.count(None), [t if w else None for t, w in zip(tokens, words)], pick,
+            tuple(tokens[i] for i in at))
 
 
 class _RouteTokens(dict):
@@ -191,8 +198,9 @@ class _RouteTokens(dict):
         self.mask = mask
 
     def __missing__(self, word: str) -> str:
-        tok = self.mask(word)
-        tok = tok if _routable(tok) else WILDCARD
+        # a masked token either equals the word or holds ``<*>`` (never a plain word): a word that is no plain word
+        # routes as ``<*>`` unmasked, and a plain word routes as itself unless masking changes it
+        tok = word if _routable(word) and self.mask(word) == word else WILDCARD
         if len(self) >= _MSG_CACHE:
             self.clear()
         self[word] = tok
@@ -258,7 +266,7 @@ class TemplateMiner:
         #: (number of words, first ``depth`` words before masking) of a plain-text line -> its slot
         self._raw_slots: dict[tuple, list] = {}
         #: per cluster, its template with ``None`` for a wildcard (a line changes it when a constant differs)
-        self._fixed: list[tuple[list[str | None], int, list[str | None]]] = []
+        self._fixed: list[tuple[list[str | None], int, list[str | None], Callable | None, tuple]] = []
         self._route_word: dict[str, bool] = {}
         self._seen: dict[tuple, int] = {}
         self._lines = 0
@@ -279,7 +287,8 @@ class TemplateMiner:
         seen = self._seen
         clusters = self.clusters
         tokenize = self.tokenize.uncached  # ``_seen`` remembers messages
-        plain, mask = self.tokenize.plain_words, self.tokenize.mask.one
+        mask = self.tokenize.mask.one
+        collapse_quotes, collapse_angles, empty_fields = _collapse_quotes, _collapse_angles, _empty_fields
         slots, raw_slots = self._slots, self._raw_slots
         route_tok = self._route_tok.__getitem__
         depth = self.depth
@@ -298,7 +307,18 @@ class TemplateMiner:
                 cid = seen.get(msg)
                 if cid is None:
                     self._lines = n0 + k
-                    words = plain(msg)
+                    # :meth:`Tokenizer.plain_words`, inlined (most lines of a log take this path)
+                    msg_s = msg.strip()
+                    if msg_s and msg_s[-1] != "}" and "=" not in msg_s:  # plain text: no JSON object, no logfmt pair
+                        if '"' in msg_s:
+                            msg_s = collapse_quotes(msg_s)
+                        if "<" in msg_s:
+                            msg_s = collapse_angles(msg_s)
+                        if "  " in msg_s:
+                            msg_s = empty_fields(msg_s)
+                        words = msg_s.split()
+                    else:
+                        words = None
                     if not words:
                         pinned, free = tokenize(msg)
                         cid = place(pinned, free)
@@ -321,21 +341,22 @@ class TemplateMiner:
                             if fam.tail >= 0:
                                 cid = fam.tail
                             else:
-                                free = list(map(mask, words))
                                 rt = slot[1]
                                 if rt is not None and len(rt.members) == 1 and (
                                     fam.tail == -2
-                                    or ((len(free) <= len(fam.head) or free[len(fam.head)] in fam.words
-                                         or len(fam.words) >= FREE_TAIL_WORDS)
-                                        and (len(free) in fam.lengths or len(fam.lengths) >= FREE_TAIL_LENGTHS))):
+                                    or ((len(words) <= len(fam.head) or len(fam.words) >= FREE_TAIL_WORDS
+                                         or mask(words[len(fam.head)]) in fam.words)
+                                        and (len(words) in fam.lengths or len(fam.lengths) >= FREE_TAIL_LENGTHS))):
                                     # the common case of :meth:`_place`: a family whose tail tracking learns nothing
-                                    # from the line, and a route of one template with all of whose constants it agrees
+                                    # from the line, and a route of one template with all of whose constants it agrees;
+                                    # only the words at the constants' positions are masked (a word under a wildcard,
+                                    # such as a package name seen once, needs no masking for this)
                                     best, = rt.members
-                                    fixed, const, _ = fixed_of[best]
-                                    if sum(map(eq, fixed, free)) == const:
+                                    pick, consts = fixed_of[best][3:]
+                                    if pick is None or tuple(map(mask, pick(words))) == consts:
                                         cid = best
                                 if cid is None:
-                                    cid = place((), free, slot)
+                                    cid = place((), list(map(mask, words)), slot)
                     if len(seen) >= _MSG_CACHE:
                         seen.clear()
                     seen[msg] = cid
@@ -435,7 +456,7 @@ class TemplateMiner:
         members = rt.members
         if len(members) == 1:
             best, = members
-            fixed, const, _ = self._fixed[best]
+            fixed, const, *_ = self._fixed[best]
             if sum(map(eq, fixed, free)) == const:
                 return best  # the line has every constant of the only template of its route: it joins it unchanged
         clusters = self.clusters
@@ -446,7 +467,7 @@ class TemplateMiner:
         else:
             best = self._best_scan(members, free, crowded)
         if best >= 0:
-            fixed, const, _ = self._fixed[best]
+            fixed, const, *_ = self._fixed[best]
             # positions where the line differs from a constant of the template become wildcards
             if sum(map(eq, fixed, free)) != const:
                 c = clusters[best]
@@ -554,7 +575,7 @@ class TemplateMiner:
         """The family's tail is free text: one template, the head then ``<...>``, takes all its lines."""
         first = self.clusters[fam.members[0]].first if fam.members else self._lines
         self.clusters.append(MinedTemplate(list(fam.head) + [TAIL], pinned, 0, first))
-        self._fixed.append(([], 0, []))
+        self._fixed.append(([], 0, [], None, ()))
         self._stamp.append(0)  # one stamp per cluster (a tail joins no route: it is never scanned)
         tail = fam.tail = len(self.clusters) - 1
         for cid in fam.members:

@@ -165,11 +165,14 @@ def is_binary(block: bytes) -> bool:
     return False
 
 
-def check_content(block: bytes, name: str, allow_binary: bool) -> None:
-    """Raise :class:`InputError` for an empty, blank or (unless allowed) binary first block."""
+def check_content(block: bytes, name: str, allow_binary: bool, binary: bool | None = None) -> None:
+    """Raise :class:`InputError` for an empty, blank or (unless allowed) binary first block.
+
+    ``binary``: :func:`is_binary` of the block when the caller has it already (judged here when ``None``).
+    """
     if not block:
         raise InputError(f"{name} is empty; give a file that holds data.")
-    if not allow_binary and is_binary(block):
+    if not allow_binary and (is_binary(block) if binary is None else binary):
         raise InputError(
             f"{name} looks like binary data, not text; check the file, or read raw bytes with the bytes alphabet."
         )
