@@ -23,6 +23,8 @@ Run::
     python benchmarks/bench_scale.py --gigabase            # also one simulated 1-Gbase input (long)
     python benchmarks/bench_scale.py --profile-only --sizes 10,50,96 --before ../old-checkout
                                                            # profile only, this tree against another one
+    python benchmarks/bench_scale.py --profile-workers 2 --sizes 100
+                                                           # profile serial and on 2 workers (same JSON?)
 
 Writes ``benchmarks/results/scale.json`` and ``scale.md``. The genomes are for benchmarking only;
 genomic output is for research, not for clinical decisions.
@@ -177,6 +179,47 @@ def profile_scale(sizes: list[float], gigabase: bool, before: Path | None, work:
     return 0
 
 
+def profile_workers(sizes: list[float], workers: int, work: Path) -> int:
+    """``profile --json`` of one simulated input per size, serial and with ``--workers N``, as whole
+    processes: wall and CPU seconds (user + system of the parent and its waited-for workers), the
+    largest resident set of any one of those processes, the load average before and after each run,
+    and whether the two documents are the same bytes.  Writes ``scale_profile_workers.{json,md}``."""
+    rows = []
+    for mbase in sizes:
+        path = work / f"sim{int(mbase)}m_{RECORDS_MULTI}r.fa"
+        simulate_fasta(path, int(mbase * 1e6), RECORDS_MULTI)
+        docs = {}
+        for label, extra in (("serial", []), (f"--workers {workers}", ["--workers", str(workers)])):
+            out = work / "out.json"
+            before = os.getloadavg()
+            with open(out, "wb") as fh:
+                r = timed(fs("profile", path, "--json", "--quiet", *extra), stdout=fh)
+            after = os.getloadavg()
+            docs[label] = out.read_bytes()
+            row = {"run": label, "mbase": mbase, "records": RECORDS_MULTI, **r,
+                   "load_before": [round(x, 2) for x in before], "load_after": [round(x, 2) for x in after]}
+            rows.append(row)
+            print(row, flush=True)
+        rows[-1]["same_json"] = docs["serial"] == docs[f"--workers {workers}"]
+        rows[-1]["speed_up_wall"] = round(rows[-2]["seconds"] / rows[-1]["seconds"], 2)
+        path.unlink()
+    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}", "rows": rows}
+    lines = ["| run | Mbase | records | wall time | CPU time (all processes) | largest process | load before -> after (1 min) | same JSON | wall speed-up |",
+             "|---|---:|---:|---:|---:|---:|---|---|---:|"]
+    for r in rows:
+        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
+        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
+        same = {True: "yes", False: "no"}.get(r.get("same_json"), "")
+        lines.append(f"| `{r['run']}`{ok} | {r['mbase']:g} | {r['records']} | {r['seconds']:.1f} s | {r['cpu_seconds']:.1f} s | {mem} | "
+                     f"{r['load_before'][0]:.2f} -> {r['load_after'][0]:.2f} | {same} | {r.get('speed_up_wall', '')} |")
+    lines += ["", f"Machine: {data['machine']}. Each run is one `python -m fractalseq profile --json` process under "
+              "`/usr/bin/time -v`; its CPU time includes the worker processes it waited for, and the memory column "
+              "is the largest resident set of any single process (not their sum).", ""]
+    write_results("scale_profile_workers", data, "\n".join(lines))
+    print("\n".join(lines))
+    return 0
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--sizes", default="10,50", help="Mbase of the simulated inputs, comma-separated.")
@@ -188,8 +231,14 @@ def main() -> int:
                     help="Only `profile` of the 24-record inputs at --sizes (and --gigabase); writes scale_profile.{json,md}.")
     ap.add_argument("--before", type=Path, default=None,
                     help="With --profile-only: another checkout whose `profile` is measured on the same inputs (JSON compared).")
+    ap.add_argument("--profile-workers", type=int, default=0, metavar="N",
+                    help="Only `profile` of one 24-record input per size, serial and with --workers N (JSON compared); "
+                         "writes scale_profile_workers.{json,md}.")
     args = ap.parse_args()
     sizes = [float(s) for s in args.sizes.split(",") if s.strip()]
+    if args.profile_workers:
+        with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
+            return profile_workers(sizes, args.profile_workers, Path(tmp))
     if args.profile_only:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
             return profile_scale(sizes, args.gigabase, args.before, Path(tmp))
