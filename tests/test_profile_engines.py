@@ -114,10 +114,13 @@ def test_serial_engine_takes_the_in_process_path():
                                                                           consistency_max_length=6_000)
 
 
-def test_quick_and_no_bootstrap_profiles_on_an_engine():
-    """Quick mode (no bootstrap, no consistency table) and ``n_boot=0`` give the in-process documents."""
+def test_quick_no_bootstrap_and_no_piece_profiles_on_an_engine():
+    """Quick mode (no bootstrap, no consistency table), no piece size and ``n_boot=0`` give the in-process documents."""
     arr = _stream(9_000, 8)
     assert _doc(arr, _PickledInProcess(), 700, quick=True) == _doc(arr, quick=True)
+    eng = _PickledInProcess()  # no piece size: the counts are made here, the rest on the engine
+    assert _doc(arr, eng) == _doc(arr)
+    assert "count_piece" not in eng.tasks and {"depth_spectra_task", "predictor_task"} <= set(eng.tasks)
     none = Resampling(n_boot=0, seed=1)
     assert _doc(arr, _PickledInProcess(), 2_000, resampling=none) == _doc(arr, resampling=none)
 

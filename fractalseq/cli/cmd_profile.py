@@ -242,9 +242,10 @@ def profile(
     workers: Optional[int] = common.WORKERS,
     scheduler: Optional[str] = common.SCHEDULER,
     connect_timeout: float = common.CONNECT_TIMEOUT,
-    piece: int = typer.Option(
-        1 << 24, "--piece", min=1,
-        help="With --engine/--workers/--scheduler: symbols per piece of the word counts; the pieces overlap by DEPTH-1 symbols and add up exactly.",
+    piece: Optional[int] = typer.Option(
+        None, "--piece", min=1,
+        help="With --engine/--workers/--scheduler: also count the words on the workers, in pieces of this many symbols "
+             "overlapping by DEPTH-1 (added up exactly); default: counted here, on two threads (faster on one machine).",
     ),
 ) -> None:
     """Measure the complexity of each input: dimensions, entropies, consistency.
@@ -270,9 +271,9 @@ def profile(
     and named INPUT:RECORD.
 
     With --workers N (or --engine dask, --scheduler tcp://HOST:PORT) the heavy passes run
-    on the workers: word counts in pieces of --piece symbols, the bootstrap pass of each
-    word length, the online predictor and the consistency table beside them. The
-    numbers are the serial ones, to the last digit.
+    on the workers: the bootstrap pass of each word length, the online predictor and
+    the consistency table beside them, and with --piece also the word counts, in pieces.
+    The numbers are the serial ones, to the last digit.
 
     Genomic output is for research, not for clinical decisions.
 

@@ -521,9 +521,10 @@ def profile_source(
         Leave out what :data:`QUICK_SKIPS` names (the bootstrap, so no intervals; the consistency
         table; the compressor bound), each with a note: a first look at a big input.
     engine, piece:
-        Where the heavy passes run (:mod:`fractalseq.jobs._profile_tasks`: word counts in pieces of
-        ``piece`` symbols, one bootstrap task per depth, the predictor and the prefix's consistency
-        table beside them); ``None`` or the serial engine: in this process. Same result either way.
+        Where the heavy passes run (:mod:`fractalseq.jobs._profile_tasks`: one bootstrap task per
+        depth, the predictor and the prefix's consistency table beside them, and with ``piece`` the
+        word counts in pieces of that many symbols); ``None`` or the serial engine: in this process.
+        Same result either way.
 
     Returns
     -------

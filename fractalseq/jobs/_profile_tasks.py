@@ -2,9 +2,9 @@
 
 A profile of one large source on an engine runs:
 
-* the word counts as pieces overlapping by ``N - 1`` symbols
+* with a piece size, the word counts as pieces overlapping by ``N - 1`` symbols
   (:func:`fractalseq.words._pieces.count_words_split`, added in piece order: the counts of a
-  one-pass count exactly);
+  one-pass count exactly; without one they are counted in the parent, on two threads);
 * the bootstrap pass of every depth as one task each (dimensions and entropy-rate intervals,
   :mod:`fractalseq.resampling._spectra_tasks`);
 * two steps that need nothing from the others, started on the workers as soon as the counts are
@@ -22,6 +22,8 @@ import math
 from dataclasses import replace
 from typing import Any, Callable
 
+import numpy as np
+
 from fractalseq.dimensions import _consistency as cons
 from fractalseq.dimensions import _spectrum as sp
 from fractalseq.entropy import _estimators as ent
@@ -36,15 +38,19 @@ __all__ = ["Background", "predictor_task", "consistency_task", "words_counter"]
 
 
 def words_counter(engine: Engine | None, piece: int | None) -> Callable[[SymbolArray, int], WordCounts]:
-    """``count_words``, or on an engine the same counts added up from pieces of ``piece`` symbols."""
-    if piece is not None and (isinstance(piece, bool) or int(piece) < 1):
-        raise ParameterError(f"The piece size must be a positive number of symbols, not {piece!r}.", parameter="piece")
-    if not on_workers(engine):
-        return count_words
-    from fractalseq.words._pieces import DEFAULT_PIECE, count_words_split
+    """``count_words``, or with a ``piece`` size on an engine the same counts added up from pieces.
 
-    chunk = DEFAULT_PIECE if piece is None else int(piece)
-    return lambda arr, depth: count_words_split(arr, depth, engine, chunk=chunk)
+    Without ``piece`` the counts are made in this process even on an engine: the one-pass count
+    sorts on two threads, and on one two-core machine the split count is slower (README, "Split
+    counting"); pieces pay when the workers are other machines.
+    """
+    if piece is not None and (isinstance(piece, bool) or not isinstance(piece, (int, np.integer)) or piece < 1):
+        raise ParameterError(f"The piece size must be a positive number of symbols, not {piece!r}.", parameter="piece")
+    if piece is None or not on_workers(engine):
+        return count_words
+    from fractalseq.words._pieces import count_words_split
+
+    return lambda arr, depth: count_words_split(arr, depth, engine, chunk=int(piece))
 
 
 def _predictor_code_length(arr: SymbolArray):
