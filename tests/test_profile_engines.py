@@ -169,6 +169,6 @@ def test_cli_profile_with_two_workers_gives_the_serial_bytes(tmp_path):
     split = subprocess.run([*base, "--workers", "2", "--piece", "3000"], capture_output=True, env=env, timeout=600)
     assert serial.returncode == 0 and split.returncode == 0, split.stderr.decode()[-2000:]
     assert split.stdout == serial.stdout
-    assert json.loads(serial.stdout)["profiles"][0]["length"] == 12_000
+    assert json.loads(serial.stdout)["sources"][0]["length"] == 12_000
     bad = subprocess.run([*base, "--piece", "0"], capture_output=True, env=env, timeout=600)
     assert bad.returncode == 2
