@@ -23,6 +23,10 @@ Run::
     python benchmarks/bench_scale.py --gigabase            # also one simulated 1-Gbase input (long)
     python benchmarks/bench_scale.py --profile-only --sizes 10,50,96 --before ../old-checkout
                                                            # profile only, this tree against another one
+    python benchmarks/bench_scale.py --profile-workers 2 --sizes 100
+                                                           # profile serial and on 2 workers (same JSON?)
+    python benchmarks/bench_scale.py --cpu-split 2 --sizes 20
+                                                           # CPU of the parent and of its 2 workers
 
 Writes ``benchmarks/results/scale.json`` and ``scale.md``. The genomes are for benchmarking only;
 genomic output is for research, not for clinical decisions.
@@ -177,6 +181,110 @@ def profile_scale(sizes: list[float], gigabase: bool, before: Path | None, work:
     return 0
 
 
+def profile_workers(sizes: list[float], workers: int, work: Path) -> int:
+    """``profile --json`` of one simulated input per size, serial and with ``--workers N``, as whole
+    processes: wall and CPU seconds (user + system of the parent and its waited-for workers), the
+    largest resident set of any one of those processes, the load average before and after each run,
+    and whether the two documents are the same bytes.  Writes ``scale_profile_workers.{json,md}``."""
+    rows = []
+    for mbase in sizes:
+        path = work / f"sim{int(mbase)}m_{RECORDS_MULTI}r.fa"
+        simulate_fasta(path, int(mbase * 1e6), RECORDS_MULTI)
+        docs = {}
+        for label, extra in (("serial", []), (f"--workers {workers}", ["--workers", str(workers)])):
+            out = work / "out.json"
+            before = os.getloadavg()
+            with open(out, "wb") as fh:
+                r = timed(fs("profile", path, "--json", "--quiet", *extra), stdout=fh)
+            after = os.getloadavg()
+            docs[label] = out.read_bytes()
+            row = {"run": label, "mbase": mbase, "records": RECORDS_MULTI, **r,
+                   "load_before": [round(x, 2) for x in before], "load_after": [round(x, 2) for x in after]}
+            rows.append(row)
+            print(row, flush=True)
+        rows[-1]["same_json"] = docs["serial"] == docs[f"--workers {workers}"]
+        rows[-1]["speed_up_wall"] = round(rows[-2]["seconds"] / rows[-1]["seconds"], 2)
+        path.unlink()
+    for r in rows:
+        r["cores_used"] = round(r["cpu_seconds"] / r["seconds"], 2) if r["seconds"] else None
+    old = HERE / "results" / "scale_profile_workers.json"
+    if old.exists():  # rows of earlier runs at other sizes are kept
+        import json
+
+        sizes_now = {r["mbase"] for r in rows}
+        rows = [r for r in json.loads(old.read_text()).get("rows", []) if r["mbase"] not in sizes_now] + rows
+        rows.sort(key=lambda r: r["mbase"])
+    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}", "rows": rows}
+    lines = ["| run | Mbase | records | wall time | CPU time (all processes) | cores used (CPU/wall) | largest process | "
+             "load before -> after (1 min) | same JSON | wall speed-up |",
+             "|---|---:|---:|---:|---:|---:|---:|---|---|---:|"]
+    for r in rows:
+        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
+        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
+        same = {True: "yes", False: "no"}.get(r.get("same_json"), "")
+        used = r.get("cores_used") or round(r["cpu_seconds"] / r["seconds"], 2)
+        lines.append(f"| `{r['run']}`{ok} | {r['mbase']:g} | {r['records']} | {r['seconds']:.1f} s | {r['cpu_seconds']:.1f} s | "
+                     f"{used:.2f} | {mem} | {r['load_before'][0]:.2f} -> {r['load_after'][0]:.2f} | {same} | "
+                     f"{r.get('speed_up_wall', '')} |")
+    lines += ["", f"Machine: {data['machine']}. Each run is one `python -m fractalseq profile --json` process under "
+              "`/usr/bin/time -v`; its CPU time includes the worker processes it waited for, and the memory column "
+              "is the largest resident set of any single process (not their sum).", ""]
+    write_results("scale_profile_workers", data, "\n".join(lines))
+    print("\n".join(lines))
+    return 0
+
+
+def cpu_split(sizes: list[float], workers: int, work: Path) -> int:
+    """Where the CPU of ``profile_source(..., engine=ProcessEngine(N))`` goes: the parent's own CPU
+    seconds and its workers' (``getrusage``; neither depends on the machine's load), against the
+    serial profile's CPU seconds in this process, and the bound they set on two idle cores.
+    Writes ``scale_profile_cpu_split.{json,md}``."""
+    import resource
+
+    from fractalseq.io._outputs import to_json
+    from fractalseq.jobs._engines import ProcessEngine
+    from fractalseq.jobs._profile import profile_source
+    from fractalseq.sources import open_source
+
+    def cpu(who: int) -> float:
+        r = resource.getrusage(who)
+        return r.ru_utime + r.ru_stime
+
+    rows = []
+    for mbase in sizes:
+        path = work / f"sim{int(mbase)}m_{RECORDS_MULTI}r.fa"
+        simulate_fasta(path, int(mbase * 1e6), RECORDS_MULTI)
+        arr = open_source(str(path)).to_array()
+        t0 = cpu(resource.RUSAGE_SELF)
+        serial = profile_source(arr).to_dict()
+        t1 = cpu(resource.RUSAGE_SELF)
+        c0 = cpu(resource.RUSAGE_CHILDREN)
+        with ProcessEngine(workers) as eng:
+            split = profile_source(arr, engine=eng).to_dict()
+        t2, c1 = cpu(resource.RUSAGE_SELF), cpu(resource.RUSAGE_CHILDREN)
+        serial.pop("timings", None)
+        split.pop("timings", None)
+        row = {"mbase": mbase, "workers": workers, "serial_cpu": round(t1 - t0, 1), "parent_cpu": round(t2 - t1, 1),
+               "workers_cpu": round(c1 - c0, 1), "same_result": to_json(serial) == to_json(split)}
+        row["bound_speed_up"] = round(row["serial_cpu"] / max(row["parent_cpu"], (row["parent_cpu"] + row["workers_cpu"]) / 2), 2)
+        rows.append(row)
+        print(row, flush=True)
+        path.unlink()
+    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}", "rows": rows}
+    lines = ["| Mbase | serial CPU | parent CPU | workers' CPU | same result | bound on 2 idle cores |",
+             "|---:|---:|---:|---:|---|---:|"]
+    for r in rows:
+        lines.append(f"| {r['mbase']:g} | {r['serial_cpu']:.1f} s | {r['parent_cpu']:.1f} s | {r['workers_cpu']:.1f} s | "
+                     f"{'yes' if r['same_result'] else 'no'} | {r['bound_speed_up']:.2f}x |")
+    lines += ["", "In one process: the stream read once, then `profile_source` serially and on "
+              f"`ProcessEngine({workers})` (reading and start-up excluded). The bound is serial CPU / max(parent CPU, "
+              "(parent + workers) / 2): the speed-up if two idle cores were kept busy all the time (an upper bound, "
+              f"not a measured time). Machine: {data['machine']}.", ""]
+    write_results("scale_profile_cpu_split", data, "\n".join(lines))
+    print("\n".join(lines))
+    return 0
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--sizes", default="10,50", help="Mbase of the simulated inputs, comma-separated.")
@@ -188,8 +296,20 @@ def main() -> int:
                     help="Only `profile` of the 24-record inputs at --sizes (and --gigabase); writes scale_profile.{json,md}.")
     ap.add_argument("--before", type=Path, default=None,
                     help="With --profile-only: another checkout whose `profile` is measured on the same inputs (JSON compared).")
+    ap.add_argument("--profile-workers", type=int, default=0, metavar="N",
+                    help="Only `profile` of one 24-record input per size, serial and with --workers N (JSON compared); "
+                         "writes scale_profile_workers.{json,md}.")
+    ap.add_argument("--cpu-split", type=int, default=0, metavar="N",
+                    help="Only the CPU of `profile_source` serially and on N local workers (parent and workers apart); "
+                         "writes scale_profile_cpu_split.{json,md}.")
     args = ap.parse_args()
     sizes = [float(s) for s in args.sizes.split(",") if s.strip()]
+    if args.cpu_split:
+        with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
+            return cpu_split(sizes, args.cpu_split, Path(tmp))
+    if args.profile_workers:
+        with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
+            return profile_workers(sizes, args.profile_workers, Path(tmp))
     if args.profile_only:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
             return profile_scale(sizes, args.gigabase, args.before, Path(tmp))

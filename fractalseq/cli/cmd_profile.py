@@ -240,6 +240,15 @@ def profile(
     per_record: bool = typer.Option(
         False, "--per-record", help="Profile every record of every input (chromosome, contig, read) on its own, named INPUT:RECORD.",
     ),
+    engine: Optional[str] = common.ENGINE,
+    workers: Optional[int] = common.WORKERS,
+    scheduler: Optional[str] = common.SCHEDULER,
+    connect_timeout: float = common.CONNECT_TIMEOUT,
+    piece: Optional[int] = typer.Option(
+        None, "--piece", min=1,
+        help="With --engine/--workers/--scheduler: also count the words on the workers, in pieces of this many symbols "
+             "overlapping by DEPTH-1 (added up exactly); default: counted here, on two threads (faster on one machine).",
+    ),
 ) -> None:
     """Measure the complexity of each input: dimensions, entropies, consistency.
 
@@ -263,6 +272,11 @@ def profile(
     contigs of a metagenome) is profiled on its own, as if it were a file of its own,
     and named INPUT:RECORD.
 
+    With --workers N (or --engine dask, --scheduler tcp://HOST:PORT) the heavy passes run
+    on the workers: the bootstrap pass of each word length, the online predictor and
+    the consistency table beside them, and with --piece also the word counts, in pieces.
+    The numbers are the serial ones, to the last digit.
+
     Genomic output is for research, not for clinical decisions.
 
     Example: fractalseq profile lambda.fa.gz --out lambda-profile --q 0,1,2 --boot 200
@@ -284,7 +298,7 @@ def profile(
     subfolders: list[str] = []
     taken: set[str] = {"index.html", "profile.json"}
     stage = StagedFolder(out, force) if out is not None else None  # built aside, renamed into place at the end
-    with common.progress(quiet) as bar:
+    with common.make_engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
         for label, arr in _each_source(paths, read, per_record):
             task = bar.add_task(f"{label}: reading", total=len(STEPS) + 1)
             settings.depth_for(len(arr), arr.alphabet)  # refuse an impossible depth before any work
@@ -295,7 +309,8 @@ def profile(
                 bar.advance(task)
 
             res = profile_source(arr, ratio=settings.ratio, qs=settings.qs, depth=settings.depth,
-                                 resampling=settings.resampling, progress=on_step, quick=settings.quick)
+                                 resampling=settings.resampling, progress=on_step, quick=settings.quick,
+                                 engine=eng, piece=piece)
             results.append(res)
             if stage is not None:
                 bar.update(task, description=f"{label}: writing report")

@@ -97,6 +97,8 @@ from fractalseq.resampling import _bootstrap as bs
 from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.resampling._plan import block_major_weights
 from fractalseq.resampling._streamed import streamed_replicate_spectra
+from fractalseq.resampling._spectra_tasks import depth_spectra, on_workers
+from fractalseq.runner import Engine
 from fractalseq.resampling._word_labels import WordIndex
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, count_words
@@ -193,6 +195,7 @@ def _word_level_data(
     corrected: bool,
     auto: bs.BlockLength | None = None,
     variances: bool = True,
+    engine: Engine | None = None,
 ) -> LevelData:
     depths = np.arange(1, top_depth + 1)
     L = depths.size
@@ -215,17 +218,25 @@ def _word_level_data(
         boot = n_boot > 0 and block is not None
         streamed = scheme == "nonoverlapping"
         plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme) if boot and block is not None and not streamed else None
-        weights = block_major_weights(len(arr), block.length, n_boot, seed) if boot and block is not None and streamed else None
-        reps = np.empty((n_boot, L, K)) if plan is not None or weights is not None else None
+        drawn = boot and block is not None and streamed  # block weights, drawn here or by each worker
+        weights = block_major_weights(len(arr), block.length, n_boot, seed) if drawn and not on_workers(engine) else None
+        reps = np.empty((n_boot, L, K)) if plan is not None or drawn else None
         # batches as long as the automatic bootstrap blocks (whatever block length the interval uses)
         if auto is None:
             auto = bs.choose_block_length(arr, L, scheme="nonoverlapping")
         batches = BatchSums(len(arr), L, qs.size, batch=auto.length) if not streamed else None
         levels = []
+        ell = block.length if block is not None else 1
+        mapped: list | None = (  # one task per depth on the engine's workers (the arrays of the loop below)
+            depth_spectra(arr, [int(n) for n in depths], ell, n_boot, seed, engine) if drawn and on_workers(engine) else None
+        )
         for i, n in enumerate(depths):
             if streamed:
                 index = WordIndex(arr, int(n))
-                counts, spectra = streamed_replicate_spectra(index, int(n), block.length if block is not None else 1, weights)
+                if mapped is not None:
+                    (counts, spectra), mapped[i] = mapped[i], None
+                else:
+                    counts, spectra = streamed_replicate_spectra(index, int(n), ell, weights)
                 levels.append((index.chunks, counts))
                 if reps is not None and spectra is not None:
                     reps[:, i] = spectra_vectors(spectra, n_boot, qs, corrected)
@@ -269,6 +280,7 @@ def dimension_spectrum(
     corrected: bool = True,
     max_depth: int | None = None,
     rates: bool = False,
+    engine: Engine | None = None,
 ) -> SpectrumResult:
     """Rényi dimensions D_q of a stream's encoding from its word counts.
 
@@ -302,6 +314,9 @@ def dimension_spectrum(
     rates:
         Also give the conditional-form Rényi entropy rates h_q in bits from the
         same bootstrap (``result.rates``; see :func:`rates_from`).
+    engine:
+        Where the per-depth bootstrap passes run (:mod:`fractalseq.resampling._spectra_tasks`, one
+        task per depth); ``None`` or the serial engine: in this process. The result is the same.
 
     Returns
     -------
@@ -383,7 +398,8 @@ def dimension_spectrum(
         # the bootstrap's own automatic block is the batch length too: chosen once
         auto = block if block is not None and rs.block_length is None and scheme == "nonoverlapping" else None
         ld = _word_level_data(
-            wc, arr, qv, k, top, starve, n_boot if arr is not None else 0, seed, block, scheme, corrected, auto
+            wc, arr, qv, k, top, starve, n_boot if arr is not None else 0, seed, block, scheme, corrected, auto,
+            engine=engine,
         )
         # limits are computed on the probe (all counted depths) so a user range cannot move them
         ld.data_limit = min(probe.data_limit, top - 1)

@@ -44,7 +44,6 @@ import numpy as np
 from fractalseq.words import _absent as absent_mod
 from fractalseq.resampling import _bootstrap as bs
 from fractalseq.resampling._options import Resampling, as_resampling
-from fractalseq.dimensions import _consistency as cons
 from fractalseq.entropy import _estimators as ent
 from fractalseq.entropy import _lz as lz
 from fractalseq.dimensions import _spectrum as sp
@@ -56,9 +55,14 @@ from fractalseq.jobs._profile_rates import (
     annotate_rows, choose_rate, deepen_counts, evidence_rates, ordinal_delay, ordinal_order, safe_ordinal_entropy,
 )
 from fractalseq.jobs._profile_result import RATE_NAMES, ProfileResult, ScalingCurve
+from fractalseq.jobs._profile_tasks import (
+    Background, _consistency, _predictor_code_length, consistency_task, predictor_task, words_counter,
+)
 from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract, profile_caution
+from fractalseq.runner import Engine
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
+from fractalseq.words._pieces import stream_for_workers
 
 __all__ = [
     "CAUTION_GENERAL", "CAUTION_GENOMIC", "CONSISTENCY_MAX_LENGTH", "DEFAULT_BOOT", "FORMAT", "IMAGE_MAX_LENGTH",
@@ -189,30 +193,6 @@ def _scaling_curves(spec, wc_spec: WordCounts | None, user_qs: tuple[float, ...]
             intercept = float("nan")
         curves.append(ScalingCurve(float(q), lv, x, y, lo, hi, slope, intercept, quantity))
     return tuple(curves)
-
-
-def _predictor_code_length(arr: SymbolArray):
-    """The online predictor's code length in bits per symbol as an EntropyEstimate (an upper bound)."""
-    from fractalseq.predict import _predictor as predict
-
-    res = predict.online_code_length(arr)
-    A = arr.alphabet.size
-    bits = float(res.bits_per_symbol)
-    details = {
-        "total_bits": float(res.total_bits),
-        "top1": float(res.top1_accuracy),
-        "top3": float(res.top3_accuracy),
-        "calibration_error": float(res.expected_calibration_error),
-        "depths": [int(d) for d in res.depths],
-        "cells_stored": int(res.memory.cells_stored),
-        "evictions": int(res.memory.evictions),
-    }
-    return ent.EntropyEstimate(
-        quantity="entropy rate upper bound", method="online predictor", estimate=bits, unit="bits/symbol",
-        fraction_of_max=bits / math.log2(A), reliable=True,
-        note="predict-then-update code length of the count-based predictor: an upper bound on the information content",
-        details=details,
-    )
 
 
 # ----------------------------------------------------------------- settings
@@ -362,14 +342,15 @@ def _block_entropies(arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...
 
 
 def _dimensions(
-    arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], k: float, rs: Resampling, notes: list[str]
+    arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], k: float, rs: Resampling, notes: list[str],
+    engine: Engine | None = None,
 ) -> tuple[sp.SpectrumResult, tuple[ScalingCurve, ...]]:
     """Step 3: D_q and f(alpha) (user's orders plus a grid for the f(alpha) curve) and the scaling curves.
 
     The conditional Rényi rates of the consistency table come from the same bootstrap pass.
     """
     all_qs = tuple(sorted(set(user_qs) | set(FALPHA_QS)))
-    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, resampling=rs, falpha=True, rates=True)
+    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, resampling=rs, falpha=True, rates=True, engine=engine)
     notes.extend(f"dimensions: {f}" for f in spec.flags)
     wc_spec = None
     if spec.route == "word counts":
@@ -379,7 +360,8 @@ def _dimensions(
 
 
 def _rate_intervals(
-    arr: SymbolArray, rate_est: dict[str, ent.EntropyEstimate], rs: Resampling, block, notes: list[str]
+    arr: SymbolArray, rate_est: dict[str, ent.EntropyEstimate], rs: Resampling, block, notes: list[str],
+    engine: Engine | None = None,
 ) -> dict[str, Any] | None:
     """Step 4: intervals of the rate estimates by the block bootstrap (counts re-weighted, never recounted).
 
@@ -406,7 +388,7 @@ def _rate_intervals(
             return np.column_stack([ent.replicate_rates(s0, specs[n_rate + 1], m) for m in ent.METHODS])
 
         boot = bs.block_bootstrap(
-            arr, depths, stat, replace(rs, block_length=block), spectra=True, batch_statistic=batch
+            arr, depths, stat, replace(rs, block_length=block), spectra=True, batch_statistic=batch, engine=engine
         )
         lo, hi = boot.interval(level, rs.interval)
         for j, m in enumerate(ent.METHODS):
@@ -419,51 +401,12 @@ def _rate_intervals(
     return None
 
 
-def _consistency(
-    arr: SymbolArray, spec: sp.SpectrumResult, user_qs: tuple[float, ...], k: float, rs: Resampling,
-    offsets: int, notes: list[str], max_length: int | None = CONSISTENCY_MAX_LENGTH,
-) -> cons.ConsistencyResult | None:
-    """Step 5: the consistency table (geometry against information), or ``None`` with a note saying why.
-
-    Beyond ``max_length`` symbols both sides are measured on the prefix of that length (the point
-    cloud and its box labels cost about 30 bytes per symbol), with a note.
-    """
-    L = len(arr)
-    if L <= sp.TRANSIENT + 10:
-        notes.append(f"consistency table: not computed, the stream has {L} symbols (needs more than {sp.TRANSIENT + 10})")
-        return None
-    if max_length is not None and L > max_length:
-        notes.append(f"consistency table: both sides measured on the first {max_length:,} of {L:,} symbols")
-        try:
-            table = cons.consistency_table(arr.slice(0, max_length), user_qs, ratio=k, resampling=rs, offsets=offsets)
-        except FractalseqError as exc:
-            notes.append(f"consistency table: not computed ({exc})")
-            return None
-        notes.extend(f"consistency table: {f}" for f in table.flags)
-        return table
-    block = spec.block
-    info = None
-    if spec.route == "word counts" and spec.rates:
-        info = cons.RateResult(
-            tuple(r for r in spec.rates if r.q in user_qs), block, rs.n_boot if block else 0, rs.seed, L
-        )
-    try:
-        consistency = cons.consistency_table(
-            arr, user_qs, ratio=k, resampling=replace(rs, block_length=block), offsets=offsets, information=info,
-            levels=spec.data_limit if spec.route == "word counts" and spec.data_limit else None,
-        )
-    except FractalseqError as exc:
-        notes.append(f"consistency table: not computed ({exc})")
-        return None
-    notes.extend(f"consistency table: {f}" for f in consistency.flags)
-    return consistency
-
-
 def _rate_bounds(
     arr: SymbolArray, rates: dict[str, tuple[str, ent.EntropyEstimate]], lz_max_length: int | None,
     compress_max_length: int | None, clock: _Clock, notes: list[str], compressors: bool = True,
+    background: Background | None = None,
 ) -> None:
-    """Step 6: Lempel-Ziv, the compressor bound and the online predictor, added to ``rates``."""
+    """Step 6: Lempel-Ziv, the compressor bound and the online predictor (or ``background``'s), added to ``rates``."""
     clock.step("Lempel-Ziv")
     try:
         rates["lz76"] = ("estimate", lz.h_lz76(arr, max_length=lz_max_length))
@@ -476,10 +419,15 @@ def _rate_bounds(
     except FractalseqError as exc:
         notes.append(f"compressor bound: not computed ({exc})")
     clock.step("online predictor")
+    done = background.take("online predictor") if background is not None else None
     try:
-        rates["online_predictor"] = ("upper bound", _predictor_code_length(arr))
+        est, why = done if done is not None else (_predictor_code_length(arr), None)
     except FractalseqError as exc:
-        notes.append(f"online predictor: not computed ({exc})")
+        est, why = None, str(exc)
+    if est is not None:
+        rates["online_predictor"] = ("upper bound", est)
+    else:
+        notes.append(f"online predictor: not computed ({why})")
 
 
 def _absent_words(wc: WordCounts, length: int, absent_list: int, notes: list[str]) -> absent_mod.WordReport | None:
@@ -532,6 +480,8 @@ def profile_source(
     consistency_max_length: int | None = CONSISTENCY_MAX_LENGTH,
     image_max_length: int | None = IMAGE_MAX_LENGTH,
     quick: bool = False,
+    engine: Engine | None = None,
+    piece: int | None = None,
 ) -> ProfileResult:
     """Measure one stream with every estimator of the package.
 
@@ -570,6 +520,11 @@ def profile_source(
     quick:
         Leave out what :data:`QUICK_SKIPS` names (the bootstrap, so no intervals; the consistency
         table; the compressor bound), each with a note: a first look at a big input.
+    engine, piece:
+        Where the heavy passes run (:mod:`fractalseq.jobs._profile_tasks`: one bootstrap task per
+        depth, the predictor and the prefix's consistency table beside them, and with ``piece`` the
+        word counts in pieces of that many symbols); ``None`` or the serial engine: in this process.
+        Same result either way.
 
     Returns
     -------
@@ -589,32 +544,53 @@ def profile_source(
     clock = _Clock(progress)
     settings = ProfileSettings(ratio, tuple(qs), depth, n_boot, level, seed, quick=bool(quick))
     arr, N = _checked_input(arr, settings)
-    user_qs, k = settings.qs, settings.ratio
-    L = len(arr)
     notes: list[str] = []
-    ov = overlap_check(k, corner_layout(arr.alphabet.size))
+    ov = overlap_check(settings.ratio, corner_layout(arr.alphabet.size))
     if ov.overlapping:
         notes.append(f"encoding: {ov.reason}")
 
+    background = Background(engine)
+    try:
+        return _measure(arr, N, settings, rs, offsets, lz_max_length, compress_max_length, absent_list, image,
+                        consistency_max_length, image_max_length, clock, notes, ov, engine, piece, background)
+    finally:
+        background.cancel()
+
+
+def _measure(arr, N, settings, rs, offsets, lz_max_length, compress_max_length, absent_list, image,
+             consistency_max_length, image_max_length, clock, notes, ov, engine, piece, background) -> ProfileResult:
+    """The steps of :func:`profile_source` on a checked stream (background tasks collected in step order)."""
+    user_qs, k, depth, quick = settings.qs, settings.ratio, settings.depth, settings.quick
+    n_boot, seed, level, L = rs.n_boot, rs.seed, rs.level, len(arr)
     clock.step("counting words")  # 1. words, counted once
-    wc = count_words(arr, N)
+    counter = words_counter(engine, piece)
+    wc = counter(arr, N)
     if depth is None:  # a source with memory supports longer words than the fixed rule counts
-        wc = deepen_counts(arr, wc, MAX_AUTO_DEPTH)
+        wc = deepen_counts(arr, wc, MAX_AUTO_DEPTH, counter)
         N = wc.depth
+    if background.engine is not None:  # steps that need nothing from the others start on the workers now
+        shipped = stream_for_workers(arr)
+        background.start("online predictor", predictor_task, shipped)
+        if not quick and consistency_max_length is not None and L > max(consistency_max_length, sp.TRANSIENT + 10):
+            background.start("consistency table", consistency_task, (shipped, user_qs, k, rs, offsets, consistency_max_length))
     clock.step("block entropies")  # 2. block entropies and rate estimates
     found = _block_entropies(arr, wc, user_qs, notes)
     clock.step("dimensions")  # 3. dimensions, f(alpha) and the scaling data
-    spec, scaling = _dimensions(arr, wc, user_qs, k, rs, notes)
+    spec, scaling = _dimensions(arr, wc, user_qs, k, rs, notes, engine)
     clock.step("entropy-rate intervals")  # 4. one block length for every interval (the spectrum's)
-    rate_block = _rate_intervals(arr, found.rates, rs, spec.block, notes)
+    rate_block = _rate_intervals(arr, found.rates, rs, spec.block, notes, engine)
     rates: dict[str, tuple[str, ent.EntropyEstimate]] = {m: ("estimate", found.rates[m]) for m in ent.METHODS}
     clock.step("consistency table")  # 5. geometry against information
     if quick:
         consistency = None
         notes.append("quick mode: " + ", ".join(QUICK_SKIPS) + " left out")
+    elif (done := background.take("consistency table")) is not None:
+        consistency = done[0]
+        notes.extend(done[1])
     else:
         consistency = _consistency(arr, spec, user_qs, k, rs, offsets, notes, consistency_max_length)
-    _rate_bounds(arr, rates, lz_max_length, None if quick else compress_max_length, clock, notes, compressors=not quick)  # 6. LZ76, compressors, predictor
+    _rate_bounds(arr, rates, lz_max_length, None if quick else compress_max_length, clock, notes, compressors=not quick,
+                 background=background)  # 6. LZ76, compressors, predictor
     clock.step("absent words")  # 7. absent words
     absent = _absent_words(wc, L, absent_list, notes)
     clock.step("encoding image")  # 8. encoding image

@@ -82,11 +82,12 @@ def evidence_rates(wc: WordCounts, order: int = 0, delay: int = 1) -> tuple[dict
     return out, ev
 
 
-def deepen_counts(arr: SymbolArray, wc: WordCounts, cap: int) -> WordCounts:
+def deepen_counts(arr: SymbolArray, wc: WordCounts, cap: int, count_words=count_words) -> WordCounts:
     """Count deeper (up to ``cap``) while the counts support every word length counted.
 
     The default counted depth comes from the fixed rule; a source with memory (few of its possible
     words occur) supports longer words, and its rate is read too shallow unless they are counted.
+    ``count_words`` counts (e.g. piece by piece on an engine: the same counts).
     """
     order, delay = ordinal_order(arr), ordinal_delay(arr)
     cap = int(min(cap, arr.alphabet.max_depth))

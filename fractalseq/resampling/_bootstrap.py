@@ -67,6 +67,8 @@ from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.resampling._plan import SCHEMES, ResamplePlan, block_major_weights, make_plan
 from fractalseq.resampling._replicates import CountSpectrum
 from fractalseq.resampling._streamed import streamed_replicate_spectra
+from fractalseq.resampling._spectra_tasks import depth_spectra, on_workers
+from fractalseq.runner import Engine
 from fractalseq.resampling._word_labels import DENSE_LABEL_CELLS, WordIndex, rank_sorted_keys, word_labels
 from fractalseq.results import Result
 from fractalseq.stream import SymbolArray, SymbolStream
@@ -161,6 +163,7 @@ def block_bootstrap(
     resampling: Resampling | None = None,
     spectra: bool = False,
     batch_statistic: Callable[[dict], np.ndarray] | None = None,
+    engine: Engine | None = None,
 ) -> BootstrapResult:
     """Block bootstrap of any statistic of word counts.
 
@@ -198,13 +201,19 @@ def block_bootstrap(
         returning an ``(n_boot, k)`` array (e.g. built on
         :func:`fractalseq.entropy._estimators.replicate_rates`); ``statistic`` still
         gives the estimate on the whole stream.
+    engine:
+        With ``spectra`` and non-overlapping blocks: where each depth's pass runs (one task per
+        depth, :mod:`fractalseq.resampling._spectra_tasks`); ``None``: in this process. The
+        result is the same.
 
     Returns
     -------
     BootstrapResult
     """
     rs = as_resampling(resampling)
-    return run_block_bootstrap(arr, depths, statistic, rs.n_boot, rs.seed, rs.block_length, rs.scheme, spectra, batch_statistic)
+    return run_block_bootstrap(
+        arr, depths, statistic, rs.n_boot, rs.seed, rs.block_length, rs.scheme, spectra, batch_statistic, engine
+    )
 
 
 def run_block_bootstrap(
@@ -217,6 +226,7 @@ def run_block_bootstrap(
     scheme: str,
     spectra: bool = False,
     batch_statistic: Callable[[dict], np.ndarray] | None = None,
+    engine: Engine | None = None,
 ) -> BootstrapResult:
     """:func:`block_bootstrap` with plain settings (unchecked beyond ``n_boot >= 0``; any replicate count)."""
     arr = _as_array(arr)
@@ -233,9 +243,13 @@ def run_block_bootstrap(
         notes.append(f"only {block.blocks} blocks: intervals are unreliable")
     if spectra and (scheme == "nonoverlapping" or not n_boot):
         full, specs = {}, {}
-        weights = block_major_weights(T, block.length, n_boot, seed) if n_boot else None
-        for n in depths:  # labelled chunk by chunk (no length-sized array), the same spectra
-            counts, spec = streamed_replicate_spectra(WordIndex(arr, n), n, block.length, weights)
+        mapped = depth_spectra(arr, depths, block.length, n_boot, seed, engine) if on_workers(engine) else None
+        weights = block_major_weights(T, block.length, n_boot, seed) if n_boot and mapped is None else None
+        for i, n in enumerate(depths):  # labelled chunk by chunk (no length-sized array), the same spectra
+            if mapped is not None:
+                (counts, spec), mapped[i] = mapped[i], None
+            else:
+                counts, spec = streamed_replicate_spectra(WordIndex(arr, n), n, block.length, weights)
             full[n] = CountSpectrum.of_counts(counts)
             if spec is not None:
                 specs[n] = spec

@@ -114,6 +114,16 @@ def iter_pieces(source: SymbolStream | SymbolArray, chunk: int, overlap: int) ->
         yield Piece(alphabet, buf.copy(), rel[(rel >= 0) & (rel < buf.size)], int(buf.size), offset, True, index)
 
 
+def stream_for_workers(arr: SymbolArray) -> SymbolArray:
+    """The in-memory stream as map tasks get it: codes, segment starts, alphabet and name.
+
+    The one place where a whole stream is handed to workers (shipped with each task); the reader's
+    report (which may list millions of records) stays in the parent, and no task result depends
+    on it.
+    """
+    return SymbolArray(arr.alphabet, arr.codes, arr.starts, arr.name)
+
+
 #: Pieces counted in this process (the pause point ``count.piece:N`` counts them).
 _PIECES_RUN = [0]
 

@@ -1,0 +1,174 @@
+"""A profile run on an engine (word counts in pieces, one bootstrap task per depth, the predictor and
+the prefix's consistency table beside them) gives the document of the in-process profile, byte for byte.
+
+The reference is the in-process profile itself (the code path every other profile test checks
+against outside facts); what is tested here is that splitting the work changes nothing: integer
+counts exactly and every float to the last bit, for any piece size, chunk size and item budget.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import pickle
+import subprocess
+
+import numpy as np
+import pytest
+from hypothesis import Phase, given, settings
+from hypothesis import strategies as st
+
+from fractalseq import alphabet as al
+from fractalseq.resampling import _replicates as rp
+from fractalseq.resampling import _streamed as sr
+from fractalseq.resampling import _word_labels as wl
+from fractalseq.resampling._options import Resampling
+from fractalseq.runner import Engine, SerialEngine
+from fractalseq.stream import SymbolArray
+
+from _paths import CLI, LAMBDA, LOGS, ROOT
+
+
+class _PickledInProcess(Engine):
+    """Runs each task here, on a pickled copy of its argument, and hands back a pickled copy of the result.
+
+    It is not the serial engine, so the profile takes its engine path (tasks, merge in order); the
+    round trip through pickle is what a worker process gets and returns.
+    """
+
+    name = "in-process (pickled)"
+    workers = 2
+
+    def __init__(self) -> None:
+        self.tasks: list[str] = []
+
+    def submit(self, func, item):
+        from fractalseq.runner import _Done
+
+        self.tasks.append(func.__name__)
+        return _Done(pickle.loads(pickle.dumps(func(pickle.loads(pickle.dumps(item))))))
+
+    def wait_first(self, futures):
+        return futures
+
+
+def _stream(T: int, seed: int, starts=(0,)) -> SymbolArray:
+    """An order-2 Markov stream over ACGT with sticky transitions (invented, for tests)."""
+    rng = np.random.default_rng(seed)
+    P = rng.dirichlet(np.ones(4) * 0.7, size=16)
+    cum = P.cumsum(axis=1)
+    u = rng.random(T)
+    codes = np.empty(T, np.uint8)
+    s = 0
+    for t in range(T):
+        c = min(int(np.searchsorted(cum[s], u[t])), 3)
+        codes[t] = c
+        s = (s * 4 + c) & 15
+    return SymbolArray(al.dna(), codes, np.array(sorted(set(starts) | {0}), dtype=np.int64))
+
+
+def _doc(arr, engine=None, piece=None, **kw) -> str:
+    from fractalseq.jobs._profile import profile_source
+
+    kw.setdefault("resampling", Resampling(n_boot=30, seed=5))
+    d = profile_source(arr, engine=engine, piece=piece, image=False, **kw).to_dict()
+    d.pop("timings", None)
+    return json.dumps(d, sort_keys=True, default=str)
+
+
+ARR = _stream(24_000, 3, starts=(0, 5_000, 5_001, 17_000))
+BASE = {}
+
+
+def _base(key, arr, **kw) -> str:
+    if key not in BASE:
+        BASE[key] = _doc(arr, **kw)
+    return BASE[key]
+
+
+@settings(max_examples=8, deadline=None, phases=(Phase.explicit, Phase.reuse, Phase.generate))
+@given(piece=st.integers(500, 30_000), chunk=st.sampled_from([500, 1_234, 1 << 22]),
+       budget=st.sampled_from([37, 1 << 24]))
+def test_engine_profile_equals_in_process_for_any_piece_chunk_and_budget(piece, chunk, budget):
+    """Multi-segment stream, tiny chunks and item budgets, any piece size: the document of the
+    in-process profile with the same chunk constants (with several chunks the Politis-White value
+    itself moves in its last bits, see tests/test_streamed_profile.py), and the consistency table
+    of the prefix (beyond ``consistency_max_length``) taken from its task."""
+    old = (wl.STREAM_CHUNK, sr.ITEM_BUDGET, sr.streamed_replicate_spectra.__defaults__)
+    try:
+        wl.STREAM_CHUNK, sr.ITEM_BUDGET = chunk, budget
+        sr.streamed_replicate_spectra.__defaults__ = (rp.DEFAULT_CAP, budget)
+        base = _base(("multi", chunk, budget), ARR, consistency_max_length=6_000)
+        eng = _PickledInProcess()
+        got = _doc(ARR, eng, piece, consistency_max_length=6_000)
+    finally:
+        wl.STREAM_CHUNK, sr.ITEM_BUDGET, sr.streamed_replicate_spectra.__defaults__ = old
+    assert got == base
+    assert {"count_piece", "depth_spectra_task", "predictor_task", "consistency_task"} <= set(eng.tasks)
+    assert eng.tasks.count("count_piece") >= -(-len(ARR) // piece)  # every piece counted on the engine
+
+
+def test_serial_engine_takes_the_in_process_path():
+    """``engine=SerialEngine()`` is the in-process profile (no task is shipped)."""
+    assert _doc(ARR, SerialEngine(), consistency_max_length=6_000) == _base(("multi", wl.STREAM_CHUNK, sr.ITEM_BUDGET), ARR,
+                                                                          consistency_max_length=6_000)
+
+
+def test_quick_no_bootstrap_and_no_piece_profiles_on_an_engine():
+    """Quick mode (no bootstrap, no consistency table), no piece size and ``n_boot=0`` give the in-process documents."""
+    arr = _stream(9_000, 8)
+    assert _doc(arr, _PickledInProcess(), 700, quick=True) == _doc(arr, quick=True)
+    eng = _PickledInProcess()  # no piece size: the counts are made here, the rest on the engine
+    assert _doc(arr, eng) == _doc(arr)
+    assert "count_piece" not in eng.tasks and {"depth_spectra_task", "predictor_task"} <= set(eng.tasks)
+    none = Resampling(n_boot=0, seed=1)
+    assert _doc(arr, _PickledInProcess(), 2_000, resampling=none) == _doc(arr, resampling=none)
+
+
+def test_real_genome_and_real_log_on_an_engine():
+    """The lambda phage genome (reference/lambda_virus.fa.gz, provenance in reference/PROVENANCE.md)
+    and a dpkg log excerpt (reference/logs/, read as event templates): the same documents."""
+    import fractalseq as fs
+
+    genome = fs.open_source(str(LAMBDA)).to_array()
+    assert _doc(genome, _PickledInProcess(), 10_000) == _doc(genome)
+    log = fs.open_source(str(LOGS / "dpkg-excerpt.log")).to_array()
+    assert log.alphabet.name == "templates"
+    assert _doc(log, _PickledInProcess(), 300) == _doc(log)
+
+
+def test_process_engine_profile_equals_serial():
+    """Two spawned worker processes (default chunk constants there): the same document."""
+    from fractalseq.jobs._engines import ProcessEngine
+
+    arr = _stream(12_000, 21, starts=(0, 7_000))
+    with ProcessEngine(2) as eng:
+        got = _doc(arr, eng, 4_000, consistency_max_length=5_000)
+    assert got == _doc(arr, consistency_max_length=5_000)
+
+
+def test_bad_piece_is_one_sentence():
+    from fractalseq.errors import ParameterError
+
+    with pytest.raises(ParameterError) as exc:
+        _doc(_stream(500, 1), _PickledInProcess(), 0)
+    assert exc.value.parameter == "piece"
+
+
+@pytest.mark.slow
+def test_cli_profile_with_two_workers_gives_the_serial_bytes(tmp_path):
+    """``profile --json`` with ``--workers 2`` (and a small ``--piece``) prints the serial bytes; an
+    invented two-record FASTA."""
+    letters = np.frombuffer(b"ACGT", np.uint8)
+    a, b = _stream(7_000, 31).codes, _stream(5_000, 32).codes
+    path = tmp_path / "two.fa"
+    path.write_text(f">one invented\n{letters[a].tobytes().decode()}\n>two invented\n{letters[b].tobytes().decode()}\n")
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    base = [*CLI, "profile", str(path), "--json", "--quiet", "--boot", "20"]
+    serial = subprocess.run(base, capture_output=True, env=env, timeout=600)
+    split = subprocess.run([*base, "--workers", "2", "--piece", "3000"], capture_output=True, env=env, timeout=600)
+    assert serial.returncode == 0 and split.returncode == 0, split.stderr.decode()[-2000:]
+    assert split.stdout == serial.stdout
+    assert json.loads(serial.stdout)["sources"][0]["length"] == 12_000
+    bad = subprocess.run([*base, "--piece", "0"], capture_output=True, env=env, timeout=600)
+    assert bad.returncode == 2
