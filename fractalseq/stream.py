@@ -201,7 +201,13 @@ class SymbolStream:
         self.report = report
 
     def to_array(self) -> "SymbolArray":
-        """Read the whole stream into memory."""
+        """Read the whole stream into memory.
+
+        The chunks are kept as read, then copied into one array of the summed length, each chunk
+        released as soon as it is copied: the unfilled part of the new array holds no memory
+        yet (its pages are touched as they are filled), so the join holds about one byte per
+        symbol, not two.  Same codes and starts as concatenating the chunks.
+        """
         parts: list[np.ndarray] = []
         starts: list[np.ndarray] = []
         offset = 0
@@ -211,9 +217,17 @@ class SymbolStream:
             parts.append(chunk.codes)
             starts.append(chunk.starts + offset)
             offset += len(chunk.codes)
-        codes = np.concatenate(parts) if parts else np.zeros(0, dtype=self.alphabet.code_dtype)
+        chunk = None  # released with the others
+        codes = np.empty(offset, dtype=self.alphabet.code_dtype)
+        parts.reverse()  # popped from the end: first chunk first
+        at = 0
+        while parts:
+            part = parts.pop()
+            codes[at : at + len(part)] = part
+            at += len(part)
+            del part
         st = np.concatenate(starts) if starts else np.zeros(0, dtype=np.int64)
-        return SymbolArray(self.alphabet, codes.astype(self.alphabet.code_dtype, copy=False), st, self.name, self.report)
+        return SymbolArray(self.alphabet, codes, st, self.name, self.report)
 
 
 def normalise_starts(starts: np.ndarray, length: int) -> np.ndarray:

@@ -103,7 +103,8 @@ def streamed_replicate_spectra(
     block_length:
         Length of the disjoint blocks.
     wt:
-        ``(n_blocks, R)`` block-major weights (:func:`fractalseq.resampling._plan.block_major_weights`;
+        ``(n_blocks, R)`` block-major weights, uint8, uint16 or int32
+        (:func:`fractalseq.resampling._plan.block_major_weights`;
         ``None``: the occurrences only).
     cap, budget:
         Counts below ``cap`` are tallied densely; at most ``budget`` pairs are held at once.
@@ -127,8 +128,11 @@ def streamed_replicate_spectra(
     last = np.full(m, -1, dtype=np.int32)
     for t0, lab in index.chunks(ell):
         _row_sizes_chunk(lab, t0, int(span), ell, last, sizes, occ)
-    if wt.ndim != 2 or wt.shape[0] != n_blocks or wt.dtype != np.int32:
-        raise ParameterError(f"The block weights must be int32 of shape ({n_blocks}, replicates), not {wt.shape}.", parameter="wt")
+    if wt.ndim != 2 or wt.shape[0] != n_blocks or wt.dtype not in (np.uint8, np.uint16, np.int32):
+        raise ParameterError(
+            f"The block weights must be uint8, uint16 or int32 of shape ({n_blocks}, replicates), not {wt.dtype} {wt.shape}.",
+            parameter="wt",
+        )
     wt = np.ascontiguousarray(wt)
     R = wt.shape[1]
     cap = max(int(cap), 2)
