@@ -23,8 +23,10 @@ Run::
     python benchmarks/bench_scale.py --gigabase            # also one simulated 1-Gbase input (long)
     python benchmarks/bench_scale.py --profile-only --sizes 10,50,96 --before ../old-checkout
                                                            # profile only, this tree against another one
+    python benchmarks/bench_scale.py --gigabase-only       # profile, count and score of 1 Gbase (~1 CPU hour, ~5 GB)
 
-Writes ``benchmarks/results/scale.json`` and ``scale.md``. The genomes are for benchmarking only;
+Writes ``benchmarks/results/scale.json`` and ``scale.md`` (``scale_profile.*`` with ``--profile-only``,
+``scale_gigabase.*`` with ``--gigabase-only``). The genomes are for benchmarking only;
 genomic output is for research, not for clinical decisions.
 """
 
@@ -91,6 +93,13 @@ def simulate_fasta(path: Path, bases: int, records: int, seed: int = 1) -> None:
                 done += m
 
 
+def time_v(text: str) -> tuple[float, int | None]:
+    """CPU seconds (user + system) and peak RSS in bytes from the report of ``/usr/bin/time -v``."""
+    m = re.search(r"Maximum resident set size \(kbytes\): (\d+)", text)
+    cpu = sum(float(x) for x in re.findall(r"(?:User|System) time \(seconds\): ([0-9.]+)", text))
+    return cpu, int(m.group(1)) * 1024 if m else None
+
+
 def timed(argv: list[str], stdout=subprocess.DEVNULL, root: Path = ROOT) -> dict:
     """Wall time, CPU time (user + system, all threads) and peak RSS of one process (``/usr/bin/time -v``),
     with ``root`` as the code imported (``PYTHONPATH``)."""
@@ -98,9 +107,7 @@ def timed(argv: list[str], stdout=subprocess.DEVNULL, root: Path = ROOT) -> dict
     t0 = time.perf_counter()
     proc = subprocess.run(["/usr/bin/time", "-v", *argv], stdout=stdout, stderr=subprocess.PIPE, text=True, env=env)
     wall = time.perf_counter() - t0
-    m = re.search(r"Maximum resident set size \(kbytes\): (\d+)", proc.stderr)
-    rss = int(m.group(1)) * 1024 if m else None
-    cpu = sum(float(x) for x in re.findall(r"(?:User|System) time \(seconds\): ([0-9.]+)", proc.stderr))
+    cpu, rss = time_v(proc.stderr)
     if proc.returncode != 0:
         tail = proc.stderr.strip().splitlines()[-25:]
         print("\n".join(tail), file=sys.stderr)
@@ -177,6 +184,62 @@ def profile_scale(sizes: list[float], gigabase: bool, before: Path | None, work:
     return 0
 
 
+GIGA_COMMANDS = {  # name -> (Mbase, arguments after the input path); the first row is the per-base reference
+    "profile (reference)": (10.0, ("profile", "--json", "--quiet")),
+    "profile": (1000.0, ("profile", "--json", "--quiet")),
+    "count --depth 16": (1000.0, ("count", "--depth", "16", "--json", "--quiet")),
+    "score --online --baselines none": (1000.0, ("score", "--online", "--baselines", "none", "--json", "--quiet")),
+}
+
+
+def gigabase(work: Path, measured: Path | None) -> int:
+    """The 1-Gbase rows: ``profile``, ``count --depth 16`` and ``score --online --baselines none`` of one
+    simulated 24-record 1-Gbase assembly, and ``profile`` of the 10-Mbase one as the per-base reference
+    (CPU seconds per Mbase, ratio 1 Gbase / 10 Mbase).  With ``measured``, the reports of
+    ``/usr/bin/time -v`` of the same commands, already run one process each, are read from
+    ``measured/NAME.time`` (NAME: ``profile10m``, ``profile1g``, ``count1g``, ``score1g``) instead of
+    running them.  ``learn`` is not run at 1 Gbase: it needs about 28 bytes per symbol (see "Memory of
+    learn" in the README).  Writes ``scale_gigabase.{json,md}``."""
+    files = {"profile (reference)": "profile10m", "profile": "profile1g", "count --depth 16": "count1g",
+             "score --online --baselines none": "score1g"}
+    rows = []
+    for name, (mbase, args) in GIGA_COMMANDS.items():
+        if measured is not None:
+            cpu, peak = time_v((measured / f"{files[name]}.time").read_text())
+            r = {"cpu_seconds": round(cpu, 2), "peak_bytes": peak, "exit": 0 if "Exit status: 0" in
+                 (measured / f"{files[name]}.time").read_text() else 1}
+        else:
+            path = work / f"sim{int(mbase)}m_{RECORDS_MULTI}r.fa"
+            if not path.exists():
+                simulate_fasta(path, int(mbase * 1e6), RECORDS_MULTI)
+            r = timed(fs(args[0], path, *args[1:]))
+        symbols = int(mbase * 1e6)
+        rows.append({"command": name, "mbase": mbase, "records": RECORDS_MULTI, "symbols": symbols, **r,
+                     "bytes_per_symbol": round(r["peak_bytes"] / symbols, 2) if r["peak_bytes"] else None,
+                     "cpu_seconds_per_mbase": round(r["cpu_seconds"] / mbase, 3)})
+        print(rows[-1], flush=True)
+    ref = rows[0]["cpu_seconds_per_mbase"]
+    for r in rows[1:]:
+        if r["command"] == "profile":
+            r["rate_vs_reference"] = round(r["cpu_seconds_per_mbase"] / ref, 3)
+    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}",
+            "input": f"simulated order-2 Markov DNA, {RECORDS_MULTI} records (simulate_fasta, seed 1)",
+            "measured_separately": measured is not None, "rows": rows}
+    lines = ["| command | Mbase | peak memory | bytes/symbol | CPU time | CPU s/Mbase | per-base CPU / 10-Mbase profile |",
+             "|---|---:|---:|---:|---:|---:|---:|"]
+    for r in rows:
+        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
+        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
+        rate = f"{r['rate_vs_reference']:.2f}" if "rate_vs_reference" in r else ""
+        lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {mem} | {r['bytes_per_symbol']} | "
+                     f"{r['cpu_seconds']:.1f} s | {r['cpu_seconds_per_mbase']:.2f} | {rate} |")
+    lines += ["", f"Machine: {data['machine']}. CPU time is user + system of the whole process (`/usr/bin/time -v`, "
+              "`nice -n 10`); `learn` is not run at 1 Gbase (about 28 bytes per symbol).", ""]
+    write_results("scale_gigabase", data, "\n".join(lines))
+    print("\n".join(lines))
+    return 0
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--sizes", default="10,50", help="Mbase of the simulated inputs, comma-separated.")
@@ -188,8 +251,16 @@ def main() -> int:
                     help="Only `profile` of the 24-record inputs at --sizes (and --gigabase); writes scale_profile.{json,md}.")
     ap.add_argument("--before", type=Path, default=None,
                     help="With --profile-only: another checkout whose `profile` is measured on the same inputs (JSON compared).")
+    ap.add_argument("--gigabase-only", action="store_true",
+                    help="Only the 1-Gbase rows (profile, count --depth 16, score --online --baselines none) and the "
+                         "10-Mbase profile as the per-base reference; writes scale_gigabase.{json,md}.")
+    ap.add_argument("--measured", type=Path, default=None,
+                    help="With --gigabase-only: read the /usr/bin/time -v reports of the same commands from this folder.")
     args = ap.parse_args()
     sizes = [float(s) for s in args.sizes.split(",") if s.strip()]
+    if args.gigabase_only:
+        with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
+            return gigabase(Path(tmp), args.measured)
     if args.profile_only:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
             return profile_scale(sizes, args.gigabase, args.before, Path(tmp))

@@ -24,7 +24,7 @@ from fractalseq.resampling import _plan
 from fractalseq.resampling import _replicates as rp
 from fractalseq.resampling import _streamed as sr
 from fractalseq.resampling import _word_labels as wl
-from fractalseq.stream import SymbolArray
+from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 
 
 def _markov_stream(T: int, seed: int, starts=(0,)) -> SymbolArray:
@@ -104,6 +104,36 @@ def test_block_weights_widen_when_a_tally_would_overflow(monkeypatch):
     monkeypatch.setattr(_plan, "_largest", lambda d: {np.uint8: 1}.get(d, real(d)))
     wt = _plan.block_major_weights(T, ell, R, seed=11, piece=7)
     assert wt.dtype == np.uint16 and np.array_equal(wt, ref)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    pieces=st.lists(st.tuples(st.integers(0, 3000), st.lists(st.integers(0, 3000), max_size=3)), max_size=12),
+    hint=st.one_of(st.none(), st.integers(0, 40_000)),
+    first=st.integers(1, 5000),
+)
+def test_to_array_equals_the_chunks_concatenated(pieces, hint, first):
+    # Reference: numpy.concatenate of the chunks' codes and of their starts shifted by the codes
+    # before them, the join the growing array replaces; the length hint may be short or long.
+    import fractalseq.stream as stream_mod
+
+    rng = np.random.default_rng(len(pieces))
+    chunks = []
+    for n, st_ in pieces:
+        chunks.append(Chunk(rng.integers(0, 4, n).astype(np.uint8), np.array(sorted({x for x in st_ if x <= n}), np.int64)))
+    old = stream_mod.TO_ARRAY_FIRST
+    stream_mod.TO_ARRAY_FIRST = first
+    try:
+        got = SymbolStream(al.dna(), lambda report: iter(chunks), length_hint=hint).to_array()
+    finally:
+        stream_mod.TO_ARRAY_FIRST = old
+    kept = [c for c in chunks if len(c.codes) or len(c.starts)]
+    codes = np.concatenate([c.codes for c in kept]) if kept else np.zeros(0, np.uint8)
+    offsets = np.cumsum([0] + [len(c.codes) for c in kept])
+    starts = np.concatenate([c.starts + o for c, o in zip(kept, offsets)]) if kept else np.zeros(0, np.int64)
+    want = SymbolArray(al.dna(), codes, starts)
+    assert got.codes.dtype == want.codes.dtype and np.array_equal(got.codes, want.codes)
+    assert np.array_equal(got.starts, want.starts)
 
 
 @settings(max_examples=30, deadline=None)
