@@ -186,28 +186,41 @@ def profile_scale(sizes: list[float], gigabase: bool, before: Path | None, work:
 
 GIGA_COMMANDS = {  # name -> (Mbase, arguments after the input path); the first row is the per-base reference
     "profile (reference)": (10.0, ("profile", "--json", "--quiet")),
+    "profile (100 Mbase)": (100.0, ("profile", "--json", "--quiet")),
     "profile": (1000.0, ("profile", "--json", "--quiet")),
     "count --depth 16": (1000.0, ("count", "--depth", "16", "--json", "--quiet")),
     "score --online --baselines none": (1000.0, ("score", "--online", "--baselines", "none", "--json", "--quiet")),
 }
 
 
-def gigabase(work: Path, measured: Path | None) -> int:
+def _measured_row(text: str | None) -> dict:
+    """A row from a saved ``/usr/bin/time -v`` report (``None``: not run); a process stopped by a
+    signal keeps its peak and CPU time so far, with ``exit`` naming the signal."""
+    if text is None:
+        return {"cpu_seconds": None, "peak_bytes": None, "exit": "not run"}
+    cpu, peak = time_v(text)
+    sig = re.search(r"Command terminated by signal (\d+)", text)
+    status = re.search(r"Exit status: (\d+)", text)
+    exit_ = f"signal {sig.group(1)}" if sig else int(status.group(1)) if status else None
+    return {"cpu_seconds": round(cpu, 2), "peak_bytes": peak, "exit": exit_}
+
+
+def gigabase(work: Path, measured: Path | None, notes: dict[str, str]) -> int:
     """The 1-Gbase rows: ``profile``, ``count --depth 16`` and ``score --online --baselines none`` of one
-    simulated 24-record 1-Gbase assembly, and ``profile`` of the 10-Mbase one as the per-base reference
+    simulated 24-record 1-Gbase assembly, ``profile`` of the 100-Mbase one, and of the 10-Mbase one as the per-base reference
     (CPU seconds per Mbase, ratio 1 Gbase / 10 Mbase).  With ``measured``, the reports of
     ``/usr/bin/time -v`` of the same commands, already run one process each, are read from
-    ``measured/NAME.time`` (NAME: ``profile10m``, ``profile1g``, ``count1g``, ``score1g``) instead of
-    running them.  ``learn`` is not run at 1 Gbase: it needs about 28 bytes per symbol (see "Memory of
-    learn" in the README).  Writes ``scale_gigabase.{json,md}``."""
-    files = {"profile (reference)": "profile10m", "profile": "profile1g", "count --depth 16": "count1g",
+    ``measured/NAME.time`` (NAME: ``profile10m``, ``profile100m``, ``profile1g``, ``count1g``, ``score1g``; a missing
+    file is a command not run) instead of running them; ``notes`` are written beside the rows.
+    ``learn`` is not run at 1 Gbase: it needs about 28 bytes per symbol (see "Memory of learn" in the
+    README).  Writes ``scale_gigabase.{json,md}``."""
+    files = {"profile (reference)": "profile10m", "profile (100 Mbase)": "profile100m", "profile": "profile1g", "count --depth 16": "count1g",
              "score --online --baselines none": "score1g"}
     rows = []
     for name, (mbase, args) in GIGA_COMMANDS.items():
         if measured is not None:
-            cpu, peak = time_v((measured / f"{files[name]}.time").read_text())
-            r = {"cpu_seconds": round(cpu, 2), "peak_bytes": peak, "exit": 0 if "Exit status: 0" in
-                 (measured / f"{files[name]}.time").read_text() else 1}
+            f = measured / f"{files[name]}.time"
+            r = _measured_row(f.read_text() if f.exists() else None)
         else:
             path = work / f"sim{int(mbase)}m_{RECORDS_MULTI}r.fa"
             if not path.exists():
@@ -216,23 +229,25 @@ def gigabase(work: Path, measured: Path | None) -> int:
         symbols = int(mbase * 1e6)
         rows.append({"command": name, "mbase": mbase, "records": RECORDS_MULTI, "symbols": symbols, **r,
                      "bytes_per_symbol": round(r["peak_bytes"] / symbols, 2) if r["peak_bytes"] else None,
-                     "cpu_seconds_per_mbase": round(r["cpu_seconds"] / mbase, 3)})
+                     "cpu_seconds_per_mbase": round(r["cpu_seconds"] / mbase, 3) if r["cpu_seconds"] is not None else None,
+                     "note": notes.get(name, "")})
         print(rows[-1], flush=True)
     ref = rows[0]["cpu_seconds_per_mbase"]
     for r in rows[1:]:
-        if r["command"] == "profile":
+        if r["command"].startswith("profile") and r["exit"] == 0 and ref:
             r["rate_vs_reference"] = round(r["cpu_seconds_per_mbase"] / ref, 3)
     data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}",
             "input": f"simulated order-2 Markov DNA, {RECORDS_MULTI} records (simulate_fasta, seed 1)",
             "measured_separately": measured is not None, "rows": rows}
-    lines = ["| command | Mbase | peak memory | bytes/symbol | CPU time | CPU s/Mbase | per-base CPU / 10-Mbase profile |",
-             "|---|---:|---:|---:|---:|---:|---:|"]
+    lines = ["| command | Mbase | peak memory | bytes/symbol | CPU time | CPU s/Mbase | per-base CPU / 10-Mbase profile | note |",
+             "|---|---:|---:|---:|---:|---:|---:|---|"]
     for r in rows:
         mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
-        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
+        ok = "" if r["exit"] == 0 else f" ({r['exit'] if isinstance(r['exit'], str) else 'exit ' + str(r['exit'])})"
         rate = f"{r['rate_vs_reference']:.2f}" if "rate_vs_reference" in r else ""
-        lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {mem} | {r['bytes_per_symbol']} | "
-                     f"{r['cpu_seconds']:.1f} s | {r['cpu_seconds_per_mbase']:.2f} | {rate} |")
+        cpu = f"{r['cpu_seconds']:.1f} s" if r["cpu_seconds"] is not None else "-"
+        per = f"{r['cpu_seconds_per_mbase']:.2f}" if r["cpu_seconds_per_mbase"] is not None else "-"
+        lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {mem} | {r['bytes_per_symbol'] or '-'} | {cpu} | {per} | {rate} | {r['note']} |")
     lines += ["", f"Machine: {data['machine']}. CPU time is user + system of the whole process (`/usr/bin/time -v`, "
               "`nice -n 10`); `learn` is not run at 1 Gbase (about 28 bytes per symbol).", ""]
     write_results("scale_gigabase", data, "\n".join(lines))
@@ -256,11 +271,13 @@ def main() -> int:
                          "10-Mbase profile as the per-base reference; writes scale_gigabase.{json,md}.")
     ap.add_argument("--measured", type=Path, default=None,
                     help="With --gigabase-only: read the /usr/bin/time -v reports of the same commands from this folder.")
+    ap.add_argument("--note", action="append", default=[], metavar="COMMAND=TEXT",
+                    help="With --gigabase-only: a note beside a command's row (repeatable).")
     args = ap.parse_args()
     sizes = [float(s) for s in args.sizes.split(",") if s.strip()]
     if args.gigabase_only:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
-            return gigabase(Path(tmp), args.measured)
+            return gigabase(Path(tmp), args.measured, dict(n.split("=", 1) for n in args.note))
     if args.profile_only:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
             return profile_scale(sizes, args.gigabase, args.before, Path(tmp))
