@@ -27,8 +27,10 @@ Run::
                                                            # profile serial and on 2 workers (same JSON?)
     python benchmarks/bench_scale.py --cpu-split 2 --sizes 20
                                                            # CPU of the parent and of its 2 workers
+    python benchmarks/bench_scale.py --gigabase-only       # profile, count and score of 1 Gbase (~1 CPU hour, ~5 GB)
 
-Writes ``benchmarks/results/scale.json`` and ``scale.md``. The genomes are for benchmarking only;
+Writes ``benchmarks/results/scale.json`` and ``scale.md`` (``scale_profile.*`` with ``--profile-only``,
+``scale_gigabase.*`` with ``--gigabase-only``). The genomes are for benchmarking only;
 genomic output is for research, not for clinical decisions.
 """
 
@@ -95,6 +97,13 @@ def simulate_fasta(path: Path, bases: int, records: int, seed: int = 1) -> None:
                 done += m
 
 
+def time_v(text: str) -> tuple[float, int | None]:
+    """CPU seconds (user + system) and peak RSS in bytes from the report of ``/usr/bin/time -v``."""
+    m = re.search(r"Maximum resident set size \(kbytes\): (\d+)", text)
+    cpu = sum(float(x) for x in re.findall(r"(?:User|System) time \(seconds\): ([0-9.]+)", text))
+    return cpu, int(m.group(1)) * 1024 if m else None
+
+
 def timed(argv: list[str], stdout=subprocess.DEVNULL, root: Path = ROOT) -> dict:
     """Wall time, CPU time (user + system, all threads) and peak RSS of one process (``/usr/bin/time -v``),
     with ``root`` as the code imported (``PYTHONPATH``)."""
@@ -102,9 +111,7 @@ def timed(argv: list[str], stdout=subprocess.DEVNULL, root: Path = ROOT) -> dict
     t0 = time.perf_counter()
     proc = subprocess.run(["/usr/bin/time", "-v", *argv], stdout=stdout, stderr=subprocess.PIPE, text=True, env=env)
     wall = time.perf_counter() - t0
-    m = re.search(r"Maximum resident set size \(kbytes\): (\d+)", proc.stderr)
-    rss = int(m.group(1)) * 1024 if m else None
-    cpu = sum(float(x) for x in re.findall(r"(?:User|System) time \(seconds\): ([0-9.]+)", proc.stderr))
+    cpu, rss = time_v(proc.stderr)
     if proc.returncode != 0:
         tail = proc.stderr.strip().splitlines()[-25:]
         print("\n".join(tail), file=sys.stderr)
@@ -281,6 +288,73 @@ def cpu_split(sizes: list[float], workers: int, work: Path) -> int:
               "(parent + workers) / 2): the speed-up if two idle cores were kept busy all the time (an upper bound, "
               f"not a measured time). Machine: {data['machine']}.", ""]
     write_results("scale_profile_cpu_split", data, "\n".join(lines))
+GIGA_COMMANDS = {  # name -> (Mbase, arguments after the input path); the first row is the per-base reference
+    "profile (reference)": (10.0, ("profile", "--json", "--quiet")),
+    "profile (100 Mbase)": (100.0, ("profile", "--json", "--quiet")),
+    "profile": (1000.0, ("profile", "--json", "--quiet")),
+    "count --depth 16": (1000.0, ("count", "--depth", "16", "--json", "--quiet")),
+    "score --online --baselines none": (1000.0, ("score", "--online", "--baselines", "none", "--json", "--quiet")),
+}
+
+
+def _measured_row(text: str | None) -> dict:
+    """A row from a saved ``/usr/bin/time -v`` report (``None``: not run); a process stopped by a
+    signal keeps its peak and CPU time so far, with ``exit`` naming the signal."""
+    if text is None:
+        return {"cpu_seconds": None, "peak_bytes": None, "exit": "not run"}
+    cpu, peak = time_v(text)
+    sig = re.search(r"Command terminated by signal (\d+)", text)
+    status = re.search(r"Exit status: (\d+)", text)
+    exit_ = f"signal {sig.group(1)}" if sig else int(status.group(1)) if status else None
+    return {"cpu_seconds": round(cpu, 2), "peak_bytes": peak, "exit": exit_}
+
+
+def gigabase(work: Path, measured: Path | None, notes: dict[str, str]) -> int:
+    """The 1-Gbase rows: ``profile``, ``count --depth 16`` and ``score --online --baselines none`` of one
+    simulated 24-record 1-Gbase assembly, ``profile`` of the 100-Mbase one, and of the 10-Mbase one as the per-base reference
+    (CPU seconds per Mbase, ratio 1 Gbase / 10 Mbase).  With ``measured``, the reports of
+    ``/usr/bin/time -v`` of the same commands, already run one process each, are read from
+    ``measured/NAME.time`` (NAME: ``profile10m``, ``profile100m``, ``profile1g``, ``count1g``, ``score1g``; a missing
+    file is a command not run) instead of running them; ``notes`` are written beside the rows.
+    ``learn`` is not run at 1 Gbase: it needs about 28 bytes per symbol (see "Memory of learn" in the
+    README).  Writes ``scale_gigabase.{json,md}``."""
+    files = {"profile (reference)": "profile10m", "profile (100 Mbase)": "profile100m", "profile": "profile1g", "count --depth 16": "count1g",
+             "score --online --baselines none": "score1g"}
+    rows = []
+    for name, (mbase, args) in GIGA_COMMANDS.items():
+        if measured is not None:
+            f = measured / f"{files[name]}.time"
+            r = _measured_row(f.read_text() if f.exists() else None)
+        else:
+            path = work / f"sim{int(mbase)}m_{RECORDS_MULTI}r.fa"
+            if not path.exists():
+                simulate_fasta(path, int(mbase * 1e6), RECORDS_MULTI)
+            r = timed(fs(args[0], path, *args[1:]))
+        symbols = int(mbase * 1e6)
+        rows.append({"command": name, "mbase": mbase, "records": RECORDS_MULTI, "symbols": symbols, **r,
+                     "bytes_per_symbol": round(r["peak_bytes"] / symbols, 2) if r["peak_bytes"] else None,
+                     "cpu_seconds_per_mbase": round(r["cpu_seconds"] / mbase, 3) if r["cpu_seconds"] is not None else None,
+                     "note": notes.get(name, "")})
+        print(rows[-1], flush=True)
+    ref = rows[0]["cpu_seconds_per_mbase"]
+    for r in rows[1:]:
+        if r["command"].startswith("profile") and r["exit"] == 0 and ref:
+            r["rate_vs_reference"] = round(r["cpu_seconds_per_mbase"] / ref, 3)
+    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}",
+            "input": f"simulated order-2 Markov DNA, {RECORDS_MULTI} records (simulate_fasta, seed 1)",
+            "measured_separately": measured is not None, "rows": rows}
+    lines = ["| command | Mbase | peak memory | bytes/symbol | CPU time | CPU s/Mbase | per-base CPU / 10-Mbase profile | note |",
+             "|---|---:|---:|---:|---:|---:|---:|---|"]
+    for r in rows:
+        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
+        ok = "" if r["exit"] == 0 else f" ({r['exit'] if isinstance(r['exit'], str) else 'exit ' + str(r['exit'])})"
+        rate = f"{r['rate_vs_reference']:.2f}" if "rate_vs_reference" in r else ""
+        cpu = f"{r['cpu_seconds']:.1f} s" if r["cpu_seconds"] is not None else "-"
+        per = f"{r['cpu_seconds_per_mbase']:.2f}" if r["cpu_seconds_per_mbase"] is not None else "-"
+        lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {mem} | {r['bytes_per_symbol'] or '-'} | {cpu} | {per} | {rate} | {r['note']} |")
+    lines += ["", f"Machine: {data['machine']}. CPU time is user + system of the whole process (`/usr/bin/time -v`, "
+              "`nice -n 10`); `learn` is not run at 1 Gbase (about 28 bytes per symbol).", ""]
+    write_results("scale_gigabase", data, "\n".join(lines))
     print("\n".join(lines))
     return 0
 
@@ -302,6 +376,13 @@ def main() -> int:
     ap.add_argument("--cpu-split", type=int, default=0, metavar="N",
                     help="Only the CPU of `profile_source` serially and on N local workers (parent and workers apart); "
                          "writes scale_profile_cpu_split.{json,md}.")
+    ap.add_argument("--gigabase-only", action="store_true",
+                    help="Only the 1-Gbase rows (profile, count --depth 16, score --online --baselines none) and the "
+                         "10-Mbase profile as the per-base reference; writes scale_gigabase.{json,md}.")
+    ap.add_argument("--measured", type=Path, default=None,
+                    help="With --gigabase-only: read the /usr/bin/time -v reports of the same commands from this folder.")
+    ap.add_argument("--note", action="append", default=[], metavar="COMMAND=TEXT",
+                    help="With --gigabase-only: a note beside a command's row (repeatable).")
     args = ap.parse_args()
     sizes = [float(s) for s in args.sizes.split(",") if s.strip()]
     if args.cpu_split:
@@ -310,6 +391,9 @@ def main() -> int:
     if args.profile_workers:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
             return profile_workers(sizes, args.profile_workers, Path(tmp))
+    if args.gigabase_only:
+        with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
+            return gigabase(Path(tmp), args.measured, dict(n.split("=", 1) for n in args.note))
     if args.profile_only:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
             return profile_scale(sizes, args.gigabase, args.before, Path(tmp))

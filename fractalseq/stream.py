@@ -23,6 +23,9 @@ from fractalseq.errors import InputError
 #: Default number of symbols per chunk handed out by readers (4 Mi symbols).
 DEFAULT_CHUNK = 1 << 22
 
+#: Codes first set aside by :meth:`SymbolStream.to_array` when the reader gives no length hint.
+TO_ARRAY_FIRST = 1 << 24
+
 
 @dataclass(frozen=True)
 class Chunk:
@@ -204,19 +207,31 @@ class SymbolStream:
         self.report = report
 
     def to_array(self) -> "SymbolArray":
-        """Read the whole stream into memory."""
-        parts: list[np.ndarray] = []
+        """Read the whole stream into memory.
+
+        Each chunk is copied into one growing array as it is read and then released, so the codes
+        are held once: the array grows in place by an eighth (``ndarray.resize``, a ``realloc``
+        that the C library serves by remapping pages, not copying them, for large blocks) and is
+        cut to the length read at the end.  Collecting the chunks and joining them would hold every
+        symbol twice, and the freed chunks stay in the process's heap.  Same codes and starts as
+        concatenating the chunks.
+        """
+        dtype = np.dtype(self.alphabet.code_dtype)
+        codes = np.empty(max(self.length_hint or 0, 0) or TO_ARRAY_FIRST, dtype=dtype)
         starts: list[np.ndarray] = []
-        offset = 0
+        at = 0
         for chunk in self.chunks():
-            if len(chunk.codes) == 0 and len(chunk.starts) == 0:
+            n = len(chunk.codes)
+            if n == 0 and len(chunk.starts) == 0:
                 continue
-            parts.append(chunk.codes)
-            starts.append(chunk.starts + offset)
-            offset += len(chunk.codes)
-        codes = np.concatenate(parts) if parts else np.zeros(0, dtype=self.alphabet.code_dtype)
+            starts.append(chunk.starts + at)
+            if at + n > codes.size:
+                codes.resize(max(at + n, codes.size + codes.size // 8), refcheck=False)
+            codes[at : at + n] = chunk.codes
+            at += n
+        codes.resize(at, refcheck=False)
         st = np.concatenate(starts) if starts else np.zeros(0, dtype=np.int64)
-        return SymbolArray(self.alphabet, codes.astype(self.alphabet.code_dtype, copy=False), st, self.name, self.report)
+        return SymbolArray(self.alphabet, codes, st, self.name, self.report)
 
 
 def normalise_starts(starts: np.ndarray, length: int) -> np.ndarray:

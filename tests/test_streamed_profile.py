@@ -24,7 +24,7 @@ from fractalseq.resampling import _plan
 from fractalseq.resampling import _replicates as rp
 from fractalseq.resampling import _streamed as sr
 from fractalseq.resampling import _word_labels as wl
-from fractalseq.stream import SymbolArray
+from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 
 
 def _markov_stream(T: int, seed: int, starts=(0,)) -> SymbolArray:
@@ -62,13 +62,78 @@ def test_streamed_spectra_equal_whole_tables(data, T, n, chunk, ell, budget):
     got = np.concatenate([lab for _, lab in index.chunks(ell)])
     assert np.array_equal(got, labels)
     W = _plan.make_plan(T, ell, 7, seed=3).block_weights()
-    wt = _plan.block_major_weights(T, ell, 7, seed=3)
-    assert np.array_equal(wt, W.T) and wt.dtype == np.int32
+    wt = _plan.block_major_weights(T, ell, 7, seed=3, piece=data.draw(st.integers(1, 9000)))
+    assert np.array_equal(wt, W.T) and wt.dtype == np.uint8  # weights here stay far below 256
     ref = rp.replicate_spectra(rp.item_tables(labels, n, ell, words.size), W)
     occ, spec = sr.streamed_replicate_spectra(index, n, ell, wt, budget=budget)
     assert np.array_equal(occ, np.bincount(labels[labels >= 0], minlength=words.size))
     assert np.array_equal(spec.dense, ref.dense)
     assert np.array_equal(spec.big, ref.big)
+    # the kernels are generic over the table's integer type: a wider table gives the same spectra
+    wide = data.draw(st.sampled_from([np.uint16, np.int32]))
+    _, spec_w = sr.streamed_replicate_spectra(index, n, ell, wt.astype(wide), budget=budget)
+    assert np.array_equal(spec_w.dense, spec.dense) and np.array_equal(spec_w.big, spec.big)
+
+
+@settings(max_examples=40, deadline=None)
+@given(T=st.integers(1, 5000), ell=st.integers(1, 80), R=st.integers(0, 30), seed=st.integers(0, 2**32), piece=st.integers(1, 20_000))
+def test_block_weights_in_pieces_are_numpys_whole_draw(T, ell, R, seed, piece):
+    # Reference: numpy's Generator.integers drawn in one call of shape (replicates, blocks) and
+    # tallied by numpy.bincount (a general-purpose library), the draws make_plan uses.
+    ell = min(ell, T)
+    nb = -(-T // ell)
+    draws = np.random.default_rng(seed).integers(0, nb, size=(R, nb))
+    ref = np.array([np.bincount(row, minlength=nb) for row in draws], dtype=np.int64).reshape(R, nb)
+    wt = _plan.block_major_weights(T, ell, R, seed=seed, piece=piece)
+    assert wt.shape == (nb, R)
+    assert np.array_equal(wt.astype(np.int64), ref.T)
+    assert wt.dtype == np.uint8  # the smallest type that holds these tallies (all below 256)
+
+
+def test_block_weights_widen_when_a_tally_would_overflow(monkeypatch):
+    # Pretend uint8 holds tallies up to 1 and uint16 up to 3: the table must widen twice and keep
+    # every count (reference: numpy.bincount of the same numpy draws).
+    real = _plan._largest
+    monkeypatch.setattr(_plan, "_largest", lambda d: {np.uint8: 1, np.uint16: 3}.get(d, real(d)))
+    T, ell, R = 40, 10, 300  # 4 blocks drawn 4 times per replicate: tallies of 2, 3 and 4 occur
+    draws = np.random.default_rng(11).integers(0, 4, size=(R, 4))
+    ref = np.array([np.bincount(row, minlength=4) for row in draws]).T
+    assert ref.max() >= 4
+    wt = _plan.block_major_weights(T, ell, R, seed=11, piece=7)
+    assert wt.dtype == np.int32 and np.array_equal(wt, ref)
+    monkeypatch.setattr(_plan, "_largest", lambda d: {np.uint8: 1}.get(d, real(d)))
+    wt = _plan.block_major_weights(T, ell, R, seed=11, piece=7)
+    assert wt.dtype == np.uint16 and np.array_equal(wt, ref)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    pieces=st.lists(st.tuples(st.integers(0, 3000), st.lists(st.integers(0, 3000), max_size=3)), max_size=12),
+    hint=st.one_of(st.none(), st.integers(0, 40_000)),
+    first=st.integers(1, 5000),
+)
+def test_to_array_equals_the_chunks_concatenated(pieces, hint, first):
+    # Reference: numpy.concatenate of the chunks' codes and of their starts shifted by the codes
+    # before them, the join the growing array replaces; the length hint may be short or long.
+    import fractalseq.stream as stream_mod
+
+    rng = np.random.default_rng(len(pieces))
+    chunks = []
+    for n, st_ in pieces:
+        chunks.append(Chunk(rng.integers(0, 4, n).astype(np.uint8), np.array(sorted({x for x in st_ if x <= n}), np.int64)))
+    old = stream_mod.TO_ARRAY_FIRST
+    stream_mod.TO_ARRAY_FIRST = first
+    try:
+        got = SymbolStream(al.dna(), lambda report: iter(chunks), length_hint=hint).to_array()
+    finally:
+        stream_mod.TO_ARRAY_FIRST = old
+    kept = [c for c in chunks if len(c.codes) or len(c.starts)]
+    codes = np.concatenate([c.codes for c in kept]) if kept else np.zeros(0, np.uint8)
+    offsets = np.cumsum([0] + [len(c.codes) for c in kept])
+    starts = np.concatenate([c.starts + o for c, o in zip(kept, offsets)]) if kept else np.zeros(0, np.int64)
+    want = SymbolArray(al.dna(), codes, starts)
+    assert got.codes.dtype == want.codes.dtype and np.array_equal(got.codes, want.codes)
+    assert np.array_equal(got.starts, want.starts)
 
 
 @settings(max_examples=30, deadline=None)

@@ -219,11 +219,12 @@ def _word_level_data(
         streamed = scheme == "nonoverlapping"
         plan = bs.make_plan(len(arr), block.length, n_boot, seed, scheme) if boot and block is not None and not streamed else None
         drawn = boot and block is not None and streamed  # block weights, drawn here or by each worker
-        weights = block_major_weights(len(arr), block.length, n_boot, seed) if drawn and not on_workers(engine) else None
-        reps = np.empty((n_boot, L, K)) if plan is not None or drawn else None
         # batches as long as the automatic bootstrap blocks (whatever block length the interval uses)
         if auto is None:
             auto = bs.choose_block_length(arr, L, scheme="nonoverlapping")
+        # drawn after the block length is chosen (its own generator), so the two are not held together
+        weights = block_major_weights(len(arr), block.length, n_boot, seed) if drawn and not on_workers(engine) else None
+        reps = np.empty((n_boot, L, K)) if plan is not None or drawn else None
         batches = BatchSums(len(arr), L, qs.size, batch=auto.length) if not streamed else None
         levels = []
         ell = block.length if block is not None else 1
@@ -249,6 +250,7 @@ def _word_level_data(
             if reps is not None and plan is not None:
                 reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
             del labels, words, counts  # one depth's labels at a time
+        weights = plan = None  # the replicates are tallied: release the block weights before the batch sums
         cov = batches.covariance() if batches is not None else streamed_batch_covariance(len(arr), auto.length, levels, qs)
         del levels
     x = depths * math.log(1.0 / ratio)

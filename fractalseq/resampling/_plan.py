@@ -103,23 +103,49 @@ def make_plan(length: int, block_length: int, n_boot: int, seed: int = 0, scheme
     )
 
 
+#: Draws taken from the generator at a time while tallying (16 MiB of int32).
+DRAW_PIECE = 1 << 22
+
+#: Table types tried in order: the first one that holds every tally is kept.
+WEIGHT_DTYPES = (np.uint8, np.uint16, np.int32)
+
+
 @njit(cache=True)
-def _tally_draws(draws, wt):
-    """``wt[b, r]`` = how often replicate ``r`` drew block ``b``."""
-    R, nb = draws.shape
-    for r in range(R):
-        for j in range(nb):
-            wt[draws[r, j], r] += 1
+def _tally_piece(draws, start, first, nb, wt, top):
+    """Add ``draws[start:]`` to ``wt``; stop before a tally would pass ``top``.
+
+    ``draws`` are the flat ``(replicates, blocks)`` draws from flat index ``first`` on, so draw ``i``
+    belongs to replicate ``(first + i) // nb``; ``wt[b, r]`` counts replicate ``r``'s draws of block
+    ``b``.  Returns the index of the first draw not added (``draws.size``: all added).
+    """
+    for i in range(start, draws.size):
+        r = (first + i) // nb
+        b = draws[i]
+        if wt[b, r] >= top:
+            return i
+        wt[b, r] += 1
+    return draws.size
 
 
-def block_major_weights(length: int, block_length: int, n_boot: int, seed: int = 0) -> np.ndarray:
-    """``(blocks, n_boot)`` int32 weights of the non-overlapping scheme: ``make_plan(...).block_weights().T``.
+def _largest(dtype) -> int:
+    """Largest tally a weight table of ``dtype`` holds."""
+    return int(np.iinfo(dtype).max)
 
-    The same draws as :func:`make_plan` (one call of ``integers`` on ``default_rng(seed)``, taken as
-    int32: numpy gives the same numbers for either width), tallied straight into the block-major table
-    that :func:`fractalseq.resampling._replicates.replicate_spectra` uses, so the plan's starts,
-    lengths and replicate-major weights (28 bytes per replicate and block) are never built: 8 bytes
-    per replicate and block while drawing, 4 after.
+
+def block_major_weights(length: int, block_length: int, n_boot: int, seed: int = 0, piece: int = DRAW_PIECE) -> np.ndarray:
+    """``(blocks, n_boot)`` weights of the non-overlapping scheme: ``make_plan(...).block_weights().T``.
+
+    The same draws as :func:`make_plan` (``integers(0, blocks)`` on ``default_rng(seed)``, replicate
+    after replicate), taken as int32 in pieces of :data:`DRAW_PIECE` (numpy's bounded 32-bit draws
+    keep their state in the generator, so the pieces give the numbers of one whole call) and tallied
+    straight into the block-major table that
+    :func:`fractalseq.resampling._streamed.streamed_replicate_spectra` reads.  The table starts as
+    uint8 and is widened (uint16, then int32) only when a tally would pass the type's largest value,
+    so it holds the same numbers as an int32 table: one byte per replicate and block in practice
+    (a block's weight is multinomial with mean 1), and the plan's starts, lengths and replicate-major
+    weights (28 bytes per replicate and block) are never built.
+
+    ``piece`` (draws held at once) changes no number, only the memory of the draws.
     """
     T, ell = int(length), int(block_length)
     if T < 1:
@@ -128,10 +154,25 @@ def block_major_weights(length: int, block_length: int, n_boot: int, seed: int =
     from fractalseq.guards import check_memory
 
     nb = -(-T // ell)
-    check_memory(8 * int(n_boot) * nb, f"{int(n_boot)} bootstrap replicates of {nb} blocks each (8 bytes a block)",
+    R = int(n_boot)
+    check_memory(R * nb + 4 * min(int(piece), R * nb), f"{R} bootstrap replicates of {nb} blocks each (1 byte a block)",
                  "n_boot", "use fewer replicates or longer blocks")
-    draws = np.random.default_rng(seed).integers(0, nb, size=(n_boot, nb), dtype=np.int32)
-    wt = np.zeros((nb, n_boot), dtype=np.int32)
-    if n_boot:
-        _tally_draws(draws, wt)
+    rng = np.random.default_rng(seed)
+    kinds = iter(WEIGHT_DTYPES)
+    dtype = next(kinds)
+    wt = np.zeros((nb, R), dtype=dtype)
+    top = _largest(dtype)
+    total = R * nb
+    piece = max(int(piece), 1)
+    for first in range(0, total, piece):
+        draws = rng.integers(0, nb, size=min(piece, total - first), dtype=np.int32)
+        # one flat piece of the (R, nb) draws; the kernel's replicate is (first + i) // nb
+        i = 0
+        while True:
+            i = _tally_piece(draws, i, first, nb, wt, top)
+            if i == draws.size:
+                break
+            dtype = next(kinds)  # a tally would overflow: widen, keep the counts, go on
+            wt = wt.astype(dtype)
+            top = _largest(dtype)
     return wt

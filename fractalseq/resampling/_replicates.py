@@ -119,12 +119,12 @@ def item_tables(labels: np.ndarray, span: int, block_length: int, size: int | No
 
 @njit(cache=True)
 def _max_weights(wt):
-    """Largest weight of each block over the replicates (``wt`` is ``(blocks, replicates)``)."""
+    """Largest weight of each block over the replicates (``wt`` is ``(blocks, replicates)``), in ``wt``'s type."""
     n_blocks, R = wt.shape
-    wmax = np.zeros(n_blocks, dtype=np.int64)
+    wmax = np.zeros(n_blocks, dtype=wt.dtype)
     for b in range(n_blocks):
-        x = 0
-        for r in range(R):
+        x = wt[b, 0] if R else 0
+        for r in range(1, R):
             if wt[b, r] > x:
                 x = wt[b, r]
         wmax[b] = x
@@ -132,34 +132,35 @@ def _max_weights(wt):
 
 
 @njit(cache=True)
-def _spectra(row_ptr, blocks, counts, n_blocks, wt, cap, dense, big_rows):
+def _spectra(row_ptr, blocks, counts, n_blocks, wt, wmax, cap, dense, big_rows):
     """Replicate count spectra.
 
-    ``wt`` is ``(n_blocks, R)`` block weights.  Fills ``dense[r, v]`` (items
-    with count ``v < cap`` in replicate ``r``) and the rows of ``big_rows``
-    (replicate counts of the items that may reach ``cap``, sized by
-    :func:`_count_big`); returns how many such rows it wrote.
+    ``wt`` is ``(n_blocks, R)`` block weights (any integer type) and ``wmax`` their largest weight
+    per block (:func:`_max_weights`).  Fills ``dense[r, v]`` (items with count ``v < cap`` in
+    replicate ``r``) and the rows of ``big_rows`` (replicate counts of the items that may reach
+    ``cap``, sized by :func:`_count_big`); returns how many such rows it wrote.
     """
     m = row_ptr.shape[0] - 1
     R = wt.shape[1]
-    wmax = _max_weights(wt)
-    # pools of single-block items: (block, count) -> number of items, counts below cap only
-    single_n = np.zeros(n_blocks, dtype=np.int64)
-    for i in range(m):
-        a = row_ptr[i]
-        if row_ptr[i + 1] - a == 1 and counts[a] * wmax[blocks[a]] < cap:
-            single_n[blocks[a]] += 1
+    # pools of single-block items: (block, count) -> number of items, counts below cap only;
+    # sptr[b + 1] first counts block b's items, then is summed into offsets
     sptr = np.zeros(n_blocks + 1, dtype=np.int64)
-    for b in range(n_blocks):
-        sptr[b + 1] = sptr[b] + single_n[b]
-    sval = np.empty(sptr[n_blocks], dtype=np.int64)
-    sfill = sptr[:-1].copy()
     for i in range(m):
         a = row_ptr[i]
-        if row_ptr[i + 1] - a == 1 and counts[a] * wmax[blocks[a]] < cap:
+        if row_ptr[i + 1] - a == 1 and np.int64(counts[a]) * np.int64(wmax[blocks[a]]) < cap:
+            sptr[blocks[a] + 1] += 1
+    for b in range(n_blocks):
+        sptr[b + 1] += sptr[b]
+    sval = np.empty(sptr[n_blocks], dtype=np.int64)
+    for i in range(m):  # sptr[b] serves as block b's cursor, then is shifted back below
+        a = row_ptr[i]
+        if row_ptr[i + 1] - a == 1 and np.int64(counts[a]) * np.int64(wmax[blocks[a]]) < cap:
             b = blocks[a]
-            sval[sfill[b]] = counts[a]
-            sfill[b] += 1
+            sval[sptr[b]] = counts[a]
+            sptr[b] += 1
+    for b in range(n_blocks, 0, -1):
+        sptr[b] = sptr[b - 1]
+    sptr[0] = 0
     tally = np.zeros(cap, dtype=np.int64)
     touched = np.empty(cap, dtype=np.int64)
     for b in range(n_blocks):
@@ -175,7 +176,7 @@ def _spectra(row_ptr, blocks, counts, n_blocks, wt, cap, dense, big_rows):
             mult = tally[c]
             tally[c] = 0
             for r in range(R):
-                w = wt[b, r]
+                w = np.int64(wt[b, r])
                 if w > 0:
                     dense[r, w * c] += mult
     # items in several blocks (and single-block items that may reach cap)
@@ -184,15 +185,15 @@ def _spectra(row_ptr, blocks, counts, n_blocks, wt, cap, dense, big_rows):
     for i in range(m):
         a = row_ptr[i]
         e = row_ptr[i + 1]
-        if e - a == 1 and counts[a] * wmax[blocks[a]] < cap:
+        if e - a == 1 and np.int64(counts[a]) * np.int64(wmax[blocks[a]]) < cap:
             continue
         bound = 0
         for j in range(a, e):
             acc_row = wt[blocks[j]]
             c = np.int32(counts[j])
-            bound += counts[j] * wmax[blocks[j]]
+            bound += np.int64(counts[j]) * np.int64(wmax[blocks[j]])
             for r in range(R):
-                acc[r] += c * acc_row[r]
+                acc[r] += c * np.int32(acc_row[r])
         if bound >= cap:
             for r in range(R):
                 big_rows[nbig, r] = acc[r]
@@ -208,15 +209,14 @@ def _spectra(row_ptr, blocks, counts, n_blocks, wt, cap, dense, big_rows):
 
 
 @njit(cache=True)
-def _count_big(row_ptr, blocks, counts, n_blocks, wt, cap):
+def _count_big(row_ptr, blocks, counts, wmax, cap):
     """Number of items whose replicate count may reach ``cap`` (sizes the ``big`` table)."""
     m = row_ptr.shape[0] - 1
-    wmax = _max_weights(wt)
     k = 0
     for i in range(m):
         bound = 0
         for j in range(row_ptr[i], row_ptr[i + 1]):
-            bound += counts[j] * wmax[blocks[j]]
+            bound += np.int64(counts[j]) * np.int64(wmax[blocks[j]])
         if bound >= cap:
             k += 1
     return k
@@ -279,8 +279,9 @@ def replicate_spectra(tables: ItemTables, weights: np.ndarray, cap: int = DEFAUL
     R = W.shape[0]
     cap = max(int(cap), 2)
     dense = np.zeros((R, cap), dtype=np.int64)
-    nbig = _count_big(tables.row_ptr, tables.blocks, tables.counts, tables.n_blocks, wt, cap) if R else 0
+    wmax = _max_weights(wt)
+    nbig = _count_big(tables.row_ptr, tables.blocks, tables.counts, wmax, cap) if R else 0
     big = np.zeros((nbig, R), dtype=np.int64)
     if R and tables.size:
-        _spectra(tables.row_ptr, tables.blocks, tables.counts, tables.n_blocks, wt, cap, dense, big)
+        _spectra(tables.row_ptr, tables.blocks, tables.counts, tables.n_blocks, wt, wmax, cap, dense, big)
     return ReplicateSpectra(dense, big)

@@ -24,7 +24,7 @@ import numpy as np
 from numba import njit
 
 from fractalseq.errors import ParameterError
-from fractalseq.resampling._replicates import DEFAULT_CAP, ReplicateSpectra, _count_big, _spectra
+from fractalseq.resampling._replicates import DEFAULT_CAP, ReplicateSpectra, _count_big, _max_weights, _spectra
 from fractalseq.resampling._word_labels import WordIndex
 
 #: ``(block, item)`` pairs held at once (8 bytes each, plus 8 per single-block item while tallying).
@@ -103,7 +103,8 @@ def streamed_replicate_spectra(
     block_length:
         Length of the disjoint blocks.
     wt:
-        ``(n_blocks, R)`` block-major weights (:func:`fractalseq.resampling._plan.block_major_weights`;
+        ``(n_blocks, R)`` block-major weights, uint8, uint16 or int32
+        (:func:`fractalseq.resampling._plan.block_major_weights`;
         ``None``: the occurrences only).
     cap, budget:
         Counts below ``cap`` are tallied densely; at most ``budget`` pairs are held at once.
@@ -127,8 +128,11 @@ def streamed_replicate_spectra(
     last = np.full(m, -1, dtype=np.int32)
     for t0, lab in index.chunks(ell):
         _row_sizes_chunk(lab, t0, int(span), ell, last, sizes, occ)
-    if wt.ndim != 2 or wt.shape[0] != n_blocks or wt.dtype != np.int32:
-        raise ParameterError(f"The block weights must be int32 of shape ({n_blocks}, replicates), not {wt.shape}.", parameter="wt")
+    if wt.ndim != 2 or wt.shape[0] != n_blocks or wt.dtype not in (np.uint8, np.uint16, np.int32):
+        raise ParameterError(
+            f"The block weights must be uint8, uint16 or int32 of shape ({n_blocks}, replicates), not {wt.dtype} {wt.shape}.",
+            parameter="wt",
+        )
     wt = np.ascontiguousarray(wt)
     R = wt.shape[1]
     cap = max(int(cap), 2)
@@ -137,6 +141,7 @@ def streamed_replicate_spectra(
     np.cumsum(sizes, out=row_ptr[1:])
     del sizes, last
     bigs = []
+    wmax = _max_weights(wt)  # once for every range of words (a pass over the whole table)
     for lo, hi in _ranges(row_ptr, budget) if R and m else []:
         k = int(row_ptr[hi] - row_ptr[lo])
         local = row_ptr[lo : hi + 1] - row_ptr[lo]
@@ -147,9 +152,9 @@ def streamed_replicate_spectra(
         for t0, lab in index.chunks(ell):
             _fill_chunk(lab, t0, int(span), ell, lo, hi, seen, cursor, blocks, counts)
         del cursor, seen
-        nbig = int(_count_big(local, blocks, counts, n_blocks, wt, cap))
+        nbig = int(_count_big(local, blocks, counts, wmax, cap))
         big = np.zeros((nbig, R), dtype=np.int64)
-        _spectra(local, blocks, counts, n_blocks, wt, cap, dense, big)
+        _spectra(local, blocks, counts, n_blocks, wt, wmax, cap, dense, big)
         bigs.append(big)
     big = np.concatenate(bigs) if len(bigs) > 1 else bigs[0] if bigs else np.zeros((0, R), dtype=np.int64)
     return occ, ReplicateSpectra(dense, big)

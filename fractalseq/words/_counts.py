@@ -263,19 +263,15 @@ class WordCounts:
         if "spectra" not in self._cache:
             lw, lc = self.leaf()
             key_bits = 8 * lw.dtype.itemsize
-            levels = np.full(lw.size, self.depth, dtype=np.int8)
-            if self.tail_len.size:  # merge the (few) padded tails into the sorted leaves
-                pad = (np.uint64(self.depth) - self.tail_len.astype(np.uint64)) * np.uint64(self.bits)
-                padded = (self.tail_addr << pad).astype(lw.dtype)
-                order = np.argsort(padded, kind="stable")
-                at = np.searchsorted(lw, padded[order], side="right")
-                lw = np.insert(lw, at, padded[order])
-                lc = np.insert(lc, at, self.tail_count[order])
-                levels = np.insert(levels, at, self.tail_len[order].astype(np.int8))
-            total = int(lc.sum())
+            # the (few) padded tails, sorted, are merged into the sorted leaves by the kernel itself
+            # (each after the leaves equal to it): no merged copy of the leaf table
+            pad = (np.uint64(self.depth) - self.tail_len.astype(np.uint64)) * np.uint64(self.bits)
+            padded = (self.tail_addr.astype(np.uint64) << pad).astype(lw.dtype)
+            order = np.argsort(padded, kind="stable")
+            total = int(lc.sum()) + int(self.tail_count.sum())
             hist, bd, bc = kernels.count_spectra(
-                lw, lc, levels, self.depth, self.bits, key_bits, SPECTRUM_CAP,
-                self.depth * (total // SPECTRUM_CAP + 1),
+                lw, lc, padded[order], self.tail_count[order], self.tail_len[order].astype(np.int64),
+                self.depth, self.bits, key_bits, SPECTRUM_CAP, self.depth * (total // SPECTRUM_CAP + 1),
             )
             hist = hist.reshape(self.depth + 1, SPECTRUM_CAP)
             hist[:, 0] = 0  # bookkeeping entries for depths a tail did not reach

@@ -488,15 +488,16 @@ def dense_add(table, keys):
 
 
 @njit(cache=True, nogil=True)
-def count_spectra(words, counts, levels, depth, bits, key_bits, cap, big_capacity):
+def count_spectra(words, counts, tails, tail_counts, tail_levels, depth, bits, key_bits, cap, big_capacity):
     """Frequency-of-frequencies for every depth 1..N in one pass over sorted items.
 
-    Items are the leaf table (full N-words, level N) merged with the tails of
-    closed segments (words of length m < N padded with zero symbols to N
-    symbols, level m), sorted by padded address.  For depth ``n`` the n-word
-    of an item is its prefix; runs of equal prefixes are closed from the
-    deepest depth upwards, each closed run passing its count to the next
-    shallower depth.  A tail of level m only adds its count at depths <= m.
+    Items are the leaf table (``words``, full N-words, level N, sorted) merged with the tails of
+    closed segments (``tails``: words of length m < N padded with zero symbols to N symbols,
+    level ``tail_levels``, sorted by padded address), each tail after the leaves equal to it; the
+    two are merged on the fly, so no merged copy of the leaf table is built.  For depth ``n`` the
+    n-word of an item is its prefix; runs of equal prefixes are closed from the deepest depth
+    upwards, each closed run passing its count to the next shallower depth.  A tail of level m
+    only adds its count at depths <= m.
 
     Returns
     -------
@@ -512,14 +513,24 @@ def count_spectra(words, counts, levels, depth, bits, key_bits, cap, big_capacit
     nbig = 0
     cur = np.zeros(depth + 1, dtype=np.int64)
     n = words.shape[0]
+    nt = tails.shape[0]
     unused = key_bits - bits * depth
-    prev = np.uint64(words[0]) if n else np.uint64(0)
-    for i in range(n + 1):
-        if i < n:
-            w = np.uint64(words[i])
+    i = 0
+    j = 0
+    if n and (nt == 0 or words[0] <= tails[0]):
+        prev = np.uint64(words[0])
+    elif nt:
+        prev = np.uint64(tails[0])
+    else:
+        prev = np.uint64(0)
+    for _ in range(n + nt + 1):
+        if i < n or j < nt:
+            leaf = i < n and (j >= nt or words[i] <= tails[j])
+            w = np.uint64(words[i]) if leaf else np.uint64(tails[j])
             x = w ^ prev
             lcp = _lcp_symbols(x, key_bits, unused, bits, depth)
         else:
+            leaf = False
             w = prev
             lcp = 0
         d = depth
@@ -534,8 +545,13 @@ def count_spectra(words, counts, levels, depth, bits, key_bits, cap, big_capacit
             cur[d - 1] += c
             cur[d] = 0
             d -= 1
-        if i < n:
-            cur[levels[i]] += counts[i]
+        if leaf:
+            cur[depth] += counts[i]
+            i += 1
+            prev = w
+        elif j < nt:
+            cur[tail_levels[j]] += tail_counts[j]
+            j += 1
             prev = w
     return hist, big_depth[:nbig].copy(), big_count[:nbig].copy()
 
