@@ -37,6 +37,7 @@ genomic output is for research, not for clinical decisions.
 from __future__ import annotations
 
 import argparse
+import json
 import lzma
 import os
 import platform
@@ -359,6 +360,36 @@ def gigabase(work: Path, measured: Path | None, notes: dict[str, str]) -> int:
     return 0
 
 
+def scale_table(data: dict) -> str:
+    """The markdown tables of ``scale.json``: wall and CPU time (user + system, whole process) per command."""
+    lines = [
+        "| command | Mbase | records | peak memory | bytes/symbol | wall time | CPU time | CPU s/Mbase | xz -9 wall / this wall |",
+        "|---|---:|---:|---:|---:|---:|---:|---:|---:|",
+    ]
+    for r in data["rows"]:
+        cpu = r.get("cpu_seconds")
+        cpu_cells = f"{cpu:.1f} s | {cpu / r['mbase']:.2f}" if cpu is not None else "- | -"
+        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
+        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
+        lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {r['records']} | {mem} | {r['bytes_per_symbol']} | "
+                     f"{r['seconds']:.1f} s | {cpu_cells} | {r['speed_vs_xz']:.2f}× |")
+    g = data.get("genome", {})
+    if "xz -9" in g:
+        lines += ["", f"Real genome {g['genome']}, {g['bases']:,} bases, whole processes:", "",
+                  "| command | time | peak memory | time / xz -9 |", "|---|---:|---:|---:|"]
+        lines.append(f"| `xz -9` (bases only) | {g['xz -9']['seconds']:.1f} s | {g['xz -9']['peak_bytes'] / 2**20:,.0f} MiB | 1.00 |")
+        for name in ("score --online --baselines none", "score --online", "score --online --baselines all"):
+            r = g[name]
+            lines.append(f"| `{name}` | {r['seconds']:.1f} s | {r['peak_bytes'] / 2**20:,.0f} MiB | {r['ratio_to_xz']:.2f} |")
+    st = data["startup"]
+    lines += ["", f"Start-up (1,000-base input, numba cache warm): `import fractalseq` {st['import_seconds']:.2f} s; "
+              f"`count` {st['count_tiny_seconds']:.2f} s; `score --online --baselines none` {st['score_online_tiny_seconds']:.2f} s; "
+              f"`profile --boot 0` {st['profile_tiny_seconds']:.2f} s.",
+              f"Reference: {data['reference']['command']}, {data['reference']['seconds_per_mbase']:.2f} s/Mbase. "
+              f"Machine: {data['machine']}.", ""]
+    return "\n".join(lines)
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--sizes", default="10,50", help="Mbase of the simulated inputs, comma-separated.")
@@ -383,7 +414,15 @@ def main() -> int:
                     help="With --gigabase-only: read the /usr/bin/time -v reports of the same commands from this folder.")
     ap.add_argument("--note", action="append", default=[], metavar="COMMAND=TEXT",
                     help="With --gigabase-only: a note beside a command's row (repeatable).")
+    ap.add_argument("--render", action="store_true",
+                    help="Only re-write scale.md from benchmarks/results/scale.json (no measurement).")
     args = ap.parse_args()
+    if args.render:
+        data = json.loads((HERE / "results" / "scale.json").read_text())
+        text = scale_table(data)
+        write_results("scale", data, text)
+        print(text)
+        return 0
     sizes = [float(s) for s in args.sizes.split(",") if s.strip()]
     if args.cpu_split:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
@@ -463,31 +502,9 @@ def main() -> int:
         "machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}",
         "rows": rows, **extra,
     }
-    lines = [
-        "| command | Mbase | records | peak memory | bytes/symbol | time | s/Mbase | xz -9 time / this time |",
-        "|---|---:|---:|---:|---:|---:|---:|---:|",
-    ]
-    for r in rows:
-        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
-        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
-        lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {r['records']} | {mem} | {r['bytes_per_symbol']} | "
-                     f"{r['seconds']:.1f} s | {r['seconds_per_mbase']:.2f} | {r['speed_vs_xz']:.2f}× |")
-    g = extra.get("genome", {})
-    if "xz -9" in g:
-        lines += ["", f"Real genome {g['genome']}, {g['bases']:,} bases, whole processes:", "",
-                  "| command | time | peak memory | time / xz -9 |", "|---|---:|---:|---:|"]
-        lines.append(f"| `xz -9` (bases only) | {g['xz -9']['seconds']:.1f} s | {g['xz -9']['peak_bytes'] / 2**20:,.0f} MiB | 1.00 |")
-        for name in ("score --online --baselines none", "score --online", "score --online --baselines all"):
-            r = g[name]
-            lines.append(f"| `{name}` | {r['seconds']:.1f} s | {r['peak_bytes'] / 2**20:,.0f} MiB | {r['ratio_to_xz']:.2f} |")
-    st = extra["startup"]
-    lines += ["", f"Start-up (1,000-base input, numba cache warm): `import fractalseq` {st['import_seconds']:.2f} s; "
-              f"`count` {st['count_tiny_seconds']:.2f} s; `score --online --baselines none` {st['score_online_tiny_seconds']:.2f} s; "
-              f"`profile --boot 0` {st['profile_tiny_seconds']:.2f} s.",
-              f"Reference: {extra['reference']['command']}, {extra['reference']['seconds_per_mbase']:.2f} s/Mbase. "
-              f"Machine: {data['machine']}.", ""]
-    write_results("scale", data, "\n".join(lines))
-    print("\n".join(lines))
+    text = scale_table(data)
+    write_results("scale", data, text)
+    print(text)
     return 0
 
 
