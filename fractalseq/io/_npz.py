@@ -65,7 +65,7 @@ import re
 import zipfile
 import zlib
 from pathlib import Path
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
@@ -96,8 +96,17 @@ _digest = array_sha256
 
 
 # ------------------------------------------------------------------ writing
-def write_container(path: str | Path, header: dict[str, Any], arrays: dict[str, np.ndarray],
-                    force: bool = False, sync: bool = True) -> Path:
+def _plain_array(name: str, a: Any) -> np.ndarray:
+    """``a`` as a C-ordered numeric array, or a ValueError naming the array."""
+    a = np.asarray(a)
+    a = a if a.flags.c_contiguous else np.array(a, order="C")  # (ascontiguousarray would make 0-d arrays 1-d)
+    if a.dtype.kind not in _NUMERIC_KINDS or a.dtype.fields is not None:
+        raise ValueError(f"array {name!r} has dtype {a.dtype}, which the container does not store")
+    return a
+
+
+def write_container(path: str | Path, header: dict[str, Any],
+                    arrays: dict[str, np.ndarray | Callable[[], np.ndarray]], force: bool = False, sync: bool = True) -> Path:
     """Write ``arrays`` and a JSON ``header`` as a checksummed ``.npz`` file, atomically.
 
     Parameters
@@ -108,7 +117,10 @@ def write_container(path: str | Path, header: dict[str, Any], arrays: dict[str, 
         JSON-ready dictionary with at least ``format`` (str) and ``version`` (int).
         Its ``sha256`` and ``arrays`` entries are (re)computed from ``arrays``.
     arrays:
-        Plain numeric arrays (names of letters, digits and ``_``; no object dtype).
+        Plain numeric arrays (names of letters, digits and ``_``; no object dtype), or functions
+        that make one: such an array is made for its checksum and again when it is written (it must
+        come out the same), so a caller whose arrays are derived from tables it holds never holds
+        them all at once.
     force:
         Replace an existing file.
     sync:
@@ -121,23 +133,37 @@ def write_container(path: str | Path, header: dict[str, Any], arrays: dict[str, 
     """
     if not isinstance(header.get("format"), str) or not isinstance(header.get("version"), int):
         raise ValueError("the header needs a string 'format' and an integer 'version'")
-    plain: dict[str, np.ndarray] = {}
-    for name, a in arrays.items():
+    plain: dict[str, np.ndarray | Callable[[], np.ndarray]] = {}
+    digests: dict[str, str] = {}
+    layout: dict[str, dict[str, Any]] = {}
+    for name, given in arrays.items():
         if name == HEADER_NAME or not _NAME.match(name):
             raise ValueError(f"array name {name!r} is reserved or not made of letters, digits and '_'")
-        a = np.asarray(a)
-        a = a if a.flags.c_contiguous else np.array(a, order="C")  # (ascontiguousarray would make 0-d arrays 1-d)
-        if a.dtype.kind not in _NUMERIC_KINDS or a.dtype.fields is not None:
-            raise ValueError(f"array {name!r} has dtype {a.dtype}, which the container does not store")
-        plain[name] = a
+        a = _plain_array(name, given() if callable(given) else given)
+        digests[name] = _digest(a)
+        layout[name] = {"dtype": a.dtype.str, "shape": list(a.shape)}
+        plain[name] = given if callable(given) else a
+        del a  # a made array is made again when written: no two of them are held at once
     head = dict(header)
-    head["sha256"] = {k: _digest(v) for k, v in plain.items()}
-    head["arrays"] = {k: {"dtype": v.dtype.str, "shape": list(v.shape)} for k, v in plain.items()}
+    head["sha256"] = digests
+    head["arrays"] = layout
     text = json.dumps(head, sort_keys=True).encode("utf-8")
+
+    def members():
+        yield HEADER_NAME, np.frombuffer(text, dtype=np.uint8)
+        for name in sorted(plain):
+            given = plain[name]
+            if not callable(given):
+                yield name, given
+                continue
+            a = _plain_array(name, given())
+            if _digest(a) != digests[name]:
+                raise ValueError(f"array {name!r} came out different when made a second time")
+            yield name, a
 
     def emit(out: Any) -> None:  # streamed into the temporary file: a large array is never held twice
         with zipfile.ZipFile(out, "w", compression=zipfile.ZIP_DEFLATED, allowZip64=True) as zf:
-            for name, a in [(HEADER_NAME, np.frombuffer(text, dtype=np.uint8))] + sorted(plain.items()):
+            for name, a in members():
                 info = zipfile.ZipInfo(f"{name}.npy", date_time=_FIXED_TIME)
                 info.compress_type = zipfile.ZIP_DEFLATED
                 info.external_attr = 0o644 << 16

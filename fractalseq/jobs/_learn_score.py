@@ -189,8 +189,9 @@ def learn_files(
     del wc
     if out is not None:
         model.save(out, force=force)
+    # a depth's observations are all its counts added up (the cells' totals without a cell-sized array)
     rows = tuple(
-        DepthCells(n, int(model.cells_[n].size), int(model.counts_[n].totals().sum())) for n in model.depths_
+        DepthCells(n, int(model.cells_[n].size), int(model.counts_[n].counts.sum(dtype="int64"))) for n in model.depths_
     )
     return LearnReport(
         model=None if out is None else str(out),

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Iterable
+from typing import Callable, Iterable
 
 import numpy as np
 
@@ -68,9 +68,8 @@ class CellTable:
         return np.diff(self.ptr)
 
     def words(self, b: int) -> np.ndarray:
-        """The (n+1)-word address of every entry (sorted)."""
-        rep = np.repeat(self.cells, self.distinct())
-        return (rep << np.uint64(b)) | self.syms.astype(np.uint64)
+        """The (n+1)-word address of every entry (sorted), built in one array."""
+        return FK.cell_words(self.cells, self.ptr, self.syms, b)
 
     def select(self, keep: np.ndarray) -> "CellTable":
         """The cells where ``keep`` is true."""
@@ -182,27 +181,85 @@ def _total_class(tot: np.ndarray) -> np.ndarray:
     return np.frexp(np.maximum(tot - 1, 0).astype(np.float64))[1].astype(np.int64)
 
 
-def _concat(parts: list[CellTable]) -> CellTable:
-    """The parts (tables of increasing addresses) as one table; the list is emptied.
+@dataclass(frozen=True)
+class _Packed:
+    """A part of a table held small while more parts are built: cell lengths and symbols in the narrowest integers."""
 
-    The fields are joined one at a time and each field's parts are released as soon as it is
-    joined, so at most one field is held twice (not the whole table).
+    cells: np.ndarray
+    lens: np.ndarray
+    syms: np.ndarray
+    counts: np.ndarray
+
+
+def _small_uint(top: int):
+    """The narrowest unsigned dtype holding ``0..top``."""
+    return np.uint8 if top < 1 << 8 else np.uint16 if top < 1 << 16 else np.uint32 if top < 1 << 32 else np.uint64
+
+
+def _pack(t: CellTable, A: int) -> _Packed:
+    """``t`` with one small integer a cell (its number of symbols, at most ``A``) instead of an int64 pointer, and small symbols."""
+    return _Packed(t.cells, np.diff(t.ptr).astype(_small_uint(A)), t.syms.astype(_small_uint(A - 1)), t.counts)
+
+
+def _concat(parts: list[_Packed]) -> CellTable:
+    """The packed parts (tables of increasing addresses) as one table; the list is emptied.
+
+    Each field is written into its whole array part by part, and each part's field is released
+    as soon as it is copied, so the whole table is never held twice (at most one field of it).
     """
-    if not parts:
-        return CellTable(np.zeros(0, np.uint64), np.zeros(1, np.int64), np.zeros(0, np.uint32), np.zeros(0, np.uint32))
-    if len(parts) == 1:
-        return parts.pop()
-    offs = np.cumsum([0] + [int(t.ptr[-1]) for t in parts])
-    ptr = np.concatenate([t.ptr[:-1] + o for t, o in zip(parts, offs)] + [np.array([offs[-1]])]).astype(np.int64)
-    fields = {f: [getattr(t, f) for t in parts] for f in ("cells", "syms", "counts")}
+    C = sum(int(t.cells.size) for t in parts)
+    E = sum(int(t.syms.size) for t in parts)
+    cdt = parts[0].counts.dtype if parts else np.dtype(np.uint32)
+    fields = {f: [getattr(t, f) for t in parts] for f in ("cells", "lens", "syms", "counts")}
     parts.clear()
-    joined = {}
-    for f in ("cells", "syms", "counts"):
-        joined[f] = np.concatenate(fields.pop(f))
-    return CellTable(joined["cells"], ptr, joined["syms"], joined["counts"])
+    out = {"cells": np.empty(C, np.uint64), "lens": None, "syms": np.empty(E, np.uint32), "counts": np.empty(E, cdt)}
+    ptr = np.zeros(C + 1, np.int64)
+    for f in ("cells", "lens", "syms", "counts"):
+        pieces = fields.pop(f)
+        at = 0
+        for i, a in enumerate(pieces):
+            k = int(a.size)
+            if f == "lens":
+                np.cumsum(a, dtype=np.int64, out=ptr[at + 1 : at + 1 + k])
+                ptr[at + 1 : at + 1 + k] += ptr[at]
+            else:
+                out[f][at : at + k] = a
+            at += k
+            pieces[i] = None  # released once copied
+        del pieces
+    return CellTable(out["cells"], ptr, out["syms"], out["counts"])
 
 
-def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: int) -> tuple[dict[int, CellTable], int]:
+def _kth_smallest(pieces: Callable[[], Iterable[np.ndarray]], total: int, k: int) -> tuple[np.uint64, int]:
+    """The ``k``-th smallest (1-based) of ``total`` uint64 hashes given in pieces, and how many are smaller than it.
+
+    The hashes are about uniform, so the ``k``-th lies near ``k / total`` of the range: one pass
+    keeps only those in a window around that point (six standard deviations of the order
+    statistic wide, a few thousandths of them) and counts those below it.  Should the ``k``-th
+    fall outside the window, a second pass holds them all.  Exact either way.
+    """
+    q = (k - 0.5) / total
+    half = 6.0 * math.sqrt(q * (1.0 - q) / total) + 1e-6
+    lo = int(max(0.0, q - half) * 2.0**64)
+    hi = int(min(1.0, q + half) * 2.0**64)
+    lo_u = np.uint64(min(lo, (1 << 64) - 1))
+    below, inside = 0, []
+    for h in pieces():
+        under = h < lo_u
+        below += int(np.count_nonzero(under))
+        h = h[~under]
+        inside.append(h if hi >= 1 << 64 else h[h < np.uint64(hi)])
+    win = np.concatenate(inside) if inside else np.zeros(0, np.uint64)
+    del inside
+    if not below < k <= below + win.size:
+        below, win = 0, np.concatenate(list(pieces()))
+    at = k - 1 - below
+    h_cut = np.partition(win, at)[at]
+    return h_cut, below + int(np.count_nonzero(win < h_cut))
+
+
+def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: int,
+                       release: Callable[[], None] | None = None) -> tuple[dict[int, CellTable], int]:
     """:func:`cell_tables` cut to ``cap`` cells as :func:`prune_cells` cuts them, without holding the uncut tables; also the cells dropped.
 
     :func:`prune_cells` drops the cells of the depths beyond ``K_b`` in one order:
@@ -213,6 +270,10 @@ def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: 
     cells of every class and depth (the parts are kept while all cells fit under
     the cap), a second collects the hashes of the one class cut, a third keeps the
     cells before the cut.  The tables are exactly those of pruning at the end.
+
+    ``release`` (e.g. the word counts' ``discard``) is called once the word counts are read
+    for the last time, before the kept parts are joined into whole tables, so the counts and
+    the joined tables are never held together.
     """
     tables: dict[int, CellTable] = {}
     deep = sorted(n for n in set(orders) if n > K_b)
@@ -223,17 +284,21 @@ def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: 
     if nfixed > cap and deep:
         prune_cells(dict(tables), K_b, cap)  # raises: the baseline depths alone exceed the cap
     hist = {n: np.zeros(64, np.int64) for n in deep}
-    kept: dict[int, list[CellTable]] | None = {n: [] for n in deep}
+    A = wc.alphabet.size
+    # the parts kept are held packed (one byte a cell and a byte a symbol for DNA) until they are joined
+    kept: dict[int, list[_Packed]] | None = {n: [] for n in deep}
     total = nfixed
     for n in deep:
         for t in _part_tables(wc, n, reverse):
             total += t.size
             hist[n] += np.bincount(_total_class(t.totals()), minlength=64)[:64]
             if kept is not None and total <= cap:
-                kept[n].append(t)
+                kept[n].append(_pack(t, A))
             else:
                 kept = None
     if kept is not None:
+        if release is not None:
+            release()
         tables.update({n: _concat(kept[n]) for n in deep})
         return tables, 0
     drop = total - cap
@@ -251,13 +316,15 @@ def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: 
         break
     h_cut, ties = np.uint64(0), 0
     if keep_in_class:
-        hashes = np.concatenate([FK.hash_cells(t.cells[_total_class(t.totals()) == r_cut], n_cut)
-                                 for t in _part_tables(wc, n_cut, reverse)])
-        h_cut = np.partition(hashes, keep_in_class - 1)[keep_in_class - 1]
-        ties = keep_in_class - int(np.count_nonzero(hashes < h_cut))
-        del hashes
+        def class_hashes():
+            for t in _part_tables(wc, n_cut, reverse):
+                yield FK.hash_cells(t.cells[_total_class(t.totals()) == r_cut], n_cut)
+
+        h_cut, below = _kth_smallest(class_hashes, int(hist[n_cut][r_cut]), keep_in_class)
+        ties = keep_in_class - below
+    selected: dict[int, list[_Packed]] = {}
     for n in deep:
-        out = []
+        out = selected[n] = []
         seen = 0
         for t in _part_tables(wc, n, reverse):
             r = _total_class(t.totals())
@@ -270,10 +337,13 @@ def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: 
                 ok[tie[: max(0, ties - seen)]] = True
                 seen += tie.size
                 keep[at[ok]] = True
-            out.append(t.select(keep))
+            out.append(_pack(t.select(keep), A))
             del t
-        tables[n] = _concat(out)
         del out
+    if release is not None:
+        release()
+    for n in deep:
+        tables[n] = _concat(selected.pop(n))
     return tables, int(drop)
 
 
@@ -326,7 +396,13 @@ def fit_blend(depths, tables: dict, alphabet: Alphabet, alpha: float, discount) 
         t = tables[n]
         C = t.size
         step = max(1, -(-C // GRID_CELLS))
-        sub = t.select(np.arange(C) % step == 0) if step > 1 else t
+        if step > 1:
+            every = np.zeros(C, dtype=bool)
+            every[::step] = True  # every step-th cell (no index array as long as the table)
+            sub = t.select(every)
+            del every
+        else:
+            sub = t
         nper = sub.distinct()
         addr = np.repeat(sub.cells, nper)
         cs = sub.counts.astype(np.float64)

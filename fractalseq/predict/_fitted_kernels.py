@@ -461,6 +461,16 @@ def _hash_cells(addr, depth):
     return out
 
 
+@njit(cache=True)
+def _cell_words(cells, ptr, syms, b, out):
+    """The (n+1)-word address ``cell << b | symbol`` of every entry of a cell table, written into ``out``."""
+    ub = np.uint64(b)
+    for i in range(cells.shape[0]):
+        head = cells[i] << ub
+        for e in range(ptr[i], ptr[i + 1]):
+            out[e] = head | np.uint64(syms[e])
+
+
 # ------------------------------------------------------------------ wrappers
 def _need(ok: bool, what: str, parameter: str) -> None:
     if not ok:
@@ -601,3 +611,15 @@ def hash_cells(addr, depth):
     """The cell hash of every address at one depth (a deterministic, unbiased order for pruning ties)."""
     _need(addr.dtype == np.uint64, "uint64 addresses", "addr")
     return _hash_cells(np.ascontiguousarray(addr), depth)
+
+
+def cell_words(cells, ptr, syms, b):
+    """The sorted (n+1)-word addresses of a cell table's entries, built in one array (no temporaries as long)."""
+    cells = np.ascontiguousarray(cells, dtype=np.uint64)
+    ptr = np.ascontiguousarray(ptr, dtype=np.int64)
+    syms = np.ascontiguousarray(syms, dtype=np.uint32)
+    _need(ptr.shape[0] == cells.shape[0] + 1 and (ptr.shape[0] == 1 or int(ptr[-1]) == syms.shape[0]),
+          "one more pointer than cells, the last one the number of entries", "ptr")
+    out = np.empty(syms.shape[0], np.uint64)
+    _cell_words(cells, ptr, syms, b, out)
+    return out

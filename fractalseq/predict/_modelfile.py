@@ -115,7 +115,8 @@ def write_state(state: ModelState, path: str | Path, force: bool = False) -> Pat
     """Write a model state atomically through the checksummed container (refuses to overwrite without ``force``)."""
     from fractalseq import __version__
 
-    arrays = {k: np.ascontiguousarray(v) for k, v in state.arrays.items()}
+    # an array may be given as a function that makes it (see write_container): made when written
+    arrays = {k: v if callable(v) else np.ascontiguousarray(v) for k, v in state.arrays.items()}
     header = {k: v for k, v in state.header.items() if k not in _ENVELOPE}
     header.update(format=FORMAT, version=VERSION, software=f"fractalseq {__version__}")
     return write_container(path, header, arrays, force=force)

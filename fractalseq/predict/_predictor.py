@@ -49,7 +49,7 @@ from __future__ import annotations
 
 import inspect
 import math
-from typing import Sequence
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -279,10 +279,10 @@ class CellPredictor:
             )
         # depth by depth, each deep depth cut to the cell cap as soon as it is built (the same cells
         # the cap keeps at the end, see capped_cell_tables), then the cap over all depths
-        tables, pruned = capped_cell_tables(counts, fit_depths, reverse, K_b, self._cap())
         n_symbols, n_segments = int(counts.length), int(counts.segments)
-        if consume:
-            counts.discard()
+        # handed-over counts are dropped as soon as they are read for the last time (before the tables are joined)
+        tables, pruned = capped_cell_tables(counts, fit_depths, reverse, K_b, self._cap(),
+                                            release=counts.discard if consume else None)
         tables, more = prune_cells(tables, K_b, self._cap())
         self._install(alphabet, ladder, reverse, K_b, tables, n_symbols, n_segments, pruned + more, reader)
         return self
@@ -554,14 +554,19 @@ class CellPredictor:
         return evaluate_online(source, **kwargs, **self._online_params())
 
     # ---------------------------------------------------------- persistence
-    def to_state(self) -> ModelState:
-        """The fitted model as a plain state (JSON-ready header and cell tables) for :mod:`fractalseq.predict._modelfile`."""
+    def to_state(self, lazy: bool = False) -> ModelState:
+        """The fitted model as a plain state (JSON-ready header and cell tables) for :mod:`fractalseq.predict._modelfile`.
+
+        With ``lazy`` each ``words_<n>`` entry is a function that builds the array (8 bytes an
+        entry) when the file is written, one depth at a time, instead of the array itself.
+        """
         _check_fitted(self)
-        arrays: dict[str, np.ndarray] = {}
+        arrays: dict[str, Any] = {}
         b = self.alphabet_.bits
         for n in self.depths_:
-            arrays[f"words_{n}"] = np.ascontiguousarray(self.counts_[n].words(b), dtype=np.uint64)
-            arrays[f"counts_{n}"] = np.ascontiguousarray(self.counts_[n].counts, dtype=np.uint32)
+            table = self.counts_[n]
+            arrays[f"words_{n}"] = (lambda t=table: t.words(b)) if lazy else table.words(b)
+            arrays[f"counts_{n}"] = np.ascontiguousarray(table.counts, dtype=np.uint32)
         params = {k: (list(v) if isinstance(v, (tuple, np.ndarray)) else v) for k, v in self.get_params().items()}
         if isinstance(params.get("depths"), list):
             params["depths"] = [int(d) for d in params["depths"]]
@@ -631,7 +636,7 @@ class CellPredictor:
 
     def save(self, path, force: bool = False):
         """Write the fitted model (see :mod:`fractalseq.predict._modelfile`); refuses to overwrite without ``force``."""
-        return write_state(self.to_state(), path, force=force)
+        return write_state(self.to_state(lazy=True), path, force=force)
 
     @classmethod
     def load(cls, path) -> "CellPredictor":
