@@ -4,7 +4,9 @@ Checks: the per-window word counts of any piece size against a plain
 ``collections.Counter`` of each window's words (Python standard library; common
 practice: a word lies inside its window and never spans a segment break), the
 running ``sum c ln c`` against ``math.fsum`` over the Counter, and whole scan documents
-of a processes engine against the serial run with the same piece size.  Data:
+of a processes engine against the serial run with the same piece size, also when the
+workers read their pieces and the predictor's whole stream from the file themselves (every
+FASTA layout of ``tests/test_count_ranges.py``: the serial and the shipped bytes).  Data:
 invented random streams and FASTA (a scenario of our own) and the dpkg log excerpt
 (``reference/logs/README.md``).
 """

@@ -6,7 +6,9 @@ whatever the piece size (so no context is lost at a piece edge), that the
 integer tallies (symbols, top-1/top-3 hits, calibration bins) are equal, that
 the total is the correctly rounded sum of the surprisals (``math.fsum``, Python
 standard library, within the float32 rounding of the stored surprisals), and
-that a processes engine prints the serial bytes for the same piece size.  Data:
+that a processes engine prints the serial bytes for the same piece size, also when
+the workers read their own spans of an uncompressed file after an offset pass (every
+FASTA layout of ``tests/test_count_ranges.py``: the serial and the shipped bytes).  Data:
 invented random FASTA (a scenario of our own) and the lambda phage genome
 (``reference/PROVENANCE.md``).
 """

@@ -8,7 +8,7 @@ of the whole file cut by ``iter_pieces`` (the shipped route, itself checked in
 ``tests/test_engine.py`` and ``tests/test_count_ranges.py``): every piece must have the
 same codes, segment starts, core, offset, final flag and index, over hypothesis-drawn FASTA
 layouts (wrapped and unwrapped lines, CRLF, comments, N runs, long headers, a byte-order
-mark), BGZF copies of them (checked against the standard library's ``gzip``), piece sizes,
+mark), plain text, BGZF copies of them (checked against the standard library's ``gzip``), piece sizes,
 overlaps, range sizes and mark spacings.  The read report of the offset pass must equal
 the one-pass read's.  Data: invented FASTA (a scenario of our own) and the lambda phage
 genome (``reference/PROVENANCE.md``).
@@ -67,8 +67,8 @@ def _same_pieces(path, reader: ReaderOptions, chunk: int, overlap: int, workers:
         arr = reader.open(path).to_array()
         shipped = list(iter_pieces(arr, chunk, overlap))
     except InputError as exc:  # no symbol: the offset pass says the one-pass reader's sentence
-        stream = reader.open(path)
         with pytest.raises(InputError) as split_exc:
+            stream = reader.open(path)  # (an empty file is refused on opening)
             PS.worker_pieces(stream, chunk, overlap, Pickling(workers), stream.byte_reader)
         assert str(split_exc.value) == str(exc)
         return 0
@@ -113,6 +113,18 @@ def test_spans_of_bgzf_fasta_are_the_shipped_pieces(tmp_path, monkeypatch, text,
     path.write_bytes(packed)
     chunk = data.draw(st.integers(1, len(raw) + 3), label="piece symbols")
     _same_pieces(path, ReaderOptions(fmt="fasta"), chunk, data.draw(st.integers(0, 12), label="overlap"), 3)
+
+
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(body=st.text(alphabet="ACGTNacgtn\n X", min_size=0, max_size=600), policy=st.sampled_from(["break", "skip"]),
+       mark=st.sampled_from([1, 5, 1 << 20]), data=st.data())
+def test_spans_of_plain_text_are_the_shipped_pieces(tmp_path, monkeypatch, body, policy, mark, data):
+    monkeypatch.setattr(PS, "MARK_BLOCK", mark)
+    monkeypatch.setattr(PS, "RANGE_MIN", 1)
+    path = tmp_path / "z.txt"
+    path.write_bytes(body.encode())
+    chunk = data.draw(st.integers(1, len(body) + 3), label="piece symbols")
+    _same_pieces(path, ReaderOptions(fmt="text", policy=policy), chunk, data.draw(st.integers(0, 9), label="overlap"), 2)
 
 
 def test_lambda_spans_are_the_shipped_pieces_and_carry_no_symbol(tmp_path, monkeypatch):
