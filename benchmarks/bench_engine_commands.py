@@ -160,6 +160,14 @@ def engine_section(name: str, base: list[str], sent_args: list[str], before: Pat
     return r
 
 
+def input_note(doc: dict, r: dict) -> str:
+    """What a section was measured on (sections keep the run they were measured in)."""
+    if "input" not in r:
+        return f"measured in an earlier run on {doc['symbols'] / 1e6:.0f}-Mbase simulated FASTA files (training and test)"
+    model = f", model learned from {r['train_symbols'] / 1e6:.0f} Mbase of simulated FASTA" if "train_symbols" in r else ""
+    return f"input {r['input']}{model}"
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--mbase", type=int, default=24)
@@ -167,7 +175,11 @@ def main() -> int:
     ap.add_argument("--before", type=Path, default=None, help="another checkout to run score and scan from (same run)")
     ap.add_argument("--fasta", type=Path, default=None, help="score and scan this FASTA instead of the simulated one")
     ap.add_argument("--train-mbase", type=int, default=None, help="Mbase of the model's training FASTA (default --mbase)")
+    ap.add_argument("--markdown-only", action="store_true", help="rewrite the markdown table from the JSON and stop")
     args = ap.parse_args()
+    if args.markdown_only:
+        write_markdown(json.loads((RESULTS / "engine_commands.json").read_text()))
+        return 0
     want = args.only.split(",")
     n = args.mbase * 1_000_000
     tn = (args.train_mbase or args.mbase) * 1_000_000
@@ -195,13 +207,22 @@ def main() -> int:
     if "score" in want:
         base = ["score", str(test), "--model", str(model_a), "--json", "-q", "--piece", str(PIECE)]
         doc["score"] = engine_section("score --model", base, ["score", str(test), str(model_a), str(PIECE)], args.before)
+        doc["score"].update(input=doc["input"], train_symbols=tn)
         print(json.dumps(doc["score"]), flush=True)
     if "scan" in want:
         base = ["scan", str(test), "--json", "-q", "--piece", str(PIECE)]
         doc["scan"] = engine_section("scan", base, ["scan", str(test), str(PIECE)], args.before)
+        doc["scan"]["input"] = doc["input"]
         print(json.dumps(doc["scan"]), flush=True)
     RESULTS.mkdir(exist_ok=True)
     write_text(out, to_json(doc), force=True)
+    write_markdown(doc)
+    return 0
+
+
+def write_markdown(doc: dict) -> None:
+    """benchmarks/results/engine_commands.md from the JSON document."""
+    n = doc["symbols"]
     rows = ["| command | tree | mode | CPU s | wall s | peak MiB (tree) | peak MiB (own) | load before/after | bytes sent to workers | same bytes |",
             "| --- | --- | --- | ---: | ---: | ---: | ---: | --- | ---: | --- |"]
     for key in ("learn", "score", "scan"):
@@ -216,27 +237,25 @@ def main() -> int:
                 moved = f"{t['sent']['sent_bytes']:,}" if mode == "workers2" and "sent" in t else "-"
                 rows.append(f"| {r['command']} | {label} | {mode} | {m['cpu_s']} | {m['wall_s']} | {m['peak_tree_mib']} | "
                             f"{m['peak_own_mib']} | {m['load_before']} / {m['load_after']} | {moved} | {'yes' if t['identical'] else 'NO'} |")
-    what = doc.get("input", "simulated")
-    title = f"{n / 1e6:.0f} Mbase simulated FASTA" if what.startswith("simulated") else f"{Path(what).name}"
-    md = [f"# One large source on the engines ({title}, {doc['cores']} cores, nice -n 10)", "",
+    md = [f"# One large source on the engines ({n / 1e6:.0f} Mbase, {doc['cores']} cores, nice -n 10)", "",
           "Serial and `--workers 2` runs of the same command, whole processes. CPU seconds include the workers; "
           "the wall ratio depends on the load of the shared machine (load averages beside). `score` and `scan` "
-          "use `--piece 4194304` (2^22) in both modes; the model was learned from "
-          f"{doc.get('train_symbols', n) / 1e6:.0f} Mbase of simulated FASTA. \"bytes sent\": the pickled task arguments "
+          "use `--piece 4194304` (2^22) in both modes. What each command ran on is listed below the table. "
+          "\"bytes sent\": the pickled task arguments "
           "the parent hands its two workers (measured in a run of its own); \"same bytes\": the `--workers 2` output "
           "equals the serial one of the same tree; \"before\" rows are the same commands run from another checkout "
           "in the same run.", "", *rows, ""]
     for key in ("learn", "score", "scan"):
         r = doc.get(key)
         if r:
-            md.append(f"- {r['command']}: wall speed-up {r['wall_speedup']}x, CPU ratio (workers / serial) {r['cpu_ratio']}.")
+            md.append(f"- {r['command']} ({input_note(doc, r)}): wall speed-up {r['wall_speedup']}x, CPU ratio "
+                      f"(workers / serial) {r['cpu_ratio']}.")
             if r.get("before"):
                 b = r["before"]
                 md.append(f"  Before: wall speed-up {b['wall_speedup']}x, CPU ratio {b['cpu_ratio']}; bytes sent "
                           f"{b['sent']['sent_bytes']:,} in {b['sent']['tasks']} tasks, now {r['sent']['sent_bytes']:,} in "
                           f"{r['sent']['tasks']} tasks; output the same bytes as before: {'yes' if r.get('same_as_before') else 'NO'}.")
     write_text(RESULTS / "engine_commands.md", "\n".join(md) + "\n", force=True)
-    return 0
 
 
 if __name__ == "__main__":
