@@ -1,11 +1,14 @@
 """``learn``, fitted ``score``, ``score --online --per-record`` and ``scan`` of one source on a real local
-Dask cluster (two worker processes): the serial bytes.
+Dask cluster (two worker processes): the serial bytes, for the gzip genome (the parent sends the pieces) and
+for an uncompressed copy (the workers read their own spans of it).
 
 A Dask worker gets the fitted model itself (not the file path: a worker may sit on another machine).
 Data: the lambda phage genome (``reference/PROVENANCE.md``) and invented records (a scenario of our own).
 """
 
 from __future__ import annotations
+
+import gzip
 
 import numpy as np
 import pytest
@@ -44,7 +47,13 @@ def test_learn_score_and_scan_on_dask_equal_serial(client, tmp_path):
         multi = tmp_path / "multi.fa"
         multi.write_text("".join(f">r{i} invented\n{''.join(np.array(list('ACGT'))[rng.integers(0, 4, 3_000)])}\n" for i in range(3)))
         online = score_files([str(multi)], online=True, per_record=True, window=1_000, engine=eng)
+        plain = tmp_path / "lambda.fa"  # uncompressed (the standard library's gzip): the workers read their own spans
+        plain.write_bytes(gzip.decompress(LAMBDA.read_bytes()))
+        fitted_plain = score_files([str(plain)], str(a), window=4_000, piece=6_007, engine=eng)
+        scanned_plain = scan_file(str(plain), 4_000, 1_000, piece=7_919, engine=eng)
     assert a.read_bytes() == b.read_bytes()
     assert to_json(fitted.to_dict()) == to_json(score_files([str(LAMBDA)], str(a), window=4_000, piece=6_007).to_dict())
     assert scanned.to_json() == scan_file(str(LAMBDA), 4_000, 1_000, piece=7_919).to_json()
+    assert to_json(fitted_plain.to_dict()) == to_json(score_files([str(plain)], str(a), window=4_000, piece=6_007).to_dict())
+    assert scanned_plain.to_json() == scan_file(str(plain), 4_000, 1_000, piece=7_919).to_json()
     assert to_json(online.to_dict()) == to_json(score_files([str(multi)], online=True, per_record=True, window=1_000).to_dict())

@@ -4,7 +4,9 @@ Checks: the per-window word counts of any piece size against a plain
 ``collections.Counter`` of each window's words (Python standard library; common
 practice: a word lies inside its window and never spans a segment break), the
 running ``sum c ln c`` against ``math.fsum`` over the Counter, and whole scan documents
-of a processes engine against the serial run with the same piece size.  Data:
+of a processes engine against the serial run with the same piece size, also when the
+workers read their pieces and the predictor's whole stream from the file themselves (every
+FASTA layout of ``tests/test_count_ranges.py``: the serial and the shipped bytes).  Data:
 invented random streams and FASTA (a scenario of our own) and the dpkg log excerpt
 (``reference/logs/README.md``).
 """
@@ -12,6 +14,7 @@ invented random streams and FASTA (a scenario of our own) and the dpkg log excer
 from __future__ import annotations
 
 import collections
+import gzip
 import math
 import os
 import subprocess
@@ -23,13 +26,15 @@ from hypothesis import strategies as st
 
 from fractalseq import alphabet as al
 from fractalseq.compare._scan_pieces import split_window_counts
-from fractalseq.errors import ParameterError
+from fractalseq.errors import InputError, ParameterError
 from fractalseq.jobs._engines import ProcessEngine
 from fractalseq.jobs._files import scan_file
 from fractalseq.jobs._inputs import ReaderOptions
 from fractalseq.stream import from_codes
 
-from _paths import CLI, LOGS, ROOT
+from _paths import CLI, LAMBDA, LOGS, ROOT
+from test_count_ranges import fasta_texts
+from test_split_spans import Pickling
 
 
 @pytest.fixture(scope="module")
@@ -121,3 +126,58 @@ def test_scan_command_with_workers_prints_the_serial_bytes(tmp_path):
     split = subprocess.run([*base, "--workers", "2"], capture_output=True, text=True, timeout=300, env=env)
     assert serial.returncode == split.returncode == 0, split.stderr
     assert split.stdout == serial.stdout
+
+
+# ------------------------------------------------------------------ workers reading their own spans of the file
+def _long_record(data) -> str:
+    """An invented record of a few hundred to a few thousand symbols (wrapped or not) before the drawn layout."""
+    rng = np.random.default_rng(data.draw(st.integers(0, 10_000), label="seed"))
+    seq = "".join(np.array(list("ACGTN"))[rng.integers(0, 5, data.draw(st.integers(200, 3_000), label="length"))])
+    width = data.draw(st.sampled_from([7, 60, 10_000]), label="width")
+    return ">long invented\n" + "\n".join(seq[i : i + width] for i in range(0, len(seq), width)) + "\n"
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@given(text=fasta_texts(), data=st.data())
+def test_scan_of_spans_read_by_the_workers_equals_serial_and_shipped(tmp_path, monkeypatch, text, data):
+    """Every FASTA layout: window pieces and the predictor's whole stream read by the workers, the serial bytes."""
+    from fractalseq.compare import _scan_pieces
+    from fractalseq.words import _piece_source
+
+    monkeypatch.setattr(_piece_source, "MARK_BLOCK", data.draw(st.sampled_from([1, 13, 1 << 20]), label="mark bytes"))
+    monkeypatch.setattr(_piece_source, "RANGE_MIN", 1)
+    path = tmp_path / "x.fa"
+    path.write_bytes((_long_record(data) + text.lstrip("\ufeff")).encode())
+    read = ReaderOptions(fmt="fasta")
+    try:
+        n = len(read.read(path))
+    except InputError:
+        return  # no symbol: nothing to scan (the reader's sentence, before any piece)
+    if n < 16:
+        return
+    window = data.draw(st.integers(2, n // 4), label="window")
+    step = data.draw(st.integers(1, window), label="step")
+    piece = data.draw(st.integers(1, n + 3), label="piece symbols")
+
+    def doc(engine=None):
+        try:
+            return scan_file(str(path), window, step, 1, reader=read, piece=piece, engine=engine).to_json()
+        except ParameterError as exc:  # too few windows for this layout: the same sentence on every route
+            return str(exc)
+
+    serial = doc()
+    ranged = doc(Pickling(data.draw(st.integers(1, 4), label="workers")))
+    monkeypatch.setattr(_scan_pieces, "ranged", lambda engine, reader: None)  # today's shipped route
+    shipped = doc(Pickling(2))
+    assert ranged == serial and shipped == serial
+
+
+def test_scan_of_an_uncompressed_genome_on_processes_reads_spans(tmp_path, engine):
+    """The lambda phage genome (reference/PROVENANCE.md) as a plain file: the workers read it, the serial bytes."""
+    path = tmp_path / "lambda.fa"
+    path.write_bytes(gzip.decompress(LAMBDA.read_bytes()))  # the standard library's gzip
+    assert ReaderOptions().open(path).byte_reader is not None
+    serial = scan_file(str(path), 4_000, 1_000, piece=7_001)
+    split = scan_file(str(path), 4_000, 1_000, piece=7_001, engine=engine)
+    assert split.to_json() == serial.to_json()
+    assert serial.length == 48_502  # lambda phage: 48,502 bp (GenBank J02459, from memory)

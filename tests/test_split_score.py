@@ -6,13 +6,16 @@ whatever the piece size (so no context is lost at a piece edge), that the
 integer tallies (symbols, top-1/top-3 hits, calibration bins) are equal, that
 the total is the correctly rounded sum of the surprisals (``math.fsum``, Python
 standard library, within the float32 rounding of the stored surprisals), and
-that a processes engine prints the serial bytes for the same piece size.  Data:
+that a processes engine prints the serial bytes for the same piece size, also when
+the workers read their own spans of an uncompressed file after an offset pass (every
+FASTA layout of ``tests/test_count_ranges.py``: the serial and the shipped bytes).  Data:
 invented random FASTA (a scenario of our own) and the lambda phage genome
 (``reference/PROVENANCE.md``).
 """
 
 from __future__ import annotations
 
+import gzip
 import math
 import os
 import subprocess
@@ -23,7 +26,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from fractalseq import alphabet as al
-from fractalseq.errors import ParameterError
+from fractalseq.errors import InputError, ParameterError
 from fractalseq.io._outputs import to_json
 from fractalseq.jobs import learn_files, score_files
 from fractalseq.jobs._engines import ProcessEngine
@@ -33,6 +36,9 @@ from fractalseq.sources import open_source
 from fractalseq.stream import from_codes
 
 from _paths import CLI, LAMBDA, ROOT
+from test_count_ranges import fasta_texts
+from test_split_scan import _long_record
+from test_split_spans import Pickling
 
 
 @pytest.fixture(scope="module")
@@ -194,3 +200,58 @@ def test_a_worker_refuses_a_model_file_that_changed(lambda_model, tmp_path):
     stale = (key[0], key[1] + 1, key[2])  # the size the parent saw differs from the file's now
     with pytest.raises(InputError):
         handle_model(ModelHandle(str(lambda_model), stale, kind=CellPredictor))
+
+
+# ------------------------------------------------------------------ workers reading their own spans of the file
+@pytest.fixture(scope="module")
+def small_model(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("spans")
+    train = folder / "train.fa"
+    train.write_text(_fasta(99, 4, 3_000))
+    path = folder / "m.npz"
+    learn_files([str(train)], out=path, params={"max_depth": 7})
+    return path
+
+
+def _score_json(path, model, piece, engine=None) -> str:
+    return to_json(score_files([str(path)], str(model), window=97, piece=piece, baselines="markov", engine=engine).to_dict())
+
+
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@given(text=fasta_texts(), policy=st.sampled_from(["break", "skip"]), data=st.data())
+def test_score_of_spans_read_by_the_workers_equals_serial_and_shipped(tmp_path, monkeypatch, small_model, text, policy, data):
+    """Every FASTA layout: the offset pass, then spans read by the workers, print the serial and the shipped bytes."""
+    from fractalseq.predict import _split_score
+    from fractalseq.words import _piece_source
+
+    monkeypatch.setattr(_piece_source, "MARK_BLOCK", data.draw(st.sampled_from([1, 9, 1 << 20]), label="mark bytes"))
+    monkeypatch.setattr(_piece_source, "RANGE_MIN", 1)
+    path = tmp_path / "x.fa"
+    if data.draw(st.booleans(), label="long record first"):
+        text = _long_record(data) + text.lstrip("\ufeff")
+    path.write_bytes(text.encode())
+    piece = data.draw(st.integers(1, len(text) + 3), label="piece symbols")
+    eng = Pickling(data.draw(st.integers(1, 4), label="workers"))
+    try:
+        serial = _score_json(path, small_model, piece)
+    except InputError as exc:  # no symbol: the same sentence
+        with pytest.raises(InputError) as split_exc:
+            _score_json(path, small_model, piece, eng)
+        assert str(split_exc.value) == str(exc)
+        return
+    ranged = _score_json(path, small_model, piece, eng)
+    monkeypatch.setattr(_split_score, "ranged_reader", lambda source: None)  # today's shipped route
+    shipped = _score_json(path, small_model, piece, Pickling(2))
+    assert ranged == serial and shipped == serial  # every float to the last bit, records, windows, Markov baseline
+
+
+def test_lambda_scored_from_spans_on_processes(engine, lambda_model, tmp_path):
+    """The lambda phage genome (real data) as an uncompressed file: workers read their spans, the serial bytes."""
+    path = tmp_path / "lambda.fa"
+    path.write_bytes(gzip.decompress(LAMBDA.read_bytes()))  # the standard library's gzip
+    serial = score_files([str(path)], str(lambda_model), window=5_000, piece=4_099)
+    split = score_files([str(path)], str(lambda_model), window=5_000, piece=4_099, engine=engine)
+    assert to_json(split.to_dict()) == to_json(serial.to_dict())
+    gz = score_files([str(LAMBDA)], str(lambda_model), window=5_000, piece=4_099, engine=engine)  # gzip: shipped
+    assert gz.sources[0].total_bits == serial.sources[0].total_bits
+    assert serial.sources[0].length == 48_502  # lambda phage: 48,502 bp (GenBank J02459, from memory)

@@ -43,7 +43,7 @@ from fractalseq.errors import ParameterError
 from fractalseq.io._outputs import to_json
 from fractalseq.results import CAUTION_GENERAL, Result, caution_for, is_log_alphabet
 from fractalseq.stream import Positions, SymbolArray
-from fractalseq.compare._scan_pieces import split_window_counts, surprise_series, surprise_task  # noqa: F401 (surprise_series: callers import it from here)
+from fractalseq.compare._scan_pieces import split_window_counts, surprise_item, surprise_series, surprise_task  # noqa: F401 (surprise_series: callers import it from here)
 from fractalseq.compare._window_kernel import window_counts
 
 CAUTION = CAUTION_GENERAL
@@ -234,12 +234,15 @@ class ScanResult(Result):
 
 def window_figures(
     arr: SymbolArray, window: int, step: int, depth: int, ratio: float = 0.5, seed: int = 0, engine=None, piece: int | None = None,
+    reader=None,
 ) -> tuple[np.ndarray, dict[str, np.ndarray], list[str]]:
     """Window starts and the figures of every window (see the module documentation).
 
     The windows are counted in pieces of about ``piece`` symbols of whole windows on ``engine``
     (default: serially), the online predictor's pass running beside them as a task of its own
     (:mod:`fractalseq.compare._scan_pieces`); the figures are the same bits on every engine.
+    ``reader``: the byte reader of the file ``arr`` was read from, when workers can read it
+    themselves (they then get spans of the file, not symbols).
     """
     from fractalseq.runner import SerialEngine
 
@@ -250,8 +253,8 @@ def window_figures(
     n_windows = (T - window) // step + 1
     starts = np.arange(n_windows, dtype=np.int64) * step
     engine = engine or SerialEngine()
-    pending = engine.submit(surprise_task, arr)  # the one pass that cannot be cut, beside the pieces
-    N, Kw, Kc, Sw, Sc = split_window_counts(arr, int(depth), int(window), int(step), engine, piece)
+    pending = engine.submit(surprise_task, surprise_item(arr, engine, reader))  # the one pass that cannot be cut, beside the pieces
+    N, Kw, Kc, Sw, Sc = split_window_counts(arr, int(depth), int(window), int(step), engine, piece, reader)
     notes: list[str] = []
     with np.errstate(divide="ignore", invalid="ignore"):
         Nf = N.astype(float)
@@ -278,6 +281,7 @@ def scan_stream(
     seed: int = 0,
     engine=None,
     piece: int | None = None,
+    reader=None,
 ) -> ScanResult:
     """Scan a stream in sliding windows and find change points.
 
@@ -301,6 +305,9 @@ def scan_stream(
     engine, piece:
         Where the windows are counted, in pieces of about ``piece`` symbols of whole windows
         (default 2**24; :func:`window_figures`); every engine gives the same bytes for the same ``piece``.
+    reader:
+        The :class:`~fractalseq.sources.ranges.ByteReader` of the file ``arr`` was read from, when
+        the workers can read it apart: they then read their pieces from the file themselves.
 
     Returns
     -------
@@ -326,7 +333,7 @@ def scan_stream(
             depth = choose_scan_depth(arr.alphabet.size, window, arr.alphabet.max_depth, *ordinal_shape(arr))
     if depth < 1 or depth >= window:
         raise ParameterError(f"The depth must lie between 1 and the window length; got {depth}.", parameter="depth")
-    starts, figures, notes = window_figures(arr, int(window), step, int(depth), ratio, seed, engine, piece)
+    starts, figures, notes = window_figures(arr, int(window), step, int(depth), ratio, seed, engine, piece, reader)
     if len(starts) < 4:
         notes.append("fewer than 4 windows: no change points can be found; use a smaller --window or --step")
     overlap = max(1, int(math.ceil(window / step)))

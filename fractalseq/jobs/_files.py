@@ -336,7 +336,7 @@ def scan_file(
     seed = check_seed(seed)
     piece = check_piece(piece)
     pen = parse_penalty(penalty)
-    arr = (reader or ReaderOptions()).read(path)
+    arr, ranges = (reader or ReaderOptions()).read_ranged(path)  # ranges: workers read their pieces from the file
     if on_read is not None:
         on_read()
     lined = arr.report.positions is not None
@@ -348,7 +348,7 @@ def scan_file(
             f"{arr.name} has {len(arr)} {unit}{'' if len(arr) == 1 else 's'} to scan, fewer than one window of {window} {unit}s; "
             "give a smaller window.", parameter="window",
         )
-    return scan_stream(arr, window, step, depth, ratio, pen, seed, engine=engine, piece=piece)
+    return scan_stream(arr, window, step, depth, ratio, pen, seed, engine=engine, piece=piece, reader=ranges)
 
 
 # ================================================================== survey

@@ -237,10 +237,15 @@ class ReaderOptions:
 
     def read(self, path: str | os.PathLike, name: str | None = None) -> SymbolArray:
         """Open and read one input into memory, refusing an input with no symbols."""
-        arr = self.open(path, name).to_array()
+        return self.read_ranged(path, name)[0]
+
+    def read_ranged(self, path: str | os.PathLike, name: str | None = None) -> tuple[SymbolArray, object | None]:
+        """:meth:`read`, and the byte reader with which workers can read the file apart (``None`` when they cannot)."""
+        stream = self.open(path, name)
+        arr = stream.to_array()
         if len(arr) == 0:
             raise InputError(f"{path} holds no usable symbols; check the file, its format and the alphabet.")
-        return arr
+        return arr, getattr(stream, "byte_reader", None)
 
     def with_baseline_cuts(self, baseline: Sequence[str | os.PathLike]) -> tuple["ReaderOptions", str]:
         """These options with numeric inputs cut at the pooled quantiles of the ``baseline`` files.

@@ -38,7 +38,7 @@ from fractalseq.predict import _kernel_tools as K
 from fractalseq.predict._results import DEFAULT_TOP_WINDOWS, DEFAULT_WINDOW, FittedMemory, PredictionResult, prediction_result
 from fractalseq.predict._tally import record_scores
 from fractalseq.runner import Engine, OnDone, SerialEngine
-from fractalseq.words._piece_source import worker_pieces
+from fractalseq.words._piece_source import ranged_reader, span_piece, worker_pieces
 from fractalseq.words._pieces import DEFAULT_PIECE, Piece, count_piece, settle_storage
 
 if TYPE_CHECKING:
@@ -123,6 +123,7 @@ def _stretch_sums(sur: np.ndarray, cuts: np.ndarray) -> list[float]:
 def score_piece(task: tuple) -> ScorePart:
     """Score one piece: ``(handle, piece, overlap, window, keep_surprisal, markov_order)``; ``markov_order < 0``: no counts."""
     handle, piece, ov, window, keep, order = task
+    piece = span_piece(piece)  # a span of the file is read here
     model = handle_model(handle)
     model._ensure_index()
     a = model.alphabet_
@@ -223,9 +224,11 @@ def evaluate_pieces(
         handle = ModelHandle(None, None, model)
     meter = CompressorMeter(a) if want_compressors else None
     cut = [0]
+    # workers read their own spans of the file when they can; the compressors need the symbols in the parent
+    reader = ranged_reader(source) if engine.name != "serial" and meter is None else None
 
-    def tasks():
-        for p in worker_pieces(source, chunk, ov):
+    def tasks(pieces):
+        for p in pieces:
             if meter is not None:
                 meter.feed(p.codes[: p.core])
             cut[0] += 1
@@ -235,7 +238,8 @@ def evaluate_pieces(
         return _merge(acc, part)
 
     try:
-        acc = engine.map_reduce(score_piece, tasks(), merge, on_done)
+        pieces = worker_pieces(source, chunk, ov, engine, reader)  # with a reader: the offset pass runs here
+        acc = engine.map_reduce(score_piece, tasks(pieces), merge, on_done)
     except InputError:
         if cut[0]:
             raise

@@ -288,6 +288,8 @@ class RangeScan:
         self._fh: BinaryIO | None = None
         self._view = None
         self._open_header = False  # a header of this range whose line has not ended yet
+        #: ``(byte, symbols)`` after each block of :meth:`core`: the range's symbols before that byte
+        self.marks: list[tuple[int, int]] = []
 
     def __enter__(self) -> "RangeScan":
         self._fh = _open_checked(self.task.reader)
@@ -316,6 +318,7 @@ class RangeScan:
             codes, starts = self._scan(data, part.dropped, own=True)
             part.symbols += codes.size
             part.segments += starts.size
+            self.marks.append((at, part.symbols))
             if codes.size:
                 yield Chunk(codes, starts)
 
