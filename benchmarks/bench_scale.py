@@ -277,6 +277,13 @@ def cpu_split(sizes: list[float], workers: int, work: Path) -> int:
         rows.append(row)
         print(row, flush=True)
         path.unlink()
+    old = HERE / "results" / "scale_profile_cpu_split.json"
+    if old.exists():  # rows of earlier runs at other sizes are kept
+        import json
+
+        sizes_now = {r["mbase"] for r in rows}
+        rows = sorted([r for r in json.loads(old.read_text()).get("rows", []) if r["mbase"] not in sizes_now] + rows,
+                      key=lambda r: r["mbase"])
     data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}", "rows": rows}
     lines = ["| Mbase | serial CPU | parent CPU | workers' CPU | same result | bound on 2 idle cores |",
              "|---:|---:|---:|---:|---|---:|"]

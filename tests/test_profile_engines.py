@@ -124,6 +124,9 @@ def test_quick_no_bootstrap_and_no_piece_profiles_on_an_engine():
     assert "count_piece" not in eng.tasks and {"depth_level_task", "predictor_task"} <= set(eng.tasks)
     none = Resampling(n_boot=0, seed=1)
     assert _doc(arr, _PickledInProcess(), 2_000, resampling=none) == _doc(arr, resampling=none)
+    eng = _PickledInProcess()  # overlapping maps: the geometric spectrum, then the rate intervals' own depth tasks
+    assert _doc(arr, eng, ratio=0.6) == _doc(arr, ratio=0.6)
+    assert "depth_spectra_task" in eng.tasks and "depth_level_task" not in eng.tasks
 
 
 def test_real_genome_and_real_log_on_an_engine():

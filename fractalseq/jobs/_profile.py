@@ -432,9 +432,11 @@ def _rate_bounds(
         notes.append(f"online predictor: not computed ({why})")
 
 
-def _parent_steps(arr, wc, k, L, settings, rs, lz_max_length, compress_max_length, absent_list, image, image_max_length) -> ParentSteps:
-    """The steps that stay in this process after the spectrum (each a function of a notes list)."""
-    quick = settings.quick
+def _parent_steps(
+    arr: SymbolArray, wc: WordCounts, k: float, L: int, quick: bool, rs: Resampling, lz_max_length: int | None,
+    compress_max_length: int | None, absent_list: int, image: bool, image_max_length: int | None,
+) -> ParentSteps:
+    """Steps 6 to 9 that stay in this process (each a function of a notes list; the predictor is a task)."""
 
     def lz76(ns: list[str]):
         try:
@@ -444,7 +446,7 @@ def _parent_steps(arr, wc, k, L, settings, rs, lz_max_length, compress_max_lengt
 
     def compressors(ns: list[str]):
         try:
-            return None if quick else ent.h_compressors(arr, max_length=None if quick else compress_max_length)
+            return None if quick else ent.h_compressors(arr, max_length=compress_max_length)
         except FractalseqError as exc:
             ns.append(f"compressor bound: not computed ({exc})")
 
@@ -602,7 +604,7 @@ def _measure(arr, N, settings, rs, offsets, lz_max_length, compress_max_length, 
         N = wc.depth
     clock.step("block entropies")  # 2. block entropies and rate estimates
     found = _block_entropies(arr, wc, user_qs, notes)
-    steps = _parent_steps(arr, wc, k, L, settings, rs, lz_max_length, compress_max_length, absent_list, image, image_max_length)
+    steps = _parent_steps(arr, wc, k, L, quick, rs, lz_max_length, compress_max_length, absent_list, image, image_max_length)
     if background.engine is not None:  # made while the workers run; taken, notes and all, at their places below
         steps.run_all()
     clock.step("dimensions")  # 3. dimensions, f(alpha) and the scaling data
