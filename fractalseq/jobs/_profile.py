@@ -593,15 +593,21 @@ def _measure(arr, N, settings, rs, offsets, lz_max_length, compress_max_length, 
     n_boot, seed, level, L = rs.n_boot, rs.seed, rs.level, len(arr)
     clock.step("counting words")  # 1. words, counted once
     counter = words_counter(engine, piece)
-    if background.engine is not None:  # steps that need nothing from the others start on the workers first
+
+    def start_background() -> None:  # steps that need nothing from the others, on the workers
         shipped = stream_for_workers(arr)
         background.start("online predictor", predictor_task, shipped)
         if not quick and consistency_max_length is not None and L > max(consistency_max_length, sp.TRANSIENT + 10):
             background.start("consistency table", consistency_task, (shipped, user_qs, k, rs, offsets, consistency_max_length))
+
+    if background.engine is not None and piece is None:  # first, beside the counts made here
+        start_background()
     wc = counter(arr, N)
     if depth is None:  # a source with memory supports longer words than the fixed rule counts
         wc = deepen_counts(arr, wc, MAX_AUTO_DEPTH, counter)
         N = wc.depth
+    if background.engine is not None and piece is not None:  # after the pieces' counts (not queued before them)
+        start_background()
     clock.step("block entropies")  # 2. block entropies and rate estimates
     found = _block_entropies(arr, wc, user_qs, notes)
     steps = _parent_steps(arr, wc, k, L, quick, rs, lz_max_length, compress_max_length, absent_list, image, image_max_length)
