@@ -200,7 +200,9 @@ def open_source(
         Re-iterable; its :attr:`~fractalseq.stream.SymbolStream.report`
         describes the last complete pass (symbols, segments, dropped counts
         by reason, records, notes, and ``extra`` such as the log template
-        table).
+        table).  For a regular file, :attr:`~fractalseq.stream.SymbolStream.reread`
+        holds the absolute path and these options (worker processes read the
+        file again from it; :mod:`fractalseq.words._worker_stream`).
 
     Raises
     ------
