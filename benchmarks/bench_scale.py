@@ -291,7 +291,8 @@ def cpu_split(sizes: list[float], workers: int, work: Path) -> int:
         lines.append(f"| {r['mbase']:g} | {r['serial_cpu']:.1f} s | {r['parent_cpu']:.1f} s | {r['workers_cpu']:.1f} s | "
                      f"{'yes' if r['same_result'] else 'no'} | {r['bound_speed_up']:.2f}x |")
     lines += ["", "In one process: the stream read once, then `profile_source` serially and on "
-              f"`ProcessEngine({workers})` (reading and start-up excluded). The bound is serial CPU / max(parent CPU, "
+              f"`ProcessEngine({workers})` (the parent's reading and start-up excluded; the workers' start and their own reading of the "
+              "file are in the workers' CPU). The bound is serial CPU / max(parent CPU, "
               "(parent + workers) / 2): the speed-up if two idle cores were kept busy all the time (an upper bound, "
               f"not a measured time). Machine: {data['machine']}.", ""]
     write_results("scale_profile_cpu_split", data, "\n".join(lines))
