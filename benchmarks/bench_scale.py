@@ -278,6 +278,13 @@ def cpu_split(sizes: list[float], workers: int, work: Path) -> int:
         rows.append(row)
         print(row, flush=True)
         path.unlink()
+    old = HERE / "results" / "scale_profile_cpu_split.json"
+    if old.exists():  # rows of earlier runs at other sizes are kept
+        import json
+
+        sizes_now = {r["mbase"] for r in rows}
+        rows = sorted([r for r in json.loads(old.read_text()).get("rows", []) if r["mbase"] not in sizes_now] + rows,
+                      key=lambda r: r["mbase"])
     data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}", "rows": rows}
     lines = ["| Mbase | serial CPU | parent CPU | workers' CPU | same result | bound on 2 idle cores |",
              "|---:|---:|---:|---:|---|---:|"]
@@ -285,7 +292,8 @@ def cpu_split(sizes: list[float], workers: int, work: Path) -> int:
         lines.append(f"| {r['mbase']:g} | {r['serial_cpu']:.1f} s | {r['parent_cpu']:.1f} s | {r['workers_cpu']:.1f} s | "
                      f"{'yes' if r['same_result'] else 'no'} | {r['bound_speed_up']:.2f}x |")
     lines += ["", "In one process: the stream read once, then `profile_source` serially and on "
-              f"`ProcessEngine({workers})` (reading and start-up excluded). The bound is serial CPU / max(parent CPU, "
+              f"`ProcessEngine({workers})` (the parent's reading and start-up excluded; the workers' start and their own reading of the "
+              "file are in the workers' CPU). The bound is serial CPU / max(parent CPU, "
               "(parent + workers) / 2): the speed-up if two idle cores were kept busy all the time (an upper bound, "
               f"not a measured time). Machine: {data['machine']}.", ""]
     write_results("scale_profile_cpu_split", data, "\n".join(lines))

@@ -198,6 +198,9 @@ class SymbolStream:
         #: a description of the file that lets worker processes read byte ranges of it themselves
         #: (:class:`fractalseq.sources.ranges.ByteReader`), or ``None`` when the input cannot be read that way
         self.byte_reader: object | None = None
+        #: how to read the same symbols again (``(path, open_source options)``), or ``None`` (standard input,
+        #: streams built in memory); worker processes of one profile read a file themselves from it
+        self.reread: tuple | None = None
 
     def chunks(self) -> Iterator[Chunk]:
         """Iterate over the chunks; :attr:`report` describes the last full pass."""
@@ -231,7 +234,7 @@ class SymbolStream:
             at += n
         codes.resize(at, refcheck=False)
         st = np.concatenate(starts) if starts else np.zeros(0, dtype=np.int64)
-        return SymbolArray(self.alphabet, codes, st, self.name, self.report)
+        return SymbolArray(self.alphabet, codes, st, self.name, self.report, reread=getattr(self, "reread", None))
 
 
 def normalise_starts(starts: np.ndarray, length: int) -> np.ndarray:
@@ -251,6 +254,9 @@ class SymbolArray:
     ----------
     alphabet, codes, starts, name, report:
         ``starts`` holds every segment start (0 included when non-empty).
+    reread:
+        How to read these symbols again (:attr:`SymbolStream.reread`, set by
+        :meth:`SymbolStream.to_array`), or ``None``; a slice or a copy never carries it.
     """
 
     alphabet: Alphabet
@@ -258,6 +264,7 @@ class SymbolArray:
     starts: np.ndarray
     name: str = "stream"
     report: ReadReport = field(default_factory=ReadReport)
+    reread: tuple | None = field(default=None, compare=False, repr=False)
 
     def __post_init__(self) -> None:
         self.codes = np.ascontiguousarray(self.codes, dtype=self.alphabet.code_dtype)

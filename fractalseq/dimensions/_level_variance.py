@@ -338,3 +338,68 @@ def streamed_batch_covariance(
             Sj = (S[:, :, j - j0] + 0.0) / N[:, None]  # 0.0 + x: the whole table's zero start (no -0.0)
             out[j] = B * np.cov(Sj, ddof=1).reshape(L, L)
     return out
+
+
+#: Cells of one level's influence table held at once by :func:`level_batch_sums` beyond
+#: :data:`WHOLE_TABLE_CELLS` (float64: 256 MB); a level with more distinct words is summed a group of q at a time.
+LEVEL_SUMS_CELLS = 1 << 25
+
+
+def level_batch_sums(length: int, batch: int, chunks, counts: np.ndarray, qs: np.ndarray) -> np.ndarray | None:
+    """One level's ``(batches, Q)`` batch sums of its influence values, as :func:`streamed_batch_covariance` adds them.
+
+    Parameters
+    ----------
+    length, batch:
+        Number of positions and batch length (as for :class:`BatchSums`).
+    chunks:
+        ``chunks()`` yields ``(first position, labels)`` in order of position.
+    counts:
+        Occurrences of each label.
+    qs:
+        Orders q.
+
+    Returns ``None`` when there are fewer than 10 batches (no covariance).  Column j holds the sums that
+    :func:`streamed_batch_covariance` adds for this level and ``qs[j]`` (the same influence values, added
+    per batch in order of position from 0.0), so :func:`covariance_from_level_sums` of every level's sums
+    is its result, bit for bit.  A level whose table would exceed :data:`WHOLE_TABLE_CELLS` cells is
+    summed a group of q at a time (at most :data:`LEVEL_SUMS_CELLS` influence values held).
+    """
+    qs = np.asarray(qs, dtype=np.float64)
+    shape = BatchSums(length, 1, 1, batch=batch)
+    b, B, Q = shape.b, shape.B, qs.size
+    if B < 10:
+        return None
+    whole = counts.size * Q <= WHOLE_TABLE_CELLS
+    group = Q if whole else int(max(1, min(Q, LEVEL_SUMS_CELLS // max(int(counts.size), 1))))
+    out = np.zeros((B, Q))
+    for j0 in range(0, Q, group):
+        j1 = min(Q, j0 + group)
+        g = box_influence(counts, qs)[:, j0:j1] if whole else box_influence(counts, qs[j0:j1])
+        g = np.ascontiguousarray(g)
+        dest = np.zeros((B, j1 - j0))
+        for t0, lab in chunks():
+            _batch_sums_at(np.ascontiguousarray(lab), g, b, int(t0), dest)
+        out[:, j0:j1] = dest
+        del g
+    return out
+
+
+def covariance_from_level_sums(sums: list[np.ndarray], totals: np.ndarray) -> np.ndarray:
+    """``(Q, L, L)`` batch-means covariance from every level's :func:`level_batch_sums` (in level order).
+
+    ``totals`` are the levels' occurrence totals (``float(np.sum(counts))``).  The same arithmetic as
+    :func:`streamed_batch_covariance` on the same sums: the same result, bit for bit.
+    """
+    L = len(sums)
+    B, Q = sums[0].shape
+    total = np.asarray(totals, dtype=np.float64)
+    N = np.where(total > 0, total, np.nan)
+    out = np.empty((Q, L, L))
+    S = np.empty((L, B))
+    for j in range(Q):
+        for i in range(L):
+            S[i] = sums[i][:, j]
+        Sj = (S + 0.0) / N[:, None]
+        out[j] = B * np.cov(Sj, ddof=1).reshape(L, L)
+    return out

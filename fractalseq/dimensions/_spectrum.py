@@ -72,7 +72,9 @@ from typing import Sequence
 import numpy as np
 
 from fractalseq.alphabet import Alphabet
-from fractalseq.dimensions._level_variance import BatchSums, streamed_batch_covariance, word_level_variances
+from fractalseq.dimensions._level_variance import (
+    BatchSums, covariance_from_level_sums, streamed_batch_covariance, word_level_variances,
+)
 from fractalseq.dimensions._levels import (
     LevelData, LevelStats, level_stats, level_vector, limits_from, replicate_vectors, spectra_vectors,
 )
@@ -97,7 +99,8 @@ from fractalseq.resampling import _bootstrap as bs
 from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.resampling._plan import block_major_weights
 from fractalseq.resampling._streamed import streamed_replicate_spectra
-from fractalseq.resampling._spectra_tasks import depth_spectra, on_workers
+from fractalseq.dimensions._spectrum_tasks import depth_levels, sums_fit
+from fractalseq.resampling._spectra_tasks import keep_spectra, on_workers
 from fractalseq.runner import Engine
 from fractalseq.resampling._word_labels import WordIndex
 from fractalseq.stream import SymbolArray, SymbolStream
@@ -196,6 +199,7 @@ def _word_level_data(
     auto: bs.BlockLength | None = None,
     variances: bool = True,
     engine: Engine | None = None,
+    ahead: Sequence[int] = (),
 ) -> LevelData:
     depths = np.arange(1, top_depth + 1)
     L = depths.size
@@ -228,16 +232,31 @@ def _word_level_data(
         batches = BatchSums(len(arr), L, qs.size, batch=auto.length) if not streamed else None
         levels = []
         ell = block.length if block is not None else 1
-        mapped: list | None = (  # one task per depth on the engine's workers (the arrays of the loop below)
-            depth_spectra(arr, [int(n) for n in depths], ell, n_boot, seed, engine) if drawn and on_workers(engine) else None
-        )
+        mapped: list | None = None
+        sums: list = []  # the tasks' batch sums, level by level, and the levels' totals
+        totals: list[float] = []
+        fits = False
+        if drawn and on_workers(engine):  # one task per depth on the engine's workers (the arrays of the loop below)
+            fits = sums_fit(len(arr), auto.length, L, qs.size)
+            extra = sorted({int(n) for n in ahead} - {int(n) for n in depths})
+            mapped = depth_levels(arr, [int(n) for n in depths], ell, n_boot, seed, auto.length if fits else None, qs, engine,
+                                  extra=extra)
+            keep_spectra(arr, ell, n_boot, seed, {int(n): mapped[i][:2] for i, n in enumerate([*depths, *extra]) if int(n) in ahead})
         for i, n in enumerate(depths):
             if streamed:
-                index = WordIndex(arr, int(n))
                 if mapped is not None:
-                    (counts, spectra), mapped[i] = mapped[i], None
-                else:
-                    counts, spectra = streamed_replicate_spectra(index, int(n), ell, weights)
+                    (counts, spectra, level_sums), mapped[i] = mapped[i], None
+                    if level_sums is not None:  # labelled once, by the task
+                        sums.append(level_sums)
+                        totals.append(float(np.sum(counts)))
+                    elif not fits:  # too many sums to hold: labelled here for the covariance
+                        levels.append((WordIndex(arr, int(n)).chunks, counts))
+                    if reps is not None and spectra is not None:
+                        reps[:, i] = spectra_vectors(spectra, n_boot, qs, corrected)
+                    del counts, spectra, level_sums
+                    continue
+                index = WordIndex(arr, int(n))
+                counts, spectra = streamed_replicate_spectra(index, int(n), ell, weights)
                 levels.append((index.chunks, counts))
                 if reps is not None and spectra is not None:
                     reps[:, i] = spectra_vectors(spectra, n_boot, qs, corrected)
@@ -251,7 +270,13 @@ def _word_level_data(
                 reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
             del labels, words, counts  # one depth's labels at a time
         weights = plan = None  # the replicates are tallied: release the block weights before the batch sums
-        cov = batches.covariance() if batches is not None else streamed_batch_covariance(len(arr), auto.length, levels, qs)
+        if batches is not None:
+            cov = batches.covariance()
+        elif fits:  # every level's sums from its task (none: fewer than 10 batches, no covariance)
+            cov = covariance_from_level_sums(sums, np.array(totals)) if len(sums) == L else None
+        else:
+            cov = streamed_batch_covariance(len(arr), auto.length, levels, qs)
+        del sums
         del levels
     x = depths * math.log(1.0 / ratio)
     dl, cl = limits_from(distinct, occ, unseen, starve)
@@ -283,6 +308,7 @@ def dimension_spectrum(
     max_depth: int | None = None,
     rates: bool = False,
     engine: Engine | None = None,
+    ahead: Sequence[int] = (),
 ) -> SpectrumResult:
     """Rényi dimensions D_q of a stream's encoding from its word counts.
 
@@ -319,6 +345,11 @@ def dimension_spectrum(
     engine:
         Where the per-depth bootstrap passes run (:mod:`fractalseq.resampling._spectra_tasks`, one
         task per depth); ``None`` or the serial engine: in this process. The result is the same.
+    ahead:
+        Word lengths whose replicate spectra a block bootstrap of the same stream, block length and
+        seed will ask for next (a profile's entropy-rate intervals): on an engine their tasks run
+        beside the spectrum's and the results wait for it
+        (:func:`fractalseq.resampling._spectra_tasks.depth_spectra`).  No effect in process.
 
     Returns
     -------
@@ -401,7 +432,7 @@ def dimension_spectrum(
         auto = block if block is not None and rs.block_length is None and scheme == "nonoverlapping" else None
         ld = _word_level_data(
             wc, arr, qv, k, top, starve, n_boot if arr is not None else 0, seed, block, scheme, corrected, auto,
-            engine=engine,
+            engine=engine, ahead=ahead,
         )
         # limits are computed on the probe (all counted depths) so a user range cannot move them
         ld.data_limit = min(probe.data_limit, top - 1)

@@ -44,6 +44,7 @@ import numpy as np
 from fractalseq.words import _absent as absent_mod
 from fractalseq.resampling import _bootstrap as bs
 from fractalseq.resampling._options import Resampling, as_resampling
+from fractalseq.resampling._spectra_tasks import forget_spectra
 from fractalseq.entropy import _estimators as ent
 from fractalseq.entropy import _lz as lz
 from fractalseq.dimensions import _spectrum as sp
@@ -56,13 +57,13 @@ from fractalseq.jobs._profile_rates import (
 )
 from fractalseq.jobs._profile_result import RATE_NAMES, ProfileResult, ScalingCurve
 from fractalseq.jobs._profile_tasks import (
-    Background, _consistency, _predictor_code_length, consistency_task, predictor_task, words_counter,
+    Background, ParentSteps, _consistency, _predictor_code_length, consistency_task, predictor_task, words_counter,
 )
 from fractalseq.report.profile_json import CAUTION_GENERAL, CAUTION_GENOMIC, FORMAT, VERSION, contract, profile_caution
 from fractalseq.runner import Engine
 from fractalseq.stream import SymbolArray, SymbolStream
 from fractalseq.words._counts import WordCounts, check_depth, count_words
-from fractalseq.words._pieces import stream_for_workers
+from fractalseq.words._worker_stream import stream_for_workers
 
 __all__ = [
     "CAUTION_GENERAL", "CAUTION_GENOMIC", "CONSISTENCY_MAX_LENGTH", "DEFAULT_BOOT", "FORMAT", "IMAGE_MAX_LENGTH",
@@ -341,16 +342,24 @@ def _block_entropies(arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...
     return _Entropies(rows, rate_est, renyi, topo, kos)
 
 
+def _rate_depths(rate_est: dict[str, ent.EntropyEstimate], rs: Resampling, length: int) -> tuple[int, ...]:
+    """The word lengths :func:`_rate_intervals` bootstraps (none without a bootstrap)."""
+    n_rate = rate_est["grassberger"].depth or 0
+    if rs.n_boot > 0 and length >= 2 * (n_rate + 2):
+        return (n_rate, n_rate + 1) if n_rate >= 1 else (1,)
+    return ()
+
+
 def _dimensions(
     arr: SymbolArray, wc: WordCounts, user_qs: tuple[float, ...], k: float, rs: Resampling, notes: list[str],
-    engine: Engine | None = None,
+    engine: Engine | None = None, ahead: tuple[int, ...] = (),
 ) -> tuple[sp.SpectrumResult, tuple[ScalingCurve, ...]]:
     """Step 3: D_q and f(alpha) (user's orders plus a grid for the f(alpha) curve) and the scaling curves.
 
     The conditional Rényi rates of the consistency table come from the same bootstrap pass.
     """
     all_qs = tuple(sorted(set(user_qs) | set(FALPHA_QS)))
-    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, resampling=rs, falpha=True, rates=True, engine=engine)
+    spec = sp.dimension_spectrum(arr, all_qs, ratio=k, resampling=rs, falpha=True, rates=True, engine=engine, ahead=ahead)
     notes.extend(f"dimensions: {f}" for f in spec.flags)
     wc_spec = None
     if spec.route == "word counts":
@@ -369,8 +378,7 @@ def _rate_intervals(
     """
     n_rate = rate_est["grassberger"].depth or 0
     n_boot, level = rs.n_boot, rs.level
-    if n_boot > 0 and len(arr) >= 2 * (n_rate + 2):
-        depths = (n_rate, n_rate + 1) if n_rate >= 1 else (1,)
+    if depths := _rate_depths(rate_est, rs, len(arr)):
 
         def stat(tables: dict[int, np.ndarray]) -> list[float]:
             c0 = tables[n_rate] if n_rate >= 1 else None
@@ -402,22 +410,16 @@ def _rate_intervals(
 
 
 def _rate_bounds(
-    arr: SymbolArray, rates: dict[str, tuple[str, ent.EntropyEstimate]], lz_max_length: int | None,
-    compress_max_length: int | None, clock: _Clock, notes: list[str], compressors: bool = True,
-    background: Background | None = None,
+    arr: SymbolArray, rates: dict[str, tuple[str, ent.EntropyEstimate]], clock: _Clock, notes: list[str],
+    steps: ParentSteps, background: Background | None = None,
 ) -> None:
     """Step 6: Lempel-Ziv, the compressor bound and the online predictor (or ``background``'s), added to ``rates``."""
     clock.step("Lempel-Ziv")
-    try:
-        rates["lz76"] = ("estimate", lz.h_lz76(arr, max_length=lz_max_length))
-    except FractalseqError as exc:
-        notes.append(f"LZ76: not computed ({exc})")
+    if (est := steps.take("Lempel-Ziv", notes)) is not None:
+        rates["lz76"] = ("estimate", est)
     clock.step("compressors")
-    try:
-        if compressors:
-            rates["compressors"] = ("upper bound", ent.h_compressors(arr, max_length=compress_max_length))
-    except FractalseqError as exc:
-        notes.append(f"compressor bound: not computed ({exc})")
+    if (est := steps.take("compressors", notes)) is not None:
+        rates["compressors"] = ("upper bound", est)
     clock.step("online predictor")
     done = background.take("online predictor") if background is not None else None
     try:
@@ -428,6 +430,32 @@ def _rate_bounds(
         rates["online_predictor"] = ("upper bound", est)
     else:
         notes.append(f"online predictor: not computed ({why})")
+
+
+def _parent_steps(
+    arr: SymbolArray, wc: WordCounts, k: float, L: int, quick: bool, rs: Resampling, lz_max_length: int | None,
+    compress_max_length: int | None, absent_list: int, image: bool, image_max_length: int | None,
+) -> ParentSteps:
+    """Steps 6 to 9 that stay in this process (each a function of a notes list; the predictor is a task)."""
+
+    def lz76(ns: list[str]):
+        try:
+            return lz.h_lz76(arr, max_length=lz_max_length)
+        except FractalseqError as exc:
+            ns.append(f"LZ76: not computed ({exc})")
+
+    def compressors(ns: list[str]):
+        try:
+            return None if quick else ent.h_compressors(arr, max_length=compress_max_length)
+        except FractalseqError as exc:
+            ns.append(f"compressor bound: not computed ({exc})")
+
+    return ParentSteps({
+        "Lempel-Ziv": lz76, "compressors": compressors,
+        "absent words": lambda ns: _absent_words(wc, L, absent_list, ns),
+        "encoding image": lambda ns: _encoding_image(arr, k, image, image_max_length),
+        "permutation entropy": lambda ns: safe_ordinal_entropy(arr, ordinal_order(arr), rs.n_boot, rs.seed, rs.level, ns),
+    })
 
 
 def _absent_words(wc: WordCounts, length: int, absent_list: int, notes: list[str]) -> absent_mod.WordReport | None:
@@ -555,6 +583,7 @@ def profile_source(
                         consistency_max_length, image_max_length, clock, notes, ov, engine, piece, background)
     finally:
         background.cancel()
+        forget_spectra()
 
 
 def _measure(arr, N, settings, rs, offsets, lz_max_length, compress_max_length, absent_list, image,
@@ -564,19 +593,28 @@ def _measure(arr, N, settings, rs, offsets, lz_max_length, compress_max_length, 
     n_boot, seed, level, L = rs.n_boot, rs.seed, rs.level, len(arr)
     clock.step("counting words")  # 1. words, counted once
     counter = words_counter(engine, piece)
-    wc = counter(arr, N)
-    if depth is None:  # a source with memory supports longer words than the fixed rule counts
-        wc = deepen_counts(arr, wc, MAX_AUTO_DEPTH, counter)
-        N = wc.depth
-    if background.engine is not None:  # steps that need nothing from the others start on the workers now
+
+    def start_background() -> None:  # steps that need nothing from the others, on the workers
         shipped = stream_for_workers(arr)
         background.start("online predictor", predictor_task, shipped)
         if not quick and consistency_max_length is not None and L > max(consistency_max_length, sp.TRANSIENT + 10):
             background.start("consistency table", consistency_task, (shipped, user_qs, k, rs, offsets, consistency_max_length))
+
+    if background.engine is not None and piece is None:  # first, beside the counts made here
+        start_background()
+    wc = counter(arr, N)
+    if depth is None:  # a source with memory supports longer words than the fixed rule counts
+        wc = deepen_counts(arr, wc, MAX_AUTO_DEPTH, counter)
+        N = wc.depth
+    if background.engine is not None and piece is not None:  # after the pieces' counts (not queued before them)
+        start_background()
     clock.step("block entropies")  # 2. block entropies and rate estimates
     found = _block_entropies(arr, wc, user_qs, notes)
+    steps = _parent_steps(arr, wc, k, L, quick, rs, lz_max_length, compress_max_length, absent_list, image, image_max_length)
+    if background.engine is not None:  # made while the workers run; taken, notes and all, at their places below
+        steps.run_all()
     clock.step("dimensions")  # 3. dimensions, f(alpha) and the scaling data
-    spec, scaling = _dimensions(arr, wc, user_qs, k, rs, notes, engine)
+    spec, scaling = _dimensions(arr, wc, user_qs, k, rs, notes, engine, ahead=_rate_depths(found.rates, rs, L))
     clock.step("entropy-rate intervals")  # 4. one block length for every interval (the spectrum's)
     rate_block = _rate_intervals(arr, found.rates, rs, spec.block, notes, engine)
     rates: dict[str, tuple[str, ent.EntropyEstimate]] = {m: ("estimate", found.rates[m]) for m in ent.METHODS}
@@ -589,15 +627,14 @@ def _measure(arr, N, settings, rs, offsets, lz_max_length, compress_max_length, 
         notes.extend(done[1])
     else:
         consistency = _consistency(arr, spec, user_qs, k, rs, offsets, notes, consistency_max_length)
-    _rate_bounds(arr, rates, lz_max_length, None if quick else compress_max_length, clock, notes, compressors=not quick,
-                 background=background)  # 6. LZ76, compressors, predictor
+    _rate_bounds(arr, rates, clock, notes, steps, background=background)  # 6. LZ76, compressors, predictor
     clock.step("absent words")  # 7. absent words
-    absent = _absent_words(wc, L, absent_list, notes)
+    absent = steps.take("absent words", notes)
     clock.step("encoding image")  # 8. encoding image
-    img, levels_img = _encoding_image(arr, k, image, image_max_length)
+    img, levels_img = steps.take("encoding image", notes)
     clock.step("permutation entropy")  # 9. ordinal patterns: permutation entropy
     order = ordinal_order(arr)
-    permutation = safe_ordinal_entropy(arr, order, n_boot, seed, level, notes)
+    permutation = steps.take("permutation entropy", notes)
     clock.step("")
 
     choice = choose_rate(rates, arr.alphabet.size, order, RATE_NAMES)  # every rate held to the bounds it has

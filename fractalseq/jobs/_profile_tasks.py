@@ -7,9 +7,13 @@ A profile of one large source on an engine runs:
   one-pass count exactly; without one they are counted in the parent, on two threads);
 * the bootstrap pass of every depth as one task each (dimensions and entropy-rate intervals,
   :mod:`fractalseq.resampling._spectra_tasks`);
-* two steps that need nothing from the others, started on the workers as soon as the counts are
-  in and collected when the serial order reaches them: the online predictor's code length and,
-  beyond ``consistency_max_length`` symbols, the consistency table of the prefix.
+* two steps that need nothing from the others, started on the workers before anything else (they
+  run beside the parent's counts, block entropies and block-length choice) and collected when the
+  serial order reaches them: the online predictor's code length and, beyond
+  ``consistency_max_length`` symbols, the consistency table of the prefix.
+
+Every task gets the stream from :func:`fractalseq.words._worker_stream.stream_for_workers`: a
+stream read from a file is read there by each worker process once, any other is shipped.
 
 Every task is a module-level pure function of its arguments (the seed included) and the parent
 takes each result at the place where the in-process profile computes it, notes included, so the
@@ -33,8 +37,9 @@ from fractalseq.resampling._spectra_tasks import on_workers
 from fractalseq.runner import Engine
 from fractalseq.stream import SymbolArray
 from fractalseq.words._counts import WordCounts, count_words
+from fractalseq.words._worker_stream import StreamFile, worker_stream
 
-__all__ = ["Background", "predictor_task", "consistency_task", "words_counter"]
+__all__ = ["Background", "ParentSteps", "predictor_task", "consistency_task", "words_counter"]
 
 
 def words_counter(engine: Engine | None, piece: int | None) -> Callable[[SymbolArray, int], WordCounts]:
@@ -77,19 +82,19 @@ def _predictor_code_length(arr: SymbolArray):
     )
 
 
-def predictor_task(arr: SymbolArray) -> tuple[Any, str | None]:
+def predictor_task(arr: SymbolArray | StreamFile) -> tuple[Any, str | None]:
     """The online predictor's code length (an ``EntropyEstimate``), or ``None`` and why not."""
     try:
-        return _predictor_code_length(arr), None
+        return _predictor_code_length(worker_stream(arr)), None
     except FractalseqError as exc:
         return None, str(exc)
 
 
-def consistency_task(task: tuple[SymbolArray, tuple[float, ...], float, Resampling, int, int]) -> tuple[Any, list[str]]:
+def consistency_task(task: tuple[SymbolArray | StreamFile, tuple[float, ...], float, Resampling, int, int]) -> tuple[Any, list[str]]:
     """The consistency table of a stream longer than ``max_length`` (measured on its prefix) and its notes."""
-    arr, qs, k, rs, offsets, max_length = task
+    item, qs, k, rs, offsets, max_length = task
     notes: list[str] = []
-    return _consistency(arr, None, qs, k, rs, offsets, notes, max_length), notes
+    return _consistency(worker_stream(item), None, qs, k, rs, offsets, notes, max_length), notes
 
 
 def _consistency(
@@ -164,3 +169,28 @@ class Background:
         if self.engine is not None and self._futures:
             self.engine.cancel(list(self._futures.values()))
         self._futures.clear()
+
+
+class ParentSteps:
+    """Steps that stay in the parent, each ``step(notes) -> result``: run where the serial order puts them,
+    or all at once earlier (:meth:`run_all`, while an engine's workers run the long tasks) and then taken
+    at their places, with the notes each wrote, so the notes keep their order.
+    """
+
+    def __init__(self, steps: dict[str, Callable[[list[str]], Any]]) -> None:
+        self._steps = dict(steps)
+        self._done: dict[str, tuple[Any, list[str]]] = {}
+
+    def run_all(self) -> None:
+        """Run every step now, keeping each result and its notes."""
+        for name, step in self._steps.items():
+            notes: list[str] = []
+            self._done[name] = (step(notes), notes)
+
+    def take(self, name: str, notes: list[str]) -> Any:
+        """The result of step ``name`` (run now unless :meth:`run_all` ran it), its notes added to ``notes``."""
+        if name in self._done:
+            result, own = self._done.pop(name)
+            notes.extend(own)
+            return result
+        return self._steps[name](notes)

@@ -4,14 +4,17 @@ The replicate spectra of one depth (:func:`fractalseq.resampling._streamed.strea
 are the heaviest pass of a profile.  They do not split by position: a word's replicate count is
 ``sum_b w_b * count_b`` over *every* block that holds it, and a spectrum counts words by that total,
 so two halves of a stream have no spectra that add.  Depths are independent, though, so each depth
-is one task: a worker gets the stream (:func:`fractalseq.words._pieces.stream_for_workers`), draws the
-block weights from the seed (the same draws as the parent's, :func:`block_major_weights`, kept for
-the worker's next depth) and returns the depth's occurrences and spectra.  The parent takes the
-results in depth order, so every engine gives the arrays of the in-process loop, integer for integer.
+is one task: a worker gets the stream (:func:`fractalseq.words._worker_stream.stream_for_workers`: read
+from its file once per worker process, or shipped), draws the block weights from the seed (the same
+draws as the parent's, :func:`block_major_weights`, kept for the worker's next depth) and returns the
+depth's occurrences and spectra.  The deepest depths (the most distinct words, the longest tasks) are
+submitted first, so the last tasks to finish are short ones; the parent takes the results in depth
+order, so every engine gives the arrays of the in-process loop, integer for integer.
 """
 
 from __future__ import annotations
 
+import weakref
 from typing import Sequence
 
 import numpy as np
@@ -22,6 +25,7 @@ from fractalseq.resampling._streamed import streamed_replicate_spectra
 from fractalseq.resampling._word_labels import WordIndex
 from fractalseq.runner import Engine, SerialEngine
 from fractalseq.stream import SymbolArray
+from fractalseq.words._worker_stream import StreamFile, stream_for_workers, worker_stream
 
 #: The block weights a process drew last, by ``(length, block length, replicates, seed)`` (one entry).
 _WEIGHTS: dict[tuple[int, int, int, int], np.ndarray] = {}
@@ -32,7 +36,8 @@ def on_workers(engine: Engine | None) -> bool:
     return engine is not None and not isinstance(engine, SerialEngine)
 
 
-def _weights(length: int, block_length: int, n_boot: int, seed: int) -> np.ndarray | None:
+def worker_weights(length: int, block_length: int, n_boot: int, seed: int) -> np.ndarray | None:
+    """:func:`block_major_weights` of a worker, kept for its next depth (``None`` without replicates)."""
     if not n_boot:
         return None
     key = (int(length), int(block_length), int(n_boot), int(seed))
@@ -43,15 +48,41 @@ def _weights(length: int, block_length: int, n_boot: int, seed: int) -> np.ndarr
     return wt
 
 
-def depth_spectra_task(task: tuple[SymbolArray, int, int, int, int]) -> tuple[np.ndarray, ReplicateSpectra | None]:
+#: Occurrences and spectra made ahead for the next :func:`depth_spectra` of one stream: the stream (a weak
+#: reference), ``(block length, replicates, seed)`` and the results by depth.
+_KEPT: list = [None, None, {}]
+
+
+def keep_spectra(arr: SymbolArray, block_length: int, n_boot: int, seed: int, results: dict[int, tuple]) -> None:
+    """Hold ``results`` (depth -> ``(occurrences, spectra)``, as :func:`depth_spectra_task` gives them) for the next
+    :func:`depth_spectra` of ``arr`` with the same blocks and seed (anything held before is dropped)."""
+    _KEPT[:] = [weakref.ref(arr), (int(block_length), int(n_boot), int(seed)), dict(results)] if results else [None, None, {}]
+
+
+def forget_spectra() -> None:
+    """Drop what :func:`keep_spectra` holds (the end of a job, or an error)."""
+    _KEPT[:] = [None, None, {}]
+
+
+def deepest_first(engine: Engine, func, tasks: list, depths: Sequence[int]) -> list:
+    """``engine.map(func, tasks)`` with the tasks of the deepest ``depths`` submitted first; results in task order."""
+    order = sorted(range(len(tasks)), key=lambda i: (-int(depths[i]), i))
+    out: list = [None] * len(tasks)
+    for i, res in zip(order, engine.map(func, [tasks[i] for i in order])):
+        out[i] = res
+    return out
+
+
+def depth_spectra_task(task: tuple[SymbolArray | StreamFile, int, int, int, int]) -> tuple[np.ndarray, ReplicateSpectra | None]:
     """One depth's occurrences and replicate spectra (a map task; pure function of its arguments).
 
-    ``task`` is ``(stream, depth, block_length, n_boot, seed)``; the result equals
+    ``task`` is ``(stream, depth, block_length, n_boot, seed)`` (the stream as :func:`stream_for_workers` gives it); the result equals
     ``streamed_replicate_spectra(WordIndex(stream, depth), depth, block_length,
     block_major_weights(len(stream), block_length, n_boot, seed))``.
     """
-    arr, depth, block_length, n_boot, seed = task
-    wt = _weights(len(arr), block_length, n_boot, seed)
+    item, depth, block_length, n_boot, seed = task
+    arr = worker_stream(item)
+    wt = worker_weights(len(arr), block_length, n_boot, seed)
     return streamed_replicate_spectra(WordIndex(arr, int(depth)), int(depth), int(block_length), wt)
 
 
@@ -72,9 +103,20 @@ def depth_spectra(
         Replicates and seed of the block weights (0 replicates: occurrences only).
     engine:
         Where the tasks run.
-    """
-    from fractalseq.words._pieces import stream_for_workers
 
-    shipped = stream_for_workers(arr)
-    tasks = [(shipped, int(n), int(block_length), int(n_boot), int(seed)) for n in depths]
-    return engine.map(depth_spectra_task, tasks)
+    Depths made ahead for this stream, blocks and seed (:func:`keep_spectra`) are taken from there
+    (the same arrays a task would give) and not run again.
+    """
+    ref, key, kept = _KEPT
+    held = kept if ref is not None and ref() is arr and key == (int(block_length), int(n_boot), int(seed)) else {}
+    todo = [int(n) for n in depths if int(n) not in held]
+    done: list = []
+    if todo:
+        shipped = stream_for_workers(arr)
+        tasks = [(shipped, n, int(block_length), int(n_boot), int(seed)) for n in todo]
+        done = deepest_first(engine, depth_spectra_task, tasks, todo)
+    made = dict(zip(todo, done))
+    out = [held.pop(int(n)) if int(n) in held else made[int(n)] for n in depths]
+    if not held:
+        forget_spectra()
+    return out

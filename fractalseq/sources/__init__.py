@@ -39,6 +39,8 @@ symbol at all) are raised while the stream is iterated.  All are
 
 from __future__ import annotations
 
+import functools
+import inspect
 import os
 from typing import Iterator, Sequence
 
@@ -117,6 +119,26 @@ def detect_format(path: str | os.PathLike, alphabet: str | Alphabet | None = "dn
     return _prepare(path, "auto", a, allow, _follows(alphabet))[1]
 
 
+def _remember_how(opener):
+    """Decorate :func:`open_source` so a stream read from a regular file knows how to be read again
+    (:attr:`SymbolStream.reread <fractalseq.stream.SymbolStream>`: the absolute path and every option)."""
+    signature = inspect.signature(opener)
+
+    @functools.wraps(opener)
+    def opened(*args, **kwargs) -> SymbolStream:
+        stream = opener(*args, **kwargs)
+        bound = signature.bind(*args, **kwargs)
+        bound.apply_defaults()
+        options = dict(bound.arguments)
+        path = options.pop("path")
+        if str(path) != "-" and os.path.isfile(path):
+            stream.reread = (os.path.abspath(os.fspath(path)), options)
+        return stream
+
+    return opened
+
+
+@_remember_how
 def open_source(
     path: str | os.PathLike,
     fmt: str = "auto",
@@ -178,7 +200,9 @@ def open_source(
         Re-iterable; its :attr:`~fractalseq.stream.SymbolStream.report`
         describes the last complete pass (symbols, segments, dropped counts
         by reason, records, notes, and ``extra`` such as the log template
-        table).
+        table).  For a regular file, :attr:`~fractalseq.stream.SymbolStream.reread`
+        holds the absolute path and these options (worker processes read the
+        file again from it; :mod:`fractalseq.words._worker_stream`).
 
     Raises
     ------

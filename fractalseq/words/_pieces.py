@@ -26,6 +26,7 @@ from fractalseq.runner import Engine, OnDone, SerialEngine, pause_point
 from fractalseq.sources.ranges import ByteRange, RangePart, RangeScan, plan_ranges, range_report
 from fractalseq.stream import Chunk, SymbolArray, SymbolStream
 from fractalseq.words._counts import DENSE_MAX_BITS, WordCounter, WordCounts, check_depth, count_words
+from fractalseq.words._worker_stream import stream_for_workers  # noqa: F401  (its former home)
 
 #: Default piece size for splitting one large source (symbols).
 DEFAULT_PIECE = 1 << 24
@@ -112,16 +113,6 @@ def iter_pieces(source: SymbolStream | SymbolArray, chunk: int, overlap: int) ->
         allst = np.concatenate(bstarts) if bstarts else np.zeros(0, np.int64)
         rel = allst - offset
         yield Piece(alphabet, buf.copy(), rel[(rel >= 0) & (rel < buf.size)], int(buf.size), offset, True, index)
-
-
-def stream_for_workers(arr: SymbolArray) -> SymbolArray:
-    """The in-memory stream as map tasks get it: codes, segment starts, alphabet and name.
-
-    The one place where a whole stream is handed to workers (shipped with each task); the reader's
-    report (which may list millions of records) stays in the parent, and no task result depends
-    on it.
-    """
-    return SymbolArray(arr.alphabet, arr.codes, arr.starts, arr.name)
 
 
 #: Pieces counted in this process (the pause point ``count.piece:N`` counts them).
