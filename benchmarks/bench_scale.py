@@ -361,8 +361,8 @@ def gigabase(work: Path, measured: Path | None, notes: dict[str, str]) -> int:
         cpu = f"{r['cpu_seconds']:.1f} s" if r["cpu_seconds"] is not None else "-"
         per = f"{r['cpu_seconds_per_mbase']:.2f}" if r["cpu_seconds_per_mbase"] is not None else "-"
         lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {mem} | {r['bytes_per_symbol'] or '-'} | {cpu} | {per} | {rate} | {r['note']} |")
-    lines += ["", f"Machine: {data['machine']}. CPU time is user + system of the whole process (`/usr/bin/time -v`, "
-              "`nice -n 10`); `learn` is not run at 1 Gbase (about 28 bytes per symbol).", ""]
+    lines += ["", f"Machine: {data['machine']}. CPU time is user + system of the whole process (`/usr/bin/time -v`); "
+              "`learn` is not run at 1 Gbase (about 28 bytes per symbol).", ""]
     write_results("scale_gigabase", data, "\n".join(lines))
     print("\n".join(lines))
     return 0

@@ -335,8 +335,12 @@ def streamed_batch_covariance(
             for t0, lab in chunks():
                 _batch_sums_at(np.ascontiguousarray(lab), g, b, int(t0), S[i])
         for j in range(j0, j1):
-            Sj = (S[:, :, j - j0] + 0.0) / N[:, None]  # 0.0 + x: the whole table's zero start (no -0.0)
-            out[j] = B * np.cov(Sj, ddof=1).reshape(L, L)
+            # one q's (L, B) shares, in place when S holds that q alone (no copies of a length-sized table)
+            Sj = S[:, :, 0] if j1 - j0 == 1 else np.ascontiguousarray(S[:, :, j - j0])
+            Sj += 0.0  # the whole table's zero start (no -0.0)
+            Sj /= N[:, None]
+            out[j] = B * _cov_rows_in_place(Sj).reshape(L, L)
+        del S
     return out
 
 
@@ -403,3 +407,17 @@ def covariance_from_level_sums(sums: list[np.ndarray], totals: np.ndarray) -> np
         Sj = (S + 0.0) / N[:, None]
         out[j] = B * np.cov(Sj, ddof=1).reshape(L, L)
     return out
+
+
+def _cov_rows_in_place(X: np.ndarray) -> np.ndarray:
+    """``numpy.cov(X, ddof=1)`` of the rows of a float64 ``X``, the same operations in the same order
+    (numpy 2's ``cov``: row means by ``numpy.average``, centring in place, ``dot(X, X.T)``, times
+    ``1 / (columns - 1)``), but centring ``X`` itself instead of a copy (``X`` is overwritten)."""
+    avg = np.average(X, axis=1)
+    fact = X.shape[1] - 1
+    if fact <= 0:
+        return np.cov(X, ddof=1)  # numpy's own warning and result for too few columns
+    X -= avg[:, None]
+    c = np.dot(X, X.T.conj())
+    c *= np.true_divide(1, fact)
+    return c.squeeze()

@@ -200,7 +200,10 @@ def _word_level_data(
     variances: bool = True,
     engine: Engine | None = None,
     ahead: Sequence[int] = (),
+    release: bool = False,
 ) -> LevelData:
+    """The levels' statistics; ``release``: ``wc`` is this call's own, discarded once read (before the passes
+    over ``arr``, so its leaf table is not held beside the block weights and the batch sums)."""
     depths = np.arange(1, top_depth + 1)
     L = depths.size
     K = 3 * qs.size + 3
@@ -213,6 +216,16 @@ def _word_level_data(
         st = level_stats(sp.value, sp.multiplicity, qs, corrected)
         est[i] = st.vector()
         distinct[i], occ[i], unseen[i] = st.distinct, st.total, st.unseen
+    if release and L < wc.depth:  # the levels read, exactly (a small table): the deep leaves go now
+        own, wc = wc, wc.truncate(L)
+        own.discard()
+        del own
+    if variances:
+        var, dvar = word_level_variances(wc, L, qs)
+    else:  # a probe of the limits: its variances are never read (the deep levels' are the costly ones)
+        var, dvar = np.full((L, qs.size), np.nan), np.full((max(L - 1, 0), qs.size), np.nan)
+    if release:
+        wc.discard()
     reps = None
     cov = None
     if arr is not None:
@@ -280,10 +293,6 @@ def _word_level_data(
         del levels
     x = depths * math.log(1.0 / ratio)
     dl, cl = limits_from(distinct, occ, unseen, starve)
-    if variances:
-        var, dvar = word_level_variances(wc, L, qs)
-    else:  # a probe of the limits: its variances are never read (the deep levels' are the costly ones)
-        var, dvar = np.full((L, qs.size), np.nan), np.full((max(L - 1, 0), qs.size), np.nan)
     return LevelData(x, ratio ** depths.astype(float), est, reps, distinct, occ, unseen, dl, cl, var, dvar, cov, starve=starve)
 
 
@@ -432,7 +441,7 @@ def dimension_spectrum(
         auto = block if block is not None and rs.block_length is None and scheme == "nonoverlapping" else None
         ld = _word_level_data(
             wc, arr, qv, k, top, starve, n_boot if arr is not None else 0, seed, block, scheme, corrected, auto,
-            engine=engine, ahead=ahead,
+            engine=engine, ahead=ahead, release=wc0 is None,
         )
         # limits are computed on the probe (all counted depths) so a user range cannot move them
         ld.data_limit = min(probe.data_limit, top - 1)

@@ -27,6 +27,7 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from fractalseq.words import _kernels as kernels
+from fractalseq.words._part_tally import parts_for, tally_in_parts
 from fractalseq.words._threaded_runs import sorted_runs_threaded as _sorted_runs_threaded
 from fractalseq.alphabet import Alphabet
 from fractalseq.errors import FractalseqError, InputError, ModelFileError, ParameterError
@@ -613,6 +614,26 @@ class WordCounter:
         return wc
 
 
+def _count_in_parts(source: SymbolArray, depth: int, dense: bool | None, compact: bool) -> WordCounts | None:
+    """Sparse counts of a long in-memory stream by the parted direct table (:mod:`fractalseq.words._part_tally`),
+    equal to :class:`WordCounter`'s; ``None`` when the sorted runs suit it better (short stream, deep words)."""
+    alphabet, T = source.alphabet, len(source)
+    depth, bits = check_depth(alphabet, depth), alphabet.bits
+    sparse = bits * depth > DENSE_MAX_BITS if dense is None else not dense
+    if not sparse or T < ARRAY_PIECE or not parts_for(T, bits, depth):
+        return None
+    st = np.asarray(source.starts, dtype=np.int64)
+    inside = np.unique(st[(st >= 0) & (st < T)])
+    starts = np.unique(np.concatenate([[0], inside])).astype(np.int64)
+    codes = np.ascontiguousarray(source.codes, dtype=alphabet.code_dtype)
+    key_dtype = _key_dtype(bits, depth)
+    lw, lc = tally_in_parts(codes, starts, depth, bits, key_dtype, np.dtype(np.uint32 if compact and T <= U32_MAX else np.int64))
+    _, tl, ta, _ = kernels.full_words(codes, starts, depth, bits, True, np.zeros(0, key_dtype), False)
+    tl, ta, tc = _reduce_tails([tl], [ta], [np.ones(tl.size, np.int64)])
+    segments = int(inside.size) + (0 if inside.size and inside[0] == 0 else 1)
+    return WordCounts(alphabet, depth, T, segments, None, lw, lc, tl, ta, tc)
+
+
 #: A :class:`SymbolArray` is counted in pieces of this many symbols (the same counts as one piece).
 ARRAY_PIECE = 1 << 22
 
@@ -646,6 +667,9 @@ def count_words(
     WordCounts
     """
     if isinstance(source, SymbolArray):  # in pieces of ARRAY_PIECE symbols: temporaries of one piece
+        parted = _count_in_parts(source, depth, dense, compact)
+        if parted is not None:
+            return parted
         counter = WordCounter(source.alphabet, depth, parallel=parallel, dense=dense, compact=compact)
         T, st = len(source), source.starts
         for a in range(0, max(T, 1), ARRAY_PIECE):
