@@ -218,7 +218,9 @@ def evaluate_pieces(
     w = int(window or DEFAULT_WINDOW)
     order = int(model.baseline_order_) if want_markov else -1
     ov = max(max(model.depths_, default=0), order, 1)
-    if model_path is not None and engine.name == "processes":  # local workers read the same file; Dask workers get the model
+    # workers (local processes or a Dask cluster, which shares the input paths anyway) read the model file once
+    # instead of receiving its tables with every piece; in this process the model itself is used
+    if model_path is not None and engine.name != "serial":
         handle = ModelHandle(str(model_path), file_key(model_path), kind=type(model))
     else:
         handle = ModelHandle(None, None, model)
