@@ -405,7 +405,7 @@ def covariance_from_level_sums(sums: list[np.ndarray], totals: np.ndarray) -> np
         for i in range(L):
             S[i] = sums[i][:, j]
         Sj = (S + 0.0) / N[:, None]
-        out[j] = B * np.cov(Sj, ddof=1).reshape(L, L)
+        out[j] = B * _cov_rows_in_place(Sj).reshape(L, L)  # Sj is this loop's own array
     return out
 
 
