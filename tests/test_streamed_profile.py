@@ -42,13 +42,13 @@ def _markov_stream(T: int, seed: int, starts=(0,)) -> SymbolArray:
     return SymbolArray(al.dna(), codes, np.array(sorted(set(starts) | {0}), dtype=np.int64))
 
 
-@settings(max_examples=40, deadline=None)
+@settings(max_examples=80, deadline=None)
 @given(
     data=st.data(),
     T=st.integers(30, 3000),
     n=st.sampled_from([1, 2, 3, 6, 13]),
     chunk=st.integers(1, 700),
-    ell=st.integers(1, 60),
+    ell=st.one_of(st.integers(1, 60), st.integers(250, 300)),  # pair counts stored as uint8, then uint16
     budget=st.integers(1, 5000),
 )
 def test_streamed_spectra_equal_whole_tables(data, T, n, chunk, ell, budget):
@@ -65,14 +65,30 @@ def test_streamed_spectra_equal_whole_tables(data, T, n, chunk, ell, budget):
     wt = _plan.block_major_weights(T, ell, 7, seed=3, piece=data.draw(st.integers(1, 9000)))
     assert np.array_equal(wt, W.T) and wt.dtype == np.uint8  # weights here stay far below 256
     ref = rp.replicate_spectra(rp.item_tables(labels, n, ell, words.size), W)
-    occ, spec = sr.streamed_replicate_spectra(index, n, ell, wt, budget=budget)
-    assert np.array_equal(occ, np.bincount(labels[labels >= 0], minlength=words.size))
-    assert np.array_equal(spec.dense, ref.dense)
-    assert np.array_equal(spec.big, ref.big)
-    # the kernels are generic over the table's integer type: a wider table gives the same spectra
-    wide = data.draw(st.sampled_from([np.uint16, np.int32]))
-    _, spec_w = sr.streamed_replicate_spectra(index, n, ell, wt.astype(wide), budget=budget)
-    assert np.array_equal(spec_w.dense, spec.dense) and np.array_equal(spec_w.big, spec.big)
+    # both routes: item-major rows in ranges of items, and every item's replicate counts in one pass
+    direct = data.draw(st.booleans())
+    old = sr.DIRECT_CELLS
+    sr.DIRECT_CELLS = old if direct else -1
+    try:
+        occ, spec = sr.streamed_replicate_spectra(index, n, ell, wt, budget=budget)
+        assert np.array_equal(occ, np.bincount(labels[labels >= 0], minlength=words.size))
+        assert np.array_equal(spec.dense, ref.dense)
+        assert np.array_equal(spec.big, ref.big)
+        # the kernels are generic over the table's integer type: a wider table gives the same spectra
+        wide = data.draw(st.sampled_from([np.uint16, np.int32]))
+        _, spec_w = sr.streamed_replicate_spectra(index, n, ell, wt.astype(wide), budget=budget)
+        assert np.array_equal(spec_w.dense, spec.dense) and np.array_equal(spec_w.big, spec.big)
+    finally:
+        sr.DIRECT_CELLS = old
+
+
+def test_pair_budget_grows_with_the_length_between_bounds():
+    assert sr.default_budget(0) == sr.ITEM_BUDGET
+    assert sr.default_budget(sr.ITEM_BUDGET_MAX * sr.POSITIONS_PER_PAIR * 4) == sr.ITEM_BUDGET_MAX
+    mid = (sr.ITEM_BUDGET + 12_345) * sr.POSITIONS_PER_PAIR
+    assert sr.default_budget(mid) == sr.ITEM_BUDGET + 12_345
+    # a count in a block never exceeds the block length, so it fits the narrowest type holding that length
+    assert [np.dtype(sr.count_type(e)) for e in (1, 255, 256, 65_535, 65_536)] == [np.uint8, np.uint8, np.uint16, np.uint16, np.int32]
 
 
 @settings(max_examples=40, deadline=None)

@@ -1,0 +1,233 @@
+"""The passes of the streamed replicate spectra, read straight from the symbol codes.
+
+:func:`fractalseq.resampling._streamed.streamed_replicate_spectra` reads the stream once to size
+the item-major block tables and once per range of items to fill them.  Labelling a chunk through
+:meth:`fractalseq.resampling._word_labels.WordIndex.labels` writes an address, a validity flag and
+a label per position and reads them back, and a range pass needs only the positions whose word
+lies in that range.  The kernels here roll each word's address over the codes themselves (the
+loop of :func:`fractalseq.words._kernels._segment_words`: restart at every segment start, a word
+once ``depth`` symbols of its segment are read) and label a word only when it is needed, so a
+range pass costs about one read of the codes.
+
+Labels are the ranks of the words in the sorted union table (a dense rank table of every address,
+or a binary search of the sorted distinct words), so the items ``lo..hi-1`` are exactly the words
+with addresses ``words[lo]..words[hi-1]``: a range pass compares the address first.  Positions
+are visited in order, so the rows are the same arrays as the chunked passes built
+(``tests/test_streamed_profile.py``).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+
+@njit(cache=True)
+def _label(addr, table, words, lo, hi):
+    """Rank of ``addr`` among ``words[lo:hi]`` plus ``lo`` (dense: ``table[addr]``)."""
+    if table.shape[0] > 0:
+        return np.int64(table[addr])
+    return lo + np.int64(np.searchsorted(words[lo:hi], addr))
+
+
+#: Words collected before they are labelled and applied: the rank-table lookups of a batch are
+#: independent loads the processor overlaps, instead of each waiting behind the previous word's updates.
+BATCH = 1 << 12
+
+
+@njit(cache=True)
+def _labels_of(addrs, nb, table, words, lo, hi, labs):
+    for j in range(nb):
+        labs[j] = _label(addrs[j], table, words, lo, hi)
+
+
+@njit(cache=True)
+def _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ):
+    """Occurrences and block rows of a batch of words; ``state`` holds the current block and its end."""
+    b = state[0]
+    bend = state[1]
+    for j in range(nb):
+        p = ps[j]
+        lab = labs[j]
+        occ[lab] += 1
+        while p >= bend:
+            b += 1
+            bend = min(bend + ell, n)
+        if p + span <= bend and last[lab] != b:
+            last[lab] = b
+            sizes[lab] += 1
+    state[0] = b
+    state[1] = bend
+
+
+@njit(cache=True)
+def pass_sizes(codes, starts, depth, bits, span, ell, table, words, last, sizes, occ):
+    """Blocks per item (``sizes``) and occurrences per item (``occ``) over the whole stream.
+
+    An item at ``p`` belongs to block ``p // ell`` when it ends inside that block (and inside the
+    stream); ``occ`` counts every word.  ``table`` is the dense rank table (empty: binary search of
+    ``words``), ``last`` (``-1``) each item's last block.
+    """
+    n = codes.shape[0]
+    nseg = starts.shape[0]
+    ub = np.uint64(bits)
+    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
+    m = words.shape[0]
+    ps = np.empty(BATCH, dtype=np.int64)
+    addrs = np.empty(BATCH, dtype=np.uint64)
+    labs = np.empty(BATCH, dtype=np.int64)
+    state = np.array([0, min(ell, n)], dtype=np.int64)  # the block of the next word and its end
+    nb = 0
+    for s in range(nseg):
+        a = starts[s]
+        e = starts[s + 1] if s + 1 < nseg else n
+        addr = np.uint64(0)
+        filled = 0
+        for i in range(a, e):
+            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
+            filled += 1
+            if filled >= depth:
+                ps[nb] = i - depth + 1
+                addrs[nb] = addr
+                nb += 1
+                if nb == BATCH:
+                    _labels_of(addrs, nb, table, words, 0, m, labs)
+                    _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ)
+                    nb = 0
+    _labels_of(addrs, nb, table, words, 0, m, labs)
+    _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ)
+
+
+@njit(cache=True)
+def _apply_fill(ps, labs, nb, lo, seen, cursor, blocks, counts):
+    """Append a batch of words (in position order, each in its block ``ps[j]``) to the rows of items ``lo..``."""
+    for j in range(nb):
+        b = ps[j]
+        i = labs[j] - lo
+        if seen[i] != b:
+            seen[i] = b
+            blocks[cursor[i]] = b
+            counts[cursor[i]] = 1
+            cursor[i] += 1
+        else:
+            counts[cursor[i] - 1] += 1
+
+
+@njit(cache=True)
+def pass_fill(codes, starts, depth, bits, span, ell, table, words, lo, hi, seen, cursor, blocks, counts):
+    """Fill the rows of items ``lo..hi-1`` (``cursor``: each row's next slot, ``seen``: its last block)."""
+    n = codes.shape[0]
+    nseg = starts.shape[0]
+    ub = np.uint64(bits)
+    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
+    a_lo = words[lo]
+    a_hi = words[hi - 1]
+    bs = np.empty(BATCH, dtype=np.int64)
+    addrs = np.empty(BATCH, dtype=np.uint64)
+    labs = np.empty(BATCH, dtype=np.int64)
+    nb = 0
+    b = 0  # the block of p, and where it ends (no division per position)
+    bend = min(ell, n)
+    for s in range(nseg):
+        a = starts[s]
+        e = starts[s + 1] if s + 1 < nseg else n
+        addr = np.uint64(0)
+        filled = 0
+        for k in range(a, e):
+            addr = ((addr << ub) | np.uint64(codes[k])) & kmask
+            filled += 1
+            if filled >= depth and addr >= a_lo and addr <= a_hi:
+                p = k - depth + 1
+                while p >= bend:
+                    b += 1
+                    bend = min(bend + ell, n)
+                if p + span <= bend:
+                    bs[nb] = b
+                    addrs[nb] = addr
+                    nb += 1
+                    if nb == BATCH:
+                        _labels_of(addrs, nb, table, words, lo, hi, labs)
+                        _apply_fill(bs, labs, nb, lo, seen, cursor, blocks, counts)
+                        nb = 0
+    _labels_of(addrs, nb, table, words, lo, hi, labs)
+    _apply_fill(bs, labs, nb, lo, seen, cursor, blocks, counts)
+
+
+@njit(cache=True)
+def _flush_block(b, nt, touched, cnt, wt, wmax, acc, bound):
+    """Add block ``b``'s counts of its ``nt`` touched items into their replicate counts and bounds."""
+    R = wt.shape[1]
+    row = wt[b]
+    for u in range(nt):
+        i = touched[u]
+        c = np.int32(cnt[i])
+        for r in range(R):
+            acc[i, r] += c * np.int32(row[r])
+        bound[i] += np.int64(cnt[i]) * np.int64(wmax[b])
+
+
+@njit(cache=True)
+def pass_direct(codes, starts, depth, bits, span, ell, table, words, wt, wmax, occ, acc, bound):
+    """Every item's replicate counts in one pass, block by block (for a few items: ``acc`` is ``(items, R)``).
+
+    ``acc[i, r] = sum_b wt[b, r] * c[b, i]`` and ``bound[i] = sum_b wmax[b] * c[b, i]`` (the
+    quantities the item-major tally computes from its rows), ``occ`` every word's occurrences.
+    """
+    n = codes.shape[0]
+    nseg = starts.shape[0]
+    ub = np.uint64(bits)
+    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
+    m = words.shape[0]
+    seen = np.full(m, -1, dtype=np.int64)
+    cnt = np.zeros(m, dtype=np.int64)
+    touched = np.empty(min(m, max(ell, 1)), dtype=np.int64)
+    nt = 0
+    b = 0
+    bend = min(ell, n)
+    for s in range(nseg):
+        a = starts[s]
+        e = starts[s + 1] if s + 1 < nseg else n
+        addr = np.uint64(0)
+        filled = 0
+        for k in range(a, e):
+            addr = ((addr << ub) | np.uint64(codes[k])) & kmask
+            filled += 1
+            if filled >= depth:
+                p = k - depth + 1
+                lab = _label(addr, table, words, 0, m)
+                occ[lab] += 1
+                if p >= bend:
+                    _flush_block(b, nt, touched, cnt, wt, wmax, acc, bound)
+                    nt = 0
+                    while p >= bend:
+                        b += 1
+                        bend = min(bend + ell, n)
+                if p + span <= bend:
+                    if seen[lab] != b:
+                        seen[lab] = b
+                        cnt[lab] = 1
+                        touched[nt] = lab
+                        nt += 1
+                    else:
+                        cnt[lab] += 1
+    if nt:
+        _flush_block(b, nt, touched, cnt, wt, wmax, acc, bound)
+
+
+@njit(cache=True)
+def tally_direct(acc, bound, cap, dense, big_rows):
+    """:func:`fractalseq.resampling._replicates._spectra`'s tally from whole replicate counts: items whose
+    bound reaches ``cap`` become rows of ``big_rows`` in item order, the others are tallied into ``dense``."""
+    m, R = acc.shape
+    nbig = 0
+    for i in range(m):
+        if bound[i] >= cap:
+            for r in range(R):
+                big_rows[nbig, r] = acc[i, r]
+            nbig += 1
+        elif bound[i] > 0:
+            for r in range(R):
+                v = acc[i, r]
+                if v > 0:
+                    dense[r, v] += 1
+    return nbig
