@@ -281,6 +281,32 @@ def test_profile_in_small_chunks_equals_default(monkeypatch, chunk, budget, piec
     _same_profile(_profile_json(arr, image=False), base)
 
 
+def test_rate_intervals_take_the_spectrum_levels_made_in_process(monkeypatch):
+    """In process, the entropy-rate bootstrap takes the replicate spectra of the depths the spectrum
+    already made over the same blocks and seed (the same arrays), so those depths are not read again;
+    the document is the one made without that reuse, byte for byte."""
+    from fractalseq.dimensions import _spectrum as spm
+    from fractalseq.resampling import _bootstrap as bsm
+
+    arr = _markov_stream(200_000, 5, starts=(0, 7_000))  # 5 levels; the rates ask for depths 5 and 6
+    calls: list[int] = []
+    real = bsm.streamed_replicate_spectra
+
+    def counted(index, span, *a, **k):
+        calls.append(int(span))
+        return real(index, span, *a, **k)
+
+    monkeypatch.setattr(bsm, "streamed_replicate_spectra", counted)
+    reused = _profile_json(arr, image=False)
+    made_by_bootstrap = list(calls)
+    calls.clear()
+    monkeypatch.setattr(spm, "keep_spectra", lambda *a, **k: None)
+    again = _profile_json(arr, image=False)
+    _same_profile(reused, again)
+    assert calls, "without the kept spectra the bootstrap makes its depths itself"
+    assert len(made_by_bootstrap) < len(calls)
+
+
 @settings(max_examples=40, deadline=None)
 @given(data=st.data(), T=st.integers(1, 600), n=st.integers(1, 9), chunk=st.integers(1, 200), A=st.sampled_from([2, 3, 4, 20]))
 def test_distinct_words_in_chunks_equal_a_set(data, T, n, chunk, A):

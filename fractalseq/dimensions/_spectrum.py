@@ -245,6 +245,8 @@ def _word_level_data(
         batches = BatchSums(len(arr), L, qs.size, batch=auto.length) if not streamed else None
         levels = []
         ell = block.length if block is not None else 1
+        ahead_set = {int(n) for n in ahead}
+        made_ahead: dict[int, tuple] = {}  # in process: the depths the rate intervals will ask for (keep_spectra)
         mapped: list | None = None
         sums: list = []  # the tasks' batch sums, level by level, and the levels' totals
         totals: list[float] = []
@@ -271,6 +273,8 @@ def _word_level_data(
                 index = WordIndex(arr, int(n))
                 counts, spectra = streamed_replicate_spectra(index, int(n), ell, weights)
                 levels.append((index.chunks, counts))
+                if drawn and int(n) in ahead_set:  # the same arrays the entropy-rate bootstrap would make
+                    made_ahead[int(n)] = (counts, spectra)
                 if reps is not None and spectra is not None:
                     reps[:, i] = spectra_vectors(spectra, n_boot, qs, corrected)
                 del index, counts, spectra
@@ -282,6 +286,9 @@ def _word_level_data(
             if reps is not None and plan is not None:
                 reps[:, i] = replicate_vectors(labels, int(n), words.size, plan, qs, corrected)
             del labels, words, counts  # one depth's labels at a time
+        if made_ahead:
+            keep_spectra(arr, ell, n_boot, seed, made_ahead)
+        del made_ahead
         weights = plan = None  # the replicates are tallied: release the block weights before the batch sums
         if batches is not None:
             cov = batches.covariance()
@@ -358,7 +365,8 @@ def dimension_spectrum(
         Word lengths whose replicate spectra a block bootstrap of the same stream, block length and
         seed will ask for next (a profile's entropy-rate intervals): on an engine their tasks run
         beside the spectrum's and the results wait for it
-        (:func:`fractalseq.resampling._spectra_tasks.depth_spectra`).  No effect in process.
+        (:func:`fractalseq.resampling._spectra_tasks.depth_spectra`); in process the spectrum keeps
+        those of its own levels (the same arrays) for that bootstrap instead of it making them again.
 
     Returns
     -------

@@ -67,7 +67,7 @@ from fractalseq.resampling._options import Resampling, as_resampling
 from fractalseq.resampling._plan import SCHEMES, ResamplePlan, block_major_weights, make_plan
 from fractalseq.resampling._replicates import CountSpectrum
 from fractalseq.resampling._streamed import streamed_replicate_spectra
-from fractalseq.resampling._spectra_tasks import depth_spectra, on_workers
+from fractalseq.resampling._spectra_tasks import depth_spectra, kept_spectra, on_workers
 from fractalseq.runner import Engine
 from fractalseq.resampling._word_labels import DENSE_LABEL_CELLS, WordIndex, rank_sorted_keys, word_labels
 from fractalseq.results import Result
@@ -244,10 +244,13 @@ def run_block_bootstrap(
     if spectra and (scheme == "nonoverlapping" or not n_boot):
         full, specs = {}, {}
         mapped = depth_spectra(arr, depths, block.length, n_boot, seed, engine) if on_workers(engine) else None
-        weights = block_major_weights(T, block.length, n_boot, seed) if n_boot and mapped is None else None
+        held = kept_spectra(arr, depths, block.length, n_boot, seed) if mapped is None else {}
+        weights = block_major_weights(T, block.length, n_boot, seed) if n_boot and mapped is None and len(held) < len(depths) else None
         for i, n in enumerate(depths):  # labelled chunk by chunk (no length-sized array), the same spectra
             if mapped is not None:
                 (counts, spec), mapped[i] = mapped[i], None
+            elif n in held:  # made by the spectrum's pass over the same blocks and seed: the same arrays
+                counts, spec = held.pop(n)
             else:
                 counts, spec = streamed_replicate_spectra(WordIndex(arr, n), n, block.length, weights)
             full[n] = CountSpectrum.of_counts(counts)

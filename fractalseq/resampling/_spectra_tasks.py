@@ -59,6 +59,18 @@ def keep_spectra(arr: SymbolArray, block_length: int, n_boot: int, seed: int, re
     _KEPT[:] = [weakref.ref(arr), (int(block_length), int(n_boot), int(seed)), dict(results)] if results else [None, None, {}]
 
 
+def kept_spectra(arr: SymbolArray, depths: Sequence[int], block_length: int, n_boot: int, seed: int) -> dict[int, tuple]:
+    """Take out what :func:`keep_spectra` holds for ``arr`` with these blocks and seed, for the ``depths`` asked
+    (depth -> ``(occurrences, spectra)``); what is left stays held until taken or forgotten."""
+    ref, key, kept = _KEPT
+    if ref is None or ref() is not arr or key != (int(block_length), int(n_boot), int(seed)):
+        return {}
+    out = {int(n): kept.pop(int(n)) for n in depths if int(n) in kept}
+    if not kept:
+        forget_spectra()
+    return out
+
+
 def forget_spectra() -> None:
     """Drop what :func:`keep_spectra` holds (the end of a job, or an error)."""
     _KEPT[:] = [None, None, {}]
@@ -107,8 +119,7 @@ def depth_spectra(
     Depths made ahead for this stream, blocks and seed (:func:`keep_spectra`) are taken from there
     (the same arrays a task would give) and not run again.
     """
-    ref, key, kept = _KEPT
-    held = kept if ref is not None and ref() is arr and key == (int(block_length), int(n_boot), int(seed)) else {}
+    held = kept_spectra(arr, depths, block_length, n_boot, seed)
     todo = [int(n) for n in depths if int(n) not in held]
     done: list = []
     if todo:
@@ -116,7 +127,4 @@ def depth_spectra(
         tasks = [(shipped, n, int(block_length), int(n_boot), int(seed)) for n in todo]
         done = deepest_first(engine, depth_spectra_task, tasks, todo)
     made = dict(zip(todo, done))
-    out = [held.pop(int(n)) if int(n) in held else made[int(n)] for n in depths]
-    if not held:
-        forget_spectra()
-    return out
+    return [held[int(n)] if int(n) in held else made[int(n)] for n in depths]
