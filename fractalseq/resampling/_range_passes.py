@@ -21,6 +21,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from fractalseq.resampling._prefetch import prefetch_item
+
 
 @njit(cache=True)
 def _label(addr, table, words, lo, hi):
@@ -98,10 +100,23 @@ def pass_sizes(codes, starts, depth, bits, span, ell, table, words, last, sizes,
     _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ)
 
 
+#: Words ahead whose row cursor, and then whose row slot, is fetched while a word is appended.
+AHEAD = 8
+
+
 @njit(cache=True)
 def _apply_fill(ps, labs, nb, lo, seen, cursor, blocks, counts):
     """Append a batch of words (in position order, each in its block ``ps[j]``) to the rows of items ``lo..``."""
     for j in range(nb):
+        if j + 2 * AHEAD < nb:
+            f = labs[j + 2 * AHEAD] - lo
+            prefetch_item(cursor, f)
+            prefetch_item(seen, f)
+        if j + AHEAD < nb:
+            g = cursor[labs[j + AHEAD] - lo]
+            if g < blocks.shape[0]:
+                prefetch_item(blocks, g)
+                prefetch_item(counts, g)
         b = ps[j]
         i = labs[j] - lo
         if seen[i] != b:

@@ -29,12 +29,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from llvmlite import ir
-from numba import njit, types
-from numba.core import cgutils
-from numba.extending import intrinsic
+from numba import njit
 
 from fractalseq.errors import ParameterError
+from fractalseq.resampling._prefetch import prefetch_cell
 
 #: Counts below this are tallied densely per replicate.
 DEFAULT_CAP = 8192
@@ -134,33 +132,15 @@ def _max_weights(wt):
     return wmax
 
 
-@intrinsic
-def _prefetch(typingctx, arr, row, col):
-    """Ask the processor to bring the cache line of ``arr[row, col]`` in (LLVM ``prefetch``: read, keep)."""
-    sig = types.void(arr, row, col)
-
-    def codegen(context, builder, signature, args):
-        aryty = signature.args[0]
-        ary = context.make_array(aryty)(context, builder, args[0])
-        ptr = cgutils.get_item_pointer(context, builder, aryty, ary, [args[1], args[2]], wraparound=False)
-        i8p = ir.IntType(8).as_pointer()
-        i32 = ir.IntType(32)
-        fn = cgutils.get_or_insert_function(builder.module, ir.FunctionType(ir.VoidType(), [i8p, i32, i32, i32]), "llvm.prefetch.p0")
-        builder.call(fn, [builder.bitcast(ptr, i8p), ir.Constant(i32, 0), ir.Constant(i32, 3), ir.Constant(i32, 1)])
-        return context.get_dummy_value()
-
-    return sig, codegen
-
-
 @njit(cache=True)
 def _prefetch_row(wt, b):
     """Every cache line of row ``b`` of ``wt``."""
     R = wt.shape[1]
     step = max(64 // wt.itemsize, 1)
     for c in range(0, R, step):
-        _prefetch(wt, np.int64(b), np.int64(c))
+        prefetch_cell(wt, np.int64(b), np.int64(c))
     if R:
-        _prefetch(wt, np.int64(b), np.int64(R - 1))
+        prefetch_cell(wt, np.int64(b), np.int64(R - 1))
 
 
 #: Pairs ahead whose block weights are fetched while a pair is added (the rows are far apart in a
