@@ -10,8 +10,9 @@ difference over the finite entries). Speed is the ratio of the two trees' CPU se
 Run::
 
     python benchmarks/bench_batch_covariance.py INPUT.fa --before ../old-checkout [--depth 12] [--batch 100]
+    python benchmarks/bench_batch_covariance.py INPUT.fa --depth 11 --batch 112 --out batch_covariance_gigabase
 
-Writes ``benchmarks/results/batch_covariance.{json,md}``. The input is a simulated FASTA (invented
+Writes ``benchmarks/results/batch_covariance.{json,md}`` (or ``NAME.{json,md}`` with ``--out NAME``). The input is a simulated FASTA (invented
 order-2 Markov source, see ``bench_scale.py``); genomic output is for research, not clinical decisions.
 """
 
@@ -97,6 +98,7 @@ def main() -> int:
     ap.add_argument("--before", type=Path, help="another checkout to measure against")
     ap.add_argument("--depth", type=int, default=12)
     ap.add_argument("--batch", type=int, default=100)
+    ap.add_argument("--out", default="batch_covariance", help="results name (benchmarks/results/NAME.{json,md})")
     ap.add_argument("--child", action="store_true")
     ap.add_argument("--save")
     args = ap.parse_args()
@@ -132,7 +134,7 @@ def main() -> int:
                   f"the same entries are NaN: {same_nan}."]
     lines += ["", f"Machine: {data['machine']}. One child process per tree, `nice -n 10` on a shared machine; "
               "CPU s by `time.process_time` around the call, peak by `/proc/self/status` (VmHWM reset before the call)."]
-    write_results("batch_covariance", data, "\n".join(lines) + "\n")
+    write_results(args.out, data, "\n".join(lines) + "\n")
     print("\n".join(lines))
     return 0
 
