@@ -1,12 +1,10 @@
-"""Deep words counted in a parted direct table, and the batch covariance centred in place.
+"""Deep words counted in a parted direct table.
 
 References: ``numpy.unique`` (sorted distinct values with their counts) on the word addresses built
-with plain numpy, and ``numpy.cov`` itself (the in-place covariance must give its very bits).
+with plain numpy.
 """
 
 from __future__ import annotations
-
-import tracemalloc
 
 import numpy as np
 import pytest
@@ -14,7 +12,6 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from fractalseq import alphabet as al
-from fractalseq.dimensions import _level_variance as lv
 from fractalseq.stream import from_codes
 from fractalseq.words import _counts as wc_mod
 from fractalseq.words import _part_tally as pt
@@ -113,31 +110,3 @@ def test_parts_for_declines_short_streams_and_deep_words():
     assert pt.parts_for(3 * 10**8, 2, 13) == 1
     assert pt.parts_for(10**9, 2, 16) == 0  # 64 parts: sorted runs
     assert pt.parts_for(10**6, 2, 13) == 0  # 2**26 counters for 10**6 words: mostly empty
-
-
-@pytest.mark.parametrize("shape", [(1, 50), (3, 11), (8, 1_001), (13, 4_096)])
-def test_covariance_in_place_has_numpy_cov_bits(shape):
-    """The in-place covariance equals numpy.cov(X, ddof=1) bit for bit (numpy.cov is the reference)."""
-    rng = np.random.default_rng(shape[1])
-    X = rng.standard_normal(shape) * rng.uniform(0.1, 10, shape[0])[:, None] + rng.uniform(-3, 3, shape[0])[:, None]
-    ref = np.cov(X, ddof=1).reshape(shape[0], shape[0])
-    got = lv._cov_rows_in_place(X.copy()).reshape(shape[0], shape[0])
-    assert got.tobytes() == ref.tobytes()
-
-
-def test_covariance_in_place_allocates_no_copy():
-    """numpy.cov copies its input; the in-place version allocates only the small results (tracemalloc)."""
-    X = np.random.default_rng(1).standard_normal((6, 200_000))
-    tracemalloc.start()
-    try:
-        tracemalloc.reset_peak()
-        np.cov(X, ddof=1)
-        copy_peak = tracemalloc.get_traced_memory()[1]
-        tracemalloc.reset_peak()
-        base = tracemalloc.get_traced_memory()[0]
-        lv._cov_rows_in_place(X)
-        own_peak = tracemalloc.get_traced_memory()[1] - base
-    finally:
-        tracemalloc.stop()
-    assert copy_peak >= X.nbytes
-    assert own_peak < X.nbytes // 20

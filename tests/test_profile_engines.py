@@ -180,27 +180,30 @@ def test_cli_profile_with_two_workers_gives_the_serial_bytes(tmp_path):
 
 # ------------------------------------------------------------ the levels' batch sums from the depth tasks
 @settings(max_examples=12, deadline=None)
-@given(seed=st.integers(0, 10_000), chunk=st.integers(50, 5_000), whole=st.sampled_from([1, 40, 1 << 22]),
-       cells=st.sampled_from([1, 7, 1 << 25]), batch=st.integers(3, 60))
-def test_level_batch_sums_give_the_in_process_covariance_bit_for_bit(seed, chunk, whole, cells, batch):
+@given(seed=st.integers(0, 10_000), chunk=st.integers(50, 5_000), block=st.sampled_from([1, 7, 4096]),
+       values=st.booleans(), batch=st.integers(3, 60))
+def test_level_batch_sums_give_the_in_process_covariance_bit_for_bit(seed, chunk, block, values, batch):
     """Each level's batch sums made by its own task (one labelling), joined in the parent, are the
-    in-process streamed covariance to the last bit, for any chunk size, whole-table limit and group
-    size; and that covariance is the batch-means covariance recomputed with plain numpy
-    (``np.bincount`` per batch, ``np.cov``; Carlstein 1986, Ann. Statist. 14:1171) to rounding."""
+    in-process streamed covariance to the last bit, for any chunk size, accumulator block and keying of
+    the influence rows; and that covariance is the batch-means covariance recomputed with plain numpy
+    (``np.bincount`` per batch of ``box_influence``, ``np.cov``; Carlstein 1986, Ann. Statist. 14:1171)
+    to rounding."""
+    from fractalseq.dimensions import _batch_covariance as bc
     from fractalseq.dimensions import _level_variance as lv
 
     arr = _stream(3_000, seed, starts=(0, 1_100))
     qs = np.array([-1.0, 0.0, 0.5, 1.0, 2.0, 3.0])
-    old = (lv.WHOLE_TABLE_CELLS, lv.LEVEL_SUMS_CELLS)
+    old = (bc.COV_BLOCK, lv.VALUE_ROWS)
     try:
-        lv.WHOLE_TABLE_CELLS, lv.LEVEL_SUMS_CELLS = whole, cells
+        bc.COV_BLOCK, lv.VALUE_ROWS = block, (old[1] if values else 0)
         idx = [wl.WordIndex(arr, n, chunk=chunk) for n in (1, 3, 6, 9)]
         counts = [i.counts() for i in idx]
-        inproc = lv.streamed_batch_covariance(len(arr), batch, [(i.chunks, c) for i, c in zip(idx, counts)], qs)
+        inproc = lv.streamed_batch_covariance(len(arr), batch, [(i.labels, c) for i, c in zip(idx, counts)], qs,
+                                              chunk=chunk)
         sums = [lv.level_batch_sums(len(arr), batch, i.chunks, c, qs) for i, c in zip(idx, counts)]
+        joined = lv.covariance_from_level_sums(sums, np.array([float(np.sum(c)) for c in counts]))
     finally:
-        lv.WHOLE_TABLE_CELLS, lv.LEVEL_SUMS_CELLS = old
-    joined = lv.covariance_from_level_sums(sums, np.array([float(np.sum(c)) for c in counts]))
+        bc.COV_BLOCK, lv.VALUE_ROWS = old
     assert inproc.tobytes() == joined.tobytes()
     B = -(-len(arr) // batch)
     ref = np.empty_like(joined)

@@ -130,22 +130,3 @@ def test_consistency_beyond_its_cap_is_the_table_of_the_prefix():
     whole = profile_source(arr, resampling=rs, consistency_max_length=None, image=False)
     same = profile_source(arr, resampling=rs, consistency_max_length=60_000, image=False)
     assert to_json(whole.consistency_rows()) == to_json(same.consistency_rows())
-
-
-def test_batch_sums_one_q_at_a_time_are_the_same_bits(monkeypatch):
-    """The batch-means sums built one q at a time are the whole-table sums, bit for bit (same order)."""
-    from fractalseq.dimensions import _level_variance as lv
-
-    rng = np.random.default_rng(12)
-    arr = SymbolArray(al.dna(), rng.integers(0, 4, 20_000).astype(np.uint8), np.array([0, 333]))
-    qs = np.array([-1.0, 0.0, 1.0, 2.5])
-    sums = []
-    for cells in (lv.WHOLE_TABLE_CELLS, 0):
-        monkeypatch.setattr(lv, "WHOLE_TABLE_CELLS", cells)
-        b = lv.BatchSums(len(arr), 3, qs.size, batch=500)
-        for i, n in enumerate((2, 6, 11)):
-            labels, words = word_labels(arr, n)
-            counts = np.bincount(labels[labels >= 0], minlength=words.size)
-            b.add_counts(i, labels, counts, qs)
-        sums.append(b)
-    assert np.array_equal(sums[0].sums, sums[1].sums) and np.array_equal(sums[0].total, sums[1].total)

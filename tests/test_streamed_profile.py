@@ -2,7 +2,8 @@
 
 Streamed pieces (``resampling._word_labels.WordIndex``, ``resampling._streamed``,
 ``resampling._plan.block_major_weights``, ``resampling._block_length.StreamedAutocovariances`` and
-``streamed_politis_white``, ``dimensions._level_variance.BatchSums.add_chunks``, ``count_words`` of
+``streamed_politis_white``, ``dimensions._level_variance.BatchSums.add_chunks`` and
+``streamed_batch_covariance``, ``count_words`` of
 an array in pieces) are compared with the whole-array forms they replace, with random chunk sizes
 (hypothesis), and the autocovariances also with ``numpy.correlate`` (an outside reference:
 ``sum_t x_t x_{t+k}`` is the lag-k entry of the full cross-correlation, numpy documentation).
@@ -190,24 +191,19 @@ def test_streamed_politis_white_does_not_depend_on_chunks(chunk):
 
 
 @settings(max_examples=20, deadline=None)
-@given(chunk=st.integers(1, 3000), big=st.booleans())
-def test_batch_sums_in_chunks_equal_whole(chunk, big):
+@given(chunk=st.integers(1, 3000))
+def test_batch_sums_in_chunks_equal_whole(chunk):
     from fractalseq.dimensions import _level_variance as lv
 
     arr = _markov_stream(6_000, 9, starts=(0, 2_500))
     qs = np.array([0.0, 0.5, 1.0, 2.0, 3.0])
     labels, words = wl.word_labels(arr, 7)
     counts = np.bincount(labels[labels >= 0], minlength=words.size)
-    old = lv.WHOLE_TABLE_CELLS
-    try:
-        lv.WHOLE_TABLE_CELLS = 1 if big else old  # one q at a time, or the whole table
-        a = lv.BatchSums(len(arr), 3, qs.size, batch=97)
-        a.add_counts(1, labels, counts, qs)
-        b = lv.BatchSums(len(arr), 3, qs.size, batch=97)
-        index = wl.WordIndex(arr, 7, chunk)
-        b.add_chunks(1, index.chunks, counts, qs)
-    finally:
-        lv.WHOLE_TABLE_CELLS = old
+    a = lv.BatchSums(len(arr), 3, qs.size, batch=97)
+    a.add_counts(1, labels, counts, qs)
+    b = lv.BatchSums(len(arr), 3, qs.size, batch=97)
+    index = wl.WordIndex(arr, 7, chunk)
+    b.add_chunks(1, index.chunks, counts, qs)
     assert np.array_equal(a.sums, b.sums) and np.array_equal(a.total, b.total)
 
 
@@ -328,28 +324,34 @@ def test_distinct_words_in_chunks_equal_a_set(data, T, n, chunk, A):
 
 
 @settings(max_examples=15, deadline=None)
-@given(chunk=st.integers(1, 3000), cells=st.integers(1, 400_000), big=st.booleans())
-def test_batch_covariance_by_q_groups_equals_whole_table(chunk, cells, big):
-    """The levels' batch-means covariance built a group of q at a time equals the whole table's."""
+@given(chunk=st.integers(1, 3000), label_chunk=st.integers(1, 3000), block=st.sampled_from([3, 17, 4096]),
+       batch=st.integers(1, 60), values=st.booleans())
+def test_streamed_batch_covariance_equals_whole_table(chunk, label_chunk, block, batch, values):
+    """The levels' batch-means covariance made in one streamed pass, for any chunk of positions, equals
+    the whole ``(levels, batches, Q)`` table's (``BatchSums``), bit for bit: the same sums in the same
+    blocks of the accumulator."""
+    from fractalseq.dimensions import _batch_covariance as bc
     from fractalseq.dimensions import _level_variance as lv
 
     arr = _markov_stream(8_000, 12, starts=(0, 3_100))
     qs = np.array([-1.0, 0.0, 0.5, 1.0, 2.0, 4.0])
     depths = (1, 3, 6, 9)
-    old = lv.WHOLE_TABLE_CELLS
+    old = (bc.COV_BLOCK, lv.VALUE_ROWS)
     try:
-        lv.WHOLE_TABLE_CELLS = 1 if big else old
-        whole = lv.BatchSums(len(arr), len(depths), qs.size, batch=41)
+        bc.COV_BLOCK, lv.VALUE_ROWS = block, (old[1] if values else 0)  # rows by count value, or by rank
+        whole = lv.BatchSums(len(arr), len(depths), qs.size, batch=batch)
         levels = []
         for i, n in enumerate(depths):
             labels, words = wl.word_labels(arr, n)
             counts = np.bincount(labels[labels >= 0], minlength=words.size)
             whole.add_counts(i, labels, counts, qs)
-            levels.append((wl.WordIndex(arr, n, chunk).chunks, counts))
-        got = lv.streamed_batch_covariance(len(arr), 41, levels, qs, cells=cells)
+            levels.append((wl.WordIndex(arr, n, label_chunk).labels, counts))
+        got = lv.streamed_batch_covariance(len(arr), batch, levels, qs, chunk=chunk)
+        ref = whole.covariance()
     finally:
-        lv.WHOLE_TABLE_CELLS = old
-    assert np.array_equal(got, whole.covariance())
+        bc.COV_BLOCK, lv.VALUE_ROWS = old
+    assert got.shape == (qs.size, len(depths), len(depths))
+    assert got.tobytes() == ref.tobytes()
 
 
 def test_per_record_profiles_in_small_chunks_equal_default(tmp_path, monkeypatch):

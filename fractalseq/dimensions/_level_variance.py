@@ -51,6 +51,8 @@ import math
 import numpy as np
 from numba import njit
 
+from fractalseq.dimensions._batch_covariance import MIN_BATCHES, BatchCovariance
+from fractalseq.resampling._word_labels import STREAM_CHUNK
 from fractalseq.words._counts import WordCounts
 
 
@@ -188,6 +190,71 @@ def batch_length(length: int, levels: int) -> int:
     return int(max(1, min(int(length), max(math.ceil(math.sqrt(max(length, 1))), BATCH_LEVELS * int(levels)))))
 
 
+#: Levels whose largest count is below this get influence rows indexed by the count itself (no sort).
+VALUE_ROWS = 1 << 16
+
+
+def spectrum_influence(values: np.ndarray, multiplicity: np.ndarray, total: float, qs: np.ndarray) -> np.ndarray:
+    """Centred influence values of ``H_q`` per count value, shape ``(values, Q)`` (nats).
+
+    The influence ``g_b`` of a box depends on its count alone (module docstring), so a level needs one
+    row per distinct count: ``values`` are counts, ``multiplicity`` how many boxes have each (rows with
+    multiplicity 0 or value 0 get 0), ``total`` the occurrences ``N``.  The sums over boxes (``S_q`` and
+    the centring mean) are sums over values weighted by multiplicity; otherwise the arithmetic of
+    :func:`box_influence`, whose rows these are up to rounding.
+    """
+    v = np.asarray(values, dtype=np.float64)
+    w = np.asarray(multiplicity, dtype=np.float64)
+    out = np.zeros((v.size, qs.size))
+    N = float(total)
+    if N <= 0:
+        return out
+    hit = (w > 0) & (v > 0)
+    p = v[hit] / N
+    m = w[hit]
+    lnp = np.log(p)
+    for j, q in enumerate(qs):
+        q = float(q)
+        if q == 0.0:
+            continue
+        if q == 1.0:
+            g = -lnp
+        else:
+            a = q * lnp
+            top = float(a.max())
+            ln_s = top + math.log(float(np.sum(m * np.exp(a - top))))
+            g = q / (1.0 - q) * np.exp((q - 1.0) * lnp - ln_s)
+        g = g - float(np.sum(m * (p * g)))
+        out[hit, j] = g
+    return out
+
+
+def level_influence(counts: np.ndarray, qs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """One level's influence values as ``(key, rows)``: box ``b`` has the influence ``rows[key[b]]``.
+
+    Integer counts below :data:`VALUE_ROWS` are their own keys (``rows`` has one row per count value
+    up to the largest); other counts are keyed by the rank of their value (:func:`numpy.unique`).
+    Keys are the smallest unsigned type that holds them (uint16 in practice: 2 bytes per box).  ``rows`` has at most ``sqrt(2 N) + 1`` used rows whatever the
+    number of boxes (distinct counts summing to ``N``), so the table for every q is small and the
+    batch sums of all q are made in one pass over the labels.
+    """
+    qs = np.asarray(qs, dtype=np.float64)
+    c = np.asarray(counts).reshape(-1)
+    total = float(np.sum(np.asarray(c, dtype=np.float64)))
+    if c.size and c.dtype.kind in "iu" and int(c.min()) >= 0 and int(c.max()) < VALUE_ROWS:
+        mult = np.bincount(c.astype(np.int64, copy=False), minlength=1)
+        values = np.arange(mult.size, dtype=np.float64)
+        key = c
+    else:
+        values, key = np.unique(np.asarray(c, dtype=np.float64), return_inverse=True)
+        mult = np.bincount(key.reshape(-1), minlength=values.size)
+    # the smallest key type: a deep level's keys are read once per position, at random (2 bytes a box
+    # instead of 8 made the pass over a 4**12-word level three to four times faster)
+    kind = np.uint16 if values.size <= 1 << 16 else np.uint32 if values.size <= 1 << 32 else np.int64
+    key = np.ascontiguousarray(np.asarray(key).reshape(-1), dtype=kind)
+    return key, np.ascontiguousarray(spectrum_influence(values, mult, total, qs))
+
+
 @njit(cache=True)
 def _batch_sums(labels, g, b, out):
     """``out[t // b] += g[labels[t]]`` over positions with a label (``-1`` skipped)."""
@@ -202,16 +269,24 @@ def _batch_sums(labels, g, b, out):
 
 
 @njit(cache=True)
-def _batch_sums_at(labels, g, b, t0, out):
-    """:func:`_batch_sums` of a chunk of labels whose first position is ``t0``."""
-    Q = g.shape[1]
+def _keyed_batch_sums(labels, key, rows, b, t0, out):
+    """``out[(t0 + t) // b] += rows[key[labels[t]]]`` over a chunk of labels whose first position is ``t0``
+    (``-1`` skipped): every q of one level in one pass, each batch sum from 0.0 in order of position."""
+    Q = rows.shape[1]
     for t in range(labels.shape[0]):
         a = labels[t]
         if a < 0:
             continue
+        r = key[a]
         k = (t0 + t) // b
         for j in range(Q):
-            out[k, j] += g[a, j]
+            out[k, j] += rows[r, j]
+
+
+def _batch_shape(length: int, batch: int) -> tuple[int, int]:
+    """Batch length and number of batches of :class:`BatchSums` with an explicit ``batch``."""
+    b = int(max(1, min(int(length), int(batch))))
+    return b, -(-int(length) // b)
 
 
 class BatchSums:
@@ -228,8 +303,7 @@ class BatchSums:
     """
 
     def __init__(self, length: int, levels: int, q_count: int, batch: int | None = None) -> None:
-        self.b = batch_length(length, levels) if batch is None else int(max(1, min(int(length), int(batch))))
-        self.B = -(-int(length) // self.b)
+        self.b, self.B = _batch_shape(length, batch_length(length, levels) if batch is None else batch)
         self.sums = np.zeros((levels, self.B, q_count))
         self.total = np.zeros(levels)
 
@@ -241,112 +315,78 @@ class BatchSums:
         self.total[level] += weight * float(np.sum(counts))
 
     def add_counts(self, level: int, labels: np.ndarray, counts: np.ndarray, qs: np.ndarray) -> None:
-        """:meth:`add` with the influence table of ``counts`` (:func:`box_influence`), built one q at a time
-        when it would exceed :data:`WHOLE_TABLE_CELLS` cells (the same sums, in the same order)."""
-        qs = np.asarray(qs, dtype=np.float64)
-        if counts.size * qs.size <= WHOLE_TABLE_CELLS:
-            self.add(level, labels, counts, box_influence(counts, qs))
-            return
-        lab = np.ascontiguousarray(labels)
-        out = np.zeros((self.B, qs.size))
-        col = np.zeros((self.B, 1))
-        for j in range(qs.size):
-            col[:] = 0.0
-            _batch_sums(lab, np.ascontiguousarray(box_influence(counts, qs[j : j + 1])), self.b, col)
-            out[:, j] = col[:, 0]
+        """:meth:`add` with the influence values of ``counts`` (:func:`level_influence`, every q at once):
+        the sums :func:`streamed_batch_covariance` makes."""
+        key, rows = level_influence(counts, qs)
+        out = np.zeros((self.B, rows.shape[1]))
+        _keyed_batch_sums(np.ascontiguousarray(labels), key, rows, self.b, 0, out)
         self.sums[level] += 1.0 * out
         self.total[level] += 1.0 * float(np.sum(counts))
 
     def add_chunks(self, level: int, chunks, counts: np.ndarray, qs: np.ndarray) -> None:
         """:meth:`add_counts` with the labels given chunk by chunk: ``chunks()`` yields ``(first position, labels)``
         in order of position, so every batch sum adds the same terms in the same order (the same bits)."""
-        qs = np.asarray(qs, dtype=np.float64)
-        whole = counts.size * qs.size <= WHOLE_TABLE_CELLS
-        out = np.zeros((self.B, qs.size))
-        col = np.zeros((self.B, 1))
-        for j in [None] if whole else range(qs.size):
-            g = np.ascontiguousarray(box_influence(counts, qs if j is None else qs[j : j + 1]))
-            dest = out if j is None else col
-            dest[:] = 0.0
-            for t0, lab in chunks():
-                _batch_sums_at(np.ascontiguousarray(lab), g, self.b, int(t0), dest)
-            if j is not None:
-                out[:, j] = col[:, 0]
+        key, rows = level_influence(counts, qs)
+        out = np.zeros((self.B, rows.shape[1]))
+        for t0, lab in chunks():
+            _keyed_batch_sums(np.ascontiguousarray(lab), key, rows, self.b, int(t0), out)
         self.sums[level] += 1.0 * out
         self.total[level] += 1.0 * float(np.sum(counts))
 
     def covariance(self) -> np.ndarray | None:
-        """``(Q, L, L)`` batch-means covariance of the level statistics; ``None`` with fewer than 10 batches."""
-        if self.B < 10:
+        """``(Q, L, L)`` batch-means covariance of the level statistics; ``None`` with fewer than 10 batches.
+
+        The accumulator of :func:`streamed_batch_covariance` (:class:`BatchCovariance`) on the whole
+        table: the same sums give the same bits."""
+        if self.B < MIN_BATCHES:
             return None
-        L, B, Q = self.sums.shape
-        N = np.where(self.total > 0, self.total, np.nan)
-        out = np.empty((Q, L, L))
-        for j in range(Q):
-            S = self.sums[:, :, j] / N[:, None]  # (L, B): each batch's share of the linearised deviation
-            out[j] = B * np.cov(S, ddof=1).reshape(L, L)
-        return out
-
-
-#: Batch sums held at once by :func:`streamed_batch_covariance` (float64 cells: 256 MB).
-BATCH_CELLS = 1 << 25
+        acc = BatchCovariance(self.total, self.sums.shape[2])
+        acc.add(self.sums)
+        return acc.covariance()
 
 
 def streamed_batch_covariance(
-    length: int, batch: int, levels: list, qs: np.ndarray, cells: int | None = None
+    length: int, batch: int, levels: list, qs: np.ndarray, chunk: int | None = None
 ) -> np.ndarray | None:
-    """:meth:`BatchSums.covariance` after :meth:`BatchSums.add_counts` of every level, without the
-    ``(levels, batches, Q)`` table: a group of q at a time.
+    """:meth:`BatchSums.covariance` after :meth:`BatchSums.add_counts` of every level, in one pass over
+    the positions for every level and every q, without the ``(levels, batches, Q)`` table.
 
     Parameters
     ----------
     length, batch:
         Number of positions and batch length (as for :class:`BatchSums`).
     levels:
-        One ``(chunks, counts)`` per level: ``chunks()`` yields ``(first position, labels)`` in order
-        (e.g. :meth:`fractalseq.resampling._word_labels.WordIndex.chunks`), ``counts`` the occurrences.
+        One ``(labels, counts)`` per level: ``labels(a, b)`` gives the labels of positions ``a..b-1``
+        (e.g. :meth:`fractalseq.resampling._word_labels.WordIndex.labels`), ``counts`` the occurrences.
     qs:
         Orders q.
-    cells:
-        Batch sums held at once (default :data:`BATCH_CELLS`): ``levels x batches x group``.
+    chunk:
+        Positions per chunk (default :data:`~fractalseq.resampling._word_labels.STREAM_CHUNK`, rounded
+        down to whole batches, at least one batch).
 
-    Each level's influence values of a group of q are summed per batch in order of position (the
-    same terms in the same order as the whole table), so the result is the same, bit for bit; the
-    labels are read once per level and group.
+    Each chunk's ``(levels, batches, Q)`` sums (every batch's sum from 0.0 in order of position, as
+    :func:`level_batch_sums` makes them) go to a :class:`BatchCovariance`, which holds one block of
+    :data:`COV_BLOCK` batches: memory is the chunk's sums, one block and the levels' small influence
+    tables (:func:`level_influence`); the result does not depend on ``chunk``.
     """
     qs = np.asarray(qs, dtype=np.float64)
-    sums = BatchSums(length, 1, 1, batch=batch)  # batch length and count only
-    b, B, L, Q = sums.b, sums.B, len(levels), qs.size
-    if B < 10:
+    b, B = _batch_shape(length, batch)
+    if B < MIN_BATCHES:
         return None
-    per_q = max(L * B, 1)
-    group = int(max(1, min(Q, (BATCH_CELLS if cells is None else int(cells)) // per_q)))
-    total = np.array([float(np.sum(c)) for _, c in levels])
-    N = np.where(total > 0, total, np.nan)
-    out = np.empty((Q, L, L))
-    for j0 in range(0, Q, group):
-        j1 = min(Q, j0 + group)
-        S = np.zeros((L, B, j1 - j0))
-        for i, (chunks, counts) in enumerate(levels):
-            if counts.size * qs.size <= WHOLE_TABLE_CELLS:
-                g = np.ascontiguousarray(box_influence(counts, qs)[:, j0:j1])
-            else:
-                g = np.ascontiguousarray(box_influence(counts, qs[j0:j1]))
-            for t0, lab in chunks():
-                _batch_sums_at(np.ascontiguousarray(lab), g, b, int(t0), S[i])
-        for j in range(j0, j1):
-            # one q's (L, B) shares, in place when S holds that q alone (no copies of a length-sized table)
-            Sj = S[:, :, 0] if j1 - j0 == 1 else np.ascontiguousarray(S[:, :, j - j0])
-            Sj += 0.0  # the whole table's zero start (no -0.0)
-            Sj /= N[:, None]
-            out[j] = B * _cov_rows_in_place(Sj).reshape(L, L)
-        del S
-    return out
-
-
-#: Cells of one level's influence table held at once by :func:`level_batch_sums` beyond
-#: :data:`WHOLE_TABLE_CELLS` (float64: 256 MB); a level with more distinct words is summed a group of q at a time.
-LEVEL_SUMS_CELLS = 1 << 25
+    L, Q = len(levels), qs.size
+    tables = [level_influence(counts, qs) for _, counts in levels]
+    acc = BatchCovariance(np.array([float(np.sum(counts)) for _, counts in levels]), Q)
+    step = max(int(STREAM_CHUNK if chunk is None else chunk) // b, 1) * b
+    S = np.empty((L, step // b, Q))
+    for a in range(0, int(length), step):
+        e = min(a + step, int(length))
+        part = S[:, : -(-(e - a) // b)]
+        part[...] = 0.0
+        for i, (labels, _) in enumerate(levels):
+            key, rows = tables[i]
+            _keyed_batch_sums(np.ascontiguousarray(labels(a, e)), key, rows, b, 0, part[i])
+        acc.add(part)
+    return acc.covariance()
 
 
 def level_batch_sums(length: int, batch: int, chunks, counts: np.ndarray, qs: np.ndarray) -> np.ndarray | None:
@@ -366,58 +406,26 @@ def level_batch_sums(length: int, batch: int, chunks, counts: np.ndarray, qs: np
     Returns ``None`` when there are fewer than 10 batches (no covariance).  Column j holds the sums that
     :func:`streamed_batch_covariance` adds for this level and ``qs[j]`` (the same influence values, added
     per batch in order of position from 0.0), so :func:`covariance_from_level_sums` of every level's sums
-    is its result, bit for bit.  A level whose table would exceed :data:`WHOLE_TABLE_CELLS` cells is
-    summed a group of q at a time (at most :data:`LEVEL_SUMS_CELLS` influence values held).
+    is its result, bit for bit.  Every q in one pass over the labels (:func:`level_influence`).
     """
     qs = np.asarray(qs, dtype=np.float64)
-    shape = BatchSums(length, 1, 1, batch=batch)
-    b, B, Q = shape.b, shape.B, qs.size
-    if B < 10:
+    b, B = _batch_shape(length, batch)
+    if B < MIN_BATCHES:
         return None
-    whole = counts.size * Q <= WHOLE_TABLE_CELLS
-    group = Q if whole else int(max(1, min(Q, LEVEL_SUMS_CELLS // max(int(counts.size), 1))))
-    out = np.zeros((B, Q))
-    for j0 in range(0, Q, group):
-        j1 = min(Q, j0 + group)
-        g = box_influence(counts, qs)[:, j0:j1] if whole else box_influence(counts, qs[j0:j1])
-        g = np.ascontiguousarray(g)
-        dest = np.zeros((B, j1 - j0))
-        for t0, lab in chunks():
-            _batch_sums_at(np.ascontiguousarray(lab), g, b, int(t0), dest)
-        out[:, j0:j1] = dest
-        del g
+    key, rows = level_influence(counts, qs)
+    out = np.zeros((B, qs.size))
+    for t0, lab in chunks():
+        _keyed_batch_sums(np.ascontiguousarray(lab), key, rows, b, int(t0), out)
     return out
 
 
 def covariance_from_level_sums(sums: list[np.ndarray], totals: np.ndarray) -> np.ndarray:
     """``(Q, L, L)`` batch-means covariance from every level's :func:`level_batch_sums` (in level order).
 
-    ``totals`` are the levels' occurrence totals (``float(np.sum(counts))``).  The same arithmetic as
-    :func:`streamed_batch_covariance` on the same sums: the same result, bit for bit.
+    ``totals`` are the levels' occurrence totals (``float(np.sum(counts))``).  The same accumulator
+    (:class:`BatchCovariance`, the same blocks) as :func:`streamed_batch_covariance` on the same sums:
+    the same result, bit for bit.
     """
-    L = len(sums)
-    B, Q = sums[0].shape
-    total = np.asarray(totals, dtype=np.float64)
-    N = np.where(total > 0, total, np.nan)
-    out = np.empty((Q, L, L))
-    S = np.empty((L, B))
-    for j in range(Q):
-        for i in range(L):
-            S[i] = sums[i][:, j]
-        Sj = (S + 0.0) / N[:, None]
-        out[j] = B * _cov_rows_in_place(Sj).reshape(L, L)  # Sj is this loop's own array
-    return out
-
-
-def _cov_rows_in_place(X: np.ndarray) -> np.ndarray:
-    """``numpy.cov(X, ddof=1)`` of the rows of a float64 ``X``, the same operations in the same order
-    (numpy 2's ``cov``: row means by ``numpy.average``, centring in place, ``dot(X, X.T)``, times
-    ``1 / (columns - 1)``), but centring ``X`` itself instead of a copy (``X`` is overwritten)."""
-    avg = np.average(X, axis=1)
-    fact = X.shape[1] - 1
-    if fact <= 0:
-        return np.cov(X, ddof=1)  # numpy's own warning and result for too few columns
-    X -= avg[:, None]
-    c = np.dot(X, X.T.conj())
-    c *= np.true_divide(1, fact)
-    return c.squeeze()
+    acc = BatchCovariance(np.asarray(totals, dtype=np.float64), sums[0].shape[1])
+    acc.add_levels(sums)
+    return acc.covariance()

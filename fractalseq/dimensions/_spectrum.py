@@ -265,14 +265,14 @@ def _word_level_data(
                         sums.append(level_sums)
                         totals.append(float(np.sum(counts)))
                     elif not fits:  # too many sums to hold: labelled here for the covariance
-                        levels.append((WordIndex(arr, int(n)).chunks, counts))
+                        levels.append((WordIndex(arr, int(n)).labels, counts))
                     if reps is not None and spectra is not None:
                         reps[:, i] = spectra_vectors(spectra, n_boot, qs, corrected)
                     del counts, spectra, level_sums
                     continue
                 index = WordIndex(arr, int(n))
                 counts, spectra = streamed_replicate_spectra(index, int(n), ell, weights)
-                levels.append((index.chunks, counts))
+                levels.append((index.labels, counts))
                 if drawn and int(n) in ahead_set:  # the same arrays the entropy-rate bootstrap would make
                     made_ahead[int(n)] = (counts, spectra)
                 if reps is not None and spectra is not None:

@@ -8,11 +8,11 @@ of the stream, so one task per depth makes all three where the labels are: the p
 a depth.  The parent joins the batch sums with
 :func:`~fractalseq.dimensions._level_variance.covariance_from_level_sums`, the arithmetic of the
 in-process :func:`~fractalseq.dimensions._level_variance.streamed_batch_covariance` on the same sums
-(added in the same order), so the covariance is the same to the last bit.
+(added in the same order, fed to the same block accumulator), so the covariance is the same to the last bit.
 
 The parent holds every level's sums until the covariance (``levels x batches x Q`` float64); beyond
 :data:`MAPPED_BATCH_CELLS` cells the tasks leave them out and the parent labels the depths for the
-covariance itself, a group of q at a time, as in process.
+covariance itself, in one pass for every level and q, as in process.
 """
 
 from __future__ import annotations
