@@ -437,11 +437,11 @@ def _cell_lookup(cells, ptr, syms, counts, keys, want, found, c, tot, used):
         hi = nc
         while lo < hi:
             mid = (lo + hi) >> 1
-            if cells[mid] < k:
+            if np.uint64(cells[mid]) < k:
                 lo = mid + 1
             else:
                 hi = mid
-        if lo < nc and cells[lo] == k:
+        if lo < nc and np.uint64(cells[lo]) == k:
             found[q] = True
             t = np.int64(0)
             for e in range(ptr[lo], ptr[lo + 1]):
@@ -462,11 +462,21 @@ def _hash_cells(addr, depth):
 
 
 @njit(cache=True)
+def _cell_totals(ptr, counts, out):
+    """The total count of every cell of a table (int64), from its entry pointers and counts."""
+    for i in range(out.shape[0]):
+        t = np.int64(0)
+        for e in range(ptr[i], ptr[i + 1]):
+            t += np.int64(counts[e])
+        out[i] = t
+
+
+@njit(cache=True)
 def _cell_words(cells, ptr, syms, b, out):
     """The (n+1)-word address ``cell << b | symbol`` of every entry of a cell table, written into ``out``."""
     ub = np.uint64(b)
     for i in range(cells.shape[0]):
-        head = cells[i] << ub
+        head = np.uint64(cells[i]) << ub
         for e in range(ptr[i], ptr[i + 1]):
             out[e] = head | np.uint64(syms[e])
 
@@ -586,7 +596,9 @@ class RevcompParts:
         m = int(self.sizes[p])
         rw, rc = np.empty(m, np.uint64), np.empty(m, self.counts.dtype)
         if m:
-            sel = np.flatnonzero(self.ids == p)
+            # the part's leaves, found a slice of the ids at a time (no mask as long as the leaf table)
+            step = 1 << 20
+            sel = np.concatenate([np.flatnonzero(self.ids[i : i + step] == p) + i for i in range(0, self.ids.shape[0], step)])
             _revcomp_prefix_gather(self.leaf, self.counts, sel, self.shift, self.n, self.b, rw, rc)
             del sel
             order = np.argsort(rw)  # addresses are unique: any sort gives the same order
@@ -599,7 +611,7 @@ def cell_lookup(cells, ptr, syms, counts, keys, want):
 
     Absent cells and symbols give zeros.
     """
-    _need(cells.dtype == np.uint64 and keys.dtype == np.uint64 and ptr.dtype == np.int64, "uint64 cells and keys, int64 ptr", "cells")
+    _need(cells.dtype.kind == "u" and keys.dtype == np.uint64 and ptr.dtype.kind in "iu", "unsigned cells, uint64 keys, integer ptr", "cells")
     m = keys.shape[0]
     found = np.zeros(m, np.bool_)
     c, tot, used = np.zeros(m), np.zeros(m), np.zeros(m)
@@ -614,12 +626,28 @@ def hash_cells(addr, depth):
 
 
 def cell_words(cells, ptr, syms, b):
-    """The sorted (n+1)-word addresses of a cell table's entries, built in one array (no temporaries as long)."""
-    cells = np.ascontiguousarray(cells, dtype=np.uint64)
-    ptr = np.ascontiguousarray(ptr, dtype=np.int64)
-    syms = np.ascontiguousarray(syms, dtype=np.uint32)
-    _need(ptr.shape[0] == cells.shape[0] + 1 and (ptr.shape[0] == 1 or int(ptr[-1]) == syms.shape[0]),
+    """The sorted (n+1)-word addresses of a cell table's entries, built in one array (no temporaries as long).
+
+    ``cells`` may be of any unsigned type, ``ptr`` and ``syms`` of any integer type (the tables keep them narrow);
+    ``ptr`` may start above 0 (a slice of a table's cells, :meth:`CellTable.word_pieces`), as long as
+    its last value minus its first is the number of ``syms`` given.
+    """
+    cells, ptr, syms = np.ascontiguousarray(cells), np.ascontiguousarray(ptr), np.ascontiguousarray(syms)
+    _need(cells.dtype.kind == "u" and ptr.dtype.kind in "iu" and syms.dtype.kind in "iu", "unsigned cells, integer pointers and symbols", "ptr")
+    if ptr.shape[0] and int(ptr[0]):
+        ptr = ptr - ptr[0]
+    _need(ptr.shape[0] == cells.shape[0] + 1 and int(ptr[-1]) == syms.shape[0],
           "one more pointer than cells, the last one the number of entries", "ptr")
     out = np.empty(syms.shape[0], np.uint64)
     _cell_words(cells, ptr, syms, b, out)
+    return out
+
+
+def cell_totals(ptr, counts):
+    """The total count of every cell (int64) of a table with entry pointers ``ptr`` and ``counts`` (no array as long as the entries)."""
+    ptr, counts = np.ascontiguousarray(ptr), np.ascontiguousarray(counts)
+    _need(ptr.dtype.kind in "iu" and counts.dtype.kind in "iu" and ptr.shape[0] >= 1 and int(ptr[-1]) == counts.shape[0],
+          "integer pointers ending at the number of integer counts", "ptr")
+    out = np.empty(ptr.shape[0] - 1, np.int64)
+    _cell_totals(ptr, counts, out)
     return out
