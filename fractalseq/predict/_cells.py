@@ -373,7 +373,7 @@ class _PartStore:
 
 
 #: Deepest words (``b * (n + 1)`` bits) whose whole table a baseline depth is built from; beyond, it is built in parts.
-WHOLE_TABLE_BITS = 16
+WHOLE_TABLE_BITS = 18
 
 
 def _kth_smallest(pieces: Callable[[], Iterable[np.ndarray]], total: int, k: int) -> tuple[np.uint64, int]:

@@ -401,6 +401,24 @@ def _revcomp_prefix_ids(leaf, shift, b, head, top_shift, ids, sizes):
 
 
 @njit(cache=True)
+def _count_ids(ids, out):
+    """``out[d]`` += how many of ``ids`` equal ``d``."""
+    for i in range(ids.shape[0]):
+        out[ids[i]] += 1
+
+
+@njit(cache=True)
+def _bucket_positions(ids, p0, p1, cursor, out):
+    """Positions ``i`` (increasing) of the ids in ``[p0, p1)``, bucketed by id: bucket ``d - p0`` fills ``out`` from ``cursor[d - p0]``."""
+    for i in range(ids.shape[0]):
+        d = np.int64(ids[i])
+        if d >= p0 and d < p1:
+            k = cursor[d - p0]
+            out[k] = i
+            cursor[d - p0] = k + 1
+
+
+@njit(cache=True)
 def _revcomp_prefix_gather(leaf, counts, sel, shift, n, b, out_w, out_c):
     """Reverse complements of the prefixes of the leaves ``sel`` (increasing; equal prefixes neighbours), counts summed."""
     us = np.uint64(shift)
@@ -574,6 +592,10 @@ def revcomp_in_range(words, counts, n, b, lo: int, hi: int | None):
     return rw, rc
 
 
+#: Leaves whose positions one scan of a :class:`RevcompParts`' part numbers collects (8 bytes each; several parts at once).
+GROUP_LEAVES = 1 << 19
+
+
 class RevcompParts:
     """Reverse complements of the n-prefixes of a sorted leaf table, one address part at a time.
 
@@ -590,15 +612,33 @@ class RevcompParts:
         self.sizes = np.zeros(1 << part_bits, np.int64)
         self.ids = np.empty(leaf.shape[0], np.uint8)
         _revcomp_prefix_ids(leaf, self.shift, self.b, head, head * b - part_bits, self.ids, self.sizes)
+        self.leaves = np.zeros(1 << part_bits, np.int64)  # leaves of each part (numpy's bincount would widen the ids to 8 bytes)
+        _count_ids(self.ids, self.leaves)
+        self._lo = self._hi = 0
+        self._pos = self._starts = np.zeros(1, np.int64)
+
+    def _positions(self, p: int) -> np.ndarray:
+        """The leaves of part ``p`` (increasing positions); one scan of the ids collects those of the next few parts
+        too (up to ``GROUP_LEAVES`` leaves), so parts asked for in order cost a scan per group, not per part."""
+        if not self._lo <= p < self._hi:
+            self._pos = None
+            q, tot = p + 1, int(self.leaves[p])
+            while q < self.leaves.size and tot + int(self.leaves[q]) <= GROUP_LEAVES:
+                tot += int(self.leaves[q])
+                q += 1
+            starts = np.zeros(q - p + 1, np.int64)
+            np.cumsum(self.leaves[p:q], out=starts[1:])
+            pos = np.empty(tot, np.int64)
+            _bucket_positions(self.ids, p, q, starts[:-1].copy(), pos)
+            self._lo, self._hi, self._pos, self._starts = p, q, pos, starts
+        return self._pos[self._starts[p - self._lo] : self._starts[p - self._lo + 1]]
 
     def part(self, p: int) -> tuple[np.ndarray, np.ndarray]:
         """Sorted reverse-complement addresses of part ``p`` and their counts (the leaves' count type)."""
         m = int(self.sizes[p])
         rw, rc = np.empty(m, np.uint64), np.empty(m, self.counts.dtype)
         if m:
-            # the part's leaves, found a slice of the ids at a time (no mask as long as the leaf table)
-            step = 1 << 20
-            sel = np.concatenate([np.flatnonzero(self.ids[i : i + step] == p) + i for i in range(0, self.ids.shape[0], step)])
+            sel = self._positions(p)
             _revcomp_prefix_gather(self.leaf, self.counts, sel, self.shift, self.n, self.b, rw, rc)
             del sel
             order = np.argsort(rw)  # addresses are unique: any sort gives the same order
