@@ -419,7 +419,9 @@ def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: 
 
     ``release`` (e.g. the word counts' ``discard``) is called once the word counts are read
     for the last time, before the kept parts are joined into whole tables, so the counts and
-    the joined tables are never held together.
+    the joined tables are never held together; until then the kept parts (and those of the
+    baseline depths of words longer than ``WHOLE_TABLE_BITS``) wait in a :class:`_PartStore`,
+    on disk beyond ``SPILL_BYTES``.  The tables are narrow (:func:`narrow`).
     """
     tables: dict[int, CellTable] = {}
     deep = sorted(n for n in set(orders) if n > K_b)

@@ -603,6 +603,7 @@ class RevcompParts:
     ``p``; that of a reverse complement comes from the prefix's last symbols.  A first scan notes
     each leaf's part (one byte a leaf) and sizes the parts; each :meth:`part` call gathers that
     part's leaves and sorts only their complements, so nothing else as large as the leaf table is held.
+    Parts asked for in increasing order share the scans of the part numbers (:meth:`_positions`).
     """
 
     def __init__(self, leaf, counts, shift: int, n: int, b: int, part_bits: int) -> None:
