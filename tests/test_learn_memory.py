@@ -227,3 +227,21 @@ def test_container_arrays_written_in_pieces(tmp_path):
     with pytest.raises(ValueError, match="different"):
         write_container(tmp_path / "bad.npz", header, {"w": changing})
     assert not (tmp_path / "bad.npz").exists() and not (tmp_path / "short.npz").exists()
+
+
+def test_parts_stay_in_memory_without_a_temporary_folder(tmp_path, monkeypatch):
+    """When no temporary file can be made, the parts stay in memory and the file is the same."""
+    import tempfile
+
+    import fractalseq.predict._cells as cells_module
+
+    def refuse(*args, **kwargs):
+        raise OSError("no temporary folder")
+
+    monkeypatch.setattr(cells_module, "SPILL_BYTES", 0)
+    monkeypatch.setattr(tempfile, "TemporaryFile", refuse)
+    got = tmp_path / "mem.npz"
+    learn_files([str(LAMBDA)], out=got, fmt="fasta", params={"max_cells": 300_000})
+    ref = tmp_path / "ref.npz"
+    _plain_route_file(LAMBDA, "fasta", {"max_cells": 300_000}, ref)
+    assert got.read_bytes() == ref.read_bytes()

@@ -297,7 +297,8 @@ class _PartStore:
     unnamed temporary file (``tempfile.TemporaryFile``: the system removes it when it is closed or
     the process ends), so the cells kept are not held beside the word counts they are built from.
     :meth:`join`, called once the counts are dropped, reads a depth's parts straight into the
-    whole table's arrays (no second copy of the table).  The tables are the same either way.
+    whole table's arrays (no second copy of the table).  The tables are the same either way (also
+    when no temporary file can be made: the parts then stay in memory).
     """
 
     def __init__(self, A: int, b: int, spill_bytes: int | None = None) -> None:
@@ -314,11 +315,15 @@ class _PartStore:
         if self.file is None and self.held + size > self.limit:
             import tempfile
 
-            self.file = tempfile.TemporaryFile(prefix="fractalseq-cells-")
-            for kept in self.parts.values():
-                for i, q in enumerate(kept):
-                    kept[i] = self._write(q)
-            self.held = 0
+            try:
+                self.file = tempfile.TemporaryFile(prefix="fractalseq-cells-")
+            except OSError:  # no writable temporary folder: the parts stay in memory (the same tables)
+                self.limit = 1 << 62
+            else:
+                for kept in self.parts.values():
+                    for i, q in enumerate(kept):
+                        kept[i] = self._write(q)
+                self.held = 0
         if self.file is None:
             self.held += size
             self.parts.setdefault(n, []).append(p)
