@@ -8,7 +8,7 @@ growth of the peak between two simulated sizes, per added symbol, is the margina
 commands also run with the package of another checkout (e.g. the code before a change), and the two
 model files are compared byte for byte and array by array (``numpy.array_equal``); the fitted
 ``score`` of the lambda model is compared too.  Bytes per symbol include the interpreter, numba and the readers
-(about 200 MiB) and the cell tables at the default cap (about 200 MiB): bytes per symbol fall
+(about 180 MiB) and the cell tables at the default cap (about 130 MiB for DNA): bytes per symbol fall
 with the length.  Times are CPU seconds (user + system) of the process.
 
 Run::

@@ -64,15 +64,16 @@ import json
 import re
 import zipfile
 import zlib
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any, Callable, Iterable
 
 import numpy as np
 
 from fractalseq.errors import InputError, ModelFileError
 from fractalseq.io._outputs import write_bytes
 
-__all__ = ["DEFAULT_MAX_BYTES", "array_sha256", "read_container", "write_container"]
+__all__ = ["DEFAULT_MAX_BYTES", "ArrayPieces", "array_sha256", "read_container", "write_container"]
 
 HEADER_NAME = "header"
 #: largest JSON header accepted (the alphabet and reader sections live there)
@@ -96,6 +97,45 @@ _digest = array_sha256
 
 
 # ------------------------------------------------------------------ writing
+@dataclass(frozen=True)
+class ArrayPieces:
+    """A one-dimensional array given as consecutive pieces, made when needed (see :func:`write_container`).
+
+    Attributes
+    ----------
+    dtype:
+        The array's type (every piece has it).
+    size:
+        The array's length (the pieces' lengths add up to it).
+    pieces:
+        A function returning an iterable of the pieces in order; called once for the checksum
+        and once when the array is written, so no more than one piece is held at a time.
+    """
+
+    dtype: np.dtype
+    size: int
+    pieces: Callable[[], Iterable[np.ndarray]]
+
+    def made(self) -> Iterable[np.ndarray]:
+        """The pieces, each checked for its type, and a ValueError if they do not add up to ``size``."""
+        seen = 0
+        for a in self.pieces():
+            a = np.ascontiguousarray(a)
+            if a.dtype != self.dtype or a.ndim != 1:
+                raise ValueError(f"a piece of {a.dtype} and {a.ndim} dimensions where one-dimensional {self.dtype} was declared")
+            seen += a.size
+            yield a
+        if seen != self.size:
+            raise ValueError(f"pieces of {seen} items where {self.size} were declared")
+
+
+def _pieces_digest(given: ArrayPieces) -> str:
+    h = hashlib.sha256()
+    for a in given.made():
+        h.update(a.view(np.uint8))
+    return h.hexdigest()
+
+
 def _plain_array(name: str, a: Any) -> np.ndarray:
     """``a`` as a C-ordered numeric array, or a ValueError naming the array."""
     a = np.asarray(a)
@@ -120,7 +160,8 @@ def write_container(path: str | Path, header: dict[str, Any],
         Plain numeric arrays (names of letters, digits and ``_``; no object dtype), or functions
         that make one: such an array is made for its checksum and again when it is written (it must
         come out the same), so a caller whose arrays are derived from tables it holds never holds
-        them all at once.
+        them all at once; or :class:`ArrayPieces`, made piece by piece likewise, so not even one
+        whole array is held (the file's bytes are those of the whole array).
     force:
         Replace an existing file.
     sync:
@@ -139,6 +180,13 @@ def write_container(path: str | Path, header: dict[str, Any],
     for name, given in arrays.items():
         if name == HEADER_NAME or not _NAME.match(name):
             raise ValueError(f"array name {name!r} is reserved or not made of letters, digits and '_'")
+        if isinstance(given, ArrayPieces):
+            if np.dtype(given.dtype).kind not in _NUMERIC_KINDS:
+                raise ValueError(f"array {name!r} has dtype {given.dtype}, which the container does not store")
+            digests[name] = _pieces_digest(given)
+            layout[name] = {"dtype": np.dtype(given.dtype).str, "shape": [int(given.size)]}
+            plain[name] = given
+            continue
         a = _plain_array(name, given() if callable(given) else given)
         digests[name] = _digest(a)
         layout[name] = {"dtype": a.dtype.str, "shape": list(a.shape)}
@@ -153,6 +201,9 @@ def write_container(path: str | Path, header: dict[str, Any],
         yield HEADER_NAME, np.frombuffer(text, dtype=np.uint8)
         for name in sorted(plain):
             given = plain[name]
+            if isinstance(given, ArrayPieces):
+                yield name, given
+                continue
             if not callable(given):
                 yield name, given
                 continue
@@ -168,9 +219,24 @@ def write_container(path: str | Path, header: dict[str, Any],
                 info.compress_type = zipfile.ZIP_DEFLATED
                 info.external_attr = 0o644 << 16
                 with zf.open(info, "w", force_zip64=True) as fh:
-                    np.lib.format.write_array(fh, a, allow_pickle=False)
+                    if isinstance(a, ArrayPieces):
+                        _write_pieces(fh, name, a, digests[name])
+                    else:
+                        np.lib.format.write_array(fh, a, allow_pickle=False)
 
     return write_bytes(path, emit, force=force, sync=sync)
+
+
+def _write_pieces(fh: Any, name: str, given: ArrayPieces, digest: str) -> None:
+    """Write ``given`` as ``numpy.lib.format.write_array`` writes the whole array (same header, same bytes), piece by piece."""
+    head = {"descr": np.lib.format.dtype_to_descr(np.dtype(given.dtype)), "fortran_order": False, "shape": (int(given.size),)}
+    np.lib.format.write_array_header_1_0(fh, head)
+    h = hashlib.sha256()
+    for a in given.made():
+        h.update(a.view(np.uint8))
+        fh.write(a.view(np.uint8).data)
+    if h.hexdigest() != digest:
+        raise ValueError(f"array {name!r} came out different when made a second time")
 
 
 # ------------------------------------------------------------------ reading

@@ -83,10 +83,24 @@ def kt_bits_sparse(totals: np.ndarray, counts: np.ndarray, A: int, prior_totals=
 
     ``prior_totals`` / ``prior_counts``: counts seen before, aligned with ``totals`` / ``counts``.
     """
+    gammaln = _gammaln()
+    if prior_totals is None and prior_counts is None:
+        # the same terms as below with zero priors (0 + x is x), made in place: one array a cell and one an entry
+        t = np.array(totals, dtype=np.float64)
+        t += A / 2.0
+        gammaln(t, out=t)
+        t -= gammaln(np.full(1, A / 2.0))[0]
+        nats = np.sum(t)
+        del t
+        c = np.array(counts, dtype=np.float64)
+        c += 0.5
+        gammaln(c, out=c)
+        c -= gammaln(np.full(1, 0.5))[0]
+        nats -= np.sum(c)
+        return float(nats / LN2)
     tot_m = np.zeros(len(totals)) if prior_totals is None else np.asarray(prior_totals, dtype=np.float64)
     m = np.zeros(len(counts)) if prior_counts is None else np.asarray(prior_counts, dtype=np.float64)
     tot = tot_m + np.asarray(totals, dtype=np.float64)
-    gammaln = _gammaln()
     nats = np.sum(gammaln(tot + A / 2.0) - gammaln(tot_m + A / 2.0))
     nats -= np.sum(gammaln(m + np.asarray(counts, dtype=np.float64) + 0.5) - gammaln(m + 0.5))
     return float(nats / LN2)

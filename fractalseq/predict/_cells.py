@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Callable, Iterable
+from typing import Callable, Iterable, Iterator
 
 import numpy as np
 
@@ -25,10 +25,16 @@ class CellTable:
 
     Attributes
     ----------
-    cells : uint64, sorted strictly increasing cell addresses
-    ptr : int64 ``(cells + 1,)``, first entry of each cell
-    syms : uint32, the symbols
+    cells : sorted strictly increasing cell addresses: uint32 when the depth's words fit 32 bits
+        (``b * (n + 1) <= 32``, :func:`cell_type`), else uint64
+    ptr : ``(cells + 1,)``, first entry of each cell: uint32 while the entries number less than 2**32, else int64
+    syms : the symbols in the narrowest unsigned type of the alphabet's codes (uint8 up to 8 bits a symbol,
+        uint16 up to 16, else uint32; :func:`sym_type`)
     counts : uint32 (or uint64 before :func:`to_u32`), their counts, all positive
+
+    The narrow types (for DNA 5 bytes an entry instead of 8, and 8 bytes a cell up to depth 15, else
+    12, instead of 16) are what :func:`narrow` makes; every table this module builds and every table
+    a fitted model holds is narrowed, so the same table always has the same types.
     """
 
     cells: np.ndarray
@@ -49,8 +55,8 @@ class CellTable:
         first = np.ones(words.size, dtype=bool)
         first[1:] = ctx[1:] != ctx[:-1]
         starts = np.flatnonzero(first)
-        ptr = np.append(starts, words.size).astype(np.int64)
-        syms = (words & np.uint64((1 << b) - 1)).astype(np.uint32)
+        ptr = np.append(starts, words.size).astype(ptr_type(words.size))
+        syms = (words & np.uint64((1 << b) - 1)).astype(sym_type(b))
         return cls(ctx[starts], ptr, syms, np.ascontiguousarray(counts))
 
     @property
@@ -60,8 +66,7 @@ class CellTable:
 
     def totals(self) -> np.ndarray:
         """Total count of every cell (int64)."""
-        c = np.concatenate([[0], np.cumsum(self.counts, dtype=np.int64)])
-        return c[self.ptr[1:]] - c[self.ptr[:-1]]
+        return FK.cell_totals(self.ptr, self.counts)
 
     def distinct(self) -> np.ndarray:
         """Distinct symbols seen after every cell."""
@@ -71,12 +76,30 @@ class CellTable:
         """The (n+1)-word address of every entry (sorted), built in one array."""
         return FK.cell_words(self.cells, self.ptr, self.syms, b)
 
+    def word_pieces(self, b: int, entries: int = 1 << 20) -> Iterator[np.ndarray]:
+        """:meth:`words` in consecutive pieces of whole cells, about ``entries`` entries each (concatenated, they are it)."""
+        C = self.size
+        step = max(1, int(entries * C // max(int(self.ptr[-1]), 1)))
+        for i0 in range(0, C, step):
+            i1 = min(C, i0 + step)
+            yield FK.cell_words(self.cells[i0:i1], self.ptr[i0 : i1 + 1], self.syms[int(self.ptr[i0]) : int(self.ptr[i1])], b)
+
     def select(self, keep: np.ndarray) -> "CellTable":
         """The cells where ``keep`` is true."""
         n = self.distinct()
         ek = np.repeat(keep, n)
-        return CellTable(self.cells[keep], np.concatenate([[0], np.cumsum(n[keep])]).astype(np.int64), self.syms[ek],
-                         self.counts[ek])
+        return CellTable(self.cells[keep], np.concatenate([[0], np.cumsum(n[keep])]).astype(ptr_type(int(ek.sum()))),
+                         self.syms[ek], self.counts[ek])
+
+    def take(self, rows: np.ndarray) -> "CellTable":
+        """The cells at the increasing positions ``rows`` (as :meth:`select` of a mask true there, with arrays as long as the rows taken only)."""
+        rows = np.asarray(rows, dtype=np.int64)
+        lo = self.ptr[rows].astype(np.int64)
+        n = self.ptr[rows + 1].astype(np.int64) - lo
+        ptr = np.zeros(rows.size + 1, np.int64)
+        np.cumsum(n, out=ptr[1:])
+        at = np.repeat(lo - ptr[:-1], n) + np.arange(int(ptr[-1]), dtype=np.int64)
+        return CellTable(self.cells[rows], ptr.astype(ptr_type(int(ptr[-1]))), self.syms[at], self.counts[at])
 
     def merge(self, other: "CellTable", b: int) -> "CellTable":
         """Counts of both tables added (uint64 counts; :func:`to_u32` checks overflow)."""
@@ -95,6 +118,29 @@ class CellTable:
 
     def nbytes(self) -> int:
         return int(self.cells.nbytes + self.ptr.nbytes + self.syms.nbytes + self.counts.nbytes)
+
+
+def sym_type(b: int) -> np.dtype:
+    """The type a table keeps its symbols in: the narrowest unsigned integer of ``b``-bit codes."""
+    return np.dtype(np.uint8 if b <= 8 else np.uint16 if b <= 16 else np.uint32)
+
+
+def ptr_type(entries: int) -> np.dtype:
+    """The type of a table's entry pointers: uint32 while ``entries < 2**32``, else int64."""
+    return np.dtype(np.uint32 if entries < 1 << 32 else np.int64)
+
+
+def cell_type(n: int, b: int) -> np.dtype:
+    """The type of the cell addresses of depth ``n``: uint32 when its ``(n + 1)``-words fit 32 bits, else uint64."""
+    return np.dtype(np.uint32 if b * (n + 1) <= 32 else np.uint64)
+
+
+def narrow(t: CellTable, b: int, n: int) -> CellTable:
+    """``t`` (depth ``n``) in the table types (:func:`cell_type`, :func:`ptr_type`, :func:`sym_type`); the same table if it is."""
+    cells = t.cells.astype(cell_type(n, b), copy=False)
+    ptr = t.ptr.astype(ptr_type(int(t.ptr[-1]) if t.ptr.size else 0), copy=False)
+    syms = t.syms.astype(sym_type(b), copy=False)
+    return t if cells is t.cells and ptr is t.ptr and syms is t.syms else CellTable(cells, ptr, syms, t.counts)
 
 
 def depth_table(wc, n: int, reverse: bool = False) -> CellTable:
@@ -118,7 +164,7 @@ def depth_table(wc, n: int, reverse: bool = False) -> CellTable:
     cells, ptr, syms, cnt, over = FK.strand_table(words, counts, rw, rc, b)
     if over:
         raise InputError("A cell was seen more than 4,294,967,295 times, beyond what a model stores; split the input.")
-    return CellTable(cells, ptr, syms, cnt)
+    return narrow(CellTable(cells, ptr, syms, cnt), b, n)
 
 
 def cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, CellTable]:
@@ -127,7 +173,7 @@ def cell_tables(wc, orders: Iterable[int], reverse: bool = False) -> dict[int, C
 
 
 #: Address parts a deep depth is built in: at least 16, more (up to 256) so that a part holds about this many leaves.
-PART_LEAVES = 1 << 19
+PART_LEAVES = 1 << 18
 
 
 def _part_tables(wc, n: int, reverse: bool):
@@ -191,43 +237,148 @@ class _Packed:
     counts: np.ndarray
 
 
+@dataclass(frozen=True)
+class _Spilled:
+    """Where a packed part lies in a part store's temporary file: its offset, cells, entries and field types."""
+
+    offset: int
+    cells: int
+    entries: int
+    lens: np.dtype
+    syms: np.dtype
+    counts: np.dtype
+
+
 def _small_uint(top: int):
     """The narrowest unsigned dtype holding ``0..top``."""
     return np.uint8 if top < 1 << 8 else np.uint16 if top < 1 << 16 else np.uint32 if top < 1 << 32 else np.uint64
 
 
-def _pack(t: CellTable, A: int) -> _Packed:
-    """``t`` with one small integer a cell (its number of symbols, at most ``A``) instead of an int64 pointer, and small symbols."""
-    return _Packed(t.cells, np.diff(t.ptr).astype(_small_uint(A)), t.syms.astype(_small_uint(A - 1)), t.counts)
+def _pack(t: CellTable, A: int, b: int, n: int) -> _Packed:
+    """``t`` (depth ``n``) with one small integer a cell (its number of symbols, at most ``A``) instead of a pointer, small symbols and cells."""
+    return _Packed(t.cells.astype(cell_type(n, b), copy=False), np.diff(t.ptr).astype(_small_uint(A)),
+                   t.syms.astype(sym_type(b)), t.counts)
 
 
-def _concat(parts: list[_Packed]) -> CellTable:
-    """The packed parts (tables of increasing addresses) as one table; the list is emptied.
+#: Bytes of packed parts a :class:`_PartStore` holds in memory; beyond, its parts go to a temporary file.
+SPILL_BYTES = 4 << 20
 
-    Each field is written into its whole array part by part, and each part's field is released
-    as soon as it is copied, so the whole table is never held twice (at most one field of it).
+
+def _trim_heap() -> None:
+    """Hand the C heap's free pages back to the system (glibc's ``malloc_trim``; elsewhere nothing happens).
+
+    Called where a large set of arrays was just released (the word counts): the small blocks the
+    counting and the parts left in the heap are otherwise kept by the process (about 20 MiB at 10 Mbase).
     """
-    C = sum(int(t.cells.size) for t in parts)
-    E = sum(int(t.syms.size) for t in parts)
-    cdt = parts[0].counts.dtype if parts else np.dtype(np.uint32)
-    fields = {f: [getattr(t, f) for t in parts] for f in ("cells", "lens", "syms", "counts")}
-    parts.clear()
-    out = {"cells": np.empty(C, np.uint64), "lens": None, "syms": np.empty(E, np.uint32), "counts": np.empty(E, cdt)}
-    ptr = np.zeros(C + 1, np.int64)
-    for f in ("cells", "lens", "syms", "counts"):
-        pieces = fields.pop(f)
-        at = 0
-        for i, a in enumerate(pieces):
-            k = int(a.size)
-            if f == "lens":
-                np.cumsum(a, dtype=np.int64, out=ptr[at + 1 : at + 1 + k])
-                ptr[at + 1 : at + 1 + k] += ptr[at]
+    import ctypes
+    import ctypes.util
+
+    try:
+        ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6").malloc_trim(ctypes.c_size_t(0))
+    except (OSError, AttributeError, TypeError):
+        pass
+
+
+def _read_into(f, a: np.ndarray) -> None:
+    """Fill the contiguous array ``a`` from the file's position."""
+    view = memoryview(a).cast("B")
+    got = 0
+    while got < view.nbytes:
+        k = f.readinto(view[got:])
+        if not k:
+            raise OSError("a temporary file of the cell tables ended early")
+        got += k
+
+
+class _PartStore:
+    """The parts of the deep depths' tables, kept (packed) while the word counts are still held, then joined.
+
+    The parts are held in memory up to ``spill_bytes``; once they pass it, all of them go to an
+    unnamed temporary file (``tempfile.TemporaryFile``: the system removes it when it is closed or
+    the process ends), so the cells kept are not held beside the word counts they are built from.
+    :meth:`join`, called once the counts are dropped, reads a depth's parts straight into the
+    whole table's arrays (no second copy of the table).  The tables are the same either way (also
+    when no temporary file can be made: the parts then stay in memory).
+    """
+
+    def __init__(self, A: int, b: int, spill_bytes: int | None = None) -> None:
+        self.A, self.b = A, b
+        self.limit = SPILL_BYTES if spill_bytes is None else spill_bytes
+        self.parts: dict[int, list] = {}
+        self.held = 0
+        self.file = None
+
+    def add(self, n: int, t: CellTable) -> None:
+        """Keep ``t``, the next part (increasing addresses) of depth ``n``."""
+        p = _pack(t, self.A, self.b, n)
+        size = sum(int(a.nbytes) for a in (p.cells, p.lens, p.syms, p.counts))
+        if self.file is None and self.held + size > self.limit:
+            import tempfile
+
+            try:
+                self.file = tempfile.TemporaryFile(prefix="fractalseq-cells-")
+            except OSError:  # no writable temporary folder: the parts stay in memory (the same tables)
+                self.limit = 1 << 62
             else:
-                out[f][at : at + k] = a
-            at += k
-            pieces[i] = None  # released once copied
-        del pieces
-    return CellTable(out["cells"], ptr, out["syms"], out["counts"])
+                for kept in self.parts.values():
+                    for i, q in enumerate(kept):
+                        kept[i] = self._write(q)
+                self.held = 0
+        if self.file is None:
+            self.held += size
+            self.parts.setdefault(n, []).append(p)
+        else:
+            self.parts.setdefault(n, []).append(self._write(p))
+
+    def _write(self, p: _Packed) -> _Spilled:
+        f = self.file
+        f.seek(0, 2)
+        at = f.tell()
+        for a in (p.cells, p.lens, p.syms, p.counts):
+            f.write(np.ascontiguousarray(a).data)
+        return _Spilled(at, int(p.cells.size), int(p.syms.size), p.lens.dtype, p.syms.dtype, p.counts.dtype)
+
+    def join(self, n: int) -> CellTable:
+        """The parts of depth ``n`` as one table (narrow types, :func:`narrow`); they leave the store."""
+        parts = self.parts.pop(n, [])
+        C = sum(q.cells if isinstance(q, _Spilled) else int(q.cells.size) for q in parts)
+        E = sum(q.entries if isinstance(q, _Spilled) else int(q.syms.size) for q in parts)
+        cdt = parts[0].counts if parts and isinstance(parts[0], _Spilled) else parts[0].counts.dtype if parts else np.uint32
+        cells, ptr = np.empty(C, cell_type(n, self.b)), np.zeros(C + 1, ptr_type(E))
+        syms, counts = np.empty(E, sym_type(self.b)), np.empty(E, cdt)
+        c0 = e0 = 0
+        for i, q in enumerate(parts):
+            parts[i] = None  # released once copied
+            if isinstance(q, _Spilled):
+                k, m = q.cells, q.entries
+                self.file.seek(q.offset)
+                _read_into(self.file, cells[c0 : c0 + k])
+                lens = np.empty(k, q.lens)
+                _read_into(self.file, lens)
+                _read_into(self.file, syms[e0 : e0 + m])
+                _read_into(self.file, counts[e0 : e0 + m])
+            else:
+                k, m = int(q.cells.size), int(q.syms.size)
+                cells[c0 : c0 + k] = q.cells
+                lens = q.lens
+                syms[e0 : e0 + m] = q.syms
+                counts[e0 : e0 + m] = q.counts
+            ptr[c0 + 1 : c0 + 1 + k] = np.cumsum(lens, dtype=np.int64) + e0
+            del q, lens
+            c0, e0 = c0 + k, e0 + m
+        return CellTable(cells, ptr, syms, counts)
+
+    def close(self) -> None:
+        """Forget every part (and remove the temporary file)."""
+        self.parts.clear()
+        self.held = 0
+        if self.file is not None:
+            self.file.close()
+            self.file = None
+
+
+#: Deepest words (``b * (n + 1)`` bits) whose whole table a baseline depth is built from; beyond, it is built in parts.
+WHOLE_TABLE_BITS = 18
 
 
 def _kth_smallest(pieces: Callable[[], Iterable[np.ndarray]], total: int, k: int) -> tuple[np.uint64, int]:
@@ -273,78 +424,100 @@ def capped_cell_tables(wc, orders: Iterable[int], reverse: bool, K_b: int, cap: 
 
     ``release`` (e.g. the word counts' ``discard``) is called once the word counts are read
     for the last time, before the kept parts are joined into whole tables, so the counts and
-    the joined tables are never held together.
+    the joined tables are never held together; until then the kept parts (and those of the
+    baseline depths of words longer than ``WHOLE_TABLE_BITS``) wait in a :class:`_PartStore`,
+    on disk beyond ``SPILL_BYTES``.  The tables are narrow (:func:`narrow`).
     """
     tables: dict[int, CellTable] = {}
     deep = sorted(n for n in set(orders) if n > K_b)
-    for n in sorted(set(orders)):
-        if n <= K_b:
-            tables[n] = depth_table(wc, n, reverse)
-    nfixed = sum(t.size for t in tables.values())
-    if nfixed > cap and deep:
-        prune_cells(dict(tables), K_b, cap)  # raises: the baseline depths alone exceed the cap
-    hist = {n: np.zeros(64, np.int64) for n in deep}
-    A = wc.alphabet.size
-    # the parts kept are held packed (one byte a cell and a byte a symbol for DNA) until they are joined
-    kept: dict[int, list[_Packed]] | None = {n: [] for n in deep}
-    total = nfixed
-    for n in deep:
-        for t in _part_tables(wc, n, reverse):
-            total += t.size
-            hist[n] += np.bincount(_total_class(t.totals()), minlength=64)[:64]
-            if kept is not None and total <= cap:
-                kept[n].append(_pack(t, A))
+    A, b = wc.alphabet.size, wc.alphabet.bits
+    _trim_heap()  # what counting left in the heap
+    # the baseline depths of long words are built in parts too, kept like the deep parts below and joined
+    # with them, so they are not held whole beside the word counts during the deep passes
+    base = _PartStore(A, b)
+    # the deep parts kept are held packed (one byte a cell and a byte a symbol for DNA), on disk once they
+    # pass SPILL_BYTES, until the word counts are dropped and they are joined
+    store = _PartStore(A, b)
+    try:
+        nfixed = 0
+        for n in sorted(set(orders)):
+            if n > K_b:
+                continue
+            if b * (n + 1) <= WHOLE_TABLE_BITS:
+                tables[n] = depth_table(wc, n, reverse)
+                nfixed += tables[n].size
             else:
-                kept = None
-    if kept is not None:
+                for t in _part_tables(wc, n, reverse):
+                    base.add(n, t)
+                    nfixed += t.size
+        if nfixed > cap and deep:
+            _refuse_fixed(K_b, nfixed)
+        base_deep = [n for n in sorted(set(orders)) if n <= K_b and n not in tables]
+        hist = {n: np.zeros(64, np.int64) for n in deep}
+        fits = True
+        total = nfixed
+        for n in deep:
+            for t in _part_tables(wc, n, reverse):
+                total += t.size
+                hist[n] += np.bincount(_total_class(t.totals()), minlength=64)[:64]
+                if fits and total <= cap:
+                    store.add(n, t)
+                elif fits:
+                    fits = False
+                    store.close()
+        if fits:
+            if release is not None:
+                release()
+                _trim_heap()
+            tables.update({n: base.join(n) for n in base_deep})
+            tables.update({n: store.join(n) for n in deep})
+            return {n: tables[n] for n in sorted(tables)}, 0
+        drop = total - cap
+        # the class (total round r, depth n) where the drops reach ``drop``: rounds in order, deepest depth first
+        acc = 0
+        r_cut, n_cut, keep_in_class = 63, deep[0], 0
+        for r in range(64):
+            for n in reversed(deep):
+                if acc + hist[n][r] >= drop:
+                    r_cut, n_cut, keep_in_class = r, n, int(acc + hist[n][r] - drop)
+                    break
+                acc += int(hist[n][r])
+            else:
+                continue
+            break
+        h_cut, ties = np.uint64(0), 0
+        if keep_in_class:
+            def class_hashes():
+                for t in _part_tables(wc, n_cut, reverse):
+                    yield FK.hash_cells(t.cells[_total_class(t.totals()) == r_cut], n_cut)
+
+            h_cut, below = _kth_smallest(class_hashes, int(hist[n_cut][r_cut]), keep_in_class)
+            ties = keep_in_class - below
+        for n in deep:
+            seen = 0
+            for t in _part_tables(wc, n, reverse):
+                r = _total_class(t.totals())
+                keep = (r > r_cut) | ((r == r_cut) & (n < n_cut))
+                if n == n_cut and keep_in_class:
+                    at = np.flatnonzero(r == r_cut)
+                    h = FK.hash_cells(t.cells[at], n)
+                    tie = np.flatnonzero(h == h_cut)
+                    ok = h < h_cut
+                    ok[tie[: max(0, ties - seen)]] = True
+                    seen += tie.size
+                    keep[at[ok]] = True
+                store.add(n, t.select(keep))
+                del t
         if release is not None:
             release()
-        tables.update({n: _concat(kept[n]) for n in deep})
-        return tables, 0
-    drop = total - cap
-    # the class (total round r, depth n) where the drops reach ``drop``: rounds in order, deepest depth first
-    acc = 0
-    r_cut, n_cut, keep_in_class = 63, deep[0], 0
-    for r in range(64):
-        for n in reversed(deep):
-            if acc + hist[n][r] >= drop:
-                r_cut, n_cut, keep_in_class = r, n, int(acc + hist[n][r] - drop)
-                break
-            acc += int(hist[n][r])
-        else:
-            continue
-        break
-    h_cut, ties = np.uint64(0), 0
-    if keep_in_class:
-        def class_hashes():
-            for t in _part_tables(wc, n_cut, reverse):
-                yield FK.hash_cells(t.cells[_total_class(t.totals()) == r_cut], n_cut)
-
-        h_cut, below = _kth_smallest(class_hashes, int(hist[n_cut][r_cut]), keep_in_class)
-        ties = keep_in_class - below
-    selected: dict[int, list[_Packed]] = {}
-    for n in deep:
-        out = selected[n] = []
-        seen = 0
-        for t in _part_tables(wc, n, reverse):
-            r = _total_class(t.totals())
-            keep = (r > r_cut) | ((r == r_cut) & (n < n_cut))
-            if n == n_cut and keep_in_class:
-                at = np.flatnonzero(r == r_cut)
-                h = FK.hash_cells(t.cells[at], n)
-                tie = np.flatnonzero(h == h_cut)
-                ok = h < h_cut
-                ok[tie[: max(0, ties - seen)]] = True
-                seen += tie.size
-                keep[at[ok]] = True
-            out.append(_pack(t.select(keep), A))
-            del t
-        del out
-    if release is not None:
-        release()
-    for n in deep:
-        tables[n] = _concat(selected.pop(n))
-    return tables, int(drop)
+            _trim_heap()
+        tables.update({n: base.join(n) for n in base_deep})
+        for n in deep:
+            tables[n] = store.join(n)
+        return {n: tables[n] for n in sorted(tables)}, int(drop)
+    finally:
+        base.close()
+        store.close()
 
 
 def to_u32(table: CellTable) -> CellTable:
@@ -359,18 +532,28 @@ def blended_at(depths, tables: dict, params: dict, addr: np.ndarray, syms: np.nd
     """Blended probability of ``syms`` after contexts ``addr`` through the depths before ``upto`` (coarse to fine).
 
     As in :func:`fit_blend`: a depth whose cell is absent restarts from the uniform ``1/A``.
+    Each pair's probability depends on that pair alone, so the pairs are taken ``BLEND_PIECE``
+    at a time (the temporaries of one piece only).
     """
-    p = np.full(addr.size, 1.0 / A)
-    for m in depths:
-        if m >= upto:
-            break
-        beta, d = params[m]
-        t = tables[m]
-        key = addr & np.uint64((1 << (b * m)) - 1)
-        found, c, tot, u = FK.cell_lookup(t.cells, t.ptr, t.syms, t.counts, key, syms)
-        q = (np.maximum(c - d, 0.0) + (beta + d * u) * p) / (tot + beta)
-        p = np.where(found, q, 1.0 / A)
-    return p
+    out = np.empty(addr.size)
+    for i in range(0, addr.size, BLEND_PIECE):
+        a, s = addr[i : i + BLEND_PIECE], syms[i : i + BLEND_PIECE]
+        p = np.full(a.size, 1.0 / A)
+        for m in depths:
+            if m >= upto:
+                break
+            beta, d = params[m]
+            t = tables[m]
+            key = a & np.uint64((1 << (b * m)) - 1)
+            found, c, tot, u = FK.cell_lookup(t.cells, t.ptr, t.syms, t.counts, key, s)
+            q = (np.maximum(c - d, 0.0) + (beta + d * u) * p) / (tot + beta)
+            p = np.where(found, q, 1.0 / A)
+        out[i : i + a.size] = p
+    return out
+
+
+#: Pairs :func:`blended_at` blends at a time.
+BLEND_PIECE = 1 << 15
 
 
 def fit_blend(depths, tables: dict, alphabet: Alphabet, alpha: float, discount) -> tuple[dict, dict]:
@@ -397,10 +580,7 @@ def fit_blend(depths, tables: dict, alphabet: Alphabet, alpha: float, discount) 
         C = t.size
         step = max(1, -(-C // GRID_CELLS))
         if step > 1:
-            every = np.zeros(C, dtype=bool)
-            every[::step] = True  # every step-th cell (no index array as long as the table)
-            sub = t.select(every)
-            del every
+            sub = t.take(np.arange(0, C, step))  # every step-th cell (no array as long as the table)
         else:
             sub = t
         nper = sub.distinct()
@@ -427,6 +607,14 @@ def fit_blend(depths, tables: dict, alphabet: Alphabet, alpha: float, discount) 
     return betas, discs
 
 
+def _refuse_fixed(K_b: int, keep_fixed: int) -> None:
+    """The refusal of a cap below the cells of the baseline depths (which are never pruned)."""
+    raise ParameterError(
+        f"The cells up to depth {K_b} alone number {keep_fixed}; raise max_cells to at least {keep_fixed}.",
+        parameter="max_cells",
+    )
+
+
 def prune_cells(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
     """Drop the rarest cells of the deepest depths (beyond the baseline orders) until exactly ``cap`` remain.
 
@@ -440,10 +628,7 @@ def prune_cells(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
         return tables, 0
     keep_fixed = sum(tables[n].size for n in tables if n <= K_b)
     if keep_fixed > cap:
-        raise ParameterError(
-            f"The cells up to depth {K_b} alone number {keep_fixed}; raise max_cells to at least {keep_fixed}.",
-            parameter="max_cells",
-        )
+        _refuse_fixed(K_b, keep_fixed)
     deep = sorted((n for n in tables if n > K_b), reverse=True)
     tables = dict(tables)
     dropped = 0
@@ -458,7 +643,7 @@ def prune_cells(tables: dict, K_b: int, cap: int) -> tuple[dict, int]:
             if gone > total - cap:
                 # the last class is cut in hash order (deterministic, no bias toward any address)
                 rare = np.flatnonzero(~keep)
-                order = np.argsort(FK.hash_cells(cells[rare], n), kind="stable")
+                order = np.argsort(FK.hash_cells(cells[rare].astype(np.uint64), n), kind="stable")
                 keep[rare[order[: gone - (total - cap)]]] = True
                 gone = total - cap
             if gone:

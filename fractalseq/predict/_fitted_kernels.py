@@ -401,6 +401,24 @@ def _revcomp_prefix_ids(leaf, shift, b, head, top_shift, ids, sizes):
 
 
 @njit(cache=True)
+def _count_ids(ids, out):
+    """``out[d]`` += how many of ``ids`` equal ``d``."""
+    for i in range(ids.shape[0]):
+        out[ids[i]] += 1
+
+
+@njit(cache=True)
+def _bucket_positions(ids, p0, p1, cursor, out):
+    """Positions ``i`` (increasing) of the ids in ``[p0, p1)``, bucketed by id: bucket ``d - p0`` fills ``out`` from ``cursor[d - p0]``."""
+    for i in range(ids.shape[0]):
+        d = np.int64(ids[i])
+        if d >= p0 and d < p1:
+            k = cursor[d - p0]
+            out[k] = i
+            cursor[d - p0] = k + 1
+
+
+@njit(cache=True)
 def _revcomp_prefix_gather(leaf, counts, sel, shift, n, b, out_w, out_c):
     """Reverse complements of the prefixes of the leaves ``sel`` (increasing; equal prefixes neighbours), counts summed."""
     us = np.uint64(shift)
@@ -437,11 +455,11 @@ def _cell_lookup(cells, ptr, syms, counts, keys, want, found, c, tot, used):
         hi = nc
         while lo < hi:
             mid = (lo + hi) >> 1
-            if cells[mid] < k:
+            if np.uint64(cells[mid]) < k:
                 lo = mid + 1
             else:
                 hi = mid
-        if lo < nc and cells[lo] == k:
+        if lo < nc and np.uint64(cells[lo]) == k:
             found[q] = True
             t = np.int64(0)
             for e in range(ptr[lo], ptr[lo + 1]):
@@ -462,11 +480,21 @@ def _hash_cells(addr, depth):
 
 
 @njit(cache=True)
+def _cell_totals(ptr, counts, out):
+    """The total count of every cell of a table (int64), from its entry pointers and counts."""
+    for i in range(out.shape[0]):
+        t = np.int64(0)
+        for e in range(ptr[i], ptr[i + 1]):
+            t += np.int64(counts[e])
+        out[i] = t
+
+
+@njit(cache=True)
 def _cell_words(cells, ptr, syms, b, out):
     """The (n+1)-word address ``cell << b | symbol`` of every entry of a cell table, written into ``out``."""
     ub = np.uint64(b)
     for i in range(cells.shape[0]):
-        head = cells[i] << ub
+        head = np.uint64(cells[i]) << ub
         for e in range(ptr[i], ptr[i + 1]):
             out[e] = head | np.uint64(syms[e])
 
@@ -564,6 +592,10 @@ def revcomp_in_range(words, counts, n, b, lo: int, hi: int | None):
     return rw, rc
 
 
+#: Leaves whose positions one scan of a :class:`RevcompParts`' part numbers collects (8 bytes each; several parts at once).
+GROUP_LEAVES = 1 << 19
+
+
 class RevcompParts:
     """Reverse complements of the n-prefixes of a sorted leaf table, one address part at a time.
 
@@ -571,6 +603,7 @@ class RevcompParts:
     ``p``; that of a reverse complement comes from the prefix's last symbols.  A first scan notes
     each leaf's part (one byte a leaf) and sizes the parts; each :meth:`part` call gathers that
     part's leaves and sorts only their complements, so nothing else as large as the leaf table is held.
+    Parts asked for in increasing order share the scans of the part numbers (:meth:`_positions`).
     """
 
     def __init__(self, leaf, counts, shift: int, n: int, b: int, part_bits: int) -> None:
@@ -580,13 +613,33 @@ class RevcompParts:
         self.sizes = np.zeros(1 << part_bits, np.int64)
         self.ids = np.empty(leaf.shape[0], np.uint8)
         _revcomp_prefix_ids(leaf, self.shift, self.b, head, head * b - part_bits, self.ids, self.sizes)
+        self.leaves = np.zeros(1 << part_bits, np.int64)  # leaves of each part (numpy's bincount would widen the ids to 8 bytes)
+        _count_ids(self.ids, self.leaves)
+        self._lo = self._hi = 0
+        self._pos = self._starts = np.zeros(1, np.int64)
+
+    def _positions(self, p: int) -> np.ndarray:
+        """The leaves of part ``p`` (increasing positions); one scan of the ids collects those of the next few parts
+        too (up to ``GROUP_LEAVES`` leaves), so parts asked for in order cost a scan per group, not per part."""
+        if not self._lo <= p < self._hi:
+            self._pos = None
+            q, tot = p + 1, int(self.leaves[p])
+            while q < self.leaves.size and tot + int(self.leaves[q]) <= GROUP_LEAVES:
+                tot += int(self.leaves[q])
+                q += 1
+            starts = np.zeros(q - p + 1, np.int64)
+            np.cumsum(self.leaves[p:q], out=starts[1:])
+            pos = np.empty(tot, np.int64)
+            _bucket_positions(self.ids, p, q, starts[:-1].copy(), pos)
+            self._lo, self._hi, self._pos, self._starts = p, q, pos, starts
+        return self._pos[self._starts[p - self._lo] : self._starts[p - self._lo + 1]]
 
     def part(self, p: int) -> tuple[np.ndarray, np.ndarray]:
         """Sorted reverse-complement addresses of part ``p`` and their counts (the leaves' count type)."""
         m = int(self.sizes[p])
         rw, rc = np.empty(m, np.uint64), np.empty(m, self.counts.dtype)
         if m:
-            sel = np.flatnonzero(self.ids == p)
+            sel = self._positions(p)
             _revcomp_prefix_gather(self.leaf, self.counts, sel, self.shift, self.n, self.b, rw, rc)
             del sel
             order = np.argsort(rw)  # addresses are unique: any sort gives the same order
@@ -599,7 +652,7 @@ def cell_lookup(cells, ptr, syms, counts, keys, want):
 
     Absent cells and symbols give zeros.
     """
-    _need(cells.dtype == np.uint64 and keys.dtype == np.uint64 and ptr.dtype == np.int64, "uint64 cells and keys, int64 ptr", "cells")
+    _need(cells.dtype.kind == "u" and keys.dtype == np.uint64 and ptr.dtype.kind in "iu", "unsigned cells, uint64 keys, integer ptr", "cells")
     m = keys.shape[0]
     found = np.zeros(m, np.bool_)
     c, tot, used = np.zeros(m), np.zeros(m), np.zeros(m)
@@ -614,12 +667,28 @@ def hash_cells(addr, depth):
 
 
 def cell_words(cells, ptr, syms, b):
-    """The sorted (n+1)-word addresses of a cell table's entries, built in one array (no temporaries as long)."""
-    cells = np.ascontiguousarray(cells, dtype=np.uint64)
-    ptr = np.ascontiguousarray(ptr, dtype=np.int64)
-    syms = np.ascontiguousarray(syms, dtype=np.uint32)
-    _need(ptr.shape[0] == cells.shape[0] + 1 and (ptr.shape[0] == 1 or int(ptr[-1]) == syms.shape[0]),
+    """The sorted (n+1)-word addresses of a cell table's entries, built in one array (no temporaries as long).
+
+    ``cells`` may be of any unsigned type, ``ptr`` and ``syms`` of any integer type (the tables keep them narrow);
+    ``ptr`` may start above 0 (a slice of a table's cells, :meth:`CellTable.word_pieces`), as long as
+    its last value minus its first is the number of ``syms`` given.
+    """
+    cells, ptr, syms = np.ascontiguousarray(cells), np.ascontiguousarray(ptr), np.ascontiguousarray(syms)
+    _need(cells.dtype.kind == "u" and ptr.dtype.kind in "iu" and syms.dtype.kind in "iu", "unsigned cells, integer pointers and symbols", "ptr")
+    if ptr.shape[0] and int(ptr[0]):
+        ptr = ptr - ptr[0]
+    _need(ptr.shape[0] == cells.shape[0] + 1 and int(ptr[-1]) == syms.shape[0],
           "one more pointer than cells, the last one the number of entries", "ptr")
     out = np.empty(syms.shape[0], np.uint64)
     _cell_words(cells, ptr, syms, b, out)
+    return out
+
+
+def cell_totals(ptr, counts):
+    """The total count of every cell (int64) of a table with entry pointers ``ptr`` and ``counts`` (no array as long as the entries)."""
+    ptr, counts = np.ascontiguousarray(ptr), np.ascontiguousarray(counts)
+    _need(ptr.dtype.kind in "iu" and counts.dtype.kind in "iu" and ptr.shape[0] >= 1 and int(ptr[-1]) == counts.shape[0],
+          "integer pointers ending at the number of integer counts", "ptr")
+    out = np.empty(ptr.shape[0] - 1, np.int64)
+    _cell_totals(ptr, counts, out)
     return out

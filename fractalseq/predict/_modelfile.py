@@ -56,7 +56,7 @@ from typing import Any
 import numpy as np
 
 from fractalseq.errors import InputError, ModelFileError
-from fractalseq.io._npz import DEFAULT_MAX_BYTES, read_container, write_container
+from fractalseq.io._npz import DEFAULT_MAX_BYTES, ArrayPieces, read_container, write_container
 
 FORMAT = "fractalseq-model"
 VERSION = 2
@@ -116,7 +116,7 @@ def write_state(state: ModelState, path: str | Path, force: bool = False) -> Pat
     from fractalseq import __version__
 
     # an array may be given as a function that makes it (see write_container): made when written
-    arrays = {k: v if callable(v) else np.ascontiguousarray(v) for k, v in state.arrays.items()}
+    arrays = {k: v if callable(v) or isinstance(v, ArrayPieces) else np.ascontiguousarray(v) for k, v in state.arrays.items()}
     header = {k: v for k, v in state.header.items() if k not in _ENVELOPE}
     header.update(format=FORMAT, version=VERSION, software=f"fractalseq {__version__}")
     return write_container(path, header, arrays, force=force)

@@ -60,7 +60,8 @@ from fractalseq.predict._baselines import (
     baseline_kinds,
     kt_bits_by_order,
 )
-from fractalseq.predict._cells import CellTable, capped_cell_tables, fit_blend, prune_cells, to_u32
+from fractalseq.predict._cells import CellTable, capped_cell_tables, fit_blend, narrow, prune_cells, to_u32
+from fractalseq.io._npz import ArrayPieces
 from fractalseq.predict._modelfile import ModelState, read_state, write_state
 from fractalseq.predict._online import evaluate_online, markov_online_baseline, online_code_length  # noqa: F401 (online_code_length: callers import it from here)
 from fractalseq.predict._params import (
@@ -301,6 +302,7 @@ class CellPredictor:
         self.n_symbols_ = int(n_symbols)
         self.n_segments_ = int(n_segments)
         cap = self._cap()
+        tables = {n: narrow(t, alphabet.bits, n) for n, t in tables.items()}  # the table types (no copy when they are)
         tables, more = prune_cells(tables, K_b, cap)
         self.pruned_cells_ = int(pruned) + more
         self.max_cells_ = cap
@@ -557,15 +559,17 @@ class CellPredictor:
     def to_state(self, lazy: bool = False) -> ModelState:
         """The fitted model as a plain state (JSON-ready header and cell tables) for :mod:`fractalseq.predict._modelfile`.
 
-        With ``lazy`` each ``words_<n>`` entry is a function that builds the array (8 bytes an
-        entry) when the file is written, one depth at a time, instead of the array itself.
+        With ``lazy`` each ``words_<n>`` entry is an :class:`~fractalseq.io._npz.ArrayPieces` that makes
+        the array (8 bytes an entry) in pieces of about 2**20 entries when the file is written, instead
+        of the array itself: not even one depth's word array is held whole.
         """
         _check_fitted(self)
         arrays: dict[str, Any] = {}
         b = self.alphabet_.bits
         for n in self.depths_:
             table = self.counts_[n]
-            arrays[f"words_{n}"] = (lambda t=table: t.words(b)) if lazy else table.words(b)
+            arrays[f"words_{n}"] = (ArrayPieces(np.dtype(np.uint64), int(table.syms.size), lambda t=table: t.word_pieces(b))
+                                    if lazy else table.words(b))
             arrays[f"counts_{n}"] = np.ascontiguousarray(table.counts, dtype=np.uint32)
         params = {k: (list(v) if isinstance(v, (tuple, np.ndarray)) else v) for k, v in self.get_params().items()}
         if isinstance(params.get("depths"), list):
