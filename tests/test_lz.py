@@ -134,3 +134,25 @@ def test_bad_input():
         lz.h_lz76(np.array([0, 1, 5]), 4)
     with pytest.raises(ParameterError):
         lz.lz76_phrases(np.array([0, 1]), method="other")
+
+
+def test_prefix_parse_converts_only_the_prefix():
+    """A long stream with ``max_length`` is checked whole but only its prefix is converted and parsed:
+    the memory taken is that of the prefix, not 4 bytes per symbol of the stream (a 1-Gbase profile
+    briefly held 4 GB here). numpy reports its array memory to tracemalloc (standard library)."""
+    import tracemalloc
+
+    x = np.tile(mk.iid(1 << 16, [0.25] * 4, seed=3).astype(np.uint8), 256)  # 16.8 M symbols
+    whole = lz.h_lz76(x[: 1 << 16], 4)
+    tracemalloc.start()
+    try:
+        cut = lz.h_lz76(x, 4, max_length=1 << 16)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert cut.details["complexity"] == whole.details["complexity"] and cut.details["parsed"] == 1 << 16
+    assert peak < 4 * x.size // 8, peak  # far below an int32 copy of the stream (67 MB)
+    with pytest.raises(InputError):  # a bad code anywhere in the stream is still found
+        y = x.copy()
+        y[-1] = 7
+        lz.h_lz76(y, 4, max_length=1 << 16)

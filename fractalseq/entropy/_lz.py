@@ -85,7 +85,8 @@ def _ks(s, starts_out):
     return c
 
 
-def _check_codes(codes) -> np.ndarray:
+def _code_array(codes) -> np.ndarray:
+    """``codes`` as an array, checked (one-dimensional, integer, non-negative) but not converted."""
     arr = np.asarray(codes)
     if arr.ndim != 1:
         raise InputError("LZ76 needs a one-dimensional array of symbol codes.")
@@ -93,6 +94,11 @@ def _check_codes(codes) -> np.ndarray:
         raise InputError("LZ76 needs integer symbol codes; encode the symbols first.")
     if arr.size and arr.min() < 0:
         raise InputError("Symbol codes must be non-negative.")
+    return arr
+
+
+def _check_codes(codes) -> np.ndarray:
+    arr = _code_array(codes)
     if arr.size >= (1 << 31) - 1:
         raise InputError("LZ76 parses at most 2**31 - 2 symbols at once; give a prefix (max_length).")
     return np.ascontiguousarray(arr.astype(np.int32))
@@ -331,19 +337,21 @@ def h_lz76(
             alphabet_size = codes.alphabet.size
         starts = codes.starts if starts is None else starts
         codes = codes.codes
-    s = _check_codes(codes)
-    total = s.size
+    raw = _code_array(codes)  # the whole stream is checked, only the parsed prefix converted
+    total = raw.size
     if total == 0:
         raise InputError("LZ76 needs at least one symbol; the stream is empty.")
-    A = int(alphabet_size) if alphabet_size is not None else int(s.max()) + 1
+    top = int(raw.max())
+    A = int(alphabet_size) if alphabet_size is not None else top + 1
     if A < 2:
         raise ParameterError("LZ76 entropy needs an alphabet of at least 2 symbols.", parameter="alphabet_size")
-    if s.max() >= A:
-        raise InputError(f"Symbol codes reach {int(s.max())}, beyond alphabet size {A}.")
+    if top >= A:
+        raise InputError(f"Symbol codes reach {top}, beyond alphabet size {A}.")
     notes = []
     if max_length is not None and total > max_length:
-        s = s[: int(max_length)]
+        raw = raw[: int(max_length)]
         notes.append(f"parsed the first {int(max_length)} of {total} symbols (max_length)")
+    s = _check_codes(raw)
     st = np.zeros(1, np.int64) if starts is None else np.asarray(starts, np.int64)
     st = np.unique(np.concatenate([[0], st[(st > 0) & (st < s.size)]]))
     ends = np.append(st[1:], s.size)
