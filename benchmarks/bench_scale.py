@@ -325,7 +325,7 @@ def gigabase(work: Path, measured: Path | None, notes: dict[str, str]) -> int:
     ``/usr/bin/time -v`` of the same commands, already run one process each, are read from
     ``measured/NAME.time`` (NAME: ``profile10m``, ``profile100m``, ``profile1g``, ``count1g``, ``score1g``; a missing
     file is a command not run) instead of running them; ``notes`` are written beside the rows.
-    ``learn`` is not run at 1 Gbase: it needs about 28 bytes per symbol (see "Memory of learn" in the
+    ``learn`` is not run at 1 Gbase: it needs about 22 bytes per symbol (see "Memory of learn" in the
     README).  Writes ``scale_gigabase.{json,md}``."""
     files = {"profile (reference)": "profile10m", "profile (100 Mbase)": "profile100m", "profile": "profile1g", "count --depth 16": "count1g",
              "score --online --baselines none": "score1g"}
@@ -362,7 +362,7 @@ def gigabase(work: Path, measured: Path | None, notes: dict[str, str]) -> int:
         per = f"{r['cpu_seconds_per_mbase']:.2f}" if r["cpu_seconds_per_mbase"] is not None else "-"
         lines.append(f"| `{r['command']}`{ok} | {r['mbase']:g} | {mem} | {r['bytes_per_symbol'] or '-'} | {cpu} | {per} | {rate} | {r['note']} |")
     lines += ["", f"Machine: {data['machine']}. CPU time is user + system of the whole process (`/usr/bin/time -v`); "
-              "`learn` is not run at 1 Gbase (about 28 bytes per symbol).", ""]
+              "`learn` is not run at 1 Gbase (about 22 bytes per symbol at 30 Mbase: 22 GB).", ""]
     write_results("scale_gigabase", data, "\n".join(lines))
     print("\n".join(lines))
     return 0
