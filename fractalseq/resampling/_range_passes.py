@@ -38,6 +38,53 @@ BATCH = 1 << 12
 
 
 @njit(cache=True)
+def _collect(codes, starts, depth, bits, a_lo, a_hi, at, roll, ps, addrs):
+    """The next words (start ``p`` and address) with ``a_lo <= address <= a_hi``, in order of position.
+
+    The one loop over the codes of every pass here (the loop of ``_segment_words``): the address is
+    rolled symbol by symbol, restarts at every segment start, and a word is taken once ``depth``
+    symbols of its segment are read.  It stops when ``ps`` is full and resumes from ``at`` (segment,
+    next symbol, symbols read in the segment) and ``roll`` (the address so far).  Returns how many
+    words it wrote (0: the stream is done).
+    """
+    n = codes.shape[0]
+    nseg = starts.shape[0]
+    ub = np.uint64(bits)
+    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
+    cap = ps.shape[0]
+    nb = 0
+    s, k, filled = at[0], at[1], at[2]
+    addr = roll[0]
+    while s < nseg and nb < cap:
+        e = starts[s + 1] if s + 1 < nseg else n
+        while k < e and nb < cap:
+            addr = ((addr << ub) | np.uint64(codes[k])) & kmask
+            filled += 1
+            if filled >= depth and addr >= a_lo and addr <= a_hi:
+                ps[nb] = k - depth + 1
+                addrs[nb] = addr
+                nb += 1
+            k += 1
+        if k >= e:  # the next segment starts afresh
+            s += 1
+            addr = np.uint64(0)
+            filled = 0
+            if s < nseg:
+                k = starts[s]
+    at[0], at[1], at[2] = s, k, filled
+    roll[0] = addr
+    return nb
+
+
+@njit(cache=True)
+def _cursor(starts):
+    """A fresh :func:`_collect` position: the first segment's first symbol."""
+    at = np.zeros(3, dtype=np.int64)
+    at[1] = starts[0] if starts.shape[0] else 0
+    return at, np.zeros(1, dtype=np.uint64)
+
+
+@njit(cache=True)
 def _labels_of(addrs, nb, table, words, lo, hi, labs):
     for j in range(nb):
         labs[j] = _label(addrs[j], table, words, lo, hi)
@@ -71,33 +118,18 @@ def pass_sizes(codes, starts, depth, bits, span, ell, table, words, last, sizes,
     ``words``), ``last`` (``-1``) each item's last block.
     """
     n = codes.shape[0]
-    nseg = starts.shape[0]
-    ub = np.uint64(bits)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
     m = words.shape[0]
     ps = np.empty(BATCH, dtype=np.int64)
     addrs = np.empty(BATCH, dtype=np.uint64)
     labs = np.empty(BATCH, dtype=np.int64)
     state = np.array([0, min(ell, n)], dtype=np.int64)  # the block of the next word and its end
-    nb = 0
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else n
-        addr = np.uint64(0)
-        filled = 0
-        for i in range(a, e):
-            addr = ((addr << ub) | np.uint64(codes[i])) & kmask
-            filled += 1
-            if filled >= depth:
-                ps[nb] = i - depth + 1
-                addrs[nb] = addr
-                nb += 1
-                if nb == BATCH:
-                    _labels_of(addrs, nb, table, words, 0, m, labs)
-                    _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ)
-                    nb = 0
-    _labels_of(addrs, nb, table, words, 0, m, labs)
-    _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ)
+    at, roll = _cursor(starts)
+    while True:
+        nb = _collect(codes, starts, depth, bits, np.uint64(0), ~np.uint64(0), at, roll, ps, addrs)
+        if nb == 0:
+            break
+        _labels_of(addrs, nb, table, words, 0, m, labs)
+        _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ)
 
 
 #: Words ahead whose row cursor, and then whose row slot, is fetched while a word is appended.
@@ -129,43 +161,51 @@ def _apply_fill(ps, labs, nb, lo, seen, cursor, blocks, counts):
 
 
 @njit(cache=True)
+def _blocks_of(ps, nb, span, ell, n, state, keep):
+    """Each word's block in place of its start (``ps``), and whether it ends inside that block (``keep``)."""
+    b = state[0]
+    bend = state[1]
+    for j in range(nb):
+        p = ps[j]
+        while p >= bend:
+            b += 1
+            bend = min(bend + ell, n)
+        keep[j] = p + span <= bend
+        ps[j] = b
+    state[0] = b
+    state[1] = bend
+
+
+@njit(cache=True)
+def _kept(ps, addrs, keep, nb):
+    """Move the kept words to the front; returns how many."""
+    k = 0
+    for j in range(nb):
+        if keep[j]:
+            ps[k] = ps[j]
+            addrs[k] = addrs[j]
+            k += 1
+    return k
+
+
+@njit(cache=True)
 def pass_fill(codes, starts, depth, bits, span, ell, table, words, lo, hi, seen, cursor, blocks, counts):
     """Fill the rows of items ``lo..hi-1`` (``cursor``: each row's next slot, ``seen``: its last block)."""
     n = codes.shape[0]
-    nseg = starts.shape[0]
-    ub = np.uint64(bits)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
-    a_lo = words[lo]
-    a_hi = words[hi - 1]
     bs = np.empty(BATCH, dtype=np.int64)
     addrs = np.empty(BATCH, dtype=np.uint64)
     labs = np.empty(BATCH, dtype=np.int64)
-    nb = 0
-    b = 0  # the block of p, and where it ends (no division per position)
-    bend = min(ell, n)
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else n
-        addr = np.uint64(0)
-        filled = 0
-        for k in range(a, e):
-            addr = ((addr << ub) | np.uint64(codes[k])) & kmask
-            filled += 1
-            if filled >= depth and addr >= a_lo and addr <= a_hi:
-                p = k - depth + 1
-                while p >= bend:
-                    b += 1
-                    bend = min(bend + ell, n)
-                if p + span <= bend:
-                    bs[nb] = b
-                    addrs[nb] = addr
-                    nb += 1
-                    if nb == BATCH:
-                        _labels_of(addrs, nb, table, words, lo, hi, labs)
-                        _apply_fill(bs, labs, nb, lo, seen, cursor, blocks, counts)
-                        nb = 0
-    _labels_of(addrs, nb, table, words, lo, hi, labs)
-    _apply_fill(bs, labs, nb, lo, seen, cursor, blocks, counts)
+    keep = np.empty(BATCH, dtype=np.bool_)
+    state = np.array([0, min(ell, n)], dtype=np.int64)
+    at, roll = _cursor(starts)
+    while True:
+        nb = _collect(codes, starts, depth, bits, words[lo], words[hi - 1], at, roll, bs, addrs)
+        if nb == 0:
+            break
+        _blocks_of(bs, nb, span, ell, n, state, keep)
+        nb = _kept(bs, addrs, keep, nb)
+        _labels_of(addrs, nb, table, words, lo, hi, labs)
+        _apply_fill(bs, labs, nb, lo, seen, cursor, blocks, counts)
 
 
 @njit(cache=True)
@@ -189,42 +229,39 @@ def pass_direct(codes, starts, depth, bits, span, ell, table, words, wt, wmax, o
     quantities the item-major tally computes from its rows), ``occ`` every word's occurrences.
     """
     n = codes.shape[0]
-    nseg = starts.shape[0]
-    ub = np.uint64(bits)
-    kmask = (np.uint64(1) << np.uint64(bits * depth)) - np.uint64(1) if bits * depth < 64 else ~np.uint64(0)
     m = words.shape[0]
     seen = np.full(m, -1, dtype=np.int64)
     cnt = np.zeros(m, dtype=np.int64)
     touched = np.empty(min(m, max(ell, 1)), dtype=np.int64)
+    ps = np.empty(BATCH, dtype=np.int64)
+    addrs = np.empty(BATCH, dtype=np.uint64)
+    labs = np.empty(BATCH, dtype=np.int64)
+    keep = np.empty(BATCH, dtype=np.bool_)
+    state = np.array([0, min(ell, n)], dtype=np.int64)
+    at, roll = _cursor(starts)
     nt = 0
-    b = 0
-    bend = min(ell, n)
-    for s in range(nseg):
-        a = starts[s]
-        e = starts[s + 1] if s + 1 < nseg else n
-        addr = np.uint64(0)
-        filled = 0
-        for k in range(a, e):
-            addr = ((addr << ub) | np.uint64(codes[k])) & kmask
-            filled += 1
-            if filled >= depth:
-                p = k - depth + 1
-                lab = _label(addr, table, words, 0, m)
-                occ[lab] += 1
-                if p >= bend:
-                    _flush_block(b, nt, touched, cnt, wt, wmax, acc, bound)
-                    nt = 0
-                    while p >= bend:
-                        b += 1
-                        bend = min(bend + ell, n)
-                if p + span <= bend:
-                    if seen[lab] != b:
-                        seen[lab] = b
-                        cnt[lab] = 1
-                        touched[nt] = lab
-                        nt += 1
-                    else:
-                        cnt[lab] += 1
+    b = 0  # the block whose items are being collected
+    while True:
+        nb = _collect(codes, starts, depth, bits, np.uint64(0), ~np.uint64(0), at, roll, ps, addrs)
+        if nb == 0:
+            break
+        _labels_of(addrs, nb, table, words, 0, m, labs)
+        _blocks_of(ps, nb, span, ell, n, state, keep)
+        for j in range(nb):
+            lab = labs[j]
+            occ[lab] += 1
+            if ps[j] != b:
+                _flush_block(b, nt, touched, cnt, wt, wmax, acc, bound)
+                nt = 0
+                b = ps[j]
+            if keep[j]:
+                if seen[lab] != b:
+                    seen[lab] = b
+                    cnt[lab] = 1
+                    touched[nt] = lab
+                    nt += 1
+                else:
+                    cnt[lab] += 1
     if nt:
         _flush_block(b, nt, touched, cnt, wt, wmax, acc, bound)
 
