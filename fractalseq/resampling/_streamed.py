@@ -78,13 +78,12 @@ def _check_weights(wt: np.ndarray, n_blocks: int) -> np.ndarray:
     return np.ascontiguousarray(wt)
 
 
-def _direct(codes, starts, bits: int, index: WordIndex, span: int, ell: int, wt: np.ndarray, cap: int):
+def _direct(codes, starts, bits: int, table, index: WordIndex, span: int, ell: int, wt: np.ndarray, cap: int):
     """The spectra of a few items: every item's replicate counts summed block by block in one pass."""
     T, m = index.length, index.size
     wt = _check_weights(wt, -(-T // ell) if T else 0)
     R = wt.shape[1]
     cap = max(int(cap), 2)
-    table = index.table if index.table is not None else np.zeros(0, dtype=np.int32)
     occ = np.zeros(m, dtype=np.int64)
     acc = np.zeros((m, R), dtype=np.int32)
     bound = np.zeros(m, dtype=np.int64)
@@ -138,7 +137,7 @@ def streamed_replicate_spectra(
     codes, starts, bits = arr.codes, np.asarray(arr.starts, dtype=np.int64), int(arr.alphabet.bits)
     table = index.table if index.table is not None else np.zeros(0, dtype=np.int32)
     if wt.ndim == 2 and m * wt.shape[1] <= DIRECT_CELLS:
-        return _direct(codes, starts, bits, index, int(span), ell, wt, cap)
+        return _direct(codes, starts, bits, table, index, int(span), ell, wt, cap)
     sizes = np.zeros(m, dtype=np.int64)
     occ = np.zeros(m, dtype=np.int64)
     last = np.full(m, -1, dtype=np.int32)
