@@ -91,22 +91,14 @@ def _labels_of(addrs, nb, table, words, lo, hi, labs):
 
 
 @njit(cache=True)
-def _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ):
-    """Occurrences and block rows of a batch of words; ``state`` holds the current block and its end."""
-    b = state[0]
-    bend = state[1]
+def _apply_sizes(bs, keep, labs, nb, last, sizes, occ):
+    """Occurrences and block rows of a batch of words (``bs``: each word's block, :func:`_blocks_of`)."""
     for j in range(nb):
-        p = ps[j]
         lab = labs[j]
         occ[lab] += 1
-        while p >= bend:
-            b += 1
-            bend = min(bend + ell, n)
-        if p + span <= bend and last[lab] != b:
-            last[lab] = b
+        if keep[j] and last[lab] != bs[j]:
+            last[lab] = bs[j]
             sizes[lab] += 1
-    state[0] = b
-    state[1] = bend
 
 
 @njit(cache=True)
@@ -122,6 +114,7 @@ def pass_sizes(codes, starts, depth, bits, span, ell, table, words, last, sizes,
     ps = np.empty(BATCH, dtype=np.int64)
     addrs = np.empty(BATCH, dtype=np.uint64)
     labs = np.empty(BATCH, dtype=np.int64)
+    keep = np.empty(BATCH, dtype=np.bool_)
     state = np.array([0, min(ell, n)], dtype=np.int64)  # the block of the next word and its end
     at, roll = _cursor(starts)
     while True:
@@ -129,7 +122,8 @@ def pass_sizes(codes, starts, depth, bits, span, ell, table, words, last, sizes,
         if nb == 0:
             break
         _labels_of(addrs, nb, table, words, 0, m, labs)
-        _apply_sizes(ps, labs, nb, span, ell, n, state, last, sizes, occ)
+        _blocks_of(ps, nb, span, ell, n, state, keep)
+        _apply_sizes(ps, keep, labs, nb, last, sizes, occ)
 
 
 #: Words ahead whose row cursor, and then whose row slot, is fetched while a word is appended.
