@@ -25,6 +25,8 @@ Run::
                                                            # profile only, this tree against another one
     python benchmarks/bench_scale.py --profile-workers 2 --sizes 100
                                                            # profile serial and on 2 workers (same JSON?)
+    python benchmarks/bench_scale.py --count-workers 2 --sizes 100,300
+                                                           # count --depth 16 serial and on 2 workers, 5 pairs each
     python benchmarks/bench_scale.py --cpu-split 2 --sizes 20
                                                            # CPU of the parent and of its 2 workers
     python benchmarks/bench_scale.py --gigabase-only       # profile, count and score of 1 Gbase (~1 CPU hour, ~5 GB)
@@ -242,6 +244,62 @@ def profile_workers(sizes: list[float], workers: int, work: Path) -> int:
     return 0
 
 
+def count_workers(sizes: list[float], workers: int, repeats: int, work: Path) -> int:
+    """``count --depth 16 --json`` of one simulated 24-record input per size, serial and with ``--workers N``
+    (split by address: each worker reads the file and counts one slice of the words), as whole processes,
+    ``repeats`` pairs run alternately (the machine's noise shows in the spread).  Wall and CPU seconds,
+    the largest process, the load before and after, whether the documents are the same bytes, and the
+    speed-up of each pair and of the median walls.  Writes ``scale_count_workers.{json,md}``."""
+    rows, summary = [], []
+    for mbase in sizes:
+        path = work / f"sim{int(mbase)}m_{RECORDS_MULTI}r.fa"
+        simulate_fasta(path, int(mbase * 1e6), RECORDS_MULTI)
+        timed(fs("count", path, "--depth", "16", "--quiet", "--workers", str(workers)))  # warm the page cache and kernels
+        walls: dict[str, list[float]] = {"serial": [], "workers": []}
+        for rep in range(repeats):
+            docs = {}
+            for label, extra in (("serial", []), ("workers", ["--workers", str(workers)])):
+                out = work / "out.json"
+                before = os.getloadavg()
+                with open(out, "wb") as fh:
+                    r = timed(fs("count", path, "--depth", "16", "--json", "--quiet", *extra), stdout=fh)
+                after = os.getloadavg()
+                docs[label] = out.read_bytes()
+                walls[label].append(r["seconds"])
+                row = {"run": "serial" if label == "serial" else f"--workers {workers}", "mbase": mbase, "repeat": rep + 1,
+                       **r, "load_before": round(before[0], 2), "load_after": round(after[0], 2)}
+                rows.append(row)
+                print(row, flush=True)
+            rows[-1]["same_json"] = docs["serial"] == docs["workers"]
+            rows[-1]["speed_up_wall"] = round(rows[-2]["seconds"] / rows[-1]["seconds"], 2)
+        med = {k: float(np.median(v)) for k, v in walls.items()}
+        summary.append({"mbase": mbase, "median_serial_s": med["serial"], "median_workers_s": med["workers"],
+                        "speed_up_of_medians": round(med["serial"] / med["workers"], 2),
+                        "pair_speed_ups": [r["speed_up_wall"] for r in rows if r["mbase"] == mbase and "speed_up_wall" in r]})
+        path.unlink()
+    data = {"machine": f"{platform.machine()}, {os.cpu_count()} logical CPUs, Python {platform.python_version()}",
+            "workers": workers, "rows": rows, "summary": summary}
+    lines = ["| run | Mbase | repeat | wall time | CPU time (all processes) | largest process | load before -> after (1 min) | "
+             "same JSON | wall speed-up of the pair |", "|---|---:|---:|---:|---:|---:|---|---|---:|"]
+    for r in rows:
+        mem = f"{r['peak_bytes'] / 2**20:,.0f} MiB" if r["peak_bytes"] else "-"
+        ok = "" if r["exit"] == 0 else f" (exit {r['exit']})"
+        same = {True: "yes", False: "no"}.get(r.get("same_json"), "")
+        lines.append(f"| `{r['run']}`{ok} | {r['mbase']:g} | {r['repeat']} | {r['seconds']:.2f} s | {r['cpu_seconds']:.1f} s | "
+                     f"{mem} | {r['load_before']:.2f} -> {r['load_after']:.2f} | {same} | {r.get('speed_up_wall', '')} |")
+    lines += ["", "| Mbase | median wall, serial | median wall, workers | speed-up of the medians | speed-ups of the pairs |",
+              "|---:|---:|---:|---:|---|"]
+    for s_ in summary:
+        lines.append(f"| {s_['mbase']:g} | {s_['median_serial_s']:.2f} s | {s_['median_workers_s']:.2f} s | "
+                     f"**{s_['speed_up_of_medians']:.2f}×** | {', '.join(f'{x:.2f}' for x in s_['pair_speed_ups'])} |")
+    lines += ["", f"Machine: {data['machine']}. Each run is one `python -m fractalseq count FILE --depth 16 --json --quiet` "
+              "process under `/usr/bin/time -v`, serial and with `--workers` alternately; CPU time includes the worker "
+              "processes, the memory column is the largest single process.", ""]
+    write_results("scale_count_workers", data, "\n".join(lines))
+    print("\n".join(lines))
+    return 0
+
+
 def cpu_split(sizes: list[float], workers: int, work: Path) -> int:
     """Where the CPU of ``profile_source(..., engine=ProcessEngine(N))`` goes: the parent's own CPU
     seconds and its workers' (``getrusage``; neither depends on the machine's load), against the
@@ -412,6 +470,10 @@ def main() -> int:
     ap.add_argument("--profile-workers", type=int, default=0, metavar="N",
                     help="Only `profile` of one 24-record input per size, serial and with --workers N (JSON compared); "
                          "writes scale_profile_workers.{json,md}.")
+    ap.add_argument("--count-workers", type=int, default=0, metavar="N",
+                    help="Only `count --depth 16` of one 24-record input per size, serial and with --workers N, "
+                         "--repeats pairs (JSON compared); writes scale_count_workers.{json,md}.")
+    ap.add_argument("--repeats", type=int, default=5, help="With --count-workers: serial/workers pairs per size.")
     ap.add_argument("--cpu-split", type=int, default=0, metavar="N",
                     help="Only the CPU of `profile_source` serially and on N local workers (parent and workers apart); "
                          "writes scale_profile_cpu_split.{json,md}.")
@@ -435,6 +497,9 @@ def main() -> int:
     if args.cpu_split:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
             return cpu_split(sizes, args.cpu_split, Path(tmp))
+    if args.count_workers:
+        with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
+            return count_workers(sizes, args.count_workers, args.repeats, Path(tmp))
     if args.profile_workers:
         with tempfile.TemporaryDirectory(prefix="fractalseq-scale-") as tmp:
             return profile_workers(sizes, args.profile_workers, Path(tmp))

@@ -1,10 +1,11 @@
 """A Dask cluster started from the command line, as on real machines, gives the serial answer.
 
 The test starts ``dask scheduler`` and two ``dask worker`` processes (the general-purpose Dask
-commands of the venv), runs ``fractalseq survey`` and a piece-split ``fractalseq count`` through
-``--scheduler tcp://...`` and kills one worker in the middle of each run.  The kill lands at a
+commands of the venv), runs ``fractalseq survey``, a piece-split ``fractalseq count`` and a count split by
+address (``--scheduler`` without ``--piece``) through ``--scheduler tcp://...`` and kills one worker in
+the middle of each run.  The kill lands at a
 controlled point, never by timing: the doomed worker is started with
-``FRACTALSEQ_PAUSE_AT=survey.task:1`` (or ``count.piece:1``), so it stops inside the first task it
+``FRACTALSEQ_PAUSE_AT=survey.task:1`` (or ``count.piece:1``, ``count.slice:1``), so it stops inside the first task it
 is given and can never finish one; the test waits until the scheduler shows it holding a task,
 then kills it with SIGKILL (it runs without a nanny, so nothing restarts it).  The scheduler hands
 its task to the other worker; the JSON must equal the serial run's byte for byte.
@@ -122,6 +123,7 @@ def _fasta(path: Path, seed: int, n: int) -> Path:
 
 
 def test_survey_and_split_count_through_an_external_cluster_survive_a_killed_worker(cluster, tmp_path):
+    """A survey, a count split by position and a count split by address, each losing a worker mid-task."""
     address, client, add_doomed = cluster
     files = [str(_fasta(tmp_path / f"c{i}.fa", i, 8_000)) for i in range(3)]
     survey = [*CLI, "survey", *files, "--json", "--no-cache", "--quiet", "--seed", "3"]
@@ -141,6 +143,14 @@ def test_survey_and_split_count_through_an_external_cluster_survive_a_killed_wor
     run = subprocess.Popen([*count, "--scheduler", address, "--piece", "30000"], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                            text=True, env=ENV)
     _kill_when_busy(client, doomed, "doomed-count.piece:1")
+    out, err = run.communicate(timeout=300)
+    assert run.returncode == 0, err
+    assert out == serial
+
+    # without --piece the words are cut into one slice per worker, each worker reading the whole file itself
+    doomed = add_doomed("count.slice:1")
+    run = subprocess.Popen([*count, "--scheduler", address], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=ENV)
+    _kill_when_busy(client, doomed, "doomed-count.slice:1")
     out, err = run.communicate(timeout=300)
     assert run.returncode == 0, err
     assert out == serial

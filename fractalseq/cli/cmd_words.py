@@ -36,9 +36,11 @@ def count(
     connect_timeout: float = common.CONNECT_TIMEOUT,
     piece: Optional[int] = typer.Option(
         None, "--piece", min=1,
-        help="With --engine/--workers/--scheduler: symbols per piece (default 16777216); each input is split into pieces "
-        "overlapping by DEPTH-1 symbols, counted on the workers and added up exactly. FASTA and text files, uncompressed or "
-        "BGZF, are cut into byte ranges that the workers read themselves: then bytes per range (default: one range per worker).",
+        help="With --engine/--workers/--scheduler: split each input by position into pieces of this many symbols "
+        "overlapping by DEPTH-1, counted on the workers and added up exactly (FASTA and text files, uncompressed or BGZF, "
+        "are cut into byte ranges the workers read themselves: then bytes per range). Without it, inputs that are files "
+        "are split by word instead: each worker reads them whole and counts one slice of the words; standard input "
+        "is cut into pieces of 16777216 symbols.",
     ),
 ) -> None:
     """Count every word of length 1..DEPTH exactly, merging all inputs.
@@ -47,16 +49,20 @@ def count(
     table printed here is also the box-counting ladder. Inputs are read in chunks;
     memory is bounded by the distinct words counted.
 
-    With --workers N (or --engine dask, --scheduler tcp://HOST:PORT) each input is
-    split into pieces of --piece symbols that overlap by DEPTH-1 symbols; the pieces
-    are counted on the workers and added up in order, so the counts are identical
-    to a serial run. An uncompressed or BGZF FASTA or text file is not read by this process:
-    each worker reads its own byte range of it (the file must be at the same path on
-    every worker of a cluster).
+    With --workers N (or --engine dask, --scheduler tcp://HOST:PORT) the words are
+    cut into N slices by their leading symbols (for DNA on two workers: words
+    starting with A or C, and with G or T): each worker reads every input itself
+    and counts the words of its slice, and the slices add up without a merge.
+    With --piece (or from standard input) each input is instead split into pieces
+    that overlap by DEPTH-1 symbols, counted on the workers and added up in order;
+    an uncompressed or BGZF FASTA or text file is then read by the workers in byte
+    ranges. Either way the counts are identical to a serial run, and the files
+    must be at the same path on every worker of a cluster.
 
     Example: fractalseq count genome.fa.gz --depth 16 --save genome16.npz
     """
     common.protect_inputs(paths)  # no output may replace an input, even with --force
+    from fractalseq.alphabet import Alphabet
     from fractalseq.jobs._files import count_files  # imported here: numba makes it slow, and --help/completion need speed
 
     if save is not None:
@@ -64,17 +70,18 @@ def count(
     read = reader(fmt, alphabet, policy, column, bins, thresholds, ordinal, delay, ties)
     with common.make_engine(engine, workers, scheduler, connect_timeout) as eng, common.progress(quiet) as bar:
         task = bar.add_task("counting" if eng.name == "serial" else f"counting ({eng.name}, {eng.workers} workers)", total=len(paths))
-        summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task), engine=eng, piece=piece)
-    wc = summary.counts
+        summary = count_files(paths, depth, read, top=top, on_input=lambda _: bar.advance(task), engine=eng, piece=piece,
+                              keep_counts=save is not None)
+    alphabet = Alphabet.from_dict(summary.alphabet)
     if save is not None:
-        wc.save(save, force=force)
+        summary.counts.save(save, force=force)
     result = summary.to_dict()
     rows = result["ladder"]
     reports = [(r["name"], r) for r in result["inputs"]]
     if json_out:
         typer.echo(to_json(result), nl=False)
         return
-    table = Table(title=f"Word counts, {wc.length:,} symbols in {wc.segments:,} segments ({wc.alphabet.name}, A = {wc.alphabet.size})")
+    table = Table(title=f"Word counts, {summary.length:,} symbols in {summary.segments:,} segments ({alphabet.name}, A = {alphabet.size})")
     for col in ("depth n", "distinct n-words", "occurrences", "possible A^n", "occupied fraction"):
         table.add_column(col, justify="right")
     for r in rows:
@@ -84,7 +91,7 @@ def count(
         )
     common.out_console.print(table)
     if top:
-        t2 = Table(title=f"Most frequent {wc.depth}-words")
+        t2 = Table(title=f"Most frequent {summary.depth}-words")
         t2.add_column("word")
         t2.add_column("count", justify="right")
         for row in result["top"]:
@@ -95,7 +102,7 @@ def count(
 
     for p, r in reports:  # what each reader reported: format, lines cut, symbols left out...
         common.read_notes(read_summary(r.get("notes"), r.get("dropped")), p if len(reports) > 1 else "")
-    common.caution_line(caution_for([wc.alphabet]))
+    common.caution_line(caution_for([alphabet]))
     if save is not None and not quiet:
         common.err_console.print(f"saved counts to {common.safe(str(save))}", markup=False, highlight=False)
 

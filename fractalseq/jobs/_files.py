@@ -54,7 +54,8 @@ class CountSummary(Result):
     top:
         The most frequent words at the deepest depth (empty unless asked for).
     counts:
-        The counts themselves (not part of the JSON).
+        The counts themselves (not part of the JSON); ``None`` when the count was split by address on an
+        engine and the tables were not asked for (see :func:`count_files`).
     """
 
     inputs: tuple[dict, ...]
@@ -65,7 +66,7 @@ class CountSummary(Result):
     storage: str
     ladder: tuple[dict, ...]
     top: tuple[dict, ...]
-    counts: WordCounts = field(metadata={"json": False})
+    counts: WordCounts | None = field(metadata={"json": False})
 
 
 def count_files(
@@ -78,6 +79,7 @@ def count_files(
     engine: Engine | None = None,
     piece: int | None = None,
     on_piece: Callable[[int, object], None] | None = None,
+    keep_counts: bool = True,
 ) -> CountSummary:
     """Count every word of length 1..``depth`` of several inputs together (what ``fractalseq count`` does).
 
@@ -89,19 +91,28 @@ def count_files(
         Called with each input's name once it is counted.
     engine:
         Where the counting runs.  ``None`` or the serial engine count each input
-        in one streamed pass in this process; another engine splits each input
-        into pieces of ``piece`` symbols overlapping by ``depth - 1``
-        (:func:`~fractalseq.words._pieces.count_words_split`), counts them on
-        its workers and adds them up in order: the counts are identical.
+        in one streamed pass in this process.  On another engine, when every
+        input is a regular file and no ``piece`` is given, the word addresses are
+        cut into one slice per worker (:mod:`fractalseq.words._slices`): each
+        worker reads every input itself and counts the words of its slice, and the
+        slices add up without a merge.  Otherwise each input is split into pieces
+        of ``piece`` symbols overlapping by ``depth - 1``
+        (:func:`~fractalseq.words._pieces.count_words_split`), counted on the
+        workers and added up in order.  Either way the counts are identical.
     piece:
-        Symbols per piece (default :data:`~fractalseq.words._pieces.DEFAULT_PIECE`).  An
+        Split by position into pieces of this many symbols (default, for inputs that are not
+        regular files: :data:`~fractalseq.words._pieces.DEFAULT_PIECE`).  An
         uncompressed or BGZF FASTA or plain-text file (under the ``break`` or ``skip`` policy) is
         cut into byte ranges that the workers read themselves
         (:func:`~fractalseq.words._pieces.source_pieces`); ``piece`` is then bytes per
         range, by default one range per worker
         (:func:`~fractalseq.words._pieces.range_size`).
     on_piece:
-        Called as ``on_piece(index, counts)`` when a piece is counted.
+        Called as ``on_piece(index, result)`` when a piece is counted (its counts) or a slice (its
+        :class:`~fractalseq.words._slices.SliceCount`).
+    keep_counts:
+        Whether the summary must hold the counts themselves (``counts``); a count split by
+        address sends its tables back only then.
 
     Raises
     ------
@@ -113,10 +124,22 @@ def count_files(
     reader = reader or ReaderOptions()
     if engine is None or isinstance(engine, SerialEngine):
         wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+    elif piece is None and paths and all(p != "-" and os.path.isfile(p) for p in paths):
+        sliced = _count_sliced(paths, depth, reader, engine, top, keep_counts, on_input, on_piece)
+        return CountSummary(
+            inputs=tuple({"name": p, **r.to_dict()} for p, r in sliced.reports),
+            alphabet=sliced.alphabet.to_dict(),
+            length=sliced.length,
+            segments=sliced.segments,
+            depth=sliced.depth,
+            storage=sliced.storage,
+            ladder=tuple(sliced.ladder()),
+            top=tuple({"word": w, "count": c} for w, c in sliced.top(top)) if top else (),
+            counts=sliced.counts,
+        )
     else:
         wc, reports = _count_split(paths, depth, reader, engine, piece, on_input, on_piece)
-    if wc.length == 0:
-        raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
+    _check_counted(wc.length)
     return CountSummary(
         inputs=tuple({"name": p, **r.to_dict()} for p, r in reports),
         alphabet=wc.alphabet.to_dict(),
@@ -128,6 +151,30 @@ def count_files(
         top=tuple({"word": w, "count": c} for w, c in wc.top(wc.depth, top)) if top else (),
         counts=wc,
     )
+
+
+def _check_counted(length: int) -> None:
+    if length == 0:
+        raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
+
+
+def _count_sliced(paths, depth, reader, engine, top, keep_counts, on_input, on_piece):
+    """Every input counted on ``engine`` one address slice per worker (:mod:`fractalseq.words._slices`).
+
+    The parent reads nothing: each worker opens the inputs, plans the same slices from the first
+    chunk and counts its own; a bad input, depth or alphabet raises in the workers with the
+    serial count's sentence.
+    """
+    from fractalseq.words._slices import count_slice, join_slices
+
+    parts = max(1, int(engine.workers))
+    tasks = [(tuple(paths), reader.open, depth, k, parts, int(top), bool(keep_counts)) for k in range(parts)]
+    joined = join_slices(engine.map(count_slice, tasks, on_piece))
+    _check_counted(joined.length)
+    if on_input is not None:
+        for p in paths:
+            on_input(p)
+    return joined
 
 
 def _count_split(paths, depth, reader, engine, piece, on_input, on_piece):

@@ -19,6 +19,7 @@ def count_inputs(
     parallel: bool = True,
     on_input: Callable[[str], None] | None = None,
     compact: bool = False,
+    window: tuple[int, int] | None = None,
 ) -> tuple[WordCounts, list[tuple[str, ReadReport]]]:
     """Count the words of several inputs together, streamed; each input is its own segment.
 
@@ -34,6 +35,8 @@ def count_inputs(
         Called with each input's name once it is counted (progress display).
     compact:
         ``uint32`` counts while they fit (see :class:`WordCounter`).
+    window:
+        Count only the words of this address range (see :class:`WordCounter`).
 
     Returns
     -------
@@ -50,7 +53,7 @@ def count_inputs(
     for name, stream in inputs:
         if counter is None:
             a = stream.alphabet
-            counter = WordCounter(a, depth(a) if callable(depth) else depth, parallel=parallel, compact=compact)
+            counter = WordCounter(a, depth(a) if callable(depth) else depth, parallel=parallel, compact=compact, window=window)
         elif not counter.alphabet.same_symbols(stream.alphabet):
             raise InputError(
                 f"{name} has a different alphabet from the first input; give one alphabet (e.g. dna) for all inputs."

@@ -27,6 +27,7 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from fractalseq.words import _kernels as kernels
+from fractalseq.words._addresses import absent_prefixes, decode_address, encode_address, reduce_tails
 from fractalseq.words._part_tally import parts_for, tally_in_parts
 from fractalseq.words._threaded_runs import sorted_runs_threaded as _sorted_runs_threaded
 from fractalseq.alphabet import Alphabet
@@ -201,8 +202,9 @@ class WordCounts:
     def total(self, n: int) -> int:
         """Number of n-word occurrences (``length - n + 1`` per segment long enough)."""
         n = self._check_n(n)
-        leaf = int(self.dense.sum()) if self.dense is not None else int(np.asarray(self.leaf_counts).sum())
-        return leaf + int(self.tail_count[self.tail_len >= n].sum())
+        if "leaf_total" not in self._cache:  # summed once: a ladder asks for every depth
+            self._cache["leaf_total"] = int(self.dense.sum()) if self.dense is not None else int(np.asarray(self.leaf_counts).sum())
+        return self._cache["leaf_total"] + int(self.tail_count[self.tail_len >= n].sum())
 
     def distinct(self, n: int) -> int:
         """Number of distinct n-words (occupied boxes at scale ``k**n``)."""
@@ -235,7 +237,7 @@ class WordCounts:
         for n in range(1, N + 1):
             tw, _ = self._tail_prefixes(n)
             if tw.size:
-                out[n] += _absent_prefixes(lw, tw, b * (N - n), b * N)
+                out[n] += absent_prefixes(lw, tw, b * (N - n), b * N)
         self._cache["distinct"] = out
         return out
 
@@ -321,7 +323,7 @@ class WordCounts:
             bw, bc = other.leaf()
             lw, lc = kernels.merge_sorted_counts(aw, ac, bw.astype(aw.dtype), bc)
             dense = None
-        tl, ta, tc = _reduce_tails(
+        tl, ta, tc = reduce_tails(
             [self.tail_len, other.tail_len], [self.tail_addr, other.tail_addr], [self.tail_count, other.tail_count]
         )
         return WordCounts(
@@ -438,49 +440,6 @@ class WordCounts:
         )
 
 
-# ------------------------------------------------------------------ helpers
-def encode_address(codes: Iterable[int], bits: int) -> int:
-    """Packed address of a word given by its codes (first symbol most significant)."""
-    a = 0
-    for c in codes:
-        a = (a << bits) | int(c)
-    return a
-
-
-def decode_address(address: int, n: int, bits: int) -> list[int]:
-    """Codes of the n-word with the given address."""
-    mask = (1 << bits) - 1
-    return [(address >> (bits * (n - 1 - i))) & mask for i in range(n)]
-
-
-def _absent_prefixes(sorted_leaf: np.ndarray, prefixes: np.ndarray, shift: int, key_bits: int) -> int:
-    """How many of the (few) ``prefixes`` start no leaf word (leaf words sorted; prefix = word >> shift)."""
-    if sorted_leaf.size == 0:
-        return int(prefixes.size)
-    lo_vals = (prefixes << np.uint64(shift)).astype(sorted_leaf.dtype)
-    lo = np.searchsorted(sorted_leaf, lo_vals, side="left")
-    top = np.uint64(1) << np.uint64(key_bits - shift) if key_bits - shift < 64 else None
-    nxt = prefixes + np.uint64(1)
-    overflow = (nxt >= top) if top is not None else np.zeros(prefixes.size, bool)
-    hi_vals = np.where(overflow, 0, nxt << np.uint64(shift)).astype(sorted_leaf.dtype)
-    hi = np.where(overflow, sorted_leaf.size, np.searchsorted(sorted_leaf, hi_vals, side="left"))
-    return int(np.count_nonzero(hi == lo))
-
-
-def _reduce_tails(lens: list[np.ndarray], addrs: list[np.ndarray], cnts: list[np.ndarray]):
-    tl = np.concatenate(lens).astype(np.uint8) if lens else np.zeros(0, np.uint8)
-    ta = np.concatenate(addrs).astype(np.uint64) if addrs else np.zeros(0, np.uint64)
-    tc = np.concatenate(cnts).astype(np.int64) if cnts else np.zeros(0, np.int64)
-    if tl.size == 0:
-        return tl, ta, tc
-    order = np.lexsort((ta, tl))
-    tl, ta, tc = tl[order], ta[order], tc[order]
-    new = np.ones(tl.size, dtype=bool)
-    new[1:] = (tl[1:] != tl[:-1]) | (ta[1:] != ta[:-1])
-    starts = np.flatnonzero(new)
-    return tl[starts], ta[starts], np.add.reduceat(tc, starts).astype(np.int64)
-
-
 class WordCounter:
     """Builds :class:`WordCounts` from chunks (words across chunk edges counted once).
 
@@ -495,10 +454,14 @@ class WordCounter:
     compact:
         Sparse counts as ``uint32`` (12 bytes a distinct word, not 16) while the symbols counted stay
         below ``2**32`` (no word occurs more often); beyond, they widen to ``int64``.  Same counts.
+    window:
+        ``(first, last)``: count only the words whose address, padded to ``N`` symbols with zero codes,
+        lies in ``first..last`` (one slice of a count split by address, :mod:`fractalseq.words._slices`);
+        ``length`` and ``segments`` still count the whole stream.  ``None`` counts every word.
     """
 
     def __init__(self, alphabet: Alphabet, depth: int, parallel: bool = False, dense: bool | None = None,
-                 compact: bool = False) -> None:
+                 compact: bool = False, window: tuple[int, int] | None = None) -> None:
         self.alphabet = alphabet
         self.depth = check_depth(alphabet, depth)
         self.bits = alphabet.bits
@@ -512,6 +475,11 @@ class WordCounter:
         self._dense: np.ndarray | None = None  # allocated once the sparse runs outgrow cells / 8
         self._runs: list[tuple[np.ndarray, np.ndarray]] = []
         self._count_dtype = np.dtype(np.uint32 if compact else np.int64)
+        self.window = None if window is None else (int(window[0]), int(window[1]))
+        self._pending: list[np.ndarray] = []  # a windowed counter's keys not yet sorted into a run
+        self._pending_size = 0
+        if self.window is not None and not 0 <= self.window[0] <= self.window[1] < (1 << (self.bits * self.depth)):
+            raise ParameterError(f"The address window {window} is outside the {self.bits * self.depth}-bit addresses.")
         self._lcp: np.ndarray | None = None
         self._tails: tuple[list, list, list] = ([], [], [])
         self._carry = np.zeros(0, dtype=alphabet.code_dtype)
@@ -536,11 +504,13 @@ class WordCounter:
         if vcodes.size == 0:
             self._open = self._open and not final
             return
-        threaded = self.parallel and self._dense is None and not self.use_dense and vcodes.size > (1 << 18)
-        # the threaded path writes the addresses itself, grouped by first symbol: here only tails and carry
+        threaded = self.parallel and self._dense is None and not self.use_dense and vcodes.size > (1 << 18) and self.window is None
+        # the threaded and windowed paths write the addresses themselves: here only tails and carry
         keys, tl, ta, carry_from = kernels.full_words(
-            vcodes, vstarts, self.depth, self.bits, bool(final), self._template, not threaded
+            vcodes, vstarts, self.depth, self.bits, bool(final), self._template, not threaded and self.window is None
         )
+        if self.window is not None:
+            keys, tl, ta = self._in_window(vcodes, vstarts, tl, ta)
         if tl.size:
             self._tails[0].append(tl)
             self._tails[1].append(ta)
@@ -554,22 +524,52 @@ class WordCounter:
                 uniq, cnt, lcp = _sorted_runs_threaded(vcodes, vstarts, self.depth, self.bits, keys, n_low)
                 del keys
                 self._push_run(uniq, cnt.astype(self._count_dtype, copy=False), lcp)
+        elif self.window is not None:  # a slice's keys are a fraction of each chunk's: gathered into runs of WINDOW_RUN
+            if keys.size:
+                self._pending.append(keys)
+                self._pending_size += keys.size
+            if self._pending_size >= WINDOW_RUN:
+                self._flush_pending()
         elif keys.size:
-            if self._dense is not None:
-                kernels.dense_add(self._dense, keys)
-            elif self.use_dense and keys.size > self._cells // 8:
-                self._dense = np.zeros(self._cells, dtype=np.int64)
-                for w, c in self._runs:
-                    np.add.at(self._dense, w.astype(np.int64), c)
-                self._runs = []
-                kernels.dense_add(self._dense, keys)
-            else:
-                keys.sort()  # numpy's vectorised sort, in place
-                uniq, cnt, lcp = kernels.runs_with_lcp(keys, self.depth, self.bits, 8 * keys.dtype.itemsize)
-                del keys
-                self._push_run(uniq, cnt.astype(self._count_dtype, copy=False), lcp)
+            self._absorb(keys)
         self._carry = vcodes[carry_from:].copy() if not final else vcodes[:0].copy()
         self._open = not final
+
+    def _flush_pending(self) -> None:
+        """Count the gathered keys of a windowed counter as one run."""
+        if self._pending:
+            keys = self._pending[0] if len(self._pending) == 1 else np.concatenate(self._pending)
+            self._pending, self._pending_size = [], 0
+            self._absorb(keys)
+
+    def _absorb(self, keys: np.ndarray) -> None:
+        """Add full-word addresses (``keys`` is consumed): into the dense table, or as one more sorted run."""
+        if self._dense is not None:
+            kernels.dense_add(self._dense, keys)
+        elif self.use_dense and keys.size > self._cells // 8:
+            self._dense = np.zeros(self._cells, dtype=np.int64)
+            for w, c in self._runs:
+                np.add.at(self._dense, w.astype(np.int64), c)
+            self._runs = []
+            kernels.dense_add(self._dense, keys)
+        else:
+            kernels.sort_keys(keys, self.bits * self.depth)  # in place
+            uniq, cnt, lcp = kernels.runs_with_lcp(keys, self.depth, self.bits, 8 * keys.dtype.itemsize)
+            del keys
+            self._push_run(uniq, cnt.astype(self._count_dtype, copy=False), lcp)
+
+    def _in_window(self, vcodes: np.ndarray, vstarts: np.ndarray, tl: np.ndarray, ta: np.ndarray):
+        """The full words and the tails of a chunk that lie in :attr:`window` (tails compared padded to ``N`` symbols)."""
+        first, last = self.window
+        seg_len = np.diff(np.append(vstarts, vcodes.size))
+        keys = np.empty(int(np.maximum(seg_len - self.depth + 1, 0).sum()), dtype=self.key_dtype)
+        m = kernels.window_words(vcodes, vstarts, self.depth, self.bits, np.uint64(first), np.uint64(last), keys)
+        keys = keys[:m]  # a view: the gathered keys are copied into one run
+        if tl.size:
+            padded = ta << ((np.uint64(self.depth) - tl.astype(np.uint64)) * np.uint64(self.bits))
+            keep = (padded >= np.uint64(first)) & (padded <= np.uint64(last))
+            tl, ta = tl[keep], ta[keep]
+        return keys, tl, ta
 
     def _push_run(self, words: np.ndarray, counts: np.ndarray, lcp: np.ndarray | None = None) -> None:
         self._lcp = lcp if not self._runs else None  # the prefix histogram is valid for a single run only
@@ -594,7 +594,8 @@ class WordCounter:
         """Close the open segment and return the counts."""
         if self._carry.size:
             self.add(np.zeros(0, self.alphabet.code_dtype), np.zeros(0, np.int64), final=True)
-        tl, ta, tc = _reduce_tails(*self._tails)
+        self._flush_pending()
+        tl, ta, tc = reduce_tails(*self._tails)
         if self._dense is not None:
             if np.count_nonzero(self._dense) > self._cells // 8:
                 return WordCounts(self.alphabet, self.depth, self.length, self.segments, self._dense, None, None, tl, ta, tc)
@@ -629,11 +630,14 @@ def _count_in_parts(source: SymbolArray, depth: int, dense: bool | None, compact
     key_dtype = _key_dtype(bits, depth)
     lw, lc = tally_in_parts(codes, starts, depth, bits, key_dtype, np.dtype(np.uint32 if compact and T <= U32_MAX else np.int64))
     _, tl, ta, _ = kernels.full_words(codes, starts, depth, bits, True, np.zeros(0, key_dtype), False)
-    tl, ta, tc = _reduce_tails([tl], [ta], [np.ones(tl.size, np.int64)])
+    tl, ta, tc = reduce_tails([tl], [ta], [np.ones(tl.size, np.int64)])
     segments = int(inside.size) + (0 if inside.size and inside[0] == 0 else 1)
     return WordCounts(alphabet, depth, T, segments, None, lw, lc, tl, ta, tc)
 
 
+#: A windowed counter (one address slice) sorts its keys in runs of at least this many: the size of
+#: the runs a whole chunk gives an unwindowed counter.
+WINDOW_RUN = 1 << 22
 #: A :class:`SymbolArray` is counted in pieces of this many symbols (the same counts as one piece).
 ARRAY_PIECE = 1 << 22
 

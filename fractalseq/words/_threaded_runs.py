@@ -1,4 +1,4 @@
-"""Sorted distinct words of a piece on two threads (numpy's sort and ``nogil`` kernels release the GIL)."""
+"""Sorted distinct words of a piece on two threads (``nogil`` kernels release the GIL)."""
 
 from __future__ import annotations
 
@@ -13,8 +13,8 @@ def sorted_runs_threaded(codes, starts, depth, bits, keys, n_low, threads: int =
     """Unique words, counts and prefix histogram using ``threads`` threads.
 
     Words are split by the top bit of their first symbol (so the two halves
-    are already in order), each half is sorted by numpy (which releases the
-    GIL), its distinct words counted, and then reduced by a ``nogil`` kernel
+    are already in order), each half is sorted by a ``nogil`` radix sort, its
+    distinct words counted, and then reduced by a ``nogil`` kernel
     straight into its slice of the output.
     """
     from concurrent.futures import ThreadPoolExecutor
@@ -26,7 +26,7 @@ def sorted_runs_threaded(codes, starts, depth, bits, keys, n_low, threads: int =
 
     def sort_and_count(i: int) -> int:
         lo, hi = parts[i]
-        keys[lo:hi].sort()
+        kernels.sort_keys(keys[lo:hi], depth * bits)  # a nogil kernel: the two halves sort at once
         return kernels.count_runs(keys[lo:hi])
 
     with ThreadPoolExecutor(max_workers=threads) as pool:
