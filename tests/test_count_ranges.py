@@ -29,32 +29,12 @@ from fractalseq.errors import InputError
 from fractalseq.io._outputs import to_json
 from fractalseq.jobs._files import count_files
 from fractalseq.jobs._inputs import ReaderOptions
-from fractalseq.runner import Engine
 from fractalseq.sources import ranges as ranges_module
 from fractalseq.sources.ranges import plan_ranges
 from fractalseq.words._pieces import read_piece, source_pieces
 
+from _inprocess import InProcess
 from _paths import CLI, LAMBDA, ROOT
-
-
-class _Now:
-    def __init__(self, value):
-        self._value = value
-
-    def result(self):
-        return self._value
-
-
-class InProcess(Engine):
-    """Runs each task at once in this process, but is not the serial engine: ``count`` splits its inputs."""
-
-    name = "in-process"
-
-    def submit(self, func, item):
-        return _Now(func(item))
-
-    def wait_first(self, futures):
-        return futures
 
 
 _SEQ = "ACGTACGTACGTacgtNnRYXx-*"

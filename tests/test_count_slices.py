@@ -27,35 +27,12 @@ from fractalseq.io._outputs import to_json
 from fractalseq.jobs._engines import ProcessEngine
 from fractalseq.jobs._files import count_files
 from fractalseq.jobs._inputs import ReaderOptions
-from fractalseq.runner import Engine
 from fractalseq.words._counts import WordCounter, WordCounts, count_words, decode_address
 from fractalseq.words._slices import AddressSlice, count_slice, join_slices, plan_slices, summarize_slice
 from fractalseq.stream import SymbolArray
 
+from _inprocess import InProcess, fasta_word_counts
 from _paths import CLI, ROOT
-
-
-class _Now:
-    def __init__(self, value):
-        self._value = value
-
-    def result(self):
-        return self._value
-
-
-class InProcess(Engine):
-    """Runs each task at once in this process with ``workers`` pretend workers (so ``count`` splits by address)."""
-
-    name = "in-process"
-
-    def __init__(self, workers: int) -> None:
-        self.workers = workers
-
-    def submit(self, func, item):
-        return _Now(func(item))
-
-    def wait_first(self, futures):
-        return futures
 
 
 def _fasta(rng: np.random.Generator, records: int, length: int, skew: bool) -> str:
@@ -65,16 +42,6 @@ def _fasta(rng: np.random.Generator, records: int, length: int, skew: bool) -> s
         seq = "".join(np.array(list("ACGTN"))[rng.choice(5, int(rng.integers(1, length)), p=p)])
         out.append(f">r{r} invented\n" + "\n".join(seq[i : i + 60] for i in range(0, len(seq), 60)))
     return "\n".join(out) + "\n"
-
-
-def _naive(text: str, n: int) -> collections.Counter:
-    c: collections.Counter = collections.Counter()
-    for rec in text.split(">")[1:]:
-        seq = "".join(rec.split("\n")[1:])
-        for part in seq.split("N"):
-            for i in range(len(part) - n + 1):
-                c[part[i : i + n]] += 1
-    return c
 
 
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
@@ -101,7 +68,7 @@ def test_sliced_count_equals_serial(tmp_path, seed, records, depth, workers, top
     n = min(depth, 3)
     w, c = whole.counts.words(n)
     got = {"".join("ACGT"[(int(x) >> (2 * (n - 1 - i))) & 3] for i in range(n)): int(k) for x, k in zip(w, c) if k}
-    want = sum((_naive(t, n) for t in texts), collections.Counter())
+    want = sum((fasta_word_counts(t, n) for t in texts), collections.Counter())
     assert got == dict(want)
 
 

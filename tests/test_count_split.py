@@ -8,7 +8,6 @@ every record cut at its ambiguous symbols (common practice: a word never spans a
 
 from __future__ import annotations
 
-import collections
 import os
 import subprocess
 
@@ -22,6 +21,7 @@ from fractalseq.jobs._engines import ProcessEngine
 from fractalseq.jobs._files import count_files
 from fractalseq.jobs._inputs import ReaderOptions
 
+from _inprocess import fasta_word_counts
 from _paths import CLI, ROOT
 
 
@@ -44,16 +44,6 @@ def _fasta(seed: int, records: int, length: int) -> str:
     return "\n".join(out) + "\n"
 
 
-def _naive(text: str, n: int) -> collections.Counter:
-    c: collections.Counter = collections.Counter()
-    for rec in text.split(">")[1:]:
-        seq = "".join(rec.split("\n")[1:])
-        for part in seq.split("N"):
-            for i in range(len(part) - n + 1):
-                c[part[i : i + n]] += 1
-    return c
-
-
 @settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(seed=st.integers(0, 10_000), records=st.integers(1, 6), depth=st.integers(1, 10), piece=st.integers(200, 6_000))
 def test_split_count_on_processes_equals_serial(tmp_path, engine, seed, records, depth, piece):
@@ -69,7 +59,7 @@ def test_split_count_on_processes_equals_serial(tmp_path, engine, seed, records,
     n = min(depth, 3)
     w, c = split.counts.words(n)
     got = {"".join("ACGT"[(int(x) >> (2 * (n - 1 - i))) & 3] for i in range(n)): int(k) for x, k in zip(w, c) if k}
-    assert got == dict(_naive(text, n))
+    assert got == dict(fasta_word_counts(text, n))
 
 
 @pytest.mark.slow

@@ -124,41 +124,29 @@ def count_files(
     reader = reader or ReaderOptions()
     if engine is None or isinstance(engine, SerialEngine):
         wc, reports = count_inputs(((p, reader.open(p)) for p in paths), depth, on_input=on_input)
+        counted, counts = wc, wc
     elif piece is None and paths and all(p != "-" and os.path.isfile(p) for p in paths):
-        sliced = _count_sliced(paths, depth, reader, engine, top, keep_counts, on_input, on_piece)
-        return CountSummary(
-            inputs=tuple({"name": p, **r.to_dict()} for p, r in sliced.reports),
-            alphabet=sliced.alphabet.to_dict(),
-            length=sliced.length,
-            segments=sliced.segments,
-            depth=sliced.depth,
-            storage=sliced.storage,
-            ladder=tuple(sliced.ladder()),
-            top=tuple({"word": w, "count": c} for w, c in sliced.top(top)) if top else (),
-            counts=sliced.counts,
-        )
+        counted = _count_sliced(paths, depth, reader, engine, keep_counts, on_input, on_piece, top)
+        reports, counts = counted.reports, counted.counts
     else:
         wc, reports = _count_split(paths, depth, reader, engine, piece, on_input, on_piece)
-    _check_counted(wc.length)
+        counted, counts = wc, wc
+    if counted.length == 0:
+        raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
     return CountSummary(
         inputs=tuple({"name": p, **r.to_dict()} for p, r in reports),
-        alphabet=wc.alphabet.to_dict(),
-        length=wc.length,
-        segments=wc.segments,
-        depth=wc.depth,
-        storage=wc.storage,
-        ladder=tuple(wc.ladder()),
-        top=tuple({"word": w, "count": c} for w, c in wc.top(wc.depth, top)) if top else (),
-        counts=wc,
+        alphabet=counted.alphabet.to_dict(),
+        length=counted.length,
+        segments=counted.segments,
+        depth=counted.depth,
+        storage=counted.storage,
+        ladder=tuple(counted.ladder()),
+        top=tuple({"word": w, "count": c} for w, c in counted.top(counted.depth, top)) if top else (),
+        counts=counts,
     )
 
 
-def _check_counted(length: int) -> None:
-    if length == 0:
-        raise InputError("The inputs hold no usable symbols; check the files, their format and the alphabet.")
-
-
-def _count_sliced(paths, depth, reader, engine, top, keep_counts, on_input, on_piece):
+def _count_sliced(paths, depth, reader, engine, keep_counts, on_input, on_piece, top):
     """Every input counted on ``engine`` one address slice per worker (:mod:`fractalseq.words._slices`).
 
     The parent reads nothing: each worker opens the inputs, plans the same slices from the first
@@ -170,7 +158,6 @@ def _count_sliced(paths, depth, reader, engine, top, keep_counts, on_input, on_p
     parts = max(1, int(engine.workers))
     tasks = [(tuple(paths), reader.open, depth, k, parts, int(top), bool(keep_counts)) for k in range(parts)]
     joined = join_slices(engine.map(count_slice, tasks, on_piece))
-    _check_counted(joined.length)
     if on_input is not None:
         for p in paths:
             on_input(p)

@@ -278,8 +278,11 @@ class SlicedCounts:
             for n in range(1, self.depth + 1)
         ]
 
-    def top(self, limit: int) -> list[tuple[str, int]]:
-        """The ``limit`` most frequent ``N``-words as (text, count), ties by address (as :meth:`WordCounts.top`)."""
+    def top(self, n: int, limit: int = 10) -> list[tuple[str, int]]:
+        """The ``limit`` most frequent ``N``-words as (text, count), ties by address (as :meth:`WordCounts.top`;
+        only ``n = N``: the slices keep their deepest words' leaders)."""
+        if n != self.depth:
+            raise ParameterError(f"Only the most frequent {self.depth}-words were kept; ask for n = {self.depth}.")
         order = np.lexsort((self._top_words, -self._top_counts))[:limit]
         return [(self.alphabet.word(decode_address(int(self._top_words[i]), self.depth, self.alphabet.bits)),
                  int(self._top_counts[i])) for i in order]
