@@ -119,7 +119,7 @@ def _prefix_weights(codes: np.ndarray, size: int, s: int) -> np.ndarray:
     idx = np.zeros(n, np.int64)
     for j in range(s):
         idx = idx * size + codes[j : j + n]
-    return np.bincount(idx, minlength=size**s) + 1
+    return np.bincount(idx, minlength=size**s)[: size**s] + 1
 
 
 def _balanced_cuts(weights: np.ndarray, parts: int) -> list[int]:
