@@ -516,8 +516,7 @@ class WordCounter:
             self._tails[1].append(ta)
             self._tails[2].append(np.ones(tl.size, np.int64))
         if threaded:
-            seg_len = np.diff(np.append(vstarts, vcodes.size))
-            n_full = int(np.maximum(seg_len - self.depth + 1, 0).sum())
+            n_full = self._full_words(vcodes, vstarts)
             if n_full:
                 keys = np.empty(n_full, dtype=self.key_dtype)
                 n_low = kernels.low_half_words(vcodes, vstarts, self.depth, self.bits)
@@ -558,11 +557,15 @@ class WordCounter:
             del keys
             self._push_run(uniq, cnt.astype(self._count_dtype, copy=False), lcp)
 
+    def _full_words(self, vcodes: np.ndarray, vstarts: np.ndarray) -> int:
+        """How many full ``N``-words the segments starting at ``vstarts`` hold."""
+        seg_len = np.diff(np.append(vstarts, vcodes.size))
+        return int(np.maximum(seg_len - self.depth + 1, 0).sum())
+
     def _in_window(self, vcodes: np.ndarray, vstarts: np.ndarray, tl: np.ndarray, ta: np.ndarray):
         """The full words and the tails of a chunk that lie in :attr:`window` (tails compared padded to ``N`` symbols)."""
         first, last = self.window
-        seg_len = np.diff(np.append(vstarts, vcodes.size))
-        keys = np.empty(int(np.maximum(seg_len - self.depth + 1, 0).sum()), dtype=self.key_dtype)
+        keys = np.empty(self._full_words(vcodes, vstarts), dtype=self.key_dtype)
         m = kernels.window_words(vcodes, vstarts, self.depth, self.bits, np.uint64(first), np.uint64(last), keys)
         keys = keys[:m]  # a view: the gathered keys are copied into one run
         if tl.size:
